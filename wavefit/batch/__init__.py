@@ -1,0 +1,1 @@
+"""Lots: spec limits, decision rules (ILAC-G8), lot statistics, resumable output."""

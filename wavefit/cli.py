@@ -1,0 +1,139 @@
+"""Command line: parse arguments, call the library, print, set the exit code.
+
+Exit codes: 0 done; 2 usage error; 3 unreadable capture or bad setup;
+4 analysis refused (no result that could be trusted).
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+from typing import Sequence
+
+from . import __version__
+from .errors import WavefitError
+
+EXIT_OK, EXIT_USAGE, EXIT_INPUT, EXIT_REFUSED = 0, 2, 3, 4
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="wavefit",
+        description="Measure inductors (L, DCR, Q, self-capacitance) from recorded scope waveforms.",
+    )
+    parser.add_argument("--version", action="version", version=f"wavefit {__version__}")
+    parser.add_argument("--debug", action="store_true", help="show tracebacks instead of one-line errors")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    p_an = sub.add_parser("analyze", help="fit captures and report component values with uncertainties")
+    p_an.add_argument("captures", nargs="*", metavar="CAPTURE", help="capture files (CSV, optionally .gz)")
+    p_an.add_argument("--setup", required=True, help="setup file (TOML): method, columns, parts")
+    p_an.add_argument("--json", action="store_true", help="print only the result as JSON")
+    p_an.add_argument("--plot", metavar="FILE.png", help="draw capture, fitted model and residuals")
+    p_an.add_argument("--sample-interval", type=float, metavar="SECONDS",
+                      help="sample interval when the capture has no time column")
+    p_an.add_argument("--no-budget", action="store_true", help="leave the budget out of the text report")
+
+    p_in = sub.add_parser("inspect", help="show what the reader sees in a capture file")
+    p_in.add_argument("file", metavar="FILE")
+    p_in.add_argument("--json", action="store_true", help="print as JSON")
+    p_in.add_argument("--sample-interval", type=float, metavar="SECONDS")
+
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        parser.print_help(sys.stderr)
+        return EXIT_USAGE
+    handler = {"analyze": _analyze, "inspect": _inspect}[args.command]
+    try:
+        return handler(args)
+    except WavefitError as exc:
+        if args.debug:
+            raise
+        print(f"wavefit: error: {_one_line(str(exc))}", file=sys.stderr)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        print("wavefit: interrupted", file=sys.stderr)
+        return 130
+
+
+def _analyze(args: argparse.Namespace) -> int:
+    from .analysis import analyze
+    from .methods import get_method
+    from .setup import load_setup
+
+    setup = load_setup(args.setup)
+    method = get_method(setup.method)
+    if method.uses_setup_captures:
+        jobs = [args.captures or None]
+    elif not args.captures:
+        print("wavefit: error: name at least one CAPTURE file to analyse", file=sys.stderr)
+        return EXIT_USAGE
+    else:
+        jobs = list(args.captures)
+    results, worst = [], EXIT_OK
+    for k, source in enumerate(jobs):
+        try:
+            result = analyze(source, setup, sample_interval=args.sample_interval)
+        except WavefitError as exc:
+            if args.debug:
+                raise
+            label = source if isinstance(source, str) else "setup captures"
+            print(f"wavefit: error: {label}: {_one_line(str(exc))}", file=sys.stderr)
+            worst = max(worst, exc.exit_code)
+            continue
+        results.append(result)
+        if args.plot:
+            from .report.plot import save_plot
+
+            save_plot(result, _plot_path(args.plot, k, len(jobs)))
+        if not args.json:
+            from .report.text import render
+
+            print(render(result, budget=not args.no_budget))
+            print()
+            sys.stdout.flush()
+    if args.json and results:
+        payload = results[0].to_dict() if len(jobs) == 1 else [r.to_dict() for r in results]
+        print(json.dumps(payload, indent=2, allow_nan=False))
+    return worst
+
+
+def _inspect(args: argparse.Namespace) -> int:
+    from .io import read_capture
+
+    capture = read_capture(args.file, sample_interval=args.sample_interval)
+    info = capture.describe()
+    if args.json:
+        print(json.dumps(info, indent=2, allow_nan=False))
+        return EXIT_OK
+    from .values import eng
+
+    print(f"{info['source']}: {info['rows']} rows, sample interval {eng(info['sample_interval_s'], 's')}"
+          f", time from {info['time_column'] or 'sample interval'}")
+    for col in info["columns"]:
+        print(f"  {col['header']!r:<24} unit {col['unit'] or '-':<4} "
+              f"min {col['min']!s:<14} max {col['max']!s}")
+    for key, value in info["metadata"].items():
+        print(f"  meta {key}: {value}")
+    for w in info["warnings"]:
+        print(f"  ! {w}")
+    return EXIT_OK
+
+
+def _plot_path(path: str, k: int, total: int) -> Path:
+    p = Path(path)
+    return p if total == 1 else p.with_name(f"{p.stem}-{k + 1}{p.suffix}")
+
+
+def _one_line(text: str) -> str:
+    return " ".join(text.split())
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

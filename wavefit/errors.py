@@ -1,0 +1,31 @@
+"""Errors a user can cause, as one exception family.
+
+The command line turns each into one line on stderr and the exit code named by
+the class (see ``docs/cli.md``): 3 for an unreadable capture or a bad setup,
+4 when the analysis is refused because its result could not be trusted.
+"""
+from __future__ import annotations
+
+
+class WavefitError(Exception):
+    """Base of every error a user can cause; carries the CLI exit code."""
+
+    exit_code = 3
+
+
+class CaptureError(WavefitError):
+    """The capture file cannot be read as a waveform table."""
+
+    exit_code = 3
+
+
+class SetupError(WavefitError):
+    """The setup (TOML file or dict) is malformed or names something unknown."""
+
+    exit_code = 3
+
+
+class AnalysisRefused(WavefitError):
+    """The data cannot give a trustworthy result (no edge, fit failed, too noisy)."""
+
+    exit_code = 4

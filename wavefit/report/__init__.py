@@ -1,0 +1,1 @@
+"""Reports: text table, JSON, CSV rows and plots."""

@@ -1,0 +1,74 @@
+"""Pictures of a result: capture, fitted model and residuals; or a line fit."""
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+from ..errors import WavefitError
+from ..results import AnalysisResult, LinePlot, TracePlot
+
+
+def save_plot(result: AnalysisResult, path: str | os.PathLike) -> None:
+    """Draw ``result.plot_data`` into ``path`` (format from the extension, e.g. PNG)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    data = result.plot_data
+    if isinstance(data, TracePlot):
+        fig = _trace_figure(plt, data)
+    elif isinstance(data, LinePlot):
+        fig = _line_figure(plt, data)
+    else:
+        raise WavefitError(f"method {result.method!r} has nothing to plot")
+    title = result.source if isinstance(result.source, str) else f"{len(result.source)} captures"
+    fig.suptitle(f"{result.method}: {os.path.basename(str(title))}")
+    try:
+        fig.savefig(path, dpi=110)
+    except (OSError, ValueError) as exc:
+        raise WavefitError(f"cannot write plot {path}: {exc}") from None
+    finally:
+        plt.close(fig)
+
+
+def _trace_figure(plt, data: TracePlot):
+    n = len(data.channels)
+    fig, axes = plt.subplots(2 * n, 1, figsize=(9, 3.2 * n + 1.5), sharex=True,
+                             gridspec_kw={"height_ratios": [3, 1] * n})
+    t = np.asarray(data.time)
+    scale, unit = _time_scale(t)
+    for k, (label, yunit, y, model) in enumerate(data.channels):
+        ax, axr = axes[2 * k], axes[2 * k + 1]
+        ax.plot(t * scale, y, ".", ms=1.5, color="0.45", label=f"{label} recorded")
+        ax.plot(t * scale, model, "-", lw=1.2, color="tab:red", label="fitted model")
+        ax.set_ylabel(f"{label} ({yunit})")
+        ax.legend(loc="best", fontsize=8)
+        axr.plot(t * scale, np.asarray(y) - np.asarray(model), ".", ms=1.0, color="tab:blue")
+        axr.axhline(0.0, color="k", lw=0.6)
+        axr.set_ylabel("residual")
+    axes[-1].set_xlabel(f"time ({unit})")
+    fig.tight_layout()
+    return fig
+
+
+def _line_figure(plt, data: LinePlot):
+    fig, ax = plt.subplots(figsize=(7, 5))
+    x, y = np.asarray(data.x), np.asarray(data.y)
+    ax.errorbar(x, y, xerr=data.x_err, yerr=data.y_err, fmt="o", color="k", capsize=3, label="captures")
+    span = np.linspace(min(0.0, x.min()), x.max() * 1.05, 50)
+    ax.plot(span, data.intercept + data.slope * span, "-", color="tab:red", label="fitted line")
+    ax.set_xlabel(data.x_label)
+    ax.set_ylabel(data.y_label)
+    ax.legend()
+    fig.tight_layout()
+    return fig
+
+
+def _time_scale(t: np.ndarray) -> tuple[float, str]:
+    span = float(t[-1] - t[0]) if t.size > 1 else 1.0
+    for factor, unit in ((1e9, "ns"), (1e6, "µs"), (1e3, "ms")):
+        if span * factor < 5000:
+            return factor, unit
+    return 1.0, "s"

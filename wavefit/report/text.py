@@ -1,0 +1,50 @@
+"""The terminal report: quantities in engineering notation, budget, fit, warnings."""
+from __future__ import annotations
+
+import math
+
+from ..results import AnalysisResult
+from ..values import eng, eng_pm
+
+SAFETY_NOTE = ("Safety: pulse and ring tests store energy (L·I²/2, C·V²/2) and interrupting "
+               "inductor current makes large voltage spikes; see README 'Safety'.")
+
+
+def render(result: AnalysisResult, budget: bool = True) -> str:
+    """Human-readable report of one analysis."""
+    src = result.source if isinstance(result.source, str) else ", ".join(result.source)
+    lines = [f"wavefit {result.method}: {src}", ""]
+    width = max((len(n) for n in result.quantities), default=4)
+    lines.append(f"  {'quantity':<{width}}  {'value ± U':<28}  k     u_rel")
+    for name, q in result.quantities.items():
+        rel = q.standard_uncertainty / abs(q.value) if q.value else math.inf
+        lines.append(f"  {name:<{width}}  {eng_pm(q.value, q.expanded_uncertainty, q.unit):<28}  "
+                     f"{q.coverage_factor:4.2f}  {rel:8.2e}")
+    lines.append("  (U is the expanded uncertainty, coverage probability about 95 %, k from "
+                 "effective degrees of freedom)")
+    if budget and result.budget:
+        lines += ["", "Uncertainty budget (contribution = |c|·u, share of u_c²):"]
+        for name, entries in result.budget.items():
+            if not entries:
+                continue
+            q = result.quantities.get(name)
+            unit = q.unit if q else ""
+            lines.append(f"  {name}:")
+            for e in sorted(entries, key=lambda e: -abs(e.variance_share)):
+                lines.append(f"    {e.source:<28} {e.kind}  u = {eng(e.standard_uncertainty, e.unit, 3):<12} "
+                             f"contrib = {eng(e.contribution, unit, 3):<12} share = {100 * e.variance_share:6.2f} %")
+    fit_lines = _fit_summary(result.fit)
+    if fit_lines:
+        lines += ["", "Fit:"] + fit_lines
+    if result.warnings:
+        lines += ["", "Warnings:"] + [f"  ! {w}" for w in result.warnings]
+    lines += ["", SAFETY_NOTE]
+    return "\n".join(lines)
+
+
+def _fit_summary(fit: dict) -> list[str]:
+    out = []
+    for key, value in fit.items():
+        if isinstance(value, (int, float, str)) and not isinstance(value, bool):
+            out.append(f"  {key}: {value:.6g}" if isinstance(value, float) else f"  {key}: {value}")
+    return out

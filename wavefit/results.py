@@ -1,0 +1,138 @@
+"""Frozen result objects; ``to_dict()`` of an :class:`AnalysisResult` is the CLI's JSON."""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+
+def _json_number(x: float) -> float | None:
+    """JSON has no inf/NaN: infinite degrees of freedom are written as null."""
+    return float(x) if math.isfinite(x) else None
+
+
+@dataclass(frozen=True)
+class QuantityResult:
+    """A measured quantity in SI units with standard and expanded uncertainty."""
+
+    name: str
+    value: float
+    unit: str
+    standard_uncertainty: float
+    expanded_uncertainty: float
+    coverage_factor: float
+    degrees_of_freedom: float = math.inf
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "value": _json_number(self.value),
+            "unit": self.unit,
+            "standard_uncertainty": _json_number(self.standard_uncertainty),
+            "expanded_uncertainty": _json_number(self.expanded_uncertainty),
+            "coverage_factor": _json_number(self.coverage_factor),
+            "degrees_of_freedom": _json_number(self.degrees_of_freedom),
+        }
+
+
+@dataclass(frozen=True)
+class BudgetLine:
+    """One input's part in one output's uncertainty (GUM 8, Table-style budget).
+
+    ``contribution`` is |c_i|·u(x_i) in the output's unit; ``variance_share`` is
+    c_i·(V c)_i / u_c², the fraction of u_c² that the input carries, correlation
+    terms included, so the shares of one output add up to 1.
+    """
+
+    source: str
+    value: float
+    unit: str
+    standard_uncertainty: float
+    sensitivity: float
+    contribution: float
+    variance_share: float
+    kind: str
+    degrees_of_freedom: float
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "source": self.source,
+            "value": _json_number(self.value),
+            "unit": self.unit,
+            "standard_uncertainty": _json_number(self.standard_uncertainty),
+            "sensitivity": _json_number(self.sensitivity),
+            "contribution": _json_number(self.contribution),
+            "variance_share": _json_number(self.variance_share),
+            "type": self.kind,
+            "degrees_of_freedom": _json_number(self.degrees_of_freedom),
+        }
+
+
+@dataclass(frozen=True)
+class AnalysisResult:
+    """Everything one analysis gives: quantities, their budgets, the fit, warnings."""
+
+    method: str
+    source: str | list[str]
+    quantities: dict[str, QuantityResult]
+    budget: dict[str, list[BudgetLine]]
+    fit: dict[str, Any]
+    warnings: tuple[str, ...] = ()
+    correlation: dict[str, dict[str, float]] = field(default_factory=dict)
+    plot_data: Any = field(default=None, compare=False, repr=False)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "method": self.method,
+            "source": self.source,
+            "quantities": {k: q.to_dict() for k, q in self.quantities.items()},
+            "budget": {k: [line.to_dict() for line in lines] for k, lines in self.budget.items()},
+            "fit": _jsonable(self.fit),
+            "warnings": list(self.warnings),
+            "correlation": self.correlation,
+        }
+
+    def value(self, name: str) -> float:
+        """Shorthand for ``result.quantities[name].value``."""
+        return self.quantities[name].value
+
+
+def _jsonable(obj: Any) -> Any:
+    """Convert numpy scalars/arrays and non-finite floats for JSON."""
+    import numpy as np
+
+    if isinstance(obj, dict):
+        return {str(k): _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [_jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, (np.floating, float)):
+        return _json_number(float(obj))
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    return obj
+
+
+@dataclass(frozen=True)
+class TracePlot:
+    """Data for a waveform plot: recorded samples, the fitted model (NaN outside the fit
+    windows) and the residuals, one entry per channel."""
+
+    time: Any
+    channels: tuple[tuple[str, str, Any, Any], ...]  # (label, unit, data, model)
+
+
+@dataclass(frozen=True)
+class LinePlot:
+    """Data for a straight-line fit plot: points with error bars and the fitted line."""
+
+    x: Any
+    y: Any
+    x_err: Any
+    y_err: Any
+    slope: float
+    intercept: float
+    x_label: str
+    y_label: str

@@ -1,0 +1,220 @@
+"""Setup files: which method, which columns, which known parts, which instrument.
+
+A setup is a TOML file or a dict of the same structure (see ``docs/setup-file.md``)::
+
+    method = "rl-step"
+    sample_interval = "10 ns"          # optional, when the capture has no time column
+    [columns]                          # role -> header, header without unit, or 0-based index
+    time = "Time (s)"
+    sense = "CH2"
+    [parts]                            # known components, "VALUE UNIT [±TOL]"
+    sense_resistor = "10 ohm ±0.1%"
+    [instrument]                       # optional; defaults describe a typical bench scope
+    timebase = "±25 ppm"
+    vertical_gain = "±2%"
+    vertical_gain_sense = "±1%"        # overrides one channel
+    [options]                          # optional, method specific
+
+This layer knows nothing of waveforms: each method checks the roles and parts
+it needs (``wavefit.methods``).
+"""
+from __future__ import annotations
+
+import math
+import os
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping
+
+from .errors import SetupError
+from .values import PartValue, parse_number_with_unit, parse_part, parse_relative
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover - exercised on Python 3.10 only
+    import tomli as tomllib
+
+#: Typical bench-scope figures used when ``[instrument]`` is silent (common practice:
+#: general-purpose 8-bit scopes specify about ±25 ppm timebase and ±2 % DC gain).
+DEFAULT_TIMEBASE = "±25 ppm"
+DEFAULT_VERTICAL_GAIN = "±2%"
+
+TOP_LEVEL_KEYS = ("method", "sample_interval", "columns", "parts", "instrument", "options", "captures")
+INSTRUMENT_KEYS = ("timebase", "vertical_gain")
+
+
+@dataclass(frozen=True)
+class RelativeFigure:
+    """A relative instrument accuracy: bound ``±fraction`` with rectangular distribution."""
+
+    fraction: float
+    text: str
+    k: float | None = None
+
+    @property
+    def standard_uncertainty(self) -> float:
+        """u = a/√3 for a bound (JCGM 100:2008, 4.3.7), a/k when k is written (4.3.3)."""
+        return self.fraction / self.k if self.k else self.fraction / math.sqrt(3.0)
+
+
+@dataclass(frozen=True)
+class CaptureEntry:
+    """One capture named inside a setup (``[[captures]]``), with its own parts."""
+
+    file: Path
+    parts: Mapping[str, PartValue]
+
+
+@dataclass(frozen=True)
+class Setup:
+    """A parsed setup. ``columns`` maps roles to header names or indices."""
+
+    method: str
+    columns: Mapping[str, str | int]
+    parts: Mapping[str, PartValue]
+    timebase: RelativeFigure
+    vertical_gain: Mapping[str, RelativeFigure]
+    default_vertical_gain: RelativeFigure
+    options: Mapping[str, Any] = field(default_factory=dict)
+    sample_interval: float | None = None
+    captures: tuple[CaptureEntry, ...] = ()
+    source: str = "<dict>"
+
+    def gain_for(self, role: str) -> RelativeFigure:
+        """The vertical-gain accuracy of the channel that carries ``role``."""
+        return self.vertical_gain.get(role, self.default_vertical_gain)
+
+
+def load_setup(setup: str | os.PathLike | Mapping[str, Any] | Setup) -> Setup:
+    """Read a setup from a TOML path, a dict of the same structure, or pass one through."""
+    if isinstance(setup, Setup):
+        return setup
+    if isinstance(setup, Mapping):
+        return parse_setup(setup, source="<dict>", base_dir=Path.cwd())
+    path = Path(setup)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise SetupError(f"cannot read setup file {path}: {exc.strerror or exc}") from None
+    try:
+        data = tomllib.loads(raw.decode("utf-8-sig"))
+    except UnicodeDecodeError:
+        raise SetupError(f"setup file {path} is not UTF-8 text") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise SetupError(f"setup file {path} is not valid TOML: {exc}") from None
+    return parse_setup(data, source=str(path), base_dir=path.parent)
+
+
+def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setup:
+    """Check and convert the raw mapping of a setup."""
+    _reject_unknown(data, TOP_LEVEL_KEYS, "setup key", source)
+    method = data.get("method")
+    if not isinstance(method, str) or not method:
+        raise SetupError(f"{source}: 'method' is missing; write e.g. method = \"rl-step\"")
+    columns = _table(data, "columns", source)
+    for role, col in columns.items():
+        if isinstance(col, bool) or not isinstance(col, (str, int)):
+            raise SetupError(f"{source}: column for role {role!r} must be a header text or a 0-based index")
+    parts = {name: _part(name, spec, source) for name, spec in _table(data, "parts", source).items()}
+    timebase, gains, default_gain = _instrument(_table(data, "instrument", source), source)
+    sample_interval = None
+    if "sample_interval" in data:
+        sample_interval = _positive_seconds(data["sample_interval"], source)
+    captures = tuple(_capture_entry(entry, i, source, base_dir)
+                     for i, entry in enumerate(data.get("captures", []) or []))
+    return Setup(
+        method=method,
+        columns=dict(columns),
+        parts=parts,
+        timebase=timebase,
+        vertical_gain=gains,
+        default_vertical_gain=default_gain,
+        options=dict(_table(data, "options", source)),
+        sample_interval=sample_interval,
+        captures=captures,
+        source=source,
+    )
+
+
+def _reject_unknown(data: Mapping[str, Any], valid: tuple[str, ...], what: str, source: str) -> None:
+    for key in data:
+        if key not in valid:
+            raise SetupError(f"{source}: unknown {what} {key!r}; valid: {', '.join(valid)}")
+
+
+def _table(data: Mapping[str, Any], key: str, source: str) -> Mapping[str, Any]:
+    value = data.get(key, {})
+    if not isinstance(value, Mapping):
+        raise SetupError(f"{source}: [{key}] must be a table of key = value lines")
+    return value
+
+
+def _part(name: str, spec: Any, source: str) -> PartValue:
+    try:
+        part = parse_part(spec)
+    except SetupError as exc:
+        raise SetupError(f"{source}: part {name!r}: {exc}") from None
+    if not math.isfinite(part.value):
+        raise SetupError(f"{source}: part {name!r} is not a finite number")
+    return part
+
+
+def _relative(text: Any, what: str, source: str) -> RelativeFigure:
+    if isinstance(text, (int, float)) and not isinstance(text, bool):
+        return RelativeFigure(float(text), str(text))
+    if not isinstance(text, str):
+        raise SetupError(f"{source}: {what} must be text such as \"±1.5%\"")
+    body, k = text, None
+    if "k=" in text.replace(" ", ""):
+        head, _, tail = text.replace(" ", "").partition("k=")
+        body, k = head.rstrip(",;("), float(tail.rstrip(")"))
+    fraction = parse_relative(body)
+    if fraction < 0 or not math.isfinite(fraction):
+        raise SetupError(f"{source}: {what} {text!r} must be a finite non-negative figure")
+    return RelativeFigure(fraction, text, k)
+
+
+def _instrument(table: Mapping[str, Any], source: str
+                ) -> tuple[RelativeFigure, dict[str, RelativeFigure], RelativeFigure]:
+    gains: dict[str, RelativeFigure] = {}
+    for key, value in table.items():
+        if key.startswith("vertical_gain_"):
+            gains[key[len("vertical_gain_"):]] = _relative(value, key, source)
+        elif key not in INSTRUMENT_KEYS:
+            raise SetupError(f"{source}: unknown [instrument] key {key!r}; valid: "
+                             "timebase, vertical_gain, vertical_gain_<role>")
+    timebase = _relative(table.get("timebase", DEFAULT_TIMEBASE), "timebase", source)
+    default_gain = _relative(table.get("vertical_gain", DEFAULT_VERTICAL_GAIN), "vertical_gain", source)
+    return timebase, gains, default_gain
+
+
+def _positive_seconds(value: Any, source: str) -> float:
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        seconds = float(value)
+    elif isinstance(value, str):
+        seconds, _ = parse_number_with_unit(value, "s")
+    else:
+        raise SetupError(f"{source}: sample_interval must be a number of seconds or text like \"10 ns\"")
+    if not (seconds > 0 and math.isfinite(seconds)):
+        raise SetupError(f"{source}: sample_interval must be positive, got {value!r}")
+    return seconds
+
+
+def _capture_entry(entry: Any, index: int, source: str, base_dir: Path) -> CaptureEntry:
+    if not isinstance(entry, Mapping) or "file" not in entry:
+        raise SetupError(f"{source}: [[captures]] entry {index + 1} needs a 'file' key")
+    file = Path(str(entry["file"]))
+    if not file.is_absolute():
+        file = base_dir / file
+    parts = {k: _part(k, v, source) for k, v in entry.items() if k != "file"}
+    return CaptureEntry(file=file, parts=parts)
+
+
+def check_names(given: Mapping[str, Any], valid: Mapping[str, Any] | tuple[str, ...], what: str,
+                source: str) -> None:
+    """Raise a SetupError naming the first key of ``given`` that ``valid`` lacks."""
+    names = tuple(valid)
+    for key in given:
+        if key not in names:
+            raise SetupError(f"{source}: unknown {what} {key!r}; valid: {', '.join(names)}")

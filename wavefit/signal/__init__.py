@@ -1,0 +1,1 @@
+"""Waveform facts: state levels and edges, noise level, clipping."""

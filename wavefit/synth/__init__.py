@@ -1,0 +1,1 @@
+"""Circuit responses with scope-like imperfections, for sample data, demos and tests."""

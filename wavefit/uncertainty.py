@@ -1,0 +1,178 @@
+"""Uncertainty budgets after the GUM (JCGM 100:2008).
+
+A measurement function ``model(inputs) -> outputs`` is evaluated once with
+the ``uncertainties`` package, which differentiates it exactly (automatic
+differentiation); the sensitivity coefficients c_i = ∂y/∂x_i (GUM 5.1.3) are read
+from it. The inputs' full covariance matrix V (type A fit parameters are
+correlated with each other) then gives the output covariance C V Cᵀ, the law
+of propagation of uncertainty with correlated inputs (GUM 5.2.2, eq. 16).
+
+Degrees of freedom follow Welch–Satterthwaite (GUM G.4.1, eq. G.2b), with a
+block of correlated inputs from one fit treated as one component, and the
+coverage factor is the Student-t quantile for the coverage probability
+(GUM G.3, G.6.4); 95.45 % gives k = 2 for infinite degrees of freedom.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Callable, Mapping, Sequence
+
+import numpy as np
+from scipy import stats
+from uncertainties import ufloat
+
+from .results import BudgetLine, QuantityResult
+
+#: Coverage probability of the expanded uncertainty; k = 2 at infinite dof (GUM G.6.4).
+COVERAGE_PROBABILITY = 0.9545
+
+
+@dataclass(frozen=True)
+class InputQuantity:
+    """One input estimate x_i with its standard uncertainty u(x_i)."""
+
+    name: str
+    value: float
+    standard_uncertainty: float
+    unit: str
+    kind: str  # "A" (statistics of the record) or "B" (parts, instrument)
+    dof: float = math.inf
+    group: str | None = None
+
+
+class InputSet:
+    """The inputs of a measurement function and their covariance matrix."""
+
+    def __init__(self) -> None:
+        self._inputs: list[InputQuantity] = []
+        self._blocks: list[tuple[list[int], np.ndarray]] = []
+
+    @property
+    def inputs(self) -> tuple[InputQuantity, ...]:
+        return tuple(self._inputs)
+
+    def names(self) -> list[str]:
+        return [i.name for i in self._inputs]
+
+    def add(self, name: str, value: float, standard_uncertainty: float, unit: str = "",
+            kind: str = "B", dof: float = math.inf) -> None:
+        """Add an independent input."""
+        self._check_new(name)
+        self._inputs.append(InputQuantity(name, float(value), float(abs(standard_uncertainty)),
+                                          unit, kind, dof))
+
+    def add_part(self, name: str, part: Any) -> None:
+        """Add a :class:`wavefit.values.PartValue` as a type B input."""
+        self.add(name, part.value, part.standard_uncertainty, part.unit, "B")
+
+    def add_correlated(self, names: Sequence[str], values: Sequence[float], covariance: np.ndarray,
+                       units: Sequence[str], dof: float, group: str, kind: str = "A") -> None:
+        """Add a block of inputs with a joint covariance (for example a fit's parameters)."""
+        cov = np.asarray(covariance, dtype=float)
+        if cov.shape != (len(names), len(names)):
+            raise ValueError("covariance shape does not match the names")
+        start = len(self._inputs)
+        for k, (name, value, unit) in enumerate(zip(names, values, units)):
+            self._check_new(name)
+            self._inputs.append(InputQuantity(name, float(value), float(math.sqrt(max(cov[k, k], 0.0))),
+                                              unit, kind, dof, group))
+        self._blocks.append((list(range(start, start + len(names))), cov))
+
+    def covariance(self) -> np.ndarray:
+        """The full covariance matrix V of all inputs."""
+        n = len(self._inputs)
+        cov = np.diag([i.standard_uncertainty ** 2 for i in self._inputs]) if n else np.zeros((0, 0))
+        for idx, block in self._blocks:
+            cov[np.ix_(idx, idx)] = block
+        return cov
+
+    def _check_new(self, name: str) -> None:
+        if any(i.name == name for i in self._inputs):
+            raise ValueError(f"input {name!r} added twice")
+
+
+@dataclass(frozen=True)
+class Propagation:
+    """What propagation gives: per output its result and budget, and the output correlations."""
+
+    quantities: dict[str, QuantityResult]
+    budget: dict[str, list[BudgetLine]]
+    correlation: dict[str, dict[str, float]]
+
+
+def propagate(inputs: InputSet, model: Callable[[Mapping[str, Any]], Mapping[str, Any]],
+              units: Mapping[str, str], probability: float = COVERAGE_PROBABILITY) -> Propagation:
+    """Evaluate ``model`` at the input estimates and propagate their covariance to every output.
+
+    ``model`` receives a mapping name -> number-like (an ``uncertainties``
+    variable) and must use only arithmetic and ``uncertainties.umath``.
+    """
+    items = inputs.inputs
+    variables = [ufloat(i.value, 1.0, tag=i.name) for i in items]
+    outputs = model({i.name: v for i, v in zip(items, variables)})
+    names = list(outputs)
+    jac = np.zeros((len(names), len(items)))
+    values = np.zeros(len(names))
+    for r, name in enumerate(names):
+        out = outputs[name]
+        values[r] = float(getattr(out, "nominal_value", out))
+        derivs = getattr(out, "derivatives", {})
+        for c, var in enumerate(variables):
+            jac[r, c] = float(derivs.get(var, 0.0))
+    cov_x = inputs.covariance()
+    cov_y = jac @ cov_x @ jac.T
+    u_y = np.sqrt(np.clip(np.diag(cov_y), 0.0, None))
+    quantities: dict[str, QuantityResult] = {}
+    budget: dict[str, list[BudgetLine]] = {}
+    for r, name in enumerate(names):
+        nu = _welch_satterthwaite(jac[r], cov_x, items, u_y[r])
+        k = coverage_factor(nu, probability)
+        quantities[name] = QuantityResult(name, float(values[r]), units.get(name, ""), float(u_y[r]),
+                                          float(k * u_y[r]), float(k), float(nu))
+        budget[name] = _budget_lines(jac[r], cov_x, items, u_y[r])
+    corr: dict[str, dict[str, float]] = {}
+    for a, na in enumerate(names):
+        corr[na] = {}
+        for b, nb in enumerate(names):
+            denom = u_y[a] * u_y[b]
+            corr[na][nb] = float(cov_y[a, b] / denom) if denom > 0 else (1.0 if a == b else 0.0)
+    return Propagation(quantities, budget, corr)
+
+
+def coverage_factor(dof: float, probability: float = COVERAGE_PROBABILITY) -> float:
+    """Student-t coverage factor for ``dof`` degrees of freedom (GUM G.3.4)."""
+    tail = 0.5 * (1.0 + probability)
+    if not math.isfinite(dof) or dof > 1e7:
+        return float(stats.norm.ppf(tail))
+    return float(stats.t.ppf(tail, max(dof, 1.0)))
+
+
+def _welch_satterthwaite(c: np.ndarray, cov: np.ndarray, items: Sequence[InputQuantity], u_c: float) -> float:
+    """Effective degrees of freedom, GUM eq. (G.2b); a correlated group counts as one term."""
+    if u_c <= 0:
+        return math.inf
+    groups: dict[str, list[int]] = {}
+    for k, item in enumerate(items):
+        groups.setdefault(item.group or f"#{k}", []).append(k)
+    denom = 0.0
+    for idx in groups.values():
+        dof = items[idx[0]].dof
+        if not math.isfinite(dof):
+            continue
+        var = float(c[idx] @ cov[np.ix_(idx, idx)] @ c[idx])
+        denom += var * var / max(dof, 1.0)
+    return u_c ** 4 / denom if denom > 0 else math.inf
+
+
+def _budget_lines(c: np.ndarray, cov: np.ndarray, items: Sequence[InputQuantity], u_c: float) -> list[BudgetLine]:
+    shared = cov @ c
+    lines = []
+    for k, item in enumerate(items):
+        if c[k] == 0.0 and item.standard_uncertainty == 0.0:
+            continue
+        share = float(c[k] * shared[k] / (u_c * u_c)) if u_c > 0 else 0.0
+        lines.append(BudgetLine(item.name, item.value, item.unit, item.standard_uncertainty, float(c[k]),
+                                float(abs(c[k]) * item.standard_uncertainty), share, item.kind,
+                                float(item.dof)))
+    return lines
