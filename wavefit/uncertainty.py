@@ -39,6 +39,7 @@ class InputQuantity:
     kind: str  # "A" (statistics of the record) or "B" (parts, instrument)
     dof: float = math.inf
     group: str | None = None
+    distribution: str = "normal"  # "normal", "rectangular" or "exact"
 
 
 class InputSet:
@@ -56,15 +57,25 @@ class InputSet:
         return [i.name for i in self._inputs]
 
     def add(self, name: str, value: float, standard_uncertainty: float, unit: str = "",
-            kind: str = "B", dof: float = math.inf) -> None:
-        """Add an independent input."""
+            kind: str = "B", dof: float = math.inf, distribution: str = "normal") -> None:
+        """Add an independent input; ``distribution`` matters only for Monte Carlo."""
         self._check_new(name)
         self._inputs.append(InputQuantity(name, float(value), float(abs(standard_uncertainty)),
-                                          unit, kind, dof))
+                                          unit, kind, dof, None, distribution))
 
     def add_part(self, name: str, part: Any) -> None:
         """Add a :class:`wavefit.values.PartValue` as a type B input."""
-        self.add(name, part.value, part.standard_uncertainty, part.unit, "B")
+        self.add(name, part.value, part.standard_uncertainty, part.unit, "B",
+                 distribution=part.distribution)
+
+    def add_relative(self, name: str, figure: Any) -> None:
+        """Add an instrument figure (``RelativeFigure``) as a factor of value 1, type B."""
+        self.add(name, 1.0, figure.standard_uncertainty, "", "B",
+                 distribution="normal" if figure.k else "rectangular")
+
+    def blocks(self) -> list[tuple[list[int], np.ndarray]]:
+        """The correlated blocks: input indices and their covariance."""
+        return [(list(idx), cov.copy()) for idx, cov in self._blocks]
 
     def add_correlated(self, names: Sequence[str], values: Sequence[float], covariance: np.ndarray,
                        units: Sequence[str], dof: float, group: str, kind: str = "A") -> None:
