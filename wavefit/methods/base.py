@@ -33,6 +33,9 @@ class Method:
     roles: ClassVar[dict[str, bool]] = {}
     parts: ClassVar[dict[str, PartSpec]] = {}
     options: ClassVar[dict[str, object]] = {}
+    #: Names of the quantities every result of this method reports, in report order
+    #: (batch output columns are built from it before any capture is analysed).
+    quantities: ClassVar[tuple[str, ...]] = ()
     #: True when the method takes its captures from ``[[captures]]`` in the setup.
     uses_setup_captures: ClassVar[bool] = False
 
