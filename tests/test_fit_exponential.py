@@ -1,0 +1,52 @@
+"""The exponential fitter against NIST StRD certified results (external reference).
+
+Misra1a and BoxBOD (NIST Statistical Reference Datasets, nonlinear regression,
+https://www.itl.nist.gov/div898/strd/nls/nls_main.shtml) use the model
+y = b1·(1 − exp(−b2·x)), the step response from zero. The certified values and
+standard deviations are read from the unchanged NIST files, not typed in here.
+"""
+from __future__ import annotations
+
+import math
+import re
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from wavefit.fit.exponential import fit_saturating
+
+NIST = Path(__file__).resolve().parents[2] / "shared/reference/nist-strd"
+
+
+def read_strd(name: str):
+    """Starting values, certified (value, std) per parameter and (x, y) data of a StRD file."""
+    path = NIST / name
+    if not path.exists():
+        pytest.skip(f"NIST StRD file {path} not present")
+    lines = path.read_text().splitlines()
+    starts, certified = [], {}
+    for line in lines:
+        m = re.match(r"\s*(b\d)\s*=\s*(\S+)\s+(\S+)\s+(\S+)\s+(\S+)", line)
+        if m:
+            starts.append((float(m.group(2)), float(m.group(3))))
+            certified[m.group(1)] = (float(m.group(4)), float(m.group(5)))
+    first = max(i for i, line in enumerate(lines) if re.match(r"\s*Data:\s+y\s+x\s*$", line))
+    data = np.array([[float(v) for v in line.split()] for line in lines[first + 1:] if line.strip()])
+    return [tuple(s[k] for s in starts) for k in range(2)], certified, data[:, 1], data[:, 0]
+
+
+def sig_digits(a: float, b: float) -> float:
+    return math.inf if a == b else -math.log10(abs(a - b) / abs(b))
+
+
+@pytest.mark.parametrize("name", ["Misra1a.dat", "BoxBOD.dat"])
+@pytest.mark.parametrize("start", [0, 1])
+def test_certified_values_and_standard_deviations(name, start):
+    # NIST StRD certified parameters and standard deviations, both NIST starting points.
+    starts, certified, x, y = read_strd(name)
+    fit = fit_saturating(x, y, starts[start])
+    for b in ("b1", "b2"):
+        value, std = certified[b]
+        assert sig_digits(fit[b], value) >= 6, (b, fit[b], value)
+        assert sig_digits(fit.stderr(b), std) >= 6, (b, fit.stderr(b), std)

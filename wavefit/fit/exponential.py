@@ -1,0 +1,183 @@
+"""Exponential step responses: y(t) = final + coefficient·exp(−(t − t_ref)/tau).
+
+Within one state of a square-wave or step drive, every node of a first-order
+circuit relaxes exponentially toward its final level with the loop's time
+constant, whatever happened before the window started (the solution of a
+linear first-order ODE with constant input). So each window is fitted with its
+own final level and coefficient per channel and one ``tau`` shared by all
+channels of the window; ``t_ref`` is the window's first instant, and nothing
+depends on where exactly the drive switched.
+
+Starting values come from variable projection: for fixed ``tau`` the model is
+linear in (final, coefficient), so the residual sum of squares is minimised
+over ``tau`` alone (G. H. Golub and V. Pereyra, SIAM J. Numer. Anal. 10 (1973)
+413–432). The final fit is :func:`wavefit.fit.engine.fit_least_squares`, with
+its autoregressive noise model for band-limited scope noise.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+from scipy import optimize
+
+from .engine import Block, fit_least_squares
+from .result import FitResult
+
+
+@dataclass(frozen=True)
+class WindowChannel:
+    """One channel's samples in a fit window: times (s), values, and its noise group."""
+
+    group: str
+    time: np.ndarray
+    values: np.ndarray
+
+
+def _linear_part(e: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, float]:
+    """Least-squares (final, coefficient) for fixed basis e, and the residual sum of squares."""
+    a = np.column_stack((np.ones_like(e), e))
+    coef, *_ = np.linalg.lstsq(a, y, rcond=None)
+    r = y - a @ coef
+    return coef, float(r @ r)
+
+
+def projected_tau(channels: Sequence[WindowChannel], t_ref: float, tau0: float) -> float:
+    """Variable-projection estimate of tau: minimise the summed, scatter-normalised RSS over tau.
+
+    Parameters
+    ----------
+    channels
+        The window's channels.
+    t_ref
+        Reference instant of the exponential.
+    tau0
+        Rough time constant (for example from 10 %/90 % reference-level instants).
+
+    References
+    ----------
+    G. H. Golub and V. Pereyra, "The differentiation of pseudo-inverses and
+    nonlinear least squares problems whose variables separate", SIAM J. Numer.
+    Anal. 10 (1973) 413–432.
+    """
+    scales = [float(np.var(ch.values)) or 1.0 for ch in channels]
+
+    def cost(log_tau: float) -> float:
+        tau = math.exp(log_tau)
+        return sum(_linear_part(np.exp(-(ch.time - t_ref) / tau), ch.values)[1] / s
+                   for ch, s in zip(channels, scales))
+
+    grid = np.log(tau0) + np.linspace(math.log(0.2), math.log(5.0), 25)
+    costs = [cost(g) for g in grid]
+    k = int(np.argmin(costs))
+    lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
+    res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": 1e-6})
+    return float(math.exp(res.x))
+
+
+def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, noise: str = "auto",
+                           model: str = "exponential step") -> FitResult:
+    """Fit y_c(t) = final_c + coef_c·exp(−(t − t_ref)/tau) to all channels with one shared tau.
+
+    Parameters
+    ----------
+    channels
+        One :class:`WindowChannel` per recorded channel (distinct ``group`` names);
+        the fitted parameters are ``tau``, ``final_<group>`` and ``coef_<group>``.
+    tau0
+        Rough time constant in seconds, used to start the search.
+    noise
+        Noise model of :func:`wavefit.fit.engine.fit_least_squares`.
+
+    Returns
+    -------
+    FitResult
+        With ``t_ref`` in ``diagnostics``; ``residuals`` are the channels' in order.
+
+    References
+    ----------
+    G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley 1989, §2.1
+    (linearised covariance) and ch. 6 (autocorrelated errors).
+    """
+    t_ref = min(float(ch.time[0]) for ch in channels)
+    tau_start = projected_tau(channels, t_ref, tau0)
+    # Work in units of tau_start so the parameters are of order one.
+    scaled = [(np.asarray(ch.time, dtype=float) - t_ref) / tau_start for ch in channels]
+    x0 = [1.0]
+    for ch, u in zip(channels, scaled):
+        coef, _ = _linear_part(np.exp(-u), ch.values)
+        x0 += [float(coef[0]), float(coef[1])]
+    sizes = [ch.values.size for ch in channels]
+    offsets = np.concatenate(([0], np.cumsum(sizes)))
+    y = np.concatenate([ch.values for ch in channels])
+    n_par = 1 + 2 * len(channels)
+
+    def model_values(x: np.ndarray) -> np.ndarray:
+        return np.concatenate([x[1 + 2 * c] + x[2 + 2 * c] * np.exp(-u / x[0]) for c, u in enumerate(scaled)])
+
+    def fun(x: np.ndarray) -> np.ndarray:
+        return y - model_values(x)
+
+    def jac(x: np.ndarray) -> np.ndarray:
+        j = np.zeros((y.size, n_par))
+        for c, u in enumerate(scaled):
+            rows = slice(offsets[c], offsets[c + 1])
+            e = np.exp(-u / x[0])
+            j[rows, 0] = -x[2 + 2 * c] * e * u / x[0] ** 2
+            j[rows, 1 + 2 * c] = -1.0
+            j[rows, 2 + 2 * c] = -e
+        return j
+
+    names = ["tau"]
+    for ch in channels:
+        names += [f"final_{ch.group}", f"coef_{ch.group}"]
+    blocks = [Block(int(offsets[c]), int(offsets[c + 1]), ch.group) for c, ch in enumerate(channels)]
+    lower = np.full(n_par, -np.inf)
+    lower[0] = 1e-6
+    fit = fit_least_squares(fun, jac, x0, names, blocks, model=model, noise=noise,
+                            bounds=(lower, np.full(n_par, np.inf)))
+    scale = np.ones(n_par)
+    scale[0] = tau_start
+    diagnostics = dict(fit.diagnostics, t_ref=t_ref)
+    return FitResult(
+        model=fit.model, names=fit.names, values=fit.values * scale,
+        covariance=fit.covariance * np.outer(scale, scale), residuals=fit.residuals,
+        noise_sigma=fit.noise_sigma, noise_model=fit.noise_model, n_samples=fit.n_samples,
+        n_effective=fit.n_effective, dof=fit.dof, diagnostics=diagnostics, warnings=fit.warnings,
+    )
+
+
+def window_model(fit: FitResult, group: str, t: np.ndarray) -> np.ndarray:
+    """The fitted curve of one channel at times ``t``."""
+    t_ref = fit.diagnostics["t_ref"]
+    return fit[f"final_{group}"] + fit[f"coef_{group}"] * np.exp(-(np.asarray(t) - t_ref) / fit["tau"])
+
+
+def fit_saturating(x: np.ndarray, y: np.ndarray, start: Sequence[float]) -> FitResult:
+    """Fit y = b1·(1 − exp(−b2·x)) in white noise; parameters ``b1`` and ``b2``.
+
+    This is the step response from zero with the reference instant at x = 0, the form of
+    the NIST StRD problems Misra1a and BoxBOD; the covariance is s²·(JᵀJ)⁻¹,
+    s² = RSS/(n − p), as NIST defines its certified standard deviations.
+
+    References
+    ----------
+    NIST Statistical Reference Datasets, nonlinear regression,
+    https://www.itl.nist.gov/div898/strd/nls/nls_main.shtml
+    """
+    x = np.asarray(x, dtype=float)
+    y = np.asarray(y, dtype=float)
+
+    def fun(b: np.ndarray) -> np.ndarray:
+        with np.errstate(over="ignore"):  # far-off trial steps of the solver
+            return y - b[0] * (1.0 - np.exp(-b[1] * x))
+
+    def jac(b: np.ndarray) -> np.ndarray:
+        with np.errstate(over="ignore"):
+            e = np.exp(-b[1] * x)
+        return np.column_stack((-(1.0 - e), -b[0] * x * e))
+
+    return fit_least_squares(fun, jac, start, ("b1", "b2"), [Block(0, x.size)],
+                             model="saturating exponential", noise="white")
