@@ -1,0 +1,260 @@
+"""Turn named float columns into a checked :class:`~wavefit.io.capture.Capture`.
+
+Shared by the file reader and :func:`~wavefit.io.capture_from_frame`: units
+from headers, the choice of time axis, the row-count, NaN and time checks.
+"""
+from __future__ import annotations
+
+import math
+import numbers
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import CaptureError
+from .capture import Capture, Channel
+from .column_units import HeaderUnit, is_time_name, parse_header
+from .preamble import Preamble
+from .timebase import TimeAxis, axis_from_column, axis_from_interval
+
+#: Fewest data rows a capture may have.
+MIN_ROWS = 16
+#: Largest share of empty/NaN cells per column that is filled in (with a warning).
+MAX_MISSING_FRACTION = 1e-3
+_LISTED_PLACES = 5
+_SAME_INTERVAL = 0.01
+
+
+@dataclass(frozen=True)
+class Table:
+    """Columns as read, before any checks.
+
+    Attributes
+    ----------
+    source
+        Name of the file or frame, for messages.
+    headers
+        One header per column, as written (``"0"``, ``"1"``, ... when there is none).
+    columns
+        float64 arrays, one per header, all the same length.
+    where
+        Turns 0-based row indices into places in the source (``["line 12"]``).
+    has_header
+        False when the source had no header row.
+    preamble
+        Metadata and time hints from above the table.
+    """
+
+    source: str
+    headers: tuple[str, ...]
+    columns: list[np.ndarray]
+    where: Callable[[Sequence[int]], list[str]]
+    has_header: bool = True
+    preamble: Preamble = Preamble()
+
+
+def assemble(
+    table: Table, *, sample_interval: float | None = None, time_column: str | None = None
+) -> Capture:
+    """Check a table and build the capture.
+
+    Parameters
+    ----------
+    table
+        The columns as read.
+    sample_interval
+        Seconds between samples; when given it overrides any time column or
+        preamble interval.
+    time_column
+        Header (or header without unit) of the time column; found from the
+        headers when None.
+
+    Returns
+    -------
+    Capture
+        Time in seconds, channels scaled to SI, metadata and warnings.
+
+    Raises
+    ------
+    CaptureError
+        When the table is too short, a column is empty, there is no usable
+        time information, or the time column fails its checks.
+    """
+    _check_interval_argument(sample_interval)
+    rows = table.columns[0].size if table.columns else 0
+    if rows < MIN_ROWS:
+        raise CaptureError(
+            f"{table.source} has only {rows} data row{'s' if rows != 1 else ''}; "
+            f"a capture needs at least {MIN_ROWS}"
+        )
+    units = [parse_header(h) for h in table.headers]
+    warnings = list(table.preamble.warnings)
+    warnings += [
+        f"column {h!r}: unit {u.unit!r} is not recognised; its values are kept unscaled"
+        for h, u in zip(table.headers, units)
+        if not u.known
+    ]
+    columns = [_filled(table, i, warnings) for i in range(len(table.headers))]
+    time_index = _time_index(table, units, time_column)
+    axis, time_header = _time_axis(table, units, columns, time_index, sample_interval, warnings)
+    channels = tuple(
+        Channel(u.name, h, u.unit, u.scale, _scaled(c, u.scale))
+        for i, (h, u, c) in enumerate(zip(table.headers, units, columns))
+        if time_header is None or i != time_index
+    )
+    if not channels:
+        raise CaptureError(
+            f"{table.source} has only the time column {time_header!r} and no signal column"
+        )
+    return Capture(
+        time=axis.time,
+        channels=channels,
+        sample_interval=axis.sample_interval,
+        source=table.source,
+        time_column=time_header,
+        metadata=dict(table.preamble.metadata),
+        warnings=tuple(warnings) + axis.warnings,
+    )
+
+
+def _check_interval_argument(sample_interval: float | None) -> None:
+    """Refuse a sample interval argument that is not a positive, finite number of seconds."""
+    if sample_interval is None:
+        return
+    ok = isinstance(sample_interval, numbers.Real) and not isinstance(sample_interval, bool)
+    if not ok or not (math.isfinite(sample_interval) and sample_interval > 0):
+        raise CaptureError(
+            f"sample interval must be a positive number of seconds, got {sample_interval!r}; "
+            "give it as e.g. 1e-8"
+        )
+
+
+def _filled(table: Table, index: int, warnings: list[str]) -> np.ndarray:
+    """Column ``index`` with its few NaN/inf cells filled by linear interpolation."""
+    values = table.columns[index]
+    header = table.headers[index]
+    finite = np.isfinite(values)
+    good = int(np.count_nonzero(finite))
+    if good == values.size:
+        return values
+    if good == 0:
+        raise CaptureError(
+            f"{table.source}: column {header!r} has no numbers (all {values.size} cells are "
+            "empty or NaN); export the capture with that channel's data, or remove the column"
+        )
+    bad = np.flatnonzero(~finite)
+    allowed = max(1, int(MAX_MISSING_FRACTION * values.size))
+    places = table.where([int(i) for i in bad[:_LISTED_PLACES]])
+    listed = ", ".join(places) + (", ..." if bad.size > _LISTED_PLACES else "")
+    share = f"{100 * bad.size / values.size:.2g} %"
+    if bad.size > allowed:
+        raise CaptureError(
+            f"{table.source}: column {header!r} has {bad.size} empty, NaN or infinite cells "
+            f"({share} of {values.size} rows; {listed}); at most {allowed} can be filled in; "
+            "fix the export or trim the capture"
+        )
+    index_all = np.arange(values.size, dtype=np.float64)
+    filled = np.interp(index_all, index_all[finite], values[finite])
+    warnings.append(
+        f"column {header!r}: {bad.size} empty, NaN or infinite cell{'s' if bad.size > 1 else ''} "
+        f"({listed}) filled by linear interpolation between neighbouring samples"
+    )
+    return filled
+
+
+def _time_index(table: Table, units: list[HeaderUnit], time_column: str | None) -> int | None:
+    """Index of the time column: the one asked for, else the first time-like header."""
+    if time_column is not None:
+        for i, (header, unit) in enumerate(zip(table.headers, units)):
+            if str(time_column) in (header, unit.name):
+                return i
+        listed = ", ".join(repr(h) for h in table.headers)
+        raise CaptureError(
+            f"time column {time_column!r} is not in {table.source}; its columns are: {listed}"
+        )
+    if not table.has_header:
+        return None
+    for i, unit in enumerate(units):
+        if is_time_name(unit.name):
+            return i
+    for i, unit in enumerate(units):
+        if unit.unit == "s":
+            return i
+    return None
+
+
+def _time_axis(
+    table: Table,
+    units: list[HeaderUnit],
+    columns: list[np.ndarray],
+    time_index: int | None,
+    sample_interval: float | None,
+    warnings: list[str],
+) -> tuple[TimeAxis, str | None]:
+    """The time axis and the header of the column it came from (None when built from an interval)."""
+    rows = columns[0].size
+    hint = table.preamble
+    start = hint.start_time or 0.0
+    if sample_interval is not None:
+        if time_index is not None:
+            warnings.append(
+                f"sample interval {sample_interval:.6g} s was given, so the time column "
+                f"{table.headers[time_index]!r} is not used as time axis and is kept as a column"
+            )
+        if hint.sample_interval is not None and not _same(hint.sample_interval, sample_interval):
+            warnings.append(
+                f"sample interval {sample_interval:.6g} s was given and overrides the preamble's "
+                f"{hint.sample_interval:.6g} s ({hint.interval_line})"
+            )
+        return TimeAxis(axis_from_interval(rows, sample_interval, start), sample_interval), None
+    if time_index is not None:
+        header, unit = table.headers[time_index], units[time_index]
+        if unit.unit not in ("s", ""):
+            raise CaptureError(
+                f"{table.source}: time column {header!r} is in {unit.unit!r}, not in seconds; "
+                "give it a time unit such as 's' or 'us', or pass a sample interval"
+            )
+        time = _scaled(columns[time_index], unit.scale)
+
+        def where(row: int) -> str:
+            return table.where([row])[0]
+
+        axis = axis_from_column(time, header=header, where=where, source=table.source)
+        if hint.sample_interval is not None and not _same(hint.sample_interval, axis.sample_interval):
+            warnings.append(
+                f"the preamble gives a sample interval of {hint.sample_interval:.6g} s "
+                f"({hint.interval_line}) but the time column {header!r} steps by "
+                f"{axis.sample_interval:.6g} s; the time column is used"
+            )
+        return axis, header
+    if hint.sample_interval is not None:
+        return TimeAxis(axis_from_interval(rows, hint.sample_interval, start), hint.sample_interval), None
+    raise CaptureError(_no_time_message(table))
+
+
+def _no_time_message(table: Table) -> str:
+    """Message for a table with no time column and no sample interval."""
+    advice = "pass a sample interval (--sample-interval on the command line, sample_interval in the setup)"
+    if len(table.headers) == 1:
+        return f"{table.source} has a single column and no time information; {advice}"
+    if not table.has_header:
+        return (
+            f"{table.source} has no header row, so no column is known to be time, and no sample "
+            f"interval above the table; {advice}, or add a header such as 'Time (s)'"
+        )
+    listed = ", ".join(repr(h) for h in table.headers)
+    return (
+        f"{table.source} has no time column (columns: {listed}) and no sample interval above "
+        f"the table; {advice}, or name the time column e.g. 'Time (s)'"
+    )
+
+
+def _scaled(values: np.ndarray, scale: float) -> np.ndarray:
+    """``values`` in SI: the same array when the scale is 1, else a scaled copy."""
+    return values if scale == 1.0 else values * scale
+
+
+def _same(a: float, b: float) -> bool:
+    """True when two sample intervals agree to 1 %."""
+    return abs(a - b) <= _SAME_INTERVAL * max(a, b)

@@ -1,0 +1,318 @@
+"""Sniff how a capture's table is laid out, from its first lines of text.
+
+The sniffer tries every separator (comma, semicolon, tab, runs of blanks,
+vertical bar) with both decimal marks, and keeps the reading under which the
+longest run of numeric rows appears. The non-blank line right above that run
+is the header when it is all text with a fitting number of cells; a second
+text line holding only units (``s``, ``(V)``, ``[mA]``) may sit between the
+names and the numbers. Everything above is the preamble.
+"""
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+from ..errors import CaptureError
+from .cells import WHITESPACE, is_missing, is_number, split_line
+from .column_units import is_time_name, parse_header, parse_unit
+
+SEPARATORS: tuple[str, ...] = (",", ";", "\t", WHITESPACE, "|")
+_SEPARATOR_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", WHITESPACE: "blanks", "|": "bar"}
+_LINE_BREAK = re.compile(r"\r\n|\r|\n")
+_EARLIER_TABLE_ROWS = 3
+_UNIT_BRACKETS = "()[]{}"
+
+
+@dataclass(frozen=True)
+class Layout:
+    """Where the table sits in the file and how its lines split.
+
+    Attributes
+    ----------
+    sep
+        Separator character, or :data:`~wavefit.io.cells.WHITESPACE` for runs of blanks.
+    decimal
+        Decimal mark, ``"."`` or ``","``.
+    line_terminator
+        ``"\\r"`` for files that end lines with a bare CR, else None (LF or CRLF).
+    data_start
+        0-based index of the first data line in the file.
+    n_fields
+        Cells per data row, including empty cells left by trailing separators.
+    headers
+        One header per used column; ``"0"``, ``"1"``, ... when the file has none.
+    header_line
+        1-based line number of the header (of the names when a units row follows), or None.
+    preamble
+        ``(line number, text)`` of every non-blank line above the header or table.
+    """
+
+    sep: str
+    decimal: str
+    line_terminator: str | None
+    data_start: int
+    n_fields: int
+    headers: tuple[str, ...]
+    header_line: int | None
+    preamble: tuple[tuple[int, str], ...]
+
+    @property
+    def n_columns(self) -> int:
+        """Number of columns read from every row."""
+        return len(self.headers)
+
+    def describe_separator(self) -> str:
+        """Human name of the separator, for messages."""
+        return _SEPARATOR_NAMES[self.sep]
+
+
+@dataclass(frozen=True)
+class _Run:
+    """A run of numeric rows under one reading: lines ``start..stop-1`` (0-based)."""
+
+    start: int
+    stop: int
+    numeric_rows: int
+    n_fields: int
+    n_used: int
+
+
+def split_lines(text: str) -> list[str]:
+    """Split text into lines on LF, CRLF or a bare CR, as the body parser does."""
+    return _LINE_BREAK.split(text)
+
+
+def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
+    """Find separator, decimal mark, header and preamble from the first lines of a file.
+
+    Parameters
+    ----------
+    text
+        The decoded first part of the file.
+    complete
+        True when ``text`` is the whole file; otherwise its last, possibly cut,
+        line is ignored.
+    source
+        File name used in messages.
+
+    Returns
+    -------
+    Layout
+        How to read the table body.
+
+    Raises
+    ------
+    CaptureError
+        When no numeric row is found, or the first lines show a broken table.
+    """
+    lines = split_lines(text)
+    if not complete and len(lines) > 1:
+        lines = lines[:-1]
+    if not any(line.strip() for line in lines):
+        raise CaptureError(f"{source} contains only blank lines; export the capture again")
+    best: tuple[tuple[int, int, int], str, str, _Run] | None = None
+    for priority, sep in enumerate(SEPARATORS):
+        for decimal in (".", ","):
+            if sep == decimal:
+                continue
+            run = _longest_run(lines, sep, decimal)
+            if run is None:
+                continue
+            score = (run.numeric_rows, run.n_used, -priority)
+            if best is None or score > best[0]:
+                best = (score, sep, decimal, run)
+    if best is None:
+        raise CaptureError(_no_table_message(lines, complete, source))
+    _, sep, decimal, run = best
+    _refuse_earlier_table(lines, sep, decimal, run, source)
+    headers, header_start = _find_header(lines, sep, decimal, run, source)
+    if headers is None:
+        headers = tuple(str(i) for i in range(run.n_used))
+    first_text_above = header_start if header_start is not None else run.start
+    preamble = tuple(
+        (i + 1, line.strip()) for i, line in enumerate(lines[:first_text_above]) if line.strip()
+    )
+    bare_cr = "\n" not in text and "\r" in text
+    return Layout(
+        sep=sep,
+        decimal=decimal,
+        line_terminator="\r" if bare_cr else None,
+        data_start=run.start,
+        n_fields=run.n_fields,
+        headers=headers,
+        header_line=None if header_start is None else header_start + 1,
+        preamble=preamble,
+    )
+
+
+def _row_kind(cells: list[str], decimal: str) -> str:
+    """``"numeric"``, ``"missing"`` (all cells empty/NaN) or ``"text"``."""
+    numbers = 0
+    for cell in cells:
+        if is_number(cell, decimal):
+            numbers += 1
+        elif not is_missing(cell):
+            return "text"
+    return "numeric" if numbers else "missing"
+
+
+def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
+    """The longest run of numeric rows (blank and all-missing rows do not break it)."""
+    runs: list[_Run] = []
+    start: int | None = None
+    numeric = fields = used = 0
+    for i, line in enumerate(lines):
+        if not line.strip():
+            continue
+        cells = split_line(line, sep)
+        kind = _row_kind(cells, decimal)
+        if kind == "text":
+            if start is not None and numeric:
+                runs.append(_Run(start, i, numeric, fields, used))
+            start = None
+            continue
+        if start is None:
+            start, numeric, fields, used = i, 0, 0, 0
+        fields = max(fields, len(cells))
+        if kind == "numeric":
+            numeric += 1
+            used = max(used, len(_strip_trailing_empty(cells)))
+    if start is not None and numeric:
+        runs.append(_Run(start, len(lines), numeric, fields, used))
+    return max(runs, key=lambda r: r.numeric_rows, default=None)
+
+
+def _strip_trailing_empty(cells: list[str]) -> list[str]:
+    """Cells without the empty ones at the end of the row."""
+    end = len(cells)
+    while end and not cells[end - 1]:
+        end -= 1
+    return cells[:end]
+
+
+def _previous_nonblank(lines: list[str], index: int) -> int | None:
+    """Index of the last non-blank line before ``index``, or None."""
+    for i in range(index - 1, -1, -1):
+        if lines[i].strip():
+            return i
+    return None
+
+
+def _find_header(
+    lines: list[str], sep: str, decimal: str, run: _Run, source: str
+) -> tuple[tuple[str, ...] | None, int | None]:
+    """Headers for the run's columns and the index of the first header line, if any."""
+    above = _previous_nonblank(lines, run.start)
+    if above is None:
+        return None, None
+    cells = _header_cells(lines[above], sep, run)
+    if cells is None:
+        _refuse_broken_row(lines[above], above, sep, decimal, run, source)
+        return None, None
+    names_at = _previous_nonblank(lines, above)
+    if names_at is not None and all(_is_unit_cell(c) for c in cells) and any(cells):
+        names = _header_cells(lines[names_at], sep, run)
+        if names is not None and len(names) == len(cells):
+            return _join_units(names, cells), names_at
+    return tuple(c or str(i) for i, c in enumerate(cells)), above
+
+
+def _header_cells(line: str, sep: str, run: _Run) -> list[str] | None:
+    """The line's cells when it can be a header for the run: all text, fitting count."""
+    splits = [split_line(line, sep)]
+    if sep == WHITESPACE:
+        splits += [re.split(r"\s{2,}|\t", line.strip()), _merge_bracketed(splits[0])]
+    for cells in splits:
+        cells = _strip_trailing_empty(cells)
+        if not cells or any(is_number(c, ".") or is_number(c, ",") for c in cells):
+            continue
+        if run.n_used <= len(cells) <= run.n_fields:
+            return cells
+    return None
+
+
+def _merge_bracketed(cells: list[str]) -> list[str]:
+    """Glue ``(unit)`` tokens to the token before them: ``Time (s)`` split on blanks."""
+    merged: list[str] = []
+    for cell in cells:
+        if merged and cell[:1] in "([{":
+            merged[-1] = f"{merged[-1]} {cell}"
+        else:
+            merged.append(cell)
+    return merged
+
+
+def _is_unit_cell(cell: str) -> bool:
+    """True when a header cell is nothing but a unit, possibly in brackets, or empty."""
+    return not cell or parse_unit(cell.strip(_UNIT_BRACKETS)) is not None
+
+
+def _join_units(names: list[str], units: list[str]) -> tuple[str, ...]:
+    """Headers ``"name (unit)"`` from a names row and a units row."""
+    joined = []
+    for i, (name, unit) in enumerate(zip(names, units)):
+        name = name or str(i)
+        unit = unit.strip(_UNIT_BRACKETS)
+        joined.append(f"{name} ({unit})" if unit else name)
+    return tuple(joined)
+
+
+def _refuse_broken_row(
+    line: str, index: int, sep: str, decimal: str, run: _Run, source: str
+) -> None:
+    """Raise when the line above the table is a damaged data row or a mismatched header."""
+    cells = _strip_trailing_empty(split_line(line, sep))
+    if not cells:
+        return
+    texts = [c for c in cells if not is_number(c, decimal) and not is_missing(c)]
+    if is_number(cells[0], decimal) and texts and len(cells) <= run.n_fields:
+        raise CaptureError(bad_cell_message(source, index + 1, texts[0]))
+    if not any(is_number(c, decimal) for c in cells) and any(
+        is_time_name(parse_header(c).name) for c in cells
+    ):
+        raise CaptureError(
+            f"{source}: the header on line {index + 1} has {len(cells)} names but the rows "
+            f"below it have {run.n_used} {_SEPARATOR_NAMES[sep]}-separated numbers; "
+            "make the header and the rows agree"
+        )
+
+
+def _refuse_earlier_table(lines: list[str], sep: str, decimal: str, run: _Run, source: str) -> None:
+    """Raise when numeric rows of the same shape appear above the table: a bad line split it."""
+    rows = 0
+    for i, line in enumerate(lines[: run.start]):
+        if not line.strip():
+            continue
+        cells = split_line(line, sep)
+        if _row_kind(cells, decimal) != "text" and len(cells) == run.n_fields:
+            rows += 1
+            continue
+        if rows >= _EARLIER_TABLE_ROWS:
+            texts = [c for c in cells if not is_number(c, decimal) and not is_missing(c)]
+            found = texts[0] if len(texts) == 1 else line.strip()
+            raise CaptureError(bad_cell_message(source, i + 1, found))
+        rows = 0
+
+
+def bad_cell_message(source: str, line_number: int, found: str) -> str:
+    """One-line message for text found where the table needs a number."""
+    shown = found if len(found) <= 60 else found[:57] + "..."
+    return (
+        f"{source}, line {line_number}: found {shown!r} where a number was expected; "
+        "fix or delete that line"
+    )
+
+
+def _no_table_message(lines: list[str], complete: bool, source: str) -> str:
+    """Message for text in which no numeric row was found."""
+    nonblank = sum(1 for line in lines if line.strip())
+    if complete:
+        what = "a header line only" if nonblank == 1 else f"{nonblank} lines of text"
+        return (
+            f"{source} has no data rows ({what}, no line of numbers); "
+            "a capture needs numeric rows below its header"
+        )
+    return (
+        f"{source}: no line of numbers in its first {len(lines)} lines; "
+        "is it a waveform table in CSV text?"
+    )

@@ -1,0 +1,215 @@
+"""Metadata lines above the table: ``key,value`` pairs, ``Key: value`` lines and free text.
+
+Pairs go into the capture's metadata as strings; free-text lines are stored
+under ``note1``, ``note2``, ... Pairs whose key names a sample interval,
+a sample rate or a start time give the time axis of tables without a time
+column (``Sample interval,1e-8``, ``Sample Interval: 10 ns``, ``dt;1e-9``,
+``Sampling rate,100 MSa/s``).
+"""
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+
+from .cells import WHITESPACE
+from .column_units import parse_header, parse_unit
+
+_INTERVAL_KEYS = frozenset({
+    "sampleinterval", "samplinginterval", "sampleperiod", "samplingperiod", "samplespacing",
+    "dt", "deltat", "timestep", "timeincrement", "xincrement", "timeinterval",
+    "timeresolution", "interval",
+})
+_RATE_KEYS = frozenset({
+    "samplerate", "samplingrate", "samplefrequency", "samplingfrequency",
+    "samplespersecond", "fs", "rate",
+})
+_START_KEYS = frozenset({"t0", "starttime", "tstart", "timestart"})
+
+_COMMENT_MARK = re.compile(r"^\s*(?:#+|%+|//+)\s*")
+_GENERIC_SEPARATORS = (":", "=", "\t", ";", ",")
+_TRAILING_SEPARATORS = ",;\t| "
+_COLON_IN_NUMBER = re.compile(r"(?<=\d):(?=\d)")
+_WORDS_AND_NUMBER = re.compile(
+    r"^(?P<key>[^\W\d][^\d:=]*?)\s+"
+    r"(?P<value>[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?(?:\s*[^\s\d]\S*)?)$"
+)
+_QUANTITY = re.compile(
+    r"^\s*(?P<number>[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)\s*(?P<unit>\S*)\s*$"
+)
+_MAX_KEY_CHARS = 40
+_MAX_KEY_WORDS = 5
+_SAME = 1e-6
+
+
+@dataclass(frozen=True)
+class Preamble:
+    """What the lines above the table say.
+
+    Attributes
+    ----------
+    metadata
+        Every pair as ``key -> value`` strings, free text under ``noteN``.
+    sample_interval
+        Seconds between samples, when a line gives an interval or a rate.
+    interval_line
+        The line that gave it, for messages (``"line 3 'dt;1e-9'"``).
+    start_time
+        Time of the first sample in seconds, when a line gives it.
+    warnings
+        Lines that named a time quantity but could not be read.
+    """
+
+    metadata: dict[str, str] = field(default_factory=dict)
+    sample_interval: float | None = None
+    interval_line: str | None = None
+    start_time: float | None = None
+    warnings: tuple[str, ...] = ()
+
+
+def read_preamble(lines: Iterable[tuple[int, str]], sep: str) -> Preamble:
+    """Read metadata and time hints from preamble lines.
+
+    Parameters
+    ----------
+    lines
+        ``(1-based line number, text)`` of each non-blank line above the table.
+    sep
+        The table's separator, tried first to split a key from its value.
+        Numbers in values may use either decimal mark.
+
+    Returns
+    -------
+    Preamble
+        Metadata, sample interval and start time found, and warnings.
+    """
+    metadata: dict[str, str] = {}
+    warnings: list[str] = []
+    interval: tuple[float, str] | None = None
+    start: float | None = None
+    notes = 0
+    for number, text in lines:
+        pair = split_key_value(text, sep)
+        if pair is None:
+            notes += 1
+            metadata[f"note{notes}"] = text.strip()
+            continue
+        key, value = pair
+        metadata[_unique_key(metadata, key)] = value
+        kind, seconds = _time_quantity(key, value)
+        where = f"line {number} {text.strip()!r}"
+        if kind is None:
+            continue
+        if seconds is None:
+            warnings.append(f"preamble {where} names a time quantity but its value is not readable; ignored")
+        elif kind == "start":
+            start = seconds if start is None else start
+        elif interval is None:
+            interval = (seconds, where)
+        elif abs(seconds - interval[0]) > _SAME * interval[0]:
+            warnings.append(
+                f"preamble {where} gives a sample interval of {seconds:.6g} s, but "
+                f"{interval[1]} gave {interval[0]:.6g} s; the first is used"
+            )
+    return Preamble(
+        metadata=metadata,
+        sample_interval=None if interval is None else interval[0],
+        interval_line=None if interval is None else interval[1],
+        start_time=start,
+        warnings=tuple(warnings),
+    )
+
+
+def split_key_value(text: str, sep: str) -> tuple[str, str] | None:
+    """Split a preamble line into ``(key, value)``, or None for free text.
+
+    Parameters
+    ----------
+    text
+        The line.
+    sep
+        The table's separator; it and ``:``, ``=``, tab, ``;``, ``,`` are
+        looked for, and the first one in the line splits it.
+
+    Returns
+    -------
+    tuple of (str, str) or None
+        Key and value, both non-empty, or None when the line is free text.
+    """
+    text = _COMMENT_MARK.sub("", text).strip()
+    marks = _GENERIC_SEPARATORS if sep == WHITESPACE else (sep, *_GENERIC_SEPARATORS)
+    spots = [spot for spot in (_find_separator(text, mark) for mark in marks) if spot > 0]
+    if spots:
+        spot = min(spots)
+        key = text[:spot].strip().strip('"').strip()
+        value = text[spot + 1 :].strip().rstrip(_TRAILING_SEPARATORS).strip('"').strip()
+        if _is_key(key) and value:
+            return key, value
+    match = _WORDS_AND_NUMBER.match(text)
+    if match and _is_key(match["key"]):
+        return match["key"].strip(), match["value"]
+    return None
+
+
+def _find_separator(text: str, mark: str) -> int:
+    """Index of the first ``mark`` in ``text``; a colon between digits (``10:30``) does not count."""
+    if mark != ":":
+        return text.find(mark)
+    masked = _COLON_IN_NUMBER.sub("\x00", text)
+    return masked.find(":")
+
+
+def _is_key(text: str) -> bool:
+    """A plausible metadata key: short, a few words, not a number."""
+    text = text.strip()
+    return (
+        0 < len(text) <= _MAX_KEY_CHARS
+        and len(text.split()) <= _MAX_KEY_WORDS
+        and _QUANTITY.match(text) is None
+    )
+
+
+def _unique_key(metadata: dict[str, str], key: str) -> str:
+    """``key``, or ``key (2)``, ``key (3)``, ... when it is already taken."""
+    if key not in metadata:
+        return key
+    n = 2
+    while f"{key} ({n})" in metadata:
+        n += 1
+    return f"{key} ({n})"
+
+
+def _time_quantity(key: str, value: str) -> tuple[str | None, float | None]:
+    """Classify a pair as ``"interval"``, ``"start"`` or not a time hint, with its value in seconds.
+
+    The value's own unit wins over a unit in the key (``Sample interval (ns),10``);
+    a rate (``Hz``, ``Sa/s``) is turned into an interval. Returns ``(kind, None)``
+    when the key names a time quantity but the value cannot be read.
+    """
+    head = parse_header(key)
+    name = re.sub(r"[^a-z0-9]", "", head.name.lower())
+    if name in _START_KEYS:
+        kind = "start"
+    elif name in _INTERVAL_KEYS or name in _RATE_KEYS:
+        kind = "interval"
+    else:
+        return None, None
+    match = _QUANTITY.match(value)
+    if match is None:
+        return kind, None
+    number = float(match["number"].replace(",", "."))
+    unit = match["unit"]
+    parsed = parse_unit(unit) if unit else ((head.unit, head.scale) if head.unit else None)
+    if (unit and parsed is None) or not math.isfinite(number):
+        return kind, None
+    base, scale = parsed if parsed is not None else ("Hz" if name in _RATE_KEYS else "s", 1.0)
+    if base == "s":
+        seconds = number * scale
+    elif base == "Hz" and kind == "interval" and number > 0:
+        seconds = 1.0 / (number * scale)
+    else:
+        return kind, None
+    if kind == "interval" and not seconds > 0:
+        return kind, None
+    return kind, seconds

@@ -1,0 +1,65 @@
+"""Read a capture file: open, decode, sniff the layout, parse the body, check and assemble."""
+from __future__ import annotations
+
+import os
+from collections.abc import Sequence
+
+from .assemble import Table, assemble
+from .body import line_numbers, read_body
+from .capture import Capture
+from .encoding import decode_head
+from .layout import sniff_layout
+from .preamble import read_preamble
+from .source import open_source
+
+#: The layout is sniffed on at most this many lines ...
+SNIFF_LINES = 200
+#: ... and at most this many bytes from the start of the (decompressed) file.
+SNIFF_BYTES = 1 << 20
+
+
+def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None = None) -> Capture:
+    """Read a waveform capture from a CSV-like text file (optionally gzip-compressed).
+
+    The separator, decimal mark, header row, units and preamble are found from
+    the first lines; see ``docs/capture-format.md`` for what is accepted.
+
+    Parameters
+    ----------
+    path
+        The capture file (``.csv``, ``.txt``, ``.csv.gz``, ...).
+    sample_interval
+        Seconds between samples. Overrides a sample interval in the preamble
+        and, with a warning, a time column (which is then kept as a channel).
+        Needed when the file holds no time information.
+
+    Returns
+    -------
+    Capture
+        Time in seconds, channels scaled to SI units, metadata and warnings.
+
+    Raises
+    ------
+    wavefit.errors.CaptureError
+        With a one-line message when the file cannot be read as a uniformly
+        sampled waveform table.
+    """
+    source = open_source(path)
+    raw, complete = source.read_head(SNIFF_BYTES, SNIFF_LINES)
+    head = decode_head(raw, complete=complete, source=source.name)
+    layout = sniff_layout(head.text, complete=complete, source=source.name)
+    preamble = read_preamble(layout.preamble, layout.sep)
+    columns = read_body(source, layout, head.encoding)
+
+    def where(rows: Sequence[int]) -> list[str]:
+        return [f"line {n}" for n in line_numbers(source, layout, head.encoding, rows)]
+
+    table = Table(
+        source=source.name,
+        headers=layout.headers,
+        columns=columns,
+        where=where,
+        has_header=layout.header_line is not None,
+        preamble=preamble,
+    )
+    return assemble(table, sample_interval=sample_interval)

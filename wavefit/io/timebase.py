@@ -1,0 +1,173 @@
+"""Check a time column (strictly increasing, uniformly sampled) or build a time axis from an interval.
+
+Limits, relative to the median interval ``dt``:
+
+* any interval more than 1 % away from ``dt`` is an error;
+* an rms jitter of the intervals above 0.1 % of ``dt`` is reported as a warning;
+* except when the time stamps are merely printed with too few digits: when
+  every stamp lies within the printing resolution of a uniform grid, the axis
+  is rebuilt as that least-squares grid (with a warning), since the median of
+  rounded intervals would be biased.
+"""
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from decimal import Decimal
+
+import numpy as np
+
+from ..errors import CaptureError
+
+#: Largest deviation of one interval from the median, as a fraction of it.
+MAX_INTERVAL_DEVIATION = 0.01
+#: Relative rms jitter of the intervals above which a warning is given.
+JITTER_WARNING = 1e-3
+_DIGIT_SAMPLES = 2000
+# Residuals of a rounded uniform grid stay within half the printing resolution; allow some slack.
+_ROUNDING_SLACK = 0.6
+# Printed coarser than half an interval, time stamps cannot show whether samples are missing.
+_COARSEST_RESOLUTION = 0.5
+
+
+@dataclass(frozen=True)
+class TimeAxis:
+    """A checked, uniformly sampled time axis in seconds."""
+
+    time: np.ndarray
+    sample_interval: float
+    warnings: tuple[str, ...] = ()
+
+
+def axis_from_interval(rows: int, interval: float, start: float = 0.0) -> np.ndarray:
+    """The time axis ``start + i * interval`` for ``rows`` samples, in seconds."""
+    return start + np.arange(rows, dtype=np.float64) * interval
+
+
+def axis_from_column(
+    time: np.ndarray, *, header: str, where: Callable[[int], str], source: str
+) -> TimeAxis:
+    """Check a time column and return it as the time axis.
+
+    Parameters
+    ----------
+    time
+        The column in seconds, without NaN.
+    header
+        The column's header, for messages.
+    where
+        Turns a 0-based row index into a place in the source (``"line 12"``).
+    source
+        Name of the source, for messages.
+
+    Returns
+    -------
+    TimeAxis
+        The column (or a uniform grid fitted to it, when it is coarsely
+        printed), its median interval and warnings.
+
+    Raises
+    ------
+    CaptureError
+        When time repeats, goes backwards or is not uniformly sampled.
+    """
+    steps = np.diff(time)
+    bad = np.flatnonzero(~(steps > 0))
+    if bad.size:
+        raise CaptureError(_not_increasing_message(time, int(bad[0]) + 1, header, where, source))
+    dt = float(np.median(steps))
+    deviation = np.abs(steps - dt) / dt
+    worst = int(np.argmax(deviation))
+    jitter = float(np.std(steps) / dt)
+    if deviation[worst] <= MAX_INTERVAL_DEVIATION and jitter <= JITTER_WARNING:
+        return TimeAxis(time, dt)
+    grid, slope, shift = _fitted_grid(time)
+    resolution = printing_resolution(time)
+    if resolution < _COARSEST_RESOLUTION * dt and shift <= _ROUNDING_SLACK * resolution:
+        return TimeAxis(grid, slope, (
+            f"time column {header!r} is printed with a resolution of about {resolution:.2g} s, "
+            f"so its intervals vary by up to {100 * deviation[worst]:.3g} % of {slope:.6g} s; "
+            f"the axis was rebuilt as a uniform grid fitted to it (largest shift {shift:.2g} s)",
+        ))
+    if deviation[worst] > MAX_INTERVAL_DEVIATION:
+        off = float(steps[worst])
+        coarse = (
+            f" (its time stamps have only about {resolution:.2g} s resolution: export more "
+            "digits, or pass a sample interval to ignore the column)"
+            if resolution >= _COARSEST_RESOLUTION * dt
+            else ""
+        )
+        raise CaptureError(
+            f"{source}, {where(worst + 1)}: sampling is not uniform: the interval to this row is "
+            f"{off:.6g} s, {100 * deviation[worst]:.3g} % away from the median {dt:.6g} s "
+            f"(limit {100 * MAX_INTERVAL_DEVIATION:g} %); resample the capture to a uniform grid"
+            f"{coarse}"
+        )
+    return TimeAxis(time, dt, (
+        f"time column {header!r}: the sample intervals jitter by {100 * jitter:.2g} % rms "
+        f"of the median {dt:.6g} s (warning above {100 * JITTER_WARNING:g} %); "
+        "the analysis assumes uniform sampling",
+    ))
+
+
+def _not_increasing_message(
+    time: np.ndarray, row: int, header: str, where: Callable[[int], str], source: str
+) -> str:
+    """Message for the first row whose time is not after the row before it."""
+    now, before = float(time[row]), float(time[row - 1])
+    what = (
+        f"repeats the value {now:.9g} s of the row before"
+        if now == before
+        else f"goes backwards ({now:.9g} s after {before:.9g} s)"
+    )
+    return (
+        f"{source}, {where(row)}: time in column {header!r} {what}; the time column must "
+        "increase strictly; sort the capture, or pass a sample interval to ignore the column"
+    )
+
+
+def _fitted_grid(time: np.ndarray) -> tuple[np.ndarray, float, float]:
+    """Least-squares uniform grid through ``time``: the grid, its interval and the largest shift."""
+    index = np.arange(time.size, dtype=np.float64)
+    index -= (time.size - 1) / 2.0
+    mean = float(time.mean())
+    slope = float(np.dot(index, time - mean) / np.dot(index, index))
+    grid = mean + index * slope
+    return grid, slope, float(np.max(np.abs(time - grid)))
+
+
+def printing_resolution(values: np.ndarray) -> float:
+    """Estimate the step of the last printed digit at the largest magnitude in ``values``.
+
+    The shortest decimal form of a sample of the values shows how they were
+    printed: with a fixed number of decimals (the count after the point is
+    the same for most values) or with a fixed number of significant digits.
+    The step of the last digit follows, at the largest magnitude.
+
+    Parameters
+    ----------
+    values
+        Numbers read from text.
+
+    Returns
+    -------
+    float
+        The estimated resolution (0 when all values are zero).
+    """
+    largest = float(np.max(np.abs(values)))
+    if largest == 0.0:
+        return 0.0
+    picks = np.unique(np.linspace(0, values.size - 1, min(values.size, _DIGIT_SAMPLES)).astype(int))
+    forms = [_digits_and_exponent(float(v)) for v in values[picks] if v != 0.0]
+    significant = np.array([digits for digits, _ in forms])
+    decimals = np.array([digits - 1 - exponent for digits, exponent in forms])
+    if np.mean(decimals == decimals.max()) > np.mean(significant == significant.max()):
+        return 10.0 ** -int(decimals.max())
+    return 10.0 ** (math.floor(math.log10(largest)) - int(significant.max()) + 1)
+
+
+def _digits_and_exponent(value: float) -> tuple[int, int]:
+    """Significant digits of the shortest decimal form of ``value`` (non-zero), and its decimal exponent."""
+    shortest = Decimal(repr(abs(value))).normalize()
+    return len(shortest.as_tuple().digits), shortest.adjusted()
