@@ -1,0 +1,136 @@
+"""Edges of step and square-wave records: where each transition is and how fast it goes.
+
+State levels come from the IEEE Std 181 histogram method
+(:func:`wavefit.signal.levels.state_levels`), edges from 50 % reference-level
+crossings with hysteresis, and each edge's 10 % and 90 % instants by linear
+interpolation. For a first-order step y = 1 − exp(−(t − t0)/tau) the p-level
+instant is t0 − tau·ln(1 − p), so t90 − t10 = tau·ln 9 and
+t10 = t0 + tau·ln(10/9): both give a starting tau and the switching instant t0.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .levels import StateLevels, crossings, state_levels
+
+LN9 = math.log(9.0)
+
+
+@dataclass(frozen=True)
+class Edge:
+    """One transition: direction (+1 rising), 10/50/90 % instants, and the estimated start t0."""
+
+    direction: int
+    t10: float
+    t50: float
+    t90: float
+
+    @property
+    def duration(self) -> float:
+        """10 %–90 % transition duration."""
+        return abs(self.t90 - self.t10)
+
+    @property
+    def tau(self) -> float:
+        """Time constant of a first-order step with this transition duration: (t90 − t10)/ln 9."""
+        return self.duration / LN9
+
+    @property
+    def t0(self) -> float:
+        """Start of a first-order step with these instants: t10 − tau·ln(10/9)."""
+        return self.t10 - self.tau * math.log(10.0 / 9.0)
+
+
+def noise_rms(y: np.ndarray) -> float:
+    """Robust white-noise rms from first differences: 1.4826·MAD(Δy)/√2 (common practice)."""
+    d = np.diff(np.asarray(y, dtype=float))
+    if d.size == 0:
+        return 0.0
+    return float(1.4826 * np.median(np.abs(d - np.median(d))) / math.sqrt(2.0))
+
+
+def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
+               min_snr: float = 10.0) -> list[Edge]:
+    """Transitions of a two-state record, in time order.
+
+    Parameters
+    ----------
+    t, y
+        Time axis (s) and samples.
+    levels
+        State levels; by default from the histogram method of IEEE Std 181.
+    min_snr
+        An amplitude below ``min_snr`` times the noise rms means there is no transition.
+
+    Returns
+    -------
+    list of Edge
+        Empty when the record holds no transition.
+
+    References
+    ----------
+    IEEE Std 181-2011, IEEE Standard for Transitions, Pulses, and Related Waveforms
+    (state levels by the histogram method, reference levels and instants).
+    """
+    t = np.asarray(t, dtype=float)
+    y = np.asarray(y, dtype=float)
+    levels = levels or state_levels(y)
+    amp = levels.amplitude
+    sigma = noise_rms(y)
+    if not amp > 0 or amp < min_snr * sigma:
+        return []
+    hyst = max(0.1 * amp, 3.0 * sigma)
+    mid = crossings(t, y, levels.reference(50.0), hysteresis=min(hyst, 0.4 * amp))
+    edges = []
+    for k, c in enumerate(mid):
+        lo = int(math.floor(mid[k - 1].index)) if k > 0 else 0
+        hi = int(math.ceil(mid[k + 1].index)) if k + 1 < len(mid) else y.size - 1
+        i50 = int(math.floor(c.index))
+        t10 = _instant(t, y, levels.reference(10.0 if c.direction > 0 else 90.0), lo, i50, last=True)
+        t90 = _instant(t, y, levels.reference(90.0 if c.direction > 0 else 10.0), i50, hi, last=False)
+        if t10 is None or t90 is None:
+            continue
+        edges.append(Edge(c.direction, t10, c.time, t90))
+    return edges
+
+
+def _instant(t: np.ndarray, y: np.ndarray, level: float, a: int, b: int, last: bool) -> float | None:
+    """Linearly interpolated crossing of ``level`` in samples a..b: the last one before b or the first after a."""
+    seg = y[a:b + 1] - level
+    flips = np.flatnonzero(np.signbit(seg[1:]) != np.signbit(seg[:-1]))
+    if flips.size == 0:
+        return None
+    k = a + int(flips[-1] if last else flips[0])
+    y0, y1 = y[k] - level, y[k + 1] - level
+    frac = y0 / (y0 - y1) if y1 != y0 else 0.5
+    return float(t[k] + frac * (t[k + 1] - t[k]))
+
+
+def jump_instant(t: np.ndarray, y: np.ndarray, t_from: float, t_to: float) -> tuple[float, float] | None:
+    """Instant and duration of the fastest jump of ``y`` between ``t_from`` and ``t_to``.
+
+    Used on the drive channel, whose switching is much faster than the current's
+    rise: the instant is where the jump crosses half its height, the duration
+    spans the samples whose step exceeds 10 % of the largest one (at least one
+    sample interval).
+    """
+    a = max(int(np.searchsorted(t, t_from)), 0)
+    b = min(int(np.searchsorted(t, t_to)), t.size - 1)
+    if b - a < 3:
+        return None
+    d = np.diff(y[a:b + 1])
+    k = int(np.argmax(np.abs(d)))
+    big = np.abs(d) >= 0.1 * abs(d[k])
+    i, j = k, k
+    while i > 0 and big[i - 1] and np.sign(d[i - 1]) == np.sign(d[k]):
+        i -= 1
+    while j + 1 < d.size and big[j + 1] and np.sign(d[j + 1]) == np.sign(d[k]):
+        j += 1
+    dt = float(t[1] - t[0])
+    start, stop = a + i, a + j + 1
+    half = 0.5 * (y[start] + y[stop])
+    t_half = _instant(t, y, half, start, stop, last=False)
+    return (t_half if t_half is not None else float(t[a + k])), max((stop - start) * dt, dt)
