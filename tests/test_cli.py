@@ -1,0 +1,72 @@
+"""Command-line contract: exit codes, one-line errors, JSON of inspect."""
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from wavefit.cli import main
+
+
+def run(*args):
+    proc = subprocess.run([sys.executable, "-m", "wavefit.cli", *args], capture_output=True, text=True)
+    return proc.returncode, proc.stdout, proc.stderr
+
+
+@pytest.fixture
+def capture_file(tmp_path):
+    t = np.arange(200) * 1e-6
+    path = tmp_path / "c.csv"
+    lines = ["Time (s),CH1 (mV)"] + [f"{a:.9e},{1000 * np.sin(2e4 * a):.6f}" for a in t]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def test_version():
+    code, out, _ = run("--version")
+    assert code == 0 and out.startswith("wavefit ")
+
+
+def test_no_command_is_usage_error():
+    code, _, err = run()
+    assert code == 2 and "usage" in err
+
+
+def test_unknown_option_is_usage_error():
+    code, _, _ = run("analyze", "--frobnicate")
+    assert code == 2
+
+
+def test_inspect_json(capture_file):
+    code, out, err = run("inspect", str(capture_file), "--json")
+    assert code == 0, err
+    info = json.loads(out)
+    assert info["rows"] == 200
+    assert info["sample_interval_s"] == pytest.approx(1e-6)
+    assert info["time_column"] == "Time (s)"
+    col = info["columns"][0]
+    assert col["unit"] == "V"
+    assert col["max"] == pytest.approx(np.max(1000 * np.sin(2e4 * np.arange(200) * 1e-6)) / 1000, rel=1e-6)
+
+
+def test_missing_setup_file_is_exit_3_one_line(capture_file, tmp_path):
+    code, out, err = run("analyze", str(capture_file), "--setup", str(tmp_path / "none.toml"))
+    assert code == 3
+    assert err.count("\n") == 1 and "cannot read setup file" in err
+    assert "Traceback" not in err
+
+
+def test_unknown_method_is_exit_3(capture_file, tmp_path):
+    setup = tmp_path / "s.toml"
+    setup.write_text('method = "no-such-method"\n', encoding="utf-8")
+    code, _, err = run("analyze", str(capture_file), "--setup", str(setup))
+    assert code == 3 and "unknown method 'no-such-method'" in err
+
+
+def test_unreadable_capture_is_exit_3(tmp_path, capsys):
+    bad = tmp_path / "bad.csv"
+    bad.write_bytes(b"\x00\x01\x02binary\xff" * 50)
+    assert main(["inspect", str(bad)]) == 3
+    err = capsys.readouterr().err
+    assert err.startswith("wavefit: error:") and err.count("\n") == 1
