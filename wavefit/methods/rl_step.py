@@ -348,7 +348,8 @@ def _combine(windows, fits, baseline, has_drive) -> _Combined:
         ci = np.linalg.inv(c)
         info[np.ix_(cols, cols)] += ci
         score[cols] += ci @ y
-    if np.linalg.matrix_rank(info) < p:
+    d = np.sqrt(np.diag(info))
+    if np.any(d == 0) or np.linalg.matrix_rank(info / np.outer(d, d)) < p:
         raise AnalysisRefused("the record does not hold both states settled long enough to measure the "
                               "current step; record a pre-edge baseline or a full period")
     cov = np.linalg.inv(info)
