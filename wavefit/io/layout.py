@@ -73,6 +73,7 @@ class _Run:
     start: int
     stop: int
     numeric_rows: int
+    regular_rows: int
     n_fields: int
     n_used: int
 
@@ -110,7 +111,7 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
         lines = lines[:-1]
     if not any(line.strip() for line in lines):
         raise CaptureError(f"{source} contains only blank lines; export the capture again")
-    best: tuple[tuple[int, int, int], str, str, _Run] | None = None
+    best: tuple[tuple[int, ...], str, str, _Run] | None = None
     for priority, sep in enumerate(SEPARATORS):
         for decimal in (".", ","):
             if sep == decimal:
@@ -118,7 +119,9 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
             run = _longest_run(lines, sep, decimal)
             if run is None:
                 continue
-            score = (run.numeric_rows, run.n_used, -priority)
+            above = _previous_nonblank(lines, run.start)
+            header_fits = above is not None and _header_cells(lines[above], sep, run) is not None
+            score = (run.numeric_rows, header_fits, run.regular_rows, run.n_used, -priority)
             if best is None or score > best[0]:
                 best = (score, sep, decimal, run)
     if best is None:
@@ -160,25 +163,25 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
     """The longest run of numeric rows (blank and all-missing rows do not break it)."""
     runs: list[_Run] = []
     start: int | None = None
-    numeric = fields = used = 0
-    for i, line in enumerate(lines):
-        if not line.strip():
+    counts: list[int] = []
+    fields = used = 0
+    for i, line in enumerate([*lines, None]):
+        if line is not None and not line.strip():
             continue
-        cells = split_line(line, sep)
-        kind = _row_kind(cells, decimal)
+        cells = split_line(line, sep) if line is not None else []
+        kind = _row_kind(cells, decimal) if line is not None else "text"
         if kind == "text":
-            if start is not None and numeric:
-                runs.append(_Run(start, i, numeric, fields, used))
+            if start is not None and counts:
+                regular = max(counts.count(c) for c in set(counts))
+                runs.append(_Run(start, i, len(counts), regular, fields, used))
             start = None
             continue
         if start is None:
-            start, numeric, fields, used = i, 0, 0, 0
+            start, counts, fields, used = i, [], 0, 0
         fields = max(fields, len(cells))
         if kind == "numeric":
-            numeric += 1
+            counts.append(len(cells))
             used = max(used, len(_strip_trailing_empty(cells)))
-    if start is not None and numeric:
-        runs.append(_Run(start, len(lines), numeric, fields, used))
     return max(runs, key=lambda r: r.numeric_rows, default=None)
 
 
