@@ -40,6 +40,9 @@ def build_parser() -> argparse.ArgumentParser:
     p_in.add_argument("--json", action="store_true", help="print as JSON")
     p_in.add_argument("--sample-interval", type=float, metavar="SECONDS")
 
+    from .batch.command import add_batch_parser
+
+    add_batch_parser(sub)
     return parser
 
 
@@ -49,7 +52,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.command is None:
         parser.print_help(sys.stderr)
         return EXIT_USAGE
-    handler = {"analyze": _analyze, "inspect": _inspect}[args.command]
+    handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch}[args.command]
     try:
         return handler(args)
     except WavefitError as exc:
@@ -102,6 +105,12 @@ def _analyze(args: argparse.Namespace) -> int:
         payload = results[0].to_dict() if len(jobs) == 1 else [r.to_dict() for r in results]
         print(json.dumps(payload, indent=2, allow_nan=False))
     return worst
+
+
+def _batch(args: argparse.Namespace) -> int:
+    from .batch.command import run
+
+    return run(args)
 
 
 def _inspect(args: argparse.Namespace) -> int:

@@ -1,0 +1,65 @@
+"""Turn INPUT arguments (files, folders, glob patterns) into the lot's captures, in order.
+
+Order is "natural" by path (``part2`` before ``part10``), so the run chart
+follows the capture numbering a bench writes.
+"""
+from __future__ import annotations
+
+import glob
+import os
+import re
+from pathlib import Path
+from typing import Sequence
+
+from ..errors import CaptureError
+
+#: File names taken from a folder: text tables, optionally gzip-compressed.
+CAPTURE_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".csv.gz", ".txt.gz", ".tsv.gz", ".dat.gz")
+_GLOB_CHARS = re.compile(r"[*?\[]")
+_DIGITS = re.compile(r"(\d+)")
+
+
+def capture_order(path: str) -> tuple[object, ...]:
+    """Sort key: the path with its digit runs compared as numbers."""
+    return tuple((0, int(part), part) if part.isdigit() else (1, 0, part)
+                 for part in _DIGITS.split(path) if part)
+
+
+def is_capture_name(name: str) -> bool:
+    """Whether a file name in a folder looks like a capture."""
+    return name.lower().endswith(CAPTURE_SUFFIXES)
+
+
+def expand_inputs(inputs: Sequence[str]) -> list[str]:
+    """Files named, files in named folders (not recursive), files matching patterns.
+
+    Each path appears once, normalised (``os.path.normpath``), in capture
+    order. A name that is no file, folder or matching pattern is an error
+    raised before anything is analysed.
+    """
+    found: set[str] = set()
+    for item in inputs:
+        if os.path.isdir(item):
+            matches = [str(p) for p in Path(item).iterdir() if p.is_file() and is_capture_name(p.name)]
+            if not matches:
+                raise CaptureError(f"folder {item} has no capture files ({', '.join(CAPTURE_SUFFIXES)})")
+        elif os.path.isfile(item):
+            matches = [item]
+        elif _GLOB_CHARS.search(item):
+            matches = []
+            for hit in glob.glob(item, recursive=True):
+                if os.path.isdir(hit):
+                    matches += [str(p) for p in Path(hit).iterdir() if p.is_file() and is_capture_name(p.name)]
+                elif os.path.isfile(hit):
+                    matches.append(hit)
+            if not matches:
+                raise CaptureError(f"no capture file matches {item!r}")
+        else:
+            raise CaptureError(f"{item} does not exist; name capture files, folders or glob patterns")
+        for path in matches:
+            if "\n" in path or "\r" in path:
+                raise CaptureError(f"file name {path!r} contains a line break; rename it")
+            found.add(os.path.normpath(path))
+    if not found:
+        raise CaptureError("no capture files given; name files, folders or glob patterns")
+    return sorted(found, key=capture_order)

@@ -1,0 +1,180 @@
+"""Analyse the captures of a lot in worker processes and hand each row to the parent.
+
+Each capture becomes one row (a dict): its verdict against the spec, the
+quantities with their expanded uncertainties, and traceability (tool version,
+sha256 of capture, setup and spec, UTC time of analysis). Any error of one
+capture becomes an ``error`` row with a one-line message; the lot goes on.
+Rows are handed to ``sink`` in the parent process as they finish, so the
+parent alone writes files.
+"""
+from __future__ import annotations
+
+import contextlib
+import datetime as dt
+import hashlib
+import os
+import signal
+import sys
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
+from dataclasses import dataclass
+from typing import Any, Callable, Iterator, Sequence
+
+from ..errors import WavefitError
+from ..results import AnalysisResult
+from ..setup import Setup
+from .decision import ERROR, decide_part
+from .spec import Spec
+
+Analyse = Callable[[str, Setup], AnalysisResult]
+
+
+class Interrupted(Exception):
+    """The run was stopped by a signal (SIGTERM); ``signum`` says which."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(f"stopped by signal {signum}")
+        self.signum = signum
+
+
+class WorkerDied(WavefitError):
+    """A worker process ended without returning its row (killed, out of memory)."""
+
+    exit_code = 3
+
+
+def sha256_file(path: str | os.PathLike[str]) -> str:
+    """Hex sha256 of a file's bytes."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as stream:
+        while chunk := stream.read(1 << 20):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+def analyse_file(path: str, setup: Setup) -> AnalysisResult:
+    """The default analysis: :func:`wavefit.analysis.analyze` of one capture file."""
+    from ..analysis import analyze
+
+    return analyze(path, setup)
+
+
+@dataclass(frozen=True)
+class RowMaker:
+    """Turns a capture path into its results row; picklable, sent once to each worker."""
+
+    setup: Setup
+    spec: Spec
+    quantities: tuple[str, ...]
+    setup_sha256: str
+    spec_sha256: str
+    tool_version: str
+    analyse: Analyse = analyse_file
+
+    def __call__(self, path: str) -> dict[str, Any]:
+        row: dict[str, Any] = {"file": path, "tool_version": self.tool_version,
+                               "setup_sha256": self.setup_sha256, "spec_sha256": self.spec_sha256}
+        try:
+            row["capture_sha256"] = sha256_file(path)
+            result = self.analyse(path, self.setup)
+            verdict, decisions = decide_part(result.quantities, self.spec)
+            for name in self.quantities:
+                quantity = result.quantities.get(name)
+                if quantity is not None:
+                    row[name] = quantity.value
+                    row[f"{name}_U"] = quantity.expanded_uncertainty
+            notes = [d.reason for d in decisions if d.reason] + list(result.warnings)
+            row.update(verdict=verdict, message="; ".join(notes))
+        except WavefitError as exc:
+            row.update(verdict=ERROR, message=_one_line(str(exc)))
+        except OSError as exc:
+            row.update(verdict=ERROR, message=_one_line(f"cannot read {path}: {exc.strerror or exc}"))
+        except Exception as exc:  # a bug must not stop the lot; the row says what happened
+            row.update(verdict=ERROR, message=_one_line(f"unexpected {type(exc).__name__}: {exc}"))
+        row["analysed_at"] = dt.datetime.now(dt.timezone.utc).isoformat(timespec="microseconds")
+        return row
+
+
+def run_rows(paths: Sequence[str], maker: RowMaker, sink: Callable[[dict[str, Any]], None],
+             workers: int = 1, progress: bool = False) -> int:
+    """Make the row of every path, calling ``sink(row)`` in this process as each finishes.
+
+    ``workers`` > 1 uses that many processes (rows then arrive in completion
+    order). SIGTERM raises :class:`Interrupted`, Ctrl-C ``KeyboardInterrupt``,
+    after the rows already handed to ``sink``; queued captures are cancelled and
+    the workers end after their current capture. A worker that dies raises
+    :class:`WorkerDied` instead of hanging. Returns the number of rows made.
+    """
+    done = 0
+    with _stop_on_sigterm(), _progress(len(paths), progress) as bar:
+        if workers <= 1 or len(paths) <= 1:
+            for path in paths:
+                sink(maker(path))
+                done += 1
+                bar.update(1)
+            return done
+        pool = ProcessPoolExecutor(min(workers, len(paths)), initializer=_init_worker, initargs=(maker,))
+        try:
+            futures = [pool.submit(_work, path) for path in paths]
+            for future in as_completed(futures):
+                sink(future.result())
+                done += 1
+                bar.update(1)
+        except BrokenProcessPool:
+            raise WorkerDied(f"a worker process died (out of memory?) after {done} of {len(paths)} "
+                             "rows; the rows written are kept: run the same command again to resume") from None
+        finally:
+            pool.shutdown(wait=True, cancel_futures=True)
+    return done
+
+
+_maker: RowMaker | None = None
+
+
+def _init_worker(maker: RowMaker) -> None:
+    """Worker set-up: keep the maker; leave Ctrl-C and SIGTERM handling to the parent."""
+    global _maker
+    _maker = maker
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+def _work(path: str) -> dict[str, Any]:
+    assert _maker is not None
+    return _maker(path)
+
+
+@contextlib.contextmanager
+def _stop_on_sigterm() -> Iterator[None]:
+    def handler(signum: int, frame: object) -> None:
+        raise Interrupted(signum)
+
+    try:
+        previous = signal.signal(signal.SIGTERM, handler)
+    except ValueError:  # not the main thread: leave signals alone
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+class _NoBar:
+    def update(self, n: int) -> None:
+        pass
+
+
+@contextlib.contextmanager
+def _progress(total: int, enabled: bool) -> Iterator[Any]:
+    if not enabled:
+        yield _NoBar()
+        return
+    from tqdm import tqdm
+
+    with tqdm(total=total, unit="capture", file=sys.stderr, dynamic_ncols=True) as bar:
+        yield bar
+
+
+def _one_line(text: str) -> str:
+    return " ".join(text.split())
