@@ -180,7 +180,7 @@ def _budget_lines(c: np.ndarray, cov: np.ndarray, items: Sequence[InputQuantity]
     shared = cov @ c
     lines = []
     for k, item in enumerate(items):
-        if c[k] == 0.0 and item.standard_uncertainty == 0.0:
+        if c[k] == 0.0:
             continue
         share = float(c[k] * shared[k] / (u_c * u_c)) if u_c > 0 else 0.0
         lines.append(BudgetLine(item.name, item.value, item.unit, item.standard_uncertainty, float(c[k]),
