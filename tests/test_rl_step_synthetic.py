@@ -1,0 +1,173 @@
+"""rl-step on synthetic captures: API, diagnostics, and the estimator's statistics.
+
+References used as truth: the closed-form RL response (the circuit's ODE solution) in
+wavefit.synth.rl; the 10–90 % duration of a first-order step, tau·ln 9 (an identity of
+y = 1 − exp(−t/tau); common practice in pulse metrology, IEEE Std 181 reference levels);
+and the Cramér–Rao bound from the Fisher information of the fitted model
+(S. M. Kay, Fundamentals of Statistical Signal Processing: Estimation Theory, 1993, §3.9).
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import wavefit
+from wavefit.errors import AnalysisRefused
+from wavefit.fit.fisher import crlb, numerical_jacobian
+from wavefit.signal.edges import find_edges
+from wavefit.signal.levels import StateLevels
+from wavefit.synth.rl import rl_square_wave
+from wavefit.synth.scope import ScopeModel
+
+L, DCR, RS, RSRC = 220e-6, 1.0, 10.0, 50.0
+TAU = L / (RSRC + DCR + RS)
+SENSE_ONLY = {"method": "rl-step", "columns": {"time": "time", "sense": "sense"},
+              "parts": {"sense_resistor": "10 ohm", "source_resistance": "50 ohm", "dut_resistance": "1 ohm"},
+              "instrument": {"timebase": "±0 ppm", "vertical_gain": "±0%"}}
+
+
+def frame(t, sense, drive=None) -> pd.DataFrame:
+    data = {"time": t, "sense": sense}
+    if drive is not None:
+        data["drive"] = drive
+    return pd.DataFrame(data)
+
+
+def test_ten_ninety_duration_is_tau_ln9():
+    # identity of the first-order step: t90 − t10 = tau·ln 9 (common practice; IEEE Std 181 levels)
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 1.0, TAU / 500, 30 * TAU, delay=3 * TAU)
+    edges = find_edges(t, s, levels=StateLevels(0.0, RS / (RSRC + DCR + RS)))
+    assert len(edges) == 1
+    assert edges[0].duration == pytest.approx(TAU * math.log(9.0), rel=1e-4)
+    assert edges[0].t0 == pytest.approx(3 * TAU, abs=TAU / 500)
+
+
+def test_dataframe_and_dict_with_exact_parts():
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 100 * TAU)
+    s = ScopeModel(noise_rms=1e-4).apply(s, np.random.default_rng(5))
+    result = wavefit.analyze(frame(t, s), SENSE_ONLY)
+    assert abs(result.value("L") / L - 1) < 0.003
+    assert result.quantities["R"].value == 1.0 and result.quantities["R"].standard_uncertainty == 0.0
+    assert result.fit["edges_fitted"] == 5
+    assert result.value("I_final") == pytest.approx(1.0 / (RSRC + DCR + RS), rel=0.003)
+    assert result.value("E") == pytest.approx(result.value("L") * result.value("I_final") ** 2 / 2, rel=1e-12)
+    assert {"tau_rising", "tau_falling", "tau_per_edge_spread"} <= set(result.fit)
+    assert result.to_dict()["method"] == "rl-step"
+
+
+def test_two_channel_independent_of_generator_resistance():
+    # the same inductor driven from 50 ohm and from 5 ohm: the drive channel removes R_source
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense", "drive": "drive"},
+             "parts": {"sense_resistor": "10 ohm"}, "instrument": {"vertical_gain": "±0%"}}
+    values = []
+    for rsrc in (50.0, 5.0):
+        tau = L / (rsrc + DCR + RS)
+        t, d, s = rl_square_wave(L, DCR, RS, rsrc, 1.0, 40 * tau, tau / 40, 100 * tau)
+        rng = np.random.default_rng(2)
+        r = wavefit.analyze(frame(t, ScopeModel(noise_rms=1e-4).apply(s, rng),
+                                  ScopeModel(noise_rms=1e-4).apply(d, rng)), setup)
+        assert abs(r.value("R") - DCR) <= r.quantities["R"].expanded_uncertainty
+        values.append(r.value("L"))
+    assert values[0] == pytest.approx(L, rel=0.003) and values[1] == pytest.approx(L, rel=0.003)
+
+
+def test_no_transition_is_refused_with_exit_4(tmp_path):
+    t = np.arange(5000) * 1e-8
+    s = ScopeModel(noise_rms=1e-3).apply(np.zeros_like(t), np.random.default_rng(0))
+    with pytest.raises(AnalysisRefused):
+        wavefit.analyze(frame(t, s), SENSE_ONLY)
+    csv = tmp_path / "flat.csv"
+    frame(t, s).to_csv(csv, index=False)
+    toml = tmp_path / "setup.toml"
+    toml.write_text('method = "rl-step"\n[columns]\ntime = "time"\nsense = "sense"\n[parts]\n'
+                    'sense_resistor = "10 ohm"\nsource_resistance = "50 ohm"\ndut_resistance = "1 ohm"\n')
+    from wavefit.cli import main
+
+    assert main(["analyze", str(csv), "--setup", str(toml)]) == 4
+
+
+def test_clipped_trace_warns():
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 100 * TAU)
+    top = 0.8 * s.max()
+    clipped = ScopeModel(noise_rms=1e-3, bits=8, full_scale=(-0.01, top)).apply(s, np.random.default_rng(1))
+    result = wavefit.analyze(frame(t, clipped), SENSE_ONLY)
+    assert any("clipped" in w for w in result.warnings)
+
+
+def test_unclipped_trace_does_not_warn():
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 100 * TAU)
+    ok = ScopeModel(noise_rms=1e-3, bits=8).apply(s, np.random.default_rng(1))
+    result = wavefit.analyze(frame(t, ok), SENSE_ONLY)
+    assert not any("clipped" in w for w in result.warnings)
+
+
+def test_too_few_samples_per_tau_warns():
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 6, 100 * TAU)
+    s = ScopeModel(noise_rms=1e-4).apply(s, np.random.default_rng(3))
+    result = wavefit.analyze(frame(t, s), SENSE_ONLY)
+    assert any("samples per tau" in w for w in result.warnings)
+
+
+def test_short_record_after_edge_warns():
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 1.0, TAU / 40, 6 * TAU, delay=3 * TAU)
+    s = ScopeModel(noise_rms=1e-4).apply(s, np.random.default_rng(4))
+    result = wavefit.analyze(frame(t, s), SENSE_ONLY)
+    assert any("less than 5 tau" in w for w in result.warnings)
+
+
+def test_rising_and_falling_disagreement_warns():
+    # falling edges relax 5 % slower than rising ones (as with a diode in the loop)
+    dt, half = TAU / 40, 20 * TAU
+    t = np.arange(int(100 * TAU / dt)) * dt
+    i_hi = 1.0 / (RSRC + DCR + RS)
+    phase = np.mod(t - 4 * TAU, 2 * half)
+    rising = (phase < half) & (t >= 4 * TAU)
+    s = np.where(t < 4 * TAU, 0.0, np.where(rising, i_hi * (1 - np.exp(-phase / TAU)),
+                                             i_hi * np.exp(-(phase - half) / (1.05 * TAU)))) * RS
+    s = ScopeModel(noise_rms=1e-4).apply(s, np.random.default_rng(6))
+    result = wavefit.analyze(frame(t, s), SENSE_ONLY)
+    assert any("rising and falling" in w for w in result.warnings)
+
+
+def _monte_carlo(correlation: float, trials: int):
+    dt = TAU / 40
+    t, _, clean = rl_square_wave(L, DCR, RS, RSRC, 1.0, 1.0, dt, 25 * TAU, delay=5 * TAU)
+    amp = clean.max()
+    noise = amp / 100.0  # 40 dB
+    rng = np.random.default_rng(11)
+    taus, us, covered = [], [], 0
+    start = None
+    for _ in range(trials):
+        y = ScopeModel(noise_rms=noise, correlation_samples=correlation).apply(clean, rng)
+        r = wavefit.analyze(frame(t, y), SENSE_ONLY)
+        q = r.quantities["tau"]
+        taus.append(q.value)
+        covered += abs(q.value - TAU) <= q.expanded_uncertainty
+        start = r.fit["edges"][0]["window_start"]
+    return np.array(taus), covered / trials, t, start, amp, noise
+
+
+def test_monte_carlo_white_noise_efficiency_and_coverage():
+    taus, coverage, t, start, amp, noise = _monte_carlo(0, 120)
+    tw = t[t >= start - 1e-15]
+
+    def model(theta):  # the fitted model over the same window: final + coef·exp(−(t − t_ref)/tau)
+        return theta[0] + theta[1] * np.exp(-(tw - tw[0]) / theta[2])
+
+    coef = -amp * math.exp(-(tw[0] - 5 * TAU) / TAU)
+    bound = crlb(numerical_jacobian(model, np.array([amp, coef, TAU])), sigma=noise)[2, 2]
+    efficiency = bound / np.var(taus, ddof=1)
+    assert efficiency > 0.75, efficiency  # loose: 120 trials give ±13 % on a variance
+    assert abs(np.mean(taus) - TAU) < 3 * np.std(taus) / math.sqrt(taus.size)
+    assert 0.88 <= coverage <= 1.0, coverage  # nominal 95.45 %, loose for 120 trials
+
+
+@pytest.mark.xfail(strict=True, reason="known gap, left to the estimator-quality issue: with noise "
+                   "correlated over ~10 samples the AR + prewhitened-HAC covariance still reports about "
+                   "2/3 of the observed scatter of tau (coverage near 80 %)")
+def test_monte_carlo_band_limited_noise_coverage():
+    _, coverage, *_ = _monte_carlo(10, 80)
+    assert 0.85 <= coverage <= 1.0, coverage
