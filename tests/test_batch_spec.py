@@ -1,0 +1,96 @@
+"""Spec files: limit grammar, decision rule, errors that name what is wrong."""
+from __future__ import annotations
+
+import pytest
+
+from wavefit.batch.spec import load_spec, parse_limit, parse_spec
+from wavefit.errors import SetupError
+
+
+def test_tolerance_gives_symmetric_bounds_in_si():
+    limit = parse_limit("L", "47 uH ±5%")
+    assert limit.lower == pytest.approx(44.65e-6, rel=1e-12)
+    assert limit.upper == pytest.approx(49.35e-6, rel=1e-12)
+    assert limit.unit == "H"
+
+
+def test_absolute_tolerance_and_ppm():
+    absolute = parse_limit("L", "47 uH ±2 uH")
+    assert (absolute.lower, absolute.upper) == (pytest.approx(45e-6), pytest.approx(49e-6))
+    ppm = parse_limit("f0", "1 MHz +/- 500 ppm")
+    assert (ppm.lower, ppm.upper) == (pytest.approx(999_500.0), pytest.approx(1_000_500.0))
+
+
+@pytest.mark.parametrize("text, lower, upper, unit", [
+    ("<= 0.15 ohm", None, 0.15, "ohm"),
+    ("≤ 150 mohm", None, 0.15, "ohm"),
+    (">= 40", 40.0, None, ""),
+    (">= 2 MHz", 2e6, None, "Hz"),
+    ("44 uH .. 50 uH", 44e-6, 50e-6, "H"),
+    ("30 .. 60", 30.0, 60.0, ""),
+])
+def test_bounds_and_ranges(text, lower, upper, unit):
+    limit = parse_limit("x", text)
+    assert limit.lower == (pytest.approx(lower) if lower is not None else None)
+    assert limit.upper == (pytest.approx(upper) if upper is not None else None)
+    assert limit.unit == unit
+
+
+@pytest.mark.parametrize("text, fragment", [
+    ("±2 uH", "no nominal"),
+    ("50 uH .. 44 uH", "empty interval"),
+    ("44 .. 50 uH", "unit on both ends"),
+    ("47 uH ±2", "has no unit"),
+    ("47 uH ±2 ohm", "differs"),
+    ("about 47 uH", "cannot read"),
+    ("47 uH ±0%", "positive"),
+])
+def test_bad_limits_say_what_is_wrong(text, fragment):
+    with pytest.raises(SetupError, match=fragment):
+        parse_limit("L", text)
+
+
+def test_number_instead_of_text_is_refused():
+    with pytest.raises(SetupError, match="as text"):
+        parse_limit("Q", 40)
+
+
+def test_decision_rules():
+    simple = parse_spec({"limits": {"Q": ">= 40"}})
+    assert simple.rule == "simple" and simple.guard_factor == 0.0
+    guard = parse_spec({"limits": {"Q": ">= 40"}, "decision": {"rule": "guard-band"}})
+    assert guard.guard_factor == 1.0  # ILAC-G8 §4.2.3: w = U by default
+    wide = parse_spec({"limits": {"Q": ">= 40"}, "decision": {"rule": "guard-band", "guard_factor": 1.5}})
+    assert wide.guard_factor == 1.5
+
+
+@pytest.mark.parametrize("data, fragment", [
+    ({"limits": {"Q": ">= 40"}, "limts": {}}, "unknown spec key 'limts'"),
+    ({"limits": {"Q": ">= 40"}, "decision": {"rule": "simple", "gaurd": 1}}, "'gaurd'"),
+    ({"limits": {"Q": ">= 40"}, "decision": {"rule": "strict"}}, "unknown decision rule"),
+    ({"limits": {"Q": ">= 40"}, "decision": {"guard_factor": 2}}, "needs rule"),
+    ({"limits": {"Q": ">= 40"}, "decision": {"rule": "guard-band", "guard_factor": -1}}, ">= 0"),
+    ({"limits": {}}, "empty"),
+])
+def test_bad_spec_files(data, fragment):
+    with pytest.raises(SetupError, match=fragment):
+        parse_spec(data)
+
+
+def test_limit_on_a_quantity_the_method_does_not_report():
+    spec = parse_spec({"limits": {"Q": ">= 40"}}, source="spec.toml")
+    with pytest.raises(SetupError, match="reports only: L, R"):
+        spec.check_quantities(("L", "R"), "rl-step")
+
+
+def test_load_spec_from_toml(tmp_path):
+    path = tmp_path / "spec.toml"
+    path.write_text('[limits]\nL = "47 uH ±5%"\nR = "<= 0.15 ohm"\n[decision]\nrule = "guard-band"\n',
+                    encoding="utf-8")
+    spec = load_spec(path)
+    assert set(spec.limits) == {"L", "R"} and spec.rule == "guard-band"
+    path.write_text("[limits\n", encoding="utf-8")
+    with pytest.raises(SetupError, match="not valid TOML"):
+        load_spec(path)
+    with pytest.raises(SetupError, match="cannot read spec file"):
+        load_spec(tmp_path / "missing.toml")

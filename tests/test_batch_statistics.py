@@ -1,0 +1,60 @@
+"""Lot statistics: counts, yield, mean/s/min/max and process capability indices."""
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from wavefit.batch.spec import parse_limit
+from wavefit.batch.statistics import capability, quantity_statistics, summarize
+
+
+def test_capability_indices_follow_the_handbook_definitions():
+    # NIST/SEMATECH e-Handbook §6.1.6: Cp = (USL-LSL)/(6s), Cpk = min(USL-mean, mean-LSL)/(3s).
+    # Hand values USL = 20, LSL = 8, mean = 16, s = 2 (the handbook's worked example, from memory):
+    # Cp = 12/12 = 1.00, Cpk = min(4, 8)/6 = 0.667.
+    cp, cpk = capability(16.0, 2.0, 8.0, 20.0)
+    assert cp == pytest.approx(1.0)
+    assert cpk == pytest.approx(4.0 / 6.0)
+
+
+def test_one_sided_capability():
+    # Cpu = (USL - mean)/(3s) with an upper limit only, Cpl = (mean - LSL)/(3s) with a lower one (§6.1.6)
+    assert capability(0.10, 0.01, None, 0.15) == (None, pytest.approx(5.0 / 3.0))
+    assert capability(55.0, 5.0, 40.0, None) == (None, pytest.approx(1.0))
+    assert capability(1.0, 0.0, 0.0, 2.0) == (None, None)  # no spread: the index is undefined
+
+
+def test_mean_and_sample_standard_deviation():
+    # NIST StRD univariate "NumAcc1" (values and certified results from memory; checked by hand):
+    # 10000001, 10000003, 10000002 -> mean 10000002, s = 1 (n - 1 in the denominator)
+    stats = quantity_statistics("x", [10000001.0, 10000003.0, 10000002.0], parse_limit("x", "0 .. 2e7"))
+    assert stats.mean == 10000002.0
+    assert stats.std == pytest.approx(1.0, rel=1e-12)
+    assert (stats.minimum, stats.maximum, stats.n) == (10000001.0, 10000003.0, 3)
+
+
+def test_summary_counts_yield_and_skips_error_rows():
+    limit = parse_limit("L", "100 uH ±10%")
+    rows = [{"verdict": "pass", "L": 100e-6}, {"verdict": "pass", "L": 102e-6},
+            {"verdict": "conditional pass", "L": 109e-6}, {"verdict": "fail", "L": 115e-6},
+            {"verdict": "error", "L": None}]
+    summary = summarize(rows, {"L": limit})
+    assert summary.total == 5
+    assert summary.counts == {"pass": 2, "conditional pass": 1, "conditional fail": 0, "fail": 1, "error": 1}
+    assert summary.yield_ == pytest.approx(2 / 4)            # passes over analysed (non-error) rows
+    assert summary.yield_with_conditional == pytest.approx(3 / 4)
+    stats = summary.quantities["L"]
+    values = [100e-6, 102e-6, 109e-6, 115e-6]
+    mean = sum(values) / 4
+    s = math.sqrt(sum((v - mean) ** 2 for v in values) / 3)
+    assert stats.n == 4 and stats.mean == pytest.approx(mean) and stats.std == pytest.approx(s)
+    assert stats.cpk == pytest.approx(min(110e-6 - mean, mean - 90e-6) / (3 * s))
+    assert summary.to_dict()["quantities"]["L"]["cp"] == pytest.approx(20e-6 / (6 * s))
+
+
+def test_summary_of_a_lot_without_analysed_parts():
+    summary = summarize([{"verdict": "error"}], {"L": parse_limit("L", "100 uH ±10%")})
+    assert summary.yield_ is None
+    data = summary.to_dict()
+    assert data["quantities"]["L"]["n"] == 0 and data["quantities"]["L"]["mean"] is None
