@@ -39,7 +39,7 @@ _QUANTITY = re.compile(
     r"^\s*(?P<number>[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)\s*(?P<unit>\S*)\s*$"
 )
 _MAX_KEY_CHARS = 40
-_MAX_KEY_WORDS = 5
+_MAX_KEY_WORDS = 4
 _SAME = 1e-6
 
 
@@ -147,8 +147,26 @@ def split_key_value(text: str, sep: str) -> tuple[str, str] | None:
         if _is_key(key) and value:
             return key, value
     match = _WORDS_AND_NUMBER.match(text)
-    if match and _is_key(match["key"]):
+    if match and _is_key(match["key"]) and _names_a_quantity(match["key"], match["value"]):
         return match["key"].strip(), match["value"]
+    return None
+
+
+def _names_a_quantity(key: str, value: str) -> bool:
+    """For ``words number`` lines: the words are a time key or the number has a known unit."""
+    unit = _QUANTITY.match(value)
+    return _key_kind(key) is not None or bool(unit and unit["unit"] and parse_unit(unit["unit"]))
+
+
+def _key_kind(key: str) -> str | None:
+    """``"start"``, ``"interval"``, ``"rate"`` or None for a preamble key (a unit in it ignored)."""
+    name = re.sub(r"[^a-z0-9]", "", parse_header(key).name.lower())
+    if name in _START_KEYS:
+        return "start"
+    if name in _INTERVAL_KEYS:
+        return "interval"
+    if name in _RATE_KEYS:
+        return "rate"
     return None
 
 
@@ -187,14 +205,11 @@ def _time_quantity(key: str, value: str) -> tuple[str | None, float | None]:
     a rate (``Hz``, ``Sa/s``) is turned into an interval. Returns ``(kind, None)``
     when the key names a time quantity but the value cannot be read.
     """
-    head = parse_header(key)
-    name = re.sub(r"[^a-z0-9]", "", head.name.lower())
-    if name in _START_KEYS:
-        kind = "start"
-    elif name in _INTERVAL_KEYS or name in _RATE_KEYS:
-        kind = "interval"
-    else:
+    key_kind = _key_kind(key)
+    if key_kind is None:
         return None, None
+    kind = "start" if key_kind == "start" else "interval"
+    head = parse_header(key)
     match = _QUANTITY.match(value)
     if match is None:
         return kind, None
@@ -203,7 +218,7 @@ def _time_quantity(key: str, value: str) -> tuple[str | None, float | None]:
     parsed = parse_unit(unit) if unit else ((head.unit, head.scale) if head.unit else None)
     if (unit and parsed is None) or not math.isfinite(number):
         return kind, None
-    base, scale = parsed if parsed is not None else ("Hz" if name in _RATE_KEYS else "s", 1.0)
+    base, scale = parsed if parsed is not None else ("Hz" if key_kind == "rate" else "s", 1.0)
     if base == "s":
         seconds = number * scale
     elif base == "Hz" and kind == "interval" and number > 0:

@@ -29,6 +29,8 @@ _DIGIT_SAMPLES = 2000
 _ROUNDING_SLACK = 0.6
 # Printed coarser than half an interval, time stamps cannot show whether samples are missing.
 _COARSEST_RESOLUTION = 0.5
+# Coarse stamps disturb many intervals; a few bad ones are a real sampling problem.
+_MANY_DEVIATIONS = 0.01
 
 
 @dataclass(frozen=True)
@@ -91,18 +93,8 @@ def axis_from_column(
             f"the axis was rebuilt as a uniform grid fitted to it (largest shift {shift:.2g} s)",
         ))
     if deviation[worst] > MAX_INTERVAL_DEVIATION:
-        off = float(steps[worst])
-        coarse = (
-            f" (its time stamps have only about {resolution:.2g} s resolution: export more "
-            "digits, or pass a sample interval to ignore the column)"
-            if resolution >= _COARSEST_RESOLUTION * dt
-            else ""
-        )
         raise CaptureError(
-            f"{source}, {where(worst + 1)}: sampling is not uniform: the interval to this row is "
-            f"{off:.6g} s, {100 * deviation[worst]:.3g} % away from the median {dt:.6g} s "
-            f"(limit {100 * MAX_INTERVAL_DEVIATION:g} %); resample the capture to a uniform grid"
-            f"{coarse}"
+            _non_uniform_message(steps, dt, deviation, worst, resolution, where, source)
         )
     return TimeAxis(time, dt, (
         f"time column {header!r}: the sample intervals jitter by {100 * jitter:.2g} % rms "
@@ -124,6 +116,34 @@ def _not_increasing_message(
     return (
         f"{source}, {where(row)}: time in column {header!r} {what}; the time column must "
         "increase strictly; sort the capture, or pass a sample interval to ignore the column"
+    )
+
+
+def _non_uniform_message(
+    steps: np.ndarray,
+    dt: float,
+    deviation: np.ndarray,
+    worst: int,
+    resolution: float,
+    where: Callable[[int], str],
+    source: str,
+) -> str:
+    """Message for the largest interval deviation, with a hint at missing samples or coarse stamps."""
+    off = float(steps[worst])
+    ratio = off / dt
+    hint = ""
+    if round(ratio) >= 2 and abs(ratio - round(ratio)) < MAX_INTERVAL_DEVIATION * round(ratio):
+        hint = f" (about {round(ratio)} intervals: samples missing?)"
+    deviating = int(np.count_nonzero(deviation > MAX_INTERVAL_DEVIATION))
+    if resolution >= _COARSEST_RESOLUTION * dt and deviating > _MANY_DEVIATIONS * steps.size:
+        hint = (
+            f" (its time stamps have only about {resolution:.2g} s resolution: export more "
+            "digits, or pass a sample interval to ignore the column)"
+        )
+    return (
+        f"{source}, {where(worst + 1)}: sampling is not uniform: the interval to this row is "
+        f"{off:.6g} s, {100 * deviation[worst]:.3g} % away from the median {dt:.6g} s{hint} "
+        f"(limit {100 * MAX_INTERVAL_DEVIATION:g} %); resample the capture to a uniform grid"
     )
 
 

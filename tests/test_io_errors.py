@@ -1,0 +1,256 @@
+"""Broken captures give one CaptureError with a one-line message saying what was found and what to do."""
+from __future__ import annotations
+
+import gzip
+import zipfile
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from wavefit.errors import CaptureError
+from wavefit.io import capture_from_frame, read_capture
+
+
+def _rows(n: int, dt: float = 1e-8, sep: str = ",") -> list[str]:
+    return [f"{i * dt:.10e}{sep}{np.sin(i / 7):.6f}{sep}{np.cos(i / 5):.6f}" for i in range(n)]
+
+
+def _write(tmp_path: Path, content: str | bytes, name: str = "bad.csv") -> Path:
+    path = tmp_path / name
+    path.write_bytes(content.encode() if isinstance(content, str) else content)
+    return path
+
+
+def _message(path: Path | str, **options: object) -> str:
+    with pytest.raises(CaptureError) as caught:
+        read_capture(path, **options)
+    message = str(caught.value)
+    assert "\n" not in message and message.strip() == message
+    return message
+
+
+HEADER = "Time (s),CH1 (V),CH2 (V)"
+
+
+def test_empty_file(tmp_path: Path) -> None:
+    assert "is empty" in _message(_write(tmp_path, b""))
+
+
+def test_blank_lines_only(tmp_path: Path) -> None:
+    assert "only blank lines" in _message(_write(tmp_path, "\n \r\n\t\n"))
+
+
+def test_binary_file_with_nul_bytes(tmp_path: Path) -> None:
+    data = bytes(range(256)) * 40
+    assert "looks binary" in _message(_write(tmp_path, data, "scope.bin"))
+
+
+def test_binary_file_without_nul_bytes(tmp_path: Path) -> None:
+    data = np.random.default_rng(0).integers(1, 256, 4000, dtype=np.uint8).tobytes()
+    assert "looks binary" in _message(_write(tmp_path, data))
+
+
+def test_zip_archive_is_named(tmp_path: Path) -> None:
+    path = tmp_path / "capture.zip"
+    with zipfile.ZipFile(path, "w") as archive:
+        archive.writestr("capture.csv", "\n".join([HEADER, *_rows(50)]))
+    assert "zip archive" in _message(path)
+
+
+def test_damaged_gzip(tmp_path: Path) -> None:
+    data = gzip.compress("\n".join([HEADER, *_rows(3000)]).encode())
+    assert "damaged gzip" in _message(_write(tmp_path, data[: len(data) // 2], "cut.csv.gz"))
+
+
+def test_missing_file(tmp_path: Path) -> None:
+    assert "does not exist" in _message(tmp_path / "nowhere.csv")
+
+
+def test_directory(tmp_path: Path) -> None:
+    assert "not a file" in _message(tmp_path)
+
+
+def test_header_only(tmp_path: Path) -> None:
+    message = _message(_write(tmp_path, HEADER + "\n"))
+    assert "no data rows" in message and "header line only" in message
+
+
+def test_text_only(tmp_path: Path) -> None:
+    assert "no data rows" in _message(_write(tmp_path, "Exported capture\nnothing was recorded\n"))
+
+
+def test_too_few_rows(tmp_path: Path) -> None:
+    message = _message(_write(tmp_path, "\n".join([HEADER, *_rows(10)])))
+    assert "only 10 data rows" in message and "at least 16" in message
+
+
+def test_single_column_without_time(tmp_path: Path) -> None:
+    content = "\n".join(["CH1 (V)", *[f"{np.sin(i):.5f}" for i in range(100)]])
+    message = _message(_write(tmp_path, content))
+    assert "single column" in message and "--sample-interval" in message and "sample_interval" in message
+
+
+def test_headerless_single_column_without_time(tmp_path: Path) -> None:
+    message = _message(_write(tmp_path, "\n".join(f"{np.sin(i):.5f}" for i in range(100))))
+    assert "single column" in message and "sample interval" in message
+
+
+def test_columns_without_time(tmp_path: Path) -> None:
+    content = "\n".join(["CH1 (V),CH2 (V)", *[f"{np.sin(i):.4f},{np.cos(i):.4f}" for i in range(100)]])
+    message = _message(_write(tmp_path, content))
+    assert "no time column" in message and "'CH1 (V)'" in message and "--sample-interval" in message
+
+
+def test_headerless_columns_without_time(tmp_path: Path) -> None:
+    message = _message(_write(tmp_path, "\n".join(_rows(100))))
+    assert "no header row" in message and "--sample-interval" in message
+
+
+def test_all_nan_column(tmp_path: Path) -> None:
+    rows = [f"{i * 1e-8:.10e},{np.sin(i):.5f},NaN" for i in range(100)]
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "'CH2 (V)'" in message and "has no numbers" in message
+
+
+def test_empty_column(tmp_path: Path) -> None:
+    rows = [f"{i * 1e-8:.10e},,{np.sin(i):.5f}" for i in range(100)]
+    assert "'CH1 (V)' has no numbers" in _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+
+
+def test_too_many_missing_cells(tmp_path: Path) -> None:
+    rows = _rows(2000)
+    for k in (100, 700, 1300):
+        rows[k] = rows[k].rsplit(",", 1)[0] + ","
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "'CH2 (V)' has 3 empty" in message and "line 102" in message and "at most 2" in message
+
+
+def test_time_going_backwards(tmp_path: Path) -> None:
+    rows = _rows(300)
+    rows[150], rows[151] = rows[151], rows[150]
+    message = _message(_write(tmp_path, "\n".join(["Note,swapped rows", HEADER, *rows])))
+    assert "line 154" in message and "goes backwards" in message
+
+
+def test_time_repeating(tmp_path: Path) -> None:
+    rows = _rows(300)
+    rows[200] = rows[199]
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 202" in message and "repeats" in message
+
+
+def test_time_going_backwards_after_blank_lines(tmp_path: Path) -> None:
+    rows = _rows(300)
+    rows[250], rows[251] = rows[251], rows[250]
+    body = [*rows[:100], "", "", *rows[100:]]
+    message = _message(_write(tmp_path, "\n".join([HEADER, *body])))
+    assert "line 255" in message  # header, 100 rows, 2 blank lines, then row 251
+
+
+def test_text_in_data_near_the_top(tmp_path: Path) -> None:
+    rows = _rows(300)
+    rows[8] = rows[8].replace(rows[8].split(",")[1], "overload", 1)
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 10" in message and "'overload'" in message
+
+
+def test_text_row_in_data_near_the_top(tmp_path: Path) -> None:
+    rows = _rows(300)
+    rows[5] = "--- trigger ---"
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 7" in message and "trigger" in message
+
+
+def test_text_in_data_far_below_the_sniffed_lines(tmp_path: Path) -> None:
+    rows = _rows(20000)
+    rows[15000] = rows[15000].rsplit(",", 1)[0] + ",1.2.3"
+    message = _message(_write(tmp_path, "\n".join(["Sample interval,1e-8", HEADER, *rows])))
+    assert "line 15003" in message and "'1.2.3'" in message
+
+
+def test_text_in_gzip_data(tmp_path: Path) -> None:
+    rows = _rows(5000)
+    rows[4000] = "4e-05,#N/A?,0.5"
+    data = gzip.compress("\n".join([HEADER, *rows]).encode())
+    message = _message(_write(tmp_path, data, "bad.csv.gz"))
+    assert "line 4002" in message and "'#N/A?'" in message
+
+
+def test_row_with_extra_cells(tmp_path: Path) -> None:
+    rows = _rows(3000)
+    rows[2500] += ",7"
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 2502" in message and "4 cells" in message
+
+
+def test_value_beyond_the_header_columns(tmp_path: Path) -> None:
+    rows = [r + "," for r in _rows(3000)]
+    rows[2000] += "9"
+    message = _message(_write(tmp_path, "\n".join([HEADER + ",", *rows])))
+    assert "line 2002" in message and "beyond the 3 columns" in message
+
+
+def test_header_that_does_not_match_the_rows(tmp_path: Path) -> None:
+    rows = [f"{i * 1e-8:.10e},{np.sin(i):.5f}" for i in range(100)]
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 1" in message and "3 names" in message and "make the header and the rows agree" in message
+
+
+def test_non_uniform_sampling(tmp_path: Path) -> None:
+    rows = _rows(400)
+    del rows[300]
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "not uniform" in message and "line 302" in message and "limit 1 %" in message
+
+
+def test_time_column_with_a_non_time_unit(tmp_path: Path) -> None:
+    content = "\n".join(["Time (V),CH1 (V),CH2 (V)", *_rows(100)])
+    assert "not in seconds" in _message(_write(tmp_path, content))
+
+
+def test_time_column_with_an_unknown_unit(tmp_path: Path) -> None:
+    content = "\n".join(["Time (div),CH1 (V),CH2 (V)", *_rows(100)])
+    assert "'div', not in seconds" in _message(_write(tmp_path, content))
+
+
+def test_only_a_time_column(tmp_path: Path) -> None:
+    content = "\n".join(["Time (s)", *[f"{i * 1e-8:.10e}" for i in range(100)]])
+    assert "no signal column" in _message(_write(tmp_path, content))
+
+
+@pytest.mark.parametrize("value", [0.0, -1e-8, float("nan"), float("inf"), "1e-8", True])
+def test_bad_sample_interval_argument(tmp_path: Path, value: object) -> None:
+    path = _write(tmp_path, "\n".join([HEADER, *_rows(100)]))
+    assert "positive number of seconds" in _message(path, sample_interval=value)
+
+
+def test_frame_with_text_column() -> None:
+    frame = pd.DataFrame({"Time (s)": np.arange(20) * 1e-6, "CH1 (V)": ["1.0"] * 19 + ["high"]})
+    with pytest.raises(CaptureError, match=r"'CH1 \(V\)' is not numeric .*'high' at row 19"):
+        capture_from_frame(frame)
+
+
+def test_frame_time_backwards_names_the_row() -> None:
+    time = np.arange(40) * 1e-6
+    time[[10, 11]] = time[[11, 10]]
+    with pytest.raises(CaptureError, match="row 11: time in column 'Time' goes backwards"):
+        capture_from_frame(pd.DataFrame({"Time": time, "v": np.ones(40)}))
+
+
+def test_frame_unknown_time_column() -> None:
+    frame = pd.DataFrame({"a": np.ones(20), "b": np.ones(20)})
+    with pytest.raises(CaptureError, match="time column 'c' is not in <DataFrame>; its columns are: 'a', 'b'"):
+        capture_from_frame(frame, time_column="c")
+
+
+def test_frame_without_time() -> None:
+    frame = pd.DataFrame({"a": np.ones(20), "b": np.ones(20)})
+    with pytest.raises(CaptureError, match="no time column"):
+        capture_from_frame(frame)
+
+
+def test_empty_frame() -> None:
+    with pytest.raises(CaptureError, match="has no columns"):
+        capture_from_frame(pd.DataFrame())

@@ -1,0 +1,207 @@
+"""What the reader decides and reports: time source, metadata, filled cells, warnings, frames."""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from wavefit.io import capture_from_frame, read_capture
+from wavefit.io.timebase import printing_resolution
+
+N = 500
+DT = 1e-8
+
+
+def _write(tmp_path: Path, lines: list[str], name: str = "capture.csv") -> Path:
+    path = tmp_path / name
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def _signal(n: int = N) -> np.ndarray:
+    return np.sin(np.arange(n) / 11.0)
+
+
+def _rows(time: np.ndarray, values: np.ndarray, fmt: str = ".12g") -> list[str]:
+    return [f"{t:{fmt}},{v:.9f}" for t, v in zip(time, values)]
+
+
+def test_metadata_pairs_and_free_text(tmp_path: Path) -> None:
+    lines = [
+        "Instrument,bench scope", "Probe: 10X", "Operator = night shift",
+        "Captured after the second pulse, cold start", "Record length;500", "",
+        "Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal()),
+    ]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.metadata == {
+        "Instrument": "bench scope",
+        "Probe": "10X",
+        "Operator": "night shift",
+        "note1": "Captured after the second pulse, cold start",
+        "Record length": "500",
+    }
+    assert capture.warnings == ()
+
+
+def test_free_text_lines_become_notes(tmp_path: Path) -> None:
+    lines = ["Step response of L3", "recorded at 21 degrees", "CH1 (V)", *[f"{v:.6f}" for v in _signal()]]
+    capture = read_capture(_write(tmp_path, lines), sample_interval=DT)
+    assert capture.metadata == {"note1": "Step response of L3", "note2": "recorded at 21 degrees"}
+
+
+def test_time_column_is_used_with_its_start(tmp_path: Path) -> None:
+    time = -2e-6 + np.arange(N) * DT
+    capture = read_capture(_write(tmp_path, ["Time [us],CH1 [V]", *_rows(time * 1e6, _signal())]))
+    assert capture.time_column == "Time [us]"
+    assert capture.time[0] == pytest.approx(-2e-6, rel=1e-12)
+    assert capture.sample_interval == pytest.approx(DT, rel=1e-9)
+    assert [c.header for c in capture.channels] == ["CH1 [V]"]
+
+
+def test_start_time_from_preamble(tmp_path: Path) -> None:
+    lines = ["Sample interval,10 ns", "t0,-1 us", "CH1 (V)", *[f"{v:.6f}" for v in _signal()]]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.time[0] == pytest.approx(-1e-6)
+    assert capture.time[-1] == pytest.approx(-1e-6 + (N - 1) * DT)
+
+
+def test_argument_overrides_time_column_and_keeps_it_as_a_column(tmp_path: Path) -> None:
+    path = _write(tmp_path, ["Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())])
+    capture = read_capture(path, sample_interval=2e-8)
+    assert capture.sample_interval == 2e-8
+    assert capture.time_column is None
+    assert capture.time[-1] == pytest.approx((N - 1) * 2e-8)
+    assert [c.header for c in capture.channels] == ["Time (s)", "CH1 (V)"]
+    assert capture.channel(1).header == "CH1 (V)"
+    assert any("is not used as time axis" in w for w in capture.warnings)
+
+
+def test_argument_overrides_preamble_interval(tmp_path: Path) -> None:
+    lines = ["Sample interval,1e-8", "CH1 (V)", *[f"{v:.6f}" for v in _signal()]]
+    capture = read_capture(_write(tmp_path, lines), sample_interval=4e-9)
+    assert capture.sample_interval == 4e-9
+    assert any("overrides the preamble's 1e-08 s" in w for w in capture.warnings)
+
+
+def test_time_column_wins_over_a_disagreeing_preamble(tmp_path: Path) -> None:
+    lines = ["Sample interval,5e-9", "Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.sample_interval == pytest.approx(DT)
+    assert any("the time column is used" in w for w in capture.warnings)
+
+
+def test_agreeing_preamble_gives_no_warning(tmp_path: Path) -> None:
+    lines = ["Sample rate,100 MSa/s", "Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())]
+    assert read_capture(_write(tmp_path, lines)).warnings == ()
+
+
+def test_unreadable_preamble_interval_is_reported(tmp_path: Path) -> None:
+    lines = ["Sample interval,ten ns", "Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())]
+    capture = read_capture(_write(tmp_path, lines))
+    assert any("line 1" in w and "not readable" in w for w in capture.warnings)
+
+
+def test_time_per_division_is_not_a_sample_interval(tmp_path: Path) -> None:
+    lines = ["Time/div,1 us", "Vertical scale,0.5 V/div", "CH1 (V)", *[f"{v:.6f}" for v in _signal()]]
+    capture = read_capture(_write(tmp_path, lines), sample_interval=DT)
+    assert capture.metadata["Time/div"] == "1 us"
+    assert capture.warnings == ()
+
+
+def test_few_missing_cells_are_interpolated_and_reported(tmp_path: Path) -> None:
+    rows = _rows(np.arange(N) * DT, _signal())
+    rows[123] = rows[123].split(",")[0] + ","
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *rows]))
+    values = capture.channel("CH1").values
+    assert np.all(np.isfinite(values))
+    assert values[123] == pytest.approx((_signal()[122] + _signal()[124]) / 2, abs=1e-9)
+    (warning,) = capture.warnings
+    assert "line 125" in warning and "linear interpolation" in warning
+
+
+def test_missing_time_stamp_is_interpolated(tmp_path: Path) -> None:
+    rows = _rows(np.arange(N) * DT, _signal())
+    rows[40] = "NaN," + rows[40].split(",")[1]
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *rows]))
+    assert capture.time[40] == pytest.approx(40 * DT)
+    assert any("'Time (s)'" in w and "line 42" in w for w in capture.warnings)
+
+
+def test_unknown_unit_is_kept_and_reported(tmp_path: Path) -> None:
+    lines = ["Time (s),Probe (div),CH2 (V)", *[f"{i * DT:.12g},{v:.6f},{v:.6f}" for i, v in enumerate(_signal())]]
+    capture = read_capture(_write(tmp_path, lines))
+    probe = capture.channel("Probe")
+    assert (probe.unit, probe.scale) == ("div", 1.0)
+    np.testing.assert_allclose(probe.values, np.round(_signal(), 6))
+    assert any("'div' is not recognised" in w for w in capture.warnings)
+
+
+def test_small_jitter_is_a_warning(tmp_path: Path) -> None:
+    rng = np.random.default_rng(3)
+    time = np.arange(N) * DT + rng.normal(0, 1.5e-3 * DT, N)
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *_rows(time, _signal(), ".15e")]))
+    assert capture.sample_interval == pytest.approx(DT, rel=1e-3)
+    (warning,) = capture.warnings
+    assert "jitter" in warning and "% rms" in warning
+
+
+def test_coarsely_printed_time_is_rebuilt_as_a_grid(tmp_path: Path) -> None:
+    dt = 1.2345678e-9
+    time = 1e-4 + np.arange(4000) * dt
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *_rows(time, _signal(4000), ".7g")]))
+    assert capture.sample_interval == pytest.approx(dt, rel=1e-6)
+    np.testing.assert_allclose(np.diff(capture.time), dt, rtol=1e-5)
+    (warning,) = capture.warnings
+    assert "rebuilt as a uniform grid" in warning
+
+
+def test_printing_resolution_of_fixed_and_significant_formats() -> None:
+    time = 1e-4 + np.arange(1000) * 1.2345678e-9
+    fixed = np.array([float(f"{t:.12f}") for t in time])
+    significant = np.array([float(f"{t:.6e}") for t in time])
+    assert printing_resolution(fixed) == pytest.approx(1e-12)
+    assert printing_resolution(significant) == pytest.approx(1e-10)
+
+
+def test_body_beyond_the_sniffed_lines_is_read_whole(tmp_path: Path) -> None:
+    n = 30000
+    rows = _rows(np.arange(n) * DT, _signal(n))
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *rows]))
+    assert capture.rows == n
+    assert capture.channel(1).values[-1] == pytest.approx(_signal(n)[-1], abs=1e-9)
+
+
+def test_describe_is_json_ready(tmp_path: Path) -> None:
+    lines = ["Note,x", "Time (s),CH1 (mV)", *_rows(np.arange(N) * DT, _signal())]
+    described = read_capture(_write(tmp_path, lines)).describe()
+    assert json.loads(json.dumps(described)) == described
+    assert described["columns"][0]["unit"] == "V"
+    assert described["columns"][0]["max"] == pytest.approx(_signal().max() * 1e-3, rel=1e-8)
+
+
+def test_frame_with_time_column_and_units() -> None:
+    frame = pd.DataFrame({"Time (us)": np.arange(N) * 0.01, "CH1 (mV)": _signal(), "I (A)": _signal()})
+    capture = capture_from_frame(frame, source="bench")
+    assert capture.source == "bench"
+    assert capture.time_column == "Time (us)"
+    assert capture.sample_interval == pytest.approx(DT)
+    assert capture.channel("CH1").unit == "V"
+    np.testing.assert_allclose(capture.channel("CH1").values, _signal() * 1e-3)
+
+
+def test_frame_with_explicit_time_column_and_integer_labels() -> None:
+    frame = pd.DataFrame({0: np.arange(N) * DT, 1: _signal()})
+    capture = capture_from_frame(frame, time_column="0")
+    assert capture.time_column == "0"
+    assert [c.header for c in capture.channels] == ["1"]
+
+
+def test_frame_with_sample_interval() -> None:
+    frame = pd.DataFrame({"CH1": _signal(), "CH2": np.arange(N, dtype=np.int64)})
+    capture = capture_from_frame(frame, sample_interval=DT)
+    assert capture.time_column is None
+    assert capture.time[-1] == pytest.approx((N - 1) * DT)
+    assert capture.channel("CH2").values.dtype == np.float64
