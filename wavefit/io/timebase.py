@@ -79,9 +79,12 @@ def axis_from_column(
     if bad.size:
         raise CaptureError(_not_increasing_message(time, int(bad[0]) + 1, header, where, source))
     dt = float(np.median(steps))
-    deviation = np.abs(steps - dt) / dt
+    deviation = steps - dt  # signed for the rms below, then made relative in place
+    mean = float(deviation.mean())
+    jitter = math.sqrt(max(float(np.dot(deviation, deviation)) / deviation.size - mean * mean, 0.0)) / dt
+    np.abs(deviation, out=deviation)
+    deviation /= dt
     worst = int(np.argmax(deviation))
-    jitter = float(np.std(steps) / dt)
     if deviation[worst] <= MAX_INTERVAL_DEVIATION and jitter <= JITTER_WARNING:
         return TimeAxis(time, dt)
     grid, slope, shift = _fitted_grid(time)

@@ -1,0 +1,121 @@
+"""Write a large 3-column capture (time and two channels) and time ``read_capture`` on it.
+
+Prints the row count, the load time, and peak memory relative to the file
+size: the peak of allocations seen by tracemalloc (numpy arrays included;
+the C parser's own buffers are not traced) during the load, and the peak
+resident set size of a fresh process that only imports wavefit and loads.
+
+Usage::
+
+    python benchmarks/load_large_capture.py            # 10 million rows
+    python benchmarks/load_large_capture.py --rows 1e6 --keep DIR
+"""
+from __future__ import annotations
+
+import argparse
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+import tracemalloc
+from pathlib import Path
+
+import numpy as np
+
+from wavefit.io import read_capture
+
+_CHUNK_ROWS = 500_000
+
+
+def write_capture(path: Path, rows: int, dt: float = 1e-9) -> None:
+    """Write ``rows`` lines of ``time,CH1 (V),CH2 (A)`` in chunks, without building the whole text."""
+    with open(path, "w", encoding="ascii", newline="\n") as out:
+        out.write("Sample rate,1 GSa/s\nTime (s),CH1 (V),CH2 (A)\n")
+        for first in range(0, rows, _CHUNK_ROWS):
+            index = np.arange(first, min(first + _CHUNK_ROWS, rows))
+            t = index * dt
+            block = np.column_stack([t, np.sin(2e6 * np.pi * t), 1e-3 * np.cos(2e6 * np.pi * t)])
+            np.savetxt(out, block, fmt=["%.9e", "%.6e", "%.6e"], delimiter=",")
+
+
+def _status_bytes(field: str) -> int | None:
+    """A ``VmRSS``/``VmHWM`` figure from /proc/self/status in bytes (Linux), else None."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as status:
+            for line in status:
+                if line.startswith(field + ":"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        return None
+    return None
+
+
+def _reset_peak_rss() -> bool:
+    """Reset the kernel's peak-RSS mark of this process (Linux); False when not possible."""
+    try:
+        with open("/proc/self/clear_refs", "w", encoding="ascii") as refs:
+            refs.write("5")
+        return True
+    except OSError:
+        return False
+
+
+def _peak_rss_bytes() -> int:
+    """Peak resident set size: VmHWM on Linux, else ru_maxrss (KiB on Linux, bytes on macOS)."""
+    peak = _status_bytes("VmHWM")
+    if peak is not None:
+        return peak
+    maxrss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    return maxrss if sys.platform == "darwin" else maxrss * 1024
+
+
+def load(path: Path) -> None:
+    """Load ``path`` in this (fresh) process and print the figures."""
+    size = path.stat().st_size
+    rss_before = _status_bytes("VmRSS") or _peak_rss_bytes()
+    reset = _reset_peak_rss()
+    tracemalloc.start()
+    started = time.perf_counter()
+    capture = read_capture(path)
+    seconds = time.perf_counter() - started
+    _, heap_peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    rss_peak = _peak_rss_bytes()
+    arrays = capture.time.nbytes + sum(c.values.nbytes for c in capture.channels)
+    added = rss_peak - rss_before
+    print(f"rows                  {capture.rows:,}")
+    print(f"file size             {size / 1e6:,.1f} MB")
+    print(f"load time             {seconds:.2f} s ({size / 1e6 / seconds:,.0f} MB/s)")
+    print(f"result arrays         {arrays / 1e6:,.1f} MB ({arrays / size:.2f} x file size)")
+    print(f"tracemalloc peak      {heap_peak / 1e6:,.1f} MB ({heap_peak / size:.2f} x file size)")
+    print(f"RSS before load       {rss_before / 1e6:,.1f} MB (interpreter and imports)")
+    print(f"peak RSS during load  {rss_peak / 1e6:,.1f} MB (+{added / 1e6:,.1f} MB = "
+          f"{added / size:.2f} x file size{'' if reset else '; peak not reset, upper bound'})")
+    print(f"sample interval       {capture.sample_interval:.6g} s, warnings: {len(capture.warnings)}")
+
+
+def main(argv: list[str] | None = None) -> None:
+    """Write the capture, then load it in a fresh interpreter so its memory peak is its own."""
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--rows", type=float, default=10_000_000, help="data rows (default 1e7)")
+    parser.add_argument("--keep", type=Path, help="write the file into this folder and keep it")
+    parser.add_argument("--load", type=Path, help=argparse.SUPPRESS)
+    args = parser.parse_args(argv)
+    if args.load is not None:
+        load(args.load)
+        return
+    rows = int(args.rows)
+    with tempfile.TemporaryDirectory() as scratch:
+        folder = args.keep or Path(scratch)
+        folder.mkdir(parents=True, exist_ok=True)
+        path = folder / f"capture_{rows}.csv"
+        started = time.perf_counter()
+        write_capture(path, rows)
+        print(f"written in            {time.perf_counter() - started:.1f} s")
+        sys.stdout.flush()
+        subprocess.run([sys.executable, __file__, "--load", str(path)], check=True)
+
+
+if __name__ == "__main__":
+    main()
