@@ -1,0 +1,301 @@
+"""lc-ring: L, Q, loss resistance from the free ring of a tank with a known capacitor.
+
+The coil under test in parallel with a known capacitor forms a tank; a step
+through a feed resistor (or an interrupted current) makes it ring. The
+recorded tank voltage is fitted with a damped sinusoid
+(:mod:`wavefit.fit.damped_sine`), whose pole pair s = −alpha ± j·w_d gives the
+measurement function (derivation and what it neglects in docs/method-lc-ring.md):
+
+* w0 = √(w_d² + alpha²), f0 = w0/2π, fd = w_d/2π, Q_loaded = w0/(2·alpha);
+* C = C_tank + C_stray; the known parallel load damps at g/2, g = 1/(R_load·C),
+  so the coil's own damping is alpha_c = alpha − g/2 and Q = w0/(2·alpha_c);
+* the tank's characteristic equation (series loss r, parallel conductance G) is
+  s² + (r/L + G/C)·s + (1 + r·G)/(L·C) = 0, so 1/(L·C) = w0² − Δ with
+  Δ = x·(g + 2·alpha_c − x), x = r/L the part of the coil's damping that is series
+  loss. Δ is 0 for purely series or purely parallel loss and at most Δ_max
+  otherwise; option ``coil_loss`` picks "series", "parallel", or "unknown"
+  (default: Δ = Δ_max/2 with a rectangular distribution over [0, Δ_max]);
+* L = 1/((w0² − Δ)·C), R = w0·L/Q = 2·alpha_c·L (equivalent series loss at f0).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Mapping
+
+import numpy as np
+from scipy import ndimage
+
+from ..errors import AnalysisRefused, SetupError
+from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring
+from ..io.capture import Capture
+from ..results import AnalysisResult, TracePlot
+from ..setup import Setup
+from ..signal.clipping import longest_run_at_extremes, model_exceeds_record
+from ..uncertainty import InputSet, propagate
+from ..values import PartValue, parse_number_with_unit
+from . import register
+from .base import Method, PartSpec
+
+UNITS = {"f0": "Hz", "fd": "Hz", "alpha": "1/s", "tau_decay": "s", "Q_loaded": "", "Q": "", "L": "H", "R": "ohm"}
+COIL_LOSS = ("unknown", "series", "parallel")
+#: |f0 early − f0 late| above this many combined standard uncertainties is flagged.
+DRIFT_Z = 4.0
+
+
+@dataclass(frozen=True)
+class RingMeasurement:
+    """One fitted ring with its diagnostics, ready for a measurement function."""
+
+    ring: DampedSineFit
+    time: np.ndarray
+    data: np.ndarray
+    unit: str
+    info: dict[str, Any]
+    warnings: tuple[str, ...]
+
+
+@register
+class LcRing(Method):
+    """Ring-down of a tank with a known capacitor: f0, Q, L and loss resistance."""
+
+    name = "lc-ring"
+    summary = "free ring of the coil with a known parallel capacitor: L, Q, R at f0"
+    roles = {"tank": True}
+    parts = {
+        "tank_capacitor": PartSpec("F", True, "the known capacitor in parallel with the coil"),
+        "stray_capacitance": PartSpec("F", False, "probe and fixture capacitance across the tank"),
+        "parallel_load": PartSpec("ohm", False, "resistance loading the tank: feed resistor parallel probe input"),
+    }
+    options = {"fit_start": None, "fit_end": None, "noise": "auto", "coil_loss": "unknown"}
+    quantities = ("f0", "fd", "alpha", "tau_decay", "Q_loaded", "Q", "L", "R")
+
+    def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
+        capture = captures[0]
+        meas = measure_ring(self, capture, setup)
+        coil_loss = coil_loss_option(self, setup)
+        inputs, present = ring_inputs(meas.ring, setup, setup.parts, coil_loss)
+        check_load_share(meas.ring, setup.parts)
+        prop = propagate(inputs, lambda v: ring_model(v, present, coil_loss), UNITS)
+        fit = dict(meas.info, coil_loss=coil_loss)
+        model = np.full_like(meas.data, np.nan)
+        model[meas.ring.start:meas.ring.stop] = meas.ring.evaluate(meas.time[meas.ring.start:meas.ring.stop])
+        plot = TracePlot(meas.time, (("tank", meas.unit, meas.data, model),))
+        return AnalysisResult(self.name, capture.source, prop.quantities, prop.budget, fit,
+                              meas.warnings, prop.correlation, plot)
+
+
+def coil_loss_option(method: Method, setup: Setup) -> str:
+    value = str(method.option(setup, "coil_loss"))
+    if value not in COIL_LOSS:
+        raise SetupError(f"{setup.source}: option coil_loss = {value!r}; valid: {', '.join(COIL_LOSS)}")
+    return value
+
+
+def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurement:
+    """Fit the ring in ``capture`` and check the fit's assumptions."""
+    channel = method.channel(capture, setup, "tank")
+    t = np.asarray(capture.time, dtype=float)
+    y = np.asarray(channel.values, dtype=float)
+    if not np.all(np.isfinite(y)):
+        raise AnalysisRefused(f"{capture.source}: the tank channel holds non-numeric or missing samples; "
+                              "remove them or export the capture again")
+    if y.size < 32:
+        raise AnalysisRefused(f"{capture.source}: {y.size} samples is too few for a ring fit; record at least 32")
+    noise = str(method.option(setup, "noise"))
+    if noise not in ("auto", "white"):
+        raise SetupError(f"{setup.source}: option noise = {noise!r}; valid: auto, white")
+    start = _time_option(method, setup, "fit_start", t)
+    stop = _time_option(method, setup, "fit_end", t)
+    try:
+        ring = fit_ring(t, y, start=start, stop=stop, noise=noise)
+    except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+        raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
+                              "check the [columns] tank entry and that the record holds the ring") from None
+    warnings = [f"fit: {w}" for w in ring.fit.warnings]
+    info = _checks(ring, t, y, capture.source, warnings, noise)
+    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings))
+
+
+def ring_inputs(ring: DampedSineFit, setup: Setup, parts: Mapping[str, PartValue],
+                coil_loss: str) -> tuple[InputSet, tuple[str, ...]]:
+    """Inputs of the measurement function: fit block, timebase, parts, loss split."""
+    inputs = InputSet()
+    values, cov = ring.fit.subset(("alpha", "w_d"))
+    inputs.add_correlated(("fit alpha", "fit w_d"), values, cov, ("1/s", "rad/s"), ring.fit.dof, "fit")
+    inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
+    present = []
+    for name in ("tank_capacitor", "stray_capacitance", "parallel_load"):
+        if name in parts:
+            inputs.add_part(name, parts[name])
+            present.append(name)
+    if coil_loss == "unknown":
+        # rectangular over the whole range [0, Δ_max] (JCGM 100:2008, 4.3.7)
+        inputs.add("coil loss split", 0.5, 0.5 / math.sqrt(3.0), "", "B")
+    return inputs, tuple(present)
+
+
+def ring_model(v: Mapping[str, Any], present: tuple[str, ...], coil_loss: str) -> dict[str, Any]:
+    """The measurement function of lc-ring (see the module docstring)."""
+    tb = v["timebase"]
+    alpha = v["fit alpha"] / tb
+    w_d = v["fit w_d"] / tb
+    w0 = (w_d ** 2 + alpha ** 2) ** 0.5
+    cap = v["tank_capacitor"] + (v["stray_capacitance"] if "stray_capacitance" in present else 0.0)
+    g = 1.0 / (v["parallel_load"] * cap) if "parallel_load" in present else 0.0
+    alpha_c = alpha - g / 2.0
+    w_lc2 = w0 ** 2 - loss_correction(alpha_c, g, coil_loss, v.get("coil loss split"))
+    inductance = 1.0 / (w_lc2 * cap)
+    return {
+        "f0": w0 / (2 * math.pi),
+        "fd": w_d / (2 * math.pi),
+        "alpha": alpha,
+        "tau_decay": 1.0 / alpha,
+        "Q_loaded": w0 / (2.0 * alpha),
+        "Q": w0 / (2.0 * alpha_c),
+        "L": inductance,
+        "R": 2.0 * alpha_c * inductance,
+    }
+
+
+def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> Any:
+    """Δ = w0² − 1/(L·C) for the coil-loss assumption (see the module docstring)."""
+    if coil_loss == "parallel":
+        return 0.0
+    if coil_loss == "series":
+        return 2.0 * alpha_c * g
+    nominal_g = float(getattr(g, "nominal_value", g))
+    nominal_a = float(getattr(alpha_c, "nominal_value", alpha_c))
+    d_max = (g + 2.0 * alpha_c) ** 2 / 4.0 if nominal_g <= 2.0 * nominal_a else 2.0 * alpha_c * g
+    return split * d_max
+
+
+def check_load_share(ring: DampedSineFit, parts: Mapping[str, PartValue]) -> None:
+    """Refuse Q when the known load explains (nearly) all of the damping."""
+    if "parallel_load" not in parts:
+        return
+    cap = parts["tank_capacitor"].value + (parts["stray_capacitance"].value if "stray_capacitance" in parts else 0.0)
+    load_alpha = 1.0 / (2.0 * parts["parallel_load"].value * cap)
+    share = load_alpha / ring.alpha
+    if share >= 0.95:
+        raise AnalysisRefused(
+            f"the parallel_load ({parts['parallel_load'].text}) explains {100 * share:.0f} % of the measured "
+            "damping, so the coil's own Q cannot be separated; check the load value or use a larger feed resistor")
+
+
+def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warnings: list[str],
+            noise: str) -> dict[str, Any]:
+    dt = ring.sample_interval
+    sigma = ring.fit.noise_sigma["tank"]
+    amp = ring.amplitude
+    spp = 2 * math.pi / (ring.w_d * dt)
+    if not amp > 5.0 * sigma:
+        raise AnalysisRefused(f"{source}: the ring's amplitude is {amp / sigma:.1f} times the noise rms; "
+                              "no trustworthy fit below 5 (raise the excitation or average captures)")
+    n_visible = math.log(amp / (2.0 * sigma)) / (ring.alpha * dt) if ring.alpha > 0 else math.inf
+    visible = min(n_visible, ring.stop - ring.start) / spp
+    if visible < 1.0:
+        raise AnalysisRefused(f"{source}: only {visible:.1f} cycles stand above the noise; a ring fit needs "
+                              "at least 3 (use a smaller feed-resistor load or less damping)")
+    if visible < 3.0:
+        warnings.append(f"too few cycles: {visible:.1f} stand above the noise (3 or more are needed for a "
+                        "reliable frequency and damping)")
+    if spp < 10.0:
+        warnings.append(f"{spp:.1f} samples per period, fewer than 10: sample faster")
+    if spp < 4.0:
+        warnings.append(f"suspected aliasing: the ring is at {100 * 2 / spp:.0f} % of the Nyquist frequency; "
+                        "an undersampled ring looks like a slower one, so f0 may be an alias")
+    seg_t, seg_y = t[ring.start:ring.stop], y[ring.start:ring.stop]
+    fitted = ring.evaluate(seg_t)
+    runs = longest_run_at_extremes(seg_y)
+    if max(runs) >= 5 and model_exceeds_record(seg_y, fitted, sigma):
+        warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
+                        "whole ring fits on screen")
+    drift = _drift_check(ring, y, noise)
+    if drift.get("z", 0.0) > DRIFT_Z:
+        warnings.append(
+            f"frequency changes with amplitude: f0 = {drift['f0_early']:.7g} Hz early and "
+            f"{drift['f0_late']:.7g} Hz late in the ring ({drift['z']:.1f} standard uncertainties apart): "
+            "core nonlinearity? repeat with a smaller excitation")
+    spur = _residual_peak(ring.fit.residuals, fitted - ring.fit["offset"], dt)
+    if spur is not None:
+        warnings.append(f"a second oscillation at {spur['frequency']:.4g} Hz ({spur['relative_energy']:.1e} of "
+                        "the ring's energy) remains in the residuals: second mode, beat or pickup")
+    return {
+        "model": ring.fit.model,
+        "window_start_s": float(t[ring.start]),
+        "window_end_s": float(t[ring.stop - 1]),
+        "cycles": float(ring.cycles),
+        "cycles_above_noise": float(visible),
+        "samples_per_period": float(spp),
+        "amplitude_to_noise": float(amp / sigma),
+        "drift_check": drift,
+        "residual_peak": spur,
+        **ring.fit.summary(),
+    }
+
+
+def _drift_check(ring: DampedSineFit, y: np.ndarray, noise: str) -> dict[str, Any]:
+    """Fit the early and the late part of the ring separately and compare their f0."""
+    n = ring.stop - ring.start
+    dt = ring.sample_interval
+    x = ring.fit.values.copy()
+    x[3:] *= dt
+    spp = 2 * math.pi / x[4]
+    split = int(min(n / 2, 1.5 / x[3])) if x[3] > 0 else n // 2
+    if split < max(2 * spp, 20) or n - split < max(2 * spp, 20):
+        return {"skipped": "fewer than 2 cycles or 20 samples in the early or late part"}
+    e = math.exp(-x[3] * split)
+    c, s = math.cos(x[4] * split), math.sin(x[4] * split)
+    late0 = np.array([x[0], e * (x[1] * c + x[2] * s), e * (x[2] * c - x[1] * s), x[3], x[4]])
+    t_axis = np.arange(n) * dt
+    parts = []
+    for lo, hi, x0 in ((0, split, x), (split, n, late0)):
+        seg = y[ring.start + lo:ring.start + hi]
+        try:
+            sub = fit_damped_sine(t_axis[lo:hi], seg, x0, dt, noise=noise)
+        except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+            return {"skipped": "a partial fit failed"}
+        g = np.array([sub.alpha, sub.w_d]) / sub.w0
+        _, cov = sub.fit.subset(("alpha", "w_d"))
+        parts.append((sub.w0 / (2 * math.pi), math.sqrt(max(float(g @ cov @ g), 0.0)) / (2 * math.pi)))
+    (f_e, u_e), (f_l, u_l) = parts
+    u = math.hypot(u_e, u_l)
+    return {"f0_early": f_e, "u_early": u_e, "f0_late": f_l, "u_late": u_l,
+            "z": abs(f_e - f_l) / u if u > 0 else math.inf}
+
+
+def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, float] | None:
+    """A spectral line in the residuals well above the local noise floor and above −40 dB of
+    the ring's energy (common practice for spotting a spurious tone), or None."""
+    n = r.size
+    if n < 64:
+        return None
+    spec = np.abs(np.fft.rfft(r - r.mean())) ** 2
+    floor = ndimage.median_filter(spec, size=31, mode="nearest") / math.log(2.0)
+    ratio = spec[2:] / np.maximum(floor[2:], 1e-300)
+    k = 2 + int(np.argmax(ratio))
+    if ratio[k - 2] < math.log(spec.size) + 15.0:
+        return None
+    band = slice(max(k - 2, 0), k + 3)
+    energy = float(np.sum(np.clip(spec[band] - floor[band], 0, None))) * 2.0 / n
+    relative = energy / max(float(ring @ ring), 1e-300)
+    if relative < 1e-4:
+        return None
+    return {"frequency": k / (n * dt), "relative_energy": relative}
+
+
+def _time_option(method: Method, setup: Setup, key: str, t: np.ndarray) -> int | None:
+    value = method.option(setup, key)
+    if value is None or value == "":
+        return None
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        seconds = float(value)
+    elif isinstance(value, str):
+        seconds, _ = parse_number_with_unit(value, "s")
+    else:
+        raise SetupError(f"{setup.source}: option {key} must be a time such as \"12 us\"")
+    if not t[0] <= seconds <= t[-1]:
+        raise SetupError(f"{setup.source}: option {key} = {value!r} lies outside the record "
+                         f"({t[0]:.6g} s to {t[-1]:.6g} s)")
+    return int(np.searchsorted(t, seconds))
