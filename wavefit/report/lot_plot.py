@@ -24,6 +24,7 @@ def save_lot_plot(series: Sequence[LotSeries], path: str | os.PathLike[str], tit
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    from matplotlib.ticker import EngFormatter, MaxNLocator
 
     rows = max(1, len(series))
     fig, axes = plt.subplots(rows, 2, figsize=(10, 3.2 * rows), squeeze=False,
@@ -31,7 +32,8 @@ def save_lot_plot(series: Sequence[LotSeries], path: str | os.PathLike[str], tit
     for (hist_ax, run_ax), item in zip(axes, series):
         index = [i + 1 for i, v in enumerate(item.values) if v is not None and math.isfinite(v)]
         values = [v for v in item.values if v is not None and math.isfinite(v)]
-        label = f"{item.name} ({item.unit})" if item.unit else item.name
+        symbol = "Ω" if item.unit == "ohm" else item.unit
+        formatter = EngFormatter(unit=symbol, places=None)
         if values:
             hist_ax.hist(values, bins="auto", color="tab:blue", alpha=0.8)
         run_ax.plot(index, values, marker="o", markersize=3, linewidth=0.8, color="tab:blue")
@@ -39,10 +41,14 @@ def save_lot_plot(series: Sequence[LotSeries], path: str | os.PathLike[str], tit
             if limit is not None:
                 hist_ax.axvline(limit, color="tab:red", linestyle="--", label=text)
                 run_ax.axhline(limit, color="tab:red", linestyle="--", label=text)
-        hist_ax.set_xlabel(label)
+        hist_ax.xaxis.set_major_formatter(formatter)
+        hist_ax.yaxis.set_major_locator(MaxNLocator(integer=True))
+        hist_ax.set_xlabel(item.name)
         hist_ax.set_ylabel("captures")
+        run_ax.yaxis.set_major_formatter(formatter)
+        run_ax.xaxis.set_major_locator(MaxNLocator(integer=True))
         run_ax.set_xlabel("capture (in order)")
-        run_ax.set_ylabel(label)
+        run_ax.set_ylabel(item.name)
         if item.lower is not None or item.upper is not None:
             run_ax.legend(loc="best", fontsize="small")
     if title:

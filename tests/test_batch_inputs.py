@@ -1,0 +1,46 @@
+"""INPUT expansion: files, folders, patterns; natural capture order; errors before any analysis."""
+from __future__ import annotations
+
+import os
+
+import pytest
+
+from wavefit.batch.inputs import expand_inputs
+from wavefit.errors import CaptureError
+
+
+@pytest.fixture()
+def lot(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "lot").mkdir()
+    for name in ("p1.csv", "p2.csv.gz", "p10.csv", "notes.md", "p3.TXT"):
+        (tmp_path / "lot" / name).write_text("x", encoding="utf-8")
+    (tmp_path / "lot" / "sub").mkdir()
+    (tmp_path / "lot" / "sub" / "p4.csv").write_text("x", encoding="utf-8")
+    return tmp_path
+
+
+def test_folder_gives_its_captures_in_natural_order(lot):
+    assert expand_inputs(["lot"]) == [os.path.join("lot", n) for n in ("p1.csv", "p2.csv.gz", "p3.TXT", "p10.csv")]
+
+
+def test_patterns_files_and_duplicates(lot):
+    got = expand_inputs(["lot/p1*.csv", "./lot/p1.csv", "lot/notes.md", "lot/**/p4.csv"])
+    assert got == [os.path.join("lot", "notes.md"), os.path.join("lot", "p1.csv"), os.path.join("lot", "p10.csv"),
+                   os.path.join("lot", "sub", "p4.csv")]
+
+
+@pytest.mark.parametrize("item, fragment", [
+    ("lot/p99.csv", "does not exist"), ("lot/*.wav", "no capture file matches"), ("lot/sub/..", None)])
+def test_errors_before_anything_runs(lot, item, fragment):
+    if fragment is None:
+        assert expand_inputs([item])  # a folder written with '..' still works
+        return
+    with pytest.raises(CaptureError, match=fragment):
+        expand_inputs([item])
+
+
+def test_empty_folder_is_an_error(lot):
+    (lot / "empty").mkdir()
+    with pytest.raises(CaptureError, match="has no capture files"):
+        expand_inputs(["empty"])
