@@ -144,6 +144,10 @@ def units_row() -> tuple[bytes, dict]:
     return "\n".join(["Time,CH1,CH2", "(ms),(V),(mA)", *rows]).encode(), {}
 
 
+def units_row_words() -> tuple[bytes, dict]:
+    return "\n".join(["X,CH1,CH2", "Second,Volt,Ampere", *_si_table()]).encode(), {}
+
+
 def slash_units() -> tuple[bytes, dict]:
     rows = _table([TIME * 1e9, VOLTS * 1e3, AMPS * 1e3], "|")
     return "\n".join(["t / ns|U / mV|I / mA", *rows]).encode(), {}
@@ -164,7 +168,7 @@ LAYOUTS: list[Layout] = [
     comma, semicolon_decimal_comma, tab, spaces, utf8_bom, latin1_micro, utf16_bom, crlf,
     bare_cr, trailing_separators, blank_lines, key_value_preamble, free_text_preamble,
     headerless_interval, preamble_interval_text, preamble_rate, preamble_dt, interval_argument,
-    headerless_argument, gzip_suffix, gzip_magic_only, prefixed_units, units_row, slash_units,
+    headerless_argument, gzip_suffix, gzip_magic_only, prefixed_units, units_row, units_row_words, slash_units,
     quoted, time_offset_column,
 ]
 

@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ..errors import CaptureError
-from .cells import NA_TOKENS, WHITESPACE, is_missing, is_number, split_line
+from .cells import NA_TOKENS, WHITESPACE, is_missing, is_number, row_pattern, split_line
 from .layout import Layout, bad_cell_message
 from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
@@ -121,8 +121,11 @@ def _table_lines(source: FileSource, layout: Layout, encoding: str) -> Iterator[
 def _explain_failure(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> str:
     """Message naming the first bad line, found by a streaming scan after the parser failed."""
     n_fields = layout.n_fields
+    fast = row_pattern(layout.sep, layout.decimal)
     for number, line in _table_lines(source, layout, encoding):
         if not line.strip():
+            continue
+        if '"' not in line and fast.fullmatch(line) and _count_cells(line, layout.sep) <= n_fields:
             continue
         cells = split_line(line, layout.sep)
         if len(cells) > n_fields:
@@ -135,6 +138,11 @@ def _explain_failure(source: FileSource, layout: Layout, encoding: str, exc: Exc
                 return bad_cell_message(source.name, number, cell)
     reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
     return f"{source.name}: the table body could not be parsed ({reason}); check the file"
+
+
+def _count_cells(line: str, sep: str) -> int:
+    """Number of cells in an unquoted line."""
+    return len(line.split()) if sep == WHITESPACE else line.count(sep) + 1
 
 
 def _refuse_values_past_header(

@@ -40,6 +40,20 @@ def number_pattern(decimal: str) -> re.Pattern[str]:
     return re.compile(rf"\s*[+-]?(?:{body}|{_INF})\s*", re.IGNORECASE)
 
 
+@lru_cache(maxsize=None)
+def row_pattern(sep: str, decimal: str) -> re.Pattern[str]:
+    """A compiled pattern matching a whole unquoted line whose cells are all numbers or missing.
+
+    A fast path for scanning many lines; lines it rejects are examined cell by cell.
+    """
+    number = number_pattern(decimal).pattern
+    missing = "|".join(re.escape(token) for token in sorted(NA_TOKENS, key=len, reverse=True) if token)
+    cell = rf"(?:{number}|\s*(?:{missing})\s*|\s*)"
+    if sep == WHITESPACE:
+        return re.compile(rf"\s*(?:(?:{number}|(?:{missing}))(?:\s+(?:{number}|(?:{missing})))*)?\s*")
+    return re.compile(rf"{cell}(?:{re.escape(sep)}{cell})*")
+
+
 def is_number(cell: str, decimal: str) -> bool:
     """True when ``cell`` is a finite or infinite number written with ``decimal``."""
     return number_pattern(decimal).fullmatch(cell) is not None

@@ -31,6 +31,8 @@ _ALIASES: dict[str, tuple[str, ...]] = {
     "%": ("%",),
 }
 BASE_UNITS: dict[str, str] = {alias: base for base, names in _ALIASES.items() for alias in names}
+# Spelled-out names ("Volt", "SECONDS") are matched regardless of case; symbols are not ("mV" vs "MV").
+_WORDS = {alias.lower(): base for alias, base in BASE_UNITS.items() if len(alias) >= 3 and alias.isalpha()}
 
 _TIME_NAMES = frozenset({
     "t", "time", "times", "time axis", "timestamp", "time stamp", "elapsed time",
@@ -80,11 +82,19 @@ def parse_unit(text: str) -> tuple[str, float] | None:
         this reader knows.
     """
     text = text.strip()
-    if text in BASE_UNITS:
-        return BASE_UNITS[text], 1.0
-    if len(text) > 1 and text[0] in PREFIXES and text[1:] in BASE_UNITS:
-        return BASE_UNITS[text[1:]], PREFIXES[text[0]]
+    base = _base_unit(text)
+    if base is not None:
+        return base, 1.0
+    if len(text) > 1 and text[0] in PREFIXES:
+        base = _base_unit(text[1:])
+        if base is not None:
+            return base, PREFIXES[text[0]]
     return None
+
+
+def _base_unit(text: str) -> str | None:
+    """The SI base unit spelled by ``text`` without prefix, or None."""
+    return BASE_UNITS.get(text) or _WORDS.get(text.lower())
 
 
 def parse_header(header: str) -> HeaderUnit:
