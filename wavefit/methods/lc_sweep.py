@@ -1,0 +1,153 @@
+"""lc-sweep: L and the always-present capacitance from rings against several capacitors.
+
+Each ``[[captures]]`` entry is one lc-ring capture with its own ``tank_capacitor``.
+With C_i the added capacitance (tank capacitor plus the optional shared
+``stray_capacitance``) and w_i² = w0_i² − Δ_i the corrected resonance of capture i
+(see :mod:`wavefit.methods.lc_ring`), the points
+
+    y_i = 1/w_i² = L·C_i + L·C
+
+lie on a line of slope L and intercept L·C, C being the capacitance that is
+always there (coil self-capacitance; fixture and probe too unless given as
+``stray_capacitance``). The line is fitted with uncertainty in both axes
+(:func:`wavefit.fit.line_eiv.york_line`); then L = slope·k_t², C = intercept/slope
+and srf = 1/(2π·√(L·C)), k_t being the timebase factor common to all captures.
+"""
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+from uncertainties import ufloat
+
+from ..errors import AnalysisRefused
+from ..fit.line_eiv import york_line
+from ..io.capture import Capture
+from ..results import AnalysisResult, LinePlot
+from ..setup import Setup
+from ..uncertainty import InputSet, propagate
+from . import register
+from .base import Method
+from .lc_ring import LcRing, coil_loss_option, loss_correction, measure_ring
+
+UNITS = {"L": "H", "C": "F", "srf": "Hz"}
+#: Points off the line: warn when the chi-square probability falls below this.
+LINE_P_VALUE = 0.01
+
+
+@register
+class LcSweep(Method):
+    """Rings of one coil against several capacitors: L, self-capacitance C and SRF."""
+
+    name = "lc-sweep"
+    summary = "rings against several known capacitors: L, self-capacitance, self-resonance"
+    roles = LcRing.roles
+    parts = LcRing.parts
+    options = LcRing.options
+    quantities = ("L", "C", "srf")
+    uses_setup_captures = True
+
+    def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
+        if len(captures) < 2:
+            raise AnalysisRefused(f"{setup.source}: lc-sweep needs at least two captures with different "
+                                  "tank capacitors (three or more to check that they lie on a line)")
+        coil_loss = coil_loss_option(self, setup)
+        entries = setup.captures or ()
+        warnings, per_capture, rings = [], [], []
+        for k, capture in enumerate(captures):
+            parts = dict(setup.parts)
+            if k < len(entries):
+                parts.update(entries[k].parts)
+            if "tank_capacitor" not in parts:
+                raise AnalysisRefused(f"{capture.source}: no tank_capacitor for this capture; "
+                                      "give one in its [[captures]] table")
+            meas = measure_ring(self, capture, setup)
+            rings.append((meas, parts))
+            warnings += [f"{capture.source}: {w}" for w in meas.warnings]
+        x = np.array([parts["tank_capacitor"].value for _, parts in rings])
+        u_x = np.array([parts["tank_capacitor"].standard_uncertainty for _, parts in rings])
+        if np.ptp(x) <= 0:
+            raise AnalysisRefused(f"{setup.source}: all captures use the same tank capacitor; "
+                                  "L and C need at least two different values")
+        # the load's damping depends on the whole capacitance, self-capacitance included:
+        # a first line without it gives C, the second pass uses it (the correction is second order)
+        extra = 0.0
+        for _ in range(2):
+            pts = [_corrected_point(meas.ring, parts, coil_loss, extra) for meas, parts in rings]
+            y = np.array([p[0] for p in pts])
+            u_y = np.array([p[1] for p in pts])
+            try:
+                line = york_line(x, y, u_x, u_y)
+            except ValueError as exc:
+                raise AnalysisRefused(f"{setup.source}: the line fit failed ({exc})") from None
+            extra = max(line.intercept / line.slope, 0.0) if line.slope > 0 else 0.0
+        for capture, (meas, parts), yi, ui in zip(captures, rings, y, u_y):
+            per_capture.append({"source": capture.source,
+                                "tank_capacitor": parts["tank_capacitor"].value,
+                                "f0": meas.ring.w0 / (2 * math.pi), "inverse_w_squared": float(yi),
+                                "u_inverse_w_squared": float(ui), "cycles": meas.info["cycles"]})
+        cov = line.covariance
+        dof = math.inf
+        birge = 1.0
+        if line.dof == 0:
+            warnings.append("two captures: a line always passes through two points, so nothing checks "
+                            "that the model holds; add a third capacitor")
+        elif line.p_value < LINE_P_VALUE:
+            birge = math.sqrt(line.chi2 / line.dof)
+            cov = cov * birge ** 2
+            dof = float(line.dof)
+            warnings.append(f"the points do not lie on a line (chi-square {line.chi2:.3g} for {line.dof} "
+                            f"degrees of freedom, p = {line.p_value:.1e}); uncertainties are scaled by "
+                            f"{birge:.2f}: check the capacitor values and the rings")
+        if line.slope <= 0 or line.intercept <= 0:
+            raise AnalysisRefused(
+                f"{setup.source}: the line 1/w0² against capacitance has slope {line.slope:.3g} and intercept "
+                f"{line.intercept:.3g}; both must be positive for L and C (check the tank_capacitor values)")
+        inputs = InputSet()
+        inputs.add_correlated(("line slope", "line intercept"), (line.slope, line.intercept), cov,
+                              ("H", "s2"), dof, "line")
+        inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
+        has_stray = "stray_capacitance" in setup.parts
+        if has_stray:
+            inputs.add_part("stray_capacitance", setup.parts["stray_capacitance"])
+        prop = propagate(inputs, lambda v: _model(v, has_stray), UNITS)
+        if has_stray and prop.quantities["C"].value <= 0:
+            warnings.append("the fitted capacitance is smaller than the stray_capacitance given: "
+                            "C and srf are not meaningful")
+        fit = {"model": "1/w0^2 = L*(C_added + C), York line", "coil_loss": coil_loss,
+               "slope": line.slope, "intercept": line.intercept, "chi2": line.chi2, "dof": line.dof,
+               "p_value": line.p_value, "birge_ratio": birge, "captures": per_capture}
+        plot = LinePlot(x, y, u_x, u_y, line.slope, line.intercept, "added capacitance (F)", "1/w0² (s²)")
+        return AnalysisResult(self.name, [c.source for c in captures], prop.quantities, prop.budget, fit,
+                              tuple(warnings), prop.correlation, plot)
+
+
+def _corrected_point(ring: Any, parts: dict, coil_loss: str, extra: float) -> tuple[float, float]:
+    """y = 1/(w0² − Δ) of one ring and its standard uncertainty (fit and loss split; the
+    added capacitance is the abscissa, stray is common to all points and enters C only).
+    ``extra`` is the self-capacitance estimate used for the load's damping rate."""
+    values, cov = ring.fit.subset(("alpha", "w_d"))
+    alpha_w = _correlated_pair(values, cov)
+    alpha, w_d = alpha_w
+    cap = parts["tank_capacitor"].value + extra
+    g = 1.0 / (parts["parallel_load"].value * cap) if "parallel_load" in parts else 0.0
+    if float(alpha.nominal_value) <= g / 2.0:
+        g = 0.0  # the load seems to explain all damping: leave the second-order correction out
+    split = ufloat(0.5, 0.5 / math.sqrt(3.0)) if coil_loss == "unknown" else None
+    w2 = w_d ** 2 + alpha ** 2 - loss_correction(alpha - g / 2.0, g, coil_loss, split)
+    y = 1.0 / w2
+    return float(y.nominal_value), float(y.std_dev)
+
+
+def _correlated_pair(values: np.ndarray, cov: np.ndarray) -> tuple[Any, Any]:
+    from uncertainties import correlated_values
+
+    return tuple(correlated_values(values, cov))
+
+
+def _model(v: dict, has_stray: bool) -> dict:
+    tb = v["timebase"]
+    inductance = v["line slope"] * tb ** 2
+    cap = v["line intercept"] / v["line slope"] - (v["stray_capacitance"] if has_stray else 0.0)
+    return {"L": inductance, "C": cap, "srf": 1.0 / (2 * math.pi * (inductance * cap) ** 0.5)}
