@@ -22,6 +22,7 @@ from scipy import optimize, stats
 
 from .noise_model import ARNoise, fit_ar, white
 from .result import FitResult
+from .sandwich import sandwich_covariance
 
 Vector = np.ndarray
 
@@ -80,10 +81,26 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
     ar_params = sum(mod.order for mod in models.values())
     dof = float(e.size - p - ar_params)
     s2 = float(e @ e) / dof if noise != "known" else 1.0
-    cov = s2 * _inverse_normal_matrix(jw)
+    bread = _inverse_normal_matrix(jw)
+    cov = s2 * bread
+    extents: dict[str, int] = {}
+    if noise == "auto" and ar_params:
+        # the AR model may whiten only approximately: use the sandwich G Σ Gᵀ (see fit/sandwich.py)
+        robust, extents = sandwich_covariance(r, blocks, models, jw, bread, max_lag=min(m // 10, 1000))
+        robust = 0.5 * (robust + robust.T)
+        eig = np.linalg.eigvalsh(robust)
+        if np.all(np.isfinite(eig)) and eig[0] > 1e-12 * max(eig[-1], 0.0) and eig[-1] > 0:
+            cov = robust
+            for g, lags in extents.items():
+                n_g = sum(b.stop - b.start for b in blocks if b.group == g)
+                dof = min(dof, n_g / (2.0 * lags + 1.0))
+        else:  # too little data for a positive-definite estimate of the noise covariance
+            extents = {}
     n_eff = sum(sum(b.stop - b.start for b in blocks if b.group == g) / models[g].long_run_ratio()
                 for g in groups)
     diagnostics, warns = _diagnose(e, x, bounds, names)
+    if extents:
+        diagnostics["noise_correlation_extent_samples"] = extents
     return FitResult(
         model=model,
         names=tuple(names),

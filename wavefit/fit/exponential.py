@@ -139,8 +139,6 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     fit = fit_least_squares(fun, jac, x0, names, blocks, model=model, noise=noise,
                             bounds=(lower, np.full(n_par, np.inf)))
     covariance = fit.covariance
-    if noise == "auto":
-        covariance = _prewhitened_hac(fun(fit.values), jac(fit.values), blocks, fit.covariance)
     scale = np.ones(n_par)
     scale[0] = tau_start
     diagnostics = dict(fit.diagnostics, t_ref=t_ref)
@@ -150,44 +148,6 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
         noise_sigma=fit.noise_sigma, noise_model=fit.noise_model, n_samples=fit.n_samples,
         n_effective=fit.n_effective, dof=fit.dof, diagnostics=diagnostics, warnings=fit.warnings,
     )
-
-
-def _prewhitened_hac(r: np.ndarray, j: np.ndarray, blocks: Sequence[Block], fallback: np.ndarray) -> np.ndarray:
-    """Covariance that stays valid when the AR noise model is only approximate.
-
-    The residuals are prewhitened with an AR model per noise group (the same
-    Yule–Walker/BIC choice as the engine), and the remaining correlation of the
-    whitened scores is taken into account with the Bartlett-kernel sandwich:
-    the prewhitened HAC estimator of D. W. K. Andrews and J. C. Monahan,
-    Econometrica 60 (1992) 953–966, with the kernel of W. K. Newey and K. D. West,
-    Econometrica 55 (1987) 703–708. Never smaller than the model-based covariance.
-    """
-    from .noise_model import fit_ar
-
-    jw_parts, e_parts = [], []
-    for group in sorted({b.group for b in blocks}):
-        sel = [b for b in blocks if b.group == group]
-        mod = fit_ar([r[b.start:b.stop] for b in sel])
-        for b in sel:
-            jw_parts.append(mod.whiten(j[b.start:b.stop]) if mod.order else j[b.start:b.stop] / mod.sigma_e)
-            e_parts.append(mod.whiten(r[b.start:b.stop]) if mod.order else r[b.start:b.stop] / mod.sigma_e)
-    jw, e = np.concatenate(jw_parts), np.concatenate(e_parts)
-    n, p = jw.shape
-    if n <= 4 * p:
-        return fallback
-    bread = np.linalg.pinv(jw.T @ jw)
-    g = jw * e[:, None]
-    bandwidth = int(math.ceil(4.0 * (n / 100.0) ** (2.0 / 9.0)))
-    meat = g.T @ g
-    for lag in range(1, bandwidth + 1):
-        w = 1.0 - lag / (bandwidth + 1.0)
-        gamma = g[lag:].T @ g[:-lag]
-        meat += w * (gamma + gamma.T)
-    hac = bread @ meat @ bread * n / (n - p)
-    # keep the larger variance per parameter (the model-based one when the AR model is adequate)
-    d_fb, d_hac = np.sqrt(np.clip(np.diag(fallback), 0, None)), np.sqrt(np.clip(np.diag(hac), 0, None))
-    scale = np.where(d_fb > 0, np.maximum(d_hac / np.where(d_fb > 0, d_fb, 1.0), 1.0), 1.0)
-    return fallback * np.outer(scale, scale)
 
 
 def window_model(fit: FitResult, group: str, t: np.ndarray) -> np.ndarray:

@@ -374,7 +374,7 @@ def _combine(windows, fits, baseline, has_drive) -> _Combined:
     if "rising" in by_dir and "falling" in by_dir:
         (a, ua), (b, ub) = by_dir["rising"], by_dir["falling"]
         rise_fall = (a - b) / math.hypot(ua, ub)
-    dof = float(sum(max(f.n_effective - len(f.names), 1.0) for f in fits))
+    dof = float(sum(max(f.dof, 1.0) for f in fits))
     units = tuple({"tau_fit": "s", "q_drive_sense": ""}.get(n, "V") for n in names)
     return _Combined(tuple(names), theta, cov, units, dof, by_dir, rise_fall, birge)
 
