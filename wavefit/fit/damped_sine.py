@@ -229,8 +229,8 @@ def ring_window(y: np.ndarray) -> RingWindow:
     stop, second = n, False
     for k in range(1, m):
         if env[k] > 1.5 * env[k - 1] + 2.0 * floor and env[k] > 0.2 * peak:
-            stop, second = onset + k * block, True
-            env = env[:k]
+            stop, second = onset + (k - 1) * block, True  # the block before may hold the edge
+            env = env[:k - 1] if k > 1 else env[:1]
             break
     above = np.flatnonzero(env > max(3.0 * floor, 0.02 * peak)) if floor < env[0] else np.arange(1)
     strong = (int(above[-1]) + 1) * block if above.size else block

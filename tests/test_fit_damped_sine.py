@@ -1,0 +1,139 @@
+"""Damped-sine fitter: matrix pencil, noiseless recovery, Cramér–Rao efficiency, coverage.
+
+References named beside each check. The synthetic rings come from wavefit.synth.lc;
+their truth is the analytic pole pair of the circuit equations (eigenvalues of the
+2x2 state matrix), not a value the fitter produced.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from wavefit.fit.damped_sine import fit_ring, jacobian, model, ring_window
+from wavefit.fit.pencil import matrix_pencil
+from wavefit.synth.lc import Tank, ringdown
+from wavefit.synth.scope import ScopeModel
+
+
+def test_pencil_recovers_exact_poles():
+    # Hua & Sarkar 1990: noiseless sums of M exponentials are recovered exactly (identity)
+    n = np.arange(200)
+    z = np.array([1.0, 0.99 * np.exp(0.3j), 0.99 * np.exp(-0.3j)])
+    h = np.array([0.2, 0.5 - 0.1j, 0.5 + 0.1j])
+    y = (h[None, :] * z[None, :] ** n[:, None]).sum(axis=1).real
+    poles, amps = matrix_pencil(y, 3)
+    order = np.argsort(poles.imag)
+    np.testing.assert_allclose(poles[order], z[[2, 0, 1]], atol=1e-10)
+    np.testing.assert_allclose(amps[order], h[[2, 0, 1]], atol=1e-9)
+
+
+def test_synth_poles_obey_natural_frequency_identity():
+    # exact second-order relation w0² = w_d² + alpha² = (1 + r·G)/(L·C) (characteristic equation)
+    tank = Tank(inductance=47e-6, tank_capacitor=22e-9, dcr=0.8, core_loss_resistance=20e3,
+                feed_resistance=5e3)
+    alpha, w_d = tank.poles()
+    g = tank.conductance
+    assert w_d ** 2 + alpha ** 2 == pytest.approx((1 + tank.dcr * g) / (tank.inductance * tank.capacitance), rel=1e-12)
+    assert alpha == pytest.approx(tank.dcr / (2 * tank.inductance) + g / (2 * tank.capacitance), rel=1e-12)
+
+
+@pytest.mark.parametrize("spp, records, pre", [(40, 4000, 200), (12, 3000, 0), (2000, 200_000, 5000)])
+def test_noiseless_ring_recovered(spp, records, pre):
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=2.0, feed_resistance=20e3)
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * spp)
+    t, v = ringdown(tank, dt, records, pre_trigger=pre)
+    ring = fit_ring(t, v)
+    assert ring.w_d == pytest.approx(w_d, rel=1e-8)
+    assert ring.alpha == pytest.approx(alpha, rel=1e-6)
+    assert ring.start >= pre
+
+
+def test_window_stops_at_a_second_excitation():
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=5.0, feed_resistance=20e3)
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * 25)
+    t, v = ringdown(tank, dt, 3000, pre_trigger=100)
+    v = v - np.concatenate([np.zeros(1500), v[100:1600]])  # the step returns at sample 1500
+    win = ring_window(v)
+    assert 1300 < win.stop <= 1500 and win.second_excitation
+    assert fit_ring(t, v).w_d == pytest.approx(w_d, rel=1e-6)
+
+
+def test_log_decrement_matches_fitted_q():
+    # Q ≈ π/δ with δ = ln(v_k / v_{k+1}) between successive peaks (common practice, light damping);
+    # exact: δ = 2π·alpha/w_d, so π/δ = w_d/(2·alpha) = Q·w_d/w0
+    tank = Tank(inductance=220e-6, tank_capacitor=4.7e-9, dcr=3.0, feed_resistance=50e3)
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * 400)
+    t, v = ringdown(tank, dt, 8000)
+    v = v - tank.dcr / (tank.feed_resistance + tank.dcr)  # final DC level of the divider
+    peaks = [k for k in range(1, v.size - 1) if v[k] > v[k - 1] and v[k] >= v[k + 1] and v[k] > 0]
+    delta = math.log(v[peaks[2]] / v[peaks[3]])
+    ring = fit_ring(t, v)
+    q_fit = ring.w0 / (2 * ring.alpha)
+    assert math.pi / delta == pytest.approx(q_fit, rel=2e-3)
+
+
+def _fisher_bound(x: np.ndarray, n: int, sigma: float) -> float:
+    """CRB of w0 = √(w_d² + alpha²) (sample units) in white noise: Kay 1993 §3.9 (memory),
+    I = JᵀJ/σ² of the same model."""
+    j = jacobian(x, np.arange(n, dtype=float))
+    cov = np.linalg.inv(j.T @ j / sigma ** 2)
+    w0 = math.hypot(x[3], x[4])
+    g = np.array([0, 0, 0, x[3] / w0, x[4] / w0])
+    return float(g @ cov @ g)
+
+
+def test_numerical_bound_matches_closed_form():
+    # CHECK-VALUES.md §5b (derived, recomputed): var(w) ≈ (2σ²/A²)(1−z)³/z, z = e^(−2α), long record
+    x = np.array([0.0, 1.0, 0.0, 0.01, 0.7])
+    j = jacobian(x, np.arange(5000, dtype=float))
+    var_w = np.linalg.inv(j.T @ j)[4, 4]
+    z = math.exp(-2 * 0.01)
+    assert var_w == pytest.approx(2 * (1 - z) ** 3 / z, rel=0.02)
+
+
+@pytest.mark.parametrize("correlation, bits", [(0, None), (10, 8)])
+def test_monte_carlo_efficiency_and_coverage(correlation, bits):
+    # Kay 1993 §3.9 (memory): efficiency = CRB / observed variance; loose bounds for a fast test
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=3.0, feed_resistance=10e3)
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * 25)
+    n, pre = 1600, 100
+    t, v = ringdown(tank, dt, n, pre_trigger=pre)
+    amp = float(np.abs(v).max())
+    sigma = amp / math.sqrt(2 * 10 ** 3.5)  # 35 dB
+    w0_true = math.hypot(alpha, w_d)
+    rng = np.random.default_rng(20240 + correlation)
+    est, se = [], []
+    for _ in range(120):
+        y = ScopeModel(noise_rms=sigma, correlation_samples=correlation, bits=bits).apply(v, rng)
+        ring = fit_ring(t, y)
+        g = np.array([ring.alpha, ring.w_d]) / ring.w0
+        _, cov = ring.fit.subset(("alpha", "w_d"))
+        est.append(ring.w0)
+        se.append(math.sqrt(g @ cov @ g))
+    est, se = np.array(est), np.array(se)
+    covered = np.mean(np.abs(est - w0_true) <= 1.96 * se)
+    assert 0.85 <= covered <= 0.99
+    assert abs(est.mean() - w0_true) < 0.4 * est.std()
+    if correlation == 0:
+        x_true = np.array([0.0, 0.0, amp, alpha * dt, w_d * dt])
+        x_true = _true_params(v[pre:], x_true)
+        efficiency = _fisher_bound(x_true, n - pre, sigma) / np.var(est * dt)
+        assert efficiency > 0.8
+
+
+def _true_params(v: np.ndarray, x0: np.ndarray) -> np.ndarray:
+    """The clean ring's exact parameters in sample units (its poles are fixed; a, b, offset
+    follow by linear least squares on the noiseless record)."""
+    tau = np.arange(v.size, dtype=float)
+    basis = np.column_stack([np.ones_like(tau), np.exp(-x0[3] * tau) * np.cos(x0[4] * tau),
+                             np.exp(-x0[3] * tau) * np.sin(x0[4] * tau)])
+    coef, *_ = np.linalg.lstsq(basis, v, rcond=None)
+    x = np.array([coef[0], coef[1], coef[2], x0[3], x0[4]])
+    assert np.max(np.abs(model(x, tau) - v)) < 1e-9 * np.abs(v).max()
+    return x
