@@ -189,7 +189,7 @@ def test_value_beyond_the_header_columns(tmp_path: Path) -> None:
     rows = [r + "," for r in _rows(3000)]
     rows[2000] += "9"
     message = _message(_write(tmp_path, "\n".join([HEADER + ",", *rows])))
-    assert "line 2002" in message and "beyond the 3 columns" in message
+    assert "line 2002" in message and "a value in cell 4" in message
 
 
 def test_header_that_does_not_match_the_rows(tmp_path: Path) -> None:

@@ -148,6 +148,11 @@ def units_row_words() -> tuple[bytes, dict]:
     return "\n".join(["X,CH1,CH2", "Second,Volt,Ampere", *_si_table()]).encode(), {}
 
 
+def empty_cells_and_rule() -> tuple[bytes, dict]:
+    rows = [f",{r.replace(',', ',,')}" for r in _si_table()]
+    return "\n".join([",Time (s),,CH1 (V),,CH2 (A)", "-----,-----,-----", *rows]).encode(), {}
+
+
 def slash_units() -> tuple[bytes, dict]:
     rows = _table([TIME * 1e9, VOLTS * 1e3, AMPS * 1e3], "|")
     return "\n".join(["t / ns|U / mV|I / mA", *rows]).encode(), {}
@@ -168,7 +173,7 @@ LAYOUTS: list[Layout] = [
     comma, semicolon_decimal_comma, tab, spaces, utf8_bom, latin1_micro, utf16_bom, crlf,
     bare_cr, trailing_separators, blank_lines, key_value_preamble, free_text_preamble,
     headerless_interval, preamble_interval_text, preamble_rate, preamble_dt, interval_argument,
-    headerless_argument, gzip_suffix, gzip_magic_only, prefixed_units, units_row, units_row_words, slash_units,
+    headerless_argument, gzip_suffix, gzip_magic_only, prefixed_units, units_row, units_row_words, empty_cells_and_rule, slash_units,
     quoted, time_offset_column,
 ]
 

@@ -66,10 +66,10 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> list[np.ndar
         raise CaptureError(damaged_gzip_message(source.name, exc)) from None
     except (ValueError, pd.errors.ParserError) as exc:
         raise CaptureError(_explain_failure(source, layout, encoding, exc)) from None
-    columns = [frame[j].to_numpy() for j in range(layout.n_fields)]
+    columns = {j: frame[j].to_numpy() for j in range(layout.n_fields)}
     del frame
-    _refuse_values_past_header(columns[layout.n_columns :], source, layout, encoding)
-    return columns[: layout.n_columns]
+    _refuse_values_in_unread_cells(columns, source, layout, encoding)
+    return [columns[j] for j in layout.fields]
 
 
 def line_numbers(
@@ -145,16 +145,15 @@ def _count_cells(line: str, sep: str) -> int:
     return len(line.split()) if sep == WHITESPACE else line.count(sep) + 1
 
 
-def _refuse_values_past_header(
-    extra: list[np.ndarray], source: FileSource, layout: Layout, encoding: str
+def _refuse_values_in_unread_cells(
+    columns: dict[int, np.ndarray], source: FileSource, layout: Layout, encoding: str
 ) -> None:
-    """Raise when a column beyond the headers (a trailing separator's) holds a value."""
-    for offset, column in enumerate(extra):
-        filled = np.flatnonzero(~np.isnan(column))
+    """Raise when a cell that has no header and was empty in the first rows holds a value."""
+    for j in sorted(set(columns) - set(layout.fields)):
+        filled = np.flatnonzero(~np.isnan(columns[j]))
         if filled.size:
-            column_number = layout.n_columns + offset + 1
             line = line_numbers(source, layout, encoding, [int(filled[0])])[0]
             raise CaptureError(
-                f"{source.name}, line {line}: a value in column {column_number}, beyond the "
-                f"{layout.n_columns} columns of the table; fix or delete that line"
+                f"{source.name}, line {line}: a value in cell {j + 1}, where the rows above "
+                "have none and the table has no column; fix or delete that line"
             )

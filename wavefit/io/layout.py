@@ -21,6 +21,7 @@ _SEPARATOR_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", WHITESPACE: "bl
 _LINE_BREAK = re.compile(r"\r\n|\r|\n")
 _EARLIER_TABLE_ROWS = 3
 _UNIT_BRACKETS = "()[]{}"
+_RULE = re.compile(r"[\s,;|]*[-=_*~]{3,}[-=_*~\s,;|]*")
 
 
 @dataclass(frozen=True)
@@ -39,8 +40,13 @@ class Layout:
         0-based index of the first data line in the file.
     n_fields
         Cells per data row, including empty cells left by trailing separators.
+    fields
+        0-based indices of the cells that are read as columns: every cell but
+        those without header that are empty in every sniffed row (left by
+        trailing or doubled separators).
     headers
-        One header per used column; ``"0"``, ``"1"``, ... when the file has none.
+        One header per read column; the cell index (``"0"``, ``"1"``, ...)
+        where the file gives none.
     header_line
         1-based line number of the header (of the names when a units row follows), or None.
     preamble
@@ -52,14 +58,10 @@ class Layout:
     line_terminator: str | None
     data_start: int
     n_fields: int
+    fields: tuple[int, ...]
     headers: tuple[str, ...]
     header_line: int | None
     preamble: tuple[tuple[int, str], ...]
-
-    @property
-    def n_columns(self) -> int:
-        """Number of columns read from every row."""
-        return len(self.headers)
 
     def describe_separator(self) -> str:
         """Human name of the separator, for messages."""
@@ -76,6 +78,7 @@ class _Run:
     regular_rows: int
     n_fields: int
     n_used: int
+    filled: frozenset[int]
 
 
 def split_lines(text: str) -> list[str]:
@@ -119,7 +122,7 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
             run = _longest_run(lines, sep, decimal)
             if run is None:
                 continue
-            above = _previous_nonblank(lines, run.start)
+            above = _line_above(lines, run.start)
             header_fits = above is not None and _header_cells(lines[above], sep, run) is not None
             score = (run.numeric_rows, header_fits, run.regular_rows, run.n_used, -priority)
             if best is None or score > best[0]:
@@ -128,9 +131,11 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
         raise CaptureError(_no_table_message(lines, complete, source))
     _, sep, decimal, run = best
     _refuse_earlier_table(lines, sep, decimal, run, source)
-    headers, header_start = _find_header(lines, sep, decimal, run, source)
-    if headers is None:
-        headers = tuple(str(i) for i in range(run.n_used))
+    names, header_start = _find_header(lines, sep, decimal, run, source)
+    if names is None:
+        names = ("",) * run.n_used
+    fields = tuple(j for j, name in enumerate(names) if name or j in run.filled)
+    headers = tuple(names[j] or str(j) for j in fields)
     first_text_above = header_start if header_start is not None else run.start
     preamble = tuple(
         (i + 1, line.strip()) for i, line in enumerate(lines[:first_text_above]) if line.strip()
@@ -142,6 +147,7 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
         line_terminator="\r" if bare_cr else None,
         data_start=run.start,
         n_fields=run.n_fields,
+        fields=fields,
         headers=headers,
         header_line=None if header_start is None else header_start + 1,
         preamble=preamble,
@@ -164,6 +170,7 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
     runs: list[_Run] = []
     start: int | None = None
     counts: list[int] = []
+    filled: set[int] = set()
     fields = used = 0
     for i, line in enumerate([*lines, None]):
         if line is not None and not line.strip():
@@ -173,15 +180,16 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
         if kind == "text":
             if start is not None and counts:
                 regular = max(counts.count(c) for c in set(counts))
-                runs.append(_Run(start, i, len(counts), regular, fields, used))
+                runs.append(_Run(start, i, len(counts), regular, fields, used, frozenset(filled)))
             start = None
             continue
         if start is None:
-            start, counts, fields, used = i, [], 0, 0
+            start, counts, fields, used, filled = i, [], 0, 0, set()
         fields = max(fields, len(cells))
         if kind == "numeric":
             counts.append(len(cells))
             used = max(used, len(_strip_trailing_empty(cells)))
+            filled.update(j for j, cell in enumerate(cells) if not is_missing(cell))
     return max(runs, key=lambda r: r.numeric_rows, default=None)
 
 
@@ -201,23 +209,31 @@ def _previous_nonblank(lines: list[str], index: int) -> int | None:
     return None
 
 
+def _line_above(lines: list[str], index: int) -> int | None:
+    """Index of the nearest line above ``index`` that is neither blank nor a rule like ``-----``."""
+    above = _previous_nonblank(lines, index)
+    while above is not None and _RULE.fullmatch(lines[above]):
+        above = _previous_nonblank(lines, above)
+    return above
+
+
 def _find_header(
     lines: list[str], sep: str, decimal: str, run: _Run, source: str
 ) -> tuple[tuple[str, ...] | None, int | None]:
-    """Headers for the run's columns and the index of the first header line, if any."""
-    above = _previous_nonblank(lines, run.start)
+    """Header cells (empty where a column has no name) and the index of the first header line, if any."""
+    above = _line_above(lines, run.start)
     if above is None:
         return None, None
     cells = _header_cells(lines[above], sep, run)
     if cells is None:
         _refuse_broken_row(lines[above], above, sep, decimal, run, source)
         return None, None
-    names_at = _previous_nonblank(lines, above)
+    names_at = _line_above(lines, above)
     if names_at is not None and all(_is_unit_cell(c) for c in cells) and any(cells):
         names = _header_cells(lines[names_at], sep, run)
         if names is not None and len(names) == len(cells):
             return _join_units(names, cells), names_at
-    return tuple(c or str(i) for i, c in enumerate(cells)), above
+    return tuple(cells), above
 
 
 def _header_cells(line: str, sep: str, run: _Run) -> list[str] | None:
@@ -251,12 +267,11 @@ def _is_unit_cell(cell: str) -> bool:
 
 
 def _join_units(names: list[str], units: list[str]) -> tuple[str, ...]:
-    """Headers ``"name (unit)"`` from a names row and a units row."""
+    """Headers ``"name (unit)"`` from a names row and a units row (empty where both are)."""
     joined = []
     for i, (name, unit) in enumerate(zip(names, units)):
-        name = name or str(i)
         unit = unit.strip(_UNIT_BRACKETS)
-        joined.append(f"{name} ({unit})" if unit else name)
+        joined.append(f"{name or i} ({unit})" if unit else name)
     return tuple(joined)
 
 
