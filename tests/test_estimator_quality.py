@@ -1,0 +1,31 @@
+"""Fast version of benchmarks/estimator_quality.py: the estimators against the Cramér–Rao bound.
+
+The bound is the inverse Fisher information of the same signal model (Kay 1993 §3.9; see
+benchmarks/estimator_quality.py and docs/estimator-quality.md). Loose limits, because a few
+hundred trials estimate a variance only to about ±12 % and a coverage to about ±2 %.
+"""
+import sys
+from pathlib import Path
+
+import pytest
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "benchmarks"))
+from estimator_quality import Scenario, run_scenario  # noqa: E402
+
+
+@pytest.mark.parametrize("method, quantity", [("rl-step", "tau"), ("lc-ring", "f0")])
+def test_white_noise_efficiency_bias_and_coverage(method, quantity):
+    rows = {r.quantity: r for r in run_scenario(Scenario(method, "white", 40, "short"), trials=150, seed=3)}
+    row = rows[quantity]
+    assert row.trials == 150
+    assert row.efficiency > 0.75, row
+    assert abs(row.bias_se) < 3.5, row
+    assert 0.88 <= row.coverage <= 1.0, row
+
+
+@pytest.mark.parametrize("method", ["rl-step", "lc-ring"])
+def test_band_limited_noise_coverage(method):
+    rows = run_scenario(Scenario(method, "band-limited", 40, "short"), trials=100, seed=4)
+    for row in rows:
+        assert row.trials == 100
+        assert 0.85 <= row.coverage <= 1.0, row
