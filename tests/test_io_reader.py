@@ -205,3 +205,42 @@ def test_frame_with_sample_interval() -> None:
     assert capture.time_column is None
     assert capture.time[-1] == pytest.approx((N - 1) * DT)
     assert capture.channel("CH2").values.dtype == np.float64
+
+
+def test_text_after_the_table_is_a_footer(tmp_path: Path) -> None:
+    lines = ["Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal()), "", "End of record", "checksum ok"]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.rows == N
+    assert capture.metadata == {"footer1": "End of record", "footer2": "checksum ok"}
+    (warning,) = capture.warnings
+    assert f"lines {N + 3}-{N + 4}" in warning and "footer" in warning
+
+
+def test_end_of_file_mark_is_ignored(tmp_path: Path) -> None:
+    path = tmp_path / "dos.csv"
+    path.write_bytes(("\r\n".join(["Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())]) + "\r\n\x1a").encode())
+    capture = read_capture(path)
+    assert capture.rows == N and capture.warnings == () and capture.metadata == {}
+
+
+def test_rows_without_values_at_the_edges_are_left_out(tmp_path: Path) -> None:
+    lines = ["Time (s),CH1 (V)", ",", *_rows(np.arange(N) * DT, _signal()), ",", ","]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.rows == N
+    assert capture.time[0] == 0.0
+    (warning,) = capture.warnings
+    assert "3 rows without any value" in warning and "line 2" in warning and f"line {N + 3}" in warning
+
+
+def test_comment_mark_before_the_header_is_dropped(tmp_path: Path) -> None:
+    lines = ["# Time (s), CH1 (V)", *_rows(np.arange(N) * DT, _signal())]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.time_column == "Time (s)"
+
+
+def test_index_column_is_an_ordinary_column(tmp_path: Path) -> None:
+    lines = ["No.,Time (s),CH1 (V)", *[f"{k},{r}" for k, r in enumerate(_rows(np.arange(N) * DT, _signal()))]]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.time_column == "Time (s)"
+    assert [c.header for c in capture.channels] == ["No.", "CH1 (V)"]
+    assert capture.channel(2).header == "CH1 (V)"

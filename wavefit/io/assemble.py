@@ -8,7 +8,7 @@ from __future__ import annotations
 import math
 import numbers
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -82,6 +82,8 @@ def assemble(
         time information, or the time column fails its checks.
     """
     _check_interval_argument(sample_interval)
+    warnings = list(table.preamble.warnings)
+    table = _without_empty_edges(table, warnings)
     rows = table.columns[0].size if table.columns else 0
     if rows < MIN_ROWS:
         raise CaptureError(
@@ -89,7 +91,6 @@ def assemble(
             f"a capture needs at least {MIN_ROWS}"
         )
     units = [parse_header(h) for h in table.headers]
-    warnings = list(table.preamble.warnings)
     warnings += [
         f"column {h!r}: unit {u.unit!r} is not recognised; its values are kept unscaled"
         for h, u in zip(table.headers, units)
@@ -116,6 +117,29 @@ def assemble(
         metadata=dict(table.preamble.metadata),
         warnings=tuple(warnings) + axis.warnings,
     )
+
+
+def _without_empty_edges(table: Table, warnings: list[str]) -> Table:
+    """The table without rows that have no value at all before its first or after its last data row."""
+    empty = np.ones(table.columns[0].size if table.columns else 0, dtype=bool)
+    for column in table.columns:
+        empty &= np.isnan(column)
+    kept = np.flatnonzero(~empty)
+    if kept.size == 0 or (kept[0] == 0 and kept[-1] == empty.size - 1):
+        return table
+    first, stop = int(kept[0]), int(kept[-1]) + 1
+    dropped = [*range(first), *range(stop, empty.size)]
+    places = table.where(dropped[:_LISTED_PLACES])
+    listed = ", ".join(places) + (", ..." if len(dropped) > _LISTED_PLACES else "")
+    warnings.append(
+        f"{len(dropped)} row{'s' if len(dropped) > 1 else ''} without any value before or after "
+        f"the data ({listed}) {'were' if len(dropped) > 1 else 'was'} left out"
+    )
+
+    def where(rows: Sequence[int]) -> list[str]:
+        return table.where([row + first for row in rows])
+
+    return replace(table, columns=[c[first:stop] for c in table.columns], where=where)
 
 
 def _check_interval_argument(sample_interval: float | None) -> None:

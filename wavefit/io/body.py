@@ -3,13 +3,14 @@
 The body is never held as one Python string: pandas reads the (decompressed)
 byte stream in chunks and produces float64 columns. When it refuses a cell, a
 second streaming pass over the file finds the first offending line so the
-message can name it; the same pass maps row numbers to line numbers for other
-messages.
+message can name it (or finds that only text follows the table: a footer); the
+same kind of pass maps row numbers to line numbers for other messages.
 """
 from __future__ import annotations
 
 import io
 from collections.abc import Iterator, Sequence
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -20,8 +21,40 @@ from .layout import Layout, bad_cell_message
 from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
 
-def read_body(source: FileSource, layout: Layout, encoding: str) -> list[np.ndarray]:
+#: Most text lines accepted after the table as a footer; more is a broken file.
+MAX_FOOTER_LINES = 50
+
+
+@dataclass(frozen=True)
+class Body:
+    """The table's columns, and the text lines that followed it.
+
+    Attributes
+    ----------
+    columns
+        One float64 array per column of ``layout.headers``, NaN where a cell is empty.
+    footer
+        ``(line number, text)`` of the lines of text after the last numeric row.
+    """
+
+    columns: list[np.ndarray]
+    footer: tuple[tuple[int, str], ...] = ()
+
+
+@dataclass(frozen=True)
+class _Scan:
+    """What a line-by-line pass found: a bad line's message, or where a text footer starts."""
+
+    message: str | None
+    rows: int = 0
+    footer: tuple[tuple[int, str], ...] = ()
+
+
+def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
     """Read the table's columns as float64 arrays.
+
+    When the parser stops at a line of text and only text follows to the end
+    of the file, those lines are a footer: the table is read again up to them.
 
     Parameters
     ----------
@@ -34,22 +67,40 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> list[np.ndar
 
     Returns
     -------
-    list of numpy.ndarray
-        One float64 array per column of ``layout.headers``, NaN where a cell is empty.
+    Body
+        The columns and any footer lines.
 
     Raises
     ------
     CaptureError
         Naming the first line with a non-numeric cell or too many cells.
     """
+    footer: tuple[tuple[int, str], ...] = ()
+    try:
+        frame = _parse(source, layout, encoding, rows=None)
+    except (ValueError, pd.errors.ParserError) as exc:
+        scan = _scan(source, layout, encoding, exc)
+        if scan.message is not None:
+            raise CaptureError(scan.message) from None
+        frame = _parse(source, layout, encoding, rows=scan.rows)
+        footer = scan.footer
+    columns = {j: frame[j].to_numpy() for j in range(layout.n_fields)}
+    del frame
+    _refuse_values_in_unread_cells(columns, source, layout, encoding)
+    return Body([columns[j] for j in layout.fields], footer)
+
+
+def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None) -> pd.DataFrame:
+    """Run the pandas C parser over the table (its first ``rows`` rows when given)."""
     try:
         with source.open_binary() as stream:
-            frame = pd.read_csv(
+            return pd.read_csv(
                 stream,
                 engine="c",
                 sep=r"\s+" if layout.sep == WHITESPACE else layout.sep,
                 decimal=layout.decimal,
                 skiprows=layout.data_start,
+                nrows=rows,
                 header=None,
                 names=list(range(layout.n_fields)),
                 index_col=False,
@@ -64,12 +115,6 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> list[np.ndar
             )
     except GZIP_ERRORS as exc:
         raise CaptureError(damaged_gzip_message(source.name, exc)) from None
-    except (ValueError, pd.errors.ParserError) as exc:
-        raise CaptureError(_explain_failure(source, layout, encoding, exc)) from None
-    columns = {j: frame[j].to_numpy() for j in range(layout.n_fields)}
-    del frame
-    _refuse_values_in_unread_cells(columns, source, layout, encoding)
-    return [columns[j] for j in layout.fields]
 
 
 def line_numbers(
@@ -118,26 +163,49 @@ def _table_lines(source: FileSource, layout: Layout, encoding: str) -> Iterator[
                 yield number, line.rstrip("\r\n")
 
 
-def _explain_failure(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> str:
-    """Message naming the first bad line, found by a streaming scan after the parser failed."""
-    n_fields = layout.n_fields
+def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> _Scan:
+    """Find the first line the parser refused, and whether only text follows it (a footer)."""
+    lines = _table_lines(source, layout, encoding)
     fast = row_pattern(layout.sep, layout.decimal)
-    for number, line in _table_lines(source, layout, encoding):
+    rows = 0
+    message: str | None = None
+    footer: list[tuple[int, str]] = []
+    for number, line in lines:
         if not line.strip():
             continue
-        if '"' not in line and fast.fullmatch(line) and _count_cells(line, layout.sep) <= n_fields:
+        quick = '"' not in line and fast.fullmatch(line) is not None
+        if quick and _count_cells(line, layout.sep) <= layout.n_fields:
+            if message is not None:
+                return _Scan(message)
+            rows += 1
             continue
-        cells = split_line(line, layout.sep)
-        if len(cells) > n_fields:
-            return (
-                f"{source.name}, line {number}: {len(cells)} cells where the table has "
-                f"{n_fields} ({layout.describe_separator()}-separated); fix or delete that line"
-            )
-        for cell in cells:
-            if not is_number(cell, layout.decimal) and not is_missing(cell):
-                return bad_cell_message(source.name, number, cell)
-    reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-    return f"{source.name}: the table body could not be parsed ({reason}); check the file"
+        problem = _line_problem(source.name, number, line, layout)
+        if message is None:
+            if problem is None:
+                rows += 1
+                continue
+            message = problem
+        elif problem is None or len(footer) >= MAX_FOOTER_LINES:
+            return _Scan(message)
+        footer.append((number, line.strip()))
+    if message is None:
+        reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        return _Scan(f"{source.name}: the table body could not be parsed ({reason}); check the file")
+    return _Scan(None, rows, tuple(footer))
+
+
+def _line_problem(name: str, number: int, line: str, layout: Layout) -> str | None:
+    """Message for a line that is not a valid table row, or None when it is one."""
+    cells = split_line(line, layout.sep)
+    if len(cells) > layout.n_fields:
+        return (
+            f"{name}, line {number}: {len(cells)} cells where the table has "
+            f"{layout.n_fields} ({layout.describe_separator()}-separated); fix or delete that line"
+        )
+    for cell in cells:
+        if not is_number(cell, layout.decimal) and not is_missing(cell):
+            return bad_cell_message(name, number, cell)
+    return None
 
 
 def _count_cells(line: str, sep: str) -> int:

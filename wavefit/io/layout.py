@@ -21,6 +21,7 @@ _SEPARATOR_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", WHITESPACE: "bl
 _LINE_BREAK = re.compile(r"\r\n|\r|\n")
 _EARLIER_TABLE_ROWS = 3
 _UNIT_BRACKETS = "()[]{}"
+_COMMENT_MARK = re.compile(r"^(?:#+|%+|//+)\s*")
 _RULE = re.compile(r"[\s,;|]*[-=_*~]{3,}[-=_*~\s,;|]*")
 
 
@@ -134,6 +135,7 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
     names, header_start = _find_header(lines, sep, decimal, run, source)
     if names is None:
         names = ("",) * run.n_used
+    names = (_COMMENT_MARK.sub("", names[0]), *names[1:])
     fields = tuple(j for j, name in enumerate(names) if name or j in run.filled)
     headers = tuple(names[j] or str(j) for j in fields)
     first_text_above = header_start if header_start is not None else run.start

@@ -2,20 +2,23 @@
 from __future__ import annotations
 
 import os
+import re
 from collections.abc import Sequence
+from dataclasses import replace
 
 from .assemble import Table, assemble
 from .body import line_numbers, read_body
 from .capture import Capture
 from .encoding import decode_head
 from .layout import sniff_layout
-from .preamble import read_preamble
+from .preamble import Preamble, read_preamble
 from .source import open_source
 
 #: The layout is sniffed on at most this many lines ...
 SNIFF_LINES = 200
 #: ... and at most this many bytes from the start of the (decompressed) file.
 SNIFF_BYTES = 1 << 20
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f]")
 
 
 def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None = None) -> Capture:
@@ -49,7 +52,9 @@ def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None 
     head = decode_head(raw, complete=complete, source=source.name)
     layout = sniff_layout(head.text, complete=complete, source=source.name)
     preamble = read_preamble(layout.preamble, layout.sep)
-    columns = read_body(source, layout, head.encoding)
+    body = read_body(source, layout, head.encoding)
+    if body.footer:
+        preamble = _with_footer(preamble, body.footer)
 
     def where(rows: Sequence[int]) -> list[str]:
         return [f"line {n}" for n in line_numbers(source, layout, head.encoding, rows)]
@@ -57,9 +62,26 @@ def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None 
     table = Table(
         source=source.name,
         headers=layout.headers,
-        columns=columns,
+        columns=body.columns,
         where=where,
         has_header=layout.header_line is not None,
         preamble=preamble,
     )
     return assemble(table, sample_interval=sample_interval)
+
+
+def _with_footer(preamble: Preamble, footer: tuple[tuple[int, str], ...]) -> Preamble:
+    """The preamble plus the text lines after the table, as ``footer1``, ... and a warning."""
+    texts = [(n, _CONTROL.sub("", text).strip()) for n, text in footer]
+    texts = [(n, text) for n, text in texts if text]
+    if not texts:
+        return preamble  # only an end-of-file mark such as the DOS Ctrl-Z
+    metadata = dict(preamble.metadata)
+    metadata.update({f"footer{k}": text for k, (_, text) in enumerate(texts, 1)})
+    first, last = texts[0][0], texts[-1][0]
+    where = f"line {first}" if first == last else f"lines {first}-{last}"
+    warning = (
+        f"{where} after the table {'is' if first == last else 'are'} text "
+        f"({texts[0][1][:40]!r}), kept as footer metadata, not data"
+    )
+    return replace(preamble, metadata=metadata, warnings=(*preamble.warnings, warning))
