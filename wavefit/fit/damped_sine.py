@@ -216,8 +216,15 @@ def ring_window(y: np.ndarray) -> RingWindow:
     peak = float(dev.max())
     if not peak > 0:
         raise ValueError("the record is flat: no ring to fit")
-    k1 = int(np.argmax(dev > 0.5 * peak))
-    onset = _onset(y, k1, peak)
+    head = y[:8]
+    initial = float(np.median(head))
+    dev0 = np.abs(y - initial)
+    if np.ptp(head) < 0.1 * float(dev0.max()):
+        # a pre-trigger baseline: the excitation leaves it (the final level may differ from it)
+        k1 = int(np.argmax(dev0 > 0.5 * float(dev0.max())))
+        onset = _onset(y, k1, float(dev0.max()))
+    else:
+        k1, onset = 0, 0  # the record starts inside the ring
     spp = _samples_per_period(y[onset:] - final)
     skip = 0 if onset == 0 and k1 < 2 else max(2, int(math.ceil(0.02 * spp)))
     block = max(4, int(round(spp)))
@@ -227,7 +234,8 @@ def ring_window(y: np.ndarray) -> RingWindow:
     env = dev[onset:onset + m * block].reshape(m, block).max(axis=1)
     floor = float(np.median(env[-max(1, m // 4):]))
     stop, second = n, False
-    for k in range(1, m):
+    first = int(np.argmax(env)) + 1
+    for k in range(max(first, 1), m):
         if env[k] > 1.5 * env[k - 1] + 2.0 * floor and env[k] > 0.2 * peak:
             stop, second = onset + (k - 1) * block, True  # the block before may hold the edge
             env = env[:k - 1] if k > 1 else env[:1]

@@ -266,7 +266,7 @@ def _drift_check(ring: DampedSineFit, y: np.ndarray, noise: str) -> dict[str, An
 
 
 def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, float] | None:
-    """A spectral line in the residuals well above the local noise floor and above −40 dB of
+    """A spectral line in the residuals well above the local noise floor and above −30 dB of
     the ring's energy (common practice for spotting a spurious tone), or None."""
     n = r.size
     if n < 64:
@@ -275,12 +275,12 @@ def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, floa
     floor = ndimage.median_filter(spec, size=31, mode="nearest") / math.log(2.0)
     ratio = spec[2:] / np.maximum(floor[2:], 1e-300)
     k = 2 + int(np.argmax(ratio))
-    if ratio[k - 2] < math.log(spec.size) + 15.0:
+    if ratio[k - 2] < math.log(spec.size) + 20.0:
         return None
     band = slice(max(k - 2, 0), k + 3)
     energy = float(np.sum(np.clip(spec[band] - floor[band], 0, None))) * 2.0 / n
     relative = energy / max(float(ring @ ring), 1e-300)
-    if relative < 1e-4:
+    if relative < 1e-3:
         return None
     return {"frequency": k / (n * dt), "relative_energy": relative}
 

@@ -1,0 +1,112 @@
+"""lc-ring method: setup checks, warnings, refusals, JSON contract, CLI.
+
+The rings here come from wavefit.synth.lc and only trigger behaviour (warnings,
+errors, output shape); accuracy is checked against ngspice in test_lc_ring_spice.py.
+"""
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import wavefit
+from wavefit.cli import main
+from wavefit.synth.lc import Tank, ringdown
+from wavefit.synth.scope import ScopeModel
+
+TANK = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=2.0, feed_resistance=20e3)
+SETUP = {"method": "lc-ring", "columns": {"time": "t", "tank": "v"},
+         "parts": {"tank_capacitor": "10 nF ±1%", "parallel_load": "20 kohm ±1%"}}
+
+
+def _frame(tank: Tank = TANK, spp: float = 30, n: int = 3000, noise: float = 0.01, seed: int = 1,
+           warp=None) -> pd.DataFrame:
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * spp)
+    t, v = ringdown(tank, dt, n, pre_trigger=50)
+    if warp is not None:
+        v = warp(t, v)
+    y = ScopeModel(noise_rms=noise * float(np.abs(v).max())).apply(v, np.random.default_rng(seed))
+    return pd.DataFrame({"t": t, "v": y})
+
+
+def test_json_contract_and_quantities():
+    result = wavefit.analyze(_frame(), setup=SETUP)
+    data = json.loads(json.dumps(result.to_dict(), allow_nan=False))
+    assert data["method"] == "lc-ring"
+    for name, unit in [("f0", "Hz"), ("fd", "Hz"), ("alpha", "1/s"), ("Q_loaded", ""), ("Q", ""),
+                       ("L", "H"), ("R", "ohm")]:
+        entry = data["quantities"][name]
+        assert entry["unit"] == unit
+        assert entry["expanded_uncertainty"] > 0 and entry["coverage_factor"] > 1.9
+    assert {line["source"] for line in data["budget"]["L"]} >= {"fit w_d", "timebase", "tank_capacitor"}
+    assert data["warnings"] == []
+    assert result.value("Q") > result.value("Q_loaded")
+
+
+def test_drifting_frequency_is_flagged():
+    # a frequency that rises as the ring decays (as a saturating core does) stretches the phase
+    def warp(t, v):
+        alpha, w_d = TANK.poles()
+        tt = np.clip(t, 0, None)
+        phase = w_d * tt + 0.002 * w_d / alpha * (1 - np.exp(-alpha * tt)) * -1.0
+        return np.where(t < 0, 0.0, np.exp(-alpha * tt) * np.sin(phase) * 0.01)
+
+    result = wavefit.analyze(_frame(warp=warp, noise=0.002), setup=SETUP)
+    assert any("frequency changes with amplitude" in w for w in result.warnings)
+
+
+def test_second_mode_is_flagged():
+    def warp(t, v):
+        alpha, w_d = TANK.poles()
+        tt = np.clip(t, 0, None)
+        return v + np.where(t < 0, 0.0, 0.05 * np.abs(v).max() * np.exp(-alpha * tt) * np.sin(2.7 * w_d * tt))
+
+    result = wavefit.analyze(_frame(warp=warp, noise=0.002), setup=SETUP)
+    assert any("second oscillation" in w for w in result.warnings)
+
+
+def test_undersampled_and_few_cycles_warn():
+    result = wavefit.analyze(_frame(spp=6, n=600), setup=SETUP)
+    assert any("samples per period" in w for w in result.warnings)
+    lossy = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=45.0, feed_resistance=20e3)
+    parts = dict(SETUP["parts"])
+    result = wavefit.analyze(_frame(lossy, noise=0.02), setup=dict(SETUP, parts=parts))
+    assert any("too few cycles" in w for w in result.warnings)
+
+
+def test_load_that_explains_all_damping_is_refused():
+    lossless = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=1e-6, feed_resistance=20e3)
+    with pytest.raises(wavefit.AnalysisRefused, match="parallel_load"):
+        wavefit.analyze(_frame(lossless), setup=SETUP)
+
+
+def test_noise_only_is_refused():
+    frame = pd.DataFrame({"t": np.arange(2000) * 1e-7, "v": np.random.default_rng(2).normal(size=2000)})
+    with pytest.raises(wavefit.AnalysisRefused):
+        wavefit.analyze(frame, setup=SETUP)
+
+
+@pytest.mark.parametrize("change, match", [
+    ({"parts": {}}, "tank_capacitor"),
+    ({"options": {"coil_loss": "both"}}, "coil_loss"),
+    ({"options": {"fit_start": "1 s"}}, "outside the record"),
+    ({"parts": {"tank_capacitor": "10 nH"}}, "expected 'F'"),
+])
+def test_setup_errors(change, match):
+    with pytest.raises(wavefit.SetupError, match=match):
+        wavefit.analyze(_frame(), setup=dict(SETUP, **change))
+
+
+def test_cli_json(tmp_path, capsys):
+    _frame().to_csv(tmp_path / "ring.csv", index=False)
+    (tmp_path / "setup.toml").write_text(
+        'method = "lc-ring"\n[columns]\ntime = "t"\ntank = "v"\n'
+        '[parts]\ntank_capacitor = "10 nF ±1%"\nparallel_load = "20 kohm ±1%"\n')
+    code = main(["analyze", str(tmp_path / "ring.csv"), "--setup", str(tmp_path / "setup.toml"), "--json"])
+    assert code == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["quantities"]["L"]["value"] == pytest.approx(TANK.inductance, rel=0.02)
