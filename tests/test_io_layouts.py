@@ -163,6 +163,11 @@ def quoted() -> tuple[bytes, dict]:
     return "\n".join(['"Time (s)","CH1 (V)","CH2 (A)"', *rows]).encode(), {}
 
 
+def quoted_decimal_comma() -> tuple[bytes, dict]:
+    rows = ['"' + r.replace(",", "_").replace(".", ",").replace("_", '","') + '"' for r in _si_table()]
+    return "\n".join(['"Time (s)","CH1 (V)","CH2 (A)"', *rows]).encode(), {}
+
+
 def time_offset_column() -> tuple[bytes, dict]:
     # Time starts at 0 here too; a start offset is checked in test_io_reader.
     rows = _table([TIME * 1e3, VOLTS, AMPS])
@@ -174,7 +179,7 @@ LAYOUTS: list[Layout] = [
     bare_cr, trailing_separators, blank_lines, key_value_preamble, free_text_preamble,
     headerless_interval, preamble_interval_text, preamble_rate, preamble_dt, interval_argument,
     headerless_argument, gzip_suffix, gzip_magic_only, prefixed_units, units_row, units_row_words, empty_cells_and_rule, slash_units,
-    quoted, time_offset_column,
+    quoted, quoted_decimal_comma, time_offset_column,
 ]
 
 

@@ -118,8 +118,8 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
     best: tuple[tuple[int, ...], str, str, _Run] | None = None
     for priority, sep in enumerate(SEPARATORS):
         for decimal in (".", ","):
-            if sep == decimal:
-                continue
+            if sep == decimal and sep != ",":
+                continue  # "," with "," only works with quoted cells: "0,5","1,2"
             run = _longest_run(lines, sep, decimal)
             if run is None:
                 continue
