@@ -1,0 +1,114 @@
+"""lc-sweep and the York line: published line data, scipy.odr, ngspice sweeps."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import odr
+
+import wavefit
+from spice import needs_ngspice, simulate
+from wavefit.fit.line_eiv import york_line
+from wavefit.synth.scope import ScopeModel
+
+# Pearson's data with York's weights, the usual benchmark of York 2004 (Am. J. Phys. 72, 367);
+# the values and weights are from memory
+PEARSON_X = np.array([0.0, 0.9, 1.8, 2.6, 3.3, 4.4, 5.2, 6.1, 6.5, 7.4])
+PEARSON_Y = np.array([5.9, 5.4, 4.4, 4.6, 3.5, 3.7, 2.8, 2.8, 2.4, 1.5])
+W_X = np.array([1000, 1000, 500, 800, 200, 80, 60, 20, 1.8, 1.0])
+W_Y = np.array([1, 1.8, 4, 8, 20, 20, 70, 70, 100, 500.0])
+
+
+def test_york_line_on_pearson_data():
+    line = york_line(PEARSON_X, PEARSON_Y, 1 / np.sqrt(W_X), 1 / np.sqrt(W_Y))
+    # York et al. 2004: b = −0.4805, a = 5.4799 (memory)
+    assert line.slope == pytest.approx(-0.4805, abs=2e-4)
+    assert line.intercept == pytest.approx(5.4799, abs=2e-4)
+    # independent implementation: ODRPACK through scipy.odr; its sd_beta is scaled by the
+    # residual variance, so unscale it to compare with the weight-based uncertainties
+    fit = odr.ODR(odr.RealData(PEARSON_X, PEARSON_Y, sx=1 / np.sqrt(W_X), sy=1 / np.sqrt(W_Y)),
+                  odr.unilinear, beta0=[-0.5, 5.5]).run()
+    assert line.slope == pytest.approx(fit.beta[0], rel=1e-5)
+    sd = fit.sd_beta / math.sqrt(fit.res_var)
+    assert math.sqrt(line.covariance[0, 0]) == pytest.approx(sd[0], rel=1e-3)
+    assert math.sqrt(line.covariance[1, 1]) == pytest.approx(sd[1], rel=1e-3)
+
+
+def test_exact_abscissae_reduce_to_weighted_least_squares():
+    x = np.array([1.0, 2.0, 3.0, 5.0])
+    y = np.array([2.1, 3.9, 6.2, 9.8])
+    u = np.array([0.1, 0.2, 0.1, 0.3])
+    line = york_line(x, y, np.zeros(4), u)
+    coef, cov = np.polyfit(x, y, 1, w=1 / u, cov="unscaled")
+    assert line.slope == pytest.approx(coef[0], rel=1e-12)
+    assert line.intercept == pytest.approx(coef[1], rel=1e-12)
+    np.testing.assert_allclose(line.covariance[0, 0], cov[0, 0], rtol=1e-10)
+
+
+L_COIL, DCR, R_CORE, C_SELF, R_FEED = 1e-3, 10.0, 500e3, 30e-12, 100e3
+
+
+def _capture(c_tank: float, seed: int) -> pd.DataFrame:
+    w0 = 1 / math.sqrt(L_COIL * (c_tank + C_SELF))
+    dt = 2 * math.pi / (w0 * 30)
+    netlist = f"""
+V1 in 0 PULSE(0 1 {5 * dt:.6e} {dt / 50:.6e} {dt / 50:.6e} 1 2)
+Rf in tank {R_FEED}
+L1 tank mid {L_COIL}
+R1 mid 0 {DCR}
+Rc tank 0 {R_CORE}
+Cw tank 0 {C_SELF}
+Ct tank 0 {c_tank}
+"""
+    t, vec = simulate(netlist, dt / 4, 60 * 2 * math.pi / w0, ["v(tank)"])
+    v = vec["v(tank)"][::4]
+    y = ScopeModel(noise_rms=0.01 * float(np.abs(v).max()), correlation_samples=5, bits=8).apply(
+        v, np.random.default_rng(seed))
+    return pd.DataFrame({"t": t[::4], "tank": y})
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_sweep_matches_ngspice(tmp_path):
+    caps = [100e-12, 220e-12, 470e-12, 1e-9]
+    entries = []
+    for k, c in enumerate(caps):
+        name = f"ring{k}.csv"
+        _capture(c, seed=k).to_csv(tmp_path / name, index=False)
+        entries.append({"file": name, "tank_capacitor": f"{c} F ±1%"})
+    lines = ['method = "lc-sweep"', "[columns]", 'time = "t"', 'tank = "tank"', "[parts]",
+             'parallel_load = "100 kohm ±1%"']
+    for e in entries:
+        lines += ["[[captures]]", f'file = "{e["file"]}"', f'tank_capacitor = "{e["tank_capacitor"]}"']
+    (tmp_path / "sweep.toml").write_text("\n".join(lines) + "\n")
+    result = wavefit.analyze(None, setup=tmp_path / "sweep.toml")
+    q = result.quantities
+    # issue 4 acceptance: L within 1 %, C within its expanded uncertainty or 15 %
+    assert q["L"].value == pytest.approx(L_COIL, rel=0.01)
+    assert abs(q["C"].value - C_SELF) <= max(q["C"].expanded_uncertainty, 0.15 * C_SELF)
+    assert q["srf"].value == pytest.approx(1 / (2 * math.pi * math.sqrt(q["L"].value * q["C"].value)), rel=1e-12)
+    assert not [w for w in result.warnings if "line" in w]
+    assert len(result.fit["captures"]) == 4
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_wrong_capacitor_value_is_flagged():
+    frames = [_capture(c, seed=10 + k) for k, c in enumerate([100e-12, 220e-12, 470e-12])]
+    setup = {"method": "lc-sweep", "columns": {"time": "t", "tank": "tank"},
+             "parts": {"parallel_load": "100 kohm"},
+             "captures": [{"file": "a.csv", "tank_capacitor": "100 pF ±0.1%"},
+                          {"file": "b.csv", "tank_capacitor": "300 pF ±0.1%"},   # really 220 pF
+                          {"file": "c.csv", "tank_capacitor": "470 pF ±0.1%"}]}
+    result = wavefit.analyze(frames, setup=setup)
+    assert any("do not lie on a line" in w for w in result.warnings)
+
+
+def test_one_capture_is_refused():
+    frame = pd.DataFrame({"t": np.arange(100) * 1e-6, "tank": np.zeros(100)})
+    setup = {"method": "lc-sweep", "columns": {"time": "t", "tank": "tank"},
+             "captures": [{"file": "a.csv", "tank_capacitor": "1 nF"}]}
+    with pytest.raises(wavefit.AnalysisRefused, match="at least two"):
+        wavefit.analyze([frame], setup=setup)
