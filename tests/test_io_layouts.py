@@ -230,7 +230,9 @@ def random_capture(draw: st.DrawFn) -> tuple[bytes, dict, np.ndarray, list[np.nd
     decimal = draw(st.sampled_from([".", ","])) if sep.strip() != "," else "."
     time_source = draw(st.sampled_from(["column", "preamble", "argument"]))
     trailing = sep if sep.strip() and draw(st.booleans()) else ""
-    newline = draw(st.sampled_from(["\n", "\r\n"]))
+    newline = draw(st.sampled_from(["\n", "\r\n", "\r"]))
+    quote = '"' if draw(st.booleans()) else ""
+    blank_after = draw(st.lists(st.integers(0, rows - 1), max_size=3))
     preamble = draw(st.lists(st.sampled_from(["Device,bench scope", "Free text line", "Probe: 10X"]), max_size=3))
     encoding = draw(st.sampled_from(["utf-8", "utf-8-sig", "latin-1"]))
     compress = draw(st.booleans())
@@ -252,8 +254,10 @@ def random_capture(draw: st.DrawFn) -> tuple[bytes, dict, np.ndarray, list[np.nd
     else:
         options["sample_interval"] = dt
         time = np.arange(rows) * dt
-    lines = [*preamble, sep.join(headers) + trailing]
-    lines += [sep.join(fmt(v) for v in row) + trailing for row in zip(*columns)]
+    lines = [*preamble, sep.join(f"{quote}{h}{quote}" for h in headers) + trailing]
+    for k, row in enumerate(zip(*columns)):
+        lines.append(sep.join(f"{quote}{fmt(v)}{quote}" for v in row) + trailing)
+        lines += [""] * blank_after.count(k)
     data = newline.join(lines).encode(encoding)
     if compress:
         data = gzip.compress(data)
