@@ -219,7 +219,7 @@ def ring_window(y: np.ndarray) -> RingWindow:
     head = y[:8]
     initial = float(np.median(head))
     dev0 = np.abs(y - initial)
-    if np.ptp(head) < 0.1 * float(dev0.max()):
+    if np.ptp(head) < 0.5 * float(dev0.max()):
         # a pre-trigger baseline: the excitation leaves it (the final level may differ from it)
         k1 = int(np.argmax(dev0 > 0.5 * float(dev0.max())))
         onset = _onset(y, k1, float(dev0.max()))
