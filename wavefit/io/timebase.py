@@ -78,27 +78,26 @@ def axis_from_column(
     bad = np.flatnonzero(~(steps > 0))
     if bad.size:
         raise CaptureError(_not_increasing_message(time, int(bad[0]) + 1, header, where, source))
-    dt = float(np.median(steps))
-    deviation = steps - dt  # signed for the rms below, then made relative in place
-    mean = float(deviation.mean())
-    jitter = math.sqrt(max(float(np.dot(deviation, deviation)) / deviation.size - mean * mean, 0.0)) / dt
-    np.abs(deviation, out=deviation)
-    deviation /= dt
-    worst = int(np.argmax(deviation))
-    if deviation[worst] <= MAX_INTERVAL_DEVIATION and jitter <= JITTER_WARNING:
+    # The median reorders ``steps`` in place (no copy of a long column); only
+    # order-free figures are taken from it afterwards.
+    dt = float(np.median(steps, overwrite_input=True))
+    steps -= dt
+    mean = float(steps.mean())
+    jitter = math.sqrt(max(float(np.dot(steps, steps)) / steps.size - mean * mean, 0.0)) / dt
+    largest = float(np.max(np.abs(steps, out=steps))) / dt
+    del steps
+    if largest <= MAX_INTERVAL_DEVIATION and jitter <= JITTER_WARNING:
         return TimeAxis(time, dt)
     grid, slope, shift = _fitted_grid(time)
     resolution = printing_resolution(time)
     if resolution < _COARSEST_RESOLUTION * dt and shift <= _ROUNDING_SLACK * resolution:
         return TimeAxis(grid, slope, (
             f"time column {header!r} is printed with a resolution of about {resolution:.2g} s, "
-            f"so its intervals vary by up to {100 * deviation[worst]:.3g} % of {slope:.6g} s; "
+            f"so its intervals vary by up to {100 * largest:.3g} % of {slope:.6g} s; "
             f"the axis was rebuilt as a uniform grid fitted to it (largest shift {shift:.2g} s)",
         ))
-    if deviation[worst] > MAX_INTERVAL_DEVIATION:
-        raise CaptureError(
-            _non_uniform_message(steps, dt, deviation, worst, resolution, where, source)
-        )
+    if largest > MAX_INTERVAL_DEVIATION:
+        raise CaptureError(_non_uniform_message(time, dt, resolution, where, source))
     return TimeAxis(time, dt, (
         f"time column {header!r}: the sample intervals jitter by {100 * jitter:.2g} % rms "
         f"of the median {dt:.6g} s (warning above {100 * JITTER_WARNING:g} %); "
@@ -123,15 +122,12 @@ def _not_increasing_message(
 
 
 def _non_uniform_message(
-    steps: np.ndarray,
-    dt: float,
-    deviation: np.ndarray,
-    worst: int,
-    resolution: float,
-    where: Callable[[int], str],
-    source: str,
+    time: np.ndarray, dt: float, resolution: float, where: Callable[[int], str], source: str
 ) -> str:
     """Message for the largest interval deviation, with a hint at missing samples or coarse stamps."""
+    steps = np.diff(time)
+    deviation = np.abs(steps - dt) / dt
+    worst = int(np.argmax(deviation))
     off = float(steps[worst])
     ratio = off / dt
     hint = ""
