@@ -110,6 +110,13 @@ class RLStep(Method):
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]
         baseline = self._fit_baseline(t, sense, drive, windows[0], noise)
+        if self.option(setup, "skip") == "auto":
+            windows, fits, late = _settle_starts(t, sense, drive, windows, fits, baseline, noise,
+                                                 capture.source, self._fit_window)
+            if late:
+                notes.append(f"{late} edge window(s) start later: their first samples did not follow the "
+                             "exponential (finite generator edge or winding-capacitance ringing)")
+            baseline = self._fit_baseline(t, sense, drive, windows[0], noise)
         if baseline is None and len(windows) < 2:
             raise AnalysisRefused(f"{capture.source}: the record starts at the edge, so there is no settled "
                                   "pre-edge level to pin the offset; record some time before the step")
@@ -152,7 +159,9 @@ class RLStep(Method):
             t0s.append(t0)
         edge_time = max(durations) if durations else 0.0
         if skip_opt == "auto":
-            skip = 2.0 * dt + 2.0 * edge_time
+            # the least that is surely past the switching instant; _settle_starts then tests
+            # whether the first samples still follow the exponential
+            skip = 0.5 * dt + edge_time
             cw = setup.parts.get("winding_capacitance")
             if cw is not None:
                 rs = setup.parts.get("source_resistance")
@@ -308,6 +317,78 @@ class _Combined:
     by_direction: dict
     rise_fall: float | None
     birge: tuple[float, float] | None
+
+
+def _settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window):
+    """Start each window as early as the data allow, without admitting samples that do not
+    follow the exponential.
+
+    Without a drive channel the switching instant t0 is re-estimated as the instant where
+    the fitted exponential leaves the level of the state before (the previous window's
+    curve, or the pre-edge baseline). The information on tau of an exponential window
+    falls as exp(−2·s/tau) with the time s left out at its start (the record from s on is
+    the same model with a smaller amplitude), so each sample matters. Then the window
+    is refitted with its start moved later by Δ = max(4 samples, tau/10); if tau changes
+    by more than 3 standard deviations of the difference, var(τ_late) − var(τ_early)
+    (the Hausman test of nested estimators: J. A. Hausman, Econometrica 46 (1978)
+    1251–1271), the early samples are biased and the later start is kept, up to
+    three times.
+    """
+    dt = float(t[1] - t[0])
+    out_w, out_f, late = [], [], 0
+    for k, (w, f) in enumerate(zip(windows, fits)):
+        if drive is None:
+            t0 = _switch_instant(t, w, f, out_w[-1] if out_w else None, out_f[-1] if out_f else None, baseline)
+            if t0 is not None:
+                start = int(np.searchsorted(t, t0 + (t[w.start] - w.t0)))
+                if start != w.start and w.stop - start >= 8:
+                    w = _Window(w.edge, t0, start, w.stop)
+                    f = fit_window(t, sense, drive, w, noise, source)
+        step = max(4, int(math.ceil(0.1 * f["tau"] / dt)))
+        moved = False
+        for _ in range(3):
+            start = w.start + step
+            if w.stop - start < max(16, 4 * step):
+                break
+            w2 = _Window(w.edge, w.t0, start, w.stop)
+            f2 = fit_window(t, sense, drive, w2, noise, source)
+            var_d = f2.stderr("tau") ** 2 - f.stderr("tau") ** 2
+            if var_d > 0 and (f2["tau"] - f["tau"]) ** 2 / var_d > 9.0:
+                w, f, moved = w2, f2, True
+            else:
+                break
+        late += moved
+        out_w.append(w)
+        out_f.append(f)
+    return out_w, out_f, late
+
+
+def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> float | None:
+    """Where this window's fitted curve meets the curve of the state before (sense channel)."""
+    from scipy.optimize import brentq
+
+    dt = float(t[1] - t[0])
+    if prev_f is not None and prev_w.stop >= w.start - int(math.ceil(5 * f["tau"] / dt)):
+        def before(x):
+            return float(window_model(prev_f, "sense", np.array([x]))[0])
+    elif prev_f is None and baseline is not None:
+        level = baseline["final_sense"]
+
+        def before(x):
+            return level
+    else:
+        return None
+
+    def gap(x):
+        return float(window_model(f, "sense", np.array([x]))[0]) - before(x)
+
+    lo, hi = w.t0 - max(5 * dt, 0.3 * f["tau"]), float(t[w.start])
+    try:
+        if gap(lo) * gap(hi) > 0:
+            return None
+        return float(brentq(gap, lo, hi, xtol=1e-6 * dt))
+    except (ValueError, RuntimeError):
+        return None
 
 
 def _combine(windows, fits, baseline, has_drive) -> _Combined:

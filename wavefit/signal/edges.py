@@ -53,7 +53,7 @@ def noise_rms(y: np.ndarray) -> float:
 
 
 def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
-               min_snr: float = 10.0) -> list[Edge]:
+               min_snr: float = 5.0) -> list[Edge]:
     """Transitions of a two-state record, in time order.
 
     Parameters
