@@ -87,7 +87,7 @@ def split_lines(text: str) -> list[str]:
     return _LINE_BREAK.split(text)
 
 
-def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
+def sniff_layout(text: str, *, complete: bool, source: str, max_lines: int = 200) -> Layout:
     """Find separator, decimal mark, header and preamble from the first lines of a file.
 
     Parameters
@@ -99,6 +99,8 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
         line is ignored.
     source
         File name used in messages.
+    max_lines
+        Only this many lines from the start are looked at.
 
     Returns
     -------
@@ -113,6 +115,8 @@ def sniff_layout(text: str, *, complete: bool, source: str) -> Layout:
     lines = split_lines(text)
     if not complete and len(lines) > 1:
         lines = lines[:-1]
+    if len(lines) > max_lines:
+        lines, complete = lines[:max_lines], False
     if not any(line.strip() for line in lines):
         raise CaptureError(f"{source} contains only blank lines; export the capture again")
     best: tuple[tuple[int, ...], str, str, _Run] | None = None

@@ -50,7 +50,7 @@ def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None 
     source = open_source(path)
     raw, complete = source.read_head(SNIFF_BYTES, SNIFF_LINES)
     head = decode_head(raw, complete=complete, source=source.name)
-    layout = sniff_layout(head.text, complete=complete, source=source.name)
+    layout = sniff_layout(head.text, complete=complete, source=source.name, max_lines=SNIFF_LINES)
     preamble = read_preamble(layout.preamble, layout.sep)
     body = read_body(source, layout, head.encoding)
     if body.footer:
