@@ -9,6 +9,7 @@ temporary folder; each run starts from an empty results file. Run::
 from __future__ import annotations
 
 import argparse
+import contextlib
 import os
 import tempfile
 import time
@@ -49,11 +50,8 @@ def captures_per_second(folder: Path, workers: int) -> float:
                                       "--spec", str(folder / "spec.toml"), "--out", str(out),
                                       "--workers", str(workers), "--json"])
     start = time.perf_counter()
-    with open(os.devnull, "w") as sink:
-        import contextlib
-
-        with contextlib.redirect_stdout(sink):
-            code = run(args)
+    with open(os.devnull, "w") as sink, contextlib.redirect_stdout(sink):
+        code = run(args)
     elapsed = time.perf_counter() - start
     if code != 0:
         raise SystemExit(f"batch exited with {code}")
@@ -71,7 +69,7 @@ def main() -> None:
         write_lot(folder, args.captures)
         size = sum(p.stat().st_size for p in folder.glob("part*.csv")) / args.captures
         print(f"lot: {args.captures} captures, 2 channels x {SAMPLES} samples, {size / 1e6:.2f} MB each; "
-              f"{os.cpu_count()} cores")
+              f"{os.cpu_count()} cores, load average {os.getloadavg()[0]:.2f} before the runs")
         one = captures_per_second(folder, 1)
         print(f"1 worker : {one:6.2f} captures/s")
         if args.workers > 1:
