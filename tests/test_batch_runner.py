@@ -225,3 +225,45 @@ def test_run_rows_hands_every_row_to_the_sink(tmp_path):
     assert sorted(r["file"] for r in rows) == sorted(paths)
     missing = maker(str(tmp_path / "nope.txt"))
     assert missing["verdict"] == "error" and "cannot read" in missing["message"]
+
+
+def dying_fake_analyse(path: str, setup) -> AnalysisResult:
+    if Path(path).name == "part03.txt":
+        os._exit(1)          # a worker killed mid-analysis (out of memory, segfault)
+    return fake_analyse(path, setup)
+
+
+def test_dead_worker_stops_the_run_instead_of_hanging(tmp_path):
+    from wavefit.batch.runner import WorkerDied
+
+    make_lot(tmp_path, VALUES)
+    with pytest.raises(WorkerDied, match="run the same command again"):
+        run(batch_args(tmp_path, "--workers", "2"), analyse=dying_fake_analyse)
+    assert len(read_rows(tmp_path / "out.csv")) < len(VALUES)
+
+
+def test_bad_spec_exits_3_before_anything_is_written(tmp_path, capsys):
+    from wavefit.cli import main
+
+    make_lot(tmp_path, VALUES[:2])
+    (tmp_path / "spec.toml").write_text('[limits]\nQ = ">= 40"\n', encoding="utf-8")
+    args = ["batch", str(tmp_path / "part*.txt"), "--setup", str(tmp_path / "setup.toml"),
+            "--spec", str(tmp_path / "spec.toml"), "--out", str(tmp_path / "out.csv")]
+    assert main(args) == 3
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "limit for 'Q'" in err and "reports only: L, R" in err
+    assert not (tmp_path / "out.csv").exists()
+
+
+def test_no_progress_output_when_stderr_is_not_a_terminal(tmp_path, capsys):
+    make_lot(tmp_path, VALUES[:3])
+    assert run(batch_args(tmp_path, "--workers", "1"), analyse=fake_analyse) == 0
+    assert capsys.readouterr().err == ""
+
+
+def test_progress_bar_when_asked(tmp_path, capsys):
+    paths = [str(p) for p in make_lot(tmp_path, VALUES[:3])]
+    spec = parse_spec({"limits": {"L": "100 uH ±10%"}})
+    maker = RowMaker(load_setup(tmp_path / "setup.toml"), spec, ("L",), "s1", "s2", "test", fake_analyse)
+    run_rows(paths, maker, lambda row: None, workers=1, progress=True)
+    assert "3/3" in capsys.readouterr().err
