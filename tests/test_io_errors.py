@@ -2,12 +2,15 @@
 from __future__ import annotations
 
 import gzip
+import tempfile
 import zipfile
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from wavefit.errors import CaptureError
 from wavefit.io import capture_from_frame, read_capture
@@ -254,3 +257,40 @@ def test_frame_without_time() -> None:
 def test_empty_frame() -> None:
     with pytest.raises(CaptureError, match="has no columns"):
         capture_from_frame(pd.DataFrame())
+
+
+_VALID = "\n".join(["Sample interval,1e-8", "Time (s),CH1 (V),CH2 (V)", *_rows(40)]).encode()
+
+
+@settings(max_examples=150, deadline=None)
+@given(
+    st.lists(
+        st.tuples(
+            st.integers(0, len(_VALID)),
+            st.integers(0, 8),
+            st.binary(max_size=6)
+            | st.text(',;\t "\n\r.-+eE0123456789aN#\u00b5', max_size=6).map(str.encode),
+        ),
+        min_size=1,
+        max_size=6,
+    ),
+    st.booleans(),
+)
+def test_damaged_files_give_a_capture_or_a_capture_error(
+    edits: list[tuple[int, int, bytes]], compress: bool
+) -> None:
+    data = bytearray(_VALID)
+    for at, cut, insert in edits:
+        data[at : at + cut] = insert
+    payload = gzip.compress(bytes(data)) if compress else bytes(data)
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "damaged.csv"
+        path.write_bytes(payload)
+        try:
+            capture = read_capture(path)
+        except CaptureError as exc:
+            assert "\n" not in str(exc) and str(exc)
+            return
+    assert capture.rows >= 16
+    assert np.all(np.isfinite(capture.time)) and np.all(np.diff(capture.time) > 0)
+    assert all(np.all(np.isfinite(c.values)) for c in capture.channels)

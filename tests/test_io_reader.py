@@ -244,3 +244,15 @@ def test_index_column_is_an_ordinary_column(tmp_path: Path) -> None:
     assert capture.time_column == "Time (s)"
     assert [c.header for c in capture.channels] == ["No.", "CH1 (V)"]
     assert capture.channel(2).header == "CH1 (V)"
+
+
+def test_unitless_slow_time_column_is_questioned(tmp_path: Path) -> None:
+    capture = read_capture(_write(tmp_path, ["Time,CH1", *_rows(np.arange(N) * 0.5, _signal())]))
+    assert capture.sample_interval == 0.5
+    (warning,) = capture.warnings
+    assert "has no unit" in warning and "'Time (us)'" in warning
+
+
+def test_unitless_fast_time_column_is_seconds_without_warning(tmp_path: Path) -> None:
+    capture = read_capture(_write(tmp_path, ["Time,CH1", *_rows(np.arange(N) * DT, _signal())]))
+    assert capture.sample_interval == pytest.approx(DT) and capture.warnings == ()

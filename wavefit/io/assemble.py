@@ -24,6 +24,8 @@ MIN_ROWS = 16
 MAX_MISSING_FRACTION = 1e-3
 _LISTED_PLACES = 5
 _SAME_INTERVAL = 0.01
+# A unit-less time column stepping this slowly (s) may well be in ms, us or ns: say so.
+_SLOW_INTERVAL = 1e-3
 
 
 @dataclass(frozen=True)
@@ -245,6 +247,12 @@ def _time_axis(
             return table.where([row])[0]
 
         axis = axis_from_column(time, header=header, where=where, source=table.source)
+        if not unit.unit and axis.sample_interval >= _SLOW_INTERVAL:
+            warnings.append(
+                f"time column {header!r} has no unit and steps by {axis.sample_interval:.6g}, read "
+                "as seconds; if it is in ms, us or ns, say so in the header (e.g. 'Time (us)') "
+                "or pass a sample interval"
+            )
         if hint.sample_interval is not None and not _same(hint.sample_interval, axis.sample_interval):
             warnings.append(
                 f"the preamble gives a sample interval of {hint.sample_interval:.6g} s "
