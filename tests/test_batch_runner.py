@@ -126,24 +126,36 @@ def test_ctrl_c_keeps_rows_and_rerun_resumes(tmp_path, capsys):
     assert len(read_rows(tmp_path / "out.csv")) == 8
 
 
+def batch_script(folder: Path, analyse: str) -> str:
+    """A Python program that runs the batch command on ``folder`` with the named fake analysis."""
+    return ("import sys; sys.path.insert(0, {tests!r})\n"
+            "from test_batch_runner import batch_args, {analyse}\n"
+            "from pathlib import Path\n"
+            "from wavefit.batch.command import run\n"
+            "sys.exit(run(batch_args(Path({folder!r}), '--workers', '2'), analyse={analyse}))\n"
+            ).format(tests=str(Path(__file__).parent), folder=str(folder), analyse=analyse)
+
+
+def start_and_wait_for_rows(folder: Path, lines: int) -> subprocess.Popen:
+    """Start a slow batch run in a subprocess; return once the results file has ``lines`` lines."""
+    proc = subprocess.Popen([sys.executable, "-c", batch_script(folder, "slow_fake_analyse")],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    out = folder / "out.csv"
+    deadline = time.monotonic() + 60
+    while time.monotonic() < deadline and (not out.exists() or len(out.read_text().splitlines()) < lines):
+        time.sleep(0.02)
+    return proc
+
+
 def test_kill_9_then_rerun_never_doubles_a_row(tmp_path):
     make_lot(tmp_path, [100.0] * 12)
-    script = ("import sys; sys.path.insert(0, {tests!r})\n"
-              "from test_batch_runner import batch_args, slow_fake_analyse\n"
-              "from pathlib import Path\n"
-              "from wavefit.batch.command import run\n"
-              "sys.exit(run(batch_args(Path({folder!r}), '--workers', '2'), analyse=slow_fake_analyse))\n"
-              ).format(tests=str(Path(__file__).parent), folder=str(tmp_path))
-    proc = subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    proc = start_and_wait_for_rows(tmp_path, 4)
     out = tmp_path / "out.csv"
-    deadline = time.monotonic() + 60
-    while time.monotonic() < deadline and (not out.exists() or len(out.read_text().splitlines()) < 4):
-        time.sleep(0.02)
     os.kill(proc.pid, signal.SIGKILL)
     proc.wait(timeout=30)
     first = read_rows(out)
     assert 3 <= len(first) < 12
-    script_fast = script.replace("slow_fake_analyse", "fake_analyse")
+    script_fast = batch_script(tmp_path, "fake_analyse")
     for _ in range(60):  # orphaned workers of the killed run may hold the pool for a moment
         done = subprocess.run([sys.executable, "-c", script_fast], capture_output=True, text=True)
         if "being written by another run" not in done.stderr:
@@ -158,17 +170,8 @@ def test_kill_9_then_rerun_never_doubles_a_row(tmp_path):
 
 def test_sigterm_stops_with_143_and_valid_file(tmp_path):
     make_lot(tmp_path, [100.0] * 12)
-    script = ("import sys; sys.path.insert(0, {tests!r})\n"
-              "from test_batch_runner import batch_args, slow_fake_analyse\n"
-              "from pathlib import Path\n"
-              "from wavefit.batch.command import run\n"
-              "sys.exit(run(batch_args(Path({folder!r}), '--workers', '2'), analyse=slow_fake_analyse))\n"
-              ).format(tests=str(Path(__file__).parent), folder=str(tmp_path))
-    proc = subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    proc = start_and_wait_for_rows(tmp_path, 3)
     out = tmp_path / "out.csv"
-    deadline = time.monotonic() + 60
-    while time.monotonic() < deadline and (not out.exists() or len(out.read_text().splitlines()) < 3):
-        time.sleep(0.02)
     proc.send_signal(signal.SIGTERM)
     assert proc.wait(timeout=30) == 143
     rows = read_rows(out)

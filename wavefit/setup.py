@@ -93,17 +93,21 @@ def load_setup(setup: str | os.PathLike | Mapping[str, Any] | Setup) -> Setup:
     if isinstance(setup, Mapping):
         return parse_setup(setup, source="<dict>", base_dir=Path.cwd())
     path = Path(setup)
+    return parse_setup(read_toml(path, "setup"), source=str(path), base_dir=path.parent)
+
+
+def read_toml(path: Path, what: str) -> dict[str, Any]:
+    """The mapping in a UTF-8 TOML file; a SetupError naming the ``what`` file otherwise."""
     try:
         raw = path.read_bytes()
     except OSError as exc:
-        raise SetupError(f"cannot read setup file {path}: {exc.strerror or exc}") from None
+        raise SetupError(f"cannot read {what} file {path}: {exc.strerror or exc}") from None
     try:
-        data = tomllib.loads(raw.decode("utf-8-sig"))
+        return tomllib.loads(raw.decode("utf-8-sig"))
     except UnicodeDecodeError:
-        raise SetupError(f"setup file {path} is not UTF-8 text") from None
+        raise SetupError(f"{what} file {path} is not UTF-8 text") from None
     except tomllib.TOMLDecodeError as exc:
-        raise SetupError(f"setup file {path} is not valid TOML: {exc}") from None
-    return parse_setup(data, source=str(path), base_dir=path.parent)
+        raise SetupError(f"{what} file {path} is not valid TOML: {exc}") from None
 
 
 def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setup:

@@ -20,18 +20,13 @@ from __future__ import annotations
 import math
 import os
 import re
-import sys
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Mapping
 
 from ..errors import SetupError
+from ..setup import read_toml
 from ..values import parse_number_with_unit, parse_relative
-
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover - exercised on Python 3.10 only
-    import tomli as tomllib
 
 RULES = ("simple", "guard-band")
 TOP_LEVEL_KEYS = ("limits", "decision")
@@ -79,16 +74,7 @@ class Spec:
 def load_spec(path: str | os.PathLike[str]) -> Spec:
     """Read a spec from a TOML file."""
     path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise SetupError(f"cannot read spec file {path}: {exc.strerror or exc}") from None
-    try:
-        data = tomllib.loads(raw.decode("utf-8-sig"))
-    except UnicodeDecodeError:
-        raise SetupError(f"spec file {path} is not UTF-8 text") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise SetupError(f"spec file {path} is not valid TOML: {exc}") from None
+    data = read_toml(path, "spec")
     return parse_spec(data, source=str(path))
 
 
