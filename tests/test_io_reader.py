@@ -256,3 +256,17 @@ def test_unitless_slow_time_column_is_questioned(tmp_path: Path) -> None:
 def test_unitless_fast_time_column_is_seconds_without_warning(tmp_path: Path) -> None:
     capture = read_capture(_write(tmp_path, ["Time,CH1", *_rows(np.arange(N) * DT, _signal())]))
     assert capture.sample_interval == pytest.approx(DT) and capture.warnings == ()
+
+
+def test_arrays_are_read_only(tmp_path: Path) -> None:
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (mV),CH2 (V)", *[f"{r},1" for r in _rows(np.arange(N) * DT, _signal())]]))
+    for array in (capture.time, *(c.values for c in capture.channels)):
+        with pytest.raises(ValueError):
+            array[0] = 1.0
+
+
+def test_frame_capture_does_not_follow_later_edits() -> None:
+    frame = pd.DataFrame({"t": np.arange(N) * DT, "v": _signal()})
+    capture = capture_from_frame(frame)
+    frame.loc[0, "v"] = 99.0
+    assert capture.channel("v").values[0] == 0.0

@@ -102,7 +102,7 @@ def assemble(
     time_index = _time_index(table, units, time_column)
     axis, time_header = _time_axis(table, units, columns, time_index, sample_interval, warnings)
     channels = tuple(
-        Channel(u.name, h, u.unit, u.scale, _scaled(c, u.scale))
+        Channel(u.name, h, u.unit, u.scale, _read_only(_scaled(c, u.scale)))
         for i, (h, u, c) in enumerate(zip(table.headers, units, columns))
         if time_header is None or i != time_index
     )
@@ -111,7 +111,7 @@ def assemble(
             f"{table.source} has only the time column {time_header!r} and no signal column"
         )
     return Capture(
-        time=axis.time,
+        time=_read_only(axis.time),
         channels=channels,
         sample_interval=axis.sample_interval,
         source=table.source,
@@ -285,6 +285,12 @@ def _no_time_message(table: Table) -> str:
 def _scaled(values: np.ndarray, scale: float) -> np.ndarray:
     """``values`` in SI: the same array when the scale is 1, else a scaled copy."""
     return values if scale == 1.0 else values * scale
+
+
+def _read_only(values: np.ndarray) -> np.ndarray:
+    """``values`` marked read-only, as every array of a (frozen) capture is."""
+    values.flags.writeable = False
+    return values
 
 
 def _same(a: float, b: float) -> bool:

@@ -29,7 +29,8 @@ class Capture:
     """A uniformly sampled record: SI time axis, named channels, metadata.
 
     ``time`` is in seconds; ``time_column`` is the header of the time column,
-    or ``None`` when the axis was built from a sample interval.
+    or ``None`` when the axis was built from a sample interval. The reader
+    returns read-only arrays (``time`` and every ``Channel.values``).
     """
 
     time: np.ndarray

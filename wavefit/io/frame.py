@@ -61,9 +61,9 @@ def capture_from_frame(
 
 
 def _as_float(column: pd.Series, header: str, source: str) -> np.ndarray:
-    """The column as float64, refusing text and other non-numeric data."""
+    """The column as a float64 copy (later edits of the frame do not reach the capture); text refused."""
     if pd.api.types.is_numeric_dtype(column.dtype) and not pd.api.types.is_complex_dtype(column.dtype):
-        return column.to_numpy(dtype=np.float64, na_value=np.nan)
+        return column.to_numpy(dtype=np.float64, na_value=np.nan, copy=True)
     converted = pd.to_numeric(column, errors="coerce")
     bad = np.flatnonzero(converted.isna().to_numpy() & column.notna().to_numpy())
     where = f"; first non-number {column.iloc[bad[0]]!r} at row {bad[0]}" if bad.size else ""
