@@ -13,10 +13,12 @@ import contextlib
 import datetime as dt
 import hashlib
 import multiprocessing
+import multiprocessing.connection
 import os
 import pkgutil
 import signal
 import sys
+import threading
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
@@ -157,11 +159,20 @@ _maker: RowMaker | None = None
 
 
 def _init_worker(maker: RowMaker) -> None:
-    """Worker set-up: keep the maker; leave Ctrl-C and SIGTERM handling to the parent."""
+    """Worker set-up: keep the maker; leave Ctrl-C and SIGTERM to the parent; die with it."""
     global _maker
     _maker = maker
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    parent = multiprocessing.parent_process()
+    if parent is not None:
+        threading.Thread(target=_exit_with_parent, args=(parent.sentinel,), daemon=True).start()
+
+
+def _exit_with_parent(sentinel: int) -> None:
+    """End this worker when the batch process is gone (``kill -9``), instead of waiting forever."""
+    multiprocessing.connection.wait([sentinel])
+    os._exit(1)
 
 
 def _work(path: str) -> dict[str, Any]:
