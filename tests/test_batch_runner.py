@@ -147,12 +147,33 @@ def start_and_wait_for_rows(folder: Path, lines: int) -> subprocess.Popen:
     return proc
 
 
+def descendants(pid: int) -> set[int]:
+    """Process ids below ``pid`` (Linux /proc); empty where /proc is missing."""
+    parents: dict[int, int] = {}
+    for stat in Path("/proc").glob("[0-9]*/stat"):
+        try:
+            fields = stat.read_text().rsplit(")", 1)[1].split()
+        except OSError:
+            continue
+        parents[int(stat.parent.name)] = int(fields[1])
+    found, frontier = set(), {pid}
+    while frontier:
+        frontier = {child for child, parent in parents.items() if parent in frontier} - found
+        found |= frontier
+    return found
+
+
 def test_kill_9_then_rerun_never_doubles_a_row(tmp_path):
     make_lot(tmp_path, [100.0] * 12)
     proc = start_and_wait_for_rows(tmp_path, 4)
     out = tmp_path / "out.csv"
+    helpers = descendants(proc.pid)           # forkserver, resource tracker and workers
     os.kill(proc.pid, signal.SIGKILL)
     proc.wait(timeout=30)
+    deadline = time.monotonic() + 20
+    while time.monotonic() < deadline and any(Path(f"/proc/{p}").exists() for p in helpers):
+        time.sleep(0.05)
+    assert not any(Path(f"/proc/{p}").exists() for p in helpers), "worker processes outlived the batch"
     first = read_rows(out)
     assert 3 <= len(first) < 12
     script_fast = batch_script(tmp_path, "fake_analyse")
