@@ -1,6 +1,8 @@
 """The lot summary as a text table (engineering notation at this edge only)."""
 from __future__ import annotations
 
+import math
+
 from ..values import eng
 from .decision import VERDICTS
 from .spec import Limit, Spec
@@ -9,7 +11,8 @@ from .statistics import LotSummary
 
 def render_summary(summary: LotSummary, spec: Spec, lot: str) -> str:
     """Counts per verdict, yield, and one line per limited quantity."""
-    lines = [f"lot {lot}: {summary.total} captures, decision rule {_rule(spec)}"]
+    noun = "capture" if summary.total == 1 else "captures"
+    lines = [f"lot {lot}: {summary.total} {noun}, decision rule {_rule(spec)}"]
     lines.append("  " + "   ".join(f"{verdict}: {summary.counts.get(verdict, 0)}" for verdict in VERDICTS))
     if summary.yield_ is None:
         lines.append("  yield: - (no capture could be analysed)")
@@ -20,8 +23,8 @@ def render_summary(summary: LotSummary, spec: Spec, lot: str) -> str:
     table = [header]
     for name, stats in summary.quantities.items():
         unit = spec.limits[name].unit
-        table.append((name, _limits(spec.limits[name], unit), str(stats.n), eng(stats.mean, unit),
-                      eng(stats.std, unit), eng(stats.minimum, unit), eng(stats.maximum, unit),
+        table.append((name, _limits(spec.limits[name], unit), str(stats.n), _value(stats.mean, unit),
+                      _value(stats.std, unit), _value(stats.minimum, unit), _value(stats.maximum, unit),
                       _index(stats.cp), _index(stats.cpk)))
     widths = [max(len(row[i]) for row in table) for i in range(len(header))]
     for row in table:
@@ -41,6 +44,10 @@ def _limits(limit: Limit, unit: str) -> str:
     if limit.upper is not None:
         return f"<= {eng(limit.upper, unit)}"
     return f">= {eng(limit.lower, unit)}"
+
+
+def _value(value: float, unit: str) -> str:
+    return eng(value, unit) if math.isfinite(value) else "-"
 
 
 def _index(value: float | None) -> str:
