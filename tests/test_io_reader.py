@@ -270,3 +270,10 @@ def test_frame_capture_does_not_follow_later_edits() -> None:
     capture = capture_from_frame(frame)
     frame.loc[0, "v"] = 99.0
     assert capture.channel("v").values[0] == 0.0
+
+
+def test_channels_named_by_number(tmp_path: Path) -> None:
+    lines = ["Time,1,2", *[f"{r},{v:.4f}" for r, v in zip(_rows(np.arange(N) * DT, _signal()), _signal())]]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.time_column == "Time"
+    assert [c.header for c in capture.channels] == ["1", "2"]

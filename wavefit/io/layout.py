@@ -243,15 +243,17 @@ def _find_header(
 
 
 def _header_cells(line: str, sep: str, run: _Run) -> list[str] | None:
-    """The line's cells when it can be a header for the run: all text, fitting count."""
+    """The line's cells when it can be a header for the run: text (or a time name first), fitting count."""
     splits = [split_line(line, sep)]
     if sep == WHITESPACE:
         splits += [re.split(r"\s{2,}|\t", line.strip()), _merge_bracketed(splits[0])]
     for cells in splits:
         cells = _strip_trailing_empty(cells)
-        if not cells or any(is_number(c, ".") or is_number(c, ",") for c in cells):
+        if not cells or not run.n_used <= len(cells) <= run.n_fields:
             continue
-        if run.n_used <= len(cells) <= run.n_fields:
+        numeric = [is_number(c, ".") or is_number(c, ",") for c in cells]
+        # Channels may be named by number ("Time,1,2") when a time column names the row a header.
+        if not any(numeric) or (not numeric[0] and is_time_name(parse_header(cells[0]).name)):
             return cells
     return None
 
