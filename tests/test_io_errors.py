@@ -304,3 +304,20 @@ def test_damaged_files_give_a_capture_or_a_capture_error(
     assert capture.rows >= 16
     assert np.all(np.isfinite(capture.time)) and np.all(np.diff(capture.time) > 0)
     assert all(np.all(np.isfinite(c.values)) for c in capture.channels)
+
+
+def test_cut_last_row_is_not_a_footer(tmp_path: Path) -> None:
+    rows = _rows(3000)
+    rows[-1] = rows[-1][:6] + "e-"
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 3001" in message and "where a number was expected" in message
+
+
+def test_damaged_last_row_is_not_a_footer(tmp_path: Path) -> None:
+    rows = [*_rows(3000), "3e-05,0.5,abc"]
+    assert "line 3002: found 'abc'" in _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+
+
+def test_nul_padding_after_the_table_is_an_error(tmp_path: Path) -> None:
+    data = "\n".join([HEADER, *_rows(20000)]).encode() + b"\n" + b"\x00" * 64
+    assert "line 20002" in _message(_write(tmp_path, data))

@@ -9,6 +9,7 @@ same kind of pass maps row numbers to line numbers for other messages.
 from __future__ import annotations
 
 import io
+import re
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 
@@ -23,6 +24,9 @@ from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
 #: Most text lines accepted after the table as a footer; more is a broken file.
 MAX_FOOTER_LINES = 50
+_END_OF_FILE = "\x1a"
+_WORD = re.compile(r"[^\W\d_]{2,}")
+_LEADING_NUMBER = re.compile(r"\s*[+-]?\.?[0-9]")
 
 
 @dataclass(frozen=True)
@@ -185,13 +189,21 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> 
                 rows += 1
                 continue
             message = problem
-        elif problem is None or len(footer) >= MAX_FOOTER_LINES:
+        if problem is None or not _is_footer_text(line) or len(footer) >= MAX_FOOTER_LINES:
             return _Scan(message)
         footer.append((number, line.strip()))
     if message is None:
         reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         return _Scan(f"{source.name}: the table body could not be parsed ({reason}); check the file")
     return _Scan(None, rows, tuple(footer))
+
+
+def _is_footer_text(line: str) -> bool:
+    """A line that can close a table: words, not a damaged row (``1.2e-``, ``0.5,abc``); or Ctrl-Z."""
+    text = line.strip()
+    if text == _END_OF_FILE:
+        return True
+    return _WORD.search(text) is not None and not _LEADING_NUMBER.match(text)
 
 
 def _line_problem(name: str, number: int, line: str, layout: Layout) -> str | None:

@@ -75,7 +75,7 @@ def _with_footer(preamble: Preamble, footer: tuple[tuple[int, str], ...]) -> Pre
     texts = [(n, _CONTROL.sub("", text).strip()) for n, text in footer]
     texts = [(n, text) for n, text in texts if text]
     if not texts:
-        return preamble  # only an end-of-file mark such as the DOS Ctrl-Z
+        return preamble  # only the DOS end-of-file mark (Ctrl-Z)
     metadata = dict(preamble.metadata)
     metadata.update({f"footer{k}": text for k, (_, text) in enumerate(texts, 1)})
     first, last = texts[0][0], texts[-1][0]
