@@ -31,8 +31,8 @@ def add_batch_parser(sub: Any) -> argparse.ArgumentParser:
     p.add_argument("--setup", required=True, help="setup file (TOML): method, columns, parts")
     p.add_argument("--spec", required=True, help="spec file (TOML): [limits] and [decision]")
     p.add_argument("--out", required=True, metavar="RESULTS.csv", help="results CSV, appended to and resumed")
-    p.add_argument("--workers", type=_positive_int, default=os.cpu_count() or 1, metavar="N",
-                   help="worker processes (default: the machine's cores)")
+    p.add_argument("--workers", type=_positive_int, default=available_cores(), metavar="N",
+                   help="worker processes (default: the cores this process may use)")
     p.add_argument("--json", action="store_true", help="print the lot summary as JSON")
     p.add_argument("--plot", metavar="FILE.png", help="draw histograms with the limits and run charts")
     p.add_argument("--db", metavar="HISTORY.sqlite", help="also append the rows to this SQLite history")
@@ -148,6 +148,13 @@ def _report(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespac
 
     print(render_summary(outcome.summary, spec, lot))
     print(f"  {outcome.written} rows written, {outcome.resumed} found from earlier runs -> {args.out}")
+
+
+def available_cores() -> int:
+    """The cores this process may run on (its CPU affinity where the OS tells it)."""
+    if hasattr(os, "sched_getaffinity"):
+        return max(1, len(os.sched_getaffinity(0)))
+    return os.cpu_count() or 1  # pragma: no cover - not on Linux
 
 
 def _positive_int(text: str) -> int:
