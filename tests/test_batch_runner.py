@@ -257,13 +257,13 @@ def dying_fake_analyse(path: str, setup) -> AnalysisResult:
     return fake_analyse(path, setup)
 
 
-def test_dead_worker_stops_the_run_instead_of_hanging(tmp_path):
-    from wavefit.batch.runner import WorkerDied
-
+def test_capture_that_kills_its_worker_gets_an_error_row(tmp_path):
     make_lot(tmp_path, VALUES)
-    with pytest.raises(WorkerDied, match="run the same command again"):
-        run(batch_args(tmp_path, "--workers", "2"), analyse=dying_fake_analyse)
-    assert len(read_rows(tmp_path / "out.csv")) < len(VALUES)
+    assert run(batch_args(tmp_path, "--workers", "2"), analyse=dying_fake_analyse) == 0
+    rows = {Path(r["file"]).name: r for r in read_rows(tmp_path / "out.csv")}
+    assert sorted(rows) == [f"part{i:02d}.txt" for i in range(1, 9)]
+    assert rows["part03.txt"]["verdict"] == "error" and "process died" in rows["part03.txt"]["message"]
+    assert [rows[f"part{i:02d}.txt"]["verdict"] for i in (1, 2, 4, 5, 6, 7, 8)] == EXPECTED[:2] + EXPECTED[3:]
 
 
 def test_bad_spec_exits_3_before_anything_is_written(tmp_path, capsys):

@@ -41,12 +41,6 @@ class Interrupted(Exception):
         self.signum = signum
 
 
-class WorkerDied(WavefitError):
-    """A worker process ended without returning its row (killed, out of memory)."""
-
-    exit_code = 3
-
-
 def sha256_file(path: str | os.PathLike[str]) -> str:
     """Hex sha256 of a file's bytes."""
     digest = hashlib.sha256()
@@ -76,8 +70,7 @@ class RowMaker:
     analyse: Analyse = analyse_file
 
     def __call__(self, path: str) -> dict[str, Any]:
-        row: dict[str, Any] = {"file": path, "tool_version": self.tool_version,
-                               "setup_sha256": self.setup_sha256, "spec_sha256": self.spec_sha256}
+        row = self._traceability(path)
         try:
             row["capture_sha256"] = sha256_file(path)
             result = self.analyse(path, self.setup)
@@ -95,8 +88,28 @@ class RowMaker:
             row.update(verdict=ERROR, message=_one_line(f"cannot read {path}: {exc.strerror or exc}"))
         except Exception as exc:  # a bug must not stop the lot; the row says what happened
             row.update(verdict=ERROR, message=_one_line(f"unexpected {type(exc).__name__}: {exc}"))
-        row["analysed_at"] = dt.datetime.now(dt.timezone.utc).isoformat(timespec="microseconds")
+        row["analysed_at"] = _now()
         return row
+
+    def crashed_row(self, path: str) -> dict[str, Any]:
+        """The ``error`` row of a capture whose analysis killed its worker process."""
+        row = self._traceability(path)
+        try:
+            row["capture_sha256"] = sha256_file(path)
+        except OSError:
+            pass
+        row.update(verdict=ERROR, analysed_at=_now(),
+                   message="the analysis process died on this capture (out of memory, or a crash in a "
+                           "numerical library); check the file's size and content")
+        return row
+
+    def _traceability(self, path: str) -> dict[str, Any]:
+        return {"file": path, "tool_version": self.tool_version, "setup_sha256": self.setup_sha256,
+                "spec_sha256": self.spec_sha256}
+
+
+def _now() -> str:
+    return dt.datetime.now(dt.timezone.utc).isoformat(timespec="microseconds")
 
 
 def run_rows(paths: Sequence[str], maker: RowMaker, sink: Callable[[dict[str, Any]], None],
@@ -106,8 +119,8 @@ def run_rows(paths: Sequence[str], maker: RowMaker, sink: Callable[[dict[str, An
     ``workers`` > 1 uses that many processes (rows then arrive in completion
     order). SIGTERM raises :class:`Interrupted`, Ctrl-C ``KeyboardInterrupt``,
     after the rows already handed to ``sink``; queued captures are cancelled and
-    the workers end after their current capture. A worker that dies raises
-    :class:`WorkerDied` instead of hanging. Returns the number of rows made.
+    the workers end after their current capture. A capture whose analysis kills
+    its worker process gets an ``error`` row. Returns the number of rows made.
     """
     with _stop_on_sigterm(), _progress(len(paths), progress) as bar:
         if workers <= 1 or len(paths) <= 1:
@@ -122,20 +135,53 @@ def run_rows(paths: Sequence[str], maker: RowMaker, sink: Callable[[dict[str, An
 
 def _run_pool(paths: Sequence[str], maker: RowMaker, sink: Callable[[dict[str, Any]], None],
               workers: int, bar: Any) -> None:
-    done = 0
+    """Rows from ``workers`` processes; a capture whose analysis kills its worker gets an error row.
+
+    When a worker dies, every unfinished capture's future fails. The pool
+    hands out captures in order, so the ones in flight were among the first
+    ``workers + 1`` unfinished (the pool queues one call beyond its workers).
+    Those are analysed again one at a time, each in a fresh process, which
+    finds the culprit. Then the rest go on in parallel.
+    """
+    remaining = list(paths)
+    while remaining:
+        unfinished = _parallel_pass(remaining, maker, sink, workers, bar)
+        suspects, remaining = unfinished[:workers + 1], unfinished[workers + 1:]
+        for path in suspects:
+            sink(_isolated(path, maker))
+            bar.update(1)
+
+
+def _parallel_pass(paths: Sequence[str], maker: RowMaker, sink: Callable[[dict[str, Any]], None],
+                   workers: int, bar: Any) -> list[str]:
+    """Hand the rows of ``paths`` to ``sink``; return those left unfinished when a worker died."""
+    finished: set[str] = set()
     pool = ProcessPoolExecutor(min(workers, len(paths)), mp_context=_worker_context(),
                                initializer=_init_worker, initargs=(maker,))
     try:
-        futures = [pool.submit(_work, path) for path in paths]
+        futures = {pool.submit(_work, path): path for path in paths}
         for future in as_completed(futures):
-            sink(future.result())
-            done += 1
+            try:
+                row = future.result()
+            except BrokenProcessPool:
+                break
+            sink(row)
+            finished.add(futures[future])
             bar.update(1)
-    except BrokenProcessPool:
-        raise WorkerDied(f"a worker process died (out of memory?) after {done} of {len(paths)} "
-                         "rows; the rows written are kept: run the same command again to resume") from None
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
+    return [path for path in paths if path not in finished]
+
+
+def _isolated(path: str, maker: RowMaker) -> dict[str, Any]:
+    """The row of one capture analysed alone in a fresh worker process."""
+    pool = ProcessPoolExecutor(1, mp_context=_worker_context(), initializer=_init_worker, initargs=(maker,))
+    try:
+        return pool.submit(_work, path).result()
+    except BrokenProcessPool:
+        return maker.crashed_row(path)
+    finally:
+        pool.shutdown(wait=True)
 
 
 def _worker_context() -> multiprocessing.context.BaseContext:
