@@ -19,7 +19,8 @@ from pathlib import Path
 import pytest
 
 from wavefit.batch.command import run
-from wavefit.batch.runner import RowMaker, run_rows
+from wavefit.batch.rows import RowMaker
+from wavefit.batch.runner import run_rows
 from wavefit.batch.spec import parse_spec
 from wavefit.cli import build_parser
 from wavefit.errors import AnalysisRefused

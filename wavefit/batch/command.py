@@ -16,7 +16,8 @@ from typing import Any
 
 from ..errors import SetupError
 from .inputs import capture_order, expand_inputs
-from .runner import Analyse, Interrupted, RowMaker, analyse_file, run_rows, sha256_file
+from .rows import Analyse, RowMaker, analyse_file, sha256_file
+from .runner import Interrupted, run_rows
 from .spec import Spec, load_spec
 from .statistics import LotSummary, summarize
 

@@ -1,0 +1,93 @@
+"""One capture -> one results row: analysis, verdict against the spec, traceability.
+
+Each row holds the verdict, the quantities with their expanded uncertainties,
+and traceability (tool version, sha256 of capture, setup and spec, UTC time of
+analysis). Any error of one capture becomes an ``error`` row with a one-line
+message.
+"""
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import os
+from dataclasses import dataclass
+from typing import Any, Callable
+
+from ..errors import WavefitError
+from ..results import AnalysisResult
+from ..setup import Setup
+from .decision import ERROR, decide_part
+from .spec import Spec
+
+Analyse = Callable[[str, Setup], AnalysisResult]
+
+
+def sha256_file(path: str | os.PathLike[str]) -> str:
+    """Hex sha256 of a file's bytes."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as stream:
+        while chunk := stream.read(1 << 20):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+def analyse_file(path: str, setup: Setup) -> AnalysisResult:
+    """The default analysis: :func:`wavefit.analysis.analyze` of one capture file."""
+    from ..analysis import analyze
+
+    return analyze(path, setup)
+
+
+@dataclass(frozen=True)
+class RowMaker:
+    """Turns a capture path into its results row; picklable, sent once to each worker."""
+
+    setup: Setup
+    spec: Spec
+    quantities: tuple[str, ...]
+    setup_sha256: str
+    spec_sha256: str
+    tool_version: str
+    analyse: Analyse = analyse_file
+
+    def __call__(self, path: str) -> dict[str, Any]:
+        row = self._traceability(path)
+        try:
+            row["capture_sha256"] = sha256_file(path)
+            result = self.analyse(path, self.setup)
+            verdict, decisions = decide_part(result.quantities, self.spec)
+            for name in self.quantities:
+                quantity = result.quantities.get(name)
+                if quantity is not None:
+                    row[name] = quantity.value
+                    row[f"{name}_U"] = quantity.expanded_uncertainty
+            notes = [d.reason for d in decisions if d.reason] + list(result.warnings)
+            row.update(verdict=verdict, message="; ".join(notes))
+        except WavefitError as exc:
+            row.update(verdict=ERROR, message=_one_line(str(exc)))
+        except OSError as exc:
+            row.update(verdict=ERROR, message=_one_line(f"cannot read {path}: {exc.strerror or exc}"))
+        except Exception as exc:  # a bug must not stop the lot; the row says what happened
+            row.update(verdict=ERROR, message=_one_line(f"unexpected {type(exc).__name__}: {exc}"))
+        row["analysed_at"] = _now()
+        return row
+
+    def crashed_row(self, path: str) -> dict[str, Any]:
+        """The ``error`` row of a capture whose analysis killed its worker process."""
+        row = self._traceability(path)
+        try:
+            row["capture_sha256"] = sha256_file(path)
+        except OSError:
+            pass
+        row.update(verdict=ERROR, analysed_at=_now(),
+                   message="the analysis process died on this capture (out of memory, or a crash in a "
+                           "numerical library); check the file's size and content")
+        return row
+
+    def _traceability(self, path: str) -> dict[str, Any]:
+        return {"file": path, "tool_version": self.tool_version, "setup_sha256": self.setup_sha256,
+                "spec_sha256": self.spec_sha256}
+
+
+def _now() -> str:
+    return dt.datetime.now(dt.timezone.utc).isoformat(timespec="microseconds")
