@@ -91,3 +91,7 @@ class RowMaker:
 
 def _now() -> str:
     return dt.datetime.now(dt.timezone.utc).isoformat(timespec="microseconds")
+
+
+def _one_line(text: str) -> str:
+    return " ".join(text.split())

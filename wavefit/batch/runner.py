@@ -189,7 +189,3 @@ def _progress(total: int, enabled: bool) -> Iterator[Any]:
 
     with tqdm(total=total, unit="capture", file=sys.stderr, dynamic_ncols=True) as bar:
         yield bar
-
-
-def _one_line(text: str) -> str:
-    return " ".join(text.split())
