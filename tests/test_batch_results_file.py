@@ -97,3 +97,12 @@ def test_second_writer_is_refused(tmp_path):
         proc.communicate("\n", timeout=30)
     with ResultsFile(path, COLUMNS) as results:   # free again once that run has ended
         assert results.rows == []
+
+
+@pytest.mark.parametrize("content", [b"Time (s),CH1 (V)\n0,0.1\n1e-8,0.2", b"just one line", b"\xff\xfe\x00binary"])
+def test_foreign_file_is_refused_and_left_unchanged(tmp_path, content):
+    path = tmp_path / "capture.csv"   # e.g. a capture named as --out by mistake
+    path.write_bytes(content)
+    with pytest.raises(ResultsFileError, match="another --out"):
+        ResultsFile(path, COLUMNS).open()
+    assert path.read_bytes() == content

@@ -99,7 +99,7 @@ class ResultsFile:
         self.close()
 
     def open(self) -> list[dict[str, Any]]:
-        """Lock the file, drop a partial last line, check the header; return the rows."""
+        """Lock the file, check the header and rows, drop a partial last line; return the rows."""
         try:
             fd = os.open(self.path, os.O_RDWR | os.O_CREAT | os.O_APPEND, 0o644)
         except OSError as exc:
@@ -107,12 +107,7 @@ class ResultsFile:
         self._fd = fd
         try:
             self._lock(fd)
-            text = self._read_complete_lines(fd)
-            if not text:
-                self._write_line(self.columns)
-                self.rows = []
-            else:
-                self.rows = self._parse(text)
+            self.rows = self._resume(fd)
         except BaseException:
             self.close()
             raise
@@ -148,26 +143,32 @@ class ResultsFile:
             raise ResultsFileError(f"results file {self.path} is being written by another run; "
                                    "wait for it to finish or use another --out") from None
 
-    def _read_complete_lines(self, fd: int) -> str:
+    def _resume(self, fd: int) -> list[dict[str, Any]]:
+        """Rows of an existing file; the file is changed only once it is known to be ours."""
         os.lseek(fd, 0, os.SEEK_SET)
         chunks = []
         while chunk := os.read(fd, 1 << 20):
             chunks.append(chunk)
         data = b"".join(chunks)
-        if data and not data.endswith(b"\n"):
-            keep = data.rfind(b"\n") + 1
-            os.ftruncate(fd, keep)
-            data = data[:keep]
-            self.dropped_partial_line = True
+        if not data or (b"\n" not in data and _csv_line(self.columns).startswith(data)):
+            os.ftruncate(fd, 0)  # new, or a header cut short by a kill
+            self._write_line(self.columns)
+            return []
+        keep = data.rfind(b"\n") + 1
         try:
-            return data.decode("utf-8")
+            text = data[:keep].decode("utf-8")
         except UnicodeDecodeError:
             raise ResultsFileError(f"results file {self.path} is not UTF-8 text; is it a results file? "
                                    "use another --out") from None
+        rows = self._parse(text)
+        if keep < len(data):
+            os.ftruncate(fd, keep)  # the partial last line of a killed run
+            self.dropped_partial_line = True
+        return rows
 
     def _parse(self, text: str) -> list[dict[str, Any]]:
         records = list(csv.reader(io.StringIO(text, newline="")))
-        header = tuple(records[0])
+        header = tuple(records[0]) if records else ()
         if header != self.columns:
             raise ResultsFileError(
                 f"results file {self.path} has columns {', '.join(header)}, but this run writes "
@@ -185,11 +186,16 @@ class ResultsFile:
         return rows
 
     def _write_line(self, cells: Sequence[str]) -> None:
-        buffer = io.StringIO()
-        csv.writer(buffer, lineterminator="\n").writerow(cells)
-        data = buffer.getvalue().encode("utf-8")
+        data = _csv_line(cells)
         assert self._fd is not None
         written = os.write(self._fd, data)
         if written != len(data):  # pragma: no cover - a full disk
             raise ResultsFileError(f"results file {self.path}: disk full? wrote {written} of {len(data)} bytes")
         os.fsync(self._fd)
+
+
+def _csv_line(cells: Sequence[str]) -> bytes:
+    """One CSV line of ``cells`` as written to the file (UTF-8, ``\\n`` ending)."""
+    buffer = io.StringIO()
+    csv.writer(buffer, lineterminator="\n").writerow(cells)
+    return buffer.getvalue().encode("utf-8")
