@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 
 import pytest
+from hypothesis import given, strategies as st
 
 from wavefit.batch.decision import (CONDITIONAL_FAIL, CONDITIONAL_PASS, ERROR, FAIL, PASS, classify,
                                     decide_part, decide_quantity, worst)
@@ -78,3 +79,20 @@ def test_missing_quantity_wrong_unit_or_non_finite_is_an_error():
     assert nan_u.verdict == ERROR
     nan_value = decide_quantity(q("L", math.nan, 1e-6, "H"), SIMPLE.limits["L"], SIMPLE)
     assert nan_value.verdict == ERROR
+
+
+
+@given(true=st.floats(70.0, 130.0), expanded=st.floats(0.01, 5.0), error=st.floats(-1.0, 1.0))
+def test_guard_band_never_misjudges_a_part_far_from_the_limits(true, expanded, error):
+    # The acceptance rule of the batch issue: with w = U and a measurement within U of the true
+    # value, a part more than 2U inside the limits passes, more than 2U outside fails.
+    measured = true + error * expanded
+    verdict = decide_quantity(q("L", measured * 1e-6, expanded * 1e-6, "H"), GUARD.limits["L"], GUARD).verdict
+    inside = min(true - 90.0, 110.0 - true)
+    slack = 1e-9  # µH: keeps floating-point rounding at the exact boundaries out of the test
+    if inside > 2 * expanded + slack:
+        assert verdict == PASS
+    elif inside < -2 * expanded - slack:
+        assert verdict == FAIL
+    elif inside >= slack and abs(error) < 1:
+        assert verdict != FAIL          # a conforming part is never a plain fail
