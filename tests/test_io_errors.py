@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import gzip
 import tempfile
+import time
 import zipfile
 from pathlib import Path
 
@@ -321,3 +322,13 @@ def test_damaged_last_row_is_not_a_footer(tmp_path: Path) -> None:
 def test_nul_padding_after_the_table_is_an_error(tmp_path: Path) -> None:
     data = "\n".join([HEADER, *_rows(20000)]).encode() + b"\n" + b"\x00" * 64
     assert "line 20002" in _message(_write(tmp_path, data))
+
+
+def test_bad_cell_in_long_padded_rows_is_found_quickly(tmp_path: Path) -> None:
+    header = "   ".join(["t", *[f"CH{k}" for k in range(30)]])
+    rows = ["   ".join([f"{i * 1e-8:.8e}", *["  1.5"] * 30]) for i in range(5000)]
+    rows[4000] = rows[4000][:-3] + "abc"
+    started = time.perf_counter()
+    message = _message(_write(tmp_path, "\n".join([header, *rows])))
+    assert "line 4002" in message and "'abc'" in message
+    assert time.perf_counter() - started < 10.0

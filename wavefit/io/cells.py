@@ -18,7 +18,10 @@ NA_TOKENS: frozenset[str] = frozenset(
 #: Separator code for "one or more spaces or tabs".
 WHITESPACE = " "
 
-_INF = r"(?:inf|infinity)"
+def _number_core(decimal: str) -> str:
+    """Regex source of one number written with ``decimal``, without surrounding blanks."""
+    d = re.escape(decimal)
+    return rf"[+-]?(?:(?:[0-9]+(?:{d}[0-9]*)?|{d}[0-9]+)(?:[eE][+-]?[0-9]+)?|(?i:infinity|inf))"
 
 
 @lru_cache(maxsize=None)
@@ -35,9 +38,7 @@ def number_pattern(decimal: str) -> re.Pattern[str]:
     re.Pattern
         Full-match pattern; surrounding blanks are allowed, as pandas allows them.
     """
-    d = re.escape(decimal)
-    body = rf"(?:[0-9]+(?:{d}[0-9]*)?|{d}[0-9]+)(?:[eE][+-]?[0-9]+)?"
-    return re.compile(rf"\s*[+-]?(?:{body}|{_INF})\s*", re.IGNORECASE)
+    return re.compile(rf"\s*{_number_core(decimal)}\s*")
 
 
 @lru_cache(maxsize=None)
@@ -45,12 +46,14 @@ def row_pattern(sep: str, decimal: str) -> re.Pattern[str]:
     """A compiled pattern matching a whole unquoted line whose cells are all numbers or missing.
 
     A fast path for scanning many lines; lines it rejects are examined cell by cell.
+    Every part of a line can match in one way only, so a failing line costs
+    linear time (no backtracking blow-up on long rows of padded cells).
     """
-    number = number_pattern(decimal).pattern
     missing = "|".join(re.escape(token) for token in sorted(NA_TOKENS, key=len, reverse=True) if token)
-    cell = rf"(?:{number}|\s*(?:{missing})\s*|\s*)"
+    token = rf"(?:{_number_core(decimal)}|{missing})"
     if sep == WHITESPACE:
-        return re.compile(rf"\s*(?:(?:{number}|(?:{missing}))(?:\s+(?:{number}|(?:{missing})))*)?\s*")
+        return re.compile(rf"[ \t]*(?:{token}(?:[ \t]+{token})*)?[ \t]*")
+    cell = rf"[ \t]*(?:{token}[ \t]*)?"
     return re.compile(rf"{cell}(?:{re.escape(sep)}{cell})*")
 
 
