@@ -6,6 +6,15 @@
 """
 from __future__ import annotations
 
+import os
+
+# Our least-squares problems are tall and narrow: one BLAS thread is fastest, and
+# several threads per process (batch workers, a busy machine) slow them down by
+# orders of magnitude. Only a default: a value the user set is kept. It takes effect
+# when wavefit is imported before numpy (as the command line does).
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
 from importlib.metadata import PackageNotFoundError, version
 
 from .analysis import analyze

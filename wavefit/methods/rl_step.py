@@ -30,6 +30,7 @@ from scipy import stats
 from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
+from ..fit.relaxation import fit_relaxations
 from ..fit.result import FitResult
 from ..io.capture import Capture
 from ..results import AnalysisResult, TracePlot
@@ -122,6 +123,16 @@ class RLStep(Method):
                                   "pre-edge level to pin the offset; record some time before the step")
 
         combined = _combine(windows, fits, baseline, drive is not None)
+        estimator = "per-edge windows"
+        if drive is None and self.option(setup, "skip") == "auto" and "winding_capacitance" not in setup.parts:
+            combined, accepted = _whole_record(t, sense, edges, windows, fits, baseline, combined, noise,
+                                               self._fit_window)
+            if accepted:
+                estimator = "whole-record relaxation fit"
+            else:
+                notes.append("the whole-record fit disagreed with windows that skip the edges (edges not "
+                             "instantaneous?); windows with a margin after each edge are used")
+        notes.append(f"tau and levels from the {estimator}")
         tau_fit = combined.values[0]
         warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined)
 
@@ -321,29 +332,41 @@ class _Combined:
 
 def _settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window):
     """Start each window as early as the data allow, without admitting samples that do not
-    follow the exponential.
+    follow the exponential, and end it before the next switching instant.
 
     Without a drive channel the switching instant t0 is re-estimated as the instant where
-    the fitted exponential leaves the level of the state before (the previous window's
-    curve, or the pre-edge baseline). The information on tau of an exponential window
-    falls as exp(−2·s/tau) with the time s left out at its start (the record from s on is
-    the same model with a smaller amplitude), so each sample matters. Then the window
-    is refitted with its start moved later by Δ = max(4 samples, tau/10); if tau changes
-    by more than 3 standard deviations of the difference, var(τ_late) − var(τ_early)
-    (the Hausman test of nested estimators: J. A. Hausman, Econometrica 46 (1978)
-    1251–1271), the early samples are biased and the later start is kept, up to
-    three times.
+    the fitted exponential leaves the curve of the state before (the previous window's
+    fit, or the pre-edge baseline), and windows are cut again from these instants; each
+    window then ends three standard deviations of the next instant, σ·tau/|step|, before
+    it (the samples there only repeat the settled level). The information on tau of an
+    exponential window falls as exp(−2·s/tau) with the time s left out at its start (the
+    record from s on is the same model with a smaller amplitude), so each early sample
+    matters. Then the window is refitted with its start moved later by
+    Δ = max(4 samples, tau/10); if tau changes by more than 3 standard deviations of the
+    difference, var(τ_late) − var(τ_early) (the Hausman test of nested estimators:
+    J. A. Hausman, Econometrica 46 (1978) 1251–1271), the early samples are biased and the
+    later start is kept, up to three times.
     """
     dt = float(t[1] - t[0])
+    windows, fits = list(windows), list(fits)
+    if drive is None:
+        t0s = [w.t0 for w in windows]
+        for k, (w, f) in enumerate(zip(windows, fits)):
+            found = _switch_instant(t, w, f, windows[k - 1] if k else None, fits[k - 1] if k else None, baseline)
+            if found is not None:
+                t0s[k] = found
+        for k, (w, f) in enumerate(zip(windows, fits)):
+            start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0)))
+            stop = w.stop
+            if k + 1 < len(windows) and windows[k + 1].start - w.stop <= 10 + (windows[k + 1].start - w.stop) // 2:
+                step = abs(f["coef_sense"]) * math.exp(-(t[w.start] - w.t0) / f["tau"]) or 1e-300
+                sigma_t0 = f.noise_sigma["sense"] * f["tau"] / step
+                stop = int(np.searchsorted(t, t0s[k + 1] - max(2.0 * dt, 3.0 * sigma_t0)))
+            if (start, stop) != (w.start, w.stop) and stop - start >= 8:
+                windows[k] = _Window(w.edge, t0s[k], start, stop)
+                fits[k] = fit_window(t, sense, drive, windows[k], noise, source)
     out_w, out_f, late = [], [], 0
-    for k, (w, f) in enumerate(zip(windows, fits)):
-        if drive is None:
-            t0 = _switch_instant(t, w, f, out_w[-1] if out_w else None, out_f[-1] if out_f else None, baseline)
-            if t0 is not None:
-                start = int(np.searchsorted(t, t0 + (t[w.start] - w.t0)))
-                if start != w.start and w.stop - start >= 8:
-                    w = _Window(w.edge, t0, start, w.stop)
-                    f = fit_window(t, sense, drive, w, noise, source)
+    for w, f in zip(windows, fits):
         step = max(4, int(math.ceil(0.1 * f["tau"] / dt)))
         moved = False
         for _ in range(3):
@@ -361,6 +384,80 @@ def _settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_
         out_w.append(w)
         out_f.append(f)
     return out_w, out_f, late
+
+
+def _whole_record(t, sense, edges, windows, fits, baseline, windowed: _Combined, noise, fit_window
+                  ) -> tuple[_Combined, bool]:
+    """tau and state levels from one fit of every sample (``wavefit.fit.relaxation``).
+
+    Used without a drive channel, where the switching instants must come from the sense
+    trace itself. The check is a set of windows cut from the whole-record fit's
+    switching instants with generous margins, Δ = max(4 samples, tau/10) after each
+    and 3σ of the next instant before it, fitted separately: they do not rest on the
+    kink at the edges. The whole-record result is kept if it agrees with them by the
+    Hausman test (difference within 3 standard deviations of var(windows) −
+    var(whole record)); otherwise those windows are returned. Returns (result,
+    whole-record accepted).
+    """
+    by_t0 = {id(w.edge): w for w in windows}
+    t0s = [by_t0[id(e)].t0 if id(e) in by_t0 else e.t0 for e in edges]
+    fit_of = {id(w.edge): f for w, f in zip(windows, fits)}
+    levels = [baseline["final_sense"] if baseline is not None else
+              float(np.median(sense[: max(int(np.searchsorted(t, t0s[0])), 1)]))]
+    hi, lo = windowed.values[windowed.names.index("sense_high")], windowed.values[windowed.names.index("sense_low")]
+    for e in edges:
+        f = fit_of.get(id(e))
+        levels.append(f["final_sense"] if f is not None else (hi if e.direction > 0 else lo))
+    try:
+        whole = fit_relaxations(t, sense, t0s, levels, windowed.values[0], noise=noise)
+    except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+        return windowed, False
+    var_f = whole.covariance[0, 0]
+    if not (np.isfinite(var_f) and var_f > 0):
+        return windowed, False
+    dt = float(t[1] - t[0])
+    tau = whole["tau"]
+    skip = max(4.0 * dt, 0.1 * tau)
+    checked_w, checked_f = [], []
+    for k, e in enumerate(edges):
+        if id(e) not in by_t0:
+            continue
+        t0 = whole[f"t0_{k + 1}"]
+        start = int(np.searchsorted(t, t0 + skip))
+        stop = t.size
+        if k + 1 < len(edges):
+            step = abs(whole[f"final_{k + 1}"] - (whole[f"final_{k}"] if k else whole["final_head"])) or 1e-300
+            margin = max(2.0 * dt, 3.0 * whole.noise_sigma["sense"] * tau / step)
+            stop = int(np.searchsorted(t, whole[f"t0_{k + 2}"] - margin))
+        if stop - start >= 16:
+            w = _Window(e, t0, start, stop)
+            checked_w.append(w)
+            checked_f.append(fit_window(t, sense, None, w, noise, "capture"))
+    if not checked_w:
+        return windowed, False
+    check = _combine(checked_w, checked_f, baseline, False)
+    var_w = check.covariance[0, 0]
+    d = check.values[0] - tau
+    if var_w > var_f and d * d / (var_w - var_f) > 9.0:
+        return check, False
+    # state levels: the mean of the complete states' levels (the head's only where a state has no window)
+    names = ("tau", "final_head") + tuple(f"final_{k + 1}" for k in range(len(edges)))
+    vals, cov = whole.subset(names)
+    rows = {"high": [], "low": []}
+    for k, e in enumerate(edges):
+        if id(e) in by_t0:
+            rows["high" if e.direction > 0 else "low"].append(2 + k)
+    head_state = "low" if edges[0].direction > 0 else "high"
+    if not rows[head_state]:
+        rows[head_state].append(1)
+    if not rows["high"] or not rows["low"]:
+        return check, False
+    a = np.zeros((3, len(names)))
+    a[0, 0] = 1.0
+    for r, state in ((1, "high"), (2, "low")):
+        a[r, rows[state]] = 1.0 / len(rows[state])
+    return _Combined(("tau_fit", "sense_high", "sense_low"), a @ vals, a @ cov @ a.T, ("s", "V", "V"),
+                     float(whole.dof), windowed.by_direction, windowed.rise_fall, windowed.birge), True
 
 
 def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> float | None:
