@@ -44,8 +44,7 @@ def run_rows(paths: Sequence[str], maker: RowMaker, sink: Callable[[dict[str, An
                 sink(maker(path))
                 bar.update(1)
             return len(paths)
-        with _one_thread_per_worker():
-            _run_pool(paths, maker, sink, workers, bar)
+        _run_pool(paths, maker, sink, workers, bar)
         return len(paths)
 
 
@@ -101,10 +100,13 @@ def _isolated(path: str, maker: RowMaker) -> dict[str, Any]:
 
 
 def _worker_context() -> multiprocessing.context.BaseContext:
-    """Workers start from a fresh interpreter (they read the thread limits from the environment).
+    """Workers start from a fresh interpreter, not a fork of this one.
 
-    With "forkserver" (POSIX) the server imports numpy, scipy and the methods once and
-    each worker is forked from it, so a worker starts in milliseconds, not seconds.
+    A fresh interpreter reads the one-BLAS-thread default that ``wavefit/__init__.py``
+    puts in the environment, even when this process loaded numpy before wavefit. A
+    fork would inherit this process's thread pools and locks. With "forkserver"
+    (POSIX) the server imports numpy, scipy and the methods once, and each worker is
+    forked from it, so a worker starts in milliseconds, not seconds.
     """
     if "forkserver" not in multiprocessing.get_all_start_methods():  # pragma: no cover - Windows
         return multiprocessing.get_context("spawn")
@@ -140,23 +142,6 @@ def _exit_with_parent(sentinel: int) -> None:
 def _work(path: str) -> dict[str, Any]:
     assert _maker is not None
     return _maker(path)
-
-
-#: Thread-pool sizes of the numerical libraries; one thread per worker process avoids
-#: oversubscribing the cores (N workers x N BLAS threads), which halved throughput.
-_THREAD_LIMITS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
-
-
-@contextlib.contextmanager
-def _one_thread_per_worker() -> Iterator[None]:
-    """While workers start, one BLAS/OpenMP thread each, unless the user set a number."""
-    added = [name for name in _THREAD_LIMITS if name not in os.environ]
-    os.environ.update({name: "1" for name in added})
-    try:
-        yield
-    finally:
-        for name in added:
-            os.environ.pop(name, None)
 
 
 @contextlib.contextmanager
