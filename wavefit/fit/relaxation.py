@@ -101,12 +101,16 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     lower = np.full(x0.size, -np.inf)
     upper = np.full(x0.size, np.inf)
     lower[0] = 1e-3
-    # keep every switching instant between its neighbours' guesses
+    # keep every switching instant near its guess (within 0.3 tau0 and 4 samples) and
+    # between its neighbours' guesses
     dt = ts[1] - ts[0]
+    reach = max(0.3, 4.0 * dt)
     for i in range(k):
         lo = (x0[4 + 2 * (i - 1)] if i else ts[0]) + dt
         hi = (x0[4 + 2 * (i + 1)] if i + 1 < k else ts[-1]) - dt
-        lower[4 + 2 * i], upper[4 + 2 * i] = 0.5 * (lo + x0[4 + 2 * i]), 0.5 * (hi + x0[4 + 2 * i])
+        guess = x0[4 + 2 * i]
+        lower[4 + 2 * i] = max(0.5 * (lo + guess), guess - reach)
+        upper[4 + 2 * i] = min(0.5 * (hi + guess), guess + reach)
     fit = fit_least_squares(fun, jac, x0, names, [Block(0, t.size, "sense")], model="square-wave relaxation",
                             noise=noise, bounds=(lower, upper), correct_bias=correct_bias)
     factor = np.ones(x0.size)

@@ -415,6 +415,11 @@ def _whole_record(t, sense, edges, windows, fits, baseline, windowed: _Combined,
     var_f = whole.covariance[0, 0]
     if not (np.isfinite(var_f) and var_f > 0):
         return windowed, False
+    if any("ended at its bound" in w for w in whole.warnings) or \
+            (whole["tau"] - windowed.values[0]) ** 2 > 9.0 * windowed.covariance[0, 0]:
+        # a gross disagreement with the independent per-edge windows: another minimum of the
+        # whole-record fit (switching instants moved together with tau)
+        return windowed, False
     dt = float(t[1] - t[0])
     tau = whole["tau"]
     skip = max(4.0 * dt, 0.1 * tau)
