@@ -65,6 +65,29 @@ def tank_ring(rng: np.random.Generator, capacitor: float, name: str, dt: float, 
     _write(name, lines)
 
 
+def lot_0412(rng: np.random.Generator) -> None:
+    """Twelve chokes of lot 0412 (production spread of L and DCR), two channels, gzip-compressed."""
+    import gzip
+
+    folder = HERE / "lot_0412"
+    folder.mkdir(parents=True, exist_ok=True)
+    for part in range(1, 13):
+        inductance = CHOKE_L * (1.0 + 0.025 * rng.standard_normal())
+        dcr = CHOKE_DCR * (1.0 + 0.05 * rng.standard_normal())
+        if part == 9:  # one part with a shorted turn: low inductance
+            inductance *= 0.88
+        t, drive, sense = rl_square_wave(inductance, dcr, 10.0, 50.0, 5.0, 80e-6, 20e-9, 120e-6,
+                                         edge_time=20e-9)
+        ch1 = ScopeModel(noise_rms=4e-3, correlation_samples=4, bits=8, full_scale=(-4.7, 5.5)).apply(drive, rng)
+        ch2 = ScopeModel(noise_rms=1.5e-3, correlation_samples=4, bits=8, full_scale=(-0.08, 0.92)).apply(sense, rng)
+        lines = [f"Part,FD-CH220 lot 0412 sample {part:02d}", "", "Time (s),CH1 (V),CH2 (V)"]
+        lines += [f"{a:.8e},{b:.5f},{c:.6f}" for a, b, c in zip(t, ch1, ch2)]
+        path = folder / f"part{part:02d}.csv.gz"
+        with gzip.GzipFile(path, "wb", mtime=0) as f:  # mtime 0: the same bytes on every run
+            f.write(("\n".join(lines) + "\n").encode("utf-8"))
+        print(f"wrote {path.relative_to(HERE.parent)}")
+
+
 def _write(name: str, lines: list[str]) -> None:
     path = HERE / name
     path.parent.mkdir(parents=True, exist_ok=True)
@@ -80,6 +103,7 @@ def main() -> None:
     for cap, label in ((2.2e-9, "2n2"), (4.7e-9, "4n7"), (10e-9, "10n"), (22e-9, "22n")):
         f0 = 1.0 / (2 * math.pi * math.sqrt(CHOKE_L * (cap + 45e-12)))
         tank_ring(rng, cap, f"tank_sweep/ring_{label}.csv", 1.0 / (60 * f0), 12000)
+    lot_0412(rng)
 
 
 if __name__ == "__main__":

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from pathlib import Path
 from typing import Sequence
@@ -63,6 +64,11 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("wavefit: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # the reader of our output went away (e.g. `| head`): stop quietly, as Unix tools do
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 141
 
 
 def _analyze(args: argparse.Namespace) -> int:

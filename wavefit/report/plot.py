@@ -25,6 +25,7 @@ def save_plot(result: AnalysisResult, path: str | os.PathLike) -> None:
         raise WavefitError(f"method {result.method!r} has nothing to plot")
     title = result.source if isinstance(result.source, str) else f"{len(result.source)} captures"
     fig.suptitle(f"{result.method}: {os.path.basename(str(title))}")
+    fig.tight_layout(rect=(0, 0, 1, 0.96))
     try:
         fig.savefig(path, dpi=110)
     except (OSError, ValueError) as exc:
@@ -49,7 +50,6 @@ def _trace_figure(plt, data: TracePlot):
         axr.axhline(0.0, color="k", lw=0.6)
         axr.set_ylabel("residual")
     axes[-1].set_xlabel(f"time ({unit})")
-    fig.tight_layout()
     return fig
 
 
@@ -62,7 +62,6 @@ def _line_figure(plt, data: LinePlot):
     ax.set_xlabel(data.x_label)
     ax.set_ylabel(data.y_label)
     ax.legend()
-    fig.tight_layout()
     return fig
 
 
