@@ -70,3 +70,35 @@ def test_unreadable_capture_is_exit_3(tmp_path, capsys):
     assert main(["inspect", str(bad)]) == 3
     err = capsys.readouterr().err
     assert err.startswith("wavefit: error:") and err.count("\n") == 1
+
+
+def _rl_setup(tmp_path, sense="CH1"):
+    setup = tmp_path / "rl.toml"
+    setup.write_text(f'method = "rl-step"\n[columns]\nsense = "{sense}"\n[parts]\nsense_resistor = "10 ohm"\n'
+                     'source_resistance = "50 ohm"\ndut_resistance = "1 ohm"\n', encoding="utf-8")
+    return setup
+
+
+def test_missing_column_named_in_setup_is_exit_3(capture_file, tmp_path):
+    code, _, err = run("analyze", str(capture_file), "--setup", str(_rl_setup(tmp_path, "CH9")))
+    assert code == 3 and "no column 'CH9'" in err and err.count("\n") == 1
+
+
+@pytest.mark.parametrize("content", [b"", b"Time (s),CH1 (V)\n", b"\xff\xfe\x00\x00binary\x00" * 40,
+                                     b"t,CH1\n0,1\n1e-6,2\n5e-7,3\n" + b"".join(b"%d,1\n" % k for k in range(2, 40)),
+                                     b"Time (s),CH1 (V)\n" + b"".join(b"%g,%s\n" % (k * 1e-6, b"x" if k == 7 else b"1")
+                                                                     for k in range(40))])
+def test_broken_captures_give_one_line_and_non_zero_exit(tmp_path, content):
+    bad = tmp_path / "bad.csv"
+    bad.write_bytes(content)
+    code, out, err = run("analyze", str(bad), "--setup", str(_rl_setup(tmp_path)), "--json")
+    assert code == 3, err
+    assert out == "" and err.count("\n") == 1 and "Traceback" not in err
+
+
+def test_several_captures_keep_going_and_report_the_worst(capture_file, tmp_path):
+    flat = tmp_path / "flat.csv"
+    flat.write_text("Time (s),CH1 (V)\n" + "".join(f"{k * 1e-6:g},0.5\n" for k in range(100)), encoding="utf-8")
+    code, _, err = run("analyze", str(tmp_path / "missing.csv"), str(flat), "--setup", str(_rl_setup(tmp_path)))
+    assert code == 4  # the flat capture has no transition (4) and is worse than the missing file (3)
+    assert err.count("\n") == 2
