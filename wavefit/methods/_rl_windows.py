@@ -1,0 +1,270 @@
+"""Edge windows of the rl-step method: where each window starts and ends, how the
+per-edge fits combine, and the whole-record fit that checks itself against them.
+
+Used by :mod:`wavefit.methods.rl_step`; see ``docs/method-rl-step.md``.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from ..errors import AnalysisRefused
+from ..fit.exponential import window_model
+from ..fit.relaxation import fit_relaxations
+from ..signal.edges import Edge
+
+@dataclass(frozen=True)
+class Window:
+    """Samples start:stop fitted for one edge (state entered by ``direction``)."""
+
+    edge: Edge
+    t0: float
+    start: int
+    stop: int
+
+
+@dataclass(frozen=True)
+class Combined:
+    names: tuple[str, ...]
+    values: np.ndarray
+    covariance: np.ndarray
+    units: tuple[str, ...]
+    dof: float
+    by_direction: dict
+    rise_fall: float | None
+    birge: tuple[float, float] | None
+
+
+def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window):
+    """Start each window as early as the data allow, without admitting samples that do not
+    follow the exponential, and end it before the next switching instant.
+
+    Without a drive channel the switching instant t0 is re-estimated as the instant where
+    the fitted exponential leaves the curve of the state before (the previous window's
+    fit, or the pre-edge baseline), and windows are cut again from these instants; each
+    window then ends three standard deviations of the next instant, σ·tau/|step|, before
+    it (the samples there only repeat the settled level). The information on tau of an
+    exponential window falls as exp(−2·s/tau) with the time s left out at its start (the
+    record from s on is the same model with a smaller amplitude), so each early sample
+    matters. Then the window is refitted with its start moved later by
+    Δ = max(4 samples, tau/10); if tau changes by more than 3 standard deviations of the
+    difference, var(τ_late) − var(τ_early) (the Hausman test of nested estimators:
+    J. A. Hausman, Econometrica 46 (1978) 1251–1271), the early samples are biased and the
+    later start is kept, up to three times.
+    """
+    dt = float(t[1] - t[0])
+    windows, fits = list(windows), list(fits)
+    if drive is None:
+        t0s = [w.t0 for w in windows]
+        for k, (w, f) in enumerate(zip(windows, fits)):
+            found = _switch_instant(t, w, f, windows[k - 1] if k else None, fits[k - 1] if k else None, baseline)
+            if found is not None:
+                t0s[k] = found
+        for k, (w, f) in enumerate(zip(windows, fits)):
+            start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0)))
+            stop = w.stop
+            if k + 1 < len(windows) and windows[k + 1].start - w.stop <= 10 + (windows[k + 1].start - w.stop) // 2:
+                step = abs(f["coef_sense"]) * math.exp(-(t[w.start] - w.t0) / f["tau"]) or 1e-300
+                sigma_t0 = f.noise_sigma["sense"] * f["tau"] / step
+                stop = int(np.searchsorted(t, t0s[k + 1] - max(2.0 * dt, 3.0 * sigma_t0)))
+            if (start, stop) != (w.start, w.stop) and stop - start >= 8:
+                windows[k] = Window(w.edge, t0s[k], start, stop)
+                fits[k] = fit_window(t, sense, drive, windows[k], noise, source)
+    out_w, out_f, late = [], [], 0
+    for w, f in zip(windows, fits):
+        step = max(4, int(math.ceil(0.1 * f["tau"] / dt)))
+        moved = False
+        for _ in range(3):
+            start = w.start + step
+            if w.stop - start < max(16, 4 * step):
+                break
+            w2 = Window(w.edge, w.t0, start, w.stop)
+            f2 = fit_window(t, sense, drive, w2, noise, source)
+            var_d = f2.stderr("tau") ** 2 - f.stderr("tau") ** 2
+            if var_d > 0 and (f2["tau"] - f["tau"]) ** 2 / var_d > 9.0:
+                w, f, moved = w2, f2, True
+            else:
+                break
+        late += moved
+        out_w.append(w)
+        out_f.append(f)
+    return out_w, out_f, late
+
+
+def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, noise, fit_window
+                  ) -> tuple[Combined, bool]:
+    """tau and state levels from one fit of every sample (``wavefit.fit.relaxation``).
+
+    Used without a drive channel, where the switching instants must come from the sense
+    trace itself. The check is a set of windows cut from the whole-record fit's
+    switching instants with generous margins, Δ = max(4 samples, tau/10) after each
+    and 3σ of the next instant before it, fitted separately: they do not rest on the
+    kink at the edges. The whole-record result is kept if it agrees with them by the
+    Hausman test (difference within 3 standard deviations of var(windows) −
+    var(whole record)); otherwise those windows are returned. Returns (result,
+    whole-record accepted).
+    """
+    by_t0 = {id(w.edge): w for w in windows}
+    t0s = [by_t0[id(e)].t0 if id(e) in by_t0 else e.t0 for e in edges]
+    fit_of = {id(w.edge): f for w, f in zip(windows, fits)}
+    levels = [baseline["final_sense"] if baseline is not None else
+              float(np.median(sense[: max(int(np.searchsorted(t, t0s[0])), 1)]))]
+    hi, lo = windowed.values[windowed.names.index("sense_high")], windowed.values[windowed.names.index("sense_low")]
+    for e in edges:
+        f = fit_of.get(id(e))
+        levels.append(f["final_sense"] if f is not None else (hi if e.direction > 0 else lo))
+    try:
+        whole = fit_relaxations(t, sense, t0s, levels, windowed.values[0], noise=noise)
+    except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+        return windowed, False
+    var_f = whole.covariance[0, 0]
+    if not (np.isfinite(var_f) and var_f > 0):
+        return windowed, False
+    if any("ended at its bound" in w for w in whole.warnings) or \
+            (whole["tau"] - windowed.values[0]) ** 2 > 9.0 * windowed.covariance[0, 0]:
+        # a gross disagreement with the independent per-edge windows: another minimum of the
+        # whole-record fit (switching instants moved together with tau)
+        return windowed, False
+    dt = float(t[1] - t[0])
+    tau = whole["tau"]
+    skip = max(4.0 * dt, 0.1 * tau)
+    checked_w, checked_f = [], []
+    for k, e in enumerate(edges):
+        if id(e) not in by_t0:
+            continue
+        t0 = whole[f"t0_{k + 1}"]
+        start = int(np.searchsorted(t, t0 + skip))
+        stop = t.size
+        if k + 1 < len(edges):
+            step = abs(whole[f"final_{k + 1}"] - (whole[f"final_{k}"] if k else whole["final_head"])) or 1e-300
+            margin = max(2.0 * dt, 3.0 * whole.noise_sigma["sense"] * tau / step)
+            stop = int(np.searchsorted(t, whole[f"t0_{k + 2}"] - margin))
+        if stop - start >= 16:
+            w = Window(e, t0, start, stop)
+            checked_w.append(w)
+            checked_f.append(fit_window(t, sense, None, w, noise, "capture"))
+    if not checked_w:
+        return windowed, False
+    check = combine(checked_w, checked_f, baseline, False)
+    var_w = check.covariance[0, 0]
+    d = check.values[0] - tau
+    if var_w > var_f and d * d / (var_w - var_f) > 9.0:
+        return check, False
+    # state levels: the mean of the complete states' levels (the head's only where a state has no window)
+    names = ("tau", "final_head") + tuple(f"final_{k + 1}" for k in range(len(edges)))
+    vals, cov = whole.subset(names)
+    rows = {"high": [], "low": []}
+    for k, e in enumerate(edges):
+        if id(e) in by_t0:
+            rows["high" if e.direction > 0 else "low"].append(2 + k)
+    head_state = "low" if edges[0].direction > 0 else "high"
+    if not rows[head_state]:
+        rows[head_state].append(1)
+    if not rows["high"] or not rows["low"]:
+        return check, False
+    a = np.zeros((3, len(names)))
+    a[0, 0] = 1.0
+    for r, state in ((1, "high"), (2, "low")):
+        a[r, rows[state]] = 1.0 / len(rows[state])
+    return Combined(("tau_fit", "sense_high", "sense_low"), a @ vals, a @ cov @ a.T, ("s", "V", "V"),
+                     float(whole.dof), windowed.by_direction, windowed.rise_fall, windowed.birge), True
+
+
+def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> float | None:
+    """Where this window's fitted curve meets the curve of the state before (sense channel)."""
+    from scipy.optimize import brentq
+
+    dt = float(t[1] - t[0])
+    if prev_f is not None and prev_w.stop >= w.start - int(math.ceil(5 * f["tau"] / dt)):
+        def before(x):
+            return float(window_model(prev_f, "sense", np.array([x]))[0])
+    elif prev_f is None and baseline is not None:
+        level = baseline["final_sense"]
+
+        def before(x):
+            return level
+    else:
+        return None
+
+    def gap(x):
+        return float(window_model(f, "sense", np.array([x]))[0]) - before(x)
+
+    lo, hi = w.t0 - max(5 * dt, 0.3 * f["tau"]), float(t[w.start])
+    try:
+        if gap(lo) * gap(hi) > 0:
+            return None
+        return float(brentq(gap, lo, hi, xtol=1e-6 * dt))
+    except (ValueError, RuntimeError):
+        return None
+
+
+def combine(windows, fits, baseline, has_drive) -> Combined:
+    """Generalised least-squares combination of per-window estimates (independent windows).
+
+    Parameter vector: tau, [q = C_d/C_s], S_high, S_low, [D_high, D_low]; each window
+    observes tau, q and the final levels of the state its edge enters; the pre-edge
+    baseline observes the levels of the state before the first edge.
+    """
+    names = ["tau_fit"] + (["q_drive_sense"] if has_drive else []) + ["sense_high", "sense_low"]
+    if has_drive:
+        names += ["drive_high", "drive_low"]
+    idx = {n: i for i, n in enumerate(names)}
+    p = len(names)
+    info = np.zeros((p, p))
+    score = np.zeros(p)
+    obs = []
+    for w, f in zip(windows, fits):
+        state = "high" if w.edge.direction > 0 else "low"
+        vals, cov = f.subset(("tau", "final_sense", "coef_sense") + (("final_drive", "coef_drive") if has_drive else ()))
+        if has_drive:
+            tau, sf, cs, df, cd = vals
+            g = np.array([[1, 0, 0, 0, 0], [0, 0, -cd / cs ** 2, 0, 1 / cs], [0, 1, 0, 0, 0], [0, 0, 0, 1, 0]])
+            y = np.array([tau, cd / cs, sf, df])
+            cols = [idx["tau_fit"], idx["q_drive_sense"], idx[f"sense_{state}"], idx[f"drive_{state}"]]
+        else:
+            tau, sf, cs = vals
+            g = np.array([[1, 0, 0], [0, 1, 0]])
+            y = np.array([tau, sf])
+            cols = [idx["tau_fit"], idx[f"sense_{state}"]]
+        obs.append((y, g @ cov @ g.T, cols, w.edge.direction))
+    if baseline is not None:
+        state = "low" if windows[0].edge.direction > 0 else "high"
+        groups = ("final_sense", "final_drive") if has_drive else ("final_sense",)
+        vals, cov = baseline.subset(groups)
+        cols = [idx[f"sense_{state}"]] + ([idx[f"drive_{state}"]] if has_drive else [])
+        obs.append((vals, cov, cols, 0))
+    for y, c, cols, _ in obs:
+        ci = np.linalg.inv(c)
+        info[np.ix_(cols, cols)] += ci
+        score[cols] += ci @ y
+    d = np.sqrt(np.diag(info))
+    if np.any(d == 0) or np.linalg.matrix_rank(info / np.outer(d, d)) < p:
+        raise AnalysisRefused("the record does not hold both states settled long enough to measure the "
+                              "current step; record a pre-edge baseline or a full period")
+    cov = np.linalg.inv(info)
+    theta = cov @ score
+    chi2 = sum(float((y - theta[cols]) @ np.linalg.inv(c) @ (y - theta[cols])) for y, c, cols, _ in obs)
+    nu = sum(y.size for y, *_ in obs) - p
+    birge = None
+    if nu > 0:
+        ratio = math.sqrt(chi2 / nu)
+        p_value = float(stats.chi2.sf(chi2, nu))
+        birge = (ratio, p_value)
+        if p_value < 1e-3 and ratio > 1:
+            cov = cov * ratio ** 2
+    by_dir = {}
+    for key, sign in (("rising", 1), ("falling", -1)):
+        sel = [(f["tau"], f.stderr("tau") ** 2) for w, f in zip(windows, fits) if w.edge.direction == sign]
+        if sel:
+            wts = np.array([1 / v for _, v in sel])
+            by_dir[key] = (float(np.sum(wts * np.array([m for m, _ in sel])) / wts.sum()), float(1 / math.sqrt(wts.sum())))
+    rise_fall = None
+    if "rising" in by_dir and "falling" in by_dir:
+        (a, ua), (b, ub) = by_dir["rising"], by_dir["falling"]
+        rise_fall = (a - b) / math.hypot(ua, ub)
+    dof = float(sum(max(f.dof, 1.0) for f in fits))
+    units = tuple({"tau_fit": "s", "q_drive_sense": ""}.get(n, "V") for n in names)
+    return Combined(tuple(names), theta, cov, units, dof, by_dir, rise_fall, birge)
