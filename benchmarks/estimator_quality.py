@@ -229,13 +229,15 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--trials", type=int, default=300)
     parser.add_argument("--quick", action="store_true", help="one SNR, short records only")
     parser.add_argument("--method", choices=sorted(CASES), help="only this method")
+    parser.add_argument("--noise", choices=("white", "band-limited", "8-bit"), help="only this noise")
     args = parser.parse_args(argv)
     rows = []
     for sc in scenarios(args.quick):
-        if args.method and sc.method != args.method:
+        if (args.method and sc.method != args.method) or (args.noise and sc.noise != args.noise):
             continue
         rows += run_scenario(sc, args.trials)
-        print(format_table(rows[-len(CASES[sc.method]("short")[4]):]).splitlines()[-1], file=sys.stderr, flush=True)
+        print("\n".join(format_table(rows[-len(CASES[sc.method]("short")[4]):]).splitlines()[2:]),
+              file=sys.stderr, flush=True)
     print(format_table(rows))
     return 0
 

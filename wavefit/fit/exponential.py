@@ -29,11 +29,16 @@ from .result import FitResult
 
 @dataclass(frozen=True)
 class WindowChannel:
-    """One channel's samples in a fit window: times (s), values, and its noise group."""
+    """One channel's samples in a fit window: times (s), values, and its parameter label.
+
+    ``noise_group`` names the noise model the samples share (default: ``group``), so
+    several windows of one channel can be fitted jointly with one noise model.
+    """
 
     group: str
     time: np.ndarray
     values: np.ndarray
+    noise_group: str | None = None
 
 
 def _linear_part(e: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, float]:
@@ -66,7 +71,7 @@ def projected_tau(channels: Sequence[WindowChannel], t_ref: float, tau0: float) 
 
     def cost(log_tau: float) -> float:
         tau = math.exp(log_tau)
-        return sum(_linear_part(np.exp(-(ch.time - t_ref) / tau), ch.values)[1] / s
+        return sum(_linear_part(np.exp(-(ch.time - max(t_ref, float(ch.time[0]))) / tau), ch.values)[1] / s
                    for ch, s in zip(channels, scales))
 
     grid = np.log(tau0) + np.linspace(math.log(0.2), math.log(5.0), 25)
@@ -101,10 +106,13 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley 1989, §2.1
     (linearised covariance) and ch. 6 (autocorrelated errors).
     """
-    t_ref = min(float(ch.time[0]) for ch in channels)
+    # each channel's exponential is referred to its own first instant (the same instant for the
+    # channels of one window; different ones when several windows are fitted jointly)
+    t_refs = {ch.group: float(ch.time[0]) for ch in channels}
+    t_ref = min(t_refs.values())
     tau_start = projected_tau(channels, t_ref, tau0)
     # Work in units of tau_start so the parameters are of order one.
-    scaled = [(np.asarray(ch.time, dtype=float) - t_ref) / tau_start for ch in channels]
+    scaled = [(np.asarray(ch.time, dtype=float) - t_refs[ch.group]) / tau_start for ch in channels]
     x0 = [1.0]
     for ch, u in zip(channels, scaled):
         coef, _ = _linear_part(np.exp(-u), ch.values)
@@ -133,7 +141,8 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     names = ["tau"]
     for ch in channels:
         names += [f"final_{ch.group}", f"coef_{ch.group}"]
-    blocks = [Block(int(offsets[c]), int(offsets[c + 1]), ch.group) for c, ch in enumerate(channels)]
+    blocks = [Block(int(offsets[c]), int(offsets[c + 1]), ch.noise_group or ch.group)
+              for c, ch in enumerate(channels)]
     lower = np.full(n_par, -np.inf)
     lower[0] = 1e-6
     fit = fit_least_squares(fun, jac, x0, names, blocks, model=model, noise=noise,
@@ -141,7 +150,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     covariance = fit.covariance
     scale = np.ones(n_par)
     scale[0] = tau_start
-    diagnostics = dict(fit.diagnostics, t_ref=t_ref)
+    diagnostics = dict(fit.diagnostics, t_ref=t_ref, t_ref_by_group=t_refs)
     return FitResult(
         model=fit.model, names=fit.names, values=fit.values * scale,
         covariance=covariance * np.outer(scale, scale), residuals=fit.residuals,
@@ -152,7 +161,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
 
 def window_model(fit: FitResult, group: str, t: np.ndarray) -> np.ndarray:
     """The fitted curve of one channel at times ``t``."""
-    t_ref = fit.diagnostics["t_ref"]
+    t_ref = fit.diagnostics.get("t_ref_by_group", {}).get(group, fit.diagnostics["t_ref"])
     return fit[f"final_{group}"] + fit[f"coef_{group}"] * np.exp(-(np.asarray(t) - t_ref) / fit["tau"])
 
 

@@ -36,7 +36,7 @@ from ..signal.clipping import longest_run_at_extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant
 from ..uncertainty import InputSet, propagate
 from . import register
-from ._rl_windows import Window, combine, settle_starts, whole_record
+from ._rl_windows import Window, combine, pooled_windows, settle_starts, whole_record
 from .base import Method, PartSpec
 
 #: Source resistance assumed only to size the skip after a winding-capacitance spike
@@ -113,6 +113,10 @@ class RLStep(Method):
         combined = combine(windows, fits, baseline, drive is not None)
         estimator = "per-edge windows"
         white = all(f.noise_model["sense"]["order"] == 0 for f in fits)
+        if drive is None and not white and len(windows) > 1:
+            pooled = pooled_windows(t, sense, windows, baseline, combined, noise)
+            if pooled is not None:
+                combined, estimator = pooled, "windows fitted jointly with one noise model"
         if (drive is None and white and self.option(setup, "skip") == "auto"
                 and "winding_capacitance" not in setup.parts):
             # in correlated noise the whole-record fit's switching instants lock onto noise
