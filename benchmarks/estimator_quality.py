@@ -26,6 +26,7 @@ import argparse
 import math
 import sys
 import time
+import zlib
 from dataclasses import dataclass
 from typing import Callable
 
@@ -39,6 +40,8 @@ from wavefit.synth.rl import rl_square_wave
 from wavefit.synth.scope import ScopeModel, band_limited_noise
 
 CORRELATED_SAMPLES = 10.0
+#: Only the fit is tested: the synthetic scope has a perfect timebase and gain.
+EXACT_INSTRUMENT = {"timebase": "±0 ppm", "vertical_gain": "±0%"}
 
 
 @dataclass(frozen=True)
@@ -94,7 +97,8 @@ def rl_case(record: str):
     t, _, clean = rl_square_wave(RL["L"], RL["dcr"], RL["rs"], RL["rsrc"], 1.0, period, dt, duration,
                                  delay=5 * tau)
     setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense"},
-             "parts": {"sense_resistor": RL["rs"], "source_resistance": RL["rsrc"], "dut_resistance": RL["dcr"]}}
+             "parts": {"sense_resistor": RL["rs"], "source_resistance": RL["rsrc"], "dut_resistance": RL["dcr"]},
+             "instrument": EXACT_INSTRUMENT}
     amp = float(clean.max() - clean.min())
 
     def signal(theta):  # offset, amplitude, tau, first edge time of the square-wave response
@@ -131,7 +135,8 @@ def lc_case(record: str):
     pre = 50
     t, clean = ringdown(tank, dt, samples, step=1.0, pre_trigger=pre)
     setup = {"method": "lc-ring", "columns": {"time": "time", "tank": "tank"},
-             "parts": {"tank_capacitor": tank.tank_capacitor, "parallel_load": tank.feed_resistance}}
+             "parts": {"tank_capacitor": tank.tank_capacitor, "parallel_load": tank.feed_resistance},
+             "instrument": EXACT_INSTRUMENT}
     post = t >= 0
     tp = t[post]
     # the clean response after the step is offset + A·exp(−alpha t)·cos(wd t + phi) exactly (two poles)
@@ -168,10 +173,12 @@ def bound_for(quantity_spec, kind: str, sigma: float) -> float:
     return float(grad @ cov @ grad)
 
 
-def run_scenario(sc: Scenario, trials: int, seed: int = 1) -> list[Row]:
+def run_scenario(sc: Scenario, trials: int, seed: int | None = None) -> list[Row]:
+    """Run one scenario; by default each scenario draws its own noise (seed from its name),
+    so rows of different SNR are independent samples."""
     t, clean, setup, amp, quantities = CASES[sc.method](sc.record)
     sigma = amp / 10 ** (sc.snr_db / 20)
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(zlib.crc32(repr(sc).encode()) if seed is None else seed)
     scope = scope_for(sc.noise, sigma, clean)
     role = "sense" if sc.method == "rl-step" else "tank"
     est = {q: [] for q in quantities}
