@@ -43,6 +43,7 @@ import numpy as np
 from scipy import optimize
 
 from .engine import Block, fit_least_squares
+from .quantisation import include_quantisation
 from .pencil import matrix_pencil
 from .result import FitResult
 
@@ -191,8 +192,10 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
 
     lower = np.array([-np.inf, -np.inf, -np.inf, -np.inf, 0.0])
     upper = np.array([np.inf, np.inf, np.inf, np.inf, math.pi])
-    fit = fit_least_squares(fun, jac, x0, NAMES, [Block(0, n, "tank")], model="damped sinusoid",
+    blocks = [Block(0, n, "tank")]
+    fit = fit_least_squares(fun, jac, x0, NAMES, blocks, model="damped sinusoid",
                             noise=noise, bounds=(lower, upper), x_scale=_x_scale(x0))
+    fit = include_quantisation(fit, y, model(fit.values, tau), jacobian(fit.values, tau), blocks)
     scale = np.array([1.0, 1.0, 1.0, 1.0 / sample_interval, 1.0 / sample_interval])
     physical = dataclasses.replace(fit, values=fit.values * scale,
                                    covariance=fit.covariance * np.outer(scale, scale))

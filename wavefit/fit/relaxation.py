@@ -25,6 +25,7 @@ from typing import Sequence
 import numpy as np
 
 from .engine import Block, fit_least_squares
+from .quantisation import include_quantisation
 from .result import FitResult
 
 
@@ -111,8 +112,10 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
         guess = x0[4 + 2 * i]
         lower[4 + 2 * i] = max(0.5 * (lo + guess), guess - reach)
         upper[4 + 2 * i] = min(0.5 * (hi + guess), guess + reach)
-    fit = fit_least_squares(fun, jac, x0, names, [Block(0, t.size, "sense")], model="square-wave relaxation",
+    blocks = [Block(0, t.size, "sense")]
+    fit = fit_least_squares(fun, jac, x0, names, blocks, model="square-wave relaxation",
                             noise=noise, bounds=(lower, upper), correct_bias=correct_bias)
+    fit = include_quantisation(fit, y, y - fun(fit.values), -jac(fit.values), blocks)
     factor = np.ones(x0.size)
     factor[0] = scale
     factor[4::2] = scale

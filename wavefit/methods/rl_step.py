@@ -28,6 +28,7 @@ import numpy as np
 from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
+from ..fit.quantisation import RECORD_WIDE
 from ..fit.result import FitResult
 from ..io.capture import Capture
 from ..results import AnalysisResult, TracePlot
@@ -244,7 +245,8 @@ class RLStep(Method):
                        "the first-order correction used may not suffice")
         for w, fit in zip(windows, fits):
             for msg in fit.warnings:
-                out.append(f"edge at {w.t0:.6g} s: {msg}")
+                # a record-wide condition is said once, not once per edge
+                out.append(msg if msg.startswith(RECORD_WIDE) else f"edge at {w.t0:.6g} s: {msg}")
             for group, y in (("sense", sense), ("drive", drive)):
                 if y is None:
                     continue
