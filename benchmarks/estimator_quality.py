@@ -80,7 +80,7 @@ def scope_for(kind: str, sigma: float, clean: np.ndarray) -> ScopeModel:
         return ScopeModel(noise_rms=sigma, correlation_samples=CORRELATED_SAMPLES)
     if kind == "8-bit":
         lo, hi = float(clean.min()), float(clean.max())
-        pad = 0.1 * (hi - lo)
+        pad = 0.1 * (hi - lo) + 5.0 * sigma  # headroom, as a user sets the range: noise is not clipped
         return ScopeModel(noise_rms=sigma, bits=8, full_scale=(lo - pad, hi + pad))
     raise ValueError(kind)
 

@@ -31,7 +31,7 @@ from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring
 from ..io.capture import Capture
 from ..results import AnalysisResult, TracePlot
 from ..setup import Setup
-from ..signal.clipping import longest_run_at_extremes, model_exceeds_record
+from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
 from ..uncertainty import InputSet, propagate
 from ..values import PartValue, parse_number_with_unit
 from . import register
@@ -208,7 +208,7 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     seg_t, seg_y = t[ring.start:ring.stop], y[ring.start:ring.stop]
     fitted = ring.evaluate(seg_t)
     runs = longest_run_at_extremes(seg_y)
-    if max(runs) >= 5 and model_exceeds_record(seg_y, fitted, sigma):
+    if (max(runs) >= 5 and model_exceeds_record(seg_y, fitted, sigma)) or piles_up_at_limit(seg_y, sigma):
         warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
                         "whole ring fits on screen")
     drift = _drift_check(ring, y, noise)

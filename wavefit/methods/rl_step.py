@@ -33,7 +33,7 @@ from ..fit.result import FitResult
 from ..io.capture import Capture
 from ..results import AnalysisResult, TracePlot
 from ..setup import Setup
-from ..signal.clipping import longest_run_at_extremes, model_exceeds_record
+from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
 from ..signal.edges import find_edges, jump_instant
 from ..uncertainty import InputSet, propagate
 from . import register
@@ -251,7 +251,7 @@ class RLStep(Method):
                 if y is None:
                     continue
                 seg = slice(w.start, w.stop)
-                if (_flat_at_extreme(y, fit.noise_sigma[group])
+                if (_flat_at_extreme(y, fit.noise_sigma[group]) or piles_up_at_limit(y, fit.noise_sigma[group])
                         or model_exceeds_record(y[seg], window_model(fit, group, t[seg]), fit.noise_sigma[group])):
                     out.append(f"the {group} trace is clipped (flat at the converter's limit while the fitted "
                                "curve goes beyond it): reduce the vertical sensitivity")

@@ -32,3 +32,27 @@ def model_exceeds_record(y: np.ndarray, model: np.ndarray, sigma: float, min_run
     above = (y == top) & (model > top + 3.0 * sigma)
     below = (y == bottom) & (model < bottom - 3.0 * sigma)
     return _longest_run(above) >= min_run or _longest_run(below) >= min_run
+
+
+def piles_up_at_limit(y: np.ndarray, sigma: float, min_count: int = 5) -> bool:
+    """True when noise has been cut off at the converter's range: more samples sit at the
+    record's extreme value than at the value one code inside it (a pile-up; a smooth noise
+    distribution thins out towards its tails, common practice). Only judged when the noise
+    spans more than one code, since a quiet plateau on one code piles up by itself."""
+    from ..fit.quantisation import code_step
+
+    y = np.asarray(y, dtype=float)
+    y = y[np.isfinite(y)]
+    step = code_step(y)
+    for extreme, inward in ((np.max(y), -1.0), (np.min(y), 1.0)):
+        at = int(np.count_nonzero(y == extreme))
+        if at < min_count:
+            continue
+        if step is None:
+            return sigma > 0  # continuous values repeat an extreme only when it was clipped
+        if sigma <= step:
+            continue
+        near = int(np.count_nonzero(np.abs(y - (extreme + inward * step)) < 0.01 * step))
+        if at > 1.5 * near + 3:
+            return True
+    return False
