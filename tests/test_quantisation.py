@@ -24,7 +24,10 @@ def test_shift_is_the_least_squares_image_of_the_quantisation_error():
     step = 1 / 64
     quantised = step * np.round(model / step)
     shift, codes = quantisation_shift(quantised, model, jac, residual_rms=0.2 * step)
-    assert shift == pytest.approx(np.linalg.lstsq(jac, quantised - model, rcond=None)[0])
+    # rms over eight sub-code positions of the grid of the least-squares image of Q(m) - m
+    images = [np.linalg.lstsq(jac, step * (np.round(model / step + p) - p) - model, rcond=None)[0]
+              for p in np.arange(8) / 8]
+    assert np.abs(shift) == pytest.approx(np.sqrt(np.mean(np.square(images), axis=0)), rel=1e-6)
     assert codes == pytest.approx(0.2)
     assert quantisation_shift(quantised, model, jac, residual_rms=0.6 * step) is None  # dithered
 

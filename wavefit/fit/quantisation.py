@@ -8,8 +8,10 @@ University Press 2008, ch. 4–5: the quantisation error is white and independen
 of the signal only when the input's characteristic function vanishes at
 multiples of 2π/q, which Gaussian noise of σ ≳ q/2 ensures). Its effect is
 estimated by quantising the fitted model onto the record's own code grid and
-passing the difference through the fit's linear influence, δθ = J⁺·(Q(m) − m);
-that shift is added to the covariance as a fully correlated component.
+passing the difference through the fit's linear influence, δθ = J⁺·(Q(m) − m),
+as an rms over eight positions of the grid between codes (where the true
+waveform sits between codes is not known); that shift is added to the
+covariance as a fully correlated component.
 """
 from __future__ import annotations
 
@@ -45,9 +47,14 @@ def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: np.ndarray,
     if step is None or residual_rms >= DITHER_LIMIT * step:
         return None
     origin = float(np.min(y))
-    quantised = origin + step * np.round((model - origin) / step)
-    shift, *_ = np.linalg.lstsq(jac_model, quantised - model, rcond=None)
-    return shift, residual_rms / step
+    # the fitted model is not the true waveform, and where the true one sits between codes is
+    # unknown: take the rms of the shift over eight sub-code positions of the grid
+    shifts = []
+    for phase in np.arange(8) / 8.0:
+        quantised = origin + step * (np.round((model - origin) / step + phase) - phase)
+        shifts.append(np.linalg.lstsq(jac_model, quantised - model, rcond=None)[0])
+    shifts = np.array(shifts)
+    return np.sqrt(np.mean(shifts ** 2, axis=0)) * np.sign(shifts[0] + 1e-300), residual_rms / step
 
 
 #: How the warning begins, for callers that report it once per record.
