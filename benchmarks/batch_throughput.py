@@ -63,6 +63,29 @@ def captures_per_second(folder: Path, workers: int, run_number: int = 0) -> floa
     return rows / elapsed
 
 
+def _burn(n: int) -> float:
+    """Pure CPU work with no memory traffic: the machine's own ceiling for process scaling."""
+    x = 0.0
+    for i in range(n):
+        x += i * 0.5
+    return x
+
+
+def machine_ceiling(workers: int, n: int = 30_000_000) -> float:
+    """Speed-up of ``workers`` processes of pure CPU work over one: what the cores allow."""
+    import multiprocessing
+
+    start = time.perf_counter()
+    _burn(n)
+    single = time.perf_counter() - start
+    with multiprocessing.get_context("spawn").Pool(workers) as pool:
+        pool.map(_burn, [1] * workers)  # start the workers before timing
+        start = time.perf_counter()
+        pool.map(_burn, [n] * workers)
+        parallel = time.perf_counter() - start
+    return workers * single / parallel
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--captures", type=int, default=24)
@@ -81,6 +104,9 @@ def main() -> None:
             many = max(captures_per_second(folder, args.workers, k) for k in range(args.repeat))
             print(f"{args.workers} workers: {many:6.2f} captures/s  (speed-up {many / one:.2f}, "
                   f"efficiency {many / one / args.workers:.0%})")
+            ceiling = machine_ceiling(args.workers)
+            print(f"machine ceiling: {ceiling:.2f}x for {args.workers} processes of pure CPU work "
+                  f"(batch reaches {many / one / ceiling:.0%} of it)")
 
 
 if __name__ == "__main__":
