@@ -66,7 +66,8 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
         for k, (w, f) in enumerate(zip(windows, fits)):
             start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0)))
             stop = w.stop
-            if k + 1 < len(windows) and windows[k + 1].start - w.stop <= 10 + (windows[k + 1].start - w.stop) // 2:
+            if k + 1 < len(windows) and windows[k + 1].start - w.stop <= max(10, int(0.5 * f["tau"] / dt)):
+                # the next window follows the next edge (no edge was left out in between)
                 step = abs(f["coef_sense"]) * math.exp(-(t[w.start] - w.t0) / f["tau"]) or 1e-300
                 sigma_t0 = f.noise_sigma["sense"] * f["tau"] / step
                 stop = int(np.searchsorted(t, t0s[k + 1] - max(2.0 * dt, 3.0 * sigma_t0)))
