@@ -33,7 +33,7 @@ from ..fit.result import FitResult
 from ..io.capture import Capture
 from ..results import AnalysisResult, TracePlot
 from ..setup import Setup
-from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
+from ..signal.clipping import extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant
 from ..uncertainty import InputSet, propagate
 from . import register
@@ -243,6 +243,7 @@ class RLStep(Method):
         if cp is not None and setup.parts["sense_resistor"].value * cp.value > 0.05 * tau:
             out.append("the probe capacitance with the sense resistor makes a pole comparable to tau; "
                        "the first-order correction used may not suffice")
+        facts = {group: extremes(y) for group, y in (("sense", sense), ("drive", drive)) if y is not None}
         for w, fit in zip(windows, fits):
             for msg in fit.warnings:
                 # a record-wide condition is said once, not once per edge
@@ -251,8 +252,9 @@ class RLStep(Method):
                 if y is None:
                     continue
                 seg = slice(w.start, w.stop)
-                if (_flat_at_extreme(y, fit.noise_sigma[group]) or piles_up_at_limit(y, fit.noise_sigma[group])
-                        or model_exceeds_record(y[seg], window_model(fit, group, t[seg]), fit.noise_sigma[group])):
+                sigma = fit.noise_sigma[group]
+                if (facts[group].flat(sigma) or facts[group].piles_up(sigma)
+                        or model_exceeds_record(y[seg], window_model(fit, group, t[seg]), sigma)):
                     out.append(f"the {group} trace is clipped (flat at the converter's limit while the fitted "
                                "curve goes beyond it): reduce the vertical sensitivity")
         if combined.rise_fall is not None:
@@ -348,16 +350,6 @@ def _measurement_function(has_drive: bool, setup: Setup):
                 "I_final": current, "E": inductance * current ** 2 / 2}
 
     return model
-
-
-def _flat_at_extreme(y: np.ndarray, sigma: float, min_run: int = 20) -> bool:
-    """A run of ``min_run`` identical samples at the record's extreme although the noise spans
-    more than one converter step: the trace sat at the converter's limit (common practice)."""
-    codes = np.unique(y)
-    if codes.size < 2:
-        return False
-    lsb = float(np.min(np.diff(codes)))
-    return sigma > lsb and max(longest_run_at_extremes(y)) >= min_run
 
 
 def _plot(t, sense, drive, windows, fits) -> TracePlot:

@@ -7,6 +7,8 @@ sign (common practice). The fitted model settles it: see :func:`model_exceeds_re
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 
@@ -34,25 +36,54 @@ def model_exceeds_record(y: np.ndarray, model: np.ndarray, sigma: float, min_run
     return _longest_run(above) >= min_run or _longest_run(below) >= min_run
 
 
-def piles_up_at_limit(y: np.ndarray, sigma: float, min_count: int = 5) -> bool:
-    """True when noise has been cut off at the converter's range: more samples sit at the
-    record's extreme value than at the value one code inside it (a pile-up; a smooth noise
-    distribution thins out towards its tails, common practice). Only judged when the noise
-    spans more than one code, since a quiet plateau on one code piles up by itself."""
+@dataclass(frozen=True)
+class Extremes:
+    """The facts about a record's extreme values that the clipping checks need, computed
+    once per channel (they sort the whole record) and judged against any noise level."""
+
+    smallest_gap: float | None   # between distinct values; None with fewer than two
+    longest_run: int             # identical samples at the minimum or the maximum
+    code: float | None           # the converter step, when the values sit on a grid
+    counts: tuple[tuple[int, int], ...]  # (samples at the extreme, one code inside) for max, min
+
+    def flat(self, sigma: float, min_run: int = 20) -> bool:
+        """A run of ``min_run`` identical samples at the record's extreme although the noise
+        spans more than one converter step: the trace sat at the converter's limit (common
+        practice)."""
+        return self.smallest_gap is not None and sigma > self.smallest_gap and self.longest_run >= min_run
+
+    def piles_up(self, sigma: float, min_count: int = 5) -> bool:
+        """More samples at the record's extreme value than one code inside it: noise cut off
+        at the converter's range (a smooth noise distribution thins out towards its tails,
+        common practice). Only judged when the noise spans more than one code, since a quiet
+        plateau on one code piles up by itself."""
+        for at, near in self.counts:
+            if at < min_count:
+                continue
+            if self.code is None:
+                return sigma > 0  # continuous values repeat an extreme only when it was clipped
+            if sigma > self.code and at > 1.5 * near + 3:
+                return True
+        return False
+
+
+def extremes(y: np.ndarray) -> Extremes:
+    """Gather :class:`Extremes` of a record."""
     from ..fit.quantisation import code_step
 
     y = np.asarray(y, dtype=float)
     y = y[np.isfinite(y)]
-    step = code_step(y)
-    for extreme, inward in ((np.max(y), -1.0), (np.min(y), 1.0)):
+    levels = np.unique(y)
+    gap = float(np.min(np.diff(levels))) if levels.size >= 2 else None
+    code = code_step(y)
+    counts = []
+    for extreme, inward in ((levels[-1], -1.0), (levels[0], 1.0)):
         at = int(np.count_nonzero(y == extreme))
-        if at < min_count:
-            continue
-        if step is None:
-            return sigma > 0  # continuous values repeat an extreme only when it was clipped
-        if sigma <= step:
-            continue
-        near = int(np.count_nonzero(np.abs(y - (extreme + inward * step)) < 0.01 * step))
-        if at > 1.5 * near + 3:
-            return True
-    return False
+        near = int(np.count_nonzero(np.abs(y - (extreme + inward * code)) < 0.01 * code)) if code else 0
+        counts.append((at, near))
+    return Extremes(gap, max(longest_run_at_extremes(y)), code, tuple(counts))
+
+
+def piles_up_at_limit(y: np.ndarray, sigma: float, min_count: int = 5) -> bool:
+    """See :meth:`Extremes.piles_up`."""
+    return extremes(y).piles_up(sigma, min_count)
