@@ -50,15 +50,13 @@ def _linear_part(e: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, float]:
     return coef, float(r @ r)
 
 
-def projected_tau(channels: Sequence[WindowChannel], t_ref: float, tau0: float) -> float:
+def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
     """Variable-projection estimate of tau: minimise the summed, scatter-normalised RSS over tau.
 
     Parameters
     ----------
     channels
-        The window's channels.
-    t_ref
-        Reference instant of the exponential.
+        The window's channels; each exponential is referred to its channel's first instant.
     tau0
         Rough time constant (for example from 10 %/90 % reference-level instants).
 
@@ -72,7 +70,7 @@ def projected_tau(channels: Sequence[WindowChannel], t_ref: float, tau0: float) 
 
     def cost(log_tau: float) -> float:
         tau = math.exp(log_tau)
-        return sum(_linear_part(np.exp(-(ch.time - max(t_ref, float(ch.time[0]))) / tau), ch.values)[1] / s
+        return sum(_linear_part(np.exp(-(ch.time - float(ch.time[0])) / tau), ch.values)[1] / s
                    for ch, s in zip(channels, scales))
 
     grid = np.log(tau0) + np.linspace(math.log(0.2), math.log(5.0), 25)
@@ -111,7 +109,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     # channels of one window; different ones when several windows are fitted jointly)
     t_refs = {ch.group: float(ch.time[0]) for ch in channels}
     t_ref = min(t_refs.values())
-    tau_start = projected_tau(channels, t_ref, tau0)
+    tau_start = projected_tau(channels, tau0)
     # Work in units of tau_start so the parameters are of order one.
     scaled = [(np.asarray(ch.time, dtype=float) - t_refs[ch.group]) / tau_start for ch in channels]
     x0 = [1.0]
