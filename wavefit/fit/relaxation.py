@@ -102,11 +102,14 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     lower = np.full(x0.size, -np.inf)
     upper = np.full(x0.size, np.inf)
     lower[0] = 1e-3
-    # keep every switching instant near its guess (within 0.3 tau0 and 4 samples) and
-    # between its neighbours' guesses
+    # keep every switching instant near its guess and between its neighbours' guesses; near
+    # means within 0.3 tau0, 4 samples, or 6 standard deviations of the instant the noise
+    # allows, σ·tau/|step| (at low SNR the guess itself is that uncertain)
     dt = ts[1] - ts[0]
-    reach = max(0.3, 4.0 * dt)
+    sigma = _noise_rms(y)
     for i in range(k):
+        step = abs(level_guess[i + 1] - level_guess[i]) or np.inf
+        reach = max(0.3, 4.0 * dt, 6.0 * sigma / step)
         lo = (x0[4 + 2 * (i - 1)] if i else ts[0]) + dt
         hi = (x0[4 + 2 * (i + 1)] if i + 1 < k else ts[-1]) - dt
         guess = x0[4 + 2 * i]
@@ -127,3 +130,10 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
         n_samples=fit.n_samples, n_effective=fit.n_effective, dof=fit.dof, diagnostics=fit.diagnostics,
         warnings=fit.warnings,
     )
+
+
+def _noise_rms(y: np.ndarray) -> float:
+    """Robust noise rms from first differences (median absolute deviation; the steps of the
+    waveform are few and do not move the median)."""
+    d = np.diff(y)
+    return float(1.4826 * np.median(np.abs(d - np.median(d))) / np.sqrt(2.0))

@@ -28,6 +28,7 @@ import numpy as np
 from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
+from ..fit.noise_model import fit_ar
 from ..fit.quantisation import RECORD_WIDE
 from ..fit.result import FitResult
 from ..io.capture import Capture
@@ -113,7 +114,9 @@ class RLStep(Method):
 
         combined = combine(windows, fits, baseline, drive is not None)
         estimator = "per-edge windows"
-        white = all(f.noise_model["sense"]["order"] == 0 for f in fits)
+        # is the sense noise white? One decision from all windows' residuals together: separate
+        # per-window BIC choices would call white noise coloured in one of a dozen windows often
+        white = noise == "white" or (drive is None and fit_ar([f.residuals for f in fits]).order == 0)
         if drive is None and not white and len(windows) > 1:
             pooled = pooled_windows(t, sense, windows, baseline, combined, noise)
             if pooled is not None:
