@@ -24,6 +24,7 @@ from typing import Sequence
 
 import numpy as np
 
+from ..signal.edges import noise_rms
 from .engine import Block, fit_least_squares
 from .quantisation import include_quantisation
 from .result import FitResult
@@ -106,7 +107,7 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     # means within 0.3 tau0, 4 samples, or 6 standard deviations of the instant the noise
     # allows, σ·tau/|step| (at low SNR the guess itself is that uncertain)
     dt = ts[1] - ts[0]
-    sigma = _noise_rms(y)
+    sigma = noise_rms(y)
     for i in range(k):
         step = abs(level_guess[i + 1] - level_guess[i]) or np.inf
         reach = max(0.3, 4.0 * dt, 6.0 * sigma / step)
@@ -131,9 +132,3 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
         warnings=fit.warnings,
     )
 
-
-def _noise_rms(y: np.ndarray) -> float:
-    """Robust noise rms from first differences (median absolute deviation; the steps of the
-    waveform are few and do not move the median)."""
-    d = np.diff(y)
-    return float(1.4826 * np.median(np.abs(d - np.median(d))) / np.sqrt(2.0))

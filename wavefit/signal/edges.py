@@ -52,6 +52,18 @@ def noise_rms(y: np.ndarray) -> float:
     return float(1.4826 * np.median(np.abs(d - np.median(d))) / math.sqrt(2.0))
 
 
+def state_noise_rms(y: np.ndarray, levels: StateLevels) -> float:
+    """Noise rms from the samples that sit near a state level: 1.4826·MAD of their distance
+    to it (common practice). Unlike first differences it holds for band-limited noise,
+    whose neighbouring samples move together."""
+    y = np.asarray(y, dtype=float)
+    dev = np.where(np.abs(y - levels.low) < np.abs(y - levels.high), y - levels.low, y - levels.high)
+    near = dev[np.abs(dev) < 0.25 * abs(levels.amplitude)] if levels.amplitude else dev
+    if near.size < 8:
+        return 0.0
+    return float(1.4826 * np.median(np.abs(near - np.median(near))))
+
+
 def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
                min_snr: float = 5.0) -> list[Edge]:
     """Transitions of a two-state record, in time order.
@@ -82,7 +94,9 @@ def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
     sigma = noise_rms(y)
     if not amp > 0 or amp < min_snr * sigma:
         return []
-    hyst = max(0.1 * amp, 3.0 * sigma)
+    # hysteresis against the noise at the levels, which first differences underrate when the
+    # noise is band-limited: spurious crossings around the 50 % level would hide the edge
+    hyst = max(0.1 * amp, 3.0 * sigma, 3.0 * state_noise_rms(y, levels))
     mid = crossings(t, y, levels.reference(50.0), hysteresis=min(hyst, 0.4 * amp))
     edges = []
     for k, c in enumerate(mid):
