@@ -87,6 +87,8 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
     dof = float(e.size - p - ar_params)
     s2 = float(e @ e) / dof if noise != "known" else 1.0
     bread = _inverse_normal_matrix(jw)
+    if not np.all(np.isfinite(bread)):
+        raise ValueError("the data do not determine every fit parameter (singular normal matrix)")
     cov = s2 * bread
     extents: dict[str, int] = {}
     if noise == "auto" and ar_params:
