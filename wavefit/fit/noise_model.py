@@ -9,14 +9,23 @@ autoregressive errors (G. A. F. Seber and C. J. Wild, *Nonlinear Regression*,
 Wiley 1989, ch. 6; D. Cochrane and G. H. Orcutt, J. Am. Stat. Assoc. 44 (1949)
 32–61). The covariance of the refit is then the ordinary one of a white-noise
 problem. The order is chosen by G. Schwarz's criterion, Ann. Stat. 6 (1978) 461–464.
+
+The whitening is exact, the first p samples included: they are decorrelated with
+the inverse Cholesky factor of their stationary covariance, the AR(p)
+generalisation of S. J. Prais and C. B. Winsten's first-observation transform
+(Cowles Commission Discussion Paper 383, 1954). Dropping them, as the conditional
+(Cochrane–Orcutt) transform does, would throw away the most informative samples of
+a window that starts at an edge: in strongly correlated noise the first sample
+carries as much information as dozens of later ones.
 """
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
-from scipy.linalg import solve_toeplitz
+from scipy.linalg import cholesky, solve_toeplitz, solve_triangular, toeplitz
 from scipy.signal import lfilter
 
 
@@ -30,6 +39,8 @@ class ARNoise:
     coefficients: np.ndarray
     sigma: float
     sigma_e: float
+    #: the model's autocovariance at lags 0 … p−1 (Yule–Walker reproduces the sample's)
+    head_autocovariance: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
     @property
     def order(self) -> int:
@@ -48,9 +59,30 @@ class ARNoise:
             return math.inf
         return (self.sigma_e / denom) ** 2 / self.sigma ** 2
 
+    @cached_property
+    def head_whitener(self) -> np.ndarray:
+        """L⁻¹ with L Lᵀ the stationary covariance of p consecutive samples."""
+        chol = cholesky(toeplitz(self.head_autocovariance), lower=True)
+        return solve_triangular(chol, np.eye(self.order), lower=True)
+
     def whiten(self, r: np.ndarray) -> np.ndarray:
-        """Innovations of ``r`` scaled to unit variance; the first p samples are dropped."""
-        return lfilter(self.filter, [1.0], r, axis=0)[self.order:] / self.sigma_e
+        """``r`` transformed to independent unit-variance samples, as many as it has: the
+        first p through :attr:`head_whitener`, the rest as scaled innovations."""
+        k = min(self.order, r.shape[0])
+        out = lfilter(self.filter, [1.0], r, axis=0) / self.sigma_e
+        out[:k] = self.head_whitener[:k, :k] @ r[:k]
+        return out
+
+    def whiten_adjoint(self, g: np.ndarray) -> np.ndarray:
+        """Wᵀ g for the whitening W of :meth:`whiten` (same length as ``g``)."""
+        n, p = g.shape[0], self.order
+        k = min(p, n)
+        out = np.zeros_like(g, dtype=float)
+        for j, fj in enumerate(self.filter):
+            out[p - j : n - j] += fj * g[p:n]
+        out /= self.sigma_e
+        out[:k] += self.head_whitener[:k, :k].T @ g[:k]
+        return out
 
     def describe(self) -> dict:
         return {
@@ -100,7 +132,7 @@ def fit_ar(blocks: list[np.ndarray], max_order: int = 30) -> ARNoise:
     _, a, var_e = best
     if a.size and not _is_stationary(a):
         return ARNoise(np.zeros(0), sigma, sigma)
-    return ARNoise(np.asarray(a, dtype=float), sigma, math.sqrt(var_e))
+    return ARNoise(np.asarray(a, dtype=float), sigma, math.sqrt(var_e), np.array(acov[: a.size]))
 
 
 def _is_stationary(a: np.ndarray) -> bool:

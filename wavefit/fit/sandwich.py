@@ -31,15 +31,6 @@ def correlation_extent(acov: np.ndarray, n: int, run: int = 10) -> int:
     return int(acov.size - 1)
 
 
-def adjoint_whiten(g: np.ndarray, filt: np.ndarray, sigma_e: float, n: int) -> np.ndarray:
-    """Wᵀ g for the whitening W of one block, (W x)_i = Σ_j filt_j·x_{i+p−j}/σ_e, i < n − p."""
-    p = filt.size - 1
-    out = np.zeros((n,) + g.shape[1:])
-    for j, fj in enumerate(filt):
-        out[p - j : n - j] += fj * g[: n - p]
-    return out / sigma_e
-
-
 def lagged_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
     """Σ_k γ_k Σ_n h_n h_{n+k}ᵀ over k = −K..K: hᵀ Σ h for Toeplitz Σ with autocovariance γ."""
     out = acov[0] * (h.T @ h)
@@ -76,12 +67,9 @@ def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jw: np.nd
         # unbiased lag products: the pooled estimate divides by n, not by n − k
         acovs[g] = acov[: lags + 1] * n / np.maximum(n - np.arange(lags + 1) * len(segs), 1)
     meat = np.zeros_like(bread)
-    row = 0
     for b in blocks:
         mod = models[b.group]
-        n = b.stop - b.start
-        m = n - mod.order
-        h = adjoint_whiten(jw[row:row + m], mod.filter, mod.sigma_e, n)
-        row += m
+        seg = jw[b.start:b.stop]
+        h = mod.whiten_adjoint(seg) if mod.order else seg / mod.sigma_e
         meat += lagged_gram(h, acovs[b.group])
     return bread @ meat @ bread, extents
