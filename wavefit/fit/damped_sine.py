@@ -170,7 +170,27 @@ def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: in
     if stop is None:
         sigma = _rms(y[lo:hi] - model(x, np.arange(hi - lo, dtype=float)))
         hi = _envelope_end(x, sigma, lo, hi, strong)
-    return fit_damped_sine(t[lo:hi], y[lo:hi], x, dt, noise=noise, offset_index=lo)
+    ring = fit_damped_sine(t[lo:hi], y[lo:hi], x, dt, noise=noise, offset_index=lo)
+    lags = ring.fit.diagnostics.get("noise_correlation_extent_samples", {}).get("tank", 0)
+    if start is None and 0 < lags < (hi - lo) // 8:
+        # correlated noise: the automatic start was found from the samples around it, so its
+        # noise is correlated with theirs, and the exact whitening weights the first samples
+        # heavily; start one correlation extent later (frequency and damping lose little:
+        # their information grows as τ²·exp(−2·alpha·τ) from the start)
+        lo += int(lags)
+        ring = fit_damped_sine(t[lo:hi], y[lo:hi], ring_parameters_at(ring, int(lags)), dt, noise=noise,
+                               offset_index=lo)
+    return ring
+
+
+def ring_parameters_at(ring: DampedSineFit, shift: int) -> np.ndarray:
+    """The fitted ring's parameters in sample units, referred ``shift`` samples later."""
+    offset, a, b, alpha, w = ring.fit.values
+    alpha, w = alpha * ring.sample_interval, w * ring.sample_interval
+    decay = math.exp(-alpha * shift)
+    c, s = math.cos(w * shift), math.sin(w * shift)
+    # a·cos(w(τ'+k)) + b·sin(w(τ'+k)) = (a·c + b·s)·cos(wτ') + (b·c − a·s)·sin(wτ')
+    return np.array([offset, decay * (a * c + b * s), decay * (b * c - a * s), alpha, w])
 
 
 def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interval: float, *,
