@@ -169,6 +169,8 @@ def _relative(text: Any, what: str, source: str) -> RelativeFigure:
         return RelativeFigure(float(text), str(text))
     if not isinstance(text, str):
         raise SetupError(f"{source}: {what} must be text such as \"±1.5%\"")
+    if text.strip().lower() == "exact":  # a perfect instrument, for studies of the fit alone
+        return RelativeFigure(0.0, text)
     body, k = text, None
     if "k=" in text.replace(" ", ""):
         head, _, tail = text.replace(" ", "").partition("k=")
