@@ -80,12 +80,29 @@ def test_lc_ring_matches_ngspice(name):
 
 
 def test_series_loss_option_removes_the_split_uncertainty():
-    # 2.2 µH coil with DCR only: with coil_loss = "series" the correction is exact (characteristic
-    # equation), so L moves towards the netlist value and its uncertainty shrinks
+    # 2.2 µH coil with DCR only: with coil_loss = "series" (the default) the correction is exact
+    # (characteristic equation), so L is nearer the netlist value than with the split unknown, and
+    # its uncertainty is smaller
     frame, setup, truth = _ring(CASES["2u2H-1uF-lowQ"], seed=3)
-    unknown = wavefit.analyze(frame, setup=setup)
-    series = wavefit.analyze(frame, setup=dict(setup, options={"coil_loss": "series"}))
+    unknown = wavefit.analyze(frame, setup=dict(setup, options={"coil_loss": "unknown"}))
+    series = wavefit.analyze(frame, setup=setup)
+    assert series.to_dict()["fit"]["coil_loss"] == "series"
     assert abs(series.value("L") - truth["L"]) < abs(unknown.value("L") - truth["L"]) + 1e-4 * truth["L"]
     assert series.quantities["L"].standard_uncertainty < unknown.quantities["L"].standard_uncertainty
     sources = [line.source for line in unknown.budget["L"]]
     assert "coil loss split" in sources and "fit w_d" in sources and "tank_capacitor" in sources
+
+
+def test_loss_split_that_matters_is_warned():
+    # heavily damped ring (ngspice netlist with series loss only): the series/parallel split of the
+    # coil's loss moves L by more than its standard uncertainty, so the assumption must be stated;
+    # assuming parallel loss here puts L about 1 % off, outside its interval, and the warning says why
+    frame, setup, truth = _ring(CASES["100uH-10nF-fewcycles"], seed=3)
+    series = wavefit.analyze(frame, setup=setup)
+    parallel = wavefit.analyze(frame, setup=dict(setup, options={"coil_loss": "parallel"}))
+    unknown = wavefit.analyze(frame, setup=dict(setup, options={"coil_loss": "unknown"}))
+    assert any("coil_loss" in w for w in series.warnings)
+    assert any("coil_loss" in w for w in parallel.warnings)
+    assert not any("coil_loss = " in w for w in unknown.warnings)
+    assert abs(series.value("L") - truth["L"]) <= series.quantities["L"].expanded_uncertainty
+    assert abs(unknown.value("L") - truth["L"]) <= unknown.quantities["L"].expanded_uncertainty

@@ -105,7 +105,7 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
             extents = {}
     n_eff = sum(sum(b.stop - b.start for b in blocks if b.group == g) / models[g].long_run_ratio()
                 for g in groups)
-    diagnostics, warns = _diagnose(e, x, bounds, names)
+    diagnostics, warns = _diagnose(e, x, bounds, names, coloured=bool(ar_params))
     if correct_bias:
         bias = _box_bias(jac, x, cov, bread, jw, blocks, models)
         diagnostics["bias_correction"] = {n: float(b) for n, b in zip(names, bias)}
@@ -200,7 +200,7 @@ def _inverse_normal_matrix(j: np.ndarray) -> np.ndarray:
     return (vt.T * inv_s2) @ vt
 
 
-def _diagnose(e: np.ndarray, x: Vector, bounds, names) -> tuple[dict, list[str]]:
+def _diagnose(e: np.ndarray, x: Vector, bounds, names, coloured: bool = False) -> tuple[dict, list[str]]:
     warns: list[str] = []
     n = e.size
     h = int(min(20, max(1, n // 5)))
@@ -212,8 +212,16 @@ def _diagnose(e: np.ndarray, x: Vector, bounds, names) -> tuple[dict, list[str]]
     # both significant and large enough to matter: weak structure from coarse quantisation alone
     # (noise below one code) stays below 0.1 (common practice for a portmanteau screen)
     if p_value < 1e-4 and float(np.max(np.abs(rho))) > 0.1:
-        warns.append("residuals are not noise-like (Ljung-Box p = %.1e, largest autocorrelation %.2f): "
-                     "the model misses part of the waveform" % (p_value, float(np.max(np.abs(rho)))))
+        if coloured:
+            # the residuals are those of the fitted AR noise model: either the model misses part
+            # of the waveform or the noise is correlated in a way the AR model does not capture
+            warns.append("residuals are not noise-like after whitening (Ljung-Box p = %.1e, largest "
+                         "autocorrelation %.2f): the model misses part of the waveform, or the noise's "
+                         "correlation is not captured and the interval may be too narrow"
+                         % (p_value, float(np.max(np.abs(rho)))))
+        else:
+            warns.append("residuals are not noise-like (Ljung-Box p = %.1e, largest autocorrelation %.2f): "
+                         "the model misses part of the waveform" % (p_value, float(np.max(np.abs(rho)))))
     lo, hi = (np.broadcast_to(np.asarray(b, dtype=float), x.shape) for b in bounds)
     for name, v, a, b in zip(names, x, lo, hi):
         span = (b - a) if np.isfinite(b - a) else max(abs(v), 1.0)

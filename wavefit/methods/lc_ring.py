@@ -13,8 +13,10 @@ measurement function (derivation and what it neglects in docs/method-lc-ring.md)
   s² + (r/L + G/C)·s + (1 + r·G)/(L·C) = 0, so 1/(L·C) = w0² − Δ with
   Δ = x·(g + 2·alpha_c − x), x = r/L the part of the coil's damping that is series
   loss. Δ is 0 for purely series or purely parallel loss and at most Δ_max
-  otherwise; option ``coil_loss`` picks "series", "parallel", or "unknown"
-  (default: Δ = Δ_max/2 with a rectangular distribution over [0, Δ_max]);
+  otherwise; option ``coil_loss`` picks "series" (default: the coil as L with its ESR,
+  common practice), "parallel", or "unknown" (Δ = Δ_max/2 with a rectangular
+  distribution over [0, Δ_max]); a warning says when the choice moves L by more than
+  its standard uncertainty;
 * L = 1/((w0² − Δ)·C), R = w0·L/Q = 2·alpha_c·L (equivalent series loss at f0).
 """
 from __future__ import annotations
@@ -67,7 +69,7 @@ class LcRing(Method):
         "stray_capacitance": PartSpec("F", False, "probe and fixture capacitance across the tank"),
         "parallel_load": PartSpec("ohm", False, "resistance loading the tank: feed resistor parallel probe input"),
     }
-    options = {"fit_start": None, "fit_end": None, "noise": "auto", "coil_loss": "unknown"}
+    options = {"fit_start": None, "fit_end": None, "noise": "auto", "coil_loss": "series"}
     quantities = ("f0", "fd", "alpha", "tau_decay", "Q_loaded", "Q", "L", "R")
 
     def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
@@ -77,12 +79,14 @@ class LcRing(Method):
         inputs, present = ring_inputs(meas.ring, setup, setup.parts, coil_loss)
         check_load_share(meas.ring, setup.parts)
         prop = propagate(inputs, lambda v: ring_model(v, present, coil_loss), UNITS)
+        warnings = meas.warnings + loss_split_warning(meas.ring, setup.parts, present, coil_loss,
+                                                      prop.quantities["L"].standard_uncertainty)
         fit = dict(meas.info, coil_loss=coil_loss)
         model = np.full_like(meas.data, np.nan)
         model[meas.ring.start:meas.ring.stop] = meas.ring.evaluate(meas.time[meas.ring.start:meas.ring.stop])
         plot = TracePlot(meas.time, (("tank", meas.unit, meas.data, model),))
         return AnalysisResult(self.name, capture.source, prop.quantities, prop.budget, fit,
-                              meas.warnings, prop.correlation, plot)
+                              warnings, prop.correlation, plot)
 
 
 def coil_loss_option(method: Method, setup: Setup) -> str:
@@ -168,6 +172,24 @@ def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> 
     nominal_a = float(getattr(alpha_c, "nominal_value", alpha_c))
     d_max = (g + 2.0 * alpha_c) ** 2 / 4.0 if nominal_g <= 2.0 * nominal_a else 2.0 * alpha_c * g
     return split * d_max
+
+
+def loss_split_warning(ring: DampedSineFit, parts: Mapping[str, PartValue], present: tuple[str, ...],
+                       coil_loss: str, u_inductance: float) -> tuple[str, ...]:
+    """Warn when another split of the coil's loss (series/parallel) would move L by more than
+    its standard uncertainty: then the assumption matters and should be stated."""
+    if coil_loss == "unknown":
+        return ()
+    v = {"timebase": 1.0, "fit alpha": ring.fit["alpha"], "fit w_d": ring.fit["w_d"]}
+    v.update({name: parts[name].value for name in present})
+    chosen = ring_model(v, present, coil_loss)["L"]
+    extremes = [ring_model(dict(v, **{"coil loss split": s}), present, "unknown")["L"] for s in (0.0, 1.0)]
+    shift = max(abs(x - chosen) for x in extremes)
+    if shift <= u_inductance:
+        return ()
+    return (f"L assumes {coil_loss} coil loss; another split of the loss between series and parallel "
+            f"(core) loss would move it by up to {shift / chosen:.2g} (relative), more than its standard "
+            "uncertainty: set option coil_loss = \"unknown\" to include that in the budget",)
 
 
 def check_load_share(ring: DampedSineFit, parts: Mapping[str, PartValue]) -> None:
