@@ -262,6 +262,8 @@ class RLStep(Method):
                                "curve goes beyond it): reduce the vertical sensitivity")
         if combined.rise_fall is not None:
             z = combined.rise_fall
+            if combined.birge is not None and combined.birge[0] > 1.0:
+                z /= combined.birge[0]  # against the edges' observed scatter when it exceeds the stated
             if abs(z) > 3.0:
                 out.append(f"rising and falling edges disagree on tau by {abs(z):.1f} standard uncertainties: "
                            "core nonlinearity, a diode or a level-dependent part in the loop")
