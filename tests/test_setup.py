@@ -75,3 +75,12 @@ def test_capture_entries_resolve_relative_to_setup(tmp_path):
     s = load_setup(path)
     assert s.captures[0].file == tmp_path / "a.csv"
     assert s.captures[0].parts["tank_capacitor"].value == pytest.approx(1e-9)
+
+
+@pytest.mark.parametrize("text, u", [("exact", 0.0), ("u=0", 0.0), ("u=10 ppm", 10e-6), ("u = 1%", 0.01),
+                                     ("±25 ppm", 25e-6 / math.sqrt(3)), ("±1% k=2", 0.005)])
+def test_instrument_figures_in_every_written_form(text, u):
+    # ±a rectangular (GUM 4.3.7), a with k (GUM 4.3.3), u given directly, or exact for studies
+    s = load_setup({"method": "rl-step", "instrument": {"timebase": text, "vertical_gain": text}})
+    assert s.timebase.standard_uncertainty == pytest.approx(u, abs=1e-15)
+    assert s.gain_for("sense").standard_uncertainty == pytest.approx(u, abs=1e-15)

@@ -171,14 +171,20 @@ def _relative(text: Any, what: str, source: str) -> RelativeFigure:
         raise SetupError(f"{source}: {what} must be text such as \"±1.5%\"")
     if text.strip().lower() == "exact":  # a perfect instrument, for studies of the fit alone
         return RelativeFigure(0.0, text)
+    if text.replace(" ", "").startswith("u="):  # a standard uncertainty given directly, as for parts
+        return RelativeFigure(_fraction(text.replace(" ", "")[2:], what, source), text, 1.0)
     body, k = text, None
     if "k=" in text.replace(" ", ""):
         head, _, tail = text.replace(" ", "").partition("k=")
         body, k = head.rstrip(",;("), float(tail.rstrip(")"))
+    return RelativeFigure(_fraction(body, what, source), text, k)
+
+
+def _fraction(body: str, what: str, source: str) -> float:
     fraction = parse_relative(body)
     if fraction < 0 or not math.isfinite(fraction):
-        raise SetupError(f"{source}: {what} {text!r} must be a finite non-negative figure")
-    return RelativeFigure(fraction, text, k)
+        raise SetupError(f"{source}: {what} {body!r} must be a finite non-negative figure")
+    return fraction
 
 
 def _instrument(table: Mapping[str, Any], source: str

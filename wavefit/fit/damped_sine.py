@@ -309,8 +309,8 @@ def refine(y: np.ndarray, alpha: float, w: float, x0: np.ndarray | None = None,
             x = _linear_start(seg, x[3], x[4])
         res = optimize.least_squares(lambda v: model(v, tau) - seg, x, jac=lambda v: jacobian(v, tau),
                                      method="lm", x_scale=_x_scale(x), xtol=1e-12, ftol=1e-12)
-        if np.all(np.isfinite(res.x)) and 0 < res.x[4] < math.pi:
-            x = res.x
+        if np.all(np.isfinite(res.x)) and 0 < res.x[4] < math.pi and res.x[3] * length > -20.0:
+            x = res.x  # (a free ring decays: a fit that grows e-fold many times over is rejected)
         if length >= n:
             return x
         length = min(n, 2 * length)
@@ -320,6 +320,8 @@ def _linear_start(y: np.ndarray, alpha: float, w: float) -> np.ndarray:
     tau = np.arange(y.size, dtype=float)
     e = np.exp(-alpha * tau)
     basis = np.column_stack([np.ones_like(tau), e * np.cos(w * tau), e * np.sin(w * tau)])
+    if not np.all(np.isfinite(basis)):
+        raise ValueError("the ring's decay rate could not be estimated")
     coef, *_ = np.linalg.lstsq(basis, y, rcond=None)
     return np.array([coef[0], coef[1], coef[2], alpha, w])
 
