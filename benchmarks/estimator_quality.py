@@ -8,7 +8,9 @@ study prints one table row per estimated quantity:
 - efficiency = Cramér–Rao bound / observed variance. The bound is I(θ)⁻¹ from
   the Fisher information of the same signal model (Kay 1993, §3.9, eq. 3.31;
   ``wavefit.fit.fisher``), with the true noise covariance (white, or the
-  autocovariance of the band-limited noise), mapped to the quantity by the
+  autocovariance of the coloured noise: "band-limited", a second-order
+  Butterworth low-pass as in ``wavefit.synth``, or "first-order", a single-pole
+  RC front end, both with about 10 samples of correlation), mapped to the quantity by the
   delta method. An efficiency near 1 means no unbiased estimator could do
   better with this record.
 - bias in units of the estimator's standard error, (mean − truth)/sd, with sd the
@@ -34,6 +36,7 @@ from typing import Callable
 
 import numpy as np
 import pandas as pd
+from scipy.signal import lfilter
 
 import wavefit
 from wavefit.fit.fisher import crlb, numerical_jacobian
@@ -42,6 +45,7 @@ from wavefit.synth.rl import rl_square_wave
 from wavefit.synth.scope import ScopeModel, band_limited_noise
 
 CORRELATED_SAMPLES = 10.0
+NOISES = ("white", "band-limited", "first-order", "8-bit")
 #: Only the fit is tested: the synthetic scope has a perfect timebase and gain.
 EXACT_INSTRUMENT = {"timebase": "±0 ppm", "vertical_gain": "±0%"}
 
@@ -49,7 +53,7 @@ EXACT_INSTRUMENT = {"timebase": "±0 ppm", "vertical_gain": "±0%"}
 @dataclass(frozen=True)
 class Scenario:
     method: str
-    noise: str          # "white", "band-limited", "8-bit"
+    noise: str          # one of NOISES
     snr_db: float
     record: str         # "short" or "long"
 
@@ -65,8 +69,25 @@ class Row:
     trials: int
 
 
+#: First-order (RC) noise with the same correlation length: x[n] = rho·x[n−1] + e[n]
+AR1_RHO = math.exp(-1.0 / CORRELATED_SAMPLES)
+
+
+@dataclass(frozen=True)
+class FirstOrderNoise:
+    """Scope noise through a single-pole (RC) front end, sampled: AR(1), rms ``sigma``."""
+
+    sigma: float
+
+    def apply(self, clean: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+        e = rng.standard_normal(clean.size + 200) * self.sigma * math.sqrt(1.0 - AR1_RHO ** 2)
+        return clean + lfilter([1.0], [1.0, -AR1_RHO], e)[200:]
+
+
 def noise_autocovariance(kind: str, sigma: float, lags: int) -> np.ndarray:
     """Autocovariance of the noise the scope model adds (estimated from a long draw if coloured)."""
+    if kind == "first-order":
+        return sigma ** 2 * AR1_RHO ** np.arange(lags + 1)
     if kind != "band-limited":
         return np.array([sigma ** 2])
     w = band_limited_noise(2_000_000, sigma, CORRELATED_SAMPLES, np.random.default_rng(0))
@@ -75,7 +96,9 @@ def noise_autocovariance(kind: str, sigma: float, lags: int) -> np.ndarray:
     return acov
 
 
-def scope_for(kind: str, sigma: float, clean: np.ndarray) -> ScopeModel:
+def scope_for(kind: str, sigma: float, clean: np.ndarray) -> ScopeModel | FirstOrderNoise:
+    if kind == "first-order":
+        return FirstOrderNoise(sigma)
     if kind == "white":
         return ScopeModel(noise_rms=sigma)
     if kind == "band-limited":
@@ -174,7 +197,8 @@ def bound_for(quantity_spec, kind: str, sigma: float) -> float:
     if fn is None:
         return math.nan
     jac = numerical_jacobian(signal, theta, 1e-7)
-    cov = crlb(jac, sigma=sigma) if kind != "band-limited" else crlb(jac, autocovariance=noise_autocovariance(kind, sigma, 200))
+    cov = (crlb(jac, sigma=sigma) if kind in ("white", "8-bit")
+           else crlb(jac, autocovariance=noise_autocovariance(kind, sigma, 400)))
     grad = np.array([(fn(theta + h) - fn(theta - h)) / (2 * h[k])
                      for k, h in enumerate(np.diag(1e-7 * np.maximum(np.abs(theta), 1e-12)))])
     return float(grad @ cov @ grad)
@@ -219,7 +243,7 @@ def run_scenario(sc: Scenario, trials: int, seed: int | None = None) -> list[Row
 def scenarios(quick: bool) -> list[Scenario]:
     out = []
     for method in ("rl-step", "lc-ring"):
-        for noise in ("white", "band-limited", "8-bit"):
+        for noise in NOISES:
             snrs = (40,) if quick else (20, 30, 40, 60)
             for snr in snrs:
                 for record in (("short",) if quick else ("short", "long")):
@@ -244,7 +268,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--trials", type=int, default=300)
     parser.add_argument("--quick", action="store_true", help="one SNR, short records only")
     parser.add_argument("--method", choices=sorted(CASES), help="only this method")
-    parser.add_argument("--noise", choices=("white", "band-limited", "8-bit"), help="only this noise")
+    parser.add_argument("--noise", choices=NOISES, help="only this noise")
     args = parser.parse_args(argv)
     rows = []
     for sc in scenarios(args.quick):
