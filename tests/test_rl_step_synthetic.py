@@ -187,3 +187,4 @@ def test_edges_located_from_correlated_noise_warn_at_low_snr(snr_db, warned):
     y = s + step * 10 ** (-snr_db / 20) * noise[200:]
     result = wavefit.analyze(frame(t, y), SENSE_ONLY)
     assert any("located only" in w for w in result.warnings) is warned
+    assert any("edges placed from the sense trace" in n for n in result.fit["notes"]) is warned

@@ -5,6 +5,7 @@ Used by :mod:`wavefit.methods.rl_step`; see ``docs/method-rl-step.md``.
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -36,6 +37,12 @@ class Combined:
     by_direction: dict
     rise_fall: float | None
     birge: tuple[float, float] | None
+
+    def with_tau_variance_scaled(self, factor: float) -> "Combined":
+        """The same result with the variance of tau (the first entry) multiplied by ``factor``."""
+        scale = np.ones(self.values.size)
+        scale[0] = math.sqrt(factor)
+        return dataclasses.replace(self, covariance=self.covariance * np.outer(scale, scale))
 
 
 def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window):
@@ -172,6 +179,36 @@ def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, n
         a[r, rows[state]] = 1.0 / len(rows[state])
     return Combined(("tau_fit", "sense_high", "sense_low"), a @ vals, a @ cov @ a.T, ("s", "V", "V"),
                      float(whole.dof), windowed.by_direction, windowed.rise_fall, windowed.birge), True
+
+
+def placement_jitter(fits, dt: float) -> np.ndarray:
+    """Standard deviation, in samples, of each window's switching instant as the sense trace
+    places it: σ·tau/|step| (the noise over the slope of the edge)."""
+    return np.array([f.noise_sigma["sense"] * f["tau"] / max(abs(f["coef_sense"]), 1e-300) / dt for f in fits])
+
+
+def placement_factor(t, sense, windows, fits, noise, source, fit_window) -> float:
+    """How much the variance of tau grows when each window starts later by the uncertainty of
+    its own start (median over windows, at least 1).
+
+    Without a drive channel a window's start is placed from the same trace, and in
+    correlated noise the noise of its first samples is correlated with the noise that
+    placed it; the estimate's scatter then exceeds its linearised variance. Treating the
+    start as an input quantity with standard uncertainty u_s (samples) and sensitivity
+    ∂tau/∂s found by moving it by u_s (JCGM 100:2008, 5.1.3: a sensitivity coefficient
+    found by experiment) gives c²·u_s² ≈ var(tau from s + u_s) − var(tau from s), so the
+    variance becomes that of the later-starting window.
+    """
+    dt = float(t[1] - t[0])
+    ratios = []
+    for w, f, jitter in zip(windows, fits, placement_jitter(fits, dt)):
+        shift = int(math.ceil(jitter))
+        if shift < 1 or w.stop - (w.start + shift) < 16:
+            ratios.append(1.0)
+            continue
+        later = fit_window(t, sense, None, Window(w.edge, w.t0, w.start + shift, w.stop), noise, source)
+        ratios.append(max(later.stderr("tau") ** 2 / f.stderr("tau") ** 2, 1.0))
+    return float(np.median(ratios)) if ratios else 1.0
 
 
 def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> float | None:

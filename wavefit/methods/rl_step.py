@@ -38,7 +38,8 @@ from ..signal.clipping import extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant
 from ..uncertainty import InputSet, propagate
 from . import register
-from ._rl_windows import Window, combine, pooled_windows, settle_starts, whole_record
+from ._rl_windows import (Window, combine, placement_factor, placement_jitter, pooled_windows, settle_starts,
+                          whole_record)
 from .base import Method, PartSpec
 
 #: Source resistance assumed only to size the skip after a winding-capacitance spike
@@ -136,15 +137,20 @@ class RLStep(Method):
         tau_fit = combined.values[0]
         warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined)
         if drive is None and not white:
-            # each window's start is placed from the same correlated noise as its first samples;
-            # when that placement is uncertain by more than two samples the stated interval is too
-            # narrow (measured at 20 dB: coverage 88-90 % instead of 95 %, docs/estimator-quality.md)
-            jitter = float(np.median([f.noise_sigma["sense"] * f["tau"] / max(abs(f["coef_sense"]), 1e-300)
-                                      for f in fits]))
-            if jitter > 2.0 * dt:
-                warnings.append(f"correlated noise and a low signal-to-noise ratio: the edges are located only "
-                                f"to about {jitter / dt:.1f} samples from the sense trace, and the interval of tau "
-                                "may be too narrow; record the drive node too, or average to a higher SNR")
+            # each window's start is placed from the same correlated noise as its first samples:
+            # when that placement is uncertain by a sample or more, its uncertainty enters tau's
+            jitter = float(np.median(placement_jitter(fits, dt)))
+            if jitter >= 1.0:
+                factor = placement_factor(t, sense, windows, fits, noise, capture.source, self._fit_window)
+                combined = combined.with_tau_variance_scaled(factor)
+                notes.append(f"edges placed from the sense trace to about {jitter:.1f} samples in correlated "
+                             f"noise: tau's variance enlarged {factor:.2f}-fold, to that of windows starting "
+                             "that much later")
+                if jitter > 2.0:
+                    warnings.append(f"correlated noise and a low signal-to-noise ratio: the edges are located only "
+                                    f"to about {jitter:.1f} samples from the sense trace, and tau's uncertainty "
+                                    f"is enlarged {factor:.2f}-fold for it; record the drive node too for a "
+                                    "tighter result")
 
         inputs = InputSet()
         inputs.add_correlated(combined.names, combined.values, combined.covariance,
