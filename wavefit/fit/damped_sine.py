@@ -172,13 +172,15 @@ def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: in
         hi = _envelope_end(x, sigma, lo, hi, strong)
     ring = fit_damped_sine(t[lo:hi], y[lo:hi], x, dt, noise=noise, offset_index=lo)
     lags = ring.fit.diagnostics.get("noise_correlation_extent_samples", {}).get("tank", 0)
-    if start is None and 0 < lags < (hi - lo) // 8:
+    decay = float(ring.fit["alpha"]) * dt  # nepers per sample
+    # a later start scales the variances by about exp(2·alpha·shift): allow 10 % at most
+    shift = int(min(lags, 0.05 / decay if decay > 0 else lags))
+    if start is None and 0 < shift < (hi - lo) // 8:
         # correlated noise: the automatic start was found from the samples around it, so its
         # noise is correlated with theirs, and the exact whitening weights the first samples
-        # heavily; start one correlation extent later (frequency and damping lose little:
-        # their information grows as τ²·exp(−2·alpha·τ) from the start)
-        lo += int(lags)
-        ring = fit_damped_sine(t[lo:hi], y[lo:hi], ring_parameters_at(ring, int(lags)), dt, noise=noise,
+        # heavily; start up to one correlation extent later
+        lo += shift
+        ring = fit_damped_sine(t[lo:hi], y[lo:hi], ring_parameters_at(ring, shift), dt, noise=noise,
                                offset_index=lo)
     return ring
 

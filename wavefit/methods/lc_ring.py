@@ -289,15 +289,20 @@ def _drift_check(ring: DampedSineFit, y: np.ndarray, noise: str) -> dict[str, An
 
 def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, float] | None:
     """A spectral line in the residuals well above the local noise floor and above −30 dB of
-    the ring's energy (common practice for spotting a spurious tone), or None."""
+    the ring's energy (common practice for spotting a spurious tone), or None.
+
+    Lines closer than 8 bins to DC (fewer than 8 cycles in the window) are not searched:
+    there correlated noise rises steeply towards low frequency, the running median lags
+    behind it, and what remains is drift rather than an oscillation."""
     n = r.size
     if n < 64:
         return None
     spec = np.abs(np.fft.rfft(r - r.mean())) ** 2
     floor = ndimage.median_filter(spec, size=31, mode="nearest") / math.log(2.0)
-    ratio = spec[2:] / np.maximum(floor[2:], 1e-300)
-    k = 2 + int(np.argmax(ratio))
-    if ratio[k - 2] < math.log(spec.size) + 20.0:
+    lowest = 8
+    ratio = spec[lowest:] / np.maximum(floor[lowest:], 1e-300)
+    k = lowest + int(np.argmax(ratio))
+    if ratio[k - lowest] < math.log(spec.size) + 20.0:
         return None
     band = slice(max(k - 2, 0), k + 3)
     energy = float(np.sum(np.clip(spec[band] - floor[band], 0, None))) * 2.0 / n
