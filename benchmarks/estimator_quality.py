@@ -42,7 +42,7 @@ import wavefit
 from wavefit.fit.fisher import crlb, numerical_jacobian
 from wavefit.synth.lc import Tank, ringdown
 from wavefit.synth.rl import rl_square_wave
-from wavefit.synth.scope import ScopeModel, band_limited_noise
+from wavefit.synth.scope import ScopeModel, band_limited_autocovariance
 
 CORRELATED_SAMPLES = 10.0
 NOISES = ("white", "band-limited", "first-order", "8-bit")
@@ -85,15 +85,16 @@ class FirstOrderNoise:
 
 
 def noise_autocovariance(kind: str, sigma: float, lags: int) -> np.ndarray:
-    """Autocovariance of the noise the scope model adds (estimated from a long draw if coloured)."""
+    """Exact autocovariance of the noise the scope model adds, lags 0 … ``lags``.
+
+    (An estimate from a long draw is not good enough: the Butterworth noise has a spectral
+    zero at the Nyquist frequency, its Toeplitz covariance is nearly singular, and the
+    sampling error of an estimated autocovariance moved the bound by tens of per cent.)"""
     if kind == "first-order":
         return sigma ** 2 * AR1_RHO ** np.arange(lags + 1)
     if kind != "band-limited":
         return np.array([sigma ** 2])
-    w = band_limited_noise(2_000_000, sigma, CORRELATED_SAMPLES, np.random.default_rng(0))
-    spec = np.fft.rfft(w, 2 * w.size)
-    acov = np.fft.irfft(spec * np.conj(spec))[: lags + 1] / w.size
-    return acov
+    return band_limited_autocovariance(sigma, CORRELATED_SAMPLES, lags)
 
 
 def scope_for(kind: str, sigma: float, clean: np.ndarray) -> ScopeModel | FirstOrderNoise:

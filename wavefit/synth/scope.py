@@ -41,12 +41,27 @@ class ScopeModel:
         return out
 
 
+def band_limit_filter(correlation_samples: float) -> tuple[np.ndarray, np.ndarray]:
+    """(b, a) of the second-order Butterworth low-pass that gives about ``correlation_samples``
+    samples of correlation."""
+    cutoff = 1.0 / (np.pi * correlation_samples)  # of Nyquist-normalised frequency, fraction of 1
+    return signal.butter(2, min(cutoff * 2.0, 0.99))
+
+
+def band_limited_autocovariance(rms: float, correlation_samples: float, lags: int) -> np.ndarray:
+    """Exact autocovariance at lags 0 … ``lags`` of :func:`band_limited_noise` (from the
+    filter's impulse response)."""
+    b, a = band_limit_filter(correlation_samples)
+    h = signal.lfilter(b, a, np.r_[1.0, np.zeros(lags + int(200 * correlation_samples))])
+    acov = np.array([float(h[: h.size - k] @ h[k:]) for k in range(lags + 1)])
+    return rms ** 2 * acov / acov[0]
+
+
 def band_limited_noise(n: int, rms: float, correlation_samples: float, rng: np.random.Generator) -> np.ndarray:
     """Gaussian noise of the given rms; low-pass filtered when ``correlation_samples`` > 1."""
     w = rng.standard_normal(n + (0 if correlation_samples <= 1 else int(20 * correlation_samples)))
     if correlation_samples > 1:
-        cutoff = 1.0 / (np.pi * correlation_samples)  # of Nyquist-normalised frequency, fraction of 1
-        b, a = signal.butter(2, min(cutoff * 2.0, 0.99))
+        b, a = band_limit_filter(correlation_samples)
         w = signal.lfilter(b, a, w)[-n:]
         w = w / np.sqrt(np.mean(w ** 2))
     return rms * w[:n]
