@@ -166,7 +166,7 @@ def _whiten(a: np.ndarray, blocks: Sequence[Block], models: dict[str, ARNoise]) 
     for b in blocks:
         mod = models[b.group]
         seg = a[b.start:b.stop]
-        parts.append(mod.whiten(seg) if mod.order else seg / mod.sigma_e)
+        parts.append(mod.whiten(seg))
     return np.concatenate(parts, axis=0)
 
 

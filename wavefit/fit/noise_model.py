@@ -68,6 +68,8 @@ class ARNoise:
     def whiten(self, r: np.ndarray) -> np.ndarray:
         """``r`` transformed to independent unit-variance samples, as many as it has: the
         first p through :attr:`head_whitener`, the rest as scaled innovations."""
+        if self.order == 0:
+            return r / self.sigma_e
         k = min(self.order, r.shape[0])
         out = lfilter(self.filter, [1.0], r, axis=0) / self.sigma_e
         out[:k] = self.head_whitener[:k, :k] @ r[:k]
@@ -75,6 +77,8 @@ class ARNoise:
 
     def whiten_adjoint(self, g: np.ndarray) -> np.ndarray:
         """Wᵀ g for the whitening W of :meth:`whiten` (same length as ``g``)."""
+        if self.order == 0:
+            return g / self.sigma_e
         n, p = g.shape[0], self.order
         k = min(p, n)
         out = np.zeros_like(g, dtype=float)

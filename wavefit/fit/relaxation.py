@@ -131,4 +131,3 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
         n_samples=fit.n_samples, n_effective=fit.n_effective, dof=fit.dof, diagnostics=fit.diagnostics,
         warnings=fit.warnings,
     )
-

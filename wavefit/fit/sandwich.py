@@ -69,7 +69,5 @@ def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jw: np.nd
     meat = np.zeros_like(bread)
     for b in blocks:
         mod = models[b.group]
-        seg = jw[b.start:b.stop]
-        h = mod.whiten_adjoint(seg) if mod.order else seg / mod.sigma_e
-        meat += lagged_gram(h, acovs[b.group])
+        meat += lagged_gram(mod.whiten_adjoint(jw[b.start:b.stop]), acovs[b.group])
     return bread @ meat @ bread, extents
