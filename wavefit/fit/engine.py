@@ -93,7 +93,7 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
     extents: dict[str, int] = {}
     if noise == "auto" and ar_params:
         # the AR model may whiten only approximately: use the sandwich G Σ Gᵀ (see fit/sandwich.py)
-        robust, extents = sandwich_covariance(r, blocks, models, jw, bread, max_lag=min(m // 10, 1000))
+        robust, extents = sandwich_covariance(r, blocks, models, jac(x), jw, bread, max_lag=min(m // 10, 1000))
         robust = 0.5 * (robust + robust.T)
         eig = np.linalg.eigvalsh(robust)
         if np.all(np.isfinite(eig)) and eig[0] > 1e-12 * max(eig[-1], 0.0) and eig[-1] > 0:

@@ -42,32 +42,124 @@ def lagged_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
     return out
 
 
-def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jw: np.ndarray,
+def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: np.ndarray, jw: np.ndarray,
                         bread: np.ndarray, max_lag: int) -> tuple[np.ndarray, dict[str, int]]:
     """G Σ Gᵀ with Σ from each noise group's residual autocovariance (see module doc).
 
     Returns the covariance and, per noise group, the number of lags used; the
     estimate of Σ then carries about n/(2·lags + 1) degrees of freedom
     (M. B. Priestley, *Spectral Analysis and Time Series*, Academic Press 1981,
-    §6.2.4, for the truncated lag window).
+    §6.2.4, for the truncated lag window). The autocovariance is corrected for
+    what the fit absorbed (:func:`fit_corrected_autocovariance`).
 
-    ``jw`` is the whitened Jacobian (rows as produced by the whitening of
-    ``blocks`` in order) and ``bread`` = (J_wᵀJ_w)⁻¹.
+    ``jac`` is the Jacobian of the residuals, ``jw`` its whitened form (rows as
+    produced by the whitening of ``blocks`` in order) and ``bread`` = (J_wᵀJ_w)⁻¹.
     """
     from .noise_model import autocovariance
 
     extents: dict[str, int] = {}
     acovs: dict[str, np.ndarray] = {}
+    influence = {id(b): models[b.group].whiten_adjoint(jw[b.start:b.stop]) for b in blocks}
+    plain: dict[str, np.ndarray] = {}
     for g in sorted({b.group for b in blocks}):
         segs = [r[b.start:b.stop] for b in blocks if b.group == g]
         acov, n = autocovariance(segs, max_lag)
         k = correlation_extent(acov, n)
         lags = min(int(math.ceil(1.5 * k)) + 1, acov.size - 1)
         extents[g] = lags
-        # unbiased lag products: the pooled estimate divides by n, not by n − k
-        acovs[g] = acov[: lags + 1] * n / np.maximum(n - np.arange(lags + 1) * len(segs), 1)
+        # lag products divided by the number of pairs (the pooled estimate divides by n)
+        plain[g] = acov[: lags + 1] * n / np.maximum(n - np.arange(lags + 1) * len(segs), 1)
+    for g in plain:
+        mine = [b for b in blocks if b.group == g]
+        others = np.zeros_like(bread)
+        for b in blocks:
+            if b.group != g:
+                others += lagged_gram(influence[id(b)], plain[b.group])
+        acovs[g] = fit_corrected_autocovariance(
+            [r[b.start:b.stop] for b in mine], [jac[b.start:b.stop] for b in mine],
+            [influence[id(b)] for b in mine], bread, extents[g], plain[g], bread @ others @ bread)
     meat = np.zeros_like(bread)
     for b in blocks:
-        mod = models[b.group]
-        meat += lagged_gram(mod.whiten_adjoint(jw[b.start:b.stop]), acovs[b.group])
+        meat += lagged_gram(influence[id(b)], acovs[b.group])
     return bread @ meat @ bread, extents
+
+
+def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list[np.ndarray], infl: list[np.ndarray],
+                                 bread: np.ndarray, lags: int, fallback: np.ndarray,
+                                 other_cov: np.ndarray) -> np.ndarray:
+    """Noise autocovariance γ_0 … γ_lags from fit residuals, corrected for what the fit absorbed.
+
+    Linearised, the residuals are r = (I − N)ε with N = J·(J_wᵀJ_w)⁻¹·Hᵀ (J the residual
+    Jacobian, H = WᵀJ_w the influence rows), so the lag products P_k = Σ r_i r_{i+k} have
+    expectation E[P_k] = Σ_j B_kj γ_j with
+    B_kj = (n − k·blocks)·δ_kj − tr(U_k N T_j) + tr(½JᵀU_kJ · (J_wᵀJ_w)⁻¹HᵀT_jH(J_wᵀJ_w)⁻¹),
+    T_j and U_k the symmetric lag-j and lag-k shift matrices (T_0 = I, U_0 = 2I). Solving
+    B γ = P gives the unbiased estimate. The plain lag products fall short by the noise
+    the fitted waveform absorbed, which for correlated noise is concentrated at the low
+    frequencies that carry the parameters, so the plain sandwich read about 0.8 of the
+    true standard error on a single exponential window in smooth band-limited noise.
+    This is the regression-residual correction of the variance components (as in
+    restricted maximum likelihood: H. D. Patterson and R. Thompson, Biometrika 58 (1971)
+    545–554), applied to a truncated autocovariance. The blocks ``res``, ``jacs``, ``infl``
+    are one noise group's; ``other_cov`` is the part of the estimate's covariance due to
+    the other groups' noise, whose lag products it also adds. ``fallback`` (the plain
+    estimate) is returned when the system cannot be solved or gives a non-positive variance.
+    """
+    k_all = np.arange(lags + 1)
+    products = np.zeros(lags + 1)
+    system = np.zeros((lags + 1, lags + 1))
+    p = bread.shape[0]
+    a_k = np.zeros((lags + 1, p, p))
+    g_j = np.zeros((lags + 1, p, p))
+    for r, jb, hb in zip(res, jacs, infl):
+        n = r.size
+        m = min(lags, n - 1)
+        products[: m + 1] += [float(r[: n - k] @ r[k:]) for k in range(m + 1)]
+        system[k_all[: m + 1], k_all[: m + 1]] += n - k_all[: m + 1]
+        cols = np.flatnonzero(np.any(jb != 0, axis=0) | np.any(hb != 0, axis=0))
+        j_c, h_c = jb[:, cols], hb[:, cols]
+        r_c = j_c @ bread[np.ix_(cols, cols)]
+        nfft = 1 << int(math.ceil(math.log2(n + m + 1)))
+        h_spectrum = np.fft.rfft(h_c, nfft, axis=0)
+        for k in range(m + 1):
+            x = _symmetric_shift(r_c, k)
+            system[k, : m + 1] -= _lagged_inner(h_spectrum, x, nfft, m)
+            a_k[k][np.ix_(cols, cols)] += 0.5 * (j_c.T @ _symmetric_shift(j_c, k))
+    for hb in infl:
+        n = hb.shape[0]
+        g_j[0] += hb.T @ hb
+        for j in range(1, min(lags, n - 1) + 1):
+            c = hb[:-j].T @ hb[j:]
+            g_j[j] += c + c.T
+    v_j = np.einsum("ab,jbc,cd->jad", bread, g_j, bread)
+    system += np.einsum("kab,jba->kj", a_k, v_j)
+    products -= np.einsum("kab,ba->k", a_k, other_cov)
+    try:
+        gamma = np.linalg.solve(system, products)
+    except np.linalg.LinAlgError:
+        return fallback
+    if not (np.all(np.isfinite(gamma)) and gamma[0] > 0):
+        return fallback
+    return gamma
+
+
+def _symmetric_shift(x: np.ndarray, k: int) -> np.ndarray:
+    """U_k x: rows shifted by +k and −k and added (2x for k = 0)."""
+    if k == 0:
+        return 2.0 * x
+    out = np.zeros_like(x)
+    if k < x.shape[0]:
+        out[:-k] += x[k:]
+        out[k:] += x[:-k]
+    return out
+
+
+def _lagged_inner(h_spectrum: np.ndarray, x: np.ndarray, nfft: int, lags: int) -> np.ndarray:
+    """⟨h, T_j x⟩ (Frobenius) for j = 0 … lags, from h's spectrum ``rfft(h, nfft, axis=0)``
+    (nfft ≥ len + lags: the lag products Σ_i h_i·x_{i+j} and Σ_i h_{i+j}·x_i without wrap)."""
+    xs = np.fft.rfft(x, nfft, axis=0)
+    ahead = np.fft.irfft(np.sum(np.conj(h_spectrum) * xs, axis=1), nfft)[: lags + 1]
+    behind = np.fft.irfft(np.sum(h_spectrum * np.conj(xs), axis=1), nfft)[: lags + 1]
+    out = ahead + behind
+    out[0] *= 0.5
+    return out
