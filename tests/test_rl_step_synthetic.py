@@ -176,7 +176,8 @@ def test_monte_carlo_band_limited_noise_coverage():
 def test_edges_located_from_correlated_noise_warn_at_low_snr(snr_db, warned):
     # one step, sense only, first-order (RC) noise of 10 samples' correlation: at 20 dB the edge is
     # placed to about 4 samples and the study measured coverage near 88 % (docs/estimator-quality.md),
-    # so the result must say its interval may be too narrow; at 40 dB (0.4 samples) it must not
+    # so the result must say its interval may be too narrow; at 40 dB (0.4 samples) it must not,
+    # though tau's variance still grows a little for the placement (noted, not warned)
     t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 1.0, TAU / 40, 25 * TAU, delay=5 * TAU)
     step = RS / (RSRC + DCR + RS)
     rho = math.exp(-0.1)
@@ -187,4 +188,5 @@ def test_edges_located_from_correlated_noise_warn_at_low_snr(snr_db, warned):
     y = s + step * 10 ** (-snr_db / 20) * noise[200:]
     result = wavefit.analyze(frame(t, y), SENSE_ONLY)
     assert any("located only" in w for w in result.warnings) is warned
-    assert any("edges placed from the sense trace" in n for n in result.fit["notes"]) is warned
+    placed = [n for n in result.fit["notes"] if "edges placed from the sense trace" in n]
+    assert placed if warned else all(float(n.split("enlarged ")[1].split("-fold")[0]) < 1.3 for n in placed)

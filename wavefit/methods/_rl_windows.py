@@ -202,12 +202,15 @@ def placement_factor(t, sense, windows, fits, noise, source, fit_window) -> floa
     dt = float(t[1] - t[0])
     ratios = []
     for w, f, jitter in zip(windows, fits, placement_jitter(fits, dt)):
-        shift = int(math.ceil(jitter))
-        if shift < 1 or w.stop - (w.start + shift) < 16:
+        shift = max(int(math.ceil(jitter)), 1)
+        if w.stop - (w.start + shift) < 16:
             ratios.append(1.0)
             continue
         later = fit_window(t, sense, None, Window(w.edge, w.t0, w.start + shift, w.stop), noise, source)
-        ratios.append(max(later.stderr("tau") ** 2 / f.stderr("tau") ** 2, 1.0))
+        ratio = max(later.stderr("tau") ** 2 / f.stderr("tau") ** 2, 1.0)
+        # a start uncertain by less than a sample: the added variance of a start moved by
+        # u_s grows about linearly with u_s (the increments of tau(s) are like a random walk's)
+        ratios.append(ratio if jitter >= 1.0 else 1.0 + jitter * (ratio - 1.0))
     return float(np.median(ratios)) if ratios else 1.0
 
 

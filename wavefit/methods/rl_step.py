@@ -138,10 +138,10 @@ class RLStep(Method):
         warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined)
         if drive is None and not white:
             # each window's start is placed from the same correlated noise as its first samples:
-            # when that placement is uncertain by a sample or more, its uncertainty enters tau's
+            # its uncertainty enters tau's
             jitter = float(np.median(placement_jitter(fits, dt)))
-            if jitter >= 1.0:
-                factor = placement_factor(t, sense, windows, fits, noise, capture.source, self._fit_window)
+            factor = placement_factor(t, sense, windows, fits, noise, capture.source, self._fit_window)
+            if factor > 1.0:
                 combined = combined.with_tau_variance_scaled(factor)
                 notes.append(f"edges placed from the sense trace to about {jitter:.1f} samples in correlated "
                              f"noise: tau's variance enlarged {factor:.2f}-fold, to that of windows starting "
