@@ -118,12 +118,8 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list[np.ndarray], 
         system[k_all[: m + 1], k_all[: m + 1]] += n - k_all[: m + 1]
         cols = np.flatnonzero(np.any(jb != 0, axis=0) | np.any(hb != 0, axis=0))
         j_c, h_c = jb[:, cols], hb[:, cols]
-        r_c = j_c @ bread[np.ix_(cols, cols)]
-        nfft = 1 << int(math.ceil(math.log2(n + m + 1)))
-        h_spectrum = np.fft.rfft(h_c, nfft, axis=0)
+        system[: m + 1, : m + 1] -= _shifted_traces(h_c, j_c @ bread[np.ix_(cols, cols)], m)
         for k in range(m + 1):
-            x = _symmetric_shift(r_c, k)
-            system[k, : m + 1] -= _lagged_inner(h_spectrum, x, nfft, m)
             a_k[k][np.ix_(cols, cols)] += 0.5 * (j_c.T @ _symmetric_shift(j_c, k))
     for hb in infl:
         n = hb.shape[0]
@@ -154,12 +150,30 @@ def _symmetric_shift(x: np.ndarray, k: int) -> np.ndarray:
     return out
 
 
-def _lagged_inner(h_spectrum: np.ndarray, x: np.ndarray, nfft: int, lags: int) -> np.ndarray:
-    """⟨h, T_j x⟩ (Frobenius) for j = 0 … lags, from h's spectrum ``rfft(h, nfft, axis=0)``
-    (nfft ≥ len + lags: the lag products Σ_i h_i·x_{i+j} and Σ_i h_{i+j}·x_i without wrap)."""
-    xs = np.fft.rfft(x, nfft, axis=0)
-    ahead = np.fft.irfft(np.sum(np.conj(h_spectrum) * xs, axis=1), nfft)[: lags + 1]
-    behind = np.fft.irfft(np.sum(h_spectrum * np.conj(xs), axis=1), nfft)[: lags + 1]
-    out = ahead + behind
-    out[0] *= 0.5
+def _shifted_traces(h: np.ndarray, x: np.ndarray, lags: int) -> np.ndarray:
+    """⟨h, T_j U_k x⟩ (Frobenius) for j, k = 0 … lags, as a (lags+1)² array [k, j].
+
+    (T_j U_k x)_i is a sum of rows x_{i±j±k}, each present only where the intermediate
+    index i±j lies inside the record; every such sum is a range sum of the products
+    h_i·x_{i+d}, taken from their running totals (one per offset d, |d| ≤ 2·lags)."""
+    n, width = h.shape[0], 2 * lags
+    padded = np.zeros((n + 2 * width, x.shape[1]))
+    padded[width:width + n] = x
+    # sliding[i, :, width + d] = x_{i+d} (zero outside the record)
+    sliding = np.lib.stride_tricks.sliding_window_view(padded, 2 * width + 1, axis=0)[:n]
+    totals = np.zeros((2 * width + 1, n + 1))
+    np.cumsum(np.einsum("ip,ipd->di", h, sliding), axis=1, out=totals[:, 1:])
+
+    def ranged(d, first, last):  # Σ_{i=first}^{last} h_i·x_{i+d}, empty when last < first
+        first, last = np.clip(first, 0, n), np.clip(last + 1, 0, n)
+        return np.where(last > first, totals[d + 2 * lags, last] - totals[d + 2 * lags, first], 0.0)
+
+    k, j = np.meshgrid(np.arange(lags + 1), np.arange(lags + 1), indexing="ij")
+    whole = lambda d: ranged(d, 0, n - 1)  # noqa: E731
+    out = (whole(j + k) + whole(-(j + k))                 # x_{i+j+k}, x_{i−j−k}
+           + ranged(j - k, 0, n - 1 - j)                  # x_{i+j−k}: i + j inside
+           + ranged(k - j, j, n - 1))                     # x_{i−j+k}: i − j inside
+    # T_0 = I and U_0 = 2I: a lag of zero counts its one row once per side
+    out[:, 0] = np.where(k[:, 0] == 0, 2.0 * whole(0 * k[:, 0]), whole(k[:, 0]) + whole(-k[:, 0]))
+    out[0, 1:] = 2.0 * (whole(j[0, 1:]) + whole(-j[0, 1:]))
     return out
