@@ -102,9 +102,13 @@ class RLStep(Method):
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]
         baseline = self._fit_baseline(t, sense, drive, windows[0], noise)
+        # is the sense noise white? One decision from all windows' residuals together: separate
+        # per-window BIC choices would call white noise coloured in one of a dozen windows often
+        white = noise == "white" or (drive is None and fit_ar([f.residuals for f in fits]).order == 0)
         if self.option(setup, "skip") == "auto":
             windows, fits, late = settle_starts(t, sense, drive, windows, fits, baseline, noise,
-                                                 capture.source, self._fit_window)
+                                                 capture.source, self._fit_window,
+                                                 margin=0.0 if white else 3.0)
             if late:
                 notes.append(f"{late} edge window(s) start later: their first samples did not follow the "
                              "exponential (finite generator edge or winding-capacitance ringing)")
@@ -115,9 +119,6 @@ class RLStep(Method):
 
         combined = combine(windows, fits, baseline, drive is not None)
         estimator = "per-edge windows"
-        # is the sense noise white? One decision from all windows' residuals together: separate
-        # per-window BIC choices would call white noise coloured in one of a dozen windows often
-        white = noise == "white" or (drive is None and fit_ar([f.residuals for f in fits]).order == 0)
         if drive is None and not white and len(windows) > 1:
             pooled = pooled_windows(t, sense, windows, baseline, combined, noise)
             if pooled is not None:
