@@ -175,9 +175,9 @@ def test_monte_carlo_band_limited_noise_coverage():
 @pytest.mark.parametrize("snr_db, warned", [(20, True), (40, False)])
 def test_edges_located_from_correlated_noise_warn_at_low_snr(snr_db, warned):
     # one step, sense only, first-order (RC) noise of 10 samples' correlation: at 20 dB the edge is
-    # placed to about 4 samples and the study measured coverage near 88 % (docs/estimator-quality.md),
-    # so the result must say its interval may be too narrow; at 40 dB (0.4 samples) it must not,
-    # though tau's variance still grows a little for the placement (noted, not warned)
+    # placed to about 4 samples, so the window starts about 12 samples after it and the result must
+    # say that recording the drive node would do better; at 40 dB (0.4 samples) it must not warn,
+    # though tau's variance may still grow a little for the placement (noted, not warned)
     t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 1.0, TAU / 40, 25 * TAU, delay=5 * TAU)
     step = RS / (RSRC + DCR + RS)
     rho = math.exp(-0.1)
@@ -189,4 +189,4 @@ def test_edges_located_from_correlated_noise_warn_at_low_snr(snr_db, warned):
     result = wavefit.analyze(frame(t, y), SENSE_ONLY)
     assert any("located only" in w for w in result.warnings) is warned
     placed = [n for n in result.fit["notes"] if "edges placed from the sense trace" in n]
-    assert placed if warned else all(float(n.split("enlarged ")[1].split("-fold")[0]) < 1.3 for n in placed)
+    assert warned or all(float(n.split("enlarged ")[1].split("-fold")[0]) < 1.3 for n in placed)

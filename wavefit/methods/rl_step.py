@@ -147,11 +147,11 @@ class RLStep(Method):
                 notes.append(f"edges placed from the sense trace to about {jitter:.1f} samples in correlated "
                              f"noise: tau's variance enlarged {factor:.2f}-fold, to that of windows starting "
                              "that much later")
-                if jitter > 2.0:
-                    warnings.append(f"correlated noise and a low signal-to-noise ratio: the edges are located only "
-                                    f"to about {jitter:.1f} samples from the sense trace, and tau's uncertainty "
-                                    f"is enlarged {factor:.2f}-fold for it; record the drive node too for a "
-                                    "tighter result")
+            if jitter > 2.0:
+                warnings.append(f"correlated noise and a low signal-to-noise ratio: the edges are located only "
+                                f"to about {jitter:.1f} samples from the sense trace, so each window starts "
+                                f"{3 * jitter:.0f} samples after its edge and tau is less precise; record the "
+                                "drive node too for a tighter result")
 
         inputs = InputSet()
         inputs.add_correlated(combined.names, combined.values, combined.covariance,
