@@ -47,3 +47,21 @@ def test_fallback_when_the_variance_comes_out_non_positive():
     out = fit_corrected_autocovariance([np.zeros(jac.shape[0])], [jac], [jac], bread, 2, fallback,
                                        np.zeros_like(bread))
     assert out is fallback
+
+
+def test_positive_gram_is_the_toeplitz_form_when_the_spectrum_is_non_negative():
+    from wavefit.fit.sandwich import lagged_gram, positive_gram
+
+    h = np.random.default_rng(3).standard_normal((300, 4))
+    # MA(2) autocovariance: spectrum |1 + 0.8 e^{-iω} + 0.5 e^{-2iω}|² ≥ 0 everywhere
+    assert np.allclose(positive_gram(h, GAMMA), lagged_gram(h, GAMMA), rtol=1e-12, atol=1e-9)
+
+
+def test_positive_gram_stays_positive_semidefinite_for_a_truncated_estimate():
+    from wavefit.fit.sandwich import lagged_gram, positive_gram
+
+    h = np.random.default_rng(4).standard_normal((300, 3))
+    h[:, 2] = np.cos(np.pi * np.arange(300)) * 0.1 + 0.05 * h[:, 2]   # weight near the Nyquist frequency
+    truncated = 0.95 ** np.arange(12)   # an AR(1) autocovariance cut at lag 11: its spectrum dips below 0
+    assert np.linalg.eigvalsh(positive_gram(h, truncated))[0] >= -1e-9
+    assert np.linalg.eigvalsh(lagged_gram(h, truncated))[0] < 0       # the plain form does not

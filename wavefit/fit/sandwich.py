@@ -10,7 +10,9 @@ holds. Σ is estimated from the residuals' autocovariance truncated at the lag
 where the correlation has died out, i.e. a heteroskedasticity-and-autocorrelation
 consistent (HAC) sandwich with a truncated kernel (L. P. Hansen, Econometrica 50
 (1982) 1029–1054; W. K. Newey and K. D. West, Econometrica 55 (1987) 703–708),
-applied to the GLS influence function rather than to OLS scores.
+applied to the GLS influence function rather than to OLS scores, and corrected for
+the noise the fit absorbed; from the whitened residuals when the raw ones do not
+give a positive definite result.
 """
 from __future__ import annotations
 
@@ -43,7 +45,7 @@ def lagged_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
 
 
 def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: np.ndarray, jw: np.ndarray,
-                        bread: np.ndarray, max_lag: int) -> tuple[np.ndarray, dict[str, int]]:
+                        bread: np.ndarray, max_lag: int) -> tuple[np.ndarray, dict[str, int]] | None:
     """G Σ Gᵀ with Σ from each noise group's residual autocovariance (see module doc).
 
     Returns the covariance and, per noise group, the number of lags used; the
@@ -52,14 +54,43 @@ def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: np.n
     §6.2.4, for the truncated lag window). The autocovariance is corrected for
     what the fit absorbed (:func:`fit_corrected_autocovariance`).
 
+    The truncated autocovariance of the raw residuals is tried first. Its spectrum is
+    accurate where the noise is strong and leaks into frequencies where the noise is weak;
+    when the parameters' information lies there (a ring above the cut-off of smooth
+    noise) the estimate can fail to be positive definite. Then the sandwich is formed
+    from the whitened residuals instead, whose spectrum is nearly flat (prewhitening:
+    D. W. K. Andrews and J. C. Monahan, Econometrica 60 (1992) 953–966), with the negative
+    part of the estimated spectrum removed (:func:`positive_gram`). None when neither
+    is positive definite.
+
     ``jac`` is the Jacobian of the residuals, ``jw`` its whitened form (rows as
     produced by the whitening of ``blocks`` in order) and ``bread`` = (J_wᵀJ_w)⁻¹.
     """
+    influence = [models[b.group].whiten_adjoint(jw[b.start:b.stop]) for b in blocks]
+    cov, extents = _sandwich(r, jac, influence, blocks, bread, max_lag, lagged_gram)
+    if _positive_definite(cov):
+        return cov, extents
+    white_r = np.concatenate([models[b.group].whiten(r[b.start:b.stop]) for b in blocks])
+    cov, extents = _sandwich(white_r, jw, [jw[b.start:b.stop] for b in blocks], blocks, bread, max_lag,
+                             positive_gram)
+    return (cov, extents) if _positive_definite(cov) else None
+
+
+def _positive_definite(cov: np.ndarray) -> bool:
+    """Positive definite, judged on the correlation matrix (free of the parameters' units)."""
+    scale = np.sqrt(np.abs(np.diag(cov)))
+    if not np.all(np.isfinite(cov)) or np.any(scale == 0):
+        return False
+    eig = np.linalg.eigvalsh(cov / np.outer(scale, scale))
+    return bool(eig[0] > 1e-12 * eig[-1] and np.all(np.diag(cov) > 0))
+
+
+def _sandwich(r, jac, influence, blocks, bread, max_lag, gram) -> tuple[np.ndarray, dict[str, int]]:
+    """bread·Σ_b gram(h_b, γ_group(b))·bread for residuals ``r`` whose linearised form is
+    r = (I − J·bread·Hᵀ)·noise (J = ``jac``, H the ``influence`` rows per block)."""
     from .noise_model import autocovariance
 
     extents: dict[str, int] = {}
-    acovs: dict[str, np.ndarray] = {}
-    influence = {id(b): models[b.group].whiten_adjoint(jw[b.start:b.stop]) for b in blocks}
     plain: dict[str, np.ndarray] = {}
     for g in sorted({b.group for b in blocks}):
         segs = [r[b.start:b.stop] for b in blocks if b.group == g]
@@ -69,19 +100,43 @@ def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: np.n
         extents[g] = lags
         # lag products divided by the number of pairs (the pooled estimate divides by n)
         plain[g] = acov[: lags + 1] * n / np.maximum(n - np.arange(lags + 1) * len(segs), 1)
+    acovs: dict[str, np.ndarray] = {}
     for g in plain:
-        mine = [b for b in blocks if b.group == g]
-        others = np.zeros_like(bread)
-        for b in blocks:
-            if b.group != g:
-                others += lagged_gram(influence[id(b)], plain[b.group])
+        mine = [i for i, b in enumerate(blocks) if b.group == g]
+        others = sum((lagged_gram(influence[i], plain[b.group]) for i, b in enumerate(blocks) if b.group != g),
+                     np.zeros_like(bread))
         acovs[g] = fit_corrected_autocovariance(
-            [r[b.start:b.stop] for b in mine], [jac[b.start:b.stop] for b in mine],
-            [influence[id(b)] for b in mine], bread, extents[g], plain[g], bread @ others @ bread)
-    meat = np.zeros_like(bread)
-    for b in blocks:
-        meat += lagged_gram(influence[id(b)], acovs[b.group])
-    return bread @ meat @ bread, extents
+            [r[blocks[i].start:blocks[i].stop] for i in mine], [jac[blocks[i].start:blocks[i].stop] for i in mine],
+            [influence[i] for i in mine], bread, extents[g], plain[g], bread @ others @ bread)
+    meat = sum((gram(h, acovs[b.group]) for h, b in zip(influence, blocks)), np.zeros_like(bread))
+    cov = bread @ meat @ bread
+    return 0.5 * (cov + cov.T), extents
+
+
+def positive_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
+    """hᵀ Σ h for the Toeplitz Σ of ``acov`` with the negative part of its spectrum removed.
+
+    A truncated autocovariance estimate need not be positive semi-definite; where its
+    spectrum S(ω) = γ_0 + 2·Σ γ_k cos(kω) dips below zero the sandwich can give a negative
+    variance. Computed in the frequency domain on a grid of N ≥ n + lags points, where the
+    circulant embedding makes Σ_k γ_k Σ_i h_i h_{i+k}ᵀ = (1/N)·Σ_l S(ω_l)·Re(ĥ_lᴴ ĥ_l) exact,
+    with S replaced by max(S, 0): equal to :func:`lagged_gram` when the spectrum is nowhere
+    negative, positive semi-definite always. (The positive-part correction of a lag-window
+    spectral estimate: D. N. Politis, Econometric Theory 27 (2011) 703–744, cited from memory.)
+    """
+    n, lags = h.shape[0], acov.size - 1
+    size = 1 << int(math.ceil(math.log2(n + lags + 1)))
+    circular = np.zeros(size)
+    circular[: lags + 1] = acov
+    if lags:
+        circular[-lags:] = acov[1:][::-1]
+    spectrum = np.maximum(np.fft.rfft(circular).real, 0.0)
+    weights = np.full(spectrum.size, 2.0)
+    weights[0] = 1.0
+    if size % 2 == 0:
+        weights[-1] = 1.0
+    hf = np.fft.rfft(h, size, axis=0)
+    return ((hf.conj().T * (weights * spectrum)) @ hf).real / size
 
 
 def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list[np.ndarray], infl: list[np.ndarray],
