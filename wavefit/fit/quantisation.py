@@ -17,26 +17,11 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..signal.codes import code_step
+
 #: Below this residual rms, in codes, the error is treated as not dithered (residual
 #: σ² = σ_noise² + q²/12, so 0.5 q means σ_noise ≈ 0.4 q; common practice after Widrow).
 DITHER_LIMIT = 0.5
-
-
-def code_step(y: np.ndarray) -> float | None:
-    """The converter (or printing) step of a record, if its values sit on a uniform grid."""
-    y = np.asarray(y, dtype=float)
-    y = y[np.isfinite(y)]
-    levels = np.unique(y)
-    if levels.size < 3 or levels.size > 0.5 * y.size:
-        return None
-    gaps = np.diff(levels)
-    step = float(gaps.min())
-    if step <= 0:
-        return None
-    ratio = gaps / step
-    if np.max(np.abs(ratio - np.round(ratio))) > 0.05:
-        return None
-    return step
 
 
 def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: np.ndarray,

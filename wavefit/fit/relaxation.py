@@ -24,7 +24,7 @@ from typing import Sequence
 
 import numpy as np
 
-from ..signal.edges import noise_rms
+from ..signal.edges import noise_rms, placement_deviation
 from .engine import Block, fit_least_squares
 from .quantisation import include_quantisation
 from .result import FitResult
@@ -110,7 +110,7 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     sigma = noise_rms(y)
     for i in range(k):
         step = abs(level_guess[i + 1] - level_guess[i]) or np.inf
-        reach = max(0.3, 4.0 * dt, 6.0 * sigma / step)
+        reach = max(0.3, 4.0 * dt, 6.0 * placement_deviation(sigma, 1.0, step))  # time in units of tau0
         lo = (x0[4 + 2 * (i - 1)] if i else ts[0]) + dt
         hi = (x0[4 + 2 * (i + 1)] if i + 1 < k else ts[-1]) - dt
         guess = x0[4 + 2 * i]

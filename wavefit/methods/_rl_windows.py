@@ -15,7 +15,7 @@ from scipy import stats
 from ..errors import AnalysisRefused
 from ..fit.exponential import window_model
 from ..fit.relaxation import fit_relaxations
-from ..signal.edges import Edge
+from ..signal.edges import Edge, placement_deviation
 
 @dataclass(frozen=True)
 class Window:
@@ -77,14 +77,14 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
             if found is not None:
                 t0s[k] = found
         for k, (w, f) in enumerate(zip(windows, fits)):
-            sigma_own = f.noise_sigma["sense"] * f["tau"] / (abs(f["coef_sense"]) or 1e-300) / \
-                math.exp(-(t[w.start] - w.t0) / f["tau"])
-            start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0) + margin * sigma_own))
+            # the step at the switching instant, the fitted coefficient extrapolated back to it
+            step = f["coef_sense"] * math.exp(-(t[w.start] - w.t0) / f["tau"])
+            sigma_t0 = placement_deviation(f.noise_sigma["sense"], f["tau"], step)
+            start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0) + margin * sigma_t0))
             stop = w.stop
             if k + 1 < len(windows) and windows[k + 1].start - w.stop <= max(10, int(0.5 * f["tau"] / dt)):
-                # the next window follows the next edge (no edge was left out in between)
-                step = abs(f["coef_sense"]) * math.exp(-(t[w.start] - w.t0) / f["tau"]) or 1e-300
-                sigma_t0 = f.noise_sigma["sense"] * f["tau"] / step
+                # the next window follows the next edge (no edge was left out in between): end three
+                # deviations of the next instant before it (this edge's deviation stands for it)
                 stop = int(np.searchsorted(t, t0s[k + 1] - max(2.0 * dt, 3.0 * sigma_t0)))
             if (start, stop) != (w.start, w.stop) and stop - start >= 8:
                 windows[k] = Window(w.edge, t0s[k], start, stop)
@@ -155,8 +155,8 @@ def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, n
         start = int(np.searchsorted(t, t0 + skip))
         stop = t.size
         if k + 1 < len(edges):
-            step = abs(whole[f"final_{k + 1}"] - (whole[f"final_{k}"] if k else whole["final_head"])) or 1e-300
-            margin = max(2.0 * dt, 3.0 * whole.noise_sigma["sense"] * tau / step)
+            step = whole[f"final_{k + 1}"] - (whole[f"final_{k}"] if k else whole["final_head"])
+            margin = max(2.0 * dt, 3.0 * placement_deviation(whole.noise_sigma["sense"], tau, step))
             stop = int(np.searchsorted(t, whole[f"t0_{k + 2}"] - margin))
         if stop - start >= 16:
             w = Window(e, t0, start, stop)
@@ -192,12 +192,12 @@ def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, n
 def placement_jitter(fits, dt: float) -> np.ndarray:
     """Standard deviation, in samples, of each window's switching instant as the sense trace
     places it: σ·tau/|step| (the noise over the slope of the edge)."""
-    return np.array([f.noise_sigma["sense"] * f["tau"] / max(abs(f["coef_sense"]), 1e-300) / dt for f in fits])
+    return np.array([placement_deviation(f.noise_sigma["sense"], f["tau"], f["coef_sense"]) / dt for f in fits])
 
 
-def placement_factor(t, sense, windows, fits, noise, source, fit_window) -> float:
+def placement_factor(t, sense, windows, fits, jitters, noise, source, fit_window) -> float:
     """How much the variance of tau grows when each window starts later by the uncertainty of
-    its own start (median over windows, at least 1).
+    its own start, ``jitters`` (samples, :func:`placement_jitter`; median over windows, at least 1).
 
     Without a drive channel a window's start is placed from the same trace, and in
     correlated noise the noise of its first samples is correlated with the noise that
@@ -209,7 +209,7 @@ def placement_factor(t, sense, windows, fits, noise, source, fit_window) -> floa
     """
     dt = float(t[1] - t[0])
     ratios = []
-    for w, f, jitter in zip(windows, fits, placement_jitter(fits, dt)):
+    for w, f, jitter in zip(windows, fits, jitters):
         shift = max(int(math.ceil(jitter)), 1)
         if w.stop - (w.start + shift) < 16:
             ratios.append(1.0)

@@ -79,7 +79,7 @@ class LcRing(Method):
         inputs, present = ring_inputs(meas.ring, setup, setup.parts, coil_loss)
         check_load_share(meas.ring, setup.parts)
         prop = propagate(inputs, lambda v: ring_model(v, present, coil_loss), UNITS)
-        warnings = meas.warnings + loss_split_warning(meas.ring, setup.parts, present, coil_loss,
+        warnings = meas.warnings + loss_split_warning(inputs, present, coil_loss,
                                                       prop.quantities["L"].standard_uncertainty)
         fit = dict(meas.info, coil_loss=coil_loss)
         model = np.full_like(meas.data, np.nan)
@@ -174,14 +174,13 @@ def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> 
     return split * d_max
 
 
-def loss_split_warning(ring: DampedSineFit, parts: Mapping[str, PartValue], present: tuple[str, ...],
-                       coil_loss: str, u_inductance: float) -> tuple[str, ...]:
+def loss_split_warning(inputs: InputSet, present: tuple[str, ...], coil_loss: str,
+                       u_inductance: float) -> tuple[str, ...]:
     """Warn when another split of the coil's loss (series/parallel) would move L by more than
     its standard uncertainty: then the assumption matters and should be stated."""
     if coil_loss == "unknown":
         return ()
-    v = {"timebase": 1.0, "fit alpha": ring.fit["alpha"], "fit w_d": ring.fit["w_d"]}
-    v.update({name: parts[name].value for name in present})
+    v = {i.name: i.value for i in inputs.inputs}
     chosen = ring_model(v, present, coil_loss)["L"]
     extremes = [ring_model(dict(v, **{"coil loss split": s}), present, "unknown")["L"] for s in (0.0, 1.0)]
     shift = max(abs(x - chosen) for x in extremes)

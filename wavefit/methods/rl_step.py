@@ -140,8 +140,9 @@ class RLStep(Method):
         if drive is None and not white:
             # each window's start is placed from the same correlated noise as its first samples:
             # its uncertainty enters tau's
-            jitter = float(np.median(placement_jitter(fits, dt)))
-            factor = placement_factor(t, sense, windows, fits, noise, capture.source, self._fit_window)
+            jitters = placement_jitter(fits, dt)
+            jitter = float(np.median(jitters))
+            factor = placement_factor(t, sense, windows, fits, jitters, noise, capture.source, self._fit_window)
             if factor > 1.0:
                 combined = combined.with_tau_variance_scaled(factor)
                 notes.append(f"edges placed from the sense trace to about {jitter:.1f} samples in correlated "

@@ -11,6 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .codes import code_step
+
 
 def longest_run_at_extremes(y: np.ndarray) -> tuple[int, int]:
     """Length of the longest run of samples equal to min(y), and to max(y)."""
@@ -69,8 +71,6 @@ class Extremes:
 
 def extremes(y: np.ndarray) -> Extremes:
     """Gather :class:`Extremes` of a record."""
-    from ..fit.quantisation import code_step
-
     y = np.asarray(y, dtype=float)
     y = y[np.isfinite(y)]
     levels = np.unique(y)

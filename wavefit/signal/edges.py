@@ -148,3 +148,11 @@ def jump_instant(t: np.ndarray, y: np.ndarray, t_from: float, t_to: float) -> tu
     half = 0.5 * (y[start] + y[stop])
     t_half = _instant(t, y, half, start, stop, last=False)
     return (t_half if t_half is not None else float(t[a + k])), max((stop - start) * dt, dt)
+
+
+def placement_deviation(noise_sigma: float, tau: float, step: float) -> float:
+    """Standard deviation of a first-order edge's switching instant as its own trace places
+    it: the noise over the slope at the edge, σ/(|step|/tau) = σ·tau/|step| (amplitude
+    noise turned into timing error by the slope; common practice in timing measurement)."""
+    return noise_sigma * tau / max(abs(step), 1e-300)
+
