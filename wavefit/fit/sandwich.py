@@ -174,15 +174,10 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list[np.ndarray], 
         cols = np.flatnonzero(np.any(jb != 0, axis=0) | np.any(hb != 0, axis=0))
         j_c, h_c = jb[:, cols], hb[:, cols]
         system[: m + 1, : m + 1] -= _shifted_traces(h_c, j_c @ bread[np.ix_(cols, cols)], m)
-        for k in range(m + 1):
-            a_k[k][np.ix_(cols, cols)] += 0.5 * (j_c.T @ _symmetric_shift(j_c, k))
-    for hb in infl:
-        n = hb.shape[0]
-        g_j[0] += hb.T @ hb
-        for j in range(1, min(lags, n - 1) + 1):
-            c = hb[:-j].T @ hb[j:]
-            g_j[j] += c + c.T
-    v_j = np.einsum("ab,jbc,cd->jad", bread, g_j, bread)
+        block = np.ix_(np.arange(m + 1), cols, cols)
+        a_k[block] += _lag_grams(j_c, m) * np.where(k_all[: m + 1] == 0, 1.0, 0.5)[:, None, None]
+        g_j[block] += _lag_grams(h_c, m)
+    v_j = bread @ g_j @ bread
     system += np.einsum("kab,jba->kj", a_k, v_j)
     products -= np.einsum("kab,ba->k", a_k, other_cov)
     try:
@@ -194,14 +189,13 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list[np.ndarray], 
     return gamma
 
 
-def _symmetric_shift(x: np.ndarray, k: int) -> np.ndarray:
-    """U_k x: rows shifted by +k and −k and added (2x for k = 0)."""
-    if k == 0:
-        return 2.0 * x
-    out = np.zeros_like(x)
-    if k < x.shape[0]:
-        out[:-k] += x[k:]
-        out[k:] += x[:-k]
+def _lag_grams(x: np.ndarray, lags: int) -> np.ndarray:
+    """xᵀ T_k x for k = 0 … lags (T_0 = I; T_k the symmetric lag-k shift), shape (lags+1, q, q)."""
+    out = np.empty((lags + 1, x.shape[1], x.shape[1]))
+    out[0] = x.T @ x
+    for k in range(1, lags + 1):
+        c = x[:-k].T @ x[k:]
+        out[k] = c + c.T
     return out
 
 
