@@ -65,3 +65,19 @@ def test_positive_gram_stays_positive_semidefinite_for_a_truncated_estimate():
     truncated = 0.95 ** np.arange(12)   # an AR(1) autocovariance cut at lag 11: its spectrum dips below 0
     assert np.linalg.eigvalsh(positive_gram(h, truncated))[0] >= -1e-9
     assert np.linalg.eigvalsh(lagged_gram(h, truncated))[0] < 0       # the plain form does not
+
+
+def test_shifted_traces_match_the_dense_matrices():
+    # ⟨h, T_j U_k x⟩ against explicit shift matrices (T_0 = I, U_0 = 2I, else S_k + S_kᵀ)
+    from wavefit.fit.sandwich import _shifted_traces
+
+    rng = np.random.default_rng(5)
+    for n, p, lags in ((40, 3, 5), (60, 2, 59), (7, 2, 6)):
+        h, x = rng.standard_normal((n, p)), rng.standard_normal((n, p))
+
+        def sym(k):
+            return np.eye(n) if k == 0 else np.eye(n, k=k) + np.eye(n, k=-k)
+
+        dense = np.array([[np.sum(h * (sym(j) @ ((2 * np.eye(n) if k == 0 else sym(k)) @ x)))
+                           for j in range(lags + 1)] for k in range(lags + 1)])
+        assert np.allclose(_shifted_traces(h, x, lags), dense, rtol=1e-10, atol=1e-9)

@@ -200,29 +200,36 @@ def _lag_grams(x: np.ndarray, lags: int) -> np.ndarray:
 
 
 def _shifted_traces(h: np.ndarray, x: np.ndarray, lags: int) -> np.ndarray:
-    """⟨h, T_j U_k x⟩ (Frobenius) for j, k = 0 … lags, as a (lags+1)² array [k, j].
+    """⟨h, T_j U_k x⟩ (Frobenius) for j, k = 0 … lags (< len), as a (lags+1)² array [k, j].
 
     (T_j U_k x)_i is a sum of rows x_{i±j±k}, each present only where the intermediate
-    index i±j lies inside the record; every such sum is a range sum of the products
-    h_i·x_{i+d}, taken from their running totals (one per offset d, |d| ≤ 2·lags)."""
-    n, width = h.shape[0], 2 * lags
-    padded = np.zeros((n + 2 * width, x.shape[1]))
-    padded[width:width + n] = x
-    # sliding[i, :, width + d] = x_{i+d} (zero outside the record)
-    sliding = np.lib.stride_tricks.sliding_window_view(padded, 2 * width + 1, axis=0)[:n]
-    totals = np.zeros((2 * width + 1, n + 1))
-    np.cumsum(np.einsum("ip,ipd->di", h, sliding), axis=1, out=totals[:, 1:])
+    index i±j lies inside the record. Each term is a whole-record cross product
+    c(d) = Σ_i h_i·x_{i+d} (all offsets at once by FFT) less, for x_{i+j−k} and x_{i−j+k},
+    the few products at the record's end or start that the intermediate index excludes."""
+    n, m = h.shape[0], lags
+    size = 1 << int(math.ceil(math.log2(n + 2 * m + 1)))
+    cross = np.fft.irfft(np.sum(np.conj(np.fft.rfft(h, size, axis=0)) * np.fft.rfft(x, size, axis=0), axis=1),
+                         size)
 
-    def ranged(d, first, last):  # Σ_{i=first}^{last} h_i·x_{i+d}, empty when last < first
-        first, last = np.clip(first, 0, n), np.clip(last + 1, 0, n)
-        return np.where(last > first, totals[d + 2 * lags, last] - totals[d + 2 * lags, first], 0.0)
+    def whole(d):  # c(d) for |d| ≤ 2m, negative offsets wrapped to the end
+        return cross[np.mod(d, size)]
 
-    k, j = np.meshgrid(np.arange(lags + 1), np.arange(lags + 1), indexing="ij")
-    whole = lambda d: ranged(d, 0, n - 1)  # noqa: E731
-    out = (whole(j + k) + whole(-(j + k))                 # x_{i+j+k}, x_{i−j−k}
-           + ranged(j - k, 0, n - 1 - j)                  # x_{i+j−k}: i + j inside
-           + ranged(k - j, j, n - 1))                     # x_{i−j+k}: i − j inside
+    offsets = np.arange(-m, m + 1)[:, None]
+
+    def partial(rows):  # Σ over the given rows i of h_i·x_{i+d}, running along rows, for |d| ≤ m
+        idx = rows[None, :] + offsets
+        ok = (idx >= 0) & (idx < n)
+        prod = np.einsum("ip,dip->di", h[rows], x[np.clip(idx, 0, n - 1)]) * ok
+        return np.concatenate((np.zeros((offsets.size, 1)), np.cumsum(prod, axis=1)), axis=1)
+
+    head = partial(np.arange(m))                      # head[d, j] = Σ_{i<j}
+    tail = partial(np.arange(n - 1, n - 1 - m, -1))   # tail[d, j] = Σ_{i ≥ n−j}
+    k, j = np.meshgrid(np.arange(m + 1), np.arange(m + 1), indexing="ij")
+    out = (whole(j + k) + whole(-(j + k))
+           + whole(j - k) - tail[j - k + m, j]        # x_{i+j−k}: i + j inside
+           + whole(k - j) - head[k - j + m, j])       # x_{i−j+k}: i − j inside
     # T_0 = I and U_0 = 2I: a lag of zero counts its one row once per side
-    out[:, 0] = np.where(k[:, 0] == 0, 2.0 * whole(0 * k[:, 0]), whole(k[:, 0]) + whole(-k[:, 0]))
-    out[0, 1:] = 2.0 * (whole(j[0, 1:]) + whole(-j[0, 1:]))
+    kk, jj = np.arange(m + 1), np.arange(1, m + 1)
+    out[:, 0] = np.where(kk == 0, 2.0 * whole(0 * kk), whole(kk) + whole(-kk))
+    out[0, 1:] = 2.0 * (whole(jj) + whole(-jj))
     return out
