@@ -41,13 +41,8 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
                       x0: Sequence[float], names: Sequence[str], blocks: Sequence[Block], *,
                       model: str, bounds: tuple = (-np.inf, np.inf), noise: str = "auto",
                       x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
-                      sigma: dict[str, float] | None = None, correct_bias: bool = False) -> FitResult:
+                      sigma: dict[str, float] | None = None) -> FitResult:
     """Fit ``fun`` (residual = data − model, for all blocks concatenated).
-
-    With ``correct_bias`` the second-order bias of the nonlinear least-squares
-    estimate, which grows as the signal-to-noise ratio falls, is estimated by
-    M. J. Box's formula (J. R. Stat. Soc. B 33 (1971) 171–201, eq. 3) and
-    subtracted: b = −½·(J_wᵀJ_w)⁻¹J_wᵀ·W·d with d_i = tr(cov(θ̂)·∂²f_i/∂θ²).
 
     ``noise`` is ``"auto"`` (AR noise model chosen from the residuals),
     ``"white"`` (independent samples, scatter estimated), or ``"known"``
@@ -103,10 +98,6 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
     n_eff = sum(sum(b.stop - b.start for b in blocks if b.group == g) / models[g].long_run_ratio()
                 for g in groups)
     diagnostics, warns = _diagnose(e, x, bounds, names, coloured=bool(ar_params))
-    if correct_bias:
-        bias = _box_bias(jac, x, cov, bread, jw, blocks, models)
-        diagnostics["bias_correction"] = {n: float(b) for n, b in zip(names, bias)}
-        x = x - bias
     if extents:
         diagnostics["noise_correlation_extent_samples"] = extents
     return FitResult(
@@ -123,21 +114,6 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
         diagnostics=diagnostics,
         warnings=tuple(warns),
     )
-
-
-def _box_bias(jac, x, cov, bread, jw, blocks, models) -> Vector:
-    """Box's (1971) second-order bias of a (whitened) least-squares estimate."""
-    d = np.zeros(jac(x).shape[0])
-    for b in range(x.size):
-        h = 1e-5 * max(abs(x[b]), math.sqrt(max(cov[b, b], 0.0)), 1e-300)
-        up, dn = x.copy(), x.copy()
-        up[b] += h
-        dn[b] -= h
-        # the residual's Jacobian is −∂f/∂θ, so its derivative carries the minus sign of f's Hessian
-        d_jac_b = -(jac(up) - jac(dn)) / (2.0 * h)
-        d += d_jac_b @ cov[:, b]
-    bias = 0.5 * bread @ (jw.T @ _whiten(d, blocks, models))  # jw = −J_f: signs cancel against Box's −½
-    return np.where(np.isfinite(bias), bias, 0.0)
 
 
 def _solve(fun, jac, x, blocks, models, bounds, x_scale) -> Vector:

@@ -79,7 +79,7 @@ def relaxation_model(t: np.ndarray, theta: np.ndarray, n_states: int,
 
 
 def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], level_guess: Sequence[float],
-                    tau0: float, *, noise: str = "auto", correct_bias: bool = True) -> FitResult:
+                    tau0: float, *, noise: str = "auto") -> FitResult:
     """Fit the whole-record relaxation model; ``level_guess`` = [F_0, F_1, …, F_K]."""
     t = np.asarray(t, dtype=float)
     y = np.asarray(y, dtype=float)
@@ -118,7 +118,7 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
         upper[4 + 2 * i] = min(0.5 * (hi + guess), guess + reach)
     blocks = [Block(0, t.size, "sense")]
     fit = fit_least_squares(fun, jac, x0, names, blocks, model="square-wave relaxation",
-                            noise=noise, bounds=(lower, upper), correct_bias=correct_bias)
+                            noise=noise, bounds=(lower, upper))
     fit = include_quantisation(fit, y, y - fun(fit.values), -jac(fit.values), blocks)
     factor = np.ones(x0.size)
     factor[0] = scale
