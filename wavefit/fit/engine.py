@@ -89,12 +89,11 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
     if noise == "auto" and ar_params:
         # the AR model may whiten only approximately: use the sandwich G Σ Gᵀ (see fit/sandwich.py)
         robust = sandwich_covariance(r, blocks, models, jac(x), jw, bread, max_lag=min(m // 10, 1000))
-        if robust is not None:
+        if robust is not None:  # None: too little data for a positive-definite noise covariance
             cov, extents = robust
             for g, lags in extents.items():
                 n_g = sum(b.stop - b.start for b in blocks if b.group == g)
                 dof = min(dof, n_g / (2.0 * lags + 1.0))
-        # else: too little data for a positive-definite estimate of the noise covariance
     n_eff = sum(sum(b.stop - b.start for b in blocks if b.group == g) / models[g].long_run_ratio()
                 for g in groups)
     diagnostics, warns = _diagnose(e, x, bounds, names, coloured=bool(ar_params))

@@ -35,13 +35,8 @@ def correlation_extent(acov: np.ndarray, n: int, run: int = 10) -> int:
 
 def lagged_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
     """Σ_k γ_k Σ_n h_n h_{n+k}ᵀ over k = −K..K: hᵀ Σ h for Toeplitz Σ with autocovariance γ."""
-    out = acov[0] * (h.T @ h)
-    for k in range(1, acov.size):
-        if k >= h.shape[0]:
-            break
-        c = h[:-k].T @ h[k:]
-        out += acov[k] * (c + c.T)
-    return out
+    lags = min(acov.size - 1, h.shape[0] - 1)
+    return np.tensordot(acov[: lags + 1], _lag_grams(h, lags), axes=1)
 
 
 def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: np.ndarray, jw: np.ndarray,
