@@ -18,6 +18,8 @@ import tempfile
 import time
 from pathlib import Path
 
+import wavefit  # first: it sets one BLAS thread, which takes effect only before numpy loads
+
 import numpy as np
 import pandas as pd
 

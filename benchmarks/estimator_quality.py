@@ -34,11 +34,11 @@ import zlib
 from dataclasses import dataclass
 from typing import Callable
 
+import wavefit  # first: it sets one BLAS thread, which takes effect only before numpy loads
+
 import numpy as np
 import pandas as pd
 from scipy.signal import lfilter
-
-import wavefit
 from wavefit.fit.fisher import crlb, numerical_jacobian
 from wavefit.synth.lc import Tank, ringdown
 from wavefit.synth.rl import rl_square_wave

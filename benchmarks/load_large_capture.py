@@ -21,6 +21,8 @@ import time
 import tracemalloc
 from pathlib import Path
 
+import wavefit  # first: it sets one BLAS thread, which takes effect only before numpy loads
+
 import numpy as np
 
 from wavefit.io import read_capture

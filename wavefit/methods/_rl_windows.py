@@ -15,6 +15,7 @@ from scipy import stats
 from ..errors import AnalysisRefused
 from ..fit.exponential import window_model
 from ..fit.relaxation import fit_relaxations
+from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
 
 @dataclass(frozen=True)
@@ -25,6 +26,8 @@ class Window:
     t0: float
     start: int
     stop: int
+    #: standard deviation of t0 (s) when it was placed from the sense trace itself
+    t0_deviation: float = math.nan
 
 
 @dataclass(frozen=True)
@@ -45,7 +48,8 @@ class Combined:
         return dataclasses.replace(self, covariance=self.covariance * np.outer(scale, scale))
 
 
-def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window, margin: float = 0.0):
+def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window, margin: float = 0.0,
+                  periodic: bool = False):
     """Start each window as early as the data allow, without admitting samples that do not
     follow the exponential, and end it before the next switching instant.
 
@@ -71,24 +75,32 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
     dt = float(t[1] - t[0])
     windows, fits = list(windows), list(fits)
     if drive is None:
-        t0s = [w.t0 for w in windows]
+        t0s, deviations = [], []
         for k, (w, f) in enumerate(zip(windows, fits)):
             found = _switch_instant(t, w, f, windows[k - 1] if k else None, fits[k - 1] if k else None, baseline)
-            if found is not None:
-                t0s[k] = found
-        for k, (w, f) in enumerate(zip(windows, fits)):
-            # the step at the switching instant, the fitted coefficient extrapolated back to it
-            step = f["coef_sense"] * math.exp(-(t[w.start] - w.t0) / f["tau"])
-            sigma_t0 = placement_deviation(f.noise_sigma["sense"], f["tau"], step)
-            start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0) + margin * sigma_t0))
+            if found is None:
+                # the step at the switching instant, the fitted coefficient extrapolated back to it
+                step = f["coef_sense"] * math.exp(-(t[w.start] - w.t0) / f["tau"])
+                found = w.t0, placement_deviation(f.noise_sigma["sense"], f["tau"], step)
+            t0s.append(found[0])
+            deviations.append(found[1])
+        if periodic:
+            lattice = periodic_instants(np.array(t0s), np.array(deviations),
+                                        np.array([w.edge.direction for w in windows]))
+            if lattice is not None:
+                t0s, deviations = list(lattice[0]), list(lattice[1])
+        for k, w in enumerate(windows):
+            start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0) + margin * deviations[k]))
             stop = w.stop
-            if k + 1 < len(windows) and windows[k + 1].start - w.stop <= max(10, int(0.5 * f["tau"] / dt)):
+            if k + 1 < len(windows) and windows[k + 1].start - w.stop <= max(10, int(0.5 * fits[k]["tau"] / dt)):
                 # the next window follows the next edge (no edge was left out in between): end three
-                # deviations of the next instant before it (this edge's deviation stands for it)
-                stop = int(np.searchsorted(t, t0s[k + 1] - max(2.0 * dt, 3.0 * sigma_t0)))
+                # deviations of the next instant before it
+                stop = int(np.searchsorted(t, t0s[k + 1] - max(2.0 * dt, 3.0 * deviations[k + 1])))
             if (start, stop) != (w.start, w.stop) and stop - start >= 8:
-                windows[k] = Window(w.edge, t0s[k], start, stop)
+                windows[k] = Window(w.edge, t0s[k], start, stop, deviations[k])
                 fits[k] = fit_window(t, sense, drive, windows[k], noise, source)
+            else:
+                windows[k] = dataclasses.replace(w, t0_deviation=deviations[k])
     out_w, out_f, late = [], [], 0
     for w, f in zip(windows, fits):
         step = max(4, int(math.ceil(0.1 * f["tau"] / dt)))
@@ -189,13 +201,15 @@ def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, n
                      float(whole.dof), windowed.by_direction, windowed.rise_fall, windowed.birge), True
 
 
-def placement_jitter(fits, dt: float) -> np.ndarray:
+def placement_jitter(windows, fits, dt: float) -> np.ndarray:
     """Standard deviation, in samples, of each window's switching instant as the sense trace
-    places it: σ·tau/|step| (the noise over the slope of the edge)."""
-    return np.array([placement_deviation(f.noise_sigma["sense"], f["tau"], f["coef_sense"]) / dt for f in fits])
+    placed it (:func:`settle_starts`), else σ·tau/|step| (the noise over the slope of the edge)."""
+    return np.array([(w.t0_deviation if math.isfinite(w.t0_deviation)
+                      else placement_deviation(f.noise_sigma["sense"], f["tau"], f["coef_sense"])) / dt
+                     for w, f in zip(windows, fits)])
 
 
-def placement_factor(t, sense, windows, fits, jitters, noise, source, fit_window) -> float:
+def placement_factor(t, windows, fits, jitters) -> float:
     """How much the variance of tau grows when each window starts later by the uncertainty of
     its own start, ``jitters`` (samples, :func:`placement_jitter`; median over windows, at least 1).
 
@@ -203,51 +217,80 @@ def placement_factor(t, sense, windows, fits, jitters, noise, source, fit_window
     correlated noise the noise of its first samples is correlated with the noise that
     placed it; the estimate's scatter then exceeds its linearised variance. Treating the
     start as an input quantity with standard uncertainty u_s (samples) and sensitivity
-    ∂tau/∂s found by moving it by u_s (JCGM 100:2008, 5.1.3: a sensitivity coefficient
-    found by experiment) gives c²·u_s² ≈ var(tau from s + u_s) − var(tau from s), so the
-    variance becomes that of the later-starting window.
+    ∂tau/∂s (JCGM 100:2008, 5.1.3) gives c²·u_s² ≈ var(tau from s + u_s) − var(tau from s),
+    so the variance becomes that of the later-starting window. The ratio of the two
+    variances is that of the linearised information of the fitted curve over the two sample
+    ranges (for a window of many tau it is exp(2·u_s·Δt/tau) in any stationary noise: the
+    later window holds the same curve with a smaller amplitude), so nothing is refitted.
     """
-    dt = float(t[1] - t[0])
     ratios = []
     for w, f, jitter in zip(windows, fits, jitters):
         shift = max(int(math.ceil(jitter)), 1)
         if w.stop - (w.start + shift) < 16:
             ratios.append(1.0)
             continue
-        later = fit_window(t, sense, None, Window(w.edge, w.t0, w.start + shift, w.stop), noise, source)
-        ratio = max(later.stderr("tau") ** 2 / f.stderr("tau") ** 2, 1.0)
+        ratio = max(_tau_information(t, w, f, w.start) / _tau_information(t, w, f, w.start + shift), 1.0)
         # a start uncertain by less than a sample: the added variance of a start moved by
         # u_s grows about linearly with u_s (the increments of tau(s) are like a random walk's)
         ratios.append(ratio if jitter >= 1.0 else 1.0 + jitter * (ratio - 1.0))
     return float(np.median(ratios)) if ratios else 1.0
 
 
-def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> float | None:
-    """Where this window's fitted curve meets the curve of the state before (sense channel)."""
+def _tau_information(t, w, f, start: int) -> float:
+    """1/var(tau), up to the noise variance, of the window's fitted curve sampled from
+    ``start`` to the window's end, with its final level and amplitude free."""
+    _, coef, tau = f.subset(("final_sense", "coef_sense", "tau"))[0]
+    u = t[start:w.stop] - t[start]
+    e = np.exp(-u / tau)
+    amp = coef * math.exp(-(t[start] - f.diagnostics["t_ref"]) / tau)
+    jac = np.column_stack((np.ones_like(u), e, amp * e * u / tau ** 2))
+    return 1.0 / float(np.linalg.inv(jac.T @ jac)[2, 2])
+
+
+def _curve_at(f, x: float) -> tuple[float, float, float]:
+    """A window's fitted sense curve at instant x: value, slope, and the variance of the value
+    from the fit's covariance (delta method, JCGM 100:2008, 5.1.2)."""
+    vals, cov = f.subset(("final_sense", "coef_sense", "tau"))
+    final, coef, tau = vals
+    u = x - f.diagnostics.get("t_ref_by_group", {}).get("sense", f.diagnostics["t_ref"])
+    e = math.exp(-u / tau)
+    grad = np.array([1.0, e, coef * e * u / tau ** 2])
+    return final + coef * e, -coef * e / tau, float(grad @ cov @ grad)
+
+
+def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> tuple[float, float] | None:
+    """Where this window's fitted curve meets the curve of the state before (sense channel),
+    and the standard deviation of that instant: the variance of the gap between the two
+    curves there over the square of its slope (delta method, JCGM 100:2008, 5.1.2; the two
+    fits use different samples and are taken as independent)."""
     from scipy.optimize import brentq
 
     dt = float(t[1] - t[0])
     if prev_f is not None and prev_w.stop >= w.start - int(math.ceil(5 * f["tau"] / dt)):
         def before(x):
-            return float(window_model(prev_f, "sense", np.array([x]))[0])
+            return _curve_at(prev_f, x)
     elif prev_f is None and baseline is not None:
-        level = baseline["final_sense"]
+        level, var = baseline["final_sense"], baseline.stderr("final_sense") ** 2
 
         def before(x):
-            return level
+            return level, 0.0, var
     else:
         return None
 
     def gap(x):
-        return float(window_model(f, "sense", np.array([x]))[0]) - before(x)
+        return _curve_at(f, x)[0] - before(x)[0]
 
     lo, hi = w.t0 - max(5 * dt, 0.3 * f["tau"]), float(t[w.start])
     try:
         if gap(lo) * gap(hi) > 0:
             return None
-        return float(brentq(gap, lo, hi, xtol=1e-6 * dt))
+        x = float(brentq(gap, lo, hi, xtol=1e-6 * dt))
     except (ValueError, RuntimeError):
         return None
+    (_, slope, var), (_, slope_before, var_before) = _curve_at(f, x), before(x)
+    if slope == slope_before:
+        return None
+    return x, math.sqrt(var + var_before) / abs(slope - slope_before)
 
 
 def combine(windows, fits, baseline, has_drive) -> Combined:

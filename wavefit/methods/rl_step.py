@@ -108,7 +108,7 @@ class RLStep(Method):
         if self.option(setup, "skip") == "auto":
             windows, fits, late = settle_starts(t, sense, drive, windows, fits, baseline, noise,
                                                  capture.source, self._fit_window,
-                                                 margin=0.0 if white else 3.0)
+                                                 margin=0.0 if white else 3.0, periodic=not white)
             if late:
                 notes.append(f"{late} edge window(s) start later: their first samples did not follow the "
                              "exponential (finite generator edge or winding-capacitance ringing)")
@@ -140,9 +140,9 @@ class RLStep(Method):
         if drive is None and not white:
             # each window's start is placed from the same correlated noise as its first samples:
             # its uncertainty enters tau's
-            jitters = placement_jitter(fits, dt)
+            jitters = placement_jitter(windows, fits, dt)
             jitter = float(np.median(jitters))
-            factor = placement_factor(t, sense, windows, fits, jitters, noise, capture.source, self._fit_window)
+            factor = placement_factor(t, windows, fits, jitters)
             if factor > 1.0:
                 combined = combined.with_tau_variance_scaled(factor)
                 notes.append(f"edges placed from the sense trace to about {jitter:.1f} samples in correlated "
