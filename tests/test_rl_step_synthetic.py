@@ -190,3 +190,22 @@ def test_edges_located_from_correlated_noise_warn_at_low_snr(snr_db, warned):
     assert any("located only" in w for w in result.warnings) is warned
     placed = [n for n in result.fit["notes"] if "edges placed from the sense trace" in n]
     assert warned or all(float(n.split("enlarged ")[1].split("-fold")[0]) < 1.3 for n in placed)
+
+
+def test_periodic_drive_places_instants_from_all_edges():
+    # a square wave in correlated noise, sense only: the instants found from the trace are fitted
+    # to the drive's period (wavefit/signal/edge_lattice.py), whose value the note gives; the
+    # generator's half period is 20 tau here, so the fitted period must be 40 tau to a small
+    # fraction of a sample (the lattice averages the twelve edges)
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 250 * TAU, delay=5 * TAU)
+    step = RS / (RSRC + DCR + RS)
+    y = ScopeModel(noise_rms=step / 100, correlation_samples=10).apply(s, np.random.default_rng(4))
+    result = wavefit.analyze(frame(t, y), SENSE_ONLY)
+    notes = [n for n in result.fit["notes"] if "fitted to the drive's period" in n]
+    assert len(notes) == 1, result.fit["notes"]
+    period = float(notes[0].split("period (")[1].split(" s)")[0])
+    assert period == pytest.approx(40 * TAU, abs=0.5 * TAU / 40)
+    # white noise keeps the whole-record fit, whose instants are parameters: no lattice there
+    white = wavefit.analyze(frame(t, ScopeModel(noise_rms=step / 100).apply(s, np.random.default_rng(4))),
+                            SENSE_ONLY)
+    assert not any("fitted to the drive's period" in n for n in white.fit["notes"])

@@ -71,24 +71,28 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
     difference, var(τ_late) − var(τ_early) (the Hausman test of nested estimators:
     J. A. Hausman, Econometrica 46 (1978) 1251–1271), the early samples are biased and the
     later start is kept, up to three times.
+
+    With ``periodic`` (asked for in correlated noise) the instants found are fitted to the
+    drive's period (:func:`wavefit.signal.edge_lattice.periodic_instants`) when they fit it.
+    Returns the windows, their fits, how many windows start later, and the fitted period
+    (None when the lattice was not used).
     """
     dt = float(t[1] - t[0])
     windows, fits = list(windows), list(fits)
+    period = None
     if drive is None:
         t0s, deviations = [], []
         for k, (w, f) in enumerate(zip(windows, fits)):
             found = _switch_instant(t, w, f, windows[k - 1] if k else None, fits[k - 1] if k else None, baseline)
-            if found is None:
-                # the step at the switching instant, the fitted coefficient extrapolated back to it
-                step = f["coef_sense"] * math.exp(-(t[w.start] - w.t0) / f["tau"])
-                found = w.t0, placement_deviation(f.noise_sigma["sense"], f["tau"], step)
-            t0s.append(found[0])
-            deviations.append(found[1])
+            t0s.append(w.t0 if found is None else found)
+            # the step at the switching instant, the fitted coefficient extrapolated back to it
+            step = f["coef_sense"] * math.exp(-(t[w.start] - w.t0) / f["tau"])
+            deviations.append(placement_deviation(f.noise_sigma["sense"], f["tau"], step))
         if periodic:
             lattice = periodic_instants(np.array(t0s), np.array(deviations),
                                         np.array([w.edge.direction for w in windows]))
             if lattice is not None:
-                t0s, deviations = list(lattice[0]), list(lattice[1])
+                t0s, deviations, period = list(lattice.instants), list(lattice.deviations), lattice.period
         for k, w in enumerate(windows):
             start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0) + margin * deviations[k]))
             stop = w.stop
@@ -119,7 +123,7 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
         late += moved
         out_w.append(w)
         out_f.append(f)
-    return out_w, out_f, late
+    return out_w, out_f, late, period
 
 
 def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, noise, fit_window
@@ -247,50 +251,32 @@ def _tau_information(t, w, f, start: int) -> float:
     return 1.0 / float(np.linalg.inv(jac.T @ jac)[2, 2])
 
 
-def _curve_at(f, x: float) -> tuple[float, float, float]:
-    """A window's fitted sense curve at instant x: value, slope, and the variance of the value
-    from the fit's covariance (delta method, JCGM 100:2008, 5.1.2)."""
-    vals, cov = f.subset(("final_sense", "coef_sense", "tau"))
-    final, coef, tau = vals
-    u = x - f.diagnostics.get("t_ref_by_group", {}).get("sense", f.diagnostics["t_ref"])
-    e = math.exp(-u / tau)
-    grad = np.array([1.0, e, coef * e * u / tau ** 2])
-    return final + coef * e, -coef * e / tau, float(grad @ cov @ grad)
-
-
-def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> tuple[float, float] | None:
-    """Where this window's fitted curve meets the curve of the state before (sense channel),
-    and the standard deviation of that instant: the variance of the gap between the two
-    curves there over the square of its slope (delta method, JCGM 100:2008, 5.1.2; the two
-    fits use different samples and are taken as independent)."""
+def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> float | None:
+    """Where this window's fitted curve meets the curve of the state before (sense channel)."""
     from scipy.optimize import brentq
 
     dt = float(t[1] - t[0])
     if prev_f is not None and prev_w.stop >= w.start - int(math.ceil(5 * f["tau"] / dt)):
         def before(x):
-            return _curve_at(prev_f, x)
+            return float(window_model(prev_f, "sense", np.array([x]))[0])
     elif prev_f is None and baseline is not None:
-        level, var = baseline["final_sense"], baseline.stderr("final_sense") ** 2
+        level = baseline["final_sense"]
 
         def before(x):
-            return level, 0.0, var
+            return level
     else:
         return None
 
     def gap(x):
-        return _curve_at(f, x)[0] - before(x)[0]
+        return float(window_model(f, "sense", np.array([x]))[0]) - before(x)
 
     lo, hi = w.t0 - max(5 * dt, 0.3 * f["tau"]), float(t[w.start])
     try:
         if gap(lo) * gap(hi) > 0:
             return None
-        x = float(brentq(gap, lo, hi, xtol=1e-6 * dt))
+        return float(brentq(gap, lo, hi, xtol=1e-6 * dt))
     except (ValueError, RuntimeError):
         return None
-    (_, slope, var), (_, slope_before, var_before) = _curve_at(f, x), before(x)
-    if slope == slope_before:
-        return None
-    return x, math.sqrt(var + var_before) / abs(slope - slope_before)
 
 
 def combine(windows, fits, baseline, has_drive) -> Combined:

@@ -106,9 +106,12 @@ class RLStep(Method):
         # per-window BIC choices would call white noise coloured in one of a dozen windows often
         white = noise == "white" or (drive is None and fit_ar([f.residuals for f in fits]).order == 0)
         if self.option(setup, "skip") == "auto":
-            windows, fits, late = settle_starts(t, sense, drive, windows, fits, baseline, noise,
+            windows, fits, late, period = settle_starts(t, sense, drive, windows, fits, baseline, noise,
                                                  capture.source, self._fit_window,
                                                  margin=0.0 if white else 3.0, periodic=not white)
+            if period is not None:
+                notes.append(f"switching instants fitted to the drive's period ({period:.6g} s) over "
+                             f"{len(windows)} edges: each is placed from all of them")
             if late:
                 notes.append(f"{late} edge window(s) start later: their first samples did not follow the "
                              "exponential (finite generator edge or winding-capacitance ringing)")

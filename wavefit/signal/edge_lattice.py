@@ -18,6 +18,7 @@ instants stand.
 from __future__ import annotations
 
 import math
+from typing import NamedTuple
 
 import numpy as np
 
@@ -26,8 +27,13 @@ import numpy as np
 MAX_BIRGE = 3.0
 
 
-def periodic_instants(t0s: np.ndarray, deviations: np.ndarray, directions: np.ndarray
-                      ) -> tuple[np.ndarray, np.ndarray] | None:
+class Lattice(NamedTuple):
+    instants: np.ndarray      # s, predicted by the lattice
+    deviations: np.ndarray    # s, their standard deviations
+    period: float             # s
+
+
+def periodic_instants(t0s: np.ndarray, deviations: np.ndarray, directions: np.ndarray) -> Lattice | None:
     """Instants and their standard deviations predicted by the fitted lattice, or None.
 
     ``t0s`` (s) in time order with standard deviations ``deviations`` (s) and edge
@@ -58,4 +64,4 @@ def periodic_instants(t0s: np.ndarray, deviations: np.ndarray, directions: np.nd
     if birge > MAX_BIRGE:
         return None
     cov = np.linalg.inv((x * w[:, None] ** 2).T @ x) * max(birge, 1.0) ** 2
-    return fitted, np.sqrt(np.einsum("ij,jk,ik->i", x, cov, x))
+    return Lattice(fitted, np.sqrt(np.einsum("ij,jk,ik->i", x, cov, x)), float(coef[-1]))
