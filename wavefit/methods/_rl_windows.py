@@ -48,8 +48,27 @@ class Combined:
         return dataclasses.replace(self, covariance=self.covariance * np.outer(scale, scale))
 
 
-def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window, margin: float = 0.0,
-                  periodic: bool = False):
+#: Least start margin (samples) after an instant placed from correlated noise (see start_margin)
+MARGIN_SAMPLES = 5.0
+
+
+def start_margin(deviation: float, dt: float) -> float:
+    """Time (s) from an instant placed from the sense trace in correlated noise to its window's start.
+
+    max(u_s, min(5 samples, 15·u_s)) for the instant's standard deviation u_s: one deviation
+    at low SNR, where a later start only costs information and adds the small-sample bias of
+    a nonlinear fit whose amplitude shrinks; at least five samples from about u_s = 1/3
+    sample, because the noise that placed the instant stays correlated with the first samples
+    after it for several samples; and falling to nothing as u_s does (an exactly placed edge
+    needs no margin). The constants are measured, not derived (docs/estimator-quality.md,
+    "Where the window starts": one step at 20–30 dB in four correlated noises, bias of tau
+    +0.11…+0.16 → −0.03…+0.11 standard errors with efficiency up to 1.6 times higher, against
+    the three deviations used before).
+    """
+    return max(deviation, min(MARGIN_SAMPLES * dt, 15.0 * deviation))
+
+
+def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window, correlated: bool = False):
     """Start each window as early as the data allow, without admitting samples that do not
     follow the exponential, and end it before the next switching instant.
 
@@ -57,13 +76,13 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
     the fitted exponential leaves the curve of the state before (the previous window's
     fit, or the pre-edge baseline), and windows are cut again from these instants; each
     window then ends three standard deviations of the next instant, σ·tau/|step|, before
-    it (the samples there only repeat the settled level), and starts ``margin`` standard
-    deviations of its own instant after it. In correlated noise the caller asks for a
-    margin of three: an instant placed early by noise would otherwise admit samples from
-    before the edge, and the noise that placed it early lifts them onto the exponential,
-    which biased tau upward and made it scatter beyond its stated uncertainty (measured on
-    one step in smooth band-limited noise at 30 dB: bias +0.24 → +0.04 standard errors,
-    coverage 88 % → 95 %; the margin of three is the one used for the window's end). The information on tau of an
+    it (the samples there only repeat the settled level). In ``correlated`` noise each
+    window also starts :func:`start_margin` after its instant: an instant placed early by
+    noise would otherwise admit samples from before the edge, and the noise that placed it
+    lifts the first samples onto the exponential, which biased tau upward and made it
+    scatter beyond its stated uncertainty; and with four or more edges the instants are
+    first fitted to the drive's period (:func:`wavefit.signal.edge_lattice.periodic_instants`)
+    when they fit it. The information on tau of an
     exponential window falls as exp(−2·s/tau) with the time s left out at its start (the
     record from s on is the same model with a smaller amplitude), so each early sample
     matters. Then the window is refitted with its start moved later by
@@ -72,8 +91,6 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
     J. A. Hausman, Econometrica 46 (1978) 1251–1271), the early samples are biased and the
     later start is kept, up to three times.
 
-    With ``periodic`` (asked for in correlated noise) the instants found are fitted to the
-    drive's period (:func:`wavefit.signal.edge_lattice.periodic_instants`) when they fit it.
     Returns the windows, their fits, how many windows start later, and the fitted period
     (None when the lattice was not used).
     """
@@ -88,13 +105,14 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
             # the step at the switching instant, the fitted coefficient extrapolated back to it
             step = f["coef_sense"] * math.exp(-(t[w.start] - w.t0) / f["tau"])
             deviations.append(placement_deviation(f.noise_sigma["sense"], f["tau"], step))
-        if periodic:
+        if correlated:
             lattice = periodic_instants(np.array(t0s), np.array(deviations),
                                         np.array([w.edge.direction for w in windows]))
             if lattice is not None:
                 t0s, deviations, period = list(lattice.instants), list(lattice.deviations), lattice.period
         for k, w in enumerate(windows):
-            start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0) + margin * deviations[k]))
+            margin = start_margin(deviations[k], dt) if correlated else 0.0
+            start = int(np.searchsorted(t, t0s[k] + (t[w.start] - w.t0) + margin))
             stop = w.stop
             if k + 1 < len(windows) and windows[k + 1].start - w.stop <= max(10, int(0.5 * fits[k]["tau"] / dt)):
                 # the next window follows the next edge (no edge was left out in between): end three

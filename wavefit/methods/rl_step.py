@@ -39,7 +39,7 @@ from ..signal.edges import find_edges, jump_instant
 from ..uncertainty import InputSet, propagate
 from . import register
 from ._rl_windows import (Window, combine, placement_factor, placement_jitter, pooled_windows, settle_starts,
-                          whole_record)
+                          start_margin, whole_record)
 from .base import Method, PartSpec
 
 #: Source resistance assumed only to size the skip after a winding-capacitance spike
@@ -108,7 +108,7 @@ class RLStep(Method):
         if self.option(setup, "skip") == "auto":
             windows, fits, late, period = settle_starts(t, sense, drive, windows, fits, baseline, noise,
                                                  capture.source, self._fit_window,
-                                                 margin=0.0 if white else 3.0, periodic=not white)
+                                                 correlated=not white)
             if period is not None:
                 notes.append(f"switching instants fitted to the drive's period ({period:.6g} s) over "
                              f"{len(windows)} edges: each is placed from all of them")
@@ -154,7 +154,7 @@ class RLStep(Method):
             if jitter > 2.0:
                 warnings.append(f"correlated noise and a low signal-to-noise ratio: the edges are located only "
                                 f"to about {jitter:.1f} samples from the sense trace, so each window starts "
-                                f"{3 * jitter:.0f} samples after its edge and tau is less precise; record the "
+                                f"{start_margin(jitter * dt, dt) / dt:.0f} samples after its edge and tau is less precise; record the "
                                 "drive node too for a tighter result")
 
         inputs = InputSet()
