@@ -131,7 +131,7 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
             start = w.start + step
             if w.stop - start < max(16, 4 * step):
                 break
-            w2 = Window(w.edge, w.t0, start, w.stop)
+            w2 = dataclasses.replace(w, start=start)  # keeps the instant and its deviation
             f2 = fit_window(t, sense, drive, w2, noise, source)
             var_d = f2.stderr("tau") ** 2 - f.stderr("tau") ** 2
             if var_d > 0 and (f2["tau"] - f["tau"]) ** 2 / var_d > 9.0:

@@ -152,9 +152,10 @@ class RLStep(Method):
                              f"noise: tau's variance enlarged {factor:.2f}-fold, to that of windows starting "
                              "that much later")
             if jitter > 2.0:
+                margin = start_margin(jitter * dt, dt) / dt
                 warnings.append(f"correlated noise and a low signal-to-noise ratio: the edges are located only "
                                 f"to about {jitter:.1f} samples from the sense trace, so each window starts "
-                                f"{start_margin(jitter * dt, dt) / dt:.0f} samples after its edge and tau is less precise; record the "
+                                f"{margin:.0f} samples after its edge and tau is less precise; record the "
                                 "drive node too for a tighter result")
 
         inputs = InputSet()

@@ -43,10 +43,8 @@ def periodic_instants(t0s: np.ndarray, deviations: np.ndarray, directions: np.nd
     kinds = [d for d in (1, -1) if np.any(directions == d)]
     if len(t0s) < len(kinds) + 2 or not np.all(deviations > 0):
         return None
-    gaps = [np.diff(t0s[directions == d]) for d in kinds]
-    gaps = np.concatenate([g for g in gaps if g.size])
-    if gaps.size == 0:
-        return None
+    # the guard above leaves at least two instants of one direction, so there is a gap
+    gaps = np.concatenate([np.diff(t0s[directions == d]) for d in kinds])
     # the shortest gap is about one period; a missing edge makes a gap of several
     counts = np.round(gaps / np.min(gaps))
     period = float(gaps.sum() / counts.sum())
