@@ -18,13 +18,19 @@ from dataclasses import dataclass
 from typing import Callable, Sequence
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize
 
 from .noise_model import ARNoise, fit_ar, white
+from .portmanteau import ljung_box, structured
 from .result import FitResult
 from .sandwich import sandwich_covariance
 
 Vector = np.ndarray
+
+#: Noise level used for a group whose residuals are exactly zero (a settled level that reads
+#: one converter code): small, yet large enough that whitened products of a million samples
+#: stay finite (1e-300 overflowed them).
+ZERO_SCATTER = 1e-100
 
 
 @dataclass(frozen=True)
@@ -149,7 +155,7 @@ def _scatter_models(r, blocks, groups, p, m) -> dict[str, ARNoise]:
         share = seg.size / m
         dof = max(seg.size - p * share, 1.0)
         s = math.sqrt(float(seg @ seg) / dof)
-        out[g] = white(s if s > 0 else 1e-300)
+        out[g] = white(s if s > 0 else ZERO_SCATTER)
     return out
 
 
@@ -159,7 +165,7 @@ def _ar_models(r, blocks, groups, max_order) -> dict[str, ARNoise]:
         segs = [r[b.start:b.stop] for b in blocks if b.group == g]
         mod = fit_ar(segs, max_order)
         if mod.sigma <= 0:
-            mod = white(1e-300)
+            mod = white(ZERO_SCATTER)
         out[g] = mod
     return out
 
@@ -174,16 +180,8 @@ def _inverse_normal_matrix(j: np.ndarray) -> np.ndarray:
 
 def _diagnose(e: np.ndarray, x: Vector, bounds, names, coloured: bool = False) -> tuple[dict, list[str]]:
     warns: list[str] = []
-    n = e.size
-    h = int(min(20, max(1, n // 5)))
-    ec = e - e.mean()
-    denom = float(ec @ ec)
-    rho = np.array([float(ec[:-k] @ ec[k:]) / denom for k in range(1, h + 1)]) if denom > 0 else np.zeros(h)
-    q = n * (n + 2) * float(np.sum(rho ** 2 / (n - np.arange(1, h + 1))))
-    p_value = float(stats.chi2.sf(q, h))
-    # both significant and large enough to matter: weak structure from coarse quantisation alone
-    # (noise below one code) stays below 0.1 (common practice for a portmanteau screen)
-    if p_value < 1e-4 and float(np.max(np.abs(rho))) > 0.1:
+    p_value, rho = ljung_box(e)
+    if structured(p_value, rho):
         if coloured:
             # the residuals are those of the fitted AR noise model: either the model misses part
             # of the waveform or the noise is correlated in a way the AR model does not capture
