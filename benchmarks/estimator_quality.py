@@ -12,7 +12,11 @@ study prints one table row per estimated quantity:
   Butterworth low-pass as in ``wavefit.synth``, or "first-order", a single-pole
   RC front end, both with about 10 samples of correlation), mapped to the quantity by the
   delta method. An efficiency near 1 means no unbiased estimator could do
-  better with this record.
+  better with this record. For "8-bit" records the model includes the converter: each
+  sample is one of the codes, with probability P_k = Φ(b_k) − Φ(a_k) for the code's
+  interval [a_k, b_k] in units of σ, so the information is Σ_i Σ_k (∂P_k/∂θ)(∂P_k/∂θ)ᵀ/P_k
+  with σ a nuisance parameter (the Fisher information of a multinomial observation;
+  Kay 1993, §3.9, applied to the code probabilities).
 - bias in units of the estimator's standard error, (mean − truth)/sd, with sd the
   observed standard deviation of one estimate; its own sampling error is about
   ±1/√N (printed as ``±``), so N = 400 resolves the 0.1 target to ±0.05.
@@ -39,6 +43,7 @@ import wavefit  # first: it sets one BLAS thread, which takes effect only before
 import numpy as np
 import pandas as pd
 from scipy.signal import lfilter
+from scipy.stats import norm
 from wavefit.fit.fisher import crlb, numerical_jacobian
 from wavefit.synth.lc import Tank, ringdown
 from wavefit.synth.rl import rl_square_wave
@@ -192,17 +197,38 @@ def lc_case(record: str):
 CASES: dict[str, Callable] = {"rl-step": rl_case, "lc-ring": lc_case}
 
 
-def bound_for(quantity_spec, kind: str, sigma: float) -> float:
-    """Cramér–Rao bound of one quantity (delta method on the parameter bound)."""
+def bound_for(quantity_spec, kind: str, sigma: float, grid: tuple[float, float] | None = None) -> float:
+    """Cramér–Rao bound of one quantity (delta method on the parameter bound); ``grid`` =
+    (lowest code, code step) of an 8-bit record."""
     _, signal, theta, fn = quantity_spec
     if fn is None:
         return math.nan
     jac = numerical_jacobian(signal, theta, 1e-7)
-    cov = (crlb(jac, sigma=sigma) if kind in ("white", "8-bit")
-           else crlb(jac, autocovariance=noise_autocovariance(kind, sigma, 400)))
+    if kind == "8-bit":
+        cov = quantised_bound(jac, signal(theta), sigma, *grid)
+    else:
+        cov = (crlb(jac, sigma=sigma) if kind == "white"
+               else crlb(jac, autocovariance=noise_autocovariance(kind, sigma, 400)))
     grad = np.array([(fn(theta + h) - fn(theta - h)) / (2 * h[k])
                      for k, h in enumerate(np.diag(1e-7 * np.maximum(np.abs(theta), 1e-12)))])
     return float(grad @ cov @ grad)
+
+
+def quantised_bound(jac: np.ndarray, mean: np.ndarray, sigma: float, lowest: float, lsb: float) -> np.ndarray:
+    """I(θ)⁻¹ for Gaussian noise σ before an ideal quantiser of step ``lsb``, σ unknown."""
+    centre = np.round((mean - lowest) / lsb)
+    reach = int(math.ceil(8 * sigma / lsb)) + 1
+    info = np.zeros((jac.shape[1] + 1, jac.shape[1] + 1))  # last row and column: σ
+    for k in range(-reach, reach + 1):
+        lo = (lowest + (centre + k - 0.5) * lsb - mean) / sigma
+        hi = lo + lsb / sigma
+        p = norm.cdf(hi) - norm.cdf(lo)
+        dp_ds = (norm.pdf(lo) - norm.pdf(hi)) / sigma          # ∂P/∂(signal)
+        dp_dsigma = (lo * norm.pdf(lo) - hi * norm.pdf(hi)) / sigma
+        weight = np.divide(1.0, p, out=np.zeros_like(p), where=p > 1e-300)
+        grad = np.column_stack([jac * dp_ds[:, None], dp_dsigma])
+        info += grad.T @ (grad * weight[:, None])
+    return np.linalg.inv(info)[:-1, :-1]
 
 
 def run_scenario(sc: Scenario, trials: int, seed: int | None = None) -> list[Row]:
@@ -213,6 +239,10 @@ def run_scenario(sc: Scenario, trials: int, seed: int | None = None) -> list[Row
     rng = np.random.default_rng(zlib.crc32(repr(sc).encode()) if seed is None else seed)
     scope = scope_for(sc.noise, sigma, clean)
     role = "sense" if sc.method == "rl-step" else "tank"
+    grid = None
+    if sc.noise == "8-bit":
+        lo, hi = scope.full_scale
+        grid = (lo, (hi - lo) / (2 ** scope.bits - 1))
     est = {q: [] for q in quantities}
     cover = {q: 0 for q in quantities}
     done, t0 = 0, time.perf_counter()
@@ -235,7 +265,7 @@ def run_scenario(sc: Scenario, trials: int, seed: int | None = None) -> list[Row
             rows.append(Row(sc, q, math.nan, math.nan, math.nan, 1e3 * elapsed, done))
             continue
         var = float(np.var(values, ddof=1))
-        bound = bound_for(spec, "white" if sc.noise == "8-bit" else sc.noise, sigma)
+        bound = bound_for(spec, sc.noise, sigma, grid)
         bias = (float(values.mean()) - spec[0]) / math.sqrt(var)
         rows.append(Row(sc, q, bound / var, bias, cover[q] / values.size, 1e3 * elapsed, done))
     return rows
@@ -270,10 +300,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--quick", action="store_true", help="one SNR, short records only")
     parser.add_argument("--method", choices=sorted(CASES), help="only this method")
     parser.add_argument("--noise", choices=NOISES, help="only this noise")
+    parser.add_argument("--record", choices=("short", "long"), help="only this record length")
     args = parser.parse_args(argv)
     rows = []
     for sc in scenarios(args.quick):
-        if (args.method and sc.method != args.method) or (args.noise and sc.noise != args.noise):
+        if ((args.method and sc.method != args.method) or (args.noise and sc.noise != args.noise)
+                or (args.record and sc.record != args.record)):
             continue
         rows += run_scenario(sc, args.trials)
         print("\n".join(format_table(rows[-len(CASES[sc.method]("short")[4]):]).splitlines()[2:]),

@@ -217,7 +217,7 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     blocks = [Block(0, n, "tank")]
     fit = fit_least_squares(fun, jac, x0, NAMES, blocks, model="damped sinusoid",
                             noise=noise, bounds=(lower, upper), x_scale=_x_scale(x0))
-    fit = include_quantisation(fit, y, model(fit.values, tau), jacobian(fit.values, tau), blocks)
+    fit = include_quantisation(fit, y, lambda x: model(x, tau), lambda x: jacobian(x, tau), blocks)
     scale = np.array([1.0, 1.0, 1.0, 1.0 / sample_interval, 1.0 / sample_interval])
     physical = dataclasses.replace(fit, values=fit.values * scale,
                                    covariance=fit.covariance * np.outer(scale, scale))

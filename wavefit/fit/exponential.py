@@ -146,7 +146,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     lower[0] = 1e-6
     fit = fit_least_squares(fun, jac, x0, names, blocks, model=model, noise=noise,
                             bounds=(lower, np.full(n_par, np.inf)))
-    fit = include_quantisation(fit, y, model_values(fit.values), -jac(fit.values), blocks)
+    fit = include_quantisation(fit, y, model_values, lambda x: -jac(x), blocks)
     covariance = fit.covariance
     scale = np.ones(n_par)
     scale[0] = tau_start

@@ -12,12 +12,22 @@ passing the difference through the fit's linear influence, δθ = J⁺·(Q(m) �
 as an rms over eight positions of the grid between codes (where the true
 waveform sits between codes is not known); that shift is added to the
 covariance as a fully correlated component.
+
+When every block of a fit is resolution-limited on one code grid and the noise is not far
+below a code (σ ≥ CODE_FIT_FLOOR·q) and independent from sample to sample, the fit is instead carried to the maximum of the
+likelihood of the codes themselves (:mod:`wavefit.fit.code_likelihood`), which removes
+that error rather than widening the interval for it.
 """
 from __future__ import annotations
 
+import math
+from typing import Callable
+
 import numpy as np
 
-from ..signal.codes import code_step
+from ..signal.codes import code_grid, code_step
+from .code_likelihood import fit_codes, generalised_residuals
+from .portmanteau import ljung_box, structured
 
 #: Below this residual rms, in codes, the error is treated as not dithered (residual
 #: σ² = σ_noise² + q²/12, so 0.5 q means σ_noise ≈ 0.4 q; common practice after Widrow).
@@ -25,10 +35,12 @@ DITHER_LIMIT = 0.5
 
 
 def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: np.ndarray,
-                       residual_rms: float) -> tuple[np.ndarray, float] | None:
+                       residual_rms: float, step: float | None = None) -> tuple[np.ndarray, float] | None:
     """Parameter shift δθ caused by undithered quantisation, and the noise in codes; or ``None``
-    when the record is not on a code grid or its noise dithers it."""
-    step = code_step(y)
+    when the record is not on a code grid or its noise dithers it. ``step`` is the code step
+    when known from elsewhere in the record (a settled level may read one or two codes only,
+    too few to find the grid from)."""
+    step = code_step(y) or step
     if step is None or residual_rms >= DITHER_LIMIT * step:
         return None
     origin = float(np.min(y))
@@ -42,6 +54,15 @@ def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: np.ndarray,
     return np.sqrt(np.mean(shifts ** 2, axis=0)) * np.sign(shifts[0] + 1e-300), residual_rms / step
 
 
+#: Below this noise, in codes, the code likelihood is not used: its maximum is then set by a few
+#: samples at code transitions and the expected information is a poor guide to the scatter
+#: (measured: see docs/estimator-quality.md, "Records finer than the noise").
+CODE_FIT_FLOOR = 0.02
+
+#: A code fit whose variance exceeds the widened least-squares fit's by this factor learned
+#: little from the codes (see :func:`include_quantisation`).
+UNINFORMED = 10.0
+
 #: How the warning begins, for callers that report it once per record.
 RECORD_WIDE = "the record is resolution-limited"
 
@@ -51,26 +72,105 @@ WARNING = (f"{RECORD_WIDE} (its noise is below half a converter code): quantisat
            "more vertical sensitivity or averaging would help")
 
 
-def include_quantisation(fit, y: np.ndarray, model: np.ndarray, jac_model: np.ndarray, blocks):
-    """Return ``fit`` with the quantisation shift of every block added to its covariance.
+CODE_FIT_WARNING = (f"{RECORD_WIDE} (its noise is below half a converter code): it was fitted by the "
+                    "likelihood of its codes (Gaussian noise before an ideal converter), which removes the "
+                    "bias quantisation gives least squares; more vertical sensitivity would help")
 
-    The shifts of the blocks are added linearly (a deterministic error need not
+
+def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
+                         jac_model: Callable[[np.ndarray], np.ndarray], blocks,
+                         steps: dict[str, float | None] | None = None):
+    """Return ``fit`` corrected for undithered quantisation, or unchanged when its noise dithers it.
+
+    ``model(θ)`` and ``jac_model(θ)`` are the fitted waveform and its derivative in the
+    fit's parameters; ``steps`` the code step of each noise group's channel when known
+    from the whole record. When all blocks are resolution-limited on one grid, the fit is
+    moved to the maximum of the code likelihood (:func:`fit_on_codes`); otherwise the
+    shifts of the blocks are added linearly (a deterministic error need not
     average out between windows or channels) and enter as one fully correlated
     component, outer(δθ, δθ), with a warning.
     """
     import dataclasses
 
+    fitted, jac = model(fit.values), jac_model(fit.values)
     total = np.zeros(len(fit.names))
     worst = None
+    limited = 0
+    steps = steps or {}
     for b in blocks:
         rows = slice(b.start, b.stop)
-        found = quantisation_shift(y[rows], model[rows], jac_model[rows], fit.noise_sigma[b.group])
+        found = quantisation_shift(y[rows], fitted[rows], jac[rows], fit.noise_sigma[b.group], steps.get(b.group))
         if found is not None:
             total += found[0]
             worst = found[1] if worst is None else min(worst, found[1])
+            limited += 1
     if worst is None:
         return fit
     diagnostics = dict(fit.diagnostics, quantisation_shift=dict(zip(fit.names, total.tolist())),
                        residual_rms_in_codes=worst)
-    return dataclasses.replace(fit, covariance=fit.covariance + np.outer(total, total),
-                               diagnostics=diagnostics, warnings=(*fit.warnings, WARNING))
+    widened = dataclasses.replace(fit, covariance=fit.covariance + np.outer(total, total),
+                                  diagnostics=diagnostics, warnings=(*fit.warnings, WARNING))
+    if limited == len(blocks):
+        refined = fit_on_codes(fit, y, model, jac_model, blocks, steps)
+        # a level that reads one code with few excursions says little to the code likelihood
+        # (its maximum is flat across the code and σ is barely determined): keep the widened fit
+        # when the code fit's variance is far above it (quantisation costs a factor 1.3–3 where
+        # the codes do inform the fit; such a level reads 10⁸)
+        if refined is not None and np.all(np.diag(refined.covariance) <= UNINFORMED * np.diag(widened.covariance)):
+            return refined
+    return widened
+
+
+def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
+                 jac_model: Callable[[np.ndarray], np.ndarray], blocks, steps: dict[str, float | None]):
+    """``fit`` moved to the maximum of the code likelihood, with its covariance; or ``None``
+    when the blocks do not share one code grid, the noise is below CODE_FIT_FLOOR codes,
+    or the maximum is not found."""
+    import dataclasses
+
+    grid = _common_grid([y[b.start:b.stop] for b in blocks], [steps.get(b.group) for b in blocks])
+    if grid is None:
+        return None
+    origin, step = grid
+    names = sorted({b.group for b in blocks})
+    groups = np.empty(y.size, dtype=int)
+    for b in blocks:
+        groups[b.start:b.stop] = names.index(b.group)
+    rows = np.concatenate([np.arange(b.start, b.stop) for b in blocks])
+    # residual variance ≈ σ² + q²/12, which undershoots below half a code; start no lower than
+    # a quarter code, where every sample still informs the fit (scoring moves down from there)
+    start = np.array([math.sqrt(max(fit.noise_sigma[g] ** 2 - step ** 2 / 12.0, (0.25 * step) ** 2))
+                      for g in names])
+    codes = origin + step * np.round((y[rows] - origin) / step)  # printed values snapped to the grid
+    found = fit_codes(codes, step, lambda x: model(x)[rows], lambda x: jac_model(x)[rows], fit.values,
+                      groups[rows], start)
+    if not found.converged or np.any(found.sigma < CODE_FIT_FLOOR * step):
+        return None
+    # the likelihood takes the noise before the converter as independent; correlated noise
+    # (a band-limited front end) would make its information overstate what the record holds.
+    # (The least-squares fit's own noise model cannot tell: the quantisation error of a slow
+    # waveform is correlated even when the noise is not.)
+    noise = generalised_residuals(codes, model(found.values)[rows], found.sigma[groups[rows]], step)
+    ends = np.cumsum([b.stop - b.start for b in blocks])
+    for part in np.split(noise, ends[:-1]):
+        if part.size > 10 and structured(*ljung_box(part)):
+            return None
+    residuals = y - model(found.values)
+    diagnostics = dict(fit.diagnostics, quantisation=dict(
+        estimator="code likelihood", code_step=step, iterations=found.iterations,
+        noise_sigma_in_codes=dict(zip(names, (found.sigma / step).tolist())),
+        least_squares_values=dict(zip(fit.names, fit.values.tolist()))))
+    return dataclasses.replace(fit, values=found.values, covariance=found.covariance, residuals=residuals,
+                               diagnostics=diagnostics, warnings=(*fit.warnings, CODE_FIT_WARNING))
+
+
+def _common_grid(parts: list[np.ndarray], known: list[float | None]) -> tuple[float, float] | None:
+    """(origin, step) of the code grid all ``parts`` share (fitted to all their levels, with
+    the ``known`` steps as the guess for parts too flat to show one), or None."""
+    guesses = [code_step(v) or k for v, k in zip(parts, known)]
+    if any(g is None for g in guesses):
+        return None
+    grid = code_grid(np.concatenate(parts), guesses[0])
+    if grid is None or max(abs(g / grid[1] - 1) for g in guesses) > 0.05:
+        return None
+    return grid

@@ -119,7 +119,7 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     blocks = [Block(0, t.size, "sense")]
     fit = fit_least_squares(fun, jac, x0, names, blocks, model="square-wave relaxation",
                             noise=noise, bounds=(lower, upper))
-    fit = include_quantisation(fit, y, y - fun(fit.values), -jac(fit.values), blocks)
+    fit = include_quantisation(fit, y, lambda x: y - fun(x), lambda x: -jac(x), blocks)
     factor = np.ones(x0.size)
     factor[0] = scale
     factor[4::2] = scale

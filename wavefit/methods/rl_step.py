@@ -29,12 +29,13 @@ from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
 from ..fit.noise_model import fit_ar
-from ..fit.quantisation import RECORD_WIDE
+from ..fit.quantisation import RECORD_WIDE, include_quantisation
 from ..fit.result import FitResult
 from ..io.capture import Capture
 from ..results import AnalysisResult, TracePlot
 from ..setup import Setup
 from ..signal.clipping import extremes, model_exceeds_record
+from ..signal.codes import code_step
 from ..signal.edges import find_edges, jump_instant
 from ..uncertainty import InputSet, propagate
 from . import register
@@ -246,8 +247,11 @@ class RLStep(Method):
             return j
 
         blocks = [Block(c * n, (c + 1) * n, g) for c, g in enumerate(groups)]
-        return fit_least_squares(fun, jac, [float(np.mean(v)) for v in ys], [f"final_{g}" for g in groups],
-                                 blocks, model="pre-edge level", noise=noise)
+        fit = fit_least_squares(fun, jac, [float(np.mean(v)) for v in ys], [f"final_{g}" for g in groups],
+                                blocks, model="pre-edge level", noise=noise)
+        # a settled level may read one or two codes only: its grid is the whole channel's
+        steps = {g: code_step(channel) for g, channel in zip(groups, (sense, drive))}
+        return include_quantisation(fit, y, lambda x: np.repeat(x, n), lambda x: -jac(x), blocks, steps)
 
     # -- diagnostics ------------------------------------------------------------------------
 
