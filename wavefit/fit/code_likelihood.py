@@ -75,12 +75,20 @@ def scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float) 
     return (pa - pb) / sigma, (a * pa - b * pb) / sigma
 
 
-def generalised_residuals(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float) -> np.ndarray:
-    """E[ε_i | code_i] / σ: each sample's noise as far as its code tells it (the generalised
-    residual of a censored model: C. Gouriéroux, A. Monfort, E. Renault and A. Trognon,
-    J. Econometrics 34 (1987) 5–32, cited from memory). Independent when the noise before
-    the converter is, so their autocorrelation tests that assumption."""
-    return sigma * scores(codes, mean, sigma, step)[0]
+def standardised_scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float,
+                        origin: float) -> tuple[np.ndarray, np.ndarray]:
+    """Each sample's score ∂ℓ_i/∂s_i divided by its standard deviation √I_i, and whether the
+    sample informs the fit at all (I_i·σ² above 1e-6; deep inside a code it does not).
+
+    The score is the generalised residual of the censored model divided by σ²
+    (E[ε_i | code_i]/σ²: C. Gouriéroux, A. Monfort, E. Renault and A. Trognon,
+    J. Econometrics 34 (1987) 5–32, cited from memory); with independent noise before the
+    converter the scores are independent, so their autocorrelation tests that assumption.
+    """
+    score = scores(codes, mean, sigma, step)[0]
+    info = expected_information(mean, sigma, step, origin)[0]
+    informative = info * sigma ** 2 > 1e-6
+    return np.where(informative, score / np.sqrt(np.where(informative, info, 1.0)), 0.0), informative
 
 
 def expected_information(mean: np.ndarray, sigma: np.ndarray, step: float, origin: float

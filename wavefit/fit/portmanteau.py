@@ -29,3 +29,26 @@ def ljung_box(e: np.ndarray) -> tuple[float, np.ndarray]:
 def structured(p_value: float, rho: np.ndarray) -> bool:
     """Both significant and large enough to matter."""
     return p_value < SIGNIFICANCE and float(np.max(np.abs(rho), initial=0.0)) > NOTABLE_CORRELATION
+
+
+def standardised_portmanteau(z: np.ndarray, informative: np.ndarray) -> tuple[float, np.ndarray]:
+    """Box–Pierce test of independence for standardised scores that are informative only in
+    places (h = 20 lags at most): the p-value and each lag's correlation.
+
+    ``z`` has mean 0 and variance 1 under independence where ``informative`` and is 0
+    elsewhere (the score of a sample deep inside a converter code carries nothing). Then
+    Σ z_i z_{i+k} has variance n_k, the number of lag-k pairs both informative, and
+    Q = Σ_k (Σ z_i z_{i+k})²/n_k is χ² with one degree of freedom per lag (the Box–Pierce
+    form, G. E. P. Box and D. A. Pierce, J. Am. Stat. Assoc. 65 (1970) 1509–1526, with the
+    pair count in place of n, because the scores' variance is concentrated where the
+    waveform crosses a code boundary and the usual normalisation would overstate Q there).
+    """
+    z = np.where(informative, z, 0.0)
+    m = informative.astype(float)
+    lags = [k for k in range(1, min(20, max(1, z.size // 5)) + 1) if float(m[:-k] @ m[k:]) >= 10]
+    if not lags:
+        return 1.0, np.zeros(0)
+    pairs = np.array([float(m[:-k] @ m[k:]) for k in lags])
+    sums = np.array([float(z[:-k] @ z[k:]) for k in lags])
+    q = float(np.sum(sums ** 2 / pairs))
+    return float(stats.chi2.sf(q, len(lags))), sums / pairs

@@ -26,8 +26,8 @@ from typing import Callable
 import numpy as np
 
 from ..signal.codes import code_grid, code_step
-from .code_likelihood import fit_codes, generalised_residuals
-from .portmanteau import ljung_box, structured
+from .code_likelihood import fit_codes, standardised_scores
+from .portmanteau import standardised_portmanteau, structured
 
 #: Below this residual rms, in codes, the error is treated as not dithered (residual
 #: σ² = σ_noise² + q²/12, so 0.5 q means σ_noise ≈ 0.4 q; common practice after Widrow).
@@ -149,11 +149,13 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
     # the likelihood takes the noise before the converter as independent; correlated noise
     # (a band-limited front end) would make its information overstate what the record holds.
     # (The least-squares fit's own noise model cannot tell: the quantisation error of a slow
-    # waveform is correlated even when the noise is not.)
-    noise = generalised_residuals(codes, model(found.values)[rows], found.sigma[groups[rows]], step)
-    ends = np.cumsum([b.stop - b.start for b in blocks])
-    for part in np.split(noise, ends[:-1]):
-        if part.size > 10 and structured(*ljung_box(part)):
+    # waveform is correlated even when the noise is not.) The samples' standardised scores
+    # are independent when the noise is.
+    z, informative = standardised_scores(codes, model(found.values)[rows], found.sigma[groups[rows]], step,
+                                         origin)
+    ends = np.cumsum([b.stop - b.start for b in blocks])[:-1]
+    for part, used in zip(np.split(z, ends), np.split(informative, ends)):
+        if structured(*standardised_portmanteau(part, used)):
             return None
     residuals = y - model(found.values)
     diagnostics = dict(fit.diagnostics, quantisation=dict(
