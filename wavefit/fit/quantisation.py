@@ -57,7 +57,7 @@ def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: np.ndarray,
 #: Below this noise, in codes, the code likelihood is not used: its maximum is then set by a few
 #: samples at code transitions and the expected information is a poor guide to the scatter
 #: (measured: see docs/estimator-quality.md, "Records finer than the noise").
-CODE_FIT_FLOOR = 0.02
+CODE_FIT_FLOOR = 0.01
 
 #: A code fit whose variance exceeds the widened least-squares fit's by this factor learned
 #: little from the codes (see :func:`include_quantisation`).
