@@ -118,18 +118,20 @@ def expected_information(mean: np.ndarray, sigma: np.ndarray, step: float, origi
 
 def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.ndarray],
               jacobian: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, groups: np.ndarray,
-              sigma0: np.ndarray) -> CodeFit:
+              sigma0: np.ndarray, sigma_known: bool = False) -> CodeFit:
     """Maximise ℓ over θ (model parameters) and one σ per noise group.
 
     ``codes`` are the samples' values (on a grid of step ``step``), ``model(θ)`` their
     means and ``jacobian(θ)`` its derivative; ``groups`` gives each sample's group index
-    into ``sigma0``, the starting noise levels.
+    into ``sigma0``, the starting noise levels, or the noise levels themselves when
+    ``sigma_known`` (a settled level that reads one code or two cannot tell its σ).
     """
     origin = float(np.min(codes))
     theta = np.asarray(x0, dtype=float).copy()
     sig = np.asarray(sigma0, dtype=float).copy()
     p, g = theta.size, sig.size
     members = [groups == k for k in range(g)]
+    free = slice(0, p) if sigma_known else slice(0, p + g)
 
     def objective(th: np.ndarray, sg: np.ndarray) -> float:
         with np.errstate(all="ignore"):  # a long trial step may leave the model's domain: ℓ is then nan
@@ -143,11 +145,12 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
         s_mean, s_sigma = scores(codes, mean, sig[groups], step)
         info = _information(jac, mean, sig, groups, members, step, origin)
         grad = np.concatenate([jac.T @ s_mean, [float(np.sum(s_sigma[m])) for m in members]])
+        delta = np.zeros(p + g)
         try:
-            delta = np.linalg.solve(info, grad)
+            delta[free] = np.linalg.solve(info[free, free], grad[free])
         except np.linalg.LinAlgError:
             break
-        decrement = float(grad @ delta)  # twice the gain a full step would make
+        decrement = float(grad[free] @ delta[free])  # twice the gain a full step would make
         if decrement < 1e-10:
             converged = True
             break
@@ -166,7 +169,7 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
             break
     info = _information(jacobian(theta), model(theta), sig, groups, members, step, origin)
     try:
-        covariance = np.linalg.inv(info)[:p, :p]
+        covariance = np.linalg.inv(info[free, free])[:p, :p]
     except np.linalg.LinAlgError:  # a parameter the codes say nothing about (σ → 0 on a flat level)
         covariance, converged = np.full((p, p), np.nan), False
     converged = converged and bool(np.all(np.isfinite(covariance)) and np.all(np.diag(covariance) > 0))

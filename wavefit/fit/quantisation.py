@@ -79,12 +79,14 @@ CODE_FIT_WARNING = (f"{RECORD_WIDE} (its noise is below half a converter code): 
 
 def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
                          jac_model: Callable[[np.ndarray], np.ndarray], blocks,
-                         steps: dict[str, float | None] | None = None):
+                         steps: dict[str, float | None] | None = None,
+                         noise: dict[str, float] | None = None):
     """Return ``fit`` corrected for undithered quantisation, or unchanged when its noise dithers it.
 
     ``model(θ)`` and ``jac_model(θ)`` are the fitted waveform and its derivative in the
     fit's parameters; ``steps`` the code step of each noise group's channel when known
-    from the whole record. When all blocks are resolution-limited on one grid, the fit is
+    from the whole record, and ``noise`` its noise before the converter when another fit
+    of the channel found it (for all groups, or it is estimated here). When all blocks are resolution-limited on one grid, the fit is
     moved to the maximum of the code likelihood (:func:`fit_on_codes`); otherwise the
     shifts of the blocks are added linearly (a deterministic error need not
     average out between windows or channels) and enter as one fully correlated
@@ -111,7 +113,7 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     widened = dataclasses.replace(fit, covariance=fit.covariance + np.outer(total, total),
                                   diagnostics=diagnostics, warnings=(*fit.warnings, WARNING))
     if limited == len(blocks):
-        refined = fit_on_codes(fit, y, model, jac_model, blocks, steps)
+        refined = fit_on_codes(fit, y, model, jac_model, blocks, steps, noise)
         # a level that reads one code with few excursions says little to the code likelihood
         # (its maximum is flat across the code and σ is barely determined): keep the widened fit
         # when the code fit's variance is far above it (quantisation costs a factor 1.3–3 where
@@ -122,7 +124,8 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
 
 
 def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
-                 jac_model: Callable[[np.ndarray], np.ndarray], blocks, steps: dict[str, float | None]):
+                 jac_model: Callable[[np.ndarray], np.ndarray], blocks, steps: dict[str, float | None],
+                 noise: dict[str, float] | None = None):
     """``fit`` moved to the maximum of the code likelihood, with its covariance; or ``None``
     when the blocks do not share one code grid, the noise is below CODE_FIT_FLOOR codes,
     or the maximum is not found."""
@@ -142,8 +145,11 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
     start = np.array([math.sqrt(max(fit.noise_sigma[g] ** 2 - step ** 2 / 12.0, (0.25 * step) ** 2))
                       for g in names])
     codes = origin + step * np.round((y[rows] - origin) / step)  # printed values snapped to the grid
+    known = noise is not None and all(g in noise for g in names)
+    if known:
+        start = np.array([noise[g] for g in names])
     found = fit_codes(codes, step, lambda x: model(x)[rows], lambda x: jac_model(x)[rows], fit.values,
-                      groups[rows], start)
+                      groups[rows], start, sigma_known=known)
     if not found.converged or np.any(found.sigma < CODE_FIT_FLOOR * step):
         return None
     # the likelihood takes the noise before the converter as independent; correlated noise
@@ -176,3 +182,13 @@ def _common_grid(parts: list[np.ndarray], known: list[float | None]) -> tuple[fl
     if grid is None or max(abs(g / grid[1] - 1) for g in guesses) > 0.05:
         return None
     return grid
+
+
+def noise_before_converter(fits) -> dict[str, float]:
+    """Per noise group, the median noise before the converter that code fits among ``fits`` found."""
+    found: dict[str, list[float]] = {}
+    for f in fits:
+        q = f.diagnostics.get("quantisation", {})
+        for g, codes in q.get("noise_sigma_in_codes", {}).items():
+            found.setdefault(g, []).append(codes * q["code_step"])
+    return {g: float(np.median(v)) for g, v in found.items()}

@@ -29,7 +29,7 @@ from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
 from ..fit.noise_model import fit_ar
-from ..fit.quantisation import RECORD_WIDE, include_quantisation
+from ..fit.quantisation import RECORD_WIDE, include_quantisation, noise_before_converter
 from ..fit.result import FitResult
 from ..io.capture import Capture
 from ..results import AnalysisResult, TracePlot
@@ -102,10 +102,13 @@ class RLStep(Method):
         windows, edge_times = self._windows(t, sense, drive, edges, setup, dt)
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]
-        baseline = self._fit_baseline(t, sense, drive, windows[0], noise)
+        baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits)
         # is the sense noise white? One decision from all windows' residuals together: separate
-        # per-window BIC choices would call white noise coloured in one of a dozen windows often
-        white = noise == "white" or (drive is None and fit_ar([f.residuals for f in fits]).order == 0)
+        # per-window BIC choices would call white noise coloured in one of a dozen windows often.
+        # Windows fitted on their codes passed a test of independent noise already, and their
+        # residuals hold the quantisation error, which is correlated even when the noise is not
+        on_codes = all(f.diagnostics.get("quantisation", {}).get("estimator") == "code likelihood" for f in fits)
+        white = noise == "white" or (drive is None and (on_codes or fit_ar([f.residuals for f in fits]).order == 0))
         if self.option(setup, "skip") == "auto":
             windows, fits, late, period = settle_starts(t, sense, drive, windows, fits, baseline, noise,
                                                  capture.source, self._fit_window,
@@ -116,7 +119,7 @@ class RLStep(Method):
             if late:
                 notes.append(f"{late} edge window(s) start later: their first samples did not follow the "
                              "exponential (finite generator edge or winding-capacitance ringing)")
-            baseline = self._fit_baseline(t, sense, drive, windows[0], noise)
+            baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits)
         if baseline is None and len(windows) < 2:
             raise AnalysisRefused(f"{capture.source}: the record starts at the edge, so there is no settled "
                                   "pre-edge level to pin the offset; record some time before the step")
@@ -226,8 +229,9 @@ class RLStep(Method):
             raise AnalysisRefused(f"{source}: the exponential fit of the edge at {w.t0:.6g} s failed ({exc})") from None
 
     @staticmethod
-    def _fit_baseline(t, sense, drive, first: Window, noise) -> FitResult | None:
-        """Settled level before the first edge: a constant per channel (pins the offset)."""
+    def _fit_baseline(t, sense, drive, first: Window, noise, fits) -> FitResult | None:
+        """Settled level before the first edge: a constant per channel (pins the offset). ``fits``
+        are the windows' fits, whose noise before the converter a resolution-limited level uses."""
         dt = float(t[1] - t[0])
         stop = int(np.searchsorted(t, first.t0 - 2.0 * dt))
         if stop < 16:
@@ -249,9 +253,11 @@ class RLStep(Method):
         blocks = [Block(c * n, (c + 1) * n, g) for c, g in enumerate(groups)]
         fit = fit_least_squares(fun, jac, [float(np.mean(v)) for v in ys], [f"final_{g}" for g in groups],
                                 blocks, model="pre-edge level", noise=noise)
-        # a settled level may read one or two codes only: its grid is the whole channel's
+        # a settled level may read one or two codes only: its grid is the whole channel's, and
+        # its noise before the converter the one the windows' fits found
         steps = {g: code_step(channel) for g, channel in zip(groups, (sense, drive))}
-        return include_quantisation(fit, y, lambda x: np.repeat(x, n), lambda x: -jac(x), blocks, steps)
+        return include_quantisation(fit, y, lambda x: np.repeat(x, n), lambda x: -jac(x), blocks, steps,
+                                    noise_before_converter(fits))
 
     # -- diagnostics ------------------------------------------------------------------------
 
