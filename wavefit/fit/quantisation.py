@@ -86,11 +86,11 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     ``model(θ)`` and ``jac_model(θ)`` are the fitted waveform and its derivative in the
     fit's parameters; ``steps`` the code step of each noise group's channel when known
     from the whole record, and ``noise`` its noise before the converter when another fit
-    of the channel found it (for all groups, or it is estimated here). When all blocks are resolution-limited on one grid, the fit is
-    moved to the maximum of the code likelihood (:func:`fit_on_codes`); otherwise the
-    shifts of the blocks are added linearly (a deterministic error need not
-    average out between windows or channels) and enter as one fully correlated
-    component, outer(δθ, δθ), with a warning.
+    of the channel found it (for all groups, or it is estimated here). When all blocks are
+    resolution-limited on one grid, the fit is moved to the maximum of the code likelihood
+    (:func:`fit_on_codes`) if that is trustworthy; otherwise the shifts of the blocks are
+    added linearly (a deterministic error need not average out between windows or
+    channels) and enter as one fully correlated component, outer(δθ, δθ), with a warning.
     """
     import dataclasses
 
@@ -127,8 +127,10 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
                  jac_model: Callable[[np.ndarray], np.ndarray], blocks, steps: dict[str, float | None],
                  noise: dict[str, float] | None = None):
     """``fit`` moved to the maximum of the code likelihood, with its covariance; or ``None``
-    when the blocks do not share one code grid, the noise is below CODE_FIT_FLOOR codes,
-    or the maximum is not found."""
+    when the blocks do not share one code grid, the maximum is not found, the noise is
+    below CODE_FIT_FLOOR codes, or the samples' standardised scores show the noise is
+    correlated. ``noise`` (σ per group before the converter) is used as known when given
+    for every group."""
     import dataclasses
 
     grid = _common_grid([y[b.start:b.stop] for b in blocks], [steps.get(b.group) for b in blocks])
