@@ -23,6 +23,9 @@ study prints one table row per estimated quantity:
 - coverage of the reported expanded interval (value ± U, nominal 95.45 %).
 - time per analysis.
 
+After the table it prints how the rows stand against the targets (TARGETS): met, outside
+by less than twice the figure's sampling error, or not met.
+
 SNR is 20·log10(A/σ) with A the step amplitude (rl-step) or the initial ring
 amplitude (lc-ring) and σ the noise rms.
 
@@ -294,6 +297,48 @@ def format_table(rows: list[Row]) -> str:
     return "\n".join(lines)
 
 
+#: The targets the study is judged by: (name, rows it applies to, the accepted interval of
+#: the row's figure, the figure, its sampling error).
+TARGETS = (
+    ("efficiency >= 0.9 (tau, f0; white noise; SNR >= 30 dB)",
+     lambda r: r.quantity in ("tau", "f0") and r.scenario.noise == "white" and r.scenario.snr_db >= 30,
+     (0.9, math.inf), lambda r: r.efficiency, lambda r: r.efficiency * math.sqrt(2.0 / r.trials)),
+    ("|bias| <= 0.1 standard errors",
+     lambda r: math.isfinite(r.bias_sd),
+     (-0.1, 0.1), lambda r: r.bias_sd, lambda r: 1.0 / math.sqrt(r.trials)),
+    ("coverage 93-97 % (white noise, and 8-bit, which is white noise quantised)",
+     lambda r: r.scenario.noise in ("white", "8-bit"),
+     (0.93, 0.97), lambda r: r.coverage, lambda r: math.sqrt(0.95 * 0.05 / r.trials)),
+    ("coverage 92-98 % (correlated noise)",
+     lambda r: r.scenario.noise in ("band-limited", "first-order"),
+     (0.92, 0.98), lambda r: r.coverage, lambda r: math.sqrt(0.95 * 0.05 / r.trials)),
+)
+
+
+def target_report(rows: list[Row]) -> str:
+    """How the rows stand against TARGETS: met, outside by less than twice the figure's
+    sampling error (not distinguishable from met with this many trials), or not met."""
+    lines = ["Targets:"]
+    for name, applies, (low, high), figure, error in TARGETS:
+        met, close, missed = 0, [], []
+        for r in (r for r in rows if applies(r)):
+            value, se = figure(r), error(r)
+            if low <= value <= high:
+                met += 1
+            elif low - 2 * se <= value <= high + 2 * se:
+                close.append(r)
+            else:
+                missed.append(r)
+        lines.append(f"  {name}: {met} rows met, {len(close)} outside by less than 2 sampling errors, "
+                     f"{len(missed)} not met")
+        for label, group in (("within sampling error", close), ("not met", missed)):
+            for r in group:
+                sc = r.scenario
+                lines.append(f"    {label}: {sc.method} {r.quantity} {sc.noise} {sc.snr_db:.0f} dB {sc.record}: "
+                             f"{figure(r):.3f} ± {error(r):.3f}")
+    return "\n".join(lines)
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--trials", type=int, default=300)
@@ -311,6 +356,8 @@ def main(argv: list[str] | None = None) -> int:
         print("\n".join(format_table(rows[-len(CASES[sc.method]("short")[4]):]).splitlines()[2:]),
               file=sys.stderr, flush=True)
     print(format_table(rows))
+    print()
+    print(target_report(rows))
     return 0
 
 

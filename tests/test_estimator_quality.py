@@ -29,3 +29,17 @@ def test_band_limited_noise_coverage(method):
     for row in rows:
         assert row.trials == 100
         assert 0.85 <= row.coverage <= 1.0, row
+
+
+def test_target_report_counts_rows_met_close_and_missed():
+    from estimator_quality import Row, target_report
+
+    white = Scenario("lc-ring", "white", 40, "short")
+    rows = [Row(white, "f0", 0.95, 0.02, 0.95, 1.0, 1000),   # meets all
+            Row(white, "alpha", 1.0, 0.25, 0.975, 1.0, 1000),  # bias 0.25 ± 0.032: missed; coverage close
+            Row(white, "f0", 0.85, -0.05, 0.90, 1.0, 1000)]   # efficiency 0.85 ± 0.038: close; coverage missed
+    report = target_report(rows)
+    assert "efficiency >= 0.9 (tau, f0; white noise; SNR >= 30 dB): 1 rows met, 1 outside" in report
+    assert "|bias| <= 0.1 standard errors: 2 rows met, 0 outside by less than 2 sampling errors, 1 not met" in report
+    assert "coverage 93-97 % (white noise, and 8-bit, which is white noise quantised): 1 rows met, 1 outside" in report
+    assert "not met: lc-ring f0 white 40 dB short: 0.900" in report
