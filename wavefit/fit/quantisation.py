@@ -13,10 +13,11 @@ as an rms over eight positions of the grid between codes (where the true
 waveform sits between codes is not known); that shift is added to the
 covariance as a fully correlated component.
 
-When every block of a fit is resolution-limited on one code grid and the noise is not far
-below a code (σ ≥ CODE_FIT_FLOOR·q) and independent from sample to sample, the fit is instead carried to the maximum of the
-likelihood of the codes themselves (:mod:`wavefit.fit.code_likelihood`), which removes
-that error rather than widening the interval for it.
+When every block of a fit is resolution-limited on one code grid, and the noise is not far
+below a code (σ ≥ CODE_FIT_FLOOR·q) and independent from sample to sample, the fit is
+instead carried to the maximum of the likelihood of the codes themselves
+(:mod:`wavefit.fit.code_likelihood`), which removes that error rather than widening the
+interval for it.
 """
 from __future__ import annotations
 

@@ -107,8 +107,8 @@ class RLStep(Method):
         # per-window BIC choices would call white noise coloured in one of a dozen windows often.
         # Windows fitted on their codes passed a test of independent noise already, and their
         # residuals hold the quantisation error, which is correlated even when the noise is not
-        on_codes = all(f.diagnostics.get("quantisation", {}).get("estimator") == "code likelihood" for f in fits)
-        white = noise == "white" or (drive is None and (on_codes or fit_ar([f.residuals for f in fits]).order == 0))
+        white = noise == "white" or (drive is None and (_on_codes(fits)
+                                                         or fit_ar([f.residuals for f in fits]).order == 0))
         if self.option(setup, "skip") == "auto":
             windows, fits, late, period = settle_starts(t, sense, drive, windows, fits, baseline, noise,
                                                  capture.source, self._fit_window,
@@ -142,6 +142,9 @@ class RLStep(Method):
                 notes.append("the whole-record fit disagreed with windows that skip the edges (edges not "
                              "instantaneous?); windows with a margin after each edge are used")
         notes.append(f"tau and levels from the {estimator}")
+        if _on_codes(fits):
+            notes.append("each fit carried to the maximum of the likelihood of the converter's codes "
+                         "(resolution-limited record with independent noise)")
         tau_fit = combined.values[0]
         warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined)
         if drive is None and not white:
@@ -397,3 +400,8 @@ def _plot(t, sense, drive, windows, fits) -> TracePlot:
             curve[w.start:w.stop] = window_model(f, group, t[w.start:w.stop])
         chans.append((group, unit, y, curve))
     return TracePlot(time=t, channels=tuple(chans))
+
+
+def _on_codes(fits) -> bool:
+    """Whether every fit was carried to the maximum of the code likelihood."""
+    return all(f.diagnostics.get("quantisation", {}).get("estimator") == "code likelihood" for f in fits)
