@@ -39,3 +39,27 @@ def test_undithered_8_bit_records_keep_honest_intervals(method):
     rows = run_scenario(Scenario(method, "8-bit", 60, "short"), trials=30, seed=8)
     for row in rows:
         assert row.coverage >= 0.9, row
+
+
+@pytest.mark.parametrize("noise_codes", [0.0, 0.05])
+def test_two_coarse_channels_with_flat_levels_are_analysed(noise_codes):
+    # both channels 8-bit with noise far below a code: each pre-edge level reads one code.
+    # This stopped the analysis with a singular matrix (one shift for both channels made the
+    # levels' covariance rank one; a channel with zero scatter looked rank-deficient)
+    import pandas as pd
+
+    import wavefit
+    from wavefit.synth.rl import rl_square_wave
+    from wavefit.synth.scope import ScopeModel
+
+    tau = 100e-6 / 60.5
+    t, drive, sense = rl_square_wave(100e-6, 0.5, 10.0, 50.0, 1.0, 1.0, tau / 40, 25 * tau, delay=5 * tau)
+    rng = np.random.default_rng(3)
+    scopes = [ScopeModel(noise_rms=noise_codes * 1.2 / 256, bits=8, full_scale=(-0.1, 1.1)),
+              ScopeModel(noise_rms=noise_codes * 0.2 / 256, bits=8, full_scale=(-0.02, 0.18))]
+    frame = pd.DataFrame({"time": t, "drive": scopes[0].apply(drive, rng), "sense": scopes[1].apply(sense, rng)})
+    result = wavefit.analyze(frame, {"method": "rl-step", "columns": {"time": "time", "drive": "drive", "sense": "sense"},
+                                     "parts": {"sense_resistor": 10.0}})
+    inductance = result.quantities["L"]
+    assert abs(inductance.value - 100e-6) <= inductance.expanded_uncertainty
+    assert inductance.expanded_uncertainty < 0.2 * inductance.value

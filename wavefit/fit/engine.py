@@ -171,11 +171,14 @@ def _ar_models(r, blocks, groups, max_order) -> dict[str, ARNoise]:
 
 
 def _inverse_normal_matrix(j: np.ndarray) -> np.ndarray:
-    """(JᵀJ)⁻¹ through the SVD, robust to poor column scaling."""
-    _, s, vt = np.linalg.svd(j, full_matrices=False)
+    """(JᵀJ)⁻¹ through the SVD of J with unit-norm columns, so that columns of very different
+    scale (channels whose noise differs by orders of magnitude) do not look rank-deficient."""
+    norms = np.sqrt(np.sum(j * j, axis=0))
+    norms = np.where(norms > 0, norms, 1.0)
+    _, s, vt = np.linalg.svd(j / norms, full_matrices=False)
     tol = np.finfo(float).eps * max(j.shape) * s[0]
     inv_s2 = np.where(s > tol, 1.0 / np.maximum(s, tol) ** 2, np.inf)
-    return (vt.T * inv_s2) @ vt
+    return ((vt.T * inv_s2) @ vt) / np.outer(norms, norms)
 
 
 def _diagnose(e: np.ndarray, x: Vector, bounds, names, coloured: bool = False) -> tuple[dict, list[str]]:

@@ -89,14 +89,14 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     from the whole record, and ``noise`` its noise before the converter when another fit
     of the channel found it (for all groups, or it is estimated here). When all blocks are
     resolution-limited on one grid, the fit is moved to the maximum of the code likelihood
-    (:func:`fit_on_codes`) if that is trustworthy; otherwise the shifts of the blocks are
-    added linearly (a deterministic error need not average out between windows or
-    channels) and enter as one fully correlated component, outer(δθ, δθ), with a warning.
+    (:func:`fit_on_codes`) if that is trustworthy; otherwise the shifts of a channel's
+    blocks are added linearly (a deterministic error need not average out between windows)
+    and enter as one fully correlated component per channel, outer(δθ, δθ), with a warning.
     """
     import dataclasses
 
     fitted, jac = model(fit.values), jac_model(fit.values)
-    total = np.zeros(len(fit.names))
+    totals: dict[str, np.ndarray] = {}
     worst = None
     limited = 0
     steps = steps or {}
@@ -104,14 +104,17 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
         rows = slice(b.start, b.stop)
         found = quantisation_shift(y[rows], fitted[rows], jac[rows], fit.noise_sigma[b.group], steps.get(b.group))
         if found is not None:
-            total += found[0]
+            totals[b.group] = totals.get(b.group, np.zeros(len(fit.names))) + found[0]
             worst = found[1] if worst is None else min(worst, found[1])
             limited += 1
     if worst is None:
         return fit
-    diagnostics = dict(fit.diagnostics, quantisation_shift=dict(zip(fit.names, total.tolist())),
+    # the blocks of one channel share its converter (shifts add linearly); different channels'
+    # converters err independently of each other
+    widening = sum(np.outer(v, v) for v in totals.values())
+    diagnostics = dict(fit.diagnostics, quantisation_shift=dict(zip(fit.names, sum(totals.values()).tolist())),
                        residual_rms_in_codes=worst)
-    widened = dataclasses.replace(fit, covariance=fit.covariance + np.outer(total, total),
+    widened = dataclasses.replace(fit, covariance=fit.covariance + widening,
                                   diagnostics=diagnostics, warnings=(*fit.warnings, WARNING))
     if limited == len(blocks):
         refined = fit_on_codes(fit, y, model, jac_model, blocks, steps, noise)

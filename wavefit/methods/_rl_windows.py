@@ -333,10 +333,17 @@ def combine(windows, fits, baseline, has_drive) -> Combined:
         cols = [idx[f"sense_{state}"]] + ([idx[f"drive_{state}"]] if has_drive else [])
         obs.append((vals, cov, cols, 0))
     for y, c, cols, _ in obs:
-        ci = np.linalg.inv(c)
+        try:
+            ci = np.linalg.inv(c)
+        except np.linalg.LinAlgError:
+            ci = np.full_like(c, np.nan)
+        if not (np.all(np.isfinite(ci)) and np.all(np.isfinite(y))):
+            raise AnalysisRefused("a window's fit has no usable covariance (its noise is far below a converter "
+                                  "code, or its levels are flat): increase the vertical sensitivity or record "
+                                  "with more noise-free resolution")
         info[np.ix_(cols, cols)] += ci
         score[cols] += ci @ y
-    d = np.sqrt(np.diag(info))
+    d = np.sqrt(np.abs(np.diag(info)))
     if np.any(d == 0) or np.linalg.matrix_rank(info / np.outer(d, d)) < p:
         raise AnalysisRefused("the record does not hold both states settled long enough to measure the "
                               "current step; record a pre-edge baseline or a full period")
