@@ -52,7 +52,7 @@ def log_interval_probability(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     hi = np.where(upper, -a, b)
     lo = np.where(upper, -b, a)
     log_hi, log_lo = log_ndtr(hi), log_ndtr(lo)
-    return log_hi + np.log1p(-np.exp(np.minimum(log_lo - log_hi, -1e-300)))
+    return log_hi + np.log(-np.expm1(np.minimum(log_lo - log_hi, -1e-300)))
 
 
 def _log_phi(z: np.ndarray) -> np.ndarray:

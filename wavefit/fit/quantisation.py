@@ -28,7 +28,7 @@ import numpy as np
 
 from ..signal.codes import code_grid, code_step
 from .code_likelihood import fit_codes, standardised_scores
-from .portmanteau import standardised_portmanteau, structured
+from .portmanteau import standardised_portmanteau
 
 #: Below this residual rms, in codes, the error is treated as not dithered (residual
 #: σ² = σ_noise² + q²/12, so 0.5 q means σ_noise ≈ 0.4 q; common practice after Widrow).
@@ -59,6 +59,12 @@ def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: np.ndarray,
 #: samples at code transitions and the expected information is a poor guide to the scatter
 #: (measured: see docs/estimator-quality.md, "Records finer than the noise").
 CODE_FIT_FLOOR = 0.01
+
+#: The code fit is refused when the standardised scores' portmanteau p-value is below this. No
+#: floor on the size of the correlation as for least-squares residuals: below a code the
+#: scores' correlation is much weaker than the noise's (AR(1) noise with φ = 0.3 at 0.1 code
+#: passed a 0.1 floor and its intervals were 1.3 times too narrow).
+INDEPENDENCE_P = 1e-3
 
 #: A code fit whose variance exceeds the widened least-squares fit's by this factor learned
 #: little from the codes (see :func:`include_quantisation`).
@@ -167,7 +173,7 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
                                          origin)
     ends = np.cumsum([b.stop - b.start for b in blocks])[:-1]
     for part, used in zip(np.split(z, ends), np.split(informative, ends)):
-        if structured(*standardised_portmanteau(part, used)):
+        if standardised_portmanteau(part, used)[0] < INDEPENDENCE_P:
             return None
     residuals = y - model(found.values)
     diagnostics = dict(fit.diagnostics, quantisation=dict(
