@@ -35,7 +35,6 @@ from ..io.capture import Capture
 from ..results import AnalysisResult, TracePlot
 from ..setup import Setup
 from ..signal.clipping import extremes, model_exceeds_record
-from ..signal.codes import code_step
 from ..signal.edges import find_edges, jump_instant
 from ..uncertainty import InputSet, propagate
 from . import register
@@ -102,7 +101,9 @@ class RLStep(Method):
         windows, edge_times = self._windows(t, sense, drive, edges, setup, dt)
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]
-        baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits)
+        # each channel's extreme values and code step, for the pre-edge level and the clipping checks
+        facts = {group: extremes(y) for group, y in (("sense", sense), ("drive", drive)) if y is not None}
+        baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
         # is the sense noise white? One decision from all windows' residuals together: separate
         # per-window BIC choices would call white noise coloured in one of a dozen windows often.
         # Windows fitted on their codes passed a test of independent noise already, and their
@@ -119,7 +120,7 @@ class RLStep(Method):
             if late:
                 notes.append(f"{late} edge window(s) start later: their first samples did not follow the "
                              "exponential (finite generator edge or winding-capacitance ringing)")
-            baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits)
+            baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
         if baseline is None and len(windows) < 2:
             raise AnalysisRefused(f"{capture.source}: the record starts at the edge, so there is no settled "
                                   "pre-edge level to pin the offset; record some time before the step")
@@ -146,7 +147,8 @@ class RLStep(Method):
             notes.append("each fit carried to the maximum of the likelihood of the converter's codes "
                          "(resolution-limited record with independent noise)")
         tau_fit = combined.values[0]
-        warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined)
+        warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined,
+                                      facts)
         if drive is None and not white:
             # each window's start is placed from the same correlated noise as its first samples:
             # its uncertainty enters tau's
@@ -232,9 +234,10 @@ class RLStep(Method):
             raise AnalysisRefused(f"{source}: the exponential fit of the edge at {w.t0:.6g} s failed ({exc})") from None
 
     @staticmethod
-    def _fit_baseline(t, sense, drive, first: Window, noise, fits) -> FitResult | None:
+    def _fit_baseline(t, sense, drive, first: Window, noise, fits, facts) -> FitResult | None:
         """Settled level before the first edge: a constant per channel (pins the offset). ``fits``
-        are the windows' fits, whose noise before the converter a resolution-limited level uses."""
+        are the windows' fits, whose noise before the converter a resolution-limited level uses,
+        and ``facts`` the channels' :func:`extremes`, whose code step it uses."""
         dt = float(t[1] - t[0])
         stop = int(np.searchsorted(t, first.t0 - 2.0 * dt))
         if stop < 16:
@@ -258,14 +261,14 @@ class RLStep(Method):
                                 blocks, model="pre-edge level", noise=noise)
         # a settled level may read one or two codes only: its grid is the whole channel's, and
         # its noise before the converter the one the windows' fits found
-        steps = {g: code_step(channel) for g, channel in zip(groups, (sense, drive))}
+        steps = {g: facts[g].code for g in groups}
         return include_quantisation(fit, y, lambda x: np.repeat(x, n), lambda x: -jac(x), blocks, steps,
                                     noise_before_converter(fits))
 
     # -- diagnostics ------------------------------------------------------------------------
 
     @staticmethod
-    def _diagnostics(t, sense, drive, windows, fits, tau, dt, edge_time, setup, combined) -> list[str]:
+    def _diagnostics(t, sense, drive, windows, fits, tau, dt, edge_time, setup, combined, facts) -> list[str]:
         out = []
         if tau < 10 * dt:
             out.append(f"only {tau / dt:.1f} samples per tau (fewer than 10): sample faster or use a "
@@ -281,7 +284,6 @@ class RLStep(Method):
         if cp is not None and setup.parts["sense_resistor"].value * cp.value > 0.05 * tau:
             out.append("the probe capacitance with the sense resistor makes a pole comparable to tau; "
                        "the first-order correction used may not suffice")
-        facts = {group: extremes(y) for group, y in (("sense", sense), ("drive", drive)) if y is not None}
         for w, fit in zip(windows, fits):
             for msg in fit.warnings:
                 # a record-wide condition is said once, not once per edge
