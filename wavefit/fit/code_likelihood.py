@@ -55,21 +55,23 @@ def log_interval_probability(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return log_hi + np.log(-np.expm1(np.minimum(log_lo - log_hi, -1e-300)))
 
 
+def _bounds(code, mean: np.ndarray, sigma: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
+    """The interval of ``code`` in units of σ about the sample's mean: (a, b)."""
+    return (code - 0.5 * step - mean) / sigma, (code + 0.5 * step - mean) / sigma
+
+
 def _log_phi(z: np.ndarray) -> np.ndarray:
     return -0.5 * z * z - 0.5 * math.log(2.0 * math.pi)
 
 
 def log_likelihood(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float) -> float:
     """ℓ of the samples ``codes`` (analogue values on the grid) given their means and σ."""
-    a = (codes - 0.5 * step - mean) / sigma
-    b = (codes + 0.5 * step - mean) / sigma
-    return float(np.sum(log_interval_probability(a, b)))
+    return float(np.sum(log_interval_probability(*_bounds(codes, mean, sigma, step))))
 
 
 def scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
     """∂ℓ_i/∂s_i and ∂ℓ_i/∂σ of each sample."""
-    a = (codes - 0.5 * step - mean) / sigma
-    b = (codes + 0.5 * step - mean) / sigma
+    a, b = _bounds(codes, mean, sigma, step)
     log_p = log_interval_probability(a, b)
     pa, pb = np.exp(_log_phi(a) - log_p), np.exp(_log_phi(b) - log_p)
     return (pa - pb) / sigma, (a * pa - b * pb) / sigma
@@ -101,9 +103,7 @@ def expected_information(mean: np.ndarray, sigma: np.ndarray, step: float, origi
     i_ms = np.zeros(mean.size)
     i_ss = np.zeros(mean.size)
     for k in range(-reach, reach + 1):
-        code = origin + (centre + k) * step
-        a = (code - 0.5 * step - mean) / sigma
-        b = (code + 0.5 * step - mean) / sigma
+        a, b = _bounds(origin + (centre + k) * step, mean, sigma, step)
         log_p = log_interval_probability(a, b)
         keep = log_p > -700.0
         pa = np.where(keep, np.exp(_log_phi(a) - 0.5 * log_p), 0.0)  # φ(a)/√P
@@ -167,7 +167,8 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
         else:  # no step improves ℓ: at the maximum to within rounding, or stuck
             converged = decrement < 1e-6
             break
-    info = _information(jacobian(theta), model(theta), sig, groups, members, step, origin)
+    else:  # out of iterations: the last step moved θ after its information was computed
+        info = _information(jacobian(theta), model(theta), sig, groups, members, step, origin)
     try:
         covariance = np.linalg.inv(info[free, free])[:p, :p]
     except np.linalg.LinAlgError:  # a parameter the codes say nothing about (σ → 0 on a flat level)

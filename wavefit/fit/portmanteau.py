@@ -15,10 +15,15 @@ SIGNIFICANCE = 1e-4
 NOTABLE_CORRELATION = 0.1
 
 
+def _lags(n: int) -> int:
+    """How many lags a portmanteau statistic of n values sums: min(20, n/5), at least one."""
+    return int(min(20, max(1, n // 5)))
+
+
 def ljung_box(e: np.ndarray) -> tuple[float, np.ndarray]:
     """p-value of the Ljung–Box statistic over h = min(20, n/5) lags, and the autocorrelations."""
     n = e.size
-    h = int(min(20, max(1, n // 5)))
+    h = _lags(n)
     ec = e - e.mean()
     denom = float(ec @ ec)
     rho = np.array([float(ec[:-k] @ ec[k:]) / denom for k in range(1, h + 1)]) if denom > 0 else np.zeros(h)
@@ -45,7 +50,7 @@ def standardised_portmanteau(z: np.ndarray, informative: np.ndarray) -> tuple[fl
     """
     z = np.where(informative, z, 0.0)
     m = informative.astype(float)
-    lags = [k for k in range(1, min(20, max(1, z.size // 5)) + 1) if float(m[:-k] @ m[k:]) >= 10]
+    lags = [k for k in range(1, _lags(z.size) + 1) if float(m[:-k] @ m[k:]) >= 10]
     if not lags:
         return 1.0, np.zeros(0)
     pairs = np.array([float(m[:-k] @ m[k:]) for k in lags])

@@ -152,14 +152,15 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
     for b in blocks:
         groups[b.start:b.stop] = names.index(b.group)
     rows = np.concatenate([np.arange(b.start, b.stop) for b in blocks])
-    # residual variance ≈ σ² + q²/12, which undershoots below half a code; start no lower than
-    # a quarter code, where every sample still informs the fit (scoring moves down from there)
-    start = np.array([math.sqrt(max(fit.noise_sigma[g] ** 2 - step ** 2 / 12.0, (0.25 * step) ** 2))
-                      for g in names])
-    codes = origin + step * np.round((y[rows] - origin) / step)  # printed values snapped to the grid
     known = noise is not None and all(g in noise for g in names)
     if known:
         start = np.array([noise[g] for g in names])
+    else:
+        # residual variance ≈ σ² + q²/12, which undershoots below half a code; start no lower
+        # than a quarter code, where every sample still informs the fit (scoring moves down)
+        start = np.array([math.sqrt(max(fit.noise_sigma[g] ** 2 - step ** 2 / 12.0, (0.25 * step) ** 2))
+                          for g in names])
+    codes = origin + step * np.round((y[rows] - origin) / step)  # printed values snapped to the grid
     found = fit_codes(codes, step, lambda x: model(x)[rows], lambda x: jac_model(x)[rows], fit.values,
                       groups[rows], start, sigma_known=known)
     if not found.converged or np.any(found.sigma < CODE_FIT_FLOOR * step):
@@ -169,13 +170,13 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
     # (The least-squares fit's own noise model cannot tell: the quantisation error of a slow
     # waveform is correlated even when the noise is not.) The samples' standardised scores
     # are independent when the noise is.
-    z, informative = standardised_scores(codes, model(found.values)[rows], found.sigma[groups[rows]], step,
-                                         origin)
+    fitted = model(found.values)
+    z, informative = standardised_scores(codes, fitted[rows], found.sigma[groups[rows]], step, origin)
     ends = np.cumsum([b.stop - b.start for b in blocks])[:-1]
     for part, used in zip(np.split(z, ends), np.split(informative, ends)):
         if standardised_portmanteau(part, used)[0] < INDEPENDENCE_P:
             return None
-    residuals = y - model(found.values)
+    residuals = y - fitted
     diagnostics = dict(fit.diagnostics, quantisation=dict(
         estimator="code likelihood", code_step=step, iterations=found.iterations,
         noise_sigma_in_codes=dict(zip(names, (found.sigma / step).tolist())),
