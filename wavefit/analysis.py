@@ -1,7 +1,9 @@
 """The library's front door: ``analyze(source, setup)``."""
 from __future__ import annotations
 
+import math
 import os
+from dataclasses import replace
 from typing import Any, Mapping, Sequence
 
 import pandas as pd
@@ -11,7 +13,7 @@ from .io import capture_from_frame, read_capture
 from .io.capture import Capture
 from .methods import get_method
 from .results import AnalysisResult
-from .setup import Setup, load_setup
+from .setup import RelativeFigure, Setup, load_setup
 
 Source = "str | os.PathLike | pd.DataFrame | Capture"
 
@@ -45,7 +47,35 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         if source is None:
             raise SetupError(f"method {parsed.method!r} needs a capture to analyse")
         captures = [load_capture(source, interval, time_col)]
-    return method.analyze(captures, parsed)
+    result = method.analyze(captures, with_time_axis_uncertainty(parsed, captures))
+    return with_capture_remarks(result, captures)
+
+
+def with_time_axis_uncertainty(setup: Setup, captures: Sequence[Capture]) -> Setup:
+    """The setup with its timebase figure widened by what the captures' time axes leave uncertain.
+
+    A time axis rebuilt from stamps printed with too few digits has an
+    interval known only to u_axis (relative, see :mod:`wavefit.io.timebase`);
+    it adds in quadrature to the instrument's timebase figure (JCGM 100:2008,
+    5.1.2, uncorrelated inputs) and enters the budget as the ``timebase`` input.
+    """
+    u_axis = max((c.interval_uncertainty for c in captures), default=0.0)
+    if u_axis <= 0.0:
+        return setup
+    figure = setup.timebase
+    combined = math.hypot(figure.standard_uncertainty, u_axis)
+    text = f"{figure.text} with the rebuilt time axis (u = {u_axis:.2g})"
+    return replace(setup, timebase=RelativeFigure(combined, text, 1.0))
+
+
+def with_capture_remarks(result: AnalysisResult, captures: Sequence[Capture]) -> AnalysisResult:
+    """The result with every capture's warnings (once each, first) and the reader's notes."""
+    several = len(captures) > 1
+    remarks = [f"{c.source}: {w}" if several else w for c in captures for w in c.warnings]
+    warnings = tuple(dict.fromkeys([*remarks, *result.warnings]))
+    notes = [f"{c.source}: {n}" if several else n for c in captures for n in c.notes]
+    fit = {**result.fit, "capture_notes": notes} if notes else result.fit
+    return replace(result, warnings=warnings, fit=fit)
 
 
 def load_capture(source: Any, sample_interval: float | None, time_column: Any = None) -> Capture:
@@ -53,8 +83,5 @@ def load_capture(source: Any, sample_interval: float | None, time_column: Any = 
     if isinstance(source, Capture):
         return source
     if isinstance(source, pd.DataFrame):
-        name = None
-        if time_column is not None:
-            name = source.columns[time_column] if isinstance(time_column, int) else str(time_column)
-        return capture_from_frame(source, sample_interval=sample_interval, time_column=name)
-    return read_capture(source, sample_interval=sample_interval)
+        return capture_from_frame(source, sample_interval=sample_interval, time_column=time_column)
+    return read_capture(source, sample_interval=sample_interval, time_column=time_column)

@@ -93,7 +93,9 @@ def _analyze(args: argparse.Namespace) -> int:
             if args.debug:
                 raise
             label = source if isinstance(source, str) else "setup captures"
-            print(f"wavefit: error: {label}: {_one_line(str(exc))}", file=sys.stderr)
+            message = _one_line(str(exc))
+            named = message if label in message else f"{label}: {message}"
+            print(f"wavefit: error: {named}", file=sys.stderr)
             worst = max(worst, exc.exit_code)
             continue
         results.append(result)

@@ -8,7 +8,7 @@ from __future__ import annotations
 import math
 import numbers
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -26,6 +26,8 @@ _LISTED_PLACES = 5
 _SAME_INTERVAL = 0.01
 # A unit-less time column stepping this slowly (s) may well be in ms, us or ns: say so.
 _SLOW_INTERVAL = 1e-3
+# Clock stamps coarser than this fraction of the stated interval cannot place the samples.
+_COARSE_STAMPS = 0.5
 
 
 @dataclass(frozen=True)
@@ -46,6 +48,12 @@ class Table:
         False when the source had no header row.
     preamble
         Metadata and time hints from above the table.
+    positions
+        Each column's 0-based place in the source (``0, 1, ...`` when None).
+    aliases
+        A second name per column (``""`` where none), or ``()``.
+    clock_resolution
+        Printing resolution (s) of the columns read from clock-time stamps, by column.
     """
 
     source: str
@@ -54,10 +62,21 @@ class Table:
     where: Callable[[Sequence[int]], list[str]]
     has_header: bool = True
     preamble: Preamble = Preamble()
+    positions: tuple[int | None, ...] | None = None
+    aliases: tuple[str, ...] = ()
+    clock_resolution: dict[int, float] = field(default_factory=dict)
+
+    def position(self, index: int) -> int | None:
+        """The source's column number of column ``index`` (None for a frame's index)."""
+        return index if self.positions is None else self.positions[index]
+
+    def alias(self, index: int) -> str:
+        """The second name of column ``index``, or ``""``."""
+        return self.aliases[index] if index < len(self.aliases) else ""
 
 
 def assemble(
-    table: Table, *, sample_interval: float | None = None, time_column: str | None = None
+    table: Table, *, sample_interval: float | None = None, time_column: str | int | None = None
 ) -> Capture:
     """Check a table and build the capture.
 
@@ -69,8 +88,9 @@ def assemble(
         Seconds between samples; when given it overrides any time column or
         preamble interval.
     time_column
-        Header (or header without unit) of the time column; found from the
-        headers when None.
+        Header, header without unit, or 0-based place in the source of the
+        time column; found from the headers when None (in a table without
+        header: the first column, when it increases uniformly).
 
     Returns
     -------
@@ -99,10 +119,13 @@ def assemble(
         if not u.known
     ]
     columns = [_filled(table, i, warnings) for i in range(len(table.headers))]
+    notes: list[str] = []
     time_index = _time_index(table, units, time_column)
+    if time_index is None and time_column is None and sample_interval is None:
+        time_index = _uniform_first_column(table, columns, notes)
     axis, time_header = _time_axis(table, units, columns, time_index, sample_interval, warnings)
     channels = tuple(
-        Channel(u.name, h, u.unit, u.scale, _read_only(_scaled(c, u.scale)))
+        Channel(u.name, h, u.unit, u.scale, _read_only(_scaled(c, u.scale)), table.position(i), table.alias(i))
         for i, (h, u, c) in enumerate(zip(table.headers, units, columns))
         if time_header is None or i != time_index
     )
@@ -118,6 +141,9 @@ def assemble(
         time_column=time_header,
         metadata=dict(table.preamble.metadata),
         warnings=tuple(warnings) + axis.warnings,
+        notes=tuple(notes),
+        time_position=None if time_header is None or time_index is None else table.position(time_index),
+        interval_uncertainty=axis.relative_uncertainty,
     )
 
 
@@ -189,25 +215,67 @@ def _filled(table: Table, index: int, warnings: list[str]) -> np.ndarray:
     return filled
 
 
-def _time_index(table: Table, units: list[HeaderUnit], time_column: str | None) -> int | None:
-    """Index of the time column: the one asked for, else the first time-like header."""
+def _time_index(table: Table, units: list[HeaderUnit], time_column: str | int | None) -> int | None:
+    """Index of the time column: the one asked for, else the first time-like header or second
+    name, else the first column of clock stamps, else the first column in seconds."""
     if time_column is not None:
-        for i, (header, unit) in enumerate(zip(table.headers, units)):
-            if str(time_column) in (header, unit.name):
+        return _asked_time_index(table, units, time_column)
+    if table.has_header:
+        for i, unit in enumerate(units):
+            if is_time_name(unit.name) or is_time_name(parse_header(table.alias(i)).name):
                 return i
-        listed = ", ".join(repr(h) for h in table.headers)
-        raise CaptureError(
-            f"time column {time_column!r} is not in {table.source}; its columns are: {listed}"
-        )
-    if not table.has_header:
-        return None
-    for i, unit in enumerate(units):
-        if is_time_name(unit.name):
-            return i
-    for i, unit in enumerate(units):
-        if unit.unit == "s":
-            return i
+    if table.clock_resolution:
+        return min(table.clock_resolution)
+    if table.has_header:
+        for i, unit in enumerate(units):
+            if unit.unit == "s":
+                return i
     return None
+
+
+def _asked_time_index(table: Table, units: list[HeaderUnit], time_column: str | int) -> int:
+    """Index of the column a caller named as time (header, header without unit, second name, or place)."""
+    if isinstance(time_column, numbers.Integral) and not isinstance(time_column, bool):
+        for i in range(len(table.headers)):
+            if table.position(i) == time_column:
+                return i
+        places = ", ".join(str(table.position(i)) for i in range(len(table.headers)))
+        raise CaptureError(
+            f"time column {time_column} is not a column of {table.source}; its columns are at {places}"
+        )
+    for i, (header, unit) in enumerate(zip(table.headers, units)):
+        if str(time_column) in (header, unit.name, table.alias(i)):
+            return i
+    listed = ", ".join(repr(h) for h in table.headers)
+    raise CaptureError(
+        f"time column {time_column!r} is not in {table.source}; its columns are: {listed}"
+    )
+
+
+def _uniform_first_column(table: Table, columns: list[np.ndarray], notes: list[str]) -> int | None:
+    """0 when a table without header starts with a column that increases uniformly (time), else None.
+
+    A column counting samples (0, 1, 2, ... by one) is an index, not time; a
+    step that disagrees with the preamble's sample interval is not time either.
+    """
+    if table.has_header or len(columns) < 2:
+        return None
+    first = columns[0]
+    try:
+        dt = axis_from_column(first, header=table.headers[0], where=lambda row: "", source=table.source).sample_interval
+    except CaptureError:
+        return None
+    if dt == 1.0 and np.all(first == np.round(first)):
+        return None
+    hint = table.preamble.sample_interval
+    if hint is not None and not _same(hint, dt):
+        return None
+    notes.append(
+        f"{table.source} has no header; its first column increases uniformly (by {dt:.6g} per row), "
+        f"so it is read as time in seconds; map it in the setup (time = {table.position(0)}) to say so, "
+        "or pass a sample interval to read it as a signal"
+    )
+    return 0
 
 
 def _time_axis(
@@ -235,34 +303,71 @@ def _time_axis(
             )
         return TimeAxis(axis_from_interval(rows, sample_interval, start), sample_interval), None
     if time_index is not None:
-        header, unit = table.headers[time_index], units[time_index]
-        if unit.unit not in ("s", ""):
-            raise CaptureError(
-                f"{table.source}: time column {header!r} is in {unit.unit!r}, not in seconds; "
-                "give it a time unit such as 's' or 'us', or pass a sample interval"
-            )
-        time = _scaled(columns[time_index], unit.scale)
-
-        def where(row: int) -> str:
-            return table.where([row])[0]
-
-        axis = axis_from_column(time, header=header, where=where, source=table.source)
-        if not unit.unit and axis.sample_interval >= _SLOW_INTERVAL:
-            warnings.append(
-                f"time column {header!r} has no unit and steps by {axis.sample_interval:.6g}, read "
-                "as seconds; if it is in ms, us or ns, say so in the header (e.g. 'Time (us)') "
-                "or pass a sample interval"
-            )
-        if hint.sample_interval is not None and not _same(hint.sample_interval, axis.sample_interval):
-            warnings.append(
-                f"the preamble gives a sample interval of {hint.sample_interval:.6g} s "
-                f"({hint.interval_line}) but the time column {header!r} steps by "
-                f"{axis.sample_interval:.6g} s; the time column is used"
-            )
-        return axis, header
+        return _column_axis(table, units[time_index], columns[time_index], time_index, warnings)
     if hint.sample_interval is not None:
         return TimeAxis(axis_from_interval(rows, hint.sample_interval, start), hint.sample_interval), None
     raise CaptureError(_no_time_message(table))
+
+
+def _column_axis(
+    table: Table, unit: HeaderUnit, column: np.ndarray, index: int, warnings: list[str]
+) -> tuple[TimeAxis, str]:
+    """The time axis from column ``index``, checked against the preamble's interval."""
+    header = table.headers[index]
+    hint = table.preamble
+    clock = table.clock_resolution.get(index)
+    if clock is None and unit.unit not in ("s", ""):
+        raise CaptureError(
+            f"{table.source}: time column {header!r} is in {unit.unit!r}, not in seconds; "
+            "give it a time unit such as 's' or 'us', or pass a sample interval"
+        )
+    if clock is not None and hint.sample_interval is not None and clock > _COARSE_STAMPS * hint.sample_interval:
+        warnings.append(
+            f"the clock stamps in column {header!r} resolve only {clock:.2g} s, coarser than the "
+            f"preamble's sample interval {hint.sample_interval:.6g} s ({hint.interval_line}); "
+            "the time axis is built from that interval"
+        )
+        return TimeAxis(axis_from_interval(column.size, hint.sample_interval), hint.sample_interval), header
+    time = column if clock is not None else _scaled(column, unit.scale)
+
+    def where(row: int) -> str:
+        return table.where([row])[0]
+
+    try:
+        axis = axis_from_column(time, header=header, where=where, source=table.source, resolution=clock)
+    except CaptureError as exc:
+        if clock is None or hint.sample_interval is None:
+            raise
+        warnings.append(
+            f"the clock stamps in column {header!r} are not uniform ({exc}); the time axis is built from "
+            f"the preamble's sample interval {hint.sample_interval:.6g} s ({hint.interval_line})"
+        )
+        return TimeAxis(axis_from_interval(column.size, hint.sample_interval), hint.sample_interval), header
+    if clock is None and not unit.unit and axis.sample_interval >= _SLOW_INTERVAL:
+        warnings.append(
+            f"time column {header!r} has no unit and steps by {axis.sample_interval:.6g}, read "
+            "as seconds; if it is in ms, us or ns, say so in the header (e.g. 'Time (us)') "
+            "or pass a sample interval"
+        )
+    if hint.sample_interval is None:
+        return axis, header
+    if not _same(hint.sample_interval, axis.sample_interval):
+        warnings.append(
+            f"the preamble gives a sample interval of {hint.sample_interval:.6g} s "
+            f"({hint.interval_line}) but the time column {header!r} steps by "
+            f"{axis.sample_interval:.6g} s; the time column is used"
+        )
+        return axis, header
+    if axis.rebuilt:
+        # the stated interval is exact where the rebuilt one carries the rounding's uncertainty
+        first = float(axis.time[0])
+        warnings.append(
+            f"the preamble's sample interval {hint.sample_interval:.6g} s ({hint.interval_line}) agrees "
+            f"with the rebuilt axis and is used instead of it"
+        )
+        return TimeAxis(axis_from_interval(column.size, hint.sample_interval, first), hint.sample_interval,
+                        axis.warnings), header
+    return axis, header
 
 
 def _no_time_message(table: Table) -> str:

@@ -1,29 +1,36 @@
 """Parse the numeric body of a capture with the pandas C engine, straight from the file.
 
 The body is never held as one Python string: pandas reads the (decompressed)
-byte stream in chunks and produces float64 columns. When it refuses a cell, a
-second streaming pass over the file finds the first offending line so the
-message can name it (or finds that only text follows the table: a footer); the
-same kind of pass maps row numbers to line numbers for other messages.
+byte stream in chunks and produces float64 columns (clock-time stamps are read
+as text and turned into seconds). When it refuses a cell, a second streaming
+pass over the file finds the first offending line so the message can name it,
+or finds that the table ended there and a block of text and settings follows
+(a footer); the same kind of pass maps row numbers to line numbers for other
+messages.
 """
 from __future__ import annotations
 
 import io
 import re
 from collections.abc import Iterator, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
 from ..errors import CaptureError
 from .cells import NA_TOKENS, WHITESPACE, is_missing, is_number, row_pattern, split_line
+from .clock import is_clock, read_clock_column
 from .layout import Layout, bad_cell_message
 from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
 
-#: Most text lines accepted after the table as a footer; more is a broken file.
-MAX_FOOTER_LINES = 50
+#: Most lines accepted after the table as a footer (a logger's settings block has dozens);
+#: more is a broken file.
+MAX_FOOTER_LINES = 2000
+#: This many consecutive rows of the table's own shape after a text line mean the table
+#: goes on (the text line broke it), not that a footer began.
+RESUMED_ROWS = 5
 _END_OF_FILE = "\x1a"
 _WORD = re.compile(r"[^\W\d_]{2,}")
 _LEADING_NUMBER = re.compile(r"\s*[+-]?\.?[0-9]")
@@ -36,13 +43,18 @@ class Body:
     Attributes
     ----------
     columns
-        One float64 array per column of ``layout.headers``, NaN where a cell is empty.
+        One float64 array per column of ``layout.headers``, NaN where a cell is
+        empty; clock-time stamps as seconds from the first one.
     footer
-        ``(line number, text)`` of the lines of text after the last numeric row.
+        ``(line number, text)`` of the lines after the table.
+    clock_resolution
+        For each column read from clock stamps (by its position in ``columns``),
+        the stamps' printing resolution in seconds.
     """
 
     columns: list[np.ndarray]
     footer: tuple[tuple[int, str], ...] = ()
+    clock_resolution: dict[int, float] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -81,17 +93,47 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
     """
     footer: tuple[tuple[int, str], ...] = ()
     try:
-        frame = _parse(source, layout, encoding, rows=None)
+        columns, resolution = _columns(_parse(source, layout, encoding, rows=None), layout)
     except (ValueError, pd.errors.ParserError) as exc:
         scan = _scan(source, layout, encoding, exc)
         if scan.message is not None:
             raise CaptureError(scan.message) from None
-        frame = _parse(source, layout, encoding, rows=scan.rows)
         footer = scan.footer
-    columns = {j: frame[j].to_numpy() for j in range(layout.n_fields)}
-    del frame
-    _refuse_values_in_unread_cells(columns, source, layout, encoding)
-    return Body([columns[j] for j in layout.fields], footer)
+        try:
+            columns, resolution = _columns(_parse(source, layout, encoding, rows=scan.rows), layout)
+        except _UnreadableStamp as bad:
+            line = line_numbers(source, layout, encoding, [bad.row])[0]
+            raise CaptureError(bad_cell_message(source.name, line, bad.cell)) from None
+    if not layout.side_rows:
+        _refuse_values_in_unread_cells(columns, source, layout, encoding)
+    return Body([columns[j] for j in layout.fields], footer, resolution)
+
+
+class _UnreadableStamp(ValueError):
+    """A cell of a clock-time column that is not a stamp, at a 0-based table row."""
+
+    def __init__(self, row: int, cell: str) -> None:
+        super().__init__(f"row {row}: {cell!r} is not a clock-time stamp")
+        self.row, self.cell = row, cell
+
+
+def _columns(frame: pd.DataFrame, layout: Layout) -> tuple[dict[int, np.ndarray], dict[int, float]]:
+    """The parsed cells as float64 arrays by cell index, clock stamps as seconds, and the
+    stamps' resolution by position in ``layout.fields``."""
+    resolution: dict[int, float] = {}
+    columns: dict[int, np.ndarray] = {}
+    for j in frame.columns:
+        if j not in layout.clock_fields:
+            columns[j] = frame[j].to_numpy()
+            continue
+        clock = read_clock_column(frame[j])
+        if clock.unreadable.size:
+            row = int(clock.unreadable[0])
+            raise _UnreadableStamp(row, str(frame[j].iloc[row]))
+        columns[j] = clock.seconds
+        if j in layout.fields:
+            resolution[layout.fields.index(j)] = clock.resolution
+    return columns, resolution
 
 
 def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None) -> pd.DataFrame:
@@ -107,8 +149,9 @@ def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None) 
                 nrows=rows,
                 header=None,
                 names=list(range(layout.n_fields)),
+                usecols=list(layout.fields) if layout.side_rows else None,
                 index_col=False,
-                dtype=np.float64,
+                dtype={j: (str if j in layout.clock_fields else np.float64) for j in range(layout.n_fields)},
                 na_values=sorted(NA_TOKENS),
                 keep_default_na=False,
                 skip_blank_lines=True,
@@ -168,28 +211,34 @@ def _table_lines(source: FileSource, layout: Layout, encoding: str) -> Iterator[
 
 
 def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> _Scan:
-    """Find the first line the parser refused, and whether only text follows it (a footer)."""
-    lines = _table_lines(source, layout, encoding)
+    """Find the first line the parser refused, and whether the table ends there (a footer follows).
+
+    The table ends at a line of words (not a damaged row such as ``1.2e-`` or
+    ``0.5,abc``) after which the table's rows do not resume: whatever follows,
+    numbers and words mixed, is the footer. ``RESUMED_ROWS`` rows of the
+    table's shape in a row after it mean the line broke the table instead.
+    """
     fast = row_pattern(layout.sep, layout.decimal)
     rows = 0
     message: str | None = None
     footer: list[tuple[int, str]] = []
-    for number, line in lines:
+    shaped = 0
+    for number, line in _table_lines(source, layout, encoding):
         if not line.strip():
             continue
+        problem = None
         quick = '"' not in line and fast.fullmatch(line) is not None
-        if quick and _count_cells(line, layout.sep) <= layout.n_fields:
-            if message is not None:
-                return _Scan(message)
-            rows += 1
-            continue
-        problem = _line_problem(source.name, number, line, layout)
+        if not (quick and _count_cells(line, layout.sep) <= layout.n_fields):
+            problem = _line_problem(source.name, number, line, layout)
         if message is None:
             if problem is None:
                 rows += 1
                 continue
+            if not _is_footer_text(line):
+                return _Scan(problem)
             message = problem
-        if problem is None or not _is_footer_text(line) or len(footer) >= MAX_FOOTER_LINES:
+        shaped = shaped + 1 if problem is None and _count_cells(line, layout.sep) == layout.n_fields else 0
+        if shaped >= RESUMED_ROWS or len(footer) >= MAX_FOOTER_LINES:
             return _Scan(message)
         footer.append((number, line.strip()))
     if message is None:
@@ -214,9 +263,14 @@ def _line_problem(name: str, number: int, line: str, layout: Layout) -> str | No
             f"{name}, line {number}: {len(cells)} cells where the table has "
             f"{layout.n_fields} ({layout.describe_separator()}-separated); fix or delete that line"
         )
-    for cell in cells:
-        if not is_number(cell, layout.decimal) and not is_missing(cell):
-            return bad_cell_message(name, number, cell)
+    for j, cell in enumerate(cells):
+        if is_number(cell, layout.decimal) or is_missing(cell):
+            continue
+        if j in layout.clock_fields and is_clock(cell):
+            continue
+        if layout.side_rows and j not in layout.fields:
+            continue
+        return bad_cell_message(name, number, cell)
     return None
 
 

@@ -14,7 +14,9 @@ class Channel:
     ``name`` is the header without its unit (``"CH2"`` for ``"CH2 (mV)"``),
     ``header`` the header exactly as the file writes it, ``unit`` the SI base
     unit (``"V"``, ``"A"``, ``""`` when the file gives none) and ``scale`` the
-    factor that was applied to the file's numbers to reach SI.
+    factor that was applied to the file's numbers to reach SI. ``position``
+    is the column's 0-based place in the file (None when unknown) and
+    ``alias`` a second name from a name line above the header (``""`` if none).
     """
 
     name: str
@@ -22,6 +24,8 @@ class Channel:
     unit: str
     scale: float
     values: np.ndarray
+    position: int | None = None
+    alias: str = ""
 
 
 @dataclass(frozen=True)
@@ -29,7 +33,12 @@ class Capture:
     """A uniformly sampled record: SI time axis, named channels, metadata.
 
     ``time`` is in seconds; ``time_column`` is the header of the time column,
-    or ``None`` when the axis was built from a sample interval. The reader
+    or ``None`` when the axis was built from a sample interval, and
+    ``time_position`` its 0-based place in the file. ``interval_uncertainty``
+    is the relative standard uncertainty of ``sample_interval`` that comes
+    from the file itself (time stamps printed with too few digits), 0 when
+    the file's axis is exact to its printing. ``notes`` say how the reader
+    read something it had to infer; ``warnings`` what may be wrong. The reader
     returns read-only arrays (``time`` and every ``Channel.values``).
     """
 
@@ -40,13 +49,16 @@ class Capture:
     time_column: str | None = None
     metadata: dict[str, str] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
+    notes: tuple[str, ...] = ()
+    time_position: int | None = None
+    interval_uncertainty: float = 0.0
 
     @property
     def rows(self) -> int:
         return int(self.time.size)
 
     def channel(self, key: str | int) -> Channel:
-        """Find a channel by exact header, by header without unit, or by 0-based index.
+        """Find a channel by exact header, by header without unit, by second name, or by 0-based index.
 
         Indices count the file's columns, the time column included, as a user
         sees them in the file.
@@ -56,34 +68,41 @@ class Capture:
         if isinstance(key, bool):
             raise SetupError(f"column {key!r} is not a column name or index")
         if isinstance(key, (int, np.integer)):
-            columns = self.column_headers()
-            if not 0 <= key < len(columns):
-                raise SetupError(
-                    f"column index {key} is out of range: {self.source} has "
-                    f"{len(columns)} columns (0..{len(columns) - 1})"
-                )
-            header = columns[key]
-            if header == self.time_column:
-                raise SetupError(f"column index {key} is the time column {header!r}")
-            return next(c for c in self.channels if c.header == header)
-        for ch in self.channels:
-            if ch.header == key:
-                return ch
-        for ch in self.channels:
-            if ch.name == key:
-                return ch
-        lowered = [ch for ch in self.channels if ch.name.lower() == str(key).lower()]
+            return self._channel_at(int(key))
+        for match in (
+            lambda ch: ch.header == key,
+            lambda ch: ch.name == key,
+            lambda ch: bool(ch.alias) and ch.alias == key,
+        ):
+            found = [ch for ch in self.channels if match(ch)]
+            if found:
+                return found[0]
+        lowered = [ch for ch in self.channels if str(key).lower() in (ch.name.lower(), ch.alias.lower())]
         if len(lowered) == 1:
             return lowered[0]
         names = ", ".join(repr(c.header) for c in self.channels)
         raise SetupError(f"no column {key!r} in {self.source}; columns are: {names}")
 
+    def _channel_at(self, index: int) -> Channel:
+        """The channel in the file's column ``index`` (the time column counted)."""
+        from ..errors import SetupError
+
+        if index == self.time_position and self.time_column is not None:
+            raise SetupError(f"column index {index} is the time column {self.time_column!r}")
+        for ch in self.channels:
+            if ch.position == index:
+                return ch
+        places = sorted({ch.position for ch in self.channels if ch.position is not None}
+                        | ({self.time_position} if self.time_position is not None else set()))
+        listed = ", ".join(str(p) for p in places)
+        raise SetupError(f"column index {index} is not a column of {self.source}; its columns are at {listed}")
+
     def column_headers(self) -> list[str]:
-        """All headers in file order, the time column (if any) first."""
-        headers = [c.header for c in self.channels]
+        """All headers in file order, the time column included."""
+        columns = [(ch.position, ch.header) for ch in self.channels]
         if self.time_column is not None:
-            return [self.time_column, *headers]
-        return headers
+            columns.append((self.time_position, self.time_column))
+        return [header for _, header in sorted(columns, key=lambda c: -1 if c[0] is None else c[0])]
 
     def describe(self) -> dict[str, Any]:
         """What the reader saw, as printed by ``wavefit inspect --json``."""
@@ -91,11 +110,15 @@ class Capture:
             "source": self.source,
             "rows": self.rows,
             "sample_interval_s": self.sample_interval,
+            "sample_interval_relative_uncertainty": self.interval_uncertainty,
             "time_column": self.time_column,
+            "time_position": self.time_position,
             "columns": [
                 {
                     "name": c.name,
                     "header": c.header,
+                    "position": c.position,
+                    "alias": c.alias,
                     "unit": c.unit,
                     "min": _finite_or_none(np.nanmin(c.values)) if c.values.size else None,
                     "max": _finite_or_none(np.nanmax(c.values)) if c.values.size else None,
@@ -104,6 +127,7 @@ class Capture:
             ],
             "metadata": dict(self.metadata),
             "warnings": list(self.warnings),
+            "notes": list(self.notes),
         }
 
 

@@ -9,6 +9,7 @@ import pandas as pd
 from ..errors import CaptureError
 from .assemble import Table, assemble
 from .capture import Capture
+from .column_units import is_time_name, parse_header
 
 
 def capture_from_frame(
@@ -22,7 +23,10 @@ def capture_from_frame(
 
     Headers are parsed for units (``"Time (us)"``, ``"CH1 (mV)"``) and scaled to
     SI; a column whose header looks like time is the time axis unless
-    ``sample_interval`` is given.
+    ``sample_interval`` is given. Without such a column, an index that holds
+    time is the axis: a ``DatetimeIndex`` (seconds from its first stamp), a
+    ``TimedeltaIndex``, or a numeric index whose name looks like time
+    (``"t"``, ``"Time (us)"``).
 
     Parameters
     ----------
@@ -31,7 +35,7 @@ def capture_from_frame(
     sample_interval
         Seconds between samples; overrides a time column (kept as a channel).
     time_column
-        Label of the time column, when its header does not say so.
+        Label (or 0-based position) of the time column, when its header does not say so.
     source
         Name used in messages and in ``Capture.source``.
 
@@ -52,12 +56,41 @@ def capture_from_frame(
         raise CaptureError(f"{source} has no columns")
     headers = tuple(str(label) for label in frame.columns)
     columns = [_as_float(frame.iloc[:, i], headers[i], source) for i in range(frame.shape[1])]
+    if isinstance(time_column, int) and not isinstance(time_column, bool):
+        if not 0 <= time_column < len(headers):
+            raise CaptureError(f"{source} has no column {time_column}; it has {len(headers)} columns")
+        time_column = headers[time_column]
+    index_time = None
+    if time_column is None and sample_interval is None and not _has_time_column(headers):
+        index_time = _index_as_time(frame.index, source)
+    positions: tuple[int | None, ...] = tuple(range(len(headers)))
+    if index_time is not None:  # the index is no column: it has no position
+        name, values = index_time
+        headers, columns, time_column = (name, *headers), [values, *columns], name
+        positions = (None, *positions)
 
     def where(rows: Sequence[int]) -> list[str]:
         return [f"row {row}" for row in rows]
 
-    table = Table(source=source, headers=headers, columns=columns, where=where)
+    table = Table(source=source, headers=headers, columns=columns, where=where, positions=positions)
     return assemble(table, sample_interval=sample_interval, time_column=time_column)
+
+
+def _has_time_column(headers: Sequence[str]) -> bool:
+    """True when a column header names time or is in seconds."""
+    return any(is_time_name(parse_header(h).name) or parse_header(h).unit == "s" for h in headers)
+
+
+def _index_as_time(index: pd.Index, source: str) -> tuple[str, np.ndarray] | None:
+    """The index as a time column ``(header, seconds)`` when it holds time, else None."""
+    if isinstance(index, pd.DatetimeIndex) and index.size:
+        index = index - index[0]
+    if isinstance(index, pd.TimedeltaIndex):
+        return "time (s)", np.asarray((index / pd.Timedelta(seconds=1)), dtype=np.float64)
+    name = "" if index.name is None else str(index.name)
+    if name and pd.api.types.is_numeric_dtype(index.dtype) and _has_time_column([name]):
+        return name, index.to_numpy(dtype=np.float64)
+    return None
 
 
 def _as_float(column: pd.Series, header: str, source: str) -> np.ndarray:

@@ -2,10 +2,15 @@
 
 The sniffer tries every separator (comma, semicolon, tab, runs of blanks,
 vertical bar) with both decimal marks, and keeps the reading under which the
-longest run of numeric rows appears. The non-blank line right above that run
-is the header when it is all text with a fitting number of cells; a second
-text line holding only units (``s``, ``(V)``, ``[mA]``) may sit between the
-names and the numbers. Everything above is the preamble.
+longest run of numeric rows appears (a clock-time stamp counts as a number).
+Leading rows of that run with fewer cells than its rows have (a count line)
+are left to the preamble; rows right above it that hold the same numbers
+beside text in otherwise empty columns (settings written beside the data)
+join it. The non-blank line right above the run is the header when it is all
+text with a fitting number of cells; a second text line holding only units
+(``s``, ``(V)``, ``[mA]``) may sit between the names and the numbers, and one
+more text line of names above them (a name line over a symbol line) gives the
+columns a second name. Everything above is the preamble.
 """
 from __future__ import annotations
 
@@ -14,12 +19,15 @@ from dataclasses import dataclass
 
 from ..errors import CaptureError
 from .cells import WHITESPACE, is_missing, is_number, split_line
+from .clock import is_clock
 from .column_units import is_time_name, parse_header, parse_unit
 
 SEPARATORS: tuple[str, ...] = (",", ";", "\t", WHITESPACE, "|")
 _SEPARATOR_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", WHITESPACE: "blanks", "|": "bar"}
 _LINE_BREAK = re.compile(r"\r\n|\r|\n")
 _EARLIER_TABLE_ROWS = 3
+#: Rows of settings beside the data are only looked for this far above the table.
+_MAX_SIDE_ROWS = 100
 _UNIT_BRACKETS = "()[]{}"
 _COMMENT_MARK = re.compile(r"^(?:#+|%+|//+)\s*")
 _RULE = re.compile(r"[\s,;|]*[-=_*~]{3}[-=_*~\s,;|]*")  # one way to match: linear time
@@ -51,7 +59,15 @@ class Layout:
     header_line
         1-based line number of the header (of the names when a units row follows), or None.
     preamble
-        ``(line number, text)`` of every non-blank line above the header or table.
+        ``(line number, text)`` of every non-blank line above the header or
+        table, then the settings found beside the data rows.
+    aliases
+        A second name per read column (from a name line above the header), or ``()``.
+    clock_fields
+        Cell indices that hold clock-time stamps instead of numbers.
+    side_rows
+        Number of data rows that carry settings in otherwise unread cells
+        (those cells are then skipped by the parser).
     """
 
     sep: str
@@ -63,6 +79,9 @@ class Layout:
     headers: tuple[str, ...]
     header_line: int | None
     preamble: tuple[tuple[int, str], ...]
+    aliases: tuple[str, ...] = ()
+    clock_fields: frozenset[int] = frozenset()
+    side_rows: int = 0
 
     def describe_separator(self) -> str:
         """Human name of the separator, for messages."""
@@ -80,6 +99,7 @@ class _Run:
     n_fields: int
     n_used: int
     filled: frozenset[int]
+    clocks: frozenset[int] = frozenset()
 
 
 def split_lines(text: str) -> list[str]:
@@ -135,8 +155,9 @@ def sniff_layout(text: str, *, complete: bool, source: str, max_lines: int = 200
     if best is None:
         raise CaptureError(_no_table_message(lines, complete, source))
     _, sep, decimal, run = best
+    run, side = _with_side_rows(lines, sep, decimal, run)
     _refuse_earlier_table(lines, sep, decimal, run, source)
-    names, header_start = _find_header(lines, sep, decimal, run, source)
+    names, header_start, aliases = _find_header(lines, sep, decimal, run, source)
     if names is None:
         names = ("",) * run.n_used
     names = (_COMMENT_MARK.sub("", names[0]), *names[1:])
@@ -156,15 +177,18 @@ def sniff_layout(text: str, *, complete: bool, source: str, max_lines: int = 200
         fields=fields,
         headers=headers,
         header_line=None if header_start is None else header_start + 1,
-        preamble=preamble,
+        preamble=preamble + side,
+        aliases=tuple(aliases[j] if j < len(aliases) else "" for j in fields) if aliases else (),
+        clock_fields=run.clocks,
+        side_rows=len(side),
     )
 
 
 def _row_kind(cells: list[str], decimal: str) -> str:
-    """``"numeric"``, ``"missing"`` (all cells empty/NaN) or ``"text"``."""
+    """``"numeric"``, ``"missing"`` (all cells empty/NaN) or ``"text"``; a clock stamp counts as a number."""
     numbers = 0
     for cell in cells:
-        if is_number(cell, decimal):
+        if is_number(cell, decimal) or is_clock(cell):
             numbers += 1
         elif not is_missing(cell):
             return "text"
@@ -172,31 +196,78 @@ def _row_kind(cells: list[str], decimal: str) -> str:
 
 
 def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
-    """The longest run of numeric rows (blank and all-missing rows do not break it)."""
+    """The longest run of numeric rows (blank and all-missing rows do not break it).
+
+    Rows at the start of a run with fewer cells than most of its rows (a line
+    giving a count above the table) are not part of it.
+    """
     runs: list[_Run] = []
-    start: int | None = None
-    counts: list[int] = []
-    filled: set[int] = set()
-    fields = used = 0
+    rows: list[tuple[int, list[str]]] = []
     for i, line in enumerate([*lines, None]):
         if line is not None and not line.strip():
             continue
         cells = split_line(line, sep) if line is not None else []
         kind = _row_kind(cells, decimal) if line is not None else "text"
-        if kind == "text":
-            if start is not None and counts:
-                regular = max(counts.count(c) for c in set(counts))
-                runs.append(_Run(start, i, len(counts), regular, fields, used, frozenset(filled)))
-            start = None
+        if kind != "text":
+            rows.append((i, cells))
             continue
-        if start is None:
-            start, counts, fields, used, filled = i, [], 0, 0, set()
-        fields = max(fields, len(cells))
-        if kind == "numeric":
-            counts.append(len(cells))
-            used = max(used, len(_strip_trailing_empty(cells)))
-            filled.update(j for j, cell in enumerate(cells) if not is_missing(cell))
+        run = _run_of(rows, decimal, stop=i)
+        if run is not None:
+            runs.append(run)
+        rows = []
     return max(runs, key=lambda r: r.numeric_rows, default=None)
+
+
+def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> _Run | None:
+    """The run made of consecutive non-text rows ``(index, cells)``, leading count lines dropped."""
+    numeric = [(i, cells) for i, cells in rows if _row_kind(cells, decimal) == "numeric"]
+    if not numeric:
+        return None
+    used = [len(_strip_trailing_empty(cells)) for _, cells in numeric]
+    usual = max(set(used), key=used.count)
+    first = 0
+    while first < len(numeric) - 1 and used[first] < usual:
+        first += 1
+    start = rows[0][0] if first == 0 else numeric[first][0]
+    kept = [cells for i, cells in rows if i >= start]
+    counts = [len(cells) for _, cells in numeric[first:]]
+    filled = {j for _, cells in numeric[first:] for j, cell in enumerate(cells) if not is_missing(cell)}
+    clocks = {j for _, cells in numeric[first:] for j, cell in enumerate(cells) if is_clock(cell)}
+    regular = max(counts.count(c) for c in set(counts))
+    return _Run(start, stop, len(counts), regular, max(len(c) for c in kept), max(used[first:]),
+                frozenset(filled), frozenset(clocks))
+
+
+def _with_side_rows(
+    lines: list[str], sep: str, decimal: str, run: _Run
+) -> tuple[_Run, tuple[tuple[int, str], ...]]:
+    """Extend the run upward over rows that hold its numbers beside text in columns it leaves empty.
+
+    Some exports write their settings in the leftmost cells of the first
+    data rows (``Record Length,2500,Points,-1.2e-05,0.04``); below them those
+    cells are empty. Such rows are data rows: their numbers join the table and
+    their other cells become preamble lines ``key,value unit``.
+    """
+    side: list[tuple[int, str]] = []
+    start = run.start
+    at = _previous_nonblank(lines, run.start)
+    while at is not None and len(side) < _MAX_SIDE_ROWS:
+        cells = split_line(lines[at], sep)
+        if len(cells) > run.n_fields or any(
+            j >= len(cells) or not (is_number(cells[j], decimal) or is_clock(cells[j])) for j in run.filled
+        ):
+            break
+        settings = [c for j, c in enumerate(cells) if j not in run.filled and not is_missing(c)]
+        if not settings or all(is_number(c, decimal) for c in settings):
+            break
+        side.append((at + 1, f"{settings[0]}{sep if sep != WHITESPACE else ' '}{' '.join(settings[1:])}".strip()))
+        start = at
+        at = _previous_nonblank(lines, at)
+    if not side:
+        return run, ()
+    extended = _Run(start, run.stop, run.numeric_rows + len(side), run.regular_rows, run.n_fields,
+                    run.n_used, run.filled, run.clocks)
+    return extended, tuple(reversed(side))
 
 
 def _strip_trailing_empty(cells: list[str]) -> list[str]:
@@ -225,21 +296,28 @@ def _line_above(lines: list[str], index: int) -> int | None:
 
 def _find_header(
     lines: list[str], sep: str, decimal: str, run: _Run, source: str
-) -> tuple[tuple[str, ...] | None, int | None]:
-    """Header cells (empty where a column has no name) and the index of the first header line, if any."""
+) -> tuple[tuple[str, ...] | None, int | None, tuple[str, ...]]:
+    """Header cells (empty where a column has no name), the index of the first header line, if any,
+    and second names from a name line above the header (or ``()``)."""
     above = _line_above(lines, run.start)
     if above is None:
-        return None, None
+        return None, None, ()
     cells = _header_cells(lines[above], sep, run)
     if cells is None:
         _refuse_broken_row(lines[above], above, sep, decimal, run, source)
-        return None, None
+        return None, None, ()
+    header: tuple[str, ...] = tuple(cells)
     names_at = _line_above(lines, above)
     if names_at is not None and all(_is_unit_cell(c) for c in cells) and any(cells):
         names = _header_cells(lines[names_at], sep, run)
-        if names is not None and len(names) == len(cells):
-            return _join_units(names, cells), names_at
-    return tuple(cells), above
+        if names is None or len(names) != len(cells):
+            return header, above, ()
+        header, above = _join_units(names, cells), names_at
+    over = _line_above(lines, above)
+    second = _header_cells(lines[over], sep, run) if over is not None else None
+    if second is None or len(second) != len(header) or all(_is_unit_cell(c) for c in second):
+        return header, above, ()
+    return header, above, tuple(second)
 
 
 def _header_cells(line: str, sep: str, run: _Run) -> list[str] | None:

@@ -4,7 +4,9 @@ Pairs go into the capture's metadata as strings; free-text lines are stored
 under ``note1``, ``note2``, ... Pairs whose key names a sample interval,
 a sample rate or a start time give the time axis of tables without a time
 column (``Sample interval,1e-8``, ``Sample Interval: 10 ns``, ``dt;1e-9``,
-``Sampling rate,100 MSa/s``).
+``Sampling rate,100 MSa/s``), also when the value is repeated once per
+column (``delta t,2E-6,2E-6``). The same reading serves the block of text and
+settings that some tools write after the table.
 """
 from __future__ import annotations
 
@@ -18,12 +20,13 @@ from .column_units import parse_header, parse_unit
 
 _INTERVAL_KEYS = frozenset({
     "sampleinterval", "samplinginterval", "sampleperiod", "samplingperiod", "samplespacing",
-    "dt", "deltat", "timestep", "timeincrement", "xincrement", "timeinterval",
-    "timeresolution", "interval",
+    "dt", "deltat", "timestep", "timeincrement", "xincrement", "increment", "timeinterval",
+    "timeresolution", "horizontalresolution", "interval", "sampletime", "timeperpoint",
+    "timepersample",
 })
 _RATE_KEYS = frozenset({
     "samplerate", "samplingrate", "samplefrequency", "samplingfrequency",
-    "samplespersecond", "fs", "rate",
+    "samplespersecond", "fs", "rate", "acquisitionrate",
 })
 _START_KEYS = frozenset({"t0", "starttime", "tstart", "timestart"})
 
@@ -38,6 +41,8 @@ _WORDS_AND_NUMBER = re.compile(
 _QUANTITY = re.compile(
     r"^\s*(?P<number>[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?)\s*(?P<unit>\S*)\s*$"
 )
+# Cells of a value repeated per column: the table's separator (blanks for a blank-separated table).
+_COPY_SEPARATORS = {",": r",", ";": r";", "\t": r"\t", "|": r"\|", WHITESPACE: r"[ \t]+"}
 _MAX_KEY_CHARS = 40
 _MAX_KEY_WORDS = 4
 _SAME = 1e-6
@@ -68,7 +73,8 @@ class Preamble:
     warnings: tuple[str, ...] = ()
 
 
-def read_preamble(lines: Iterable[tuple[int, str]], sep: str) -> Preamble:
+def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str = "note",
+                  taken: Iterable[str] = ()) -> Preamble:
     """Read metadata and time hints from preamble lines.
 
     Parameters
@@ -78,6 +84,10 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str) -> Preamble:
     sep
         The table's separator, tried first to split a key from its value.
         Numbers in values may use either decimal mark.
+    text_key
+        Free-text lines are stored as ``<text_key>1``, ``<text_key>2``, ...
+    taken
+        Metadata keys already in use (a repeated key gets a number).
 
     Returns
     -------
@@ -85,6 +95,7 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str) -> Preamble:
         Metadata, sample interval and start time found, and warnings.
     """
     metadata: dict[str, str] = {}
+    used = set(taken)
     warnings: list[str] = []
     interval: tuple[float, str] | None = None
     start: float | None = None
@@ -93,11 +104,13 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str) -> Preamble:
         pair = split_key_value(text, sep)
         if pair is None:
             notes += 1
-            metadata[f"note{notes}"] = text.strip()
+            metadata[f"{text_key}{notes}"] = text.strip()
             continue
         key, value = pair
-        metadata[_unique_key(metadata, key)] = value
-        kind, seconds = _time_quantity(key, value)
+        key = _unique_key(used, key)
+        used.add(key)
+        metadata[key] = value
+        kind, seconds = _time_quantity(key, value, sep)
         where = f"line {number} {text.strip()!r}"
         if kind is None:
             continue
@@ -188,43 +201,60 @@ def _is_key(text: str) -> bool:
     )
 
 
-def _unique_key(metadata: dict[str, str], key: str) -> str:
+def _unique_key(used: set[str], key: str) -> str:
     """``key``, or ``key (2)``, ``key (3)``, ... when it is already taken."""
-    if key not in metadata:
+    if key not in used:
         return key
     n = 2
-    while f"{key} ({n})" in metadata:
+    while f"{key} ({n})" in used:
         n += 1
     return f"{key} ({n})"
 
 
-def _time_quantity(key: str, value: str) -> tuple[str | None, float | None]:
+def _time_quantity(key: str, value: str, sep: str = ",") -> tuple[str | None, float | None]:
     """Classify a pair as ``"interval"``, ``"start"`` or not a time hint, with its value in seconds.
 
     The value's own unit wins over a unit in the key (``Sample interval (ns),10``);
-    a rate (``Hz``, ``Sa/s``) is turned into an interval. Returns ``(kind, None)``
-    when the key names a time quantity but the value cannot be read.
+    a rate (``Hz``, ``Sa/s``) is turned into an interval. A value given once
+    per column (``2E-6,2E-6``) counts when every copy agrees. Returns
+    ``(kind, None)`` when the key names a time quantity but the value cannot
+    be read.
     """
     key_kind = _key_kind(key)
     if key_kind is None:
         return None, None
     kind = "start" if key_kind == "start" else "interval"
+    copies = [c.strip().strip('"') for c in re.split(_COPY_SEPARATORS[sep], value) if c.strip().strip('"')]
+    if len(copies) > 1:
+        found = [_seconds(key, key_kind, kind, c) for c in copies]
+        first = found[0]
+        if first is not None and all(f is not None and abs(f - first) <= _SAME * abs(first) for f in found):
+            return kind, first
+    # one value, perhaps with a decimal comma (``2,5 ns``) or its unit in the next cell (``2E-6,s``)
+    whole = _seconds(key, key_kind, kind, value)
+    if whole is None and len(copies) == 2:
+        whole = _seconds(key, key_kind, kind, " ".join(copies))
+    return kind, whole
+
+
+def _seconds(key: str, key_kind: str, kind: str, value: str) -> float | None:
+    """The time quantity ``value`` in seconds (an interval from a rate), or None when unreadable."""
     head = parse_header(key)
     match = _QUANTITY.match(value)
     if match is None:
-        return kind, None
+        return None
     number = float(match["number"].replace(",", "."))
     unit = match["unit"]
     parsed = parse_unit(unit) if unit else ((head.unit, head.scale) if head.unit else None)
     if (unit and parsed is None) or not math.isfinite(number):
-        return kind, None
+        return None
     base, scale = parsed if parsed is not None else ("Hz" if key_kind == "rate" else "s", 1.0)
     if base == "s":
         seconds = number * scale
     elif base == "Hz" and kind == "interval" and number > 0:
         seconds = 1.0 / (number * scale)
     else:
-        return kind, None
+        return None
     if kind == "interval" and not seconds > 0:
-        return kind, None
-    return kind, seconds
+        return None
+    return seconds

@@ -21,7 +21,12 @@ SNIFF_BYTES = 1 << 20
 _CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f]")
 
 
-def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None = None) -> Capture:
+def read_capture(
+    path: str | os.PathLike[str],
+    *,
+    sample_interval: float | None = None,
+    time_column: str | int | None = None,
+) -> Capture:
     """Read a waveform capture from a CSV-like text file (optionally gzip-compressed).
 
     The separator, decimal mark, header row, units and preamble are found from
@@ -35,6 +40,9 @@ def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None 
         Seconds between samples. Overrides a sample interval in the preamble
         and, with a warning, a time column (which is then kept as a channel).
         Needed when the file holds no time information.
+    time_column
+        The time column by header, header without unit, or 0-based place in
+        the file; found automatically when None.
 
     Returns
     -------
@@ -54,7 +62,7 @@ def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None 
     preamble = read_preamble(layout.preamble, layout.sep)
     body = read_body(source, layout, head.encoding)
     if body.footer:
-        preamble = _with_footer(preamble, body.footer)
+        preamble = _with_footer(preamble, body.footer, layout.sep)
 
     def where(rows: Sequence[int]) -> list[str]:
         return [f"line {n}" for n in line_numbers(source, layout, head.encoding, rows)]
@@ -66,22 +74,35 @@ def read_capture(path: str | os.PathLike[str], *, sample_interval: float | None 
         where=where,
         has_header=layout.header_line is not None,
         preamble=preamble,
+        positions=layout.fields,
+        aliases=layout.aliases,
+        clock_resolution=body.clock_resolution,
     )
-    return assemble(table, sample_interval=sample_interval)
+    return assemble(table, sample_interval=sample_interval, time_column=time_column)
 
 
-def _with_footer(preamble: Preamble, footer: tuple[tuple[int, str], ...]) -> Preamble:
-    """The preamble plus the text lines after the table, as ``footer1``, ... and a warning."""
+def _with_footer(preamble: Preamble, footer: tuple[tuple[int, str], ...], sep: str) -> Preamble:
+    """The preamble plus what the lines after the table say (pairs by their key, text as
+    ``footer1``, ...) and a warning that counts them; a time hint there is used when the
+    preamble has none."""
     texts = [(n, _CONTROL.sub("", text).strip()) for n, text in footer]
     texts = [(n, text) for n, text in texts if text]
     if not texts:
         return preamble  # only the DOS end-of-file mark (Ctrl-Z)
-    metadata = dict(preamble.metadata)
-    metadata.update({f"footer{k}": text for k, (_, text) in enumerate(texts, 1)})
+    after = read_preamble(texts, sep, text_key="footer", taken=preamble.metadata)
     first, last = texts[0][0], texts[-1][0]
     where = f"line {first}" if first == last else f"lines {first}-{last}"
+    count = f"{len(texts)} line{'s' if len(texts) > 1 else ''}"
     warning = (
-        f"{where} after the table {'is' if first == last else 'are'} text "
-        f"({texts[0][1][:40]!r}), kept as footer metadata, not data"
+        f"{count} after the table ({where}, starting {texts[0][1][:40]!r}) "
+        f"{'is' if len(texts) == 1 else 'are'} not data: ignored, kept as footer metadata"
     )
-    return replace(preamble, metadata=metadata, warnings=(*preamble.warnings, warning))
+    interval = preamble.sample_interval is None and after.sample_interval is not None
+    return replace(
+        preamble,
+        metadata={**preamble.metadata, **after.metadata},
+        sample_interval=after.sample_interval if interval else preamble.sample_interval,
+        interval_line=after.interval_line if interval else preamble.interval_line,
+        start_time=preamble.start_time if preamble.start_time is not None else after.start_time,
+        warnings=(*preamble.warnings, *after.warnings, warning),
+    )

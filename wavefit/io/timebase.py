@@ -7,7 +7,16 @@ Limits, relative to the median interval ``dt``:
 * except when the time stamps are merely printed with too few digits: when
   every stamp lies within the printing resolution of a uniform grid, the axis
   is rebuilt as that least-squares grid (with a warning), since the median of
-  rounded intervals would be biased.
+  rounded intervals would be biased. Stamps printed coarser than the interval
+  repeat (``3.98E-05`` on two rows); that is rounding too, not time standing
+  still. The grid's interval then carries the uncertainty that rounding
+  leaves: with rounding errors uniform over one printing step r, the
+  least-squares slope through n stamps has the standard uncertainty
+  r/√12 · √(12/(n(n²−1))) (the variance of a regression slope), so
+  u(dt)/dt = r/(dt·√(n(n²−1))).
+
+A time column that goes backwards, or steps by clearly more or less than
+rounding explains, is refused.
 """
 from __future__ import annotations
 
@@ -35,11 +44,18 @@ _MANY_DEVIATIONS = 0.01
 
 @dataclass(frozen=True)
 class TimeAxis:
-    """A checked, uniformly sampled time axis in seconds."""
+    """A checked, uniformly sampled time axis in seconds.
+
+    ``relative_uncertainty`` is the relative standard uncertainty of
+    ``sample_interval`` left by the printing of the stamps (0 when they are
+    exact to their printing).
+    """
 
     time: np.ndarray
     sample_interval: float
     warnings: tuple[str, ...] = ()
+    relative_uncertainty: float = 0.0
+    rebuilt: bool = False
 
 
 def axis_from_interval(rows: int, interval: float, start: float = 0.0) -> np.ndarray:
@@ -48,7 +64,12 @@ def axis_from_interval(rows: int, interval: float, start: float = 0.0) -> np.nda
 
 
 def axis_from_column(
-    time: np.ndarray, *, header: str, where: Callable[[int], str], source: str
+    time: np.ndarray,
+    *,
+    header: str,
+    where: Callable[[int], str],
+    source: str,
+    resolution: float | None = None,
 ) -> TimeAxis:
     """Check a time column and return it as the time axis.
 
@@ -62,6 +83,9 @@ def axis_from_column(
         Turns a 0-based row index into a place in the source (``"line 12"``).
     source
         Name of the source, for messages.
+    resolution
+        The stamps' printing step in seconds when it is known from their text
+        (clock stamps); estimated from the values otherwise.
 
     Returns
     -------
@@ -72,11 +96,16 @@ def axis_from_column(
     Raises
     ------
     CaptureError
-        When time repeats, goes backwards or is not uniformly sampled.
+        When time goes backwards, repeats where rounding does not explain it,
+        or is not uniformly sampled.
     """
     steps = np.diff(time)
     bad = np.flatnonzero(~(steps > 0))
     if bad.size:
+        if np.all(steps >= 0):
+            rounded = _rounded_grid(time, header, resolution, repeats=bad.size)
+            if rounded is not None:
+                return rounded
         raise CaptureError(_not_increasing_message(time, int(bad[0]) + 1, header, where, source))
     # The median reorders ``steps`` in place (no copy of a long column); only
     # order-free figures are taken from it afterwards.
@@ -88,14 +117,11 @@ def axis_from_column(
     del steps
     if largest <= MAX_INTERVAL_DEVIATION and jitter <= JITTER_WARNING:
         return TimeAxis(time, dt)
-    grid, slope, shift = _fitted_grid(time)
-    resolution = printing_resolution(time)
-    if resolution < _COARSEST_RESOLUTION * dt and shift <= _ROUNDING_SLACK * resolution:
-        return TimeAxis(grid, slope, (
-            f"time column {header!r} is printed with a resolution of about {resolution:.2g} s, "
-            f"so its intervals vary by up to {100 * largest:.3g} % of {slope:.6g} s; "
-            f"the axis was rebuilt as a uniform grid fitted to it (largest shift {shift:.2g} s)",
-        ))
+    rounded = _rounded_grid(time, header, resolution, largest=largest)
+    if rounded is not None:
+        return rounded
+    if resolution is None:
+        resolution = printing_resolution(time)
     if largest > MAX_INTERVAL_DEVIATION:
         raise CaptureError(_non_uniform_message(time, dt, resolution, where, source))
     return TimeAxis(time, dt, (
@@ -103,6 +129,34 @@ def axis_from_column(
         f"of the median {dt:.6g} s (warning above {100 * JITTER_WARNING:g} %); "
         "the analysis assumes uniform sampling",
     ))
+
+
+def _rounded_grid(
+    time: np.ndarray, header: str, resolution: float | None, *, repeats: int = 0, largest: float = 0.0
+) -> TimeAxis | None:
+    """The uniform grid that the stamps are a rounding of, or None when rounding does not explain them."""
+    grid, slope, shift = _fitted_grid(time)
+    if resolution is None:
+        resolution = printing_resolution(time)
+    if not slope > 0 or shift > _ROUNDING_SLACK * resolution:
+        return None
+    if not repeats and resolution >= _COARSEST_RESOLUTION * slope:
+        return None
+    n = float(time.size)
+    relative = resolution / (slope * math.sqrt(n * (n * n - 1.0)))
+    if repeats:
+        what = (f"repeats its value on {repeats} rows: it is printed with a resolution of about "
+                f"{resolution:.2g} s, coarser than the {slope:.6g} s between samples")
+        caution = "; a missing sample would not show in such stamps"
+    else:
+        what = (f"is printed with a resolution of about {resolution:.2g} s, so its intervals vary by "
+                f"up to {100 * largest:.3g} % of {slope:.6g} s")
+        caution = ""
+    return TimeAxis(grid, slope, (
+        f"time column {header!r} {what}; the axis was rebuilt as a uniform grid fitted to it "
+        f"(largest shift {shift:.2g} s, interval uncertain by {relative:.1e} relative, "
+        f"carried into the timebase input){caution}",
+    ), relative, rebuilt=True)
 
 
 def _not_increasing_message(
