@@ -1,0 +1,74 @@
+"""What the reader finds in a capture reaches the analysis: the setup's time column, the time
+axis' own uncertainty, and the reader's warnings and notes, for every method."""
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import wavefit
+from wavefit.synth.lc import Tank, ringdown
+from wavefit.synth.rl import rl_square_wave
+
+# A 100 µH coil with 0.5 Ω DCR in a loop with a 50 Ω generator and a 10 Ω sense resistor:
+# tau = L/R_loop = 100e-6/60.5 = 1.65 µs (the rl-step circuit, docs/method-rl-step.md).
+L, DCR, R_SENSE, R_SOURCE = 100e-6, 0.5, 10.0, 50.0
+SETUP = {
+    "method": "rl-step",
+    "columns": {"sense": 1},
+    "parts": {"sense_resistor": "10 ohm", "source_resistance": "50 ohm", "dut_resistance": "0.5 ohm"},
+}
+
+
+def _step_record(seed: int = 1, interval: float = 4e-8) -> tuple[np.ndarray, np.ndarray]:
+    t, _, sense = rl_square_wave(L, DCR, R_SENSE, R_SOURCE, 1.0, 40e-6, interval, 100e-6)
+    noise = np.random.default_rng(seed).normal(0.0, 2e-4, t.size)
+    return t - 5e-5, sense + noise
+
+
+def _write(path: Path, rows: list[str]) -> Path:
+    path.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    return path
+
+
+def test_time_axis_rebuilt_from_coarse_stamps_widens_the_timebase_input(tmp_path: Path) -> None:
+    t, sense = _step_record()
+    path = _write(tmp_path / "coarse.csv", [f"{a:.2E},{b:.6f}" for a, b in zip(t, sense)])
+    result = wavefit.analyze(path, {**SETUP, "columns": {"time": 0, "sense": 1}})
+    capture = wavefit.io.read_capture(path, time_column=0)
+    assert capture.interval_uncertainty > 1e-5
+    line = next(b for b in result.budget["L"] if b.source == "timebase")
+    # the instrument's ±25 ppm bound (u = a/√3, JCGM 100:2008 4.3.7) and the axis in quadrature (5.1.2)
+    assert line.standard_uncertainty == pytest.approx(math.hypot(25e-6 / math.sqrt(3), capture.interval_uncertainty))
+    assert any("rebuilt as a uniform grid" in w for w in result.warnings)
+    inductance = result.quantities["L"]
+    assert abs(inductance.value - L) < inductance.expanded_uncertainty
+
+
+def test_setup_time_column_is_honoured_for_a_file(tmp_path: Path) -> None:
+    t, sense = _step_record(seed=2)
+    path = _write(tmp_path / "swapped.csv", [f"{b:.6f},{a:.9e}" for a, b in zip(t, sense)])
+    result = wavefit.analyze(path, {**SETUP, "columns": {"time": 1, "sense": 0}})
+    inductance = result.quantities["L"]
+    assert abs(inductance.value - L) < inductance.expanded_uncertainty
+
+
+def test_header_less_time_is_noted_in_the_result(tmp_path: Path) -> None:
+    t, sense = _step_record(seed=3)
+    path = _write(tmp_path / "plain.csv", [f"{a:.9e},{b:.6f}" for a, b in zip(t, sense)])
+    result = wavefit.analyze(path, SETUP)
+    assert any("read as time" in note for note in result.fit["capture_notes"])
+
+
+def test_lc_ring_carries_the_readers_warnings(tmp_path: Path) -> None:
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=0.5)
+    t, v = ringdown(tank, 2e-8, 4000)
+    v = v + np.random.default_rng(4).normal(0.0, 1e-3, v.size)
+    rows = [f"{a:.9e},{b:.6f}" for a, b in zip(t, v)]
+    rows[2000] = rows[2000].split(",")[0] + ","  # one empty cell: filled, with a warning
+    path = _write(tmp_path / "ring.csv", ["Time (s),tank (V)", *rows])
+    result = wavefit.analyze(path, {"method": "lc-ring", "columns": {"tank": "tank"},
+                                    "parts": {"tank_capacitor": "10 nF"}})
+    assert any("filled by linear interpolation" in w for w in result.warnings)
