@@ -7,7 +7,8 @@ A setup is a TOML file or a dict of the same structure (see ``docs/setup-file.md
     [columns]                          # role -> header, header without unit, or 0-based index
     time = "Time (s)"
     sense = "CH2"
-    [parts]                            # known components, "VALUE UNIT [±TOL]"
+    drive = { file = "ch1.csv", column = 1 }   # a column of another file
+    [parts]                            # known components, "VALUE [UNIT] [±TOL [k=K]]"
     sense_resistor = "10 ohm ±0.1%"
     [instrument]                       # optional; defaults describe a typical bench scope
     timebase = "±25 ppm"
@@ -15,8 +16,9 @@ A setup is a TOML file or a dict of the same structure (see ``docs/setup-file.md
     vertical_gain_sense = "±1%"        # overrides one channel
     [options]                          # optional, method specific
 
-This layer knows nothing of waveforms: each method checks the roles and parts
-it needs (``wavefit.methods``).
+This layer knows nothing of waveforms: each method checks the roles, parts,
+options and per-channel instrument keys it knows (``Method.check_setup``). Every
+other unknown key, here or in a table, is an error that lists the valid ones.
 """
 from __future__ import annotations
 
@@ -28,7 +30,7 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from .errors import SetupError
-from .values import PartValue, parse_number_with_unit, parse_part, parse_relative
+from .values import PartValue, parse_number_with_unit, parse_part, parse_relative_uncertainty
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -42,6 +44,10 @@ DEFAULT_VERTICAL_GAIN = "±2%"
 
 TOP_LEVEL_KEYS = ("method", "sample_interval", "columns", "parts", "instrument", "options", "captures")
 INSTRUMENT_KEYS = ("timebase", "vertical_gain")
+#: Prefix of the per-channel gain keys, ``vertical_gain_<role>``.
+GAIN_KEY_PREFIX = "vertical_gain_"
+#: Keys of a [columns] entry that names a column of another file.
+COLUMN_FILE_KEYS = ("file", "column")
 
 
 @dataclass(frozen=True)
@@ -68,7 +74,12 @@ class CaptureEntry:
 
 @dataclass(frozen=True)
 class Setup:
-    """A parsed setup. ``columns`` maps roles to header names or indices."""
+    """A parsed setup.
+
+    ``columns`` maps every role to its header name or 0-based index; ``column_files``
+    maps the roles whose column lies in another file to that file's absolute path.
+    ``vertical_gain`` holds the ``vertical_gain_<role>`` figures by role.
+    """
 
     method: str
     columns: Mapping[str, str | int]
@@ -80,6 +91,7 @@ class Setup:
     sample_interval: float | None = None
     captures: tuple[CaptureEntry, ...] = ()
     source: str = "<dict>"
+    column_files: Mapping[str, Path] = field(default_factory=dict)
 
     def gain_for(self, role: str) -> RelativeFigure:
         """The vertical-gain accuracy of the channel that carries ``role``."""
@@ -112,24 +124,26 @@ def read_toml(path: Path, what: str) -> dict[str, Any]:
 
 def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setup:
     """Check and convert the raw mapping of a setup."""
-    _reject_unknown(data, TOP_LEVEL_KEYS, "setup key", source)
+    check_names(data, TOP_LEVEL_KEYS, "setup key", source)
     method = data.get("method")
     if not isinstance(method, str) or not method:
         raise SetupError(f"{source}: 'method' is missing; write e.g. method = \"rl-step\"")
-    columns = _table(data, "columns", source)
-    for role, col in columns.items():
-        if isinstance(col, bool) or not isinstance(col, (str, int)):
-            raise SetupError(f"{source}: column for role {role!r} must be a header text or a 0-based index")
+    columns: dict[str, str | int] = {}
+    column_files: dict[str, Path] = {}
+    for role, entry in _table(data, "columns", source).items():
+        columns[role], file = _column(role, entry, source)
+        if file is not None:
+            column_files[role] = _beside(file, base_dir)
     parts = {name: _part(name, spec, source) for name, spec in _table(data, "parts", source).items()}
     timebase, gains, default_gain = _instrument(_table(data, "instrument", source), source)
     sample_interval = None
     if "sample_interval" in data:
         sample_interval = _positive_seconds(data["sample_interval"], source)
     captures = tuple(_capture_entry(entry, i, source, base_dir)
-                     for i, entry in enumerate(data.get("captures", []) or []))
+                     for i, entry in enumerate(_array_of_tables(data, "captures", source)))
     return Setup(
         method=method,
-        columns=dict(columns),
+        columns=columns,
         parts=parts,
         timebase=timebase,
         vertical_gain=gains,
@@ -138,13 +152,8 @@ def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setu
         sample_interval=sample_interval,
         captures=captures,
         source=source,
+        column_files=column_files,
     )
-
-
-def _reject_unknown(data: Mapping[str, Any], valid: tuple[str, ...], what: str, source: str) -> None:
-    for key in data:
-        if key not in valid:
-            raise SetupError(f"{source}: unknown {what} {key!r}; valid: {', '.join(valid)}")
 
 
 def _table(data: Mapping[str, Any], key: str, source: str) -> Mapping[str, Any]:
@@ -154,48 +163,77 @@ def _table(data: Mapping[str, Any], key: str, source: str) -> Mapping[str, Any]:
     return value
 
 
+def _array_of_tables(data: Mapping[str, Any], key: str, source: str) -> list[Mapping[str, Any]]:
+    value = data.get(key, [])
+    if not isinstance(value, list) or not all(isinstance(entry, Mapping) for entry in value):
+        raise SetupError(f"{source}: {key} must be an array of tables, each starting with a [[{key}]] line")
+    return value
+
+
+def _column(role: str, entry: Any, source: str) -> tuple[str | int, str | None]:
+    """A [columns] entry: the column key, and the other file's name when it names one."""
+    if isinstance(entry, Mapping):
+        if role == "time":
+            raise SetupError(f"{source}: [columns] time comes from the capture itself; write it as a header "
+                             "text or a 0-based index, not as a table with a file")
+        check_names(entry, COLUMN_FILE_KEYS, f"key in [columns] {role} table", source)
+        if "file" not in entry or "column" not in entry:
+            raise SetupError(f"{source}: [columns] {role} needs both 'file' and 'column', e.g. "
+                             f"{role} = {{ file = \"ch1.csv\", column = 1 }}")
+        file = entry["file"]
+        if not isinstance(file, str) or not file.strip():
+            raise SetupError(f"{source}: [columns] {role}: 'file' must be a file name, e.g. \"ch1.csv\"")
+        return _column_key(role, entry["column"], source), file
+    return _column_key(role, entry, source), None
+
+
+def _column_key(role: str, column: Any, source: str) -> str | int:
+    if isinstance(column, str) and column.strip():
+        return column
+    if isinstance(column, int) and not isinstance(column, bool) and column >= 0:
+        return column
+    raise SetupError(f"{source}: column for role {role!r} must be a header text or a 0-based index, "
+                     f"got {column!r}")
+
+
+def _beside(file: str, base_dir: Path) -> Path:
+    """``file`` as an absolute path, relative names taken from the setup file's folder."""
+    path = Path(file)
+    return (path if path.is_absolute() else base_dir / path).absolute()
+
+
 def _part(name: str, spec: Any, source: str) -> PartValue:
     try:
-        part = parse_part(spec)
+        return parse_part(spec)
     except SetupError as exc:
         raise SetupError(f"{source}: part {name!r}: {exc}") from None
-    if not math.isfinite(part.value):
-        raise SetupError(f"{source}: part {name!r} is not a finite number")
-    return part
 
 
 def _relative(text: Any, what: str, source: str) -> RelativeFigure:
-    if isinstance(text, (int, float)) and not isinstance(text, bool):
-        return RelativeFigure(float(text), str(text))
+    """An instrument figure: ``"±25 ppm"``, ``"±1% k=2"``, ``"u=10 ppm"``, ``"exact"`` or 0."""
+    if isinstance(text, (int, float)) and not isinstance(text, bool) and text == 0:
+        return RelativeFigure(0.0, str(text))
     if not isinstance(text, str):
-        raise SetupError(f"{source}: {what} must be text such as \"±1.5%\"")
+        raise SetupError(f"{source}: {what} must be text such as \"±1.5%\" or \"±25 ppm\" (a bare number "
+                         f"could be a fraction or a percentage), got {text!r}")
     if text.strip().lower() == "exact":  # a perfect instrument, for studies of the fit alone
         return RelativeFigure(0.0, text)
-    if text.replace(" ", "").startswith("u="):  # a standard uncertainty given directly, as for parts
-        return RelativeFigure(_fraction(text.replace(" ", "")[2:], what, source), text, 1.0)
-    body, k = text, None
-    if "k=" in text.replace(" ", ""):
-        head, _, tail = text.replace(" ", "").partition("k=")
-        body, k = head.rstrip(",;("), float(tail.rstrip(")"))
-    return RelativeFigure(_fraction(body, what, source), text, k)
-
-
-def _fraction(body: str, what: str, source: str) -> float:
-    fraction = parse_relative(body)
-    if fraction < 0 or not math.isfinite(fraction):
-        raise SetupError(f"{source}: {what} {body!r} must be a finite non-negative figure")
-    return fraction
+    try:
+        fraction, k = parse_relative_uncertainty(text)
+    except SetupError as exc:
+        raise SetupError(f"{source}: [instrument] {what}: {exc}") from None
+    return RelativeFigure(fraction, text, k)
 
 
 def _instrument(table: Mapping[str, Any], source: str
                 ) -> tuple[RelativeFigure, dict[str, RelativeFigure], RelativeFigure]:
     gains: dict[str, RelativeFigure] = {}
     for key, value in table.items():
-        if key.startswith("vertical_gain_"):
-            gains[key[len("vertical_gain_"):]] = _relative(value, key, source)
+        if key.startswith(GAIN_KEY_PREFIX) and len(key) > len(GAIN_KEY_PREFIX):
+            gains[key[len(GAIN_KEY_PREFIX):]] = _relative(value, key, source)
         elif key not in INSTRUMENT_KEYS:
             raise SetupError(f"{source}: unknown [instrument] key {key!r}; valid: "
-                             "timebase, vertical_gain, vertical_gain_<role>")
+                             f"{', '.join(INSTRUMENT_KEYS)}, {GAIN_KEY_PREFIX}<role>")
     timebase = _relative(table.get("timebase", DEFAULT_TIMEBASE), "timebase", source)
     default_gain = _relative(table.get("vertical_gain", DEFAULT_VERTICAL_GAIN), "vertical_gain", source)
     return timebase, gains, default_gain
@@ -205,7 +243,10 @@ def _positive_seconds(value: Any, source: str) -> float:
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         seconds = float(value)
     elif isinstance(value, str):
-        seconds, _ = parse_number_with_unit(value, "s")
+        try:
+            seconds, _ = parse_number_with_unit(value, "s", unit_required=True)
+        except SetupError as exc:
+            raise SetupError(f"{source}: sample_interval: {exc}") from None
     else:
         raise SetupError(f"{source}: sample_interval must be a number of seconds or text like \"10 ns\"")
     if not (seconds > 0 and math.isfinite(seconds)):
@@ -213,14 +254,12 @@ def _positive_seconds(value: Any, source: str) -> float:
     return seconds
 
 
-def _capture_entry(entry: Any, index: int, source: str, base_dir: Path) -> CaptureEntry:
-    if not isinstance(entry, Mapping) or "file" not in entry:
-        raise SetupError(f"{source}: [[captures]] entry {index + 1} needs a 'file' key")
-    file = Path(str(entry["file"]))
-    if not file.is_absolute():
-        file = base_dir / file
+def _capture_entry(entry: Mapping[str, Any], index: int, source: str, base_dir: Path) -> CaptureEntry:
+    """One [[captures]] entry: its file and its parts (the method checks the parts' names)."""
+    if not isinstance(entry.get("file"), str) or not entry["file"].strip():
+        raise SetupError(f"{source}: [[captures]] entry {index + 1} needs a 'file' key naming the capture")
     parts = {k: _part(k, v, source) for k, v in entry.items() if k != "file"}
-    return CaptureEntry(file=file, parts=parts)
+    return CaptureEntry(file=_beside(entry["file"], base_dir), parts=parts)
 
 
 def check_names(given: Mapping[str, Any], valid: Mapping[str, Any] | tuple[str, ...], what: str,

@@ -1,14 +1,16 @@
-"""The interface every measurement method implements."""
+"""The interface every measurement method implements, and the checks of a setup
+against it."""
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import ClassVar
 
 from ..errors import SetupError
 from ..io.capture import Capture, Channel
 from ..results import AnalysisResult
-from ..setup import Setup, check_names
-from ..values import PartValue
+from ..setup import GAIN_KEY_PREFIX, INSTRUMENT_KEYS, Setup, check_names
+from ..values import PartValue, parse_number_with_unit
 
 
 @dataclass(frozen=True)
@@ -40,10 +42,12 @@ class Method:
     uses_setup_captures: ClassVar[bool] = False
 
     def check_setup(self, setup: Setup) -> None:
-        """Reject unknown roles, parts and options; require the required ones."""
+        """Reject unknown roles, parts, options, instrument keys and captures; require the
+        required ones."""
         check_names(setup.columns, ("time", *self.roles), "role in [columns]", setup.source)
         check_names(setup.parts, tuple(self.parts), "part in [parts]", setup.source)
         check_names(setup.options, tuple(self.options), "option in [options]", setup.source)
+        self._check_instrument_keys(setup)
         for role, required in self.roles.items():
             if required and role not in setup.columns:
                 raise SetupError(f"{setup.source}: method {self.name!r} needs a [columns] entry {role!r}")
@@ -53,15 +57,31 @@ class Method:
                                  f"({spec.help}) in [parts]")
         for part_name, part in setup.parts.items():
             self._check_unit(setup, part_name, part)
-        for entry in setup.captures:
+        self._check_captures(setup)
+
+    def _check_instrument_keys(self, setup: Setup) -> None:
+        """``vertical_gain_<role>`` is valid only for a role of this method."""
+        valid = (*INSTRUMENT_KEYS, *(GAIN_KEY_PREFIX + role for role in self.roles))
+        for role in setup.vertical_gain:
+            if role not in self.roles:
+                raise SetupError(f"{setup.source}: unknown [instrument] key {GAIN_KEY_PREFIX + role!r} "
+                                 f"(method {self.name!r} has no role {role!r}); valid: {', '.join(valid)}")
+
+    def _check_captures(self, setup: Setup) -> None:
+        if setup.captures and not self.uses_setup_captures:
+            raise SetupError(f"{setup.source}: method {self.name!r} takes its capture from the command line, "
+                             "not from [[captures]]; remove the [[captures]] entries")
+        for index, entry in enumerate(setup.captures):
+            check_names(entry.parts, ("file", *self.parts), f"key in [[captures]] entry {index + 1}",
+                        setup.source)
             for part_name, part in entry.parts.items():
-                check_names({part_name: 0}, tuple(self.parts), "part in [[captures]]", setup.source)
                 self._check_unit(setup, part_name, part)
 
     def _check_unit(self, setup: Setup, part_name: str, part: PartValue) -> None:
         expected = self.parts[part_name].unit
         if part.unit and part.unit != expected:
-            raise SetupError(f"{setup.source}: part {part_name!r} is in {part.unit!r}, expected {expected!r}")
+            raise SetupError(f"{setup.source}: part {part_name!r} = {part.text!r} is in {part.unit!r}, "
+                             f"expected {expected!r}")
         if part.value <= 0:
             raise SetupError(f"{setup.source}: part {part_name!r} must be positive, got {part.text!r}")
 
@@ -73,6 +93,12 @@ class Method:
         """The option's value from the setup, or its default."""
         return setup.options.get(key, self.options[key])
 
+    def time_option(self, setup: Setup, key: str, *, keywords: tuple[str, ...] = (),
+                    negative: bool = False) -> float | str | None:
+        """The option ``key`` (or its default) read by :func:`parse_time_option`."""
+        return parse_time_option(self.option(setup, key), key, setup.source, keywords=keywords,
+                                 negative=negative)
+
     @staticmethod
     def channel(capture: Capture, setup: Setup, role: str) -> Channel:
         """The channel the setup maps ``role`` to."""
@@ -80,3 +106,53 @@ class Method:
 
     def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:  # pragma: no cover
         raise NotImplementedError
+
+
+def parse_time_option(value: object, key: str, source: str, *, keywords: tuple[str, ...] = (),
+                      negative: bool = False) -> float | str | None:
+    """Read an option that is a time: seconds as a number, or text with a time unit.
+
+    Parameters
+    ----------
+    value : object
+        A TOML number of seconds (``3e-8``), text with a time unit (``"30 ns"``,
+        ``"1.5us"``, ``"2 µs"``, ``"30n"``), one of ``keywords`` (e.g. ``"auto"``), or
+        ``None`` / ``""`` for an option left unset.
+    key : str
+        The option's name, for the message.
+    source : str
+        The setup's source, for the message.
+    keywords : tuple of str
+        Words returned as they are.
+    negative : bool
+        Accept times before zero (an instant on a record whose time axis starts before
+        the trigger); durations leave it False.
+
+    Returns
+    -------
+    float or str or None
+        Seconds, the keyword, or None when unset.
+
+    Raises
+    ------
+    SetupError
+        One line naming the option, what was found and what to write. Text without a
+        unit (``"30"``) is refused: it could be meant in seconds or in the unit of the
+        record's time axis.
+    """
+    if value is None or value == "" or value in keywords:
+        return value or None
+    choices = "".join(f"\"{word}\", " for word in keywords)
+    if isinstance(value, str):
+        try:
+            seconds, _ = parse_number_with_unit(value, "s", unit_required=True)
+        except SetupError as exc:
+            raise SetupError(f"{source}: option {key}: {exc}") from None
+    elif isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value):
+        seconds = float(value)
+    else:
+        raise SetupError(f"{source}: option {key} must be {choices}a number of seconds or a time such as "
+                         f"\"30 ns\", got {value!r}")
+    if seconds < 0 and not negative:
+        raise SetupError(f"{source}: option {key} must be {choices}a time >= 0, got {value!r}")
+    return seconds

@@ -1,0 +1,125 @@
+"""Checks of a setup against a method (``Method.check_setup``) and time options with units."""
+import math
+
+import numpy as np
+import pytest
+
+from wavefit.cli import main
+from wavefit.errors import SetupError
+from wavefit.methods import get_method
+from wavefit.methods.base import Method, PartSpec, parse_time_option
+from wavefit.setup import load_setup
+
+
+class TwoChannel(Method):
+    """A method declared for these tests only (not registered)."""
+
+    name = "two-channel"
+    roles = {"sense": True, "drive": False}
+    parts = {"sense_resistor": PartSpec("ohm", True, "shunt"), "tank_capacitor": PartSpec("F", False, "tank")}
+    options = {"skip": "auto", "fit_start": None}
+
+
+class FromSetupCaptures(TwoChannel):
+    name = "from-setup"
+    uses_setup_captures = True
+
+
+def _setup(**changes):
+    data = {"method": "two-channel", "columns": {"sense": "CH2", "drive": "CH1"},
+            "parts": {"sense_resistor": "10 ohm ±0.1%"}}
+    data.update(changes)
+    return load_setup(data)
+
+
+def test_a_complete_setup_passes():
+    TwoChannel().check_setup(_setup(instrument={"vertical_gain_drive": "±1%", "vertical_gain_sense": "u=0.5%"},
+                                    options={"skip": "30 ns"}))
+
+
+@pytest.mark.parametrize("changes, phrase", [
+    ({"instrument": {"vertical_gain_CH2": "±0.1%"}},
+     "unknown [instrument] key 'vertical_gain_CH2' (method 'two-channel' has no role 'CH2'); "
+     "valid: timebase, vertical_gain, vertical_gain_sense, vertical_gain_drive"),
+    ({"instrument": {"vertical_gain_time": "±0.1%"}}, "has no role 'time'"),
+    ({"columns": {"sense": "CH2", "drvie": "CH1"}}, "unknown role in [columns] 'drvie'; valid: time, sense, drive"),
+    ({"parts": {"sense_resistor": "10 ohm", "shunt": "1 ohm"}},
+     "unknown part in [parts] 'shunt'; valid: sense_resistor, tank_capacitor"),
+    ({"options": {"skipp": 1}}, "unknown option in [options] 'skipp'; valid: skip, fit_start"),
+    ({"captures": [{"file": "a.csv"}]}, "takes its capture from the command line, not from [[captures]]"),
+    ({"parts": {"sense_resistor": "4n7"}}, "part 'sense_resistor' = '4n7' is in 'F', expected 'ohm'"),
+    ({"parts": {"sense_resistor": "-10 ohm"}}, "must be positive"),
+])
+def test_unknown_or_wrong_keys_list_the_valid_ones(changes, phrase):
+    with pytest.raises(SetupError) as err:
+        TwoChannel().check_setup(_setup(**changes))
+    assert phrase in str(err.value) and "\n" not in str(err.value)
+
+
+def test_capture_entries_accept_only_file_and_parts():
+    setup = _setup(captures=[{"file": "a.csv", "tank_capacitor": "1 nF"}, {"file": "b.csv", "tank_capcitor": "2n2"}])
+    with pytest.raises(SetupError) as err:
+        FromSetupCaptures().check_setup(setup)
+    assert ("unknown key in [[captures]] entry 2 'tank_capcitor'; valid: file, sense_resistor, tank_capacitor"
+            in str(err.value))
+    FromSetupCaptures().check_setup(_setup(captures=[{"file": "a.csv", "tank_capacitor": "1 nF"}]))
+
+
+def test_rl_step_lists_its_per_channel_gain_keys():
+    setup = load_setup({"method": "rl-step", "columns": {"sense": "CH2", "drive": "CH1"},
+                        "parts": {"sense_resistor": "10 ohm"}, "instrument": {"vertical_gain_CH2": "±0.1%"}})
+    with pytest.raises(SetupError, match="valid: timebase, vertical_gain, vertical_gain_sense, vertical_gain_drive"):
+        get_method("rl-step").check_setup(setup)
+
+
+# -- time options ----------------------------------------------------------------------------
+
+@pytest.mark.parametrize("value, seconds", [
+    ("30 ns", 30e-9), ("1.5us", 1.5e-6), ("2 µs", 2e-6), ("2 μs", 2e-6), ("30n", 30e-9), ("0,5 ms", 0.5e-3),
+    (3e-8, 3e-8), (0, 0.0), ("0 s", 0.0),
+])
+def test_time_option_accepts_seconds_or_a_time_unit(value, seconds):
+    # SI Brochure (2019) Table 7: n = 1e-9, µ = 1e-6, m = 1e-3
+    assert parse_time_option(value, "skip", "s.toml") == pytest.approx(seconds, rel=1e-12)
+
+
+def test_time_option_keywords_and_unset():
+    assert parse_time_option("auto", "skip", "s.toml", keywords=("auto",)) == "auto"
+    assert parse_time_option(None, "fit_start", "s.toml") is None
+    assert parse_time_option("", "fit_start", "s.toml") is None
+    assert parse_time_option("-2 us", "fit_start", "s.toml", negative=True) == pytest.approx(-2e-6)
+
+
+@pytest.mark.parametrize("value, phrase", [
+    ("30", "has no unit"), ("30 V", "'s' is expected"), ("thirty ns", "cannot read"), ("1e400 s", "finite"),
+    ("auto", "cannot read"), (True, "a number of seconds"), (math.nan, "a number of seconds"),
+    (math.inf, "a number of seconds"), (-1e-9, "a time >= 0"), ("-1 ns", "a time >= 0"), ([1], "a number"),
+    ("30 ns 5%", "cannot read"),
+])
+def test_time_option_refusals_are_one_line(value, phrase):
+    with pytest.raises(SetupError) as err:
+        parse_time_option(value, "skip", "s.toml")
+    assert str(err.value).startswith("s.toml: option skip") and phrase in str(err.value)
+    assert "\n" not in str(err.value)
+
+
+def test_method_time_option_reads_the_setup_or_the_default():
+    method = TwoChannel()
+    assert method.time_option(_setup(options={"skip": "30 ns"}), "skip", keywords=("auto",)) == pytest.approx(3e-8)
+    assert method.time_option(_setup(), "skip", keywords=("auto",)) == "auto"
+    assert method.time_option(_setup(), "fit_start") is None
+
+
+# -- the command line ------------------------------------------------------------------------
+
+@pytest.mark.parametrize("line", ['sense_resistor = "10 ohm 1"', 'sense_resistor = "1,000 ohm"',
+                                  'sense_resistor = "1e400 ohm"'])
+def test_bad_part_is_one_line_and_exit_3(tmp_path, capsys, line):
+    capture = tmp_path / "c.csv"
+    capture.write_text("Time (s),CH1 (V)\n" + "".join(f"{k * 1e-6:g},{np.sin(k):.4f}\n" for k in range(50)),
+                       encoding="utf-8")
+    setup = tmp_path / "s.toml"
+    setup.write_text(f'method = "rl-step"\n[columns]\nsense = "CH1"\n[parts]\n{line}\n', encoding="utf-8")
+    assert main(["analyze", str(capture), "--setup", str(setup)]) == 3
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "part 'sense_resistor': cannot read" in err and "Traceback" not in err
