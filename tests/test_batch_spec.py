@@ -94,3 +94,41 @@ def test_load_spec_from_toml(tmp_path):
         load_spec(path)
     with pytest.raises(SetupError, match="cannot read spec file"):
         load_spec(tmp_path / "missing.toml")
+
+
+@pytest.mark.parametrize("toml, fragment", [
+    ('[limit]\nL = "47 uH ±5%"\n', "unknown spec key 'limit'; valid: limits, decision"),
+    ('[limits]\nL = "47 uH ±5%"\n[decision]\nrule = "simple"\nguard = 1\n',
+     "unknown [decision] key 'guard'; valid: rule, guard_factor"),
+    ('rule = "simple"\n[limits]\nL = "47 uH ±5%"\n', "unknown spec key 'rule'"),
+])
+def test_every_spec_table_rejects_unknown_keys(tmp_path, toml, fragment):
+    path = tmp_path / "spec.toml"
+    path.write_text(toml, encoding="utf-8")
+    with pytest.raises(SetupError) as err:
+        load_spec(path)
+    assert fragment in str(err.value) and "\n" not in str(err.value)
+
+
+def test_limits_table_keys_are_checked_against_the_method():
+    # [limits] keys are quantity names: the method's list is the set of valid keys
+    spec = parse_spec({"limits": {"L": "47 uH ±5%", "Lx": "<= 1 mH"}}, source="spec.toml")
+    with pytest.raises(SetupError, match="limit for 'Lx', but method 'rl-step' reports only: L, R, tau"):
+        spec.check_quantities(("L", "R", "tau"), "rl-step")
+
+
+@pytest.mark.parametrize("text, lower, upper", [
+    ("<= 10R", None, 10.0),                  # IEC 60062: 10R = 10 ohm (was 1e28 ohm)
+    ("50,0 uH .. 60,0 uH", 50e-6, 60e-6),    # decimal comma (was 500 uH)
+])
+def test_limits_use_the_strict_value_grammar(text, lower, upper):
+    limit = parse_limit("x", text)
+    assert limit.lower == (pytest.approx(lower) if lower is not None else None)
+    assert limit.upper == pytest.approx(upper)
+
+
+@pytest.mark.parametrize("text", ["<= 1,000 ohm", "<= 1e400 ohm", "47 uH ±5% k=2", "<= 10 ohm 1", "<= nan"])
+def test_limits_that_would_be_misread_are_refused(text):
+    with pytest.raises(SetupError) as err:
+        parse_limit("x", text)
+    assert "\n" not in str(err.value)
