@@ -370,21 +370,24 @@ def _read_value(cursor: _Cursor, expected_unit: str | None) -> _Value:
         raise _Unreadable("nothing is written")
     start = cursor.pos
     code = cursor.take(_CODE)
-    if code and _is_code(code):
-        if not code.group("unit") or UNIT_ALIASES[code.group("unit")] == CODE_LETTERS[code.group("letter")][1]:
-            return _code_value(code, expected_unit)
+    code = code if code and _is_code(code) else None
+    if code and (not code.group("unit") or
+                 UNIT_ALIASES[code.group("unit")] == CODE_LETTERS[code.group("letter")][1]):
+        return _code_value(code, expected_unit)
+    # a code followed by a unit of another kind is a number with a prefix ("1KA" = 1 kA),
+    # or else an error ("4n7 H")
     cursor.pos = start
     number = cursor.take(_NUMBER)
     if not number:
         raise _Unreadable("it does not start with a number or a letter code such as 4R7")
     value = _number_value(cursor, number, expected_unit)
-    if code and _is_code(code) and cursor.pos < code.end():
-        _check_code_unit(code, expected_unit)  # "4n7 H": a code followed by a unit of another kind
+    if code and cursor.pos < code.end():
+        _check_code_unit(code, expected_unit)
     return value
 
 
 def _number_value(cursor: _Cursor, number: re.Match[str], expected_unit: str | None) -> _Value:
-    """A number followed by a prefix and unit, a prefix alone, or nothing ("1KA" = 1 kA)."""
+    """A number followed by a prefix and unit, a prefix alone, or nothing."""
     unit = cursor.take(_PREFIXED_UNIT)
     prefix = unit or cursor.take(_PREFIX_ALONE)
     exponent = _prefix_exponent(prefix)
