@@ -108,7 +108,8 @@ LARGEST_MAGNITUDE = 1e15
 SMALLEST_COVERAGE_FACTOR = 1.0
 
 PART_EXAMPLES = '"10 ohm ±1%", "4R7 ±1% k=2", "4.7 nF ±5%"'
-NUMBER_EXAMPLES = '"4.7 nF", "30 ns", "4k7"'
+NUMBER_EXAMPLES = {None: '"4.7 nF", "30 ns", "4k7"', "s": '"30 ns", "1.5 us", "2e-6 s"',
+                   "ohm": '"10 ohm", "4k7"', "F": '"4.7 nF", "4n7"', "H": '"47 uH"', "Hz": '"1 MHz"'}
 RELATIVE_EXAMPLES = '"±1.5%", "±25 ppm"'
 
 _SQRT3 = math.sqrt(3.0)
@@ -236,10 +237,10 @@ def parse_number_with_unit(text: str, expected_unit: str | None = None, *,
         if not cursor.at_end():
             raise _Unreadable(f"{cursor.rest()!r} follows the value")
         if unit_required and value.bare:
-            raise _Unreadable(f"it has no unit; write it with one, e.g. \"{_example(expected_unit)}\"")
+            raise _Unreadable("it has no unit")
     except _Unreadable as exc:
         raise SetupError(f"cannot read {text!r} as a number with a unit: {exc}; write e.g. "
-                         f"{NUMBER_EXAMPLES}") from None
+                         f"{NUMBER_EXAMPLES.get(expected_unit, NUMBER_EXAMPLES[None])}") from None
     return value.si, value.unit
 
 
@@ -516,11 +517,6 @@ def _text_of(text: object) -> str:
     if not isinstance(text, str):
         raise _Unreadable(f"{text!r} is not text")
     return text
-
-
-def _example(unit: str | None) -> str:
-    return {"s": "30 ns", "ohm": "10 ohm", "F": "4.7 nF", "H": "47 uH", "Hz": "1 MHz"}.get(unit or "",
-                                                                                         "4.7 nF")
 
 
 def eng(value: float, unit: str = "", digits: int = 4) -> str:

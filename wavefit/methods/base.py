@@ -117,7 +117,7 @@ def parse_time_option(value: object, key: str, source: str, *, keywords: tuple[s
     value : object
         A TOML number of seconds (``3e-8``), text with a time unit (``"30 ns"``,
         ``"1.5us"``, ``"2 µs"``, ``"30n"``), one of ``keywords`` (e.g. ``"auto"``), or
-        ``None`` / ``""`` for an option left unset.
+        ``None`` for an option left unset (a default of None).
     key : str
         The option's name, for the message.
     source : str
@@ -140,8 +140,8 @@ def parse_time_option(value: object, key: str, source: str, *, keywords: tuple[s
         unit (``"30"``) is refused: it could be meant in seconds or in the unit of the
         record's time axis.
     """
-    if value is None or value == "" or value in keywords:
-        return value or None
+    if value is None or (isinstance(value, str) and value in keywords):
+        return value
     choices = "".join(f"\"{word}\", " for word in keywords)
     if isinstance(value, str):
         try:
