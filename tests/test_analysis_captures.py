@@ -72,3 +72,35 @@ def test_lc_ring_carries_the_readers_warnings(tmp_path: Path) -> None:
     result = wavefit.analyze(path, {"method": "lc-ring", "columns": {"tank": "tank"},
                                     "parts": {"tank_capacitor": "10 nF"}})
     assert any("filled by linear interpolation" in w for w in result.warnings)
+
+
+def _one_channel_files(tmp_path: Path, shift: int = 0, rows: int | None = None) -> tuple[Path, Path]:
+    """The rl-step record with drive and sense as two files, each ``time,volts`` (one channel per file)."""
+    t, drive, sense = rl_square_wave(L, DCR, R_SENSE, R_SOURCE, 1.0, 40e-6, 4e-8, 100e-6)
+    rng = np.random.default_rng(5)
+    drive, sense = drive + rng.normal(0, 2e-4, t.size), sense + rng.normal(0, 2e-4, t.size)
+    t = t - 5e-5
+    n = rows or t.size
+    sense_file = _write(tmp_path / "ch2.csv", [f"{a:.9e},{b:.6f}" for a, b in zip(t[:n], sense[:n])])
+    drive_file = _write(tmp_path / "ch1.csv", [f"{a:.9e},{b:.6f}" for a, b in zip(t[shift:], drive[shift:])])
+    return sense_file, drive_file
+
+
+def test_a_channel_from_another_file(tmp_path: Path) -> None:
+    sense_file, drive_file = _one_channel_files(tmp_path)
+    setup_file = tmp_path / "setup.toml"
+    setup_file.write_text('method = "rl-step"\n[columns]\nsense = 1\ndrive = { file = "ch1.csv", column = 1 }\n'
+                          '[parts]\nsense_resistor = "10 ohm"\n', encoding="utf-8")
+    result = wavefit.analyze(sense_file, setup_file)
+    # with both channels the DCR is measured: R = (ΔD/ΔS − 1)·R_sense (docs/method-rl-step.md)
+    for name, truth in (("L", L), ("R", DCR)):
+        q = result.quantities[name]
+        assert abs(q.value - truth) < q.expanded_uncertainty
+
+
+def test_a_channel_file_with_another_time_axis_is_refused(tmp_path: Path) -> None:
+    sense_file, _ = _one_channel_files(tmp_path, shift=3)
+    setup = {"method": "rl-step", "columns": {"sense": 1, "drive": {"file": str(tmp_path / "ch1.csv"), "column": 1}},
+             "parts": {"sense_resistor": "10 ohm"}}
+    with pytest.raises(wavefit.CaptureError, match="does not share the time axis"):
+        wavefit.analyze(sense_file, setup)

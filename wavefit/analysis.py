@@ -8,7 +8,7 @@ from typing import Any, Mapping, Sequence
 
 import pandas as pd
 
-from .errors import SetupError
+from .errors import CaptureError, SetupError
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
 from .methods import get_method
@@ -47,8 +47,58 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         if source is None:
             raise SetupError(f"method {parsed.method!r} needs a capture to analyse")
         captures = [load_capture(source, interval, time_col)]
+    if parsed.column_files:
+        captures, parsed = with_columns_from_files(captures, parsed, interval)
     result = method.analyze(captures, with_time_axis_uncertainty(parsed, captures))
     return with_capture_remarks(result, captures)
+
+
+def with_columns_from_files(
+    captures: Sequence[Capture], setup: Setup, sample_interval: float | None
+) -> tuple[list[Capture], Setup]:
+    """Each capture with the channels that the setup takes from other files (one channel per file).
+
+    The other file's time axis must be the capture's: the same number of
+    samples, starts within half a sample, and intervals that drift apart by
+    less than half a sample over the record. Its channel is added under the
+    header ``<role> from <file>``, to which the setup's role then points.
+
+    Raises
+    ------
+    CaptureError
+        When a file cannot be read or its time axis is not the capture's.
+    """
+    columns = dict(setup.columns)
+    others = {role: read_capture(path, sample_interval=sample_interval) for role, path in setup.column_files.items()}
+    merged = []
+    for capture in captures:
+        added = []
+        for role, other in others.items():
+            _check_same_axis(capture, other)
+            channel = other.channel(setup.columns[role])
+            header = f"{role} from {other.source}"
+            added.append(replace(channel, header=header, name=header, position=None, alias=""))
+            columns[role] = header
+        merged.append(replace(capture, channels=(*capture.channels, *added),
+                              warnings=(*capture.warnings, *(w for o in others.values() for w in o.warnings))))
+    return merged, replace(setup, columns=columns, column_files={})
+
+
+def _check_same_axis(capture: Capture, other: Capture) -> None:
+    """Refuse a file whose time axis is not the capture's (rows, start, interval)."""
+    dt = capture.sample_interval
+    problem = None
+    if other.rows != capture.rows:
+        problem = f"{other.rows} samples against {capture.rows}"
+    elif abs(float(other.time[0]) - float(capture.time[0])) > 0.5 * dt:
+        problem = f"it starts at {float(other.time[0]):.6g} s against {float(capture.time[0]):.6g} s"
+    elif abs(other.sample_interval - dt) * (capture.rows - 1) > 0.5 * dt:
+        problem = f"its sample interval is {other.sample_interval:.6g} s against {dt:.6g} s"
+    if problem is not None:
+        raise CaptureError(
+            f"{other.source} does not share the time axis of {capture.source} ({problem}); "
+            "record both channels in one acquisition and export them with the same settings"
+        )
 
 
 def with_time_axis_uncertainty(setup: Setup, captures: Sequence[Capture]) -> Setup:

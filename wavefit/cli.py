@@ -40,6 +40,8 @@ def build_parser() -> argparse.ArgumentParser:
     p_in.add_argument("file", metavar="FILE")
     p_in.add_argument("--json", action="store_true", help="print as JSON")
     p_in.add_argument("--sample-interval", type=float, metavar="SECONDS")
+    p_in.add_argument("--time-column", metavar="COLUMN",
+                      help="the time column by header or 0-based place in the file, when it is not found")
 
     from .batch.command import add_batch_parser
 
@@ -124,7 +126,10 @@ def _batch(args: argparse.Namespace) -> int:
 def _inspect(args: argparse.Namespace) -> int:
     from .io import read_capture
 
-    capture = read_capture(args.file, sample_interval=args.sample_interval)
+    time_column = args.time_column
+    if time_column is not None and time_column.isdigit():
+        time_column = int(time_column)
+    capture = read_capture(args.file, sample_interval=args.sample_interval, time_column=time_column)
     info = capture.describe()
     if args.json:
         print(json.dumps(info, indent=2, allow_nan=False))
@@ -140,6 +145,8 @@ def _inspect(args: argparse.Namespace) -> int:
         print(f"  meta {key}: {value}")
     for w in info["warnings"]:
         print(f"  ! {w}")
+    for note in info["notes"]:
+        print(f"  note: {note}")
     return EXIT_OK
 
 

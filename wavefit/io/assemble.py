@@ -54,6 +54,9 @@ class Table:
         A second name per column (``""`` where none), or ``()``.
     clock_resolution
         Printing resolution (s) of the columns read from clock-time stamps, by column.
+    printed
+        How each column's numbers were printed, by column: ``(True, n)``, n
+        significant digits in exponent form; ``(False, n)``, n decimals.
     """
 
     source: str
@@ -65,6 +68,7 @@ class Table:
     positions: tuple[int | None, ...] | None = None
     aliases: tuple[str, ...] = ()
     clock_resolution: dict[int, float] = field(default_factory=dict)
+    printed: dict[int, tuple[bool, int]] = field(default_factory=dict)
 
     def position(self, index: int) -> int | None:
         """The source's column number of column ``index`` (None for a frame's index)."""
@@ -329,12 +333,13 @@ def _column_axis(
         )
         return TimeAxis(axis_from_interval(column.size, hint.sample_interval), hint.sample_interval), header
     time = column if clock is not None else _scaled(column, unit.scale)
+    resolution = clock if clock is not None else _printing_step(column, table.printed.get(index), unit.scale)
 
     def where(row: int) -> str:
         return table.where([row])[0]
 
     try:
-        axis = axis_from_column(time, header=header, where=where, source=table.source, resolution=clock)
+        axis = axis_from_column(time, header=header, where=where, source=table.source, resolution=resolution)
     except CaptureError as exc:
         if clock is None or hint.sample_interval is None:
             raise
@@ -368,6 +373,20 @@ def _column_axis(
         return TimeAxis(axis_from_interval(column.size, hint.sample_interval, first), hint.sample_interval,
                         axis.warnings), header
     return axis, header
+
+
+def _printing_step(column: np.ndarray, form: tuple[bool, int] | None, scale: float) -> float | None:
+    """The step of the last printed digit of ``column`` at its largest magnitude, in SI; None when
+    the form is not known (a frame)."""
+    if form is None:
+        return None
+    scientific, digits = form
+    largest = float(np.max(np.abs(column)))
+    if not scientific:
+        return 10.0 ** -digits * scale
+    if largest == 0.0:
+        return None
+    return 10.0 ** (math.floor(math.log10(largest)) - digits + 1) * scale
 
 
 def _no_time_message(table: Table) -> str:

@@ -213,10 +213,11 @@ def _table_lines(source: FileSource, layout: Layout, encoding: str) -> Iterator[
 def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> _Scan:
     """Find the first line the parser refused, and whether the table ends there (a footer follows).
 
-    The table ends at a line of words (not a damaged row such as ``1.2e-`` or
-    ``0.5,abc``) after which the table's rows do not resume: whatever follows,
-    numbers and words mixed, is the footer. ``RESUMED_ROWS`` rows of the
-    table's shape in a row after it mean the line broke the table instead.
+    The table ends at a line of words or a line of another shape than its
+    rows (not a damaged row such as ``1.2e-`` or ``0.5,abc``) after which the
+    table's rows do not resume: whatever follows, numbers and words mixed, is
+    the footer. ``RESUMED_ROWS`` rows of the table's shape in a row after it
+    mean the line broke the table instead.
     """
     fast = row_pattern(layout.sep, layout.decimal)
     rows = 0
@@ -234,7 +235,7 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> 
             if problem is None:
                 rows += 1
                 continue
-            if not _is_footer_text(line):
+            if not (_is_footer_text(line) or _is_other_shape(line, layout)):
                 return _Scan(problem)
             message = problem
         shaped = shaped + 1 if problem is None and _count_cells(line, layout.sep) == layout.n_fields else 0
@@ -253,6 +254,15 @@ def _is_footer_text(line: str) -> bool:
     if text == _END_OF_FILE:
         return True
     return _WORD.search(text) is not None and not _LEADING_NUMBER.match(text)
+
+
+def _is_other_shape(line: str, layout: Layout) -> bool:
+    """A line of whole numbers in another shape than the table's rows (settings written as
+    numbers after it, ``1 0`` in a tab-separated table), not a cut or damaged row."""
+    tokens = re.split(r"[\s,;|]+", line.strip())
+    return _count_cells(line, layout.sep) != layout.n_fields and all(
+        is_number(token, ".") or is_number(token, ",") for token in tokens
+    )
 
 
 def _line_problem(name: str, number: int, line: str, layout: Layout) -> str | None:

@@ -15,7 +15,7 @@ columns a second name. Everything above is the preamble.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from ..errors import CaptureError
 from .cells import WHITESPACE, is_missing, is_number, split_line
@@ -68,6 +68,10 @@ class Layout:
     side_rows
         Number of data rows that carry settings in otherwise unread cells
         (those cells are then skipped by the parser).
+    printed
+        How each read column's numbers are printed in the sniffed rows, by
+        position in ``fields``: ``(True, n)`` for n significant digits in
+        exponent form, ``(False, n)`` for n decimals in fixed form.
     """
 
     sep: str
@@ -82,6 +86,7 @@ class Layout:
     aliases: tuple[str, ...] = ()
     clock_fields: frozenset[int] = frozenset()
     side_rows: int = 0
+    printed: dict[int, tuple[bool, int]] = field(default_factory=dict)
 
     def describe_separator(self) -> str:
         """Human name of the separator, for messages."""
@@ -181,7 +186,41 @@ def sniff_layout(text: str, *, complete: bool, source: str, max_lines: int = 200
         aliases=tuple(aliases[j] if j < len(aliases) else "" for j in fields) if aliases else (),
         clock_fields=run.clocks,
         side_rows=len(side),
+        printed=_printed_forms(lines[run.start:run.stop], sep, decimal, fields),
     )
+
+
+_EXPONENT_FORM = re.compile(r"\s*[+-]?0*(?P<digits>[0-9]*)[.,]?(?P<fraction>[0-9]*)[eE]")
+_FIXED_FORM = re.compile(r"\s*[+-]?[0-9]*(?:[.,](?P<fraction>[0-9]+))?\s*")
+
+
+def _printed_forms(
+    lines: list[str], sep: str, decimal: str, fields: tuple[int, ...]
+) -> dict[int, tuple[bool, int]]:
+    """How each read column's numbers are printed: significant digits of exponent forms, else decimals.
+
+    The printing step of a time column tells whether repeated stamps are
+    rounding; it is read from the text, since trailing zeros do not survive
+    the conversion to floating point.
+    """
+    forms: dict[int, tuple[bool, int]] = {}
+    for line in lines:
+        cells = split_line(line, sep)
+        for k, j in enumerate(fields):
+            if j >= len(cells) or not is_number(cells[j], decimal):
+                continue
+            exponent = _EXPONENT_FORM.match(cells[j])
+            if exponent is not None:
+                digits = len((exponent["digits"] + exponent["fraction"]).lstrip("0") or "0")
+                form = (True, max(digits, forms[k][1]) if forms.get(k, (False, 0))[0] else digits)
+            elif k in forms and forms[k][0]:
+                continue
+            else:
+                fixed = _FIXED_FORM.fullmatch(cells[j])
+                decimals = len(fixed["fraction"] or "") if fixed is not None else 0
+                form = (False, max(decimals, forms.get(k, (False, 0))[1]))
+            forms[k] = form
+    return forms
 
 
 def _row_kind(cells: list[str], decimal: str) -> str:
@@ -196,46 +235,42 @@ def _row_kind(cells: list[str], decimal: str) -> str:
 
 
 def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
-    """The longest run of numeric rows (blank and all-missing rows do not break it).
+    """The longest run of numeric rows of one shape (blank and all-missing rows do not break it).
 
-    Rows at the start of a run with fewer cells than most of its rows (a line
-    giving a count above the table) are not part of it.
+    A row with another number of cells ends a run: a count line above the
+    table, or settings written as numbers after it, are not part of it.
     """
     runs: list[_Run] = []
     rows: list[tuple[int, list[str]]] = []
+    shape: int | None = None
     for i, line in enumerate([*lines, None]):
         if line is not None and not line.strip():
             continue
         cells = split_line(line, sep) if line is not None else []
         kind = _row_kind(cells, decimal) if line is not None else "text"
+        if kind == "numeric" and shape is not None and len(cells) != shape:
+            runs += _run_of(rows, decimal, stop=i)
+            rows, shape = [], None
         if kind != "text":
             rows.append((i, cells))
+            if kind == "numeric":
+                shape = len(cells)
             continue
-        run = _run_of(rows, decimal, stop=i)
-        if run is not None:
-            runs.append(run)
-        rows = []
+        runs += _run_of(rows, decimal, stop=i)
+        rows, shape = [], None
     return max(runs, key=lambda r: r.numeric_rows, default=None)
 
 
-def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> _Run | None:
-    """The run made of consecutive non-text rows ``(index, cells)``, leading count lines dropped."""
-    numeric = [(i, cells) for i, cells in rows if _row_kind(cells, decimal) == "numeric"]
+def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> list[_Run]:
+    """The run made of consecutive non-text rows ``(index, cells)`` of one shape, or none."""
+    numeric = [cells for _, cells in rows if _row_kind(cells, decimal) == "numeric"]
     if not numeric:
-        return None
-    used = [len(_strip_trailing_empty(cells)) for _, cells in numeric]
-    usual = max(set(used), key=used.count)
-    first = 0
-    while first < len(numeric) - 1 and used[first] < usual:
-        first += 1
-    start = rows[0][0] if first == 0 else numeric[first][0]
-    kept = [cells for i, cells in rows if i >= start]
-    counts = [len(cells) for _, cells in numeric[first:]]
-    filled = {j for _, cells in numeric[first:] for j, cell in enumerate(cells) if not is_missing(cell)}
-    clocks = {j for _, cells in numeric[first:] for j, cell in enumerate(cells) if is_clock(cell)}
-    regular = max(counts.count(c) for c in set(counts))
-    return _Run(start, stop, len(counts), regular, max(len(c) for c in kept), max(used[first:]),
-                frozenset(filled), frozenset(clocks))
+        return []
+    filled = {j for cells in numeric for j, cell in enumerate(cells) if not is_missing(cell)}
+    clocks = {j for cells in numeric for j, cell in enumerate(cells) if is_clock(cell)}
+    used = max(len(_strip_trailing_empty(cells)) for cells in numeric)
+    width = max(len(cells) for _, cells in rows)
+    return [_Run(rows[0][0], stop, len(numeric), len(numeric), width, used, frozenset(filled), frozenset(clocks))]
 
 
 def _with_side_rows(
@@ -258,10 +293,11 @@ def _with_side_rows(
         ):
             break
         settings = [c for j, c in enumerate(cells) if j not in run.filled and not is_missing(c)]
-        if not settings or all(is_number(c, decimal) for c in settings):
+        if any(is_number(c, decimal) for c in settings[:1]):
             break
-        side.append((at + 1, f"{settings[0]}{sep if sep != WHITESPACE else ' '}{' '.join(settings[1:])}".strip()))
-        start = at
+        if settings:  # rows between settings rows that hold only data belong to the table too
+            side.append((at + 1, f"{settings[0]}{sep if sep != WHITESPACE else ' '}{' '.join(settings[1:])}".strip()))
+            start = at
         at = _previous_nonblank(lines, at)
     if not side:
         return run, ()

@@ -77,6 +77,7 @@ def read_capture(
         positions=layout.fields,
         aliases=layout.aliases,
         clock_resolution=body.clock_resolution,
+        printed=layout.printed,
     )
     return assemble(table, sample_interval=sample_interval, time_column=time_column)
 

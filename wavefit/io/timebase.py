@@ -7,7 +7,9 @@ Limits, relative to the median interval ``dt``:
 * except when the time stamps are merely printed with too few digits: when
   every stamp lies within the printing resolution of a uniform grid, the axis
   is rebuilt as that least-squares grid (with a warning), since the median of
-  rounded intervals would be biased. Stamps printed coarser than the interval
+  rounded intervals would be biased (rounding to nearest, down or up: the
+  stamps' departures from the grid span at most one printing step). Stamps
+  printed coarser than the interval
   repeat (``3.98E-05`` on two rows); that is rounding too, not time standing
   still. The grid's interval then carries the uncertainty that rounding
   leaves: with rounding errors uniform over one printing step r, the
@@ -34,8 +36,9 @@ MAX_INTERVAL_DEVIATION = 0.01
 #: Relative rms jitter of the intervals above which a warning is given.
 JITTER_WARNING = 1e-3
 _DIGIT_SAMPLES = 2000
-# Residuals of a rounded uniform grid stay within half the printing resolution; allow some slack.
-_ROUNDING_SLACK = 0.6
+# Rounding by any rule (to nearest, down, up; some stamps exact) leaves every stamp within one
+# printing step r of a uniform grid: the residuals span at most r. Slack for the fitted slope.
+_ROUNDING_SPAN = 1.2
 # Printed coarser than half an interval, time stamps cannot show whether samples are missing.
 _COARSEST_RESOLUTION = 0.5
 # Coarse stamps disturb many intervals; a few bad ones are a real sampling problem.
@@ -135,13 +138,15 @@ def _rounded_grid(
     time: np.ndarray, header: str, resolution: float | None, *, repeats: int = 0, largest: float = 0.0
 ) -> TimeAxis | None:
     """The uniform grid that the stamps are a rounding of, or None when rounding does not explain them."""
-    grid, slope, shift = _fitted_grid(time)
+    grid, slope, span = _fitted_grid(time)
     if resolution is None:
         resolution = printing_resolution(time)
-    if not slope > 0 or shift > _ROUNDING_SLACK * resolution:
+    if not slope > 0 or span > _ROUNDING_SPAN * resolution:
         return None
     if not repeats and resolution >= _COARSEST_RESOLUTION * slope:
         return None
+    if repeats and resolution <= slope:
+        return None  # stamps printed finer than the interval repeat only when time stands still
     n = float(time.size)
     relative = resolution / (slope * math.sqrt(n * (n * n - 1.0)))
     if repeats:
@@ -154,7 +159,7 @@ def _rounded_grid(
         caution = ""
     return TimeAxis(grid, slope, (
         f"time column {header!r} {what}; the axis was rebuilt as a uniform grid fitted to it "
-        f"(largest shift {shift:.2g} s, interval uncertain by {relative:.1e} relative, "
+        f"(departures span {span:.2g} s, interval uncertain by {relative:.1e} relative, "
         f"carried into the timebase input){caution}",
     ), relative, rebuilt=True)
 
@@ -201,13 +206,16 @@ def _non_uniform_message(
 
 
 def _fitted_grid(time: np.ndarray) -> tuple[np.ndarray, float, float]:
-    """Least-squares uniform grid through ``time``: the grid, its interval and the largest shift."""
+    """Uniform grid through ``time``: least-squares slope, offset centring the departures; the
+    grid, its interval and the span (largest minus smallest) of the stamps' departures from it."""
     index = np.arange(time.size, dtype=np.float64)
     index -= (time.size - 1) / 2.0
     mean = float(time.mean())
     slope = float(np.dot(index, time - mean) / np.dot(index, index))
     grid = mean + index * slope
-    return grid, slope, float(np.max(np.abs(time - grid)))
+    departures = time - grid
+    low, high = float(departures.min()), float(departures.max())
+    return grid + 0.5 * (low + high), slope, high - low
 
 
 def printing_resolution(values: np.ndarray) -> float:
