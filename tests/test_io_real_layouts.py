@@ -181,6 +181,20 @@ def test_column_descriptions_above_a_count_line(tmp_path: Path) -> None:
     assert any("no header" in note for note in capture.notes)
 
 
+def test_logger_text_with_column_blocks_a_count_line_and_numeric_settings_after(tmp_path: Path) -> None:
+    """Column descriptions in blocks (name, symbol, unit, a line of display numbers), a count line,
+    tab-separated rows with a trailing tab, then settings written as numbers and words."""
+    blocks = ["logger v2", "Index", "k", "", "0 600 1 0 0", "Time", "t", "s", "0 0.01 0.001 0 1",
+              "Voltage", "U1", "V", "-10 10 2 0 1", f"3 {N}"]
+    rows = [f"{k}\t{t:.6g}\t{v:.4f}\t" for k, (t, v) in enumerate(zip(TIME, SIGNAL), 1)]
+    after = ["1 0", "1 0 0", "-1", "-1", "0", "0 2E-6 0.0012 0 1", "Standard", "1 0 0.0012 3", "0"]
+    capture = read_capture(_write(tmp_path, [*blocks, *rows, *after], "run.txt"), time_column=1)
+    assert capture.rows == N and capture.sample_interval == pytest.approx(INTERVAL)
+    _assert_signal(capture, 2)
+    np.testing.assert_array_equal(capture.channel(0).values, np.arange(1, N + 1))
+    assert capture.warnings[-1].startswith(f"{len(after)} lines after the table")
+
+
 def test_header_less_first_column_that_increases_uniformly_is_time(tmp_path: Path) -> None:
     capture = read_capture(_write(tmp_path, [f"{t:.6e},{v:.4f}" for t, v in zip(TIME, SIGNAL)]))
     assert capture.time_position == 0
@@ -218,8 +232,8 @@ def test_time_column_index_counts_the_file_columns(tmp_path: Path) -> None:
 
 
 def test_time_with_three_significant_digits_is_rebuilt(tmp_path: Path) -> None:
-    n, interval = 2500, 4e-8
-    time = -5e-5 + np.arange(n) * interval
+    n, interval = 1400, 4e-8
+    time = 4.05e-5 + np.arange(n) * interval  # one decade: the printing step is 1e-7 s throughout
     values = np.round(np.sin(np.arange(n) / 40.0), 4)
     rows = [f"{t:.2E},{v:.4f}" for t, v in zip(time, values)]
     stamps = [row.split(",")[0] for row in rows]
@@ -242,12 +256,25 @@ def test_time_that_really_stands_still_is_refused(tmp_path: Path) -> None:
         read_capture(_write(tmp_path, ["Time (s),CH1", *rows]))
 
 
+def test_time_truncated_to_three_digits_is_rebuilt(tmp_path: Path) -> None:
+    n, interval = 1500, 4e-8
+    time = np.arange(n) * interval
+    printed = [f"{np.floor(t / 10 ** (np.floor(np.log10(t)) - 2)) * 10 ** (np.floor(np.log10(t)) - 2):.2E}"
+               if t > 0 else "0" for t in time]  # cut, not rounded, to three significant digits
+    values = np.round(np.cos(np.arange(n) / 25.0), 3)
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *[f"{a},{b:.3f}" for a, b in zip(printed, values)]]))
+    assert capture.rows == n
+    assert abs(capture.sample_interval / interval - 1) < 3 * capture.interval_uncertainty
+    _assert_signal(capture, values=values)
+
+
 # -- settings beside the data rows ------------------------------------------------------------
 
 
 def test_settings_in_the_leftmost_columns(tmp_path: Path) -> None:
     settings = [("Record Length", "600", "Points"), ("Sample Interval", "2.000000e-06", "s"),
-                ("Trigger Point", "100", "Samples"), ("Source", "CH1", ""), ("Vertical Units", "V", ""),
+                ("Trigger Point", "100", "Samples"), ("", "", ""), ("", "", ""), ("Source", "CH1", ""),
+                ("Vertical Units", "V", ""),
                 ("Vertical Scale", "0.2", ""), ("Horizontal Offset", "-2e-4", "s")]
     rows = []
     for k, (t, v) in enumerate(zip(TIME, SIGNAL)):

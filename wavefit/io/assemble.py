@@ -16,7 +16,7 @@ from ..errors import CaptureError
 from .capture import Capture, Channel
 from .column_units import HeaderUnit, is_time_name, parse_header
 from .preamble import Preamble
-from .timebase import TimeAxis, axis_from_column, axis_from_interval
+from .timebase import Printing, TimeAxis, axis_from_column, axis_from_interval
 
 #: Fewest data rows a capture may have.
 MIN_ROWS = 16
@@ -333,7 +333,7 @@ def _column_axis(
         )
         return TimeAxis(axis_from_interval(column.size, hint.sample_interval), hint.sample_interval), header
     time = column if clock is not None else _scaled(column, unit.scale)
-    resolution = clock if clock is not None else _printing_step(column, table.printed.get(index), unit.scale)
+    resolution = Printing(clock, clock) if clock is not None else _printing(column, table.printed.get(index), unit.scale)
 
     def where(row: int) -> str:
         return table.where([row])[0]
@@ -375,18 +375,18 @@ def _column_axis(
     return axis, header
 
 
-def _printing_step(column: np.ndarray, form: tuple[bool, int] | None, scale: float) -> float | None:
-    """The step of the last printed digit of ``column`` at its largest magnitude, in SI; None when
-    the form is not known (a frame)."""
-    if form is None:
+def _printing(column: np.ndarray, form: tuple[bool, int] | None, scale: float) -> Printing | None:
+    """The printing step of ``column`` at its largest and smallest non-zero magnitude, in SI; None
+    when the form is not known (a frame) or the column is all zero."""
+    magnitudes = np.abs(column[column != 0.0])
+    if form is None or magnitudes.size == 0:
         return None
     scientific, digits = form
-    largest = float(np.max(np.abs(column)))
     if not scientific:
-        return 10.0 ** -digits * scale
-    if largest == 0.0:
-        return None
-    return 10.0 ** (math.floor(math.log10(largest)) - digits + 1) * scale
+        return Printing(10.0 ** -digits * scale, 10.0 ** -digits * scale)
+    coarsest, finest = (10.0 ** (math.floor(math.log10(float(m))) - digits + 1) * scale
+                        for m in (magnitudes.max(), magnitudes.min()))
+    return Printing(coarsest, finest)
 
 
 def _no_time_message(table: Table) -> str:

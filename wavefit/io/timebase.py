@@ -46,6 +46,14 @@ _MANY_DEVIATIONS = 0.01
 
 
 @dataclass(frozen=True)
+class Printing:
+    """The printing step of a column's stamps (s): at its largest and at its smallest magnitude."""
+
+    coarsest: float
+    finest: float
+
+
+@dataclass(frozen=True)
 class TimeAxis:
     """A checked, uniformly sampled time axis in seconds.
 
@@ -72,7 +80,7 @@ def axis_from_column(
     header: str,
     where: Callable[[int], str],
     source: str,
-    resolution: float | None = None,
+    resolution: Printing | None = None,
 ) -> TimeAxis:
     """Check a time column and return it as the time axis.
 
@@ -87,8 +95,8 @@ def axis_from_column(
     source
         Name of the source, for messages.
     resolution
-        The stamps' printing step in seconds when it is known from their text
-        (clock stamps); estimated from the values otherwise.
+        The stamps' printing step when it is known from their text; estimated
+        from the values otherwise.
 
     Returns
     -------
@@ -123,10 +131,9 @@ def axis_from_column(
     rounded = _rounded_grid(time, header, resolution, largest=largest)
     if rounded is not None:
         return rounded
-    if resolution is None:
-        resolution = printing_resolution(time)
     if largest > MAX_INTERVAL_DEVIATION:
-        raise CaptureError(_non_uniform_message(time, dt, resolution, where, source))
+        step = resolution.coarsest if resolution is not None else printing_resolution(time)
+        raise CaptureError(_non_uniform_message(time, dt, step, where, source))
     return TimeAxis(time, dt, (
         f"time column {header!r}: the sample intervals jitter by {100 * jitter:.2g} % rms "
         f"of the median {dt:.6g} s (warning above {100 * JITTER_WARNING:g} %); "
@@ -135,12 +142,14 @@ def axis_from_column(
 
 
 def _rounded_grid(
-    time: np.ndarray, header: str, resolution: float | None, *, repeats: int = 0, largest: float = 0.0
+    time: np.ndarray, header: str, printing: Printing | None, *, repeats: int = 0, largest: float = 0.0
 ) -> TimeAxis | None:
     """The uniform grid that the stamps are a rounding of, or None when rounding does not explain them."""
     grid, slope, span = _fitted_grid(time)
-    if resolution is None:
-        resolution = printing_resolution(time)
+    if printing is None:
+        estimate = printing_resolution(time)
+        printing = Printing(estimate, estimate)
+    resolution = printing.coarsest
     if not slope > 0 or span > _ROUNDING_SPAN * resolution:
         return None
     if not repeats and resolution >= _COARSEST_RESOLUTION * slope:
@@ -148,7 +157,9 @@ def _rounded_grid(
     if repeats and resolution <= slope:
         return None  # stamps printed finer than the interval repeat only when time stands still
     n = float(time.size)
-    relative = resolution / (slope * math.sqrt(n * (n * n - 1.0)))
+    scattered = resolution / (slope * math.sqrt(n * (n * n - 1.0)))
+    shifted = 1.5 * 0.5 * (resolution - printing.finest) / (math.sqrt(3.0) * n * slope)
+    relative = math.hypot(scattered, shifted)
     if repeats:
         what = (f"repeats its value on {repeats} rows: it is printed with a resolution of about "
                 f"{resolution:.2g} s, coarser than the {slope:.6g} s between samples")
