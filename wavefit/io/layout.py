@@ -100,7 +100,6 @@ class _Run:
     start: int
     stop: int
     numeric_rows: int
-    regular_rows: int
     n_fields: int
     n_used: int
     filled: frozenset[int]
@@ -154,7 +153,7 @@ def sniff_layout(text: str, *, complete: bool, source: str, max_lines: int = 200
                 continue
             above = _line_above(lines, run.start)
             header_fits = above is not None and _header_cells(lines[above], sep, run) is not None
-            score = (run.numeric_rows, header_fits, run.regular_rows, run.n_used, -priority)
+            score = (run.numeric_rows, header_fits, run.n_used, -priority)
             if best is None or score > best[0]:
                 best = (score, sep, decimal, run)
     if best is None:
@@ -270,7 +269,7 @@ def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> list[
     clocks = {j for cells in numeric for j, cell in enumerate(cells) if is_clock(cell)}
     used = max(len(_strip_trailing_empty(cells)) for cells in numeric)
     width = max(len(cells) for _, cells in rows)
-    return [_Run(rows[0][0], stop, len(numeric), len(numeric), width, used, frozenset(filled), frozenset(clocks))]
+    return [_Run(rows[0][0], stop, len(numeric), width, used, frozenset(filled), frozenset(clocks))]
 
 
 def _with_side_rows(
@@ -301,7 +300,7 @@ def _with_side_rows(
         at = _previous_nonblank(lines, at)
     if not side:
         return run, ()
-    extended = _Run(start, run.stop, run.numeric_rows + len(side), run.regular_rows, run.n_fields,
+    extended = _Run(start, run.stop, run.numeric_rows + len(side), run.n_fields,
                     run.n_used, run.filled, run.clocks)
     return extended, tuple(reversed(side))
 
