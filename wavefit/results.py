@@ -69,7 +69,12 @@ class BudgetLine:
 
 @dataclass(frozen=True)
 class AnalysisResult:
-    """Everything one analysis gives: quantities, their budgets, the fit, warnings."""
+    """Everything one analysis gives: quantities, their budgets, the fit, warnings.
+
+    ``adequate`` is False when the fit's estimates moved significantly with the fit window
+    (the waveform model misses the waveform; ``fit["model_check"]`` has the details and the
+    budget an input for the spread): batch decisions and reports read it.
+    """
 
     method: str
     source: str | list[str]
@@ -79,11 +84,13 @@ class AnalysisResult:
     warnings: tuple[str, ...] = ()
     correlation: dict[str, dict[str, float]] = field(default_factory=dict)
     plot_data: Any = field(default=None, compare=False, repr=False)
+    adequate: bool = True
 
     def to_dict(self) -> dict[str, Any]:
         return {
             "method": self.method,
             "source": self.source,
+            "adequate": self.adequate,
             "quantities": {k: q.to_dict() for k, q in self.quantities.items()},
             "budget": {k: [line.to_dict() for line in lines] for k, lines in self.budget.items()},
             "fit": _jsonable(self.fit),
