@@ -38,10 +38,14 @@ from ..signal.clipping import extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant
 from ..uncertainty import InputSet, propagate
 from . import register
-from ._rl_windows import (Window, combine, placement_factor, placement_jitter, pooled_windows, settle_starts,
-                          start_margin, whole_record)
+from ._model_check import ModelCheck, Variation, added
+from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, combine, late_start,
+                          placement_factor, placement_jitter, pooled_windows, settle_starts, start_margin,
+                          whole_record)
 from .base import Method, PartSpec
 
+#: Budget input that carries tau's movement with the fit window when the model check fires.
+MODEL_INPUT = "model"
 #: Source resistance assumed only to size the skip after a winding-capacitance spike
 #: when the setup does not give it (the usual generator output resistance; common practice).
 TYPICAL_SOURCE_RESISTANCE = 50.0
@@ -167,9 +171,16 @@ class RLStep(Method):
                                 f"{margin:.0f} samples after its edge and tau is less precise; record the "
                                 "drive node too for a tighter result")
 
+        check = _model_check(late_start(t, sense, drive, windows, fits, noise, capture.source, self._fit_window),
+                             combined.values[0])
+        if not check.adequate:
+            warnings.append(check.warning("single-exponential model", "a coil that is not one time constant: "
+                                          "eddy currents in its core or in an armature?"))
+
         inputs = InputSet()
         inputs.add_correlated(combined.names, combined.values, combined.covariance,
                               combined.units, combined.dof, group="fit", kind="A")
+        check.add_inputs(inputs)
         self._type_b(inputs, setup, drive is not None)
         if drive is not None and "source_resistance" in setup.parts:
             notes.append("source_resistance is not used: the drive channel measures the generator")
@@ -179,10 +190,11 @@ class RLStep(Method):
                          {"L": "H", "R": "ohm", "tau": "s", "R_loop": "ohm", "I_final": "A", "E": "J"})
 
         fit_info = self._fit_info(windows, fits, combined, baseline, dt, notes)
+        fit_info["model_check"] = check.summary()
         return AnalysisResult(
             method=self.name, source=capture.source, quantities=prop.quantities, budget=prop.budget,
             fit=fit_info, warnings=tuple(dict.fromkeys(warnings)), correlation=prop.correlation,
-            plot_data=_plot(t, sense, drive, windows, fits),
+            plot_data=_plot(t, sense, drive, windows, fits), adequate=check.adequate,
         )
 
     # -- windows and fits -------------------------------------------------------------------
@@ -366,7 +378,7 @@ def _measurement_function(has_drive: bool, setup: Setup):
         r_s = x["sense_resistor"]
         if has("probe_resistance"):
             r_s = r_s * x["probe_resistance"] / (r_s + x["probe_resistance"])
-        tau = x["tau_fit"] / x["timebase"]
+        tau = (x["tau_fit"] + added(x, MODEL_INPUT)) / x["timebase"]
         step = (x["sense_high"] - x["sense_low"]) / x["vertical_gain_sense"]
         current = step / r_s if getattr(step, "nominal_value", step) > 0 else -step / r_s
         # sense impedance at the loop pole s1 = −1/tau (probe capacitance across the resistor)
@@ -390,6 +402,18 @@ def _measurement_function(has_drive: bool, setup: Setup):
                 "I_final": current, "E": inductance * current ** 2 / 2}
 
     return model
+
+
+def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
+    """The model check of the fitted tau against windows that start one tau later
+    (:func:`wavefit.methods._rl_windows.late_start`)."""
+    varied = (f"each edge window started {LATE_SHIFT_TAU:g} tau later and ended {LATE_SPAN_TAU:g} tau (at least "
+              f"{LATE_SPAN_SAMPLES} samples) after that")
+    if late is None:
+        return ModelCheck(varied, skipped="no edge window is long enough, or its signal strong enough, to be "
+                                          "refitted from one tau later")
+    return ModelCheck(varied, (Variation("tau", MODEL_INPUT, "s", tau_reported, {"late_windows": late.late},
+                                         late.z, {"full_windows": late.full}),))
 
 
 def _plot(t, sense, drive, windows, fits) -> TracePlot:
