@@ -37,12 +37,16 @@ from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, pil
 from ..uncertainty import InputSet, propagate
 from ..values import PartValue, parse_number_with_unit
 from . import register
+from ._model_check import ModelCheck, Variation, added
 from .base import Method, PartSpec
 
 UNITS = {"f0": "Hz", "fd": "Hz", "alpha": "1/s", "tau_decay": "s", "Q_loaded": "", "Q": "", "L": "H", "R": "ohm"}
 COIL_LOSS = ("unknown", "series", "parallel")
 #: |f0 early − f0 late| above this many combined standard uncertainties is flagged.
 DRIFT_Z = 4.0
+#: Budget inputs for the movement of w_d and of alpha between the early and the late part
+#: of the ring, added when the model check fires (see ring_model_check).
+MODEL_FREQUENCY, MODEL_DECAY = "model", "model_decay"
 
 
 @dataclass(frozen=True)
@@ -55,6 +59,7 @@ class RingMeasurement:
     unit: str
     info: dict[str, Any]
     warnings: tuple[str, ...]
+    model_check: ModelCheck
 
 
 @register
@@ -76,7 +81,7 @@ class LcRing(Method):
         capture = captures[0]
         meas = measure_ring(self, capture, setup)
         coil_loss = coil_loss_option(self, setup)
-        inputs, present = ring_inputs(meas.ring, setup, setup.parts, coil_loss)
+        inputs, present = ring_inputs(meas.ring, setup, setup.parts, coil_loss, meas.model_check)
         check_load_share(meas.ring, setup.parts)
         prop = propagate(inputs, lambda v: ring_model(v, present, coil_loss), UNITS)
         warnings = meas.warnings + loss_split_warning(inputs, present, coil_loss,
@@ -86,7 +91,7 @@ class LcRing(Method):
         model[meas.ring.start:meas.ring.stop] = meas.ring.evaluate(meas.time[meas.ring.start:meas.ring.stop])
         plot = TracePlot(meas.time, (("tank", meas.unit, meas.data, model),))
         return AnalysisResult(self.name, capture.source, prop.quantities, prop.budget, fit,
-                              warnings, prop.correlation, plot)
+                              warnings, prop.correlation, plot, adequate=meas.model_check.adequate)
 
 
 def coil_loss_option(method: Method, setup: Setup) -> str:
@@ -117,16 +122,18 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
         raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
                               "check the [columns] tank entry and that the record holds the ring") from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
-    info = _checks(ring, t, y, capture.source, warnings, noise)
-    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings))
+    info, check = _checks(ring, t, y, capture.source, warnings, noise)
+    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings), check)
 
 
 def ring_inputs(ring: DampedSineFit, setup: Setup, parts: Mapping[str, PartValue],
-                coil_loss: str) -> tuple[InputSet, tuple[str, ...]]:
-    """Inputs of the measurement function: fit block, timebase, parts, loss split."""
+                coil_loss: str, check: ModelCheck) -> tuple[InputSet, tuple[str, ...]]:
+    """Inputs of the measurement function: fit block, the model check's inputs when it
+    fired, timebase, parts, loss split."""
     inputs = InputSet()
     values, cov = ring.fit.subset(("alpha", "w_d"))
     inputs.add_correlated(("fit alpha", "fit w_d"), values, cov, ("1/s", "rad/s"), ring.fit.dof, "fit")
+    check.add_inputs(inputs)
     inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
     present = []
     for name in ("tank_capacitor", "stray_capacitance", "parallel_load"):
@@ -142,8 +149,8 @@ def ring_inputs(ring: DampedSineFit, setup: Setup, parts: Mapping[str, PartValue
 def ring_model(v: Mapping[str, Any], present: tuple[str, ...], coil_loss: str) -> dict[str, Any]:
     """The measurement function of lc-ring (see the module docstring)."""
     tb = v["timebase"]
-    alpha = v["fit alpha"] / tb
-    w_d = v["fit w_d"] / tb
+    alpha = (v["fit alpha"] + added(v, MODEL_DECAY)) / tb
+    w_d = (v["fit w_d"] + added(v, MODEL_FREQUENCY)) / tb
     w0 = (w_d ** 2 + alpha ** 2) ** 0.5
     cap = v["tank_capacitor"] + (v["stray_capacitance"] if "stray_capacitance" in present else 0.0)
     g = 1.0 / (v["parallel_load"] * cap) if "parallel_load" in present else 0.0
@@ -205,7 +212,8 @@ def check_load_share(ring: DampedSineFit, parts: Mapping[str, PartValue]) -> Non
 
 
 def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warnings: list[str],
-            noise: str) -> dict[str, Any]:
+            noise: str) -> tuple[dict[str, Any], ModelCheck]:
+    """The fit's diagnostics (appending to ``warnings``) and its model check."""
     dt = ring.sample_interval
     sigma = ring.fit.noise_sigma["tank"]
     amp = ring.amplitude
@@ -232,12 +240,17 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     if (max(runs) >= 5 and model_exceeds_record(seg_y, fitted, sigma)) or piles_up_at_limit(seg_y, sigma):
         warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
                         "whole ring fits on screen")
-    drift = _drift_check(ring, y, noise)
+    halves = _halves(ring, y, noise)
+    drift = _drift_check(halves)
     if drift.get("z", 0.0) > DRIFT_Z:
         warnings.append(
             f"frequency changes with amplitude: f0 = {drift['f0_early']:.7g} Hz early and "
             f"{drift['f0_late']:.7g} Hz late in the ring ({drift['z']:.1f} standard uncertainties apart): "
             "core nonlinearity? repeat with a smaller excitation")
+    check = ring_model_check(ring, halves)
+    if not check.adequate:
+        warnings.append(check.warning("damped-sinusoid model", "damping or frequency that changes with "
+                                      "amplitude: core loss or saturation?"))
     spur = _residual_peak(ring.fit.residuals, fitted - ring.fit["offset"], dt)
     if spur is not None:
         warnings.append(f"a second oscillation at {spur['frequency']:.4g} Hz ({spur['relative_energy']:.1e} of "
@@ -251,13 +264,15 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
         "samples_per_period": float(spp),
         "amplitude_to_noise": float(amp / sigma),
         "drift_check": drift,
+        "model_check": check.summary(),
         "residual_peak": spur,
         **ring.fit.summary(),
-    }
+    }, check
 
 
-def _drift_check(ring: DampedSineFit, y: np.ndarray, noise: str) -> dict[str, Any]:
-    """Fit the early and the late part of the ring separately and compare their f0."""
+def _halves(ring: DampedSineFit, y: np.ndarray, noise: str) -> tuple[DampedSineFit, DampedSineFit] | str:
+    """The early and the late part of the ring fitted separately (each from the whole fit's
+    parameters carried to its first sample), or why they could not be."""
     n = ring.stop - ring.start
     dt = ring.sample_interval
     x = ring.fit.values.copy()
@@ -265,7 +280,7 @@ def _drift_check(ring: DampedSineFit, y: np.ndarray, noise: str) -> dict[str, An
     spp = 2 * math.pi / x[4]
     split = int(min(n / 2, 1.5 / x[3])) if x[3] > 0 else n // 2
     if split < max(2 * spp, 20) or n - split < max(2 * spp, 20):
-        return {"skipped": "fewer than 2 cycles or 20 samples in the early or late part"}
+        return "fewer than 2 cycles or 20 samples in the early or late part"
     e = math.exp(-x[3] * split)
     c, s = math.cos(x[4] * split), math.sin(x[4] * split)
     late0 = np.array([x[0], e * (x[1] * c + x[2] * s), e * (x[2] * c - x[1] * s), x[3], x[4]])
@@ -274,9 +289,18 @@ def _drift_check(ring: DampedSineFit, y: np.ndarray, noise: str) -> dict[str, An
     for lo, hi, x0 in ((0, split, x), (split, n, late0)):
         seg = y[ring.start + lo:ring.start + hi]
         try:
-            sub = fit_damped_sine(t_axis[lo:hi], seg, x0, dt, noise=noise)
+            parts.append(fit_damped_sine(t_axis[lo:hi], seg, x0, dt, noise=noise))
         except (ValueError, FloatingPointError, np.linalg.LinAlgError):
-            return {"skipped": "a partial fit failed"}
+            return "a partial fit failed"
+    return parts[0], parts[1]
+
+
+def _drift_check(halves: tuple[DampedSineFit, DampedSineFit] | str) -> dict[str, Any]:
+    """Compare f0 of the early and the late part of the ring."""
+    if isinstance(halves, str):
+        return {"skipped": halves}
+    parts = []
+    for sub in halves:
         g = np.array([sub.alpha, sub.w_d]) / sub.w0
         _, cov = sub.fit.subset(("alpha", "w_d"))
         parts.append((sub.w0 / (2 * math.pi), math.sqrt(max(float(g @ cov @ g), 0.0)) / (2 * math.pi)))
@@ -284,6 +308,24 @@ def _drift_check(ring: DampedSineFit, y: np.ndarray, noise: str) -> dict[str, An
     u = math.hypot(u_e, u_l)
     return {"f0_early": f_e, "u_early": u_e, "f0_late": f_l, "u_late": u_l,
             "z": abs(f_e - f_l) / u if u > 0 else math.inf}
+
+
+def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSineFit] | str) -> ModelCheck:
+    """Model check of a ring: w_d and alpha of its early and late part (disjoint windows, so
+    the variance of a difference is the sum of theirs); a significant difference enters the
+    budget as input ``model`` on w_d or ``model_decay`` on alpha (see
+    :mod:`wavefit.methods._model_check`)."""
+    varied = "the ring's early part against its late part, each fitted alone"
+    if isinstance(halves, str):
+        return ModelCheck(varied, skipped=halves)
+    early, late = halves
+    variations = []
+    for name, label, unit in (("w_d", MODEL_FREQUENCY, "rad/s"), ("alpha", MODEL_DECAY, "1/s")):
+        u = math.hypot(early.fit.stderr(name), late.fit.stderr(name))
+        z = abs(early.fit[name] - late.fit[name]) / u if u > 0 else math.inf
+        variations.append(Variation(name, label, unit, ring.fit[name],
+                                    {"early": early.fit[name], "late": late.fit[name]}, z))
+    return ModelCheck(varied, tuple(variations))
 
 
 def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, float] | None:

@@ -28,6 +28,7 @@ from ..results import AnalysisResult, LinePlot
 from ..setup import Setup
 from ..uncertainty import InputSet, propagate
 from . import register
+from ._model_check import ModelCheck
 from .base import Method
 from .lc_ring import LcRing, coil_loss_option, loss_correction, measure_ring
 
@@ -74,7 +75,8 @@ class LcSweep(Method):
         # a first line without it gives C, the second pass uses it (the correction is second order)
         extra = 0.0
         for _ in range(2):
-            pts = [_corrected_point(meas.ring, parts, coil_loss, extra) for meas, parts in rings]
+            pts = [_corrected_point(meas.ring, parts, coil_loss, extra, meas.model_check)
+                   for meas, parts in rings]
             y = np.array([p[0] for p in pts])
             u_y = np.array([p[1] for p in pts])
             try:
@@ -86,7 +88,8 @@ class LcSweep(Method):
             per_capture.append({"source": capture.source,
                                 "tank_capacitor": parts["tank_capacitor"].value,
                                 "f0": meas.ring.w0 / (2 * math.pi), "inverse_w_squared": float(yi),
-                                "u_inverse_w_squared": float(ui), "cycles": meas.info["cycles"]})
+                                "u_inverse_w_squared": float(ui), "cycles": meas.info["cycles"],
+                                "adequate": meas.model_check.adequate, "model_check": meas.info["model_check"]})
         cov = line.covariance
         dof = math.inf
         birge = 1.0
@@ -115,19 +118,28 @@ class LcSweep(Method):
         if has_stray and prop.quantities["C"].value <= 0:
             warnings.append("the fitted capacitance is smaller than the stray_capacitance given: "
                             "C and srf are not meaningful")
+        inadequate = [capture.source for capture, (meas, _) in zip(captures, rings)
+                      if not meas.model_check.adequate]
         fit = {"model": "1/w0^2 = L*(C_added + C), York line", "coil_loss": coil_loss,
                "slope": line.slope, "intercept": line.intercept, "chi2": line.chi2, "dof": line.dof,
-               "p_value": line.p_value, "birge_ratio": birge, "captures": per_capture}
+               "p_value": line.p_value, "birge_ratio": birge, "captures": per_capture,
+               "model_check": {"adequate": not inadequate, "varied": "each ring checked alone (see captures)",
+                               "inadequate_captures": inadequate}}
         plot = LinePlot(x, y, u_x, u_y, line.slope, line.intercept, "added capacitance (F)", "1/w0² (s²)")
         return AnalysisResult(self.name, [c.source for c in captures], prop.quantities, prop.budget, fit,
-                              tuple(warnings), prop.correlation, plot)
+                              tuple(warnings), prop.correlation, plot, adequate=not inadequate)
 
 
-def _corrected_point(ring: Any, parts: dict, coil_loss: str, extra: float) -> tuple[float, float]:
-    """y = 1/(w0² − Δ) of one ring and its standard uncertainty (fit and loss split; the
-    added capacitance is the abscissa, stray is common to all points and enters C only).
-    ``extra`` is the self-capacitance estimate used for the load's damping rate."""
+def _corrected_point(ring: Any, parts: dict, coil_loss: str, extra: float,
+                     check: ModelCheck) -> tuple[float, float]:
+    """y = 1/(w0² − Δ) of one ring and its standard uncertainty (fit, the ring's model-check
+    inputs when its check fired, and loss split; the added capacitance is the abscissa, stray
+    is common to all points and enters C only). ``extra`` is the self-capacitance estimate
+    used for the load's damping rate."""
     values, cov = ring.fit.subset(("alpha", "w_d"))
+    for v in check.inputs:
+        k = ("alpha", "w_d").index(v.parameter)
+        cov[k, k] += v.standard_uncertainty ** 2
     alpha_w = _correlated_pair(values, cov)
     alpha, w_d = alpha_w
     cap = parts["tank_capacitor"].value + extra
