@@ -6,6 +6,11 @@ References
    Conformity", §4.2.1 (simple acceptance, w = 0) and §4.2.3 (non-binary
    statement with guard band: pass, conditional pass, conditional fail, fail;
    w = r·U).
+
+A part whose waveform the fitted model does not describe (``AnalysisResult.adequate``
+False) is never a clear ``pass``: its uncertainty then rests on how far the estimate moved
+with the fit window, a type B judgement rather than a measured dispersion, so conformity is
+stated at most as ``conditional pass`` (:func:`limit_by_model`).
 """
 from __future__ import annotations
 
@@ -89,3 +94,19 @@ def decide_part(quantities: Mapping[str, QuantityResult], spec: Spec) -> tuple[s
     """The part verdict (worst over its limited quantities) and each quantity's decision."""
     decisions = [decide_quantity(quantities.get(name), limit, spec) for name, limit in spec.limits.items()]
     return worst([d.verdict for d in decisions]), decisions
+
+
+#: The reason a part's verdict carries when its model check failed.
+MODEL_REASON = "the fitted model does not describe the waveform (model check failed): conformity is not shown"
+
+
+def limit_by_model(verdict: str, adequate: bool) -> tuple[str, str]:
+    """The part verdict after the model check, and the reason to record ("" when adequate).
+
+    An inadequate model turns ``pass`` into ``conditional pass``; ``conditional pass``,
+    ``conditional fail``, ``fail`` and ``error`` stay as they are (a part outside its limits
+    does not come inside because the model is poor, and an error has no result).
+    """
+    if adequate:
+        return verdict, ""
+    return (CONDITIONAL_PASS if verdict == PASS else verdict), MODEL_REASON

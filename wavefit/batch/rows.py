@@ -16,7 +16,7 @@ from typing import Any, Callable
 from ..errors import WavefitError
 from ..results import AnalysisResult
 from ..setup import Setup
-from .decision import ERROR, decide_part
+from .decision import ERROR, decide_part, limit_by_model
 from .spec import Spec
 
 Analyse = Callable[[str, Setup], AnalysisResult]
@@ -56,12 +56,16 @@ class RowMaker:
             row["capture_sha256"] = sha256_file(path)
             result = self.analyse(path, self.setup)
             verdict, decisions = decide_part(result.quantities, self.spec)
+            verdict, model_reason = limit_by_model(verdict, result.adequate)
             for name in self.quantities:
                 quantity = result.quantities.get(name)
                 if quantity is not None:
                     row[name] = quantity.value
                     row[f"{name}_U"] = quantity.expanded_uncertainty
-            notes = [d.reason for d in decisions if d.reason] + list(result.warnings)
+            notes = [d.reason for d in decisions if d.reason]
+            if model_reason:
+                notes.append(model_reason)
+            notes += result.warnings
             row.update(verdict=verdict, message="; ".join(notes))
         except WavefitError as exc:
             row.update(verdict=ERROR, message=_one_line(str(exc)))

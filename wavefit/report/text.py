@@ -13,7 +13,7 @@ SAFETY_NOTE = ("Safety: pulse and ring tests store energy (L·I²/2, C·V²/2) a
 def render(result: AnalysisResult, budget: bool = True) -> str:
     """Human-readable report of one analysis."""
     src = result.source if isinstance(result.source, str) else ", ".join(result.source)
-    lines = [f"wavefit {result.method}: {src}", ""]
+    lines = [f"wavefit {result.method}: {src}", *_model_check_lines(result), ""]
     width = max((len(n) for n in result.quantities), default=4)
     lines.append(f"  {'quantity':<{width}}  {'value ± U':<28}  k     u_rel")
     for name, q in result.quantities.items():
@@ -48,3 +48,24 @@ def _fit_summary(fit: dict) -> list[str]:
         if isinstance(value, (int, float, str)) and not isinstance(value, bool):
             out.append(f"  {key}: {value:.6g}" if isinstance(value, float) else f"  {key}: {value}")
     return out
+
+
+def _model_check_lines(result: AnalysisResult) -> list[str]:
+    """The model check's verdict, read from ``result.adequate`` and ``fit["model_check"]``;
+    an inadequate model is said in capitals before the numbers."""
+    check = result.fit.get("model_check", {})
+    if result.adequate:
+        if "skipped" in check:
+            return [f"Model check: not possible ({check['skipped']})"]
+        return ["Model check: adequate (the estimates do not move beyond the noise when the fit window changes)"]
+    lines = ["MODEL NOT ADEQUATE: the estimates move with the fit window beyond what the noise explains, so the "
+             "fitted model does not describe the waveform; the uncertainties below include that spread "
+             "as a type B input, so the result is no more precise than the model"]
+    for name, entry in check.get("parameters", {}).items():
+        if entry.get("significant"):
+            lines.append(f"  {name}: z = {entry['z']:.1f} (threshold {check['threshold_z']:g}), "
+                         f"spread ±{entry['half_width']:.4g} about {entry['reported']:.6g} -> input "
+                         f"{entry['input']!r}")
+    for source in check.get("inadequate_captures", []):
+        lines.append(f"  ring {source}: its model check failed (see its warnings)")
+    return lines
