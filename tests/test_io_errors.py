@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import gzip
+import os
 import tempfile
 import time
 import zipfile
@@ -73,7 +74,28 @@ def test_missing_file(tmp_path: Path) -> None:
 
 
 def test_directory(tmp_path: Path) -> None:
-    assert "not a file" in _message(tmp_path)
+    assert "is a directory" in _message(tmp_path)
+
+
+def test_pipe_and_device_are_refused_without_blocking(tmp_path: Path) -> None:
+    fifo = tmp_path / "pipe.csv"
+    os.mkfifo(fifo)
+    assert "is a pipe (FIFO)" in _message(fifo)
+    assert "is a device" in _message("/dev/zero")
+
+
+def test_line_longer_than_the_csv_field_limit(tmp_path: Path) -> None:
+    rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f}" for i in range(100)]
+    capture = read_capture(_write(tmp_path, "\n".join(["Note," + "x" * 200_000, "Time (s),CH1 (V)", *rows])))
+    assert capture.rows == 100 and len(capture.metadata["Note"]) == 200_000
+
+
+def test_bare_cr_file_with_a_later_line_feed(tmp_path: Path) -> None:
+    rows = [f"{i * 1e-6:.6f};{np.sin(i / 5):.4f}".replace(".", ",") for i in range(60_000)]
+    text = "Zeit (s);U (V)\r" + "\r".join(rows[:40_000]) + "\n" + "\r".join(rows[40_000:])
+    capture = read_capture(_write(tmp_path, text))
+    assert capture.rows == 60_000
+    np.testing.assert_allclose(capture.channel(1).values, np.round(np.sin(np.arange(60_000) / 5), 4))
 
 
 def test_header_only(tmp_path: Path) -> None:

@@ -110,6 +110,11 @@ def load_setup(setup: str | os.PathLike | Mapping[str, Any] | Setup) -> Setup:
 
 def read_toml(path: Path, what: str) -> dict[str, Any]:
     """The mapping in a UTF-8 TOML file; a SetupError naming the ``what`` file otherwise."""
+    from .io.source import not_a_regular_file
+
+    problem = not_a_regular_file(path)
+    if problem is not None:
+        raise SetupError(f"{what} file {path} {problem}")
     try:
         raw = path.read_bytes()
     except OSError as exc:

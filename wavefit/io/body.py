@@ -13,6 +13,7 @@ from __future__ import annotations
 import io
 import re
 from collections.abc import Iterator, Sequence
+from typing import BinaryIO
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -32,6 +33,7 @@ MAX_FOOTER_LINES = 2000
 #: goes on (the text line broke it), not that a footer began.
 RESUMED_ROWS = 5
 _END_OF_FILE = "\x1a"
+_SKIP_CHUNK = 1 << 16
 _WORD = re.compile(r"[^\W\d_]{2,}")
 _LEADING_NUMBER = re.compile(r"\s*[+-]?\.?[0-9]")
 
@@ -137,15 +139,24 @@ def _columns(frame: pd.DataFrame, layout: Layout) -> tuple[dict[int, np.ndarray]
 
 
 def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None) -> pd.DataFrame:
-    """Run the pandas C parser over the table (its first ``rows`` rows when given)."""
+    """Run the pandas C parser over the table (its first ``rows`` rows when given).
+
+    A file whose first part ends its lines with a bare CR may end later lines
+    otherwise (joined from pieces): the lines above the table are skipped here,
+    by their CRs, and the parser then takes any line end.
+    """
+    skip, terminator = layout.data_start, layout.line_terminator
     try:
         with source.open_binary() as stream:
+            if terminator == "\r" and _ascii_compatible(encoding):
+                _skip_lines(stream, skip, b"\r")
+                skip, terminator = 0, None
             return pd.read_csv(
                 stream,
                 engine="c",
                 sep=r"\s+" if layout.sep == WHITESPACE else layout.sep,
                 decimal=layout.decimal,
-                skiprows=layout.data_start,
+                skiprows=skip,
                 nrows=rows,
                 header=None,
                 names=list(range(layout.n_fields)),
@@ -156,12 +167,36 @@ def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None) 
                 keep_default_na=False,
                 skip_blank_lines=True,
                 skipinitialspace=True,
-                lineterminator=layout.line_terminator,
+                lineterminator=terminator,
                 encoding=encoding,
                 encoding_errors="replace",
             )
     except GZIP_ERRORS as exc:
         raise CaptureError(damaged_gzip_message(source.name, exc)) from None
+
+
+def _ascii_compatible(encoding: str) -> bool:
+    """True when the codec writes a CR as the single byte 0x0D (not UTF-16)."""
+    return "16" not in encoding and "32" not in encoding
+
+
+def _skip_lines(stream: BinaryIO, count: int, mark: bytes) -> None:
+    """Move ``stream`` past its first ``count`` lines ended by ``mark``, reading in chunks."""
+    while count > 0:
+        start = stream.tell()
+        chunk = stream.read(_SKIP_CHUNK)
+        if not chunk:
+            return
+        at = -1
+        for _ in range(count):
+            at = chunk.find(mark, at + 1)
+            if at < 0:
+                break
+            count -= 1
+        if at < 0:
+            continue
+        stream.seek(start + at + 1)
+        return
 
 
 def line_numbers(

@@ -86,7 +86,14 @@ def split_line(line: str, sep: str) -> list[str]:
         text = line.replace("\t", " ").strip()
         if '"' not in text:
             return text.split()
-        fields = next(csv.reader([text], delimiter=" ", skipinitialspace=True), [])
-        return [f.strip() for f in fields if f.strip()]
-    fields = next(csv.reader([line], delimiter=sep, skipinitialspace=True), [])
-    return [f.strip() for f in fields]
+        return [f.strip() for f in _quoted_fields(text, " ") if f.strip()]
+    return [f.strip() for f in _quoted_fields(line, sep)]
+
+
+def _quoted_fields(line: str, sep: str) -> list[str]:
+    """Cells of a line with double quotes honoured; a line too long for the csv module (a huge
+    preamble value) is split plainly, its quotes dropped."""
+    try:
+        return next(csv.reader([line], delimiter=sep, skipinitialspace=True), [])
+    except csv.Error:
+        return [cell.strip().strip('"') for cell in line.split(sep)]

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import gzip
 import os
+import stat
 import zlib
 from dataclasses import dataclass
 from pathlib import Path
@@ -98,10 +99,9 @@ def open_source(path: str | os.PathLike[str]) -> FileSource:
     """
     name = os.fspath(path)
     file = Path(name)
-    if not file.exists():
-        raise CaptureError(f"capture file {name} does not exist; check the path")
-    if not file.is_file():
-        raise CaptureError(f"{name} is not a file (a directory?); give the path of one capture")
+    problem = not_a_regular_file(file)
+    if problem is not None:
+        raise CaptureError(f"capture file {name} {problem}")
     try:
         with open(file, "rb") as stream:
             magic = stream.read(8)
@@ -113,6 +113,28 @@ def open_source(path: str | os.PathLike[str]) -> FileSource:
         if magic.startswith(signature):
             raise CaptureError(f"{name} is {kind}, not CSV text; unpack it and read the CSV inside")
     return FileSource(file, name, magic.startswith(_GZIP_MAGIC))
+
+
+def not_a_regular_file(path: Path) -> str | None:
+    """What is wrong when ``path`` is not a regular file one can read to its end, else None.
+
+    A FIFO or a device would block the reader or never end; a directory holds no capture.
+    """
+    try:
+        mode = path.stat().st_mode
+    except FileNotFoundError:
+        return "does not exist; check the path"
+    except OSError as exc:
+        return f"cannot be examined ({exc.strerror or exc}); check the path and its permissions"
+    if stat.S_ISREG(mode):
+        return None
+    if stat.S_ISDIR(mode):
+        return "is a directory; give the path of a file"
+    if stat.S_ISFIFO(mode):
+        return "is a pipe (FIFO), not a file; save the data to a file first"
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "is a device, not a file; give the path of a file"
+    return "is not a regular file; give the path of a file"
 
 
 def damaged_gzip_message(name: str, exc: BaseException) -> str:
