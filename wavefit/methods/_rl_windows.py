@@ -153,10 +153,11 @@ LATE_SHIFT_TAU = 1.0
 #: the shorter window keeps the check's refits to about a fifth of an analysis' time
 #: (measured on sample_data/choke_step.csv).
 LATE_SPAN_TAU = 5.0
-#: The later fit estimates its noise model and covariance sandwich from its own samples:
-#: with 200 (5 tau of 40 samples) in band-limited noise of 10 samples' correlation it
-#: understated its variance (mean z² 1.64 instead of 1 on 60 single-edge two-channel records
-#: at 30 dB, one false alarm); with 400, 1.09 (measured).
+#: In correlated noise (an AR noise model in the full window) the later fit estimates its
+#: noise model and covariance sandwich from its own samples: with 200 (5 tau of 40 samples)
+#: in band-limited noise of 10 samples' correlation it understated its variance (mean z²
+#: 1.64 instead of 1 on 60 single-edge two-channel records at 30 dB, one false alarm); with
+#: 400, 1.09 (measured). White noise needs no floor.
 LATE_SPAN_SAMPLES = 400
 #: An edge whose later window would determine tau to worse than this relative standard
 #: error (foreseen from the full window's, through the ratio of their information) is left
@@ -188,10 +189,10 @@ def late_start(t, sense, drive, windows, fits, noise, source, fit_window) -> Lat
     one that is not (eddy currents in a core or an armature add faster or slower modes)
     gives a tau that moves when the early samples, where a faster mode weighs most, are left
     out, or the tail, where a slower one does. The later window, from one tau after the
-    start to :data:`LATE_SPAN_TAU` (at least :data:`LATE_SPAN_SAMPLES`) after that, is
-    nested in the full one, so the difference of the two estimates has the variance
-    var(τ_late) − var(τ_full) when the model holds (J. A. Hausman, Econometrica 46 (1978)
-    1251–1271). var(τ_full) is taken as var(τ_late)·I_late/I_full, with I the linearised
+    start to :data:`LATE_SPAN_TAU` (in correlated noise at least :data:`LATE_SPAN_SAMPLES`)
+    after that, is nested in the full one, so the difference of the two estimates has the
+    variance var(τ_late) − var(τ_full) when the model holds (J. A. Hausman, Econometrica 46
+    (1978) 1251–1271). var(τ_full) is taken as var(τ_late)·I_late/I_full, with I the linearised
     information on tau of the later fit's curve over the two sample ranges
     (:func:`_tau_information`), not as the full fit's own variance: a model that misses the
     waveform inflates the full window's noise model (the AR model absorbs the misfit), which
@@ -206,7 +207,8 @@ def late_start(t, sense, drive, windows, fits, noise, source, fit_window) -> Lat
     for w, f in zip(windows, fits):
         tau = f["tau"]
         start = w.start + max(4, int(math.ceil(LATE_SHIFT_TAU * tau / dt)))
-        stop = min(w.stop, start + max(LATE_SPAN_SAMPLES, int(math.ceil(LATE_SPAN_TAU * tau / dt))))
+        floor = LATE_SPAN_SAMPLES if any(m.get("order", 0) for m in f.noise_model.values()) else 0
+        stop = min(w.stop, start + max(floor, int(math.ceil(LATE_SPAN_TAU * tau / dt))))
         if stop - start < max(16, int(math.ceil(2.0 * tau / dt))):
             continue
         later = dataclasses.replace(w, start=start, stop=stop)

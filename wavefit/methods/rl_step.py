@@ -407,8 +407,8 @@ def _measurement_function(has_drive: bool, setup: Setup):
 def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
     """The model check of the fitted tau against windows that start one tau later
     (:func:`wavefit.methods._rl_windows.late_start`)."""
-    varied = (f"each edge window started {LATE_SHIFT_TAU:g} tau later and ended {LATE_SPAN_TAU:g} tau (at least "
-              f"{LATE_SPAN_SAMPLES} samples) after that")
+    varied = (f"each edge window started {LATE_SHIFT_TAU:g} tau later and ended {LATE_SPAN_TAU:g} tau (in "
+              f"correlated noise at least {LATE_SPAN_SAMPLES} samples) after that")
     if late is None:
         return ModelCheck(varied, skipped="no edge window is long enough, or its signal strong enough, to be "
                                           "refitted from one tau later")
