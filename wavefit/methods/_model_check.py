@@ -14,7 +14,8 @@ References
 .. [1] JCGM 100:2008 (GUM), 4.3.7: an input known only to lie within ±a, rectangular
    distribution, u = a/√3 (clause number from memory).
 .. [2] JCGM 100:2008 (GUM), G.4.2, Eq. (G.3): degrees of freedom of a type B standard
-   uncertainty, ν ≈ ½·[Δu/u]⁻², Δu/u its relative uncertainty.
+   uncertainty, ν ≈ ½·[Δu/u]⁻², Δu/u its relative uncertainty (as quoted from G.4.2 at
+   https://www.isobudgets.com/de/faq/degrees-of-freedom-type-b-uncertainty).
 .. [3] J. A. Hausman, "Specification tests in econometrics", Econometrica 46 (1978)
    1251–1271: the difference of an efficient and a consistent estimator has the variance
    var(consistent) − var(efficient) when the model holds.
