@@ -92,7 +92,7 @@ def test_load_spec_from_toml(tmp_path):
     path.write_text("[limits\n", encoding="utf-8")
     with pytest.raises(SetupError, match="not valid TOML"):
         load_spec(path)
-    with pytest.raises(SetupError, match="cannot read spec file"):
+    with pytest.raises(SetupError, match="spec file .*missing.toml does not exist"):
         load_spec(tmp_path / "missing.toml")
 
 
