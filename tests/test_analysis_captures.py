@@ -104,3 +104,27 @@ def test_a_channel_file_with_another_time_axis_is_refused(tmp_path: Path) -> Non
              "parts": {"sense_resistor": "10 ohm"}}
     with pytest.raises(wavefit.CaptureError, match="does not share the time axis"):
         wavefit.analyze(sense_file, setup)
+
+
+def test_skip_with_a_unit_is_the_same_as_in_seconds(tmp_path: Path) -> None:
+    t, sense = _step_record(seed=6)
+    path = _write(tmp_path / "plain.csv", ["Time (s),CH2 (V)", *[f"{a:.9e},{b:.6f}" for a, b in zip(t, sense)]])
+    in_seconds = wavefit.analyze(path, {**SETUP, "options": {"skip": 3e-8}})
+    with_unit = wavefit.analyze(path, {**SETUP, "options": {"skip": "30 ns"}})
+    assert with_unit.quantities["L"].value == in_seconds.quantities["L"].value
+    with pytest.raises(wavefit.SetupError, match="skip"):
+        wavefit.analyze(path, {**SETUP, "options": {"skip": "30 nF"}})
+
+
+def test_ring_window_with_units(tmp_path: Path) -> None:
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=0.5)
+    t, v = ringdown(tank, 2e-8, 4000)
+    v = v + np.random.default_rng(7).normal(0.0, 1e-3, v.size)
+    path = _write(tmp_path / "ring.csv", ["Time (s),tank (V)", *[f"{a:.9e},{b:.6f}" for a, b in zip(t, v)]])
+    setup = {"method": "lc-ring", "columns": {"tank": "tank"}, "parts": {"tank_capacitor": "10 nF"},
+             "options": {"fit_start": "2 us", "fit_end": "70 us"}}
+    result = wavefit.analyze(path, setup)
+    assert result.fit["window_start_s"] == pytest.approx(2e-6, abs=2e-8)
+    assert result.fit["window_end_s"] == pytest.approx(70e-6, abs=2e-8)
+    with pytest.raises(wavefit.SetupError, match="fit_end"):
+        wavefit.analyze(path, {**setup, "options": {"fit_end": "seventy"}})

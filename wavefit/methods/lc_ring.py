@@ -35,7 +35,7 @@ from ..results import AnalysisResult, TracePlot
 from ..setup import Setup
 from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
 from ..uncertainty import InputSet, propagate
-from ..values import PartValue, parse_number_with_unit
+from ..values import PartValue
 from . import register
 from ._model_check import ModelCheck, Variation, added
 from .base import Method, PartSpec
@@ -77,6 +77,10 @@ class LcRing(Method):
     options = {"fit_start": None, "fit_end": None, "noise": "auto", "coil_loss": "series"}
     quantities = ("f0", "fd", "alpha", "tau_decay", "Q_loaded", "Q", "L", "R")
 
+    def check_setup(self, setup: Setup) -> None:
+        super().check_setup(setup)
+        check_time_options(self, setup)
+
     def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
         capture = captures[0]
         meas = measure_ring(self, capture, setup)
@@ -92,6 +96,12 @@ class LcRing(Method):
         plot = TracePlot(meas.time, (("tank", meas.unit, meas.data, model),))
         return AnalysisResult(self.name, capture.source, prop.quantities, prop.budget, fit,
                               warnings, prop.correlation, plot, adequate=meas.model_check.adequate)
+
+
+def check_time_options(method: Method, setup: Setup) -> None:
+    """Refuse a fit_start or fit_end that is not a time, before any capture is read."""
+    for key in ("fit_start", "fit_end"):
+        method.time_option(setup, key, negative=True)
 
 
 def coil_loss_option(method: Method, setup: Setup) -> str:
@@ -354,16 +364,11 @@ def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, floa
 
 
 def _time_option(method: Method, setup: Setup, key: str, t: np.ndarray) -> int | None:
-    value = method.option(setup, key)
-    if value is None or value == "":
+    """The sample where the time option ``key`` (an instant; before the trigger allowed) falls."""
+    seconds = method.time_option(setup, key, negative=True)
+    if seconds is None:
         return None
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
-        seconds = float(value)
-    elif isinstance(value, str):
-        seconds, _ = parse_number_with_unit(value, "s")
-    else:
-        raise SetupError(f"{setup.source}: option {key} must be a time such as \"12 us\"")
     if not t[0] <= seconds <= t[-1]:
-        raise SetupError(f"{setup.source}: option {key} = {value!r} lies outside the record "
-                         f"({t[0]:.6g} s to {t[-1]:.6g} s)")
+        raise SetupError(f"{setup.source}: option {key} = {method.option(setup, key)!r} lies outside the "
+                         f"record ({t[0]:.6g} s to {t[-1]:.6g} s)")
     return int(np.searchsorted(t, seconds))

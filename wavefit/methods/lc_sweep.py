@@ -30,7 +30,7 @@ from ..uncertainty import InputSet, propagate
 from . import register
 from ._model_check import ModelCheck
 from .base import Method
-from .lc_ring import LcRing, coil_loss_option, loss_correction, measure_ring
+from .lc_ring import LcRing, check_time_options, coil_loss_option, loss_correction, measure_ring
 
 UNITS = {"L": "H", "C": "F", "srf": "Hz"}
 #: Points off the line: warn when the chi-square probability falls below this.
@@ -48,6 +48,10 @@ class LcSweep(Method):
     options = LcRing.options
     quantities = ("L", "C", "srf")
     uses_setup_captures = True
+
+    def check_setup(self, setup: Setup) -> None:
+        super().check_setup(setup)
+        check_time_options(self, setup)
 
     def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
         if len(captures) < 2:

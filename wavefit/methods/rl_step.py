@@ -79,9 +79,7 @@ class RLStep(Method):
         noise = setup.options.get("noise", "auto")
         if noise not in ("auto", "white"):
             raise SetupError(f"{setup.source}: option noise must be \"auto\" or \"white\", got {noise!r}")
-        skip = setup.options.get("skip", "auto")
-        if skip != "auto" and not (isinstance(skip, (int, float)) and not isinstance(skip, bool) and skip >= 0):
-            raise SetupError(f"{setup.source}: option skip must be \"auto\" or a time in seconds >= 0")
+        self.time_option(setup, "skip", keywords=("auto",))  # "auto", or a time >= 0 ("30 ns")
 
     def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
         capture = captures[0]
@@ -200,7 +198,7 @@ class RLStep(Method):
     # -- windows and fits -------------------------------------------------------------------
 
     def _windows(self, t, sense, drive, edges, setup, dt):
-        skip_opt = self.option(setup, "skip")
+        skip_opt = self.time_option(setup, "skip", keywords=("auto",))
         t0s, durations = [], []
         for k, e in enumerate(edges):
             t0 = e.t0
@@ -222,7 +220,7 @@ class RLStep(Method):
                 r_ext = (rs.value if rs else TYPICAL_SOURCE_RESISTANCE) + setup.parts["sense_resistor"].value
                 skip = max(skip, 2.0 * edge_time + 7.0 * r_ext * cw.value)
         else:
-            skip = float(skip_opt)
+            skip = float(skip_opt)  # seconds
         windows = []
         for k, e in enumerate(edges):
             start = int(np.searchsorted(t, t0s[k] + skip))
