@@ -102,3 +102,13 @@ def test_several_captures_keep_going_and_report_the_worst(capture_file, tmp_path
     code, _, err = run("analyze", str(tmp_path / "missing.csv"), str(flat), "--setup", str(_rl_setup(tmp_path)))
     assert code == 4  # the flat capture has no transition (4) and is worse than the missing file (3)
     assert err.count("\n") == 2
+
+
+def test_a_capture_error_names_the_file_once_among_several(capture_file, tmp_path):
+    binary = tmp_path / "binary.csv"
+    binary.write_bytes(b"a\x00b\x00c\x00" * 10)
+    setup = tmp_path / "ring.toml"
+    setup.write_text('method = "lc-ring"\n[columns]\ntank = "CH1"\n[parts]\ntank_capacitor = "10 nF"\n', encoding="utf-8")
+    code, out, err = run("analyze", str(capture_file), str(binary), "--setup", str(setup))
+    line = next(x for x in err.splitlines() if "binary.csv" in x)
+    assert line.count("binary.csv") == 1 and "looks binary" in line

@@ -115,3 +115,14 @@ def test_one_capture_is_refused():
              "captures": [{"file": "a.csv", "tank_capacitor": "1 nF"}]}
     with pytest.raises(wavefit.AnalysisRefused, match="at least two"):
         wavefit.analyze([frame], setup=setup)
+
+
+def test_a_column_from_another_file_is_refused_for_several_captures(tmp_path):
+    from wavefit.errors import SetupError
+    from wavefit.methods import get_method
+    from wavefit.setup import load_setup
+
+    setup = load_setup({"method": "lc-sweep", "columns": {"tank": {"file": str(tmp_path / "ch1.csv"), "column": 1}},
+                        "parts": {"tank_capacitor": "10 nF"}})
+    with pytest.raises(SetupError, match="several captures"):
+        get_method("lc-sweep").check_setup(setup)

@@ -63,6 +63,20 @@ def with_columns_from_files(
     less than half a sample over the record. Its channel is added under the
     header ``<role> from <file>``, to which the setup's role then points.
 
+    Parameters
+    ----------
+    captures
+        The captures named on the command line or in the call.
+    setup
+        The parsed setup; its ``column_files`` name the other files by role.
+    sample_interval
+        The interval given for the captures, used for the other files too.
+
+    Returns
+    -------
+    tuple of (list of Capture, Setup)
+        The captures with the added channels, and the setup pointing its roles at them.
+
     Raises
     ------
     CaptureError
@@ -108,6 +122,25 @@ def with_time_axis_uncertainty(setup: Setup, captures: Sequence[Capture]) -> Set
     interval known only to u_axis (relative, see :mod:`wavefit.io.timebase`);
     it adds in quadrature to the instrument's timebase figure (JCGM 100:2008,
     5.1.2, uncorrelated inputs) and enters the budget as the ``timebase`` input.
+    The largest over several captures is taken as common to them all, which
+    overstates it for methods that combine captures (lc-sweep).
+
+    Parameters
+    ----------
+    setup
+        The parsed setup.
+    captures
+        The captures about to be analysed.
+
+    Returns
+    -------
+    Setup
+        ``setup`` itself when no axis was rebuilt, else a copy with the wider figure.
+
+    References
+    ----------
+    .. [1] JCGM 100:2008, Evaluation of measurement data - Guide to the expression of
+       uncertainty in measurement, 5.1.2.
     """
     u_axis = max((c.interval_uncertainty for c in captures), default=0.0)
     if u_axis <= 0.0:
@@ -119,7 +152,20 @@ def with_time_axis_uncertainty(setup: Setup, captures: Sequence[Capture]) -> Set
 
 
 def with_capture_remarks(result: AnalysisResult, captures: Sequence[Capture]) -> AnalysisResult:
-    """The result with every capture's warnings (once each, first) and the reader's notes."""
+    """The result with every capture's warnings (once each, first) and the reader's notes.
+
+    Parameters
+    ----------
+    result
+        What the method returned.
+    captures
+        The captures it analysed (their sources prefix the remarks when there are several).
+
+    Returns
+    -------
+    AnalysisResult
+        A copy with the warnings merged and ``fit["capture_notes"]`` when the reader noted anything.
+    """
     several = len(captures) > 1
     remarks = [f"{c.source}: {w}" if several else w for c in captures for w in c.warnings]
     warnings = tuple(dict.fromkeys([*remarks, *result.warnings]))

@@ -96,7 +96,7 @@ def _analyze(args: argparse.Namespace) -> int:
                 raise
             label = source if isinstance(source, str) else "setup captures"
             message = _one_line(str(exc))
-            named = message if label in message else f"{label}: {message}"
+            named = message if exc.source is not None else f"{label}: {message}"
             print(f"wavefit: error: {named}", file=sys.stderr)
             worst = max(worst, exc.exit_code)
             continue

@@ -8,9 +8,14 @@ from __future__ import annotations
 
 
 class WavefitError(Exception):
-    """Base of every error a user can cause; carries the CLI exit code."""
+    """Base of every error a user can cause; carries the CLI exit code.
+
+    ``source`` is set to the file's name when the message already names it (every
+    error of the capture reader does), so that callers do not name it twice.
+    """
 
     exit_code = 3
+    source: str | None = None
 
 
 class CaptureError(WavefitError):

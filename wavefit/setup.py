@@ -42,6 +42,8 @@ else:  # pragma: no cover - exercised on Python 3.10 only
 DEFAULT_TIMEBASE = "±25 ppm"
 DEFAULT_VERTICAL_GAIN = "±2%"
 
+# A value quoted in a message is cut to this many characters (a 400-digit number stays one line).
+_SHOWN_CHARS = 40
 TOP_LEVEL_KEYS = ("method", "sample_interval", "columns", "parts", "instrument", "options", "captures")
 INSTRUMENT_KEYS = ("timebase", "vertical_gain")
 #: Prefix of the per-channel gain keys, ``vertical_gain_<role>``.
@@ -245,18 +247,75 @@ def _instrument(table: Mapping[str, Any], source: str
 
 
 def _positive_seconds(value: Any, source: str) -> float:
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
-        seconds = float(value)
-    elif isinstance(value, str):
+    """The top-level ``sample_interval``: a time above zero."""
+    seconds = parse_time_option(value, "sample_interval", source, negative=True)
+    if not seconds > 0:
+        raise SetupError(f"{source}: sample_interval must be positive, got {_shown(value)}")
+    return seconds
+
+
+def parse_time_option(value: object, key: str, source: str, *, keywords: tuple[str, ...] = (),
+                      negative: bool = False) -> float | str | None:
+    """Read an option that is a time: seconds as a number, or text with a time unit.
+
+    Parameters
+    ----------
+    value : object
+        A TOML number of seconds (``3e-8``), text with a time unit (``"30 ns"``,
+        ``"1.5us"``, ``"2 µs"``, ``"30n"``), one of ``keywords`` (e.g. ``"auto"``), or
+        ``None`` for an option left unset (a default of None).
+    key : str
+        The option's name, for the message.
+    source : str
+        The setup's source, for the message.
+    keywords : tuple of str
+        Words returned as they are.
+    negative : bool
+        Accept times before zero (an instant on a record whose time axis starts before
+        the trigger); durations leave it False.
+
+    Returns
+    -------
+    float or str or None
+        Seconds, the keyword, or None when unset.
+
+    Raises
+    ------
+    SetupError
+        One line naming the option, what was found and what to write. Text without a
+        unit (``"30"``) is refused: it could be meant in seconds or in the unit of the
+        record's time axis.
+    """
+    if value is None or (isinstance(value, str) and value in keywords):
+        return value
+    choices = "".join(f"\"{word}\", " for word in keywords)
+    if isinstance(value, str):
         try:
             seconds, _ = parse_number_with_unit(value, "s", unit_required=True)
         except SetupError as exc:
-            raise SetupError(f"{source}: sample_interval: {exc}") from None
+            raise SetupError(f"{source}: option {key}: {exc}") from None
+    elif isinstance(value, (int, float)) and not isinstance(value, bool) and _finite(value):
+        seconds = float(value)
     else:
-        raise SetupError(f"{source}: sample_interval must be a number of seconds or text like \"10 ns\"")
-    if not (seconds > 0 and math.isfinite(seconds)):
-        raise SetupError(f"{source}: sample_interval must be positive, got {value!r}")
+        raise SetupError(f"{source}: option {key} must be {choices}a number of seconds or a time such as "
+                         f"\"30 ns\", got {_shown(value)}")
+    if seconds < 0 and not negative:
+        raise SetupError(f"{source}: option {key} must be {choices}a time >= 0, got {_shown(value)}")
     return seconds
+
+
+def _shown(value: Any) -> str:
+    """``repr(value)``, cut to a length that fits in a one-line message."""
+    text = repr(value)
+    return text if len(text) <= _SHOWN_CHARS else text[: _SHOWN_CHARS - 3] + "..."
+
+
+def _finite(number: int | float) -> bool:
+    """True for a number that is finite as a float (a 400-digit integer is not)."""
+    try:
+        return math.isfinite(number)
+    except OverflowError:
+        return False
 
 
 def _capture_entry(entry: Mapping[str, Any], index: int, source: str, base_dir: Path) -> CaptureEntry:

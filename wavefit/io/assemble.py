@@ -52,11 +52,11 @@ class Table:
         Each column's 0-based place in the source (``0, 1, ...`` when None).
     aliases
         A second name per column (``""`` where none), or ``()``.
-    clock_resolution
-        Printing resolution (s) of the columns read from clock-time stamps, by column.
-    printed
-        How each column's numbers were printed, by column: ``(True, n)``, n
-        significant digits in exponent form; ``(False, n)``, n decimals.
+    clock_columns
+        The columns read from clock-time stamps (seconds from the first stamp).
+    printing
+        How each column's numbers were printed, by column, in the units of the
+        file (clock stamps: in seconds), when the source's text showed it.
     """
 
     source: str
@@ -67,8 +67,8 @@ class Table:
     preamble: Preamble = Preamble()
     positions: tuple[int | None, ...] | None = None
     aliases: tuple[str, ...] = ()
-    clock_resolution: dict[int, float] = field(default_factory=dict)
-    printed: dict[int, tuple[bool, int]] = field(default_factory=dict)
+    clock_columns: frozenset[int] = frozenset()
+    printing: dict[int, Printing] = field(default_factory=dict)
 
     def position(self, index: int) -> int | None:
         """The source's column number of column ``index`` (None for a frame's index)."""
@@ -107,7 +107,7 @@ def assemble(
         When the table is too short, a column is empty, there is no usable
         time information, or the time column fails its checks.
     """
-    _check_interval_argument(sample_interval)
+    _check_interval_argument(sample_interval, table.source)
     warnings = list(table.preamble.warnings)
     table = _without_empty_edges(table, warnings)
     rows = table.columns[0].size if table.columns else 0
@@ -174,14 +174,14 @@ def _without_empty_edges(table: Table, warnings: list[str]) -> Table:
     return replace(table, columns=[c[first:stop] for c in table.columns], where=where)
 
 
-def _check_interval_argument(sample_interval: float | None) -> None:
+def _check_interval_argument(sample_interval: float | None, source: str) -> None:
     """Refuse a sample interval argument that is not a positive, finite number of seconds."""
     if sample_interval is None:
         return
     ok = isinstance(sample_interval, numbers.Real) and not isinstance(sample_interval, bool)
     if not ok or not (math.isfinite(sample_interval) and sample_interval > 0):
         raise CaptureError(
-            f"sample interval must be a positive number of seconds, got {sample_interval!r}; "
+            f"{source}: sample interval must be a positive number of seconds, got {sample_interval!r}; "
             "give it as e.g. 1e-8"
         )
 
@@ -220,16 +220,16 @@ def _filled(table: Table, index: int, warnings: list[str]) -> np.ndarray:
 
 
 def _time_index(table: Table, units: list[HeaderUnit], time_column: str | int | None) -> int | None:
-    """Index of the time column: the one asked for, else the first time-like header or second
-    name, else the first column of clock stamps, else the first column in seconds."""
+    """Index of the time column: the one asked for, else the first time-like header, else the
+    first column of clock stamps, else the first column in seconds."""
     if time_column is not None:
         return _asked_time_index(table, units, time_column)
     if table.has_header:
         for i, unit in enumerate(units):
-            if is_time_name(unit.name) or is_time_name(parse_header(table.alias(i)).name):
+            if is_time_name(unit.name):
                 return i
-    if table.clock_resolution:
-        return min(table.clock_resolution)
+    if table.clock_columns:
+        return min(table.clock_columns)
     if table.has_header:
         for i, unit in enumerate(units):
             if unit.unit == "s":
@@ -238,7 +238,7 @@ def _time_index(table: Table, units: list[HeaderUnit], time_column: str | int | 
 
 
 def _asked_time_index(table: Table, units: list[HeaderUnit], time_column: str | int) -> int:
-    """Index of the column a caller named as time (header, header without unit, second name, or place)."""
+    """Index of the column a caller named as time (header, header without unit, or place)."""
     if isinstance(time_column, numbers.Integral) and not isinstance(time_column, bool):
         for i in range(len(table.headers)):
             if table.position(i) == time_column:
@@ -248,7 +248,7 @@ def _asked_time_index(table: Table, units: list[HeaderUnit], time_column: str | 
             f"time column {time_column} is not a column of {table.source}; its columns are at {places}"
         )
     for i, (header, unit) in enumerate(zip(table.headers, units)):
-        if str(time_column) in (header, unit.name, table.alias(i)):
+        if str(time_column) in (header, unit.name):
             return i
     listed = ", ".join(repr(h) for h in table.headers)
     raise CaptureError(
@@ -319,7 +319,8 @@ def _column_axis(
     """The time axis from column ``index``, checked against the preamble's interval."""
     header = table.headers[index]
     hint = table.preamble
-    clock = table.clock_resolution.get(index)
+    printing = table.printing.get(index)
+    clock = printing.step if index in table.clock_columns and printing is not None else None
     if clock is None and unit.unit not in ("s", ""):
         raise CaptureError(
             f"{table.source}: time column {header!r} is in {unit.unit!r}, not in seconds; "
@@ -333,16 +334,20 @@ def _column_axis(
         )
         return TimeAxis(axis_from_interval(column.size, hint.sample_interval), hint.sample_interval), header
     time = column if clock is not None else _scaled(column, unit.scale)
-    resolution = Printing(clock, clock) if clock is not None else _printing(column, table.printed.get(index), unit.scale)
+    if printing is not None and clock is None:
+        printing = replace(printing, scale=unit.scale)
 
     def where(row: int) -> str:
         return table.where([row])[0]
 
     try:
-        axis = axis_from_column(time, header=header, where=where, source=table.source, resolution=resolution)
+        axis = axis_from_column(time, header=header, where=where, source=table.source, resolution=printing)
     except CaptureError as exc:
         if clock is None or hint.sample_interval is None:
             raise
+        stated = (column.size - 1) * hint.sample_interval
+        if abs(float(column[-1] - column[0]) - stated) > max(2.0 * clock, 0.5 * hint.sample_interval):
+            raise  # the stamps span another time than the rows at the stated interval: samples missing
         warnings.append(
             f"the clock stamps in column {header!r} are not uniform ({exc}); the time axis is built from "
             f"the preamble's sample interval {hint.sample_interval:.6g} s ({hint.interval_line})"
@@ -363,30 +368,16 @@ def _column_axis(
             f"{axis.sample_interval:.6g} s; the time column is used"
         )
         return axis, header
-    if axis.rebuilt:
+    if axis.relative_uncertainty > 0.0:
         # the stated interval is exact where the rebuilt one carries the rounding's uncertainty
         first = float(axis.time[0])
         warnings.append(
-            f"the preamble's sample interval {hint.sample_interval:.6g} s ({hint.interval_line}) agrees "
-            f"with the rebuilt axis and is used instead of it"
+            f"time column {header!r} is printed too coarsely to give the interval to better than "
+            f"{axis.relative_uncertainty:.1e} relative; the preamble's sample interval "
+            f"{hint.sample_interval:.6g} s ({hint.interval_line}) agrees with it and is used"
         )
-        return TimeAxis(axis_from_interval(column.size, hint.sample_interval, first), hint.sample_interval,
-                        axis.warnings), header
+        return TimeAxis(axis_from_interval(column.size, hint.sample_interval, first), hint.sample_interval), header
     return axis, header
-
-
-def _printing(column: np.ndarray, form: tuple[bool, int] | None, scale: float) -> Printing | None:
-    """The printing step of ``column`` at its largest and smallest non-zero magnitude, in SI; None
-    when the form is not known (a frame) or the column is all zero."""
-    magnitudes = np.abs(column[column != 0.0])
-    if form is None or magnitudes.size == 0:
-        return None
-    scientific, digits = form
-    if not scientific:
-        return Printing(10.0 ** -digits * scale, 10.0 ** -digits * scale)
-    coarsest, finest = (10.0 ** (math.floor(math.log10(float(m))) - digits + 1) * scale
-                        for m in (magnitudes.max(), magnitudes.min()))
-    return Printing(coarsest, finest)
 
 
 def _no_time_message(table: Table) -> str:

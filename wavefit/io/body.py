@@ -258,12 +258,12 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> 
     rows = 0
     message: str | None = None
     footer: list[tuple[int, str]] = []
-    shaped = 0
+    shaped = in_a_row = 0
     for number, line in _table_lines(source, layout, encoding):
         if not line.strip():
             continue
         problem = None
-        quick = '"' not in line and fast.fullmatch(line) is not None
+        quick = not layout.clock_fields and '"' not in line and fast.fullmatch(line) is not None
         if not (quick and _count_cells(line, layout.sep) <= layout.n_fields):
             problem = _line_problem(source.name, number, line, layout)
         if message is None:
@@ -273,13 +273,16 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> 
             if not (_is_footer_text(line) or _is_other_shape(line, layout)):
                 return _Scan(problem)
             message = problem
-        shaped = shaped + 1 if problem is None and _count_cells(line, layout.sep) == layout.n_fields else 0
-        if shaped >= RESUMED_ROWS or len(footer) >= MAX_FOOTER_LINES:
+        table_row = problem is None and _count_cells(line, layout.sep) == layout.n_fields
+        shaped, in_a_row = shaped + table_row, in_a_row + 1 if table_row else 0
+        if in_a_row >= RESUMED_ROWS or len(footer) >= MAX_FOOTER_LINES:
             return _Scan(message)
         footer.append((number, line.strip()))
     if message is None:
         reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
         return _Scan(f"{source.name}: the table body could not be parsed ({reason}); check the file")
+    if 2 * shaped > len(footer):
+        return _Scan(message)  # mostly rows of the table after one line: that line broke the table
     return _Scan(None, rows, tuple(footer))
 
 
@@ -292,10 +295,10 @@ def _is_footer_text(line: str) -> bool:
 
 
 def _is_other_shape(line: str, layout: Layout) -> bool:
-    """A line of whole numbers in another shape than the table's rows (settings written as
-    numbers after it, ``1 0`` in a tab-separated table), not a cut or damaged row."""
+    """A line of whole numbers in fewer cells than the table's rows (settings written as numbers
+    after it, ``1 0`` in a tab-separated table), not a cut row or a row with a cell too many."""
     tokens = re.split(r"[\s,;|]+", line.strip())
-    return _count_cells(line, layout.sep) != layout.n_fields and all(
+    return _count_cells(line, layout.sep) < layout.n_fields and all(
         is_number(token, ".") or is_number(token, ",") for token in tokens
     )
 
@@ -309,9 +312,11 @@ def _line_problem(name: str, number: int, line: str, layout: Layout) -> str | No
             f"{layout.n_fields} ({layout.describe_separator()}-separated); fix or delete that line"
         )
     for j, cell in enumerate(cells):
+        if j in layout.clock_fields:
+            if is_clock(cell) or is_missing(cell):
+                continue
+            return bad_cell_message(name, number, cell)
         if is_number(cell, layout.decimal) or is_missing(cell):
-            continue
-        if j in layout.clock_fields and is_clock(cell):
             continue
         if layout.side_rows and j not in layout.fields:
             continue

@@ -16,7 +16,9 @@ class Channel:
     unit (``"V"``, ``"A"``, ``""`` when the file gives none) and ``scale`` the
     factor that was applied to the file's numbers to reach SI. ``position``
     is the column's 0-based place in the file (None when unknown) and
-    ``alias`` a second name from a name line above the header (``""`` if none).
+    ``alias`` a second name from a name line above the header (``""`` if none),
+    shown by ``inspect``; it does not find the column, since a preamble line
+    of the header's width cannot be told from a name line.
     """
 
     name: str
@@ -58,7 +60,7 @@ class Capture:
         return int(self.time.size)
 
     def channel(self, key: str | int) -> Channel:
-        """Find a channel by exact header, by header without unit, by second name, or by 0-based index.
+        """Find a channel by exact header, by header without unit, or by 0-based index.
 
         Indices count the file's columns, the time column included, as a user
         sees them in the file.
@@ -69,15 +71,13 @@ class Capture:
             raise SetupError(f"column {key!r} is not a column name or index")
         if isinstance(key, (int, np.integer)):
             return self._channel_at(int(key))
-        for match in (
-            lambda ch: ch.header == key,
-            lambda ch: ch.name == key,
-            lambda ch: bool(ch.alias) and ch.alias == key,
-        ):
-            found = [ch for ch in self.channels if match(ch)]
-            if found:
-                return found[0]
-        lowered = [ch for ch in self.channels if str(key).lower() in (ch.name.lower(), ch.alias.lower())]
+        for ch in self.channels:
+            if ch.header == key:
+                return ch
+        for ch in self.channels:
+            if ch.name == key:
+                return ch
+        lowered = [ch for ch in self.channels if ch.name.lower() == str(key).lower()]
         if len(lowered) == 1:
             return lowered[0]
         names = ", ".join(repr(c.header) for c in self.channels)
@@ -87,6 +87,10 @@ class Capture:
         """The channel in the file's column ``index`` (the time column counted)."""
         from ..errors import SetupError
 
+        if all(ch.position is None for ch in self.channels):  # built by hand: the order of column_headers
+            headers = self.column_headers()
+            if 0 <= index < len(headers) and headers[index] != self.time_column:
+                return next(ch for ch in self.channels if ch.header == headers[index])
         if index == self.time_position and self.time_column is not None:
             raise SetupError(f"column index {index} is the time column {self.time_column!r}")
         for ch in self.channels:
@@ -98,11 +102,14 @@ class Capture:
         raise SetupError(f"column index {index} is not a column of {self.source}; its columns are at {listed}")
 
     def column_headers(self) -> list[str]:
-        """All headers in file order, the time column included."""
-        columns = [(ch.position, ch.header) for ch in self.channels]
-        if self.time_column is not None:
-            columns.append((self.time_position, self.time_column))
-        return [header for _, header in sorted(columns, key=lambda c: -1 if c[0] is None else c[0])]
+        """All headers in file order, the time column included (first, when the places are not known)."""
+        headers = [ch.header for ch in self.channels]
+        time = [] if self.time_column is None else [self.time_column]
+        if all(ch.position is None for ch in self.channels):
+            return [*time, *headers]
+        placed = [(ch.position, ch.header) for ch in self.channels]
+        placed += [(self.time_position, header) for header in time]
+        return [header for _, header in sorted(placed, key=lambda c: -1 if c[0] is None else c[0])]
 
     def describe(self) -> dict[str, Any]:
         """What the reader saw, as printed by ``wavefit inspect --json``."""

@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 
 _DATE = r"(?:\d{4}[-/.]\d{1,2}[-/.]\d{1,2}|\d{1,2}[-/.]\d{1,2}[-/.]\d{2,4})"
-_TIME_OF_DAY = r"(?P<h>\d{1,2}):(?P<m>\d{2}):(?P<s>\d{2})(?:[.,](?P<f>\d{1,12}))?"
+_TIME_OF_DAY = r"(?P<h>[01]?\d|2[0-3]):(?P<m>[0-5]\d):(?P<s>[0-5]\d|60)(?:[.,](?P<f>\d{1,12}))?"
 _MERIDIEM = r"(?:\s*(?P<ampm>[AaPp]\.?[Mm]\.?))?"
 _ZONE = r"(?:\s*(?:Z|[+-]\d{2}(?::?\d{2})?))?"
 _STAMP = rf"(?:{_DATE}(?:\s+|T))?{_TIME_OF_DAY}{_MERIDIEM}{_ZONE}"
@@ -54,7 +54,19 @@ class ClockColumn:
 
 
 def is_clock(cell: str) -> bool:
-    """True when ``cell`` is a clock-time stamp this reader understands."""
+    """True when ``cell`` is a clock-time stamp this reader understands.
+
+    Parameters
+    ----------
+    cell
+        One cell's text.
+
+    Returns
+    -------
+    bool
+        Whether it is an optional date, the time of day (hours 0-23, minutes and
+        seconds 0-59, a leap second 60), an optional AM/PM and zone.
+    """
     return CLOCK_PATTERN.fullmatch(cell) is not None
 
 

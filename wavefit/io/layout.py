@@ -241,23 +241,30 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
     """
     runs: list[_Run] = []
     rows: list[tuple[int, list[str]]] = []
-    shape: int | None = None
+    shape: tuple[int, int] | None = None  # cells, and cells without the empty ones at the end
     for i, line in enumerate([*lines, None]):
         if line is not None and not line.strip():
             continue
         cells = split_line(line, sep) if line is not None else []
         kind = _row_kind(cells, decimal) if line is not None else "text"
-        if kind == "numeric" and shape is not None and len(cells) != shape:
+        row_shape = (len(cells), len(_strip_trailing_empty(cells)))
+        if kind == "numeric" and shape is not None and not _same_shape(row_shape, shape):
             runs += _run_of(rows, decimal, stop=i)
             rows, shape = [], None
         if kind != "text":
             rows.append((i, cells))
-            if kind == "numeric":
-                shape = len(cells)
+            if kind == "numeric" and shape is None:
+                shape = row_shape
             continue
         runs += _run_of(rows, decimal, stop=i)
         rows, shape = [], None
     return max(runs, key=lambda r: r.numeric_rows, default=None)
+
+
+def _same_shape(row: tuple[int, int], run: tuple[int, int]) -> bool:
+    """A row fits a run when it has as many cells, or as many up to its last filled one (a trailing
+    separator on some rows, or an empty last cell, does not change the table's shape)."""
+    return row[0] == run[0] or row[1] == run[1]
 
 
 def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> list[_Run]:
@@ -431,6 +438,22 @@ def _refuse_earlier_table(lines: list[str], sep: str, decimal: str, run: _Run, s
             found = texts[0] if len(texts) == 1 else line.strip()
             raise CaptureError(bad_cell_message(source, i + 1, found))
         rows = 0
+    _refuse_rows_of_another_shape_above(lines, sep, decimal, run, source)
+
+
+def _refuse_rows_of_another_shape_above(lines: list[str], sep: str, decimal: str, run: _Run, source: str) -> None:
+    """Raise when numeric rows of another shape lead straight into the table: they are data that a
+    changed number of cells cut off, not a count line (one or two lines)."""
+    rows, at, first = 0, _previous_nonblank(lines, run.start), None
+    while at is not None and _row_kind(split_line(lines[at], sep), decimal) == "numeric":
+        rows, first = rows + 1, first if first is not None else at
+        at = _previous_nonblank(lines, at)
+    if rows >= _EARLIER_TABLE_ROWS and first is not None:
+        count = len(split_line(lines[first], sep))
+        raise CaptureError(
+            f"{source}, line {first + 1}: {count} cells where the table below has {run.n_fields} "
+            f"({_SEPARATOR_NAMES[sep]}-separated), and {rows} such rows above it; make the rows agree"
+        )
 
 
 def bad_cell_message(source: str, line_number: int, found: str) -> str:

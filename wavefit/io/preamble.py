@@ -225,10 +225,9 @@ def _time_quantity(key: str, value: str, sep: str = ",") -> tuple[str | None, fl
     if key_kind is None:
         return None, None
     kind = "start" if key_kind == "start" else "interval"
-    copies_text = re.split(_COPY_SEPARATORS[sep], value)
-    if kind == "start" and all(is_clock(c.strip('"')) for c in copies_text if c.strip()):
-        return None, None  # a clock time of the first sample: the axis starts at 0 from it
     copies = [c.strip().strip('"') for c in re.split(_COPY_SEPARATORS[sep], value) if c.strip().strip('"')]
+    if kind == "start" and all(is_clock(c) for c in copies):
+        return None, None  # a clock time of the first sample: the axis starts at 0 from it
     if len(copies) > 1:
         found = [_seconds(key, key_kind, kind, c) for c in copies]
         first = found[0]

@@ -6,13 +6,15 @@ import re
 from collections.abc import Sequence
 from dataclasses import replace
 
+from ..errors import CaptureError
 from .assemble import Table, assemble
-from .body import line_numbers, read_body
+from .body import Body, line_numbers, read_body
 from .capture import Capture
 from .encoding import decode_head
-from .layout import sniff_layout
+from .layout import Layout, sniff_layout
 from .preamble import Preamble, read_preamble
 from .source import open_source
+from .timebase import Printing
 
 #: The layout is sniffed on at most this many lines ...
 SNIFF_LINES = 200
@@ -55,6 +57,15 @@ def read_capture(
         With a one-line message when the file cannot be read as a uniformly
         sampled waveform table.
     """
+    try:
+        return _read(path, sample_interval, time_column)
+    except CaptureError as exc:
+        exc.source = os.fspath(path)  # every message of the reader names the file
+        raise
+
+
+def _read(path: str | os.PathLike[str], sample_interval: float | None, time_column: str | int | None) -> Capture:
+    """:func:`read_capture` without the marking of its errors."""
     source = open_source(path)
     raw, complete = source.read_head(SNIFF_BYTES, SNIFF_LINES)
     head = decode_head(raw, complete=complete, source=source.name)
@@ -76,10 +87,17 @@ def read_capture(
         preamble=preamble,
         positions=layout.fields,
         aliases=layout.aliases,
-        clock_resolution=body.clock_resolution,
-        printed=layout.printed,
+        clock_columns=frozenset(body.clock_resolution),
+        printing=_printing(layout, body),
     )
     return assemble(table, sample_interval=sample_interval, time_column=time_column)
+
+
+def _printing(layout: Layout, body: Body) -> dict[int, Printing]:
+    """How each read column is printed: clock stamps by their resolution, numbers by their form."""
+    forms = {k: Printing(digits=n) if scientific else Printing(step=10.0 ** -n)
+             for k, (scientific, n) in layout.printed.items()}
+    return {**forms, **{k: Printing(step=r) for k, r in body.clock_resolution.items()}}
 
 
 def _with_footer(preamble: Preamble, footer: tuple[tuple[int, str], ...], sep: str) -> Preamble:

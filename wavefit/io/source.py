@@ -119,6 +119,16 @@ def not_a_regular_file(path: Path) -> str | None:
     """What is wrong when ``path`` is not a regular file one can read to its end, else None.
 
     A FIFO or a device would block the reader or never end; a directory holds no capture.
+
+    Parameters
+    ----------
+    path
+        A capture, setup or spec file.
+
+    Returns
+    -------
+    str or None
+        The end of a message (``"is a directory; ..."``), or None for a regular file.
     """
     try:
         mode = path.stat().st_mode

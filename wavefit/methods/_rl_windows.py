@@ -159,6 +159,13 @@ LATE_SPAN_TAU = 5.0
 #: 1.64 instead of 1 on 60 single-edge two-channel records at 30 dB, one false alarm); with
 #: 400, 1.09 (measured). White noise needs no floor.
 LATE_SPAN_SAMPLES = 400
+#: The later window starts at least this many samples later (a tau of a few samples would
+#: otherwise barely move it), and is only refitted when it holds at least LATE_MIN_SAMPLES
+#: and LATE_MIN_TAU tau: fewer cannot separate tau from the settled level (the same 2 tau
+#: that an edge window needs).
+LATE_MIN_SHIFT = 4
+LATE_MIN_SAMPLES = 16
+LATE_MIN_TAU = 2.0
 #: An edge whose later window would determine tau to worse than this relative standard
 #: error (foreseen from the full window's, through the ratio of their information) is left
 #: out: the check compares linearised variances, which a nonlinear fit's estimate follows
@@ -198,7 +205,8 @@ def late_start(t, sense, drive, windows, fits, noise, source, fit_window) -> Lat
     waveform inflates the full window's noise model (the AR model absorbs the misfit), which
     made var(τ_late) − var(τ_full) negative on records with a second time constant. The
     edges are independent, so the weighted per-edge differences add. An edge is left out
-    when its later window is shorter than 2 tau or 16 samples, would determine tau to worse
+    when its later window is shorter than :data:`LATE_MIN_TAU` tau or :data:`LATE_MIN_SAMPLES`
+    samples, would determine tau to worse
     than :data:`LATE_RELATIVE_ERROR`, or its refit fails; returns None when no edge is left
     or the windows carry no information on tau.
     """
@@ -206,10 +214,10 @@ def late_start(t, sense, drive, windows, fits, noise, source, fit_window) -> Lat
     weights, full, late, var_d = [], [], [], []
     for w, f in zip(windows, fits):
         tau = f["tau"]
-        start = w.start + max(4, int(math.ceil(LATE_SHIFT_TAU * tau / dt)))
+        start = w.start + max(LATE_MIN_SHIFT, int(math.ceil(LATE_SHIFT_TAU * tau / dt)))
         floor = LATE_SPAN_SAMPLES if any(m.get("order", 0) for m in f.noise_model.values()) else 0
         stop = min(w.stop, start + max(floor, int(math.ceil(LATE_SPAN_TAU * tau / dt))))
-        if stop - start < max(16, int(math.ceil(2.0 * tau / dt))):
+        if stop - start < max(LATE_MIN_SAMPLES, int(math.ceil(LATE_MIN_TAU * tau / dt))):
             continue
         later = dataclasses.replace(w, start=start, stop=stop)
         # the later window's standard error of tau, foreseen from the full window's

@@ -2,15 +2,14 @@
 against it."""
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import ClassVar
 
 from ..errors import SetupError
 from ..io.capture import Capture, Channel
 from ..results import AnalysisResult
-from ..setup import GAIN_KEY_PREFIX, INSTRUMENT_KEYS, Setup, check_names
-from ..values import PartValue, parse_number_with_unit
+from ..setup import GAIN_KEY_PREFIX, INSTRUMENT_KEYS, Setup, check_names, parse_time_option
+from ..values import PartValue
 
 
 @dataclass(frozen=True)
@@ -44,6 +43,9 @@ class Method:
     def check_setup(self, setup: Setup) -> None:
         """Reject unknown roles, parts, options, instrument keys and captures; require the
         required ones."""
+        if setup.column_files and self.uses_setup_captures:
+            raise SetupError(f"{setup.source}: method {self.name!r} takes several captures, so a column cannot "
+                             "come from one other file; give each capture's columns in its own file")
         check_names(setup.columns, ("time", *self.roles), "role in [columns]", setup.source)
         check_names(setup.parts, tuple(self.parts), "part in [parts]", setup.source)
         check_names(setup.options, tuple(self.options), "option in [options]", setup.source)
@@ -106,53 +108,3 @@ class Method:
 
     def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:  # pragma: no cover
         raise NotImplementedError
-
-
-def parse_time_option(value: object, key: str, source: str, *, keywords: tuple[str, ...] = (),
-                      negative: bool = False) -> float | str | None:
-    """Read an option that is a time: seconds as a number, or text with a time unit.
-
-    Parameters
-    ----------
-    value : object
-        A TOML number of seconds (``3e-8``), text with a time unit (``"30 ns"``,
-        ``"1.5us"``, ``"2 µs"``, ``"30n"``), one of ``keywords`` (e.g. ``"auto"``), or
-        ``None`` for an option left unset (a default of None).
-    key : str
-        The option's name, for the message.
-    source : str
-        The setup's source, for the message.
-    keywords : tuple of str
-        Words returned as they are.
-    negative : bool
-        Accept times before zero (an instant on a record whose time axis starts before
-        the trigger); durations leave it False.
-
-    Returns
-    -------
-    float or str or None
-        Seconds, the keyword, or None when unset.
-
-    Raises
-    ------
-    SetupError
-        One line naming the option, what was found and what to write. Text without a
-        unit (``"30"``) is refused: it could be meant in seconds or in the unit of the
-        record's time axis.
-    """
-    if value is None or (isinstance(value, str) and value in keywords):
-        return value
-    choices = "".join(f"\"{word}\", " for word in keywords)
-    if isinstance(value, str):
-        try:
-            seconds, _ = parse_number_with_unit(value, "s", unit_required=True)
-        except SetupError as exc:
-            raise SetupError(f"{source}: option {key}: {exc}") from None
-    elif isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value):
-        seconds = float(value)
-    else:
-        raise SetupError(f"{source}: option {key} must be {choices}a number of seconds or a time such as "
-                         f"\"30 ns\", got {value!r}")
-    if seconds < 0 and not negative:
-        raise SetupError(f"{source}: option {key} must be {choices}a time >= 0, got {value!r}")
-    return seconds

@@ -124,11 +124,15 @@ class LcSweep(Method):
                             "C and srf are not meaningful")
         inadequate = [capture.source for capture, (meas, _) in zip(captures, rings)
                       if not meas.model_check.adequate]
+        unchecked = [capture.source for capture, (meas, _) in zip(captures, rings)
+                     if meas.model_check.skipped is not None]
         fit = {"model": "1/w0^2 = L*(C_added + C), York line", "coil_loss": coil_loss,
                "slope": line.slope, "intercept": line.intercept, "chi2": line.chi2, "dof": line.dof,
                "p_value": line.p_value, "birge_ratio": birge, "captures": per_capture,
                "model_check": {"adequate": not inadequate, "varied": "each ring checked alone (see captures)",
                                "inadequate_captures": inadequate}}
+        if len(unchecked) == len(captures):
+            fit["model_check"]["skipped"] = "no ring's check was possible (see captures)"
         plot = LinePlot(x, y, u_x, u_y, line.slope, line.intercept, "added capacitance (F)", "1/w0² (s²)")
         return AnalysisResult(self.name, [c.source for c in captures], prop.quantities, prop.budget, fit,
                               tuple(warnings), prop.correlation, plot, adequate=not inadequate)

@@ -92,7 +92,7 @@ class RLStep(Method):
                 raise AnalysisRefused(f"{capture.source}: the {label} channel has missing samples; "
                                       "rl-step needs a gap-free record")
         dt = float(capture.sample_interval)
-        warnings: list[str] = list(capture.warnings)
+        warnings: list[str] = []  # the capture's own warnings are added by the front door
         notes: list[str] = []
 
         edges = find_edges(t, sense)
