@@ -37,13 +37,14 @@ from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, pil
 from ..uncertainty import InputSet, propagate
 from ..values import PartValue
 from . import register
-from ._model_check import ModelCheck, Variation, added
+from ._model_check import MODEL_Z, ModelCheck, Variation, added
 from .base import Method, PartSpec
 
 UNITS = {"f0": "Hz", "fd": "Hz", "alpha": "1/s", "tau_decay": "s", "Q_loaded": "", "Q": "", "L": "H", "R": "ohm"}
 COIL_LOSS = ("unknown", "series", "parallel")
-#: |f0 early − f0 late| above this many combined standard uncertainties is flagged.
-DRIFT_Z = 4.0
+#: |f0 early − f0 late| above this many combined standard uncertainties is flagged: the
+#: model check's threshold, since the same two partial fits serve both.
+DRIFT_Z = MODEL_Z
 #: Budget inputs for the movement of w_d and of alpha between the early and the late part
 #: of the ring, added when the model check fires (see ring_model_check).
 MODEL_FREQUENCY, MODEL_DECAY = "model", "model_decay"
