@@ -8,10 +8,12 @@ from typing import Any, Mapping, Sequence
 
 import pandas as pd
 
+from .capture_checks import refuse_shared_columns, without_glitches
 from .errors import CaptureError, SetupError
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
 from .methods import get_method
+from .numerics import collected
 from .results import AnalysisResult
 from .setup import RelativeFigure, Setup, load_setup
 
@@ -49,7 +51,14 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         captures = [load_capture(source, interval, time_col)]
     if parsed.column_files:
         captures, parsed = with_columns_from_files(captures, parsed, interval)
-    result = method.analyze(captures, with_time_axis_uncertainty(parsed, captures))
+    refuse_shared_columns(captures, parsed.columns, parsed.source)
+    captures = [without_glitches(capture) for capture in captures]
+    with collected() as numerical:
+        result = method.analyze(captures, with_time_axis_uncertainty(parsed, captures))
+    method.check_physical(result)
+    remark = numerical.remark()
+    if remark is not None:
+        result = replace(result, warnings=(*result.warnings, remark))
     return with_capture_remarks(result, captures)
 
 

@@ -127,6 +127,8 @@ def read_toml(path: Path, what: str) -> dict[str, Any]:
         raise SetupError(f"{what} file {path} is not UTF-8 text") from None
     except tomllib.TOMLDecodeError as exc:
         raise SetupError(f"{what} file {path} is not valid TOML: {exc}") from None
+    except RecursionError:
+        raise SetupError(f"{what} file {path} nests arrays or tables too deeply to read") from None
 
 
 def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setup:

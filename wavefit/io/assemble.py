@@ -296,6 +296,7 @@ def _time_axis(
     start = hint.start_time or 0.0
     if sample_interval is not None:
         if time_index is not None:
+            _refuse_contradicting_column(table, units, columns, time_index, sample_interval)
             warnings.append(
                 f"sample interval {sample_interval:.6g} s was given, so the time column "
                 f"{table.headers[time_index]!r} is not used as time axis and is kept as a column"
@@ -311,6 +312,27 @@ def _time_axis(
     if hint.sample_interval is not None:
         return TimeAxis(axis_from_interval(rows, hint.sample_interval, start), hint.sample_interval), None
     raise CaptureError(_no_time_message(table))
+
+
+def _refuse_contradicting_column(
+    table: Table, units: list[HeaderUnit], columns: list[np.ndarray], index: int, sample_interval: float
+) -> None:
+    """Refuse a given sample interval that a uniform time column of the table contradicts
+    (beyond rounding, 1 %): one of the two is wrong, and L would be off by their ratio."""
+    unit = units[index]
+    if index in table.clock_columns or unit.unit not in ("s", ""):
+        return
+    try:
+        axis = axis_from_column(_scaled(columns[index], unit.scale), header=table.headers[index],
+                                where=lambda row: "", source=table.source)
+    except CaptureError:
+        return  # not a usable time column: the given interval is the way to read the table
+    if not _same(axis.sample_interval, sample_interval):
+        raise CaptureError(
+            f"{table.source}: a sample interval of {sample_interval:.6g} s was given, but the time column "
+            f"{table.headers[index]!r} steps by {axis.sample_interval:.6g} s ({sample_interval / axis.sample_interval:.3g} "
+            "times that); drop the given interval (sample_interval in the setup, --sample-interval) or fix the column"
+        )
 
 
 def _column_axis(

@@ -2,10 +2,11 @@
 against it."""
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import ClassVar
 
-from ..errors import SetupError
+from ..errors import AnalysisRefused, SetupError
 from ..io.capture import Capture, Channel
 from ..results import AnalysisResult
 from ..setup import GAIN_KEY_PREFIX, INSTRUMENT_KEYS, Setup, check_names, parse_time_option
@@ -37,6 +38,11 @@ class Method:
     #: Names of the quantities every result of this method reports, in report order
     #: (batch output columns are built from it before any capture is analysed).
     quantities: ClassVar[tuple[str, ...]] = ()
+    #: Quantities that only a physical part has positive (L > 0, tau > 0, ...): a result with
+    #: one of them at or below zero is refused, never reported.
+    positive: ClassVar[tuple[str, ...]] = ()
+    #: What to check when a result is refused as not physical (named in the message).
+    unphysical_hint: ClassVar[str] = ""
     #: True when the method takes its captures from ``[[captures]]`` in the setup.
     uses_setup_captures: ClassVar[bool] = False
 
@@ -100,6 +106,29 @@ class Method:
         """The option ``key`` (or its default) read by :func:`parse_time_option`."""
         return parse_time_option(self.option(setup, key), key, setup.source, keywords=keywords,
                                  negative=negative)
+
+    def check_physical(self, result: AnalysisResult) -> None:
+        """Refuse a result with a non-finite value or uncertainty, or a non-positive quantity
+        of :attr:`positive`: it could not be a measurement of a real part.
+
+        Parameters
+        ----------
+        result
+            The method's result.
+
+        Raises
+        ------
+        AnalysisRefused
+            Naming the quantity, its value and :attr:`unphysical_hint`.
+        """
+        source = result.source if isinstance(result.source, str) else ", ".join(result.source)
+        for name, q in result.quantities.items():
+            finite = math.isfinite(q.value) and math.isfinite(q.expanded_uncertainty)
+            if not finite or (name in self.positive and q.value <= 0):
+                what = "is not a finite number" if not finite else "is not positive"
+                raise AnalysisRefused(
+                    f"{source}: {name} came out as {q.value:.4g} ± {q.expanded_uncertainty:.2g} {q.unit}, which "
+                    f"{what}: no measurement of a real part; {self.unphysical_hint}")
 
     @staticmethod
     def channel(capture: Capture, setup: Setup, role: str) -> Channel:

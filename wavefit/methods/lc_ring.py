@@ -77,6 +77,9 @@ class LcRing(Method):
     }
     options = {"fit_start": None, "fit_end": None, "noise": "auto", "coil_loss": "series"}
     quantities = ("f0", "fd", "alpha", "tau_decay", "Q_loaded", "Q", "L", "R")
+    positive = ("f0", "fd", "alpha", "Q_loaded", "Q", "L")
+    unphysical_hint = ("check that the capture holds a free ring of the tank (not a step or a square wave), "
+                       "the [columns] tank entry and the parts (a parallel_load that explains all the damping?)")
 
     def check_setup(self, setup: Setup) -> None:
         super().check_setup(setup)

@@ -47,6 +47,8 @@ class LcSweep(Method):
     parts = LcRing.parts
     options = LcRing.options
     quantities = ("L", "C", "srf")
+    positive = ("L",)
+    unphysical_hint = "check each capture's tank_capacitor and that every capture holds a free ring"
     uses_setup_captures = True
 
     def check_setup(self, setup: Setup) -> None:

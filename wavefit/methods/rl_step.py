@@ -42,6 +42,7 @@ from ._model_check import ModelCheck, Variation, added
 from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, combine, late_start,
                           placement_factor, placement_jitter, pooled_windows, settle_starts, start_margin,
                           whole_record)
+from ._rl_wiring import check_wiring
 from .base import Method, PartSpec
 
 #: Budget input that carries tau's movement with the fit window when the model check fires.
@@ -68,6 +69,9 @@ class RLStep(Method):
     }
     options = {"skip": "auto", "noise": "auto"}
     quantities = ("L", "R", "tau", "R_loop", "I_final", "E")
+    positive = ("L", "tau", "R_loop")
+    unphysical_hint = ("check [columns] (drive and sense swapped? an inverted probe?), the parts, and that "
+                       "the capture holds steps of an RL loop, not a ring")
 
     def check_setup(self, setup: Setup) -> None:
         super().check_setup(setup)
@@ -100,6 +104,7 @@ class RLStep(Method):
             raise AnalysisRefused(f"{capture.source}: no transition found in the sense channel (its two "
                                   "state levels are not separated from the noise); check the trigger and the "
                                   "column mapping")
+        check_wiring(t, sense, drive, edges, capture.source)
         windows, edge_times = self._windows(t, sense, drive, edges, setup, dt)
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]

@@ -1,0 +1,91 @@
+"""Wiring faults of an rl-step capture, found before any fit so that the refusal names them.
+
+In the rl-step circuit (generator -> drive -> coil -> sense -> sense resistor ->
+ground) the drive node steps with the generator at once, and the sense node,
+which carries the coil's current, follows it with the loop time constant: it
+moves in the same direction and never jumps (the current through an
+inductance is continuous). A drive channel that does not step, a sense
+channel that moves against the drive, or a sense channel that jumps where the
+drive does not are wiring or mapping faults; fitted regardless they give
+negative or absurd inductances.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from ..errors import AnalysisRefused
+from ..signal.edges import Edge, find_edges
+from ..signal.levels import state_levels
+
+#: A channel "jumps" at an edge when it covers more than this fraction of its step within
+#: JUMP_SAMPLES samples: an exponential with a time constant of 10 samples or more (the
+#: least rl-step is made for) covers at most 1 − e^(−0.2) = 18 % in two samples.
+JUMP_FRACTION = 0.5
+JUMP_SAMPLES = 2
+#: The sense channel is judged to move against the drive when most of its edges do.
+AGAINST_SHARE = 0.5
+
+
+def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edges: list[Edge],
+                 source: str) -> None:
+    """Refuse a capture whose drive and sense channels cannot be the rl-step circuit's.
+
+    Parameters
+    ----------
+    t, sense, drive
+        Time axis and the two channels (drive None when not recorded).
+    edges
+        The sense channel's transitions (:func:`wavefit.signal.edges.find_edges`).
+    source
+        The capture's name, for the message.
+
+    Raises
+    ------
+    AnalysisRefused
+        Naming the likely fault: a drive that does not step, a sense that moves against the
+        drive, or channels swapped.
+    """
+    if drive is None or not edges:
+        return
+    drive_edges = find_edges(t, drive)
+    if not drive_edges:
+        raise AnalysisRefused(
+            f"{source}: the drive channel does not step (no transition above its noise) while the sense "
+            "channel does: is the drive probe connected, and is [columns] drive the generator-side node?")
+    dt = float(t[1] - t[0])
+    if _jumps(t, sense, edges, state_levels(sense).amplitude, dt) and not _jumps(
+            t, drive, drive_edges, state_levels(drive).amplitude, dt):
+        raise AnalysisRefused(
+            f"{source}: the sense channel jumps at its edges while the drive channel follows slowly: drive "
+            "and sense look swapped in [columns] (the sense resistor's voltage cannot jump in an rl-step "
+            "circuit)")
+    against = sum(_drive_jump(t, drive, edge, dt) == -edge.direction for edge in edges)
+    if against > AGAINST_SHARE * len(edges):
+        raise AnalysisRefused(
+            f"{source}: the sense channel falls when the drive rises at {against} of {len(edges)} edges: an "
+            "inverted probe or channel, or leads swapped across the sense resistor; fix the wiring or the "
+            "channel's sign")
+
+
+def _drive_jump(t: np.ndarray, drive: np.ndarray, edge: Edge, dt: float) -> int:
+    """The direction (+1, −1, 0) in which the drive node moves at the start of a sense edge: from
+    half the edge's 10-90 % duration before its 10 % instant to two samples after it (the drive
+    then relaxes back, so only its jump tells the generator's direction)."""
+    start = int(np.searchsorted(t, edge.t10 - 0.5 * edge.duration - dt)) - 1
+    stop = int(np.searchsorted(t, edge.t10 + JUMP_SAMPLES * dt))
+    if start < 0 or stop >= t.size:
+        return 0
+    return int(np.sign(drive[stop] - drive[start]))
+
+
+def _jumps(t: np.ndarray, y: np.ndarray, edges: list[Edge], step: float, dt: float) -> bool:
+    """Whether most edges cover more than JUMP_FRACTION of the step within JUMP_SAMPLES samples."""
+    if not step:
+        return False
+    jumping = 0
+    for edge in edges:
+        i = int(np.searchsorted(t, edge.t50))
+        lo, hi = max(i - JUMP_SAMPLES, 0), min(i + JUMP_SAMPLES, y.size - 1)
+        largest = float(np.max(np.abs(y[lo + JUMP_SAMPLES:hi + 1] - y[lo:hi + 1 - JUMP_SAMPLES]), initial=0.0))
+        jumping += largest > JUMP_FRACTION * abs(step)
+    return jumping > 0.5 * len(edges)

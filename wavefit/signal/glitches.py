@@ -1,0 +1,189 @@
+"""Isolated bad samples (glitches): one sample far from both its neighbours, which agree.
+
+A converter error, a transmission error or a hand edit can leave one sample of
+a record far off (a 0 in a 5 V trace). One such sample can move a fit far
+beyond its uncertainty, or fake a transition. The rule here finds it before any
+fit, from the record alone, and only where the waveform itself cannot explain
+it:
+
+* d_i = y_i − (y_{i−1} + y_{i+1})/2, the sample's departure from the straight
+  line through its neighbours;
+* the waveform's own curvature near i, without y_i: s_i = |y_{i+1} − y_{i−1}| +
+  |y_{i+2} − y_{i+1}| + |y_{i−1} − y_{i−2}|;
+* sample i is a glitch when |d_i| > GLITCH_SHAPE·s_i + GLITCH_NOISE·σ, σ being
+  the record's noise (from the median absolute second difference, a robust
+  scale; Hampel's identifier, see References) or at least one converter step,
+  unless the record starts to move right after it, or another channel jumps
+  there, and the departure is below half the record's span (a spike at the
+  onset of a transition, such as a winding capacitance charging when the
+  drive switches, belongs to the response).
+
+A smooth waveform sampled at n points per period has |d|/s ≈ 1/6 at a peak
+and a single-sample step has 1/2, both far below GLITCH_SHAPE; two adjacent bad
+samples are not single glitches and are left to the fit's checks.
+
+References
+----------
+.. [1] F. R. Hampel, "The influence curve and its role in robust estimation",
+   J. Amer. Statist. Assoc. 69 (1974) 383–393 (the median absolute deviation as a
+   robust scale, and outliers judged against it).
+.. [2] P. J. Rousseeuw and C. Croux, "Alternatives to the median absolute
+   deviation", J. Amer. Statist. Assoc. 88 (1993) 1273–1283 (the factor 1.4826
+   that makes the MAD a consistent estimate of a normal standard deviation).
+"""
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import replace
+
+import numpy as np
+
+from ..io.capture import Capture
+
+#: A glitch departs from its neighbours' line by more than this many times the curvature
+#: of the waveform around it: 12 times what a sampled sinusoid's peak shows (1/6) and 4 times
+#: a one-sample step (1/2), so no smooth or stepped waveform qualifies.
+GLITCH_SHAPE = 2.0
+#: ... and by more than this many noise standard deviations (a white-noise departure has
+#: the standard deviation sqrt(1.5)·σ, so 12σ is about 10 of its own: never by chance).
+GLITCH_NOISE = 12.0
+#: A candidate after which the record moves by more than ONSET_NOISE noise standard deviations
+#: within ONSET_SPAN samples, and ONSET_RATIO times more than in as many samples before it, sits
+#: at the onset of a transition and is not a glitch (on a flat stretch both happen together by
+#: chance about once in a thousand glitches: a glitch then stays, and the fit's checks see it).
+ONSET_SPAN = 3
+ONSET_NOISE = 4.0
+ONSET_RATIO = 4.0
+#: A spike at a transition's onset or at another channel's jump is taken as coupled into the
+#: trace (part of the response) only while it departs by less than this share of the record's
+#: span, measured between the SPAN_PERCENTILE and 100 − SPAN_PERCENTILE percentiles (the
+#: winding-capacitance spike of the sample choke is 18 % of its step; a sample fallen to the
+#: other level departs by the whole step).
+SPIKE_SHARE = 0.5
+SPAN_PERCENTILE = 0.5
+#: A candidate within this many samples of another channel's jump is not a glitch.
+COINCIDENCE = 2
+_MAD_TO_SIGMA = 1.4826
+# The second difference of white noise has the variance 6σ².
+_SECOND_DIFFERENCE_VARIANCE = 6.0
+
+
+def find_glitches(y: np.ndarray, code: float | None = None) -> np.ndarray:
+    """Indices of isolated samples that depart from both their neighbours beyond the waveform's
+    own curvature and the noise (see the module docstring).
+
+    Parameters
+    ----------
+    y
+        A record, without NaN.
+    code
+        The converter step, when the values sit on a grid: the noise is taken as at least
+        one step (a quiet trace flickers by one code).
+
+    Returns
+    -------
+    numpy.ndarray
+        Sorted 0-based indices (samples two or more from either end only).
+    """
+    y = np.asarray(y, dtype=float)
+    if y.size < 5:
+        return np.empty(0, dtype=np.intp)
+    sigma = _noise(y, code)
+    centre = slice(2, -2)
+    departure = np.abs(y[centre] - 0.5 * (y[1:-3] + y[3:-1]))
+    curvature = np.abs(y[3:-1] - y[1:-3]) + np.abs(y[4:] - y[3:-1]) + np.abs(y[1:-3] - y[:-4])
+    found = np.flatnonzero(departure > GLITCH_SHAPE * curvature + GLITCH_NOISE * sigma) + 2
+    return found[~(_at_onset(y, found, sigma) & _spike_sized(y, found))]
+
+
+def _spike_sized(y: np.ndarray, found: np.ndarray) -> np.ndarray:
+    """Mask of candidates whose departure is small enough for a spike coupled into the trace
+    (below SPIKE_SHARE of the record's span); a larger one is a bad sample wherever it sits."""
+    low, high = np.percentile(y, [SPAN_PERCENTILE, 100.0 - SPAN_PERCENTILE])
+    departure = np.abs(y[found] - 0.5 * (y[found - 1] + y[found + 1]))
+    return departure < SPIKE_SHARE * (high - low)
+
+
+def _at_onset(y: np.ndarray, found: np.ndarray, sigma: float) -> np.ndarray:
+    """Mask of candidates where the record starts to move right after them while it was still
+    before them: a spike at the onset of a transition (a winding capacitance charging as the
+    drive switches) belongs to the response. A glitch on a flat stretch or amid a flank does not
+    change how the record moves around it."""
+    after = np.abs(y[np.minimum(found + ONSET_SPAN, y.size - 1)] - y[found + 1])
+    before = np.abs(y[found - 1] - y[np.maximum(found - ONSET_SPAN, 0)])
+    started = np.abs(y[found + 1] - y[found - 1])  # the transition is under way right after it
+    return (after > ONSET_NOISE * sigma) & (after > ONSET_RATIO * before) & (started > ONSET_NOISE * sigma)
+
+
+def _after_jumps(y: np.ndarray, code: float | None) -> np.ndarray:
+    """Mask of the first COINCIDENCE + 1 samples after each jump of the record: where it moves
+    from one sample to the next by more than the noise and far more than just before and after
+    (a switching edge; a smooth relaxation, however steep, is not a jump). A spike of another
+    channel there is coupled from that edge; before it, it is not."""
+    y = np.asarray(y, dtype=float)
+    mask = np.zeros(y.size, dtype=bool)
+    if y.size < 4:
+        return mask
+    step = np.abs(np.diff(y))
+    around = np.zeros_like(step)
+    around[1:-1] = step[:-2] + step[2:]
+    leaps = np.flatnonzero(step > GLITCH_SHAPE * around + GLITCH_NOISE * _noise(y, code))
+    leaps = leaps[(leaps > 0) & (leaps < step.size - 1)] + 1
+    for shift in range(COINCIDENCE + 1):
+        mask[np.minimum(leaps + shift, y.size - 1)] = True
+    return mask
+
+
+def _noise(y: np.ndarray, code: float | None) -> float:
+    """The record's white-noise standard deviation from the MAD of its second differences
+    (robust to the waveform's edges and to glitches), and at least one step of its values:
+    the converter's, or the smallest change between neighbours when no code grid was found
+    (a quiet quantised trace flickers by that much)."""
+    second = y[2:] - 2.0 * y[1:-1] + y[:-2]
+    mad = float(np.median(np.abs(second - np.median(second))))
+    changes = np.abs(np.diff(y))
+    smallest = float(changes[changes > 0].min()) if np.any(changes > 0) else 0.0
+    return max(_MAD_TO_SIGMA * mad / np.sqrt(_SECOND_DIFFERENCE_VARIANCE), code or 0.0, smallest)
+
+
+def repair_glitches(capture: Capture, codes: Sequence[float | None]) -> tuple[Capture, dict[str, np.ndarray]]:
+    """The capture with its isolated glitches replaced by the mean of their two neighbours.
+
+    A candidate of :func:`find_glitches` is kept only when no other channel of the
+    capture jumps (:func:`jumps`) within ``COINCIDENCE`` samples of it: a spike that
+    coincides with an edge elsewhere (a winding capacitance charging at the switching
+    instant) is part of the circuit's response, not a bad sample.
+
+    Parameters
+    ----------
+    capture
+        The capture as read.
+    codes
+        Each channel's converter step, or None (see :func:`wavefit.signal.codes.code_step`).
+
+    Returns
+    -------
+    tuple of (Capture, dict)
+        The repaired capture (the same object when nothing was found) and, by channel
+        header, the indices that were replaced.
+    """
+    near = [_after_jumps(ch.values, code) for ch, code in zip(capture.channels, codes)]
+    found: dict[str, np.ndarray] = {}
+    channels = []
+    for k, (channel, code) in enumerate(zip(capture.channels, codes)):
+        candidates = find_glitches(channel.values, code)
+        others = [mask for j, mask in enumerate(near) if j != k]
+        if others and candidates.size:
+            coupled = np.any([mask[candidates] for mask in others], axis=0)
+            candidates = candidates[~(coupled & _spike_sized(channel.values, candidates))]
+        if candidates.size == 0:
+            channels.append(channel)
+            continue
+        values = np.array(channel.values, dtype=float)
+        values[candidates] = 0.5 * (values[candidates - 1] + values[candidates + 1])
+        values.flags.writeable = False
+        found[channel.header] = candidates
+        channels.append(replace(channel, values=values))
+    if not found:
+        return capture, found
+    return replace(capture, channels=tuple(channels)), found
