@@ -13,7 +13,7 @@ from .errors import CaptureError, SetupError
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
 from .methods import get_method
-from .numerics import collected
+from .numerics import collected, numerical_failures_refused
 from .results import AnalysisResult
 from .setup import RelativeFigure, Setup, load_setup
 
@@ -53,7 +53,7 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         captures, parsed = with_columns_from_files(captures, parsed, interval)
     refuse_shared_columns(captures, parsed.columns, parsed.source)
     captures = [without_glitches(capture) for capture in captures]
-    with collected() as numerical:
+    with collected() as numerical, numerical_failures_refused(captures):
         result = method.analyze(captures, with_time_axis_uncertainty(parsed, captures))
     method.check_physical(result)
     remark = numerical.remark()

@@ -4,7 +4,8 @@ numpy and scipy report overflow and invalid operations as ``RuntimeWarning``
 lines on stderr, and a LAPACK routine given NaN may print to the process's
 standard output directly (below Python), which corrupts ``--json``. While an
 analysis runs, both are collected here; the front door turns them into one
-warning of the result (or the result is refused by the physical checks).
+warning of the result (or the result is refused by the physical checks). A
+numerical exception becomes a one-line refusal.
 """
 from __future__ import annotations
 
@@ -13,8 +14,13 @@ import os
 import sys
 import tempfile
 import warnings
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import AnalysisRefused
+from .io.capture import Capture
 
 #: At most this many distinct messages are quoted in the result's warning.
 _QUOTED = 3
@@ -51,6 +57,43 @@ def collected() -> Iterator[Collected]:
             out.runtime_warnings.append(str(item.message))
         else:
             warnings.warn_explicit(item.message, item.category, item.filename, item.lineno)
+
+
+@contextlib.contextmanager
+def numerical_failures_refused(captures: Sequence[Capture]) -> Iterator[None]:
+    """Turn a numerical failure inside an analysis into a one-line refusal.
+
+    Data far from what a method expects can drive its arithmetic out of range
+    (an overflow in the measurement function, a singular matrix, NaN reaching
+    a solver, an array too large for memory). That is a refusal of the data,
+    said in one line; the original error stays chained for ``--debug``.
+
+    Parameters
+    ----------
+    captures
+        The captures being analysed, for the message.
+
+    Raises
+    ------
+    AnalysisRefused
+        In place of an ArithmeticError, a LinAlgError, a ValueError or a MemoryError.
+    """
+    try:
+        yield
+    except MemoryError:
+        samples = sum(c.rows * (1 + len(c.channels)) for c in captures)
+        raise AnalysisRefused(f"{_sources(captures)}: not enough memory to analyse {samples} values; "
+                              "shorten or decimate the record") from None
+    except (ArithmeticError, np.linalg.LinAlgError, ValueError) as exc:
+        reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise AnalysisRefused(
+            f"{_sources(captures)}: the analysis failed numerically ({type(exc).__name__}: {reason[:120]}): the "
+            "capture is probably not what the method expects; check [columns], the parts and the plot of the "
+            "capture") from exc
+
+
+def _sources(captures: Sequence[Capture]) -> str:
+    return ", ".join(c.source for c in captures)
 
 
 @contextlib.contextmanager
