@@ -1,4 +1,8 @@
-"""Pictures of a result: capture, fitted model and residuals; or a line fit."""
+"""Pictures of a result: capture, fitted model and residuals; or a line fit.
+
+Channel labels come from the capture's column headers and the title from its file
+name: they are drawn as literal text (:mod:`.figure_file`).
+"""
 from __future__ import annotations
 
 import os
@@ -7,31 +11,24 @@ import numpy as np
 
 from ..errors import WavefitError
 from ..results import AnalysisResult, LinePlot, TracePlot
+from .figure_file import literal_text, save_figure
+from .safe_text import visible
 
 
 def save_plot(result: AnalysisResult, path: str | os.PathLike) -> None:
     """Draw ``result.plot_data`` into ``path`` (format from the extension, e.g. PNG)."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
     data = result.plot_data
-    if isinstance(data, TracePlot):
-        fig = _trace_figure(plt, data)
-    elif isinstance(data, LinePlot):
-        fig = _line_figure(plt, data)
-    else:
+    if not isinstance(data, (TracePlot, LinePlot)):
         raise WavefitError(f"method {result.method!r} has nothing to plot")
-    title = result.source if isinstance(result.source, str) else f"{len(result.source)} captures"
-    fig.suptitle(f"{result.method}: {os.path.basename(str(title))}")
-    fig.tight_layout(rect=(0, 0, 1, 0.96))
-    try:
-        fig.savefig(path, dpi=110)
-    except (OSError, ValueError) as exc:
-        raise WavefitError(f"cannot write plot {path}: {exc}") from None
-    finally:
-        plt.close(fig)
+    with literal_text() as plt:
+        fig = _trace_figure(plt, data) if isinstance(data, TracePlot) else _line_figure(plt, data)
+        title = result.source if isinstance(result.source, str) else f"{len(result.source)} captures"
+        fig.suptitle(visible(f"{result.method}: {os.path.basename(str(title))}"))
+        fig.tight_layout(rect=(0, 0, 1, 0.96))
+        try:
+            save_figure(fig, path, dpi=110)
+        except OSError as exc:
+            raise WavefitError(f"cannot write plot {visible(path)}: {visible(exc.strerror or exc)}") from None
 
 
 def _trace_figure(plt, data: TracePlot):
@@ -41,6 +38,7 @@ def _trace_figure(plt, data: TracePlot):
     t = np.asarray(data.time)
     scale, unit = _time_scale(t)
     for k, (label, yunit, y, model) in enumerate(data.channels):
+        label, yunit = visible(label), visible(yunit)
         ax, axr = axes[2 * k], axes[2 * k + 1]
         ax.plot(t * scale, y, ".", ms=1.5, color="0.45", label=f"{label} recorded")
         ax.plot(t * scale, model, "-", lw=1.2, color="tab:red", label="fitted model")
@@ -59,8 +57,8 @@ def _line_figure(plt, data: LinePlot):
     ax.errorbar(x, y, xerr=data.x_err, yerr=data.y_err, fmt="o", color="k", capsize=3, label="captures")
     span = np.linspace(min(0.0, x.min()), x.max() * 1.05, 50)
     ax.plot(span, data.intercept + data.slope * span, "-", color="tab:red", label="fitted line")
-    ax.set_xlabel(data.x_label)
-    ax.set_ylabel(data.y_label)
+    ax.set_xlabel(visible(data.x_label))
+    ax.set_ylabel(visible(data.y_label))
     ax.legend()
     return fig
 

@@ -1,0 +1,106 @@
+"""Drawing and saving figures safely: literal text, a checked file name, all or nothing on disk.
+
+Text in a figure comes from file names, lot names, column headers and metadata.
+matplotlib reads text between two ``$`` as a formula ("mathtext") and fails on
+one it cannot parse, so figures are drawn with mathtext off (no figure of ours
+uses it) and outside text passes through :func:`~wavefit.report.safe_text.visible`.
+A figure is written to a temporary file beside the target and renamed over it, so
+an interrupted or failed save leaves the previous file, not half an image.
+
+References
+----------
+.. [1] matplotlib, "Writing mathematical expressions" and the ``text.parse_math``
+   setting, https://matplotlib.org/stable/users/explain/text/mathtext.html
+"""
+from __future__ import annotations
+
+import contextlib
+import os
+import secrets
+import warnings
+from pathlib import Path
+from typing import Any, Iterator
+
+from ..errors import WavefitError
+from .safe_text import visible
+
+
+class FigureFileError(WavefitError):
+    """A figure cannot be written to the file named (exit code 3)."""
+
+    exit_code = 3
+
+
+def _formats() -> frozenset[str]:
+    from matplotlib.backend_bases import FigureCanvasBase
+
+    return frozenset(FigureCanvasBase.get_supported_filetypes())
+
+
+def check_figure_path(path: str | os.PathLike[str]) -> None:
+    """Refuse, before anything is drawn, a file name whose format matplotlib cannot write
+    or whose folder does not exist."""
+    target = Path(path)
+    kind = target.suffix.lower().lstrip(".")
+    if kind not in _formats():
+        raise FigureFileError(f"cannot draw a plot into {visible(target)}: give it a suffix of an image format "
+                              f"({', '.join(sorted(_formats()))})")
+    if not target.parent.is_dir():
+        raise FigureFileError(f"cannot draw a plot into {visible(target)}: folder {visible(target.parent)} "
+                              "does not exist")
+
+
+@contextlib.contextmanager
+def literal_text() -> Iterator[Any]:
+    """Draw with every text literal (no mathtext) and the Agg backend; yields ``pyplot``.
+
+    matplotlib's UserWarnings (a glyph missing from the font for an unusual file name,
+    a layout that does not fit) are not shown: they are about the look of the picture,
+    and the run's output on stderr stays for what the user must act on.
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    with matplotlib.rc_context({"text.parse_math": False, "text.usetex": False}), warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)
+        yield plt
+
+
+def save_figure(fig: Any, path: str | os.PathLike[str], dpi: int) -> None:
+    """Write ``fig`` to ``path`` through a temporary file (see the module notes); closes ``fig``.
+
+    Raises
+    ------
+    FigureFileError
+        When the format is not one matplotlib writes or the folder is missing.
+    OSError
+        When the file cannot be written (disk full, no permission).
+    """
+    import matplotlib.pyplot as plt
+
+    target = Path(path)
+    try:
+        check_figure_path(target)
+        temporary = _new_temporary(target)
+        try:
+            fig.savefig(temporary, dpi=dpi, format=target.suffix.lower().lstrip("."))
+            os.replace(temporary, target)
+        finally:
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(temporary)
+    finally:
+        plt.close(fig)
+
+
+def _new_temporary(target: Path) -> Path:
+    """A new, empty hidden file beside ``target`` with its suffix, made with the usual permissions
+    (0666 less the umask, as the target itself would get)."""
+    while True:
+        candidate = target.with_name(f".{target.stem}.{secrets.token_hex(4)}.partial{target.suffix}")
+        try:
+            os.close(os.open(candidate, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
+        except FileExistsError:
+            continue
+        return candidate
