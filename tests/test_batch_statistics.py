@@ -42,8 +42,9 @@ def test_summary_counts_yield_and_skips_error_rows():
     summary = summarize(rows, {"L": limit})
     assert summary.total == 5
     assert summary.counts == {"pass": 2, "conditional pass": 1, "conditional fail": 0, "fail": 1, "error": 1}
-    assert summary.yield_ == pytest.approx(2 / 4)            # passes over analysed (non-error) rows
-    assert summary.yield_with_conditional == pytest.approx(3 / 4)
+    assert summary.yield_ == pytest.approx(2 / 5)            # passes over all rows: the error row did not pass
+    assert summary.yield_with_conditional == pytest.approx(3 / 5)
+    assert summary.to_dict()["errors_counted_as_not_passed"] == 1
     stats = summary.quantities["L"]
     values = [100e-6, 102e-6, 109e-6, 115e-6]
     mean = sum(values) / 4
@@ -55,6 +56,49 @@ def test_summary_counts_yield_and_skips_error_rows():
 
 def test_summary_of_a_lot_without_analysed_parts():
     summary = summarize([{"verdict": "error"}], {"L": parse_limit("L", "100 uH ±10%")})
-    assert summary.yield_ is None
+    assert summary.yield_ == 0.0
+    assert summarize([], {"L": parse_limit("L", "100 uH ±10%")}).yield_ is None
     data = summary.to_dict()
     assert data["quantities"]["L"]["n"] == 0 and data["quantities"]["L"]["mean"] is None
+
+
+def test_zero_spread_leaves_capability_undefined():
+    # equal values: s is only the rounding of the mean (the issue's Cpk 2.6e14); values that
+    # differ are a spread however small it is against the limits
+    limit = parse_limit("L", "100 uH ±10%")
+    for value in (100e-6, 110e-6 * (1 - 1e-16), 0.1 + 0.2):
+        stats = quantity_statistics("L", [value] * 37, limit)
+        assert stats.std == 0.0 and stats.cp is None and stats.cpk is None
+        assert summarize([{"verdict": "pass", "L": value}] * 3, {"L": limit}).to_dict()["quantities"]["L"]["cpk"] is None
+    spread = quantity_statistics("L", [100e-6, 100e-6 * (1 + 1e-9)], limit)
+    assert spread.std > 0 and spread.cp == pytest.approx(20e-6 / (6 * spread.std))
+
+
+def test_impossible_values_never_enter_the_statistics():
+    limit = parse_limit("L", "100 uH ±10%")
+    rows = [{"verdict": "pass", "L": 100e-6}, {"verdict": "pass", "L": 104e-6},
+            {"verdict": "fail", "L": float("inf")}, {"verdict": "fail", "L": float("nan")},
+            {"verdict": "fail", "L": -100e-6}, {"verdict": "fail", "L": 0.0},
+            {"verdict": "error", "L": 1.0}, {"verdict": "pass", "L": None}]
+    stats = summarize(rows, {"L": limit}, positive=("L",)).quantities["L"]
+    assert stats.n == 2 and stats.excluded == 4
+    assert stats.mean == pytest.approx(102e-6) and stats.maximum == 104e-6
+    # a quantity that may be negative keeps its negative values
+    assert summarize(rows, {"L": limit}).quantities["L"].n == 4
+
+
+def test_values_near_the_float_limit_give_undefined_not_a_warning(recwarn):
+    stats = quantity_statistics("L", [1e308, 1.7e308], parse_limit("L", "100 uH ±10%"))
+    assert stats.cp is None and stats.cpk is None and summarize([], {}).to_dict()["quantities"] == {}
+    assert not [w for w in recwarn if issubclass(w.category, RuntimeWarning)]
+
+
+def test_text_summary_says_undefined_and_how_errors_count():
+    from wavefit.batch.spec import parse_spec
+    from wavefit.batch.summary_text import render_summary
+
+    spec = parse_spec({"limits": {"L": "100 uH ±10%"}})
+    rows = [{"verdict": "pass", "L": 100e-6}] * 3 + [{"verdict": "error", "L": None}]
+    text = render_summary(summarize(rows, spec.limits), spec, "0412")
+    assert "yield: 75.0 % pass" in text and "the 1 error rows counted as not passed" in text
+    assert text.splitlines()[-1].split()[-2:] == ["undefined", "undefined"]

@@ -1,25 +1,36 @@
 """``wavefit batch``: inspect a lot of captures against a spec, resumably.
 
 Exit codes: 0 every input has a row (``error`` rows included); 3 bad setup,
-spec, inputs or results file, before anything is analysed; 130 after Ctrl-C,
-143 after SIGTERM (rows written so far are kept; run again to resume).
+spec, inputs, outputs or results file, or another run holds the results file,
+before anything is analysed; 5 an output could not be written (rows written so
+far are kept; run again to resume); 130 after Ctrl-C, 143 after SIGTERM (the
+same).
 """
 from __future__ import annotations
 
 import argparse
+import io
 import json
 import os
+import signal
 import sys
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..errors import SetupError
+from ..report.safe_text import visible
 from .inputs import capture_order, expand_inputs
+from .outputs import RunFiles
 from .rows import Analyse, RowMaker, analyse_file, sha256_file
-from .runner import Interrupted, run_rows
 from .spec import Spec, load_spec
-from .statistics import LotSummary, summarize
+from .statistics import LotSummary, possible, summarize
+from .stop import Interrupted, StopSignals
+from .write_errors import write_failed
+
+if TYPE_CHECKING:
+    from ..methods.base import Method
+    from .results_file import ResultsFile
 
 
 def add_batch_parser(sub: Any) -> argparse.ArgumentParser:
@@ -41,6 +52,24 @@ def add_batch_parser(sub: Any) -> argparse.ArgumentParser:
     return p
 
 
+@dataclass
+class _Progress:
+    """How far a run got, for the line printed when it is stopped."""
+
+    todo: int | None = None
+    written: int = 0
+    finished: bool = False
+
+    def stopped_line(self, out: str, signum: int) -> str:
+        how = signal.Signals(signum).name
+        if self.todo is None:
+            return f"wavefit: interrupted ({how}) before any capture was analysed"
+        if self.finished:
+            return f"wavefit: interrupted ({how}) after the last row; {visible(out)} has every row"
+        return (f"wavefit: interrupted ({how}) after {self.written} new rows ({self.todo - self.written} "
+                f"captures left); {visible(out)} has every finished row: run the same command again to resume")
+
+
 @dataclass(frozen=True)
 class BatchOutcome:
     """What a batch run did: rows written now, rows found from earlier runs, the summary."""
@@ -50,75 +79,130 @@ class BatchOutcome:
     changed: tuple[str, ...]
     rows: list[dict[str, Any]]
     summary: LotSummary
+    history: dict[str, Any] | None = field(default=None)
 
 
 def run(args: argparse.Namespace, analyse: Analyse = analyse_file) -> int:
-    """Run the subcommand; returns the exit code."""
+    """Run the subcommand; returns the exit code.
+
+    SIGINT and SIGTERM stop the run at any moment with one line on stderr and the
+    exit code 128 + the signal number (130, 143); every finished row is kept.
+    """
+    progress = _Progress()
+    with StopSignals() as stop:
+        try:
+            return _run(args, analyse, stop, progress)
+        except KeyboardInterrupt:  # Ctrl-C where no handler could be set (not the main thread)
+            stopped = Interrupted(signal.SIGINT)
+        except Interrupted as exc:
+            stopped = exc
+        print(progress.stopped_line(args.out, stopped.signum), file=sys.stderr)
+        return stopped.exit_code
+
+
+@dataclass(frozen=True)
+class _Plan:
+    """What a run will do, all checked before any file is written."""
+
+    method: Method
+    spec: Spec
+    own: RunFiles
+    paths: list[str]
+    maker: RowMaker
+    lot: str
+
+
+def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
+    """Read and check the setup, spec, outputs and inputs; raise on anything unusable."""
     from .. import __version__
     from ..methods import get_method
     from ..setup import load_setup
-    from .history_db import HistoryDB
-    from .results_file import ResultsFile, result_columns
 
     setup = load_setup(args.setup)
     method = get_method(setup.method)
     method.check_setup(setup)
     if method.uses_setup_captures:
-        raise SetupError(f"{setup.source}: method {setup.method!r} takes its captures from the setup; "
+        raise SetupError(f"{visible(setup.source)}: method {setup.method!r} takes its captures from the setup; "
                          "batch needs a method that analyses one capture per part")
     if not method.quantities:
         raise SetupError(f"method {setup.method!r} declares no quantities to report")
     spec = load_spec(args.spec)
     spec.check_quantities(method.quantities, method.name)
-    paths = expand_inputs(args.inputs)
+    own = RunFiles(Path(args.out), Path(args.db) if args.db else None, Path(args.plot) if args.plot else None,
+                   Path(args.setup), Path(args.spec))
+    own.check()
+    if args.plot:
+        from ..report.figure_file import check_figure_path
+
+        check_figure_path(args.plot)
+    paths = expand_inputs(args.inputs, skip=own.is_own)
     maker = RowMaker(setup, spec, tuple(method.quantities), sha256_file(args.setup), sha256_file(args.spec),
                      __version__, analyse)
-    lot = args.lot or Path(args.out).stem
-    written = 0
-    with ResultsFile(args.out, result_columns(method.quantities)) as results:
-        _check_same_setup_and_spec(results.rows, maker, args.out)
-        done = {row["file"]: row for row in results.rows}
-        todo = [p for p in paths if p not in done]
-        changed = tuple(p for p in paths if p in done and _sha_changed(p, done[p]))
-        for path in changed:
-            print(f"wavefit: warning: {path} changed since its row was written; the row is kept "
-                  f"(remove it from {args.out} to analyse the file again)", file=sys.stderr)
-        db = HistoryDB(args.db, lot, method.name, method.quantities) if args.db else None
+    return _Plan(method, spec, own, paths, maker, args.lot or Path(args.out).stem)
+
+
+def _run(args: argparse.Namespace, analyse: Analyse, stop: StopSignals, progress: _Progress) -> int:
+    from .results_file import ResultsFile, result_columns
+    from .run_lock import RunLock
+
+    plan = _plan(args, analyse)
+    with RunLock(plan.own.results):
+        with stop.deferred():
+            results = ResultsFile(plan.own.results, result_columns(plan.method.quantities))
+            results.open()
         try:
-            if db is not None:
-                db.add_many(results.rows)
-
-            def sink(row: dict[str, Any]) -> None:
-                nonlocal written
-                results.append(row)
-                written += 1
-                if db is not None:
-                    db.add(row)
-
-            try:
-                run_rows(todo, maker, sink, workers=args.workers, progress=sys.stderr.isatty())
-            except (KeyboardInterrupt, Interrupted) as stop:
-                print(f"wavefit: interrupted after {written} new rows ({len(todo) - written} captures left); "
-                      f"{args.out} is complete up to there: run the same command again to resume",
-                      file=sys.stderr)
-                return 143 if isinstance(stop, Interrupted) else 130
+            _check_same_setup_and_spec(results.rows, plan.maker, args.out)
+            done = {row["file"]: row for row in results.rows}
+            todo = [p for p in plan.paths if p not in done]
+            changed = tuple(p for p in plan.paths if p in done and _sha_changed(p, done[p]))
+            for path in changed:
+                print(f"wavefit: warning: {visible(path)} changed since its row was written; the row is kept "
+                      f"(remove it from {visible(args.out)} to analyse the file again)", file=sys.stderr)
+            history = _analyse(plan, todo, results, args.workers, stop, progress)
+            rows = sorted(results.rows, key=lambda row: capture_order(row["file"]))
         finally:
-            if db is not None:
-                db.close()
-        rows = sorted(results.rows, key=lambda row: capture_order(row["file"]))
-    summary = summarize(rows, spec.limits)
-    outcome = BatchOutcome(written, len(paths) - len(todo), changed, rows, summary)
-    _report(outcome, spec, lot, args)
+            results.close()
+        summary = summarize(rows, plan.spec.limits, plan.method.positive)
+        outcome = BatchOutcome(progress.written, len(plan.paths) - len(todo), changed, rows, summary, history)
+        _report(outcome, plan.spec, plan.lot, args, plan.method.positive)
     return 0
+
+
+def _analyse(plan: _Plan, todo: list[str], results: ResultsFile, workers: int, stop: StopSignals,
+             progress: _Progress) -> dict[str, Any] | None:
+    """Analyse ``todo``, each row to the results file and then the history database;
+    returns what was done to the database (``None`` without ``--db``)."""
+    from .history_db import HistoryDB
+    from .runner import run_rows
+
+    db = HistoryDB(plan.own.db, plan.lot, plan.method.name, plan.method.quantities) if plan.own.db else None
+    try:
+        if db is not None:
+            with stop.deferred():
+                db.catch_up(results.rows)
+
+        def sink(row: dict[str, Any]) -> None:
+            results.append(row)
+            progress.written += 1
+            if db is not None:
+                db.add(row)
+
+        progress.todo = len(todo)
+        run_rows(todo, plan.maker, sink, workers=workers, progress=sys.stderr.isatty(), stop=stop)
+        progress.finished = True
+    finally:
+        if db is not None:
+            db.close()
+    return {"database": str(plan.own.db), **db.report.to_dict()} if db is not None else None
 
 
 def _check_same_setup_and_spec(rows: list[dict[str, Any]], maker: RowMaker, out: str) -> None:
     for key, what, now in (("setup_sha256", "setup", maker.setup_sha256), ("spec_sha256", "spec", maker.spec_sha256)):
         before = {row[key] for row in rows if row[key]}
         if before - {now}:
-            raise SetupError(f"{out} holds rows made with another {what} file (sha256 "
-                             f"{sorted(before - {now})[0][:12]}…); one results file is one lot under one "
-                             f"{what}: restore that {what} or use another --out")
+            raise SetupError(f"{visible(out)} holds rows made with another {what} file (sha256 "
+                             f"{visible(sorted(before - {now})[0][:12])}…); one results file is one lot under "
+                             f"one {what}: restore that {what} or use another --out")
 
 
 def _sha_changed(path: str, row: dict[str, Any]) -> bool:
@@ -128,27 +212,59 @@ def _sha_changed(path: str, row: dict[str, Any]) -> bool:
         return True
 
 
-def _report(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespace) -> None:
+def _report(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespace,
+            positive: tuple[str, ...]) -> None:
     if args.plot:
         from ..report.lot_plot import LotSeries, save_lot_plot
 
-        series = [LotSeries(name, limit.unit, [row.get(name) if row["verdict"] != "error" else None
+        series = [LotSeries(name, limit.unit, [row.get(name) if row["verdict"] != "error"
+                                               and possible(row.get(name), name in positive) else None
                                                for row in outcome.rows], limit.lower, limit.upper)
                   for name, limit in spec.limits.items()]
-        save_lot_plot(series, args.plot, title=f"lot {lot}")
+        try:
+            save_lot_plot(series, args.plot, title=f"lot {lot}")
+        except OSError as exc:
+            raise write_failed("plot", args.plot, exc, f"{visible(args.out)} has every row") from None
     if args.json:
         payload = {"lot": lot, "results_file": str(args.out), "rule": spec.rule,
                    "guard_factor": spec.guard_factor, "rows_written": outcome.written,
                    "rows_resumed": outcome.resumed, "changed_since_analysed": list(outcome.changed),
                    "limits": {name: {"lower": lim.lower, "upper": lim.upper, "unit": lim.unit, "text": lim.text}
                               for name, lim in spec.limits.items()},
-                   "summary": outcome.summary.to_dict()}
-        print(json.dumps(payload, indent=2, allow_nan=False))
+                   "summary": outcome.summary.to_dict(), "history": outcome.history}
+        _emit(json.dumps(payload, indent=2, allow_nan=False), args.out)
         return
-    from .summary_text import render_summary
+    from .summary_text import render_history, render_summary
 
-    print(render_summary(outcome.summary, spec, lot))
-    print(f"  {outcome.written} rows written, {outcome.resumed} found from earlier runs -> {args.out}")
+    lines = [render_summary(outcome.summary, spec, lot),
+             f"  {outcome.written} rows written, {outcome.resumed} found from earlier runs -> {visible(args.out)}"]
+    if outcome.history is not None:
+        lines.append(render_history(outcome.history))
+    _emit("\n".join(lines), args.out)
+
+
+def _emit(text: str, out: str) -> None:
+    """Print the summary. When standard output cannot take it (a full disk), say so in one line;
+    a closed pipe is left to the command line, which ends quietly as Unix tools do."""
+    try:
+        sys.stdout.write(text + "\n")
+        sys.stdout.flush()
+    except BrokenPipeError:
+        raise
+    except OSError as exc:
+        _discard_stdout()
+        raise write_failed("the summary to", "standard output", exc, f"{visible(out)} has every row") from None
+
+
+def _discard_stdout() -> None:
+    """Point standard output at the null device, so the interpreter's last flush of what could
+    not be written does not fail again at exit with a traceback-like message."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError, io.UnsupportedOperation):  # no file descriptor: nothing is flushed at exit
+        pass
 
 
 def available_cores() -> int:

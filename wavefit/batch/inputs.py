@@ -9,9 +9,10 @@ import glob
 import os
 import re
 from pathlib import Path
-from typing import Sequence
+from typing import Callable, Sequence
 
 from ..errors import CaptureError
+from ..report.safe_text import visible
 
 #: File names taken from a folder: text tables, optionally gzip-compressed.
 CAPTURE_SUFFIXES = (".csv", ".txt", ".tsv", ".dat", ".csv.gz", ".txt.gz", ".tsv.gz", ".dat.gz")
@@ -30,36 +31,36 @@ def is_capture_name(name: str) -> bool:
     return name.lower().endswith(CAPTURE_SUFFIXES)
 
 
-def expand_inputs(inputs: Sequence[str]) -> list[str]:
+def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda path: False) -> list[str]:
     """Files named, files in named folders (not recursive), files matching patterns.
 
     Each path appears once, normalised (``os.path.normpath``), in capture
-    order. A name that is no file, folder or matching pattern is an error
-    raised before anything is analysed.
+    order. Files for which ``skip`` is true (the run's own outputs) are left
+    out wherever they come from. A name that is no file, folder or matching
+    pattern is an error raised before anything is analysed.
     """
     found: set[str] = set()
     for item in inputs:
         if os.path.isdir(item):
-            matches = [str(p) for p in Path(item).iterdir() if p.is_file() and is_capture_name(p.name)]
+            matches = [str(p) for p in Path(item).iterdir()
+                       if p.is_file() and is_capture_name(p.name) and not skip(str(p))]
             if not matches:
-                raise CaptureError(f"folder {item} has no capture files ({', '.join(CAPTURE_SUFFIXES)})")
+                raise CaptureError(f"folder {visible(item)} has no capture files ({', '.join(CAPTURE_SUFFIXES)})")
         elif os.path.isfile(item):
-            matches = [item]
+            matches = [] if skip(item) else [item]
         elif _GLOB_CHARS.search(item):
             matches = []
             for hit in glob.glob(item, recursive=True):
                 if os.path.isdir(hit):
-                    matches += [str(p) for p in Path(hit).iterdir() if p.is_file() and is_capture_name(p.name)]
-                elif os.path.isfile(hit):
+                    matches += [str(p) for p in Path(hit).iterdir()
+                                if p.is_file() and is_capture_name(p.name) and not skip(str(p))]
+                elif os.path.isfile(hit) and not skip(hit):
                     matches.append(hit)
             if not matches:
-                raise CaptureError(f"no capture file matches {item!r}")
+                raise CaptureError(f"no capture file matches '{visible(item)}'")
         else:
-            raise CaptureError(f"{item} does not exist; name capture files, folders or glob patterns")
-        for path in matches:
-            if "\n" in path or "\r" in path:
-                raise CaptureError(f"file name {path!r} contains a line break; rename it")
-            found.add(os.path.normpath(path))
+            raise CaptureError(f"{visible(item)} does not exist; name capture files, folders or glob patterns")
+        found.update(os.path.normpath(path) for path in matches)
     if not found:
         raise CaptureError("no capture files given; name files, folders or glob patterns")
     return sorted(found, key=capture_order)

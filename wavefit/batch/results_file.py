@@ -1,15 +1,16 @@
 """The results CSV of a lot: one row per capture, appended and synced as each finishes.
 
-The file is valid CSV after every row: each row is written with one ``write``
-call and ``fsync``-ed. A run that was killed may leave one partial last line;
-:meth:`ResultsFile.open` cuts it off and returns the complete rows, so a new
-run can skip them. The file is locked (POSIX record lock) while a run writes.
+The file is valid CSV after every row: each row is written whole and ``fsync``-ed;
+a write that fails (disk full) is cut off again, so the file keeps its earlier rows
+and no partial line. A run that was killed may leave one partial last line:
+:meth:`ResultsFile.open` cuts it off and returns the complete rows, so a new run
+can skip them. One run at a time: :class:`~wavefit.batch.run_lock.RunLock`.
 
-Text cells that a spreadsheet could take as a formula (starting with ``=``,
-``+``, ``-``, ``@``, tab or carriage return) get a leading apostrophe, as the
-OWASP "CSV Injection" guidance recommends; cells that start with an apostrophe
-get one too, so reading the file back is exact. Numbers are written as numbers
-(``repr`` of the float: enough digits to read back the same value).
+Text cells go through :func:`~wavefit.report.safe_text.spreadsheet_cell`: control
+characters escaped, and a leading apostrophe on a cell that a spreadsheet could take
+as a formula (OWASP "CSV Injection"); reading the file back undoes both exactly.
+Numbers are written as numbers (``repr`` of the float: enough digits to read back
+the same value).
 
 References
 ----------
@@ -19,7 +20,9 @@ References
 """
 from __future__ import annotations
 
+import contextlib
 import csv
+import errno
 import io
 import math
 import os
@@ -27,19 +30,16 @@ from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 from ..errors import WavefitError
-
-try:
-    import fcntl
-except ImportError:  # pragma: no cover - not on POSIX
-    fcntl = None  # type: ignore[assignment]
+from ..report.safe_text import from_spreadsheet_cell, spreadsheet_cell, visible
+from .decision import VERDICTS
+from .write_errors import write_failed
 
 LEAD_COLUMNS = ("file", "verdict", "message")
 TRACE_COLUMNS = ("tool_version", "capture_sha256", "setup_sha256", "spec_sha256", "analysed_at")
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "'")
 
 
 class ResultsFileError(WavefitError):
-    """The results file cannot be used: another run holds it, or it was written differently."""
+    """The results file cannot be used: it was written differently, or it is not a results file."""
 
     exit_code = 3
 
@@ -57,22 +57,27 @@ def numeric_columns(columns: Sequence[str]) -> frozenset[str]:
 
 
 def encode_cell(value: Any) -> str:
-    """A cell as written: numbers as numbers, text defused against formula evaluation."""
+    """A cell as written: numbers as numbers, text escaped and defused against formula evaluation."""
     if value is None:
         return ""
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         return repr(float(value)) if math.isfinite(value) else ""
-    text = str(value).replace("\r\n", " ").replace("\r", " ").replace("\n", " ")
-    return "'" + text if text.startswith(_FORMULA_START) else text
+    return spreadsheet_cell(str(value))
 
 
-def decode_text(cell: str) -> str:
-    """Undo :func:`encode_cell` for a text cell."""
-    return cell[1:] if cell.startswith("'") else cell
+def decode_number(cell: str) -> float | None:
+    """A number cell as read back (``None`` when empty); one this module could not have written
+    (not a number, or not finite) raises ``ValueError``."""
+    if not cell:
+        return None
+    value = float(cell)
+    if not math.isfinite(value):
+        raise ValueError(f"{cell!r} is not a finite number")
+    return value
 
 
 class ResultsFile:
-    """An open, locked results file; use as a context manager.
+    """An open results file; use as a context manager, inside the run's lock.
 
     Parameters
     ----------
@@ -99,14 +104,13 @@ class ResultsFile:
         self.close()
 
     def open(self) -> list[dict[str, Any]]:
-        """Lock the file, check the header and rows, drop a partial last line; return the rows."""
+        """Check the header and rows, drop a partial last line; return the rows."""
         try:
             fd = os.open(self.path, os.O_RDWR | os.O_CREAT | os.O_APPEND, 0o644)
         except OSError as exc:
-            raise ResultsFileError(f"cannot open results file {self.path}: {exc.strerror or exc}") from None
+            raise write_failed("results file", self.path, exc) from None
         self._fd = fd
         try:
-            self._lock(fd)
             self.rows = self._resume(fd)
         except BaseException:
             self.close()
@@ -121,27 +125,15 @@ class ResultsFile:
 
     def close(self) -> None:
         if self._fd is not None:
-            os.close(self._fd)  # closing the descriptor also releases the record lock
+            os.close(self._fd)
             self._fd = None
 
     def decode(self, cells: Sequence[str]) -> dict[str, Any]:
         """A row as read back: text columns decoded, numbers as floats (``None`` when empty)."""
         row: dict[str, Any] = {}
         for column, cell in zip(self.columns, cells):
-            if column in self._numeric:
-                row[column] = float(cell) if cell else None
-            else:
-                row[column] = decode_text(cell)
+            row[column] = decode_number(cell) if column in self._numeric else from_spreadsheet_cell(cell)
         return row
-
-    def _lock(self, fd: int) -> None:
-        if fcntl is None:  # pragma: no cover
-            return
-        try:
-            fcntl.lockf(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except OSError:
-            raise ResultsFileError(f"results file {self.path} is being written by another run; "
-                                   "wait for it to finish or use another --out") from None
 
     def _resume(self, fd: int) -> list[dict[str, Any]]:
         """Rows of an existing file; the file is changed only once it is known to be ours."""
@@ -151,18 +143,20 @@ class ResultsFile:
             chunks.append(chunk)
         data = b"".join(chunks)
         if not data or (b"\n" not in data and _csv_line(self.columns).startswith(data)):
-            os.ftruncate(fd, 0)  # new, or a header cut short by a kill
-            self._write_line(self.columns)
+            self._write_line(self.columns, start=0)  # new, or a header cut short by a kill
             return []
         keep = data.rfind(b"\n") + 1
         try:
             text = data[:keep].decode("utf-8")
         except UnicodeDecodeError:
-            raise ResultsFileError(f"results file {self.path} is not UTF-8 text; is it a results file? "
+            raise ResultsFileError(f"results file {visible(self.path)} is not UTF-8 text; is it a results file? "
                                    "use another --out") from None
         rows = self._parse(text)
         if keep < len(data):
-            os.ftruncate(fd, keep)  # the partial last line of a killed run
+            try:
+                os.ftruncate(fd, keep)  # the partial last line of a killed run
+            except OSError as exc:
+                raise write_failed("results file", self.path, exc) from None
             self.dropped_partial_line = True
         return rows
 
@@ -171,27 +165,51 @@ class ResultsFile:
         header = tuple(records[0]) if records else ()
         if header != self.columns:
             raise ResultsFileError(
-                f"results file {self.path} has columns {', '.join(header)}, but this run writes "
+                f"results file {visible(self.path)} has columns {visible(', '.join(header))}, but this run writes "
                 f"{', '.join(self.columns)} (another method or version); use another --out")
         rows = []
         for number, cells in enumerate(records[1:], start=2):
             if len(cells) != len(self.columns):
-                raise ResultsFileError(f"results file {self.path}: line {number} has {len(cells)} cells, "
-                                       f"expected {len(self.columns)}; repair or remove that line")
+                raise ResultsFileError(f"results file {visible(self.path)}: line {number} has {len(cells)} "
+                                       f"cells, expected {len(self.columns)}; repair or remove that line")
             try:
-                rows.append(self.decode(cells))
+                row = self.decode(cells)
             except ValueError:
-                raise ResultsFileError(f"results file {self.path}: line {number} has a number that "
+                raise ResultsFileError(f"results file {visible(self.path)}: line {number} has a number that "
                                        "cannot be read; repair or remove that line") from None
+            if row["verdict"] not in VERDICTS:
+                raise ResultsFileError(f"results file {visible(self.path)}: line {number} has the verdict "
+                                       f"'{visible(row['verdict'])}', not one of {', '.join(VERDICTS)}; "
+                                       "repair or remove that line")
+            rows.append(row)
         return rows
 
-    def _write_line(self, cells: Sequence[str]) -> None:
-        data = _csv_line(cells)
+    def _write_line(self, cells: Sequence[str], start: int | None = None) -> None:
+        """Append one line and sync it; on failure cut the file back to where the line began.
+
+        ``start`` first cuts the file to that length (0 for a new header).
+        """
         assert self._fd is not None
-        written = os.write(self._fd, data)
-        if written != len(data):  # pragma: no cover - a full disk
-            raise ResultsFileError(f"results file {self.path}: disk full? wrote {written} of {len(data)} bytes")
-        os.fsync(self._fd)
+        data = _csv_line(cells)
+        try:
+            if start is not None:
+                os.ftruncate(self._fd, start)
+            before = os.fstat(self._fd).st_size
+        except OSError as exc:
+            raise write_failed("results file", self.path, exc) from None
+        try:
+            view = memoryview(data)
+            while view:
+                written = os.write(self._fd, view)
+                if not written:  # a file system that takes nothing and says nothing
+                    raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+                view = view[written:]
+            os.fsync(self._fd)
+        except OSError as exc:
+            with contextlib.suppress(OSError):  # else the next run cuts off the partial line
+                os.ftruncate(self._fd, before)
+            kept = "its earlier rows are kept" if before else "no capture was analysed"
+            raise write_failed("results file", self.path, exc, kept) from None
 
 
 def _csv_line(cells: Sequence[str]) -> bytes:

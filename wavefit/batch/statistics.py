@@ -1,5 +1,10 @@
 """Lot statistics: verdict counts, yield, and per limited quantity mean, s, range and Cpk.
 
+Only values that a part could have enter the statistics: rows with verdict
+``error`` are left out, and so are values that are not finite or, for a quantity
+the method declares positive (L, tau, ...), not above zero. Yield counts every
+row, so an ``error`` row counts as a part not passed.
+
 References
 ----------
 .. [1] NIST/SEMATECH e-Handbook of Statistical Methods, §6.1.6 "What is
@@ -9,6 +14,9 @@ References
    https://www.itl.nist.gov/div898/handbook/pmc/section1/pmc16.htm
 .. [2] ISO 22514-2:2017, Statistical methods in process management —
    Capability and performance, Part 2 (the same indices for a normal process).
+.. [3] N. J. Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed.,
+   SIAM 2002, §4.2: pairwise summation of n terms errs by at most about
+   log2(n) units in the last place of their magnitude.
 """
 from __future__ import annotations
 
@@ -18,13 +26,22 @@ from typing import Any, Iterable, Mapping, Sequence
 
 import numpy as np
 
-from .decision import ERROR, PASS, VERDICTS
+from .decision import CONDITIONAL_PASS, ERROR, PASS, VERDICTS
 from .spec import Limit
+
+#: A standard deviation at most this many units in the last place of the values is no spread:
+#: the pairwise-summed mean (numpy) of up to 2**32 equal values misses them by at most ~32 ulp [3]_,
+#: so equal values, whose s is then that rounding, always fall below it; Cp and Cpk are undefined.
+ROUNDING_ULPS = 64
 
 
 @dataclass(frozen=True)
 class QuantityStatistics:
-    """Summary of one limited quantity over the analysed parts of a lot (SI units)."""
+    """Summary of one limited quantity over the analysed parts of a lot (SI units).
+
+    ``excluded`` counts values left out because no part could have them (not finite, or
+    not positive for a quantity that must be).
+    """
 
     name: str
     n: int
@@ -36,9 +53,10 @@ class QuantityStatistics:
     upper: float | None
     cp: float | None
     cpk: float | None
+    excluded: int = 0
 
     def to_dict(self) -> dict[str, Any]:
-        return {"n": self.n, "mean": _num(self.mean), "std": _num(self.std), "min": _num(self.minimum),
+        return {"n": self.n, "excluded": self.excluded, "mean": _num(self.mean), "std": _num(self.std), "min": _num(self.minimum),
                 "max": _num(self.maximum), "lower_limit": self.lower, "upper_limit": self.upper,
                 "cp": _num(self.cp), "cpk": _num(self.cpk)}
 
@@ -47,9 +65,9 @@ class QuantityStatistics:
 class LotSummary:
     """Counts per verdict, yield and statistics per limited quantity.
 
-    ``yield_`` is pass / analysed, where analysed counts the rows whose verdict
-    is not ``error``; conditional passes are not counted as passes (under the
-    guard-band rule they lie within the guard band of a limit).
+    ``yield_`` is pass / all rows: an ``error`` row is a part not shown to pass, so
+    it counts as not passed. Conditional passes are not counted as passes (under
+    the guard-band rule they lie within the guard band of a limit);
     ``yield_with_conditional`` counts them too.
     """
 
@@ -62,6 +80,7 @@ class LotSummary:
     def to_dict(self) -> dict[str, Any]:
         return {"total": self.total, "counts": dict(self.counts), "yield": _num(self.yield_),
                 "yield_with_conditional": _num(self.yield_with_conditional),
+                "errors_counted_as_not_passed": self.counts.get(ERROR, 0),
                 "quantities": {k: q.to_dict() for k, q in self.quantities.items()}}
 
 
@@ -70,7 +89,8 @@ def capability(mean: float, std: float, lower: float | None, upper: float | None
     """(Cp, Cpk) of a normal process with the given mean and standard deviation [1]_.
 
     Cp needs both limits; Cpk is the one-sided index (Cpu or Cpl) when only one
-    limit is given. Both are ``None`` when σ is zero or not finite.
+    limit is given. Both are ``None`` when σ is zero or not finite, or an index
+    does not come out finite.
     """
     if not (math.isfinite(std) and std > 0 and math.isfinite(mean)):
         return None, None
@@ -80,39 +100,65 @@ def capability(mean: float, std: float, lower: float | None, upper: float | None
     if lower is not None:
         sides.append((mean - lower) / (3.0 * std))
     cp = (upper - lower) / (6.0 * std) if lower is not None and upper is not None else None
-    return cp, (min(sides) if sides else None)
+    return _finite_or_none(cp), _finite_or_none(min(sides) if sides else None)
 
 
-def quantity_statistics(name: str, values: Sequence[float], limit: Limit) -> QuantityStatistics:
-    """Mean, sample standard deviation (n − 1), min, max, Cp and Cpk of ``values``."""
-    x = np.asarray([v for v in values if v is not None and math.isfinite(v)], dtype=float)
+def possible(value: Any, positive: bool) -> bool:
+    """Whether a part could have ``value``: a finite number, above zero when ``positive``."""
+    if not isinstance(value, (int, float)) or isinstance(value, bool) or not math.isfinite(value):
+        return False
+    return value > 0 or not positive
+
+
+def quantity_statistics(name: str, values: Sequence[float | None], limit: Limit,
+                        positive: bool = False) -> QuantityStatistics:
+    """Mean, sample standard deviation (n − 1), min, max, Cp and Cpk of ``values``.
+
+    Missing values (``None``) are skipped; impossible ones (:func:`possible`) are
+    skipped and counted in ``excluded``. A spread within rounding of the values
+    (:data:`ROUNDING_ULPS`) is taken as zero, which leaves Cp and Cpk undefined.
+    """
+    present = [v for v in values if v is not None]
+    x = np.asarray([v for v in present if possible(v, positive)], dtype=float)
+    excluded = len(present) - int(x.size)
     if x.size == 0:
         return QuantityStatistics(name, 0, math.nan, math.nan, math.nan, math.nan,
-                                  limit.lower, limit.upper, None, None)
-    mean = float(np.mean(x))
-    std = float(np.std(x, ddof=1)) if x.size > 1 else math.nan
+                                  limit.lower, limit.upper, None, None, excluded)
+    with np.errstate(over="ignore", invalid="ignore"):  # values near the float limit: undefined, not a warning
+        mean = float(np.mean(x))
+        std = float(np.std(x, ddof=1)) if x.size > 1 else math.nan
+    if std <= ROUNDING_ULPS * float(np.spacing(np.max(np.abs(x)))):
+        std = 0.0
     cp, cpk = capability(mean, std, limit.lower, limit.upper)
     return QuantityStatistics(name, int(x.size), mean, std, float(x.min()), float(x.max()),
-                              limit.lower, limit.upper, cp, cpk)
+                              limit.lower, limit.upper, cp, cpk, excluded)
 
 
-def summarize(rows: Iterable[Mapping[str, Any]], limits: Mapping[str, Limit]) -> LotSummary:
+def summarize(rows: Iterable[Mapping[str, Any]], limits: Mapping[str, Limit],
+              positive: Iterable[str] = ()) -> LotSummary:
     """Summarise result rows (dicts with ``verdict`` and quantity values) against ``limits``.
 
-    Statistics use the rows whose verdict is not ``error``.
+    Statistics use the rows whose verdict is not ``error``, and of those only the
+    values a part could have; ``positive`` names the quantities that must be above
+    zero (the method's ``positive``). Yield divides by all rows.
     """
     rows = list(rows)
     counts = {v: 0 for v in VERDICTS}
     for row in rows:
-        counts[row["verdict"]] = counts.get(row["verdict"], 0) + 1
+        counts[row["verdict"]] += 1
     analysed = [row for row in rows if row["verdict"] != ERROR]
-    n = len(analysed)
-    yield_ = counts[PASS] / n if n else None
-    with_cond = (counts[PASS] + counts["conditional pass"]) / n if n else None
-    stats = {name: quantity_statistics(name, [row.get(name) for row in analysed], limit)
+    total = len(rows)
+    yield_ = counts[PASS] / total if total else None
+    with_cond = (counts[PASS] + counts[CONDITIONAL_PASS]) / total if total else None
+    must_be_positive = frozenset(positive)
+    stats = {name: quantity_statistics(name, [row.get(name) for row in analysed], limit, name in must_be_positive)
              for name, limit in limits.items()}
-    return LotSummary(len(rows), counts, yield_, with_cond, stats)
+    return LotSummary(total, counts, yield_, with_cond, stats)
 
 
 def _num(x: float | None) -> float | None:
     return float(x) if x is not None and math.isfinite(x) else None
+
+
+def _finite_or_none(x: float | None) -> float | None:
+    return x if x is not None and math.isfinite(x) else None
