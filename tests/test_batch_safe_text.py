@@ -117,3 +117,14 @@ def test_json_summary_has_no_raw_control(tmp_path, capsys, monkeypatch):
     assert run(hostile_args("--json", "--lot", "\x1b]0;t\x07"), analyse=fake_analyse) == 0
     out = capsys.readouterr().out
     assert out.isascii() and "\x1b" not in out and json.loads(out)["lot"] == "\x1b]0;t\x07"
+
+
+def test_spec_errors_show_the_file_name_and_the_limit_escaped(tmp_path):
+    from wavefit.batch.spec import load_spec
+    from wavefit.errors import SetupError
+
+    spec = tmp_path / "spec\x1b[2J.toml"
+    spec.write_text('[limits]\nL = "47 \\u001b]0;t\\u0007uH ±5%"\n', encoding="utf-8")   # TOML escapes
+    with pytest.raises(SetupError) as caught:
+        load_spec(spec)
+    assert str(caught.value).isprintable() and "spec\\x1b[2J.toml" in str(caught.value)

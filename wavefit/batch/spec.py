@@ -25,6 +25,7 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from ..errors import SetupError
+from ..report.safe_text import visible
 from ..setup import read_toml
 from ..values import parse_number_with_unit, parse_relative
 
@@ -75,7 +76,7 @@ def load_spec(path: str | os.PathLike[str]) -> Spec:
     """Read a spec from a TOML file."""
     path = Path(path)
     data = read_toml(path, "spec")
-    return parse_spec(data, source=str(path))
+    return parse_spec(data, source=visible(path))
 
 
 def parse_spec(data: Mapping[str, Any], *, source: str = "<dict>") -> Spec:
@@ -136,7 +137,7 @@ def _number(text: str, where: str) -> tuple[float, str]:
     try:
         value, unit = parse_number_with_unit(text)
     except SetupError as exc:
-        raise SetupError(f"{where}: {exc}") from None
+        raise SetupError(f"{where}: {visible(exc)}") from None
     if not math.isfinite(value):
         raise SetupError(f"{where}: {text!r} is not a finite number")
     return value, unit
@@ -148,7 +149,7 @@ def _half_width(text: str, nominal: float, unit: str, where: str) -> float:
         try:
             half = abs(nominal) * parse_relative(text)
         except SetupError as exc:
-            raise SetupError(f"{where}: {exc}") from None
+            raise SetupError(f"{where}: {visible(exc)}") from None
     else:
         half, tol_unit = _number(text, where)
         if tol_unit and unit and tol_unit != unit:
