@@ -112,3 +112,19 @@ def test_a_capture_error_names_the_file_once_among_several(capture_file, tmp_pat
     code, out, err = run("analyze", str(capture_file), str(binary), "--setup", str(setup))
     line = next(x for x in err.splitlines() if "binary.csv" in x)
     assert line.count("binary.csv") == 1 and "looks binary" in line
+
+
+def test_control_characters_never_reach_the_terminal(tmp_path):
+    # a name, a header and a preamble value carrying terminal controls (ECMA-48 ESC sequences,
+    # a right-to-left override U+202E); shown escaped, never raw
+    name = tmp_path / "lot\x1b[2J\u202eA.csv"
+    t = np.arange(400) * 1e-6
+    rows = [f"{a:.9e},{np.sin(2e4 * a):.6f}" for a in t]
+    name.write_text("\n".join(["Probe,\x1b]0;title\x07 x10", "Time (s),CH\x1bc1 (V)", *rows]) + "\n", encoding="utf-8")
+    setup = tmp_path / "s.toml"
+    setup.write_text('method = "lc-ring"\n[columns]\ntank = 1\n[parts]\ntank_capacitor = "10 nF"\n', encoding="utf-8")
+    for argv in (["inspect", str(name)], ["analyze", str(name), "--setup", str(setup)]):
+        code, out, err = run(*argv)
+        for text in (out, err):
+            assert "\x1b" not in text and "\u202e" not in text and "\x07" not in text
+        assert "\\x1b" in out + err

@@ -1,7 +1,7 @@
 """Command line: parse arguments, call the library, print, set the exit code.
 
 Exit codes: 0 done; 2 usage error; 3 unreadable capture or bad setup;
-4 analysis refused (no result that could be trusted).
+4 analysis refused (no result that could be trusted); 5 an output could not be written.
 """
 from __future__ import annotations
 
@@ -14,8 +14,9 @@ from typing import Sequence
 
 from . import __version__
 from .errors import WavefitError
+from .report.safe_text import visible
 
-EXIT_OK, EXIT_USAGE, EXIT_INPUT, EXIT_REFUSED = 0, 2, 3, 4
+EXIT_OK, EXIT_USAGE, EXIT_INPUT, EXIT_REFUSED, EXIT_OUTPUT = 0, 2, 3, 4, 5
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -71,6 +72,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 141
+    except OSError as exc:  # the output could not be written (a full disk, a closed terminal)
+        print(f"wavefit: error: cannot write the output ({exc.strerror or exc})", file=sys.stderr)
+        return EXIT_OUTPUT
 
 
 def _analyze(args: argparse.Namespace) -> int:
@@ -96,7 +100,8 @@ def _analyze(args: argparse.Namespace) -> int:
                 raise
             label = source if isinstance(source, str) else "setup captures"
             message = _one_line(str(exc))
-            named = message if exc.source is not None else f"{label}: {message}"
+            # with several captures each error must say which one; the reader's already do
+            named = message if exc.source is not None or len(jobs) == 1 else f"{_one_line(label)}: {message}"
             print(f"wavefit: error: {named}", file=sys.stderr)
             worst = max(worst, exc.exit_code)
             continue
@@ -108,7 +113,7 @@ def _analyze(args: argparse.Namespace) -> int:
         if not args.json:
             from .report.text import render
 
-            print(render(result, budget=not args.no_budget))
+            print(_shown(render(result, budget=not args.no_budget)))
             print()
             sys.stdout.flush()
     if args.json and results:
@@ -136,17 +141,14 @@ def _inspect(args: argparse.Namespace) -> int:
         return EXIT_OK
     from .values import eng
 
-    print(f"{info['source']}: {info['rows']} rows, sample interval {eng(info['sample_interval_s'], 's')}"
-          f", time from {info['time_column'] or 'sample interval'}")
-    for col in info["columns"]:
-        print(f"  {col['header']!r:<24} unit {col['unit'] or '-':<4} "
-              f"min {col['min']!s:<14} max {col['max']!s}")
-    for key, value in info["metadata"].items():
-        print(f"  meta {key}: {value}")
-    for w in info["warnings"]:
-        print(f"  ! {w}")
-    for note in info["notes"]:
-        print(f"  note: {note}")
+    lines = [f"{info['source']}: {info['rows']} rows, sample interval {eng(info['sample_interval_s'], 's')}"
+             f", time from {info['time_column'] or 'sample interval'}"]
+    lines += [f"  {col['header']!r:<24} unit {col['unit'] or '-':<4} min {col['min']!s:<14} max {col['max']!s}"
+              for col in info["columns"]]
+    lines += [f"  meta {key}: {value}" for key, value in info["metadata"].items()]
+    lines += [f"  ! {w}" for w in info["warnings"]]
+    lines += [f"  note: {note}" for note in info["notes"]]
+    print(_shown("\n".join(lines)))
     return EXIT_OK
 
 
@@ -156,7 +158,14 @@ def _plot_path(path: str, k: int, total: int) -> Path:
 
 
 def _one_line(text: str) -> str:
-    return " ".join(text.split())
+    """A message on one line, with any control character from a file or a name shown escaped."""
+    return visible(" ".join(text.split()))
+
+
+def _shown(text: str) -> str:
+    """Lines of a report with any control character from a file or a name shown escaped (the
+    terminal must never obey a preamble value, a header or a file name)."""
+    return "\n".join(visible(line) for line in text.split("\n"))
 
 
 if __name__ == "__main__":  # pragma: no cover
