@@ -29,6 +29,8 @@ from typing import Callable
 import numpy as np
 from scipy.special import log_ndtr
 
+from .jacobian import Jacobian, as_jacobian
+
 #: codes either side of the mean over which a sample's expected information is summed
 #: is ceil(SPAN_SIGMAS·σ/q) + 1; beyond 7σ a code's probability is below 1e-11
 SPAN_SIGMAS = 7.0
@@ -117,7 +119,7 @@ def expected_information(mean: np.ndarray, sigma: np.ndarray, step: float, origi
 
 
 def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.ndarray],
-              jacobian: Callable[[np.ndarray], np.ndarray], x0: np.ndarray, groups: np.ndarray,
+              jacobian: Callable[[np.ndarray], "np.ndarray | Jacobian"], x0: np.ndarray, groups: np.ndarray,
               sigma0: np.ndarray, sigma_known: bool = False) -> CodeFit:
     """Maximise ℓ over θ (model parameters) and one σ per noise group.
 
@@ -141,10 +143,10 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
     converged = False
     iterations = 0
     for iterations in range(1, MAX_ITERATIONS + 1):
-        mean, jac = model(theta), jacobian(theta)
+        mean, jac = model(theta), as_jacobian(jacobian(theta))
         s_mean, s_sigma = scores(codes, mean, sig[groups], step)
         info = _information(jac, mean, sig, groups, members, step, origin)
-        grad = np.concatenate([jac.T @ s_mean, [float(np.sum(s_sigma[m])) for m in members]])
+        grad = np.concatenate([jac.rmatvec(s_mean), [float(np.sum(s_sigma[m])) for m in members]])
         delta = np.zeros(p + g)
         try:
             delta[free] = np.linalg.solve(info[free, free], grad[free])
@@ -168,7 +170,7 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
             converged = decrement < 1e-6
             break
     else:  # out of iterations: the last step moved θ after its information was computed
-        info = _information(jacobian(theta), model(theta), sig, groups, members, step, origin)
+        info = _information(as_jacobian(jacobian(theta)), model(theta), sig, groups, members, step, origin)
     try:
         covariance = np.linalg.inv(info[free, free])[:p, :p]
     except np.linalg.LinAlgError:  # a parameter the codes say nothing about (σ → 0 on a flat level)
@@ -177,14 +179,14 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
     return CodeFit(theta, 0.5 * (covariance + covariance.T), sig, iterations, converged)
 
 
-def _information(jac, mean, sig, groups, members, step, origin) -> np.ndarray:
+def _information(jac: Jacobian, mean, sig, groups, members, step, origin) -> np.ndarray:
     """Expected Fisher information of (θ, σ_1 … σ_g)."""
     i_mm, i_ms, i_ss = expected_information(mean, sig[groups], step, origin)
-    p, g = jac.shape[1], len(members)
+    p, g = jac.params, len(members)
     info = np.zeros((p + g, p + g))
-    info[:p, :p] = jac.T @ (i_mm[:, None] * jac)
+    info[:p, :p] = jac.weighted_gram(i_mm)
     for k, m in enumerate(members):
-        cross = jac[m].T @ i_ms[m]
+        cross = jac.rmatvec(i_ms, mask=m)
         info[:p, p + k] = cross
         info[p + k, :p] = cross
         info[p + k, p + k] = float(np.sum(i_ss[m]))

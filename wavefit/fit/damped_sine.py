@@ -43,6 +43,7 @@ import numpy as np
 from scipy import optimize
 
 from .engine import Block, fit_least_squares
+from .jacobian import Jacobian, Piece
 from .quantisation import include_quantisation
 from .pencil import matrix_pencil
 from .result import FitResult
@@ -133,6 +134,11 @@ def jacobian(x: np.ndarray, tau: np.ndarray) -> np.ndarray:
     return j
 
 
+def pieced_jacobian(x: np.ndarray, tau: np.ndarray) -> Jacobian:
+    """:func:`jacobian` as one piece, evaluated a chunk of rows at a time."""
+    return Jacobian(tau.size, [Piece(0, tau.size, lambda a, b: jacobian(x, tau[a:b]), np.eye(len(NAMES)))])
+
+
 def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: int | None = None,
              noise: str = "auto") -> DampedSineFit:
     """Find the ring in a record and fit a damped sinusoid to it.
@@ -209,15 +215,15 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     def fun(x: np.ndarray) -> np.ndarray:
         return y - model(x, tau)
 
-    def jac(x: np.ndarray) -> np.ndarray:
-        return -jacobian(x, tau)
+    def jac(x: np.ndarray) -> Jacobian:
+        return pieced_jacobian(x, tau).negated()
 
     lower = np.array([-np.inf, -np.inf, -np.inf, -np.inf, 0.0])
     upper = np.array([np.inf, np.inf, np.inf, np.inf, math.pi])
     blocks = [Block(0, n, "tank")]
     fit = fit_least_squares(fun, jac, x0, NAMES, blocks, model="damped sinusoid",
                             noise=noise, bounds=(lower, upper), x_scale=_x_scale(x0))
-    fit = include_quantisation(fit, y, lambda x: model(x, tau), lambda x: jacobian(x, tau), blocks)
+    fit = include_quantisation(fit, y, lambda x: model(x, tau), lambda x: pieced_jacobian(x, tau), blocks)
     scale = np.array([1.0, 1.0, 1.0, 1.0 / sample_interval, 1.0 / sample_interval])
     physical = dataclasses.replace(fit, values=fit.values * scale,
                                    covariance=fit.covariance * np.outer(scale, scale))

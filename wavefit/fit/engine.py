@@ -8,18 +8,28 @@ covariance is s²·(JᵀJ)⁻¹ of the whitened, weighted problem, the usual
 linearised estimate (e.g. Seber & Wild 1989, §2.1), which is also how the
 NIST StRD certified standard deviations are defined.
 
+A Jacobian may be an array or a :class:`~wavefit.fit.jacobian.Jacobian` of pieces.
+A problem too large to hold densely (:func:`~wavefit.fit.jacobian.is_small`) is given
+to the solver as the triangular factor of its whitened rows
+(:mod:`wavefit.fit.compressed`): the same steps, with memory that grows with the record
+only through its residual vectors, whatever the number of parameters.
+
 The residuals are checked for structure with the Ljung–Box portmanteau
 statistic (G. M. Ljung and G. E. P. Box, Biometrika 65 (1978) 297–303).
 """
 from __future__ import annotations
 
 import math
+from contextlib import contextmanager
 from dataclasses import dataclass
-from typing import Callable, Sequence
+from typing import Callable, Iterator, Sequence
 
 import numpy as np
 from scipy import optimize
 
+from ..errors import AnalysisRefused
+from .compressed import TriangularProblem, triangle
+from .jacobian import Jacobian, as_jacobian, is_small
 from .noise_model import ARNoise, fit_ar, white
 from .portmanteau import ljung_box, structured
 from .result import FitResult
@@ -43,7 +53,7 @@ class Block:
     group: str = "signal"
 
 
-def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], np.ndarray],
+def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
                       x0: Sequence[float], names: Sequence[str], blocks: Sequence[Block], *,
                       model: str, bounds: tuple = (-np.inf, np.inf), noise: str = "auto",
                       x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
@@ -53,48 +63,69 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
     ``noise`` is ``"auto"`` (AR noise model chosen from the residuals),
     ``"white"`` (independent samples, scatter estimated), or ``"known"``
     (white with the per-group standard deviations given in ``sigma``).
+    A fit that runs out of memory is refused (``AnalysisRefused``) in one line
+    that gives its size.
     """
     if noise not in ("auto", "white", "known"):
         raise ValueError("noise must be 'auto', 'white' or 'known'")
     blocks = list(blocks)
-    groups = sorted({b.group for b in blocks})
     m = sum(b.stop - b.start for b in blocks)
-    x = np.asarray(x0, dtype=float)
-    p = x.size
+    p = len(x0)
     if m <= p:
         raise ValueError("fewer samples than parameters")
+    with refused_when_out_of_memory(model, m, p):
+        return _fit(fun, jac, np.asarray(x0, dtype=float), names, blocks, model, bounds, noise, x_scale,
+                    max_ar_order, sigma)
 
+
+@contextmanager
+def refused_when_out_of_memory(model: str, samples: int, parameters: int) -> Iterator[None]:
+    """Turn a MemoryError inside a fit into a one-line refusal that names the fit's size."""
+    try:
+        yield
+    except MemoryError:
+        raise AnalysisRefused(f"not enough memory for the {model} fit of {samples:,} samples and {parameters} "
+                              "parameters; analyse a shorter or decimated record") from None
+
+
+def _fit(fun, jac, x, names, blocks, model, bounds, noise, x_scale, max_ar_order, sigma) -> FitResult:
+    groups = sorted({b.group for b in blocks})
+    m = sum(b.stop - b.start for b in blocks)
+    p = x.size
     models: dict[str, ARNoise]
     if noise == "known":
         models = {g: white(float(sigma[g])) for g in groups}  # type: ignore[index]
     else:
         models = {g: white(1.0) for g in groups}
-    x = _solve(fun, jac, x, blocks, models, bounds, x_scale)
+    small = is_small(m, p)
+    x = _solve(fun, jac, x, blocks, models, bounds, x_scale, small)
     if noise != "known":
         models = _scatter_models(fun(x), blocks, groups, p, m)
         if len(groups) > 1:
-            x = _solve(fun, jac, x, blocks, models, bounds, x_scale)
+            x = _solve(fun, jac, x, blocks, models, bounds, x_scale, small)
             models = _scatter_models(fun(x), blocks, groups, p, m)
     if noise == "auto":
         models = _ar_models(fun(x), blocks, groups, max_ar_order)
         if any(mod.order for mod in models.values()):
-            x = _solve(fun, jac, x, blocks, models, bounds, x_scale)
+            x = _solve(fun, jac, x, blocks, models, bounds, x_scale, small)
             models = _ar_models(fun(x), blocks, groups, max_ar_order)
 
     r = fun(x)
     e = _whiten(r, blocks, models)
-    jw = _whiten(jac(x), blocks, models)
+    jacobian = as_jacobian(jac(x))
     ar_params = sum(mod.order for mod in models.values())
     dof = float(e.size - p - ar_params)
     s2 = float(e @ e) / dof if noise != "known" else 1.0
-    bread = _inverse_normal_matrix(jw)
+    whitened = (_whiten(jacobian.toarray(), blocks, models) if small
+                else triangle(jacobian, None, blocks, models)[:p, :p])
+    bread = _inverse_normal_matrix(whitened, m)
     if not np.all(np.isfinite(bread)):
         raise ValueError("the data do not determine every fit parameter (singular normal matrix)")
     cov = s2 * bread
     extents: dict[str, int] = {}
     if noise == "auto" and ar_params:
         # the AR model may whiten only approximately: use the sandwich G Σ Gᵀ (see fit/sandwich.py)
-        robust = sandwich_covariance(r, blocks, models, jac(x), jw, bread, max_lag=min(m // 10, 1000))
+        robust = sandwich_covariance(r, blocks, models, jacobian, bread, max_lag=min(m // 10, 1000))
         if robust is not None:  # None: too little data for a positive-definite noise covariance
             cov, extents = robust
             for g, lags in extents.items():
@@ -121,11 +152,20 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], n
     )
 
 
-def _solve(fun, jac, x, blocks, models, bounds, x_scale) -> Vector:
+def _solve(fun, jac, x, blocks, models, bounds, x_scale, small: bool) -> Vector:
+    if small:
+        def residuals(v):
+            return _whiten(fun(v), blocks, models)
+
+        def jacobian(v):
+            return _whiten(as_jacobian(jac(v)).toarray(), blocks, models)
+    else:
+        problem = TriangularProblem(fun, jac, blocks, models)
+        residuals, jacobian = problem.residuals, problem.jacobian
     res = optimize.least_squares(
-        lambda v: _whiten(fun(v), blocks, models),
+        residuals,
         x,
-        jac=lambda v: _whiten(jac(v), blocks, models),
+        jac=jacobian,
         bounds=bounds,
         method="trf",
         x_scale=x_scale,
@@ -170,13 +210,15 @@ def _ar_models(r, blocks, groups, max_order) -> dict[str, ARNoise]:
     return out
 
 
-def _inverse_normal_matrix(j: np.ndarray) -> np.ndarray:
-    """(JᵀJ)⁻¹ through the SVD of J with unit-norm columns, so that columns of very different
-    scale (channels whose noise differs by orders of magnitude) do not look rank-deficient."""
-    norms = np.sqrt(np.sum(j * j, axis=0))
+def _inverse_normal_matrix(r: np.ndarray, rows: int) -> np.ndarray:
+    """(JᵀJ)⁻¹ from J itself or from its triangular factor R (J = QR, ``rows`` the rows of J),
+    through the SVD with unit-norm columns (those of R are J's), so that columns of very
+    different scale (channels whose noise differs by orders of magnitude) do not look
+    rank-deficient."""
+    norms = np.sqrt(np.sum(r * r, axis=0))
     norms = np.where(norms > 0, norms, 1.0)
-    _, s, vt = np.linalg.svd(j / norms, full_matrices=False)
-    tol = np.finfo(float).eps * max(j.shape) * s[0]
+    _, s, vt = np.linalg.svd(r / norms, full_matrices=False)
+    tol = np.finfo(float).eps * max(rows, r.shape[1]) * s[0]
     inv_s2 = np.where(s > tol, 1.0 / np.maximum(s, tol) ** 2, np.inf)
     return ((vt.T * inv_s2) @ vt) / np.outer(norms, norms)
 

@@ -24,6 +24,7 @@ import numpy as np
 from scipy import optimize
 
 from .engine import Block, fit_least_squares
+from .jacobian import Jacobian, Piece
 from .quantisation import include_quantisation
 from .result import FitResult
 
@@ -127,15 +128,19 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     def fun(x: np.ndarray) -> np.ndarray:
         return y - model_values(x)
 
-    def jac(x: np.ndarray) -> np.ndarray:
-        j = np.zeros((y.size, n_par))
+    def jac(x: np.ndarray) -> Jacobian:
+        # each channel's rows depend on tau and its own final level and coefficient only
+        pieces = []
         for c, u in enumerate(scaled):
-            rows = slice(offsets[c], offsets[c + 1])
-            e = np.exp(-u / x[0])
-            j[rows, 0] = -x[2 + 2 * c] * e * u / x[0] ** 2
-            j[rows, 1 + 2 * c] = -1.0
-            j[rows, 2 + 2 * c] = -e
-        return j
+            def basis(a: int, b: int, c: int = c, u: np.ndarray = u) -> np.ndarray:
+                uu = u[a - offsets[c]:b - offsets[c]]
+                e = np.exp(-uu / x[0])
+                return np.column_stack((-x[2 + 2 * c] * e * uu / x[0] ** 2, np.full_like(e, -1.0), -e))
+
+            select = np.zeros((3, n_par))
+            select[[0, 1, 2], [0, 1 + 2 * c, 2 + 2 * c]] = 1.0
+            pieces.append(Piece(int(offsets[c]), int(offsets[c + 1]), basis, select))
+        return Jacobian(y.size, pieces)
 
     names = ["tau"]
     for ch in channels:
@@ -146,7 +151,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     lower[0] = 1e-6
     fit = fit_least_squares(fun, jac, x0, names, blocks, model=model, noise=noise,
                             bounds=(lower, np.full(n_par, np.inf)))
-    fit = include_quantisation(fit, y, model_values, lambda x: -jac(x), blocks)
+    fit = include_quantisation(fit, y, model_values, lambda x: jac(x).negated(), blocks)
     covariance = fit.covariance
     scale = np.ones(n_par)
     scale[0] = tau_start

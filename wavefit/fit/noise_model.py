@@ -23,10 +23,13 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 from functools import cached_property
+from typing import Callable
 
 import numpy as np
 from scipy.linalg import cholesky, solve_toeplitz, solve_triangular, toeplitz
 from scipy.signal import lfilter
+
+from .lagged import cross_products
 
 
 @dataclass(frozen=True)
@@ -68,24 +71,43 @@ class ARNoise:
     def whiten(self, r: np.ndarray) -> np.ndarray:
         """``r`` transformed to independent unit-variance samples, as many as it has: the
         first p through :attr:`head_whitener`, the rest as scaled innovations."""
+        return self.whiten_rows(lambda a, b: r[a:b], r.shape[0], 0, r.shape[0])
+
+    def whiten_rows(self, rows: Callable[[int, int], np.ndarray], n: int, start: int, stop: int) -> np.ndarray:
+        """Rows start..stop of :meth:`whiten` of the n-row array whose rows a..b are ``rows(a, b)``
+        (each output row needs the p rows before it, and the first p the first p)."""
         if self.order == 0:
-            return r / self.sigma_e
-        k = min(self.order, r.shape[0])
-        out = lfilter(self.filter, [1.0], r, axis=0) / self.sigma_e
-        out[:k] = self.head_whitener[:k, :k] @ r[:k]
+            return rows(start, stop) / self.sigma_e
+        k = min(self.order, n)
+        lo = max(0, start - self.order)
+        r = rows(lo, stop)
+        out = lfilter(self.filter, [1.0], r, axis=0)[start - lo:] / self.sigma_e
+        if start < k:
+            head = r[:k] if stop >= k else rows(0, k)
+            out[: min(stop, k) - start] = (self.head_whitener[:k, :k] @ head)[start:stop]
         return out
 
     def whiten_adjoint(self, g: np.ndarray) -> np.ndarray:
         """Wᵀ g for the whitening W of :meth:`whiten` (same length as ``g``)."""
+        return self.adjoint_rows(lambda a, b: g[a:b], g.shape[0], 0, g.shape[0])
+
+    def adjoint_rows(self, rows: Callable[[int, int], np.ndarray], n: int, start: int, stop: int) -> np.ndarray:
+        """Rows start..stop of :meth:`whiten_adjoint` of the n-row array given by ``rows``
+        (each output row needs the p rows after it, and the first p the first p)."""
         if self.order == 0:
-            return g / self.sigma_e
-        n, p = g.shape[0], self.order
+            return rows(start, stop) / self.sigma_e
+        p = self.order
         k = min(p, n)
-        out = np.zeros_like(g, dtype=float)
+        g = rows(start, min(stop + p, n))
+        out = np.zeros((stop - start,) + g.shape[1:])
         for j, fj in enumerate(self.filter):
-            out[p - j : n - j] += fj * g[p:n]
+            lo, hi = max(start, p - j), min(stop, n - j)  # rows i whose i + j is a row p..n of g
+            if lo < hi:
+                out[lo - start:hi - start] += fj * g[lo + j - start:hi + j - start]
         out /= self.sigma_e
-        out[:k] += self.head_whitener[:k, :k].T @ g[:k]
+        if start < k:
+            head = g[:k] if start == 0 and g.shape[0] >= k else rows(0, k)
+            out[: min(stop, k) - start] += (self.head_whitener[:k, :k].T @ head)[start:stop]
         return out
 
     def describe(self) -> dict:
@@ -98,18 +120,20 @@ class ARNoise:
 
 
 def autocovariance(blocks: list[np.ndarray], max_lag: int) -> tuple[np.ndarray, int]:
-    """Pooled biased autocovariance of zero-mean blocks up to ``max_lag`` (via FFT)."""
+    """Pooled biased autocovariance of zero-mean blocks up to ``max_lag`` (lag products by
+    FFT, a chunk of samples at a time: :func:`wavefit.fit.lagged.cross_products`)."""
     acov = np.zeros(max_lag + 1)
     total = 0
     for r in blocks:
         n = r.size
         if n == 0:
             continue
-        x = r - r.mean()
-        nfft = 1 << int(math.ceil(math.log2(2 * n)))
-        spec = np.fft.rfft(x, nfft)
-        full = np.fft.irfft(spec * np.conj(spec), nfft)[: max_lag + 1]
-        acov[: min(max_lag + 1, n)] += full[: min(max_lag + 1, n)]
+        mean = r.mean()
+
+        def centred(a: int, b: int, r=r, mean=mean) -> np.ndarray:
+            return r[a:b] - mean
+
+        acov += cross_products(centred, centred, n, 1, 0, max_lag)
         total += n
     return acov / max(total, 1), total
 

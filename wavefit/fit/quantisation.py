@@ -28,6 +28,10 @@ import numpy as np
 
 from ..signal.codes import code_grid, code_step
 from .code_likelihood import fit_codes, standardised_scores
+from .compressed import triangle
+from .engine import Block
+from .jacobian import Jacobian, as_jacobian
+from .noise_model import white
 from .portmanteau import standardised_portmanteau
 
 #: Below this residual rms, in codes, the error is treated as not dithered (residual
@@ -35,7 +39,7 @@ from .portmanteau import standardised_portmanteau
 DITHER_LIMIT = 0.5
 
 
-def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: np.ndarray,
+def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: "np.ndarray | Jacobian",
                        residual_rms: float, step: float | None = None) -> tuple[np.ndarray, float] | None:
     """Parameter shift δθ caused by undithered quantisation, and the noise in codes; or ``None``
     when the record is not on a code grid or its noise dithers it. ``step`` is the code step
@@ -47,11 +51,22 @@ def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: np.ndarray,
     origin = float(np.min(y))
     # the fitted model is not the true waveform, and where the true one sits between codes is
     # unknown: take the rms of the shift over eight sub-code positions of the grid
-    shifts = []
-    for phase in np.arange(8) / 8.0:
-        quantised = origin + step * (np.round((model - origin) / step + phase) - phase)
-        shifts.append(np.linalg.lstsq(jac_model, quantised - model, rcond=None)[0])
-    shifts = np.array(shifts)
+    phases = np.arange(8) / 8.0
+
+    def errors(a: int, b: int) -> np.ndarray:
+        fitted = model[a:b, None]
+        return origin + step * (np.round((fitted - origin) / step + phases) - phases) - fitted
+
+    # least squares J·δ = error for each phase: on J itself when it is small, else through the
+    # triangular factor of [J | errors] (the same minimum-norm solution: R has J's singular values)
+    jac = as_jacobian(jac_model)
+    n, p = y.size, jac.params
+    if jac.small:
+        dense = jac.toarray()
+        shifts = np.array([np.linalg.lstsq(dense, errors(0, n)[:, k], rcond=None)[0] for k in range(phases.size)])
+    else:
+        factor = triangle(jac, errors, [Block(0, n)], {Block(0, n).group: white(1.0)})
+        shifts = np.linalg.lstsq(factor[:p, :p], factor[:p, p:], rcond=np.finfo(float).eps * max(n, p))[0].T
     return np.sqrt(np.mean(shifts ** 2, axis=0)) * np.sign(shifts[0] + 1e-300), residual_rms / step
 
 
@@ -85,7 +100,7 @@ CODE_FIT_WARNING = (f"{RECORD_WIDE} (its noise is below half a converter code): 
 
 
 def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
-                         jac_model: Callable[[np.ndarray], np.ndarray], blocks,
+                         jac_model: Callable[[np.ndarray], "np.ndarray | Jacobian"], blocks,
                          steps: dict[str, float | None] | None = None,
                          noise: dict[str, float] | None = None):
     """Return ``fit`` corrected for undithered quantisation, or unchanged when its noise dithers it.
@@ -101,14 +116,15 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     """
     import dataclasses
 
-    fitted, jac = model(fit.values), jac_model(fit.values)
+    fitted, jac = model(fit.values), as_jacobian(jac_model(fit.values))
     totals: dict[str, np.ndarray] = {}
     worst = None
     limited = 0
     steps = steps or {}
     for b in blocks:
         rows = slice(b.start, b.stop)
-        found = quantisation_shift(y[rows], fitted[rows], jac[rows], fit.noise_sigma[b.group], steps.get(b.group))
+        found = quantisation_shift(y[rows], fitted[rows], jac.restricted(b.start, b.stop), fit.noise_sigma[b.group],
+                                   steps.get(b.group))
         if found is not None:
             totals[b.group] = totals.get(b.group, np.zeros(len(fit.names))) + found[0]
             worst = found[1] if worst is None else min(worst, found[1])
@@ -151,7 +167,6 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
     groups = np.empty(y.size, dtype=int)
     for b in blocks:
         groups[b.start:b.stop] = names.index(b.group)
-    rows = np.concatenate([np.arange(b.start, b.stop) for b in blocks])
     known = noise is not None and all(g in noise for g in names)
     if known:
         start = np.array([noise[g] for g in names])
@@ -160,9 +175,8 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
         # than a quarter code, where every sample still informs the fit (scoring moves down)
         start = np.array([math.sqrt(max(fit.noise_sigma[g] ** 2 - step ** 2 / 12.0, (0.25 * step) ** 2))
                           for g in names])
-    codes = origin + step * np.round((y[rows] - origin) / step)  # printed values snapped to the grid
-    found = fit_codes(codes, step, lambda x: model(x)[rows], lambda x: jac_model(x)[rows], fit.values,
-                      groups[rows], start, sigma_known=known)
+    codes = origin + step * np.round((y - origin) / step)  # printed values snapped to the grid
+    found = fit_codes(codes, step, model, jac_model, fit.values, groups, start, sigma_known=known)
     if not found.converged or np.any(found.sigma < CODE_FIT_FLOOR * step):
         return None
     # the likelihood takes the noise before the converter as independent; correlated noise
@@ -171,7 +185,7 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
     # waveform is correlated even when the noise is not.) The samples' standardised scores
     # are independent when the noise is.
     fitted = model(found.values)
-    z, informative = standardised_scores(codes, fitted[rows], found.sigma[groups[rows]], step, origin)
+    z, informative = standardised_scores(codes, fitted, found.sigma[groups], step, origin)
     ends = np.cumsum([b.stop - b.start for b in blocks])[:-1]
     for part, used in zip(np.split(z, ends), np.split(informative, ends)):
         if standardised_portmanteau(part, used)[0] < INDEPENDENCE_P:

@@ -26,46 +26,80 @@ import numpy as np
 
 from ..signal.edges import noise_rms, placement_deviation
 from .engine import Block, fit_least_squares
+from .jacobian import Jacobian, Piece
 from .quantisation import include_quantisation
 from .result import FitResult
 
 
-def relaxation_model(t: np.ndarray, theta: np.ndarray, n_states: int,
-                     jacobian: bool = False) -> tuple[np.ndarray, np.ndarray | None]:
-    """Model values (and the Jacobian ∂y/∂θ) for θ = [tau, F_0, C_0, F_1, t0_1, …, F_K, t0_K]."""
+def relaxation_model(t: np.ndarray, theta: np.ndarray, n_states: int) -> np.ndarray:
+    """Model values for θ = [tau, F_0, C_0, F_1, t0_1, …, F_K, t0_K] (module doc)."""
+    tau, f0, c0 = theta[0], theta[1], theta[2]
+    y = np.empty(t.size)
+    bounds, starts = _states(t, theta, n_states)
+    y[:bounds[0]] = f0 + c0 * np.exp(-(t[:bounds[0]] - t[0]) / tau)
+    for k, (v, _) in enumerate(starts):
+        fk, tk = theta[3 + 2 * k], theta[4 + 2 * k]
+        seg = slice(bounds[k], bounds[k + 1])
+        y[seg] = fk + (v - fk) * np.exp(-(t[seg] - tk) / tau)
+    return y
+
+
+def relaxation_jacobian(t: np.ndarray, theta: np.ndarray, n_states: int) -> Jacobian:
+    """∂y/∂θ of :func:`relaxation_model`, one piece per state.
+
+    In state k, y = F_k + (v_k − F_k)·e_k with e_k = exp(−(t − t0_k)/tau), so its rows are
+    1 − e_k on F_k, e_k·∂v_k/∂θ, and (v_k − F_k)·e_k·(t − t0_k)/tau² on tau and
+    (v_k − F_k)·e_k/tau on t0_k: four functions of time times a 4 × p matrix. The head's
+    rows are 1 on F_0, e on C_0 and C_0·e·(t − t_start)/tau² on tau. ∂v_k/∂θ, the
+    continuity's memory of every earlier state, comes from a recursion over the switching
+    instants."""
+    tau, c0 = theta[0], theta[2]
+    p = theta.size
+    bounds, starts = _states(t, theta, n_states)
+
+    def head(a: int, b: int) -> np.ndarray:
+        u = t[a:b] - t[0]
+        e = np.exp(-u / tau)
+        return np.column_stack((np.ones_like(e), e, c0 * e * u / tau ** 2))
+
+    coef = np.zeros((3, p))
+    coef[0, 1], coef[1, 2], coef[2, 0] = 1.0, 1.0, 1.0
+    pieces = [Piece(0, int(bounds[0]), head, coef)]
+    for k, (v, dv) in enumerate(starts):
+        fk, tk = theta[3 + 2 * k], theta[4 + 2 * k]
+
+        def state(a: int, b: int, fk: float = fk, tk: float = tk, v: float = v) -> np.ndarray:
+            u = t[a:b] - tk
+            e = np.exp(-u / tau)
+            return np.column_stack((1.0 - e, e, (v - fk) * e * u / tau ** 2, (v - fk) * e / tau))
+
+        coef = np.zeros((4, p))
+        coef[0, 3 + 2 * k] = 1.0
+        coef[1] = dv
+        coef[2, 0] = 1.0
+        coef[3, 4 + 2 * k] = 1.0
+        pieces.append(Piece(int(bounds[k]), int(bounds[k + 1]), state, coef))
+    return Jacobian(t.size, pieces)
+
+
+def _states(t: np.ndarray, theta: np.ndarray, n_states: int) -> tuple[np.ndarray, list[tuple[float, np.ndarray]]]:
+    """First sample of each state (the record's length appended), and each state's starting
+    value v_k with its gradient ∂v_k/∂θ (the value of the piece before at t0_k)."""
     tau, f0, c0 = theta[0], theta[1], theta[2]
     p = theta.size
-    y = np.empty(t.size)
-    jac = np.zeros((t.size, p)) if jacobian else None
     t0s = theta[4::2]
-    bounds = np.searchsorted(t, t0s)
-    head = slice(0, bounds[0] if n_states else t.size)
-    e = np.exp(-(t[head] - t[0]) / tau)
-    y[head] = f0 + c0 * e
-    if jacobian:
-        jac[head, 0] = c0 * e * (t[head] - t[0]) / tau ** 2
-        jac[head, 1] = 1.0
-        jac[head, 2] = e
-    # value at the first switching instant and its gradient
-    e1 = np.exp(-(t0s[0] - t[0]) / tau) if n_states else 0.0
-    v = f0 + c0 * e1
-    dv = np.zeros(p)
+    bounds = np.append(np.searchsorted(t, t0s), t.size) if n_states else np.array([t.size])
+    starts = []
     if n_states:
+        e1 = np.exp(-(t0s[0] - t[0]) / tau)
+        v = f0 + c0 * e1
+        dv = np.zeros(p)
         dv[0] = c0 * e1 * (t0s[0] - t[0]) / tau ** 2
         dv[1], dv[2], dv[4] = 1.0, e1, -c0 * e1 / tau
     for k in range(n_states):
-        fk, tk = theta[3 + 2 * k], theta[4 + 2 * k]
-        stop = bounds[k + 1] if k + 1 < n_states else t.size
-        seg = slice(bounds[k], stop)
-        u = t[seg] - tk
-        ek = np.exp(-u / tau)
-        y[seg] = fk + (v - fk) * ek
-        if jacobian:
-            jac[seg] = ek[:, None] * dv[None, :]
-            jac[seg, 3 + 2 * k] += 1.0 - ek
-            jac[seg, 0] += (v - fk) * ek * u / tau ** 2
-            jac[seg, 4 + 2 * k] += (v - fk) * ek / tau
+        starts.append((v, dv))
         if k + 1 < n_states:
+            fk, tk = theta[3 + 2 * k], theta[4 + 2 * k]
             dt_next = t0s[k + 1] - tk
             en = np.exp(-dt_next / tau)
             dv_new = en * dv
@@ -75,7 +109,7 @@ def relaxation_model(t: np.ndarray, theta: np.ndarray, n_states: int,
             dv_new[4 + 2 * (k + 1)] += -(v - fk) * en / tau
             v = fk + (v - fk) * en
             dv = dv_new
-    return y, jac
+    return bounds, starts
 
 
 def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], level_guess: Sequence[float],
@@ -92,10 +126,10 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     x0 = np.asarray(x0, dtype=float)
 
     def fun(x):
-        return y - relaxation_model(ts, x, k)[0]
+        return y - relaxation_model(ts, x, k)
 
     def jac(x):
-        return -relaxation_model(ts, x, k, jacobian=True)[1]
+        return relaxation_jacobian(ts, x, k).negated()
 
     names = ["tau", "final_head", "coef_head"]
     for i in range(k):
@@ -119,7 +153,8 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     blocks = [Block(0, t.size, "sense")]
     fit = fit_least_squares(fun, jac, x0, names, blocks, model="square-wave relaxation",
                             noise=noise, bounds=(lower, upper))
-    fit = include_quantisation(fit, y, lambda x: y - fun(x), lambda x: -jac(x), blocks)
+    fit = include_quantisation(fit, y, lambda x: relaxation_model(ts, x, k), lambda x: relaxation_jacobian(ts, x, k),
+                               blocks)
     factor = np.ones(x0.size)
     factor[0] = scale
     factor[4::2] = scale

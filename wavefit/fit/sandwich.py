@@ -13,13 +13,48 @@ consistent (HAC) sandwich with a truncated kernel (L. P. Hansen, Econometrica 50
 applied to the GLS influence function rather than to OLS scores, and corrected for
 the noise the fit absorbed; from the whitened residuals when the raw ones do not
 give a positive definite result.
+
+Every product over the record is taken a chunk of rows at a time from the structured
+Jacobian (:mod:`wavefit.fit.jacobian`, :mod:`wavefit.fit.lagged`), each noise block on the
+parameters its rows depend on, so memory does not grow with the record beyond its residuals.
 """
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from dataclasses import dataclass
+from typing import Callable, Sequence
 
 import numpy as np
+
+from .jacobian import DENSE_VALUES, Jacobian, as_jacobian, is_small
+from .lagged import Rows, array_rows, cross_products, lag_grams
+from .noise_model import autocovariance
+
+#: Spectra of a block's columns held at once by :func:`positive_gram` (bytes): the columns
+#: are taken in groups of this size, each group's spectra computed once per pair of groups.
+SPECTRA_BYTES = 64 * 2 ** 20
+
+
+@dataclass(frozen=True)
+class Tall:
+    """A tall matrix of ``n`` rows given by ``rows(a, b)``, whose columns are the parameters
+    ``columns`` of the fit (the others are zero in these rows)."""
+
+    rows: Rows
+    n: int
+    columns: np.ndarray
+
+    @classmethod
+    def of(cls, array: np.ndarray) -> "Tall":
+        array = np.asarray(array, dtype=float)
+        return cls(array_rows(array), array.shape[0], np.arange(array.shape[1]))
+
+    def times(self, matrix: np.ndarray) -> "Tall":
+        """This matrix times ``matrix`` (square, on the same columns)."""
+        return Tall(lambda a, b: self.rows(a, b) @ matrix, self.n, self.columns)
+
+    def gather(self) -> np.ndarray:
+        return self.rows(0, self.n)
 
 
 def correlation_extent(acov: np.ndarray, n: int, run: int = 10) -> int:
@@ -33,13 +68,14 @@ def correlation_extent(acov: np.ndarray, n: int, run: int = 10) -> int:
     return int(acov.size - 1)
 
 
-def lagged_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
+def lagged_gram(h: "np.ndarray | Tall", acov: np.ndarray) -> np.ndarray:
     """Σ_k γ_k Σ_n h_n h_{n+k}ᵀ over k = −K..K: hᵀ Σ h for Toeplitz Σ with autocovariance γ."""
-    lags = min(acov.size - 1, h.shape[0] - 1)
-    return np.tensordot(acov[: lags + 1], _lag_grams(h, lags), axes=1)
+    h = h if isinstance(h, Tall) else Tall.of(h)
+    lags = min(acov.size - 1, h.n - 1)
+    return np.tensordot(acov[: lags + 1], lag_grams(h.rows, h.n, h.columns.size, lags), axes=1)
 
 
-def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: np.ndarray, jw: np.ndarray,
+def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: "np.ndarray | Jacobian",
                         bread: np.ndarray, max_lag: int) -> tuple[np.ndarray, dict[str, int]] | None:
     """G Σ Gᵀ with Σ from each noise group's residual autocovariance (see module doc).
 
@@ -58,17 +94,42 @@ def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: np.n
     part of the estimated spectrum removed (:func:`positive_gram`). None when neither
     is positive definite.
 
-    ``jac`` is the Jacobian of the residuals, ``jw`` its whitened form (rows as
-    produced by the whitening of ``blocks`` in order) and ``bread`` = (J_wᵀJ_w)⁻¹.
+    ``jac`` is the Jacobian of the residuals (rows as ``blocks`` in order) and
+    ``bread`` = (J_wᵀJ_w)⁻¹ of its whitened form J_w.
     """
-    influence = [models[b.group].whiten_adjoint(jw[b.start:b.stop]) for b in blocks]
-    cov, extents = _sandwich(r, jac, influence, blocks, bread, max_lag, lagged_gram)
+    jac = as_jacobian(jac)
+    views = [_block_views(jac, b, models[b.group]) for b in blocks]
+    cov, extents = _sandwich(r, [v[0] for v in views], [v[2] for v in views], blocks, bread, max_lag,
+                             lagged_gram)
     if _positive_definite(cov):
         return cov, extents
     white_r = np.concatenate([models[b.group].whiten(r[b.start:b.stop]) for b in blocks])
-    cov, extents = _sandwich(white_r, jw, [jw[b.start:b.stop] for b in blocks], blocks, bread, max_lag,
+    cov, extents = _sandwich(white_r, [v[1] for v in views], [v[1] for v in views], blocks, bread, max_lag,
                              positive_gram)
     return (cov, extents) if _positive_definite(cov) else None
+
+
+def _block_views(jac: Jacobian, block, model) -> tuple[Tall, Tall, Tall]:
+    """The block's rows of J, of W·J and of the influence Wᵀ·W·J: computed whole, on every
+    parameter, for a small Jacobian (:func:`wavefit.fit.jacobian.is_small`); otherwise a chunk
+    at a time when asked, on the parameters the block depends on."""
+    n = block.stop - block.start
+    if jac.small:
+        rows = jac.toarray()[block.start:block.stop]
+        white_rows = model.whiten(rows)
+        return Tall.of(rows), Tall.of(white_rows), Tall.of(model.whiten_adjoint(white_rows))
+    cols = jac.support(block.start, block.stop)
+
+    def raw(a: int, b: int) -> np.ndarray:
+        return jac.dense(block.start + a, block.start + b, cols)
+
+    def white(a: int, b: int) -> np.ndarray:
+        return model.whiten_rows(raw, n, a, b)
+
+    def influence(a: int, b: int) -> np.ndarray:
+        return model.adjoint_rows(white, n, a, b)
+
+    return Tall(raw, n, cols), Tall(white, n, cols), Tall(influence, n, cols)
 
 
 def _positive_definite(cov: np.ndarray) -> bool:
@@ -80,11 +141,17 @@ def _positive_definite(cov: np.ndarray) -> bool:
     return bool(eig[0] > 1e-12 * eig[-1] and np.all(np.diag(cov) > 0))
 
 
-def _sandwich(r, jac, influence, blocks, bread, max_lag, gram) -> tuple[np.ndarray, dict[str, int]]:
-    """bread·Σ_b gram(h_b, γ_group(b))·bread for residuals ``r`` whose linearised form is
-    r = (I − J·bread·Hᵀ)·noise (J = ``jac``, H the ``influence`` rows per block)."""
-    from .noise_model import autocovariance
+def _embed(small: np.ndarray, columns: np.ndarray, p: int) -> np.ndarray:
+    out = np.zeros((p, p))
+    out[np.ix_(columns, columns)] = small
+    return out
 
+
+def _sandwich(r: np.ndarray, jacs: list[Tall], influence: list[Tall], blocks: Sequence, bread: np.ndarray,
+              max_lag: int, gram: Callable) -> tuple[np.ndarray, dict[str, int]]:
+    """bread·Σ_b gram(h_b, γ_group(b))·bread for residuals ``r`` whose linearised form is
+    r = (I − J·bread·Hᵀ)·noise (J = ``jacs``, H the ``influence`` rows per block)."""
+    p = bread.shape[0]
     extents: dict[str, int] = {}
     plain: dict[str, np.ndarray] = {}
     for g in sorted({b.group for b in blocks}):
@@ -98,17 +165,18 @@ def _sandwich(r, jac, influence, blocks, bread, max_lag, gram) -> tuple[np.ndarr
     acovs: dict[str, np.ndarray] = {}
     for g in plain:
         mine = [i for i, b in enumerate(blocks) if b.group == g]
-        others = sum((lagged_gram(influence[i], plain[b.group]) for i, b in enumerate(blocks) if b.group != g),
-                     np.zeros_like(bread))
+        others = sum((_embed(lagged_gram(influence[i], plain[b.group]), influence[i].columns, p)
+                      for i, b in enumerate(blocks) if b.group != g), np.zeros_like(bread))
         acovs[g] = fit_corrected_autocovariance(
-            [r[blocks[i].start:blocks[i].stop] for i in mine], [jac[blocks[i].start:blocks[i].stop] for i in mine],
+            [r[blocks[i].start:blocks[i].stop] for i in mine], [jacs[i] for i in mine],
             [influence[i] for i in mine], bread, extents[g], plain[g], bread @ others @ bread)
-    meat = sum((gram(h, acovs[b.group]) for h, b in zip(influence, blocks)), np.zeros_like(bread))
+    meat = sum((_embed(gram(h, acovs[b.group]), h.columns, p) for h, b in zip(influence, blocks)),
+               np.zeros_like(bread))
     cov = bread @ meat @ bread
     return 0.5 * (cov + cov.T), extents
 
 
-def positive_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
+def positive_gram(h: "np.ndarray | Tall", acov: np.ndarray) -> np.ndarray:
     """hᵀ Σ h for the Toeplitz Σ of ``acov`` with the negative part of its spectrum removed.
 
     A truncated autocovariance estimate need not be positive semi-definite; where its
@@ -118,8 +186,10 @@ def positive_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
     with S replaced by max(S, 0): equal to :func:`lagged_gram` when the spectrum is nowhere
     negative, positive semi-definite always. (The positive-part correction of a lag-window
     spectral estimate: D. N. Politis, Econometric Theory 27 (2011) 703–744, cited from memory.)
+    The columns' spectra are taken in groups of at most SPECTRA_BYTES.
     """
-    n, lags = h.shape[0], acov.size - 1
+    h = h if isinstance(h, Tall) else Tall.of(h)
+    n, lags, q = h.n, acov.size - 1, h.columns.size
     size = 1 << int(math.ceil(math.log2(n + lags + 1)))
     circular = np.zeros(size)
     circular[: lags + 1] = acov
@@ -130,13 +200,31 @@ def positive_gram(h: np.ndarray, acov: np.ndarray) -> np.ndarray:
     weights[0] = 1.0
     if size % 2 == 0:
         weights[-1] = 1.0
-    hf = np.fft.rfft(h, size, axis=0)
-    return ((hf.conj().T * (weights * spectrum)) @ hf).real / size
+    weighted = weights * spectrum
+    del circular, spectrum, weights
+    per_group = max(1, SPECTRA_BYTES // (16 * weighted.size))
+    groups = [np.arange(a, min(a + per_group, q)) for a in range(0, q, per_group)]
+    out = np.zeros((q, q))
+    for i, first in enumerate(groups):
+        fa = _column_spectra(h, first, size)
+        for second in groups[i:]:
+            fb = fa if second is first else _column_spectra(h, second, size)
+            block = ((fa.conj().T * weighted) @ fb).real / size
+            out[np.ix_(first, second)] = block
+            out[np.ix_(second, first)] = block.T
+    return out
 
 
-def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list[np.ndarray], infl: list[np.ndarray],
-                                 bread: np.ndarray, lags: int, fallback: np.ndarray,
-                                 other_cov: np.ndarray) -> np.ndarray:
+def _column_spectra(h: Tall, columns: np.ndarray, size: int) -> np.ndarray:
+    """rfft over the rows of the given columns of h, zero-padded to ``size``."""
+    values = np.empty((h.n, columns.size))
+    for a in range(0, h.n, 1 << 16):
+        values[a:a + (1 << 16)] = h.rows(a, min(a + (1 << 16), h.n))[:, columns]
+    return np.fft.rfft(values, size, axis=0)
+
+
+def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list, infl: list, bread: np.ndarray, lags: int,
+                                 fallback: np.ndarray, other_cov: np.ndarray) -> np.ndarray:
     """Noise autocovariance γ_0 … γ_lags from fit residuals, corrected for what the fit absorbed.
 
     Linearised, the residuals are r = (I − N)ε with N = J·(J_wᵀJ_w)⁻¹·Hᵀ (J the residual
@@ -151,30 +239,48 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list[np.ndarray], 
     This is the regression-residual correction of the variance components (as in
     restricted maximum likelihood: H. D. Patterson and R. Thompson, Biometrika 58 (1971)
     545–554), applied to a truncated autocovariance. The blocks ``res``, ``jacs``, ``infl``
-    are one noise group's; ``other_cov`` is the part of the estimate's covariance due to
-    the other groups' noise, whose lag products it also adds. ``fallback`` (the plain
-    estimate) is returned when the system cannot be solved or gives a non-positive variance.
+    (arrays, or :class:`Tall` matrices on the parameters they depend on) are one noise
+    group's; ``other_cov`` is the part of the estimate's covariance due to the other
+    groups' noise, whose lag products it also adds. ``fallback`` (the plain estimate) is
+    returned when the system cannot be solved or gives a non-positive variance.
     """
     k_all = np.arange(lags + 1)
     products = np.zeros(lags + 1)
     system = np.zeros((lags + 1, lags + 1))
-    p = bread.shape[0]
-    a_k = np.zeros((lags + 1, p, p))
-    g_j = np.zeros((lags + 1, p, p))
+    # per block: its parameters, the lag Gram matrices of J (weighted ½ off lag 0) and of H
+    grams: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
     for r, jb, hb in zip(res, jacs, infl):
+        jb, hb = _on_own_columns(jb, hb)
+        cols = jb.columns
         n = r.size
         m = min(lags, n - 1)
         products[: m + 1] += [float(r[: n - k] @ r[k:]) for k in range(m + 1)]
         system[k_all[: m + 1], k_all[: m + 1]] += n - k_all[: m + 1]
-        cols = np.flatnonzero(np.any(jb != 0, axis=0) | np.any(hb != 0, axis=0))
-        j_c, h_c = jb[:, cols], hb[:, cols]
-        system[: m + 1, : m + 1] -= _shifted_traces(h_c, j_c @ bread[np.ix_(cols, cols)], m)
-        block = np.ix_(np.arange(m + 1), cols, cols)
-        a_k[block] += _lag_grams(j_c, m) * np.where(k_all[: m + 1] == 0, 1.0, 0.5)[:, None, None]
-        g_j[block] += _lag_grams(h_c, m)
-    v_j = bread @ g_j @ bread
-    system += np.einsum("kab,jba->kj", a_k, v_j)
-    products -= np.einsum("kab,ba->k", a_k, other_cov)
+        system[: m + 1, : m + 1] -= _shifted_traces(hb, jb.times(bread[np.ix_(cols, cols)]), m)
+        a_k = lag_grams(jb.rows, n, cols.size, m) * np.where(k_all[: m + 1] == 0, 1.0, 0.5)[:, None, None]
+        grams.append((cols, a_k, lag_grams(hb.rows, n, cols.size, m)))
+    p = bread.shape[0]
+    if (lags + 1) * p * p <= DENSE_VALUES:
+        # all lags at once on every parameter (the order of summation the fits always had)
+        a_all, g_all = np.zeros((lags + 1, p, p)), np.zeros((lags + 1, p, p))
+        for cols, a_k, g in grams:
+            block = np.ix_(np.arange(a_k.shape[0]), cols, cols)
+            a_all[block] += a_k
+            g_all[block] += g
+        system += np.einsum("kab,jba->kj", a_all, bread @ g_all @ bread)
+        products -= np.einsum("kab,ba->k", a_all, other_cov)
+    else:
+        # one lag of H at a time, each block's J on its own parameters: memory of a p × p matrix
+        for j in k_all:
+            g_j = np.zeros((p, p))
+            for cols, _, g in grams:
+                if j < g.shape[0]:
+                    g_j[np.ix_(cols, cols)] += g[j]
+            v_j = bread @ g_j @ bread
+            for cols, a_k, _ in grams:
+                system[: a_k.shape[0], j] += np.einsum("kab,ba->k", a_k, v_j[np.ix_(cols, cols)])
+        for cols, a_k, _ in grams:
+            products[: a_k.shape[0]] -= np.einsum("kab,ba->k", a_k, other_cov[np.ix_(cols, cols)])
     try:
         gamma = np.linalg.solve(system, products)
     except np.linalg.LinAlgError:
@@ -184,41 +290,51 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list[np.ndarray], 
     return gamma
 
 
+def _on_own_columns(jb: "np.ndarray | Tall", hb: "np.ndarray | Tall") -> tuple[Tall, Tall]:
+    """J and H of a block as :class:`Tall` matrices on the parameters either depends on
+    (arrays, and matrices small enough to hold, are cut to their columns not all zero)."""
+    if isinstance(jb, Tall) and isinstance(hb, Tall) and not is_small(jb.n, jb.columns.size):
+        return jb, hb
+    jb = jb.gather() if isinstance(jb, Tall) else np.asarray(jb, dtype=float)
+    hb = hb.gather() if isinstance(hb, Tall) else np.asarray(hb, dtype=float)
+    cols = np.flatnonzero(np.any(jb != 0, axis=0) | np.any(hb != 0, axis=0))
+    return (Tall(array_rows(jb[:, cols]), jb.shape[0], cols), Tall(array_rows(hb[:, cols]), hb.shape[0], cols))
+
+
 def _lag_grams(x: np.ndarray, lags: int) -> np.ndarray:
     """xᵀ T_k x for k = 0 … lags (T_0 = I; T_k the symmetric lag-k shift), shape (lags+1, q, q)."""
-    out = np.empty((lags + 1, x.shape[1], x.shape[1]))
-    out[0] = x.T @ x
-    for k in range(1, lags + 1):
-        c = x[:-k].T @ x[k:]
-        out[k] = c + c.T
-    return out
+    return lag_grams(array_rows(x), x.shape[0], x.shape[1], lags)
 
 
-def _shifted_traces(h: np.ndarray, x: np.ndarray, lags: int) -> np.ndarray:
+def _shifted_traces(h: "np.ndarray | Tall", x: "np.ndarray | Tall", lags: int) -> np.ndarray:
     """⟨h, T_j U_k x⟩ (Frobenius) for j, k = 0 … lags (< len), as a (lags+1)² array [k, j].
 
     (T_j U_k x)_i is a sum of rows x_{i±j±k}, each present only where the intermediate
     index i±j lies inside the record. Each term is a whole-record cross product
-    c(d) = Σ_i h_i·x_{i+d} (all offsets at once by FFT) less, for x_{i+j−k} and x_{i−j+k},
-    the few products at the record's end or start that the intermediate index excludes."""
-    n, m = h.shape[0], lags
-    size = 1 << int(math.ceil(math.log2(n + 2 * m + 1)))
-    cross = np.fft.irfft(np.sum(np.conj(np.fft.rfft(h, size, axis=0)) * np.fft.rfft(x, size, axis=0), axis=1),
-                         size)
+    c(d) = Σ_i h_i·x_{i+d} (all offsets at once by FFT, a chunk of rows at a time) less,
+    for x_{i+j−k} and x_{i−j+k}, the few products at the record's end or start that the
+    intermediate index excludes."""
+    h = h if isinstance(h, Tall) else Tall.of(h)
+    x = x if isinstance(x, Tall) else Tall.of(x)
+    n, m = h.n, lags
+    cross = cross_products(h.rows, x.rows, n, h.columns.size, -2 * m, 2 * m)
 
-    def whole(d):  # c(d) for |d| ≤ 2m, negative offsets wrapped to the end
-        return cross[np.mod(d, size)]
+    def whole(d):  # c(d) for |d| ≤ 2m
+        return cross[d + 2 * m]
 
     offsets = np.arange(-m, m + 1)[:, None]
 
-    def partial(rows):  # Σ over the given rows i of h_i·x_{i+d}, running along rows, for |d| ≤ m
+    def partial(rows, base):  # Σ over the given rows i of h_i·x_{i+d}, running along rows, for |d| ≤ m
         idx = rows[None, :] + offsets
         ok = (idx >= 0) & (idx < n)
-        prod = np.einsum("ip,dip->di", h[rows], x[np.clip(idx, 0, n - 1)]) * ok
+        hr = h.rows(int(rows.min()), int(rows.max()) + 1)[rows - rows.min()] if rows.size else np.zeros((0, h.columns.size))
+        xl = x.rows(base, min(n, base + 3 * m + 1))
+        local = np.clip(idx - base, 0, xl.shape[0] - 1)
+        prod = np.einsum("ip,dip->di", hr, xl[local]) * ok
         return np.concatenate((np.zeros((offsets.size, 1)), np.cumsum(prod, axis=1)), axis=1)
 
-    head = partial(np.arange(m))                      # head[d, j] = Σ_{i<j}
-    tail = partial(np.arange(n - 1, n - 1 - m, -1))   # tail[d, j] = Σ_{i ≥ n−j}
+    head = partial(np.arange(m), 0)                                   # head[d, j] = Σ_{i<j}
+    tail = partial(np.arange(n - 1, n - 1 - m, -1), max(0, n - 2 * m - 1))  # tail[d, j] = Σ_{i ≥ n−j}
     k, j = np.meshgrid(np.arange(m + 1), np.arange(m + 1), indexing="ij")
     out = (whole(j + k) + whole(-(j + k))
            + whole(j - k) - tail[j - k + m, j]        # x_{i+j−k}: i + j inside

@@ -1,0 +1,138 @@
+"""Least squares through the triangular factor of the whitened Jacobian.
+
+A trust-region or Levenberg–Marquardt step depends on the residual f and its Jacobian J
+only through JᵀJ, Jᵀf and ‖f‖ (J. J. Moré, "The Levenberg–Marquardt algorithm:
+implementation and theory", Lecture Notes in Mathematics 630, Springer 1978, 105–116). With
+the QR factorisation [J | f] = Q·[[R, a], [0, ρ]], the problem of p + 1 residuals
+g = (a, ρ) with Jacobian (R; 0) has the same three, so a solver given it takes the same
+steps as on the record itself while holding p + 1 rows instead of one per sample.
+
+The factor is accumulated by sequential Householder QR (C. L. Lawson and R. J. Hanson,
+*Solving Least Squares Problems*, Prentice-Hall 1974, ch. 27): the rows of each
+:class:`~wavefit.fit.jacobian.Piece` of the Jacobian, whitened by the noise model of their
+block, are reduced a chunk at a time to the triangle of the piece's r basis columns, which
+its coefficient matrix then maps onto the parameters; the rows within an AR model's order
+after a piece starts mix it with the piece before (or are the block's first rows, which the
+Prais–Winsten transform mixes) and enter as dense rows. The pieces' triangles and those rows
+are reduced together at the end.
+"""
+from __future__ import annotations
+
+from typing import Callable, Sequence
+
+import numpy as np
+
+from .jacobian import CHUNK_ELEMENTS, Jacobian, as_jacobian, row_chunks
+from .noise_model import ARNoise
+
+
+class _Reducer:
+    """Rows of a fixed width reduced to their upper triangular factor as they come."""
+
+    def __init__(self, width: int):
+        self.width = width
+        self.factor = np.zeros((0, width))
+        self.pending: list[np.ndarray] = []
+        self.count = 0
+
+    def add(self, rows: np.ndarray) -> None:
+        self.pending.append(rows)
+        self.count += rows.shape[0]
+        if self.count * self.width > CHUNK_ELEMENTS:
+            self._reduce()
+
+    def _reduce(self) -> None:
+        if self.pending:
+            self.factor = np.linalg.qr(np.vstack([self.factor, *self.pending]), mode="r")
+            self.pending, self.count = [], 0
+
+    def result(self) -> np.ndarray:
+        """The square triangular factor (zero rows added when there were fewer rows than columns)."""
+        self._reduce()
+        out = np.zeros((self.width, self.width))
+        out[: self.factor.shape[0]] = self.factor
+        return out
+
+
+def triangle(jac: "np.ndarray | Jacobian", rhs: "np.ndarray | Callable[[int, int], np.ndarray] | None",
+             blocks: Sequence, models: dict[str, ARNoise]) -> np.ndarray:
+    """Upper triangular T with TᵀT = [W·J | W·rhs]ᵀ[W·J | W·rhs], W each block's whitening.
+
+    ``rhs`` (optional) has one row per row of ``jac`` and one or more columns, as an array
+    or as a function giving its rows a..b; T is square of side p + (columns of ``rhs``).
+    The blocks (``wavefit.fit.engine.Block``) must cover the rows."""
+    jac = as_jacobian(jac)
+    if rhs is not None and not callable(rhs):
+        values = np.asarray(rhs, dtype=float).reshape(rhs.shape[0], -1)
+        rhs = lambda a, b: values[a:b]  # noqa: E731 (rows of the array, as for a callable rhs)
+    p, k = jac.params, 0 if rhs is None else rhs(0, 0).shape[1]
+    total = _Reducer(p + k)
+    for block in blocks:
+        model = models[block.group]
+        q, n = model.order, block.stop - block.start
+
+        def both(rows, u, v):
+            """Whitened rows u..v of the block's J (through ``rows``) and of rhs, side by side."""
+            parts = [model.whiten_rows(lambda a, b: rows(block.start + a, block.start + b), n, u, v)]
+            if rhs is not None:
+                parts.append(model.whiten_rows(lambda a, b: rhs(block.start + a, block.start + b), n, u, v))
+            return np.hstack(parts)
+
+        pieces = list(jac.overlapping(block.start, block.stop))
+        for pc, a, b in pieces:
+            # rows of the piece at least q after its start see only its own rows through the filter
+            r = pc.coefficients.shape[0]
+            own = _Reducer(r + k)
+            for lo, hi in row_chunks(a + q, b, r + k):
+                own.add(both(pc.basis, lo - block.start, hi - block.start))
+            t = own.result()
+            total.add(np.hstack([t[:, :r] @ pc.coefficients, t[:, r:]]))
+        # the first q rows after each piece starts: dense, through the whole whitening
+        for lo, hi in _merged([(a, min(a + q, block.stop)) for _, a, _ in pieces]):
+            for u, v in row_chunks(lo, hi, p + k):
+                total.add(both(jac.dense, u - block.start, v - block.start))
+    return total.result()
+
+
+def _merged(ranges: list[tuple[int, int]]) -> list[tuple[int, int]]:
+    """Overlapping or touching (start, stop) ranges joined."""
+    out: list[list[int]] = []
+    for lo, hi in sorted(r for r in ranges if r[0] < r[1]):
+        if out and lo <= out[-1][1]:
+            out[-1][1] = max(out[-1][1], hi)
+        else:
+            out.append([lo, hi])
+    return [(lo, hi) for lo, hi in out]
+
+
+class TriangularProblem:
+    """A least-squares problem handed to a solver as its triangular factor (module doc).
+
+    ``fun(x)`` is the residual vector, ``jac(x)`` its Jacobian (an array or a
+    :class:`~wavefit.fit.jacobian.Jacobian`); :meth:`residuals` and :meth:`jacobian` are
+    what ``scipy.optimize.least_squares`` is given. The factor of the last point asked for
+    is kept, since a solver asks for both at each accepted point."""
+
+    def __init__(self, fun: Callable[[np.ndarray], np.ndarray], jac: Callable, blocks: Sequence,
+                 models: dict[str, ARNoise]):
+        self.fun, self.jac, self.blocks, self.models = fun, jac, blocks, models
+        self._key: bytes | None = None
+        self._factor = np.zeros((0, 0))
+
+    def factor(self, x: np.ndarray) -> np.ndarray:
+        """T of [W·J | W·f] at ``x``, (p + 1) square."""
+        key = np.asarray(x, dtype=float).tobytes()
+        if key != self._key:
+            self._factor = triangle(self.jac(x), self.fun(x), self.blocks, self.models)
+            self._key = key
+        return self._factor
+
+    def residuals(self, x: np.ndarray) -> np.ndarray:
+        t = self.factor(x)
+        p = t.shape[0] - 1
+        return np.append(t[:p, p], abs(t[p, p]))
+
+    def jacobian(self, x: np.ndarray) -> np.ndarray:
+        t = self.factor(x)
+        p = t.shape[0] - 1
+        return np.vstack([t[:p, :p], np.zeros((1, p))])

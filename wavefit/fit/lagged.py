@@ -1,0 +1,79 @@
+"""Lag products of long records, summed a chunk of rows at a time.
+
+The noise models and the covariance sandwich need sums over a record of products of
+samples a few lags apart: the autocovariance Σ x_i·x_{i+k}, the lagged Gram matrices
+Σ h_i·h_{i+k}ᵀ of a tall matrix, and the cross products Σ h_i·x_{i+d} of two. Each is
+accumulated over chunks of rows, each chunk with the rows within reach of it, so that
+memory stays at a chunk however long the record; cross products go through the FFT
+(the correlation theorem) with zero padding that keeps the circular sums linear.
+
+A tall matrix is passed as ``rows``, a function giving its rows a..b as an array, with
+its row count ``n``; :func:`array_rows` wraps an array.
+"""
+from __future__ import annotations
+
+import math
+from typing import Callable
+
+import numpy as np
+
+from .jacobian import chunk_rows
+
+Rows = Callable[[int, int], np.ndarray]
+
+
+def array_rows(x: np.ndarray) -> Rows:
+    """The rows of an array, as :mod:`wavefit.fit.lagged` functions take them."""
+    return lambda a, b: x[a:b]
+
+
+def cross_products(h: Rows, x: Rows, n: int, columns: int, low: int, high: int) -> np.ndarray:
+    """c(d) = Σ_i h_i·x_{i+d} (summed over columns too) for d = low … high, over the n rows.
+
+    Rows beyond the record count as zero. One FFT of a zero-padded chunk of h against
+    the rows of x within reach of it per chunk (the correlation theorem)."""
+    out = np.zeros(high - low + 1)
+    lo, hi = max(low, 1 - n), min(high, n - 1)  # beyond, no pair of rows exists
+    if lo > hi:
+        return out
+    for a, b in _chunks(n, columns, max(abs(lo), abs(hi))):
+        xlo, xhi = max(0, a + lo), min(n, b + hi)
+        if xlo >= xhi:
+            continue
+        # corr[s] = Σ_t h_{a+t}·x_{xlo+(t+s) mod size}, and x_{i+d} is at t + s = i − a + d − (xlo − a):
+        # the padding keeps every index that falls outside x's rows on a zero. (The sizes and the
+        # order of the products are those the noise models and the sandwich took on a record of
+        # one chunk: twice its length for a chunk with itself, one more than needed otherwise.)
+        if h is x and (xlo, xhi) == (a, b):  # lag products of a chunk with itself: one transform
+            size = 1 << int(math.ceil(math.log2(max(2 * (b - a), (b - a) + max(hi, -lo) + 1))))
+            own = np.fft.rfft(h(a, b), size, axis=0)
+            spectrum = own * np.conj(own)
+        else:
+            size = 1 << int(math.ceil(math.log2(max(b + hi - xlo, xhi - a - lo) + 1)))
+            spectrum = np.conj(np.fft.rfft(h(a, b), size, axis=0)) * np.fft.rfft(x(xlo, xhi), size, axis=0)
+        corr = np.fft.irfft(spectrum if spectrum.ndim == 1 else np.sum(spectrum, axis=1), size)
+        out[lo - low:hi - low + 1] += corr[np.mod(np.arange(lo, hi + 1) + (a - xlo), size)]
+    return out
+
+
+def lag_grams(x: Rows, n: int, columns: int, lags: int) -> np.ndarray:
+    """xᵀ·T_k·x for k = 0 … lags (T_0 = I; T_k the symmetric lag-k shift), shape (lags+1, q, q)."""
+    out = np.zeros((lags + 1, columns, columns))
+    for a, b in _chunks(n, columns, lags):
+        ext = x(a, min(n, b + lags))
+        own = ext[: b - a]
+        out[0] += own.T @ own
+        for k in range(1, lags + 1):
+            pairs = min(b - a, ext.shape[0] - k)
+            if pairs <= 0:
+                break
+            out[k] += ext[:pairs].T @ ext[k:k + pairs]
+    out[1:] += np.transpose(out[1:], (0, 2, 1))
+    return out
+
+
+def _chunks(n: int, columns: int, reach: int):
+    """Chunks of rows, each at least as long as the reach of the lags summed over it."""
+    step = max(chunk_rows(columns), 4 * reach)
+    for a in range(0, n, step):
+        yield a, min(a + step, n)
