@@ -8,10 +8,12 @@ DataFrame and runs ``wavefit.analyze`` on it. The child reports its peak residen
 size (``VmHWM``, reset after the DataFrame is built, or ``ru_maxrss`` where that is not
 possible, an upper bound), its wall and CPU time, and what the analysis said.
 
-The table gives the peak above the interpreter with its imports (so the DataFrame the
-analysis is given counts) as a ratio to the capture's float64 size, rows × columns
-(time and each channel) × 8 bytes, next to the bound the issue set:
-peak ≤ 3 × size + 200 MB. A child is limited to ``--limit-gb`` of address space
+The table gives the memory the analysis adds to the process: its peak above the resident
+size once the DataFrame it is given exists (the caller's frame is the caller's; the
+capture's own float64 copy of it, the fits and every temporary count), as a ratio to the
+capture's float64 size, rows × columns (time and each channel) × 8 bytes, next to the bound
+the issue set: peak ≤ 3 × size + 200 MB. A capture read from a file has no frame beside
+it, so this is also what ``wavefit analyze FILE`` adds once the file is read. A child is limited to ``--limit-gb`` of address space
 (resource.RLIMIT_AS), so that a runaway allocation ends in a MemoryError instead of
 crowding a shared machine.
 
@@ -148,8 +150,8 @@ def child(path: Path, setup_json: str, names: list[str]) -> None:
     """Analyse the capture in ``path`` in this fresh process and print one JSON line."""
     import pandas as pd
 
-    imports = _status_bytes("VmRSS") or _peak_bytes()
     frame = pd.DataFrame(np.load(path), columns=names)
+    given = _status_bytes("VmRSS") or _peak_bytes()  # the interpreter, its imports and the frame
     reset = _reset_peak()
     wall, cpu = time.perf_counter(), time.process_time()
     try:
@@ -161,7 +163,7 @@ def child(path: Path, setup_json: str, names: list[str]) -> None:
         outcome = f"MemoryError: {str(exc)[:70]}"
     except wavefit.WavefitError as exc:
         outcome = f"{type(exc).__name__}: {str(exc)[:90]}"
-    report = {"imports": imports, "peak": _peak_bytes(), "reset": reset, "outcome": outcome,
+    report = {"given": given, "peak": _peak_bytes(), "reset": reset, "outcome": outcome,
               "wall": time.perf_counter() - wall, "cpu": time.process_time() - cpu}
     print(json.dumps(report))
 
@@ -191,7 +193,7 @@ def run_case(case: str, samples: int, edges: int, limit_gb: float, timeout: floa
         return {"size": size, "peak": None, "outcome": f"child failed: {tail[:90]}", "wall": None}
     report = json.loads(lines[-1])
     report["size"] = size
-    report["above"] = report["peak"] - report["imports"]
+    report["above"] = report["peak"] - report["given"]
     return report
 
 
@@ -213,7 +215,7 @@ def main(argv: list[str] | None = None) -> None:
     unknown = set(cases) - set(CASES)
     if unknown:
         parser.error(f"unknown case(s) {', '.join(sorted(unknown))}; known: {', '.join(CASES)}")
-    print(f"bound: peak above the interpreter <= {BOUND_FACTOR:g} x capture float64 size + "
+    print(f"bound: peak the analysis adds <= {BOUND_FACTOR:g} x capture float64 size + "
           f"{BOUND_EXTRA / 1e6:.0f} MB; children limited to {args.limit_gb:g} GiB of address space "
           f"and {args.timeout:g} s", flush=True)
     head = (f"{'case':<20} {'samples':>9} {'edges':>5} {'capture MB':>10} {'peak MB':>8} {'ratio':>6} "
@@ -236,7 +238,8 @@ def main(argv: list[str] | None = None) -> None:
                                    f"{bound / size:>6.2f} {ok:>3} {r['wall']:>7.1f} {r['cpu']:>7.1f}")
                     print(f"{case:<20} {n:>9.0e} {e if e else '':>5} {size / 1e6:>10.1f} {figures}  {r['outcome']}",
                           flush=True)
-    print("ratio: peak above the interpreter with its imports / capture size; bound: the same for the "
+    print("ratio: peak the analysis adds (above the interpreter with the DataFrame it is given) / capture "
+          "size; bound: the same for the "
           "issue's bound (* the peak could not be reset: an upper bound)")
 
 

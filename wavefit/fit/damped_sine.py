@@ -38,12 +38,15 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 from scipy import optimize
 
+from .compressed import TriangularProblem
 from .engine import Block, fit_least_squares
-from .jacobian import Jacobian, Piece
+from .jacobian import Jacobian, Piece, is_small
+from .noise_model import white
 from .quantisation import include_quantisation
 from .pencil import matrix_pencil
 from .result import FitResult
@@ -315,13 +318,30 @@ def refine(y: np.ndarray, alpha: float, w: float, x0: np.ndarray | None = None,
         tau = np.arange(length, dtype=float)
         if x0 is None and length < n:
             x = _linear_start(seg, x[3], x[4])
-        res = optimize.least_squares(lambda v: model(v, tau) - seg, x, jac=lambda v: jacobian(v, tau),
-                                     method="lm", x_scale=_x_scale(x), xtol=1e-12, ftol=1e-12)
+        residuals, jac = _start_problem(seg, tau)
+        res = optimize.least_squares(residuals, x, jac=jac, method="lm", x_scale=_x_scale(x),
+                                     xtol=1e-12, ftol=1e-12)
         if np.all(np.isfinite(res.x)) and 0 < res.x[4] < math.pi and res.x[3] * length > -20.0:
             x = res.x  # (a free ring decays: a fit that grows e-fold many times over is rejected)
         if length >= n:
             return x
         length = min(n, 2 * length)
+
+
+def _start_problem(seg: np.ndarray, tau: np.ndarray) -> tuple[Callable, Callable]:
+    """Residual and Jacobian functions of the unweighted refinement of ``seg``.
+
+    A long segment is handed to the solver as the triangular factor of [J | f]
+    (:class:`~wavefit.fit.compressed.TriangularProblem`: the same Levenberg–Marquardt steps
+    on p + 1 rows), since MINPACK copies its dense n × p Jacobian several times over."""
+    def residuals(v: np.ndarray) -> np.ndarray:
+        return model(v, tau) - seg
+
+    if is_small(seg.size, len(NAMES)):
+        return residuals, lambda v: jacobian(v, tau)
+    problem = TriangularProblem(residuals, lambda v: pieced_jacobian(v, tau), [Block(0, seg.size, "tank")],
+                                {"tank": white(1.0)})
+    return problem.residuals, problem.jacobian
 
 
 def _linear_start(y: np.ndarray, alpha: float, w: float) -> np.ndarray:

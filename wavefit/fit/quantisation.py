@@ -45,8 +45,8 @@ def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: "np.ndarray 
     when the record is not on a code grid or its noise dithers it. ``step`` is the code step
     when known from elsewhere in the record (a settled level may read one or two codes only,
     too few to find the grid from)."""
-    step = code_step(y) or step
-    if step is None or residual_rms >= DITHER_LIMIT * step:
+    step = limiting_step(y, residual_rms, step)
+    if step is None:
         return None
     origin = float(np.min(y))
     # the fitted model is not the true waveform, and where the true one sits between codes is
@@ -68,6 +68,15 @@ def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: "np.ndarray 
         factor = triangle(jac, errors, [Block(0, n)], {Block(0, n).group: white(1.0)})
         shifts = np.linalg.lstsq(factor[:p, :p], factor[:p, p:], rcond=np.finfo(float).eps * max(n, p))[0].T
     return np.sqrt(np.mean(shifts ** 2, axis=0)) * np.sign(shifts[0] + 1e-300), residual_rms / step
+
+
+def limiting_step(y: np.ndarray, residual_rms: float, step: float | None = None) -> float | None:
+    """The code step of a record whose noise does not dither it (below DITHER_LIMIT codes),
+    else None; ``step`` as in :func:`quantisation_shift`."""
+    step = code_step(y) or step
+    if step is None or residual_rms >= DITHER_LIMIT * step:
+        return None
+    return step
 
 
 #: Below this noise, in codes, the code likelihood is not used: its maximum is then set by a few
@@ -116,13 +125,17 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     """
     import dataclasses
 
-    fitted, jac = model(fit.values), as_jacobian(jac_model(fit.values))
     totals: dict[str, np.ndarray] = {}
     worst = None
     limited = 0
     steps = steps or {}
+    fitted = jac = None
     for b in blocks:
         rows = slice(b.start, b.stop)
+        if limiting_step(y[rows], fit.noise_sigma[b.group], steps.get(b.group)) is None:
+            continue  # no shift: the model is then not evaluated (a long record's copy saved)
+        if fitted is None:
+            fitted, jac = model(fit.values), as_jacobian(jac_model(fit.values))
         found = quantisation_shift(y[rows], fitted[rows], jac.restricted(b.start, b.stop), fit.noise_sigma[b.group],
                                    steps.get(b.group))
         if found is not None:

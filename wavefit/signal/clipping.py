@@ -7,11 +7,12 @@ sign (common practice). The fitted model settles it: see :func:`model_exceeds_re
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
 
-from .codes import code_step
+from .codes import CHUNK_VALUES, code_step
 
 
 def longest_run_at_extremes(y: np.ndarray) -> tuple[int, int]:
@@ -72,16 +73,36 @@ class Extremes:
 def extremes(y: np.ndarray) -> Extremes:
     """Gather :class:`Extremes` of a record."""
     y = np.asarray(y, dtype=float)
-    y = y[np.isfinite(y)]
-    levels = np.unique(y)
-    gap = float(np.min(np.diff(levels))) if levels.size >= 2 else None
+    if not np.all(np.isfinite(y)):
+        y = y[np.isfinite(y)]
+    gap = smallest_gap(y)
     code = code_step(y)
     counts = []
-    for extreme, inward in ((levels[-1], -1.0), (levels[0], 1.0)):
+    for extreme, inward in ((np.max(y), -1.0), (np.min(y), 1.0)):
         at = int(np.count_nonzero(y == extreme))
-        near = int(np.count_nonzero(np.abs(y - (extreme + inward * code)) < 0.01 * code)) if code else 0
+        near = _count_within(y, extreme + inward * code, 0.01 * code) if code else 0
         counts.append((at, near))
     return Extremes(gap, max(longest_run_at_extremes(y)), code, tuple(counts))
+
+
+def smallest_gap(y: np.ndarray) -> float | None:
+    """The smallest difference between two distinct values of ``y`` (finite values), or None
+    when it holds fewer than two: the smallest step of its sorted values, taken a chunk at a
+    time so that only the sorted copy is held."""
+    ordered = np.sort(y)
+    gap = math.inf
+    for a in range(0, max(ordered.size - 1, 0), CHUNK_VALUES):
+        steps = np.diff(ordered[a:a + CHUNK_VALUES + 1])
+        steps = steps[steps > 0]
+        if steps.size:
+            gap = min(gap, float(steps.min()))
+    return gap if math.isfinite(gap) else None
+
+
+def _count_within(y: np.ndarray, value: float, tolerance: float) -> int:
+    """How many samples lie within ``tolerance`` of ``value`` (counted a chunk at a time)."""
+    return sum(int(np.count_nonzero(np.abs(y[a:a + CHUNK_VALUES] - value) < tolerance))
+               for a in range(0, y.size, CHUNK_VALUES))
 
 
 def piles_up_at_limit(y: np.ndarray, sigma: float, min_count: int = 5) -> bool:

@@ -1,15 +1,57 @@
 """The converter's code grid: the step between the values a digitised record can take."""
 from __future__ import annotations
 
+import math
+from typing import Iterator
+
 import numpy as np
+
+#: Values gathered at a time when a record's levels are collected (8 MB of float64), so that
+#: a long record is never copied whole; the levels found are the same as in one pass.
+CHUNK_VALUES = 1 << 20
+
+
+def finite_chunks(y: np.ndarray) -> Iterator[np.ndarray]:
+    """The finite values of ``y``, :data:`CHUNK_VALUES` samples at a time."""
+    for a in range(0, y.size, CHUNK_VALUES):
+        chunk = y[a:a + CHUNK_VALUES]
+        yield chunk[np.isfinite(chunk)]
+
+
+def distinct_levels(y: np.ndarray, limit: float = math.inf) -> np.ndarray | None:
+    """The distinct finite values of ``y`` in increasing order (``np.unique`` of them),
+    gathered a chunk at a time; None as soon as there are more than ``limit``."""
+    y = np.asarray(y, dtype=float)
+    levels = np.zeros(0)
+    for chunk in finite_chunks(y):
+        levels = np.union1d(levels, chunk)
+        if levels.size > limit:
+            return None
+        if levels.size > CHUNK_VALUES // 4:  # values nearly all distinct: one sorted copy is cheaper
+            return _levels_by_sorting(y, limit)
+    return levels
+
+
+def _levels_by_sorting(y: np.ndarray, limit: float) -> np.ndarray | None:
+    """:func:`distinct_levels` from one sorted copy of the finite values (no other copy)."""
+    ordered = y[np.isfinite(y)]
+    ordered.sort()
+    count = 1 + sum(int(np.count_nonzero(np.diff(ordered[a:a + CHUNK_VALUES + 1])))
+                    for a in range(0, ordered.size - 1, CHUNK_VALUES))
+    if count > limit:
+        return None
+    keep = np.ones(ordered.size, dtype=bool)
+    np.not_equal(ordered[1:], ordered[:-1], out=keep[1:])
+    return ordered[keep]
 
 
 def code_step(y: np.ndarray) -> float | None:
-    """The converter (or printing) step of a record, if its values sit on a uniform grid."""
+    """The converter (or printing) step of a record, if its values sit on a uniform grid
+    (at most one distinct value per two samples)."""
     y = np.asarray(y, dtype=float)
-    y = y[np.isfinite(y)]
-    levels = np.unique(y)
-    if levels.size < 3 or levels.size > 0.5 * y.size:
+    finite = int(np.count_nonzero(np.isfinite(y)))
+    levels = distinct_levels(y, 0.5 * finite)
+    if levels is None or levels.size < 3:
         return None
     gaps = np.diff(levels)
     step = float(gaps.min())
@@ -31,11 +73,10 @@ def code_grid(y: np.ndarray, step: float | None = None) -> tuple[float, float] |
     values are not on a uniform grid.
     """
     y = np.asarray(y, dtype=float)
-    y = y[np.isfinite(y)]
     first = code_step(y) or step
-    if first is None or y.size == 0:
+    levels = distinct_levels(y)
+    if first is None or levels.size == 0:
         return None
-    levels = np.unique(y)
     number = np.round((levels - levels[0]) / first)
     if number[-1] > 0:
         slope, origin = np.polyfit(number, levels, 1)

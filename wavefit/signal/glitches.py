@@ -39,6 +39,7 @@ from dataclasses import replace
 import numpy as np
 
 from ..io.capture import Capture
+from .codes import CHUNK_VALUES
 
 #: A glitch departs from its neighbours' line by more than this many times the curvature
 #: of the waveform around it: 12 times what a sampled sinusoid's peak shows (1/6) and 4 times
@@ -89,11 +90,20 @@ def find_glitches(y: np.ndarray, code: float | None = None) -> np.ndarray:
     if y.size < 5:
         return np.empty(0, dtype=np.intp)
     sigma = _noise(y, code)
-    centre = slice(2, -2)
-    departure = np.abs(y[centre] - 0.5 * (y[1:-3] + y[3:-1]))
-    curvature = np.abs(y[3:-1] - y[1:-3]) + np.abs(y[4:] - y[3:-1]) + np.abs(y[1:-3] - y[:-4])
-    found = np.flatnonzero(departure > GLITCH_SHAPE * curvature + GLITCH_NOISE * sigma) + 2
+    found = []
+    for a, b in _spans(2, y.size - 2):  # centres a..b, each with two neighbours either side
+        seg = y[a - 2:b + 2]
+        departure = np.abs(seg[2:-2] - 0.5 * (seg[1:-3] + seg[3:-1]))
+        curvature = np.abs(seg[3:-1] - seg[1:-3]) + np.abs(seg[4:] - seg[3:-1]) + np.abs(seg[1:-3] - seg[:-4])
+        found.append(np.flatnonzero(departure > GLITCH_SHAPE * curvature + GLITCH_NOISE * sigma) + a)
+    found = np.concatenate(found) if found else np.empty(0, dtype=np.intp)
     return found[~(_at_onset(y, found, sigma) & _spike_sized(y, found))]
+
+
+def _spans(start: int, stop: int) -> list[tuple[int, int]]:
+    """start..stop in consecutive ranges of at most CHUNK_VALUES samples: the rules are local,
+    so a long record is examined a piece at a time, never copied whole."""
+    return [(a, min(a + CHUNK_VALUES, stop)) for a in range(start, stop, CHUNK_VALUES)]
 
 
 def _spike_sized(y: np.ndarray, found: np.ndarray) -> np.ndarray:
@@ -124,11 +134,13 @@ def _after_jumps(y: np.ndarray, code: float | None) -> np.ndarray:
     mask = np.zeros(y.size, dtype=bool)
     if y.size < 4:
         return mask
-    step = np.abs(np.diff(y))
-    around = np.zeros_like(step)
-    around[1:-1] = step[:-2] + step[2:]
-    leaps = np.flatnonzero(step > GLITCH_SHAPE * around + GLITCH_NOISE * _noise(y, code))
-    leaps = leaps[(leaps > 0) & (leaps < step.size - 1)] + 1
+    sigma = _noise(y, code)
+    leaps = []
+    for a, b in _spans(1, y.size - 2):  # steps y[j] -> y[j + 1], each with the steps either side
+        step = np.abs(np.diff(y[a - 1:b + 2]))
+        around = step[:-2] + step[2:]
+        leaps.append(np.flatnonzero(step[1:-1] > GLITCH_SHAPE * around + GLITCH_NOISE * sigma) + a + 1)
+    leaps = np.concatenate(leaps)
     for shift in range(COINCIDENCE + 1):
         mask[np.minimum(leaps + shift, y.size - 1)] = True
     return mask
@@ -140,9 +152,15 @@ def _noise(y: np.ndarray, code: float | None) -> float:
     the converter's, or the smallest change between neighbours when no code grid was found
     (a quiet quantised trace flickers by that much)."""
     second = y[2:] - 2.0 * y[1:-1] + y[:-2]
-    mad = float(np.median(np.abs(second - np.median(second))))
-    changes = np.abs(np.diff(y))
-    smallest = float(changes[changes > 0].min()) if np.any(changes > 0) else 0.0
+    second -= np.median(second, overwrite_input=True)  # (medians in place: no copy of the record)
+    mad = float(np.median(np.abs(second, out=second), overwrite_input=True))
+    del second
+    smallest = 0.0
+    for a, b in _spans(0, y.size - 1):
+        changes = np.abs(np.diff(y[a:b + 1]))
+        changes = changes[changes > 0]
+        if changes.size:
+            smallest = float(changes.min()) if smallest == 0.0 else min(smallest, float(changes.min()))
     return max(_MAD_TO_SIGMA * mad / np.sqrt(_SECOND_DIFFERENCE_VARIANCE), code or 0.0, smallest)
 
 

@@ -1,0 +1,136 @@
+"""Long records: Jacobians by pieces, the triangular-factor solver, levels and glitches found a
+chunk at a time, and a fit out of memory refused in one line.
+
+The paths for long records must give what the dense computations give. Each check here
+forces the long-record path on a short record (by lowering its size threshold) and
+compares it with the dense one, or with an independent computation (finite differences,
+``np.unique``). Peak memory itself is measured by ``benchmarks/memory_long_records.py``.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy.signal import lfilter
+
+from wavefit.errors import AnalysisRefused
+from wavefit.fit import jacobian as jacobian_module
+from wavefit.fit.compressed import triangle
+from wavefit.fit.damped_sine import fit_ring
+from wavefit.fit.engine import Block, fit_least_squares
+from wavefit.fit.noise_model import fit_ar
+from wavefit.fit.relaxation import fit_relaxations, relaxation_jacobian, relaxation_model
+from wavefit.signal import clipping, codes, glitches
+
+
+def square_wave_record(rng: np.random.Generator, n: int = 6000) -> tuple[np.ndarray, np.ndarray, list, list]:
+    """Three switching instants of a first-order response (tau = 40 samples), 1 % noise."""
+    t = np.arange(n) * 1e-6
+    edges = [1500.3e-6, 3000.7e-6, 4500.2e-6]
+    levels = [0.0, 1.0, 0.0, 1.0]
+    theta = np.array([1.0, 0.0, 0.0, 1.0, 37.5075, 0.0, 75.0175, 1.0, 112.505])  # times in units of tau
+    y = relaxation_model((t - t[0]) / 40e-6, theta, 3) + 0.01 * rng.standard_normal(n)
+    return t, y, edges, levels
+
+
+def assert_same_fit(long, dense) -> None:
+    """The same estimates to a millionth of their standard uncertainty (the solvers stop at
+    their rounding, in another order of the same arithmetic), the same covariance to 1e-6 of
+    the products of their standard uncertainties."""
+    u = np.sqrt(np.diag(dense.covariance))
+    assert np.all(np.abs(long.values - dense.values) <= 1e-6 * u)
+    scale = np.outer(u, u)
+    np.testing.assert_allclose(long.covariance / scale, dense.covariance / scale, atol=1e-6)
+    assert long.dof == dense.dof
+
+
+def test_relaxation_jacobian_matches_finite_differences():
+    # independent check of the pieces: central differences of the model itself
+    rng = np.random.default_rng(1)
+    ts = np.sort(rng.uniform(0, 20, 400))
+    theta = np.array([1.3, 0.2, -0.7, 1.0, 5.0, -0.5, 11.0, 0.8, 16.0])
+    analytic = relaxation_jacobian(ts, theta, 3).toarray()
+    numeric = np.empty_like(analytic)
+    for i in range(theta.size):
+        h = 1e-6 * max(1.0, abs(theta[i]))
+        up, down = theta.copy(), theta.copy()
+        up[i] += h
+        down[i] -= h
+        numeric[:, i] = (relaxation_model(ts, up, 3) - relaxation_model(ts, down, 3)) / (2 * h)
+    np.testing.assert_allclose(analytic, numeric, atol=1e-6)
+
+
+def test_triangle_has_the_normal_matrix_of_the_whitened_rows():
+    # TᵀT = (W[J | f])ᵀ(W[J | f]) for an AR whitening fitted to AR(2) noise, rows taken in several chunks
+    rng = np.random.default_rng(2)
+    n, p = 3000, 4
+    jac = rng.standard_normal((n, p))
+    rhs = rng.standard_normal(n)
+    noise = fit_ar([lfilter([1.0], [1.0, -0.5, 0.2], rng.standard_normal(20000))], max_order=5)
+    assert noise.order >= 2
+    blocks = [Block(0, 1800, "a"), Block(1800, n, "a")]
+    t = triangle(jac, rhs, blocks, {"a": noise})
+    whitened = np.vstack([noise.whiten(np.column_stack([jac, rhs])[b.start:b.stop]) for b in blocks])
+    np.testing.assert_allclose(t.T @ t, whitened.T @ whitened, rtol=1e-10, atol=1e-9)
+
+
+@pytest.mark.parametrize("noise", ["white", "auto"])
+def test_relaxation_fit_same_by_triangular_factor(monkeypatch, noise):
+    rng = np.random.default_rng(3)
+    t, y, edges, levels = square_wave_record(rng)
+    dense = fit_relaxations(t, y, edges, levels, 40e-6, noise=noise)
+    monkeypatch.setattr(jacobian_module, "DENSE_VALUES", 100)  # every problem takes the long-record path
+    long = fit_relaxations(t, y, edges, levels, 40e-6, noise=noise)
+    assert_same_fit(long, dense)
+    assert long.dof == dense.dof
+
+
+def test_ring_fit_same_by_triangular_factor(monkeypatch):
+    rng = np.random.default_rng(4)
+    n = 8000
+    t = np.arange(n) * 1e-7
+    y = np.exp(-t / 2e-4) * np.cos(2 * np.pi * 5e4 * t + 0.3) + 0.01 * rng.standard_normal(n)
+    dense = fit_ring(t, y)
+    monkeypatch.setattr(jacobian_module, "DENSE_VALUES", 100)
+    long = fit_ring(t, y)
+    assert_same_fit(long.fit, dense.fit)
+
+
+def test_fit_out_of_memory_is_refused_in_one_line():
+    def fun(x):
+        raise MemoryError("Unable to allocate 30.0 GiB")
+
+    with pytest.raises(AnalysisRefused) as caught:
+        fit_least_squares(fun, lambda x: np.eye(2), [1.0, 2.0], ["a", "b"], [Block(0, 10)], model="test")
+    message = str(caught.value)
+    assert "\n" not in message and "not enough memory" in message and "10 samples" in message
+
+
+@pytest.mark.parametrize("values", [
+    np.round(np.random.default_rng(5).normal(size=5000) * 4) / 3,    # few levels: gathered by chunks
+    np.random.default_rng(6).normal(size=5000),                      # all distinct: one sorted copy
+    np.r_[np.round(np.random.default_rng(7).normal(size=900)), np.nan, np.inf, -np.inf, 0.0, -0.0],
+])
+def test_levels_found_by_chunks_equal_unique(monkeypatch, values):
+    monkeypatch.setattr(codes, "CHUNK_VALUES", 64)
+    finite = values[np.isfinite(values)]
+    reference = np.unique(finite)
+    np.testing.assert_array_equal(codes.distinct_levels(values), reference)
+    limit = 0.5 * finite.size
+    found = codes.distinct_levels(values, limit)
+    assert (found is None) == (reference.size > limit)
+    gap = clipping.smallest_gap(finite) if finite.size else None
+    assert gap == (float(np.min(np.diff(reference))) if reference.size >= 2 else None)
+
+
+def test_glitches_found_across_chunk_boundaries(monkeypatch):
+    rng = np.random.default_rng(8)
+    n = 4000
+    y = np.sign(np.sin(np.arange(n) / 300.0)) + 0.01 * rng.standard_normal(n)
+    bad = np.array([63, 64 + 63, 1000, 2047, 3999 - 3])  # some next to a chunk's edge
+    y[bad] += 5.0
+    whole = glitches.find_glitches(y)
+    jumps = glitches._after_jumps(y, None)
+    monkeypatch.setattr(glitches, "CHUNK_VALUES", 64)
+    np.testing.assert_array_equal(glitches.find_glitches(y), whole)
+    np.testing.assert_array_equal(glitches._after_jumps(y, None), jumps)
+    assert set(bad.tolist()) <= set(whole.tolist())
