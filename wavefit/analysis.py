@@ -20,6 +20,7 @@ from .propagation_record import propagation_of, recording
 from .provenance import provenance
 from .results import AnalysisResult
 from .setup import RelativeFigure, Setup, load_setup
+from .uncertainty import Propagation
 
 Source = "str | os.PathLike | pd.DataFrame | Capture"
 #: The ways of propagating the uncertainty: the GUM's law (always) and JCGM 101's Monte Carlo beside it.
@@ -84,7 +85,8 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     return with_capture_remarks(result, captures)
 
 
-def with_monte_carlo(result: AnalysisResult, propagation: Any, draws: int, seed: int | None) -> AnalysisResult:
+def with_monte_carlo(result: AnalysisResult, propagation: Propagation | None, draws: int,
+                     seed: int | None) -> AnalysisResult:
     """The result with a Monte Carlo run (JCGM 101:2008) on the measurement function the
     method propagated, and a warning for any output whose draws were not all finite.
 

@@ -101,6 +101,15 @@ CHUNK_DRAWS = 100_000
 DEFAULT_SEED = 12345
 
 
+def _binary(op: np.ufunc, reflected: bool = False) -> Callable[[Sampled, object], Sampled]:
+    """The operator method of :class:`Sampled` for ``op`` (``reflected``: ``other op self``)."""
+
+    def method(self: Sampled, other: object) -> Sampled:
+        return self._apply(op, other, reflected)
+
+    return method
+
+
 class Sampled:
     """Draws of one quantity, with its value at the input estimates, for a measurement function
     written for ``uncertainties`` numbers.
@@ -129,19 +138,20 @@ class Sampled:
             return Sampled(op(on, self.nominal_value), op(od, self.draws))
         return Sampled(op(self.nominal_value, on), op(self.draws, od))
 
-    def __add__(self, o): return self._apply(np.add, o)
-    def __radd__(self, o): return self._apply(np.add, o, True)
-    def __sub__(self, o): return self._apply(np.subtract, o)
-    def __rsub__(self, o): return self._apply(np.subtract, o, True)
-    def __mul__(self, o): return self._apply(np.multiply, o)
-    def __rmul__(self, o): return self._apply(np.multiply, o, True)
-    def __truediv__(self, o): return self._apply(np.divide, o)
-    def __rtruediv__(self, o): return self._apply(np.divide, o, True)
-    def __pow__(self, o): return self._apply(np.power, o)
-    def __rpow__(self, o): return self._apply(np.power, o, True)
-    def __neg__(self): return Sampled(-self.nominal_value, -self.draws)
-    def __pos__(self): return self
-    def __abs__(self): return Sampled(abs(self.nominal_value), np.abs(self.draws))
+    __add__, __radd__ = _binary(np.add), _binary(np.add, True)
+    __sub__, __rsub__ = _binary(np.subtract), _binary(np.subtract, True)
+    __mul__, __rmul__ = _binary(np.multiply), _binary(np.multiply, True)
+    __truediv__, __rtruediv__ = _binary(np.divide), _binary(np.divide, True)
+    __pow__, __rpow__ = _binary(np.power), _binary(np.power, True)
+
+    def __neg__(self) -> Sampled:
+        return Sampled(-self.nominal_value, -self.draws)
+
+    def __pos__(self) -> Sampled:
+        return self
+
+    def __abs__(self) -> Sampled:
+        return Sampled(abs(self.nominal_value), np.abs(self.draws))
 
     def __array_ufunc__(self, ufunc: np.ufunc, method: str, *args: object, **kwargs: object) -> Sampled:
         if method != "__call__" or kwargs or ufunc.nout != 1:

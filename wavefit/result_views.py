@@ -172,7 +172,6 @@ def figure(result: AnalysisResult, ax: Axes | None = None) -> Figure:
     changed, nothing is left open); with ``ax`` the recorded data and the fitted model
     are drawn into that axes and its figure is returned."""
     from matplotlib import rc_context
-    from matplotlib.figure import Figure
 
     from .errors import WavefitError
     from .report.plot import draw
