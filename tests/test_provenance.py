@@ -73,11 +73,14 @@ def test_setup_with_captures_and_every_table_round_trips(tmp_path):
 def test_a_serial_number_in_the_preamble_is_an_identifier(tmp_path):
     path = tmp_path / "serial.csv"
     rows = "\n".join(f"{k * 1e-6:.6e},{math.sin(k / 5):.5f}" for k in range(64))
-    path.write_text(f"Serial number,SN-0042\nOperator,bench 3\n\nTime (s),CH1 (V)\n{rows}\n")
+    path.write_text(f"Serial number,SN-0042\nOperator,bench 3\nDUT S/N 7731 after soak\nwarm start\n\n"
+                    f"Time (s),CH1 (V)\n{rows}\n")
     record = capture_record(str(path), read_capture(path))
     assert record["sha256"] == _sha256(path)
     assert record["metadata"]["Serial number"] == "SN-0042"
-    assert record["identifiers"] == {"Serial number": "SN-0042"}
+    free = [k for k, v in record["metadata"].items() if v == "DUT S/N 7731 after soak"]
+    assert len(free) == 1
+    assert record["identifiers"] == {"Serial number": "SN-0042", free[0]: "DUT S/N 7731 after soak"}
 
 
 def test_compressed_capture_is_hashed_as_stored_and_frames_have_no_hash(tmp_path):

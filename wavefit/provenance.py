@@ -25,9 +25,13 @@ from .setup import RelativeFigure, Setup
 
 #: Bytes read at a time when hashing a file (memory stays flat on long records).
 HASH_BLOCK = 1 << 20
-#: Preamble keys that identify the part measured (part, serial or lot number); their entries are
-#: repeated under ``identifiers`` so that a reader of the JSON need not search the preamble.
-IDENTIFIER_KEY = re.compile(r"\b(part|serial|s/?n|p/?n|lot|dut)\b", re.IGNORECASE)
+#: Words that identify the part measured (part, serial or lot number). Preamble entries whose key
+#: holds one, and free-text lines (``note1``, ``footer1``, ... in :mod:`wavefit.io.preamble`)
+#: whose text holds one, are repeated under ``identifiers`` so that a reader of the JSON need
+#: not search the preamble.
+IDENTIFIER_WORD = re.compile(r"\b(part|serial|s/?n|p/?n|lot|dut)\b", re.IGNORECASE)
+#: Keys under which the reader stores a free-text line of the preamble or of the text after the table.
+FREE_TEXT_KEY = re.compile(r"(note|footer)\d+")
 
 
 def file_sha256(path: str | os.PathLike[str]) -> str:
@@ -82,8 +86,14 @@ def capture_record(source: Any, capture: Capture) -> dict[str, Any]:
         "sample_interval_s": capture.sample_interval,
         "time_column": capture.time_column,
         "metadata": metadata,
-        "identifiers": {key: value for key, value in metadata.items() if IDENTIFIER_KEY.search(key)},
+        "identifiers": {key: value for key, value in metadata.items() if _identifies(key, value)},
     }
+
+
+def _identifies(key: str, value: str) -> bool:
+    """Whether a metadata entry names the part: by its key, or by its text for a free-text line."""
+    text = value if FREE_TEXT_KEY.fullmatch(key) else key
+    return IDENTIFIER_WORD.search(text) is not None
 
 
 def provenance(setup: Setup, sources: Sequence[Any], captures: Sequence[Capture]) -> dict[str, Any]:
