@@ -150,3 +150,16 @@ def test_a_result_built_by_hand_has_no_params():
     assert "no fitted parameters" in result.fit_report()
     assert result.uvalues()["L"].std_dev == pytest.approx(1e-8)
     assert "provenance" not in result.to_dict()
+
+
+def test_line_fit_result_plots_and_reports_its_line():
+    from matplotlib.figure import Figure
+
+    result = wavefit.analyze(None, SAMPLES / "tank_sweep" / "sweep.toml")
+    assert len(result.plot().axes) == 1
+    ax = Figure().add_subplot()
+    result.plot(ax=ax)
+    assert len(ax.lines) >= 2  # the points (with their error bars) and the fitted line
+    assert list(result.params) == ["line_slope", "line_intercept"]
+    report = result.fit_report()
+    assert "s2" in report and "fs2" not in report  # no SI prefix on a squared unit

@@ -10,7 +10,6 @@ without the method doing anything more.
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -56,13 +55,15 @@ def fitted_blocks(inputs: InputSet) -> tuple[FittedBlock, ...]:
     items = inputs.inputs
     blocks = []
     for idx, cov in inputs.blocks():
+        if not idx:
+            continue
         members = [items[k] for k in idx]
         blocks.append(FittedBlock(
             names=tuple(m.name for m in members),
             values=tuple(m.value for m in members),
             units=tuple(m.unit for m in members),
             covariance=tuple(tuple(float(c) for c in row) for row in np.asarray(cov, dtype=float)),
-            degrees_of_freedom=float(members[0].dof) if members else math.inf,
-            group=members[0].group or "" if members else "",
+            degrees_of_freedom=float(members[0].dof),
+            group=members[0].group or "",
         ))
     return tuple(blocks)

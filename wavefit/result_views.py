@@ -136,7 +136,7 @@ def fit_report(result: AnalysisResult) -> str:
         se = block.standard_errors()
         for name, value, unit, err in zip(block.names, block.values, block.units, se):
             rel = f"{err / abs(value):.2e}" if value else "-"
-            lines.append(f"    {name:<{width}}  {eng_pm(value, err, unit):<26}  rel {rel}")
+            lines.append(f"    {name:<{width}}  {_value_pm(value, err, unit):<26}  rel {rel}")
         corr = block.correlation_matrix()
         pairs = [(abs(corr[i, j]), block.names[i], block.names[j], corr[i, j])
                  for i in range(len(block.names)) for j in range(i + 1, len(block.names))
@@ -216,6 +216,14 @@ def _draw_on_axes(ax: Axes, data: Any) -> None:
             ax.plot(t, model, "-", lw=1.2, label=f"{visible(label)} fitted model")
         ax.set_xlabel("time (s)")
     ax.legend(loc="best", fontsize=8)
+
+
+def _value_pm(value: float, err: float, unit: str) -> str:
+    """``value ± err unit``; a unit with a power (``s2``) gets no SI prefix, which would be read
+    as raised with it (fs2 is (fs)², not f·s²)."""
+    if any(c.isdigit() for c in unit):
+        return f"{value:.6g} ± {err:.2g} {unit}"
+    return eng_pm(value, err, unit)
 
 
 def _source(result: AnalysisResult) -> str:
