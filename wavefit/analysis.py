@@ -9,20 +9,33 @@ from typing import Any, Mapping, Sequence
 import pandas as pd
 
 from .capture_checks import refuse_shared_columns, without_glitches
-from .errors import CaptureError, SetupError
+from .errors import AnalysisRefused, CaptureError, SetupError
+from .fitted import fitted_blocks
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
 from .methods import get_method
+from .montecarlo import DEFAULT_SEED, MEASUREMENT_DRAWS, propagate_measurement
 from .numerics import collected, numerical_failures_refused
+from .propagation_record import propagation_of, recording
+from .provenance import provenance
 from .results import AnalysisResult
 from .setup import RelativeFigure, Setup, load_setup
+from .uncertainty import Propagation
 
 Source = "str | os.PathLike | pd.DataFrame | Capture"
+#: The ways of propagating the uncertainty: the GUM's law (always) and JCGM 101's Monte Carlo beside it.
+UNCERTAINTY_MODES = ("linear", "montecarlo")
 
 
 def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | Setup | None = None,
-            *, sample_interval: float | None = None) -> AnalysisResult:
+            *, sample_interval: float | None = None, uncertainty: str = "linear",
+            draws: int = MEASUREMENT_DRAWS, seed: int | None = DEFAULT_SEED) -> AnalysisResult:
     """Analyse one capture (path, DataFrame or Capture) with a setup (TOML path or dict).
+
+    ``uncertainty="montecarlo"`` also propagates the inputs' distributions through the
+    method's measurement function by Monte Carlo (JCGM 101:2008) with ``draws`` draws from
+    ``seed`` and reports its coverage intervals in ``result.monte_carlo`` beside the
+    linear ones (:func:`with_monte_carlo`).
 
     For methods that take several captures from the setup (``lc-sweep``),
     ``source`` may be ``None``, or a sequence of sources that replaces the
@@ -32,7 +45,10 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     """
     if setup is None:
         raise SetupError("a setup is needed: pass a TOML path or a dict with at least 'method'")
+    if uncertainty not in UNCERTAINTY_MODES:
+        raise SetupError(f"uncertainty must be one of {', '.join(UNCERTAINTY_MODES)}, got {uncertainty!r}")
     parsed = load_setup(setup)
+    as_parsed = parsed
     method = get_method(parsed.method)
     method.check_setup(parsed)
     interval = sample_interval if sample_interval is not None else parsed.sample_interval
@@ -48,18 +64,51 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     else:
         if source is None:
             raise SetupError(f"method {parsed.method!r} needs a capture to analyse")
+        sources = [source]
         captures = [load_capture(source, interval, time_col)]
     if parsed.column_files:
         captures, parsed = with_columns_from_files(captures, parsed, interval)
     refuse_shared_columns(captures, parsed.columns, parsed.source)
     captures = [without_glitches(capture) for capture in captures]
-    with collected() as numerical, numerical_failures_refused(captures):
+    with recording() as kept, collected() as numerical, numerical_failures_refused(captures):
         result = method.analyze(captures, with_time_axis_uncertainty(parsed, captures))
     method.check_physical(result)
     remark = numerical.remark()
     if remark is not None:
         result = replace(result, warnings=(*result.warnings, remark))
+    propagation = propagation_of(result, kept)
+    if propagation is not None:
+        result = replace(result, fitted=fitted_blocks(propagation.inputs))
+    if uncertainty == "montecarlo":
+        result = with_monte_carlo(result, propagation, draws, seed)
+    result = replace(result, provenance=provenance(as_parsed, sources, captures))
     return with_capture_remarks(result, captures)
+
+
+def with_monte_carlo(result: AnalysisResult, propagation: Propagation | None, draws: int,
+                     seed: int | None) -> AnalysisResult:
+    """The result with a Monte Carlo run (JCGM 101:2008) on the measurement function the
+    method propagated, and a warning for any output whose draws were not all finite.
+
+    Raises
+    ------
+    AnalysisRefused
+        When the method propagated no measurement function, or its function cannot be
+        evaluated on draws (it needs one number somewhere, see :class:`wavefit.montecarlo.Sampled`).
+    """
+    if propagation is None or propagation.model is None:
+        raise AnalysisRefused(f"method {result.method!r} gives no measurement function to run Monte Carlo on")
+    try:
+        report = propagate_measurement(propagation.inputs, propagation.model, draws=draws, seed=seed)
+    except (TypeError, ValueError) as exc:
+        raise AnalysisRefused(f"Monte Carlo cannot evaluate the measurement function of {result.method!r}: "
+                              f"{exc}") from None
+    invalid = [f"{name} ({count} of {report.draws})" for name, count in report.invalid.items() if count]
+    warnings = result.warnings
+    if invalid:
+        warnings = (*warnings, "Monte Carlo: some draws of the measurement function were not finite numbers and "
+                               f"are left out of the intervals: {', '.join(invalid)}")
+    return replace(result, monte_carlo=report, warnings=warnings)
 
 
 def with_columns_from_files(

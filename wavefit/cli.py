@@ -36,6 +36,9 @@ def build_parser() -> argparse.ArgumentParser:
     p_an.add_argument("--sample-interval", type=float, metavar="SECONDS",
                       help="sample interval when the capture has no time column")
     p_an.add_argument("--no-budget", action="store_true", help="leave the budget out of the text report")
+    p_an.add_argument("--uncertainty", choices=("linear", "montecarlo"), default="linear",
+                      help="montecarlo: also propagate the inputs' distributions by Monte Carlo (JCGM 101, "
+                           "10^6 draws) and report its coverage intervals beside the linear ones")
 
     p_in = sub.add_parser("inspect", help="show what the reader sees in a capture file")
     p_in.add_argument("file", metavar="FILE")
@@ -94,7 +97,7 @@ def _analyze(args: argparse.Namespace) -> int:
     results, worst = [], EXIT_OK
     for k, source in enumerate(jobs):
         try:
-            result = analyze(source, setup, sample_interval=args.sample_interval)
+            result = analyze(source, setup, sample_interval=args.sample_interval, uncertainty=args.uncertainty)
         except WavefitError as exc:
             if args.debug:
                 raise

@@ -6,7 +6,8 @@ input is drawn from the distribution its origin implies (JCGM 101 6.4):
 rectangular for a tolerance band (6.4.2), Gaussian for a stated standard
 uncertainty or expanded uncertainty with k (6.4.7), a scaled and shifted
 t-distribution for a type A input with finite degrees of freedom (6.4.9), and a
-multivariate Gaussian for a correlated block such as a fit's parameters (6.4.8).
+multivariate Gaussian for a correlated block such as a fit's parameters (6.4.8),
+multivariate t when the block has finite degrees of freedom (JCGM 102:2011, 6.5.3).
 The model is evaluated on all draws at once (numpy), and the result is the
 mean, the standard deviation and the probabilistically symmetric coverage
 interval (7.7.1) or the shortest one (7.7.2).
@@ -40,7 +41,13 @@ def draw_inputs(inputs: InputSet, draws: int, rng: np.random.Generator) -> dict[
     in_block: set[int] = set()
     for idx, cov in inputs.blocks():
         mean = np.array([items[k].value for k in idx])
-        sample = rng.multivariate_normal(mean, cov, size=draws, method="eigh")
+        dof = items[idx[0]].dof
+        sample = rng.multivariate_normal(np.zeros(len(idx)), cov, size=draws, method="eigh")
+        if math.isfinite(dof):
+            # multivariate t with scale matrix cov, as the block's finite dof implies (JCGM 102:2011,
+            # 6.5.3; clause from memory): the Gaussian draw divided by sqrt(chi²_ν/ν)
+            sample *= np.sqrt(max(dof, 1.0) / rng.chisquare(max(dof, 1.0), draws))[:, None]
+        sample += mean
         for col, k in enumerate(idx):
             out[items[k].name] = sample[:, col]
         in_block.update(idx)
@@ -82,3 +89,167 @@ def summarise(y: np.ndarray, probability: float = COVERAGE_PROBABILITY) -> Monte
     r = int(np.argmin(widths))
     shortest = (float(y[r]), float(y[r + q]))
     return MonteCarloResult(float(np.mean(y)), float(np.std(y, ddof=1)), symmetric, shortest, m)
+
+
+#: Draws of a Monte Carlo run on a method's measurement function: JCGM 101:2008, 7.2.2, says
+#: M = 10⁶ can be expected to give a 95 % coverage interval correct to one or two significant
+#: decimal digits.
+MEASUREMENT_DRAWS = 1_000_000
+#: Draws evaluated at once: bounds the memory of a run (a few arrays of this length per input).
+CHUNK_DRAWS = 100_000
+#: The seed of the default run, so that the same analysis gives the same interval.
+DEFAULT_SEED = 12345
+
+
+def _binary(op: np.ufunc, reflected: bool = False) -> Callable[[Sampled, object], Sampled]:
+    """The operator method of :class:`Sampled` for ``op`` (``reflected``: ``other op self``)."""
+
+    def method(self: Sampled, other: object) -> Sampled:
+        return self._apply(op, other, reflected)
+
+    return method
+
+
+class Sampled:
+    """Draws of one quantity, with its value at the input estimates, for a measurement function
+    written for ``uncertainties`` numbers.
+
+    Arithmetic and numpy ufuncs act on both the draws and ``nominal_value``; a function that
+    picks a branch from ``nominal_value`` (as the methods' functions do, to fix a sign) picks it
+    at the estimates, as the law of propagation does. Anything that needs one float (``float()``,
+    ``math`` and ``uncertainties.umath`` functions, comparisons, ``if``) raises TypeError, so a
+    function that cannot be evaluated on draws is refused, never evaluated at one point.
+    """
+
+    __slots__ = ("nominal_value", "draws")
+    __array_priority__ = 1000  # numpy arrays and scalars hand their operators to this class
+
+    def __init__(self, nominal_value: float, draws: np.ndarray) -> None:
+        self.nominal_value = float(nominal_value)
+        self.draws = draws
+
+    @staticmethod
+    def _parts(x: object) -> tuple[object, object]:
+        return (x.nominal_value, x.draws) if isinstance(x, Sampled) else (x, x)
+
+    def _apply(self, op: Callable[[object, object], object], other: object, reflected: bool = False) -> Sampled:
+        on, od = self._parts(other)
+        if reflected:
+            return Sampled(op(on, self.nominal_value), op(od, self.draws))
+        return Sampled(op(self.nominal_value, on), op(self.draws, od))
+
+    __add__, __radd__ = _binary(np.add), _binary(np.add, True)
+    __sub__, __rsub__ = _binary(np.subtract), _binary(np.subtract, True)
+    __mul__, __rmul__ = _binary(np.multiply), _binary(np.multiply, True)
+    __truediv__, __rtruediv__ = _binary(np.divide), _binary(np.divide, True)
+    __pow__, __rpow__ = _binary(np.power), _binary(np.power, True)
+
+    def __neg__(self) -> Sampled:
+        return Sampled(-self.nominal_value, -self.draws)
+
+    def __pos__(self) -> Sampled:
+        return self
+
+    def __abs__(self) -> Sampled:
+        return Sampled(abs(self.nominal_value), np.abs(self.draws))
+
+    def __array_ufunc__(self, ufunc: np.ufunc, method: str, *args: object, **kwargs: object) -> Sampled:
+        if method != "__call__" or kwargs or ufunc.nout != 1:
+            return NotImplemented
+        nominal = ufunc(*(self._parts(a)[0] for a in args))
+        return Sampled(float(nominal), ufunc(*(self._parts(a)[1] for a in args)))
+
+    def _no_single_value(self, *_: object) -> bool:
+        raise TypeError("the measurement function needs one number where Monte Carlo has draws "
+                        "(a comparison, float() or a math/umath function)")
+
+    __float__ = __bool__ = __lt__ = __le__ = __gt__ = __ge__ = _no_single_value
+
+
+@dataclass(frozen=True)
+class MonteCarloReport:
+    """A Monte Carlo run on a result's measurement function (JCGM 101:2008).
+
+    ``quantities`` holds each output's summary; ``invalid`` how many draws of it were not
+    finite (left out of its summary, and said in a warning by the front door).
+    """
+
+    draws: int
+    seed: int | None
+    probability: float
+    quantities: dict[str, MonteCarloResult]
+    invalid: dict[str, int]
+
+    def to_dict(self, linear: Mapping[str, object]) -> dict[str, object]:
+        """The JSON form; ``linear`` (the result's quantities) gives each linear interval y ± U."""
+        out: dict[str, object] = {}
+        for name, mc in self.quantities.items():
+            entry = {"mean": mc.value, "standard_uncertainty": mc.standard_uncertainty,
+                     "interval": list(mc.interval), "shortest_interval": list(mc.shortest_interval),
+                     "invalid_draws": self.invalid.get(name, 0)}
+            q = linear.get(name)
+            if q is not None:
+                entry["linear_interval"] = [q.value - q.expanded_uncertainty, q.value + q.expanded_uncertainty]
+            out[name] = entry
+        return {"reference": "JCGM 101:2008", "draws": self.draws, "seed": self.seed,
+                "coverage_probability": self.probability, "quantities": out}
+
+
+def propagate_measurement(inputs: InputSet, model: Callable[[Mapping[str, object]], Mapping[str, object]],
+                          draws: int = MEASUREMENT_DRAWS, probability: float = COVERAGE_PROBABILITY,
+                          seed: int | None = DEFAULT_SEED) -> MonteCarloReport:
+    """Monte Carlo on a measurement function written for ``uncertainties`` numbers.
+
+    The same ``(inputs, model)`` that :func:`wavefit.uncertainty.propagate` evaluated once
+    to first order is evaluated on ``draws`` draws of the inputs (JCGM 101:2008, 7.2-7.4),
+    in chunks of :data:`CHUNK_DRAWS`, each input a :class:`Sampled`.
+
+    Parameters
+    ----------
+    inputs
+        The inputs and their distributions (:func:`draw_inputs`).
+    model
+        The measurement function; arithmetic and numpy ufuncs only on its inputs.
+    draws
+        Number of draws M (JCGM 101 7.2).
+    probability
+        Coverage probability of the intervals.
+    seed
+        Seed of the random generator (None: a fresh one).
+
+    Returns
+    -------
+    MonteCarloReport
+
+    Raises
+    ------
+    TypeError
+        When the function needs one number where it gets draws (see :class:`Sampled`).
+    ValueError
+        When fewer than two draws of an output are finite.
+
+    References
+    ----------
+    .. [1] JCGM 101:2008, Evaluation of measurement data - Supplement 1 to the "Guide to the
+       expression of uncertainty in measurement" - Propagation of distributions using a
+       Monte Carlo method, 7.2 (number of trials), 7.6, 7.7 (summaries, coverage intervals).
+    """
+    rng = np.random.default_rng(seed)
+    nominal = {i.name: i.value for i in inputs.inputs}
+    chunks: dict[str, list[np.ndarray]] = {}
+    done = 0
+    with np.errstate(all="ignore"):
+        while done < draws:
+            size = min(CHUNK_DRAWS, draws - done)
+            drawn = draw_inputs(inputs, size, rng)
+            outputs = model({name: Sampled(nominal[name], values) for name, values in drawn.items()})
+            for name, out in outputs.items():
+                values = out.draws if isinstance(out, Sampled) else out
+                chunks.setdefault(name, []).append(np.broadcast_to(np.asarray(values, dtype=float), (size,)))
+            done += size
+    summaries, invalid = {}, {}
+    for name, parts in chunks.items():
+        y = np.concatenate(parts)
+        invalid[name] = int(y.size - np.count_nonzero(np.isfinite(y)))
+        summaries[name] = summarise(y, probability)
+    return MonteCarloReport(draws, seed, probability, summaries, invalid)

@@ -3,7 +3,16 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    import lmfit
+    import pandas as pd
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from .fitted import FittedBlock
+    from .montecarlo import MonteCarloReport
 
 
 def _json_number(x: float) -> float | None:
@@ -85,9 +94,15 @@ class AnalysisResult:
     correlation: dict[str, dict[str, float]] = field(default_factory=dict)
     plot_data: Any = field(default=None, compare=False, repr=False)
     adequate: bool = True
+    #: The fits' parameters as the measurement function took them (filled by ``wavefit.analyze``).
+    fitted: tuple[FittedBlock, ...] = ()
+    #: Where the result came from: tool version, setup, captures and their sha256 (``wavefit.analyze``).
+    provenance: dict[str, Any] | None = field(default=None, compare=False)
+    #: The Monte Carlo propagation (JCGM 101) when it was asked for.
+    monte_carlo: MonteCarloReport | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        return {
+        out = {
             "method": self.method,
             "source": self.source,
             "adequate": self.adequate,
@@ -97,10 +112,62 @@ class AnalysisResult:
             "warnings": list(self.warnings),
             "correlation": self.correlation,
         }
+        if self.monte_carlo is not None:
+            out["monte_carlo"] = self.monte_carlo.to_dict(self.quantities)
+        if self.provenance is not None:
+            out["provenance"] = _jsonable(self.provenance)
+        return out
 
     def value(self, name: str) -> float:
         """Shorthand for ``result.quantities[name].value``."""
         return self.quantities[name].value
+
+    def uvalues(self) -> dict[str, Any]:
+        """The quantities as correlated ``uncertainties`` numbers (see :mod:`wavefit.result_views`)."""
+        from .result_views import correlated_quantities
+
+        return correlated_quantities(self)
+
+    def covariance(self) -> pd.DataFrame:
+        """The quantities' covariance matrix as a DataFrame labelled by name."""
+        from .result_views import covariance_frame
+
+        return covariance_frame(self)
+
+    def to_frame(self) -> pd.DataFrame:
+        """One row per quantity: value, unit, u, U, k, dof."""
+        from .result_views import quantity_frame
+
+        return quantity_frame(self)
+
+    @property
+    def params(self) -> lmfit.Parameters:
+        """The fitted parameters as ``lmfit.Parameters`` with ``stderr`` and ``correl``."""
+        from .result_views import fit_parameters
+
+        return fit_parameters(self)
+
+    def fit_report(self) -> str:
+        """The fitted parameters, their correlations and the fit's details as text."""
+        from .result_views import fit_report
+
+        return fit_report(self)
+
+    def plot(self, ax: Axes | None = None) -> Figure:
+        """The result's picture as a matplotlib Figure (into ``ax`` when given)."""
+        from .result_views import figure
+
+        return figure(self, ax)
+
+    def __repr__(self) -> str:
+        from .result_views import short_repr
+
+        return short_repr(self)
+
+    def __str__(self) -> str:
+        from .report.text import render
+
+        return render(self)
 
 
 def _jsonable(obj: Any) -> Any:

@@ -15,13 +15,14 @@ coverage factor is the Student-t quantile for the coverage probability
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
 from scipy import stats
 from uncertainties import ufloat
 
+from .propagation_record import keep
 from .results import BudgetLine, QuantityResult
 
 #: Coverage probability of the expanded uncertainty; k = 2 at infinite dof (GUM G.6.4).
@@ -105,11 +106,18 @@ class InputSet:
 
 @dataclass(frozen=True)
 class Propagation:
-    """What propagation gives: per output its result and budget, and the output correlations."""
+    """What propagation gives: per output its result and budget, and the output correlations.
+
+    ``inputs`` and ``model`` are what was propagated, kept so that the same measurement
+    function can be evaluated again (Monte Carlo, :mod:`wavefit.montecarlo`) and the fitted
+    inputs read back (:mod:`wavefit.result_views`).
+    """
 
     quantities: dict[str, QuantityResult]
     budget: dict[str, list[BudgetLine]]
     correlation: dict[str, dict[str, float]]
+    inputs: InputSet | None = field(default=None, compare=False, repr=False)
+    model: Callable[[Mapping[str, Any]], Mapping[str, Any]] | None = field(default=None, compare=False, repr=False)
 
 
 def propagate(inputs: InputSet, model: Callable[[Mapping[str, Any]], Mapping[str, Any]],
@@ -148,7 +156,9 @@ def propagate(inputs: InputSet, model: Callable[[Mapping[str, Any]], Mapping[str
         for b, nb in enumerate(names):
             denom = u_y[a] * u_y[b]
             corr[na][nb] = float(cov_y[a, b] / denom) if denom > 0 else (1.0 if a == b else 0.0)
-    return Propagation(quantities, budget, corr)
+    propagation = Propagation(quantities, budget, corr, inputs, model)
+    keep(propagation)
+    return propagation
 
 
 def coverage_factor(dof: float, probability: float = COVERAGE_PROBABILITY) -> float:

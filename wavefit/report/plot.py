@@ -17,18 +17,25 @@ from .safe_text import visible
 
 def save_plot(result: AnalysisResult, path: str | os.PathLike) -> None:
     """Draw ``result.plot_data`` into ``path`` (format from the extension, e.g. PNG)."""
-    data = result.plot_data
-    if not isinstance(data, (TracePlot, LinePlot)):
+    if not isinstance(result.plot_data, (TracePlot, LinePlot)):
         raise WavefitError(f"method {result.method!r} has nothing to plot")
     with literal_text() as plt:
-        fig = _trace_figure(plt, data) if isinstance(data, TracePlot) else _line_figure(plt, data)
-        title = result.source if isinstance(result.source, str) else f"{len(result.source)} captures"
-        fig.suptitle(visible(f"{result.method}: {os.path.basename(str(title))}"))
-        fig.tight_layout(rect=(0, 0, 1, 0.96))
+        fig = draw(result, plt)
         try:
             save_figure(fig, path, dpi=110)
         except OSError as exc:
             raise WavefitError(f"cannot write plot {visible(path)}: {visible(exc.strerror or exc)}") from None
+
+
+def draw(result: AnalysisResult, plt):
+    """The result's figure, titled, made by ``plt.subplots`` (pyplot, or a maker of figures that
+    pyplot does not manage, as ``result.plot()`` uses)."""
+    data = result.plot_data
+    fig = _trace_figure(plt, data) if isinstance(data, TracePlot) else _line_figure(plt, data)
+    title = result.source if isinstance(result.source, str) else f"{len(result.source)} captures"
+    fig.suptitle(visible(f"{result.method}: {os.path.basename(str(title))}"))
+    fig.tight_layout(rect=(0, 0, 1, 0.96))
+    return fig
 
 
 def _trace_figure(plt, data: TracePlot):

@@ -5,6 +5,7 @@ import math
 
 from ..results import AnalysisResult
 from ..values import eng, eng_pm
+from .monte_carlo_text import monte_carlo_lines
 
 SAFETY_NOTE = ("Safety: pulse and ring tests store energy (L·I²/2, C·V²/2) and interrupting "
                "inductor current makes large voltage spikes; see README 'Safety'.")
@@ -22,6 +23,7 @@ def render(result: AnalysisResult, budget: bool = True) -> str:
                      f"{q.coverage_factor:4.2f}  {rel:8.2e}")
     lines.append("  (U is the expanded uncertainty, coverage probability about 95 %, k from "
                  "effective degrees of freedom)")
+    lines += monte_carlo_lines(result)
     if budget and result.budget:
         lines += ["", "Uncertainty budget (contribution = |c|·u, share of u_c²):"]
         for name, entries in result.budget.items():
