@@ -47,7 +47,7 @@ class QuantityResult:
 class BudgetLine:
     """One input's part in one output's uncertainty (GUM 8, Table-style budget).
 
-    ``contribution`` is |c_i|·u(x_i) in the output's unit; ``variance_share`` is
+    ``contribution`` is ``|c_i|·u(x_i)`` in the output's unit; ``variance_share`` is
     c_i·(V c)_i / u_c², the fraction of u_c² that the input carries, correlation
     terms included, so the shares of one output add up to 1.
     """
