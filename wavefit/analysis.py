@@ -12,6 +12,7 @@ from .capture_checks import refuse_shared_columns, without_glitches
 from .errors import CaptureError, SetupError
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
+from .measurement import bind
 from .methods import get_method
 from .numerics import collected, numerical_failures_refused
 from .results import AnalysisResult
@@ -37,6 +38,7 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     method.check_setup(parsed)
     interval = sample_interval if sample_interval is not None else parsed.sample_interval
     time_col = parsed.columns.get("time")
+    entries = None
     if method.uses_setup_captures:
         if source is None:
             if not parsed.captures:
@@ -44,6 +46,8 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
             sources: Sequence[Any] = [entry.file for entry in parsed.captures]
         else:
             sources = list(source) if isinstance(source, (list, tuple)) else [source]
+        if len(sources) == len(parsed.captures):  # the sources replace the entries' files, in order
+            entries = parsed.captures
         captures = [load_capture(s, interval, time_col) for s in sources]
     else:
         if source is None:
@@ -53,9 +57,9 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         captures, parsed = with_columns_from_files(captures, parsed, interval)
     refuse_shared_columns(captures, parsed.columns, parsed.source)
     captures = [without_glitches(capture) for capture in captures]
+    parsed = with_time_axis_uncertainty(parsed, captures)
     with collected() as numerical, numerical_failures_refused(captures):
-        result = method.analyze(captures, with_time_axis_uncertainty(parsed, captures))
-    method.check_physical(result)
+        result = method.analyze(bind(captures, parsed, entries), parsed)
     remark = numerical.remark()
     if remark is not None:
         result = replace(result, warnings=(*result.warnings, remark))

@@ -21,7 +21,7 @@ time constant tau toward its final level):
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 
@@ -31,12 +31,12 @@ from ..fit.exponential import WindowChannel, fit_exponential_window, window_mode
 from ..fit.noise_model import fit_ar
 from ..fit.quantisation import RECORD_WIDE, include_quantisation, noise_before_converter
 from ..fit.result import FitResult
-from ..io.capture import Capture
-from ..results import AnalysisResult, TracePlot
+from ..measurement import Measurement
+from ..outputs import Scalar
+from ..results import TracePlot
 from ..setup import Setup
 from ..signal.clipping import extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant
-from ..uncertainty import InputSet, propagate
 from . import register
 from ._model_check import ModelCheck, Variation, added
 from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, combine, late_start,
@@ -44,6 +44,7 @@ from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, Late
                           whole_record)
 from ._rl_wiring import check_wiring
 from .base import Method, PartSpec
+from .estimate import Estimate, FittedBlock
 
 #: Budget input that carries tau's movement with the fit window when the model check fires.
 MODEL_INPUT = "model"
@@ -68,7 +69,8 @@ class RLStep(Method):
         "winding_capacitance": PartSpec("F", False, "self-capacitance across the inductor"),
     }
     options = {"skip": "auto", "noise": "auto"}
-    quantities = ("L", "R", "tau", "R_loop", "I_final", "E")
+    outputs = {"L": Scalar("H"), "R": Scalar("ohm"), "tau": Scalar("s"), "R_loop": Scalar("ohm"),
+               "I_final": Scalar("A"), "E": Scalar("J")}
     positive = ("L", "tau", "R_loop")
     unphysical_hint = ("check [columns] (drive and sense swapped? an inverted probe?), the parts, and that "
                        "the capture holds steps of an RL loop, not a ring")
@@ -85,8 +87,8 @@ class RLStep(Method):
             raise SetupError(f"{setup.source}: option noise must be \"auto\" or \"white\", got {noise!r}")
         self.time_option(setup, "skip", keywords=("auto",))  # "auto", or a time >= 0 ("30 ns")
 
-    def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
-        capture = captures[0]
+    def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
+        capture = measurement.first.capture
         t = np.asarray(capture.time, dtype=float)
         sense = np.asarray(self.channel(capture, setup, "sense").values, dtype=float)
         drive = (np.asarray(self.channel(capture, setup, "drive").values, dtype=float)
@@ -180,25 +182,21 @@ class RLStep(Method):
             warnings.append(check.warning("single-exponential model", "a coil that is not one time constant: "
                                           "eddy currents in its core or in an armature?"))
 
-        inputs = InputSet()
-        inputs.add_correlated(combined.names, combined.values, combined.covariance,
-                              combined.units, combined.dof, group="fit", kind="A")
-        check.add_inputs(inputs)
-        self._type_b(inputs, setup, drive is not None)
         if drive is not None and "source_resistance" in setup.parts:
             notes.append("source_resistance is not used: the drive channel measures the generator")
         if drive is None:
             notes.append("R is the dut_resistance part as given (no drive channel to measure it)")
-        prop = propagate(inputs, _measurement_function(drive is not None, setup),
-                         {"L": "H", "R": "ohm", "tau": "s", "R_loop": "ohm", "I_final": "A", "E": "J"})
-
         fit_info = self._fit_info(windows, fits, combined, baseline, dt, notes)
         fit_info["model_check"] = check.summary()
-        return AnalysisResult(
-            method=self.name, source=capture.source, quantities=prop.quantities, budget=prop.budget,
-            fit=fit_info, warnings=tuple(dict.fromkeys(warnings)), correlation=prop.correlation,
-            plot_data=_plot(t, sense, drive, windows, fits), adequate=check.adequate,
-        )
+        block = FittedBlock(tuple(combined.names), combined.values, combined.covariance, tuple(combined.units),
+                            combined.dof)
+        return Estimate((block,), fit_info, check.budget_inputs(),
+                        {"has_drive": drive is not None, "parts": frozenset(measurement.parts)},
+                        tuple(warnings), _plot(t, sense, drive, windows, fits), check.adequate)
+
+    def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
+        """The measurement function (module docstring), with ``uncertainties`` numbers or floats."""
+        return measurement_function(x, settings["has_drive"], settings["parts"])
 
     # -- windows and fits -------------------------------------------------------------------
 
@@ -322,21 +320,6 @@ class RLStep(Method):
                        f"{combined.birge[0]:.2f}); the type A uncertainty is enlarged by that ratio")
         return out
 
-    # -- budget -----------------------------------------------------------------------------
-
-    @staticmethod
-    def _type_b(inputs: InputSet, setup: Setup, has_drive: bool) -> None:
-        for name in ("sense_resistor", "probe_resistance", "probe_capacitance", "winding_capacitance"):
-            if name in setup.parts:
-                inputs.add_part(name, setup.parts[name])
-        if not has_drive:
-            inputs.add_part("source_resistance", setup.parts["source_resistance"])
-            inputs.add_part("dut_resistance", setup.parts["dut_resistance"])
-        inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
-        inputs.add("vertical_gain_sense", 1.0, setup.gain_for("sense").standard_uncertainty, "", "B")
-        if has_drive:
-            inputs.add("vertical_gain_drive", 1.0, setup.gain_for("drive").standard_uncertainty, "", "B")
-
     @staticmethod
     def _fit_info(windows, fits, combined, baseline, dt, notes) -> dict[str, Any]:
         per_edge = []
@@ -370,41 +353,38 @@ class RLStep(Method):
         return info
 
 
-# -- combination across edges ---------------------------------------------------------------
+# -- measurement function -----------------------------------------------------------------
 
 
-def _measurement_function(has_drive: bool, setup: Setup):
-    """The measurement model y = f(x) evaluated with ``uncertainties`` numbers."""
-    has = setup.parts.__contains__
-
-    def model(x):
-        r_s = x["sense_resistor"]
-        if has("probe_resistance"):
-            r_s = r_s * x["probe_resistance"] / (r_s + x["probe_resistance"])
-        tau = (x["tau_fit"] + added(x, MODEL_INPUT)) / x["timebase"]
-        step = (x["sense_high"] - x["sense_low"]) / x["vertical_gain_sense"]
-        current = step / r_s if getattr(step, "nominal_value", step) > 0 else -step / r_s
-        # sense impedance at the loop pole s1 = −1/tau (probe capacitance across the resistor)
-        z_s = r_s / (1 - r_s * x["probe_capacitance"] / tau) if has("probe_capacitance") else r_s
-        if has_drive:
-            ratio = x["vertical_gain_sense"] / x["vertical_gain_drive"]
-            k_dc = (x["drive_high"] - x["drive_low"]) / (x["sense_high"] - x["sense_low"]) * ratio
-            r_dut = (k_dc - 1) * r_s
-            r_src = -x["q_drive_sense"] * ratio * z_s
-        else:
-            r_dut = x["dut_resistance"]
-            r_src = x["source_resistance"]
-        w = r_src + z_s
-        if has("winding_capacitance"):
-            s1 = -1 / tau
-            xz = -w / (1 + w * s1 * x["winding_capacitance"])
-            inductance = tau * (r_dut - xz)
-        else:
-            inductance = tau * (r_dut + w)
-        return {"L": inductance, "R": r_dut, "tau": tau, "R_loop": r_src + r_dut + r_s,
-                "I_final": current, "E": inductance * current ** 2 / 2}
-
-    return model
+def measurement_function(x: Mapping[str, Any], has_drive: bool, parts: frozenset[str]) -> dict[str, Any]:
+    """The measurement model y = f(x) of rl-step (module docstring); ``parts`` are the names of
+    the parts the setup gives."""
+    has = parts.__contains__
+    r_s = x["sense_resistor"]
+    if has("probe_resistance"):
+        r_s = r_s * x["probe_resistance"] / (r_s + x["probe_resistance"])
+    tau = (x["tau_fit"] + added(x, MODEL_INPUT)) / x["timebase"]
+    step = (x["sense_high"] - x["sense_low"]) / x["vertical_gain_sense"]
+    current = step / r_s if getattr(step, "nominal_value", step) > 0 else -step / r_s
+    # sense impedance at the loop pole s1 = −1/tau (probe capacitance across the resistor)
+    z_s = r_s / (1 - r_s * x["probe_capacitance"] / tau) if has("probe_capacitance") else r_s
+    if has_drive:
+        ratio = x["vertical_gain_sense"] / x["vertical_gain_drive"]
+        k_dc = (x["drive_high"] - x["drive_low"]) / (x["sense_high"] - x["sense_low"]) * ratio
+        r_dut = (k_dc - 1) * r_s
+        r_src = -x["q_drive_sense"] * ratio * z_s
+    else:
+        r_dut = x["dut_resistance"]
+        r_src = x["source_resistance"]
+    w = r_src + z_s
+    if has("winding_capacitance"):
+        s1 = -1 / tau
+        xz = -w / (1 + w * s1 * x["winding_capacitance"])
+        inductance = tau * (r_dut - xz)
+    else:
+        inductance = tau * (r_dut + w)
+    return {"L": inductance, "R": r_dut, "tau": tau, "R_loop": r_src + r_dut + r_s,
+            "I_final": current, "E": inductance * current ** 2 / 2}
 
 
 def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
