@@ -79,7 +79,7 @@ def propagate_curves(inputs: InputSet, outputs: Mapping[str, Any], declared: Map
                                          np.abs(sens) * item.standard_uncertainty, share, item.kind,
                                          float(item.dof)))
         curves[name] = CurveResult(name, decl.unit, decl.axis.name, decl.axis.unit, axis, values, u, k * u, k,
-                                   dof, cov_y, tuple(lines))
+                                   dof, cov_y, tuple(lines), decl.axis.log)
     return curves
 
 

@@ -13,10 +13,12 @@ from typing import Mapping, Union
 
 @dataclass(frozen=True)
 class Axis:
-    """The independent variable of a curve: its name and SI unit (``Axis("I", "A")``)."""
+    """The independent variable of a curve: its name, SI unit and how plots space it
+    (``Axis("I", "A")``, ``Axis("f", "Hz", log=True)``)."""
 
     name: str
     unit: str
+    log: bool = False
 
 
 @dataclass(frozen=True)

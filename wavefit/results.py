@@ -146,7 +146,8 @@ class CurveResult:
     ``axis_values`` are the points of the axis ``axis_name`` (unit ``axis_unit``) as the
     method set them (conditions of the measurement, taken as exact); ``values``,
     ``standard_uncertainty``, ``expanded_uncertainty``, ``coverage_factor`` and
-    ``degrees_of_freedom`` have one entry per point. ``covariance`` is the full n × n
+    ``degrees_of_freedom`` have one entry per point; ``axis_log`` says that plots space the
+    axis logarithmically. ``covariance`` is the full n × n
     covariance of the values (JCGM 102:2011, 7.6: a vector measurand keeps its covariance
     matrix), so a quantity derived from several points keeps their correlation.
     """
@@ -163,6 +164,7 @@ class CurveResult:
     degrees_of_freedom: Any
     covariance: Any
     budget: tuple[CurveBudgetLine, ...] = ()
+    axis_log: bool = False
 
     def __len__(self) -> int:
         return len(self.values)
@@ -170,7 +172,8 @@ class CurveResult:
     def to_dict(self) -> dict[str, Any]:
         return {
             "unit": self.unit,
-            "axis": {"name": self.axis_name, "unit": self.axis_unit, "values": _jsonable(self.axis_values)},
+            "axis": {"name": self.axis_name, "unit": self.axis_unit, "log": self.axis_log,
+                     "values": _jsonable(self.axis_values)},
             "values": _jsonable(self.values),
             "standard_uncertainty": _jsonable(self.standard_uncertainty),
             "expanded_uncertainty": _jsonable(self.expanded_uncertainty),
