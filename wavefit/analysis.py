@@ -26,8 +26,10 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     """Analyse one capture (path, DataFrame or Capture) with a setup (TOML path or dict).
 
     For methods that take several captures from the setup (``lc-sweep``),
-    ``source`` may be ``None``, or a sequence of sources that replaces the
-    setup's files in order. Returns a frozen
+    ``source`` may be ``None`` (the entries' files), a folder that holds a file of
+    each entry's name (one part's captures, as ``batch`` gives them), or a sequence
+    of sources that replaces the setup's files in order; each capture is bound to
+    its entry's parts (:mod:`wavefit.measurement`). Returns a frozen
     :class:`~wavefit.results.AnalysisResult`; its ``to_dict()`` is what
     ``wavefit analyze --json`` prints.
     """
@@ -44,6 +46,8 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
             if not parsed.captures:
                 raise SetupError(f"{parsed.source}: method {parsed.method!r} needs [[captures]] entries")
             sources: Sequence[Any] = [entry.file for entry in parsed.captures]
+        elif isinstance(source, (str, os.PathLike)) and os.path.isdir(source):
+            sources = [os.path.join(source, entry.file.name) for entry in parsed.captures]
         else:
             sources = list(source) if isinstance(source, (list, tuple)) else [source]
         if len(sources) == len(parsed.captures):  # the sources replace the entries' files, in order
