@@ -31,12 +31,10 @@ from ..uncertainty import InputSet, Propagation
 from . import register
 from ._model_check import ModelCheck
 from ._ring import check_time_options, coil_loss_option, loss_correction, measure_ring
+from ._scale_factor import LINE_SCATTER_P, birge_ratio, scale_factor
 from .base import Method
 from .estimate import Estimate, FittedBlock
 from .lc_ring import LcRing
-
-#: Points off the line: warn when the chi-square probability falls below this.
-LINE_P_VALUE = 0.01
 
 
 @register
@@ -100,8 +98,8 @@ class LcSweep(Method):
         if line.dof == 0:
             warnings.append("two captures: a line always passes through two points, so nothing checks "
                             "that the model holds; add a third capacitor")
-        elif line.p_value < LINE_P_VALUE:
-            birge = math.sqrt(line.chi2 / line.dof)
+        elif scale_factor(*birge_ratio(line.chi2, line.dof), LINE_SCATTER_P) > 1.0:
+            birge = birge_ratio(line.chi2, line.dof)[0]
             cov = cov * birge ** 2
             dof = float(line.dof)
             warnings.append(f"the points do not lie on a line (chi-square {line.chi2:.3g} for {line.dof} "

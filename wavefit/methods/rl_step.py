@@ -39,9 +39,10 @@ from ..signal.clipping import extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant
 from . import register
 from ._model_check import ModelCheck, Variation, added
-from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, combine, late_start,
-                          placement_factor, placement_jitter, pooled_windows, settle_starts, start_margin,
-                          whole_record)
+from ._rl_estimators import estimate_tau
+from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, late_start,
+                          placement_factor, placement_jitter, settle_starts, start_margin)
+from ._scale_factor import EDGE_SCATTER_P, scale_factor
 from ._rl_wiring import check_wiring
 from .base import Method, PartSpec
 from .estimate import Estimate, FittedBlock
@@ -134,23 +135,11 @@ class RLStep(Method):
             raise AnalysisRefused(f"{capture.source}: the record starts at the edge, so there is no settled "
                                   "pre-edge level to pin the offset; record some time before the step")
 
-        combined = combine(windows, fits, baseline, drive is not None)
-        estimator = "per-edge windows"
-        if drive is None and not white and len(windows) > 1:
-            pooled = pooled_windows(t, sense, windows, baseline, combined, noise)
-            if pooled is not None:
-                combined, estimator = pooled, "windows fitted jointly with one noise model"
-        if (drive is None and white and self.option(setup, "skip") == "auto"
-                and "winding_capacitance" not in setup.parts):
-            # in correlated noise the whole-record fit's switching instants lock onto noise
-            # features (measured: coverage well below nominal), so it is used on white noise only
-            combined, accepted = whole_record(t, sense, edges, windows, fits, baseline, combined, noise,
-                                               self._fit_window)
-            if accepted:
-                estimator = "whole-record relaxation fit"
-            else:
-                notes.append("the whole-record fit disagreed with windows that skip the edges (edges not "
-                             "instantaneous?); windows with a margin after each edge are used")
+        choice = estimate_tau(t, sense, drive is not None, white, self.option(setup, "skip") == "auto",
+                              "winding_capacitance" in setup.parts, edges, windows, fits, baseline, noise,
+                              self._fit_window)
+        combined, estimator = choice.combined, choice.estimator
+        notes += choice.notes
         notes.append(f"tau and levels from the {estimator}")
         if _on_codes(fits):
             notes.append("each fit carried to the maximum of the likelihood of the converter's codes "
@@ -187,6 +176,7 @@ class RLStep(Method):
         if drive is None:
             notes.append("R is the dut_resistance part as given (no drive channel to measure it)")
         fit_info = self._fit_info(windows, fits, combined, baseline, dt, notes)
+        fit_info["estimator"] = estimator
         fit_info["model_check"] = check.summary()
         block = FittedBlock(tuple(combined.names), combined.values, combined.covariance, tuple(combined.units),
                             combined.dof)
@@ -315,7 +305,7 @@ class RLStep(Method):
             if abs(z) > 3.0:
                 out.append(f"rising and falling edges disagree on tau by {abs(z):.1f} standard uncertainties: "
                            "core nonlinearity, a diode or a level-dependent part in the loop")
-        if combined.birge is not None and combined.birge[1] < 1e-3:
+        if combined.birge is not None and scale_factor(*combined.birge, EDGE_SCATTER_P) > 1.0:
             out.append(f"the per-edge estimates scatter more than their uncertainties (Birge ratio "
                        f"{combined.birge[0]:.2f}); the type A uncertainty is enlarged by that ratio")
         return out
