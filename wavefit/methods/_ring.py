@@ -32,6 +32,22 @@ DRIFT_Z = MODEL_Z
 #: of the ring, added when the model check fires (see ring_model_check).
 MODEL_FREQUENCY, MODEL_DECAY = "model", "model_decay"
 
+#: Fewest samples a ring fit is tried on: a damped sinusoid has five parameters and the noise
+#: model needs samples beyond them (common practice).
+MIN_SAMPLES = 32
+#: Ring amplitude below this many noise rms is refused: the fit's start values and its linear
+#: covariance are not trusted there (common practice for sinusoid fits).
+MIN_AMPLITUDE_TO_NOISE = 5.0
+#: Cycles above the noise (amplitude over 2 noise rms): fewer than MIN_CYCLES is refused (no
+#: period is resolved), fewer than FEW_CYCLES is warned (frequency and damping then correlate
+#: strongly and the linear interval is poor).
+MIN_CYCLES, FEW_CYCLES = 1.0, 3.0
+#: Samples per period: fewer than FEW_SAMPLES_PER_PERIOD is warned (the fit's Jacobian is coarse),
+#: fewer than ALIAS_SAMPLES_PER_PERIOD (half the Nyquist frequency) may be an alias.
+FEW_SAMPLES_PER_PERIOD, ALIAS_SAMPLES_PER_PERIOD = 10.0, 4.0
+#: Consecutive samples at the record's extremes that, with a model beyond them, mean clipping.
+CLIPPED_RUN = 5
+
 
 @dataclass(frozen=True)
 class RingMeasurement:
@@ -67,8 +83,9 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
     if not np.all(np.isfinite(y)):
         raise AnalysisRefused(f"{capture.source}: the tank channel holds non-numeric or missing samples; "
                               "remove them or export the capture again")
-    if y.size < 32:
-        raise AnalysisRefused(f"{capture.source}: {y.size} samples is too few for a ring fit; record at least 32")
+    if y.size < MIN_SAMPLES:
+        raise AnalysisRefused(f"{capture.source}: {y.size} samples is too few for a ring fit; record at least "
+                              f"{MIN_SAMPLES}")
     noise = str(method.option(setup, "noise"))
     if noise not in ("auto", "white"):
         raise SetupError(f"{setup.source}: option noise = {noise!r}; valid: auto, white")
@@ -103,26 +120,28 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     sigma = ring.fit.noise_sigma["tank"]
     amp = ring.amplitude
     spp = 2 * math.pi / (ring.w_d * dt)
-    if not amp > 5.0 * sigma:
+    if not amp > MIN_AMPLITUDE_TO_NOISE * sigma:
         raise AnalysisRefused(f"{source}: the ring's amplitude is {amp / sigma:.1f} times the noise rms; "
-                              "no trustworthy fit below 5 (raise the excitation or average captures)")
+                              f"no trustworthy fit below {MIN_AMPLITUDE_TO_NOISE:g} (raise the excitation or "
+                              "average captures)")
     n_visible = math.log(amp / (2.0 * sigma)) / (ring.alpha * dt) if ring.alpha > 0 else math.inf
     visible = min(n_visible, ring.stop - ring.start) / spp
-    if visible < 1.0:
+    if visible < MIN_CYCLES:
         raise AnalysisRefused(f"{source}: only {visible:.1f} cycles stand above the noise; a ring fit needs "
-                              "at least 3 (use a smaller feed-resistor load or less damping)")
-    if visible < 3.0:
-        warnings.append(f"too few cycles: {visible:.1f} stand above the noise (3 or more are needed for a "
-                        "reliable frequency and damping)")
-    if spp < 10.0:
-        warnings.append(f"{spp:.1f} samples per period, fewer than 10: sample faster")
-    if spp < 4.0:
+                              f"at least {FEW_CYCLES:g} (use a smaller feed-resistor load or less damping)")
+    if visible < FEW_CYCLES:
+        warnings.append(f"too few cycles: {visible:.1f} stand above the noise ({FEW_CYCLES:g} or more are needed "
+                        "for a reliable frequency and damping)")
+    if spp < FEW_SAMPLES_PER_PERIOD:
+        warnings.append(f"{spp:.1f} samples per period, fewer than {FEW_SAMPLES_PER_PERIOD:g}: "
+                        "sample faster")
+    if spp < ALIAS_SAMPLES_PER_PERIOD:
         warnings.append(f"suspected aliasing: the ring is at {100 * 2 / spp:.0f} % of the Nyquist frequency; "
                         "an undersampled ring looks like a slower one, so f0 may be an alias")
     seg_t, seg_y = t[ring.start:ring.stop], y[ring.start:ring.stop]
     fitted = ring.evaluate(seg_t)
     runs = longest_run_at_extremes(seg_y)
-    if (max(runs) >= 5 and model_exceeds_record(seg_y, fitted, sigma)) or piles_up_at_limit(seg_y, sigma):
+    if (max(runs) >= CLIPPED_RUN and model_exceeds_record(seg_y, fitted, sigma)) or piles_up_at_limit(seg_y, sigma):
         warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
                         "whole ring fits on screen")
     halves = _halves(ring, y, noise)

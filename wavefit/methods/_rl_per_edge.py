@@ -51,7 +51,8 @@ def combine(windows, fits, baseline, has_drive) -> Combined:
     obs = []
     for w, f in zip(windows, fits):
         state = "high" if w.edge.direction > 0 else "low"
-        vals, cov = f.subset(("tau", "final_sense", "coef_sense") + (("final_drive", "coef_drive") if has_drive else ()))
+        vals, cov = f.subset(("tau", "final_sense", "coef_sense")
+                             + (("final_drive", "coef_drive") if has_drive else ()))
         if has_drive:
             tau, sf, cs, df, cd = vals
             g = np.array([[1, 0, 0, 0, 0], [0, 0, -cd / cs ** 2, 0, 1 / cs], [0, 1, 0, 0, 0], [0, 0, 0, 1, 0]])

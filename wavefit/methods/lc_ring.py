@@ -43,6 +43,10 @@ from .estimate import Estimate, FittedBlock
 
 #: The budget input for option coil_loss = "unknown": the share of Δ_max, rectangular over the
 #: whole range [0, 1] (JCGM 100:2008, 4.3.7), u = 0.5/√3.
+#: Share of the measured damping above which the known parallel load is taken to explain it all:
+#: the coil's own damping, the small difference of two nearly equal rates, then carries the
+#: load's tolerance magnified twenty-fold or more, so its Q is refused, not reported.
+LOAD_SHARE_REFUSED = 0.95
 LOSS_SPLIT = InputQuantity("coil loss split", 0.5, 0.5 / math.sqrt(3.0), "", "B", distribution="rectangular")
 
 
@@ -141,7 +145,7 @@ def check_load_share(ring: DampedSineFit, parts: Mapping[str, PartValue]) -> Non
     cap = parts["tank_capacitor"].value + (parts["stray_capacitance"].value if "stray_capacitance" in parts else 0.0)
     load_alpha = 1.0 / (2.0 * parts["parallel_load"].value * cap)
     share = load_alpha / ring.alpha
-    if share >= 0.95:
+    if share >= LOAD_SHARE_REFUSED:
         raise AnalysisRefused(
             f"the parallel_load ({parts['parallel_load'].text}) explains {100 * share:.0f} % of the measured "
             "damping, so the coil's own Q cannot be separated; check the load value or use a larger feed resistor")

@@ -52,6 +52,23 @@ MODEL_INPUT = "model"
 #: Source resistance assumed only to size the skip after a winding-capacitance spike
 #: when the setup does not give it (the usual generator output resistance; common practice).
 TYPICAL_SOURCE_RESISTANCE = 50.0
+#: Fewer samples per tau than this is warned: the exponential's curvature is then resolved by
+#: few samples and the edge's placement matters (common practice: 10 samples per time constant).
+MIN_SAMPLES_PER_TAU = 10.0
+#: A window shorter than this many tau after its edge leaves the final level extrapolated
+#: (e^−5 < 1 %: the record then holds the settled state; common practice).
+SETTLED_TAU = 5.0
+#: The generator's edge time above this fraction of tau makes the step visibly not ideal.
+EDGE_TIME_FRACTION = 0.1
+#: The probe capacitance's pole (R_sense·C_probe) above this fraction of tau makes the
+#: first-order correction of the measurement function doubtful (its neglected term is the square).
+PROBE_POLE_FRACTION = 0.05
+#: Rising against falling tau beyond this many standard uncertainties is warned (about 0.3 %
+#: false alarms for a normal difference: a level-dependent part, not noise).
+RISE_FALL_Z = 3.0
+#: Edges placed from the sense trace worse than this many samples are warned (the window start
+#: margin then costs a visible share of tau's precision; see start_margin).
+JITTER_WARN_SAMPLES = 2.0
 
 
 @register
@@ -158,7 +175,7 @@ class RLStep(Method):
                 notes.append(f"edges placed from the sense trace to about {jitter:.1f} samples in correlated "
                              f"noise: tau's variance enlarged {factor:.2f}-fold, to that of windows starting "
                              "that much later")
-            if jitter > 2.0:
+            if jitter > JITTER_WARN_SAMPLES:
                 margin = start_margin(jitter * dt, dt) / dt
                 warnings.append(f"correlated noise and a low signal-to-noise ratio: the edges are located only "
                                 f"to about {jitter:.1f} samples from the sense trace, so each window starts "
@@ -273,18 +290,18 @@ class RLStep(Method):
     @staticmethod
     def _diagnostics(t, sense, drive, windows, fits, tau, dt, edge_time, setup, combined, facts) -> list[str]:
         out = []
-        if tau < 10 * dt:
-            out.append(f"only {tau / dt:.1f} samples per tau (fewer than 10): sample faster or use a "
-                       "larger inductance / smaller loop resistance")
-        short = [w for w in windows if t[w.stop - 1] - w.t0 < 5 * tau]
+        if tau < MIN_SAMPLES_PER_TAU * dt:
+            out.append(f"only {tau / dt:.1f} samples per tau (fewer than {MIN_SAMPLES_PER_TAU:g}): sample faster or "
+                       "use a larger inductance / smaller loop resistance")
+        short = [w for w in windows if t[w.stop - 1] - w.t0 < SETTLED_TAU * tau]
         if short:
-            out.append(f"{len(short)} of {len(windows)} edges are followed by less than 5 tau of record; the "
-                       "final level is extrapolated (lengthen the period or the record)")
-        if edge_time > 0.1 * tau:
+            out.append(f"{len(short)} of {len(windows)} edges are followed by less than {SETTLED_TAU:g} tau of "
+                       "record; the final level is extrapolated (lengthen the period or the record)")
+        if edge_time > EDGE_TIME_FRACTION * tau:
             out.append(f"tau ({tau:.3g} s) is comparable to the generator's edge time ({edge_time:.3g} s); "
                        "use a faster generator or a larger inductance")
         cp = setup.parts.get("probe_capacitance")
-        if cp is not None and setup.parts["sense_resistor"].value * cp.value > 0.05 * tau:
+        if cp is not None and setup.parts["sense_resistor"].value * cp.value > PROBE_POLE_FRACTION * tau:
             out.append("the probe capacitance with the sense resistor makes a pole comparable to tau; "
                        "the first-order correction used may not suffice")
         for w, fit in zip(windows, fits):
@@ -302,7 +319,7 @@ class RLStep(Method):
                                "curve goes beyond it): reduce the vertical sensitivity")
         if combined.rise_fall is not None:
             z = combined.rise_fall
-            if abs(z) > 3.0:
+            if abs(z) > RISE_FALL_Z:
                 out.append(f"rising and falling edges disagree on tau by {abs(z):.1f} standard uncertainties: "
                            "core nonlinearity, a diode or a level-dependent part in the loop")
         if combined.birge is not None and scale_factor(*combined.birge, EDGE_SCATTER_P) > 1.0:

@@ -1,9 +1,10 @@
 """One analysis as a CSV table: one row per scalar output and one per point of each curve.
 
 The columns are the same for every method, so a spreadsheet or ``pandas.read_csv`` reads any
-result: ``source`` (the capture, or the captures joined by "; "), ``output``, ``axis`` and ``axis_unit`` (empty for a scalar), ``axis_value``,
-``value``, ``unit``, ``standard_uncertainty``, ``expanded_uncertainty``,
-``coverage_factor``, ``degrees_of_freedom`` (empty when infinite). Numbers are written
+result: ``source`` (the capture, or the captures joined by "; "), ``output``, ``axis`` and
+``axis_unit`` (empty for a scalar), ``axis_value``, ``value``, ``unit``,
+``standard_uncertainty``, ``expanded_uncertainty``, ``coverage_factor``,
+``degrees_of_freedom`` (empty when infinite). Numbers are written
 with ``repr`` (they read back to the same float); text cells are made safe for
 spreadsheets (:func:`~wavefit.report.safe_text.spreadsheet_cell`).
 
