@@ -114,3 +114,26 @@ def test_curve_renders_in_text_json_csv_and_plot(tmp_path, capsys):
     assert list(table["output"]) == ["Z"] * 3
     assert list(table["axis_value"]) == FREQUENCIES
     np.testing.assert_allclose(table["value"], payload["values"], rtol=1e-15)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_batch_takes_the_scalar_outputs_and_refuses_a_curve_only_method(tmp_path, capsys):
+    capture = tmp_path / "lot" / "rc1.csv"
+    capture.parent.mkdir()
+    rc_step().to_csv(capture, index=False)
+    spec = tmp_path / "spec.toml"
+    spec.write_text('[limits]\nR = "1 kohm ±5%"\n')
+    for method, code in (("example-rc-step", 0), ("example-rc-impedance", 3)):
+        setup_file = tmp_path / f"{method}.toml"
+        setup_file.write_text(f'method = "{method}"\n[columns]\ntime = "t"\ncapacitor = "cap"\n'
+                              '[parts]\ncapacitor = "10 nF ±1%"\n')
+        out = tmp_path / f"{method}.csv"
+        assert main(["batch", "--setup", str(setup_file), "--spec", str(spec), "--out", str(out),
+                     "--workers", "1", str(capture.parent)]) == code
+        captured = capsys.readouterr()
+        if code:
+            assert "only curves" in captured.err and len(captured.err.strip().splitlines()) == 1
+        else:
+            row = pd.read_csv(out).iloc[0]
+            assert {"R", "R_U", "tau", "tau_U"} <= set(row.index) and row["verdict"] == "pass"

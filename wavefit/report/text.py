@@ -57,6 +57,8 @@ def _fit_summary(fit: dict) -> list[str]:
 def _model_check_lines(result: AnalysisResult) -> list[str]:
     """The model check's verdict, read from ``result.adequate`` and ``fit["model_check"]``;
     an inadequate model is said in capitals before the numbers."""
+    if "model_check" not in result.fit and result.adequate:
+        return []  # a method without a model check says nothing about it
     check = result.fit.get("model_check", {})
     if result.adequate:
         if "skipped" in check:
