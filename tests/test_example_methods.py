@@ -137,3 +137,24 @@ def test_batch_takes_the_scalar_outputs_and_refuses_a_curve_only_method(tmp_path
         else:
             row = pd.read_csv(out).iloc[0]
             assert {"R", "R_U", "tau", "tau_U"} <= set(row.index) and row["verdict"] == "pass"
+
+
+def test_a_curve_point_at_or_below_zero_is_refused_for_a_positive_output():
+    """Plausibility covers every point of a curve, as it covers a scalar (refused, exit 4)."""
+    from wavefit.errors import AnalysisRefused
+    from wavefit.results import AnalysisResult, CurveResult
+
+    class PositiveImpedance(example_rc_step.ExampleRcImpedance):
+        positive = ("Z",)
+
+    def result(values):
+        n = len(values)
+        curve = CurveResult("Z", "ohm", "f", "Hz", np.arange(1.0, n + 1), np.asarray(values), np.ones(n),
+                            2 * np.ones(n), 2 * np.ones(n), np.full(n, np.inf), np.eye(n))
+        return AnalysisResult("example-rc-impedance", "capture.csv", {}, {}, {}, curves={"Z": curve})
+
+    PositiveImpedance().check_physical(result([3.0, 2.0, 1.0]))
+    with pytest.raises(AnalysisRefused, match="Z came out as -1"):
+        PositiveImpedance().check_physical(result([3.0, 2.0, -1.0]))
+    with pytest.raises(AnalysisRefused, match="not a finite number"):
+        example_rc_step.ExampleRcImpedance().check_physical(result([3.0, np.nan, 1.0]))

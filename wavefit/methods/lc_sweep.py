@@ -34,7 +34,7 @@ from ._ring import check_time_options, coil_loss_option, loss_correction, measur
 from ._scale_factor import LINE_SCATTER_P, birge_ratio, scale_factor
 from .base import Method
 from .estimate import Estimate, FittedBlock
-from .lc_ring import LcRing
+from .lc_ring import LOSS_SPLIT, LcRing
 
 
 @register
@@ -155,7 +155,7 @@ def _corrected_point(ring: Any, parts: dict, coil_loss: str, extra: float,
     g = 1.0 / (parts["parallel_load"].value * cap) if "parallel_load" in parts else 0.0
     if float(alpha.nominal_value) <= g / 2.0:
         g = 0.0  # the load seems to explain all damping: leave the second-order correction out
-    split = ufloat(0.5, 0.5 / math.sqrt(3.0)) if coil_loss == "unknown" else None
+    split = ufloat(LOSS_SPLIT.value, LOSS_SPLIT.standard_uncertainty) if coil_loss == "unknown" else None
     w2 = w_d ** 2 + alpha ** 2 - loss_correction(alpha - g / 2.0, g, coil_loss, split)
     y = 1.0 / w2
     return float(y.nominal_value), float(y.std_dev)
