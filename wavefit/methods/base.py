@@ -58,7 +58,9 @@ class Method:
     positive: ClassVar[tuple[str, ...]] = ()
     #: What to check when a result is refused as not physical (named in the message).
     unphysical_hint: ClassVar[str] = ""
-    #: True when the method takes its captures from ``[[captures]]`` in the setup.
+    #: True when one measurement is several captures, each named with its own parts in a
+    #: ``[[captures]]`` entry of the setup; each capture is bound to its entry
+    #: (:func:`wavefit.measurement.bind`), never matched by position.
     uses_setup_captures: ClassVar[bool] = False
 
     @property
