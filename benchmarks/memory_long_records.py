@@ -156,9 +156,7 @@ def child(path: Path, setup_json: str, names: list[str]) -> None:
     wall, cpu = time.perf_counter(), time.process_time()
     try:
         result = wavefit.analyze(frame, json.loads(setup_json))
-        notes = result.fit.get("notes", [])
-        outcome = next((n[len("tau and levels from the "):] for n in notes if n.startswith("tau and levels")),
-                       "ring fitted" if result.method == "lc-ring" else "done")
+        outcome = result.fit.get("estimator", "ring fitted" if result.method == "lc-ring" else "done")
     except MemoryError as exc:
         outcome = f"MemoryError: {str(exc)[:70]}"
     except wavefit.WavefitError as exc:

@@ -32,6 +32,8 @@ def build_parser() -> argparse.ArgumentParser:
     p_an.add_argument("captures", nargs="*", metavar="CAPTURE", help="capture files (CSV, optionally .gz)")
     p_an.add_argument("--setup", required=True, help="setup file (TOML): method, columns, parts")
     p_an.add_argument("--json", action="store_true", help="print only the result as JSON")
+    p_an.add_argument("--csv", action="store_true",
+                      help="print only a CSV table: one row per quantity and per point of each curve")
     p_an.add_argument("--plot", metavar="FILE.png", help="draw capture, fitted model and residuals")
     p_an.add_argument("--sample-interval", type=float, metavar="SECONDS",
                       help="sample interval when the capture has no time column")
@@ -113,13 +115,17 @@ def _analyze(args: argparse.Namespace) -> int:
             from .report.plot import save_plot
 
             save_plot(result, _plot_path(args.plot, k, len(jobs)))
-        if not args.json:
+        if not (args.json or args.csv):
             from .report.text import render
 
             print(_shown(render(result, budget=not args.no_budget)))
             print()
             sys.stdout.flush()
-    if args.json and results:
+    if args.csv and results:
+        from .report.csv_table import render_csv
+
+        print(_shown(render_csv(results)), end="")
+    elif args.json and results:
         payload = results[0].to_dict() if len(jobs) == 1 else [r.to_dict() for r in results]
         print(json.dumps(payload, indent=2, allow_nan=False))
     return worst

@@ -178,7 +178,7 @@ def figure(result: AnalysisResult, ax: Axes | None = None) -> Figure:
     from .results import LinePlot, TracePlot
 
     data = result.plot_data
-    if not isinstance(data, (TracePlot, LinePlot)):
+    if not isinstance(data, (TracePlot, LinePlot)) and (ax is not None or not result.curves):
         raise WavefitError(f"method {result.method!r} has nothing to plot")
     with rc_context({"text.parse_math": False, "text.usetex": False}):
         if ax is None:
@@ -191,11 +191,10 @@ class _FigureMaker:
     """What :func:`wavefit.report.plot.draw` needs of pyplot, on a figure pyplot does not manage."""
 
     @staticmethod
-    def subplots(*args: Any, figsize: Any = None, **kwargs: Any) -> tuple[Any, Any]:
+    def figure(figsize: Any = None) -> Any:
         from matplotlib.figure import Figure
 
-        fig = Figure(figsize=figsize)
-        return fig, fig.subplots(*args, **kwargs)
+        return Figure(figsize=figsize)
 
 
 def _draw_on_axes(ax: Axes, data: Any) -> None:

@@ -94,6 +94,7 @@ class AnalysisResult:
     correlation: dict[str, dict[str, float]] = field(default_factory=dict)
     plot_data: Any = field(default=None, compare=False, repr=False)
     adequate: bool = True
+    curves: dict[str, "CurveResult"] = field(default_factory=dict)
     #: The fits' parameters as the measurement function took them (filled by ``wavefit.analyze``).
     fitted: tuple[FittedBlock, ...] = ()
     #: Where the result came from: tool version, setup, captures and their sha256 (``wavefit.analyze``).
@@ -112,6 +113,8 @@ class AnalysisResult:
             "warnings": list(self.warnings),
             "correlation": self.correlation,
         }
+        if self.curves:  # methods with scalar outputs only keep the JSON they always had
+            out["curves"] = {k: c.to_dict() for k, c in self.curves.items()}
         if self.monte_carlo is not None:
             out["monte_carlo"] = self.monte_carlo.to_dict(self.quantities)
         if self.provenance is not None:
@@ -168,6 +171,83 @@ class AnalysisResult:
         from .report.text import render
 
         return render(self)
+
+
+@dataclass(frozen=True)
+class CurveBudgetLine:
+    """One input's part in a curve's uncertainty, point by point (arrays over the axis).
+
+    As :class:`BudgetLine`, with ``sensitivity``, ``contribution`` and ``variance_share``
+    one value per point of the curve.
+    """
+
+    source: str
+    value: float
+    unit: str
+    standard_uncertainty: float
+    sensitivity: Any
+    contribution: Any
+    variance_share: Any
+    kind: str
+    degrees_of_freedom: float
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "source": self.source,
+            "value": _json_number(self.value),
+            "unit": self.unit,
+            "standard_uncertainty": _json_number(self.standard_uncertainty),
+            "sensitivity": _jsonable(self.sensitivity),
+            "contribution": _jsonable(self.contribution),
+            "variance_share": _jsonable(self.variance_share),
+            "type": self.kind,
+            "degrees_of_freedom": _json_number(self.degrees_of_freedom),
+        }
+
+
+@dataclass(frozen=True)
+class CurveResult:
+    """A measured curve: one value per point of its axis, with uncertainties and budget as arrays.
+
+    ``axis_values`` are the points of the axis ``axis_name`` (unit ``axis_unit``) as the
+    method set them (conditions of the measurement, taken as exact); ``values``,
+    ``standard_uncertainty``, ``expanded_uncertainty``, ``coverage_factor`` and
+    ``degrees_of_freedom`` have one entry per point; ``axis_log`` says that plots space the
+    axis logarithmically. ``covariance`` is the full n × n
+    covariance of the values (JCGM 102:2011, 7.6: a vector measurand keeps its covariance
+    matrix), so a quantity derived from several points keeps their correlation.
+    """
+
+    name: str
+    unit: str
+    axis_name: str
+    axis_unit: str
+    axis_values: Any
+    values: Any
+    standard_uncertainty: Any
+    expanded_uncertainty: Any
+    coverage_factor: Any
+    degrees_of_freedom: Any
+    covariance: Any
+    budget: tuple[CurveBudgetLine, ...] = ()
+    axis_log: bool = False
+
+    def __len__(self) -> int:
+        return len(self.values)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "unit": self.unit,
+            "axis": {"name": self.axis_name, "unit": self.axis_unit, "log": self.axis_log,
+                     "values": _jsonable(self.axis_values)},
+            "values": _jsonable(self.values),
+            "standard_uncertainty": _jsonable(self.standard_uncertainty),
+            "expanded_uncertainty": _jsonable(self.expanded_uncertainty),
+            "coverage_factor": _jsonable(self.coverage_factor),
+            "degrees_of_freedom": _jsonable(self.degrees_of_freedom),
+            "covariance": _jsonable(self.covariance),
+            "budget": [line.to_dict() for line in self.budget],
+        }
 
 
 def _jsonable(obj: Any) -> Any:

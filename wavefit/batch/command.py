@@ -20,7 +20,7 @@ from typing import TYPE_CHECKING, Any
 
 from ..errors import SetupError
 from ..report.safe_text import visible
-from .inputs import capture_order, expand_inputs
+from .inputs import capture_order, expand_inputs, expand_part_folders
 from .outputs import RunFiles
 from .rows import Analyse, RowMaker, analyse_file, sha256_file
 from .spec import Spec, load_spec
@@ -121,11 +121,12 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     setup = load_setup(args.setup)
     method = get_method(setup.method)
     method.check_setup(setup)
-    if method.uses_setup_captures:
-        raise SetupError(f"{visible(setup.source)}: method {setup.method!r} takes its captures from the setup; "
-                         "batch needs a method that analyses one capture per part")
+    if method.uses_setup_captures and not setup.captures:
+        raise SetupError(f"{visible(setup.source)}: method {setup.method!r} takes several captures per part; "
+                         "name them in [[captures]] entries (each part's folder holds a file of each name)")
     if not method.quantities:
-        raise SetupError(f"method {setup.method!r} declares no quantities to report")
+        raise SetupError(f"method {setup.method!r} reports no scalar quantity (only curves), so batch has "
+                         "nothing to judge against limits")
     spec = load_spec(args.spec)
     spec.check_quantities(method.quantities, method.name)
     own = RunFiles(Path(args.out), Path(args.db) if args.db else None, Path(args.plot) if args.plot else None,
@@ -135,7 +136,8 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
         from ..report.figure_file import check_figure_path
 
         check_figure_path(args.plot)
-    paths = expand_inputs(args.inputs, skip=own.is_own)
+    expand = expand_part_folders if method.uses_setup_captures else expand_inputs
+    paths = expand(args.inputs, skip=own.is_own)
     maker = RowMaker(setup, spec, tuple(method.quantities), sha256_file(args.setup), sha256_file(args.spec),
                      __version__, analyse)
     return _Plan(method, spec, own, paths, maker, args.lot or Path(args.out).stem)

@@ -64,3 +64,21 @@ def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda pa
     if not found:
         raise CaptureError("no capture files given; name files, folders or glob patterns")
     return sorted(found, key=capture_order)
+
+
+def expand_part_folders(inputs: Sequence[str], skip: Callable[[str], bool] = lambda path: False) -> list[str]:
+    """Folders named or matching patterns, each one part's captures for a method that takes
+    several (a file of each ``[[captures]]`` entry's name), normalised, in capture order.
+
+    A name that is no folder, or a pattern that matches none, is an error raised before
+    anything is analysed.
+    """
+    found: set[str] = set()
+    for item in inputs:
+        hits = glob.glob(item, recursive=True) if _GLOB_CHARS.search(item) else [item]
+        folders = [hit for hit in hits if os.path.isdir(hit) and not skip(hit)]
+        if not folders:
+            raise CaptureError(f"{visible(item)} is no folder; a method that takes several captures per part "
+                               "reads each part's captures from a folder of its own")
+        found.update(os.path.normpath(folder) for folder in folders)
+    return sorted(found, key=capture_order)

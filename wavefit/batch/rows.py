@@ -1,4 +1,4 @@
-"""One capture -> one results row: analysis, verdict against the spec, traceability.
+"""One capture (or one part's folder of captures) -> one results row: analysis, verdict against the spec, traceability.
 
 Each row holds the verdict, the quantities with their expanded uncertainties,
 and traceability (tool version, sha256 of capture, setup and spec, UTC time of
@@ -11,23 +11,32 @@ import datetime as dt
 import hashlib
 import os
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any, Callable
 
 from ..errors import WavefitError
 from ..results import AnalysisResult
 from ..setup import Setup
 from .decision import ERROR, decide_part, limit_by_model
+from .inputs import is_capture_name
 from .spec import Spec
 
 Analyse = Callable[[str, Setup], AnalysisResult]
 
 
 def sha256_file(path: str | os.PathLike[str]) -> str:
-    """Hex sha256 of a file's bytes."""
+    """Hex sha256 of a file's bytes; of a folder (one part's captures), of the names and bytes of
+    its capture files in name order."""
     digest = hashlib.sha256()
-    with open(path, "rb") as stream:
-        while chunk := stream.read(1 << 20):
-            digest.update(chunk)
+    folder = os.path.isdir(path)
+    files = ([p for p in sorted(Path(path).iterdir()) if p.is_file() and is_capture_name(p.name)]
+             if folder else [Path(path)])
+    for file in files:
+        if folder:
+            digest.update(file.name.encode() + b"\0")
+        with open(file, "rb") as stream:
+            while chunk := stream.read(1 << 20):
+                digest.update(chunk)
     return digest.hexdigest()
 
 

@@ -26,7 +26,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
-from ..uncertainty import InputSet
+from ..uncertainty import InputQuantity
 
 #: z above which an estimate's movement with the fit window counts as a model that misses the
 #: waveform. For a normal z a false alarm on an adequate model has probability 6·10⁻⁵ per test
@@ -103,11 +103,10 @@ class ModelCheck:
         """The variations that enter the budget."""
         return tuple(v for v in self.variations if v.significant)
 
-    def add_inputs(self, inputs: InputSet) -> None:
-        """Add each significant variation as a type B input of value 0 (rectangular)."""
-        for v in self.inputs:
-            inputs.add(v.input_name, 0.0, v.standard_uncertainty, v.unit, "B", dof=v.dof,
-                       distribution="rectangular")
+    def budget_inputs(self) -> tuple[InputQuantity, ...]:
+        """Each significant variation as a type B input of value 0 (rectangular)."""
+        return tuple(InputQuantity(v.input_name, 0.0, v.standard_uncertainty, v.unit, "B", v.dof,
+                                   distribution="rectangular") for v in self.inputs)
 
     def summary(self) -> dict[str, Any]:
         out: dict[str, Any] = {"adequate": self.adequate, "varied": self.varied, "threshold_z": MODEL_Z}

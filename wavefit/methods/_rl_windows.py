@@ -1,5 +1,8 @@
-"""Edge windows of the rl-step method: where each window starts and ends, how the
-per-edge fits combine, and the whole-record fit that checks itself against them.
+"""Edge windows of the rl-step method: where each window starts and ends, how precisely its
+start is placed, and the late-start refit of the model check.
+
+The estimators built on the windows are in their own modules, chosen in
+:mod:`wavefit.methods._rl_estimators`.
 
 Used by :mod:`wavefit.methods.rl_step`; see ``docs/method-rl-step.md``.
 """
@@ -10,11 +13,9 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 from ..errors import AnalysisRefused
 from ..fit.exponential import window_model
-from ..fit.relaxation import fit_relaxations
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
 
@@ -28,24 +29,6 @@ class Window:
     stop: int
     #: standard deviation of t0 (s) when it was placed from the sense trace itself
     t0_deviation: float = math.nan
-
-
-@dataclass(frozen=True)
-class Combined:
-    names: tuple[str, ...]
-    values: np.ndarray
-    covariance: np.ndarray
-    units: tuple[str, ...]
-    dof: float
-    by_direction: dict
-    rise_fall: float | None
-    birge: tuple[float, float] | None
-
-    def with_tau_variance_scaled(self, factor: float) -> "Combined":
-        """The same result with the variance of tau (the first entry) multiplied by ``factor``."""
-        scale = np.ones(self.values.size)
-        scale[0] = math.sqrt(factor)
-        return dataclasses.replace(self, covariance=self.covariance * np.outer(scale, scale))
 
 
 #: Least start margin (samples) after an instant placed from correlated noise (see start_margin)
@@ -243,85 +226,6 @@ def late_start(t, sense, drive, windows, fits, noise, source, fit_window) -> Lat
     return LateStart(tau_full, tau_late, abs(tau_late - tau_full) / math.sqrt(d_var), len(weights))
 
 
-def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, noise, fit_window
-                  ) -> tuple[Combined, bool]:
-    """tau and state levels from one fit of every sample (``wavefit.fit.relaxation``).
-
-    Used without a drive channel, where the switching instants must come from the sense
-    trace itself. The check is a set of windows cut from the whole-record fit's
-    switching instants with generous margins, Δ = max(4 samples, tau/10) after each
-    and 3σ of the next instant before it, fitted separately: they do not rest on the
-    kink at the edges. The whole-record result is kept if it agrees with them by the
-    Hausman test (difference within 3 standard deviations of var(windows) −
-    var(whole record)); otherwise those windows are returned. Returns (result,
-    whole-record accepted).
-    """
-    by_t0 = {id(w.edge): w for w in windows}
-    t0s = [by_t0[id(e)].t0 if id(e) in by_t0 else e.t0 for e in edges]
-    fit_of = {id(w.edge): f for w, f in zip(windows, fits)}
-    levels = [baseline["final_sense"] if baseline is not None else
-              float(np.median(sense[: max(int(np.searchsorted(t, t0s[0])), 1)]))]
-    hi, lo = windowed.values[windowed.names.index("sense_high")], windowed.values[windowed.names.index("sense_low")]
-    for e in edges:
-        f = fit_of.get(id(e))
-        levels.append(f["final_sense"] if f is not None else (hi if e.direction > 0 else lo))
-    try:
-        whole = fit_relaxations(t, sense, t0s, levels, windowed.values[0], noise=noise)
-    except (ValueError, FloatingPointError, np.linalg.LinAlgError):
-        return windowed, False
-    var_f = whole.covariance[0, 0]
-    if not (np.isfinite(var_f) and var_f > 0):
-        return windowed, False
-    if any("ended at its bound" in w for w in whole.warnings) or \
-            (whole["tau"] - windowed.values[0]) ** 2 > 9.0 * windowed.covariance[0, 0]:
-        # a gross disagreement with the independent per-edge windows: another minimum of the
-        # whole-record fit (switching instants moved together with tau)
-        return windowed, False
-    dt = float(t[1] - t[0])
-    tau = whole["tau"]
-    skip = max(4.0 * dt, 0.1 * tau)
-    checked_w, checked_f = [], []
-    for k, e in enumerate(edges):
-        if id(e) not in by_t0:
-            continue
-        t0 = whole[f"t0_{k + 1}"]
-        start = int(np.searchsorted(t, t0 + skip))
-        stop = t.size
-        if k + 1 < len(edges):
-            step = whole[f"final_{k + 1}"] - (whole[f"final_{k}"] if k else whole["final_head"])
-            margin = max(2.0 * dt, 3.0 * placement_deviation(whole.noise_sigma["sense"], tau, step))
-            stop = int(np.searchsorted(t, whole[f"t0_{k + 2}"] - margin))
-        if stop - start >= 16:
-            w = Window(e, t0, start, stop)
-            checked_w.append(w)
-            checked_f.append(fit_window(t, sense, None, w, noise, "capture"))
-    if not checked_w:
-        return windowed, False
-    check = combine(checked_w, checked_f, baseline, False)
-    var_w = check.covariance[0, 0]
-    d = check.values[0] - tau
-    if var_w > var_f and d * d / (var_w - var_f) > 9.0:
-        return check, False
-    # state levels: the mean of the complete states' levels (the head's only where a state has no window)
-    names = ("tau", "final_head") + tuple(f"final_{k + 1}" for k in range(len(edges)))
-    vals, cov = whole.subset(names)
-    rows = {"high": [], "low": []}
-    for k, e in enumerate(edges):
-        if id(e) in by_t0:
-            rows["high" if e.direction > 0 else "low"].append(2 + k)
-    head_state = "low" if edges[0].direction > 0 else "high"
-    if not rows[head_state]:
-        rows[head_state].append(1)
-    if not rows["high"] or not rows["low"]:
-        return check, False
-    a = np.zeros((3, len(names)))
-    a[0, 0] = 1.0
-    for r, state in ((1, "high"), (2, "low")):
-        a[r, rows[state]] = 1.0 / len(rows[state])
-    return Combined(("tau_fit", "sense_high", "sense_low"), a @ vals, a @ cov @ a.T, ("s", "V", "V"),
-                     float(whole.dof), windowed.by_direction, windowed.rise_fall, windowed.birge), True
-
-
 def placement_jitter(windows, fits, dt: float) -> np.ndarray:
     """Standard deviation, in samples, of each window's switching instant as the sense trace
     placed it (:func:`settle_starts`), else σ·tau/|step| (the noise over the slope of the edge)."""
@@ -394,140 +298,3 @@ def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> float | None:
         return float(brentq(gap, lo, hi, xtol=1e-6 * dt))
     except (ValueError, RuntimeError):
         return None
-
-
-def combine(windows, fits, baseline, has_drive) -> Combined:
-    """Generalised least-squares combination of per-window estimates (independent windows).
-
-    Parameter vector: tau, [q = C_d/C_s], S_high, S_low, [D_high, D_low]; each window
-    observes tau, q and the final levels of the state its edge enters; the pre-edge
-    baseline observes the levels of the state before the first edge.
-    """
-    names = ["tau_fit"] + (["q_drive_sense"] if has_drive else []) + ["sense_high", "sense_low"]
-    if has_drive:
-        names += ["drive_high", "drive_low"]
-    idx = {n: i for i, n in enumerate(names)}
-    p = len(names)
-    info = np.zeros((p, p))
-    score = np.zeros(p)
-    obs = []
-    for w, f in zip(windows, fits):
-        state = "high" if w.edge.direction > 0 else "low"
-        vals, cov = f.subset(("tau", "final_sense", "coef_sense") + (("final_drive", "coef_drive") if has_drive else ()))
-        if has_drive:
-            tau, sf, cs, df, cd = vals
-            g = np.array([[1, 0, 0, 0, 0], [0, 0, -cd / cs ** 2, 0, 1 / cs], [0, 1, 0, 0, 0], [0, 0, 0, 1, 0]])
-            y = np.array([tau, cd / cs, sf, df])
-            cols = [idx["tau_fit"], idx["q_drive_sense"], idx[f"sense_{state}"], idx[f"drive_{state}"]]
-        else:
-            tau, sf, cs = vals
-            g = np.array([[1, 0, 0], [0, 1, 0]])
-            y = np.array([tau, sf])
-            cols = [idx["tau_fit"], idx[f"sense_{state}"]]
-        obs.append((y, g @ cov @ g.T, cols, w.edge.direction))
-    if baseline is not None:
-        state = "low" if windows[0].edge.direction > 0 else "high"
-        groups = ("final_sense", "final_drive") if has_drive else ("final_sense",)
-        vals, cov = baseline.subset(groups)
-        cols = [idx[f"sense_{state}"]] + ([idx[f"drive_{state}"]] if has_drive else [])
-        obs.append((vals, cov, cols, 0))
-    for y, c, cols, _ in obs:
-        try:
-            ci = np.linalg.inv(c)
-        except np.linalg.LinAlgError:
-            ci = np.full_like(c, np.nan)
-        if not (np.all(np.isfinite(ci)) and np.all(np.isfinite(y))):
-            raise AnalysisRefused("a window's fit has no usable covariance (its noise is far below a converter "
-                                  "code, or its levels are flat): increase the vertical sensitivity or record "
-                                  "with more noise-free resolution")
-        info[np.ix_(cols, cols)] += ci
-        score[cols] += ci @ y
-    d = np.sqrt(np.abs(np.diag(info)))
-    if np.any(d == 0) or np.linalg.matrix_rank(info / np.outer(d, d)) < p:
-        raise AnalysisRefused("the record does not hold both states settled long enough to measure the "
-                              "current step; record a pre-edge baseline or a full period")
-    cov = np.linalg.inv(info)
-    theta = cov @ score
-    chi2 = sum(float((y - theta[cols]) @ np.linalg.inv(c) @ (y - theta[cols])) for y, c, cols, _ in obs)
-    nu = sum(y.size for y, *_ in obs) - p
-    birge = None
-    if nu > 0:
-        ratio = math.sqrt(chi2 / nu)
-        p_value = float(stats.chi2.sf(chi2, nu))
-        birge = (ratio, p_value)
-        if p_value < 1e-3 and ratio > 1:
-            cov = cov * ratio ** 2
-    by_dir = {}
-    chi2_within, nu_within = 0.0, 0
-    for key, sign in (("rising", 1), ("falling", -1)):
-        sel = [(f["tau"], f.stderr("tau") ** 2) for w, f in zip(windows, fits) if w.edge.direction == sign]
-        if sel:
-            wts = np.array([1 / v for _, v in sel])
-            taus = np.array([m for m, _ in sel])
-            mean = float(np.sum(wts * taus) / wts.sum())
-            by_dir[key] = (mean, float(1 / math.sqrt(wts.sum())))
-            chi2_within += float(np.sum(wts * (taus - mean) ** 2))
-            nu_within += len(sel) - 1
-    rise_fall = None
-    if "rising" in by_dir and "falling" in by_dir:
-        (a, ua), (b, ub) = by_dir["rising"], by_dir["falling"]
-        # against the scatter of the edges within each direction when it exceeds the stated
-        # uncertainties (correlated noise the per-edge fits underrate; PDG scale factor)
-        scale = math.sqrt(chi2_within / nu_within) if nu_within > 0 else 1.0
-        rise_fall = (a - b) / (math.hypot(ua, ub) * max(scale, 1.0))
-    dof = float(sum(max(f.dof, 1.0) for f in fits))
-    units = tuple({"tau_fit": "s", "q_drive_sense": ""}.get(n, "V") for n in names)
-    return Combined(tuple(names), theta, cov, units, dof, by_dir, rise_fall, birge)
-
-
-def pooled_windows(t, sense, windows, baseline, windowed: Combined, noise) -> Combined | None:
-    """tau and state levels from one joint fit of all sense windows with one noise model.
-
-    Used without a drive channel in correlated noise: fitting the windows separately
-    estimates each window's noise covariance from its own few hundred effective
-    samples, which underestimates it, and the per-window biases add up over many
-    edges. One fit with tau shared, a final level and coefficient per window, and the
-    AR model and covariance sandwich estimated from all windows together
-    (``wavefit.fit.engine``, one noise group, one block per window) avoids both.
-    """
-    from ..fit.exponential import WindowChannel, fit_exponential_window
-
-    channels = [WindowChannel(f"w{k}", t[w.start:w.stop], sense[w.start:w.stop], noise_group="sense")
-                for k, w in enumerate(windows)]
-    try:
-        fit = fit_exponential_window(channels, windowed.values[0], noise=noise, model="rl-step windows")
-    except (ValueError, FloatingPointError, np.linalg.LinAlgError):
-        return None
-    names = ["tau"] + [f"final_w{k}" for k in range(len(windows))]
-    vals, cov = fit.subset(tuple(names))
-    rows = {"high": [], "low": []}
-    for k, w in enumerate(windows):
-        rows["high" if w.edge.direction > 0 else "low"].append(1 + k)
-    extra_val, extra_var = [], []
-    for state in ("high", "low"):
-        if not rows[state]:
-            if baseline is None:
-                return None
-            extra_val.append(baseline["final_sense"])
-            extra_var.append(baseline.stderr("final_sense") ** 2)
-            rows[state].append(len(names) + len(extra_val) - 1)
-    if extra_val:
-        n = len(names) + len(extra_val)
-        big = np.zeros((n, n))
-        big[: len(names), : len(names)] = cov
-        big[len(names):, len(names):] = np.diag(extra_var)
-        vals, cov = np.concatenate((vals, extra_val)), big
-    a = np.zeros((3, vals.size))
-    a[0, 0] = 1.0
-    for r, state in ((1, "high"), (2, "low")):
-        a[r, rows[state]] = 1.0 / len(rows[state])
-    cov = a @ cov @ a.T
-    if windowed.birge is not None and windowed.birge[0] > 1.0 and windowed.birge[1] < 0.05:
-        # the edges are repeated observations: when they scatter significantly (5 % level) more
-        # than their stated uncertainties allow, enlarge by the scale factor (Particle Data Group
-        # averaging rule, S = √(χ²/ν)): a correlated noise the AR model misses shows up here.
-        # (Always applying S > 1 over-covered: the separate per-edge fits understate their
-        # uncertainties a little in correlated noise, so S exceeds 1 even when the joint fit is right.)
-        cov = cov * windowed.birge[0] ** 2
-    return Combined(("tau_fit", "sense_high", "sense_low"), a @ vals, cov, ("s", "V", "V"),
-                    float(fit.dof), windowed.by_direction, windowed.rise_fall, windowed.birge)

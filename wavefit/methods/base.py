@@ -1,16 +1,29 @@
-"""The interface every measurement method implements, and the checks of a setup
-against it."""
+"""The interface every measurement method implements, the shared analysis, and the checks of a
+setup against it.
+
+A method declares its roles, parts, options and :attr:`Method.outputs`, and implements two
+hooks: :meth:`Method.estimate` (the fits: a :class:`~wavefit.methods.estimate.Estimate`) and
+:meth:`Method.model` (the measurement function from the inputs to the declared outputs).
+:meth:`Method.analyze`, shared, does the rest once: the declared parts and the instrument
+figures into the budget, propagation (elementwise for curves), the plausibility check and
+the result.
+"""
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import ClassVar
+from typing import Any, ClassVar, Mapping
 
+from ..curve_propagation import propagate_curves, unit_variables
 from ..errors import AnalysisRefused, SetupError
 from ..io.capture import Capture, Channel
+from ..measurement import Measurement
+from ..outputs import Curve, Output, curve_names, scalar_names
 from ..results import AnalysisResult
 from ..setup import GAIN_KEY_PREFIX, INSTRUMENT_KEYS, Setup, check_names, parse_time_option
+from ..uncertainty import InputSet, Propagation, propagate
 from ..values import PartValue
+from .estimate import Estimate
 
 
 @dataclass(frozen=True)
@@ -23,11 +36,14 @@ class PartSpec:
 
 
 class Method:
-    """Base class: declare roles, parts and options; implement :meth:`analyze`.
+    """Base class: declare roles, parts, options and outputs; implement :meth:`estimate` and
+    :meth:`model`.
 
     ``roles`` maps each column role to whether it is required; ``time`` is
     always allowed. ``parts`` maps part names to :class:`PartSpec`.
-    ``options`` maps option names to their default values.
+    ``options`` maps option names to their default values. ``outputs`` maps each
+    reported quantity to its declaration (:class:`~wavefit.outputs.Scalar` or
+    :class:`~wavefit.outputs.Curve`), in report order.
     """
 
     name: ClassVar[str] = ""
@@ -35,16 +51,23 @@ class Method:
     roles: ClassVar[dict[str, bool]] = {}
     parts: ClassVar[dict[str, PartSpec]] = {}
     options: ClassVar[dict[str, object]] = {}
-    #: Names of the quantities every result of this method reports, in report order
-    #: (batch output columns are built from it before any capture is analysed).
-    quantities: ClassVar[tuple[str, ...]] = ()
+    #: Every output the method reports, in report order, with its unit and kind.
+    outputs: ClassVar[dict[str, Output]] = {}
     #: Quantities that only a physical part has positive (L > 0, tau > 0, ...): a result with
     #: one of them at or below zero is refused, never reported.
     positive: ClassVar[tuple[str, ...]] = ()
     #: What to check when a result is refused as not physical (named in the message).
     unphysical_hint: ClassVar[str] = ""
-    #: True when the method takes its captures from ``[[captures]]`` in the setup.
+    #: True when one measurement is several captures, each named with its own parts in a
+    #: ``[[captures]]`` entry of the setup; each capture is bound to its entry
+    #: (:func:`wavefit.measurement.bind`), never matched by position.
     uses_setup_captures: ClassVar[bool] = False
+
+    @property
+    def quantities(self) -> tuple[str, ...]:
+        """The scalar outputs' names, in report order (batch columns are built from them before
+        any capture is analysed)."""
+        return scalar_names(self.outputs)
 
     def check_setup(self, setup: Setup) -> None:
         """Reject unknown roles, parts, options, instrument keys and captures; require the
@@ -109,7 +132,8 @@ class Method:
 
     def check_physical(self, result: AnalysisResult) -> None:
         """Refuse a result with a non-finite value or uncertainty, or a non-positive quantity
-        of :attr:`positive`: it could not be a measurement of a real part.
+        of :attr:`positive`, at any point of a curve too: it could not be a measurement of a
+        real part.
 
         Parameters
         ----------
@@ -122,12 +146,15 @@ class Method:
             Naming the quantity, its value and :attr:`unphysical_hint`.
         """
         source = result.source if isinstance(result.source, str) else ", ".join(result.source)
-        for name, q in result.quantities.items():
-            finite = math.isfinite(q.value) and math.isfinite(q.expanded_uncertainty)
-            if not finite or (name in self.positive and q.value <= 0):
+        points = [(name, q.value, q.expanded_uncertainty, q.unit) for name, q in result.quantities.items()]
+        points += [(name, float(v), float(u), c.unit) for name, c in result.curves.items()
+                   for v, u in zip(c.values, c.expanded_uncertainty)]
+        for name, value, expanded, unit in points:
+            finite = math.isfinite(value) and math.isfinite(expanded)
+            if not finite or (name in self.positive and value <= 0):
                 what = "is not a finite number" if not finite else "is not positive"
                 raise AnalysisRefused(
-                    f"{source}: {name} came out as {q.value:.4g} ± {q.expanded_uncertainty:.2g} {q.unit}, which "
+                    f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}, which "
                     f"{what}: no measurement of a real part; {self.unphysical_hint}")
 
     @staticmethod
@@ -135,5 +162,86 @@ class Method:
         """The channel the setup maps ``role`` to."""
         return capture.channel(setup.columns[role])
 
-    def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:  # pragma: no cover
+    # -- the two hooks a method implements -------------------------------------------------
+
+    def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:  # pragma: no cover
+        """Fit the measurement's captures: the fitted blocks and whatever else the model needs."""
         raise NotImplementedError
+
+    def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:  # pragma: no cover
+        """The measurement function: every declared output from the inputs ``x`` (numbers or
+        ``uncertainties`` values, arrays of them for a curve), given the estimate's ``settings``."""
+        raise NotImplementedError
+
+    def review(self, estimate: Estimate, inputs: InputSet, propagation: Propagation) -> tuple[str, ...]:
+        """Warnings that need the propagated result (none unless a method says otherwise)."""
+        return ()
+
+    # -- the shared analysis ----------------------------------------------------------------
+
+    def analyze(self, measurement: Measurement, setup: Setup) -> AnalysisResult:
+        """Estimate, add the declared parts and instrument figures, propagate, check, build.
+
+        Parameters
+        ----------
+        measurement
+            The captures, each bound to its parts.
+        setup
+            The parsed setup (parts, instrument figures, options).
+
+        Returns
+        -------
+        AnalysisResult
+            Scalars in ``quantities`` (with budget and correlation), curves in ``curves``.
+
+        Raises
+        ------
+        AnalysisRefused
+            From the estimate, or when a result is not physical (:meth:`check_physical`).
+        """
+        estimate = self.estimate(measurement, setup)
+        inputs = self.inputs(estimate, measurement, setup)
+        scalars = scalar_names(self.outputs)
+        prop = propagate(inputs, lambda x: _declared(self.model(x, estimate.settings), scalars),
+                         {name: self.outputs[name].unit for name in scalars})
+        curves = {}
+        if curve_names(self.outputs):
+            variables = unit_variables(inputs)
+            declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve)}
+            curves = propagate_curves(inputs, self.model(variables, estimate.settings), declared,
+                                      estimate.axes, variables)
+        warnings = (*estimate.warnings, *self.review(estimate, inputs, prop))
+        result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, dict(estimate.fit),
+                                tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,
+                                adequate=estimate.adequate, curves=curves)
+        self.check_physical(result)
+        return result
+
+    def inputs(self, estimate: Estimate, measurement: Measurement, setup: Setup) -> InputSet:
+        """The measurement function's inputs: the estimate's fitted blocks and other inputs, then
+        every declared part the setup gives for all captures (type B), the timebase and the
+        vertical gain of every mapped channel. An input the model does not use has no
+        sensitivity and so no part in the result or its budget."""
+        inputs = InputSet()
+        for block in estimate.blocks:
+            inputs.add_correlated(block.names, block.values, block.covariance, block.units, block.dof,
+                                  group=block.group, kind=block.kind)
+        for extra in estimate.inputs:
+            inputs.add(extra.name, extra.value, extra.standard_uncertainty, extra.unit, extra.kind,
+                       dof=extra.dof, distribution=extra.distribution)
+        for name in self.parts:
+            if name in measurement.parts:
+                inputs.add_part(name, measurement.parts[name])
+        inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
+        for role in self.roles:
+            if role in setup.columns:
+                inputs.add(GAIN_KEY_PREFIX + role, 1.0, setup.gain_for(role).standard_uncertainty, "", "B")
+        return inputs
+
+
+def _declared(outputs: Mapping[str, Any], names: tuple[str, ...]) -> dict[str, Any]:
+    """The outputs ``names`` from what a measurement function returned, in that order."""
+    missing = [name for name in names if name not in outputs]
+    if missing:
+        raise KeyError(f"the measurement function returned no {', '.join(missing)}")
+    return {name: outputs[name] for name in names}

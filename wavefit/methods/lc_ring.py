@@ -22,45 +22,32 @@ measurement function (derivation and what it neglects in docs/method-lc-ring.md)
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
-from scipy import ndimage
 
-from ..errors import AnalysisRefused, SetupError
-from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring
-from ..io.capture import Capture
-from ..results import AnalysisResult, TracePlot
+from ..errors import AnalysisRefused
+from ..fit.damped_sine import DampedSineFit
+from ..measurement import Measurement
+from ..outputs import Scalar
+from ..results import TracePlot
 from ..setup import Setup
-from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
-from ..uncertainty import InputSet, propagate
+from ..uncertainty import InputQuantity, InputSet, Propagation
 from ..values import PartValue
 from . import register
-from ._model_check import MODEL_Z, ModelCheck, Variation, added
+from ._model_check import added
+from ._ring import (MODEL_DECAY, MODEL_FREQUENCY, check_time_options, coil_loss_option, loss_correction,
+                    measure_ring)
 from .base import Method, PartSpec
+from .estimate import Estimate, FittedBlock
 
-UNITS = {"f0": "Hz", "fd": "Hz", "alpha": "1/s", "tau_decay": "s", "Q_loaded": "", "Q": "", "L": "H", "R": "ohm"}
-COIL_LOSS = ("unknown", "series", "parallel")
-#: |f0 early − f0 late| above this many combined standard uncertainties is flagged: the
-#: model check's threshold, since the same two partial fits serve both.
-DRIFT_Z = MODEL_Z
-#: Budget inputs for the movement of w_d and of alpha between the early and the late part
-#: of the ring, added when the model check fires (see ring_model_check).
-MODEL_FREQUENCY, MODEL_DECAY = "model", "model_decay"
-
-
-@dataclass(frozen=True)
-class RingMeasurement:
-    """One fitted ring with its diagnostics, ready for a measurement function."""
-
-    ring: DampedSineFit
-    time: np.ndarray
-    data: np.ndarray
-    unit: str
-    info: dict[str, Any]
-    warnings: tuple[str, ...]
-    model_check: ModelCheck
+#: The budget input for option coil_loss = "unknown": the share of Δ_max, rectangular over the
+#: whole range [0, 1] (JCGM 100:2008, 4.3.7), u = 0.5/√3.
+#: Share of the measured damping above which the known parallel load is taken to explain it all:
+#: the coil's own damping, the small difference of two nearly equal rates, then carries the
+#: load's tolerance magnified twenty-fold or more, so its Q is refused, not reported.
+LOAD_SHARE_REFUSED = 0.95
+LOSS_SPLIT = InputQuantity("coil loss split", 0.5, 0.5 / math.sqrt(3.0), "", "B", distribution="rectangular")
 
 
 @register
@@ -76,7 +63,8 @@ class LcRing(Method):
         "parallel_load": PartSpec("ohm", False, "resistance loading the tank: feed resistor parallel probe input"),
     }
     options = {"fit_start": None, "fit_end": None, "noise": "auto", "coil_loss": "series"}
-    quantities = ("f0", "fd", "alpha", "tau_decay", "Q_loaded", "Q", "L", "R")
+    outputs = {"f0": Scalar("Hz"), "fd": Scalar("Hz"), "alpha": Scalar("1/s"), "tau_decay": Scalar("s"),
+               "Q_loaded": Scalar(""), "Q": Scalar(""), "L": Scalar("H"), "R": Scalar("ohm")}
     positive = ("f0", "fd", "alpha", "Q_loaded", "Q", "L")
     unphysical_hint = ("check that the capture holds a free ring of the tank (not a step or a square wave), "
                        "the [columns] tank entry and the parts (a parallel_load that explains all the damping?)")
@@ -85,79 +73,29 @@ class LcRing(Method):
         super().check_setup(setup)
         check_time_options(self, setup)
 
-    def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
-        capture = captures[0]
-        meas = measure_ring(self, capture, setup)
+    def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
+        bound = measurement.first
+        meas = measure_ring(self, bound.capture, setup)
         coil_loss = coil_loss_option(self, setup)
-        inputs, present = ring_inputs(meas.ring, setup, setup.parts, coil_loss, meas.model_check)
-        check_load_share(meas.ring, setup.parts)
-        prop = propagate(inputs, lambda v: ring_model(v, present, coil_loss), UNITS)
-        warnings = meas.warnings + loss_split_warning(inputs, present, coil_loss,
-                                                      prop.quantities["L"].standard_uncertainty)
-        fit = dict(meas.info, coil_loss=coil_loss)
+        check_load_share(meas.ring, bound.parts)
+        values, cov = meas.ring.fit.subset(("alpha", "w_d"))
+        block = FittedBlock(("fit alpha", "fit w_d"), values, cov, ("1/s", "rad/s"), meas.ring.fit.dof)
+        extra = (*meas.model_check.budget_inputs(), *((LOSS_SPLIT,) if coil_loss == "unknown" else ()))
+        present = tuple(name for name in ("tank_capacitor", "stray_capacitance", "parallel_load")
+                        if name in bound.parts)
         model = np.full_like(meas.data, np.nan)
         model[meas.ring.start:meas.ring.stop] = meas.ring.evaluate(meas.time[meas.ring.start:meas.ring.stop])
         plot = TracePlot(meas.time, (("tank", meas.unit, meas.data, model),))
-        return AnalysisResult(self.name, capture.source, prop.quantities, prop.budget, fit,
-                              warnings, prop.correlation, plot, adequate=meas.model_check.adequate)
+        return Estimate((block,), dict(meas.info, coil_loss=coil_loss), extra,
+                        {"present": present, "coil_loss": coil_loss}, meas.warnings, plot,
+                        meas.model_check.adequate)
 
+    def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
+        return ring_model(x, settings["present"], settings["coil_loss"])
 
-def check_time_options(method: Method, setup: Setup) -> None:
-    """Refuse a fit_start or fit_end that is not a time, before any capture is read."""
-    for key in ("fit_start", "fit_end"):
-        method.time_option(setup, key, negative=True)
-
-
-def coil_loss_option(method: Method, setup: Setup) -> str:
-    value = str(method.option(setup, "coil_loss"))
-    if value not in COIL_LOSS:
-        raise SetupError(f"{setup.source}: option coil_loss = {value!r}; valid: {', '.join(COIL_LOSS)}")
-    return value
-
-
-def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurement:
-    """Fit the ring in ``capture`` and check the fit's assumptions."""
-    channel = method.channel(capture, setup, "tank")
-    t = np.asarray(capture.time, dtype=float)
-    y = np.asarray(channel.values, dtype=float)
-    if not np.all(np.isfinite(y)):
-        raise AnalysisRefused(f"{capture.source}: the tank channel holds non-numeric or missing samples; "
-                              "remove them or export the capture again")
-    if y.size < 32:
-        raise AnalysisRefused(f"{capture.source}: {y.size} samples is too few for a ring fit; record at least 32")
-    noise = str(method.option(setup, "noise"))
-    if noise not in ("auto", "white"):
-        raise SetupError(f"{setup.source}: option noise = {noise!r}; valid: auto, white")
-    start = _time_option(method, setup, "fit_start", t)
-    stop = _time_option(method, setup, "fit_end", t)
-    try:
-        ring = fit_ring(t, y, start=start, stop=stop, noise=noise)
-    except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
-        raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
-                              "check the [columns] tank entry and that the record holds the ring") from None
-    warnings = [f"fit: {w}" for w in ring.fit.warnings]
-    info, check = _checks(ring, t, y, capture.source, warnings, noise)
-    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings), check)
-
-
-def ring_inputs(ring: DampedSineFit, setup: Setup, parts: Mapping[str, PartValue],
-                coil_loss: str, check: ModelCheck) -> tuple[InputSet, tuple[str, ...]]:
-    """Inputs of the measurement function: fit block, the model check's inputs when it
-    fired, timebase, parts, loss split."""
-    inputs = InputSet()
-    values, cov = ring.fit.subset(("alpha", "w_d"))
-    inputs.add_correlated(("fit alpha", "fit w_d"), values, cov, ("1/s", "rad/s"), ring.fit.dof, "fit")
-    check.add_inputs(inputs)
-    inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
-    present = []
-    for name in ("tank_capacitor", "stray_capacitance", "parallel_load"):
-        if name in parts:
-            inputs.add_part(name, parts[name])
-            present.append(name)
-    if coil_loss == "unknown":
-        # rectangular over the whole range [0, Δ_max] (JCGM 100:2008, 4.3.7)
-        inputs.add("coil loss split", 0.5, 0.5 / math.sqrt(3.0), "", "B")
-    return inputs, tuple(present)
+    def review(self, estimate: Estimate, inputs: InputSet, propagation: Propagation) -> tuple[str, ...]:
+        return loss_split_warning(inputs, estimate.settings["present"], estimate.settings["coil_loss"],
+                                  propagation.quantities["L"].standard_uncertainty)
 
 
 def ring_model(v: Mapping[str, Any], present: tuple[str, ...], coil_loss: str) -> dict[str, Any]:
@@ -181,18 +119,6 @@ def ring_model(v: Mapping[str, Any], present: tuple[str, ...], coil_loss: str) -
         "L": inductance,
         "R": 2.0 * alpha_c * inductance,
     }
-
-
-def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> Any:
-    """Δ = w0² − 1/(L·C) for the coil-loss assumption (see the module docstring)."""
-    if coil_loss == "parallel":
-        return 0.0
-    if coil_loss == "series":
-        return 2.0 * alpha_c * g
-    nominal_g = float(getattr(g, "nominal_value", g))
-    nominal_a = float(getattr(alpha_c, "nominal_value", alpha_c))
-    d_max = (g + 2.0 * alpha_c) ** 2 / 4.0 if nominal_g <= 2.0 * nominal_a else 2.0 * alpha_c * g
-    return split * d_max
 
 
 def loss_split_warning(inputs: InputSet, present: tuple[str, ...], coil_loss: str,
@@ -219,160 +145,9 @@ def check_load_share(ring: DampedSineFit, parts: Mapping[str, PartValue]) -> Non
     cap = parts["tank_capacitor"].value + (parts["stray_capacitance"].value if "stray_capacitance" in parts else 0.0)
     load_alpha = 1.0 / (2.0 * parts["parallel_load"].value * cap)
     share = load_alpha / ring.alpha
-    if share >= 0.95:
+    if share >= LOAD_SHARE_REFUSED:
         raise AnalysisRefused(
             f"the parallel_load ({parts['parallel_load'].text}) explains {100 * share:.0f} % of the measured "
             "damping, so the coil's own Q cannot be separated; check the load value or use a larger feed resistor")
 
 
-def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warnings: list[str],
-            noise: str) -> tuple[dict[str, Any], ModelCheck]:
-    """The fit's diagnostics (appending to ``warnings``) and its model check."""
-    dt = ring.sample_interval
-    sigma = ring.fit.noise_sigma["tank"]
-    amp = ring.amplitude
-    spp = 2 * math.pi / (ring.w_d * dt)
-    if not amp > 5.0 * sigma:
-        raise AnalysisRefused(f"{source}: the ring's amplitude is {amp / sigma:.1f} times the noise rms; "
-                              "no trustworthy fit below 5 (raise the excitation or average captures)")
-    n_visible = math.log(amp / (2.0 * sigma)) / (ring.alpha * dt) if ring.alpha > 0 else math.inf
-    visible = min(n_visible, ring.stop - ring.start) / spp
-    if visible < 1.0:
-        raise AnalysisRefused(f"{source}: only {visible:.1f} cycles stand above the noise; a ring fit needs "
-                              "at least 3 (use a smaller feed-resistor load or less damping)")
-    if visible < 3.0:
-        warnings.append(f"too few cycles: {visible:.1f} stand above the noise (3 or more are needed for a "
-                        "reliable frequency and damping)")
-    if spp < 10.0:
-        warnings.append(f"{spp:.1f} samples per period, fewer than 10: sample faster")
-    if spp < 4.0:
-        warnings.append(f"suspected aliasing: the ring is at {100 * 2 / spp:.0f} % of the Nyquist frequency; "
-                        "an undersampled ring looks like a slower one, so f0 may be an alias")
-    seg_t, seg_y = t[ring.start:ring.stop], y[ring.start:ring.stop]
-    fitted = ring.evaluate(seg_t)
-    runs = longest_run_at_extremes(seg_y)
-    if (max(runs) >= 5 and model_exceeds_record(seg_y, fitted, sigma)) or piles_up_at_limit(seg_y, sigma):
-        warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
-                        "whole ring fits on screen")
-    halves = _halves(ring, y, noise)
-    drift = _drift_check(halves)
-    if drift.get("z", 0.0) > DRIFT_Z:
-        warnings.append(
-            f"frequency changes with amplitude: f0 = {drift['f0_early']:.7g} Hz early and "
-            f"{drift['f0_late']:.7g} Hz late in the ring ({drift['z']:.1f} standard uncertainties apart): "
-            "core nonlinearity? repeat with a smaller excitation")
-    check = ring_model_check(ring, halves)
-    if not check.adequate:
-        warnings.append(check.warning("damped-sinusoid model", "damping or frequency that changes with "
-                                      "amplitude: core loss or saturation?"))
-    spur = _residual_peak(ring.fit.residuals, fitted - ring.fit["offset"], dt)
-    if spur is not None:
-        warnings.append(f"a second oscillation at {spur['frequency']:.4g} Hz ({spur['relative_energy']:.1e} of "
-                        "the ring's energy) remains in the residuals: second mode, beat or pickup")
-    return {
-        "model": ring.fit.model,
-        "window_start_s": float(t[ring.start]),
-        "window_end_s": float(t[ring.stop - 1]),
-        "cycles": float(ring.cycles),
-        "cycles_above_noise": float(visible),
-        "samples_per_period": float(spp),
-        "amplitude_to_noise": float(amp / sigma),
-        "drift_check": drift,
-        "model_check": check.summary(),
-        "residual_peak": spur,
-        **ring.fit.summary(),
-    }, check
-
-
-def _halves(ring: DampedSineFit, y: np.ndarray, noise: str) -> tuple[DampedSineFit, DampedSineFit] | str:
-    """The early and the late part of the ring fitted separately (each from the whole fit's
-    parameters carried to its first sample), or why they could not be."""
-    n = ring.stop - ring.start
-    dt = ring.sample_interval
-    x = ring.fit.values.copy()
-    x[3:] *= dt
-    spp = 2 * math.pi / x[4]
-    split = int(min(n / 2, 1.5 / x[3])) if x[3] > 0 else n // 2
-    if split < max(2 * spp, 20) or n - split < max(2 * spp, 20):
-        return "fewer than 2 cycles or 20 samples in the early or late part"
-    e = math.exp(-x[3] * split)
-    c, s = math.cos(x[4] * split), math.sin(x[4] * split)
-    late0 = np.array([x[0], e * (x[1] * c + x[2] * s), e * (x[2] * c - x[1] * s), x[3], x[4]])
-    t_axis = np.arange(n) * dt
-    parts = []
-    for lo, hi, x0 in ((0, split, x), (split, n, late0)):
-        seg = y[ring.start + lo:ring.start + hi]
-        try:
-            parts.append(fit_damped_sine(t_axis[lo:hi], seg, x0, dt, noise=noise))
-        except (ValueError, FloatingPointError, np.linalg.LinAlgError):
-            return "a partial fit failed"
-    return parts[0], parts[1]
-
-
-def _drift_check(halves: tuple[DampedSineFit, DampedSineFit] | str) -> dict[str, Any]:
-    """Compare f0 of the early and the late part of the ring."""
-    if isinstance(halves, str):
-        return {"skipped": halves}
-    parts = []
-    for sub in halves:
-        g = np.array([sub.alpha, sub.w_d]) / sub.w0
-        _, cov = sub.fit.subset(("alpha", "w_d"))
-        parts.append((sub.w0 / (2 * math.pi), math.sqrt(max(float(g @ cov @ g), 0.0)) / (2 * math.pi)))
-    (f_e, u_e), (f_l, u_l) = parts
-    u = math.hypot(u_e, u_l)
-    return {"f0_early": f_e, "u_early": u_e, "f0_late": f_l, "u_late": u_l,
-            "z": abs(f_e - f_l) / u if u > 0 else math.inf}
-
-
-def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSineFit] | str) -> ModelCheck:
-    """Model check of a ring: w_d and alpha of its early and late part (disjoint windows, so
-    the variance of a difference is the sum of theirs); a significant difference enters the
-    budget as input ``model`` on w_d or ``model_decay`` on alpha (see
-    :mod:`wavefit.methods._model_check`)."""
-    varied = "the ring's early part against its late part, each fitted alone"
-    if isinstance(halves, str):
-        return ModelCheck(varied, skipped=halves)
-    early, late = halves
-    variations = []
-    for name, label, unit in (("w_d", MODEL_FREQUENCY, "rad/s"), ("alpha", MODEL_DECAY, "1/s")):
-        u = math.hypot(early.fit.stderr(name), late.fit.stderr(name))
-        z = abs(early.fit[name] - late.fit[name]) / u if u > 0 else math.inf
-        variations.append(Variation(name, label, unit, ring.fit[name],
-                                    {"early": early.fit[name], "late": late.fit[name]}, z))
-    return ModelCheck(varied, tuple(variations))
-
-
-def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, float] | None:
-    """A spectral line in the residuals well above the local noise floor and above −30 dB of
-    the ring's energy (common practice for spotting a spurious tone), or None.
-
-    Lines closer than 8 bins to DC (fewer than 8 cycles in the window) are not searched:
-    there correlated noise rises steeply towards low frequency, the running median lags
-    behind it, and what remains is drift rather than an oscillation."""
-    n = r.size
-    if n < 64:
-        return None
-    spec = np.abs(np.fft.rfft(r - r.mean())) ** 2
-    floor = ndimage.median_filter(spec, size=31, mode="nearest") / math.log(2.0)
-    lowest = 8
-    ratio = spec[lowest:] / np.maximum(floor[lowest:], 1e-300)
-    k = lowest + int(np.argmax(ratio))
-    if ratio[k - lowest] < math.log(spec.size) + 20.0:
-        return None
-    band = slice(max(k - 2, 0), k + 3)
-    energy = float(np.sum(np.clip(spec[band] - floor[band], 0, None))) * 2.0 / n
-    relative = energy / max(float(ring @ ring), 1e-300)
-    if relative < 1e-3:
-        return None
-    return {"frequency": k / (n * dt), "relative_energy": relative}
-
-
-def _time_option(method: Method, setup: Setup, key: str, t: np.ndarray) -> int | None:
-    """The sample where the time option ``key`` (an instant; before the trigger allowed) falls."""
-    seconds = method.time_option(setup, key, negative=True)
-    if seconds is None:
-        return None
-    if not t[0] <= seconds <= t[-1]:
-        raise SetupError(f"{setup.source}: option {key} = {method.option(setup, key)!r} lies outside the "
-                         f"record ({t[0]:.6g} s to {t[-1]:.6g} s)")
-    return int(np.searchsorted(t, seconds))

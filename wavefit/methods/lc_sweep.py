@@ -16,25 +16,25 @@ and srf = 1/(2π·√(L·C)), k_t being the timebase factor common to all captur
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 from uncertainties import ufloat
 
 from ..errors import AnalysisRefused
 from ..fit.line_eiv import york_line
-from ..io.capture import Capture
-from ..results import AnalysisResult, LinePlot
+from ..measurement import Measurement
+from ..outputs import Scalar
+from ..results import LinePlot
 from ..setup import Setup
-from ..uncertainty import InputSet, propagate
+from ..uncertainty import InputSet, Propagation
 from . import register
 from ._model_check import ModelCheck
+from ._ring import check_time_options, coil_loss_option, loss_correction, measure_ring
+from ._scale_factor import LINE_SCATTER_P, birge_ratio, scale_factor
 from .base import Method
-from .lc_ring import LcRing, check_time_options, coil_loss_option, loss_correction, measure_ring
-
-UNITS = {"L": "H", "C": "F", "srf": "Hz"}
-#: Points off the line: warn when the chi-square probability falls below this.
-LINE_P_VALUE = 0.01
+from .estimate import Estimate, FittedBlock
+from .lc_ring import LOSS_SPLIT, LcRing
 
 
 @register
@@ -46,7 +46,7 @@ class LcSweep(Method):
     roles = LcRing.roles
     parts = LcRing.parts
     options = LcRing.options
-    quantities = ("L", "C", "srf")
+    outputs = {"L": Scalar("H"), "C": Scalar("F"), "srf": Scalar("Hz")}
     positive = ("L",)
     unphysical_hint = "check each capture's tank_capacitor and that every capture holds a free ring"
     uses_setup_captures = True
@@ -55,23 +55,19 @@ class LcSweep(Method):
         super().check_setup(setup)
         check_time_options(self, setup)
 
-    def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
-        if len(captures) < 2:
+    def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
+        if len(measurement.captures) < 2:
             raise AnalysisRefused(f"{setup.source}: lc-sweep needs at least two captures with different "
                                   "tank capacitors (three or more to check that they lie on a line)")
         coil_loss = coil_loss_option(self, setup)
-        entries = setup.captures or ()
         warnings, per_capture, rings = [], [], []
-        for k, capture in enumerate(captures):
-            parts = dict(setup.parts)
-            if k < len(entries):
-                parts.update(entries[k].parts)
-            if "tank_capacitor" not in parts:
-                raise AnalysisRefused(f"{capture.source}: no tank_capacitor for this capture; "
+        for bound in measurement.captures:
+            if "tank_capacitor" not in bound.parts:
+                raise AnalysisRefused(f"{bound.source}: no tank_capacitor for this capture; "
                                       "give one in its [[captures]] table")
-            meas = measure_ring(self, capture, setup)
-            rings.append((meas, parts))
-            warnings += [f"{capture.source}: {w}" for w in meas.warnings]
+            meas = measure_ring(self, bound.capture, setup)
+            rings.append((meas, bound.parts))
+            warnings += [f"{bound.source}: {w}" for w in meas.warnings]
         x = np.array([parts["tank_capacitor"].value for _, parts in rings])
         u_x = np.array([parts["tank_capacitor"].standard_uncertainty for _, parts in rings])
         if np.ptp(x) <= 0:
@@ -90,8 +86,8 @@ class LcSweep(Method):
             except ValueError as exc:
                 raise AnalysisRefused(f"{setup.source}: the line fit failed ({exc})") from None
             extra = max(line.intercept / line.slope, 0.0) if line.slope > 0 else 0.0
-        for capture, (meas, parts), yi, ui in zip(captures, rings, y, u_y):
-            per_capture.append({"source": capture.source,
+        for bound, (meas, parts), yi, ui in zip(measurement.captures, rings, y, u_y):
+            per_capture.append({"source": bound.source,
                                 "tank_capacitor": parts["tank_capacitor"].value,
                                 "f0": meas.ring.w0 / (2 * math.pi), "inverse_w_squared": float(yi),
                                 "u_inverse_w_squared": float(ui), "cycles": meas.info["cycles"],
@@ -102,8 +98,8 @@ class LcSweep(Method):
         if line.dof == 0:
             warnings.append("two captures: a line always passes through two points, so nothing checks "
                             "that the model holds; add a third capacitor")
-        elif line.p_value < LINE_P_VALUE:
-            birge = math.sqrt(line.chi2 / line.dof)
+        elif scale_factor(*birge_ratio(line.chi2, line.dof), LINE_SCATTER_P) > 1.0:
+            birge = birge_ratio(line.chi2, line.dof)[0]
             cov = cov * birge ** 2
             dof = float(line.dof)
             warnings.append(f"the points do not lie on a line (chi-square {line.chi2:.3g} for {line.dof} "
@@ -113,31 +109,34 @@ class LcSweep(Method):
             raise AnalysisRefused(
                 f"{setup.source}: the line 1/w0² against capacitance has slope {line.slope:.3g} and intercept "
                 f"{line.intercept:.3g}; both must be positive for L and C (check the tank_capacitor values)")
-        inputs = InputSet()
-        inputs.add_correlated(("line slope", "line intercept"), (line.slope, line.intercept), cov,
-                              ("H", "s2"), dof, "line")
-        inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
-        has_stray = "stray_capacitance" in setup.parts
-        if has_stray:
-            inputs.add_part("stray_capacitance", setup.parts["stray_capacitance"])
-        prop = propagate(inputs, lambda v: _model(v, has_stray), UNITS)
-        if has_stray and prop.quantities["C"].value <= 0:
-            warnings.append("the fitted capacitance is smaller than the stray_capacitance given: "
-                            "C and srf are not meaningful")
-        inadequate = [capture.source for capture, (meas, _) in zip(captures, rings)
+        block = FittedBlock(("line slope", "line intercept"), np.array([line.slope, line.intercept]), cov,
+                            ("H", "s2"), dof, group="line")
+        inadequate = [bound.source for bound, (meas, _) in zip(measurement.captures, rings)
                       if not meas.model_check.adequate]
-        unchecked = [capture.source for capture, (meas, _) in zip(captures, rings)
-                     if meas.model_check.skipped is not None]
+        unchecked = [meas for meas, _ in rings if meas.model_check.skipped is not None]
         fit = {"model": "1/w0^2 = L*(C_added + C), York line", "coil_loss": coil_loss,
                "slope": line.slope, "intercept": line.intercept, "chi2": line.chi2, "dof": line.dof,
                "p_value": line.p_value, "birge_ratio": birge, "captures": per_capture,
                "model_check": {"adequate": not inadequate, "varied": "each ring checked alone (see captures)",
                                "inadequate_captures": inadequate}}
-        if len(unchecked) == len(captures):
+        if len(unchecked) == len(rings):
             fit["model_check"]["skipped"] = "no ring's check was possible (see captures)"
         plot = LinePlot(x, y, u_x, u_y, line.slope, line.intercept, "added capacitance (F)", "1/w0² (s²)")
-        return AnalysisResult(self.name, [c.source for c in captures], prop.quantities, prop.budget, fit,
-                              tuple(warnings), prop.correlation, plot, adequate=not inadequate)
+        return Estimate((block,), fit, settings={"has_stray": "stray_capacitance" in measurement.parts},
+                        warnings=tuple(warnings), plot=plot, adequate=not inadequate)
+
+    def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
+        """L = slope·k_t², C = intercept/slope (less the stray given), srf = 1/(2π√(L·C))."""
+        tb = x["timebase"]
+        inductance = x["line slope"] * tb ** 2
+        cap = x["line intercept"] / x["line slope"] - (x["stray_capacitance"] if settings["has_stray"] else 0.0)
+        return {"L": inductance, "C": cap, "srf": 1.0 / (2 * math.pi * (inductance * cap) ** 0.5)}
+
+    def review(self, estimate: Estimate, inputs: InputSet, propagation: Propagation) -> tuple[str, ...]:
+        if estimate.settings["has_stray"] and propagation.quantities["C"].value <= 0:
+            return ("the fitted capacitance is smaller than the stray_capacitance given: "
+                    "C and srf are not meaningful",)
+        return ()
 
 
 def _corrected_point(ring: Any, parts: dict, coil_loss: str, extra: float,
@@ -156,7 +155,7 @@ def _corrected_point(ring: Any, parts: dict, coil_loss: str, extra: float,
     g = 1.0 / (parts["parallel_load"].value * cap) if "parallel_load" in parts else 0.0
     if float(alpha.nominal_value) <= g / 2.0:
         g = 0.0  # the load seems to explain all damping: leave the second-order correction out
-    split = ufloat(0.5, 0.5 / math.sqrt(3.0)) if coil_loss == "unknown" else None
+    split = ufloat(LOSS_SPLIT.value, LOSS_SPLIT.standard_uncertainty) if coil_loss == "unknown" else None
     w2 = w_d ** 2 + alpha ** 2 - loss_correction(alpha - g / 2.0, g, coil_loss, split)
     y = 1.0 / w2
     return float(y.nominal_value), float(y.std_dev)
@@ -166,10 +165,3 @@ def _correlated_pair(values: np.ndarray, cov: np.ndarray) -> tuple[Any, Any]:
     from uncertainties import correlated_values
 
     return tuple(correlated_values(values, cov))
-
-
-def _model(v: dict, has_stray: bool) -> dict:
-    tb = v["timebase"]
-    inductance = v["line slope"] * tb ** 2
-    cap = v["line intercept"] / v["line slope"] - (v["stray_capacitance"] if has_stray else 0.0)
-    return {"L": inductance, "C": cap, "srf": 1.0 / (2 * math.pi * (inductance * cap) ** 0.5)}

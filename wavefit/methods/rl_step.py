@@ -21,7 +21,7 @@ time constant tau toward its final level):
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 
@@ -31,25 +31,44 @@ from ..fit.exponential import WindowChannel, fit_exponential_window, window_mode
 from ..fit.noise_model import fit_ar
 from ..fit.quantisation import RECORD_WIDE, include_quantisation, noise_before_converter
 from ..fit.result import FitResult
-from ..io.capture import Capture
-from ..results import AnalysisResult, TracePlot
+from ..measurement import Measurement
+from ..outputs import Scalar
+from ..results import TracePlot
 from ..setup import Setup
 from ..signal.clipping import extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant
-from ..uncertainty import InputSet, propagate
 from . import register
 from ._model_check import ModelCheck, Variation, added
-from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, combine, late_start,
-                          placement_factor, placement_jitter, pooled_windows, settle_starts, start_margin,
-                          whole_record)
+from ._rl_estimators import estimate_tau
+from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, late_start,
+                          placement_factor, placement_jitter, settle_starts, start_margin)
+from ._scale_factor import EDGE_SCATTER_P, scale_factor
 from ._rl_wiring import check_wiring
 from .base import Method, PartSpec
+from .estimate import Estimate, FittedBlock
 
 #: Budget input that carries tau's movement with the fit window when the model check fires.
 MODEL_INPUT = "model"
 #: Source resistance assumed only to size the skip after a winding-capacitance spike
 #: when the setup does not give it (the usual generator output resistance; common practice).
 TYPICAL_SOURCE_RESISTANCE = 50.0
+#: Fewer samples per tau than this is warned: the exponential's curvature is then resolved by
+#: few samples and the edge's placement matters (common practice: 10 samples per time constant).
+MIN_SAMPLES_PER_TAU = 10.0
+#: A window shorter than this many tau after its edge leaves the final level extrapolated
+#: (e^−5 < 1 %: the record then holds the settled state; common practice).
+SETTLED_TAU = 5.0
+#: The generator's edge time above this fraction of tau makes the step visibly not ideal.
+EDGE_TIME_FRACTION = 0.1
+#: The probe capacitance's pole (R_sense·C_probe) above this fraction of tau makes the
+#: first-order correction of the measurement function doubtful (its neglected term is the square).
+PROBE_POLE_FRACTION = 0.05
+#: Rising against falling tau beyond this many standard uncertainties is warned (about 0.3 %
+#: false alarms for a normal difference: a level-dependent part, not noise).
+RISE_FALL_Z = 3.0
+#: Edges placed from the sense trace worse than this many samples are warned (the window start
+#: margin then costs a visible share of tau's precision; see start_margin).
+JITTER_WARN_SAMPLES = 2.0
 
 
 @register
@@ -68,7 +87,8 @@ class RLStep(Method):
         "winding_capacitance": PartSpec("F", False, "self-capacitance across the inductor"),
     }
     options = {"skip": "auto", "noise": "auto"}
-    quantities = ("L", "R", "tau", "R_loop", "I_final", "E")
+    outputs = {"L": Scalar("H"), "R": Scalar("ohm"), "tau": Scalar("s"), "R_loop": Scalar("ohm"),
+               "I_final": Scalar("A"), "E": Scalar("J")}
     positive = ("L", "tau", "R_loop")
     unphysical_hint = ("check [columns] (drive and sense swapped? an inverted probe?), the parts, and that "
                        "the capture holds steps of an RL loop, not a ring")
@@ -85,8 +105,8 @@ class RLStep(Method):
             raise SetupError(f"{setup.source}: option noise must be \"auto\" or \"white\", got {noise!r}")
         self.time_option(setup, "skip", keywords=("auto",))  # "auto", or a time >= 0 ("30 ns")
 
-    def analyze(self, captures: list[Capture], setup: Setup) -> AnalysisResult:
-        capture = captures[0]
+    def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
+        capture = measurement.first.capture
         t = np.asarray(capture.time, dtype=float)
         sense = np.asarray(self.channel(capture, setup, "sense").values, dtype=float)
         drive = (np.asarray(self.channel(capture, setup, "drive").values, dtype=float)
@@ -132,23 +152,11 @@ class RLStep(Method):
             raise AnalysisRefused(f"{capture.source}: the record starts at the edge, so there is no settled "
                                   "pre-edge level to pin the offset; record some time before the step")
 
-        combined = combine(windows, fits, baseline, drive is not None)
-        estimator = "per-edge windows"
-        if drive is None and not white and len(windows) > 1:
-            pooled = pooled_windows(t, sense, windows, baseline, combined, noise)
-            if pooled is not None:
-                combined, estimator = pooled, "windows fitted jointly with one noise model"
-        if (drive is None and white and self.option(setup, "skip") == "auto"
-                and "winding_capacitance" not in setup.parts):
-            # in correlated noise the whole-record fit's switching instants lock onto noise
-            # features (measured: coverage well below nominal), so it is used on white noise only
-            combined, accepted = whole_record(t, sense, edges, windows, fits, baseline, combined, noise,
-                                               self._fit_window)
-            if accepted:
-                estimator = "whole-record relaxation fit"
-            else:
-                notes.append("the whole-record fit disagreed with windows that skip the edges (edges not "
-                             "instantaneous?); windows with a margin after each edge are used")
+        choice = estimate_tau(t, sense, drive is not None, white, self.option(setup, "skip") == "auto",
+                              "winding_capacitance" in setup.parts, edges, windows, fits, baseline, noise,
+                              self._fit_window)
+        combined, estimator = choice.combined, choice.estimator
+        notes += choice.notes
         notes.append(f"tau and levels from the {estimator}")
         if _on_codes(fits):
             notes.append("each fit carried to the maximum of the likelihood of the converter's codes "
@@ -167,7 +175,7 @@ class RLStep(Method):
                 notes.append(f"edges placed from the sense trace to about {jitter:.1f} samples in correlated "
                              f"noise: tau's variance enlarged {factor:.2f}-fold, to that of windows starting "
                              "that much later")
-            if jitter > 2.0:
+            if jitter > JITTER_WARN_SAMPLES:
                 margin = start_margin(jitter * dt, dt) / dt
                 warnings.append(f"correlated noise and a low signal-to-noise ratio: the edges are located only "
                                 f"to about {jitter:.1f} samples from the sense trace, so each window starts "
@@ -180,25 +188,22 @@ class RLStep(Method):
             warnings.append(check.warning("single-exponential model", "a coil that is not one time constant: "
                                           "eddy currents in its core or in an armature?"))
 
-        inputs = InputSet()
-        inputs.add_correlated(combined.names, combined.values, combined.covariance,
-                              combined.units, combined.dof, group="fit", kind="A")
-        check.add_inputs(inputs)
-        self._type_b(inputs, setup, drive is not None)
         if drive is not None and "source_resistance" in setup.parts:
             notes.append("source_resistance is not used: the drive channel measures the generator")
         if drive is None:
             notes.append("R is the dut_resistance part as given (no drive channel to measure it)")
-        prop = propagate(inputs, _measurement_function(drive is not None, setup),
-                         {"L": "H", "R": "ohm", "tau": "s", "R_loop": "ohm", "I_final": "A", "E": "J"})
-
         fit_info = self._fit_info(windows, fits, combined, baseline, dt, notes)
+        fit_info["estimator"] = estimator
         fit_info["model_check"] = check.summary()
-        return AnalysisResult(
-            method=self.name, source=capture.source, quantities=prop.quantities, budget=prop.budget,
-            fit=fit_info, warnings=tuple(dict.fromkeys(warnings)), correlation=prop.correlation,
-            plot_data=_plot(t, sense, drive, windows, fits), adequate=check.adequate,
-        )
+        block = FittedBlock(tuple(combined.names), combined.values, combined.covariance, tuple(combined.units),
+                            combined.dof)
+        return Estimate((block,), fit_info, check.budget_inputs(),
+                        {"has_drive": drive is not None, "parts": frozenset(measurement.parts)},
+                        tuple(warnings), _plot(t, sense, drive, windows, fits), check.adequate)
+
+    def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
+        """The measurement function (module docstring), with ``uncertainties`` numbers or floats."""
+        return measurement_function(x, settings["has_drive"], settings["parts"])
 
     # -- windows and fits -------------------------------------------------------------------
 
@@ -285,18 +290,18 @@ class RLStep(Method):
     @staticmethod
     def _diagnostics(t, sense, drive, windows, fits, tau, dt, edge_time, setup, combined, facts) -> list[str]:
         out = []
-        if tau < 10 * dt:
-            out.append(f"only {tau / dt:.1f} samples per tau (fewer than 10): sample faster or use a "
-                       "larger inductance / smaller loop resistance")
-        short = [w for w in windows if t[w.stop - 1] - w.t0 < 5 * tau]
+        if tau < MIN_SAMPLES_PER_TAU * dt:
+            out.append(f"only {tau / dt:.1f} samples per tau (fewer than {MIN_SAMPLES_PER_TAU:g}): sample faster or "
+                       "use a larger inductance / smaller loop resistance")
+        short = [w for w in windows if t[w.stop - 1] - w.t0 < SETTLED_TAU * tau]
         if short:
-            out.append(f"{len(short)} of {len(windows)} edges are followed by less than 5 tau of record; the "
-                       "final level is extrapolated (lengthen the period or the record)")
-        if edge_time > 0.1 * tau:
+            out.append(f"{len(short)} of {len(windows)} edges are followed by less than {SETTLED_TAU:g} tau of "
+                       "record; the final level is extrapolated (lengthen the period or the record)")
+        if edge_time > EDGE_TIME_FRACTION * tau:
             out.append(f"tau ({tau:.3g} s) is comparable to the generator's edge time ({edge_time:.3g} s); "
                        "use a faster generator or a larger inductance")
         cp = setup.parts.get("probe_capacitance")
-        if cp is not None and setup.parts["sense_resistor"].value * cp.value > 0.05 * tau:
+        if cp is not None and setup.parts["sense_resistor"].value * cp.value > PROBE_POLE_FRACTION * tau:
             out.append("the probe capacitance with the sense resistor makes a pole comparable to tau; "
                        "the first-order correction used may not suffice")
         for w, fit in zip(windows, fits):
@@ -314,28 +319,13 @@ class RLStep(Method):
                                "curve goes beyond it): reduce the vertical sensitivity")
         if combined.rise_fall is not None:
             z = combined.rise_fall
-            if abs(z) > 3.0:
+            if abs(z) > RISE_FALL_Z:
                 out.append(f"rising and falling edges disagree on tau by {abs(z):.1f} standard uncertainties: "
                            "core nonlinearity, a diode or a level-dependent part in the loop")
-        if combined.birge is not None and combined.birge[1] < 1e-3:
+        if combined.birge is not None and scale_factor(*combined.birge, EDGE_SCATTER_P) > 1.0:
             out.append(f"the per-edge estimates scatter more than their uncertainties (Birge ratio "
                        f"{combined.birge[0]:.2f}); the type A uncertainty is enlarged by that ratio")
         return out
-
-    # -- budget -----------------------------------------------------------------------------
-
-    @staticmethod
-    def _type_b(inputs: InputSet, setup: Setup, has_drive: bool) -> None:
-        for name in ("sense_resistor", "probe_resistance", "probe_capacitance", "winding_capacitance"):
-            if name in setup.parts:
-                inputs.add_part(name, setup.parts[name])
-        if not has_drive:
-            inputs.add_part("source_resistance", setup.parts["source_resistance"])
-            inputs.add_part("dut_resistance", setup.parts["dut_resistance"])
-        inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
-        inputs.add("vertical_gain_sense", 1.0, setup.gain_for("sense").standard_uncertainty, "", "B")
-        if has_drive:
-            inputs.add("vertical_gain_drive", 1.0, setup.gain_for("drive").standard_uncertainty, "", "B")
 
     @staticmethod
     def _fit_info(windows, fits, combined, baseline, dt, notes) -> dict[str, Any]:
@@ -370,41 +360,38 @@ class RLStep(Method):
         return info
 
 
-# -- combination across edges ---------------------------------------------------------------
+# -- measurement function -----------------------------------------------------------------
 
 
-def _measurement_function(has_drive: bool, setup: Setup):
-    """The measurement model y = f(x) evaluated with ``uncertainties`` numbers."""
-    has = setup.parts.__contains__
-
-    def model(x):
-        r_s = x["sense_resistor"]
-        if has("probe_resistance"):
-            r_s = r_s * x["probe_resistance"] / (r_s + x["probe_resistance"])
-        tau = (x["tau_fit"] + added(x, MODEL_INPUT)) / x["timebase"]
-        step = (x["sense_high"] - x["sense_low"]) / x["vertical_gain_sense"]
-        current = step / r_s if getattr(step, "nominal_value", step) > 0 else -step / r_s
-        # sense impedance at the loop pole s1 = −1/tau (probe capacitance across the resistor)
-        z_s = r_s / (1 - r_s * x["probe_capacitance"] / tau) if has("probe_capacitance") else r_s
-        if has_drive:
-            ratio = x["vertical_gain_sense"] / x["vertical_gain_drive"]
-            k_dc = (x["drive_high"] - x["drive_low"]) / (x["sense_high"] - x["sense_low"]) * ratio
-            r_dut = (k_dc - 1) * r_s
-            r_src = -x["q_drive_sense"] * ratio * z_s
-        else:
-            r_dut = x["dut_resistance"]
-            r_src = x["source_resistance"]
-        w = r_src + z_s
-        if has("winding_capacitance"):
-            s1 = -1 / tau
-            xz = -w / (1 + w * s1 * x["winding_capacitance"])
-            inductance = tau * (r_dut - xz)
-        else:
-            inductance = tau * (r_dut + w)
-        return {"L": inductance, "R": r_dut, "tau": tau, "R_loop": r_src + r_dut + r_s,
-                "I_final": current, "E": inductance * current ** 2 / 2}
-
-    return model
+def measurement_function(x: Mapping[str, Any], has_drive: bool, parts: frozenset[str]) -> dict[str, Any]:
+    """The measurement model y = f(x) of rl-step (module docstring); ``parts`` are the names of
+    the parts the setup gives."""
+    has = parts.__contains__
+    r_s = x["sense_resistor"]
+    if has("probe_resistance"):
+        r_s = r_s * x["probe_resistance"] / (r_s + x["probe_resistance"])
+    tau = (x["tau_fit"] + added(x, MODEL_INPUT)) / x["timebase"]
+    step = (x["sense_high"] - x["sense_low"]) / x["vertical_gain_sense"]
+    current = step / r_s if getattr(step, "nominal_value", step) > 0 else -step / r_s
+    # sense impedance at the loop pole s1 = −1/tau (probe capacitance across the resistor)
+    z_s = r_s / (1 - r_s * x["probe_capacitance"] / tau) if has("probe_capacitance") else r_s
+    if has_drive:
+        ratio = x["vertical_gain_sense"] / x["vertical_gain_drive"]
+        k_dc = (x["drive_high"] - x["drive_low"]) / (x["sense_high"] - x["sense_low"]) * ratio
+        r_dut = (k_dc - 1) * r_s
+        r_src = -x["q_drive_sense"] * ratio * z_s
+    else:
+        r_dut = x["dut_resistance"]
+        r_src = x["source_resistance"]
+    w = r_src + z_s
+    if has("winding_capacitance"):
+        s1 = -1 / tau
+        xz = -w / (1 + w * s1 * x["winding_capacitance"])
+        inductance = tau * (r_dut - xz)
+    else:
+        inductance = tau * (r_dut + w)
+    return {"L": inductance, "R": r_dut, "tau": tau, "R_loop": r_src + r_dut + r_s,
+            "I_final": current, "E": inductance * current ** 2 / 2}
 
 
 def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:

@@ -5,6 +5,7 @@ import math
 
 from ..results import AnalysisResult
 from ..values import eng, eng_pm
+from .curve_text import curve_lines
 from .monte_carlo_text import monte_carlo_lines
 
 SAFETY_NOTE = ("Safety: pulse and ring tests store energy (L·I²/2, C·V²/2) and interrupting "
@@ -16,11 +17,14 @@ def render(result: AnalysisResult, budget: bool = True) -> str:
     src = result.source if isinstance(result.source, str) else ", ".join(result.source)
     lines = [f"wavefit {result.method}: {src}", *_model_check_lines(result), ""]
     width = max((len(n) for n in result.quantities), default=4)
-    lines.append(f"  {'quantity':<{width}}  {'value ± U':<28}  k     u_rel")
+    if result.quantities:
+        lines.append(f"  {'quantity':<{width}}  {'value ± U':<28}  k     u_rel")
     for name, q in result.quantities.items():
         rel = q.standard_uncertainty / abs(q.value) if q.value else math.inf
         lines.append(f"  {name:<{width}}  {eng_pm(q.value, q.expanded_uncertainty, q.unit):<28}  "
                      f"{q.coverage_factor:4.2f}  {rel:8.2e}")
+    for curve in result.curves.values():
+        lines += ["", *curve_lines(curve, budget)]
     lines.append("  (U is the expanded uncertainty, coverage probability about 95 %, k from "
                  "effective degrees of freedom)")
     lines += monte_carlo_lines(result)
@@ -55,6 +59,8 @@ def _fit_summary(fit: dict) -> list[str]:
 def _model_check_lines(result: AnalysisResult) -> list[str]:
     """The model check's verdict, read from ``result.adequate`` and ``fit["model_check"]``;
     an inadequate model is said in capitals before the numbers."""
+    if "model_check" not in result.fit and result.adequate:
+        return []  # a method without a model check says nothing about it
     check = result.fit.get("model_check", {})
     if result.adequate:
         if "skipped" in check:

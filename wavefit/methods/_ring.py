@@ -1,0 +1,268 @@
+"""The ring stage shared by lc-ring and lc-sweep: fit one capture's free ring with a damped
+sinusoid and check the fit's assumptions (cycles above the noise, sampling, clipping, a
+frequency that drifts with amplitude, a second oscillation in the residuals, the model check
+of the early against the late part of the ring).
+
+The measurement functions built on it are in :mod:`wavefit.methods.lc_ring` and
+:mod:`wavefit.methods.lc_sweep`; the coil-loss correction Δ they share
+(:func:`loss_correction`) is derived in ``docs/method-lc-ring.md``.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from scipy import ndimage
+
+from ..errors import AnalysisRefused, SetupError
+from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring
+from ..io.capture import Capture
+from ..setup import Setup
+from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
+from ._model_check import MODEL_Z, ModelCheck, Variation
+from .base import Method
+
+COIL_LOSS = ("unknown", "series", "parallel")
+#: |f0 early − f0 late| above this many combined standard uncertainties is flagged: the
+#: model check's threshold, since the same two partial fits serve both.
+DRIFT_Z = MODEL_Z
+#: Budget inputs for the movement of w_d and of alpha between the early and the late part
+#: of the ring, added when the model check fires (see ring_model_check).
+MODEL_FREQUENCY, MODEL_DECAY = "model", "model_decay"
+
+#: Fewest samples a ring fit is tried on: a damped sinusoid has five parameters and the noise
+#: model needs samples beyond them (common practice).
+MIN_SAMPLES = 32
+#: Ring amplitude below this many noise rms is refused: the fit's start values and its linear
+#: covariance are not trusted there (common practice for sinusoid fits).
+MIN_AMPLITUDE_TO_NOISE = 5.0
+#: Cycles above the noise (amplitude over 2 noise rms): fewer than MIN_CYCLES is refused (no
+#: period is resolved), fewer than FEW_CYCLES is warned (frequency and damping then correlate
+#: strongly and the linear interval is poor).
+MIN_CYCLES, FEW_CYCLES = 1.0, 3.0
+#: Samples per period: fewer than FEW_SAMPLES_PER_PERIOD is warned (the fit's Jacobian is coarse),
+#: fewer than ALIAS_SAMPLES_PER_PERIOD (half the Nyquist frequency) may be an alias.
+FEW_SAMPLES_PER_PERIOD, ALIAS_SAMPLES_PER_PERIOD = 10.0, 4.0
+#: Consecutive samples at the record's extremes that, with a model beyond them, mean clipping.
+CLIPPED_RUN = 5
+
+
+@dataclass(frozen=True)
+class RingMeasurement:
+    """One fitted ring with its diagnostics, ready for a measurement function."""
+
+    ring: DampedSineFit
+    time: np.ndarray
+    data: np.ndarray
+    unit: str
+    info: dict[str, Any]
+    warnings: tuple[str, ...]
+    model_check: ModelCheck
+
+
+def check_time_options(method: Method, setup: Setup) -> None:
+    """Refuse a fit_start or fit_end that is not a time, before any capture is read."""
+    for key in ("fit_start", "fit_end"):
+        method.time_option(setup, key, negative=True)
+
+
+def coil_loss_option(method: Method, setup: Setup) -> str:
+    value = str(method.option(setup, "coil_loss"))
+    if value not in COIL_LOSS:
+        raise SetupError(f"{setup.source}: option coil_loss = {value!r}; valid: {', '.join(COIL_LOSS)}")
+    return value
+
+
+def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurement:
+    """Fit the ring in ``capture`` and check the fit's assumptions."""
+    channel = method.channel(capture, setup, "tank")
+    t = np.asarray(capture.time, dtype=float)
+    y = np.asarray(channel.values, dtype=float)
+    if not np.all(np.isfinite(y)):
+        raise AnalysisRefused(f"{capture.source}: the tank channel holds non-numeric or missing samples; "
+                              "remove them or export the capture again")
+    if y.size < MIN_SAMPLES:
+        raise AnalysisRefused(f"{capture.source}: {y.size} samples is too few for a ring fit; record at least "
+                              f"{MIN_SAMPLES}")
+    noise = str(method.option(setup, "noise"))
+    if noise not in ("auto", "white"):
+        raise SetupError(f"{setup.source}: option noise = {noise!r}; valid: auto, white")
+    start = _time_option(method, setup, "fit_start", t)
+    stop = _time_option(method, setup, "fit_end", t)
+    try:
+        ring = fit_ring(t, y, start=start, stop=stop, noise=noise)
+    except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+        raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
+                              "check the [columns] tank entry and that the record holds the ring") from None
+    warnings = [f"fit: {w}" for w in ring.fit.warnings]
+    info, check = _checks(ring, t, y, capture.source, warnings, noise)
+    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings), check)
+
+
+def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> Any:
+    """Δ = w0² − 1/(L·C) for the coil-loss assumption (see the module docstring)."""
+    if coil_loss == "parallel":
+        return 0.0
+    if coil_loss == "series":
+        return 2.0 * alpha_c * g
+    nominal_g = float(getattr(g, "nominal_value", g))
+    nominal_a = float(getattr(alpha_c, "nominal_value", alpha_c))
+    d_max = (g + 2.0 * alpha_c) ** 2 / 4.0 if nominal_g <= 2.0 * nominal_a else 2.0 * alpha_c * g
+    return split * d_max
+
+
+def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warnings: list[str],
+            noise: str) -> tuple[dict[str, Any], ModelCheck]:
+    """The fit's diagnostics (appending to ``warnings``) and its model check."""
+    dt = ring.sample_interval
+    sigma = ring.fit.noise_sigma["tank"]
+    amp = ring.amplitude
+    spp = 2 * math.pi / (ring.w_d * dt)
+    if not amp > MIN_AMPLITUDE_TO_NOISE * sigma:
+        raise AnalysisRefused(f"{source}: the ring's amplitude is {amp / sigma:.1f} times the noise rms; "
+                              f"no trustworthy fit below {MIN_AMPLITUDE_TO_NOISE:g} (raise the excitation or "
+                              "average captures)")
+    n_visible = math.log(amp / (2.0 * sigma)) / (ring.alpha * dt) if ring.alpha > 0 else math.inf
+    visible = min(n_visible, ring.stop - ring.start) / spp
+    if visible < MIN_CYCLES:
+        raise AnalysisRefused(f"{source}: only {visible:.1f} cycles stand above the noise; a ring fit needs "
+                              f"at least {FEW_CYCLES:g} (use a smaller feed-resistor load or less damping)")
+    if visible < FEW_CYCLES:
+        warnings.append(f"too few cycles: {visible:.1f} stand above the noise ({FEW_CYCLES:g} or more are needed "
+                        "for a reliable frequency and damping)")
+    if spp < FEW_SAMPLES_PER_PERIOD:
+        warnings.append(f"{spp:.1f} samples per period, fewer than {FEW_SAMPLES_PER_PERIOD:g}: "
+                        "sample faster")
+    if spp < ALIAS_SAMPLES_PER_PERIOD:
+        warnings.append(f"suspected aliasing: the ring is at {100 * 2 / spp:.0f} % of the Nyquist frequency; "
+                        "an undersampled ring looks like a slower one, so f0 may be an alias")
+    seg_t, seg_y = t[ring.start:ring.stop], y[ring.start:ring.stop]
+    fitted = ring.evaluate(seg_t)
+    runs = longest_run_at_extremes(seg_y)
+    if (max(runs) >= CLIPPED_RUN and model_exceeds_record(seg_y, fitted, sigma)) or piles_up_at_limit(seg_y, sigma):
+        warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
+                        "whole ring fits on screen")
+    halves = _halves(ring, y, noise)
+    drift = _drift_check(halves)
+    if drift.get("z", 0.0) > DRIFT_Z:
+        warnings.append(
+            f"frequency changes with amplitude: f0 = {drift['f0_early']:.7g} Hz early and "
+            f"{drift['f0_late']:.7g} Hz late in the ring ({drift['z']:.1f} standard uncertainties apart): "
+            "core nonlinearity? repeat with a smaller excitation")
+    check = ring_model_check(ring, halves)
+    if not check.adequate:
+        warnings.append(check.warning("damped-sinusoid model", "damping or frequency that changes with "
+                                      "amplitude: core loss or saturation?"))
+    spur = _residual_peak(ring.fit.residuals, fitted - ring.fit["offset"], dt)
+    if spur is not None:
+        warnings.append(f"a second oscillation at {spur['frequency']:.4g} Hz ({spur['relative_energy']:.1e} of "
+                        "the ring's energy) remains in the residuals: second mode, beat or pickup")
+    return {
+        "model": ring.fit.model,
+        "window_start_s": float(t[ring.start]),
+        "window_end_s": float(t[ring.stop - 1]),
+        "cycles": float(ring.cycles),
+        "cycles_above_noise": float(visible),
+        "samples_per_period": float(spp),
+        "amplitude_to_noise": float(amp / sigma),
+        "drift_check": drift,
+        "model_check": check.summary(),
+        "residual_peak": spur,
+        **ring.fit.summary(),
+    }, check
+
+
+def _halves(ring: DampedSineFit, y: np.ndarray, noise: str) -> tuple[DampedSineFit, DampedSineFit] | str:
+    """The early and the late part of the ring fitted separately (each from the whole fit's
+    parameters carried to its first sample), or why they could not be."""
+    n = ring.stop - ring.start
+    dt = ring.sample_interval
+    x = ring.fit.values.copy()
+    x[3:] *= dt
+    spp = 2 * math.pi / x[4]
+    split = int(min(n / 2, 1.5 / x[3])) if x[3] > 0 else n // 2
+    if split < max(2 * spp, 20) or n - split < max(2 * spp, 20):
+        return "fewer than 2 cycles or 20 samples in the early or late part"
+    e = math.exp(-x[3] * split)
+    c, s = math.cos(x[4] * split), math.sin(x[4] * split)
+    late0 = np.array([x[0], e * (x[1] * c + x[2] * s), e * (x[2] * c - x[1] * s), x[3], x[4]])
+    t_axis = np.arange(n) * dt
+    parts = []
+    for lo, hi, x0 in ((0, split, x), (split, n, late0)):
+        seg = y[ring.start + lo:ring.start + hi]
+        try:
+            parts.append(fit_damped_sine(t_axis[lo:hi], seg, x0, dt, noise=noise))
+        except (ValueError, FloatingPointError, np.linalg.LinAlgError):
+            return "a partial fit failed"
+    return parts[0], parts[1]
+
+
+def _drift_check(halves: tuple[DampedSineFit, DampedSineFit] | str) -> dict[str, Any]:
+    """Compare f0 of the early and the late part of the ring."""
+    if isinstance(halves, str):
+        return {"skipped": halves}
+    parts = []
+    for sub in halves:
+        g = np.array([sub.alpha, sub.w_d]) / sub.w0
+        _, cov = sub.fit.subset(("alpha", "w_d"))
+        parts.append((sub.w0 / (2 * math.pi), math.sqrt(max(float(g @ cov @ g), 0.0)) / (2 * math.pi)))
+    (f_e, u_e), (f_l, u_l) = parts
+    u = math.hypot(u_e, u_l)
+    return {"f0_early": f_e, "u_early": u_e, "f0_late": f_l, "u_late": u_l,
+            "z": abs(f_e - f_l) / u if u > 0 else math.inf}
+
+
+def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSineFit] | str) -> ModelCheck:
+    """Model check of a ring: w_d and alpha of its early and late part (disjoint windows, so
+    the variance of a difference is the sum of theirs); a significant difference enters the
+    budget as input ``model`` on w_d or ``model_decay`` on alpha (see
+    :mod:`wavefit.methods._model_check`)."""
+    varied = "the ring's early part against its late part, each fitted alone"
+    if isinstance(halves, str):
+        return ModelCheck(varied, skipped=halves)
+    early, late = halves
+    variations = []
+    for name, label, unit in (("w_d", MODEL_FREQUENCY, "rad/s"), ("alpha", MODEL_DECAY, "1/s")):
+        u = math.hypot(early.fit.stderr(name), late.fit.stderr(name))
+        z = abs(early.fit[name] - late.fit[name]) / u if u > 0 else math.inf
+        variations.append(Variation(name, label, unit, ring.fit[name],
+                                    {"early": early.fit[name], "late": late.fit[name]}, z))
+    return ModelCheck(varied, tuple(variations))
+
+
+def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, float] | None:
+    """A spectral line in the residuals well above the local noise floor and above −30 dB of
+    the ring's energy (common practice for spotting a spurious tone), or None.
+
+    Lines closer than 8 bins to DC (fewer than 8 cycles in the window) are not searched:
+    there correlated noise rises steeply towards low frequency, the running median lags
+    behind it, and what remains is drift rather than an oscillation."""
+    n = r.size
+    if n < 64:
+        return None
+    spec = np.abs(np.fft.rfft(r - r.mean())) ** 2
+    floor = ndimage.median_filter(spec, size=31, mode="nearest") / math.log(2.0)
+    lowest = 8
+    ratio = spec[lowest:] / np.maximum(floor[lowest:], 1e-300)
+    k = lowest + int(np.argmax(ratio))
+    if ratio[k - lowest] < math.log(spec.size) + 20.0:
+        return None
+    band = slice(max(k - 2, 0), k + 3)
+    energy = float(np.sum(np.clip(spec[band] - floor[band], 0, None))) * 2.0 / n
+    relative = energy / max(float(ring @ ring), 1e-300)
+    if relative < 1e-3:
+        return None
+    return {"frequency": k / (n * dt), "relative_energy": relative}
+
+
+def _time_option(method: Method, setup: Setup, key: str, t: np.ndarray) -> int | None:
+    """The sample where the time option ``key`` (an instant; before the trigger allowed) falls."""
+    seconds = method.time_option(setup, key, negative=True)
+    if seconds is None:
+        return None
+    if not t[0] <= seconds <= t[-1]:
+        raise SetupError(f"{setup.source}: option {key} = {method.option(setup, key)!r} lies outside the "
+                         f"record ({t[0]:.6g} s to {t[-1]:.6g} s)")
+    return int(np.searchsorted(t, seconds))

@@ -1,0 +1,70 @@
+"""What a method's estimation stage hands to the shared analysis.
+
+:meth:`wavefit.methods.base.Method.estimate` fits the captures and returns an
+:class:`Estimate`: the fitted blocks (parameters with their joint covariance and degrees of
+freedom, type A), any other inputs it measured (a model check's spread, an assumption's
+range), the settings its measurement function needs, the fit summary, warnings and plot
+layers. The shared :meth:`~wavefit.methods.base.Method.analyze` turns it into a result.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+import numpy as np
+
+from ..uncertainty import InputQuantity
+
+
+@dataclass(frozen=True)
+class FittedBlock:
+    """Parameters estimated together, with their joint covariance (one correlated group).
+
+    ``dof`` is the degrees of freedom of the covariance (infinite when it is known, not
+    estimated); ``group`` names the block in the Welch–Satterthwaite sum, where a block counts
+    as one component (GUM G.4.1).
+    """
+
+    names: tuple[str, ...]
+    values: np.ndarray
+    covariance: np.ndarray
+    units: tuple[str, ...]
+    dof: float
+    group: str = "fit"
+    kind: str = "A"
+
+
+@dataclass(frozen=True)
+class Estimate:
+    """The estimation stage's outcome for one measurement.
+
+    Attributes
+    ----------
+    blocks
+        Fitted parameter blocks, inputs of the measurement function.
+    inputs
+        Other inputs the estimate found (independent of each other and of the blocks).
+    settings
+        What the measurement function needs beside its inputs (which parts are present,
+        an option's choice), read by :meth:`~wavefit.methods.base.Method.model`.
+    fit
+        The fit summary written under ``fit`` in the result.
+    warnings
+        Broken assumptions and other remarks, in order.
+    plot
+        The plot layers (:class:`~wavefit.results.TracePlot`, :class:`~wavefit.results.LinePlot`)
+        or ``None``; declared curves are drawn from the result itself.
+    adequate
+        False when the model check found that the model misses the waveform.
+    axes
+        The points of each curve axis, by axis name (conditions of the measurement, exact).
+    """
+
+    blocks: tuple[FittedBlock, ...]
+    fit: Mapping[str, Any]
+    inputs: tuple[InputQuantity, ...] = ()
+    settings: Mapping[str, Any] = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    plot: Any = None
+    adequate: bool = True
+    axes: Mapping[str, np.ndarray] = field(default_factory=dict)
