@@ -43,7 +43,7 @@ from typing import Callable
 import numpy as np
 from scipy import optimize
 
-from .compressed import TriangularProblem
+from .compressed import TriangularProblem, triangle
 from .engine import Block, fit_least_squares
 from .jacobian import Jacobian, Piece, is_small
 from .noise_model import white
@@ -213,7 +213,8 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     """
     n = y.size
     tau = np.arange(n, dtype=float)
-    x0 = refine(y, float(x0[3]), float(x0[4]), x0=np.asarray(x0, dtype=float), progressive=False)
+    x0 = refine(y, float(x0[3]), float(x0[4]), x0=np.asarray(x0, dtype=float), progressive=False,
+                sample_numbers=tau)
 
     def fun(x: np.ndarray) -> np.ndarray:
         return y - model(x, tau)
@@ -259,7 +260,7 @@ def ring_window(y: np.ndarray) -> RingWindow:
         onset = _onset(y, k1, float(dev0.max()))
     else:
         k1, onset = 0, 0  # the record starts inside the ring
-    spp = _samples_per_period(y[onset:] - final)
+    spp = _samples_per_period(y[onset:onset + SPECTRUM_SAMPLES] - final)
     skip = 0 if onset == 0 and k1 < 2 else max(2, int(math.ceil(0.02 * spp)))
     block = max(4, int(round(spp)))
     m = (n - onset) // block
@@ -302,11 +303,12 @@ def initial_estimate(y: np.ndarray, samples_per_period: float) -> tuple[float, f
 
 
 def refine(y: np.ndarray, alpha: float, w: float, x0: np.ndarray | None = None,
-           progressive: bool = True) -> np.ndarray:
+           progressive: bool = True, sample_numbers: np.ndarray | None = None) -> np.ndarray:
     """Unweighted Gauss–Newton (Levenberg–Marquardt) refinement in sample units.
 
     With ``progressive`` the window doubles from about 3 periods (or the strong part)
-    to the whole record, each fit starting from the previous one.
+    to the whole record, each fit starting from the previous one. ``sample_numbers``,
+    when the caller holds them, is ``np.arange(y.size, dtype=float)`` (not made again).
     """
     n = y.size
     x = _linear_start(y, alpha, w) if x0 is None else np.asarray(x0, dtype=float)
@@ -315,7 +317,7 @@ def refine(y: np.ndarray, alpha: float, w: float, x0: np.ndarray | None = None,
         length = int(min(n, max(24, 3 * 2 * math.pi / max(w, 1e-9))))
     while True:
         seg = y[:length]
-        tau = np.arange(length, dtype=float)
+        tau = sample_numbers if sample_numbers is not None and length == n else np.arange(length, dtype=float)
         if x0 is None and length < n:
             x = _linear_start(seg, x[3], x[4])
         residuals, jac = _start_problem(seg, tau)
@@ -345,12 +347,24 @@ def _start_problem(seg: np.ndarray, tau: np.ndarray) -> tuple[Callable, Callable
 
 
 def _linear_start(y: np.ndarray, alpha: float, w: float) -> np.ndarray:
-    tau = np.arange(y.size, dtype=float)
-    e = np.exp(-alpha * tau)
-    basis = np.column_stack([np.ones_like(tau), e * np.cos(w * tau), e * np.sin(w * tau)])
-    if not np.all(np.isfinite(basis)):
-        raise ValueError("the ring's decay rate could not be estimated")
-    coef, *_ = np.linalg.lstsq(basis, y, rcond=None)
+    """Offset and the two quadrature amplitudes for a given decay and frequency (linear least
+    squares); a long record through the triangular factor of its rows, never held whole."""
+    def basis(a: int, b: int) -> np.ndarray:
+        tau = np.arange(a, b, dtype=float)
+        e = np.exp(-alpha * tau)
+        return np.column_stack([np.ones_like(tau), e * np.cos(w * tau), e * np.sin(w * tau)])
+
+    if is_small(y.size, 3):
+        rows = basis(0, y.size)
+        if not np.all(np.isfinite(rows)):
+            raise ValueError("the ring's decay rate could not be estimated")
+        coef, *_ = np.linalg.lstsq(rows, y, rcond=None)
+    else:
+        factor = triangle(Jacobian(y.size, [Piece(0, y.size, basis, np.eye(3))]), y, [Block(0, y.size, "tank")],
+                          {"tank": white(1.0)})
+        if not np.all(np.isfinite(factor)):
+            raise ValueError("the ring's decay rate could not be estimated")
+        coef, *_ = np.linalg.lstsq(factor[:3, :3], factor[:3, 3], rcond=None)
     return np.array([coef[0], coef[1], coef[2], alpha, w])
 
 
@@ -378,6 +392,13 @@ def _onset(y: np.ndarray, k1: int, peak: float) -> int:
     tol = min(max(4.0 * sigma, 0.02 * peak), 0.25 * peak)
     off = np.flatnonzero(np.abs(y[:k1] - base) <= tol)
     return int(off[-1]) + 1 if off.size else 0
+
+
+#: The ring's period is found from the spectrum of at most this many samples after the onset
+#: (2 M, a 4 M-point transform): the ring is strongest there, and a record longer than that
+#: would need a transform of hundreds of megabytes; a ring whose period exceeds it fills
+#: fewer than five periods of even a 10-million-sample record.
+SPECTRUM_SAMPLES = 1 << 21
 
 
 def _samples_per_period(y: np.ndarray) -> float:

@@ -144,6 +144,7 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     if (max(runs) >= CLIPPED_RUN and model_exceeds_record(seg_y, fitted, sigma)) or piles_up_at_limit(seg_y, sigma):
         warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
                         "whole ring fits on screen")
+    del fitted  # a long record's copy: evaluated again after the partial fits below
     halves = _halves(ring, y, noise)
     drift = _drift_check(halves)
     if drift.get("z", 0.0) > DRIFT_Z:
@@ -155,7 +156,7 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     if not check.adequate:
         warnings.append(check.warning("damped-sinusoid model", "damping or frequency that changes with "
                                       "amplitude: core loss or saturation?"))
-    spur = _residual_peak(ring.fit.residuals, fitted - ring.fit["offset"], dt)
+    spur = _residual_peak(ring.fit.residuals, ring.evaluate(seg_t) - ring.fit["offset"], dt)
     if spur is not None:
         warnings.append(f"a second oscillation at {spur['frequency']:.4g} Hz ({spur['relative_energy']:.1e} of "
                         "the ring's energy) remains in the residuals: second mode, beat or pickup")
@@ -188,12 +189,11 @@ def _halves(ring: DampedSineFit, y: np.ndarray, noise: str) -> tuple[DampedSineF
     e = math.exp(-x[3] * split)
     c, s = math.cos(x[4] * split), math.sin(x[4] * split)
     late0 = np.array([x[0], e * (x[1] * c + x[2] * s), e * (x[2] * c - x[1] * s), x[3], x[4]])
-    t_axis = np.arange(n) * dt
     parts = []
     for lo, hi, x0 in ((0, split, x), (split, n, late0)):
         seg = y[ring.start + lo:ring.start + hi]
         try:
-            parts.append(fit_damped_sine(t_axis[lo:hi], seg, x0, dt, noise=noise))
+            parts.append(fit_damped_sine(np.arange(lo, hi) * dt, seg, x0, dt, noise=noise))
         except (ValueError, FloatingPointError, np.linalg.LinAlgError):
             return "a partial fit failed"
     return parts[0], parts[1]
