@@ -116,18 +116,27 @@ def fit_parameters(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.
     AnalysisRefused
         A fit that runs out of memory, in one line that gives its size.
     """
+    mapping = ParameterMap(params)
+    return mapping.expanded(fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
+                                     max_ar_order=max_ar_order, sigma=sigma))
+
+
+def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
+             mapping: ParameterMap, blocks: Sequence[Block], *, model: str, noise: str = "auto",
+             x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
+             sigma: dict[str, float] | None = None) -> FitResult:
+    """:func:`fit_parameters` with the result over the free parameters of ``mapping`` only
+    (for a caller that corrects it further before :meth:`ParameterMap.expanded`)."""
     if noise not in ("auto", "white", "known"):
         raise ValueError("noise must be 'auto', 'white' or 'known'")
     blocks = list(blocks)
-    mapping = ParameterMap(params)
     m = sum(b.stop - b.start for b in blocks)
     p = mapping.free.size
     if m <= p:
         raise ValueError("fewer samples than parameters")
     with refused_when_out_of_memory(model, m, p):
-        fit = _fit(mapping.residual_function(fun), mapping.jacobian_function(jac), mapping.start(), mapping,
-                   blocks, model, noise, x_scale, max_ar_order, sigma)
-    return mapping.expanded(fit)
+        return _fit(mapping.residual_function(fun), mapping.jacobian_function(jac), mapping.start(), mapping,
+                    blocks, model, noise, x_scale, max_ar_order, sigma)
 
 
 def as_parameters(x0: Sequence[float], names: Sequence[str], bounds: tuple = (-np.inf, np.inf)) -> lmfit.Parameters:
@@ -178,12 +187,12 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
             models = _ar_models(fun(x), blocks, groups, max_ar_order)
 
     r = fun(x)
-    e = _whiten(r, blocks, models)
+    e = whiten(r, blocks, models)
     jacobian = as_jacobian(jac(x))
     ar_params = sum(mod.order for mod in models.values())
     dof = float(e.size - p - ar_params)
     s2 = float(e @ e) / dof if noise != "known" else 1.0
-    whitened = (_whiten(jacobian.toarray(), blocks, models) if small
+    whitened = (whiten(jacobian.toarray(), blocks, models) if small
                 else triangle(jacobian, None, blocks, models)[:p, :p])
     bread = _inverse_normal_matrix(whitened, m)
     if not np.all(np.isfinite(bread)):
@@ -216,16 +225,17 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
         dof=dof,
         diagnostics=diagnostics,
         warnings=tuple(warns),
+        whitening=dict(models),
     )
 
 
 def _solve(fun, jac, x, mapping: ParameterMap, blocks, models, x_scale, small: bool) -> Vector:
     if small:
         def residuals(v):
-            return _whiten(fun(v), blocks, models)
+            return whiten(fun(v), blocks, models)
 
         def jacobian(v):
-            return _whiten(as_jacobian(jac(v)).toarray(), blocks, models)
+            return whiten(as_jacobian(jac(v)).toarray(), blocks, models)
     else:
         problem = TriangularProblem(fun, jac, blocks, models)
         residuals, jacobian = problem.residuals, problem.jacobian
@@ -255,7 +265,7 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
     return np.asarray(out.x, dtype=float)
 
 
-def _whiten(a: np.ndarray, blocks: Sequence[Block], models: dict[str, ARNoise]) -> np.ndarray:
+def whiten(a: np.ndarray, blocks: Sequence[Block], models: dict[str, ARNoise]) -> np.ndarray:
     parts = []
     for b in blocks:
         mod = models[b.group]

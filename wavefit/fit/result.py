@@ -31,6 +31,9 @@ class FitResult:
     dof: float
     diagnostics: dict[str, Any] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
+    #: the noise model of each group as fitted (:class:`~wavefit.fit.noise_model.ARNoise`), whose
+    #: ``whiten`` makes the residuals independent; for refits that keep it (profile likelihood)
+    whitening: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     def __getitem__(self, name: str) -> float:
         return float(self.values[self.names.index(name)])
