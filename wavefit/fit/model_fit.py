@@ -167,8 +167,8 @@ def profile_intervals(found: ModelFit, names: Sequence[str] | None = None,
     def whitened(p: lmfit.Parameters) -> np.ndarray:
         return whiten(problem.residuals(np.array([p[n].value for n in params])), blocks, found.fit.whitening)
 
-    minimizer = lmfit.Minimizer(whitened, params, x_scale="jac")
-    best = minimizer.least_squares(params)
+    minimizer = lmfit.Minimizer(whitened, params)
+    best = minimizer.leastsq(params)
     free = [n for n, p in params.items() if p.vary and p.expr is None]
     return lmfit.conf_interval(minimizer, best, p_names=list(names) if names else free, sigmas=list(sigmas))
 
