@@ -104,3 +104,24 @@ def test_a_capture_with_several_channels_needs_one_named():
     found = wavefit.fit_model(DampedSine(), two, channel="tank")  # guess() gives the start
     assert found.params["w_d"].value == pytest.approx(2 * math.pi * 1e5, rel=1e-3)
     assert "[[Variables]]" in found.fit_report()
+
+
+def test_profile_intervals_of_a_straight_line_are_the_student_t_intervals():
+    # for a model linear in its parameters the profile-likelihood interval is exactly
+    # value ± t(p, n − p)·u (D. M. Bates and D. G. Watts, Nonlinear Regression Analysis and
+    # its Applications, Wiley 1988, §6.1); lmfit finds its ends by root finding
+    from scipy import stats
+
+    rng = np.random.default_rng(11)
+    x = np.linspace(0.0, 1.0, 40)
+    y = 0.3 + 2.0 * x + rng.normal(0, 0.1, x.size)
+    model = lmfit.models.LinearModel()
+    found = wavefit.fit_model(model, (x, y), model.make_params(slope=1.0, intercept=0.0), noise="white",
+                              intervals="profile", sigmas=(1.0, 2.0))
+    for name in ("slope", "intercept"):
+        value, u = found.params[name].value, found.params[name].stderr
+        for level, prob in ((1, 0.682689492), (2, 0.954499736)):
+            k = stats.t.ppf(0.5 + prob / 2, x.size - 2)
+            lo, hi = found.intervals[name][2 - level][1], found.intervals[name][2 + level][1]
+            assert lo == pytest.approx(value - k * u, rel=1e-4)
+            assert hi == pytest.approx(value + k * u, rel=1e-4)
