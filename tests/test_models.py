@@ -111,7 +111,7 @@ def test_step_model_is_the_function_the_window_fit_evaluates():
     y = 2.0 - 1.5 * np.exp(-(t - 1e-4) / 1.3e-4) + rng.normal(0, 0.01, t.size)
     fit = fit_exponential_window([WindowChannel("y", t, y)], 1e-4, noise="white")
     curve = ExponentialStep().eval(t=t, final=fit["final_y"], coef=fit["coef_y"], tau=fit["tau"],
-                                   t_ref=fit.diagnostics["t_ref"])
+                                   t_ref=fit.t_ref)
     np.testing.assert_allclose(curve, y - fit.residuals, rtol=0, atol=1e-12)
 
 

@@ -209,9 +209,7 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
                 dof = min(dof, n_g / (2.0 * lags + 1.0))
     n_eff = sum(sum(b.stop - b.start for b in blocks if b.group == g) / models[g].long_run_ratio()
                 for g in groups)
-    diagnostics, warns = _diagnose(e, x, mapping.bounds(), mapping.free_names, coloured=bool(ar_params))
-    if extents:
-        diagnostics["noise_correlation_extent_samples"] = extents
+    diagnostics, warns, at_bounds = _diagnose(e, x, mapping.bounds(), mapping.free_names, coloured=bool(ar_params))
     return FitResult(
         model=model,
         names=mapping.free_names,
@@ -225,6 +223,8 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
         dof=dof,
         diagnostics=diagnostics,
         warnings=tuple(warns),
+        parameters_at_bounds=at_bounds,
+        noise_correlation_extent_samples=extents,
         whitening=dict(models),
     )
 
@@ -309,8 +309,11 @@ def _inverse_normal_matrix(r: np.ndarray, rows: int) -> np.ndarray:
     return ((vt.T * inv_s2) @ vt) / np.outer(norms, norms)
 
 
-def _diagnose(e: np.ndarray, x: Vector, bounds, names, coloured: bool = False) -> tuple[dict, list[str]]:
+def _diagnose(e: np.ndarray, x: Vector, bounds, names,
+              coloured: bool = False) -> tuple[dict, list[str], tuple[str, ...]]:
+    """Reported figures, warnings, and the parameters that ended at a bound."""
     warns: list[str] = []
+    at_bounds: list[str] = []
     p_value, rho = ljung_box(e)
     if structured(p_value, rho):
         if coloured:
@@ -328,4 +331,6 @@ def _diagnose(e: np.ndarray, x: Vector, bounds, names, coloured: bool = False) -
         span = (b - a) if np.isfinite(b - a) else max(abs(v), 1.0)
         if (np.isfinite(a) and v - a <= 1e-9 * span) or (np.isfinite(b) and b - v <= 1e-9 * span):
             warns.append(f"fit parameter {name} ended at its bound ({v:.6g}); the fit cannot be trusted")
-    return {"ljung_box_p": p_value, "residual_autocorrelation_lag1": float(rho[0]) if rho.size else 0.0}, warns
+            at_bounds.append(name)
+    return ({"ljung_box_p": p_value, "residual_autocorrelation_lag1": float(rho[0]) if rho.size else 0.0}, warns,
+            tuple(at_bounds))

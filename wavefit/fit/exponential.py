@@ -16,6 +16,7 @@ its autoregressive noise model for band-limited scope noise.
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 from typing import Sequence
@@ -104,7 +105,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     Returns
     -------
     FitResult
-        With ``t_ref`` in ``diagnostics``; ``residuals`` are the channels' in order.
+        With ``t_ref`` and ``t_ref_by_group`` set; ``residuals`` are the channels' in order.
 
     References
     ----------
@@ -160,18 +161,13 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     covariance = fit.covariance
     scale = np.ones(n_par)
     scale[0] = tau_start
-    diagnostics = dict(fit.diagnostics, t_ref=t_ref, t_ref_by_group=t_refs)
-    return FitResult(
-        model=fit.model, names=fit.names, values=fit.values * scale,
-        covariance=covariance * np.outer(scale, scale), residuals=fit.residuals,
-        noise_sigma=fit.noise_sigma, noise_model=fit.noise_model, n_samples=fit.n_samples,
-        n_effective=fit.n_effective, dof=fit.dof, diagnostics=diagnostics, warnings=fit.warnings,
-    )
+    return dataclasses.replace(fit, values=fit.values * scale, covariance=covariance * np.outer(scale, scale),
+                               t_ref=t_ref, t_ref_by_group=t_refs)
 
 
 def window_model(fit: FitResult, group: str, t: np.ndarray) -> np.ndarray:
     """The fitted curve of one channel at times ``t``."""
-    t_ref = fit.diagnostics.get("t_ref_by_group", {}).get(group, fit.diagnostics["t_ref"])
+    t_ref = fit.t_ref_by_group.get(group, fit.t_ref)
     return exponential_step(t, fit[f"final_{group}"], fit[f"coef_{group}"], fit["tau"], t_ref)
 
 

@@ -272,7 +272,7 @@ def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, n
     var_f = whole.covariance[0, 0]
     if not (np.isfinite(var_f) and var_f > 0):
         return windowed, False
-    if any("ended at its bound" in w for w in whole.warnings) or \
+    if whole.parameters_at_bounds or \
             (whole["tau"] - windowed.values[0]) ** 2 > 9.0 * windowed.covariance[0, 0]:
         # a gross disagreement with the independent per-edge windows: another minimum of the
         # whole-record fit (switching instants moved together with tau)
@@ -363,7 +363,7 @@ def _tau_information(t, w, f, start: int) -> float:
     _, coef, tau = f.subset(("final_sense", "coef_sense", "tau"))[0]
     u = t[start:w.stop] - t[start]
     e = np.exp(-u / tau)
-    amp = coef * math.exp(-(t[start] - f.diagnostics["t_ref"]) / tau)
+    amp = coef * math.exp(-(t[start] - f.t_ref) / tau)
     jac = np.column_stack((np.ones_like(u), e, amp * e * u / tau ** 2))
     return 1.0 / float(np.linalg.inv(jac.T @ jac)[2, 2])
 

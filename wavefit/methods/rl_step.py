@@ -342,7 +342,7 @@ class RLStep(Method):
         per_edge = []
         for w, f in zip(windows, fits):
             entry = {"direction": "rising" if w.edge.direction > 0 else "falling", "t0": w.t0,
-                     "window_start": f.diagnostics["t_ref"], "samples": f.n_samples,
+                     "window_start": f.t_ref, "samples": f.n_samples,
                      "tau": f["tau"], "tau_standard_error": f.stderr("tau"),
                      "noise_model": f.noise_model, "ljung_box_p": f.diagnostics.get("ljung_box_p")}
             per_edge.append(entry)
@@ -353,7 +353,7 @@ class RLStep(Method):
             "tau_fit": combined.values[0],
             "tau_fit_standard_error": math.sqrt(combined.covariance[0, 0]),
             "tau_per_edge_spread": float(np.std(taus, ddof=1)) if taus.size > 1 else 0.0,
-            "skip_after_edge_s": float(fits[0].diagnostics["t_ref"] - windows[0].t0),
+            "skip_after_edge_s": float(fits[0].t_ref - windows[0].t0),
             "sample_interval_s": dt,
             "type_a_dof": combined.dof,
             "type_a_estimator": "per-window feasible GLS with AR noise model (Cochrane-Orcutt), "
@@ -433,4 +433,4 @@ def _plot(t, sense, drive, windows, fits) -> TracePlot:
 
 def _on_codes(fits) -> bool:
     """Whether every fit was carried to the maximum of the code likelihood."""
-    return all(f.diagnostics.get("quantisation", {}).get("estimator") == "code likelihood" for f in fits)
+    return all(f.code_fit is not None for f in fits)
