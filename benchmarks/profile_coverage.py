@@ -17,7 +17,7 @@ the linear one. Fits that fail are counted and left out.
 Usage::
 
     python benchmarks/profile_coverage.py                    # 100 records per SNR
-    python benchmarks/profile_coverage.py --trials 300 --snr 10,15,20 --cycles 2
+    python benchmarks/profile_coverage.py --trials 300 --snr 10,15,20 --cycles 1 --samples-per-cycle 16
 """
 from __future__ import annotations
 
@@ -51,9 +51,9 @@ def record(rng: np.random.Generator, snr_db: float, cycles: float, samples_per_c
     return t, clean + rng.normal(0, sigma, n), truth, start
 
 
-def one(rng, snr_db, cycles):
+def one(rng, snr_db, cycles, samples_per_cycle):
     """Per parameter and level: (inside linear, inside profile, linear width, profile width)."""
-    t, y, truth, start = record(rng, snr_db, cycles)
+    t, y, truth, start = record(rng, snr_db, cycles, samples_per_cycle)
     model = DampedSine()
     found = wavefit.fit_model(model, (t, y), model.make_params(t_ref=0.0, **start))
     profile = profile_intervals(found, names=NAMES, sigmas=list(LEVELS))
@@ -72,6 +72,7 @@ def main() -> None:
     parser.add_argument("--trials", type=int, default=100)
     parser.add_argument("--snr", default="10,20", help="comma-separated SNRs in dB")
     parser.add_argument("--cycles", type=float, default=2.0)
+    parser.add_argument("--samples-per-cycle", type=int, default=100)
     parser.add_argument("--seed", type=int, default=2026)
     args = parser.parse_args()
     rng = np.random.default_rng(args.seed)
@@ -82,7 +83,7 @@ def main() -> None:
         start = time.perf_counter()
         for _ in range(args.trials):
             try:
-                rows.append(one(rng, snr, args.cycles))
+                rows.append(one(rng, snr, args.cycles, args.samples_per_cycle))
             except (ValueError, FloatingPointError, ArithmeticError, RuntimeError):
                 failed += 1
         per = (time.perf_counter() - start) / args.trials

@@ -40,8 +40,10 @@ DIFFERENCE_STEP = float(np.finfo(float).eps ** (1.0 / 3.0))
 class ParameterMap:
     """The free parameters of an :class:`lmfit.Parameters` and the map to all of them."""
 
-    def __init__(self, params: lmfit.Parameters):
-        self.params = params.copy()
+    def __init__(self, params: lmfit.Parameters, copy: bool = True):
+        # the free values are set on these parameters as the fit moves: a copy, unless the
+        # caller made them for this fit alone (a copy costs milliseconds, a small fit tens)
+        self.params = params.copy() if copy else params
         self.names = tuple(self.params)
         kinds = [(p.expr is not None, bool(p.vary) and p.expr is None) for p in self.params.values()]
         self.free = np.array([k for k, (_, f) in enumerate(kinds) if f], dtype=int)

@@ -75,10 +75,11 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
     """Fit ``fun`` (residual = data − model, for all blocks concatenated) over the vector ``x``.
 
     The start ``x0``, the ``names`` and the ``bounds`` become free
-    :class:`lmfit.Parameters` (:func:`as_parameters`), fitted by :func:`fit_parameters`.
+    :class:`lmfit.Parameters` (:func:`as_parameters`), fitted as by :func:`fit_parameters`.
     """
-    return fit_parameters(fun, jac, as_parameters(x0, names, bounds), blocks, model=model, noise=noise,
-                          x_scale=x_scale, max_ar_order=max_ar_order, sigma=sigma)
+    mapping = ParameterMap(as_parameters(x0, names, bounds), copy=False)
+    return fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
+                    max_ar_order=max_ar_order, sigma=sigma)
 
 
 def fit_parameters(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
