@@ -144,6 +144,8 @@ def as_parameters(x0: Sequence[float], names: Sequence[str], bounds: tuple = (-n
     """Free :class:`lmfit.Parameters` named ``names``, starting at ``x0``, within ``bounds``
     (a pair of scalars or of arrays, as scipy's ``least_squares`` takes them)."""
     x0 = np.asarray(x0, dtype=float)
+    if len(set(names)) != len(names):
+        raise ValueError("fit parameter names must differ from each other")
     lo, hi = (np.broadcast_to(np.asarray(b, dtype=float), x0.shape) for b in bounds)
     outside = (x0 < lo) | (x0 > hi)
     if np.any(outside):  # lmfit would move the start onto the bound; scipy refuses it
