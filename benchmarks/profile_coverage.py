@@ -11,8 +11,10 @@ share of records whose true value lies inside
 - the profile-likelihood interval of ``lmfit.conf_interval`` at 1 and 2 sigma
   (:func:`wavefit.fit.model_fit.profile_intervals`),
 
-each with its binomial standard error, and the mean width of each interval relative to
-the linear one. Fits that fail are counted and left out.
+each with its binomial standard error, the median width of the profile interval relative
+to the linear one, and how many profile intervals lmfit could not close (the likelihood
+never fell to that level within its search: an unbounded interval, which contains the
+truth). Fits that fail are counted and left out.
 
 Usage::
 
@@ -23,7 +25,9 @@ from __future__ import annotations
 
 import argparse
 import math
+import re
 import time
+import warnings
 
 import wavefit  # first: it sets one BLAS thread, which takes effect only before numpy loads
 
@@ -52,18 +56,30 @@ def record(rng: np.random.Generator, snr_db: float, cycles: float, samples_per_c
 
 
 def one(rng, snr_db, cycles, samples_per_cycle):
-    """Per parameter and level: (inside linear, inside profile, linear width, profile width)."""
+    """Per parameter and level: (inside linear, inside profile, linear width, profile width,
+    whether lmfit left the profile interval open)."""
     t, y, truth, start = record(rng, snr_db, cycles, samples_per_cycle)
     model = DampedSine()
     found = wavefit.fit_model(model, (t, y), model.make_params(t_ref=0.0, **start))
-    profile = profile_intervals(found, names=NAMES, sigmas=list(LEVELS))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        profile = profile_intervals(found, names=NAMES, sigmas=list(LEVELS))
+    # lmfit warns "maxiter=… reached and prob(name=value) = p < max(sigmas)" for an end whose
+    # search stopped at probability p: the interval is open at every level above p
+    open_ends = set()
+    for w in caught:
+        m = re.search(r"prob\((\w+)=[^)]*\) = ([-+0-9.eE]+)", str(w.message))
+        if m:
+            open_ends |= {(m.group(1), level) for level, p in LEVELS.items() if p > float(m.group(2))}
     out = {}
     for name in NAMES:
         value, u = found.params[name].value, found.params[name].stderr
         for level, p in LEVELS.items():
             k = float(stats.t.ppf(0.5 + p / 2, found.fit.dof))
             lo, hi = profile[name][len(LEVELS) - level][1], profile[name][len(LEVELS) + level][1]
-            out[name, level] = (abs(value - truth[name]) <= k * u, lo <= truth[name] <= hi, 2 * k * u, hi - lo)
+            unbounded = (name, level) in open_ends or not np.isfinite(hi - lo)
+            out[name, level] = (abs(value - truth[name]) <= k * u, unbounded or lo <= truth[name] <= hi,
+                                2 * k * u, hi - lo, unbounded)
     return out
 
 
@@ -77,7 +93,7 @@ def main() -> None:
     args = parser.parse_args()
     rng = np.random.default_rng(args.seed)
     print(f"{'SNR dB':>6} {'param':>6} {'level':>6} {'linear':>14} {'profile':>14} {'width p/l':>9} "
-          f"{'failed':>6} {'s/record':>8}")
+          f"{'open':>5} {'failed':>6} {'s/record':>8}")
     for snr in (float(s) for s in args.snr.split(",")):
         rows, failed = [], 0
         start = time.perf_counter()
@@ -92,10 +108,11 @@ def main() -> None:
             for level, p in LEVELS.items():
                 lin = np.mean([r[name, level][0] for r in rows])
                 pro = np.mean([r[name, level][1] for r in rows])
-                width = np.mean([r[name, level][3] / r[name, level][2] for r in rows])
+                width = np.median([r[name, level][3] / r[name, level][2] for r in rows if not r[name, level][4]])
+                unbounded = sum(r[name, level][4] for r in rows)
                 se = math.sqrt(p * (1 - p) / max(n, 1))
                 print(f"{snr:6.0f} {name:>6} {p:6.2%} {lin:7.1%} ±{se:5.1%} {pro:7.1%} ±{se:5.1%} {width:9.3f} "
-                      f"{failed:6d} {per:8.2f}")
+                      f"{unbounded:5d} {failed:6d} {per:8.2f}")
 
 
 if __name__ == "__main__":
