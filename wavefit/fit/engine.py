@@ -258,9 +258,25 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
     def values(p: lmfit.Parameters) -> Vector:
         return np.array([p[n].value for n in names])
 
+    best: dict[bytes, Vector] = {}
+
+    def remembered(p: lmfit.Parameters) -> Vector:
+        """The residuals, the lowest sum of squares so far kept: lmfit evaluates them once more
+        at the solution, the point of lowest sum that scipy accepted (a trust-region step is
+        accepted only when it lowers the sum), which saves one whitened evaluation per solve."""
+        x = values(p)
+        key = x.tobytes()
+        if key in best:
+            return best[key].copy()
+        r = np.asarray(residuals(x), dtype=float)
+        if not best or float(r @ r) < float(next(iter(best.values())) @ next(iter(best.values()))):
+            best.clear()
+            best[key] = r.copy()
+        return r
+
     # lmfit stops a fit past its own count of residual calls and hands scipy twice that count;
     # scipy's limit is set directly so that it alone decides, as it did before lmfit
-    minimizer = lmfit.Minimizer(lambda p: residuals(values(p)), params, nan_policy="propagate",
+    minimizer = lmfit.Minimizer(remembered, params, nan_policy="propagate",
                                 max_nfev=MAX_EVALUATIONS * (len(names) + 2), calc_covar=False)
     minimizer.kws["max_nfev"] = MAX_EVALUATIONS
     out = minimizer.least_squares(jac=lambda p: jacobian(values(p)), method="trf", x_scale=x_scale,
