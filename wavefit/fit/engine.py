@@ -259,6 +259,7 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
         return np.array([p[n].value for n in names])
 
     best: dict[bytes, Vector] = {}
+    lowest = [math.inf]
 
     def remembered(p: lmfit.Parameters) -> Vector:
         """The residuals, the lowest sum of squares so far kept: lmfit evaluates them once more
@@ -269,7 +270,10 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
         if key in best:
             return best[key].copy()
         r = np.asarray(residuals(x), dtype=float)
-        if not best or float(r @ r) < float(next(iter(best.values())) @ next(iter(best.values()))):
+        with np.errstate(over="ignore"):  # far-off trial steps
+            total = float(r @ r)
+        if total < lowest[0]:
+            lowest[0] = total
             best.clear()
             best[key] = r.copy()
         return r
