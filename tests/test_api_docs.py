@@ -18,5 +18,6 @@ def test_api_reference_builds_without_warnings(tmp_path):
                                       str(SOURCE), str(tmp_path / "html")])
     assert status == 0
     page = (tmp_path / "html" / "index.html").read_text(encoding="utf-8")
-    for name in ("analyze", "uvalues", "to_frame", "propagate", "AnalysisRefused"):
+    for name in ("analyze", "fit_model", "DampedSine", "Curve", "estimate", "uvalues", "to_frame", "propagate",
+                 "AnalysisRefused"):
         assert name in page, name

@@ -19,6 +19,7 @@ from importlib.metadata import PackageNotFoundError, version
 
 from .analysis import analyze
 from .errors import AnalysisRefused, CaptureError, SetupError, WavefitError
+from .fit.model_fit import fit_model
 
 try:
     __version__ = version("wavefit")
@@ -26,4 +27,4 @@ except PackageNotFoundError:  # running from a source tree that is not installed
     __version__ = "0.0.0+unknown"
 
 
-__all__ = ["analyze", "WavefitError", "CaptureError", "SetupError", "AnalysisRefused", "__version__"]
+__all__ = ["analyze", "fit_model", "WavefitError", "CaptureError", "SetupError", "AnalysisRefused", "__version__"]

@@ -180,7 +180,7 @@ def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: in
         sigma = _rms(y[lo:hi] - model(x, np.arange(hi - lo, dtype=float)))
         hi = _envelope_end(x, sigma, lo, hi, strong)
     ring = fit_damped_sine(t[lo:hi], y[lo:hi], x, dt, noise=noise, offset_index=lo)
-    lags = ring.fit.diagnostics.get("noise_correlation_extent_samples", {}).get("tank", 0)
+    lags = ring.fit.noise_correlation_extent_samples.get("tank", 0)
     decay = float(ring.fit["alpha"]) * dt  # nepers per sample
     # a later start scales the variances by about exp(2·alpha·shift): allow 10 % at most
     shift = int(min(lags, 0.05 / decay if decay > 0 else lags))

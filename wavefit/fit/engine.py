@@ -1,7 +1,7 @@
 """Weighted nonlinear least squares with a fitted noise model, returning a FitResult.
 
-Stage 1 is ordinary least squares (``scipy.optimize.least_squares``), with one
-weight per noise group (channel) taken from its residual scatter. Stage 2, when
+Stage 1 is ordinary least squares, with one weight per noise group (channel) taken
+from its residual scatter. Stage 2, when
 ``noise="auto"``, fits an AR model per noise group to the residuals and refits
 the whitened problem (feasible GLS, see :mod:`wavefit.fit.noise_model`). The
 covariance is s²·(JᵀJ)⁻¹ of the whitened, weighted problem, the usual
@@ -14,6 +14,12 @@ to the solver as the triangular factor of its whitened rows
 (:mod:`wavefit.fit.compressed`): the same steps, with memory that grows with the record
 only through its residual vectors, whatever the number of parameters.
 
+The minimisation runs through :class:`lmfit.Minimizer` (``least_squares``, the trust
+region reflective method of scipy, with the analytic Jacobian and scipy's own bounds), on
+the whitened residual that this module builds: the problem is stated as
+:class:`lmfit.Parameters`, so fixed parameters and constraint expressions come with it
+(:func:`fit_parameters`); :func:`fit_least_squares` states plain vectors as parameters.
+
 The residuals are checked for structure with the Ljung–Box portmanteau
 statistic (G. M. Ljung and G. E. P. Box, Biometrika 65 (1978) 297–303).
 """
@@ -24,11 +30,12 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Callable, Iterator, Sequence
 
+import lmfit
 import numpy as np
-from scipy import optimize
 
 from ..errors import AnalysisRefused
 from .compressed import TriangularProblem, triangle
+from .constraints import ParameterMap
 from .jacobian import Jacobian, as_jacobian, is_small
 from .noise_model import ARNoise, fit_ar, white
 from .portmanteau import ljung_box, structured
@@ -41,6 +48,13 @@ Vector = np.ndarray
 #: one converter code): small, yet large enough that whitened products of a million samples
 #: stay finite (1e-300 overflowed them).
 ZERO_SCATTER = 1e-100
+
+#: Residual evaluations one solve may take (scipy's ``max_nfev``): a well-posed fit of the
+#: waveforms here converges in a few tens; more means it wanders and is stopped.
+MAX_EVALUATIONS = 200
+#: Stopping tolerances of the solver (``ftol``, ``xtol``, ``gtol``): as tight as rounding
+#: allows, so that results do not depend on where a looser stop happened to fall.
+TOLERANCE = 1e-15
 
 
 @dataclass(frozen=True)
@@ -58,24 +72,88 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
                       model: str, bounds: tuple = (-np.inf, np.inf), noise: str = "auto",
                       x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
                       sigma: dict[str, float] | None = None) -> FitResult:
-    """Fit ``fun`` (residual = data − model, for all blocks concatenated).
+    """Fit ``fun`` (residual = data − model, for all blocks concatenated) over the vector ``x``.
 
-    ``noise`` is ``"auto"`` (AR noise model chosen from the residuals),
-    ``"white"`` (independent samples, scatter estimated), or ``"known"``
-    (white with the per-group standard deviations given in ``sigma``).
-    A fit that runs out of memory is refused (``AnalysisRefused``) in one line
-    that gives its size.
+    The start ``x0``, the ``names`` and the ``bounds`` become free
+    :class:`lmfit.Parameters` (:func:`as_parameters`), fitted as by :func:`fit_parameters`.
     """
+    mapping = ParameterMap(as_parameters(x0, names, bounds), copy=False)
+    return fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
+                    max_ar_order=max_ar_order, sigma=sigma)
+
+
+def fit_parameters(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
+                   params: lmfit.Parameters, blocks: Sequence[Block], *, model: str, noise: str = "auto",
+                   x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
+                   sigma: dict[str, float] | None = None) -> FitResult:
+    """Fit ``fun`` (residual = data − model, for all blocks concatenated) over ``params``.
+
+    Parameters
+    ----------
+    fun, jac
+        The residual vector and its Jacobian (an array or a
+        :class:`~wavefit.fit.jacobian.Jacobian`, one column per parameter) as functions of the
+        values of *all* parameters of ``params``, in its order.
+    params
+        Start values, bounds, fixed parameters (``vary=False``) and constraint expressions
+        (``expr``). Only the free parameters reach the solver; the Jacobian is reduced to
+        them by the chain rule, the derivatives of the expressions taken by central
+        differences (:mod:`wavefit.fit.constraints`), the data's own part staying analytic.
+    noise
+        ``"auto"`` (AR noise model chosen from the residuals), ``"white"`` (independent
+        samples, scatter estimated), or ``"known"`` (white with the per-group standard
+        deviations given in ``sigma``).
+    x_scale
+        Characteristic scale of each free parameter for the solver, or ``"jac"``.
+
+    Returns
+    -------
+    FitResult
+        Over all parameters of ``params``: a fixed one has zero variance, an expression
+        the variance its linearisation carries from the free ones.
+
+    Raises
+    ------
+    AnalysisRefused
+        A fit that runs out of memory, in one line that gives its size.
+    """
+    mapping = ParameterMap(params)
+    return mapping.expanded(fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
+                                     max_ar_order=max_ar_order, sigma=sigma))
+
+
+def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
+             mapping: ParameterMap, blocks: Sequence[Block], *, model: str, noise: str = "auto",
+             x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
+             sigma: dict[str, float] | None = None) -> FitResult:
+    """:func:`fit_parameters` with the result over the free parameters of ``mapping`` only
+    (for a caller that corrects it further before :meth:`ParameterMap.expanded`)."""
     if noise not in ("auto", "white", "known"):
         raise ValueError("noise must be 'auto', 'white' or 'known'")
     blocks = list(blocks)
     m = sum(b.stop - b.start for b in blocks)
-    p = len(x0)
+    p = mapping.free.size
     if m <= p:
         raise ValueError("fewer samples than parameters")
     with refused_when_out_of_memory(model, m, p):
-        return _fit(fun, jac, np.asarray(x0, dtype=float), names, blocks, model, bounds, noise, x_scale,
-                    max_ar_order, sigma)
+        return _fit(mapping.residual_function(fun), mapping.jacobian_function(jac), mapping.start(), mapping,
+                    blocks, model, noise, x_scale, max_ar_order, sigma)
+
+
+def as_parameters(x0: Sequence[float], names: Sequence[str], bounds: tuple = (-np.inf, np.inf)) -> lmfit.Parameters:
+    """Free :class:`lmfit.Parameters` named ``names``, starting at ``x0``, within ``bounds``
+    (a pair of scalars or of arrays, as scipy's ``least_squares`` takes them)."""
+    x0 = np.asarray(x0, dtype=float)
+    if len(set(names)) != len(names):
+        raise ValueError("fit parameter names must differ from each other")
+    lo, hi = (np.broadcast_to(np.asarray(b, dtype=float), x0.shape) for b in bounds)
+    outside = (x0 < lo) | (x0 > hi)
+    if np.any(outside):  # lmfit would move the start onto the bound; scipy refuses it
+        raise ValueError(f"the start of {names[int(np.argmax(outside))]} lies outside its bounds")
+    params = lmfit.Parameters()
+    for name, v, a, b in zip(names, x0, lo, hi):
+        params.add(name, value=float(v), min=float(a), max=float(b))
+    return params
 
 
 @contextmanager
@@ -88,7 +166,8 @@ def refused_when_out_of_memory(model: str, samples: int, parameters: int) -> Ite
                               "parameters; analyse a shorter or decimated record") from None
 
 
-def _fit(fun, jac, x, names, blocks, model, bounds, noise, x_scale, max_ar_order, sigma) -> FitResult:
+def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_ar_order, sigma) -> FitResult:
+    """The fit over the free parameters of ``mapping`` (``fun``, ``jac`` and ``x`` theirs)."""
     groups = sorted({b.group for b in blocks})
     m = sum(b.stop - b.start for b in blocks)
     p = x.size
@@ -98,25 +177,25 @@ def _fit(fun, jac, x, names, blocks, model, bounds, noise, x_scale, max_ar_order
     else:
         models = {g: white(1.0) for g in groups}
     small = is_small(m, p)
-    x = _solve(fun, jac, x, blocks, models, bounds, x_scale, small)
+    x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
     if noise != "known":
         models = _scatter_models(fun(x), blocks, groups, p, m)
         if len(groups) > 1:
-            x = _solve(fun, jac, x, blocks, models, bounds, x_scale, small)
+            x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
             models = _scatter_models(fun(x), blocks, groups, p, m)
     if noise == "auto":
         models = _ar_models(fun(x), blocks, groups, max_ar_order)
         if any(mod.order for mod in models.values()):
-            x = _solve(fun, jac, x, blocks, models, bounds, x_scale, small)
+            x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
             models = _ar_models(fun(x), blocks, groups, max_ar_order)
 
     r = fun(x)
-    e = _whiten(r, blocks, models)
+    e = whiten(r, blocks, models)
     jacobian = as_jacobian(jac(x))
     ar_params = sum(mod.order for mod in models.values())
     dof = float(e.size - p - ar_params)
     s2 = float(e @ e) / dof if noise != "known" else 1.0
-    whitened = (_whiten(jacobian.toarray(), blocks, models) if small
+    whitened = (whiten(jacobian.toarray(), blocks, models) if small
                 else triangle(jacobian, None, blocks, models)[:p, :p])
     bread = _inverse_normal_matrix(whitened, m)
     if not np.all(np.isfinite(bread)):
@@ -133,12 +212,10 @@ def _fit(fun, jac, x, names, blocks, model, bounds, noise, x_scale, max_ar_order
                 dof = min(dof, n_g / (2.0 * lags + 1.0))
     n_eff = sum(sum(b.stop - b.start for b in blocks if b.group == g) / models[g].long_run_ratio()
                 for g in groups)
-    diagnostics, warns = _diagnose(e, x, bounds, names, coloured=bool(ar_params))
-    if extents:
-        diagnostics["noise_correlation_extent_samples"] = extents
+    diagnostics, warns, at_bounds = _diagnose(e, x, mapping.bounds(), mapping.free_names, coloured=bool(ar_params))
     return FitResult(
         model=model,
-        names=tuple(names),
+        names=mapping.free_names,
         values=x,
         covariance=cov,
         residuals=r,
@@ -149,37 +226,69 @@ def _fit(fun, jac, x, names, blocks, model, bounds, noise, x_scale, max_ar_order
         dof=dof,
         diagnostics=diagnostics,
         warnings=tuple(warns),
+        parameters_at_bounds=at_bounds,
+        noise_correlation_extent_samples=extents,
+        whitening=dict(models),
     )
 
 
-def _solve(fun, jac, x, blocks, models, bounds, x_scale, small: bool) -> Vector:
+def _solve(fun, jac, x, mapping: ParameterMap, blocks, models, x_scale, small: bool) -> Vector:
     if small:
         def residuals(v):
-            return _whiten(fun(v), blocks, models)
+            return whiten(fun(v), blocks, models)
 
         def jacobian(v):
-            return _whiten(as_jacobian(jac(v)).toarray(), blocks, models)
+            return whiten(as_jacobian(jac(v)).toarray(), blocks, models)
     else:
         problem = TriangularProblem(fun, jac, blocks, models)
         residuals, jacobian = problem.residuals, problem.jacobian
-    res = optimize.least_squares(
-        residuals,
-        x,
-        jac=jacobian,
-        bounds=bounds,
-        method="trf",
-        x_scale=x_scale,
-        ftol=1e-15,
-        xtol=1e-15,
-        gtol=1e-15,
-        max_nfev=200,
-    )
-    if not np.all(np.isfinite(res.x)):
+    x = minimise(mapping.with_free(x), mapping.free_names, residuals, jacobian, x_scale)
+    if not np.all(np.isfinite(x)):
         raise FloatingPointError("least squares diverged")
-    return res.x
+    return x
 
 
-def _whiten(a: np.ndarray, blocks: Sequence[Block], models: dict[str, ARNoise]) -> np.ndarray:
+def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable[[Vector], Vector],
+             jacobian: Callable[[Vector], np.ndarray], x_scale: Sequence[float] | str) -> Vector:
+    """The free parameters ``names`` of ``params`` that minimise ‖residuals‖², through
+    :meth:`lmfit.Minimizer.least_squares` (scipy's trust region reflective method, bounds
+    handled by scipy itself, no transform of lmfit's) with the analytic ``jacobian``.
+
+    ``residuals`` and ``jacobian`` take the vector of the free parameters' values."""
+    def values(p: lmfit.Parameters) -> Vector:
+        return np.array([p[n].value for n in names])
+
+    best: dict[bytes, Vector] = {}
+    lowest = [math.inf]
+
+    def remembered(p: lmfit.Parameters) -> Vector:
+        """The residuals, the lowest sum of squares so far kept: lmfit evaluates them once more
+        at the solution, the point of lowest sum that scipy accepted (a trust-region step is
+        accepted only when it lowers the sum), which saves one whitened evaluation per solve."""
+        x = values(p)
+        key = x.tobytes()
+        if key in best:
+            return best[key].copy()
+        r = np.asarray(residuals(x), dtype=float)
+        with np.errstate(over="ignore"):  # far-off trial steps
+            total = float(r @ r)
+        if total < lowest[0]:
+            lowest[0] = total
+            best.clear()
+            best[key] = r.copy()
+        return r
+
+    # lmfit stops a fit past its own count of residual calls and hands scipy twice that count;
+    # scipy's limit is set directly so that it alone decides, as it did before lmfit
+    minimizer = lmfit.Minimizer(remembered, params, nan_policy="propagate",
+                                max_nfev=MAX_EVALUATIONS * (len(names) + 2), calc_covar=False)
+    minimizer.kws["max_nfev"] = MAX_EVALUATIONS
+    out = minimizer.least_squares(jac=lambda p: jacobian(values(p)), method="trf", x_scale=x_scale,
+                                  ftol=TOLERANCE, xtol=TOLERANCE, gtol=TOLERANCE)
+    return np.asarray(out.x, dtype=float)
+
+
+def whiten(a: np.ndarray, blocks: Sequence[Block], models: dict[str, ARNoise]) -> np.ndarray:
     parts = []
     for b in blocks:
         mod = models[b.group]
@@ -223,8 +332,11 @@ def _inverse_normal_matrix(r: np.ndarray, rows: int) -> np.ndarray:
     return ((vt.T * inv_s2) @ vt) / np.outer(norms, norms)
 
 
-def _diagnose(e: np.ndarray, x: Vector, bounds, names, coloured: bool = False) -> tuple[dict, list[str]]:
+def _diagnose(e: np.ndarray, x: Vector, bounds, names,
+              coloured: bool = False) -> tuple[dict, list[str], tuple[str, ...]]:
+    """Reported figures, warnings, and the parameters that ended at a bound."""
     warns: list[str] = []
+    at_bounds: list[str] = []
     p_value, rho = ljung_box(e)
     if structured(p_value, rho):
         if coloured:
@@ -242,4 +354,6 @@ def _diagnose(e: np.ndarray, x: Vector, bounds, names, coloured: bool = False) -
         span = (b - a) if np.isfinite(b - a) else max(abs(v), 1.0)
         if (np.isfinite(a) and v - a <= 1e-9 * span) or (np.isfinite(b) and b - v <= 1e-9 * span):
             warns.append(f"fit parameter {name} ended at its bound ({v:.6g}); the fit cannot be trusted")
-    return {"ljung_box_p": p_value, "residual_autocorrelation_lag1": float(rho[0]) if rho.size else 0.0}, warns
+            at_bounds.append(name)
+    return ({"ljung_box_p": p_value, "residual_autocorrelation_lag1": float(rho[0]) if rho.size else 0.0}, warns,
+            tuple(at_bounds))

@@ -16,6 +16,7 @@ its autoregressive noise model for band-limited scope noise.
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 from typing import Sequence
@@ -43,7 +44,12 @@ class WindowChannel:
     noise_group: str | None = None
 
 
-def _linear_part(e: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, float]:
+def exponential_step(t: np.ndarray, final: float, coef: float, tau: float, t_ref: float = 0.0) -> np.ndarray:
+    """final + coef·exp(−(t − t_ref)/tau), the model of one channel in one window."""
+    return final + coef * np.exp(-(np.asarray(t, dtype=float) - t_ref) / tau)
+
+
+def linear_part(e: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, float]:
     """Least-squares (final, coefficient) for fixed basis e, and the residual sum of squares."""
     a = np.column_stack((np.ones_like(e), e))
     coef, *_ = np.linalg.lstsq(a, y, rcond=None)
@@ -71,7 +77,7 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
 
     def cost(log_tau: float) -> float:
         tau = math.exp(log_tau)
-        return sum(_linear_part(np.exp(-(ch.time - float(ch.time[0])) / tau), ch.values)[1] / s
+        return sum(linear_part(np.exp(-(ch.time - float(ch.time[0])) / tau), ch.values)[1] / s
                    for ch, s in zip(channels, scales))
 
     grid = np.log(tau0) + np.linspace(math.log(0.2), math.log(5.0), 25)
@@ -99,7 +105,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     Returns
     -------
     FitResult
-        With ``t_ref`` in ``diagnostics``; ``residuals`` are the channels' in order.
+        With ``t_ref`` and ``t_ref_by_group`` set; ``residuals`` are the channels' in order.
 
     References
     ----------
@@ -115,7 +121,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     scaled = [(np.asarray(ch.time, dtype=float) - t_refs[ch.group]) / tau_start for ch in channels]
     x0 = [1.0]
     for ch, u in zip(channels, scaled):
-        coef, _ = _linear_part(np.exp(-u), ch.values)
+        coef, _ = linear_part(np.exp(-u), ch.values)
         x0 += [float(coef[0]), float(coef[1])]
     sizes = [ch.values.size for ch in channels]
     offsets = np.concatenate(([0], np.cumsum(sizes)))
@@ -155,19 +161,14 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     covariance = fit.covariance
     scale = np.ones(n_par)
     scale[0] = tau_start
-    diagnostics = dict(fit.diagnostics, t_ref=t_ref, t_ref_by_group=t_refs)
-    return FitResult(
-        model=fit.model, names=fit.names, values=fit.values * scale,
-        covariance=covariance * np.outer(scale, scale), residuals=fit.residuals,
-        noise_sigma=fit.noise_sigma, noise_model=fit.noise_model, n_samples=fit.n_samples,
-        n_effective=fit.n_effective, dof=fit.dof, diagnostics=diagnostics, warnings=fit.warnings,
-    )
+    return dataclasses.replace(fit, values=fit.values * scale, covariance=covariance * np.outer(scale, scale),
+                               t_ref=t_ref, t_ref_by_group=t_refs)
 
 
 def window_model(fit: FitResult, group: str, t: np.ndarray) -> np.ndarray:
     """The fitted curve of one channel at times ``t``."""
-    t_ref = fit.diagnostics.get("t_ref_by_group", {}).get(group, fit.diagnostics["t_ref"])
-    return fit[f"final_{group}"] + fit[f"coef_{group}"] * np.exp(-(np.asarray(t) - t_ref) / fit["tau"])
+    t_ref = fit.t_ref_by_group.get(group, fit.t_ref)
+    return exponential_step(t, fit[f"final_{group}"], fit[f"coef_{group}"], fit["tau"], t_ref)
 
 
 def fit_saturating(x: np.ndarray, y: np.ndarray, start: Sequence[float]) -> FitResult:

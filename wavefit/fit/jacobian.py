@@ -108,6 +108,13 @@ class Jacobian:
         return Jacobian(self.rows, [Piece(pc.start, pc.stop, pc.basis, -pc.coefficients) for pc in self.pieces],
                         None if self._array is None else -self._array, not self._negated)
 
+    def mapped(self, matrix: np.ndarray) -> "Jacobian":
+        """J·matrix (``matrix``: parameters × new parameters), the Jacobian in new parameters
+        of which the old are functions (the chain rule), kept in pieces."""
+        matrix = np.asarray(matrix, dtype=float)
+        return Jacobian(self.rows, [Piece(pc.start, pc.stop, pc.basis, pc.coefficients @ matrix) for pc in self.pieces],
+                        None if self._array is None else self._array @ matrix, self._negated)
+
     def restricted(self, start: int, stop: int) -> "Jacobian":
         """Rows start..stop as a Jacobian of their own (row 0 is row ``start``)."""
         return Jacobian(stop - start, [

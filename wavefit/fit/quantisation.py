@@ -33,6 +33,7 @@ from .engine import Block
 from .jacobian import Jacobian, as_jacobian
 from .noise_model import white
 from .portmanteau import standardised_portmanteau
+from .result import CodeFit, QuantisationWidening
 
 #: Below this residual rms, in codes, the error is treated as not dithered (residual
 #: σ² = σ_noise² + q²/12, so 0.5 q means σ_noise ≈ 0.4 q; common practice after Widrow).
@@ -94,7 +95,7 @@ INDEPENDENCE_P = 1e-3
 #: little from the codes (see :func:`include_quantisation`).
 UNINFORMED = 10.0
 
-#: How the warning begins, for callers that report it once per record.
+#: How the warnings about a resolution-limited record begin.
 RECORD_WIDE = "the record is resolution-limited"
 
 
@@ -106,6 +107,10 @@ WARNING = (f"{RECORD_WIDE} (its noise is below half a converter code): quantisat
 CODE_FIT_WARNING = (f"{RECORD_WIDE} (its noise is below half a converter code): it was fitted by the "
                     "likelihood of its codes (Gaussian noise before an ideal converter), which removes the "
                     "bias quantisation gives least squares; more vertical sensitivity would help")
+
+#: The warnings that concern the whole record (its converter), not one fit window: a method
+#: that fits several windows of a record says them once.
+RECORD_WARNINGS = (WARNING, CODE_FIT_WARNING)
 
 
 def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
@@ -147,10 +152,9 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     # the blocks of one channel share its converter (shifts add linearly); different channels'
     # converters err independently of each other
     widening = sum(np.outer(v, v) for v in totals.values())
-    diagnostics = dict(fit.diagnostics, quantisation_shift=dict(zip(fit.names, sum(totals.values()).tolist())),
-                       residual_rms_in_codes=worst)
-    widened = dataclasses.replace(fit, covariance=fit.covariance + widening,
-                                  diagnostics=diagnostics, warnings=(*fit.warnings, WARNING))
+    effect = QuantisationWidening(dict(zip(fit.names, sum(totals.values()).tolist())), worst)
+    widened = dataclasses.replace(fit, covariance=fit.covariance + widening, quantisation_widening=effect,
+                                  warnings=(*fit.warnings, WARNING))
     if limited == len(blocks):
         refined = fit_on_codes(fit, y, model, jac_model, blocks, steps, noise)
         # a level that reads one code with few excursions says little to the code likelihood
@@ -204,12 +208,11 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
         if standardised_portmanteau(part, used)[0] < INDEPENDENCE_P:
             return None
     residuals = y - fitted
-    diagnostics = dict(fit.diagnostics, quantisation=dict(
-        estimator="code likelihood", code_step=step, iterations=found.iterations,
-        noise_sigma_in_codes=dict(zip(names, (found.sigma / step).tolist())),
-        least_squares_values=dict(zip(fit.names, fit.values.tolist()))))
+    summary = CodeFit(code_step=step, iterations=found.iterations,
+                      noise_sigma_in_codes=dict(zip(names, (found.sigma / step).tolist())),
+                      least_squares_values=dict(zip(fit.names, fit.values.tolist())))
     return dataclasses.replace(fit, values=found.values, covariance=found.covariance, residuals=residuals,
-                               diagnostics=diagnostics, warnings=(*fit.warnings, CODE_FIT_WARNING))
+                               code_fit=summary, warnings=(*fit.warnings, CODE_FIT_WARNING))
 
 
 def _common_grid(parts: list[np.ndarray], known: list[float | None]) -> tuple[float, float] | None:
@@ -228,7 +231,6 @@ def noise_before_converter(fits) -> dict[str, float]:
     """Per noise group, the median noise before the converter that code fits among ``fits`` found."""
     found: dict[str, list[float]] = {}
     for f in fits:
-        q = f.diagnostics.get("quantisation", {})
-        for g, codes in q.get("noise_sigma_in_codes", {}).items():
-            found.setdefault(g, []).append(codes * q["code_step"])
+        for g, sigma in (f.code_fit.noise_before_converter if f.code_fit is not None else {}).items():
+            found.setdefault(g, []).append(sigma)
     return {g: float(np.median(v)) for g, v in found.items()}

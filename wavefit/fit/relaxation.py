@@ -20,6 +20,7 @@ that skip the edges and falls back to those when they disagree.
 """
 from __future__ import annotations
 
+import dataclasses
 from typing import Sequence
 
 import numpy as np
@@ -160,9 +161,4 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     factor[4::2] = scale
     values = fit.values * factor
     values[4::2] += t[0]
-    return FitResult(
-        model=fit.model, names=fit.names, values=values, covariance=fit.covariance * np.outer(factor, factor),
-        residuals=fit.residuals, noise_sigma=fit.noise_sigma, noise_model=fit.noise_model,
-        n_samples=fit.n_samples, n_effective=fit.n_effective, dof=fit.dof, diagnostics=fit.diagnostics,
-        warnings=fit.warnings,
-    )
+    return dataclasses.replace(fit, values=values, covariance=fit.covariance * np.outer(factor, factor))

@@ -42,7 +42,7 @@ def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, n
     var_f = whole.covariance[0, 0]
     if not (np.isfinite(var_f) and var_f > 0):
         return windowed, False
-    if any("ended at its bound" in w for w in whole.warnings) or \
+    if whole.parameters_at_bounds or \
             (whole["tau"] - windowed.values[0]) ** 2 > 9.0 * windowed.covariance[0, 0]:
         # a gross disagreement with the independent per-edge windows: another minimum of the
         # whole-record fit (switching instants moved together with tau)

@@ -267,7 +267,7 @@ def _tau_information(t, w, f, start: int) -> float:
     _, coef, tau = f.subset(("final_sense", "coef_sense", "tau"))[0]
     u = t[start:w.stop] - t[start]
     e = np.exp(-u / tau)
-    amp = coef * math.exp(-(t[start] - f.diagnostics["t_ref"]) / tau)
+    amp = coef * math.exp(-(t[start] - f.t_ref) / tau)
     jac = np.column_stack((np.ones_like(u), e, amp * e * u / tau ** 2))
     return 1.0 / float(np.linalg.inv(jac.T @ jac)[2, 2])
 

@@ -29,7 +29,7 @@ from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
 from ..fit.noise_model import fit_ar
-from ..fit.quantisation import RECORD_WIDE, include_quantisation, noise_before_converter
+from ..fit.quantisation import RECORD_WARNINGS, include_quantisation, noise_before_converter
 from ..fit.result import FitResult
 from ..measurement import Measurement
 from ..outputs import Scalar
@@ -307,7 +307,7 @@ class RLStep(Method):
         for w, fit in zip(windows, fits):
             for msg in fit.warnings:
                 # a record-wide condition is said once, not once per edge
-                out.append(msg if msg.startswith(RECORD_WIDE) else f"edge at {w.t0:.6g} s: {msg}")
+                out.append(msg if msg in RECORD_WARNINGS else f"edge at {w.t0:.6g} s: {msg}")
             for group, y in (("sense", sense), ("drive", drive)):
                 if y is None:
                     continue
@@ -332,7 +332,7 @@ class RLStep(Method):
         per_edge = []
         for w, f in zip(windows, fits):
             entry = {"direction": "rising" if w.edge.direction > 0 else "falling", "t0": w.t0,
-                     "window_start": f.diagnostics["t_ref"], "samples": f.n_samples,
+                     "window_start": f.t_ref, "samples": f.n_samples,
                      "tau": f["tau"], "tau_standard_error": f.stderr("tau"),
                      "noise_model": f.noise_model, "ljung_box_p": f.diagnostics.get("ljung_box_p")}
             per_edge.append(entry)
@@ -343,7 +343,7 @@ class RLStep(Method):
             "tau_fit": combined.values[0],
             "tau_fit_standard_error": math.sqrt(combined.covariance[0, 0]),
             "tau_per_edge_spread": float(np.std(taus, ddof=1)) if taus.size > 1 else 0.0,
-            "skip_after_edge_s": float(fits[0].diagnostics["t_ref"] - windows[0].t0),
+            "skip_after_edge_s": float(fits[0].t_ref - windows[0].t0),
             "sample_interval_s": dt,
             "type_a_dof": combined.dof,
             "type_a_estimator": "per-window feasible GLS with AR noise model (Cochrane-Orcutt), "
@@ -420,4 +420,4 @@ def _plot(t, sense, drive, windows, fits) -> TracePlot:
 
 def _on_codes(fits) -> bool:
     """Whether every fit was carried to the maximum of the code likelihood."""
-    return all(f.diagnostics.get("quantisation", {}).get("estimator") == "code likelihood" for f in fits)
+    return all(f.code_fit is not None for f in fits)
