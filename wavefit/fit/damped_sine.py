@@ -45,7 +45,7 @@ from scipy import optimize
 
 from .compressed import TriangularProblem, triangle
 from .engine import Block, fit_least_squares
-from .jacobian import Jacobian, Piece, is_small
+from .jacobian import CHUNK_ELEMENTS, Jacobian, Piece, is_small
 from .noise_model import white
 from .quantisation import include_quantisation
 from .pencil import matrix_pencil
@@ -110,17 +110,30 @@ class DampedSineFit:
     def envelope(self, t: np.ndarray) -> np.ndarray:
         return self.amplitude * np.exp(-self.alpha * (np.asarray(t) - self.t_ref))
 
-    def evaluate(self, t: np.ndarray) -> np.ndarray:
-        """The fitted curve at times ``t`` (SI)."""
-        tau = np.asarray(t, dtype=float) - self.t_ref
-        e = np.exp(-self.alpha * tau)
-        return self.fit["offset"] + e * (self.fit["a"] * np.cos(self.w_d * tau) + self.fit["b"] * np.sin(self.w_d * tau))
+    def evaluate(self, t: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
+        """The fitted curve at times ``t`` (SI), into ``out`` when given; a chunk of samples at
+        a time, so that a long record's curve costs no more than the array it fills."""
+        t = np.asarray(t, dtype=float)
+        out = np.empty(t.shape) if out is None else out
+        offset, a, b = self.fit["offset"], self.fit["a"], self.fit["b"]
+        for lo in range(0, t.size, CHUNK_ELEMENTS):
+            tau = t[lo:lo + CHUNK_ELEMENTS] - self.t_ref
+            e = np.exp(-self.alpha * tau)
+            out[lo:lo + CHUNK_ELEMENTS] = offset + e * (a * np.cos(self.w_d * tau) + b * np.sin(self.w_d * tau))
+        return out
 
 
 def model(x: np.ndarray, tau: np.ndarray) -> np.ndarray:
-    """offset + exp(−alpha·τ)·(a cos w_d τ + b sin w_d τ) for x = (offset, a, b, alpha, w_d)."""
-    e = np.exp(-x[3] * tau)
-    return x[0] + e * (x[1] * np.cos(x[4] * tau) + x[2] * np.sin(x[4] * tau))
+    """offset + exp(−alpha·τ)·(a cos w_d τ + b sin w_d τ) for x = (offset, a, b, alpha, w_d),
+    a chunk of samples at a time (a long record's temporaries stay small)."""
+    tau = np.asarray(tau)
+    flat = tau.reshape(-1)
+    out = np.empty(flat.shape)
+    for lo in range(0, out.size, CHUNK_ELEMENTS):
+        part = flat[lo:lo + CHUNK_ELEMENTS]
+        e = np.exp(-x[3] * part)
+        out[lo:lo + CHUNK_ELEMENTS] = x[0] + e * (x[1] * np.cos(x[4] * part) + x[2] * np.sin(x[4] * part))
+    return out.reshape(tau.shape) if tau.ndim else out[0]
 
 
 def jacobian(x: np.ndarray, tau: np.ndarray) -> np.ndarray:
@@ -217,7 +230,8 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
                 sample_numbers=tau)
 
     def fun(x: np.ndarray) -> np.ndarray:
-        return y - model(x, tau)
+        r = model(x, tau)
+        return np.subtract(y, r, out=r)
 
     def jac(x: np.ndarray) -> Jacobian:
         return pieced_jacobian(x, tau).negated()
@@ -337,7 +351,9 @@ def _start_problem(seg: np.ndarray, tau: np.ndarray) -> tuple[Callable, Callable
     (:class:`~wavefit.fit.compressed.TriangularProblem`: the same Levenberg–Marquardt steps
     on p + 1 rows), since MINPACK copies its dense n × p Jacobian several times over."""
     def residuals(v: np.ndarray) -> np.ndarray:
-        return model(v, tau) - seg
+        r = model(v, tau)
+        r -= seg
+        return r
 
     if is_small(seg.size, len(NAMES)):
         return residuals, lambda v: jacobian(v, tau)

@@ -81,7 +81,8 @@ class ARNoise:
         k = min(self.order, n)
         lo = max(0, start - self.order)
         r = rows(lo, stop)
-        out = lfilter(self.filter, [1.0], r, axis=0)[start - lo:] / self.sigma_e
+        out = lfilter(self.filter, [1.0], r, axis=0)[start - lo:]
+        out /= self.sigma_e  # (in place: a long record's rows are not copied again)
         if start < k:
             head = r[:k] if stop >= k else rows(0, k)
             out[: min(stop, k) - start] = (self.head_whitener[:k, :k] @ head)[start:stop]

@@ -156,7 +156,11 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     if not check.adequate:
         warnings.append(check.warning("damped-sinusoid model", "damping or frequency that changes with "
                                       "amplitude: core loss or saturation?"))
-    spur = _residual_peak(ring.fit.residuals, ring.evaluate(seg_t) - ring.fit["offset"], dt)
+    oscillation = ring.evaluate(seg_t)
+    oscillation -= ring.fit["offset"]
+    energy = float(oscillation @ oscillation)
+    del oscillation
+    spur = _residual_peak(ring.fit.residuals, energy, dt)
     if spur is not None:
         warnings.append(f"a second oscillation at {spur['frequency']:.4g} Hz ({spur['relative_energy']:.1e} of "
                         "the ring's energy) remains in the residuals: second mode, beat or pickup")
@@ -232,9 +236,10 @@ def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSin
     return ModelCheck(varied, tuple(variations))
 
 
-def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, float] | None:
+def _residual_peak(r: np.ndarray, ring_energy: float, dt: float) -> dict[str, float] | None:
     """A spectral line in the residuals well above the local noise floor and above −30 dB of
-    the ring's energy (common practice for spotting a spurious tone), or None.
+    the ring's energy (``ring_energy``, the sum of squares of the fitted oscillation about its
+    offset; common practice for spotting a spurious tone), or None.
 
     Lines closer than 8 bins to DC (fewer than 8 cycles in the window) are not searched:
     there correlated noise rises steeply towards low frequency, the running median lags
@@ -242,7 +247,8 @@ def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, floa
     n = r.size
     if n < 64:
         return None
-    spec = np.abs(np.fft.rfft(r - r.mean())) ** 2
+    spec = np.abs(np.fft.rfft(r - r.mean()))
+    spec *= spec
     floor = ndimage.median_filter(spec, size=31, mode="nearest") / math.log(2.0)
     lowest = 8
     ratio = spec[lowest:] / np.maximum(floor[lowest:], 1e-300)
@@ -251,7 +257,7 @@ def _residual_peak(r: np.ndarray, ring: np.ndarray, dt: float) -> dict[str, floa
         return None
     band = slice(max(k - 2, 0), k + 3)
     energy = float(np.sum(np.clip(spec[band] - floor[band], 0, None))) * 2.0 / n
-    relative = energy / max(float(ring @ ring), 1e-300)
+    relative = energy / max(ring_energy, 1e-300)
     if relative < 1e-3:
         return None
     return {"frequency": k / (n * dt), "relative_energy": relative}
