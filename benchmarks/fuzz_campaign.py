@@ -19,20 +19,9 @@ from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
-from fuzz_cases import Case, cases  # noqa: E402
+from fuzz_cases import Case, cases, numbers_in  # noqa: E402
 
 HANG_SECONDS = 60
-
-
-def _numbers(obj):
-    if isinstance(obj, dict):
-        for value in obj.values():
-            yield from _numbers(value)
-    elif isinstance(obj, list):
-        for value in obj:
-            yield from _numbers(value)
-    elif isinstance(obj, float):
-        yield obj
 
 
 def run(case: Case, folder: Path, k: int) -> str:
@@ -55,7 +44,7 @@ def run(case: Case, folder: Path, k: int) -> str:
         result = json.loads(done.stdout)
     except json.JSONDecodeError:
         return "STDOUT NOT JSON"
-    if not all(math.isfinite(x) for x in _numbers(result["quantities"])):
+    if not all(math.isfinite(x) for x in numbers_in(result["quantities"])):
         return "NON-FINITE"
     if "L" in result["quantities"] and not result["quantities"]["L"]["value"] > 0:
         return "NON-POSITIVE L"

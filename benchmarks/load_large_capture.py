@@ -13,7 +13,6 @@ Usage::
 from __future__ import annotations
 
 import argparse
-import resource
 import subprocess
 import sys
 import tempfile
@@ -24,6 +23,8 @@ from pathlib import Path
 import wavefit  # first: it sets one BLAS thread, which takes effect only before numpy loads
 
 import numpy as np
+
+from process_memory import peak_bytes, reset_peak, status_bytes
 
 from wavefit.io import read_capture
 
@@ -41,49 +42,18 @@ def write_capture(path: Path, rows: int, dt: float = 1e-9) -> None:
             np.savetxt(out, block, fmt=["%.9e", "%.6e", "%.6e"], delimiter=",")
 
 
-def _status_bytes(field: str) -> int | None:
-    """A ``VmRSS``/``VmHWM`` figure from /proc/self/status in bytes (Linux), else None."""
-    try:
-        with open("/proc/self/status", encoding="ascii") as status:
-            for line in status:
-                if line.startswith(field + ":"):
-                    return int(line.split()[1]) * 1024
-    except OSError:
-        return None
-    return None
-
-
-def _reset_peak_rss() -> bool:
-    """Reset the kernel's peak-RSS mark of this process (Linux); False when not possible."""
-    try:
-        with open("/proc/self/clear_refs", "w", encoding="ascii") as refs:
-            refs.write("5")
-        return True
-    except OSError:
-        return False
-
-
-def _peak_rss_bytes() -> int:
-    """Peak resident set size: VmHWM on Linux, else ru_maxrss (KiB on Linux, bytes on macOS)."""
-    peak = _status_bytes("VmHWM")
-    if peak is not None:
-        return peak
-    maxrss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    return maxrss if sys.platform == "darwin" else maxrss * 1024
-
-
 def load(path: Path) -> None:
     """Load ``path`` in this (fresh) process and print the figures."""
     size = path.stat().st_size
-    rss_before = _status_bytes("VmRSS") or _peak_rss_bytes()
-    reset = _reset_peak_rss()
+    rss_before = status_bytes("VmRSS") or peak_bytes()
+    reset = reset_peak()
     tracemalloc.start()
     started = time.perf_counter()
     capture = read_capture(path)
     seconds = time.perf_counter() - started
     _, heap_peak = tracemalloc.get_traced_memory()
     tracemalloc.stop()
-    rss_peak = _peak_rss_bytes()
+    rss_peak = peak_bytes()
     arrays = capture.time.nbytes + sum(c.values.nbytes for c in capture.channels)
     added = rss_peak - rss_before
     print(f"rows                  {capture.rows:,}")

@@ -39,6 +39,8 @@ import wavefit  # first: it sets one BLAS thread, which takes effect only before
 
 import numpy as np
 
+from process_memory import peak_bytes, reset_peak, status_bytes
+
 from wavefit.synth.lc import Tank, ringdown
 from wavefit.synth.rl import rl_square_wave
 from wavefit.synth.scope import ScopeModel
@@ -116,43 +118,13 @@ def make_record(case: str, samples: int, edges: int, seed: int):
     return rl_record(samples, edges, drive=case == "rl-drive", correlated=case == "rl-sense-correlated", rng=rng)
 
 
-def _status_bytes(field: str) -> int | None:
-    """A ``VmRSS``/``VmHWM`` figure from /proc/self/status in bytes (Linux), else None."""
-    try:
-        with open("/proc/self/status", encoding="ascii") as status:
-            for line in status:
-                if line.startswith(field + ":"):
-                    return int(line.split()[1]) * 1024
-    except OSError:
-        return None
-    return None
-
-
-def _reset_peak() -> bool:
-    """Reset the kernel's peak-RSS mark of this process (Linux); False when not possible."""
-    try:
-        with open("/proc/self/clear_refs", "w", encoding="ascii") as refs:
-            refs.write("5")
-        return True
-    except OSError:
-        return False
-
-
-def _peak_bytes() -> int:
-    peak = _status_bytes("VmHWM")
-    if peak is not None:
-        return peak
-    maxrss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    return maxrss if sys.platform == "darwin" else maxrss * 1024
-
-
 def child(path: Path, setup_json: str, names: list[str]) -> None:
     """Analyse the capture in ``path`` in this fresh process and print one JSON line."""
     import pandas as pd
 
     frame = pd.DataFrame(np.load(path), columns=names)
-    given = _status_bytes("VmRSS") or _peak_bytes()  # the interpreter, its imports and the frame
-    reset = _reset_peak()
+    given = status_bytes("VmRSS") or peak_bytes()  # the interpreter, its imports and the frame
+    reset = reset_peak()
     wall, cpu = time.perf_counter(), time.process_time()
     try:
         result = wavefit.analyze(frame, json.loads(setup_json))
@@ -161,7 +133,7 @@ def child(path: Path, setup_json: str, names: list[str]) -> None:
         outcome = f"MemoryError: {str(exc)[:70]}"
     except wavefit.WavefitError as exc:
         outcome = f"{type(exc).__name__}: {str(exc)[:90]}"
-    report = {"given": given, "peak": _peak_bytes(), "reset": reset, "outcome": outcome,
+    report = {"given": given, "peak": peak_bytes(), "reset": reset, "outcome": outcome,
               "wall": time.perf_counter() - wall, "cpu": time.process_time() - cpu}
     print(json.dumps(report))
 

@@ -138,3 +138,15 @@ def cases(count: int, seed: int) -> list[Case]:
             what.append(w)
         out.append(Case(data, setup, "; ".join(what)))
     return out
+
+
+def numbers_in(obj):
+    """Every float in a JSON-like object (dicts and lists walked), for the finiteness checks."""
+    if isinstance(obj, dict):
+        for value in obj.values():
+            yield from numbers_in(value)
+    elif isinstance(obj, list):
+        for value in obj:
+            yield from numbers_in(value)
+    elif isinstance(obj, float):
+        yield obj

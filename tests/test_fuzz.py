@@ -17,24 +17,13 @@ from pathlib import Path
 
 import pytest
 
-from fuzz_cases import cases
+from fuzz_cases import cases, numbers_in
 from wavefit.cli import main
 
 #: Cases in the suite (the campaign script runs thousands).
 SUITE_CASES = 160
 #: No case may take longer (a hang is a failure).
 CASE_SECONDS = 60
-
-
-def _numbers(obj):
-    if isinstance(obj, dict):
-        for value in obj.values():
-            yield from _numbers(value)
-    elif isinstance(obj, list):
-        for value in obj:
-            yield from _numbers(value)
-    elif isinstance(obj, float):
-        yield obj
 
 
 def _alarm(signum, frame):
@@ -62,7 +51,7 @@ def test_mutated_inputs_give_a_result_or_one_line(tmp_path: Path, chunk: int) ->
                 assert out.getvalue() == "", label
                 continue
             result = json.loads(out.getvalue())
-            assert all(math.isfinite(x) for x in _numbers(result["quantities"])), label
+            assert all(math.isfinite(x) for x in numbers_in(result["quantities"])), label
             if "L" in result["quantities"]:
                 assert result["quantities"]["L"]["value"] > 0, label
     finally:

@@ -5,6 +5,8 @@ import math
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
 if TYPE_CHECKING:
     import lmfit
     import pandas as pd
@@ -68,12 +70,17 @@ class BudgetLine:
             "value": _json_number(self.value),
             "unit": self.unit,
             "standard_uncertainty": _json_number(self.standard_uncertainty),
-            "sensitivity": _json_number(self.sensitivity),
-            "contribution": _json_number(self.contribution),
-            "variance_share": _json_number(self.variance_share),
+            "sensitivity": _numbers(self.sensitivity),
+            "contribution": _numbers(self.contribution),
+            "variance_share": _numbers(self.variance_share),
             "type": self.kind,
             "degrees_of_freedom": _json_number(self.degrees_of_freedom),
         }
+
+
+def _numbers(x: Any) -> Any:
+    """A number, or an array of them (a curve's budget), for JSON."""
+    return _jsonable(x) if np.ndim(x) else _json_number(x)
 
 
 @dataclass(frozen=True)
@@ -174,35 +181,12 @@ class AnalysisResult:
 
 
 @dataclass(frozen=True)
-class CurveBudgetLine:
+class CurveBudgetLine(BudgetLine):
     """One input's part in a curve's uncertainty, point by point (arrays over the axis).
 
     As :class:`BudgetLine`, with ``sensitivity``, ``contribution`` and ``variance_share``
     one value per point of the curve.
     """
-
-    source: str
-    value: float
-    unit: str
-    standard_uncertainty: float
-    sensitivity: Any
-    contribution: Any
-    variance_share: Any
-    kind: str
-    degrees_of_freedom: float
-
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "source": self.source,
-            "value": _json_number(self.value),
-            "unit": self.unit,
-            "standard_uncertainty": _json_number(self.standard_uncertainty),
-            "sensitivity": _jsonable(self.sensitivity),
-            "contribution": _jsonable(self.contribution),
-            "variance_share": _jsonable(self.variance_share),
-            "type": self.kind,
-            "degrees_of_freedom": _json_number(self.degrees_of_freedom),
-        }
 
 
 @dataclass(frozen=True)
@@ -252,8 +236,6 @@ class CurveResult:
 
 def _jsonable(obj: Any) -> Any:
     """Convert numpy scalars/arrays and non-finite floats for JSON."""
-    import numpy as np
-
     if isinstance(obj, dict):
         return {str(k): _jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
