@@ -156,11 +156,11 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     if not check.adequate:
         warnings.append(check.warning("damped-sinusoid model", "damping or frequency that changes with "
                                       "amplitude: core loss or saturation?"))
-    oscillation = ring.evaluate(seg_t)
+    oscillation = ring.evaluate(seg_t[:RESIDUAL_SPECTRUM_SAMPLES])
     oscillation -= ring.fit["offset"]
     energy = float(oscillation @ oscillation)
     del oscillation
-    spur = _residual_peak(ring.fit.residuals, energy, dt)
+    spur = _residual_peak(ring.fit.residuals[:RESIDUAL_SPECTRUM_SAMPLES], energy, dt)
     if spur is not None:
         warnings.append(f"a second oscillation at {spur['frequency']:.4g} Hz ({spur['relative_energy']:.1e} of "
                         "the ring's energy) remains in the residuals: second mode, beat or pickup")
@@ -236,10 +236,16 @@ def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSin
     return ModelCheck(varied, tuple(variations))
 
 
+#: The residuals' spectrum is taken over at most this many samples from the ring's start (2 M):
+#: a transform of a long record whose length has large prime factors needs buffers many times
+#: the record's size (Bluestein's algorithm), and 2 M samples resolve any line that matters.
+RESIDUAL_SPECTRUM_SAMPLES = 1 << 21
+
+
 def _residual_peak(r: np.ndarray, ring_energy: float, dt: float) -> dict[str, float] | None:
     """A spectral line in the residuals well above the local noise floor and above −30 dB of
     the ring's energy (``ring_energy``, the sum of squares of the fitted oscillation about its
-    offset; common practice for spotting a spurious tone), or None.
+    offset over the same samples; common practice for spotting a spurious tone), or None.
 
     Lines closer than 8 bins to DC (fewer than 8 cycles in the window) are not searched:
     there correlated noise rises steeply towards low frequency, the running median lags
