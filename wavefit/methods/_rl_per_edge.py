@@ -13,7 +13,8 @@ from dataclasses import dataclass
 
 import numpy as np
 from ..errors import AnalysisRefused
-from ._scale_factor import EDGE_SCATTER_P, RISE_FALL_SCATTER_P, birge_ratio, scale_factor
+from ..scale_factor import birge_ratio, scale_factor
+from ._scale_factor import EDGE_SCATTER_P, RISE_FALL_SCATTER_P
 
 
 @dataclass(frozen=True)

@@ -8,7 +8,8 @@ import numpy as np
 
 from ..fit.exponential import WindowChannel, fit_exponential_window
 from ._rl_per_edge import Combined
-from ._scale_factor import POOLED_SCATTER_P, scale_factor
+from ..scale_factor import scale_factor
+from ._scale_factor import POOLED_SCATTER_P
 
 
 def pooled_windows(t, sense, windows, baseline, windowed: Combined, noise) -> Combined | None:

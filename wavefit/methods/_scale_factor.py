@@ -1,20 +1,12 @@
-"""The scale-factor rule for repeated estimates that scatter more than their uncertainties say.
+"""Significance levels of the scale-factor rule (:mod:`wavefit.scale_factor`) in the methods.
 
-One rule everywhere in the methods: estimates of one quantity with stated covariances give
-χ² on ν degrees of freedom and the Birge ratio S = √(χ²/ν) (R. T. Birge, Phys. Rev. 40 (1932)
-207–227). When S > 1 and the scatter is significant — the χ² probability below the level of
-the use — the combined covariance is multiplied by S², the Particle Data Group's averaging
-rule (Review of Particle Physics, "Introduction", unconstrained averaging; from memory).
-The significance level differs by use, each for a measured or stated reason beside its
-constant. (The enlargement of tau's variance for edges placed from correlated noise,
+The level differs by use, each for a measured or stated reason beside its constant. (The
+enlargement of tau's variance for edges placed from correlated noise,
 ``Combined.with_tau_variance_scaled``, is not this rule: it is the information lost by
 starting windows later, :func:`wavefit.methods._rl_windows.placement_factor`.)
 """
 from __future__ import annotations
 
-import math
-
-from scipy import stats
 
 #: rl-step, per-edge windows combined: the separate fits understate their uncertainties a
 #: little in correlated noise, so a moderate excess scatter is expected of a right result;
@@ -31,14 +23,3 @@ LINE_SCATTER_P = 0.01
 #: scatter within each direction always widens it when S > 1 (level 1: conservative, fewer
 #: false alarms of a level-dependent part).
 RISE_FALL_SCATTER_P = 1.0
-
-
-def birge_ratio(chi2: float, dof: int) -> tuple[float, float]:
-    """S = √(χ²/ν) and the probability of a χ² at least as large on ν degrees of freedom."""
-    return math.sqrt(chi2 / dof), float(stats.chi2.sf(chi2, dof))
-
-
-def scale_factor(ratio: float, p_value: float, level: float) -> float:
-    """The factor S by which standard uncertainties are enlarged: the Birge ratio ``ratio`` when it
-    exceeds 1 and its ``p_value`` is below ``level``, else 1."""
-    return ratio if ratio > 1.0 and p_value < level else 1.0

@@ -31,7 +31,8 @@ from ..uncertainty import InputSet, Propagation
 from . import register
 from ._model_check import ModelCheck
 from ._ring import check_time_options, coil_loss_option, loss_correction, measure_ring
-from ._scale_factor import LINE_SCATTER_P, birge_ratio, scale_factor
+from ..scale_factor import birge_ratio, scale_factor
+from ._scale_factor import LINE_SCATTER_P
 from .base import Method
 from .estimate import Estimate, FittedBlock
 from .lc_ring import LOSS_SPLIT, LcRing

@@ -42,7 +42,8 @@ from ._model_check import ModelCheck, Variation, added
 from ._rl_estimators import estimate_tau
 from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, late_start,
                           placement_factor, placement_jitter, settle_starts, start_margin)
-from ._scale_factor import EDGE_SCATTER_P, scale_factor
+from ..scale_factor import scale_factor
+from ._scale_factor import EDGE_SCATTER_P
 from ._rl_wiring import check_wiring
 from .base import Method, PartSpec
 from .estimate import Estimate, FittedBlock
