@@ -143,6 +143,31 @@ def test_cli_reports_both_intervals(capsys):
     assert set(data["monte_carlo"]["quantities"]) == set(data["quantities"])
 
 
+def test_cli_draws_and_seed(capsys):
+    args = ["analyze", str(SAMPLES / "tank_ring.csv"), "--setup", str(SAMPLES / "tank_ring.toml"),
+            "--uncertainty", "montecarlo", "--draws", "20000", "--json"]
+    runs = []
+    for seed in ("7", "7", "8"):
+        assert main([*args, "--seed", seed]) == 0
+        runs.append(json.loads(capsys.readouterr().out)["monte_carlo"])
+    assert runs[0] == runs[1] != runs[2]  # a seed repeats its run; another seed gives other draws
+    assert runs[0]["draws"] == 20000 and runs[0]["seed"] == 7
+
+
+@pytest.mark.parametrize("extra, message", [
+    (["--uncertainty", "montecarlo", "--draws", "100"], "too few"),
+    (["--draws", "20000"], "applies only with --uncertainty montecarlo"),
+])
+def test_cli_refuses_unusable_draws(capsys, extra, message):
+    args = ["analyze", str(SAMPLES / "tank_ring.csv"), "--setup", str(SAMPLES / "tank_ring.toml"), *extra]
+    try:
+        code = main(args)
+    except SystemExit as stop:  # argparse's own refusal of an option's value
+        code = stop.code
+    assert code == 2
+    assert message in capsys.readouterr().err
+
+
 def test_study_rectangular_led_inductance_mc_covers_and_linear_overstates():
     # fast version of benchmarks/montecarlo_vs_linear.py: with the capacitor drawn from its ±2 %
     # band in every trial, the Monte Carlo interval of L covers near 95.45 % while y ± 2u covers

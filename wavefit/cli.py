@@ -19,6 +19,23 @@ from .report.safe_text import visible
 EXIT_OK, EXIT_USAGE, EXIT_INPUT, EXIT_REFUSED, EXIT_OUTPUT = 0, 2, 3, 4, 5
 
 
+#: Fewest Monte Carlo draws the command line takes: a 95 % coverage interval cut from fewer than
+#: 10⁴ draws moves in its first significant digit from one seed to the next (common practice;
+#: JCGM 101:2008, 7.2.2, expects 10⁶ for one or two correct digits).
+MIN_DRAWS = 10_000
+
+
+def _draws(text: str) -> int:
+    """``--draws``: a whole number of at least MIN_DRAWS."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < MIN_DRAWS:
+        raise argparse.ArgumentTypeError(f"{value} draws is too few for a coverage interval; give at least {MIN_DRAWS}")
+    return value
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="wavefit",
@@ -41,6 +58,10 @@ def build_parser() -> argparse.ArgumentParser:
     p_an.add_argument("--uncertainty", choices=("linear", "montecarlo"), default="linear",
                       help="montecarlo: also propagate the inputs' distributions by Monte Carlo (JCGM 101, "
                            "10^6 draws) and report its coverage intervals beside the linear ones")
+    p_an.add_argument("--draws", type=_draws, default=None, metavar="N",
+                      help=f"Monte Carlo draws (default 10^6, at least {MIN_DRAWS})")
+    p_an.add_argument("--seed", type=int, default=None, metavar="N",
+                      help="seed of the Monte Carlo draws (default: a fixed one, so runs repeat)")
 
     p_in = sub.add_parser("inspect", help="show what the reader sees in a capture file")
     p_in.add_argument("file", metavar="FILE")
@@ -87,6 +108,9 @@ def _analyze(args: argparse.Namespace) -> int:
     from .methods import get_method
     from .setup import load_setup
 
+    monte_carlo = _monte_carlo_options(args)
+    if monte_carlo is None:
+        return EXIT_USAGE
     setup = load_setup(args.setup)
     method = get_method(setup.method)
     if method.uses_setup_captures:
@@ -99,7 +123,8 @@ def _analyze(args: argparse.Namespace) -> int:
     results, worst = [], EXIT_OK
     for k, source in enumerate(jobs):
         try:
-            result = analyze(source, setup, sample_interval=args.sample_interval, uncertainty=args.uncertainty)
+            result = analyze(source, setup, sample_interval=args.sample_interval, uncertainty=args.uncertainty,
+                             **monte_carlo)
         except WavefitError as exc:
             if args.debug:
                 raise
@@ -129,6 +154,16 @@ def _analyze(args: argparse.Namespace) -> int:
         payload = results[0].to_dict() if len(jobs) == 1 else [r.to_dict() for r in results]
         print(json.dumps(payload, indent=2, allow_nan=False))
     return worst
+
+
+def _monte_carlo_options(args: argparse.Namespace) -> dict[str, int] | None:
+    """``--draws`` and ``--seed`` as given (the library's defaults otherwise); None, with the
+    reason on stderr, when they come without ``--uncertainty montecarlo``, which they would not affect."""
+    given = {k: v for k, v in (("draws", args.draws), ("seed", args.seed)) if v is not None}
+    if given and args.uncertainty != "montecarlo":
+        print(f"wavefit: error: --{next(iter(given))} applies only with --uncertainty montecarlo", file=sys.stderr)
+        return None
+    return given
 
 
 def _batch(args: argparse.Namespace) -> int:
