@@ -3,7 +3,7 @@
 External references: NIST StRD Misra1a (certified values, nonlinear regression,
 https://www.itl.nist.gov/div898/strd/nls/nls_main.shtml) for the exponential step, and
 ngspice transient simulations of a series RLC ring (alpha = R/2L, w_d² = 1/LC − alpha²,
-the textbook second-order response) and of a square-wave driven RL loop (tau = L/R).
+the underdamped second-order response) and of a square-wave driven RL loop (tau = L/R).
 The checks on analytic waveforms only test ``guess`` and that each model's function is the
 one wavefit's own fits evaluate.
 """

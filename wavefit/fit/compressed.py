@@ -2,7 +2,8 @@
 
 A trust-region or Levenberg–Marquardt step depends on the residual f and its Jacobian J
 only through JᵀJ, Jᵀf and ‖f‖ (J. J. Moré, "The Levenberg–Marquardt algorithm:
-implementation and theory", Lecture Notes in Mathematics 630, Springer 1978, 105–116). With
+implementation and theory", in G. A. Watson (ed.), *Numerical Analysis*, Springer 1978,
+105–116). With
 the QR factorisation [J | f] = Q·[[R, a], [0, ρ]], the problem of p + 1 residuals
 g = (a, ρ) with Jacobian (R; 0) has the same three, so a solver given it takes the same
 steps as on the record itself while holding p + 1 rows instead of one per sample.
