@@ -37,7 +37,19 @@ from .relaxation import relaxation_model
 ONE_TAU = 1.0 - math.exp(-1.0)
 
 
-class ExponentialStep(lmfit.Model):
+class _WaveformModel(lmfit.Model):
+    """An :class:`lmfit.Model` of time ``t`` whose parameter ``positive`` is kept above zero
+    and, with ``fixed_reference``, whose reference instant ``t_ref`` is fixed (set by ``guess``)."""
+
+    def __init__(self, func, positive: str, fixed_reference: bool, **kws):
+        kws.setdefault("independent_vars", ["t"])
+        super().__init__(func, **kws)
+        self.set_param_hint(positive, min=0.0)
+        if fixed_reference:
+            self.set_param_hint("t_ref", value=0.0, vary=False)
+
+
+class ExponentialStep(_WaveformModel):
     """final + coef·exp(−(t − t_ref)/tau): one state of a first-order step response.
 
     ``tau`` is kept positive; ``t_ref`` (the instant the coefficient refers to) is fixed,
@@ -46,10 +58,7 @@ class ExponentialStep(lmfit.Model):
     """
 
     def __init__(self, **kws):
-        kws.setdefault("independent_vars", ["t"])
-        super().__init__(exponential_step, **kws)
-        self.set_param_hint("tau", min=0.0)
-        self.set_param_hint("t_ref", value=0.0, vary=False)
+        super().__init__(exponential_step, "tau", True, **kws)
 
     def guess(self, data: np.ndarray, t: np.ndarray, **kws) -> lmfit.Parameters:
         """Starting values by variable projection over tau (:func:`~wavefit.fit.exponential.projected_tau`),
@@ -74,7 +83,7 @@ def relaxation_names(n_edges: int) -> list[str]:
     return names
 
 
-class Relaxation(lmfit.Model):
+class Relaxation(_WaveformModel):
     """First-order relaxations between ``n_edges`` switching instants (:mod:`wavefit.fit.relaxation`).
 
     Before the first instant t0_1: final_head + coef_head·exp(−(t − t[0])/tau), referred to
@@ -95,9 +104,7 @@ class Relaxation(lmfit.Model):
             [inspect.Parameter("t", inspect.Parameter.POSITIONAL_OR_KEYWORD)]
             + [inspect.Parameter(n, inspect.Parameter.KEYWORD_ONLY) for n in names])
 
-        kws.setdefault("independent_vars", ["t"])
-        super().__init__(relaxation, **kws)
-        self.set_param_hint("tau", min=0.0)
+        super().__init__(relaxation, "tau", False, **kws)
 
     def guess(self, data: np.ndarray, t: np.ndarray, **kws) -> lmfit.Parameters:
         """Starting values from the record's first ``n_edges`` edges: IEEE Std 181 state levels
@@ -123,7 +130,7 @@ def damped_sine(t: np.ndarray, offset: float, a: float, b: float, alpha: float, 
     return ring.model(np.array([offset, a, b, alpha, w_d], dtype=float), np.asarray(t, dtype=float) - t_ref)
 
 
-class DampedSine(lmfit.Model):
+class DampedSine(_WaveformModel):
     """offset + exp(−alpha·τ)·(a·cos w_d·τ + b·sin w_d·τ), τ = t − t_ref: a free ring.
 
     ``w_d`` (rad/s) is kept positive; ``t_ref`` is fixed, and :meth:`guess` sets it to the
@@ -131,10 +138,7 @@ class DampedSine(lmfit.Model):
     """
 
     def __init__(self, **kws):
-        kws.setdefault("independent_vars", ["t"])
-        super().__init__(damped_sine, **kws)
-        self.set_param_hint("w_d", min=0.0)
-        self.set_param_hint("t_ref", value=0.0, vary=False)
+        super().__init__(damped_sine, "w_d", True, **kws)
 
     def guess(self, data: np.ndarray, t: np.ndarray, **kws) -> lmfit.Parameters:
         """Starting values as wavefit's ring fit finds them: the ring's window
