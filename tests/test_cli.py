@@ -38,6 +38,12 @@ def test_unknown_option_is_usage_error():
     assert code == 2
 
 
+def test_json_and_csv_together_is_usage_error(capture_file):
+    # one output format per run: a run asked for both would silently print only one
+    code, out, err = run("analyze", str(capture_file), "--setup", "x.toml", "--json", "--csv")
+    assert code == 2 and out == "" and "not allowed with argument" in err
+
+
 def test_inspect_json(capture_file):
     code, out, err = run("inspect", str(capture_file), "--json")
     assert code == 0, err

@@ -48,9 +48,10 @@ def build_parser() -> argparse.ArgumentParser:
     p_an = sub.add_parser("analyze", help="fit captures and report component values with uncertainties")
     p_an.add_argument("captures", nargs="*", metavar="CAPTURE", help="capture files (CSV, optionally .gz)")
     p_an.add_argument("--setup", required=True, help="setup file (TOML): method, columns, parts")
-    p_an.add_argument("--json", action="store_true", help="print only the result as JSON")
-    p_an.add_argument("--csv", action="store_true",
-                      help="print only a CSV table: one row per quantity and per point of each curve")
+    output = p_an.add_mutually_exclusive_group()
+    output.add_argument("--json", action="store_true", help="print only the result as JSON")
+    output.add_argument("--csv", action="store_true",
+                        help="print only a CSV table: one row per quantity and per point of each curve")
     p_an.add_argument("--plot", metavar="FILE.png", help="draw capture, fitted model and residuals")
     p_an.add_argument("--sample-interval", type=float, metavar="SECONDS",
                       help="sample interval when the capture has no time column")
