@@ -113,27 +113,27 @@ class DampedSineFit:
     def evaluate(self, t: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
         """The fitted curve at times ``t`` (SI), into ``out`` when given; a chunk of samples at
         a time, so that a long record's curve costs no more than the array it fills."""
-        t = np.asarray(t, dtype=float)
-        out = np.empty(t.shape) if out is None else out
-        offset, a, b = self.fit["offset"], self.fit["a"], self.fit["b"]
-        for lo in range(0, t.size, CHUNK_ELEMENTS):
-            tau = t[lo:lo + CHUNK_ELEMENTS] - self.t_ref
-            e = np.exp(-self.alpha * tau)
-            out[lo:lo + CHUNK_ELEMENTS] = offset + e * (a * np.cos(self.w_d * tau) + b * np.sin(self.w_d * tau))
-        return out
+        x = np.array([self.fit["offset"], self.fit["a"], self.fit["b"], self.alpha, self.w_d])
+        return model(x, np.asarray(t, dtype=float), shift=self.t_ref, out=out)
 
 
-def model(x: np.ndarray, tau: np.ndarray) -> np.ndarray:
+def model(x: np.ndarray, tau: np.ndarray, shift: float | None = None,
+          out: np.ndarray | None = None) -> np.ndarray:
     """offset + exp(−alpha·τ)·(a cos w_d τ + b sin w_d τ) for x = (offset, a, b, alpha, w_d),
-    a chunk of samples at a time (a long record's temporaries stay small)."""
+    with τ = ``tau`` − ``shift`` when a shift is given, into ``out`` (one-dimensional, of
+    ``tau``'s size) when given; a chunk of samples at a time (a long record's temporaries stay small)."""
     tau = np.asarray(tau)
     flat = tau.reshape(-1)
-    out = np.empty(flat.shape)
-    for lo in range(0, out.size, CHUNK_ELEMENTS):
+    result = np.empty(flat.shape) if out is None else out
+    for lo in range(0, flat.size, CHUNK_ELEMENTS):
         part = flat[lo:lo + CHUNK_ELEMENTS]
+        if shift is not None:
+            part = part - shift
         e = np.exp(-x[3] * part)
-        out[lo:lo + CHUNK_ELEMENTS] = x[0] + e * (x[1] * np.cos(x[4] * part) + x[2] * np.sin(x[4] * part))
-    return out.reshape(tau.shape) if tau.ndim else out[0]
+        result[lo:lo + CHUNK_ELEMENTS] = x[0] + e * (x[1] * np.cos(x[4] * part) + x[2] * np.sin(x[4] * part))
+    if out is not None:
+        return result
+    return result.reshape(tau.shape) if tau.ndim else result[0]
 
 
 def jacobian(x: np.ndarray, tau: np.ndarray) -> np.ndarray:

@@ -49,6 +49,12 @@ def quantisation_shift(y: np.ndarray, model: np.ndarray, jac_model: "np.ndarray 
     step = limiting_step(y, residual_rms, step)
     if step is None:
         return None
+    return shift_on_grid(y, model, jac_model, residual_rms, step)
+
+
+def shift_on_grid(y: np.ndarray, model: np.ndarray, jac_model: "np.ndarray | Jacobian", residual_rms: float,
+                  step: float) -> tuple[np.ndarray, float]:
+    """:func:`quantisation_shift` of a record whose limiting code ``step`` is already known."""
     origin = float(np.min(y))
     # the fitted model is not the true waveform, and where the true one sits between codes is
     # unknown: take the rms of the shift over eight sub-code positions of the grid
@@ -137,16 +143,16 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     fitted = jac = None
     for b in blocks:
         rows = slice(b.start, b.stop)
-        if limiting_step(y[rows], fit.noise_sigma[b.group], steps.get(b.group)) is None:
+        step = limiting_step(y[rows], fit.noise_sigma[b.group], steps.get(b.group))
+        if step is None:
             continue  # no shift: the model is then not evaluated (a long record's copy saved)
         if fitted is None:
             fitted, jac = model(fit.values), as_jacobian(jac_model(fit.values))
-        found = quantisation_shift(y[rows], fitted[rows], jac.restricted(b.start, b.stop), fit.noise_sigma[b.group],
-                                   steps.get(b.group))
-        if found is not None:
-            totals[b.group] = totals.get(b.group, np.zeros(len(fit.names))) + found[0]
-            worst = found[1] if worst is None else min(worst, found[1])
-            limited += 1
+        shift, codes = shift_on_grid(y[rows], fitted[rows], jac.restricted(b.start, b.stop),
+                                     fit.noise_sigma[b.group], step)
+        totals[b.group] = totals.get(b.group, np.zeros(len(fit.names))) + shift
+        worst = codes if worst is None else min(worst, codes)
+        limited += 1
     if worst is None:
         return fit
     # the blocks of one channel share its converter (shifts add linearly); different channels'

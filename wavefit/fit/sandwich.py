@@ -301,11 +301,6 @@ def _on_own_columns(jb: "np.ndarray | Tall", hb: "np.ndarray | Tall") -> tuple[T
     return (Tall(array_rows(jb[:, cols]), jb.shape[0], cols), Tall(array_rows(hb[:, cols]), hb.shape[0], cols))
 
 
-def _lag_grams(x: np.ndarray, lags: int) -> np.ndarray:
-    """xᵀ T_k x for k = 0 … lags (T_0 = I; T_k the symmetric lag-k shift), shape (lags+1, q, q)."""
-    return lag_grams(array_rows(x), x.shape[0], x.shape[1], lags)
-
-
 def _shifted_traces(h: "np.ndarray | Tall", x: "np.ndarray | Tall", lags: int) -> np.ndarray:
     """⟨h, T_j U_k x⟩ (Frobenius) for j, k = 0 … lags (< len), as a (lags+1)² array [k, j].
 
