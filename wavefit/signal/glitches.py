@@ -69,7 +69,7 @@ _MAD_TO_SIGMA = 1.4826
 _SECOND_DIFFERENCE_VARIANCE = 6.0
 
 
-def find_glitches(y: np.ndarray, code: float | None = None) -> np.ndarray:
+def find_glitches(y: np.ndarray, code: float | None = None, sigma: float | None = None) -> np.ndarray:
     """Indices of isolated samples that depart from both their neighbours beyond the waveform's
     own curvature and the noise (see the module docstring).
 
@@ -80,6 +80,8 @@ def find_glitches(y: np.ndarray, code: float | None = None) -> np.ndarray:
     code
         The converter step, when the values sit on a grid: the noise is taken as at least
         one step (a quiet trace flickers by one code).
+    sigma
+        The record's noise (:func:`record_noise`) when the caller already has it.
 
     Returns
     -------
@@ -89,7 +91,7 @@ def find_glitches(y: np.ndarray, code: float | None = None) -> np.ndarray:
     y = np.asarray(y, dtype=float)
     if y.size < 5:
         return np.empty(0, dtype=np.intp)
-    sigma = _noise(y, code)
+    sigma = record_noise(y, code) if sigma is None else sigma
     found = []
     for a, b in _spans(2, y.size - 2):  # centres a..b, each with two neighbours either side
         seg = y[a - 2:b + 2]
@@ -125,7 +127,7 @@ def _at_onset(y: np.ndarray, found: np.ndarray, sigma: float) -> np.ndarray:
     return (after > ONSET_NOISE * sigma) & (after > ONSET_RATIO * before) & (started > ONSET_NOISE * sigma)
 
 
-def _after_jumps(y: np.ndarray, code: float | None) -> np.ndarray:
+def _after_jumps(y: np.ndarray, code: float | None, sigma: float | None = None) -> np.ndarray:
     """Mask of the first COINCIDENCE + 1 samples after each jump of the record: where it moves
     from one sample to the next by more than the noise and far more than just before and after
     (a switching edge; a smooth relaxation, however steep, is not a jump). A spike of another
@@ -134,7 +136,7 @@ def _after_jumps(y: np.ndarray, code: float | None) -> np.ndarray:
     mask = np.zeros(y.size, dtype=bool)
     if y.size < 4:
         return mask
-    sigma = _noise(y, code)
+    sigma = record_noise(y, code) if sigma is None else sigma
     leaps = []
     for a, b in _spans(1, y.size - 2):  # steps y[j] -> y[j + 1], each with the steps either side
         step = np.abs(np.diff(y[a - 1:b + 2]))
@@ -146,7 +148,7 @@ def _after_jumps(y: np.ndarray, code: float | None) -> np.ndarray:
     return mask
 
 
-def _noise(y: np.ndarray, code: float | None) -> float:
+def record_noise(y: np.ndarray, code: float | None) -> float:
     """The record's white-noise standard deviation from the MAD of its second differences
     (robust to the waveform's edges and to glitches), and at least one step of its values:
     the converter's, or the smallest change between neighbours when no code grid was found
@@ -185,11 +187,13 @@ def repair_glitches(capture: Capture, codes: Sequence[float | None]) -> tuple[Ca
         The repaired capture (the same object when nothing was found) and, by channel
         header, the indices that were replaced.
     """
-    near = [_after_jumps(ch.values, code) for ch, code in zip(capture.channels, codes)]
+    noise = [record_noise(np.asarray(ch.values, dtype=float), code) if len(ch.values) >= 4 else 0.0
+             for ch, code in zip(capture.channels, codes)]
+    near = [_after_jumps(ch.values, code, sigma) for ch, code, sigma in zip(capture.channels, codes, noise)]
     found: dict[str, np.ndarray] = {}
     channels = []
     for k, (channel, code) in enumerate(zip(capture.channels, codes)):
-        candidates = find_glitches(channel.values, code)
+        candidates = find_glitches(channel.values, code, noise[k])
         others = [mask for j, mask in enumerate(near) if j != k]
         if others and candidates.size:
             coupled = np.any([mask[candidates] for mask in others], axis=0)
