@@ -31,6 +31,11 @@ def is_capture_name(name: str) -> bool:
     return name.lower().endswith(CAPTURE_SUFFIXES)
 
 
+def capture_files(folder: str | os.PathLike[str]) -> list[Path]:
+    """The capture files directly in ``folder`` (:func:`is_capture_name`), in name order."""
+    return [p for p in sorted(Path(folder).iterdir()) if p.is_file() and is_capture_name(p.name)]
+
+
 def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda path: False) -> list[str]:
     """Files named, files in named folders (not recursive), files matching patterns.
 
@@ -42,8 +47,7 @@ def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda pa
     found: set[str] = set()
     for item in inputs:
         if os.path.isdir(item):
-            matches = [str(p) for p in Path(item).iterdir()
-                       if p.is_file() and is_capture_name(p.name) and not skip(str(p))]
+            matches = [str(p) for p in capture_files(item) if not skip(str(p))]
             if not matches:
                 raise CaptureError(f"folder {visible(item)} has no capture files ({', '.join(CAPTURE_SUFFIXES)})")
         elif os.path.isfile(item):
@@ -52,8 +56,7 @@ def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda pa
             matches = []
             for hit in glob.glob(item, recursive=True):
                 if os.path.isdir(hit):
-                    matches += [str(p) for p in Path(hit).iterdir()
-                                if p.is_file() and is_capture_name(p.name) and not skip(str(p))]
+                    matches += [str(p) for p in capture_files(hit) if not skip(str(p))]
                 elif os.path.isfile(hit) and not skip(hit):
                     matches.append(hit)
             if not matches:

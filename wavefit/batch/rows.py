@@ -18,7 +18,7 @@ from ..errors import WavefitError
 from ..results import AnalysisResult
 from ..setup import Setup
 from .decision import ERROR, decide_part, limit_by_model
-from .inputs import is_capture_name
+from .inputs import capture_files
 from .spec import Spec
 
 Analyse = Callable[[str, Setup], AnalysisResult]
@@ -29,8 +29,7 @@ def sha256_file(path: str | os.PathLike[str]) -> str:
     its capture files in name order."""
     digest = hashlib.sha256()
     folder = os.path.isdir(path)
-    files = ([p for p in sorted(Path(path).iterdir()) if p.is_file() and is_capture_name(p.name)]
-             if folder else [Path(path)])
+    files = capture_files(path) if folder else [Path(path)]
     for file in files:
         if folder:
             digest.update(file.name.encode() + b"\0")

@@ -99,8 +99,8 @@ class LcSweep(Method):
         if line.dof == 0:
             warnings.append("two captures: a line always passes through two points, so nothing checks "
                             "that the model holds; add a third capacitor")
-        elif scale_factor(*birge_ratio(line.chi2, line.dof), LINE_SCATTER_P) > 1.0:
-            birge = birge_ratio(line.chi2, line.dof)[0]
+        elif (factor := scale_factor(*birge_ratio(line.chi2, line.dof), LINE_SCATTER_P)) > 1.0:
+            birge = factor  # (the rule's factor is the Birge ratio itself when it applies)
             cov = cov * birge ** 2
             dof = float(line.dof)
             warnings.append(f"the points do not lie on a line (chi-square {line.chi2:.3g} for {line.dof} "
