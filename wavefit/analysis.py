@@ -10,18 +10,15 @@ import pandas as pd
 
 from .capture_checks import refuse_shared_columns, without_glitches
 from .errors import AnalysisRefused, CaptureError, SetupError
-from .fitted import fitted_blocks
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
 from .measurement import bind
 from .methods import get_method
 from .montecarlo import DEFAULT_SEED, MEASUREMENT_DRAWS, propagate_measurement
 from .numerics import collected, numerical_failures_refused
-from .propagation_record import propagation_of, recording
 from .provenance import provenance
 from .results import AnalysisResult
 from .setup import RelativeFigure, Setup, load_setup
-from .uncertainty import Propagation
 
 Source = "str | os.PathLike | pd.DataFrame | Capture"
 #: The ways of propagating the uncertainty: the GUM's law (always) and JCGM 101's Monte Carlo beside it.
@@ -79,24 +76,21 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     refuse_shared_columns(captures, parsed.columns, parsed.source)
     captures = [without_glitches(capture) for capture in captures]
     parsed = with_time_axis_uncertainty(parsed, captures)
-    with recording() as kept, collected() as numerical, numerical_failures_refused(captures):
+    with collected() as numerical, numerical_failures_refused(captures):
         result = method.analyze(bind(captures, parsed, entries), parsed)
     remark = numerical.remark()
     if remark is not None:
         result = replace(result, warnings=(*result.warnings, remark))
-    propagation = propagation_of(result, kept)
-    if propagation is not None:
-        result = replace(result, fitted=fitted_blocks(propagation.inputs))
     if uncertainty == "montecarlo":
-        result = with_monte_carlo(result, propagation, draws, seed)
+        result = with_monte_carlo(result, draws, seed)
     result = replace(result, provenance=provenance(as_parsed, sources, captures))
     return with_capture_remarks(result, captures)
 
 
-def with_monte_carlo(result: AnalysisResult, propagation: Propagation | None, draws: int,
-                     seed: int | None) -> AnalysisResult:
+def with_monte_carlo(result: AnalysisResult, draws: int, seed: int | None) -> AnalysisResult:
     """The result with a Monte Carlo run (JCGM 101:2008) on the measurement function the
-    method propagated, and a warning for any output whose draws were not all finite.
+    method propagated (``result.propagation``), scalars and curves, and a warning for any
+    output whose draws were not all finite.
 
     Raises
     ------
@@ -104,6 +98,7 @@ def with_monte_carlo(result: AnalysisResult, propagation: Propagation | None, dr
         When the method propagated no measurement function, or its function cannot be
         evaluated on draws (it needs one number somewhere, see :class:`wavefit.montecarlo.Sampled`).
     """
+    propagation = result.propagation
     if propagation is None or propagation.model is None:
         raise AnalysisRefused(f"method {result.method!r} gives no measurement function to run Monte Carlo on")
     try:

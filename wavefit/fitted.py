@@ -1,37 +1,50 @@
-"""The fitted parameters of an analysis with their covariance, as the measurement function took them.
+"""Parameters estimated together by one fit, with their joint covariance.
 
-A method enters what its fit estimated as a correlated block of type A inputs
-(:meth:`wavefit.uncertainty.InputSet.add_correlated`): rl-step the time constant,
-levels and drive/sense ratio of its relaxation fit, lc-ring the decay rate and
-angular frequency of the damped sinusoid, lc-sweep the slope and intercept of its
-line. :class:`FittedBlock` keeps one such block, so that a result can give its
-fitted parameters with standard errors and correlations (``result.params``)
-without the method doing anything more.
+A method's estimation stage hands its fits to the shared analysis as :class:`FittedBlock`s
+(:class:`wavefit.methods.estimate.Estimate`): rl-step the time constant, levels and
+drive/sense ratio of its relaxation fit, lc-ring the decay rate and angular frequency of the
+damped sinusoid, lc-sweep the slope and intercept of its line. Each block enters the
+measurement function as a correlated group of type A inputs
+(:meth:`wavefit.uncertainty.InputSet.add_correlated`), and the result keeps the blocks in
+``result.fitted``, so that it can give its fitted parameters with standard errors and
+correlations (``result.params``, JSON ``fitted``).
 """
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any, Sequence
 
 import numpy as np
 
-from .uncertainty import InputSet
 
-
-@dataclass(frozen=True)
+@dataclass(frozen=True, init=False)
 class FittedBlock:
-    """One fit's parameters: names as in the budget, SI values and units, covariance, dof.
+    """Parameters estimated together, with their joint covariance (one correlated group).
 
-    ``covariance`` is a tuple of rows (the block is frozen and comparable);
-    ``degrees_of_freedom`` is the fit's (infinite when the fit gives none) and
-    ``group`` the name the method gave the block ("fit", "line").
+    ``values`` and ``covariance`` (SI, in the order of ``names``) are kept as tuples, so the
+    block is frozen and comparable; ``degrees_of_freedom`` is that of the covariance (infinite
+    when it is known, not estimated); ``group`` names the block in the Welch–Satterthwaite sum,
+    where a block counts as one component (GUM G.4.1); ``kind`` is its evaluation type.
     """
 
     names: tuple[str, ...]
     values: tuple[float, ...]
-    units: tuple[str, ...]
     covariance: tuple[tuple[float, ...], ...]
+    units: tuple[str, ...]
     degrees_of_freedom: float
     group: str
+    kind: str
+
+    def __init__(self, names: Sequence[str], values: Sequence[float], covariance: Any, units: Sequence[str],
+                 degrees_of_freedom: float, group: str = "fit", kind: str = "A") -> None:
+        n = len(names)
+        matrix = np.asarray(covariance, dtype=float).reshape(n, n)
+        fields = {"names": tuple(names), "values": tuple(float(v) for v in np.asarray(values, dtype=float)),
+                  "covariance": tuple(tuple(float(c) for c in row) for row in matrix),
+                  "units": tuple(units), "degrees_of_freedom": float(degrees_of_freedom), "group": group,
+                  "kind": kind}
+        for name, value in fields.items():
+            object.__setattr__(self, name, value)
 
     def covariance_matrix(self) -> np.ndarray:
         return np.array(self.covariance, dtype=float).reshape(len(self.names), len(self.names))
@@ -48,22 +61,3 @@ class FittedBlock:
         corr[:, se == 0] = 0.0
         np.fill_diagonal(corr, 1.0)
         return corr
-
-
-def fitted_blocks(inputs: InputSet) -> tuple[FittedBlock, ...]:
-    """Every correlated block of ``inputs`` as a :class:`FittedBlock`, in the order added."""
-    items = inputs.inputs
-    blocks = []
-    for idx, cov in inputs.blocks():
-        if not idx:
-            continue
-        members = [items[k] for k in idx]
-        blocks.append(FittedBlock(
-            names=tuple(m.name for m in members),
-            values=tuple(m.value for m in members),
-            units=tuple(m.unit for m in members),
-            covariance=tuple(tuple(float(c) for c in row) for row in np.asarray(cov, dtype=float)),
-            degrees_of_freedom=float(members[0].dof),
-            group=members[0].group or "",
-        ))
-    return tuple(blocks)

@@ -15,6 +15,7 @@ if TYPE_CHECKING:
 
     from .fitted import FittedBlock
     from .montecarlo import MonteCarloReport
+    from .uncertainty import Propagation
 
 
 def _json_number(x: float) -> float | None:
@@ -102,12 +103,15 @@ class AnalysisResult:
     plot_data: Any = field(default=None, compare=False, repr=False)
     adequate: bool = True
     curves: dict[str, "CurveResult"] = field(default_factory=dict)
-    #: The fits' parameters as the measurement function took them (filled by ``wavefit.analyze``).
+    #: The fits' parameters as the measurement function took them.
     fitted: tuple[FittedBlock, ...] = ()
     #: Where the result came from: tool version, setup, captures and their sha256 (``wavefit.analyze``).
     provenance: dict[str, Any] | None = field(default=None, compare=False)
     #: The Monte Carlo propagation (JCGM 101) when it was asked for.
     monte_carlo: MonteCarloReport | None = None
+    #: The propagation the result was built from (its inputs and measurement function, for a
+    #: Monte Carlo run by ``wavefit.analyze``); neither written out nor compared.
+    propagation: Propagation | None = field(default=None, compare=False, repr=False)
 
     def to_dict(self) -> dict[str, Any]:
         out = {

@@ -22,7 +22,6 @@ import numpy as np
 from scipy import stats
 from uncertainties import ufloat
 
-from .propagation_record import keep
 from .results import BudgetLine, QuantityResult
 
 #: Coverage probability of the expanded uncertainty; k = 2 at infinite dof (GUM G.6.4).
@@ -109,8 +108,7 @@ class Propagation:
     """What propagation gives: per output its result and budget, and the output correlations.
 
     ``inputs`` and ``model`` are what was propagated, kept so that the same measurement
-    function can be evaluated again (Monte Carlo, :mod:`wavefit.montecarlo`) and the fitted
-    inputs read back (:mod:`wavefit.result_views`).
+    function can be evaluated again (Monte Carlo, :mod:`wavefit.montecarlo`).
     """
 
     quantities: dict[str, QuantityResult]
@@ -156,9 +154,7 @@ def propagate(inputs: InputSet, model: Callable[[Mapping[str, Any]], Mapping[str
         for b, nb in enumerate(names):
             denom = u_y[a] * u_y[b]
             corr[na][nb] = float(cov_y[a, b] / denom) if denom > 0 else (1.0 if a == b else 0.0)
-    propagation = Propagation(quantities, budget, corr, inputs, model)
-    keep(propagation)
-    return propagation
+    return Propagation(quantities, budget, corr, inputs, model)
 
 
 def coverage_factor(dof: float, probability: float = COVERAGE_PROBABILITY) -> float:

@@ -213,7 +213,8 @@ class Method:
         warnings = (*estimate.warnings, *self.review(estimate, inputs, prop))
         result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, dict(estimate.fit),
                                 tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,
-                                adequate=estimate.adequate, curves=curves)
+                                adequate=estimate.adequate, curves=curves, fitted=estimate.blocks,
+                                propagation=prop)
         self.check_physical(result)
         return result
 
@@ -224,7 +225,8 @@ class Method:
         sensitivity and so no part in the result or its budget."""
         inputs = InputSet()
         for block in estimate.blocks:
-            inputs.add_correlated(block.names, block.values, block.covariance, block.units, block.dof,
+            inputs.add_correlated(block.names, block.values, block.covariance, block.units,
+                                  block.degrees_of_freedom,
                                   group=block.group, kind=block.kind)
         for extra in estimate.inputs:
             inputs.add(extra.name, extra.value, extra.standard_uncertainty, extra.unit, extra.kind,

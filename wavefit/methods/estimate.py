@@ -13,25 +13,8 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from ..fitted import FittedBlock
 from ..uncertainty import InputQuantity
-
-
-@dataclass(frozen=True)
-class FittedBlock:
-    """Parameters estimated together, with their joint covariance (one correlated group).
-
-    ``dof`` is the degrees of freedom of the covariance (infinite when it is known, not
-    estimated); ``group`` names the block in the Welch–Satterthwaite sum, where a block counts
-    as one component (GUM G.4.1).
-    """
-
-    names: tuple[str, ...]
-    values: np.ndarray
-    covariance: np.ndarray
-    units: tuple[str, ...]
-    dof: float
-    group: str = "fit"
-    kind: str = "A"
 
 
 @dataclass(frozen=True)
