@@ -158,3 +158,27 @@ def test_a_curve_point_at_or_below_zero_is_refused_for_a_positive_output():
         PositiveImpedance().check_physical(result([3.0, 2.0, -1.0]))
     with pytest.raises(AnalysisRefused, match="not a finite number"):
         example_rc_step.ExampleRcImpedance().check_physical(result([3.0, np.nan, 1.0]))
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_the_measurement_function_is_evaluated_once_for_scalars_and_curves():
+    """One evaluation on the unit variables gives every output's sensitivities (GUM 5.1.3), the
+    scalars' and the curve's alike."""
+    calls = []
+
+    class CountedImpedance(example_rc_step.ExampleRcImpedance):
+        outputs = {"R": example_rc_step.Scalar("ohm"), **example_rc_step.ExampleRcImpedance.outputs}
+
+        def model(self, x, settings):
+            calls.append(1)
+            return {**example_rc_step.ExampleRcStep.model(self, x, settings), **super().model(x, settings)}
+
+    from wavefit.analysis import load_capture
+    from wavefit.measurement import bind
+    from wavefit.setup import load_setup
+
+    parsed = load_setup(setup("example-rc-impedance"))
+    result = CountedImpedance().analyze(bind([load_capture(rc_step(), None, "t")], parsed), parsed)
+    assert len(calls) == 1
+    assert set(result.quantities) == {"R"} and set(result.curves) == {"Z"}

@@ -20,11 +20,10 @@ from __future__ import annotations
 from typing import Any, Mapping
 
 import numpy as np
-from uncertainties import ufloat
 
 from .outputs import Curve
 from .results import CurveBudgetLine, CurveResult
-from .uncertainty import COVERAGE_PROBABILITY, InputSet, _welch_satterthwaite, coverage_factor
+from .uncertainty import COVERAGE_PROBABILITY, InputSet, linearise
 
 
 def propagate_curves(inputs: InputSet, outputs: Mapping[str, Any], declared: Mapping[str, Curve],
@@ -43,7 +42,8 @@ def propagate_curves(inputs: InputSet, outputs: Mapping[str, Any], declared: Map
     axes
         The points of each axis, by axis name.
     variables
-        The ``uncertainties`` variables the function was called with, by input name.
+        The ``uncertainties`` variables the function was called with, by input name
+        (:func:`wavefit.uncertainty.unit_variables`).
     probability
         Coverage probability of the expanded uncertainty.
 
@@ -52,8 +52,6 @@ def propagate_curves(inputs: InputSet, outputs: Mapping[str, Any], declared: Map
     dict of str to CurveResult
     """
     items = inputs.inputs
-    cov_x = inputs.covariance()
-    ordered = [variables[i.name] for i in items]
     curves = {}
     for name, decl in declared.items():
         points = np.asarray(outputs[name], dtype=object).ravel()
@@ -61,29 +59,16 @@ def propagate_curves(inputs: InputSet, outputs: Mapping[str, Any], declared: Map
         if axis.shape != points.shape:
             raise ValueError(f"curve {name!r} has {points.size} points but its axis {decl.axis.name!r} "
                              f"has {axis.size}")
-        jac = np.array([[float(getattr(p, "derivatives", {}).get(v, 0.0)) for v in ordered] for p in points])
-        jac = jac.reshape(points.size, len(items))
-        values = np.array([float(getattr(p, "nominal_value", p)) for p in points])
-        cov_y = jac @ cov_x @ jac.T
-        u = np.sqrt(np.clip(np.diag(cov_y), 0.0, None))
-        dof = np.array([_welch_satterthwaite(jac[r], cov_x, items, u[r]) for r in range(points.size)])
-        k = np.array([coverage_factor(nu, probability) for nu in dof])
-        shared = jac @ cov_x  # row r: (V c_r)ᵀ
+        lin = linearise(list(points), variables, inputs, probability)
+        u, k = lin.standard_uncertainty, lin.coverage_factor
         lines = []
         for c, item in enumerate(items):
-            sens = jac[:, c]
+            sens = lin.jacobian[:, c]
             if not np.any(sens):
                 continue
-            share = np.divide(sens * shared[:, c], u * u, out=np.zeros_like(u), where=u > 0)
             lines.append(CurveBudgetLine(item.name, item.value, item.unit, item.standard_uncertainty, sens,
-                                         np.abs(sens) * item.standard_uncertainty, share, item.kind,
-                                         float(item.dof)))
-        curves[name] = CurveResult(name, decl.unit, decl.axis.name, decl.axis.unit, axis, values, u, k * u, k,
-                                   dof, cov_y, tuple(lines), decl.axis.log)
+                                         np.abs(sens) * item.standard_uncertainty, lin.variance_share[:, c],
+                                         item.kind, float(item.dof)))
+        curves[name] = CurveResult(name, decl.unit, decl.axis.name, decl.axis.unit, axis, lin.values, u, k * u, k,
+                                   lin.degrees_of_freedom, lin.covariance, tuple(lines), decl.axis.log)
     return curves
-
-
-def unit_variables(inputs: InputSet) -> dict[str, Any]:
-    """One ``uncertainties`` variable per input, at its estimate with unit standard deviation
-    (only its derivatives are read), as :func:`wavefit.uncertainty.propagate` makes them."""
-    return {i.name: ufloat(i.value, 1.0, tag=i.name) for i in inputs.inputs}

@@ -105,10 +105,11 @@ class InputSet:
 
 @dataclass(frozen=True)
 class Propagation:
-    """What propagation gives: per output its result and budget, and the output correlations.
+    """What propagation gives: per scalar output its result and budget, and their correlations.
 
     ``inputs`` and ``model`` are what was propagated, kept so that the same measurement
-    function can be evaluated again (Monte Carlo, :mod:`wavefit.montecarlo`).
+    function can be evaluated again (Monte Carlo, :mod:`wavefit.montecarlo`); ``model`` may
+    return curve outputs beside the scalars (:meth:`wavefit.methods.base.Method.analyze`).
     """
 
     quantities: dict[str, QuantityResult]
@@ -118,6 +119,77 @@ class Propagation:
     model: Callable[[Mapping[str, Any]], Mapping[str, Any]] | None = field(default=None, compare=False, repr=False)
 
 
+@dataclass(frozen=True)
+class Linearised:
+    """First-order propagation of a vector of outputs y = f(x) (GUM 5.1.3, 5.2.2, G.4.1).
+
+    Row r of every array belongs to output r: ``values`` y_r, ``jacobian`` C (rows c_r of
+    sensitivities ∂y_r/∂x_i), ``covariance`` C V Cᵀ, ``standard_uncertainty`` u(y_r),
+    ``degrees_of_freedom`` (Welch–Satterthwaite), ``coverage_factor`` k_r and
+    ``variance_share`` (entry (r, i): c_ri·(V c_r)_i / u²(y_r), the fraction of u²(y_r) that
+    input i carries, correlation terms included).
+    """
+
+    values: np.ndarray
+    jacobian: np.ndarray
+    covariance: np.ndarray
+    standard_uncertainty: np.ndarray
+    degrees_of_freedom: np.ndarray
+    coverage_factor: np.ndarray
+    variance_share: np.ndarray
+
+
+def unit_variables(inputs: InputSet) -> dict[str, Any]:
+    """One ``uncertainties`` variable per input, at its estimate with unit standard deviation:
+    a measurement function evaluated on them carries its sensitivities (only the derivatives
+    are read, :func:`linearise`)."""
+    return {i.name: ufloat(i.value, 1.0, tag=i.name) for i in inputs.inputs}
+
+
+def linearise(points: Sequence[Any], variables: Mapping[str, Any], inputs: InputSet,
+              probability: float = COVERAGE_PROBABILITY) -> Linearised:
+    """The law of propagation for the outputs ``points``, evaluated on :func:`unit_variables`.
+
+    Parameters
+    ----------
+    points
+        The outputs, ``uncertainties`` numbers (or plain numbers, which depend on no input).
+    variables
+        The variables the measurement function was called with, by input name.
+    inputs
+        The inputs and their covariance V.
+    probability
+        Coverage probability of the coverage factors.
+
+    Returns
+    -------
+    Linearised
+
+    References
+    ----------
+    .. [1] JCGM 100:2008, Evaluation of measurement data - Guide to the expression of
+       uncertainty in measurement, 5.1.3, 5.2.2 (eq. 16), G.4.1 (eq. G.2b) and G.3.
+    """
+    items = inputs.inputs
+    ordered = [variables[i.name] for i in items]
+    jac = np.zeros((len(points), len(items)))
+    values = np.zeros(len(points))
+    for r, out in enumerate(points):
+        values[r] = float(getattr(out, "nominal_value", out))
+        derivs = getattr(out, "derivatives", {})
+        for c, var in enumerate(ordered):
+            jac[r, c] = float(derivs.get(var, 0.0))
+    cov_x = inputs.covariance()
+    cov_y = jac @ cov_x @ jac.T
+    u_y = np.sqrt(np.clip(np.diag(cov_y), 0.0, None))
+    dof = np.array([_welch_satterthwaite(jac[r], cov_x, items, u_y[r]) for r in range(len(points))])
+    k = np.array([coverage_factor(nu, probability) for nu in dof])
+    shared = jac @ cov_x  # row r: (V c_r)ᵀ
+    denom = (u_y * u_y)[:, None]
+    share = np.divide(jac * shared, denom, out=np.zeros_like(jac), where=denom > 0)
+    return Linearised(values, jac, cov_y, u_y, dof, k, share)
+
+
 def propagate(inputs: InputSet, model: Callable[[Mapping[str, Any]], Mapping[str, Any]],
               units: Mapping[str, str], probability: float = COVERAGE_PROBABILITY) -> Propagation:
     """Evaluate ``model`` at the input estimates and propagate their covariance to every output.
@@ -125,35 +197,35 @@ def propagate(inputs: InputSet, model: Callable[[Mapping[str, Any]], Mapping[str
     ``model`` receives a mapping name -> number-like (an ``uncertainties``
     variable) and must use only arithmetic and ``uncertainties.umath``.
     """
-    items = inputs.inputs
-    variables = [ufloat(i.value, 1.0, tag=i.name) for i in items]
-    outputs = model({i.name: v for i, v in zip(items, variables)})
+    variables = unit_variables(inputs)
+    return propagate_outputs(inputs, model(variables), variables, units, probability, model)
+
+
+def propagate_outputs(inputs: InputSet, outputs: Mapping[str, Any], variables: Mapping[str, Any],
+                      units: Mapping[str, str], probability: float = COVERAGE_PROBABILITY,
+                      model: Callable[[Mapping[str, Any]], Mapping[str, Any]] | None = None) -> Propagation:
+    """The :class:`Propagation` of the scalar ``outputs`` a measurement function returned when
+    called with ``variables`` (:func:`unit_variables`); ``model`` is kept with it."""
     names = list(outputs)
-    jac = np.zeros((len(names), len(items)))
-    values = np.zeros(len(names))
-    for r, name in enumerate(names):
-        out = outputs[name]
-        values[r] = float(getattr(out, "nominal_value", out))
-        derivs = getattr(out, "derivatives", {})
-        for c, var in enumerate(variables):
-            jac[r, c] = float(derivs.get(var, 0.0))
-    cov_x = inputs.covariance()
-    cov_y = jac @ cov_x @ jac.T
-    u_y = np.sqrt(np.clip(np.diag(cov_y), 0.0, None))
+    items = inputs.inputs
+    lin = linearise([outputs[name] for name in names], variables, inputs, probability)
     quantities: dict[str, QuantityResult] = {}
     budget: dict[str, list[BudgetLine]] = {}
+    u_y = lin.standard_uncertainty
     for r, name in enumerate(names):
-        nu = _welch_satterthwaite(jac[r], cov_x, items, u_y[r])
-        k = coverage_factor(nu, probability)
-        quantities[name] = QuantityResult(name, float(values[r]), units.get(name, ""), float(u_y[r]),
-                                          float(k * u_y[r]), float(k), float(nu))
-        budget[name] = _budget_lines(jac[r], cov_x, items, u_y[r])
+        k = lin.coverage_factor[r]
+        quantities[name] = QuantityResult(name, float(lin.values[r]), units.get(name, ""), float(u_y[r]),
+                                          float(k * u_y[r]), float(k), float(lin.degrees_of_freedom[r]))
+        budget[name] = [BudgetLine(item.name, item.value, item.unit, item.standard_uncertainty, float(c),
+                                   float(abs(c) * item.standard_uncertainty), float(lin.variance_share[r, i]),
+                                   item.kind, float(item.dof))
+                        for i, (item, c) in enumerate(zip(items, lin.jacobian[r])) if c != 0.0]
     corr: dict[str, dict[str, float]] = {}
     for a, na in enumerate(names):
         corr[na] = {}
         for b, nb in enumerate(names):
             denom = u_y[a] * u_y[b]
-            corr[na][nb] = float(cov_y[a, b] / denom) if denom > 0 else (1.0 if a == b else 0.0)
+            corr[na][nb] = float(lin.covariance[a, b] / denom) if denom > 0 else (1.0 if a == b else 0.0)
     return Propagation(quantities, budget, corr, inputs, model)
 
 
@@ -180,16 +252,3 @@ def _welch_satterthwaite(c: np.ndarray, cov: np.ndarray, items: Sequence[InputQu
         var = float(c[idx] @ cov[np.ix_(idx, idx)] @ c[idx])
         denom += var * var / max(dof, 1.0)
     return u_c ** 4 / denom if denom > 0 else math.inf
-
-
-def _budget_lines(c: np.ndarray, cov: np.ndarray, items: Sequence[InputQuantity], u_c: float) -> list[BudgetLine]:
-    shared = cov @ c
-    lines = []
-    for k, item in enumerate(items):
-        if c[k] == 0.0:
-            continue
-        share = float(c[k] * shared[k] / (u_c * u_c)) if u_c > 0 else 0.0
-        lines.append(BudgetLine(item.name, item.value, item.unit, item.standard_uncertainty, float(c[k]),
-                                float(abs(c[k]) * item.standard_uncertainty), share, item.kind,
-                                float(item.dof)))
-    return lines

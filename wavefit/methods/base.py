@@ -14,14 +14,14 @@ import math
 from dataclasses import dataclass
 from typing import Any, ClassVar, Mapping
 
-from ..curve_propagation import propagate_curves, unit_variables
+from ..curve_propagation import propagate_curves
 from ..errors import AnalysisRefused, SetupError
 from ..io.capture import Capture, Channel
 from ..measurement import Measurement
-from ..outputs import Curve, Output, curve_names, scalar_names
+from ..outputs import Curve, Output, scalar_names
 from ..results import AnalysisResult
 from ..setup import GAIN_KEY_PREFIX, INSTRUMENT_KEYS, Setup, check_names, parse_time_option
-from ..uncertainty import InputSet, Propagation, propagate
+from ..uncertainty import InputSet, Propagation, propagate_outputs, unit_variables
 from ..values import PartValue
 from .estimate import Estimate
 
@@ -201,15 +201,17 @@ class Method:
         """
         estimate = self.estimate(measurement, setup)
         inputs = self.inputs(estimate, measurement, setup)
-        scalars = scalar_names(self.outputs)
-        prop = propagate(inputs, lambda x: _declared(self.model(x, estimate.settings), scalars),
-                         {name: self.outputs[name].unit for name in scalars})
-        curves = {}
-        if curve_names(self.outputs):
-            variables = unit_variables(inputs)
-            declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve)}
-            curves = propagate_curves(inputs, self.model(variables, estimate.settings), declared,
-                                      estimate.axes, variables)
+        names, scalars = tuple(self.outputs), scalar_names(self.outputs)
+
+        def measurement_function(x: Mapping[str, Any]) -> dict[str, Any]:
+            return _declared(self.model(x, estimate.settings), names)
+
+        variables = unit_variables(inputs)
+        outputs = measurement_function(variables)  # evaluated once for scalars and curves
+        prop = propagate_outputs(inputs, {name: outputs[name] for name in scalars}, variables,
+                                 {name: self.outputs[name].unit for name in scalars}, model=measurement_function)
+        declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve)}
+        curves = propagate_curves(inputs, outputs, declared, estimate.axes, variables)
         warnings = (*estimate.warnings, *self.review(estimate, inputs, prop))
         result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, dict(estimate.fit),
                                 tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,
