@@ -9,6 +9,7 @@ correlated values with the reported u. That fails if a correlation is lost or mi
 """
 from __future__ import annotations
 
+import json
 import math
 from pathlib import Path
 
@@ -163,3 +164,26 @@ def test_line_fit_result_plots_and_reports_its_line():
     assert list(result.params) == ["line_slope", "line_intercept"]
     report = result.fit_report()
     assert "s2" in report and "fs2" not in report  # no SI prefix on a squared unit
+
+
+@pytest.mark.parametrize("which, quantity", [("step_result", "L"), ("ring_result", "alpha")])
+def test_json_fitted_blocks_read_back_give_the_budget(which, quantity, request):
+    """The JSON ``fitted`` block, read back, is the budget's type A inputs: its covariance's
+    diagonal their u(x_i)², and c V cᵀ with the budget's sensitivities the part of u_c² that the
+    budget's shares give the block (GUM 5.2.2 eq. 16; the block is independent of the others)."""
+    result = request.getfixturevalue(which)
+    data = json.loads(json.dumps(result.to_dict(), allow_nan=False))
+    (block,) = data["fitted"]
+    assert set(block) == {"group", "type", "names", "units", "values", "covariance", "degrees_of_freedom"}
+    assert block["degrees_of_freedom"] == pytest.approx(result.fitted[0].degrees_of_freedom, rel=1e-15)
+    lines = {line["source"]: line for line in data["budget"][quantity]}
+    cov = np.array(block["covariance"])
+    for k, name in enumerate(block["names"]):
+        if name in lines:
+            assert lines[name]["value"] == block["values"][k] and lines[name]["type"] == block["type"]
+            assert lines[name]["standard_uncertainty"] == pytest.approx(math.sqrt(cov[k, k]), rel=1e-12)
+    c = np.array([lines[name]["sensitivity"] if name in lines else 0.0 for name in block["names"]])
+    u_c = data["quantities"][quantity]["standard_uncertainty"]
+    share = sum(lines[name]["variance_share"] for name in block["names"] if name in lines)
+    assert c @ cov @ c == pytest.approx(share * u_c ** 2, rel=1e-9)
+    assert share > 0.01  # the fit carries a visible part of the budget: the check is not empty

@@ -46,6 +46,13 @@ class FittedBlock:
         for name, value in fields.items():
             object.__setattr__(self, name, value)
 
+    def to_dict(self) -> dict[str, Any]:
+        """The block as plain lists and numbers (``fitted`` in ``docs/json-output.md``; the
+        result's ``to_dict`` writes an infinite number as null)."""
+        return {"group": self.group, "type": self.kind, "names": list(self.names), "units": list(self.units),
+                "values": list(self.values), "covariance": [list(row) for row in self.covariance],
+                "degrees_of_freedom": self.degrees_of_freedom}
+
     def covariance_matrix(self) -> np.ndarray:
         return np.array(self.covariance, dtype=float).reshape(len(self.names), len(self.names))
 

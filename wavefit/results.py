@@ -126,6 +126,8 @@ class AnalysisResult:
         }
         if self.curves:  # methods with scalar outputs only keep the JSON they always had
             out["curves"] = {k: c.to_dict() for k, c in self.curves.items()}
+        if self.fitted:
+            out["fitted"] = [_jsonable(block.to_dict()) for block in self.fitted]
         if self.monte_carlo is not None:
             out["monte_carlo"] = self.monte_carlo.to_dict(self.quantities)
         if self.provenance is not None:
