@@ -12,13 +12,14 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from scipy import stats
 from uncertainties import umath
 
 import wavefit
 from wavefit.cli import main
 from wavefit.errors import SetupError
 from wavefit.montecarlo import draw_inputs, propagate_measurement
-from wavefit.uncertainty import InputSet, propagate
+from wavefit.uncertainty import InputSet, linearise, propagate, unit_variables
 
 SAMPLES = Path(__file__).resolve().parent.parent / "sample_data"
 P95 = 0.95
@@ -54,6 +55,42 @@ def test_jcgm101_9_4_comparison_loss_mc_differs_from_linear(r, u_expected):
     assert prop.quantities["dY"].standard_uncertainty == pytest.approx(100e-6, rel=1e-9)
     mc = propagate_measurement(prop.inputs, prop.model, draws=1_000_000, probability=P95).quantities["dY"]
     assert mc.standard_uncertainty == pytest.approx(u_expected, abs=1.5e-6)
+
+
+def test_curve_of_squares_against_the_noncentral_chi_square_jcgm101_9_4():
+    """A curve Y(a) = (X1 + a)² + X2², X1 and X2 independent N(0, u²): Y/u² is noncentral χ² with
+    2 degrees of freedom and noncentrality (a/u)² (textbook distribution, scipy.stats.ncx2), so
+    each point's mean u²(2 + λ), standard deviation 2u·√(u² + a²) and 95 % quantiles are exact.
+    It is JCGM 101 9.4 (comparison loss, u = 0.005) along x1 = a: at a = 0.010 the MCM
+    u = 112e-6 against the GUF's 100e-6 (S); at a = 0 the GUF gives u = 0 while the MCM gives
+    50e-6 and the shortest 95 % interval [0, 150e-6] (JCGM values from memory; both exact here:
+    u²·2 and the exponential's u²·(−2 ln 0.05))."""
+    u = 0.005
+    a = np.array([0.0, 0.005, 0.010, 0.050])
+    inputs = InputSet()
+    inputs.add("X1", 0.0, u)
+    inputs.add("X2", 0.0, u)
+
+    def model(x):
+        return {"dY": (x["X1"] + a) ** 2 + x["X2"] ** 2}
+
+    report = propagate_measurement(inputs, model, draws=1_000_000, probability=P95)
+    assert report.quantities == {} and report.invalid == {"dY": 0}
+    points = report.curves["dY"]
+    lam = (a / u) ** 2
+    sd = 2 * u * np.sqrt(u * u + a * a)
+    for k, mc in enumerate(points):
+        low, high = u * u * stats.ncx2.ppf([0.025, 0.975], 2, lam[k])
+        assert mc.value == pytest.approx(u * u * (2 + lam[k]), rel=0.005)
+        assert mc.standard_uncertainty == pytest.approx(sd[k], rel=0.01)
+        assert mc.interval[0] == pytest.approx(low, abs=0.01 * (high - low))
+        assert mc.interval[1] == pytest.approx(high, abs=0.01 * (high - low))
+    assert points[2].standard_uncertainty == pytest.approx(112e-6, abs=1.5e-6)
+    assert points[0].shortest_interval[0] == pytest.approx(0.0, abs=1e-6)
+    assert points[0].shortest_interval[1] == pytest.approx(-2 * math.log(0.05) * u * u, rel=0.01)
+    variables = unit_variables(inputs)
+    linear = linearise(list(model(variables)["dY"]), variables, inputs, P95)
+    np.testing.assert_allclose(linear.standard_uncertainty, 2 * u * a, rtol=1e-12)  # GUF: |∂Y/∂X1|·u
 
 
 @pytest.mark.parametrize("model", [

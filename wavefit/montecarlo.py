@@ -15,7 +15,7 @@ interval (7.7.1) or the shortest one (7.7.2).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable, Mapping
 
 import numpy as np
@@ -119,24 +119,36 @@ class Sampled:
     at the estimates, as the law of propagation does. Anything that needs one float (``float()``,
     ``math`` and ``uncertainties.umath`` functions, comparisons, ``if``) raises TypeError, so a
     function that cannot be evaluated on draws is refused, never evaluated at one point.
+
+    A curve is a Sampled whose ``nominal_value`` is an array: combined with an array of the
+    curve's axis, a quantity's draws (first axis) spread over the points, so ``draws`` has
+    shape (number of draws,) followed by the shape of ``nominal_value``.
     """
 
     __slots__ = ("nominal_value", "draws")
     __array_priority__ = 1000  # numpy arrays and scalars hand their operators to this class
 
-    def __init__(self, nominal_value: float, draws: np.ndarray) -> None:
-        self.nominal_value = float(nominal_value)
+    def __init__(self, nominal_value: float | np.ndarray, draws: np.ndarray) -> None:
+        self.nominal_value = float(nominal_value) if np.ndim(nominal_value) == 0 else np.asarray(nominal_value,
+                                                                                                  dtype=float)
         self.draws = draws
 
     @staticmethod
-    def _parts(x: object) -> tuple[object, object]:
-        return (x.nominal_value, x.draws) if isinstance(x, Sampled) else (x, x)
+    def _combine(op: Callable[..., object], operands: tuple[object, ...]) -> Sampled:
+        """``op`` on the operands' nominal values and on their draws, the draws of a scalar
+        spread over the points of a curve operand (numpy broadcasting behind the draws axis)."""
+        nominal = op(*(x.nominal_value if isinstance(x, Sampled) else x for x in operands))
+        ndim = np.ndim(nominal)
+        draws = []
+        for x in operands:
+            if isinstance(x, Sampled):
+                missing = ndim - np.ndim(x.nominal_value)
+                x = x.draws.reshape(x.draws.shape[:1] + (1,) * missing + x.draws.shape[1:]) if missing > 0 else x.draws
+            draws.append(x)
+        return Sampled(nominal, op(*draws))
 
     def _apply(self, op: Callable[[object, object], object], other: object, reflected: bool = False) -> Sampled:
-        on, od = self._parts(other)
-        if reflected:
-            return Sampled(op(on, self.nominal_value), op(od, self.draws))
-        return Sampled(op(self.nominal_value, on), op(self.draws, od))
+        return self._combine(op, (other, self) if reflected else (self, other))
 
     __add__, __radd__ = _binary(np.add), _binary(np.add, True)
     __sub__, __rsub__ = _binary(np.subtract), _binary(np.subtract, True)
@@ -156,8 +168,7 @@ class Sampled:
     def __array_ufunc__(self, ufunc: np.ufunc, method: str, *args: object, **kwargs: object) -> Sampled:
         if method != "__call__" or kwargs or ufunc.nout != 1:
             return NotImplemented
-        nominal = ufunc(*(self._parts(a)[0] for a in args))
-        return Sampled(float(nominal), ufunc(*(self._parts(a)[1] for a in args)))
+        return self._combine(ufunc, args)
 
     def _no_single_value(self, *_: object) -> bool:
         raise TypeError("the measurement function needs one number where Monte Carlo has draws "
@@ -170,8 +181,10 @@ class Sampled:
 class MonteCarloReport:
     """A Monte Carlo run on a result's measurement function (JCGM 101:2008).
 
-    ``quantities`` holds each output's summary; ``invalid`` how many draws of it were not
-    finite (left out of its summary, and said in a warning by the front door).
+    ``quantities`` holds each scalar output's summary, ``curves`` each curve output's summary
+    point by point (one :class:`MonteCarloResult` per point of its axis); ``invalid`` how many
+    draws of an output were not finite (for a curve: draws with any point not finite), left out
+    of its summaries and said in a warning by the front door.
     """
 
     draws: int
@@ -179,9 +192,12 @@ class MonteCarloReport:
     probability: float
     quantities: dict[str, MonteCarloResult]
     invalid: dict[str, int]
+    curves: dict[str, tuple[MonteCarloResult, ...]] = field(default_factory=dict)
 
-    def to_dict(self, linear: Mapping[str, object]) -> dict[str, object]:
-        """The JSON form; ``linear`` (the result's quantities) gives each linear interval y ± U."""
+    def to_dict(self, linear: Mapping[str, object], linear_curves: Mapping[str, object] | None = None
+                ) -> dict[str, object]:
+        """The JSON form; ``linear`` (the result's quantities) and ``linear_curves`` (its curves)
+        give each linear interval y ± U. ``curves`` is written only when the run had curves."""
         out: dict[str, object] = {}
         for name, mc in self.quantities.items():
             entry = {"mean": mc.value, "standard_uncertainty": mc.standard_uncertainty,
@@ -191,8 +207,23 @@ class MonteCarloReport:
             if q is not None:
                 entry["linear_interval"] = [q.value - q.expanded_uncertainty, q.value + q.expanded_uncertainty]
             out[name] = entry
-        return {"reference": "JCGM 101:2008", "draws": self.draws, "seed": self.seed,
-                "coverage_probability": self.probability, "quantities": out}
+        report: dict[str, object] = {"reference": "JCGM 101:2008", "draws": self.draws, "seed": self.seed,
+                                     "coverage_probability": self.probability, "quantities": out}
+        if self.curves:
+            report["curves"] = {name: self._curve_dict(name, points, (linear_curves or {}).get(name))
+                                for name, points in self.curves.items()}
+        return report
+
+    def _curve_dict(self, name: str, points: tuple[MonteCarloResult, ...], curve: object) -> dict[str, object]:
+        entry: dict[str, object] = {
+            "mean": [p.value for p in points], "standard_uncertainty": [p.standard_uncertainty for p in points],
+            "interval": [list(p.interval) for p in points],
+            "shortest_interval": [list(p.shortest_interval) for p in points],
+            "invalid_draws": self.invalid.get(name, 0)}
+        if curve is not None:
+            entry["linear_interval"] = [[float(y - u), float(y + u)]
+                                        for y, u in zip(curve.values, curve.expanded_uncertainty)]
+        return entry
 
 
 def propagate_measurement(inputs: InputSet, model: Callable[[Mapping[str, object]], Mapping[str, object]],
@@ -202,7 +233,9 @@ def propagate_measurement(inputs: InputSet, model: Callable[[Mapping[str, object
 
     The same ``(inputs, model)`` that :func:`wavefit.uncertainty.propagate` evaluated once
     to first order is evaluated on ``draws`` draws of the inputs (JCGM 101:2008, 7.2-7.4),
-    in chunks of :data:`CHUNK_DRAWS`, each input a :class:`Sampled`.
+    in chunks of :data:`CHUNK_DRAWS`, each input a :class:`Sampled`. An output whose value
+    is an array is a curve: each of its points is summarised on its own (JCGM 101 7.6, 7.7
+    per component; the draws of all points are held at once, ``draws`` × points floats).
 
     Parameters
     ----------
@@ -226,7 +259,7 @@ def propagate_measurement(inputs: InputSet, model: Callable[[Mapping[str, object
     TypeError
         When the function needs one number where it gets draws (see :class:`Sampled`).
     ValueError
-        When fewer than two draws of an output are finite.
+        When fewer than two draws of an output (or of a curve's point) are finite.
 
     References
     ----------
@@ -236,20 +269,27 @@ def propagate_measurement(inputs: InputSet, model: Callable[[Mapping[str, object
     """
     rng = np.random.default_rng(seed)
     nominal = {i.name: i.value for i in inputs.inputs}
-    chunks: dict[str, list[np.ndarray]] = {}
+    values: dict[str, np.ndarray] = {}
     done = 0
     with np.errstate(all="ignore"):
         while done < draws:
             size = min(CHUNK_DRAWS, draws - done)
             drawn = draw_inputs(inputs, size, rng)
-            outputs = model({name: Sampled(nominal[name], values) for name, values in drawn.items()})
+            outputs = model({name: Sampled(nominal[name], sample) for name, sample in drawn.items()})
             for name, out in outputs.items():
-                values = out.draws if isinstance(out, Sampled) else out
-                chunks.setdefault(name, []).append(np.broadcast_to(np.asarray(values, dtype=float), (size,)))
+                shape = np.shape(out.nominal_value if isinstance(out, Sampled) else out)
+                chunk = np.broadcast_to(np.asarray(out.draws if isinstance(out, Sampled) else out, dtype=float),
+                                        (size, *shape))
+                if name not in values:
+                    values[name] = np.empty((draws, *shape))
+                values[name][done:done + size] = chunk
             done += size
-    summaries, invalid = {}, {}
-    for name, parts in chunks.items():
-        y = np.concatenate(parts)
-        invalid[name] = int(y.size - np.count_nonzero(np.isfinite(y)))
-        summaries[name] = summarise(y, probability)
-    return MonteCarloReport(draws, seed, probability, summaries, invalid)
+    summaries, curves, invalid = {}, {}, {}
+    for name, y in values.items():
+        finite = np.isfinite(y).reshape(draws, -1).all(axis=1)
+        invalid[name] = int(draws - np.count_nonzero(finite))
+        if y.ndim == 1:
+            summaries[name] = summarise(y, probability)
+        else:
+            curves[name] = tuple(summarise(point, probability) for point in y.reshape(draws, -1).T)
+    return MonteCarloReport(draws, seed, probability, summaries, invalid, curves)

@@ -129,7 +129,7 @@ class AnalysisResult:
         if self.fitted:
             out["fitted"] = [_jsonable(block.to_dict()) for block in self.fitted]
         if self.monte_carlo is not None:
-            out["monte_carlo"] = self.monte_carlo.to_dict(self.quantities)
+            out["monte_carlo"] = self.monte_carlo.to_dict(self.quantities, self.curves)
         if self.provenance is not None:
             out["provenance"] = _jsonable(self.provenance)
         return out
