@@ -182,3 +182,58 @@ def test_the_measurement_function_is_evaluated_once_for_scalars_and_curves():
     result = CountedImpedance().analyze(bind([load_capture(rc_step(), None, "t")], parsed), parsed)
     assert len(calls) == 1
     assert set(result.quantities) == {"R"} and set(result.curves) == {"Z"}
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_monte_carlo_of_a_near_linear_curve_agrees_with_the_linear_interval():
+    """With Gaussian inputs and |Z(f)| near-linear in them over ±2u (u_rel < 1 %), the law of
+    propagation is valid (JCGM 101 5.11) and Monte Carlo must give, point by point, the same
+    standard uncertainty and 95.45 % interval within its own error at M = 2·10⁵: u/√(2M), 0.16 %
+    of u, for the standard deviation, and about 0.3 % of U for an interval's end (the standard
+    error of a sample quantile, √(p(1 − p)/M)/φ(z); textbook). The tolerances leave room for
+    the slight curvature of |Z|."""
+    gaussian = {**setup("example-rc-impedance"), "parts": {"capacitor": "10 nF ±0.5% k=2"}}
+    result = wavefit.analyze(rc_step(), gaussian, uncertainty="montecarlo", draws=200_000)
+    curve, points = result.curves["Z"], result.monte_carlo.curves["Z"]
+    assert len(points) == len(curve) == len(FREQUENCIES)
+    for value, u, big_u, mc in zip(curve.values, curve.standard_uncertainty, curve.expanded_uncertainty, points):
+        assert mc.standard_uncertainty == pytest.approx(u, rel=0.01)
+        assert mc.value == pytest.approx(value, abs=0.02 * u)
+        assert mc.interval[0] == pytest.approx(value - big_u, abs=0.02 * big_u)
+        assert mc.interval[1] == pytest.approx(value + big_u, abs=0.02 * big_u)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_curve_monte_carlo_renders_in_text_json_and_csv(tmp_path, capsys):
+    capture = tmp_path / "rc.csv"
+    rc_step().to_csv(capture, index=False)
+    setup_file = tmp_path / "setup.toml"
+    setup_file.write_text('method = "example-rc-impedance"\n[columns]\ntime = "t"\ncapacitor = "cap"\n'
+                          '[parts]\ncapacitor = "10 nF ±1%"\n[options]\nfrequencies = [1e3, 1e4, 1e5]\n')
+    base = ["analyze", str(capture), "--setup", str(setup_file), "--uncertainty", "montecarlo", "--draws", "20000"]
+
+    assert main(base) == 0
+    text = capsys.readouterr().out
+    section = text[text.index("Monte Carlo (JCGM 101, 20000 draws"):]
+    assert "Z against f (Hz):" in section and "linear y ± U" in section
+    assert all(label in section for label in ("1 kHz", "10 kHz", "100 kHz"))
+
+    assert main([*base, "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    entry = data["monte_carlo"]["curves"]["Z"]
+    assert data["monte_carlo"]["quantities"] == {}
+    assert set(entry) == {"mean", "standard_uncertainty", "interval", "shortest_interval", "invalid_draws",
+                          "linear_interval"}
+    values, big_u = np.array(data["curves"]["Z"]["values"]), np.array(data["curves"]["Z"]["expanded_uncertainty"])
+    np.testing.assert_array_equal(np.array(entry["linear_interval"]), np.c_[values - big_u, values + big_u])
+    assert np.shape(entry["interval"]) == (3, 2) and entry["invalid_draws"] == 0
+
+    assert main([*base, "--csv"]) == 0
+    from io import StringIO
+
+    table = pd.read_csv(StringIO(capsys.readouterr().out))
+    np.testing.assert_allclose(table["monte_carlo_standard_uncertainty"], entry["standard_uncertainty"], rtol=1e-15)
+    np.testing.assert_allclose(table[["monte_carlo_interval_low", "monte_carlo_interval_high"]],
+                               entry["interval"], rtol=1e-15)
