@@ -187,3 +187,14 @@ def test_json_fitted_blocks_read_back_give_the_budget(which, quantity, request):
     share = sum(lines[name]["variance_share"] for name in block["names"] if name in lines)
     assert c @ cov @ c == pytest.approx(share * u_c ** 2, rel=1e-9)
     assert share > 0.01  # the fit carries a visible part of the budget: the check is not empty
+
+
+def test_a_result_pickles_without_its_propagation(ring_result):
+    """A result crosses process boundaries (multiprocessing, caches); the propagation it carries
+    for a Monte Carlo run stays behind, everything compared comes back equal."""
+    import pickle
+
+    assert ring_result.propagation is not None
+    back = pickle.loads(pickle.dumps(ring_result))
+    assert back == ring_result and back.propagation is None
+    assert back.to_dict() == ring_result.to_dict()

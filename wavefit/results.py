@@ -134,6 +134,11 @@ class AnalysisResult:
             out["provenance"] = _jsonable(self.provenance)
         return out
 
+    def __getstate__(self) -> dict[str, Any]:
+        """Pickle without ``propagation``: its measurement function is a closure over the
+        method's estimate and cannot be pickled (the unpickled result has ``None`` there)."""
+        return {**self.__dict__, "propagation": None}
+
     def value(self, name: str) -> float:
         """Shorthand for ``result.quantities[name].value``."""
         return self.quantities[name].value
