@@ -1,8 +1,8 @@
 """What a method's estimation stage hands to the shared analysis.
 
 :meth:`wavefit.methods.base.Method.estimate` fits the captures and returns an
-:class:`Estimate`: the fitted blocks (parameters with their joint covariance and degrees of
-freedom, type A), any other inputs it measured (a model check's spread, an assumption's
+:class:`Estimate`: the fitted blocks (:class:`wavefit.fitted.FittedBlock`, importable from
+here too: parameters with their joint covariance and degrees of freedom, type A), any other inputs it measured (a model check's spread, an assumption's
 range), the settings its measurement function needs, the fit summary, warnings and plot
 layers. The shared :meth:`~wavefit.methods.base.Method.analyze` turns it into a result.
 """
