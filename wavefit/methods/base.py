@@ -211,7 +211,7 @@ class Method:
             curves = propagate_curves(inputs, self.model(variables, estimate.settings), declared,
                                       estimate.axes, variables)
         warnings = (*estimate.warnings, *self.review(estimate, inputs, prop))
-        result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, dict(estimate.fit),
+        result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, estimate.fit,
                                 tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,
                                 adequate=estimate.adequate, curves=curves)
         self.check_physical(result)
