@@ -41,6 +41,7 @@ import numpy as np
 
 from process_memory import peak_bytes, reset_peak, status_bytes
 
+from wavefit.methods._rl_summary import StepFitSummary
 from wavefit.synth.lc import Tank, ringdown
 from wavefit.synth.rl import rl_square_wave
 from wavefit.synth.scope import ScopeModel
@@ -128,7 +129,8 @@ def child(path: Path, setup_json: str, names: list[str]) -> None:
     wall, cpu = time.perf_counter(), time.process_time()
     try:
         result = wavefit.analyze(frame, json.loads(setup_json))
-        outcome = result.fit.get("estimator", "ring fitted" if result.method == "lc-ring" else "done")
+        outcome = (result.fit.estimator if isinstance(result.fit, StepFitSummary)
+                   else "ring fitted" if result.method == "lc-ring" else "done")
     except MemoryError as exc:
         outcome = f"MemoryError: {str(exc)[:70]}"
     except wavefit.WavefitError as exc:

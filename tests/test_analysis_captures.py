@@ -59,7 +59,7 @@ def test_header_less_time_is_noted_in_the_result(tmp_path: Path) -> None:
     t, sense = _step_record(seed=3)
     path = _write(tmp_path / "plain.csv", [f"{a:.9e},{b:.6f}" for a, b in zip(t, sense)])
     result = wavefit.analyze(path, SETUP)
-    assert any("read as time" in note for note in result.fit["capture_notes"])
+    assert any("read as time" in note for note in result.fit.capture_notes)
 
 
 def test_lc_ring_carries_the_readers_warnings(tmp_path: Path) -> None:
@@ -124,7 +124,7 @@ def test_ring_window_with_units(tmp_path: Path) -> None:
     setup = {"method": "lc-ring", "columns": {"tank": "tank"}, "parts": {"tank_capacitor": "10 nF"},
              "options": {"fit_start": "2 us", "fit_end": "70 us"}}
     result = wavefit.analyze(path, setup)
-    assert result.fit["window_start_s"] == pytest.approx(2e-6, abs=2e-8)
-    assert result.fit["window_end_s"] == pytest.approx(70e-6, abs=2e-8)
+    assert result.fit.window_start_s == pytest.approx(2e-6, abs=2e-8)
+    assert result.fit.window_end_s == pytest.approx(70e-6, abs=2e-8)
     with pytest.raises(wavefit.SetupError, match="fit_end"):
         wavefit.analyze(path, {**setup, "options": {"fit_end": "seventy"}})

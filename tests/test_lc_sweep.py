@@ -93,7 +93,7 @@ def test_sweep_matches_ngspice(tmp_path):
     assert abs(q["C"].value - C_SELF) <= max(q["C"].expanded_uncertainty, 0.15 * C_SELF)
     assert q["srf"].value == pytest.approx(1 / (2 * math.pi * math.sqrt(q["L"].value * q["C"].value)), rel=1e-12)
     assert not [w for w in result.warnings if "line" in w]
-    assert len(result.fit["captures"]) == 4
+    assert len(result.fit.captures) == 4
 
 
 @needs_ngspice

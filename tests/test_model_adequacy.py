@@ -135,10 +135,10 @@ def test_eddy_current_like_decay_is_flagged():
     frame, setup = eddy_like_step(70, seed=2)
     result = wavefit.analyze(frame, setup)
     assert not result.adequate
-    entry = result.fit["model_check"]["parameters"]["tau"]
+    entry = result.fit.model_check.variation("tau")
     tau = result.quantities["tau"]
     assert _model_line(result, "tau") is not None
-    assert tau.expanded_uncertainty >= abs(entry["late_windows"] - tau.value)
+    assert tau.expanded_uncertainty >= abs(entry.varied["late_windows"] - tau.value)
 
 
 def test_damping_that_changes_with_amplitude_is_flagged():
@@ -146,18 +146,18 @@ def test_damping_that_changes_with_amplitude_is_flagged():
     frame, alpha0 = ring_record(60, seed=3, beta=beta)
     result = wavefit.analyze(frame, RING_SETUP)
     assert not result.adequate
-    entry = result.fit["model_check"]["parameters"]["alpha"]
-    assert entry["significant"] and entry["input"] == "model_decay"
+    entry = result.fit.model_check.variation("alpha")
+    assert entry.significant and entry.input_name == "model_decay"
     # the construction's damping is alpha0·(1 + beta·A/A0): the early part of the ring, at
     # the larger amplitude, is damped more, and both parts lie within [alpha0, alpha0·(1 + beta)]
-    assert alpha0 < entry["late"] < entry["early"] < alpha0 * (1 + beta)
+    assert alpha0 < entry.varied["late"] < entry.varied["early"] < alpha0 * (1 + beta)
     alpha = result.quantities["alpha"]
-    half_width = max(abs(entry["early"] - alpha.value), abs(entry["late"] - alpha.value))
+    half_width = max(abs(entry.varied["early"] - alpha.value), abs(entry.varied["late"] - alpha.value))
     assert alpha.expanded_uncertainty >= half_width
     for quantity in ("alpha", "Q", "Q_loaded", "R"):
         assert _model_line(result, quantity, "model_decay") is not None
     # the frequency does not move with amplitude here, so it gets no input
-    assert not result.fit["model_check"]["parameters"]["w_d"]["significant"]
+    assert not result.fit.model_check.variation("w_d").significant
     assert _model_line(result, "f0") is None
 
 
@@ -172,11 +172,11 @@ def test_adequate_records_are_not_flagged(kind):
         else:
             frame, setup = rl_record(40, seed, correlated=10.0 if "band" in kind else 0.0, edges=2)
             result = wavefit.analyze(frame, setup)
-        assert result.adequate, result.fit["model_check"]
+        assert result.adequate, result.fit.model_check
         assert result.to_dict()["adequate"] is True
         assert all(_model_line(result, q, n) is None for q in result.budget for n in ("model", "model_decay"))
-        for entry in result.fit["model_check"]["parameters"].values():
-            assert 0 <= entry["z"] <= MODEL_Z and not entry["significant"]
+        for entry in result.fit.model_check.variations:
+            assert 0 <= entry.z <= MODEL_Z and not entry.significant
 
 
 def test_text_report_says_so_first():
@@ -198,8 +198,8 @@ def test_sweep_is_inadequate_when_one_ring_is(tmp_path):
                                          'parallel_load = "1 Mohm ±1%"\n' + "".join(entries))
     result = wavefit.analyze(None, tmp_path / "sweep.toml")
     assert result.adequate is False and result.to_dict()["adequate"] is False
-    assert [c["adequate"] for c in result.fit["captures"]] == [True, False, True]
-    assert result.fit["model_check"]["inadequate_captures"] == [str(tmp_path / "ring1.csv")]
+    assert [c.adequate for c in result.fit.captures] == [True, False, True]
+    assert result.fit.model_check.inadequate_captures == (str(tmp_path / "ring1.csv"),)
 
 
 # --- batch: an inadequate model is never a clear pass (project rule, issue 14); the statements

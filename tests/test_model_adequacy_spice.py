@@ -23,6 +23,7 @@ import pytest
 
 import wavefit
 from spice import needs_ngspice, simulate
+from wavefit.methods._model_check import MODEL_Z
 from wavefit.synth.scope import ScopeModel
 
 pytestmark = [needs_ngspice, pytest.mark.ngspice]
@@ -81,12 +82,12 @@ def test_eddy_current_loop_is_flagged_and_covered(two_channel):
     l2, r2, k = 10e-6, 5.0, 0.3
     result = wavefit.analyze(coil_capture(eddy_loop(l2, r2, k)), coil_setup(two_channel))
     assert not result.adequate
-    entry = result.fit["model_check"]["parameters"]["tau"]
-    assert entry["significant"] and entry["z"] > result.fit["model_check"]["threshold_z"]
+    entry = result.fit.model_check.variation("tau")
+    assert entry.significant and entry.z > MODEL_Z
     inductance = result.quantities["L"]
     model = next(line for line in result.budget["L"] if line.source == "model")
     # the expanded uncertainty has grown at least to the size of the variation, relative
-    assert inductance.expanded_uncertainty / inductance.value >= entry["half_width"] / entry["reported"]
+    assert inductance.expanded_uncertainty / inductance.value >= entry.half_width / entry.reported
     # the inductance a single exponential stands for is that of the dominant (slow) mode,
     # tau_slow·R_loop from the coupled loops' characteristic equation: covered
     l_slow = slow_time_constant(l2, r2, k) * R_LOOP
@@ -128,12 +129,12 @@ B1 tank 0 I = {g3} * V(tank) * V(tank) * V(tank)
              "parts": {"tank_capacitor": "10 nF ±1%", "parallel_load": "20 kohm ±1%"}}
     result = wavefit.analyze(pd.DataFrame({"t": t, "tank": y}), setup)
     assert not result.adequate
-    entry = result.fit["model_check"]["parameters"]["alpha"]
-    assert entry["significant"] and entry["input"] == "model_decay"
+    entry = result.fit.model_check.variation("alpha")
+    assert entry.significant and entry.input_name == "model_decay"
     alpha0 = (DCR_TANK / L_TANK + 1 / (R_FEED * C_TANK)) / 2
     amplitude = float(np.abs(v).max())
     alpha_first = alpha0 + 0.75 * g3 * amplitude ** 2 / (2 * C_TANK)
-    assert alpha0 < entry["late"] < entry["early"] < alpha_first
+    assert alpha0 < entry.varied["late"] < entry.varied["early"] < alpha_first
     alpha = result.quantities["alpha"]
-    assert alpha.expanded_uncertainty >= entry["half_width"]
+    assert alpha.expanded_uncertainty >= entry.half_width
     assert any(line.source == "model_decay" for line in result.budget["Q"])

@@ -75,7 +75,7 @@ def test_inductance_and_resistance_against_ngspice(case, two_channel):
     assert abs(L.value / ind - 1) < 0.01, (L.value, ind)
     assert abs(L.value - ind) <= L.expanded_uncertainty, (L.value, L.expanded_uncertainty, ind)
     assert abs(R.value - dcr) <= R.expanded_uncertainty, (R.value, R.expanded_uncertainty, dcr)
-    assert result.fit["edges_fitted"] >= 4  # every complete rising and falling edge of 2.4 periods
+    assert result.fit.edges_fitted >= 4  # every complete rising and falling edge of 2.4 periods
 
 
 @needs_ngspice

@@ -51,10 +51,10 @@ def test_dataframe_and_dict_with_exact_parts():
     result = wavefit.analyze(frame(t, s), SENSE_ONLY)
     assert abs(result.value("L") / L - 1) < 0.003
     assert result.quantities["R"].value == 1.0 and result.quantities["R"].standard_uncertainty == 0.0
-    assert result.fit["edges_fitted"] == 5
+    assert result.fit.edges_fitted == 5
     assert result.value("I_final") == pytest.approx(1.0 / (RSRC + DCR + RS), rel=0.003)
     assert result.value("E") == pytest.approx(result.value("L") * result.value("I_final") ** 2 / 2, rel=1e-12)
-    assert {"tau_rising", "tau_falling", "tau_per_edge_spread"} <= set(result.fit)
+    assert None not in (result.fit.tau_rising, result.fit.tau_falling, result.fit.tau_per_edge_spread)
     assert result.to_dict()["method"] == "rl-step"
 
 
@@ -146,7 +146,7 @@ def _monte_carlo(correlation: float, trials: int):
         q = r.quantities["tau"]
         taus.append(q.value)
         covered += abs(q.value - TAU) <= q.expanded_uncertainty
-        start = r.fit["edges"][0]["window_start"]
+        start = r.fit.edges[0].window_start
     return np.array(taus), covered / trials, t, start, amp, noise
 
 
@@ -188,7 +188,7 @@ def test_edges_located_from_correlated_noise_warn_at_low_snr(snr_db, warned):
     y = s + step * 10 ** (-snr_db / 20) * noise[200:]
     result = wavefit.analyze(frame(t, y), SENSE_ONLY)
     assert any("located only" in w for w in result.warnings) is warned
-    placed = [n for n in result.fit["notes"] if "edges placed from the sense trace" in n]
+    placed = [n for n in result.fit.notes if "edges placed from the sense trace" in n]
     assert warned or all(float(n.split("enlarged ")[1].split("-fold")[0]) < 1.3 for n in placed)
 
 
@@ -201,11 +201,11 @@ def test_periodic_drive_places_instants_from_all_edges():
     step = RS / (RSRC + DCR + RS)
     y = ScopeModel(noise_rms=step / 100, correlation_samples=10).apply(s, np.random.default_rng(4))
     result = wavefit.analyze(frame(t, y), SENSE_ONLY)
-    notes = [n for n in result.fit["notes"] if "fitted to the drive's period" in n]
-    assert len(notes) == 1, result.fit["notes"]
+    notes = [n for n in result.fit.notes if "fitted to the drive's period" in n]
+    assert len(notes) == 1, result.fit.notes
     period = float(notes[0].split("period (")[1].split(" s)")[0])
     assert period == pytest.approx(40 * TAU, abs=0.5 * TAU / 40)
     # white noise keeps the whole-record fit, whose instants are parameters: no lattice there
     white = wavefit.analyze(frame(t, ScopeModel(noise_rms=step / 100).apply(s, np.random.default_rng(4))),
                             SENSE_ONLY)
-    assert not any("fitted to the drive's period" in n for n in white.fit["notes"])
+    assert not any("fitted to the drive's period" in n for n in white.fit.notes)

@@ -225,13 +225,13 @@ def with_capture_remarks(result: AnalysisResult, captures: Sequence[Capture]) ->
     Returns
     -------
     AnalysisResult
-        A copy with the warnings merged and ``fit["capture_notes"]`` when the reader noted anything.
+        A copy with the warnings merged and ``fit.capture_notes`` when the reader noted anything.
     """
     several = len(captures) > 1
     remarks = [f"{c.source}: {w}" if several else w for c in captures for w in c.warnings]
     warnings = tuple(dict.fromkeys([*remarks, *result.warnings]))
     notes = [f"{c.source}: {n}" if several else n for c in captures for n in c.notes]
-    fit = {**result.fit, "capture_notes": notes} if notes else result.fit
+    fit = result.fit.with_capture_notes(tuple(notes)) if notes else result.fit
     return replace(result, warnings=warnings, fit=fit)
 
 

@@ -22,6 +22,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from .fit_summary import shown_details
 from .fitted import FittedBlock
 from .values import eng_pm
 
@@ -144,8 +145,7 @@ def fit_report(result: AnalysisResult) -> str:
         if pairs:
             lines.append(f"    correlations (|r| >= {SHOWN_CORRELATION:g}):")
             lines += [f"      r({a}, {b}) = {r:+.3f}" for _, a, b, r in sorted(pairs, reverse=True)]
-    details = [(k, v) for k, v in result.fit.items()
-               if isinstance(v, (int, float, str)) and not isinstance(v, bool)]
+    details = shown_details(result.fit)
     if details:
         lines.append("  details:")
         lines += [f"    {k}: {v:.6g}" if isinstance(v, float) else f"    {k}: {v}" for k, v in details]

@@ -7,6 +7,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from .fit_summary import FitSummary, as_summary
+
 if TYPE_CHECKING:
     import lmfit
     import pandas as pd
@@ -89,7 +91,7 @@ class AnalysisResult:
     """Everything one analysis gives: quantities, their budgets, the fit, warnings.
 
     ``adequate`` is False when the fit's estimates moved significantly with the fit window
-    (the waveform model misses the waveform; ``fit["model_check"]`` has the details and the
+    (the waveform model misses the waveform; ``fit.model_check`` has the details and the
     budget an input for the spread): batch decisions and reports read it.
     """
 
@@ -97,7 +99,7 @@ class AnalysisResult:
     source: str | list[str]
     quantities: dict[str, QuantityResult]
     budget: dict[str, list[BudgetLine]]
-    fit: dict[str, Any]
+    fit: FitSummary
     warnings: tuple[str, ...] = ()
     correlation: dict[str, dict[str, float]] = field(default_factory=dict)
     plot_data: Any = field(default=None, compare=False, repr=False)
@@ -113,6 +115,11 @@ class AnalysisResult:
     #: Monte Carlo run by ``wavefit.analyze``); neither written out nor compared.
     propagation: Propagation | None = field(default=None, compare=False, repr=False)
 
+    def __post_init__(self) -> None:
+        # a plain mapping (a result built by hand, a method defined outside the package) is kept
+        # as a PlainSummary
+        object.__setattr__(self, "fit", as_summary(self.fit))
+
     def to_dict(self) -> dict[str, Any]:
         out = {
             "method": self.method,
@@ -120,7 +127,7 @@ class AnalysisResult:
             "adequate": self.adequate,
             "quantities": {k: q.to_dict() for k, q in self.quantities.items()},
             "budget": {k: [line.to_dict() for line in lines] for k, lines in self.budget.items()},
-            "fit": _jsonable(self.fit),
+            "fit": _jsonable(self.fit.to_dict()),
             "warnings": list(self.warnings),
             "correlation": self.correlation,
         }

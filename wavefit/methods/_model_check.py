@@ -75,7 +75,8 @@ class Variation:
         1/z of itself, so Δu/u ≈ 1/z."""
         return 0.5 * self.z * self.z
 
-    def summary(self) -> dict[str, Any]:
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON entry of the parameter (``docs/json-output.md``, ``fit.model_check``)."""
         entry: dict[str, Any] = {"reported": self.reported, **self.basis, **self.varied, "z": self.z,
                                  "significant": self.significant}
         if self.significant:
@@ -108,11 +109,21 @@ class ModelCheck:
         return tuple(InputQuantity(v.input_name, 0.0, v.standard_uncertainty, v.unit, "B", v.dof,
                                    distribution="rectangular") for v in self.inputs)
 
-    def summary(self) -> dict[str, Any]:
+    def variation(self, parameter: str) -> Variation:
+        """The variation of the fitted ``parameter``."""
+        return next(v for v in self.variations if v.parameter == parameter)
+
+    @property
+    def inadequate_captures(self) -> tuple[str, ...]:
+        """The captures whose own check failed: none, the check is of one fit."""
+        return ()
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON object ``fit.model_check`` (``docs/json-output.md``)."""
         out: dict[str, Any] = {"adequate": self.adequate, "varied": self.varied, "threshold_z": MODEL_Z}
         if self.skipped is not None:
             out["skipped"] = self.skipped
-        out["parameters"] = {v.parameter: v.summary() for v in self.variations}
+        out["parameters"] = {v.parameter: v.to_dict() for v in self.variations}
         return out
 
     def warning(self, model: str, cause: str) -> str | None:
@@ -124,6 +135,42 @@ class ModelCheck:
         return (f"the {model} does not describe the waveform: when the fit window changes ({self.varied}), "
                 f"{moves}, beyond the threshold z = {MODEL_Z:g}; that spread is in the budget as a rectangular "
                 f"type B input, so the uncertainty is the model's, not the fit's ({cause})")
+
+
+@dataclass(frozen=True)
+class CaptureChecks:
+    """The model checks of several captures fitted alone, taken together (lc-sweep's rings).
+
+    Attributes
+    ----------
+    varied
+        What was varied, in words.
+    inadequate_captures
+        The sources of the captures whose own check failed, in capture order.
+    skipped
+        Why no capture's check was possible, or ``None`` when one was.
+    """
+
+    varied: str
+    inadequate_captures: tuple[str, ...]
+    skipped: str | None = None
+
+    @property
+    def adequate(self) -> bool:
+        return not self.inadequate_captures
+
+    @property
+    def inputs(self) -> tuple[Variation, ...]:
+        """None here: each capture's significant variations enter its own point's uncertainty."""
+        return ()
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON object ``fit.model_check`` of lc-sweep (``docs/json-output.md``)."""
+        out: dict[str, Any] = {"adequate": self.adequate, "varied": self.varied,
+                               "inadequate_captures": list(self.inadequate_captures)}
+        if self.skipped is not None:
+            out["skipped"] = self.skipped
+        return out
 
 
 def added(x: Mapping[str, Any], name: str) -> Any:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 from scipy import ndimage
@@ -23,6 +23,7 @@ from ..setup import Setup
 from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
 from ._model_check import MODEL_Z, ModelCheck, Variation
 from .base import Method
+from ..fit_summary import FitSummary, merged_entries, optional_entry
 
 COIL_LOSS = ("unknown", "series", "parallel")
 #: |f0 early − f0 late| above this many combined standard uncertainties is flagged: the
@@ -49,17 +50,107 @@ FEW_SAMPLES_PER_PERIOD, ALIAS_SAMPLES_PER_PERIOD = 10.0, 4.0
 CLIPPED_RUN = 5
 
 
+@dataclass(frozen=True, kw_only=True)
+class DriftCheck:
+    """f0 of the ring's early part against its late part, each fitted alone; every field but
+    ``skipped`` is ``None`` when the parts could not be fitted.
+
+    Attributes
+    ----------
+    f0_early, u_early
+        f0 of the early part and its standard uncertainty, Hz.
+    f0_late, u_late
+        The same for the late part, Hz.
+    z
+        |f0_early − f0_late| over the standard uncertainty of the difference.
+    skipped
+        Why the parts could not be fitted, or ``None``.
+    """
+
+    f0_early: float | None = optional_entry()
+    u_early: float | None = optional_entry()
+    f0_late: float | None = optional_entry()
+    u_late: float | None = optional_entry()
+    z: float | None = optional_entry()
+    skipped: str | None = optional_entry()
+
+
+@dataclass(frozen=True)
+class ResidualPeak:
+    """A spectral line left in the ring fit's residuals.
+
+    Attributes
+    ----------
+    frequency
+        Its frequency, Hz.
+    relative_energy
+        Its energy over that of the fitted oscillation.
+    """
+
+    frequency: float
+    relative_energy: float
+
+
+@dataclass(frozen=True, kw_only=True)
+class RingSummary(FitSummary):
+    """What the ring stage says about one ring's fit (JSON ``fit`` of an lc-ring result).
+
+    Attributes
+    ----------
+    model
+        The waveform model fitted, in words.
+    window_start_s, window_end_s
+        Times of the fit window's first and last sample, s.
+    cycles
+        Periods of the ring in the fit window.
+    cycles_above_noise
+        Periods whose amplitude stands above twice the noise rms.
+    samples_per_period
+        Samples per period of the damped oscillation.
+    amplitude_to_noise
+        The ring's initial amplitude over the noise rms.
+    drift_check
+        f0 of the early part of the ring against the late part.
+    model_check
+        w_d and alpha of the early part against the late part (:mod:`wavefit.methods._model_check`).
+    residual_peak
+        A spectral line left in the residuals, or ``None`` (written as null).
+    fit_details
+        The ring fit's own summary (:meth:`wavefit.fit.result.FitResult.summary`: parameters,
+        samples, degrees of freedom, noise model, diagnostics), written at this level.
+    coil_loss
+        lc-ring's option coil_loss (how the coil's loss is split); absent from lc-sweep's rings.
+    """
+
+    model: str
+    window_start_s: float
+    window_end_s: float
+    cycles: float
+    cycles_above_noise: float
+    samples_per_period: float
+    amplitude_to_noise: float
+    drift_check: DriftCheck
+    model_check: ModelCheck
+    residual_peak: ResidualPeak | None
+    fit_details: Mapping[str, Any] = merged_entries()
+    coil_loss: str | None = optional_entry()
+
+
 @dataclass(frozen=True)
 class RingMeasurement:
-    """One fitted ring with its diagnostics, ready for a measurement function."""
+    """One fitted ring with its diagnostics (``info``), ready for a measurement function."""
 
     ring: DampedSineFit
     time: np.ndarray
     data: np.ndarray
     unit: str
-    info: dict[str, Any]
+    info: RingSummary
     warnings: tuple[str, ...]
-    model_check: ModelCheck
+
+    @property
+    def model_check(self) -> ModelCheck:
+        """The ring's model check (early against late part)."""
+        return self.info.model_check
 
 
 def check_time_options(method: Method, setup: Setup) -> None:
@@ -97,8 +188,8 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
         raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
                               "check the [columns] tank entry and that the record holds the ring") from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
-    info, check = _checks(ring, t, y, capture.source, warnings, noise)
-    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings), check)
+    info = _checks(ring, t, y, capture.source, warnings, noise)
+    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings))
 
 
 def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> Any:
@@ -114,8 +205,8 @@ def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> 
 
 
 def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warnings: list[str],
-            noise: str) -> tuple[dict[str, Any], ModelCheck]:
-    """The fit's diagnostics (appending to ``warnings``) and its model check."""
+            noise: str) -> RingSummary:
+    """The fit's diagnostics with its model check (appending to ``warnings``)."""
     dt = ring.sample_interval
     sigma = ring.fit.noise_sigma["tank"]
     amp = ring.amplitude
@@ -147,10 +238,10 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     del fitted  # a long record's copy: evaluated again after the partial fits below
     halves = _halves(ring, y, noise)
     drift = _drift_check(halves)
-    if drift.get("z", 0.0) > DRIFT_Z:
+    if drift.z is not None and drift.z > DRIFT_Z:
         warnings.append(
-            f"frequency changes with amplitude: f0 = {drift['f0_early']:.7g} Hz early and "
-            f"{drift['f0_late']:.7g} Hz late in the ring ({drift['z']:.1f} standard uncertainties apart): "
+            f"frequency changes with amplitude: f0 = {drift.f0_early:.7g} Hz early and "
+            f"{drift.f0_late:.7g} Hz late in the ring ({drift.z:.1f} standard uncertainties apart): "
             "core nonlinearity? repeat with a smaller excitation")
     check = ring_model_check(ring, halves)
     if not check.adequate:
@@ -162,21 +253,13 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     del oscillation
     spur = _residual_peak(ring.fit.residuals[:RESIDUAL_SPECTRUM_SAMPLES], energy, dt)
     if spur is not None:
-        warnings.append(f"a second oscillation at {spur['frequency']:.4g} Hz ({spur['relative_energy']:.1e} of "
+        warnings.append(f"a second oscillation at {spur.frequency:.4g} Hz ({spur.relative_energy:.1e} of "
                         "the ring's energy) remains in the residuals: second mode, beat or pickup")
-    return {
-        "model": ring.fit.model,
-        "window_start_s": float(t[ring.start]),
-        "window_end_s": float(t[ring.stop - 1]),
-        "cycles": float(ring.cycles),
-        "cycles_above_noise": float(visible),
-        "samples_per_period": float(spp),
-        "amplitude_to_noise": float(amp / sigma),
-        "drift_check": drift,
-        "model_check": check.summary(),
-        "residual_peak": spur,
-        **ring.fit.summary(),
-    }, check
+    return RingSummary(model=ring.fit.model, window_start_s=float(t[ring.start]),
+                       window_end_s=float(t[ring.stop - 1]), cycles=float(ring.cycles),
+                       cycles_above_noise=float(visible), samples_per_period=float(spp),
+                       amplitude_to_noise=float(amp / sigma), drift_check=drift, model_check=check,
+                       residual_peak=spur, fit_details=ring.fit.summary())
 
 
 def _halves(ring: DampedSineFit, y: np.ndarray, noise: str) -> tuple[DampedSineFit, DampedSineFit] | str:
@@ -203,10 +286,10 @@ def _halves(ring: DampedSineFit, y: np.ndarray, noise: str) -> tuple[DampedSineF
     return parts[0], parts[1]
 
 
-def _drift_check(halves: tuple[DampedSineFit, DampedSineFit] | str) -> dict[str, Any]:
+def _drift_check(halves: tuple[DampedSineFit, DampedSineFit] | str) -> DriftCheck:
     """Compare f0 of the early and the late part of the ring."""
     if isinstance(halves, str):
-        return {"skipped": halves}
+        return DriftCheck(skipped=halves)
     parts = []
     for sub in halves:
         g = np.array([sub.alpha, sub.w_d]) / sub.w0
@@ -214,8 +297,8 @@ def _drift_check(halves: tuple[DampedSineFit, DampedSineFit] | str) -> dict[str,
         parts.append((sub.w0 / (2 * math.pi), math.sqrt(max(float(g @ cov @ g), 0.0)) / (2 * math.pi)))
     (f_e, u_e), (f_l, u_l) = parts
     u = math.hypot(u_e, u_l)
-    return {"f0_early": f_e, "u_early": u_e, "f0_late": f_l, "u_late": u_l,
-            "z": abs(f_e - f_l) / u if u > 0 else math.inf}
+    return DriftCheck(f0_early=f_e, u_early=u_e, f0_late=f_l, u_late=u_l,
+                      z=abs(f_e - f_l) / u if u > 0 else math.inf)
 
 
 def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSineFit] | str) -> ModelCheck:
@@ -242,7 +325,7 @@ def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSin
 RESIDUAL_SPECTRUM_SAMPLES = 1 << 21
 
 
-def _residual_peak(r: np.ndarray, ring_energy: float, dt: float) -> dict[str, float] | None:
+def _residual_peak(r: np.ndarray, ring_energy: float, dt: float) -> ResidualPeak | None:
     """A spectral line in the residuals well above the local noise floor and above −30 dB of
     the ring's energy (``ring_energy``, the sum of squares of the fitted oscillation about its
     offset over the same samples; common practice for spotting a spurious tone), or None.
@@ -266,7 +349,7 @@ def _residual_peak(r: np.ndarray, ring_energy: float, dt: float) -> dict[str, fl
     relative = energy / max(ring_energy, 1e-300)
     if relative < 1e-3:
         return None
-    return {"frequency": k / (n * dt), "relative_energy": relative}
+    return ResidualPeak(k / (n * dt), relative)
 
 
 def _time_option(method: Method, setup: Setup, key: str, t: np.ndarray) -> int | None:

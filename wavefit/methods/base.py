@@ -213,7 +213,7 @@ class Method:
         declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve)}
         curves = propagate_curves(inputs, outputs, declared, estimate.axes, variables)
         warnings = (*estimate.warnings, *self.review(estimate, inputs, prop))
-        result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, dict(estimate.fit),
+        result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, estimate.fit,
                                 tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,
                                 adequate=estimate.adequate, curves=curves, fitted=estimate.blocks,
                                 propagation=prop)

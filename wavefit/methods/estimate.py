@@ -13,6 +13,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from ..fit_summary import FitSummary
 from ..fitted import FittedBlock
 from ..uncertainty import InputQuantity
 
@@ -31,7 +32,9 @@ class Estimate:
         What the measurement function needs beside its inputs (which parts are present,
         an option's choice), read by :meth:`~wavefit.methods.base.Method.model`.
     fit
-        The fit summary written under ``fit`` in the result.
+        The fit summary written under ``fit`` in the result: a typed
+        :class:`~wavefit.fit_summary.FitSummary`; a plain mapping (a method defined
+        outside the package) is kept in the result as a :class:`~wavefit.fit_summary.PlainSummary`.
     warnings
         Broken assumptions and other remarks, in order.
     plot
@@ -44,7 +47,7 @@ class Estimate:
     """
 
     blocks: tuple[FittedBlock, ...]
-    fit: Mapping[str, Any]
+    fit: FitSummary | Mapping[str, Any]
     inputs: tuple[InputQuantity, ...] = ()
     settings: Mapping[str, Any] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()

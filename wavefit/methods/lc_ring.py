@@ -22,6 +22,7 @@ measurement function (derivation and what it neglects in docs/method-lc-ring.md)
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from typing import Any, Mapping
 
 import numpy as np
@@ -86,7 +87,7 @@ class LcRing(Method):
         model = np.full_like(meas.data, np.nan)
         meas.ring.evaluate(meas.time[meas.ring.start:meas.ring.stop], out=model[meas.ring.start:meas.ring.stop])
         plot = TracePlot(meas.time, (("tank", meas.unit, meas.data, model),))
-        return Estimate((block,), dict(meas.info, coil_loss=coil_loss), extra,
+        return Estimate((block,), replace(meas.info, coil_loss=coil_loss), extra,
                         {"present": present, "coil_loss": coil_loss}, meas.warnings, plot,
                         meas.model_check.adequate)
 

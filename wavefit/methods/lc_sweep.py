@@ -16,6 +16,7 @@ and srf = 1/(2π·√(L·C)), k_t being the timebase factor common to all captur
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
@@ -29,13 +30,92 @@ from ..results import LinePlot
 from ..setup import Setup
 from ..uncertainty import InputSet, Propagation
 from . import register
-from ._model_check import ModelCheck
+from ._model_check import CaptureChecks, ModelCheck
 from ._ring import check_time_options, coil_loss_option, loss_correction, measure_ring
 from ..scale_factor import birge_ratio, scale_factor
 from ._scale_factor import LINE_SCATTER_P
 from .base import Method
 from .estimate import Estimate, FittedBlock
+from ..fit_summary import FitSummary
 from .lc_ring import LOSS_SPLIT, LcRing
+
+
+@dataclass(frozen=True)
+class SweepPoint:
+    """One capture's point of the line.
+
+    Attributes
+    ----------
+    source
+        The capture.
+    tank_capacitor
+        Its tank capacitor (the abscissa, without the stray capacitance), F.
+    f0
+        The ring's undamped resonance frequency, Hz.
+    inverse_w_squared
+        The ordinate 1/(w0² − Δ), s² (per rad²).
+    u_inverse_w_squared
+        Its standard uncertainty, s².
+    cycles
+        Periods of the ring in its fit window.
+    model_check
+        The ring's own model check (:mod:`wavefit.methods._model_check`).
+    """
+
+    source: str
+    tank_capacitor: float
+    f0: float
+    inverse_w_squared: float
+    u_inverse_w_squared: float
+    cycles: float
+    model_check: ModelCheck
+
+    @property
+    def adequate(self) -> bool:
+        """Whether the ring's model check passed."""
+        return self.model_check.adequate
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON entry of ``fit.captures`` (``adequate`` before ``model_check``)."""
+        return {"source": self.source, "tank_capacitor": self.tank_capacitor, "f0": self.f0,
+                "inverse_w_squared": self.inverse_w_squared, "u_inverse_w_squared": self.u_inverse_w_squared,
+                "cycles": self.cycles, "adequate": self.adequate, "model_check": self.model_check.to_dict()}
+
+
+@dataclass(frozen=True, kw_only=True)
+class SweepSummary(FitSummary):
+    """What lc-sweep says about its line fit (JSON ``fit`` of an lc-sweep result).
+
+    Attributes
+    ----------
+    model
+        The line fitted, in words.
+    coil_loss
+        The option coil_loss (how each coil's loss is split).
+    slope
+        The line's slope, H (with the timebase factor k_t² still to apply).
+    intercept
+        Its intercept, s².
+    chi2, dof, p_value
+        The line's chi-square, its degrees of freedom (captures less two) and the p-value.
+    birge_ratio
+        The factor the line's covariance was scaled by (1 when it was not).
+    captures
+        Each capture's point, in capture order.
+    model_check
+        The rings' model checks taken together.
+    """
+
+    model: str
+    coil_loss: str
+    slope: float
+    intercept: float
+    chi2: float
+    dof: int
+    p_value: float
+    birge_ratio: float
+    captures: tuple[SweepPoint, ...]
+    model_check: CaptureChecks
 
 
 @register
@@ -88,11 +168,8 @@ class LcSweep(Method):
                 raise AnalysisRefused(f"{setup.source}: the line fit failed ({exc})") from None
             extra = max(line.intercept / line.slope, 0.0) if line.slope > 0 else 0.0
         for bound, (meas, parts), yi, ui in zip(measurement.captures, rings, y, u_y):
-            per_capture.append({"source": bound.source,
-                                "tank_capacitor": parts["tank_capacitor"].value,
-                                "f0": meas.ring.w0 / (2 * math.pi), "inverse_w_squared": float(yi),
-                                "u_inverse_w_squared": float(ui), "cycles": meas.info["cycles"],
-                                "adequate": meas.model_check.adequate, "model_check": meas.info["model_check"]})
+            per_capture.append(SweepPoint(bound.source, parts["tank_capacitor"].value, meas.ring.w0 / (2 * math.pi),
+                                          float(yi), float(ui), meas.info.cycles, meas.model_check))
         cov = line.covariance
         dof = math.inf
         birge = 1.0
@@ -112,19 +189,18 @@ class LcSweep(Method):
                 f"{line.intercept:.3g}; both must be positive for L and C (check the tank_capacitor values)")
         block = FittedBlock(("line slope", "line intercept"), np.array([line.slope, line.intercept]), cov,
                             ("H", "s2"), dof, group="line")
-        inadequate = [bound.source for bound, (meas, _) in zip(measurement.captures, rings)
-                      if not meas.model_check.adequate]
+        inadequate = tuple(bound.source for bound, (meas, _) in zip(measurement.captures, rings)
+                           if not meas.model_check.adequate)
         unchecked = [meas for meas, _ in rings if meas.model_check.skipped is not None]
-        fit = {"model": "1/w0^2 = L*(C_added + C), York line", "coil_loss": coil_loss,
-               "slope": line.slope, "intercept": line.intercept, "chi2": line.chi2, "dof": line.dof,
-               "p_value": line.p_value, "birge_ratio": birge, "captures": per_capture,
-               "model_check": {"adequate": not inadequate, "varied": "each ring checked alone (see captures)",
-                               "inadequate_captures": inadequate}}
-        if len(unchecked) == len(rings):
-            fit["model_check"]["skipped"] = "no ring's check was possible (see captures)"
+        check = CaptureChecks("each ring checked alone (see captures)", inadequate,
+                              "no ring's check was possible (see captures)" if len(unchecked) == len(rings)
+                              else None)
+        fit = SweepSummary(model="1/w0^2 = L*(C_added + C), York line", coil_loss=coil_loss, slope=line.slope,
+                           intercept=line.intercept, chi2=line.chi2, dof=line.dof, p_value=line.p_value,
+                           birge_ratio=birge, captures=tuple(per_capture), model_check=check)
         plot = LinePlot(x, y, u_x, u_y, line.slope, line.intercept, "added capacitance (F)", "1/w0² (s²)")
         return Estimate((block,), fit, settings={"has_stray": "stray_capacitance" in measurement.parts},
-                        warnings=tuple(warnings), plot=plot, adequate=not inadequate)
+                        warnings=tuple(warnings), plot=plot, adequate=check.adequate)
 
     def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
         """L = slope·k_t², C = intercept/slope (less the stray given), srf = 1/(2π√(L·C))."""

@@ -46,6 +46,7 @@ from ..scale_factor import scale_factor
 from ._scale_factor import EDGE_SCATTER_P
 from ._rl_wiring import check_wiring
 from .base import Method, PartSpec
+from ._rl_summary import EdgeFit, StepFitSummary
 from .estimate import Estimate, FittedBlock
 
 #: Budget input that carries tau's movement with the fit window when the model check fires.
@@ -193,9 +194,7 @@ class RLStep(Method):
             notes.append("source_resistance is not used: the drive channel measures the generator")
         if drive is None:
             notes.append("R is the dut_resistance part as given (no drive channel to measure it)")
-        fit_info = self._fit_info(windows, fits, combined, baseline, dt, notes)
-        fit_info["estimator"] = estimator
-        fit_info["model_check"] = check.summary()
+        fit_info = _fit_summary(windows, fits, combined, baseline, dt, notes, estimator, check)
         block = FittedBlock(tuple(combined.names), combined.values, combined.covariance, tuple(combined.units),
                             combined.dof)
         return Estimate((block,), fit_info, check.budget_inputs(),
@@ -328,38 +327,6 @@ class RLStep(Method):
                        f"{combined.birge[0]:.2f}); the type A uncertainty is enlarged by that ratio")
         return out
 
-    @staticmethod
-    def _fit_info(windows, fits, combined, baseline, dt, notes) -> dict[str, Any]:
-        per_edge = []
-        for w, f in zip(windows, fits):
-            entry = {"direction": "rising" if w.edge.direction > 0 else "falling", "t0": w.t0,
-                     "window_start": f.t_ref, "samples": f.n_samples,
-                     "tau": f["tau"], "tau_standard_error": f.stderr("tau"),
-                     "noise_model": f.noise_model, "ljung_box_p": f.diagnostics.get("ljung_box_p")}
-            per_edge.append(entry)
-        taus = np.array([f["tau"] for f in fits])
-        info: dict[str, Any] = {
-            "model": "final + coefficient·exp(−(t − t_ref)/tau) per edge window, tau shared by the channels",
-            "edges_fitted": len(fits),
-            "tau_fit": combined.values[0],
-            "tau_fit_standard_error": math.sqrt(combined.covariance[0, 0]),
-            "tau_per_edge_spread": float(np.std(taus, ddof=1)) if taus.size > 1 else 0.0,
-            "skip_after_edge_s": float(fits[0].t_ref - windows[0].t0),
-            "sample_interval_s": dt,
-            "type_a_dof": combined.dof,
-            "type_a_estimator": "per-window feasible GLS with AR noise model (Cochrane-Orcutt), "
-                                "combined across edges by inverse-covariance weighting",
-            "baseline_samples": baseline.n_samples if baseline is not None else 0,
-            "edges": per_edge,
-            "notes": notes,
-        }
-        for key in ("rising", "falling"):
-            if combined.by_direction.get(key):
-                info[f"tau_{key}"], info[f"tau_{key}_standard_error"] = combined.by_direction[key]
-        if combined.birge is not None:
-            info["birge_ratio"] = combined.birge[0]
-        return info
-
 
 # -- measurement function -----------------------------------------------------------------
 
@@ -405,6 +372,36 @@ def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
                                           "refitted from one tau later")
     return ModelCheck(varied, (Variation("tau", MODEL_INPUT, "s", tau_reported, {"late_windows": late.late},
                                          late.z, {"full_windows": late.full}),))
+
+
+def _fit_summary(windows, fits, combined, baseline, dt, notes, estimator: str, check: ModelCheck
+                 ) -> StepFitSummary:
+    """The fit summary of the windows' ``fits`` and their combination ``combined``."""
+    edges = tuple(EdgeFit("rising" if w.edge.direction > 0 else "falling", w.t0, f.t_ref, f.n_samples,
+                          f["tau"], f.stderr("tau"), f.noise_model, f.diagnostics.get("ljung_box_p"))
+                  for w, f in zip(windows, fits))
+    taus = np.array([f["tau"] for f in fits])
+    rising = combined.by_direction.get("rising") or (None, None)
+    falling = combined.by_direction.get("falling") or (None, None)
+    return StepFitSummary(
+        model="final + coefficient·exp(−(t − t_ref)/tau) per edge window, tau shared by the channels",
+        edges_fitted=len(fits),
+        tau_fit=combined.values[0],
+        tau_fit_standard_error=math.sqrt(combined.covariance[0, 0]),
+        tau_per_edge_spread=float(np.std(taus, ddof=1)) if taus.size > 1 else 0.0,
+        skip_after_edge_s=float(fits[0].t_ref - windows[0].t0),
+        sample_interval_s=dt,
+        type_a_dof=combined.dof,
+        type_a_estimator="per-window feasible GLS with AR noise model (Cochrane-Orcutt), "
+                         "combined across edges by inverse-covariance weighting",
+        baseline_samples=baseline.n_samples if baseline is not None else 0,
+        edges=edges,
+        notes=tuple(notes),
+        tau_rising=rising[0], tau_rising_standard_error=rising[1],
+        tau_falling=falling[0], tau_falling_standard_error=falling[1],
+        birge_ratio=combined.birge[0] if combined.birge is not None else None,
+        estimator=estimator,
+        model_check=check)
 
 
 def _plot(t, sense, drive, windows, fits) -> TracePlot:

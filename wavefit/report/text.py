@@ -3,6 +3,8 @@ from __future__ import annotations
 
 import math
 
+from ..fit_summary import ChecksModel, shown_details
+from ..methods._model_check import MODEL_Z
 from ..results import AnalysisResult
 from ..values import eng, eng_pm
 from .curve_text import curve_lines
@@ -39,7 +41,8 @@ def render(result: AnalysisResult, budget: bool = True) -> str:
             for e in sorted(entries, key=lambda e: -abs(e.variance_share)):
                 lines.append(f"    {e.source:<28} {e.kind}  u = {eng(e.standard_uncertainty, e.unit, 3):<12} "
                              f"contrib = {eng(e.contribution, unit, 3):<12} share = {100 * e.variance_share:6.2f} %")
-    fit_lines = _fit_summary(result.fit)
+    fit_lines = [f"  {key}: {value:.6g}" if isinstance(value, float) else f"  {key}: {value}"
+                 for key, value in shown_details(result.fit)]
     if fit_lines:
         lines += ["", "Fit:"] + fit_lines
     if result.warnings:
@@ -48,32 +51,24 @@ def render(result: AnalysisResult, budget: bool = True) -> str:
     return "\n".join(lines)
 
 
-def _fit_summary(fit: dict) -> list[str]:
-    out = []
-    for key, value in fit.items():
-        if isinstance(value, (int, float, str)) and not isinstance(value, bool):
-            out.append(f"  {key}: {value:.6g}" if isinstance(value, float) else f"  {key}: {value}")
-    return out
-
-
 def _model_check_lines(result: AnalysisResult) -> list[str]:
-    """The model check's verdict, read from ``result.adequate`` and ``fit["model_check"]``;
+    """The model check's verdict, read from ``result.adequate`` and ``fit.model_check``;
     an inadequate model is said in capitals before the numbers."""
-    if "model_check" not in result.fit and result.adequate:
+    check = result.fit.model_check if isinstance(result.fit, ChecksModel) else None
+    if check is None and result.adequate:
         return []  # a method without a model check says nothing about it
-    check = result.fit.get("model_check", {})
     if result.adequate:
-        if "skipped" in check:
-            return [f"Model check: not possible ({check['skipped']})"]
+        if check.skipped is not None:
+            return [f"Model check: not possible ({check.skipped})"]
         return ["Model check: adequate (the estimates do not move beyond the noise when the fit window changes)"]
     lines = ["MODEL NOT ADEQUATE: the estimates move with the fit window beyond what the noise explains, so the "
              "fitted model does not describe the waveform; the uncertainties below include that spread "
              "as a type B input, so the result is no more precise than the model"]
-    for name, entry in check.get("parameters", {}).items():
-        if entry.get("significant"):
-            lines.append(f"  {name}: z = {entry['z']:.1f} (threshold {check['threshold_z']:g}), "
-                         f"spread ±{entry['half_width']:.4g} about {entry['reported']:.6g} -> input "
-                         f"{entry['input']!r}")
-    for source in check.get("inadequate_captures", []):
+    if check is None:
+        return lines
+    for v in check.inputs:
+        lines.append(f"  {v.parameter}: z = {v.z:.1f} (threshold {MODEL_Z:g}), "
+                     f"spread ±{v.half_width:.4g} about {v.reported:.6g} -> input {v.input_name!r}")
+    for source in check.inadequate_captures:
         lines.append(f"  ring {source}: its model check failed (see its warnings)")
     return lines
