@@ -106,6 +106,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _analyze(args: argparse.Namespace) -> int:
     from .analysis import analyze
+    from .measurement import takes_entries
     from .methods import get_method
     from .setup import load_setup
 
@@ -114,7 +115,7 @@ def _analyze(args: argparse.Namespace) -> int:
         return EXIT_USAGE
     setup = load_setup(args.setup)
     method = get_method(setup.method)
-    if method.uses_setup_captures:
+    if takes_entries(setup, method.capture_count):  # one measurement: the entries' captures
         jobs = [args.captures or None]
     elif not args.captures:
         print("wavefit: error: name at least one CAPTURE file to analyse", file=sys.stderr)

@@ -115,15 +115,13 @@ class _Plan:
 def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     """Read and check the setup, spec, outputs and inputs; raise on anything unusable."""
     from .. import __version__
+    from ..measurement import takes_entries
     from ..methods import get_method
     from ..setup import load_setup
 
     setup = load_setup(args.setup)
     method = get_method(setup.method)
     method.check_setup(setup)
-    if method.uses_setup_captures and not setup.captures:
-        raise SetupError(f"{visible(setup.source)}: method {setup.method!r} takes several captures per part; "
-                         "name them in [[captures]] entries (each part's folder holds a file of each name)")
     if not method.quantities:
         raise SetupError(f"method {setup.method!r} reports no scalar quantity (only curves), so batch has "
                          "nothing to judge against limits")
@@ -136,7 +134,7 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
         from ..report.figure_file import check_figure_path
 
         check_figure_path(args.plot)
-    expand = expand_part_folders if method.uses_setup_captures else expand_inputs
+    expand = expand_part_folders if takes_entries(setup, method.capture_count) else expand_inputs
     paths = expand(args.inputs, skip=own.is_own)
     maker = RowMaker(setup, spec, tuple(method.quantities), sha256_file(args.setup), sha256_file(args.spec),
                      __version__, analyse)
