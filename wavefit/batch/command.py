@@ -9,7 +9,6 @@ same).
 from __future__ import annotations
 
 import argparse
-import io
 import json
 import os
 import signal
@@ -20,11 +19,12 @@ from typing import TYPE_CHECKING, Any
 
 from ..errors import SetupError
 from ..report.safe_text import visible
+from ..report.stdout import discard_stdout
 from .inputs import capture_order, expand_inputs, expand_part_folders
 from .outputs import RunFiles
 from .rows import Analyse, RowMaker, analyse_file, sha256_file
 from .spec import Spec, load_spec
-from .statistics import LotSummary, possible, summarize
+from .statistics import LotSummary, summarize, usable
 from .stop import Interrupted, StopSignals
 from .write_errors import write_failed
 
@@ -217,9 +217,8 @@ def _report(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespac
     if args.plot:
         from ..report.lot_plot import LotSeries, save_lot_plot
 
-        series = [LotSeries(name, limit.unit, [row.get(name) if row["verdict"] != "error"
-                                               and possible(row.get(name), name in positive) else None
-                                               for row in outcome.rows], limit.lower, limit.upper)
+        series = [LotSeries(name, limit.unit, [usable(row, name, name in positive) for row in outcome.rows],
+                            limit.lower, limit.upper)
                   for name, limit in spec.limits.items()]
         try:
             save_lot_plot(series, args.plot, title=f"lot {lot}")
@@ -252,19 +251,8 @@ def _emit(text: str, out: str) -> None:
     except BrokenPipeError:
         raise
     except OSError as exc:
-        _discard_stdout()
+        discard_stdout()
         raise write_failed("the summary to", "standard output", exc, f"{visible(out)} has every row") from None
-
-
-def _discard_stdout() -> None:
-    """Point standard output at the null device, so the interpreter's last flush of what could
-    not be written does not fail again at exit with a traceback-like message."""
-    try:
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
-        os.close(devnull)
-    except (OSError, ValueError, io.UnsupportedOperation):  # no file descriptor: nothing is flushed at exit
-        pass
 
 
 def available_cores() -> int:
