@@ -84,6 +84,8 @@ def test_a_curve_only_method_runs_and_its_curves_are_kept_per_part(tmp_path, cap
     curves = table(curves_path(tmp_path / "out.csv"))
     check_curves_against_ngspice(curves, PARTS)
 
+    assert main([*argv, "--plot", str(tmp_path / "lot.png")]) == 3  # no limits: nothing to draw
+    assert "the spec has no limits" in capsys.readouterr().err and not (tmp_path / "lot.png").exists()
     assert main([*argv, "--json"]) == 0  # resumed: the curves come back from the file
     payload = json.loads(capsys.readouterr().out)
     assert payload["rows_resumed"] == PARTS and list(payload["curves"]) == [r["file"] for r in table(tmp_path / "out.csv")]

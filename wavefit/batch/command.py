@@ -133,6 +133,8 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     own = RunFiles(Path(args.out), Path(args.db) if args.db else None, Path(args.plot) if args.plot else None,
                    Path(args.setup), Path(args.spec), curves_path(args.out) if curves else None)
     own.check()
+    if args.plot and not spec.limits:
+        raise SetupError(f"{spec.source}: --plot draws the limited quantities, and the spec has no limits")
     if args.plot:
         from ..report.figure_file import check_figure_path
 
