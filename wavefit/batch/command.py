@@ -1,7 +1,7 @@
 """``wavefit batch``: inspect a lot of captures against a spec, resumably.
 
 Exit codes: 0 every input has a row (``error`` rows included); 3 bad setup,
-spec, inputs, outputs or results file, or another run holds the results file,
+spec, inputs, outputs, results or curves file, or another run holds the results file,
 before anything is analysed; 5 an output could not be written (rows written so
 far are kept; run again to resume); 130 after Ctrl-C, 143 after SIGTERM (the
 same).
@@ -121,8 +121,8 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     from ..measurement import takes_entries
     from ..methods import get_method
     from ..outputs import curve_names
-    from .curves_file import curves_path
     from ..setup import load_setup
+    from .curves_file import curves_path
 
     setup = load_setup(args.setup)
     method = get_method(setup.method)
