@@ -94,3 +94,11 @@ def test_foreign_file_is_refused_and_left_unchanged(tmp_path, content):
     with pytest.raises(ResultsFileError, match="another --out"):
         ResultsFile(path, COLUMNS).open()
     assert path.read_bytes() == content
+
+
+def test_a_line_break_inside_a_cell_is_refused(tmp_path):
+    """Each row is one line (text cells escape line breaks), so a quoted line break is not ours."""
+    path = tmp_path / "r.csv"
+    path.write_text(",".join(COLUMNS) + "\n" + 'a.csv,pass,"two\nlines"' + "," * (len(COLUMNS) - 3) + "\n")
+    with pytest.raises(ResultsFileError, match="line break inside a cell"):
+        ResultsFile(path, COLUMNS).open()

@@ -5,8 +5,8 @@ import math
 
 import pytest
 
-from wavefit.batch.spec import parse_limit
-from wavefit.batch.statistics import capability, quantity_statistics, summarize
+from wavefit.batch.spec import Limit, parse_limit
+from wavefit.batch.statistics import capability, quantity_statistics, summarize, usable
 
 
 def test_capability_indices_follow_the_handbook_definitions():
@@ -102,3 +102,14 @@ def test_text_summary_says_undefined_and_how_errors_count():
     text = render_summary(summarize(rows, spec.limits), spec, "0412")
     assert "yield: 75.0 % pass" in text and "the 1 error rows counted as not passed" in text
     assert text.splitlines()[-1].split()[-2:] == ["undefined", "undefined"]
+
+
+def test_the_plot_takes_the_values_the_statistics_take():
+    """One rule for both: no error rows, no value a part could not have (usable)."""
+    rows = [{"verdict": "pass", "L": 1e-4}, {"verdict": "error", "L": 1e-4}, {"verdict": "fail", "L": -1e-4},
+            {"verdict": "fail", "L": math.nan}, {"verdict": "pass", "L": None}, {"verdict": "fail", "R": -1.0}]
+    assert [usable(row, "L", True) for row in rows] == [1e-4, None, None, None, None, None]
+    assert usable(rows[2], "L", False) == -1e-4 and usable(rows[5], "R", False) == -1.0
+    limit = Limit("L", None, 2e-4, "H", "<= 200 uH")
+    plotted = [v for v in (usable(row, "L", True) for row in rows) if v is not None]
+    assert summarize(rows, {"L": limit}, ("L",)).quantities["L"].n == len(plotted)

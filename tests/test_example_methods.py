@@ -118,7 +118,8 @@ def test_curve_renders_in_text_json_csv_and_plot(tmp_path, capsys):
 
 @needs_ngspice
 @pytest.mark.ngspice
-def test_batch_takes_the_scalar_outputs_and_refuses_a_curve_only_method(tmp_path, capsys):
+def test_batch_takes_the_scalar_outputs_and_no_limit_on_a_curve_only_method(tmp_path, capsys):
+    """(Curves in batch: tests/test_batch_curves.py.)"""
     capture = tmp_path / "lot" / "rc1.csv"
     capture.parent.mkdir()
     rc_step().to_csv(capture, index=False)
@@ -133,7 +134,8 @@ def test_batch_takes_the_scalar_outputs_and_refuses_a_curve_only_method(tmp_path
                      "--workers", "1", str(capture.parent)]) == code
         captured = capsys.readouterr()
         if code:
-            assert "only curves" in captured.err and len(captured.err.strip().splitlines()) == 1
+            assert "reports only: curves, so give no limits" in captured.err
+            assert len(captured.err.strip().splitlines()) == 1
         else:
             row = pd.read_csv(out).iloc[0]
             assert {"R", "R_U", "tau", "tau_U"} <= set(row.index) and row["verdict"] == "pass"

@@ -16,7 +16,8 @@ import wavefit
 from wavefit.cli import main
 from wavefit.errors import SetupError
 from wavefit.io import read_capture
-from wavefit.measurement import bind
+from wavefit.measurement import CaptureCount, bind, capture_sources, takes_entries
+from wavefit.methods import get_method
 from wavefit.setup import load_setup
 
 SWEEP = Path(__file__).resolve().parents[1] / "sample_data" / "tank_sweep"
@@ -62,3 +63,49 @@ def test_batch_runs_a_several_capture_method_one_folder_per_part(tmp_path, capsy
     assert first["verdict"] != "error"
     second = rows.loc[str(tmp_path / "part2")]
     assert second["verdict"] == "error" and "ring_10n.csv" in second["message"]
+
+
+# -- how many captures a measurement is: the setup decides, the method's declaration checks ------
+
+def _sweep_setup(entries: int, **changes):
+    data = {"method": "lc-sweep", "columns": {"tank": "tank"}, "parts": {"parallel_load": "100 kohm"},
+            "captures": [{"file": f"c{k}.csv", "tank_capacitor": f"{k + 1} nF"} for k in range(entries)]}
+    data.update(changes)
+    return load_setup(data)
+
+
+def test_the_setup_decides_and_the_declaration_checks():
+    several = CaptureCount(minimum=2, maximum=3)
+    assert takes_entries(_sweep_setup(2), several)
+    assert not takes_entries(_sweep_setup(0), CaptureCount())
+    with pytest.raises(SetupError, match="takes its capture from the command line, not from"):
+        takes_entries(_sweep_setup(1), CaptureCount())
+    with pytest.raises(SetupError, match="takes two to three captures, the setup names 4"):
+        takes_entries(_sweep_setup(4), several)
+    with pytest.raises(SetupError, match=r"takes several captures \(at least two captures\); name each"):
+        takes_entries(_sweep_setup(0), CaptureCount(minimum=2, maximum=None))
+
+
+def test_sources_of_a_measurement():
+    setup = _sweep_setup(3)
+    count = get_method("lc-sweep").capture_count
+    sources, entries = capture_sources(None, setup, count)
+    assert sources == [entry.file for entry in setup.captures] and entries == setup.captures
+    sources, entries = capture_sources(("x.csv", "y.csv"), setup, count)  # not one per entry: unbound
+    assert sources == ["x.csv", "y.csv"] and entries is None
+    with pytest.raises(wavefit.AnalysisRefused) as err:
+        capture_sources(["a.csv"], setup, count)
+    assert "lc-sweep needs at least two captures with different tank capacitors" in str(err.value)
+    assert capture_sources("one.csv", load_setup({"method": "lc-ring"}), CaptureCount()) == (["one.csv"], None)
+    with pytest.raises(SetupError, match="needs a capture to analyse"):
+        capture_sources(None, load_setup({"method": "lc-ring"}), CaptureCount())
+
+
+def test_cli_refuses_a_sweep_without_entries_in_one_line(tmp_path, capsys):
+    setup = tmp_path / "s.toml"
+    setup.write_text('method = "lc-sweep"\n[columns]\ntank = "tank"\n[parts]\ntank_capacitor = "1 nF"\n')
+    capture = tmp_path / "c.csv"
+    shutil.copy(SWEEP / "ring_10n.csv", capture)
+    assert main(["analyze", str(capture), str(capture), "--setup", str(setup)]) == 3
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "takes several captures" in err

@@ -6,6 +6,7 @@ import pytest
 
 from wavefit.cli import main
 from wavefit.errors import SetupError
+from wavefit.measurement import CaptureCount
 from wavefit.methods import get_method
 from wavefit.methods.base import Method, PartSpec, parse_time_option
 from wavefit.setup import load_setup
@@ -22,7 +23,7 @@ class TwoChannel(Method):
 
 class FromSetupCaptures(TwoChannel):
     name = "from-setup"
-    uses_setup_captures = True
+    capture_count = CaptureCount(minimum=2, maximum=None)
 
 
 def _setup(**changes):

@@ -12,7 +12,7 @@ from .capture_checks import refuse_shared_columns, without_glitches
 from .errors import AnalysisRefused, CaptureError, SetupError
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
-from .measurement import bind
+from .measurement import bind, capture_sources
 from .methods import get_method
 from .montecarlo import DEFAULT_SEED, MEASUREMENT_DRAWS, propagate_measurement
 from .numerics import collected, numerical_failures_refused
@@ -35,11 +35,11 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     ``seed`` and reports its coverage intervals in ``result.monte_carlo`` beside the
     linear ones (:func:`with_monte_carlo`).
 
-    For methods that take several captures from the setup (``lc-sweep``),
+    When the setup names its captures in ``[[captures]]`` entries (``lc-sweep``),
     ``source`` may be ``None`` (the entries' files), a folder that holds a file of
     each entry's name (one part's captures, as ``batch`` gives them), or a sequence
     of sources that replaces the setup's files in order; each capture is bound to
-    its entry's parts (:mod:`wavefit.measurement`). Returns a frozen
+    its entry's parts (:func:`wavefit.measurement.capture_sources`). Returns a frozen
     :class:`~wavefit.results.AnalysisResult`; its ``to_dict()`` is what
     ``wavefit analyze --json`` prints.
     """
@@ -53,24 +53,8 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     method.check_setup(parsed)
     interval = sample_interval if sample_interval is not None else parsed.sample_interval
     time_col = parsed.columns.get("time")
-    entries = None
-    if method.uses_setup_captures:
-        if source is None:
-            if not parsed.captures:
-                raise SetupError(f"{parsed.source}: method {parsed.method!r} needs [[captures]] entries")
-            sources: Sequence[Any] = [entry.file for entry in parsed.captures]
-        elif isinstance(source, (str, os.PathLike)) and os.path.isdir(source):
-            sources = [os.path.join(source, entry.file.name) for entry in parsed.captures]
-        else:
-            sources = list(source) if isinstance(source, (list, tuple)) else [source]
-        if len(sources) == len(parsed.captures):  # the sources replace the entries' files, in order
-            entries = parsed.captures
-        captures = [load_capture(s, interval, time_col) for s in sources]
-    else:
-        if source is None:
-            raise SetupError(f"method {parsed.method!r} needs a capture to analyse")
-        sources = [source]
-        captures = [load_capture(source, interval, time_col)]
+    sources, entries = capture_sources(source, parsed, method.capture_count)
+    captures = [load_capture(s, interval, time_col) for s in sources]
     if parsed.column_files:
         captures, parsed = with_columns_from_files(captures, parsed, interval)
     refuse_shared_columns(captures, parsed.columns, parsed.source)

@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import sys
 from pathlib import Path
 from typing import Sequence
@@ -15,6 +14,7 @@ from typing import Sequence
 from . import __version__
 from .errors import WavefitError
 from .report.safe_text import visible
+from .report.stdout import discard_stdout
 
 EXIT_OK, EXIT_USAGE, EXIT_INPUT, EXIT_REFUSED, EXIT_OUTPUT = 0, 2, 3, 4, 5
 
@@ -96,8 +96,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 130
     except BrokenPipeError:
         # the reader of our output went away (e.g. `| head`): stop quietly, as Unix tools do
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
+        discard_stdout()
         return 141
     except OSError as exc:  # the output could not be written (a full disk, a closed terminal)
         print(f"wavefit: error: cannot write the output ({exc.strerror or exc})", file=sys.stderr)
@@ -106,6 +105,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _analyze(args: argparse.Namespace) -> int:
     from .analysis import analyze
+    from .measurement import takes_entries
     from .methods import get_method
     from .setup import load_setup
 
@@ -114,7 +114,7 @@ def _analyze(args: argparse.Namespace) -> int:
         return EXIT_USAGE
     setup = load_setup(args.setup)
     method = get_method(setup.method)
-    if method.uses_setup_captures:
+    if takes_entries(setup, method.capture_count):  # one measurement: the entries' captures
         jobs = [args.captures or None]
     elif not args.captures:
         print("wavefit: error: name at least one CAPTURE file to analyse", file=sys.stderr)

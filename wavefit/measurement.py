@@ -1,20 +1,55 @@
 """A measurement: the captures of one analysis, each bound to the parts and conditions it was
 recorded with.
 
-A single-capture method gets one :class:`BoundCapture` whose parts are the setup's
-``[parts]``. A method that takes several captures gets one per ``[[captures]]`` entry, each
-carrying the setup's parts with its entry's own values on top (its tank capacitor, its bias
-current, its frequency), so no method matches captures to entries by position.
+A method declares how many captures one measurement takes (:class:`CaptureCount`); the
+setup says which case applies: with ``[[captures]]`` entries one measurement is the
+entries' captures, each carrying the setup's parts with its entry's own values on top (its
+tank capacitor, its bias current, its frequency), so no method matches captures to entries
+by position; without entries it is one capture with the setup's ``[parts]``.
+:func:`takes_entries` checks the setup against the declaration and :func:`capture_sources`
+finds the sources, for the library, the command line and batch alike.
 """
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
-from typing import Mapping, Sequence
+from typing import Any, Mapping, Sequence
 
-from .errors import SetupError
+from .errors import AnalysisRefused, SetupError
 from .io.capture import Capture
 from .setup import CaptureEntry, Setup
 from .values import PartValue
+
+#: Counts written as words in messages ("at least two captures").
+_COUNT_WORDS = ("no", "one", "two", "three", "four", "five", "six", "seven", "eight", "nine", "ten")
+
+
+@dataclass(frozen=True)
+class CaptureCount:
+    """How many captures one measurement of a method takes: from ``minimum`` to ``maximum``
+    (``None``: no upper bound). ``reason`` completes the message of a measurement with too
+    few ("with different tank capacitors")."""
+
+    minimum: int = 1
+    maximum: int | None = 1
+    reason: str = ""
+
+    @property
+    def several(self) -> bool:
+        """Whether a measurement may be more than one capture (named in ``[[captures]]``)."""
+        return self.maximum is None or self.maximum > 1
+
+    def allows(self, count: int) -> bool:
+        return count >= self.minimum and (self.maximum is None or count <= self.maximum)
+
+    def describe(self) -> str:
+        """``"one capture"``, ``"at least two captures"``, ``"two to four captures"``."""
+        low = _count_word(self.minimum)
+        if self.maximum == self.minimum:
+            return f"{low} capture{'s' if self.minimum != 1 else ''}"
+        if self.maximum is None:
+            return f"at least {low} captures"
+        return f"{low} to {_count_word(self.maximum)} captures"
 
 
 @dataclass(frozen=True)
@@ -78,3 +113,77 @@ def bind(captures: Sequence[Capture], setup: Setup, entries: Sequence[CaptureEnt
     bound = tuple(BoundCapture(c, {**setup.parts, **(entries[k].parts if entries else {})})
                   for k, c in enumerate(captures))
     return Measurement(bound, dict(setup.parts))
+
+
+def takes_entries(setup: Setup, count: CaptureCount) -> bool:
+    """Whether one measurement is the setup's ``[[captures]]`` entries (else one capture given
+    apart from the setup), checked against what the method declares.
+
+    Raises
+    ------
+    SetupError
+        When the setup has entries and the method takes one capture, or has none and the
+        method needs several, or has more entries than the method takes.
+    """
+    if setup.captures:
+        if not count.several:
+            raise SetupError(f"{setup.source}: method {setup.method!r} takes its capture from the command line, "
+                             "not from [[captures]]; remove the [[captures]] entries")
+        if count.maximum is not None and len(setup.captures) > count.maximum:
+            raise SetupError(f"{setup.source}: method {setup.method!r} takes {count.describe()}, "
+                             f"the setup names {len(setup.captures)} in [[captures]]")
+        return True
+    if count.minimum > 1:
+        raise SetupError(f"{setup.source}: method {setup.method!r} takes several captures ({count.describe()}); "
+                         "name each with its own parts in a [[captures]] entry")
+    return False
+
+
+def capture_sources(source: Any, setup: Setup, count: CaptureCount
+                    ) -> tuple[list[Any], tuple[CaptureEntry, ...] | None]:
+    """The sources of one measurement and the entries they are bound to.
+
+    Parameters
+    ----------
+    source
+        Without ``[[captures]]`` entries: the one capture (path, DataFrame, Capture).
+        With entries: ``None`` (the entries' files), a folder holding a file of each
+        entry's name (one part's captures, as batch gives them), or a sequence of sources
+        that replaces the entries' files in order.
+    setup
+        The parsed setup.
+    count
+        What the method declares (:attr:`wavefit.methods.base.Method.capture_count`).
+
+    Returns
+    -------
+    tuple of (list, tuple of CaptureEntry or None)
+        The sources, and the entries in the same order, or ``None`` when the sources
+        are not the entries' (they then take the setup's parts only).
+
+    Raises
+    ------
+    SetupError
+        From :func:`takes_entries`, or when a single-capture method gets no capture.
+    AnalysisRefused
+        When the number of sources is not one the method takes.
+    """
+    if not takes_entries(setup, count):
+        if source is None:
+            raise SetupError(f"method {setup.method!r} needs a capture to analyse")
+        return [source], None
+    if source is None:
+        sources: list[Any] = [entry.file for entry in setup.captures]
+    elif isinstance(source, (str, os.PathLike)) and os.path.isdir(source):
+        sources = [os.path.join(source, entry.file.name) for entry in setup.captures]
+    else:
+        sources = list(source) if isinstance(source, (list, tuple)) else [source]
+    if not count.allows(len(sources)):
+        reason = f" {count.reason}" if count.reason else ""
+        raise AnalysisRefused(f"{setup.source}: {setup.method} needs {count.describe()}{reason}, "
+                              f"got {_count_word(len(sources))}")
+    return sources, (setup.captures if len(sources) == len(setup.captures) else None)
+
+
+def _count_word(count: int) -> str:
+    return _COUNT_WORDS[count] if count < len(_COUNT_WORDS) else str(count)

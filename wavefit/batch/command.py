@@ -1,7 +1,7 @@
 """``wavefit batch``: inspect a lot of captures against a spec, resumably.
 
 Exit codes: 0 every input has a row (``error`` rows included); 3 bad setup,
-spec, inputs, outputs or results file, or another run holds the results file,
+spec, inputs, outputs, results or curves file, or another run holds the results file,
 before anything is analysed; 5 an output could not be written (rows written so
 far are kept; run again to resume); 130 after Ctrl-C, 143 after SIGTERM (the
 same).
@@ -9,7 +9,6 @@ same).
 from __future__ import annotations
 
 import argparse
-import io
 import json
 import os
 import signal
@@ -20,16 +19,18 @@ from typing import TYPE_CHECKING, Any
 
 from ..errors import SetupError
 from ..report.safe_text import visible
+from ..report.stdout import discard_stdout
 from .inputs import capture_order, expand_inputs, expand_part_folders
 from .outputs import RunFiles
 from .rows import Analyse, RowMaker, analyse_file, sha256_file
 from .spec import Spec, load_spec
-from .statistics import LotSummary, possible, summarize
+from .statistics import LotSummary, summarize, usable
 from .stop import Interrupted, StopSignals
 from .write_errors import write_failed
 
 if TYPE_CHECKING:
     from ..methods.base import Method
+    from .curves_file import CurvesFile
     from .results_file import ResultsFile
 
 
@@ -80,6 +81,8 @@ class BatchOutcome:
     rows: list[dict[str, Any]]
     summary: LotSummary
     history: dict[str, Any] | None = field(default=None)
+    #: Each part's curves (:meth:`CurvesFile.by_part`), ``None`` for a method without curves.
+    curves: dict[str, dict[str, Any]] | None = field(default=None)
 
 
 def run(args: argparse.Namespace, analyse: Analyse = analyse_file) -> int:
@@ -115,35 +118,36 @@ class _Plan:
 def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     """Read and check the setup, spec, outputs and inputs; raise on anything unusable."""
     from .. import __version__
+    from ..measurement import takes_entries
     from ..methods import get_method
+    from ..outputs import curve_names
     from ..setup import load_setup
+    from .curves_file import curves_path
 
     setup = load_setup(args.setup)
     method = get_method(setup.method)
     method.check_setup(setup)
-    if method.uses_setup_captures and not setup.captures:
-        raise SetupError(f"{visible(setup.source)}: method {setup.method!r} takes several captures per part; "
-                         "name them in [[captures]] entries (each part's folder holds a file of each name)")
-    if not method.quantities:
-        raise SetupError(f"method {setup.method!r} reports no scalar quantity (only curves), so batch has "
-                         "nothing to judge against limits")
-    spec = load_spec(args.spec)
-    spec.check_quantities(method.quantities, method.name)
+    curves = curve_names(method.outputs)
+    spec = load_spec(args.spec, need_limits=bool(method.quantities))
+    spec.check_quantities(method.quantities, method.name, curves)
     own = RunFiles(Path(args.out), Path(args.db) if args.db else None, Path(args.plot) if args.plot else None,
-                   Path(args.setup), Path(args.spec))
+                   Path(args.setup), Path(args.spec), curves_path(args.out) if curves else None)
     own.check()
+    if args.plot and not spec.limits:
+        raise SetupError(f"{spec.source}: --plot draws the limited quantities, and the spec has no limits")
     if args.plot:
         from ..report.figure_file import check_figure_path
 
         check_figure_path(args.plot)
-    expand = expand_part_folders if method.uses_setup_captures else expand_inputs
+    expand = expand_part_folders if takes_entries(setup, method.capture_count) else expand_inputs
     paths = expand(args.inputs, skip=own.is_own)
     maker = RowMaker(setup, spec, tuple(method.quantities), sha256_file(args.setup), sha256_file(args.spec),
-                     __version__, analyse)
+                     __version__, analyse, with_curves=bool(curves))
     return _Plan(method, spec, own, paths, maker, args.lot or Path(args.out).stem)
 
 
 def _run(args: argparse.Namespace, analyse: Analyse, stop: StopSignals, progress: _Progress) -> int:
+    from .curves_file import CurvesFile
     from .results_file import ResultsFile, result_columns
     from .run_lock import RunLock
 
@@ -152,28 +156,37 @@ def _run(args: argparse.Namespace, analyse: Analyse, stop: StopSignals, progress
         with stop.deferred():
             results = ResultsFile(plan.own.results, result_columns(plan.method.quantities))
             results.open()
+        curves = CurvesFile(plan.own.curves) if plan.own.curves else None
         try:
             _check_same_setup_and_spec(results.rows, plan.maker, args.out)
             done = {row["file"]: row for row in results.rows}
+            if curves is not None:
+                with stop.deferred():
+                    curves.open_beside(done)
             todo = [p for p in plan.paths if p not in done]
             changed = tuple(p for p in plan.paths if p in done and _sha_changed(p, done[p]))
             for path in changed:
                 print(f"wavefit: warning: {visible(path)} changed since its row was written; the row is kept "
                       f"(remove it from {visible(args.out)} to analyse the file again)", file=sys.stderr)
-            history = _analyse(plan, todo, results, args.workers, stop, progress)
+            history = _analyse(plan, todo, results, curves, args.workers, stop, progress)
             rows = sorted(results.rows, key=lambda row: capture_order(row["file"]))
+            by_part = curves.by_part([row["file"] for row in rows]) if curves is not None else None
         finally:
             results.close()
+            if curves is not None:
+                curves.close()
         summary = summarize(rows, plan.spec.limits, plan.method.positive)
-        outcome = BatchOutcome(progress.written, len(plan.paths) - len(todo), changed, rows, summary, history)
+        outcome = BatchOutcome(progress.written, len(plan.paths) - len(todo), changed, rows, summary, history,
+                               by_part)
         _report(outcome, plan.spec, plan.lot, args, plan.method.positive)
     return 0
 
 
-def _analyse(plan: _Plan, todo: list[str], results: ResultsFile, workers: int, stop: StopSignals,
-             progress: _Progress) -> dict[str, Any] | None:
-    """Analyse ``todo``, each row to the results file and then the history database;
-    returns what was done to the database (``None`` without ``--db``)."""
+def _analyse(plan: _Plan, todo: list[str], results: ResultsFile, curves: CurvesFile | None, workers: int,
+             stop: StopSignals, progress: _Progress) -> dict[str, Any] | None:
+    """Analyse ``todo``, each part's curves to the curves file, then its row to the results file
+    and then the history database; returns what was done to the database (``None`` without
+    ``--db``)."""
     from .history_db import HistoryDB
     from .runner import run_rows
 
@@ -184,6 +197,9 @@ def _analyse(plan: _Plan, todo: list[str], results: ResultsFile, workers: int, s
                 db.catch_up(results.rows)
 
         def sink(row: dict[str, Any]) -> None:
+            part_curves = row.pop("curves", [])
+            if curves is not None:
+                curves.append_rows(part_curves)
             results.append(row)
             progress.written += 1
             if db is not None:
@@ -219,9 +235,8 @@ def _report(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespac
     if args.plot:
         from ..report.lot_plot import LotSeries, save_lot_plot
 
-        series = [LotSeries(name, limit.unit, [row.get(name) if row["verdict"] != "error"
-                                               and possible(row.get(name), name in positive) else None
-                                               for row in outcome.rows], limit.lower, limit.upper)
+        series = [LotSeries(name, limit.unit, [usable(row, name, name in positive) for row in outcome.rows],
+                            limit.lower, limit.upper)
                   for name, limit in spec.limits.items()]
         try:
             save_lot_plot(series, args.plot, title=f"lot {lot}")
@@ -233,13 +248,18 @@ def _report(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespac
                    "rows_resumed": outcome.resumed, "changed_since_analysed": list(outcome.changed),
                    "limits": {name: {"lower": lim.lower, "upper": lim.upper, "unit": lim.unit, "text": lim.text}
                               for name, lim in spec.limits.items()},
-                   "summary": outcome.summary.to_dict(), "history": outcome.history}
+                   "summary": outcome.summary.to_dict(), "history": outcome.history,
+                   "curves": outcome.curves}
         _emit(json.dumps(payload, indent=2, allow_nan=False), args.out)
         return
     from .summary_text import render_history, render_summary
 
     lines = [render_summary(outcome.summary, spec, lot),
              f"  {outcome.written} rows written, {outcome.resumed} found from earlier runs -> {visible(args.out)}"]
+    if outcome.curves is not None:
+        from .curves_file import curves_path
+
+        lines.append(f"  curves: {len(outcome.curves)} parts -> {visible(curves_path(args.out))}")
     if outcome.history is not None:
         lines.append(render_history(outcome.history))
     _emit("\n".join(lines), args.out)
@@ -254,19 +274,8 @@ def _emit(text: str, out: str) -> None:
     except BrokenPipeError:
         raise
     except OSError as exc:
-        _discard_stdout()
+        discard_stdout()
         raise write_failed("the summary to", "standard output", exc, f"{visible(out)} has every row") from None
-
-
-def _discard_stdout() -> None:
-    """Point standard output at the null device, so the interpreter's last flush of what could
-    not be written does not fail again at exit with a traceback-like message."""
-    try:
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
-        os.close(devnull)
-    except (OSError, ValueError, io.UnsupportedOperation):  # no file descriptor: nothing is flushed at exit
-        pass
 
 
 def available_cores() -> int:

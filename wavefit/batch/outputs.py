@@ -1,7 +1,8 @@
 """The files of a run itself, kept apart from each other and from the captures.
 
-A run reads its setup and spec files and writes the results CSV, its lock file,
-optionally the history database (with SQLite's journal files beside it) and a plot.
+A run reads its setup and spec files and writes the results CSV, its lock file, for a
+method with curves the curves CSV beside the results, optionally the history database
+(with SQLite's journal files beside it) and a plot.
 None of them is ever taken as a capture, even when it lies in an input folder or
 matches an input pattern or is named among the inputs (as a shell expands
 ``lot/*``), and no two of them may be the same file: the plot would overwrite the
@@ -31,19 +32,21 @@ class UnusableOutput(WavefitError):
 
 @dataclass(frozen=True)
 class RunFiles:
-    """The run's own files: the results CSV, the optional database and plot it writes, and the
-    setup and spec files it reads."""
+    """The run's own files: the results CSV, the curves CSV, database and plot it may write,
+    and the setup and spec files it reads."""
 
     results: Path
     db: Path | None = None
     plot: Path | None = None
     setup: Path | None = None
     spec: Path | None = None
+    curves: Path | None = None
 
     def outputs(self) -> list[tuple[str, Path]]:
         """(option, path) of each output the user named, and the lock file."""
         items = [("--out", self.results), ("lock file", lock_path(self.results))]
-        items += [(option, path) for option, path in (("--db", self.db), ("--plot", self.plot)) if path is not None]
+        items += [(option, path) for option, path in (("curves file", self.curves), ("--db", self.db),
+                                                      ("--plot", self.plot)) if path is not None]
         return items
 
     def files(self) -> list[Path]:

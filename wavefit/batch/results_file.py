@@ -1,4 +1,5 @@
-"""The results CSV of a lot: one row per capture, appended and synced as each finishes.
+"""The results CSV of a lot: one row per capture, appended and synced as each finishes; and
+the table it is made of (:class:`AppendedTable`), which the curves file shares.
 
 The file is valid CSV after every row: each row is written whole and ``fsync``-ed;
 a write that fails (disk full) is cut off again, so the file keeps its earlier rows
@@ -26,6 +27,7 @@ import errno
 import io
 import math
 import os
+import re
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
@@ -36,6 +38,8 @@ from .write_errors import write_failed
 
 LEAD_COLUMNS = ("file", "verdict", "message")
 TRACE_COLUMNS = ("tool_version", "capture_sha256", "setup_sha256", "spec_sha256", "analysed_at")
+
+_NEWLINE = re.compile(b"\n")
 
 
 class ResultsFileError(WavefitError):
@@ -76,27 +80,35 @@ def decode_number(cell: str) -> float | None:
     return value
 
 
-class ResultsFile:
-    """An open results file; use as a context manager, inside the run's lock.
+class AppendedTable:
+    """An open CSV table appended one record (or one part's records) at a time and synced;
+    use as a context manager, inside the run's lock.
 
     Parameters
     ----------
     path
         The CSV file; created with its header when missing or empty.
     columns
-        The header this run writes (:func:`result_columns`); an existing file
-        with another header is refused rather than mixed.
+        The header this run writes; an existing file with another header is refused
+        rather than mixed.
+    numeric
+        The columns that hold numbers.
     """
 
-    def __init__(self, path: str | os.PathLike[str], columns: Sequence[str]) -> None:
+    #: What the table is called in messages.
+    what = "table"
+
+    def __init__(self, path: str | os.PathLike[str], columns: Sequence[str], numeric: frozenset[str]) -> None:
         self.path = Path(path)
         self.columns = tuple(columns)
-        self._numeric = numeric_columns(self.columns)
+        self._numeric = numeric
         self._fd: int | None = None
         self.rows: list[dict[str, Any]] = []
+        #: The byte offset where each row's line ends, in the order of ``rows``.
+        self.line_ends: list[int] = []
         self.dropped_partial_line = False
 
-    def __enter__(self) -> "ResultsFile":
+    def __enter__(self) -> "AppendedTable":
         self.open()
         return self
 
@@ -108,7 +120,7 @@ class ResultsFile:
         try:
             fd = os.open(self.path, os.O_RDWR | os.O_CREAT | os.O_APPEND, 0o644)
         except OSError as exc:
-            raise write_failed("results file", self.path, exc) from None
+            raise write_failed(self.what, self.path, exc) from None
         self._fd = fd
         try:
             self.rows = self._resume(fd)
@@ -119,9 +131,19 @@ class ResultsFile:
 
     def append(self, row: Mapping[str, Any]) -> None:
         """Write one row (missing columns empty) and sync it to disk."""
-        cells = [encode_cell(row.get(c)) for c in self.columns]
-        self._write_line(cells)
-        self.rows.append(self.decode(cells))
+        self.append_rows([row])
+
+    def append_rows(self, rows: Sequence[Mapping[str, Any]]) -> None:
+        """Write ``rows`` whole or not at all (a failed write is cut off again) and sync them."""
+        if not rows:
+            return
+        records = [[encode_cell(row.get(c)) for c in self.columns] for row in rows]
+        lines = [_csv_line(cells) for cells in records]
+        end = self._write(b"".join(lines)) - sum(map(len, lines))
+        for cells, line in zip(records, lines):
+            end += len(line)
+            self.rows.append(self.decode(cells))
+            self.line_ends.append(end)
 
     def close(self) -> None:
         if self._fd is not None:
@@ -135,6 +157,19 @@ class ResultsFile:
             row[column] = decode_number(cell) if column in self._numeric else from_spreadsheet_cell(cell)
         return row
 
+    def truncate_rows(self, keep: int) -> None:
+        """Cut the file after its first ``keep`` rows."""
+        assert self._fd is not None
+        end = self.line_ends[keep - 1] if keep else len(_csv_line(self.columns))
+        try:
+            os.ftruncate(self._fd, end)
+        except OSError as exc:
+            raise write_failed(self.what, self.path, exc) from None
+        del self.rows[keep:], self.line_ends[keep:]
+
+    def _check(self, row: Mapping[str, Any], number: int) -> None:
+        """Refuse a row that this tool could not have written (line ``number``); none by default."""
+
     def _resume(self, fd: int) -> list[dict[str, Any]]:
         """Rows of an existing file; the file is changed only once it is known to be ours."""
         os.lseek(fd, 0, os.SEEK_SET)
@@ -143,20 +178,25 @@ class ResultsFile:
             chunks.append(chunk)
         data = b"".join(chunks)
         if not data or (b"\n" not in data and _csv_line(self.columns).startswith(data)):
-            self._write_line(self.columns, start=0)  # new, or a header cut short by a kill
+            self._write(_csv_line(self.columns), start=0)  # new, or a header cut short by a kill
             return []
         keep = data.rfind(b"\n") + 1
         try:
             text = data[:keep].decode("utf-8")
         except UnicodeDecodeError:
-            raise ResultsFileError(f"results file {visible(self.path)} is not UTF-8 text; is it a results file? "
+            raise ResultsFileError(f"{self.what} {visible(self.path)} is not UTF-8 text; is it a {self.what}? "
                                    "use another --out") from None
         rows = self._parse(text)
+        ends = [match.end() for match in _NEWLINE.finditer(data, 0, keep)]
+        if len(ends) != len(rows) + 1:
+            raise ResultsFileError(f"{self.what} {visible(self.path)} has a line break inside a cell, which this "
+                                   "tool never writes; use another --out")
+        self.line_ends = ends[1:]
         if keep < len(data):
             try:
                 os.ftruncate(fd, keep)  # the partial last line of a killed run
             except OSError as exc:
-                raise write_failed("results file", self.path, exc) from None
+                raise write_failed(self.what, self.path, exc) from None
             self.dropped_partial_line = True
         return rows
 
@@ -165,38 +205,35 @@ class ResultsFile:
         header = tuple(records[0]) if records else ()
         if header != self.columns:
             raise ResultsFileError(
-                f"results file {visible(self.path)} has columns {visible(', '.join(header))}, but this run writes "
+                f"{self.what} {visible(self.path)} has columns {visible(', '.join(header))}, but this run writes "
                 f"{', '.join(self.columns)} (another method or version); use another --out")
         rows = []
         for number, cells in enumerate(records[1:], start=2):
             if len(cells) != len(self.columns):
-                raise ResultsFileError(f"results file {visible(self.path)}: line {number} has {len(cells)} "
+                raise ResultsFileError(f"{self.what} {visible(self.path)}: line {number} has {len(cells)} "
                                        f"cells, expected {len(self.columns)}; repair or remove that line")
             try:
                 row = self.decode(cells)
             except ValueError:
-                raise ResultsFileError(f"results file {visible(self.path)}: line {number} has a number that "
+                raise ResultsFileError(f"{self.what} {visible(self.path)}: line {number} has a number that "
                                        "cannot be read; repair or remove that line") from None
-            if row["verdict"] not in VERDICTS:
-                raise ResultsFileError(f"results file {visible(self.path)}: line {number} has the verdict "
-                                       f"'{visible(row['verdict'])}', not one of {', '.join(VERDICTS)}; "
-                                       "repair or remove that line")
+            self._check(row, number)
             rows.append(row)
         return rows
 
-    def _write_line(self, cells: Sequence[str], start: int | None = None) -> None:
-        """Append one line and sync it; on failure cut the file back to where the line began.
+    def _write(self, data: bytes, start: int | None = None) -> int:
+        """Append ``data`` and sync it; on failure cut the file back to where it began. Returns
+        the file's new length.
 
         ``start`` first cuts the file to that length (0 for a new header).
         """
         assert self._fd is not None
-        data = _csv_line(cells)
         try:
             if start is not None:
                 os.ftruncate(self._fd, start)
             before = os.fstat(self._fd).st_size
         except OSError as exc:
-            raise write_failed("results file", self.path, exc) from None
+            raise write_failed(self.what, self.path, exc) from None
         try:
             view = memoryview(data)
             while view:
@@ -209,7 +246,28 @@ class ResultsFile:
             with contextlib.suppress(OSError):  # else the next run cuts off the partial line
                 os.ftruncate(self._fd, before)
             kept = "its earlier rows are kept" if before else "no capture was analysed"
-            raise write_failed("results file", self.path, exc, kept) from None
+            raise write_failed(self.what, self.path, exc, kept) from None
+        return before + len(data)
+
+
+class ResultsFile(AppendedTable):
+    """The results file of a lot (:func:`result_columns`): one row per capture, each with a
+    verdict this tool writes."""
+
+    what = "results file"
+
+    def __init__(self, path: str | os.PathLike[str], columns: Sequence[str]) -> None:
+        super().__init__(path, columns, numeric_columns(columns))
+
+    def __enter__(self) -> "ResultsFile":
+        self.open()
+        return self
+
+    def _check(self, row: Mapping[str, Any], number: int) -> None:
+        if row["verdict"] not in VERDICTS:
+            raise ResultsFileError(f"{self.what} {visible(self.path)}: line {number} has the verdict "
+                                   f"'{visible(row['verdict'])}', not one of {', '.join(VERDICTS)}; "
+                                   "repair or remove that line")
 
 
 def _csv_line(cells: Sequence[str]) -> bytes:

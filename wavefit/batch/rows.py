@@ -17,6 +17,7 @@ from typing import Any, Callable
 from ..errors import WavefitError
 from ..results import AnalysisResult
 from ..setup import Setup
+from .curves_file import curve_rows
 from .decision import ERROR, decide_part, limit_by_model
 from .inputs import capture_files
 from .spec import Spec
@@ -48,7 +49,11 @@ def analyse_file(path: str, setup: Setup) -> AnalysisResult:
 
 @dataclass(frozen=True)
 class RowMaker:
-    """Turns a capture path into its results row; picklable, sent once to each worker."""
+    """Turns a capture path into its results row; picklable, sent once to each worker.
+
+    When the method has curves (``with_curves``), the row carries the part's rows of the
+    curves file under ``"curves"`` (:func:`~wavefit.batch.curves_file.curve_rows`).
+    """
 
     setup: Setup
     spec: Spec
@@ -57,6 +62,7 @@ class RowMaker:
     spec_sha256: str
     tool_version: str
     analyse: Analyse = analyse_file
+    with_curves: bool = False
 
     def __call__(self, path: str) -> dict[str, Any]:
         row = self._traceability(path)
@@ -75,6 +81,8 @@ class RowMaker:
                 notes.append(model_reason)
             notes += result.warnings
             row.update(verdict=verdict, message="; ".join(notes))
+            if self.with_curves:
+                row["curves"] = curve_rows(path, result)
         except WavefitError as exc:
             row.update(verdict=ERROR, message=_one_line(str(exc)))
         except OSError as exc:

@@ -64,26 +64,31 @@ class Spec:
     guard_factor: float
     source: str = "<dict>"
 
-    def check_quantities(self, available: tuple[str, ...], method: str) -> None:
-        """Raise a SetupError when a limit names a quantity the method does not report."""
+    def check_quantities(self, available: tuple[str, ...], method: str, curves: tuple[str, ...] = ()) -> None:
+        """Raise a SetupError when a limit names a quantity the method does not report, or one of
+        its ``curves`` (limits apply to scalar quantities only)."""
         for name in self.limits:
+            if name in curves:
+                raise SetupError(f"{self.source}: limit for {name!r}, a curve of method {method!r}; limits apply to "
+                                 f"its scalar quantities only: {', '.join(available) or 'none, so give no limits'}")
             if name not in available:
                 raise SetupError(f"{self.source}: limit for {name!r}, but method {method!r} reports "
-                                 f"only: {', '.join(available) or 'nothing'}")
+                                 f"only: {', '.join(available) or 'curves, so give no limits'}")
 
 
-def load_spec(path: str | os.PathLike[str]) -> Spec:
+def load_spec(path: str | os.PathLike[str], *, need_limits: bool = True) -> Spec:
     """Read a spec from a TOML file."""
     path = Path(path)
     data = read_toml(path, "spec")
-    return parse_spec(data, source=visible(path))
+    return parse_spec(data, source=visible(path), need_limits=need_limits)
 
 
-def parse_spec(data: Mapping[str, Any], *, source: str = "<dict>") -> Spec:
-    """Check and convert the raw mapping of a spec file."""
+def parse_spec(data: Mapping[str, Any], *, source: str = "<dict>", need_limits: bool = True) -> Spec:
+    """Check and convert the raw mapping of a spec file. ``need_limits`` False takes a spec
+    without limits (for a method that reports only curves, which no limit applies to)."""
     _reject_unknown(data, TOP_LEVEL_KEYS, "spec key", source)
     limits_table = _table(data, "limits", source)
-    if not limits_table:
+    if not limits_table and need_limits:
         raise SetupError(f"{source}: [limits] is empty; write e.g. L = \"47 uH ±5%\"")
     limits = {name: parse_limit(name, text, source) for name, text in limits_table.items()}
     decision = _table(data, "decision", source)

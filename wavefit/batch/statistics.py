@@ -110,6 +110,13 @@ def possible(value: Any, positive: bool) -> bool:
     return value > 0 or not positive
 
 
+def usable(row: Mapping[str, Any], name: str, positive: bool) -> float | None:
+    """The row's value of ``name`` when it enters the statistics (the row is no ``error`` and
+    a part could have the value, :func:`possible`), else ``None``; the lot plot draws the same."""
+    value = row.get(name)
+    return value if row["verdict"] != ERROR and possible(value, positive) else None
+
+
 def quantity_statistics(name: str, values: Sequence[float | None], limit: Limit,
                         positive: bool = False) -> QuantityStatistics:
     """Mean, sample standard deviation (n − 1), min, max, Cp and Cpk of ``values``.

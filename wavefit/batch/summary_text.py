@@ -32,6 +32,9 @@ def render_summary(summary: LotSummary, spec: Spec, lot: str) -> str:
             f"of all {summary.total}"
         lines.append(f"  yield: {100 * summary.yield_:.1f} % pass"
                      f" ({100 * (summary.yield_with_conditional or 0):.1f} % with conditional passes), {basis}")
+    if not spec.limits:
+        lines.append("  no limits (the method reports only curves): a pass says only that the part was measured")
+        return "\n".join(lines)
     header = ("quantity", "limits", "n", "mean", "std dev", "min", "max", "Cp", "Cpk")
     table = [header]
     for name, stats in summary.quantities.items():

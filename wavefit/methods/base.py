@@ -17,7 +17,7 @@ from typing import Any, ClassVar, Mapping
 from ..curve_propagation import propagate_curves
 from ..errors import AnalysisRefused, SetupError
 from ..io.capture import Capture, Channel
-from ..measurement import Measurement
+from ..measurement import CaptureCount, Measurement, takes_entries
 from ..outputs import Curve, Output, scalar_names
 from ..results import AnalysisResult
 from ..setup import GAIN_KEY_PREFIX, INSTRUMENT_KEYS, Setup, check_names, parse_time_option
@@ -58,10 +58,10 @@ class Method:
     positive: ClassVar[tuple[str, ...]] = ()
     #: What to check when a result is refused as not physical (named in the message).
     unphysical_hint: ClassVar[str] = ""
-    #: True when one measurement is several captures, each named with its own parts in a
-    #: ``[[captures]]`` entry of the setup; each capture is bound to its entry
+    #: How many captures one measurement takes. A method that takes several gets them from
+    #: the setup's ``[[captures]]`` entries, each capture bound to its entry's parts
     #: (:func:`wavefit.measurement.bind`), never matched by position.
-    uses_setup_captures: ClassVar[bool] = False
+    capture_count: ClassVar[CaptureCount] = CaptureCount(minimum=1, maximum=1)
 
     @property
     def quantities(self) -> tuple[str, ...]:
@@ -72,7 +72,7 @@ class Method:
     def check_setup(self, setup: Setup) -> None:
         """Reject unknown roles, parts, options, instrument keys and captures; require the
         required ones."""
-        if setup.column_files and self.uses_setup_captures:
+        if setup.column_files and (setup.captures or self.capture_count.minimum > 1):
             raise SetupError(f"{setup.source}: method {self.name!r} takes several captures, so a column cannot "
                              "come from one other file; give each capture's columns in its own file")
         check_names(setup.columns, ("time", *self.roles), "role in [columns]", setup.source)
@@ -99,9 +99,7 @@ class Method:
                                  f"(method {self.name!r} has no role {role!r}); valid: {', '.join(valid)}")
 
     def _check_captures(self, setup: Setup) -> None:
-        if setup.captures and not self.uses_setup_captures:
-            raise SetupError(f"{setup.source}: method {self.name!r} takes its capture from the command line, "
-                             "not from [[captures]]; remove the [[captures]] entries")
+        takes_entries(setup, self.capture_count)
         for index, entry in enumerate(setup.captures):
             check_names(entry.parts, ("file", *self.parts), f"key in [[captures]] entry {index + 1}",
                         setup.source)

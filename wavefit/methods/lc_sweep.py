@@ -24,7 +24,7 @@ from uncertainties import ufloat
 
 from ..errors import AnalysisRefused
 from ..fit.line_eiv import york_line
-from ..measurement import Measurement
+from ..measurement import CaptureCount, Measurement
 from ..outputs import Scalar
 from ..results import LinePlot
 from ..setup import Setup
@@ -130,16 +130,14 @@ class LcSweep(Method):
     outputs = {"L": Scalar("H"), "C": Scalar("F"), "srf": Scalar("Hz")}
     positive = ("L",)
     unphysical_hint = "check each capture's tank_capacitor and that every capture holds a free ring"
-    uses_setup_captures = True
+    capture_count = CaptureCount(minimum=2, maximum=None, reason="with different tank capacitors (three or more "
+                                 "to check that they lie on a line)")
 
     def check_setup(self, setup: Setup) -> None:
         super().check_setup(setup)
         check_time_options(self, setup)
 
     def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
-        if len(measurement.captures) < 2:
-            raise AnalysisRefused(f"{setup.source}: lc-sweep needs at least two captures with different "
-                                  "tank capacitors (three or more to check that they lie on a line)")
         coil_loss = coil_loss_option(self, setup)
         warnings, per_capture, rings = [], [], []
         for bound in measurement.captures:

@@ -22,7 +22,9 @@ MAX_BINS = 100
 
 @dataclass(frozen=True)
 class LotSeries:
-    """One quantity over a lot, in capture order (``None`` for captures without a value)."""
+    """One quantity over a lot, in capture order: ``None`` for a capture without a value the
+    lot statistics use (:func:`wavefit.batch.statistics.usable`), so plot and statistics show
+    the same values."""
 
     name: str
     unit: str
@@ -52,8 +54,8 @@ def _draw(plt, series: Sequence[LotSeries], path: str | os.PathLike[str], title:
     fig, axes = plt.subplots(rows, 2, figsize=(10, 3.2 * rows), squeeze=False,
                              gridspec_kw={"width_ratios": [1, 2]})
     for (hist_ax, run_ax), item in zip(axes, series):
-        index = [i + 1 for i, v in enumerate(item.values) if v is not None and math.isfinite(v)]
-        values = [v for v in item.values if v is not None and math.isfinite(v)]
+        index = [i + 1 for i, v in enumerate(item.values) if v is not None]
+        values = [v for v in item.values if v is not None]
         symbol = "Ω" if item.unit == "ohm" else visible(item.unit)
         formatter = EngFormatter(unit=symbol, places=None)
         if values:
