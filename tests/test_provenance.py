@@ -103,3 +103,31 @@ def test_sweep_provenance_hashes_every_capture_of_the_setup(tmp_path):
     assert prov["setup_file"]["sha256"] == _sha256(folder / "sweep.toml")
     assert dataclasses.replace(load_setup(folder / "sweep.toml"), source="<dict>") == parse_setup(
         prov["setup"], source="<dict>", base_dir=folder)
+
+
+def test_a_capture_changed_after_reading_is_told(tmp_path, monkeypatch):
+    """The sha256 is taken after the load; a file rewritten in between is flagged in the
+    record and warned in the result, never passed off as the bytes analysed."""
+    capture_file = tmp_path / "choke_step.csv"
+    shutil.copy(SAMPLES / "choke_step.csv", capture_file)
+    capture = read_capture(capture_file)
+    assert capture_record(capture_file, capture)["changed_since_read"] is False
+    with open(capture_file, "a") as handle:
+        handle.write("\n")
+    assert capture_record(capture_file, capture)["changed_since_read"] is True
+
+    import wavefit.analysis as front_door
+
+    shutil.copy(SAMPLES / "choke_step.csv", capture_file)
+    analysed = front_door.without_glitches
+
+    def rewritten_meanwhile(loaded):
+        with open(capture_file, "a") as handle:
+            handle.write("\n")
+        return analysed(loaded)
+
+    monkeypatch.setattr(front_door, "without_glitches", rewritten_meanwhile)
+    result = wavefit.analyze(capture_file, SAMPLES / "choke_step.toml")
+    assert result.provenance["captures"][0]["changed_since_read"] is True
+    assert any("changed after it was read" in w for w in result.warnings)
+    assert result.provenance["captures"][0]["sha256"] == _sha256(capture_file)

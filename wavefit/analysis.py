@@ -16,7 +16,7 @@ from .measurement import bind, capture_sources
 from .methods import get_method
 from .montecarlo import DEFAULT_SEED, MEASUREMENT_DRAWS, propagate_measurement
 from .numerics import collected, numerical_failures_refused
-from .provenance import provenance
+from .provenance import changed_files, provenance
 from .results import AnalysisResult
 from .setup import RelativeFigure, Setup, load_setup
 
@@ -67,7 +67,8 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         result = replace(result, warnings=(*result.warnings, remark))
     if uncertainty == "montecarlo":
         result = with_monte_carlo(result, draws, seed)
-    result = replace(result, provenance=provenance(as_parsed, sources, captures))
+    record = provenance(as_parsed, sources, captures)
+    result = replace(result, provenance=record, warnings=(*result.warnings, *changed_files(record)))
     return with_capture_remarks(result, captures)
 
 

@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Any, Sequence
 
 from .io.capture import Capture
+from .io.reader import file_state
 from .setup import RelativeFigure, Setup
 
 #: Bytes read at a time when hashing a file (memory stays flat on long records).
@@ -75,19 +76,39 @@ def _figure_text(figure: RelativeFigure) -> str | int:
 
 def capture_record(source: Any, capture: Capture) -> dict[str, Any]:
     """What identifies one capture: its file and sha256 (None when it was not read from a
-    file), its shape, the preamble metadata, and the entries of it that name the part."""
+    file), whether the file changed after the reader opened it, its shape, the preamble
+    metadata, and the entries of it that name the part.
+
+    The sha256 is taken in a pass of its own after the load (the reader reads the table in
+    several passes and seeks, so it cannot hash as it goes; the pass costs about 40 ms for
+    a 48 MB file, measured). ``changed_since_read`` is True when the file's size or
+    modification time then differs from what the reader saw (``Capture.file_state``): the
+    hash is then of other bytes than the ones analysed.
+    """
     path = Path(source) if isinstance(source, (str, os.PathLike)) else None
     metadata = dict(capture.metadata)
+    changed = None
+    if path is not None and capture.file_state is not None:
+        changed = file_state(path) != capture.file_state
     return {
         "source": capture.source,
         "file": str(path.absolute()) if path is not None else None,
         "sha256": file_sha256(path) if path is not None else None,
+        "changed_since_read": changed,
         "rows": capture.rows,
         "sample_interval_s": capture.sample_interval,
         "time_column": capture.time_column,
         "metadata": metadata,
         "identifiers": {key: value for key, value in metadata.items() if _identifies(key, value)},
     }
+
+
+def changed_files(record: dict[str, Any]) -> list[str]:
+    """The captures of a provenance ``record`` whose file changed after it was read, as a
+    warning each."""
+    return [f"{entry['file']} changed after it was read (size or modification time differ): the "
+            "recorded sha256 is of the file as it is now, not of the bytes analysed; analyse it again"
+            for entry in record["captures"] if entry["changed_since_read"]]
 
 
 def _identifies(key: str, value: str) -> bool:

@@ -42,6 +42,9 @@ class Capture:
     the file's axis is exact to its printing. ``notes`` say how the reader
     read something it had to infer; ``warnings`` what may be wrong. The reader
     returns read-only arrays (``time`` and every ``Channel.values``).
+    ``file_state`` is the file's size in bytes and modification time in
+    nanoseconds when the reader opened it (None for a capture not read from a
+    file), so that a later look at the file can tell whether it changed.
     """
 
     time: np.ndarray
@@ -54,6 +57,7 @@ class Capture:
     notes: tuple[str, ...] = ()
     time_position: int | None = None
     interval_uncertainty: float = 0.0
+    file_state: tuple[int, int] | None = None
 
     @property
     def rows(self) -> int:

@@ -67,6 +67,7 @@ def read_capture(
 def _read(path: str | os.PathLike[str], sample_interval: float | None, time_column: str | int | None) -> Capture:
     """:func:`read_capture` without the marking of its errors."""
     source = open_source(path)
+    state = file_state(source.path)
     raw, complete = source.read_head(SNIFF_BYTES, SNIFF_LINES)
     head = decode_head(raw, complete=complete, source=source.name)
     layout = sniff_layout(head.text, complete=complete, source=source.name, max_lines=SNIFF_LINES)
@@ -90,7 +91,14 @@ def _read(path: str | os.PathLike[str], sample_interval: float | None, time_colu
         clock_columns=frozenset(body.clock_resolution),
         printing=_printing(layout, body),
     )
-    return assemble(table, sample_interval=sample_interval, time_column=time_column)
+    capture = assemble(table, sample_interval=sample_interval, time_column=time_column)
+    return replace(capture, file_state=state)
+
+
+def file_state(path: str | os.PathLike[str]) -> tuple[int, int]:
+    """The file's size in bytes and modification time in nanoseconds (``Capture.file_state``)."""
+    status = os.stat(path)
+    return status.st_size, status.st_mtime_ns
 
 
 def _printing(layout: Layout, body: Body) -> dict[int, Printing]:
