@@ -83,6 +83,13 @@ class StepFitSummary(FitSummary):
         The same for the falling edges, s.
     birge_ratio
         Birge ratio of the edges' combination; absent when it has no degrees of freedom.
+    drive_period_s
+        The drive's period to which the switching instants were fitted
+        (:func:`wavefit.signal.edge_lattice.periodic_instants`), s; absent when the instants
+        were not fitted to a period.
+    placement_variance_factor
+        The factor by which tau's variance was enlarged because the edges were placed from the
+        sense trace in correlated noise; absent when it was not enlarged.
     estimator
         The estimator of tau and the levels (:mod:`wavefit.methods._rl_estimators`).
     model_check
@@ -106,5 +113,7 @@ class StepFitSummary(FitSummary):
     tau_falling: float | None = optional_entry()
     tau_falling_standard_error: float | None = optional_entry()
     birge_ratio: float | None = optional_entry()
+    drive_period_s: float | None = optional_entry()
+    placement_variance_factor: float | None = optional_entry()
     estimator: str
     model_check: ModelCheck

@@ -139,6 +139,7 @@ class RLStep(Method):
         # residuals hold the quantisation error, which is correlated even when the noise is not
         white = noise == "white" or (drive is None and (_on_codes(fits)
                                                          or fit_ar([f.residuals for f in fits]).order == 0))
+        period = placement = None
         if self.option(setup, "skip") == "auto":
             windows, fits, late, period = settle_starts(t, sense, drive, windows, fits, baseline, noise,
                                                  capture.source, self._fit_window,
@@ -173,6 +174,7 @@ class RLStep(Method):
             jitter = float(np.median(jitters))
             factor = placement_factor(t, windows, fits, jitters)
             if factor > 1.0:
+                placement = factor
                 combined = combined.with_tau_variance_scaled(factor)
                 notes.append(f"edges placed from the sense trace to about {jitter:.1f} samples in correlated "
                              f"noise: tau's variance enlarged {factor:.2f}-fold, to that of windows starting "
@@ -194,7 +196,8 @@ class RLStep(Method):
             notes.append("source_resistance is not used: the drive channel measures the generator")
         if drive is None:
             notes.append("R is the dut_resistance part as given (no drive channel to measure it)")
-        fit_info = _fit_summary(windows, fits, combined, baseline, dt, notes, estimator, check)
+        fit_info = _fit_summary(windows, fits, combined, baseline, dt, notes, estimator, check,
+                                drive_period=period, placement_factor=placement)
         block = FittedBlock(tuple(combined.names), combined.values, combined.covariance, tuple(combined.units),
                             combined.dof)
         return Estimate((block,), fit_info, check.budget_inputs(),
@@ -374,9 +377,11 @@ def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
                                          late.z, {"full_windows": late.full}),))
 
 
-def _fit_summary(windows, fits, combined, baseline, dt, notes, estimator: str, check: ModelCheck
-                 ) -> StepFitSummary:
-    """The fit summary of the windows' ``fits`` and their combination ``combined``."""
+def _fit_summary(windows, fits, combined, baseline, dt, notes, estimator: str, check: ModelCheck, *,
+                 drive_period: float | None, placement_factor: float | None) -> StepFitSummary:
+    """The fit summary of the windows' ``fits`` and their combination ``combined``; the drive's
+    fitted period and the factor on tau's variance for edges placed from the sense trace when
+    the fit had them."""
     edges = tuple(EdgeFit("rising" if w.edge.direction > 0 else "falling", w.t0, f.t_ref, f.n_samples,
                           f["tau"], f.stderr("tau"), f.noise_model, f.diagnostics.get("ljung_box_p"))
                   for w, f in zip(windows, fits))
@@ -400,6 +405,8 @@ def _fit_summary(windows, fits, combined, baseline, dt, notes, estimator: str, c
         tau_rising=rising[0], tau_rising_standard_error=rising[1],
         tau_falling=falling[0], tau_falling_standard_error=falling[1],
         birge_ratio=combined.birge[0] if combined.birge is not None else None,
+        drive_period_s=drive_period,
+        placement_variance_factor=placement_factor,
         estimator=estimator,
         model_check=check)
 
