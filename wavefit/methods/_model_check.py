@@ -100,6 +100,11 @@ class ModelCheck:
         return not any(v.significant for v in self.variations)
 
     @property
+    def threshold_z(self) -> float:
+        """The z beyond which a variation is significant (:data:`MODEL_Z`)."""
+        return MODEL_Z
+
+    @property
     def inputs(self) -> tuple[Variation, ...]:
         """The variations that enter the budget."""
         return tuple(v for v in self.variations if v.significant)
@@ -120,7 +125,7 @@ class ModelCheck:
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON object ``fit.model_check`` (``docs/json-output.md``)."""
-        out: dict[str, Any] = {"adequate": self.adequate, "varied": self.varied, "threshold_z": MODEL_Z}
+        out: dict[str, Any] = {"adequate": self.adequate, "varied": self.varied, "threshold_z": self.threshold_z}
         if self.skipped is not None:
             out["skipped"] = self.skipped
         out["parameters"] = {v.parameter: v.to_dict() for v in self.variations}
@@ -133,7 +138,7 @@ class ModelCheck:
         moves = "; ".join(f"{v.parameter} moves by {_relative(v)} (z = {v.z:.1f}, input {v.input_name!r})"
                           for v in self.inputs)
         return (f"the {model} does not describe the waveform: when the fit window changes ({self.varied}), "
-                f"{moves}, beyond the threshold z = {MODEL_Z:g}; that spread is in the budget as a rectangular "
+                f"{moves}, beyond the threshold z = {self.threshold_z:g}; that spread is in the budget as a rectangular "
                 f"type B input, so the uncertainty is the model's, not the fit's ({cause})")
 
 

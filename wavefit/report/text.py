@@ -4,7 +4,6 @@ from __future__ import annotations
 import math
 
 from ..fit_summary import ChecksModel, shown_details
-from ..methods._model_check import MODEL_Z
 from ..results import AnalysisResult
 from ..values import eng, eng_pm
 from .curve_text import curve_lines
@@ -67,7 +66,7 @@ def _model_check_lines(result: AnalysisResult) -> list[str]:
     if check is None:
         return lines
     for v in check.inputs:
-        lines.append(f"  {v.parameter}: z = {v.z:.1f} (threshold {MODEL_Z:g}), "
+        lines.append(f"  {v.parameter}: z = {v.z:.1f} (threshold {check.threshold_z:g}), "
                      f"spread ±{v.half_width:.4g} about {v.reported:.6g} -> input {v.input_name!r}")
     for source in check.inadequate_captures:
         lines.append(f"  ring {source}: its model check failed (see its warnings)")
