@@ -67,6 +67,7 @@ def test_setup_with_captures_and_every_table_round_trips(tmp_path):
         "parts": {"sense_resistor": "10 ohm ±0.1%", "dut_resistance": 0.25, "source_resistance": "50 ohm ±1% k=2"},
         "instrument": {"timebase": 0, "vertical_gain": "exact", "vertical_gain_sense": "±1%"},
         "options": {"skip": "30 ns", "noise": "white"},
+        "calibration": {"channels": str(tmp_path / "channels.toml"), "max_age_days": 30},
     }))
 
 

@@ -206,3 +206,25 @@ def test_bad_column_tables(entry, phrase):
 def test_time_cannot_come_from_another_file():
     with pytest.raises(SetupError, match="time comes from the capture itself"):
         load_setup({**RL_STEP, "columns": {"time": {"file": "t.csv", "column": 0}}})
+
+
+def test_calibration_files_are_beside_the_setup(tmp_path):
+    path = tmp_path / "setup.toml"
+    path.write_text(GOOD + '[calibration]\nchannels = "cal/channels.toml"\nmax_age_days = 30\n', encoding="utf-8")
+    setup = load_setup(path)
+    assert setup.calibration.channels == (tmp_path / "cal" / "channels.toml").absolute()
+    assert setup.calibration.reference is None and setup.calibration.max_age_days == 30.0
+    assert load_setup({"method": "rl-step"}).calibration.channels is None
+
+
+@pytest.mark.parametrize("table, phrase", [
+    ({"channel": "c.toml"}, "unknown [calibration] key 'channel'"),
+    ({"channels": ""}, "must be a file name"),
+    ({"channels": 3}, "must be a file name"),
+    ({"max_age_days": 0}, "positive number of days"),
+    ({"max_age_days": True}, "positive number of days"),
+    ({"max_age_days": "30 d"}, "positive number of days"),
+])
+def test_bad_calibration_tables_name_the_problem(table, phrase):
+    with pytest.raises(SetupError, match=phrase.replace("[", r"\[").replace("]", r"\]")):
+        load_setup({"method": "rl-step", "calibration": table})

@@ -63,6 +63,12 @@ def setup_as_parsed(setup: Setup) -> dict[str, Any]:
                            "instrument": instrument, "options": dict(setup.options)}
     if setup.sample_interval is not None:
         out["sample_interval"] = setup.sample_interval
+    calibration = {key: str(path) for key, path in (("channels", setup.calibration.channels),
+                                                    ("reference", setup.calibration.reference)) if path is not None}
+    if setup.calibration.max_age_days is not None:
+        calibration["max_age_days"] = setup.calibration.max_age_days
+    if calibration:
+        out["calibration"] = calibration
     if setup.captures:
         out["captures"] = [{"file": str(entry.file), **{n: p.text for n, p in entry.parts.items()}}
                            for entry in setup.captures]

@@ -15,6 +15,9 @@ A setup is a TOML file or a dict of the same structure (see ``docs/setup-file.md
     vertical_gain = "±2%"
     vertical_gain_sense = "±1%"        # overrides one channel
     [options]                          # optional, method specific
+    [calibration]                      # optional: files made by 'wavefit calibrate'
+    channels = "channels.toml"         # a channel comparison, beside the setup
+    max_age_days = 30                  # warn when a calibration is older
 
 This layer knows nothing of waveforms: each method checks the roles, parts,
 options and per-channel instrument keys it knows (``Method.check_setup``). Every
@@ -44,7 +47,9 @@ DEFAULT_VERTICAL_GAIN = "±2%"
 
 # A value quoted in a message is cut to this many characters (a 400-digit number stays one line).
 _SHOWN_CHARS = 40
-TOP_LEVEL_KEYS = ("method", "sample_interval", "columns", "parts", "instrument", "options", "captures")
+TOP_LEVEL_KEYS = ("method", "sample_interval", "columns", "parts", "instrument", "options", "captures",
+                  "calibration")
+CALIBRATION_KEYS = ("channels", "reference", "max_age_days")
 INSTRUMENT_KEYS = ("timebase", "vertical_gain")
 #: Prefix of the per-channel gain keys, ``vertical_gain_<role>``.
 GAIN_KEY_PREFIX = "vertical_gain_"
@@ -75,6 +80,16 @@ class CaptureEntry:
 
 
 @dataclass(frozen=True)
+class CalibrationFiles:
+    """The calibrations a setup names (``[calibration]``): files as absolute paths, and the
+    age in days beyond which a calibration is warned about (None: never)."""
+
+    channels: Path | None = None
+    reference: Path | None = None
+    max_age_days: float | None = None
+
+
+@dataclass(frozen=True)
 class Setup:
     """A parsed setup.
 
@@ -94,6 +109,7 @@ class Setup:
     captures: tuple[CaptureEntry, ...] = ()
     source: str = "<dict>"
     column_files: Mapping[str, Path] = field(default_factory=dict)
+    calibration: CalibrationFiles = CalibrationFiles()
 
     def gain_for(self, role: str) -> RelativeFigure:
         """The vertical-gain accuracy of the channel that carries ``role``."""
@@ -162,7 +178,26 @@ def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setu
         captures=captures,
         source=source,
         column_files=column_files,
+        calibration=_calibration(_table(data, "calibration", source), source, base_dir),
     )
+
+
+def _calibration(table: Mapping[str, Any], source: str, base_dir: Path) -> CalibrationFiles:
+    """The ``[calibration]`` table: file names beside the setup, a positive age limit in days."""
+    check_names(table, CALIBRATION_KEYS, "[calibration] key", source)
+    files: dict[str, Path] = {}
+    for key in ("channels", "reference"):
+        if key in table:
+            if not isinstance(table[key], str) or not table[key].strip():
+                raise SetupError(f"{source}: [calibration] {key} must be a file name, got {_shown(table[key])}")
+            files[key] = _beside(table[key], base_dir)
+    age = table.get("max_age_days")
+    if age is not None and (isinstance(age, bool) or not isinstance(age, (int, float)) or not _finite(age)
+                            or age <= 0):
+        raise SetupError(f"{source}: [calibration] max_age_days must be a positive number of days, "
+                         f"got {_shown(age)}")
+    return CalibrationFiles(files.get("channels"), files.get("reference"),
+                            float(age) if age is not None else None)
 
 
 def _table(data: Mapping[str, Any], key: str, source: str) -> Mapping[str, Any]:

@@ -1,0 +1,1 @@
+"""Calibrations of the bench: channel comparison and reference-part substitution."""
