@@ -242,7 +242,7 @@ def _solve(fun, jac, x, mapping: ParameterMap, blocks, models, x_scale, small: b
     else:
         problem = TriangularProblem(fun, jac, blocks, models)
         residuals, jacobian = problem.residuals, problem.jacobian
-    x = minimise(mapping.with_free(x), mapping.free_names, residuals, jacobian, x_scale)
+    x = minimise(mapping.free_parameters(x), mapping.free_names, residuals, jacobian, x_scale)
     if not np.all(np.isfinite(x)):
         raise FloatingPointError("least squares diverged")
     return x
@@ -254,9 +254,12 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
     :meth:`lmfit.Minimizer.least_squares` (scipy's trust region reflective method, bounds
     handled by scipy itself, no transform of lmfit's) with the analytic ``jacobian``.
 
-    ``residuals`` and ``jacobian`` take the vector of the free parameters' values."""
+    ``residuals`` and ``jacobian`` take the vector of the free parameters' values, so the
+    engine states the free parameters alone (:meth:`ParameterMap.free_parameters`): fixed
+    values and expressions are applied inside the residual, and lmfit neither copies nor
+    re-evaluates them at each step."""
     def values(p: lmfit.Parameters) -> Vector:
-        return np.array([p[n].value for n in names])
+        return np.fromiter((p[n].value for n in names), dtype=float, count=len(names))
 
     best: dict[bytes, Vector] = {}
     lowest = [math.inf]
