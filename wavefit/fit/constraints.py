@@ -51,7 +51,8 @@ class ParameterMap:
         self.free_names = tuple(self.names[k] for k in self.free)
         #: whether every parameter is free: the map is then the identity and is skipped
         self.trivial = self.free.size == len(self.names)
-        self._solve_params: SolveParameters | None = None
+        # the solver's own parameters: the map's, when they are all free and made for this fit
+        self._solve_params = self.params if self.trivial and isinstance(self.params, SolveParameters) else None
 
     def start(self) -> np.ndarray:
         """Start values of the free parameters."""
