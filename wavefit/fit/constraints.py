@@ -15,6 +15,9 @@ expressions alone (cheap: no data is involved); the data's part of the Jacobian 
 analytic. The covariance of all parameters is M·C·Mᵀ from that of the free ones C, the
 linear propagation of GUM (JCGM 100:2008, §5.2) that lmfit also applies to expressions.
 
+The solver is given the free parameters alone (:meth:`ParameterMap.free_parameters`), as
+:class:`SolveParameters` that lmfit's minimiser uses without a copy.
+
 References
 ----------
 M. Newville et al., LMFIT: Non-Linear Least-Square Minimization and Curve-Fitting for
@@ -120,7 +123,6 @@ class ParameterMap:
         m = self.derivative(fit.values)
         return dataclasses.replace(fit, names=self.names, values=self.full(fit.values),
                                    covariance=m @ fit.covariance @ m.T)
-
 
 
 class SolveParameters(lmfit.Parameters):

@@ -256,9 +256,10 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
     handled by scipy itself, no transform of lmfit's) with the analytic ``jacobian``.
 
     ``residuals`` and ``jacobian`` take the vector of the free parameters' values, so the
-    engine states the free parameters alone (:meth:`ParameterMap.free_parameters`): fixed
-    values and expressions are applied inside the residual, and lmfit neither copies nor
-    re-evaluates them at each step."""
+    engine states the free parameters alone
+    (:meth:`~wavefit.fit.constraints.ParameterMap.free_parameters`): fixed values and
+    expressions are applied inside the residual, and lmfit neither copies nor re-evaluates
+    them at each step."""
     def values(p: lmfit.Parameters) -> Vector:
         return np.fromiter((p[n].value for n in names), dtype=float, count=len(names))
 
