@@ -15,6 +15,9 @@ expressions alone (cheap: no data is involved); the data's part of the Jacobian 
 analytic. The covariance of all parameters is M·C·Mᵀ from that of the free ones C, the
 linear propagation of GUM (JCGM 100:2008, §5.2) that lmfit also applies to expressions.
 
+The solver is given the free parameters alone (:meth:`ParameterMap.free_parameters`), as
+:class:`SolveParameters` that lmfit's minimiser uses without a copy.
+
 References
 ----------
 M. Newville et al., LMFIT: Non-Linear Least-Square Minimization and Curve-Fitting for
@@ -51,6 +54,8 @@ class ParameterMap:
         self.free_names = tuple(self.names[k] for k in self.free)
         #: whether every parameter is free: the map is then the identity and is skipped
         self.trivial = self.free.size == len(self.names)
+        # the solver's own parameters: the map's, when they are all free and made for this fit
+        self._solve_params = self.params if self.trivial and isinstance(self.params, SolveParameters) else None
 
     def start(self) -> np.ndarray:
         """Start values of the free parameters."""
@@ -67,6 +72,15 @@ class ParameterMap:
             self.params[name].value = float(v)
         self.params.update_constraints()
         return self.params
+
+    def free_parameters(self, x: np.ndarray) -> "SolveParameters":
+        """The free parameters alone, set to ``x``, as the solver states them: one
+        :class:`SolveParameters` kept for all the solves of this fit."""
+        if self._solve_params is None:
+            self._solve_params = SolveParameters.of(self.params, self.free_names)
+        for par, v in zip(self._solve_params.values(), x):
+            par.value = float(v)
+        return self._solve_params
 
     def full(self, x: np.ndarray) -> np.ndarray:
         """Values of all parameters when the free ones are ``x``."""
@@ -110,3 +124,30 @@ class ParameterMap:
         return dataclasses.replace(fit, names=self.names, values=self.full(fit.values),
                                    covariance=m @ fit.covariance @ m.T)
 
+
+class SolveParameters(lmfit.Parameters):
+    """Free parameters made for the solves of one fit alone (:meth:`of`).
+
+    :class:`lmfit.Minimizer` works on a deep copy of the :class:`lmfit.Parameters` it is
+    given, so that the caller's stay as they were. These belong to the fit's solver, so their
+    copy is themselves: the copy (a new expression interpreter, every parameter checked anew)
+    took about a millisecond per solve, several per cent of an analysis made of small fits
+    (``benchmarks/lmfit_engine_time.py``)."""
+
+    @classmethod
+    def of(cls, params: lmfit.Parameters, names: tuple[str, ...]) -> "SolveParameters":
+        """The parameters ``names`` of ``params`` (value and bounds), free, in that order."""
+        out = cls()
+        out.add_many(*(lmfit.Parameter(n, value=params[n].value, min=params[n].min, max=params[n].max)
+                       for n in names))
+        return out
+
+    def __deepcopy__(self, memo) -> "SolveParameters":
+        return self
+
+    def create_uvars(self, covar=None) -> None:
+        """None: the solver's parameters carry no uncertainties. The fit's covariance is the
+        engine's, from the whitened problem (:mod:`wavefit.fit.engine`); lmfit's
+        ``least_squares`` would otherwise turn its own, unused, into correlated values after
+        every solve (a quarter of a millisecond each)."""
+        return None

@@ -35,7 +35,7 @@ import numpy as np
 
 from ..errors import AnalysisRefused
 from .compressed import TriangularProblem, triangle
-from .constraints import ParameterMap
+from .constraints import ParameterMap, SolveParameters
 from .jacobian import Jacobian, as_jacobian, is_small
 from .noise_model import ARNoise, fit_ar, white
 from .portmanteau import ljung_box, structured
@@ -142,7 +142,8 @@ def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarra
 
 def as_parameters(x0: Sequence[float], names: Sequence[str], bounds: tuple = (-np.inf, np.inf)) -> lmfit.Parameters:
     """Free :class:`lmfit.Parameters` named ``names``, starting at ``x0``, within ``bounds``
-    (a pair of scalars or of arrays, as scipy's ``least_squares`` takes them)."""
+    (a pair of scalars or of arrays, as scipy's ``least_squares`` takes them), made for one
+    fit's solver alone (:class:`~wavefit.fit.constraints.SolveParameters`)."""
     x0 = np.asarray(x0, dtype=float)
     if len(set(names)) != len(names):
         raise ValueError("fit parameter names must differ from each other")
@@ -150,7 +151,7 @@ def as_parameters(x0: Sequence[float], names: Sequence[str], bounds: tuple = (-n
     outside = (x0 < lo) | (x0 > hi)
     if np.any(outside):  # lmfit would move the start onto the bound; scipy refuses it
         raise ValueError(f"the start of {names[int(np.argmax(outside))]} lies outside its bounds")
-    params = lmfit.Parameters()
+    params = SolveParameters()
     for name, v, a, b in zip(names, x0, lo, hi):
         params.add(name, value=float(v), min=float(a), max=float(b))
     return params
@@ -242,7 +243,7 @@ def _solve(fun, jac, x, mapping: ParameterMap, blocks, models, x_scale, small: b
     else:
         problem = TriangularProblem(fun, jac, blocks, models)
         residuals, jacobian = problem.residuals, problem.jacobian
-    x = minimise(mapping.with_free(x), mapping.free_names, residuals, jacobian, x_scale)
+    x = minimise(mapping.free_parameters(x), mapping.free_names, residuals, jacobian, x_scale)
     if not np.all(np.isfinite(x)):
         raise FloatingPointError("least squares diverged")
     return x
@@ -254,9 +255,13 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
     :meth:`lmfit.Minimizer.least_squares` (scipy's trust region reflective method, bounds
     handled by scipy itself, no transform of lmfit's) with the analytic ``jacobian``.
 
-    ``residuals`` and ``jacobian`` take the vector of the free parameters' values."""
+    ``residuals`` and ``jacobian`` take the vector of the free parameters' values, so the
+    engine states the free parameters alone
+    (:meth:`~wavefit.fit.constraints.ParameterMap.free_parameters`): fixed values and
+    expressions are applied inside the residual, and lmfit neither copies nor re-evaluates
+    them at each step."""
     def values(p: lmfit.Parameters) -> Vector:
-        return np.array([p[n].value for n in names])
+        return np.fromiter((p[n].value for n in names), dtype=float, count=len(names))
 
     best: dict[bytes, Vector] = {}
     lowest = [math.inf]

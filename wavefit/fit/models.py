@@ -12,11 +12,15 @@ parameter hints (bounds that keep the model physical, the reference instant fixe
   instants, continuous at each (:mod:`wavefit.fit.relaxation`).
 - :class:`DampedSine`: offset + exp(−alpha·τ)·(a·cos w_d·τ + b·sin w_d·τ), τ = t − t_ref,
   the free response of a second-order system (:mod:`wavefit.fit.damped_sine`).
+- :class:`Sine`: amplitude·cos(2π·frequency·τ + phase) + offset, τ = t − t_ref, the
+  four-parameter sine of IEEE Std 1057 (:mod:`wavefit.fit.sine`), for a steady sinusoidal
+  drive such as that of an impedance measurement.
 
 References
 ----------
 M. Newville et al., LMFIT: Non-Linear Least-Square Minimization and Curve-Fitting for
 Python, https://lmfit.github.io/lmfit-py/ (``Model``, parameter hints, ``guess``).
+IEEE Std 1057-2017, *IEEE Standard for Digitizing Waveform Recorders*, §4.1.4 (sine fits).
 """
 from __future__ import annotations
 
@@ -32,6 +36,7 @@ from ..signal.levels import state_levels
 from . import damped_sine as ring
 from .exponential import WindowChannel, exponential_step, linear_part, projected_tau
 from .relaxation import relaxation_model
+from .sine import sine, sine_start
 
 #: The fraction of a step's change reached one time constant after it starts, 1 − 1/e.
 ONE_TAU = 1.0 - math.exp(-1.0)
@@ -153,4 +158,29 @@ class DampedSine(_WaveformModel):
         offset, a, b, alpha, w = ring.refine(y[win.start:win.stop], alpha0, w0)
         params = self.make_params(offset=float(offset), a=float(a), b=float(b), alpha=float(alpha) / dt,
                                   w_d=float(w) / dt, t_ref=float(t[win.start]))
+        return update_param_vals(params, self.prefix, **kws)
+
+
+class Sine(_WaveformModel):
+    """amplitude·cos(2π·frequency·τ + phase) + offset, τ = t − t_ref: a steady sine.
+
+    The four-parameter sine fit of IEEE Std 1057 (§4.1.4.4), in the standard's amplitude and
+    phase form (its A0·cos ωτ + B0·sin ωτ has A0 = amplitude·cos phase, B0 = −amplitude·sin
+    phase). ``frequency`` (Hz) and ``amplitude`` are kept positive; ``t_ref`` is fixed, and
+    :meth:`guess` sets it to the first sample, so that the phase refers to the record's start.
+    """
+
+    def __init__(self, **kws):
+        super().__init__(sine, "frequency", True, **kws)
+        self.set_param_hint("amplitude", min=0.0)
+
+    def guess(self, data: np.ndarray, t: np.ndarray, **kws) -> lmfit.Parameters:
+        """Starting values as IEEE Std 1057 takes them: the frequency from the interpolated
+        peak of the spectrum, then amplitude, phase and offset from the three-parameter
+        least-squares fit at that frequency (:func:`~wavefit.fit.sine.sine_start`); on a
+        uniform time axis."""
+        t = np.asarray(t, dtype=float)
+        start = sine_start(t, np.asarray(data, dtype=float), t_ref=float(t[0]))
+        params = self.make_params(amplitude=start.amplitude, frequency=start.frequency, phase=start.phase,
+                                  offset=start.offset, t_ref=float(t[0]))
         return update_param_vals(params, self.prefix, **kws)

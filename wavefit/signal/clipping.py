@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .codes import CHUNK_VALUES, code_step
+from .codes import CHUNK_VALUES, record_levels
 
 
 def longest_run_at_extremes(y: np.ndarray) -> tuple[int, int]:
@@ -75,8 +75,12 @@ def extremes(y: np.ndarray) -> Extremes:
     y = np.asarray(y, dtype=float)
     if not np.all(np.isfinite(y)):
         y = y[np.isfinite(y)]
-    gap = smallest_gap(y)
-    code = code_step(y)
+    found = record_levels(y)
+    code = found.step
+    if found.levels is None:  # continuous values: their smallest gap from one sorted copy
+        gap = smallest_gap(y)
+    else:
+        gap = float(np.diff(found.levels).min()) if found.levels.size >= 2 else None
     counts = []
     for extreme, inward in ((np.max(y), -1.0), (np.min(y), 1.0)):
         at = int(np.count_nonzero(y == extreme))

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Iterator
 
 import numpy as np
@@ -9,6 +10,10 @@ import numpy as np
 #: Values gathered at a time when a record's levels are collected (8 MB of float64), so that
 #: a long record is never copied whole; the levels found are the same as in one pass.
 CHUNK_VALUES = 1 << 20
+
+#: Most distinct values per sample of a record that sits on a code grid: a grid shows itself
+#: in values that repeat; continuous values are nearly all distinct (common practice).
+GRID_LEVELS_PER_SAMPLE = 0.5
 
 
 def finite_chunks(y: np.ndarray) -> Iterator[np.ndarray]:
@@ -45,12 +50,33 @@ def _levels_by_sorting(y: np.ndarray, limit: float) -> np.ndarray | None:
     return ordered[keep]
 
 
+@dataclass(frozen=True)
+class RecordLevels:
+    """A record's distinct finite values and the converter step they show (:func:`record_levels`)."""
+
+    levels: np.ndarray | None  # increasing; None for a record of continuous values (not on a grid)
+    step: float | None         # None unless the levels sit on a uniform grid
+
+
+def record_levels(y: np.ndarray) -> RecordLevels:
+    """The distinct levels of a record, gathered once, and the converter (or printing) step
+    they show: the code-grid fit and the clipping checks both need the two. The levels are
+    not gathered past :data:`GRID_LEVELS_PER_SAMPLE` per finite sample (values that repeat
+    that little sit on no grid)."""
+    y = np.asarray(y, dtype=float)
+    finite = int(np.count_nonzero(np.isfinite(y)))
+    levels = distinct_levels(y, GRID_LEVELS_PER_SAMPLE * finite)
+    return RecordLevels(levels, _grid_step(levels))
+
+
 def code_step(y: np.ndarray) -> float | None:
     """The converter (or printing) step of a record, if its values sit on a uniform grid
     (at most one distinct value per two samples)."""
-    y = np.asarray(y, dtype=float)
-    finite = int(np.count_nonzero(np.isfinite(y)))
-    levels = distinct_levels(y, 0.5 * finite)
+    return record_levels(y).step
+
+
+def _grid_step(levels: np.ndarray | None) -> float | None:
+    """The step of the uniform grid the distinct ``levels`` sit on, or None."""
     if levels is None or levels.size < 3:
         return None
     gaps = np.diff(levels)
@@ -73,8 +99,9 @@ def code_grid(y: np.ndarray, step: float | None = None) -> tuple[float, float] |
     values are not on a uniform grid.
     """
     y = np.asarray(y, dtype=float)
-    first = code_step(y) or step
-    levels = distinct_levels(y)
+    found = record_levels(y)
+    first = found.step or step
+    levels = found.levels if found.levels is not None else distinct_levels(y)
     if first is None or levels.size == 0:
         return None
     number = np.round((levels - levels[0]) / first)
