@@ -42,6 +42,16 @@ def setup(method: str) -> dict:
             "options": {"frequencies": FREQUENCIES} if method == "example-rc-impedance" else {}}
 
 
+def impedance_files(folder) -> tuple:
+    """The ngspice RC capture and a setup file of the impedance example, written in ``folder``."""
+    capture = folder / "rc.csv"
+    rc_step().to_csv(capture, index=False)
+    setup_file = folder / "setup.toml"
+    setup_file.write_text('method = "example-rc-impedance"\n[columns]\ntime = "t"\ncapacitor = "cap"\n'
+                          '[parts]\ncapacitor = "10 nF ±1%"\n[options]\nfrequencies = [1e3, 1e4, 1e5]\n')
+    return capture, setup_file
+
+
 def test_example_methods_are_registered_by_importing_their_module():
     assert {"example-rc-step", "example-rc-impedance"} <= set(available())
 
@@ -87,11 +97,7 @@ def test_curve_covariance_is_the_law_of_propagation():
 @needs_ngspice
 @pytest.mark.ngspice
 def test_curve_renders_in_text_json_csv_and_plot(tmp_path, capsys):
-    capture = tmp_path / "rc.csv"
-    rc_step().to_csv(capture, index=False)
-    setup_file = tmp_path / "setup.toml"
-    setup_file.write_text('method = "example-rc-impedance"\n[columns]\ntime = "t"\ncapacitor = "cap"\n'
-                          '[parts]\ncapacitor = "10 nF ±1%"\n[options]\nfrequencies = [1e3, 1e4, 1e5]\n')
+    capture, setup_file = impedance_files(tmp_path)
     base = ["analyze", str(capture), "--setup", str(setup_file)]
 
     assert main([*base, "--plot", str(tmp_path / "rc.png")]) == 0
@@ -209,11 +215,7 @@ def test_monte_carlo_of_a_near_linear_curve_agrees_with_the_linear_interval():
 @needs_ngspice
 @pytest.mark.ngspice
 def test_curve_monte_carlo_renders_in_text_json_and_csv(tmp_path, capsys):
-    capture = tmp_path / "rc.csv"
-    rc_step().to_csv(capture, index=False)
-    setup_file = tmp_path / "setup.toml"
-    setup_file.write_text('method = "example-rc-impedance"\n[columns]\ntime = "t"\ncapacitor = "cap"\n'
-                          '[parts]\ncapacitor = "10 nF ±1%"\n[options]\nfrequencies = [1e3, 1e4, 1e5]\n')
+    capture, setup_file = impedance_files(tmp_path)
     base = ["analyze", str(capture), "--setup", str(setup_file), "--uncertainty", "montecarlo", "--draws", "20000"]
 
     assert main(base) == 0
