@@ -20,11 +20,11 @@ import numpy as np
 
 from ..errors import AnalysisRefused
 from ..signal.edges import find_edges
-from ..signal.levels import state_levels
 from .channel_file import Estimated
 from .comparison_checks import refuse_clipped, refuse_different_shape, refuse_implausible_ratio
 from .edge_skew import pair_edges, skew_from_pairs
 from .plateau_line import LineEstimate, plateau_line
+from .state_peaks import settled_levels
 
 
 @dataclass(frozen=True)
@@ -68,13 +68,12 @@ def compare_channels(time: np.ndarray, reference: np.ndarray, other: np.ndarray)
     if not (np.all(np.isfinite(reference)) and np.all(np.isfinite(other))):
         raise AnalysisRefused("the comparison capture has gaps (missing values) in a channel; record it again")
     dt = float(time[1] - time[0])
-    edges = {}
-    for name, y in (("reference", reference), ("other", other)):
-        refuse_clipped(y, name)
-        edges[name] = find_edges(time, y, state_levels(y))
-    pairs = pair_edges(edges["reference"], edges["other"])
+    pairs = pair_edges(*(find_edges(time, y, settled_levels(y)) for y in (reference, other)))
     skew = skew_from_pairs(pairs)
     line = plateau_line(reference, other, pairs, float(time[0]), dt, skew.value)
+    windows = [(p.start, p.stop, p.state) for p in line.plateaus]
+    refuse_clipped(reference, windows, "reference")
+    refuse_clipped(other, [(a + line.shift, b + line.shift, s) for a, b, s in windows], "other")
     refuse_implausible_ratio(line.ratio)
     shape = refuse_different_shape(reference, other, pairs, float(time[0]), dt, skew.value, line.ratio,
                                    line.offset, line.reference_noise.model.sigma, line.other_noise.model.sigma)

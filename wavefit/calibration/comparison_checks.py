@@ -16,15 +16,16 @@ import math
 import numpy as np
 
 from ..errors import AnalysisRefused
-from ..signal.clipping import extremes
 from .edge_skew import EdgePair
 from .plateau_line import transition_half
 
-#: Share of a record at its very lowest or highest value beyond which the channel was clipped.
-#: A noisy channel reaches its extreme value in a few samples (a spike after each edge, a noise
-#: peak); a plateau cut off by the converter's range puts a large share of the record there,
-#: tens of per cent for a square wave (common practice).
-CLIPPED_FRACTION = 0.01
+#: Share of a state's plateau samples at the record's extreme value beyond which the state is
+#: taken as clipped. A level inside the converter's range spreads over the codes around it and
+#: its noise reaches beyond it, so the record's extreme lies elsewhere (a spike, a noise peak);
+#: a level beyond the limit puts all its samples on the limit's code (common practice). A quiet
+#: level (noise well below a code) that happens to be the record's extreme code cannot be told
+#: from a clipped one and is refused too: moving the offset by a division settles it.
+CLIPPED_SHARE = 0.9
 #: Largest |ratio − 1| accepted. Two channels of one scope each hold their DC gain within
 #: about ±2–3 % and probes of one model within about ±1 % (common practice), so the ratio of
 #: two channels on one node stays within a few per cent; beyond 10 % the probes were on
@@ -41,15 +42,21 @@ MAX_SHAPE_RMS_RATIO = 2.0
 EDGE_GUARD_SAMPLES = 3
 
 
-def refuse_clipped(y: np.ndarray, name: str) -> None:
-    """Refuse a channel that sits at its extreme value for :data:`CLIPPED_FRACTION` of the
-    record or more: part of a plateau lay beyond the converter's range."""
-    found = extremes(y)
-    at_extreme = max(count for count, _ in found.counts)
-    if at_extreme >= CLIPPED_FRACTION * y.size:
-        raise AnalysisRefused(f"the {name} channel is clipped ({at_extreme} of {y.size} samples sit at its "
-                              "extreme value, the converter's limit); use a larger volts/division or move the "
-                              "offset so that the whole waveform is on screen")
+def refuse_clipped(y: np.ndarray, windows: list[tuple[int, int, int]], name: str) -> None:
+    """Refuse a channel whose plateaus of one state sit, nearly all their samples, at the
+    record's extreme value on that state's side (its minimum for the low state, its maximum for
+    the high one): the level lay at or beyond the converter's limit, and its mean is lost.
+
+    ``windows`` are (start, stop, state) of the channel's averaging windows.
+    """
+    for state, extreme in ((-1, float(np.min(y))), (1, float(np.max(y)))):
+        samples = np.concatenate([y[a:b] for a, b, s in windows if s == state] or [np.zeros(0)])
+        share = float(np.mean(samples == extreme)) if samples.size else 0.0
+        if share >= CLIPPED_SHARE:
+            level = "low" if state < 0 else "high"
+            raise AnalysisRefused(f"the {name} channel is clipped: {share:.0%} of its {level} level's samples "
+                                  "sit at the record's extreme value, the converter's limit; use a larger "
+                                  "volts/division or move the offset so that both levels are inside the screen")
 
 
 def refuse_implausible_ratio(ratio: float) -> None:

@@ -85,6 +85,7 @@ class LineEstimate:
     degrees_of_freedom: float
     birge_ratio: float
     plateaus: tuple[Plateau, ...]
+    shift: int  # samples by which the other channel's windows follow the reference's
     reference_noise: ChannelNoise
     other_noise: ChannelNoise
 
@@ -161,7 +162,7 @@ def plateau_line(reference: np.ndarray, other: np.ndarray, pairs: list[EdgePair]
     covariance = line.covariance * max(birge, 1.0)
     dof = float(line.dof) if birge > 1.0 else _noise_dof(ref_noise, oth_noise, int(n.sum()))
     covariance = covariance + _quantisation_covariance(plateaus, line.slope, ref_noise, oth_noise)
-    return LineEstimate(line.slope, line.intercept, covariance, dof, birge, tuple(plateaus), ref_noise, oth_noise)
+    return LineEstimate(line.slope, line.intercept, covariance, dof, birge, tuple(plateaus), shift, ref_noise, oth_noise)
 
 
 def _noise_dof(reference: ChannelNoise, other: ChannelNoise, samples: int) -> float:
