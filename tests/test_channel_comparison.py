@@ -116,3 +116,21 @@ def test_quantisation_bias_bound_holds_the_exact_offset(sigma):
 def test_quantisation_bias_without_grid_or_noise():
     assert mean_bias_bound(None, 0.1) == 0.0
     assert mean_bias_bound(1.0, 0.0) == 0.5
+
+
+@pytest.mark.parametrize("samples", [1, 2, 100])
+def test_records_without_edges_are_refused(samples):
+    t = np.arange(float(samples))
+    noise = np.random.default_rng(samples).standard_normal((2, samples))
+    with pytest.raises(AnalysisRefused):
+        compare_channels(t, noise[0], noise[1])
+
+
+def test_gaps_and_noise_free_levels_are_refused():
+    t = np.arange(4000.0)
+    square = np.tile(np.r_[np.zeros(500), np.ones(500)], 4)
+    with pytest.raises(AnalysisRefused, match="gaps"):
+        compare_channels(t, np.r_[np.nan, square[1:]], square)
+    # a computed waveform without noise: no type A uncertainty, and levels that sit on the extremes
+    with pytest.raises(AnalysisRefused):
+        compare_channels(t, square, square)

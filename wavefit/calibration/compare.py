@@ -65,6 +65,9 @@ def compare_channels(time: np.ndarray, reference: np.ndarray, other: np.ndarray)
     .. [2] D. York et al., Am. J. Phys. 72(3), 367–375, 2004 (line with errors in both coordinates).
     """
     time, reference, other = (np.asarray(a, dtype=float) for a in (time, reference, other))
+    if time.size < 2:
+        raise AnalysisRefused(f"the comparison capture holds {time.size} sample(s); record several periods "
+                              "of the square wave")
     if not (np.all(np.isfinite(reference)) and np.all(np.isfinite(other))):
         raise AnalysisRefused("the comparison capture has gaps (missing values) in a channel; record it again")
     dt = float(time[1] - time[0])

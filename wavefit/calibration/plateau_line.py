@@ -147,6 +147,11 @@ def plateau_line(reference: np.ndarray, other: np.ndarray, pairs: list[EdgePair]
                               "the comparison needs two of each: record more periods or sample faster")
     ref_noise = channel_noise(reference, [(a, b) for a, b, _ in windows])
     oth_noise = channel_noise(other, [(a + shift, b + shift) for a, b, _ in windows])
+    for name, noise in (("reference", ref_noise), ("other", oth_noise)):
+        if not noise.model.sigma > 0:
+            raise AnalysisRefused(f"the {name} channel shows no noise on its levels, so the uncertainty of their "
+                                  "means cannot be judged; record the raw acquisition, not an averaged or "
+                                  "computed waveform")
     plateaus = []
     for a, b, state in windows:
         x = reference[a:b]
