@@ -136,18 +136,17 @@ def as_dict(comparison: ChannelComparison, edges: int) -> dict[str, Any]:
 
 
 def summary(comparison: ChannelComparison, edges: int, out: str) -> str:
-    """A few lines: which channels, the three quantities as value ± U (k = 2), the file written."""
+    """A few lines: which channels, the three quantities as value ± U (k = 2) with their
+    degrees of freedom, the file written."""
     k = SUMMARY_COVERAGE_FACTOR
-    ratio = comparison.gain_ratio
-    lines = [
-        f"channel comparison: {comparison.other.role} ({comparison.other.column}) against "
-        f"{comparison.reference.role} ({comparison.reference.column}), {edges} edges",
-        f"  gain ratio         {ratio.value:.6f} ± {k * ratio.standard_uncertainty:.6f}",
-        f"  offset difference  {eng_pm(comparison.offset_difference.value, k * comparison.offset_difference.standard_uncertainty, 'V')}",
-        f"  skew               {eng_pm(comparison.skew.value, k * comparison.skew.standard_uncertainty, 's')}"
-        f"  ({comparison.skew.degrees_of_freedom:.0f} degrees of freedom)",
-        f"  expanded uncertainties U = {k:g}·u; written to {out}",
-    ]
+    ratio, offset, skew = comparison.gain_ratio, comparison.offset_difference, comparison.skew
+    rows = [("gain ratio", f"{ratio.value:.6f} ± {k * ratio.standard_uncertainty:.6f}", ratio),
+            ("offset difference", eng_pm(offset.value, k * offset.standard_uncertainty, "V"), offset),
+            ("skew", eng_pm(skew.value, k * skew.standard_uncertainty, "s"), skew)]
+    lines = [f"channel comparison: {comparison.other.role} ({comparison.other.column}) against "
+             f"{comparison.reference.role} ({comparison.reference.column}), {edges} edges"]
+    lines += [f"  {name:<18} {text:<24} ({q.degrees_of_freedom:.0f} degrees of freedom)" for name, text, q in rows]
+    lines.append(f"  expanded uncertainties U = {k:g}·u; written to {out}")
     return "\n".join(lines)
 
 

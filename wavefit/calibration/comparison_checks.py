@@ -87,7 +87,8 @@ def refuse_different_shape(reference: np.ndarray, other: np.ndarray, pairs: list
             half = transition_half(edge)
             a = (edge.t50 - half - t0) / dt + moved - max(-shift, 0)
             b = (edge.t50 + half - t0) / dt + moved - max(-shift, 0)
-            keep[max(int(math.floor(a)) - EDGE_GUARD_SAMPLES, 0):max(int(math.ceil(b)) + EDGE_GUARD_SAMPLES + 1, 0)] = False
+            first = max(int(math.floor(a)) - EDGE_GUARD_SAMPLES, 0)
+            keep[first:max(int(math.ceil(b)) + EDGE_GUARD_SAMPLES + 1, 0)] = False
     expected = math.hypot(sigma_other, ratio * sigma_reference * math.sqrt(1.0 + 0.5 * (rest / dt) ** 2))
     found = float(np.sqrt(np.mean(residual[keep] ** 2))) if keep.any() else math.inf
     if not expected > 0 or found > MAX_SHAPE_RMS_RATIO * expected:

@@ -167,7 +167,8 @@ def plateau_line(reference: np.ndarray, other: np.ndarray, pairs: list[EdgePair]
     covariance = line.covariance * max(birge, 1.0)
     dof = float(line.dof) if birge > 1.0 else _noise_dof(ref_noise, oth_noise, int(n.sum()))
     covariance = covariance + _quantisation_covariance(plateaus, line.slope, ref_noise, oth_noise)
-    return LineEstimate(line.slope, line.intercept, covariance, dof, birge, tuple(plateaus), shift, ref_noise, oth_noise)
+    return LineEstimate(line.slope, line.intercept, covariance, dof, birge, tuple(plateaus), shift, ref_noise,
+                        oth_noise)
 
 
 def _noise_dof(reference: ChannelNoise, other: ChannelNoise, samples: int) -> float:
