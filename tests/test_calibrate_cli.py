@@ -97,6 +97,9 @@ def test_bad_inputs_are_one_line_errors(tmp_path, capsys):
     err = capsys.readouterr().err
     assert code == 3 and err.count("\n") == 1 and "missing.csv" in err
     assert main(["calibrate"]) == 2
+    code = main(["calibrate", "channels", str(missing), "--setup", str(setup), "--out", str(setup)])
+    assert code == 3 and "input" in capsys.readouterr().err
+    assert setup.read_text(encoding="utf-8") == SETUP
 
 
 def test_channel_roles_rule():

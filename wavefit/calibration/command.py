@@ -84,6 +84,7 @@ def _channels(args: argparse.Namespace) -> int:
     from ..setup import load_setup
     from .compare import compare_channels
 
+    _refuse_overwriting_inputs(args.out, args.capture, args.setup)
     setup = load_setup(args.setup)
     reference_role, other_role = channel_roles(dict(setup.columns), args.reference, setup.source)
     interval = args.sample_interval if args.sample_interval is not None else setup.sample_interval
@@ -114,6 +115,15 @@ def _channels(args: argparse.Namespace) -> int:
     else:
         print(visible_lines(summary(comparison, estimate.edges, args.out)))
     return 0
+
+
+def _refuse_overwriting_inputs(out: str, *inputs: str) -> None:
+    """Refuse an ``--out`` that names the capture or the setup: the file would replace its own input."""
+    target = Path(out).resolve()
+    for given in inputs:
+        if Path(given).resolve() == target:
+            raise SetupError(f"--out {out} names an input of the comparison ({given}); write the comparison to "
+                             "a file of its own")
 
 
 def as_dict(comparison: ChannelComparison, edges: int) -> dict[str, Any]:
