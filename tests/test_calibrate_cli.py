@@ -123,3 +123,19 @@ def test_no_traceback_from_the_module(tmp_path):
     assert proc.returncode == 3, proc.stderr
     assert "Traceback" not in proc.stderr and proc.stderr.count("\n") == 1
     assert not (tmp_path / "c.toml").exists()
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_a_channel_from_another_file_keeps_the_setup_column(tmp_path, capsys):
+    frame = comparison_frame(seed=8)
+    frame[["Time (s)", "CH1 (V)"]].to_csv(tmp_path / "ch1.csv", index=False)
+    frame[["Time (s)", "CH2 (V)"]].to_csv(tmp_path / "ch2.csv", index=False)
+    setup = tmp_path / "setup.toml"
+    setup.write_text(SETUP.replace('sense = "CH2"', 'sense = { file = "ch2.csv", column = "CH2" }'), encoding="utf-8")
+    out = tmp_path / "channels.toml"
+    code = main(["calibrate", "channels", str(tmp_path / "ch1.csv"), "--setup", str(setup), "--out", str(out)])
+    assert code == 0, capsys.readouterr().err
+    comparison = read_channel_comparison(out)
+    assert (comparison.other.role, comparison.other.column) == ("sense", "CH2")
+    assert abs(comparison.skew.value - SKEW) < 0.3e-9

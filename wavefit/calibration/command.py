@@ -87,6 +87,7 @@ def _channels(args: argparse.Namespace) -> int:
     _refuse_overwriting_inputs(args.out, args.capture, args.setup)
     setup = load_setup(args.setup)
     reference_role, other_role = channel_roles(dict(setup.columns), args.reference, setup.source)
+    written = dict(setup.columns)  # as the setup writes them (a column of another file is renamed below)
     interval = args.sample_interval if args.sample_interval is not None else setup.sample_interval
     capture = load_capture(args.capture, interval, setup.columns.get("time"))
     if setup.column_files:
@@ -99,8 +100,8 @@ def _channels(args: argparse.Namespace) -> int:
                              "the channel comparison compares two voltage channels")
     estimate = compare_channels(capture.time, channels[reference_role].values, channels[other_role].values)
     comparison = ChannelComparison(
-        reference=ChannelRole(reference_role, setup.columns[reference_role]),
-        other=ChannelRole(other_role, setup.columns[other_role]),
+        reference=ChannelRole(reference_role, written[reference_role]),
+        other=ChannelRole(other_role, written[other_role]),
         gain_ratio=estimate.gain_ratio,
         offset_difference=estimate.offset_difference,
         skew=estimate.skew,
