@@ -27,10 +27,11 @@ import numpy as np
 from ..errors import AnalysisRefused
 from ..signal.edges import Edge
 
-#: Fewest matched edge pairs the comparison takes: two plateaus of each state for the levels'
-#: line (two degrees of freedom) and three degrees of freedom for the skew's scatter; with
-#: fewer, the t-factor for 95 % (Student, 3 dof: 3.18) grows quickly (12.7 at one).
-MIN_EDGE_PAIRS = 4
+#: Fewest matched edge pairs the comparison takes: five edges bound four plateaus, two of each
+#: state, for the levels' line (two degrees of freedom), and leave four degrees of freedom for
+#: the skew's scatter; with fewer, the t-factor for 95 % grows quickly (Student: 2.78 at four
+#: degrees of freedom, 12.7 at one).
+MIN_EDGE_PAIRS = 5
 
 
 @dataclass(frozen=True)
