@@ -74,6 +74,9 @@ def build_parser() -> argparse.ArgumentParser:
     from .batch.command import add_batch_parser
 
     add_batch_parser(sub)
+    from .calibration.command import add_calibrate_parser
+
+    add_calibrate_parser(sub)
     return parser
 
 
@@ -83,7 +86,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.command is None:
         parser.print_help(sys.stderr)
         return EXIT_USAGE
-    handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch}[args.command]
+    handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch, "calibrate": _calibrate}[args.command]
     try:
         return handler(args)
     except WavefitError as exc:
@@ -169,6 +172,12 @@ def _monte_carlo_options(args: argparse.Namespace) -> dict[str, int] | None:
 
 def _batch(args: argparse.Namespace) -> int:
     from .batch.command import run
+
+    return run(args)
+
+
+def _calibrate(args: argparse.Namespace) -> int:
+    from .calibration.command import run
 
     return run(args)
 
