@@ -66,9 +66,11 @@ class BudgetLine:
     variance_share: float
     kind: str
     degrees_of_freedom: float
+    #: Where the input came from when a calibration gave it (an ``InputOrigin``: file, made, age).
+    origin: Any = None
 
     def to_dict(self) -> dict[str, Any]:
-        return {
+        out = {
             "source": self.source,
             "value": _json_number(self.value),
             "unit": self.unit,
@@ -79,6 +81,9 @@ class BudgetLine:
             "type": self.kind,
             "degrees_of_freedom": _json_number(self.degrees_of_freedom),
         }
+        if self.origin is not None:  # inputs without a calibration keep the JSON they always had
+            out["origin"] = _jsonable(self.origin.to_dict())
+        return out
 
 
 def _numbers(x: Any) -> Any:

@@ -40,6 +40,7 @@ class InputQuantity:
     dof: float = math.inf
     group: str | None = None
     distribution: str = "normal"  # "normal", "rectangular" or "exact"
+    origin: Any = None  # where a calibration input came from (``InputOrigin``), shown in the budget
 
 
 class InputSet:
@@ -57,11 +58,12 @@ class InputSet:
         return [i.name for i in self._inputs]
 
     def add(self, name: str, value: float, standard_uncertainty: float, unit: str = "",
-            kind: str = "B", dof: float = math.inf, distribution: str = "normal") -> None:
-        """Add an independent input; ``distribution`` matters only for Monte Carlo."""
+            kind: str = "B", dof: float = math.inf, distribution: str = "normal", origin: Any = None) -> None:
+        """Add an independent input; ``distribution`` matters only for Monte Carlo, ``origin``
+        (a calibration's file and age) is carried to the budget lines."""
         self._check_new(name)
         self._inputs.append(InputQuantity(name, float(value), float(abs(standard_uncertainty)),
-                                          unit, kind, dof, None, distribution))
+                                          unit, kind, dof, None, distribution, origin))
 
     def add_part(self, name: str, part: Any) -> None:
         """Add a :class:`wavefit.values.PartValue` as a type B input."""
@@ -218,7 +220,7 @@ def propagate_outputs(inputs: InputSet, outputs: Mapping[str, Any], variables: M
                                           float(k * u_y[r]), float(k), float(lin.degrees_of_freedom[r]))
         budget[name] = [BudgetLine(item.name, item.value, item.unit, item.standard_uncertainty, float(c),
                                    float(abs(c) * item.standard_uncertainty), float(lin.variance_share[r, i]),
-                                   item.kind, float(item.dof))
+                                   item.kind, float(item.dof), item.origin)
                         for i, (item, c) in enumerate(zip(items, lin.jacobian[r])) if c != 0.0]
     corr: dict[str, dict[str, float]] = {}
     for a, na in enumerate(names):
