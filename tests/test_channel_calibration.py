@@ -75,20 +75,23 @@ def test_a_file_of_other_roles_is_refused(tmp_path):
         calibration_of(rl_setup(tmp_path))
 
 
-def test_a_sense_only_setup_refuses_a_comparison(tmp_path):
-    write(tmp_path / "channels.toml")
+def test_a_sense_only_setup_refuses_a_comparison_before_any_capture_is_read(tmp_path):
     setup = rl_setup(tmp_path, columns={"time": "Time (s)", "sense": "CH2"})
     with pytest.raises(SetupError, match="maps no 'drive'"):
-        calibration_of(setup)
+        get_method("rl-step").check_setup(setup)  # the file is not needed for this refusal
 
 
-@pytest.mark.parametrize("method", ["lc-ring"])
+@pytest.mark.parametrize("method", ["lc-ring", "lc-sweep"])
 def test_a_one_channel_method_refuses_a_comparison(tmp_path, method):
     write(tmp_path / "channels.toml")
-    setup = load_setup({"method": method, "columns": {"tank": "CH1"}, "parts": {},
-                        "calibration": {"channels": str(tmp_path / "channels.toml")}})
+    data = {"method": method, "columns": {"tank": "CH1"}, "parts": {"tank_capacitor": "10 nF ±1%"},
+            "calibration": {"channels": str(tmp_path / "channels.toml")}}
+    if method == "lc-sweep":
+        data = {**data, "parts": {}, "captures": [{"file": "a.csv", "tank_capacitor": "10 nF"},
+                                                  {"file": "b.csv", "tank_capacitor": "22 nF"}]}
+    setup = load_setup(data)
     with pytest.raises(SetupError, match="one voltage channel"):
-        calibration_of(setup)
+        get_method(method).check_setup(setup)
 
 
 def test_a_non_positive_ratio_is_refused(tmp_path):

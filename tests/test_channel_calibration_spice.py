@@ -106,10 +106,11 @@ def test_with_a_channel_comparison_L_within_0p3_percent_and_dcr_within_its_u(cap
 @needs_ngspice
 @pytest.mark.ngspice
 def test_the_skew_matters_here_and_its_sign_is_right(capture, tmp_path):
-    """With tau = 78 ns, 3 ns of skew moves L by some percent: a file that says no skew misses."""
+    """With tau = 78 ns, 3 ns of skew moves L by R_source·skew = 150 nH, 3.2 % (the generator's
+    50 Ω; the sense channel late makes L read low): a file that says no skew misses that much."""
     cal = comparison_file(tmp_path / "channels.toml", skew=0.0)
     L = wavefit.analyze(capture, setup({"channels": str(cal)})).quantities["L"]
-    assert abs(L.value / IND - 1) > 3 * L_TOLERANCE, L.value
+    assert -0.045 < L.value / IND - 1 < -0.02, L.value
 
 
 @needs_ngspice

@@ -107,15 +107,8 @@ def channel_calibration(setup: Setup, method_name: str, ratio_roles: tuple[str, 
     path = setup.calibration.channels
     if path is None:
         return None
-    if ratio_roles is None:
-        raise SetupError(f"{setup.source}: method {method_name!r} records one voltage channel, so a channel "
-                         "comparison has nothing to correct; remove [calibration] channels")
+    check_channel_mapping(setup, method_name, ratio_roles)
     numerator, denominator = ratio_roles
-    unmapped = [role for role in ratio_roles if role not in setup.columns]
-    if unmapped:
-        raise SetupError(f"{setup.source}: [calibration] channels compares {numerator!r} with {denominator!r}, "
-                         f"but [columns] maps no {' or '.join(repr(r) for r in unmapped)}; map both channels "
-                         "or remove [calibration] channels")
     comparison = read_channel_comparison(path)
     roles = {comparison.reference.role, comparison.other.role}
     if roles != set(ratio_roles):
@@ -140,6 +133,28 @@ def channel_calibration(setup: Setup, method_name: str, ratio_roles: tuple[str, 
                    f"max_age_days = {limit:g}: compare the channels again")
     return ChannelCalibration(comparison, _ratio(comparison, numerator), _skew(comparison, numerator), origin,
                               denominator, too_old)
+
+
+def check_channel_mapping(setup: Setup, method_name: str, ratio_roles: tuple[str, str] | None) -> None:
+    """The checks of a setup's channel comparison that need not read the file (a setup check
+    before any capture is read): the method can use one, and the setup maps both its channels.
+
+    Raises
+    ------
+    SetupError
+        As :func:`channel_calibration`.
+    """
+    if setup.calibration.channels is None:
+        return
+    if ratio_roles is None:
+        raise SetupError(f"{setup.source}: method {method_name!r} records one voltage channel, so a channel "
+                         "comparison has nothing to correct; remove [calibration] channels")
+    numerator, denominator = ratio_roles
+    unmapped = [role for role in ratio_roles if role not in setup.columns]
+    if unmapped:
+        raise SetupError(f"{setup.source}: [calibration] channels compares {numerator!r} with {denominator!r}, "
+                         f"but [columns] maps no {' or '.join(repr(r) for r in unmapped)}; map both channels "
+                         "or remove [calibration] channels")
 
 
 def _ratio(comparison: ChannelComparison, numerator: str) -> ChannelInput:

@@ -14,7 +14,7 @@ import math
 from dataclasses import dataclass
 from typing import Any, ClassVar, Mapping
 
-from ..calibration.in_use import ChannelCalibration, channel_calibration
+from ..calibration.in_use import ChannelCalibration, channel_calibration, check_channel_mapping
 from ..curve_propagation import propagate_curves
 from ..errors import AnalysisRefused, SetupError
 from ..io.capture import Capture, Channel
@@ -75,8 +75,8 @@ class Method:
         return scalar_names(self.outputs)
 
     def check_setup(self, setup: Setup) -> None:
-        """Reject unknown roles, parts, options, instrument keys and captures; require the
-        required ones."""
+        """Reject unknown roles, parts, options, instrument keys and captures, and a channel
+        comparison the method or the setup's columns cannot use; require the required ones."""
         if setup.column_files and (setup.captures or self.capture_count.minimum > 1):
             raise SetupError(f"{setup.source}: method {self.name!r} takes several captures, so a column cannot "
                              "come from one other file; give each capture's columns in its own file")
@@ -94,6 +94,7 @@ class Method:
         for part_name, part in setup.parts.items():
             self._check_unit(setup, part_name, part)
         self._check_captures(setup)
+        check_channel_mapping(setup, self.name, self.channel_ratio_roles)
 
     def _check_instrument_keys(self, setup: Setup) -> None:
         """``vertical_gain_<role>`` is valid only for a role of this method."""
