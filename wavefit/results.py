@@ -15,6 +15,7 @@ if TYPE_CHECKING:
     from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
+    from .calibration.in_use import InputOrigin
     from .fitted import FittedBlock
     from .montecarlo import MonteCarloReport
     from .uncertainty import Propagation
@@ -67,7 +68,7 @@ class BudgetLine:
     kind: str
     degrees_of_freedom: float
     #: Where the input came from when a calibration gave it (an ``InputOrigin``: file, made, age).
-    origin: Any = None
+    origin: InputOrigin | None = None
 
     def to_dict(self) -> dict[str, Any]:
         out = {

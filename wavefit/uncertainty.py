@@ -16,13 +16,16 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any, Callable, Mapping, Sequence
+from typing import TYPE_CHECKING, Any, Callable, Mapping, Sequence
 
 import numpy as np
 from scipy import stats
 from uncertainties import ufloat
 
 from .results import BudgetLine, QuantityResult
+
+if TYPE_CHECKING:
+    from .calibration.in_use import InputOrigin
 
 #: Coverage probability of the expanded uncertainty; k = 2 at infinite dof (GUM G.6.4).
 COVERAGE_PROBABILITY = 0.9545
@@ -40,7 +43,7 @@ class InputQuantity:
     dof: float = math.inf
     group: str | None = None
     distribution: str = "normal"  # "normal", "rectangular" or "exact"
-    origin: Any = None  # where a calibration input came from (``InputOrigin``), shown in the budget
+    origin: InputOrigin | None = None  # where a calibration input came from, shown in the budget
 
 
 class InputSet:
@@ -58,7 +61,8 @@ class InputSet:
         return [i.name for i in self._inputs]
 
     def add(self, name: str, value: float, standard_uncertainty: float, unit: str = "",
-            kind: str = "B", dof: float = math.inf, distribution: str = "normal", origin: Any = None) -> None:
+            kind: str = "B", dof: float = math.inf, distribution: str = "normal",
+            origin: InputOrigin | None = None) -> None:
         """Add an independent input; ``distribution`` matters only for Monte Carlo, ``origin``
         (a calibration's file and age) is carried to the budget lines."""
         self._check_new(name)
