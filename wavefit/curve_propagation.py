@@ -68,7 +68,7 @@ def propagate_curves(inputs: InputSet, outputs: Mapping[str, Any], declared: Map
                 continue
             lines.append(CurveBudgetLine(item.name, item.value, item.unit, item.standard_uncertainty, sens,
                                          np.abs(sens) * item.standard_uncertainty, lin.variance_share[:, c],
-                                         item.kind, float(item.dof)))
+                                         item.kind, float(item.dof), item.origin))
         curves[name] = CurveResult(name, decl.unit, decl.axis.name, decl.axis.unit, axis, lin.values, u, k * u, k,
                                    lin.degrees_of_freedom, lin.covariance, tuple(lines), decl.axis.log)
     return curves

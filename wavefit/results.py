@@ -15,6 +15,7 @@ if TYPE_CHECKING:
     from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
+    from .calibration.in_use import InputOrigin
     from .fitted import FittedBlock
     from .montecarlo import MonteCarloReport
     from .uncertainty import Propagation
@@ -66,9 +67,11 @@ class BudgetLine:
     variance_share: float
     kind: str
     degrees_of_freedom: float
+    #: Where the input came from when a calibration gave it (an ``InputOrigin``: file, made, age).
+    origin: InputOrigin | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        return {
+        out = {
             "source": self.source,
             "value": _json_number(self.value),
             "unit": self.unit,
@@ -79,6 +82,9 @@ class BudgetLine:
             "type": self.kind,
             "degrees_of_freedom": _json_number(self.degrees_of_freedom),
         }
+        if self.origin is not None:  # inputs without a calibration keep the JSON they always had
+            out["origin"] = _jsonable(self.origin.to_dict())
+        return out
 
 
 def _numbers(x: Any) -> Any:

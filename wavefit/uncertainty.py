@@ -16,13 +16,16 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any, Callable, Mapping, Sequence
+from typing import TYPE_CHECKING, Any, Callable, Mapping, Sequence
 
 import numpy as np
 from scipy import stats
 from uncertainties import ufloat
 
 from .results import BudgetLine, QuantityResult
+
+if TYPE_CHECKING:
+    from .calibration.in_use import InputOrigin
 
 #: Coverage probability of the expanded uncertainty; k = 2 at infinite dof (GUM G.6.4).
 COVERAGE_PROBABILITY = 0.9545
@@ -40,6 +43,7 @@ class InputQuantity:
     dof: float = math.inf
     group: str | None = None
     distribution: str = "normal"  # "normal", "rectangular" or "exact"
+    origin: InputOrigin | None = None  # where a calibration input came from, shown in the budget
 
 
 class InputSet:
@@ -57,11 +61,13 @@ class InputSet:
         return [i.name for i in self._inputs]
 
     def add(self, name: str, value: float, standard_uncertainty: float, unit: str = "",
-            kind: str = "B", dof: float = math.inf, distribution: str = "normal") -> None:
-        """Add an independent input; ``distribution`` matters only for Monte Carlo."""
+            kind: str = "B", dof: float = math.inf, distribution: str = "normal",
+            origin: InputOrigin | None = None) -> None:
+        """Add an independent input; ``distribution`` matters only for Monte Carlo, ``origin``
+        (a calibration's file and age) is carried to the budget lines."""
         self._check_new(name)
         self._inputs.append(InputQuantity(name, float(value), float(abs(standard_uncertainty)),
-                                          unit, kind, dof, None, distribution))
+                                          unit, kind, dof, None, distribution, origin))
 
     def add_part(self, name: str, part: Any) -> None:
         """Add a :class:`wavefit.values.PartValue` as a type B input."""
@@ -218,7 +224,7 @@ def propagate_outputs(inputs: InputSet, outputs: Mapping[str, Any], variables: M
                                           float(k * u_y[r]), float(k), float(lin.degrees_of_freedom[r]))
         budget[name] = [BudgetLine(item.name, item.value, item.unit, item.standard_uncertainty, float(c),
                                    float(abs(c) * item.standard_uncertainty), float(lin.variance_share[r, i]),
-                                   item.kind, float(item.dof))
+                                   item.kind, float(item.dof), item.origin)
                         for i, (item, c) in enumerate(zip(items, lin.jacobian[r])) if c != 0.0]
     corr: dict[str, dict[str, float]] = {}
     for a, na in enumerate(names):

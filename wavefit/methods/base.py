@@ -14,6 +14,7 @@ import math
 from dataclasses import dataclass
 from typing import Any, ClassVar, Mapping
 
+from ..calibration.in_use import ChannelCalibration, channel_calibration, check_channel_mapping
 from ..curve_propagation import propagate_curves
 from ..errors import AnalysisRefused, SetupError
 from ..io.capture import Capture, Channel
@@ -62,6 +63,10 @@ class Method:
     #: the setup's ``[[captures]]`` entries, each capture bound to its entry's parts
     #: (:func:`wavefit.measurement.bind`), never matched by position.
     capture_count: ClassVar[CaptureCount] = CaptureCount(minimum=1, maximum=1)
+    #: The two voltage channels whose gain ratio the model uses, (numerator, denominator): a
+    #: setup's channel comparison then replaces that ratio (:mod:`wavefit.calibration.in_use`).
+    #: None: the method records one voltage channel and refuses a channel comparison.
+    channel_ratio_roles: ClassVar[tuple[str, str] | None] = None
 
     @property
     def quantities(self) -> tuple[str, ...]:
@@ -70,8 +75,8 @@ class Method:
         return scalar_names(self.outputs)
 
     def check_setup(self, setup: Setup) -> None:
-        """Reject unknown roles, parts, options, instrument keys and captures; require the
-        required ones."""
+        """Reject unknown roles, parts, options, instrument keys and captures, and a channel
+        comparison the method or the setup's columns cannot use; require the required ones."""
         if setup.column_files and (setup.captures or self.capture_count.minimum > 1):
             raise SetupError(f"{setup.source}: method {self.name!r} takes several captures, so a column cannot "
                              "come from one other file; give each capture's columns in its own file")
@@ -89,6 +94,7 @@ class Method:
         for part_name, part in setup.parts.items():
             self._check_unit(setup, part_name, part)
         self._check_captures(setup)
+        check_channel_mapping(setup, self.name, self.channel_ratio_roles)
 
     def _check_instrument_keys(self, setup: Setup) -> None:
         """``vertical_gain_<role>`` is valid only for a role of this method."""
@@ -197,8 +203,9 @@ class Method:
         AnalysisRefused
             From the estimate, or when a result is not physical (:meth:`check_physical`).
         """
+        channels = channel_calibration(setup, self.name, self.channel_ratio_roles)  # read once, checked
         estimate = self.estimate(measurement, setup)
-        inputs = self.inputs(estimate, measurement, setup)
+        inputs = self.inputs(estimate, measurement, setup, channels)
         names, scalars = tuple(self.outputs), scalar_names(self.outputs)
 
         def measurement_function(x: Mapping[str, Any]) -> dict[str, Any]:
@@ -210,7 +217,8 @@ class Method:
                                  {name: self.outputs[name].unit for name in scalars}, model=measurement_function)
         declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve)}
         curves = propagate_curves(inputs, outputs, declared, estimate.axes, variables)
-        warnings = (*estimate.warnings, *self.review(estimate, inputs, prop))
+        warnings = (*estimate.warnings, *self.review(estimate, inputs, prop),
+                    *(() if channels is None or channels.too_old is None else (channels.too_old,)))
         result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, estimate.fit,
                                 tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,
                                 adequate=estimate.adequate, curves=curves, fitted=estimate.blocks,
@@ -218,11 +226,14 @@ class Method:
         self.check_physical(result)
         return result
 
-    def inputs(self, estimate: Estimate, measurement: Measurement, setup: Setup) -> InputSet:
+    def inputs(self, estimate: Estimate, measurement: Measurement, setup: Setup,
+               channels: ChannelCalibration | None = None) -> InputSet:
         """The measurement function's inputs: the estimate's fitted blocks and other inputs, then
         every declared part the setup gives for all captures (type B), the timebase and the
-        vertical gain of every mapped channel. An input the model does not use has no
-        sensitivity and so no part in the result or its budget."""
+        vertical gain of every mapped channel. With a channel comparison (``channels``), its
+        gain ratio and skew are inputs (type A, with the file and its age as their origin) and
+        the ratio's denominator channel has no gain of its own. An input the model does not use
+        has no sensitivity and so no part in the result or its budget."""
         inputs = InputSet()
         for block in estimate.blocks:
             inputs.add_correlated(block.names, block.values, block.covariance, block.units,
@@ -236,8 +247,12 @@ class Method:
                 inputs.add_part(name, measurement.parts[name])
         inputs.add("timebase", 1.0, setup.timebase.standard_uncertainty, "", "B")
         for role in self.roles:
-            if role in setup.columns:
+            if role in setup.columns and (channels is None or role != channels.dropped_gain):
                 inputs.add(GAIN_KEY_PREFIX + role, 1.0, setup.gain_for(role).standard_uncertainty, "", "B")
+        if channels is not None:
+            for given in (channels.ratio, channels.skew):
+                inputs.add(given.name, given.value, given.standard_uncertainty, given.unit, "A",
+                           dof=given.degrees_of_freedom, origin=channels.origin)
         return inputs
 
 

@@ -25,6 +25,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from ..calibration.in_use import RATIO_INPUT, SKEW_INPUT
 from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
@@ -89,6 +90,7 @@ class RLStep(Method):
         "winding_capacitance": PartSpec("F", False, "self-capacitance across the inductor"),
     }
     options = {"skip": "auto", "noise": "auto"}
+    channel_ratio_roles = ("sense", "drive")
     outputs = {"L": Scalar("H"), "R": Scalar("ohm"), "tau": Scalar("s"), "R_loop": Scalar("ohm"),
                "I_final": Scalar("A"), "E": Scalar("J")}
     positive = ("L", "tau", "R_loop")
@@ -347,10 +349,17 @@ def measurement_function(x: Mapping[str, Any], has_drive: bool, parts: frozenset
     # sense impedance at the loop pole s1 = −1/tau (probe capacitance across the resistor)
     z_s = r_s / (1 - r_s * x["probe_capacitance"] / tau) if has("probe_capacitance") else r_s
     if has_drive:
-        ratio = x["vertical_gain_sense"] / x["vertical_gain_drive"]
+        # a channel comparison gives the ratio of the gains itself (wavefit.calibration.in_use)
+        ratio = x[RATIO_INPUT] if RATIO_INPUT in x else x["vertical_gain_sense"] / x["vertical_gain_drive"]
         k_dc = (x["drive_high"] - x["drive_low"]) / (x["sense_high"] - x["sense_low"]) * ratio
         r_dut = (k_dc - 1) * r_s
-        r_src = -x["q_drive_sense"] * ratio * z_s
+        q = x["q_drive_sense"]
+        if SKEW_INPUT in x:
+            # the sense record late by skew multiplies its fitted coefficient by exp(skew/tau);
+            # tau and the levels do not move (an exponential shifted in time is the same
+            # exponential with another coefficient)
+            q = q * math.e ** (x[SKEW_INPUT] / tau)
+        r_src = -q * ratio * z_s
     else:
         r_dut = x["dut_resistance"]
         r_src = x["source_resistance"]

@@ -39,7 +39,8 @@ def render(result: AnalysisResult, budget: bool = True) -> str:
             lines.append(f"  {name}:")
             for e in sorted(entries, key=lambda e: -abs(e.variance_share)):
                 lines.append(f"    {e.source:<28} {e.kind}  u = {eng(e.standard_uncertainty, e.unit, 3):<12} "
-                             f"contrib = {eng(e.contribution, unit, 3):<12} share = {100 * e.variance_share:6.2f} %")
+                             f"contrib = {eng(e.contribution, unit, 3):<12} share = {100 * e.variance_share:6.2f} %"
+                             + (f"  ({e.origin})" if e.origin is not None else ""))
     fit_lines = [f"  {key}: {value:.6g}" if isinstance(value, float) else f"  {key}: {value}"
                  for key, value in shown_details(result.fit)]
     if fit_lines:
