@@ -148,11 +148,13 @@ def _cli(args: list[str]) -> tuple[int, str, str]:
     return code, out.getvalue(), err.getvalue()
 
 
-@pytest.mark.parametrize("kind", ["flat", "noise"])
+@pytest.mark.parametrize("kind", ["flat", "noise", "sine"])
 def test_neither_step_nor_ring_is_refused(kind, tmp_path):
+    """A flat record, noise alone, and a sine that does not decay (no step, no free response)."""
     rng = np.random.default_rng(4)
     t = np.arange(4000) * 1e-6
-    values = np.full(t.size, 0.5) if kind == "flat" else rng.normal(0.0, 0.01, t.size)
+    values = {"flat": np.full(t.size, 0.5), "noise": rng.normal(0.0, 0.01, t.size),
+              "sine": 0.8 * np.sin(2 * np.pi * t / 1e-4)}[kind]
     y = ScopeModel(bits=8, full_scale=(-1.0, 1.0)).apply(values, rng)
     frame = pd.DataFrame({"Time (s)": t, "CH1 (V)": y, "CH2 (V)": ScopeModel(noise_rms=0.01, bits=8).apply(
         np.zeros(t.size), rng)})

@@ -79,8 +79,8 @@ def suggest(capture: Capture, sense_resistor: PartValue | None = None, bits: int
     step = find_step_record(capture)
     if step is not None:
         return _step_suggestion(capture, step, sense_resistor, bits)
-    raise AnalysisRefused(f"{capture.source}: the record shows neither a step nor a ring; "
-                          "check the probes, the trigger and the generator, then capture again")
+    raise AnalysisRefused(f"{capture.source}: the record shows neither a step nor a ring (or too much noise "
+                          "to tell); check the probes, the trigger and the generator, then capture again")
 
 
 def _time_column(capture: Capture) -> dict[str, str]:

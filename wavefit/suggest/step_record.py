@@ -117,7 +117,7 @@ def find_step_record(capture: Capture) -> StepRecord | None:
     if tau is None:
         return None
     sense_fit = _relaxation(t, y_sense, windows, tau)
-    if not sense_fit.residual_rms <= STEP_MAX_RESIDUAL * abs(sense_fit.settled_step):
+    if not sense_fit.residual_rms <= STEP_MAX_RESIDUAL * float(np.ptp(y_sense)):
         return None
     drive_fit = None if drive is None else _relaxation(t, np.asarray(drive.channel.values, dtype=float),
                                                         windows, tau)
