@@ -137,9 +137,9 @@ def _step_suggestion(capture: Capture, step: StepRecord, rs: PartValue | None, b
                    f"{0.5 * step.period / tau:.3g} tau; the rule of issue 17 asks at least {HALF_PERIOD_TAUS:g}")
     why.append(f"the present record holds {tau / dt:.3g} samples per tau; the rule of issue 17 asks at least "
                f"{SAMPLES_PER_TAU:g}")
-    why.append(f"next capture: tau about {eng(tau_next, 's')} (planned for ±{100 * (TAU_MARGIN - 1):.0f} %); period {eng(period, 's')} (half period "
-               f"{0.5 * period / tau_next:.3g} tau), sample interval {eng(interval, 's')} "
-               f"({tau_next / interval:.3g} samples per tau), record {eng(record, 's')} "
+    why.append(f"next capture: tau about {eng(tau_next, 's')} (planned for ±{100 * (TAU_MARGIN - 1):.0f} %); "
+               f"period {eng(period, 's')} (half period {0.5 * period / tau_next:.3g} tau), "
+               f"sample interval {eng(interval, 's')} ({tau_next / interval:.3g} samples per tau), record {eng(record, 's')} "
                f"({RECORD_PERIODS:g} periods, {next_capture['samples']:.0f} samples)")
     scales = _step_scales(step, applied, loop, bits)
     why += [_scale_line(s) for s in scales]
@@ -149,13 +149,14 @@ def _step_suggestion(capture: Capture, step: StepRecord, rs: PartValue | None, b
 
 def _sense_part(rs: PartValue | None, factor: float, loop: float | None, estimates: dict,
                 why: list[str]) -> tuple[dict[str, str], float]:
-    """The ``sense_resistor`` entry and the factor it applies to the present resistor, and the estimates in ohms and henries when this capture's
-    resistor is known. The proposed value is the nearest E12 value (IEC 60063); its
-    tolerance is written as the same relative standard uncertainty as the present one's."""
+    """The ``sense_resistor`` entry and its factor on the present resistor; the estimates in
+    ohms and henries are added when this capture's resistor is known. The proposed value is
+    the nearest E12 value (IEC 60063); its tolerance is written as the same relative
+    standard uncertainty as the present one's."""
     if rs is None:
         why.append("the present sense resistor is not given (--sense-resistor): values in ohms and L are "
                    "not known; fill in the sense resistor")
-        text = "the sense resistor you fit, value and tolerance" if factor == 1 else \
+        text = "the sense resistor of this capture, value and tolerance" if factor == 1 else \
             f"a sense resistor about {factor:.3g} times the present one, value and tolerance"
         return {"sense_resistor": EDIT + text}, factor
     if loop is not None:

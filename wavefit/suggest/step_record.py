@@ -7,6 +7,13 @@ settled. Between switching instants the record is therefore, per channel,
 and one coefficient per window. For a given tau this is linear in the levels and
 coefficients; tau is found by minimising the residual sum of squares over it (variable
 projection), so that a record whose half periods are too short to settle still gives it.
+
+References
+----------
+G. H. Golub and V. Pereyra, "The differentiation of pseudo-inverses and nonlinear least
+squares problems whose variables separate", SIAM J. Numer. Anal. 10(2), 413–432, 1973
+(variable projection; cited from memory). IEEE Std 181-2011 (state levels, reference-level
+crossings).
 """
 from __future__ import annotations
 
