@@ -112,3 +112,34 @@ def test_spec_takes_a_dcr_limit_for_any_method_but_no_other_unknown_name():
     GUARD.check_quantities(("L", "R"), "rl-step", readings=("DCR",))
     with pytest.raises(SetupError, match="DCR"):
         GUARD.check_quantities(("L", "R"), "rl-step")
+
+
+def test_batch_run_judges_the_readings_of_real_captures(tmp_path):
+    """`wavefit batch` end to end on captures of the sample lot with a `dcr` line added; only DCR
+    is limited, so each verdict follows from its reading alone (ILAC-G8 §4.2.3, w = U = 2 mΩ)."""
+    import csv
+    import gzip
+    from pathlib import Path
+
+    from wavefit.cli import main
+
+    lot = Path(__file__).resolve().parent.parent / "sample_data" / "lot_0412"
+    readings = {"part01.csv": ("0.110 ohm ±2 mohm k=2", PASS), "part02.csv": ("0.119 ohm ±2 mohm k=2",
+                CONDITIONAL_PASS), "part03.csv": ("0.125 ohm ±2 mohm k=2", FAIL)}
+    folder = tmp_path / "lot"
+    folder.mkdir()
+    for name, (reading, _) in readings.items():
+        body = gzip.decompress((lot / f"{name}.gz").read_bytes()).decode("utf-8")
+        (folder / name).write_text(f"dcr,{reading}\n{body}", encoding="utf-8")
+    (tmp_path / "spec.toml").write_text('[limits]\nDCR = "<= 0.12 ohm"\n[decision]\nrule = "guard-band"\n',
+                                        encoding="utf-8")
+    out = tmp_path / "results.csv"
+    code = main(["batch", str(folder), "--setup", str(lot / "setup.toml"), "--spec", str(tmp_path / "spec.toml"),
+                 "--out", str(out), "--workers", "1", "--json"])
+    assert code == 0
+    with out.open(encoding="utf-8", newline="") as stream:
+        rows = {Path(row["file"]).name: row for row in csv.DictReader(stream)}
+    for name, (reading, verdict) in readings.items():
+        assert rows[name]["verdict"] == verdict, rows[name]["message"]
+        assert float(rows[name]["DCR"]) == reading_from_text(reading).value
+        assert rows[name]["R"] != ""  # the fitted R beside it
