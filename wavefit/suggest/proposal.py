@@ -43,10 +43,15 @@ class Suggestion:
     reasoning: tuple[str, ...] = field(default_factory=tuple)
 
     def to_dict(self) -> dict[str, Any]:
-        return {"method": self.method, "columns": dict(self.columns), "estimates": dict(self.estimates),
-                "next_capture": dict(self.next_capture),
-                "scales": [dataclasses.asdict(s) for s in self.scales],
+        """The suggestion as JSON-ready data; a figure that is not finite is None (null)."""
+        return {"method": self.method, "columns": dict(self.columns), "estimates": _finite(self.estimates),
+                "next_capture": _finite(self.next_capture),
+                "scales": [_finite(dataclasses.asdict(s)) for s in self.scales],
                 "setup": self.setup, "reasoning": list(self.reasoning)}
+
+
+def _finite(values: dict[str, Any]) -> dict[str, Any]:
+    return {k: None if isinstance(v, float) and not math.isfinite(v) else v for k, v in values.items()}
 
 
 def suggest(capture: Capture, sense_resistor: PartValue | None = None, bits: int = 8) -> Suggestion:
@@ -73,12 +78,14 @@ def suggest(capture: Capture, sense_resistor: PartValue | None = None, bits: int
     IEEE Trans. ASSP 38(5), 814–824, 1990 (the ring's poles); JCGM 100:2008, 5.1.3
     (sensitivity of the DCR to the step ratio).
     """
-    ring = find_ring_record(capture)
-    if ring is not None:
-        return _ring_suggestion(capture, ring, bits)
+    # the step test first: it is cheap, and a ring fails it (a damped sine is not one
+    # exponential per half cycle), while the ring's fit costs seconds on a long record
     step = find_step_record(capture)
     if step is not None:
         return _step_suggestion(capture, step, sense_resistor, bits)
+    ring = find_ring_record(capture)
+    if ring is not None:
+        return _ring_suggestion(capture, ring, bits)
     raise AnalysisRefused(f"{capture.source}: the record shows neither a step nor a ring (or too much noise "
                           "to tell); check the probes, the trigger and the generator, then capture again")
 

@@ -70,5 +70,9 @@ SKIP_SAMPLES = 1
 #: undamped sine, read as sense-only windows, 3.2 %, measured in tests/test_suggest_spice.py).
 #: A first capture noisier than this is refused too: it cannot tell the shapes apart.
 STEP_MAX_RESIDUAL = 0.02
+#: Most samples the tau estimate takes (every m-th beyond): a first estimate to 10 % needs no
+#: more, and a long record then costs no more than this (the fit's sums are recomputed for
+#: about a hundred trial values of tau).
+MAX_FIT_SAMPLES = 200_000
 #: Fewest samples of a relaxation window that enters the tau estimate.
 MIN_WINDOW_SAMPLES = 3

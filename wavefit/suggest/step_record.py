@@ -26,7 +26,7 @@ from scipy import optimize
 from ..io import Capture, Channel
 from ..signal.edges import find_edges, jump_instant
 from ..signal.levels import state_levels
-from .rules import MIN_WINDOW_SAMPLES, SKIP_SAMPLES, STEP_MAX_RESIDUAL
+from .rules import MAX_FIT_SAMPLES, MIN_WINDOW_SAMPLES, SKIP_SAMPLES, STEP_MAX_RESIDUAL
 
 
 @dataclass(frozen=True)
@@ -117,8 +117,8 @@ def find_step_record(capture: Capture) -> StepRecord | None:
         switching = starts = sense.instants
         ends = _turning_points(t, np.asarray(sense.channel.values, dtype=float), sense.instants, directions)
     windows = _windows(t, starts, ends, directions)
-    if len(windows) < 2:
-        return None
+    if {state for _, _, state in windows} != {1, -1}:
+        return None  # both drive states are needed for the two settled levels
     y_sense = np.asarray(sense.channel.values, dtype=float)
     tau = _best_tau(t, y_sense, windows, capture.sample_interval)
     if tau is None:
@@ -177,26 +177,46 @@ def _windows(t: np.ndarray, starts: tuple[float, ...], ends: tuple[float, ...], 
     return out
 
 
-def _design(t: np.ndarray, windows: list[tuple[int, int, int]], tau: float) -> tuple[np.ndarray, np.ndarray]:
-    """Rows: the samples of all windows; columns: high level, low level, one exponential per window."""
-    rows = sum(stop - first for first, stop, _ in windows)
-    a = np.zeros((rows, 2 + len(windows)))
-    index = np.zeros(rows, dtype=int)
-    r = 0
-    for j, (first, stop, state) in enumerate(windows):
-        n = stop - first
-        a[r:r + n, 0 if state > 0 else 1] = 1.0
-        a[r:r + n, 2 + j] = np.exp(-(t[first:stop] - t[first]) / tau)
-        index[r:r + n] = np.arange(first, stop)
-        r += n
-    return a, index
+def _window_sums(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int]], tau: float
+                 ) -> list[tuple[int, float, float, float, float, float, float]]:
+    """Per window: state, n, Σy, Σy², Σe, Σe², Σe·y with e = exp(−(t − t_first)/tau), over every
+    :func:`_stride`-th sample."""
+    step = _stride(windows)
+    sums = []
+    for first, stop, state in windows:
+        ty, yy = t[first:stop:step], y[first:stop:step]
+        e = np.exp(-(ty - ty[0]) / tau)
+        sums.append((state, float(yy.size), float(yy.sum()), float(yy @ yy), float(e.sum()), float(e @ e),
+                     float(e @ yy)))
+    return sums
+
+
+def _stride(windows: list[tuple[int, int, int]]) -> int:
+    """Every how many samples the fit takes: all up to :data:`MAX_FIT_SAMPLES`, fewer beyond."""
+    total = sum(stop - first for first, stop, _ in windows)
+    return max(1, math.ceil(total / MAX_FIT_SAMPLES))
+
+
+def _levels_and_ss(sums: list[tuple[int, float, float, float, float, float, float]]
+                   ) -> tuple[dict[int, float], float]:
+    """Settled level per state and the residual sum of squares, each window's coefficient
+    C = e·(y − F)/(e·e) eliminated: the residual of window j is P_j·(y − F), P_j the projection
+    off its exponential, so the sum of squares is Σ‖P y‖² − 2F·(P 1)·(P y) + F²‖P 1‖², minimal
+    at F = Σ(P 1)·(P y) / Σ‖P 1‖² per state."""
+    a: dict[int, float] = {1: 0.0, -1: 0.0}
+    b: dict[int, float] = {1: 0.0, -1: 0.0}
+    c: dict[int, float] = {1: 0.0, -1: 0.0}
+    for state, n, sy, syy, se, see, sey in sums:
+        a[state] += syy - sey * sey / see
+        b[state] += sy - se * sey / see
+        c[state] += n - se * se / see
+    levels = {s: b[s] / c[s] if c[s] > 0 else math.nan for s in (1, -1)}
+    ss = sum(a[s] - (b[s] * b[s] / c[s] if c[s] > 0 else 0.0) for s in (1, -1))
+    return levels, max(ss, 0.0)
 
 
 def _residual_ss(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int]], tau: float) -> float:
-    a, index = _design(t, windows, tau)
-    coef, *_ = np.linalg.lstsq(a, y[index], rcond=None)
-    r = y[index] - a @ coef
-    return float(r @ r)
+    return _levels_and_ss(_window_sums(t, y, windows, tau))[1]
 
 
 def _best_tau(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int]], dt: float) -> float | None:
@@ -215,10 +235,11 @@ def _best_tau(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int]],
 
 
 def _relaxation(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int]], tau: float) -> Relaxation:
-    a, index = _design(t, windows, tau)
-    coef, *_ = np.linalg.lstsq(a, y[index], rcond=None)
-    residual = y[index] - a @ coef
-    return Relaxation(float(coef[0]), float(coef[1]), coef[2:], float(np.sqrt(np.mean(residual ** 2))))
+    sums = _window_sums(t, y, windows, tau)
+    levels, ss = _levels_and_ss(sums)
+    coefficients = np.array([(sey - levels[state] * se) / see for state, _, _, _, se, see, sey in sums])
+    samples = sum(n for _, n, *_ in sums)
+    return Relaxation(levels[1], levels[-1], coefficients, math.sqrt(ss / samples))
 
 
 def _period(switching: tuple[float, ...], directions: tuple[int, ...]) -> float | None:
