@@ -71,6 +71,13 @@ def build_parser() -> argparse.ArgumentParser:
     p_in.add_argument("--time-column", metavar="COLUMN",
                       help="the time column by header or 0-based place in the file, when it is not found")
 
+    p_su = sub.add_parser("suggest", help="propose a setup and the next capture's settings from a first capture")
+    p_su.add_argument("file", metavar="CAPTURE")
+    p_su.add_argument("--json", action="store_true", help="print the suggestion as JSON")
+    p_su.add_argument("--sense-resistor", metavar="VALUE",
+                      help='the sense resistor of this capture as a part value, e.g. "10 ohm ±0.1%%"')
+    p_su.add_argument("--bits", type=int, default=8, metavar="N", help="the converter's resolution (default 8)")
+
     from .batch.command import add_batch_parser
 
     add_batch_parser(sub)
@@ -86,7 +93,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.command is None:
         parser.print_help(sys.stderr)
         return EXIT_USAGE
-    handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch, "calibrate": _calibrate}[args.command]
+    handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch, "calibrate": _calibrate,
+               "suggest": _suggest}[args.command]
     try:
         return handler(args)
     except WavefitError as exc:
@@ -203,6 +211,24 @@ def _inspect(args: argparse.Namespace) -> int:
     lines += [f"  ! {w}" for w in info["warnings"]]
     lines += [f"  note: {note}" for note in info["notes"]]
     print(_shown("\n".join(lines)))
+    return EXIT_OK
+
+
+def _suggest(args: argparse.Namespace) -> int:
+    from .io import read_capture
+    from .suggest import suggest
+    from .suggest.render import render_toml
+    from .values import parse_part
+
+    if not 1 <= args.bits <= 32:
+        print("wavefit: error: --bits takes a whole number from 1 to 32", file=sys.stderr)
+        return EXIT_USAGE
+    resistor = None if args.sense_resistor is None else parse_part(args.sense_resistor, "ohm")
+    found = suggest(read_capture(args.file), sense_resistor=resistor, bits=args.bits)
+    if args.json:
+        print(json.dumps(found.to_dict(), indent=2, allow_nan=False))
+    else:
+        print(_shown(render_toml(found)), end="")
     return EXIT_OK
 
 

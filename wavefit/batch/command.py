@@ -22,6 +22,7 @@ from ..report.safe_text import visible
 from ..report.stdout import discard_stdout
 from .inputs import capture_order, expand_inputs, expand_part_folders
 from .outputs import RunFiles
+from .dcr_reading import DCR
 from .rows import Analyse, RowMaker, analyse_file, sha256_file
 from .spec import Spec, load_spec
 from .statistics import LotSummary, summarize, usable
@@ -129,7 +130,7 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     method.check_setup(setup)
     curves = curve_names(method.outputs)
     spec = load_spec(args.spec, need_limits=bool(method.quantities))
-    spec.check_quantities(method.quantities, method.name, curves)
+    spec.check_quantities(method.quantities, method.name, curves, readings=(DCR,))
     own = RunFiles(Path(args.out), Path(args.db) if args.db else None, Path(args.plot) if args.plot else None,
                    Path(args.setup), Path(args.spec), curves_path(args.out) if curves else None)
     own.check()
@@ -142,7 +143,7 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     expand = expand_part_folders if takes_entries(setup, method.capture_count) else expand_inputs
     paths = expand(args.inputs, skip=own.is_own)
     maker = RowMaker(setup, spec, tuple(method.quantities), sha256_file(args.setup), sha256_file(args.spec),
-                     __version__, analyse, with_curves=bool(curves))
+                     __version__, analyse, with_curves=bool(curves), reads_dcr=DCR in spec.limits)
     return _Plan(method, spec, own, paths, maker, args.lot or Path(args.out).stem)
 
 
@@ -154,7 +155,8 @@ def _run(args: argparse.Namespace, analyse: Analyse, stop: StopSignals, progress
     plan = _plan(args, analyse)
     with RunLock(plan.own.results):
         with stop.deferred():
-            results = ResultsFile(plan.own.results, result_columns(plan.method.quantities))
+            results = ResultsFile(plan.own.results, result_columns(
+                plan.method.quantities, DCR if plan.maker.reads_dcr else None))
             results.open()
         curves = CurvesFile(plan.own.curves) if plan.own.curves else None
         try:

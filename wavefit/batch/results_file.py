@@ -48,9 +48,14 @@ class ResultsFileError(WavefitError):
     exit_code = 3
 
 
-def result_columns(quantities: Sequence[str]) -> tuple[str, ...]:
-    """Header of a results file for a method reporting ``quantities``."""
-    value_columns = [c for name in quantities for c in (name, f"{name}_U")]
+def result_columns(quantities: Sequence[str], reading: str | None = None) -> tuple[str, ...]:
+    """Header of a results file for a method reporting ``quantities``; a ``reading`` the captures
+    carry (the ohmmeter's ``DCR``) goes right after the fitted ``R`` (after the last quantity
+    when there is none)."""
+    names = list(quantities)
+    if reading is not None:
+        names.insert(names.index("R") + 1 if "R" in names else len(names), reading)
+    value_columns = [c for name in names for c in (name, f"{name}_U")]
     return (*LEAD_COLUMNS, *value_columns, *TRACE_COLUMNS)
 
 

@@ -18,6 +18,7 @@ from ..errors import WavefitError
 from ..results import AnalysisResult
 from ..setup import Setup
 from .curves_file import curve_rows
+from .dcr_reading import DCR, dcr_reading
 from .decision import ERROR, decide_part, limit_by_model
 from .inputs import capture_files
 from .spec import Spec
@@ -52,7 +53,10 @@ class RowMaker:
     """Turns a capture path into its results row; picklable, sent once to each worker.
 
     When the method has curves (``with_curves``), the row carries the part's rows of the
-    curves file under ``"curves"`` (:func:`~wavefit.batch.curves_file.curve_rows`).
+    curves file under ``"curves"`` (:func:`~wavefit.batch.curves_file.curve_rows`). When the
+    spec limits ``DCR`` (``reads_dcr``), the part's ohmmeter reading from its capture's
+    preamble is judged beside the fitted quantities and written as ``DCR``, ``DCR_U``
+    (:mod:`wavefit.batch.dcr_reading`).
     """
 
     setup: Setup
@@ -63,16 +67,20 @@ class RowMaker:
     tool_version: str
     analyse: Analyse = analyse_file
     with_curves: bool = False
+    reads_dcr: bool = False
 
     def __call__(self, path: str) -> dict[str, Any]:
         row = self._traceability(path)
         try:
             row["capture_sha256"] = sha256_file(path)
             result = self.analyse(path, self.setup)
-            verdict, decisions = decide_part(result.quantities, self.spec)
+            quantities = dict(result.quantities)
+            if self.reads_dcr:
+                quantities[DCR] = dcr_reading(result)
+            verdict, decisions = decide_part(quantities, self.spec)
             verdict, model_reason = limit_by_model(verdict, result.adequate)
-            for name in self.quantities:
-                quantity = result.quantities.get(name)
+            for name in self.quantities + ((DCR,) if self.reads_dcr else ()):
+                quantity = quantities.get(name)
                 if quantity is not None:
                     row[name] = quantity.value
                     row[f"{name}_U"] = quantity.expanded_uncertainty

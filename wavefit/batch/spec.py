@@ -64,10 +64,14 @@ class Spec:
     guard_factor: float
     source: str = "<dict>"
 
-    def check_quantities(self, available: tuple[str, ...], method: str, curves: tuple[str, ...] = ()) -> None:
+    def check_quantities(self, available: tuple[str, ...], method: str, curves: tuple[str, ...] = (),
+                         readings: tuple[str, ...] = ()) -> None:
         """Raise a SetupError when a limit names a quantity the method does not report, or one of
-        its ``curves`` (limits apply to scalar quantities only)."""
+        its ``curves`` (limits apply to scalar quantities only). ``readings`` are quantities
+        the captures carry themselves (the ohmmeter's ``DCR``), which any method may limit."""
         for name in self.limits:
+            if name in readings:
+                continue
             if name in curves:
                 raise SetupError(f"{self.source}: limit for {name!r}, a curve of method {method!r}; limits apply to "
                                  f"its scalar quantities only: {', '.join(available) or 'none, so give no limits'}")
