@@ -14,6 +14,7 @@ import math
 from dataclasses import dataclass
 from typing import Any, ClassVar, Mapping
 
+from ..calibration.substitution import with_reference
 from ..curve_propagation import propagate_curves
 from ..errors import AnalysisRefused, SetupError
 from ..io.capture import Capture, Channel
@@ -199,10 +200,11 @@ class Method:
         """
         estimate = self.estimate(measurement, setup)
         inputs = self.inputs(estimate, measurement, setup)
+        model, substitution_warnings = with_reference(self, estimate, inputs, setup)
         names, scalars = tuple(self.outputs), scalar_names(self.outputs)
 
         def measurement_function(x: Mapping[str, Any]) -> dict[str, Any]:
-            return _declared(self.model(x, estimate.settings), names)
+            return _declared(model(x, estimate.settings), names)
 
         variables = unit_variables(inputs)
         outputs = measurement_function(variables)  # evaluated once for scalars and curves
@@ -210,7 +212,7 @@ class Method:
                                  {name: self.outputs[name].unit for name in scalars}, model=measurement_function)
         declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve)}
         curves = propagate_curves(inputs, outputs, declared, estimate.axes, variables)
-        warnings = (*estimate.warnings, *self.review(estimate, inputs, prop))
+        warnings = (*estimate.warnings, *substitution_warnings, *self.review(estimate, inputs, prop))
         result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, estimate.fit,
                                 tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,
                                 adequate=estimate.adequate, curves=curves, fitted=estimate.blocks,
