@@ -74,7 +74,17 @@ def build_parser() -> argparse.ArgumentParser:
     from .batch.command import add_batch_parser
 
     add_batch_parser(sub)
+    _add_calibrate_parser(sub)
     return parser
+
+
+def _add_calibrate_parser(sub: argparse._SubParsersAction) -> None:
+    """``wavefit calibrate``: the bench's calibration captures, one subcommand each."""
+    from .calibration.reference_command import add_reference_parser
+
+    p_cal = sub.add_parser("calibrate", help="analyse a calibration capture and write its file")
+    calibrate = p_cal.add_subparsers(dest="calibration", metavar="CALIBRATION", required=True)
+    add_reference_parser(calibrate)
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -83,7 +93,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.command is None:
         parser.print_help(sys.stderr)
         return EXIT_USAGE
-    handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch}[args.command]
+    handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch, "calibrate": _calibrate}[args.command]
     try:
         return handler(args)
     except WavefitError as exc:
@@ -171,6 +181,12 @@ def _batch(args: argparse.Namespace) -> int:
     from .batch.command import run
 
     return run(args)
+
+
+def _calibrate(args: argparse.Namespace) -> int:
+    from .calibration.reference_command import run
+
+    return {"reference": run}[args.calibration](args)
 
 
 def _inspect(args: argparse.Namespace) -> int:
