@@ -38,6 +38,7 @@ def run(args: argparse.Namespace) -> int:
     """Analyse the reference capture, write the file, print one line of what it holds."""
     from .. import __version__
     from ..analysis import prepare
+    from ..methods import get_method
     from ..numerics import collected, numerical_failures_refused
     from ..provenance import file_sha256
     from ..setup import load_setup
@@ -46,8 +47,7 @@ def run(args: argparse.Namespace) -> int:
     setup = load_setup(args.setup)
     setup = replace(setup, calibration=replace(setup.calibration, reference=None))
     quantity, known_text = _quantity_and_value(args.part)
-    prepared = prepare(args.capture, setup, args.sample_interval)
-    method = prepared.method
+    method = get_method(setup.method)
     if quantity not in method.quantities:
         raise SetupError(f"--part names {quantity!r}; method {method.name!r} reports "
                          f"{', '.join(method.quantities)}")
@@ -55,8 +55,9 @@ def run(args: argparse.Namespace) -> int:
     known = parse_part(known_text, unit)
     if not (known.value > 0 and known.standard_uncertainty > 0):
         raise SetupError(f"--part: the known value must be positive and carry its uncertainty, got {known_text!r}")
+    prepared = prepare(args.capture, setup, args.sample_interval)
     with collected(), numerical_failures_refused(prepared.captures):
-        estimate = method.estimate(prepared.measurement, prepared.setup)
+        estimate = prepared.method.estimate(prepared.measurement, prepared.setup)
     if not estimate.adequate:
         raise AnalysisRefused(f"{args.capture}: the method's model misses the reference capture; "
                               "it cannot calibrate the fixture")

@@ -46,6 +46,9 @@ BLOCK_KEYS = ("group", "type", "names", "units", "values", "covariance", "degree
 INPUT_KEYS = ("name", "value", "standard_uncertainty", "unit", "type", "degrees_of_freedom", "distribution")
 SETTING_KEYS = ("type", "value")
 CORRECTION_KEYS = ("value", "standard_uncertainty")
+#: A covariance's asymmetry allowed, relative to the two standard errors: a fit's matrix is
+#: symmetric up to rounding (a few ulps), an edited file's usually not.
+SYMMETRY_TOLERANCE = 1e-9
 #: How a setting's Python type is written (the estimates' settings hold only these types).
 SETTING_TYPES = {bool: "bool", int: "int", float: "float", str: "text", tuple: "tuple", frozenset: "set"}
 
@@ -202,8 +205,7 @@ def _block(table: Any, where: str) -> FittedBlock:
     covariance = np.array([[_number(c, "blocks.covariance", where) for c in _list(row, "blocks.covariance", where)]
                            for row in rows] if rows else np.zeros((0, 0)))
     n = len(names)
-    if not (n and len(units) == n and len(values) == n and covariance.shape == (n, n)
-            and np.allclose(covariance, covariance.T, rtol=1e-12, atol=0.0) and np.all(np.diag(covariance) >= 0)):
+    if not (n and len(units) == n and len(values) == n and covariance.shape == (n, n) and _symmetric(covariance)):
         raise SetupError(f"{where}: a block's names, units, values and covariance do not match "
                          "(a symmetric square matrix with a non-negative diagonal, one row per name)")
     dof = _number(table["degrees_of_freedom"], "blocks.degrees_of_freedom", where, infinite=True)
@@ -211,6 +213,16 @@ def _block(table: Any, where: str) -> FittedBlock:
         raise SetupError(f"{where}: a block's degrees_of_freedom must be positive")
     return FittedBlock(names, values, covariance, units, dof, group=_text(table["group"], "blocks.group", where),
                        kind=_text(table["type"], "blocks.type", where))
+
+
+def _symmetric(covariance: np.ndarray) -> bool:
+    """A covariance matrix as a fit leaves it: non-negative diagonal, symmetric to within
+    :data:`SYMMETRY_TOLERANCE` of the product of the two standard errors."""
+    diagonal = np.diag(covariance)
+    if np.any(diagonal < 0):
+        return False
+    scale = np.sqrt(np.outer(diagonal, diagonal))
+    return bool(np.all(np.abs(covariance - covariance.T) <= SYMMETRY_TOLERANCE * scale))
 
 
 def _input(table: Any, where: str) -> InputQuantity:
