@@ -102,8 +102,8 @@ def with_reference(method: "Method", estimate: "Estimate", inputs: InputSet, set
         outputs[quantity] = outputs[quantity] * x[known] / measured
         return outputs
 
-    warning = similarity_warning(quantity, uncorrected, reference)
-    return substituted, (warning,) if warning else ()
+    warnings = (similarity_warning(quantity, uncorrected, reference), _age_warning(reference, path, setup))
+    return substituted, tuple(w for w in warnings if w)
 
 
 def similarity_warning(quantity: str, uncorrected: float, reference: ReferenceSubstitution) -> str | None:
@@ -115,6 +115,16 @@ def similarity_warning(quantity: str, uncorrected: float, reference: ReferenceSu
     return (f"{quantity} is {ratio:.3g} times the reference part's {reference.known.text}: substitution corrects "
             f"the fixture only for parts within a factor {SIMILAR_VALUE_FACTOR:g} of the reference; the mismatch "
             "is not in the budget; use a reference closer in value")
+
+
+def _age_warning(reference: ReferenceSubstitution, path: Path, setup: "Setup") -> str | None:
+    """A warning when the reference is older than the setup's ``max_age_days``, else None."""
+    limit = setup.calibration.max_age_days
+    age_days = reference.age().total_seconds() / 86400.0
+    if limit is None or age_days <= limit:
+        return None
+    return (f"the reference substitution {path.name} is {age_days:.0f} days old, more than the setup's "
+            f"max_age_days = {limit:g}: capture the reference part again")
 
 
 def _add_reference_inputs(inputs: InputSet, reference: ReferenceSubstitution, known_name: str) -> None:

@@ -181,6 +181,10 @@ class Method:
     def analyze(self, measurement: Measurement, setup: Setup) -> AnalysisResult:
         """Estimate, add the declared parts and instrument figures, propagate, check, build.
 
+        With ``[calibration] reference`` the measurement function is the substituted one of
+        :func:`wavefit.calibration.substitution.with_reference` (the reference capture's
+        fitted inputs and the reference part's known value added to the inputs).
+
         Parameters
         ----------
         measurement
