@@ -144,3 +144,16 @@ def test_a_reference_of_another_method_or_wiring_is_refused(tmp_path):
                     tmp_path / "ref.toml")
     with pytest.raises(SetupError, match="other settings"):
         wavefit.analyze(tmp_path / "capture.csv", tmp_path / "setup.toml")
+
+
+def test_an_old_reference_is_warned(tmp_path):
+    write_bench(tmp_path)
+    assert calibrate(tmp_path, "L = 230 uH ±0.1%")[0] == 0
+    old = read_reference(tmp_path / "ref.toml")
+    write_reference(sample_reference(**{**old.__dict__, "made": old.made - dt.timedelta(days=40)}), tmp_path / "ref.toml")
+    (tmp_path / "aged.toml").write_text(SETUP + '[calibration]\nreference = "ref.toml"\nmax_age_days = 30\n')
+    (tmp_path / "fresh.toml").write_text(SETUP + '[calibration]\nreference = "ref.toml"\nmax_age_days = 60\n')
+    aged = wavefit.analyze(tmp_path / "capture.csv", tmp_path / "aged.toml")
+    fresh = wavefit.analyze(tmp_path / "capture.csv", tmp_path / "fresh.toml")
+    assert any("40 days old" in w for w in aged.warnings)
+    assert not any("days old" in w for w in fresh.warnings)

@@ -127,3 +127,55 @@ def test_reference_far_from_the_part_is_warned(bench, tmp_path):
     fixture_capture((0.3e-3, 1.0), seed=13).to_csv(tmp_path / "far.csv", index=False)
     result = wavefit.analyze(tmp_path / "far.csv", tmp_path / "setup.toml")
     assert any("times the reference part's" in w for w in result.warnings)
+
+
+# -- lc-ring: the tank capacitor as the shared input ----------------------------------------
+
+C_TANK_MARKED, C_TANK_REAL = 1e-9, 1.02e-9  # the real capacitor 2 % above its marking
+C_WINDING, C_PROBE_RING, R_FEED, R_PROBE_RING = 10e-12, 12e-12, 100e3, 10e6
+RING_SETUP = {"method": "lc-ring", "columns": {"time": "t", "tank": "tank"},
+              "parts": {"tank_capacitor": "1 nF ±5%", "stray_capacitance": "22 pF ±10%",
+                        "parallel_load": f"{1 / (1 / R_FEED + 1 / R_PROBE_RING)} ohm ±1%"}}
+
+
+def ring_capture(ind: float, dcr: float, seed: int) -> pd.DataFrame:
+    """A tank of the coil and the capacitor rung by a step through the feed resistor (ngspice),
+    recorded by the synthetic scope with its tank channel's gain 1.015."""
+    c_total = C_TANK_REAL + C_WINDING + C_PROBE_RING
+    dt = 2 * np.pi * np.sqrt(ind * c_total) / 30
+    netlist = f"""
+V1 in 0 PULSE(0 1 {8 * dt:.6e} {dt / 50:.6e} {dt / 50:.6e} 1 2)
+Rf in tank {R_FEED:.6g}
+L1 tank mid {ind:.6g}
+R1 mid 0 {dcr:.6g}
+Cw tank 0 {C_WINDING:.6g}
+Ct tank 0 {C_TANK_REAL:.6g}
+Rpr tank 0 {R_PROBE_RING:.6g}
+Cpr tank 0 {C_PROBE_RING:.6g}
+"""
+    t, vec = simulate(netlist, dt / 4, 40 * 30 * dt, ["v(tank)"])
+    t, v = t[::4], vec["v(tank)"][::4]
+    y = ScopeModel(noise_rms=0.01 * float(np.abs(v).max()), gain=GAIN_SENSE, bits=8).apply(v, np.random.default_rng(seed))
+    return pd.DataFrame({"t": t, "tank": y})
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_lc_ring_substitution_cancels_the_tank_capacitor(tmp_path):
+    ring_capture(1.0e-3, 20.0, seed=3).to_csv(tmp_path / "ref.csv", index=False)
+    ring_capture(1.2e-3, 24.0, seed=4).to_csv(tmp_path / "dut.csv", index=False)
+    import tomli_w
+
+    (tmp_path / "plain.toml").write_bytes(tomli_w.dumps(RING_SETUP).encode())
+    (tmp_path / "setup.toml").write_bytes(tomli_w.dumps(RING_SETUP | {"calibration": {"reference": "ref.toml"}})
+                                          .encode())
+    with contextlib.redirect_stdout(io.StringIO()):
+        assert main(["calibrate", "reference", str(tmp_path / "ref.csv"), "--setup", str(tmp_path / "plain.toml"),
+                     "--part", "L = 1 mH ±0.05%", "--out", str(tmp_path / "ref.toml")]) == 0
+    corrected = wavefit.analyze(tmp_path / "dut.csv", tmp_path / "setup.toml").quantities["L"]
+    plain = wavefit.analyze(tmp_path / "dut.csv", tmp_path / "plain.toml").quantities["L"]
+    truth = 1.2e-3
+    assert abs(plain.value / truth - 1) > 0.015  # the capacitor's 2 % is in the plain value
+    assert abs(corrected.value / truth - 1) < 0.003, corrected.value
+    assert abs(corrected.value - truth) <= corrected.expanded_uncertainty
+    assert corrected.expanded_uncertainty < 0.2 * plain.expanded_uncertainty
