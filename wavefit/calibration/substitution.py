@@ -39,7 +39,7 @@ if TYPE_CHECKING:  # imported for the annotations only: base imports this module
 
 #: Budget names of the reference capture's own inputs start with this.
 REFERENCE_PREFIX = "reference "
-#: A part whose uncorrected value is more than this factor above or below the reference's is
+#: A part whose value is more than this factor above or below the reference's is
 #: warned: the fixture's errors that depend on the value or the time scale (the probe's pole
 #: against tau, the generator's edge against tau, a winding capacitance's share) then differ by
 #: about that factor between the two captures and do not cancel. Chosen so that such errors, a
@@ -78,17 +78,16 @@ def with_reference(method: "Method", estimate: "Estimate", inputs: InputSet, set
         return method.model, ()
     reference = read_reference(path, method.name)
     where = f"reference substitution file {path}"
-    output = method.outputs.get(reference.quantity)
-    if reference.quantity not in method.quantities or output is None:
+    if reference.quantity not in method.quantities:
         raise SetupError(f"{where} corrects {reference.quantity!r}, which method {method.name!r} does not report")
-    if reference.known.unit and reference.known.unit != output.unit:
-        raise SetupError(f"{where}: the known value {reference.known.text!r} is not in {output.unit!r}")
+    unit = method.outputs[reference.quantity].unit
+    if reference.known.unit and reference.known.unit != unit:
+        raise SetupError(f"{where}: the known value {reference.known.text!r} is not in {unit!r}")
     if dict(reference.settings) != dict(estimate.settings):
         raise SetupError(f"{where} was analysed with other settings ({_shown(reference.settings)}) than this "
                          f"measurement ({_shown(estimate.settings)}); record the reference with the same wiring "
                          "and parts")
     quantity, known = reference.quantity, known_input(reference.quantity, path)
-    uncorrected = method.model({i.name: i.value for i in inputs.inputs}, estimate.settings)[quantity]
     own = {name for block in estimate.blocks for name in block.names} | {i.name for i in estimate.inputs}
     _add_reference_inputs(inputs, reference, known)
     renamed = {name: REFERENCE_PREFIX + name for block in reference.blocks for name in block.names}
@@ -102,14 +101,15 @@ def with_reference(method: "Method", estimate: "Estimate", inputs: InputSet, set
         outputs[quantity] = outputs[quantity] * x[known] / measured
         return outputs
 
-    warnings = (similarity_warning(quantity, uncorrected, reference), _age_warning(reference, path, setup))
+    corrected = substituted({i.name: i.value for i in inputs.inputs}, estimate.settings)[quantity]
+    warnings = (similarity_warning(quantity, corrected, reference), _age_warning(reference, path, setup))
     return substituted, tuple(w for w in warnings if w)
 
 
-def similarity_warning(quantity: str, uncorrected: float, reference: ReferenceSubstitution) -> str | None:
-    """A warning when the part's uncorrected value is more than :data:`SIMILAR_VALUE_FACTOR`
+def similarity_warning(quantity: str, value: float, reference: ReferenceSubstitution) -> str | None:
+    """A warning when the part's (corrected) value is more than :data:`SIMILAR_VALUE_FACTOR`
     away from the reference's known value, else None."""
-    ratio = uncorrected / reference.known.value
+    ratio = value / reference.known.value
     if 1.0 / SIMILAR_VALUE_FACTOR <= ratio <= SIMILAR_VALUE_FACTOR:
         return None
     return (f"{quantity} is {ratio:.3g} times the reference part's {reference.known.text}: substitution corrects "
