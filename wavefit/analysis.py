@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from typing import Any, Mapping, Sequence
 
 import pandas as pd
@@ -12,8 +12,9 @@ from .capture_checks import refuse_shared_columns, without_glitches
 from .errors import AnalysisRefused, CaptureError, SetupError
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
-from .measurement import bind, capture_sources
+from .measurement import Measurement, bind, capture_sources
 from .methods import get_method
+from .methods.base import Method
 from .montecarlo import DEFAULT_SEED, MEASUREMENT_DRAWS, propagate_measurement
 from .numerics import collected, numerical_failures_refused
 from .provenance import changed_files, provenance
@@ -47,7 +48,36 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         raise SetupError("a setup is needed: pass a TOML path or a dict with at least 'method'")
     if uncertainty not in UNCERTAINTY_MODES:
         raise SetupError(f"uncertainty must be one of {', '.join(UNCERTAINTY_MODES)}, got {uncertainty!r}")
-    parsed = load_setup(setup)
+    prepared = prepare(source, load_setup(setup), sample_interval)
+    with collected() as numerical, numerical_failures_refused(prepared.captures):
+        result = prepared.method.analyze(prepared.measurement, prepared.setup)
+    remark = numerical.remark()
+    if remark is not None:
+        result = replace(result, warnings=(*result.warnings, remark))
+    if uncertainty == "montecarlo":
+        result = with_monte_carlo(result, draws, seed)
+    record = provenance(prepared.as_parsed, prepared.sources, prepared.captures)
+    result = replace(result, provenance=record, warnings=(*result.warnings, *changed_files(record)))
+    return with_capture_remarks(result, prepared.captures)
+
+
+@dataclass(frozen=True)
+class Prepared:
+    """What an analysis starts from: the method, the captures bound to their parts, the setup
+    (with the time axis's uncertainty and any columns from other files), the setup as parsed,
+    and the sources the captures were read from."""
+
+    method: Method
+    measurement: Measurement
+    setup: Setup
+    as_parsed: Setup
+    sources: Sequence[Any]
+    captures: Sequence[Capture]
+
+
+def prepare(source: Any, parsed: Setup, sample_interval: float | None) -> Prepared:
+    """Check the setup against its method, read and check the captures, and bind them
+    (the steps of :func:`analyze` before the method's own analysis)."""
     as_parsed = parsed
     method = get_method(parsed.method)
     method.check_setup(parsed)
@@ -60,16 +90,7 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     refuse_shared_columns(captures, parsed.columns, parsed.source)
     captures = [without_glitches(capture) for capture in captures]
     parsed = with_time_axis_uncertainty(parsed, captures)
-    with collected() as numerical, numerical_failures_refused(captures):
-        result = method.analyze(bind(captures, parsed, entries), parsed)
-    remark = numerical.remark()
-    if remark is not None:
-        result = replace(result, warnings=(*result.warnings, remark))
-    if uncertainty == "montecarlo":
-        result = with_monte_carlo(result, draws, seed)
-    record = provenance(as_parsed, sources, captures)
-    result = replace(result, provenance=record, warnings=(*result.warnings, *changed_files(record)))
-    return with_capture_remarks(result, captures)
+    return Prepared(method, bind(captures, parsed, entries), parsed, as_parsed, sources, captures)
 
 
 def with_monte_carlo(result: AnalysisResult, draws: int, seed: int | None) -> AnalysisResult:

@@ -21,6 +21,8 @@ from ..errors import SetupError
 from ..report.safe_text import visible
 from ..values import eng_pm
 from .channel_file import ChannelComparison, ChannelRole, write_channel_comparison
+from .reference_command import add_reference_parser
+from .reference_command import run as run_reference
 
 #: The role taken as the reference channel when ``--reference`` is not given: the drive node's
 #: channel, which every two-channel setup of the fixture maps.
@@ -32,7 +34,8 @@ VOLTAGE_UNITS = ("V", "")
 
 
 def add_calibrate_parser(sub: Any) -> argparse.ArgumentParser:
-    """Add the ``calibrate`` command group (``channels`` under it) to the CLI's subparsers."""
+    """Add the ``calibrate`` command group (``channels`` and ``reference`` under it) to the CLI's
+    subparsers."""
     p = sub.add_parser("calibrate", help="turn a calibration capture into a file a setup names in [calibration]")
     kinds = p.add_subparsers(dest="calibration", metavar="KIND")
     ch = kinds.add_parser("channels", help="both probes on one node: gain ratio, offset difference and skew",
@@ -46,15 +49,20 @@ def add_calibrate_parser(sub: Any) -> argparse.ArgumentParser:
     ch.add_argument("--json", action="store_true", help="print the comparison as JSON instead of the summary")
     ch.add_argument("--sample-interval", type=float, metavar="SECONDS",
                     help="sample interval when the capture has no time column")
+    add_reference_parser(kinds)
     return p
 
 
 def run(args: argparse.Namespace) -> int:
-    """Dispatch ``wavefit calibrate KIND``; a missing KIND is a usage error."""
+    """Dispatch ``wavefit calibrate KIND`` (``channels`` or ``reference``); a missing KIND is a
+    usage error."""
     if args.calibration is None:
-        print("wavefit: error: name what to calibrate: wavefit calibrate channels CAPTURE --setup SETUP --out FILE",
+        print("wavefit: error: name what to calibrate: wavefit calibrate channels|reference CAPTURE --setup SETUP "
+              "--out FILE",
               file=sys.stderr)
         return 2
+    if args.calibration == "reference":
+        return run_reference(args)
     return _channels(args)
 
 

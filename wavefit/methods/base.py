@@ -15,6 +15,7 @@ from dataclasses import dataclass
 from typing import Any, ClassVar, Mapping
 
 from ..calibration.in_use import ChannelCalibration, channel_calibration, check_channel_mapping
+from ..calibration.substitution import with_reference
 from ..curve_propagation import propagate_curves
 from ..errors import AnalysisRefused, SetupError
 from ..io.capture import Capture, Channel
@@ -186,6 +187,10 @@ class Method:
     def analyze(self, measurement: Measurement, setup: Setup) -> AnalysisResult:
         """Estimate, add the declared parts and instrument figures, propagate, check, build.
 
+        With ``[calibration] reference`` the measurement function is the substituted one of
+        :func:`wavefit.calibration.substitution.with_reference` (the reference capture's
+        fitted inputs and the reference part's known value added to the inputs).
+
         Parameters
         ----------
         measurement
@@ -206,10 +211,11 @@ class Method:
         channels = channel_calibration(setup, self.name, self.channel_ratio_roles)  # read once, checked
         estimate = self.estimate(measurement, setup)
         inputs = self.inputs(estimate, measurement, setup, channels)
+        model, substitution_warnings = with_reference(self, estimate, inputs, setup)
         names, scalars = tuple(self.outputs), scalar_names(self.outputs)
 
         def measurement_function(x: Mapping[str, Any]) -> dict[str, Any]:
-            return _declared(self.model(x, estimate.settings), names)
+            return _declared(model(x, estimate.settings), names)
 
         variables = unit_variables(inputs)
         outputs = measurement_function(variables)  # evaluated once for scalars and curves
@@ -217,7 +223,7 @@ class Method:
                                  {name: self.outputs[name].unit for name in scalars}, model=measurement_function)
         declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve)}
         curves = propagate_curves(inputs, outputs, declared, estimate.axes, variables)
-        warnings = (*estimate.warnings, *self.review(estimate, inputs, prop),
+        warnings = (*estimate.warnings, *substitution_warnings, *self.review(estimate, inputs, prop),
                     *(() if channels is None or channels.too_old is None else (channels.too_old,)))
         result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, estimate.fit,
                                 tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,

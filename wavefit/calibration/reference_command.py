@@ -1,0 +1,97 @@
+"""``wavefit calibrate reference``: analyse a reference part's capture and write the file a
+setup names in ``[calibration] reference`` (:mod:`wavefit.calibration.reference_file`).
+
+The capture is analysed with the setup's method, wiring and parts, exactly as a part under
+test would be, but without the setup's own reference (a reference does not correct itself).
+"""
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import sys
+from dataclasses import replace
+from pathlib import Path
+from typing import Any
+
+from ..errors import AnalysisRefused, SetupError
+from ..values import eng, parse_part
+from .reference_file import ReferenceSubstitution, write_reference
+
+
+def add_reference_parser(calibrate: Any) -> argparse.ArgumentParser:
+    """Add ``reference`` to the subparsers of ``wavefit calibrate``."""
+    p = calibrate.add_parser("reference", help="analyse a reference part's capture: the fixture's correction",
+                             description="Analyse a capture of the fixture holding a reference part of known "
+                                         "value instead of the part under test, and write the file that a "
+                                         "setup names in [calibration] reference.")
+    p.add_argument("capture", metavar="CAPTURE", help="the reference part's capture (CSV, optionally .gz)")
+    p.add_argument("--setup", required=True, help="the setup of the measurements it will correct")
+    p.add_argument("--part", required=True, metavar="'Q = VALUE ±TOL'",
+                   help="the quantity the reference corrects and its known value, e.g. 'L = 100 uH ±0.1%%'")
+    p.add_argument("--out", required=True, metavar="FILE.toml", help="the reference substitution file to write")
+    p.add_argument("--sample-interval", type=float, metavar="SECONDS",
+                   help="sample interval when the capture has no time column")
+    return p
+
+
+def run(args: argparse.Namespace) -> int:
+    """Analyse the reference capture, write the file, print one line of what it holds."""
+    from .. import __version__
+    from ..analysis import prepare
+    from ..methods import get_method
+    from ..numerics import collected, numerical_failures_refused
+    from ..provenance import file_sha256
+    from ..setup import load_setup
+    from ..uncertainty import propagate
+
+    setup = load_setup(args.setup)
+    setup = replace(setup, calibration=replace(setup.calibration, reference=None))
+    quantity, known_text = _quantity_and_value(args.part)
+    method = get_method(setup.method)
+    if quantity not in method.quantities:
+        raise SetupError(f"--part names {quantity!r}; method {method.name!r} reports "
+                         f"{', '.join(method.quantities)}")
+    unit = method.outputs[quantity].unit
+    known = parse_part(known_text, unit)
+    if not (known.value > 0 and known.standard_uncertainty > 0):
+        raise SetupError(f"--part: the known value must be positive and carry its uncertainty, got {known_text!r}")
+    prepared = prepare(args.capture, setup, args.sample_interval)
+    with collected(), numerical_failures_refused(prepared.captures):
+        estimate = prepared.method.estimate(prepared.measurement, prepared.setup)
+    if not estimate.adequate:
+        raise AnalysisRefused(f"{args.capture}: the method's model misses the reference capture; "
+                              "it cannot calibrate the fixture")
+    inputs = method.inputs(estimate, prepared.measurement, prepared.setup)
+    inputs.add("known", known.value, known.standard_uncertainty, unit, "B", distribution=known.distribution)
+    prop = propagate(inputs, lambda x: _measured_and_factor(method, x, estimate.settings, quantity),
+                     {quantity: unit, "factor": ""})
+    measured, factor = prop.quantities[quantity], prop.quantities["factor"]
+    if not (measured.value > 0 and factor.value > 0):
+        raise AnalysisRefused(f"{args.capture}: {quantity} of the reference came out as {measured.value:.4g} {unit}; "
+                              "no measurement of a real part")
+    reference = ReferenceSubstitution(
+        method=method.name, quantity=quantity, known=known,
+        made=dt.datetime.now(dt.timezone.utc).replace(microsecond=0),
+        capture=str(Path(args.capture).resolve()), capture_sha256=file_sha256(args.capture),
+        tool_version=__version__, blocks=estimate.blocks, inputs=estimate.inputs, settings=dict(estimate.settings),
+        correction=(factor.value, factor.standard_uncertainty))
+    write_reference(reference, args.out)
+    for warning in dict.fromkeys(estimate.warnings):
+        print(f"wavefit: warning: {warning}", file=sys.stderr)
+    print(f"{args.out}: {quantity} of the reference measured {eng(measured.value, unit)} "
+          f"(u {eng(measured.standard_uncertainty, unit, 2)}), known {known.text}: correction factor "
+          f"{factor.value:.6f} (u {factor.standard_uncertainty:.2g}, shared inputs included)")
+    return 0
+
+
+def _measured_and_factor(method: Any, x: Any, settings: Any, quantity: str) -> dict[str, Any]:
+    measured = method.model(x, settings)[quantity]
+    return {quantity: measured, "factor": x["known"] / measured}
+
+
+def _quantity_and_value(text: str) -> tuple[str, str]:
+    """``'L = 100 uH ±0.1%'`` as ``('L', '100 uH ±0.1%')``."""
+    quantity, sep, value = text.partition("=")
+    if not sep or not quantity.strip() or not value.strip():
+        raise SetupError(f"--part must read 'QUANTITY = VALUE ±TOLERANCE' (e.g. 'L = 100 uH ±0.1%'), got {text!r}")
+    return quantity.strip(), value.strip()
