@@ -16,12 +16,7 @@ sample clock, so the interpolation error is the same at every edge: the scatter 
 it. The edges' sub-sample phases (each reference crossing's time after the first sample,
 modulo the sample interval, as a fraction of it) are tested for uniformity on the circle by
 the Rayleigh test [3]_; when they are concentrated, a type B rectangular contribution bounds
-the interpolation error (:func:`interpolation_bound`), and the skew's value stays the mean.
-
-.. [3] J. H. Zar, Biostatistical Analysis, 5th ed., Prentice Hall, 2010, 27.1 (Rayleigh test,
-   with the approximation of its probability by Greenwood and Durand, eq. 27.4; from memory).
-.. [4] JCGM 100:2008 (GUM), 4.3.7 (rectangular distribution, u = a/√3), G.4.1
-   (Welch–Satterthwaite formula) and G.4.2 (infinite degrees of freedom of a bound taken as exact).
+the interpolation error (:func:`interpolation_bound`, [4]_), and the skew's value stays the mean.
 
 References
 ----------
@@ -29,6 +24,11 @@ References
    (state levels, reference levels, mid-reference-level instants).
 .. [2] JCGM 100:2008 (GUM), 4.2.2–4.2.3 (experimental standard deviation of the mean) and
    G.3 (degrees of freedom of a type A evaluation).
+.. [3] J. H. Zar, Biostatistical Analysis, 5th ed., Prentice Hall, 2010, 27.1 (Rayleigh test,
+   with the approximation of its probability by Greenwood and Durand, eq. 27.4; from memory).
+.. [4] JCGM 100:2008 (GUM), 4.3.7 (rectangular distribution, u = a/√3), G.4.1
+   (Welch–Satterthwaite formula) and G.4.2 (a type B bound taken as exact: infinite degrees of
+   freedom; from memory).
 """
 from __future__ import annotations
 
