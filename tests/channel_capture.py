@@ -5,8 +5,9 @@ output resistance and finite edges, inductor with its resistance and winding cap
 sense resistor). Both channels record the drive node: the synthetic scope applies to each its
 own gain and offset, noise and 8-bit quantisation over the same full scale (the same
 settings), and the other channel sees the waveform ``skew`` later (it is sampled at t − skew,
-interpolated on ngspice's fine grid). The sample interval is not a divisor of the period, as
-for a generator that is not locked to the scope's clock.
+interpolated on ngspice's fine grid). By default the sample interval is not a divisor of the
+period, as for a generator that is not locked to the scope's clock; ``sample_interval`` and
+``edge`` make coherent captures (a period of a whole number of samples) with fast edges.
 """
 from __future__ import annotations
 
@@ -32,11 +33,11 @@ FULL_SCALE = (-2.0, 2.4)
 
 
 @lru_cache(maxsize=4)
-def fixture_nodes() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(t, v(drive), v(sense)) of the fixture on ngspice's fine grid."""
+def fixture_nodes(edge: float = EDGE) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(t, v(drive), v(sense)) of the fixture on ngspice's fine grid, generator edges ``edge`` s."""
     delay = 0.15 * PERIOD
     netlist = f"""
-V1 gen 0 PULSE(0 2 {delay:.6e} {EDGE:.3e} {EDGE:.3e} {PERIOD / 2 - EDGE:.6e} {PERIOD:.6e})
+V1 gen 0 PULSE(0 2 {delay:.6e} {edge:.3e} {edge:.3e} {PERIOD / 2 - edge:.6e} {PERIOD:.6e})
 Rsrc gen drive {R_SOURCE}
 L1 drive mid {INDUCTANCE:.6e}
 Rdcr mid sense {DCR}
@@ -49,11 +50,12 @@ Rsense sense 0 {R_SENSE}
 
 def comparison_frame(seed: int, *, other_node: str = "drive", periods: float | None = None,
                      full_scale: tuple[float, float] = FULL_SCALE, correlation_samples: float = 4.0,
-                     skew: float = SKEW) -> pd.DataFrame:
+                     skew: float = SKEW, sample_interval: float = SAMPLE_INTERVAL,
+                     edge: float = EDGE) -> pd.DataFrame:
     """Time, reference (CH1) and other (CH2) channels of one comparison capture."""
-    t_fine, drive, sense = fixture_nodes()
+    t_fine, drive, sense = fixture_nodes(edge)
     stop = (periods or PERIODS) * PERIOD
-    t = np.arange(0.0, stop - skew - 2 * SAMPLE_INTERVAL, SAMPLE_INTERVAL) + skew
+    t = np.arange(0.0, stop - skew - 2 * sample_interval, sample_interval) + skew
     rng = np.random.default_rng(seed)
     reference = ScopeModel(noise_rms=NOISE_RMS, correlation_samples=correlation_samples, offset=REFERENCE_OFFSET,
                            gain=REFERENCE_GAIN, bits=8, full_scale=full_scale)

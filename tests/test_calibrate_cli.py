@@ -27,9 +27,9 @@ SETUP = ('method = "rl-step"\n[columns]\ntime = "Time (s)"\nsense = "CH2"\ndrive
          '[parts]\nsense_resistor = "10 ohm ±0.1%"\n')
 
 
-def _files(tmp_path: Path, other_node: str = "drive") -> tuple[Path, Path]:
+def _files(tmp_path: Path, other_node: str = "drive", **capture_options) -> tuple[Path, Path]:
     capture = tmp_path / "comparison.csv"
-    comparison_frame(seed=7, other_node=other_node).to_csv(capture, index=False)
+    comparison_frame(seed=7, other_node=other_node, **capture_options).to_csv(capture, index=False)
     setup = tmp_path / "setup.toml"
     setup.write_text(SETUP, encoding="utf-8")
     return capture, setup
@@ -53,6 +53,21 @@ def test_writes_the_file_and_prints_the_summary(tmp_path, capsys):
         assert abs(q.value - truth) <= stats.t.ppf(0.975, q.degrees_of_freedom) * q.standard_uncertainty
     assert "gain ratio" in printed.out and "skew" in printed.out and str(out) in printed.out
     assert f"{ratio.value:.6f} ± {2 * ratio.standard_uncertainty:.6f}" in printed.out
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_coherent_sampling_is_noted_in_the_summary_the_file_and_the_json(tmp_path, capsys):
+    # 5 ns samples, a 2 µs period (400 samples), 2 ns edges: every edge at one phase of the clock
+    capture, setup = _files(tmp_path, sample_interval=5e-9, edge=2e-9, periods=6.3)
+    out = tmp_path / "channels.toml"
+    assert main(["calibrate", "channels", str(capture), "--setup", str(setup), "--out", str(out)]) == 0
+    assert "note: coherent sampling" in capsys.readouterr().out
+    skew = read_channel_comparison(out).skew
+    assert read_channel_comparison(out).note.startswith("coherent sampling")
+    assert abs(skew.value - SKEW) <= 2 * skew.standard_uncertainty
+    assert main(["calibrate", "channels", str(capture), "--setup", str(setup), "--out", str(out), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["note"].startswith("coherent sampling")
 
 
 @needs_ngspice

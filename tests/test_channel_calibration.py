@@ -113,3 +113,18 @@ def test_the_command_refuses_a_mismatched_file_in_one_line(tmp_path, capsys):
     assert main(["analyze", str(capture), "--setup", str(setup)]) == 3
     err = capsys.readouterr().err.strip()
     assert "\n" not in err and "'CH4'" in err and "'CH2'" in err
+
+
+def test_the_note_is_kept_and_a_file_without_one_still_reads(tmp_path):
+    from wavefit.calibration.channel_file import read_channel_comparison
+
+    plain = write(tmp_path / "plain.toml")  # as files were written before the note existed
+    assert "note" not in plain.read_text(encoding="utf-8")
+    assert read_channel_comparison(plain).note == ""
+    noted = tmp_path / "noted.toml"
+    write_channel_comparison(ChannelComparison(
+        ChannelRole("drive", "CH1"), ChannelRole("sense", "CH2"), Estimated(1.02, 2e-4, 40.0, ""),
+        Estimated(1e-3, 1e-4, 40.0, "V"), Estimated(2e-9, 3e-9, float("inf"), "s"), MADE, "channels.csv",
+        "0" * 64, "test", note="coherent sampling: a bound"), noted)
+    assert read_channel_comparison(noted).note == "coherent sampling: a bound"
+    assert read_channel_comparison(noted).skew.degrees_of_freedom == float("inf")

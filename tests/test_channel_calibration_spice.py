@@ -143,3 +143,30 @@ def test_the_file_may_name_the_sense_channel_as_reference(capture, tmp_path):
     direct = wavefit.analyze(capture, setup({"channels": str(comparison_file(tmp_path / "d.toml"))})).quantities["L"]
     assert inverse.value == pytest.approx(direct.value, rel=1e-12)
     assert inverse.standard_uncertainty == pytest.approx(direct.standard_uncertainty, rel=1e-6)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_a_coherent_comparison_capture_widens_u_of_L_and_keeps_the_truth_inside(capture, tmp_path):
+    """The comparison made from a capture of the drive node on both channels at the measurement's
+    sampling (1 ns, a 2 µs period of 2000 samples: coherent) with 2 ns edges: the estimator adds
+    its interpolation bound (u(skew) = 1 ns/√3), which through R_source·skew widens u(L); the
+    truth of L stays inside U."""
+    from channel_capture import comparison_frame
+    from wavefit.calibration.compare import compare_channels
+
+    frame = comparison_frame(seed=11, sample_interval=STEP, edge=2e-9, periods=6.3)
+    estimate = compare_channels(*(frame[c].to_numpy() for c in ("Time (s)", "CH1 (V)", "CH2 (V)")))
+    assert "coherent sampling" in estimate.note
+    path = tmp_path / "channels.toml"
+    write_channel_comparison(ChannelComparison(
+        ChannelRole("drive", "drive"), ChannelRole("sense", "sense"), estimate.gain_ratio,
+        estimate.offset_difference, estimate.skew, dt.datetime.now(dt.timezone.utc), "channels.csv", "0" * 64,
+        "test", note=estimate.note), path)
+    result = wavefit.analyze(capture, setup({"channels": str(path)}, gain="±1%"))
+    L = result.quantities["L"]
+    assert abs(L.value - IND) <= L.expanded_uncertainty, (L.value, L.expanded_uncertainty)
+    skew_line = next(b for b in result.budget["L"] if b.source == "skew")
+    assert skew_line.standard_uncertainty == pytest.approx(estimate.skew.standard_uncertainty)
+    print(f"coherent comparison: skew {estimate.skew.value:.4g} ± {estimate.skew.standard_uncertainty:.3g} s, "
+          f"L = {L.value:.6g} H, U/L = {L.expanded_uncertainty / L.value:.4f}, L/L_true - 1 = {L.value / IND - 1:.5f}")

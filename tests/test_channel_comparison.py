@@ -4,7 +4,9 @@ External references: ngspice's transient solution of an RL fixture's drive node 
 tests/channel_capture.py), to which the synthetic scope applies the issue's gains 0.98
 (reference) and 1.015 (other), offsets and a 3 ns skew; Student's t quantiles for the 95 %
 intervals (JCGM 100:2008, G.3); the exact mean of a quantised Gaussian variable from the
-normal distribution function (Widrow and Kollár, Quantization Noise, 2008, ch. 11).
+normal distribution function (Widrow and Kollár, Quantization Noise, 2008, ch. 11); for
+coherent sampling, the same fixture with 2 ns generator edges recorded at a sample interval
+that divides the period, and the Rayleigh test's null distribution (phases uniform on the circle).
 """
 from __future__ import annotations
 
@@ -15,11 +17,12 @@ import pytest
 from scipy import stats
 
 from wavefit.calibration.compare import compare_channels
+from wavefit.calibration.edge_skew import COHERENCE_SIGNIFICANCE, interpolation_bound, rayleigh_p
 from wavefit.calibration.quantisation_bias import mean_bias_bound
 from wavefit.errors import AnalysisRefused
 
-from channel_capture import (FULL_SCALE, OTHER_GAIN, OTHER_OFFSET, REFERENCE_GAIN, REFERENCE_OFFSET, SKEW,
-                             comparison_frame)
+from channel_capture import (FULL_SCALE, OTHER_GAIN, OTHER_OFFSET, PERIOD, REFERENCE_GAIN, REFERENCE_OFFSET,
+                             SKEW, comparison_frame)
 from spice import needs_ngspice
 
 TRUE_RATIO = OTHER_GAIN / REFERENCE_GAIN
@@ -49,6 +52,52 @@ def test_applied_ratio_offset_and_skew_lie_within_their_uncertainty():
     assert estimate.gain_ratio.standard_uncertainty < 0.005
     assert estimate.skew.standard_uncertainty < 0.1e-9
     assert estimate.edges >= 8  # every edge of 5.3 periods but one at the record's start
+    # the generator is not locked to the sample clock: the edges' phases spread, no bound is added
+    assert estimate.note == "" and estimate.skew.degrees_of_freedom == estimate.edges - 1
+
+
+#: Fast generator edges (2 ns) for the coherent captures: faster than the sampling resolves.
+FAST_EDGE = 2e-9
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+@pytest.mark.parametrize("sample_interval", [5e-9, 20e-9], ids=["5ns", "20ns"])
+def test_coherent_sampling_bounds_the_interpolation_error(sample_interval):
+    # the period is a whole number of samples (400 and 100): every edge at one phase of the clock
+    assert (PERIOD / sample_interval) == pytest.approx(round(PERIOD / sample_interval), abs=1e-9)
+    estimate = _compare(comparison_frame(seed=5, sample_interval=sample_interval, edge=FAST_EDGE, periods=6.3))
+    skew = estimate.skew
+    assert "coherent sampling" in estimate.note
+    assert _covers(skew, SKEW), (skew, SKEW)
+    # the scatter alone would have been confidently wrong: the type A part misses the truth by far
+    type_a = math.sqrt(max(skew.standard_uncertainty ** 2 - interpolation_bound(sample_interval) ** 2 / 3, 0.0))
+    assert abs(skew.value - SKEW) > 5 * type_a, (skew.value, type_a)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_a_period_off_the_sample_grid_keeps_todays_estimate():
+    # 2 µs at 1.3 ns (1538.46 samples): edges walk through the sample interval, the scatter shows
+    # the interpolation error; the skew is the plain mean with s/√n and n − 1 degrees of freedom
+    estimate = _compare(comparison_frame(seed=5, edge=FAST_EDGE, periods=6.3))
+    assert estimate.note == ""
+    assert estimate.skew.degrees_of_freedom == estimate.edges - 1
+    assert _covers(estimate.skew, SKEW), (estimate.skew, SKEW)
+
+
+@pytest.mark.parametrize("n", [5, 12])
+def test_rayleigh_false_alarms_of_uniform_phases_match_the_significance(n):
+    # under uniform phases p < 1 % should occur about 1 % of the time; 4000 draws: the binomial
+    # count at p = 0.01 lies within 40 ± 25 with probability above 99.9 %
+    rng = np.random.default_rng(n)
+    alarms = sum(rayleigh_p(rng.random(n)) < COHERENCE_SIGNIFICANCE for _ in range(4000))
+    assert 15 <= alarms <= 65, alarms
+
+
+def test_rayleigh_finds_one_phase_and_not_an_even_spread():
+    assert rayleigh_p(np.full(5, 0.37)) < COHERENCE_SIGNIFICANCE
+    assert rayleigh_p(np.arange(8) / 8) == pytest.approx(1.0)
 
 
 @needs_ngspice

@@ -35,6 +35,9 @@ KIND = "channel comparison"
 ESTIMATE_KEYS = ("gain_ratio", "offset_difference", "skew")
 TOP_LEVEL_KEYS = ("kind", "made", "tool_version", "capture", "capture_sha256", "reference", "other",
                   *ESTIMATE_KEYS)
+#: Keys a file may hold or lack: ``note``, a line on how an uncertainty was bounded (files
+#: written before it existed have none).
+OPTIONAL_KEYS = ("note",)
 ROLE_KEYS = ("role", "column")
 ESTIMATE_FIELDS = ("value", "standard_uncertainty", "degrees_of_freedom", "unit")
 
@@ -78,6 +81,9 @@ class ChannelComparison:
         The comparison capture's path and the sha256 of its bytes.
     tool_version
         The wavefit that made the file.
+    note
+        What the reader of the file should know about an estimate (e.g. a bound added to
+        u(skew) under coherent sampling); empty when nothing.
     """
 
     reference: ChannelRole
@@ -89,6 +95,7 @@ class ChannelComparison:
     capture: str
     capture_sha256: str
     tool_version: str
+    note: str = ""
 
     def age(self, now: dt.datetime | None = None) -> dt.timedelta:
         """Time since the comparison was made."""
@@ -113,6 +120,8 @@ def write_channel_comparison(comparison: ChannelComparison, path: str | os.PathL
         q: Estimated = getattr(comparison, key)
         data[key] = {"value": q.value, "standard_uncertainty": q.standard_uncertainty,
                      "degrees_of_freedom": q.degrees_of_freedom, "unit": q.unit}
+    if comparison.note:
+        data["note"] = comparison.note
     target = Path(path)
     partial = target.with_name(target.name + ".partial")
     with open(partial, "wb") as handle:
@@ -140,7 +149,7 @@ def read_channel_comparison(path: str | os.PathLike[str]) -> ChannelComparison:
     if data.get("kind") != KIND:
         raise SetupError(f"{where} is not a channel comparison (its kind is {data.get('kind')!r}, "
                          f"expected {KIND!r}); make one with 'wavefit calibrate channels'")
-    check_names(data, TOP_LEVEL_KEYS, "key", where)
+    check_names(data, TOP_LEVEL_KEYS + OPTIONAL_KEYS, "key", where)
     missing = [key for key in TOP_LEVEL_KEYS if key not in data]
     if missing:
         raise SetupError(f"{where} lacks {', '.join(missing)}; make it again with 'wavefit calibrate channels'")
@@ -158,6 +167,7 @@ def read_channel_comparison(path: str | os.PathLike[str]) -> ChannelComparison:
         capture=_text(data["capture"], "capture", where),
         capture_sha256=_text(data["capture_sha256"], "capture_sha256", where),
         tool_version=_text(data["tool_version"], "tool_version", where),
+        note=_text(data.get("note", ""), "note", where, empty=True),
     )
 
 

@@ -117,6 +117,7 @@ def _channels(args: argparse.Namespace) -> int:
         capture=str(Path(args.capture).absolute()),
         capture_sha256=file_sha256(args.capture),
         tool_version=__version__,
+        note=estimate.note,
     )
     write_channel_comparison(comparison, args.out)
     if args.json:
@@ -136,7 +137,8 @@ def _refuse_overwriting_inputs(out: str, *inputs: str) -> None:
 
 
 def as_dict(comparison: ChannelComparison, edges: int) -> dict[str, Any]:
-    """The comparison as JSON-ready data: the file's keys, ``made`` as ISO 8601, and ``edges``."""
+    """The comparison as JSON-ready data: the file's keys (``note`` "" when none), ``made`` as
+    ISO 8601, and ``edges``."""
     data: dict[str, Any] = {
         "made": comparison.made.isoformat().replace("+00:00", "Z"),
         "tool_version": comparison.tool_version,
@@ -145,6 +147,7 @@ def as_dict(comparison: ChannelComparison, edges: int) -> dict[str, Any]:
         "reference": {"role": comparison.reference.role, "column": comparison.reference.column},
         "other": {"role": comparison.other.role, "column": comparison.other.column},
         "edges": edges,
+        "note": comparison.note,
     }
     for key in ("gain_ratio", "offset_difference", "skew"):
         q = getattr(comparison, key)
@@ -156,7 +159,7 @@ def as_dict(comparison: ChannelComparison, edges: int) -> dict[str, Any]:
 
 def summary(comparison: ChannelComparison, edges: int, out: str) -> str:
     """A few lines: which channels, the three quantities as value ± U (k = 2) with their
-    degrees of freedom, the file written."""
+    degrees of freedom, the file's note if any, the file written."""
     k = SUMMARY_COVERAGE_FACTOR
     ratio, offset, skew = comparison.gain_ratio, comparison.offset_difference, comparison.skew
     rows = [("gain ratio", f"{ratio.value:.6f} ± {k * ratio.standard_uncertainty:.6f}", ratio),
@@ -165,6 +168,8 @@ def summary(comparison: ChannelComparison, edges: int, out: str) -> str:
     lines = [f"channel comparison: {comparison.other.role} ({comparison.other.column}) against "
              f"{comparison.reference.role} ({comparison.reference.column}), {edges} edges"]
     lines += [f"  {name:<18} {text:<24} ({q.degrees_of_freedom:.0f} degrees of freedom)" for name, text, q in rows]
+    if comparison.note:
+        lines.append(f"  note: {comparison.note}")
     lines.append(f"  expanded uncertainties U = {k:g}·u; written to {out}")
     return "\n".join(lines)
 

@@ -22,7 +22,8 @@ from ..errors import AnalysisRefused
 from ..signal.edges import find_edges
 from .channel_file import Estimated
 from .comparison_checks import refuse_clipped, refuse_different_shape, refuse_implausible_ratio
-from .edge_skew import pair_edges, skew_from_pairs
+from ..values import eng
+from .edge_skew import SkewEstimate, pair_edges, skew_from_pairs
 from .plateau_line import LineEstimate, plateau_line
 from .state_peaks import settled_levels
 
@@ -37,6 +38,7 @@ class ComparisonEstimate:
     edges: int
     line: LineEstimate
     shape_rms_ratio: float
+    note: str
 
 
 def compare_channels(time: np.ndarray, reference: np.ndarray, other: np.ndarray) -> ComparisonEstimate:
@@ -72,14 +74,15 @@ def compare_channels(time: np.ndarray, reference: np.ndarray, other: np.ndarray)
         raise AnalysisRefused("the comparison capture has gaps (missing values) in a channel; record it again")
     dt = float(time[1] - time[0])
     pairs = pair_edges(*(find_edges(time, y, settled_levels(y)) for y in (reference, other)))
-    skew = skew_from_pairs(pairs)
+    skew = skew_from_pairs(pairs, float(time[0]), dt)
     line = plateau_line(reference, other, pairs, float(time[0]), dt, skew.value)
     windows = [(p.start, p.stop, p.state) for p in line.plateaus]
     refuse_clipped(reference, windows, "reference")
     refuse_clipped(other, [(a + line.shift, b + line.shift, s) for a, b, s in windows], "other")
     refuse_implausible_ratio(line.ratio)
     shape = refuse_different_shape(reference, other, pairs, float(time[0]), dt, skew.value, line.ratio,
-                                   line.offset, line.reference_noise.model.sigma, line.other_noise.model.sigma)
+                                   line.offset, line.reference_noise.model.sigma, line.other_noise.model.sigma,
+                                   skew.interpolation_half_width)
     return ComparisonEstimate(
         gain_ratio=Estimated(line.ratio, math.sqrt(line.covariance[0, 0]), line.degrees_of_freedom, ""),
         offset_difference=Estimated(line.offset, math.sqrt(line.covariance[1, 1]), line.degrees_of_freedom, "V"),
@@ -87,4 +90,16 @@ def compare_channels(time: np.ndarray, reference: np.ndarray, other: np.ndarray)
         edges=skew.count,
         line=line,
         shape_rms_ratio=shape,
+        note=coherent_sampling_note(skew, dt),
     )
+
+
+def coherent_sampling_note(skew: SkewEstimate, dt: float) -> str:
+    """One line for the file and the summary when the interpolation bound was added, else ""."""
+    if not skew.coherent:
+        return ""
+    return (f"coherent sampling: the {skew.count} edges cross at one phase of the {eng(dt, 's')} sample clock "
+            f"(Rayleigh test p = {skew.phase_p:.1g}), so their scatter cannot show the interpolation error; "
+            f"u(skew) includes a rectangular bound of ±{eng(skew.interpolation_half_width, 's')} "
+            "(half a sample for each channel); a period that is not a whole number of samples, "
+            "or a faster sample rate, gives a smaller u(skew)")

@@ -69,11 +69,14 @@ def refuse_implausible_ratio(ratio: float) -> None:
 
 def refuse_different_shape(reference: np.ndarray, other: np.ndarray, pairs: list[EdgePair], t0: float,
                            dt: float, skew: float, ratio: float, offset: float, sigma_reference: float,
-                           sigma_other: float) -> float:
+                           sigma_other: float, skew_half_width: float = 0.0) -> float:
     """Refuse when the other channel is not ratio·reference(t − skew) + offset within its noise.
 
     The reference is shifted by the skew (whole samples, the rest by its local slope);
-    samples near an edge are left out. Returns the rms ratio found.
+    samples near an edge are left out. When the skew is only known within ±``skew_half_width``
+    (coherent sampling, :func:`wavefit.calibration.edge_skew.interpolation_bound`), the shift's
+    error times the reference's slope, at most ratio·half-width·rms(slope) over the samples
+    kept, is allowed besides the noise. Returns the rms ratio found.
     """
     shift = int(round(skew / dt))
     rest = skew - shift * dt
@@ -90,6 +93,9 @@ def refuse_different_shape(reference: np.ndarray, other: np.ndarray, pairs: list
             first = max(int(math.floor(a)) - EDGE_GUARD_SAMPLES, 0)
             keep[first:max(int(math.ceil(b)) + EDGE_GUARD_SAMPLES + 1, 0)] = False
     expected = math.hypot(sigma_other, ratio * sigma_reference * math.sqrt(1.0 + 0.5 * (rest / dt) ** 2))
+    if skew_half_width > 0.0 and keep.any():
+        slope = np.gradient(ref, dt)[keep]
+        expected = math.hypot(expected, ratio * skew_half_width * float(np.sqrt(np.mean(slope ** 2))))
     found = float(np.sqrt(np.mean(residual[keep] ** 2))) if keep.any() else math.inf
     if not expected > 0 or found > MAX_SHAPE_RMS_RATIO * expected:
         raise AnalysisRefused(f"the two channels do not show the same waveform (they differ by {found:.3g} V rms "
