@@ -11,6 +11,8 @@ its own.
 """
 from __future__ import annotations
 
+import hashlib
+
 import datetime as dt
 import json
 
@@ -101,6 +103,9 @@ def test_with_a_channel_comparison_L_within_0p3_percent_and_dcr_within_its_u(cap
     assert sources["skew"].sensitivity != 0.0
     # the sense channel's own gain still carries the absolute current
     assert "vertical_gain_sense" in {line.source for line in result.budget["I_final"]}
+    # the provenance names the calibration file by its bytes (sha256 of FIPS 180-4, via hashlib)
+    recorded = result.provenance["calibration_files"]["channels"]
+    assert recorded == {"file": str(cal), "sha256": hashlib.sha256(cal.read_bytes()).hexdigest()}
 
 
 @needs_ngspice

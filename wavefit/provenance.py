@@ -138,8 +138,8 @@ def provenance(setup: Setup, sources: Sequence[Any], captures: Sequence[Capture]
     Returns
     -------
     dict
-        ``tool``, ``setup``, ``setup_file``, ``captures``, ``column_files`` (see
-        ``docs/json-output.md``).
+        ``tool``, ``setup``, ``setup_file``, ``captures``, ``column_files``,
+        ``calibration_files`` (see ``docs/json-output.md``).
     """
     from . import __version__
 
@@ -154,4 +154,8 @@ def provenance(setup: Setup, sources: Sequence[Any], captures: Sequence[Capture]
         "captures": [capture_record(s, c) for s, c in zip(sources, captures)],
         "column_files": {role: {"file": str(path), "sha256": file_sha256(path)}
                          for role, path in setup.column_files.items()},
+        "calibration_files": {kind: {"file": str(path), "sha256": file_sha256(path)}
+                              for kind, path in (("channels", setup.calibration.channels),
+                                                 ("reference", setup.calibration.reference))
+                              if path is not None and path.is_file()},
     }
