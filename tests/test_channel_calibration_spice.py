@@ -11,9 +11,8 @@ its own.
 """
 from __future__ import annotations
 
-import hashlib
-
 import datetime as dt
+import hashlib
 import json
 
 import numpy as np
