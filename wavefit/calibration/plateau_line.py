@@ -11,10 +11,13 @@ long-run variance ratio ρ (an autoregressive model fitted to the plateaus' detr
 so band-limited, correlated noise counts at its true weight). When the points scatter more
 than their uncertainties allow, the covariance is scaled by the Birge ratio χ²/ν.
 
-The level means of quantised, undithered samples can be biased by up to half a code; that
-bias (:mod:`wavefit.calibration.quantisation_bias`) is the same for every plateau of one
-state, so it enters as a type B input per state and channel, propagated to the ratio and the
-offset through the two-state formulas (ratio = (H_o − L_o)/(H_r − L_r), offset = L_o − ratio·L_r).
+The plain mean of quantised, undithered samples is biased by up to half a code when the noise
+is below a code. On a record that sits on a code grid each plateau's level is therefore the
+maximum-likelihood level of the codes it hit (:mod:`wavefit.calibration.level_likelihood`),
+which has no such bias; only when the codes cannot tell the noise (levels on one code) is the
+plain mean kept, with a half-code rectangular bound per state and channel, propagated to the
+ratio and the offset through the two-state formulas (ratio = (H_o − L_o)/(H_r − L_r),
+offset = L_o − ratio·L_r).
 
 References
 ----------
@@ -39,7 +42,7 @@ from ..fit.noise_model import ARNoise, fit_ar
 from ..signal.codes import code_step
 from ..signal.edges import Edge
 from .edge_skew import EdgePair
-from .quantisation_bias import input_noise, mean_bias_bound
+from .level_likelihood import Levels, code_levels, plain_levels
 
 #: Fewest samples in a plateau's averaging window: a mean of fewer says little and its
 #: noise model (AR order up to n/20) cannot be fitted (common practice).
@@ -64,15 +67,16 @@ class Plateau:
 @dataclass(frozen=True)
 class ChannelNoise:
     """A channel's noise on the plateaus: its AR model, code step (None: not on a grid) and the
-    bound of the quantisation bias of a level mean."""
+    plateaus' levels estimated on it."""
 
     model: ARNoise
     step: float | None
-    bias_bound: float
+    levels: Levels
 
-    def mean_uncertainty(self, samples: int) -> float:
-        """Standard uncertainty of the mean of ``samples`` consecutive samples: σ·√(ρ/n)."""
-        return self.model.sigma * math.sqrt(self.model.long_run_ratio() / samples)
+    @property
+    def bias_bound(self) -> float:
+        """Half-width of the rectangular bound of a level's remaining quantisation error."""
+        return self.levels.bias_bound
 
 
 @dataclass(frozen=True)
@@ -122,10 +126,13 @@ def _detrended(y: np.ndarray) -> np.ndarray:
 
 def channel_noise(y: np.ndarray, windows: list[tuple[int, int]]) -> ChannelNoise:
     """AR noise model of a channel from its detrended plateau windows, with its code step and
-    the bound of the quantisation bias of a level mean."""
+    the windows' levels: from their codes on a grid, their plain means otherwise."""
     model = fit_ar([_detrended(y[a:b]) for a, b in windows])
     step = code_step(y)
-    return ChannelNoise(model, step, mean_bias_bound(step, input_noise(model.sigma, step)))
+    rho = model.long_run_ratio()
+    if step is None or not model.sigma > 0:
+        return ChannelNoise(model, step, plain_levels(y, windows, model.sigma, rho, 0.0))
+    return ChannelNoise(model, step, code_levels(y, windows, step, model.sigma, rho))
 
 
 def plateau_line(reference: np.ndarray, other: np.ndarray, pairs: list[EdgePair], t0: float, dt: float,
@@ -153,14 +160,13 @@ def plateau_line(reference: np.ndarray, other: np.ndarray, pairs: list[EdgePair]
                                   "means cannot be judged; record the raw acquisition, not an averaged or "
                                   "computed waveform")
     plateaus = []
-    for a, b, state in windows:
+    for (a, b, state), x_level, y_level in zip(windows, ref_noise.levels.values, oth_noise.levels.values):
         x = reference[a:b]
         slope = float(np.polyfit(np.arange(x.size) * dt, x, 1)[0])
-        plateaus.append(Plateau(a, b, state, float(x.mean()) - slope * rest,
-                                float(other[a + shift:b + shift].mean())))
+        plateaus.append(Plateau(a, b, state, float(x_level) - slope * rest, float(y_level)))
     n = np.array([p.stop - p.start for p in plateaus])
-    u_x = np.array([ref_noise.mean_uncertainty(k) for k in n])
-    u_y = np.array([oth_noise.mean_uncertainty(k) for k in n])
+    u_x = np.sqrt(ref_noise.levels.variances)
+    u_y = np.sqrt(oth_noise.levels.variances)
     line = york_line(np.array([p.reference_mean for p in plateaus]), np.array([p.other_mean for p in plateaus]),
                      u_x, u_y)
     birge = line.chi2 / line.dof if line.dof > 0 else 1.0
