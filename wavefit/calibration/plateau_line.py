@@ -186,8 +186,11 @@ def _noise_dof(reference: ChannelNoise, other: ChannelNoise, samples: int) -> fl
 
 def _quantisation_covariance(plateaus: list[Plateau], ratio: float, reference: ChannelNoise,
                              other: ChannelNoise) -> np.ndarray:
-    """Covariance of (ratio, offset) from a bias of each state's level mean on each channel,
-    rectangular with half-width the bias bound (the two-state formulas' sensitivities)."""
+    """Covariance of (ratio, offset) from what the levels share within a channel, through the
+    two-state formulas' sensitivities: a rectangular bound of each state's level error on each
+    channel (independent), and the error of the channel's σ̂, which moves every level i of it
+    by g_i·δσ (fully correlated)."""
+    low = np.array([p.state < 0 for p in plateaus])
     low_r = float(np.mean([p.reference_mean for p in plateaus if p.state < 0]))
     high_r = float(np.mean([p.reference_mean for p in plateaus if p.state > 0]))
     amplitude = high_r - low_r
@@ -200,4 +203,11 @@ def _quantisation_covariance(plateaus: list[Plateau], ratio: float, reference: C
          -low_r / amplitude],
     ])
     u = np.array([reference.bias_bound] * 2 + [other.bias_bound] * 2) / math.sqrt(3.0)
-    return jacobian @ np.diag(u ** 2) @ jacobian.T
+    covariance = jacobian @ np.diag(u ** 2) @ jacobian.T
+    for place, noise in ((0, reference), (2, other)):
+        g = noise.levels.sigma_sensitivity
+        shift = np.zeros(4)
+        shift[place:place + 2] = [float(np.mean(g[low])), float(np.mean(g[~low]))]
+        column = jacobian @ shift
+        covariance = covariance + noise.levels.sigma_variance * np.outer(column, column)
+    return covariance
