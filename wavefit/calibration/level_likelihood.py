@@ -25,8 +25,9 @@ likelihood allows (deviance below ρ·χ²₁(0.99)), the levels are fitted at t
 middle, and the interval's half-width, over √3, is σ's standard uncertainty in the same
 shared term (JCGM 100:2008, 4.3.7). Only when no such interval is found (the codes allow any
 σ up to a code) is the level the plain mean with its quantisation error bounded by half a
-code, rectangular (JCGM 100:2008, F.2.2.1). A level's own variance never exceeds that of the
-half-code rectangle: whatever σ, a level whose samples read one code lies within that code.
+code, rectangular (JCGM 100:2008, F.2.2.1); so too when a level's variance from the counts
+reaches the half-code rectangle's (its samples on one code, the codes place it nowhere within
+that code: an error shared by all plateaus of its state, not independent between them).
 
 References
 ----------
@@ -114,8 +115,9 @@ def code_levels(y: np.ndarray, windows: list[tuple[int, int]], step: float, sigm
         level_info, sensitivity, sigma_info = grouped.information(fit.values, float(fit.sigma[0]))
         sigma_variance = long_run_ratio / sigma_info if sigma_info > 0 else math.inf
         if math.sqrt(sigma_variance) <= MAX_SIGMA_RELATIVE_UNCERTAINTY * fit.sigma[0]:
-            return grouped.levels(fit.values, level_info, long_run_ratio, float(fit.sigma[0]), sigma_variance,
-                                  sensitivity)
+            found = grouped.levels(fit.values, level_info, long_run_ratio, float(fit.sigma[0]), sigma_variance,
+                                   sensitivity)
+            return found or plain_levels(y, windows, sigma, long_run_ratio, 0.5 * step)
     interval = grouped.sigma_interval(long_run_ratio)
     if interval is None:
         return plain_levels(y, windows, sigma, long_run_ratio, 0.5 * step)
@@ -125,7 +127,8 @@ def code_levels(y: np.ndarray, windows: list[tuple[int, int]], step: float, sigm
     if not fit.converged:
         return plain_levels(y, windows, sigma, long_run_ratio, 0.5 * step)
     level_info, sensitivity, _ = grouped.information(fit.values, middle)
-    return grouped.levels(fit.values, level_info, long_run_ratio, middle, (high - low) ** 2 / 12.0, sensitivity)
+    found = grouped.levels(fit.values, level_info, long_run_ratio, middle, (high - low) ** 2 / 12.0, sensitivity)
+    return found or plain_levels(y, windows, sigma, long_run_ratio, 0.5 * step)
 
 
 class _Grouped:
@@ -140,7 +143,6 @@ class _Grouped:
         self.design[np.arange(self.codes.size), self.owner] = 1.0
         self.start = np.array([float(np.mean(b)) for b in blocks])
         self.spread = float(np.sqrt(np.mean((self.codes - self.start[self.owner]) ** 2)))
-        self.single_code = np.array([np.ptp(b) == 0 for b in blocks])
 
     def fit(self, sigma: float | None) -> CodeFit:
         """Levels and σ (or the levels at the given σ) of greatest likelihood."""
@@ -162,13 +164,14 @@ class _Grouped:
         return level_info, sensitivity, sigma_info
 
     def levels(self, values: np.ndarray, level_info: np.ndarray, long_run_ratio: float, sigma: float,
-               sigma_variance: float, sensitivity: np.ndarray) -> Levels:
-        """The levels with their variances (ρ/I_μμ, at most a half-code rectangle's)."""
-        rectangle = self.step ** 2 / 12.0
+               sigma_variance: float, sensitivity: np.ndarray) -> Levels | None:
+        """The levels with their variances ρ/I_μμ; None when one of them is as uncertain as a
+        half-code rectangle (a level the codes place nowhere within its code, whose error is
+        then the same on every plateau of its state, not independent)."""
         with np.errstate(divide="ignore"):
-            variances = np.minimum(long_run_ratio / level_info, rectangle)
-        # a level capped at the rectangle no longer moves with σ in its stated uncertainty
-        sensitivity = np.where(variances < rectangle, sensitivity, 0.0)
+            variances = long_run_ratio / level_info
+        if not np.all(variances < self.step ** 2 / 12.0):
+            return None
         return Levels(values, variances, sigma, sigma_variance, sensitivity, 0.0)
 
     def sigma_interval(self, long_run_ratio: float) -> tuple[float, float] | None:
