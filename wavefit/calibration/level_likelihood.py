@@ -56,8 +56,9 @@ from ..signal.codes import code_grid
 #: so the counts carry no information on where in the code it sits.
 MIN_SIGMA_CODES = 0.1
 #: Largest relative standard uncertainty of σ̂ for which a level's shift with σ is taken as
-#: linear (g_i·δσ): beyond it the codes barely tell σ (levels that each straddle one threshold
-#: and no more), and the half-code bound is the honest statement.
+#: linear (g_i·δσ) with σ̂'s Fisher variance: beyond it the codes barely tell σ (levels that
+#: each straddle one threshold and no more), the likelihood in σ is far from a parabola, and
+#: σ's profile-likelihood interval is used instead.
 MAX_SIGMA_RELATIVE_UNCERTAINTY = 0.25
 #: σ/Δ grid on which the profile likelihood is searched for σ's interval: from MIN_SIGMA_CODES
 #: to one code (above it the plain mean's bias is below 1e-8 Δ, Widrow and Kollár ch. 11) in
@@ -181,7 +182,7 @@ class _Grouped:
         profile = np.full(sigmas.size, -math.inf)
         for k, s in enumerate(sigmas):
             fit = self.fit(float(s))
-            if fit.converged or np.all(np.isfinite(fit.values)):
+            if np.all(np.isfinite(fit.values)):  # converged or not: a level on one code has no variance
                 profile[k] = log_likelihood(self.codes, fit.values[self.owner], np.full(self.codes.size, s),
                                             self.step)
         inside = 2.0 * (np.max(profile) - profile) <= long_run_ratio * PROFILE_DEVIANCE
