@@ -14,10 +14,11 @@ than their uncertainties allow, the covariance is scaled by the Birge ratio χ²
 The plain mean of quantised, undithered samples is biased by up to half a code when the noise
 is below a code. On a record that sits on a code grid each plateau's level is therefore the
 maximum-likelihood level of the codes it hit (:mod:`wavefit.calibration.level_likelihood`),
-which has no such bias; only when the codes cannot tell the noise (levels on one code) is the
-plain mean kept, with a half-code rectangular bound per state and channel, propagated to the
-ratio and the offset through the two-state formulas (ratio = (H_o − L_o)/(H_r − L_r),
-offset = L_o − ratio·L_r).
+which has no such bias, and York's weights are its own variances. What the levels of one
+channel share — the error of its noise σ̂, which moves them all together, or, when the codes
+cannot tell the noise (levels on one code), the half-code rectangular bound of the plain
+means per state — is propagated to the ratio and the offset through the two-state formulas
+(ratio = (H_o − L_o)/(H_r − L_r), offset = L_o − ratio·L_r).
 
 References
 ----------
@@ -55,7 +56,7 @@ DETREND_DEGREE = 2
 @dataclass(frozen=True)
 class Plateau:
     """One plateau: the averaging window (reference samples ``start``..``stop``), the state
-    (+1 high), and the two channels' means over it."""
+    (+1 high), and the two channels' levels over it (means, or fitted to the codes)."""
 
     start: int
     stop: int
