@@ -51,15 +51,15 @@ Rsense sense 0 {R_SENSE}
 def comparison_frame(seed: int, *, other_node: str = "drive", periods: float | None = None,
                      full_scale: tuple[float, float] = FULL_SCALE, correlation_samples: float = 4.0,
                      skew: float = SKEW, sample_interval: float = SAMPLE_INTERVAL,
-                     edge: float = EDGE) -> pd.DataFrame:
+                     edge: float = EDGE, noise_rms: float = NOISE_RMS) -> pd.DataFrame:
     """Time, reference (CH1) and other (CH2) channels of one comparison capture."""
     t_fine, drive, sense = fixture_nodes(edge)
     stop = (periods or PERIODS) * PERIOD
     t = np.arange(0.0, stop - skew - 2 * sample_interval, sample_interval) + skew
     rng = np.random.default_rng(seed)
-    reference = ScopeModel(noise_rms=NOISE_RMS, correlation_samples=correlation_samples, offset=REFERENCE_OFFSET,
+    reference = ScopeModel(noise_rms=noise_rms, correlation_samples=correlation_samples, offset=REFERENCE_OFFSET,
                            gain=REFERENCE_GAIN, bits=8, full_scale=full_scale)
-    other = ScopeModel(noise_rms=NOISE_RMS, correlation_samples=correlation_samples, offset=OTHER_OFFSET,
+    other = ScopeModel(noise_rms=noise_rms, correlation_samples=correlation_samples, offset=OTHER_OFFSET,
                        gain=OTHER_GAIN, bits=8, full_scale=full_scale)
     seen = {"drive": drive, "sense": sense}[other_node]
     ch1 = reference.apply(np.interp(t, t_fine, drive), rng)

@@ -11,10 +11,14 @@ long-run variance ratio ρ (an autoregressive model fitted to the plateaus' detr
 so band-limited, correlated noise counts at its true weight). When the points scatter more
 than their uncertainties allow, the covariance is scaled by the Birge ratio χ²/ν.
 
-The level means of quantised, undithered samples can be biased by up to half a code; that
-bias (:mod:`wavefit.calibration.quantisation_bias`) is the same for every plateau of one
-state, so it enters as a type B input per state and channel, propagated to the ratio and the
-offset through the two-state formulas (ratio = (H_o − L_o)/(H_r − L_r), offset = L_o − ratio·L_r).
+The plain mean of quantised, undithered samples is biased by up to half a code when the noise
+is below a code. On a record that sits on a code grid each plateau's level is therefore the
+maximum-likelihood level of the codes it hit (:mod:`wavefit.calibration.level_likelihood`),
+which has no such bias, and York's weights are its own variances. What the levels of one
+channel share — the error of its noise σ̂, which moves them all together, or, when the codes
+cannot tell the noise (levels on one code), the half-code rectangular bound of the plain
+means per state — is propagated to the ratio and the offset through the two-state formulas
+(ratio = (H_o − L_o)/(H_r − L_r), offset = L_o − ratio·L_r).
 
 References
 ----------
@@ -39,7 +43,7 @@ from ..fit.noise_model import ARNoise, fit_ar
 from ..signal.codes import code_step
 from ..signal.edges import Edge
 from .edge_skew import EdgePair
-from .quantisation_bias import input_noise, mean_bias_bound
+from .level_likelihood import Levels, code_levels, plain_levels
 
 #: Fewest samples in a plateau's averaging window: a mean of fewer says little and its
 #: noise model (AR order up to n/20) cannot be fitted (common practice).
@@ -52,7 +56,7 @@ DETREND_DEGREE = 2
 @dataclass(frozen=True)
 class Plateau:
     """One plateau: the averaging window (reference samples ``start``..``stop``), the state
-    (+1 high), and the two channels' means over it."""
+    (+1 high), and the two channels' levels over it (means, or fitted to the codes)."""
 
     start: int
     stop: int
@@ -64,15 +68,16 @@ class Plateau:
 @dataclass(frozen=True)
 class ChannelNoise:
     """A channel's noise on the plateaus: its AR model, code step (None: not on a grid) and the
-    bound of the quantisation bias of a level mean."""
+    plateaus' levels estimated on it."""
 
     model: ARNoise
     step: float | None
-    bias_bound: float
+    levels: Levels
 
-    def mean_uncertainty(self, samples: int) -> float:
-        """Standard uncertainty of the mean of ``samples`` consecutive samples: σ·√(ρ/n)."""
-        return self.model.sigma * math.sqrt(self.model.long_run_ratio() / samples)
+    @property
+    def bias_bound(self) -> float:
+        """Half-width of the rectangular bound of a level's remaining quantisation error."""
+        return self.levels.bias_bound
 
 
 @dataclass(frozen=True)
@@ -122,10 +127,13 @@ def _detrended(y: np.ndarray) -> np.ndarray:
 
 def channel_noise(y: np.ndarray, windows: list[tuple[int, int]]) -> ChannelNoise:
     """AR noise model of a channel from its detrended plateau windows, with its code step and
-    the bound of the quantisation bias of a level mean."""
+    the windows' levels: from their codes on a grid, their plain means otherwise."""
     model = fit_ar([_detrended(y[a:b]) for a, b in windows])
     step = code_step(y)
-    return ChannelNoise(model, step, mean_bias_bound(step, input_noise(model.sigma, step)))
+    rho = model.long_run_ratio()
+    if step is None or not model.sigma > 0:
+        return ChannelNoise(model, step, plain_levels(y, windows, model.sigma, rho, 0.0))
+    return ChannelNoise(model, step, code_levels(y, windows, step, model.sigma, rho))
 
 
 def plateau_line(reference: np.ndarray, other: np.ndarray, pairs: list[EdgePair], t0: float, dt: float,
@@ -153,14 +161,13 @@ def plateau_line(reference: np.ndarray, other: np.ndarray, pairs: list[EdgePair]
                                   "means cannot be judged; record the raw acquisition, not an averaged or "
                                   "computed waveform")
     plateaus = []
-    for a, b, state in windows:
+    for (a, b, state), x_level, y_level in zip(windows, ref_noise.levels.values, oth_noise.levels.values):
         x = reference[a:b]
         slope = float(np.polyfit(np.arange(x.size) * dt, x, 1)[0])
-        plateaus.append(Plateau(a, b, state, float(x.mean()) - slope * rest,
-                                float(other[a + shift:b + shift].mean())))
+        plateaus.append(Plateau(a, b, state, float(x_level) - slope * rest, float(y_level)))
     n = np.array([p.stop - p.start for p in plateaus])
-    u_x = np.array([ref_noise.mean_uncertainty(k) for k in n])
-    u_y = np.array([oth_noise.mean_uncertainty(k) for k in n])
+    u_x = np.sqrt(ref_noise.levels.variances)
+    u_y = np.sqrt(oth_noise.levels.variances)
     line = york_line(np.array([p.reference_mean for p in plateaus]), np.array([p.other_mean for p in plateaus]),
                      u_x, u_y)
     birge = line.chi2 / line.dof if line.dof > 0 else 1.0
@@ -180,8 +187,11 @@ def _noise_dof(reference: ChannelNoise, other: ChannelNoise, samples: int) -> fl
 
 def _quantisation_covariance(plateaus: list[Plateau], ratio: float, reference: ChannelNoise,
                              other: ChannelNoise) -> np.ndarray:
-    """Covariance of (ratio, offset) from a bias of each state's level mean on each channel,
-    rectangular with half-width the bias bound (the two-state formulas' sensitivities)."""
+    """Covariance of (ratio, offset) from what the levels share within a channel, through the
+    two-state formulas' sensitivities: a rectangular bound of each state's level error on each
+    channel (independent), and the error of the channel's σ̂, which moves every level i of it
+    by g_i·δσ (fully correlated)."""
+    low = np.array([p.state < 0 for p in plateaus])
     low_r = float(np.mean([p.reference_mean for p in plateaus if p.state < 0]))
     high_r = float(np.mean([p.reference_mean for p in plateaus if p.state > 0]))
     amplitude = high_r - low_r
@@ -194,4 +204,11 @@ def _quantisation_covariance(plateaus: list[Plateau], ratio: float, reference: C
          -low_r / amplitude],
     ])
     u = np.array([reference.bias_bound] * 2 + [other.bias_bound] * 2) / math.sqrt(3.0)
-    return jacobian @ np.diag(u ** 2) @ jacobian.T
+    covariance = jacobian @ np.diag(u ** 2) @ jacobian.T
+    for place, noise in ((0, reference), (2, other)):
+        g = noise.levels.sigma_sensitivity
+        shift = np.zeros(4)
+        shift[place:place + 2] = [float(np.mean(g[low])), float(np.mean(g[~low]))]
+        column = jacobian @ shift
+        covariance = covariance + noise.levels.sigma_variance * np.outer(column, column)
+    return covariance
