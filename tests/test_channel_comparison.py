@@ -9,6 +9,7 @@ distribution (phases uniform on the circle).
 """
 from __future__ import annotations
 
+import math
 
 import numpy as np
 import pytest
