@@ -24,9 +24,9 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Mapping
 
-import tomli_w
 
 from ..errors import SetupError
+from .toml_file import write_toml_whole
 
 #: The ``kind`` written in every channel comparison file, checked when one is read.
 KIND = "channel comparison"
@@ -122,13 +122,7 @@ def write_channel_comparison(comparison: ChannelComparison, path: str | os.PathL
                      "degrees_of_freedom": q.degrees_of_freedom, "unit": q.unit}
     if comparison.note:
         data["note"] = comparison.note
-    target = Path(path)
-    partial = target.with_name(target.name + ".partial")
-    with open(partial, "wb") as handle:
-        tomli_w.dump(data, handle)
-        handle.flush()
-        os.fsync(handle.fileno())
-    os.replace(partial, target)
+    write_toml_whole(data, path)
 
 
 def read_channel_comparison(path: str | os.PathLike[str]) -> ChannelComparison:

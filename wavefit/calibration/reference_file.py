@@ -31,12 +31,12 @@ from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
-import tomli_w
 
 from ..errors import SetupError
 from ..fitted import FittedBlock
 from ..uncertainty import InputQuantity
 from ..values import PartValue, parse_part
+from .toml_file import write_toml_whole
 
 #: The ``kind`` written in every reference substitution file, checked when one is read.
 KIND = "reference substitution"
@@ -113,13 +113,7 @@ def write_reference(reference: ReferenceSubstitution, path: str | os.PathLike[st
         "settings": {key: _setting(key, value) for key, value in reference.settings.items()},
         "correction": {"value": reference.correction[0], "standard_uncertainty": reference.correction[1]},
     }
-    target = Path(path)
-    partial = target.with_name(target.name + ".partial")
-    with open(partial, "wb") as handle:
-        tomli_w.dump(data, handle)
-        handle.flush()
-        os.fsync(handle.fileno())
-    os.replace(partial, target)
+    write_toml_whole(data, path)
 
 
 def read_reference(path: str | os.PathLike[str], method: str | None = None) -> ReferenceSubstitution:
