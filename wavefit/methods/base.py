@@ -58,6 +58,9 @@ class Method:
     #: Quantities that only a physical part has positive (L > 0, tau > 0, ...): a result with
     #: one of them at or below zero is refused, never reported.
     positive: ClassVar[tuple[str, ...]] = ()
+    #: Outputs a measurement may not give (a saturation current the pulse did not reach): the
+    #: model returns ``None`` for them, the result omits them and the estimate's warnings say why.
+    optional: ClassVar[tuple[str, ...]] = ()
     #: What to check when a result is refused as not physical (named in the message).
     unphysical_hint: ClassVar[str] = ""
     #: How many captures one measurement takes. A method that takes several gets them from
@@ -212,16 +215,18 @@ class Method:
         estimate = self.estimate(measurement, setup)
         inputs = self.inputs(estimate, measurement, setup, channels)
         model, substitution_warnings = with_reference(self, estimate, inputs, setup)
-        names, scalars = tuple(self.outputs), scalar_names(self.outputs)
+        variables = unit_variables(inputs)
+        given = model(variables, estimate.settings)  # evaluated once for scalars and curves
+        names = tuple(n for n in self.outputs if n not in self.optional or given.get(n) is not None)
+        scalars = tuple(n for n in scalar_names(self.outputs) if n in names)
 
         def measurement_function(x: Mapping[str, Any]) -> dict[str, Any]:
             return _declared(model(x, estimate.settings), names)
 
-        variables = unit_variables(inputs)
-        outputs = measurement_function(variables)  # evaluated once for scalars and curves
+        outputs = _declared(given, names)
         prop = propagate_outputs(inputs, {name: outputs[name] for name in scalars}, variables,
                                  {name: self.outputs[name].unit for name in scalars}, model=measurement_function)
-        declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve)}
+        declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve) and name in names}
         curves = propagate_curves(inputs, outputs, declared, estimate.axes, variables)
         warnings = (*estimate.warnings, *substitution_warnings, *self.review(estimate, inputs, prop),
                     *(() if channels is None or channels.too_old is None else (channels.too_old,)))
@@ -264,7 +269,7 @@ class Method:
 
 def _declared(outputs: Mapping[str, Any], names: tuple[str, ...]) -> dict[str, Any]:
     """The outputs ``names`` from what a measurement function returned, in that order."""
-    missing = [name for name in names if name not in outputs]
+    missing = [name for name in names if outputs.get(name) is None]
     if missing:
         raise KeyError(f"the measurement function returned no {', '.join(missing)}")
     return {name: outputs[name] for name in names}

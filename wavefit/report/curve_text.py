@@ -13,14 +13,24 @@ import numpy as np
 from ..results import CurveResult
 from ..values import eng, eng_pm
 
+#: A terminal table shows at most about this many points of a curve (evenly spaced, the
+#: last one always); JSON and CSV carry every point.
+MAX_TABLE_ROWS = 21
+
 
 def curve_lines(curve: CurveResult, budget: bool = True) -> list[str]:
     """The report lines of one curve (a title, a table, and its budget when ``budget``)."""
     axis_head = f"{curve.axis_name} ({curve.axis_unit})" if curve.axis_unit else curve.axis_name
     lines = [f"  {curve.name} against {axis_head}:",
              f"    {curve.axis_name:<14}  {'value ± U':<28}  k     u_rel"]
-    for x, v, u, big_u, k in zip(curve.axis_values, curve.values, curve.standard_uncertainty,
-                                 curve.expanded_uncertainty, curve.coverage_factor):
+    count = len(curve.values)
+    stride = max(1, math.ceil((count - 1) / (MAX_TABLE_ROWS - 1))) if count > MAX_TABLE_ROWS else 1
+    shown = sorted(set(range(0, count, stride)) | {count - 1}) if count else []
+    if stride > 1:
+        lines[0] = f"{lines[0][:-1]} (every {stride}th of {count} points; --json and --csv give all):"
+    for j in shown:
+        x, v, u, big_u, k = (curve.axis_values[j], curve.values[j], curve.standard_uncertainty[j],
+                             curve.expanded_uncertainty[j], curve.coverage_factor[j])
         rel = u / abs(v) if v else math.inf
         lines.append(f"    {eng(float(x), curve.axis_unit):<14}  {eng_pm(float(v), float(big_u), curve.unit):<28}  "
                      f"{float(k):4.2f}  {rel:8.2e}")

@@ -1,0 +1,495 @@
+"""Saturation method "pulse-ramp": inductance against current from the current ramp of a voltage pulse.
+
+A charged capacitor bank (or a stiff supply) is switched across the coil for a short pulse;
+the current ramps up, faster where the core saturates. With the coil's terminal voltage v
+and its current i recorded, Faraday's law with the winding's resistive drop removed gives
+the flux linkage λ(t) = λ(t_on) + ∫ (v − R·i) dt, and
+
+* the incremental inductance L_inc(i) = dλ/di = (v − R·i) / (di/dt),
+* the apparent (secant) inductance L_app(i) = λ(i) / i,
+* the energy stored up to a current, E = ∫ i dλ = ∫₀^I i·L_inc(i) di.
+
+The current and the voltage of each pulse are fitted by least-squares cubic regression
+splines on the same knots (:mod:`wavefit.fit.spline_regression`; knot count by Schwarz's
+criterion, knots at equal steps of the current), so di/dt is the derivative of a smooth
+fit, not a difference of noisy samples, and the value, slope and integral of either
+channel anywhere in the pulse are the spline coefficients times fixed basis rows. The
+curves are reported on a fixed grid of currents: at each grid current the instant where the
+fitted current reaches it is found at the estimates and the measurement function carries it
+to first order (a Newton step) when the inputs move, so the sensitivity of every point to
+the current scale, the shunt, the gains and the offsets is exact to first order and the
+curve's full covariance keeps the correlation between neighbouring points. Several pulses
+are averaged point by point (equal weights).
+
+Scalars: ``L0``, the small-current inductance, the intercept of L_inc = L0 − b·I² fitted to
+the lowest :data:`L0_SPAN` of the fitted current range; ``I_sat_10``, ``I_sat_20``, ``I_sat_30``, where
+L_inc has fallen by 10, 20, 30 % from L0 (the saturation current of IEC 62024-2 is defined
+by a stated fall of inductance; the fractions are option ``saturation_drops``); ``E`` up to
+the highest current all pulses reach; ``I_peak``. Option ``at_currents`` gives the curve
+``L_at``: L_inc at the currents named.
+
+Safety: the bank stores C·V²/2 and the coil L·I²/2 at the peak; without a freewheeling path
+the coil's current, interrupted, makes a voltage spike that hurts people and destroys scope
+inputs. See ``docs/method-pulse-ramp.md``.
+
+References
+----------
+.. [1] IEC 62024-2:2020, High frequency inductive components - Electrical characteristics and
+   measuring methods - Part 2: Rated current of inductors for DC-to-DC converters
+   (saturation current by a stated fall of inductance; from memory of its scope).
+.. [2] C. de Boor, *A Practical Guide to Splines*, Springer 2001 (B-splines).
+.. [3] JCGM 100:2008 (GUM), 5.1.2 and 5.2 (propagation with correlated inputs).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Mapping
+
+import numpy as np
+from scipy.integrate import trapezoid
+from uncertainties import correlated_values
+
+from ..errors import AnalysisRefused, SetupError
+from ..fit.engine import Block, fit_least_squares
+from ..fit.spline_regression import SplineCurve, choose_interior_knots, fit_spline, knots_at_steps
+from ..fit_summary import FitSummary, optional_entry
+from ..measurement import Measurement
+from ..outputs import Axis, Curve, Scalar
+from ..results import TracePlot
+from ..setup import Setup
+from ..signal.clipping import extremes
+from ..values import parse_number_with_unit
+from . import register
+from ._pulses import Pulse, find_pulses
+from .base import Method, PartSpec
+from .estimate import Estimate, FittedBlock
+
+#: Points of the reported current grid (fine enough that linear interpolation between them
+#: for a saturation current errs far below its uncertainty).
+GRID_POINTS = 201
+#: L0 is the intercept of L_inc = L0 − b·I², fitted by least squares to the grid points in
+#: this lowest fraction of the current range: a core without bias has L_inc even in i, so
+#: its first term beyond L0 is quadratic (Taylor series); a quarter of the range averages the
+#: derivative's noise over many points while the quadratic still holds for a soft core.
+L0_SPAN = 0.25
+#: The grid stays this fraction of the range inside the fitted currents: a spline's end
+#: coefficients are fitted to few samples.
+GRID_INSET = 0.01
+#: Samples before the first pulse needed to measure the channels' offsets.
+MIN_BASELINE_SAMPLES = 16
+#: A pulse that starts at a current above this fraction of its peak did not start from rest
+#: (the previous pulse's current had not decayed).
+START_CURRENT_FRACTION = 0.02
+#: Pulses whose L0 differ by more than this many combined standard uncertainties were not
+#: measured on the same coil state (the winding warmed between them, common practice).
+HEATING_Z = 3.0
+
+
+@dataclass(frozen=True, kw_only=True)
+class RampSummary(FitSummary):
+    """The ramp fit, written under ``fit`` in the JSON.
+
+    Attributes
+    ----------
+    model
+        The fitted model.
+    pulses
+        Number of pulses fitted.
+    interior_knots
+        Interior knots of each pulse's splines (Schwarz's criterion).
+    fitted_samples
+        Samples fitted per pulse.
+    masked_after_on_s, masked_before_off_s
+        Time masked after each pulse's switch-on and before its switch-off (ringing), s.
+    current_range_A
+        Lowest and highest grid current, A.
+    peak_current_A
+        The highest fitted current of each pulse, A.
+    saturation_reached
+        Per fall fraction (percent), whether L_inc fell that far within the range.
+    """
+
+    model: str
+    pulses: int
+    interior_knots: tuple[int, ...]
+    fitted_samples: tuple[int, ...]
+    masked_after_on_s: tuple[float, ...]
+    masked_before_off_s: tuple[float, ...]
+    current_range_A: tuple[float, float]
+    peak_current_A: tuple[float, ...]
+    saturation_reached: dict[str, bool]
+    baseline_samples: int | None = optional_entry()
+
+
+@register
+class PulseRamp(Method):
+    """Inductance against current from the current ramp of a voltage pulse (module docstring)."""
+
+    name = "pulse-ramp"
+    summary = "L against current, saturation currents and flux linkage from the current ramp of a voltage pulse"
+    roles = {"current": True, "voltage": True, "supply": False}
+    parts = {
+        "shunt_resistor": PartSpec("ohm", False, "current shunt (the current column is its voltage)"),
+        "dut_resistance": PartSpec("ohm", False, "DCR of the coil (its resistive drop is removed from v)"),
+    }
+    options = {"saturation_drops": [10, 20, 30], "at_currents": []}
+    outputs = {
+        "L0": Scalar("H"),
+        "I_sat_10": Scalar("A"),
+        "I_sat_20": Scalar("A"),
+        "I_sat_30": Scalar("A"),
+        "E": Scalar("J"),
+        "I_peak": Scalar("A"),
+        "L_inc": Curve("H", axis=Axis("I", "A")),
+        "L_app": Curve("H", axis=Axis("I", "A")),
+        "flux_linkage": Curve("Wb", axis=Axis("I", "A")),
+        "L_at": Curve("H", axis=Axis("I_at", "A")),
+    }
+    optional = ("I_sat_10", "I_sat_20", "I_sat_30", "L_at")
+    positive = ("L0", "E", "I_peak", "L_inc", "L_app", "flux_linkage", "L_at")
+    unphysical_hint = "check [columns] (current and voltage) and the shunt_resistor"
+
+    def check_setup(self, setup: Setup) -> None:
+        super().check_setup(setup)
+        drops = self.option(setup, "saturation_drops")
+        if sorted(map(float, drops)) != [10.0, 20.0, 30.0]:
+            raise SetupError(f"{setup.source}: option saturation_drops must be [10, 20, 30] (the reported "
+                             f"I_sat_10, I_sat_20, I_sat_30), got {drops!r}")
+        for text in self.option(setup, "at_currents"):
+            _current(text, setup.source)
+
+    # -- estimate ------------------------------------------------------------------------------
+
+    def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
+        bound = measurement.first
+        capture, parts = bound.capture, bound.parts
+        if "dut_resistance" not in parts:
+            raise AnalysisRefused(f"{capture.source}: pulse-ramp needs the coil's DCR as part dut_resistance "
+                                  "(an ohmmeter reading): its drop R·i is removed from the coil voltage")
+        t = np.asarray(capture.time, dtype=float)
+        current = np.asarray(self.channel(capture, setup, "current").values, dtype=float)
+        voltage = np.asarray(self.channel(capture, setup, "voltage").values, dtype=float)
+        if not (np.all(np.isfinite(current)) and np.all(np.isfinite(voltage))):
+            raise AnalysisRefused(f"{capture.source}: the current or voltage channel has missing samples; "
+                                  "pulse-ramp needs a gap-free record")
+        shunt = parts["shunt_resistor"].value if "shunt_resistor" in parts else 1.0
+        dcr = parts["dut_resistance"].value
+        pulses = find_pulses(voltage)
+        if not pulses:
+            raise AnalysisRefused(f"{capture.source}: no voltage pulse found (the voltage channel never stands "
+                                  "above half its largest value for 64 samples); check [columns]")
+        warnings: list[str] = []
+        blocks: list[FittedBlock] = []
+        offsets, baseline = self._offsets(t, current, voltage, pulses[0])
+        if offsets is None:
+            warnings.append("no samples before the first pulse: the channels' offsets are taken as zero "
+                            "(record some time before the switch closes)")
+        else:
+            blocks.append(offsets)
+        off_i = offsets.values[0] if offsets is not None else 0.0
+        off_v = offsets.values[1] if offsets is not None else 0.0
+        clip_top = self._clip_level(current)
+        if clip_top is not None:
+            warnings.append("the current trace is clipped at the converter's limit: the curves end below it "
+                            "(reduce the current channel's sensitivity)")
+        ramps = []
+        for k, pulse in enumerate(pulses):
+            ramp = self._fit_ramp(t, current, voltage, pulse, k, shunt, dcr, off_i, off_v, clip_top, capture.source)
+            ramps.append(ramp)
+            blocks += [FittedBlock(ramp.current.fit.names, ramp.current.fit.values, ramp.current.fit.covariance,
+                                   ("V",) * ramp.current.size, ramp.current.fit.dof, group=f"pulse {k + 1} current"),
+                       FittedBlock(ramp.voltage.fit.names, ramp.voltage.fit.values, ramp.voltage.fit.covariance,
+                                   ("V",) * ramp.voltage.size, ramp.voltage.fit.dof, group=f"pulse {k + 1} voltage")]
+            blocks.append(FittedBlock((f"p{k + 1}_flux_before",), np.array([ramp.flux_before]),
+                                      np.array([[ramp.flux_before_u ** 2]]), ("Wb",), ramp.flux_before_dof,
+                                      group=f"pulse {k + 1} flux before the fit"))
+            if ramp.start_current > START_CURRENT_FRACTION * ramp.peak:
+                warnings.append(f"pulse {k + 1} starts at {ramp.start_current:.3g} A, not from rest (the previous "
+                                "pulse's current had not decayed): its flux linkage is counted from there")
+            for w in (*ramp.current.fit.warnings, *ramp.voltage.fit.warnings):
+                warnings.append(w)
+        low = max(r.low for r in ramps)
+        high = min(r.peak for r in ramps)
+        if not high > low:
+            raise AnalysisRefused(f"{capture.source}: the pulses share no current range to compare")
+        inset = GRID_INSET * (high - low)
+        grid = np.linspace(low + inset, high - inset, GRID_POINTS)
+        per_pulse = [r.rows(grid) for r in ramps]
+        settings = {"pulses": per_pulse, "has_offsets": offsets is not None, "has_shunt": "shunt_resistor" in parts,
+                    "grid": grid}
+        best = _curves(_nominal_inputs(blocks, parts), settings)
+        l_inc = np.asarray(best["L_inc"], dtype=float)
+        if not np.all(l_inc > 0):
+            raise AnalysisRefused(f"{capture.source}: the fitted current does not rise through the pulse "
+                                  "(L_inc not positive): check [columns] and the current's sign")
+        low_points = np.flatnonzero(grid <= grid[0] + L0_SPAN * (grid[-1] - grid[0]))
+        # L0 as a fixed linear combination of the curve's points: the intercept's row of the
+        # least-squares solution for (L0, b)
+        low_weights = np.linalg.pinv(np.column_stack((np.ones(low_points.size), -grid[low_points] ** 2)))[0]
+        l0 = float(low_weights @ l_inc[low_points])
+        drops = {int(d): _crossing(l_inc, (1 - float(d) / 100) * l0) for d in self.option(setup, "saturation_drops")}
+        missing = [d for d, j in drops.items() if j is None]
+        if missing:
+            warnings.append(f"L_inc did not fall by {', '.join(f'{d} %' for d in missing)} up to {grid[-1]:.4g} A: "
+                            f"no I_sat_{', I_sat_'.join(map(str, missing))} (a longer pulse or a larger bank voltage "
+                            "reaches further)")
+        at = np.array([_current(x, setup.source) for x in self.option(setup, "at_currents")], dtype=float)
+        outside = at[(at < grid[0]) | (at > grid[-1])]
+        if outside.size:
+            raise AnalysisRefused(f"{capture.source}: at_currents {', '.join(f'{a:g} A' for a in outside)} outside "
+                                  f"the measured range {grid[0]:.4g}–{grid[-1]:.4g} A")
+        settings.update(low_points=low_points, low_weights=low_weights, drops=drops, at=at, at_index=np.searchsorted(grid, at).clip(1, grid.size - 1))
+        heating = _heating(ramps, grid, low_points, blocks, parts, settings)
+        if heating is not None:
+            warnings.append(heating)
+        summary = RampSummary(
+            model="cubic regression splines of current and voltage per pulse; L_inc = (v − R·i)/(di/dt)",
+            pulses=len(ramps), interior_knots=tuple(r.interior for r in ramps),
+            fitted_samples=tuple(r.samples for r in ramps),
+            masked_after_on_s=tuple(float(t[p.start] - t[p.on]) for p in pulses),
+            masked_before_off_s=tuple(float(t[p.off - 1] - t[p.stop - 1]) for p in pulses),
+            current_range_A=(float(grid[0]), float(grid[-1])), peak_current_A=tuple(r.peak for r in ramps),
+            saturation_reached={str(d): j is not None for d, j in drops.items()},
+            baseline_samples=baseline)
+        plot = _trace_plot(t, current, voltage, ramps)
+        return Estimate(tuple(blocks), summary, warnings=tuple(dict.fromkeys(warnings)), plot=plot,
+                        settings=settings, axes={"I": grid, "I_at": at})
+
+    @staticmethod
+    def _offsets(t, current, voltage, first: Pulse) -> tuple[FittedBlock | None, int | None]:
+        """The channels' offsets from the samples before the first pulse (both fitted as
+        constants with the engine's noise model), or (None, None) when there are too few."""
+        stop = first.on - 2
+        if stop < MIN_BASELINE_SAMPLES:
+            return None, None
+        y = np.concatenate((current[:stop], voltage[:stop]))
+        n = stop
+        design = np.zeros((2 * n, 2))
+        design[:n, 0] = 1.0
+        design[n:, 1] = 1.0
+        fit = fit_least_squares(lambda x: y - design @ x, lambda x: -design,
+                                [float(np.mean(current[:stop])), float(np.mean(voltage[:stop]))],
+                                ["current_offset", "voltage_offset"], [Block(0, n, "current"), Block(n, 2 * n, "voltage")],
+                                model="channel offsets before the pulse")
+        return FittedBlock(fit.names, fit.values, fit.covariance, ("V", "V"), fit.dof, group="offsets"), n
+
+    @staticmethod
+    def _clip_level(current) -> float | None:
+        """The current channel's top value when the trace sits there clipped, else None."""
+        facts = extremes(current)
+        sigma = float(np.std(np.diff(current))) / np.sqrt(2.0)
+        if facts.flat(sigma) or facts.piles_up(sigma):
+            return float(np.max(current))
+        return None
+
+    @staticmethod
+    def _fit_ramp(t, current, voltage, pulse: Pulse, k: int, shunt: float, dcr: float, off_i: float, off_v: float,
+                  clip_top: float | None, source: str) -> "Ramp":
+        start, stop = pulse.start, pulse.stop
+        if clip_top is not None:
+            at_top = np.flatnonzero(current[start:stop] >= clip_top)
+            if at_top.size:
+                stop = start + int(at_top[0])
+        if stop - start < 64:
+            raise AnalysisRefused(f"{source}: pulse {k + 1} leaves fewer than 64 samples between its masked edges; "
+                                  "sample faster or lengthen the pulse")
+        seg = slice(start, stop)
+        ts, i_s, v_s = t[seg], current[seg], voltage[seg]
+        interior = choose_interior_knots(ts, [i_s, v_s], i_s)
+        knots = knots_at_steps(ts, i_s, interior)
+        i_fit = fit_spline(ts, i_s, knots, "current", f"p{k + 1}_i")
+        v_fit = fit_spline(ts, v_s, knots, "voltage", f"p{k + 1}_v")
+        # flux linkage gathered from the switch-on to the fit's start (samples, trapezoid)
+        head = slice(max(pulse.on - 1, 0), start + 1)
+        drop = (voltage[head] - off_v) - dcr * (current[head] - off_i) / shunt
+        flux_before = float(trapezoid(drop, t[head]))
+        sigma_v = v_fit.fit.noise_sigma["voltage"]
+        steps = head.stop - head.start
+        dt = float(t[1] - t[0])
+        flux_u = sigma_v * dt * np.sqrt(max(steps, 1)) + 0.5 * dt * abs(float(drop[-1]))  # noise + the
+        # half-sample uncertainty of where the switch closed
+        return Ramp(k, i_fit, v_fit, shunt, interior, stop - start, float(ts[0]), flux_before, float(flux_u),
+                    float(steps), off_i)
+
+    # -- measurement function ---------------------------------------------------------------
+
+    def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
+        """The measurement function (module docstring), with ``uncertainties`` numbers or floats."""
+        curves = _curves(x, settings)
+        grid = settings["grid"]
+        l_inc = curves["L_inc"]
+        l0 = sum(w * l_inc[j] for w, j in zip(settings["low_weights"], settings["low_points"]))
+        out = {"L0": l0, "L_inc": l_inc, "L_app": curves["L_app"], "flux_linkage": curves["flux_linkage"],
+               "I_peak": curves["I_peak"]}
+        for drop, j in settings["drops"].items():
+            out[f"I_sat_{drop}"] = None if j is None else _interpolated_crossing(grid, l_inc, j, (1 - drop / 100) * l0)
+        # E = ∫ i dλ = ∫ i·L_inc di: from zero to the grid's start at L0, then along the grid
+        head = 0.5 * l0 * grid[0] ** 2
+        trapezoid = sum(0.5 * (grid[j + 1] - grid[j]) * (grid[j] * l_inc[j] + grid[j + 1] * l_inc[j + 1])
+                        for j in range(grid.size - 1))
+        out["E"] = head + trapezoid
+        at, index = settings["at"], settings["at_index"]
+        if at.size:
+            out["L_at"] = np.array([l_inc[j - 1] + (l_inc[j] - l_inc[j - 1]) * (a - grid[j - 1]) / (grid[j] - grid[j - 1])
+                                    for a, j in zip(at, index)], dtype=object)
+        return out
+
+
+@dataclass(frozen=True)
+class Ramp:
+    """One pulse's fitted ramp: the current and voltage splines and what the grid needs."""
+
+    index: int
+    current: SplineCurve
+    voltage: SplineCurve
+    shunt: float
+    interior: int
+    samples: int
+    t_start: float
+    flux_before: float
+    flux_before_u: float
+    flux_before_dof: float
+    offset: float
+
+    @property
+    def _times(self) -> np.ndarray:
+        return np.linspace(self.current.knots[0], self.current.knots[-1], 20 * self.samples // 10 + 1)
+
+    @property
+    def low(self) -> float:
+        """The fitted current at the fit's start, A (at the estimates)."""
+        return float((self.current(np.array([self.current.knots[0]]))[0] - self.offset) / self.shunt)
+
+    @property
+    def start_current(self) -> float:
+        return self.low
+
+    @property
+    def peak(self) -> float:
+        """The highest fitted current, A (at the estimates)."""
+        return float((np.max(self.current(self._times)) - self.offset) / self.shunt)
+
+    def rows(self, grid: np.ndarray) -> dict[str, Any]:
+        """Basis rows at the instants where the fitted current reaches each grid current (the
+        first time, on the rising ramp), for the measurement function."""
+        times = self._times
+        level = np.maximum.accumulate((self.current(times) - self.offset) / self.shunt)
+        at = np.interp(grid, level, times)
+        for _ in range(3):  # Newton steps onto the spline itself
+            at = at - ((self.current(at) - self.offset) / self.shunt - grid) / (self.current(at, 1) / self.shunt)
+        t0 = self.current.knots[0]
+        return {"i_names": self.current.fit.names, "v_names": self.voltage.fit.names,
+                "B0": self.current.basis(at), "B1": self.current.basis(at, 1), "B2": self.current.basis(at, 2),
+                "V0": self.voltage.basis(at), "V1": self.voltage.basis(at, 1),
+                "Bint": self.current.basis(at, -1) - self.current.basis(np.array([t0]), -1),
+                "Vint": self.voltage.basis(at, -1) - self.voltage.basis(np.array([t0]), -1),
+                "elapsed": at - t0, "peak_rows": self.current.basis(times[[int(np.argmax(level))]]),
+                "flux_before": f"p{self.index + 1}_flux_before"}
+
+
+def _current(text: Any, source: str) -> float:
+    """A current from an option (a number in A or a string such as "2.5 A")."""
+    if isinstance(text, (int, float)) and not isinstance(text, bool):
+        return float(text)
+    try:
+        return float(parse_number_with_unit(str(text), "A"))
+    except (ValueError, SetupError) as exc:
+        raise SetupError(f"{source}: at_currents entry {text!r} is not a current ({exc})") from None
+
+
+def _linear(rows: np.ndarray, coefficients: list[Any]) -> Any:
+    """rows @ coefficients for coefficients that are numbers, uncertainties values or draws."""
+    return np.dot(rows, np.array(coefficients, dtype=object)) if not all(
+        isinstance(c, float) for c in coefficients) else rows @ np.asarray(coefficients, dtype=float)
+
+
+def _curves(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
+    """L_inc, L_app and λ on the grid (mean over pulses) and the peak current."""
+    grid = settings["grid"]
+    g_i, g_v = x["vertical_gain_current"], x["vertical_gain_voltage"]
+    timebase = x["timebase"]
+    scale = (x["shunt_resistor"] if settings["has_shunt"] else 1.0) * g_i  # recorded V per true A
+    r = x["dut_resistance"]
+    off_i = x["current_offset"] if settings["has_offsets"] else 0.0
+    off_v = x["voltage_offset"] if settings["has_offsets"] else 0.0
+    sums: dict[str, Any] = {}
+    peaks = []
+    for rows in settings["pulses"]:
+        ci = [x[n] for n in rows["i_names"]]
+        cv = [x[n] for n in rows["v_names"]]
+        i = (_linear(rows["B0"], ci) - off_i) / scale
+        di = timebase * _linear(rows["B1"], ci) / scale
+        d2i = timebase ** 2 * _linear(rows["B2"], ci) / scale
+        v = (_linear(rows["V0"], cv) - off_v) / g_v
+        dv = timebase * _linear(rows["V1"], cv) / g_v
+        u = v - r * i
+        du = dv - r * di
+        l_t = u / di
+        dl_t = (du * di - u * d2i) / di ** 2
+        shift = (grid - i) / di  # time to the grid current, to first order (zero at the estimates)
+        l_inc = l_t + dl_t * shift
+        flux = (x[rows["flux_before"]]
+                + ((_linear(rows["Vint"], cv) - off_v * rows["elapsed"]) / g_v
+                   - r * (_linear(rows["Bint"], ci) - off_i * rows["elapsed"]) / scale) / timebase
+                + u * shift)
+        for key, value in (("L_inc", l_inc), ("flux_linkage", flux)):
+            sums[key] = value if key not in sums else sums[key] + value
+        peaks.append((_linear(rows["peak_rows"], ci)[0] - off_i) / scale)
+    count = len(settings["pulses"])
+    l_inc = sums["L_inc"] / count
+    flux = sums["flux_linkage"] / count
+    return {"L_inc": l_inc, "flux_linkage": flux, "L_app": flux / grid, "I_peak": sum(peaks) / count}
+
+
+def _nominal_inputs(blocks: list[FittedBlock], parts: Mapping[str, Any]) -> dict[str, Any]:
+    """The inputs at their estimates (gains and timebase 1), for the estimate's own use."""
+    x: dict[str, Any] = {"vertical_gain_current": 1.0, "vertical_gain_voltage": 1.0, "timebase": 1.0}
+    for block in blocks:
+        x.update(zip(block.names, map(float, block.values)))
+    for name, part in parts.items():
+        x[name] = part.value
+    return x
+
+
+def _crossing(curve: np.ndarray, target: float) -> int | None:
+    """Index j of the first grid point where ``curve`` is at or below ``target`` (j ≥ 1), or None."""
+    below = np.flatnonzero(curve[1:] <= target)
+    return int(below[0]) + 1 if below.size else None
+
+
+def _interpolated_crossing(grid: np.ndarray, curve: Any, j: int, target: Any) -> Any:
+    """The current where ``curve`` reaches ``target``, by linear interpolation between grid
+    points j − 1 and j (found at the estimates)."""
+    return grid[j - 1] + (grid[j] - grid[j - 1]) * (curve[j - 1] - target) / (curve[j - 1] - curve[j])
+
+
+def _heating(ramps, grid, low_points, blocks, parts, settings) -> str | None:
+    """A warning when the first and last pulses' small-current inductances differ by more than
+    :data:`HEATING_Z` standard uncertainties of their difference (their fits' type A
+    uncertainty; the scale factors they share cancel), else None."""
+    if len(ramps) < 2:
+        return None
+    x: dict[str, Any] = _nominal_inputs(blocks, parts)
+    for block in blocks:
+        if block.group.startswith((f"pulse {ramps[0].index + 1} ", f"pulse {ramps[-1].index + 1} ")):
+            x.update(zip(block.names, correlated_values(block.values, block.covariance)))
+    first, last = (_curves(x, {**settings, "pulses": [ramp.rows(grid)]})["L_inc"] for ramp in (ramps[0], ramps[-1]))
+    weights = settings["low_weights"]
+    difference = sum(w * (first[j] - last[j]) for w, j in zip(weights, low_points))
+    if difference.std_dev > 0 and abs(difference.nominal_value) > HEATING_Z * difference.std_dev:
+        level = sum(w * first[j] for w, j in zip(weights, low_points)).nominal_value
+        return (f"the first and last pulses' L0 differ by {100 * abs(difference.nominal_value) / level:.2g} % "
+                f"({abs(difference.nominal_value) / difference.std_dev:.1f} standard uncertainties): the winding or "
+                "core changed between pulses (heating?); let it cool between pulses or use fewer")
+    return None
+
+
+def _trace_plot(t, current, voltage, ramps) -> TracePlot:
+    """The recorded channels with the fitted splines over each pulse's fit window."""
+    fitted_i = np.full(t.size, np.nan)
+    fitted_v = np.full(t.size, np.nan)
+    for ramp in ramps:
+        sel = (t >= ramp.current.knots[0]) & (t <= ramp.current.knots[-1])
+        fitted_i[sel] = ramp.current(t[sel])
+        fitted_v[sel] = ramp.voltage(t[sel])
+    return TracePlot(t, (("current", "V", current, fitted_i), ("voltage", "V", voltage, fitted_v)))
