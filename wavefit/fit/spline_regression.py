@@ -35,7 +35,7 @@ from .result import FitResult
 DEGREE = 3
 #: Interior knot counts tried by Schwarz's criterion (roughly geometric: the criterion's
 #: curve is flat near its minimum, so finer steps would not change the curve).
-INTERIOR_KNOT_COUNTS = (2, 3, 4, 6, 8, 12, 16, 24, 32, 48)
+INTERIOR_KNOT_COUNTS = (2, 3, 4, 6, 8, 12, 16, 24, 32, 48, 64, 96, 128)
 #: At least this many samples per coefficient, so that every coefficient is fitted to data
 #: (common practice for regression splines; Ruppert, Wand and Carroll 2003, §3.7).
 MIN_SAMPLES_PER_COEFFICIENT = 20

@@ -1,0 +1,122 @@
+"""pulse-ramp against closed forms of a coil under a constant voltage.
+
+External references, named beside each check:
+- a linear coil under a step of voltage V through its resistance R: i(t) = V/R·(1 − e^(−t·R/L))
+  (the RL charging law, from Faraday's law; common practice);
+- a piecewise-linear flux linkage λ(i) (slope L1 below the break current I_b, L2 above) under a
+  constant voltage with R = 0: a straight ramp of slope V/L1, then V/L2 (Faraday's law; common
+  practice), so L_inc steps from L1 to L2 at I_b;
+- splines reproduce polynomials of their degree exactly (C. de Boor, A Practical Guide to
+  Splines, 2001, ch. IX), so a cubic record is fitted with its exact derivative and integral.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import wavefit
+from wavefit.errors import AnalysisRefused
+from wavefit.fit.spline_regression import fit_spline, knots_at_steps
+from wavefit.methods._pulses import find_pulses, ring_mask_end
+
+DT = 20e-9
+SHUNT = 0.01
+SETUP = {"method": "pulse-ramp", "columns": {"time": "time", "current": "i_shunt", "voltage": "v_coil"},
+         "parts": {"shunt_resistor": "10 mohm ±0.1%", "dut_resistance": "50 mohm ±1%"},
+         "instrument": {"vertical_gain": "±1%"}}
+
+
+def capture(current: np.ndarray, voltage: np.ndarray, pre: int, rng, noise_i: float, noise_v: float,
+            post: int = 200) -> pd.DataFrame:
+    """A record with ``pre`` samples at rest before the pulse and ``post`` after it (the coil
+    voltage back at zero), white noise added to both channels (shunt volts and coil volts)."""
+    i = np.concatenate((np.zeros(pre), current, np.zeros(post))) * SHUNT
+    v = np.concatenate((np.zeros(pre), voltage, np.zeros(post)))
+    t = np.arange(i.size) * DT
+    return pd.DataFrame({"time": t, "i_shunt": i + rng.normal(0, noise_i, i.size),
+                         "v_coil": v + rng.normal(0, noise_v, v.size)})
+
+
+def test_linear_coil_gives_a_flat_curve_and_no_saturation_current():
+    # RL charging law (common practice): L = 100 µH, R = 50 mΩ, V = 12 V for 60 µs
+    L, R, V = 100e-6, 0.05, 12.0
+    t = np.arange(3000) * DT
+    i = V / R * (1 - np.exp(-t * R / L))
+    result = wavefit.analyze(capture(i, np.full(t.size, V), 400, np.random.default_rng(3), 2e-5, 5e-3), SETUP)
+    curve = result.curves["L_inc"]
+    assert np.all(np.abs(curve.values - L) <= curve.expanded_uncertainty)
+    assert np.max(np.abs(curve.values / L - 1)) < 0.01
+    l0 = result.quantities["L0"]
+    assert abs(l0.value - L) <= l0.expanded_uncertainty and abs(l0.value / L - 1) < 0.005
+    assert not {"I_sat_10", "I_sat_20", "I_sat_30"} & set(result.quantities)
+    assert any("did not fall by 10 %" in w for w in result.warnings)
+    # the energy stored at the top of the grid: L·I²/2 for a linear coil (common practice)
+    top = curve.axis_values[-1]
+    e = result.quantities["E"]
+    assert abs(e.value - 0.5 * L * top ** 2) <= e.expanded_uncertainty
+    # flux linkage of a linear coil is L·i
+    flux = result.curves["flux_linkage"]
+    assert np.all(np.abs(flux.values - L * flux.axis_values) <= flux.expanded_uncertainty)
+
+
+def test_piecewise_linear_flux_linkage_steps_at_the_break_current():
+    # λ = L1·i below I_b, L1·I_b + L2·(i − I_b) above; constant V, R = 0 (Faraday's law)
+    L1, L2, I_b, V = 100e-6, 40e-6, 4.0, 20.0
+    t = np.arange(2500) * DT
+    t_b = L1 * I_b / V
+    i = np.where(t < t_b, V * t / L1, I_b + V * (t - t_b) / L2)
+    setup = {**SETUP, "parts": {**SETUP["parts"], "dut_resistance": "1 uohm ±1%"}}  # R·i ≈ 10 µV: R = 0 to 1e-6
+    result = wavefit.analyze(capture(i, np.full(t.size, V), 400, np.random.default_rng(4), 2e-5, 5e-3), setup)
+    curve = result.curves["L_inc"]
+    current = curve.axis_values
+    below, above = current < 0.9 * I_b, current > 1.1 * I_b  # the step itself is smoothed
+    assert np.max(np.abs(curve.values[below] / L1 - 1)) < 0.03
+    assert np.max(np.abs(curve.values[above] / L2 - 1)) < 0.03
+    truth = np.where(current < I_b, L1, L2)
+    assert np.mean(np.abs(curve.values - truth) <= curve.expanded_uncertainty) >= 0.9
+    # every fall fraction below 1 − L2/L1 = 60 % is crossed within the step's smoothing
+    for name in ("I_sat_10", "I_sat_20", "I_sat_30"):
+        assert abs(result.quantities[name].value / I_b - 1) < 0.1, name
+
+
+def test_a_record_without_a_pulse_is_refused_in_one_line():
+    frame = pd.DataFrame({"time": np.arange(500) * DT, "i_shunt": np.zeros(500), "v_coil": np.zeros(500)})
+    with pytest.raises(AnalysisRefused, match="no voltage pulse"):
+        wavefit.analyze(frame, SETUP)
+
+
+def test_missing_dcr_is_refused_naming_the_part():
+    t = np.arange(2000) * DT
+    frame = capture(12.0 * t / 100e-6, np.full(t.size, 12.0), 300, np.random.default_rng(5), 2e-5, 5e-3)
+    setup = {**SETUP, "parts": {"shunt_resistor": "10 mohm ±0.1%"}}
+    with pytest.raises(AnalysisRefused, match="dut_resistance"):
+        wavefit.analyze(frame, setup)
+
+
+def test_cubic_record_is_reproduced_with_its_derivative_and_integral():
+    # de Boor (2001), ch. IX: a cubic spline space holds every cubic polynomial
+    t = np.linspace(0.0, 1.0, 2001)
+    y = 1.0 + 2.0 * t - 3.0 * t ** 2 + 0.5 * t ** 3
+    spline = fit_spline(t, y + np.random.default_rng(6).normal(0, 1e-9, t.size), knots_at_steps(t, t, 6),
+                        "signal", "c", noise="white")
+    at = np.array([0.1, 0.5, 0.9])
+    assert np.allclose(spline(at), 1 + 2 * at - 3 * at ** 2 + 0.5 * at ** 3, atol=1e-8)
+    assert np.allclose(spline(at, 1), 2 - 6 * at + 1.5 * at ** 2, atol=1e-6)
+    assert np.allclose(spline(at, -1), at + at ** 2 - at ** 3 + at ** 4 / 8, atol=1e-8)
+
+
+def test_ringing_after_the_switch_is_masked_and_quiet_edges_lose_two_samples():
+    rng = np.random.default_rng(7)
+    n = 2000
+    quiet = 10.0 + rng.normal(0, 0.01, n)
+    assert ring_mask_end(quiet) == 2
+    k = np.arange(n)
+    ringing = quiet + 2.0 * np.exp(-k / 15.0) * np.sin(2 * np.pi * k / 8.0)
+    mask = ring_mask_end(ringing)
+    # the ring's first differences fall below 5σ (σ·√2 = 0.014) near k ≈ 15·ln(2·0.7/0.07) ≈ 45;
+    # the mask doubles what was seen
+    assert 70 <= mask <= 120, mask
+    assert np.max(np.abs(ringing[mask:] - quiet[mask:])) < 0.01 * 2.0
+    pulses = find_pulses(np.concatenate((np.zeros(100), ringing, np.zeros(100))))
+    assert len(pulses) == 1 and pulses[0].on == 100 and pulses[0].start == 100 + mask
