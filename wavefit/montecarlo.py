@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Callable, Mapping
+from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
@@ -97,6 +97,13 @@ def summarise(y: np.ndarray, probability: float = COVERAGE_PROBABILITY) -> Monte
 MEASUREMENT_DRAWS = 1_000_000
 #: Draws evaluated at once: bounds the memory of a run (a few arrays of this length per input).
 CHUNK_DRAWS = 100_000
+#: Output values (draws × points) evaluated at once: a long curve's function holds a few dozen
+#: intermediate arrays of that size, so a chunk of 4·10⁶ values keeps it under about 1 GiB.
+#: (Functions with up to 40 output values keep chunks of :data:`CHUNK_DRAWS`.)
+CHUNK_VALUES = 4_000_000
+#: Most output values a run stores (draws × points, 8 bytes each: 1 GiB); beyond, the run is
+#: refused naming the draws that fit.
+MAX_STORED_VALUES = 2 ** 27
 #: The seed of the default run, so that the same analysis gives the same interval.
 DEFAULT_SEED = 12345
 
@@ -170,11 +177,31 @@ class Sampled:
             return NotImplemented
         return self._combine(ufunc, args)
 
+    def __getitem__(self, index: object) -> Sampled:
+        """Points of a curve (an index or an index array on its axis), with their draws."""
+        return Sampled(np.asarray(self.nominal_value)[index], self.draws[:, index])
+
     def _no_single_value(self, *_: object) -> bool:
         raise TypeError("the measurement function needs one number where Monte Carlo has draws "
                         "(a comparison, float() or a math/umath function)")
 
     __float__ = __bool__ = __lt__ = __le__ = __gt__ = __ge__ = _no_single_value
+
+
+def linear_combination(rows: np.ndarray, coefficients: Sequence[object]) -> object:
+    """``rows @ coefficients`` for coefficients that are floats, ``uncertainties`` numbers or
+    :class:`Sampled` draws (then one Sampled curve, draws times rows at once, rather than an
+    array of Sampled points that Monte Carlo could not hold)."""
+    rows = np.asarray(rows, dtype=float)
+    if any(isinstance(c, Sampled) for c in coefficients):
+        nominal = rows @ np.array([c.nominal_value if isinstance(c, Sampled) else c for c in coefficients])
+        size = next(c.draws.shape[0] for c in coefficients if isinstance(c, Sampled))
+        draws = np.column_stack([c.draws if isinstance(c, Sampled) else np.full(size, float(c))
+                                 for c in coefficients])
+        return Sampled(nominal, draws @ rows.T)
+    if all(isinstance(c, (float, int)) for c in coefficients):
+        return rows @ np.asarray(coefficients, dtype=float)
+    return np.dot(rows, np.array(coefficients, dtype=object))
 
 
 @dataclass(frozen=True)
@@ -259,7 +286,8 @@ def propagate_measurement(inputs: InputSet, model: Callable[[Mapping[str, object
     TypeError
         When the function needs one number where it gets draws (see :class:`Sampled`).
     ValueError
-        When fewer than two draws of an output (or of a curve's point) are finite.
+        When fewer than two draws of an output (or of a curve's point) are finite, or the
+        draws of all output values would exceed :data:`MAX_STORED_VALUES`.
 
     References
     ----------
@@ -269,11 +297,19 @@ def propagate_measurement(inputs: InputSet, model: Callable[[Mapping[str, object
     """
     rng = np.random.default_rng(seed)
     nominal = {i.name: i.value for i in inputs.inputs}
+    # the outputs' sizes, from one evaluation at the estimates: they bound the chunk (a long
+    # curve's intermediate arrays are draws × points) and the draws that can be held
+    points = sum(max(int(np.size(out)), 1) for out in model(nominal).values())
+    if draws * points > MAX_STORED_VALUES:
+        raise ValueError(f"{draws} draws of {points} output values would hold "
+                         f"{draws * points * 8 / 2 ** 30:.1f} GiB; give at most "
+                         f"{MAX_STORED_VALUES // points} draws (--draws)")
+    per_chunk = min(CHUNK_DRAWS, max(1, CHUNK_VALUES // points))
     values: dict[str, np.ndarray] = {}
     done = 0
     with np.errstate(all="ignore"):
         while done < draws:
-            size = min(CHUNK_DRAWS, draws - done)
+            size = min(per_chunk, draws - done)
             drawn = draw_inputs(inputs, size, rng)
             outputs = model({name: Sampled(nominal[name], sample) for name, sample in drawn.items()})
             for name, out in outputs.items():

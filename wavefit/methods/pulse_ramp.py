@@ -54,6 +54,7 @@ from ..fit.engine import Block, fit_least_squares
 from ..fit.spline_regression import SplineCurve, choose_interior_knots, fit_spline, knots_at_steps
 from ..fit_summary import FitSummary, optional_entry
 from ..measurement import Measurement
+from ..montecarlo import linear_combination
 from ..outputs import Axis, Curve, Scalar
 from ..results import TracePlot
 from ..setup import Setup
@@ -306,10 +307,12 @@ class PulseRamp(Method):
         sigma_v = v_fit.fit.noise_sigma["voltage"]
         steps = head.stop - head.start
         dt = float(t[1] - t[0])
-        flux_u = sigma_v * dt * np.sqrt(max(steps, 1)) + 0.5 * dt * abs(float(drop[-1]))  # noise + the
-        # half-sample uncertainty of where the switch closed
+        # the samples' noise (σ from the voltage fit's thousands of residuals), and where within
+        # the sample interval before the pulse the switch closed (rectangular, ±dt/2 at the
+        # pulse voltage: the trapezoid takes the voltage as rising linearly across it)
+        flux_u = np.hypot(sigma_v * dt * np.sqrt(max(steps, 1)), 0.5 * dt * abs(float(drop[-1])) / np.sqrt(3.0))
         return Ramp(k, i_fit, v_fit, shunt, interior, stop - start, float(ts[0]), flux_before, float(flux_u),
-                    float(steps), off_i)
+                    np.inf, off_i)
 
     # -- measurement function ---------------------------------------------------------------
 
@@ -330,8 +333,8 @@ class PulseRamp(Method):
         out["E"] = head + trapezoid
         at, index = settings["at"], settings["at_index"]
         if at.size:
-            out["L_at"] = np.array([l_inc[j - 1] + (l_inc[j] - l_inc[j - 1]) * (a - grid[j - 1]) / (grid[j] - grid[j - 1])
-                                    for a, j in zip(at, index)], dtype=object)
+            fraction = (at - grid[index - 1]) / (grid[index] - grid[index - 1])
+            out["L_at"] = l_inc[index - 1] + (l_inc[index] - l_inc[index - 1]) * fraction
         return out
 
 
@@ -397,12 +400,6 @@ def _current(text: Any, source: str) -> float:
         raise SetupError(f"{source}: at_currents entry {text!r} is not a current ({exc})") from None
 
 
-def _linear(rows: np.ndarray, coefficients: list[Any]) -> Any:
-    """rows @ coefficients for coefficients that are numbers, uncertainties values or draws."""
-    return np.dot(rows, np.array(coefficients, dtype=object)) if not all(
-        isinstance(c, float) for c in coefficients) else rows @ np.asarray(coefficients, dtype=float)
-
-
 def _curves(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
     """L_inc, L_app and λ on the grid (mean over pulses) and the peak current."""
     grid = settings["grid"]
@@ -417,11 +414,11 @@ def _curves(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]
     for rows in settings["pulses"]:
         ci = [x[n] for n in rows["i_names"]]
         cv = [x[n] for n in rows["v_names"]]
-        i = (_linear(rows["B0"], ci) - off_i) / scale
-        di = timebase * _linear(rows["B1"], ci) / scale
-        d2i = timebase ** 2 * _linear(rows["B2"], ci) / scale
-        v = (_linear(rows["V0"], cv) - off_v) / g_v
-        dv = timebase * _linear(rows["V1"], cv) / g_v
+        i = (linear_combination(rows["B0"], ci) - off_i) / scale
+        di = timebase * linear_combination(rows["B1"], ci) / scale
+        d2i = timebase ** 2 * linear_combination(rows["B2"], ci) / scale
+        v = (linear_combination(rows["V0"], cv) - off_v) / g_v
+        dv = timebase * linear_combination(rows["V1"], cv) / g_v
         u = v - r * i
         du = dv - r * di
         l_t = u / di
@@ -429,12 +426,12 @@ def _curves(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]
         shift = (grid - i) / di  # time to the grid current, to first order (zero at the estimates)
         l_inc = l_t + dl_t * shift
         flux = (x[rows["flux_before"]]
-                + ((_linear(rows["Vint"], cv) - off_v * rows["elapsed"]) / g_v
-                   - r * (_linear(rows["Bint"], ci) - off_i * rows["elapsed"]) / scale) / timebase
+                + ((linear_combination(rows["Vint"], cv) - off_v * rows["elapsed"]) / g_v
+                   - r * (linear_combination(rows["Bint"], ci) - off_i * rows["elapsed"]) / scale) / timebase
                 + u * shift)
         for key, value in (("L_inc", l_inc), ("flux_linkage", flux)):
             sums[key] = value if key not in sums else sums[key] + value
-        peaks.append((_linear(rows["peak_rows"], ci)[0] - off_i) / scale)
+        peaks.append((linear_combination(rows["peak_rows"], ci)[0] - off_i) / scale)
     count = len(settings["pulses"])
     l_inc = sums["L_inc"] / count
     flux = sums["flux_linkage"] / count
