@@ -49,6 +49,7 @@ import numpy as np
 from scipy.integrate import trapezoid
 from uncertainties import correlated_values
 
+from ..calibration.in_use import RATIO_INPUT, SKEW_INPUT
 from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.spline_regression import SplineCurve, choose_interior_knots, fit_spline, knots_at_steps
@@ -146,6 +147,9 @@ class PulseRamp(Method):
         "flux_linkage": Curve("Wb", axis=Axis("I", "A")),
         "L_at": Curve("H", axis=Axis("I_at", "A")),
     }
+    #: a channel comparison of the two channels replaces the ratio of their gains (L_inc scales
+    #: with g_current/g_voltage) and gives their skew (a late current record is moved back)
+    channel_ratio_roles = ("current", "voltage")
     optional = ("I_sat_10", "I_sat_20", "I_sat_30", "L_at")
     positive = ("L0", "E", "I_peak", "L_inc", "L_app", "flux_linkage", "L_at")
     unphysical_hint = "check [columns] (current and voltage) and the shunt_resistor"
@@ -403,7 +407,9 @@ def _current(text: Any, source: str) -> float:
 def _curves(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
     """L_inc, L_app and λ on the grid (mean over pulses) and the peak current."""
     grid = settings["grid"]
-    g_i, g_v = x["vertical_gain_current"], x["vertical_gain_voltage"]
+    g_i = x["vertical_gain_current"]
+    g_v = g_i / x[RATIO_INPUT] if RATIO_INPUT in x else x["vertical_gain_voltage"]
+    skew = x[SKEW_INPUT] if SKEW_INPUT in x else 0.0
     timebase = x["timebase"]
     scale = (x["shunt_resistor"] if settings["has_shunt"] else 1.0) * g_i  # recorded V per true A
     r = x["dut_resistance"]
@@ -414,9 +420,12 @@ def _curves(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]
     for rows in settings["pulses"]:
         ci = [x[n] for n in rows["i_names"]]
         cv = [x[n] for n in rows["v_names"]]
-        i = (linear_combination(rows["B0"], ci) - off_i) / scale
-        di = timebase * linear_combination(rows["B1"], ci) / scale
-        d2i = timebase ** 2 * linear_combination(rows["B2"], ci) / scale
+        # a current record late by skew shows at t the current of t − skew: read it at t + skew
+        # (to first order; skew is a few sample intervals at most)
+        slope, curvature = linear_combination(rows["B1"], ci), linear_combination(rows["B2"], ci)
+        i = (linear_combination(rows["B0"], ci) + skew * slope - off_i) / scale
+        di = timebase * (slope + skew * curvature) / scale
+        d2i = timebase ** 2 * curvature / scale
         v = (linear_combination(rows["V0"], cv) - off_v) / g_v
         dv = timebase * linear_combination(rows["V1"], cv) / g_v
         u = v - r * i
