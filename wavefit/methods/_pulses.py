@@ -75,3 +75,32 @@ def ring_mask_end(v: np.ndarray) -> int:
     loud = np.flatnonzero(np.abs(near - np.mean(middle)) > RING_Z * sigma) if sigma > 0 else np.array([], int)
     seen = int(loud[-1]) + 1 if loud.size else 0
     return max(MIN_EDGE_SKIP, int(np.ceil(RING_MARGIN * seen)))
+
+
+#: The falling ramp after a pulse is fitted down to this fraction of the pulse's peak current
+#: (below it the freewheeling diode stops conducting and the record no longer follows the coil).
+FALLING_END_FRACTION = 0.05
+#: A falling ramp must fall by at least this fraction of the peak to be compared.
+FALLING_MIN_FALL = 0.2
+
+
+def falling_segment(amperes: np.ndarray, voltage: np.ndarray, pulse: Pulse, next_on: int) -> tuple[int, int] | None:
+    """Samples ``start:stop`` of the current's decay after ``pulse`` (until ``next_on``), or None.
+
+    The decay is the current falling while the coil voltage stands negative (the freewheeling
+    diode, or a reversed bank) after the switch opens; its turn-off ringing is masked by the
+    rule of :func:`ring_mask_end`, and it ends where the current falls below
+    :data:`FALLING_END_FRACTION` of the pulse's peak.
+    """
+    after = slice(pulse.off, next_on)
+    if next_on - pulse.off < MIN_PULSE_SAMPLES or not np.median(voltage[after]) < 0:
+        return None
+    peak = float(np.max(amperes[pulse.start:pulse.stop]))
+    low = np.flatnonzero(amperes[after] <= FALLING_END_FRACTION * peak)
+    stop = pulse.off + (int(low[0]) if low.size else next_on - pulse.off)
+    if stop - pulse.off < MIN_PULSE_SAMPLES:
+        return None
+    start = pulse.off + ring_mask_end(voltage[pulse.off:stop])
+    if stop - start < MIN_PULSE_SAMPLES // 2 or amperes[start] - amperes[stop - 1] < FALLING_MIN_FALL * peak:
+        return None
+    return start, stop

@@ -46,23 +46,21 @@ from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
-from scipy.integrate import trapezoid
-from uncertainties import correlated_values
 
-from ..calibration.in_use import RATIO_INPUT, SKEW_INPUT
 from ..errors import AnalysisRefused, SetupError
 from ..fit.engine import Block, fit_least_squares
-from ..fit.spline_regression import SplineCurve, choose_interior_knots, fit_spline, knots_at_steps
 from ..fit_summary import FitSummary, optional_entry
 from ..measurement import Measurement
-from ..montecarlo import linear_combination
 from ..outputs import Axis, Curve, Scalar
 from ..results import TracePlot
 from ..setup import Setup
 from ..signal.clipping import extremes
 from ..values import parse_number_with_unit
 from . import register
-from ._pulses import Pulse, find_pulses
+from ._pulses import Pulse, falling_segment, find_pulses
+from ._ramp import FALLING, RISING, Ramp, fit_ramp, flux_before
+from ._ramp_checks import compare_falling, falling_warning, heating_warning
+from ._ramp_curves import first_crossing, interpolated_crossing, nominal_inputs, ramp_curves
 from .base import Method, PartSpec
 from .estimate import Estimate, FittedBlock
 
@@ -77,14 +75,13 @@ L0_SPAN = 0.25
 #: The grid stays this fraction of the range inside the fitted currents: a spline's end
 #: coefficients are fitted to few samples.
 GRID_INSET = 0.01
+#: Fewest samples a pulse's ramp must keep between its masked edges (and below a clipped top).
+MIN_RAMP_SAMPLES = 64
 #: Samples before the first pulse needed to measure the channels' offsets.
 MIN_BASELINE_SAMPLES = 16
 #: A pulse that starts at a current above this fraction of its peak did not start from rest
 #: (the previous pulse's current had not decayed).
 START_CURRENT_FRACTION = 0.02
-#: Pulses whose L0 differ by more than this many combined standard uncertainties were not
-#: measured on the same coil state (the winding warmed between them, common practice).
-HEATING_Z = 3.0
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -109,6 +106,12 @@ class RampSummary(FitSummary):
         The highest fitted current of each pulse, A.
     saturation_reached
         Per fall fraction (percent), whether L_inc fell that far within the range.
+    baseline_samples
+        Samples before the first pulse that gave the channels' offsets.
+    falling_points_compared, falling_max_z
+        When the record shows the current's decay after the switch opens: the grid points
+        where its L_inc was compared with the rising ramp's, and the largest difference in
+        standard uncertainties.
     """
 
     model: str
@@ -121,6 +124,8 @@ class RampSummary(FitSummary):
     peak_current_A: tuple[float, ...]
     saturation_reached: dict[str, bool]
     baseline_samples: int | None = optional_entry()
+    falling_points_compared: int | None = optional_entry()
+    falling_max_z: float | None = optional_entry()
 
 
 @register
@@ -185,45 +190,50 @@ class PulseRamp(Method):
                                   "above half its largest value for 64 samples); check [columns]")
         warnings: list[str] = []
         blocks: list[FittedBlock] = []
-        offsets, baseline = self._offsets(t, current, voltage, pulses[0])
+        offsets, baseline = self._offsets(current, voltage, pulses[0])
         if offsets is None:
             warnings.append("no samples before the first pulse: the channels' offsets are taken as zero "
                             "(record some time before the switch closes)")
         else:
             blocks.append(offsets)
-        off_i = offsets.values[0] if offsets is not None else 0.0
-        off_v = offsets.values[1] if offsets is not None else 0.0
+        off = (float(offsets.values[0]), float(offsets.values[1])) if offsets is not None else (0.0, 0.0)
         clip_top = self._clip_level(current)
         if clip_top is not None:
             warnings.append("the current trace is clipped at the converter's limit: the curves end below it "
                             "(reduce the current channel's sensitivity)")
-        ramps = []
+        amperes = (current - off[0]) / shunt
+        ramps, falling = [], []
         for k, pulse in enumerate(pulses):
-            ramp = self._fit_ramp(t, current, voltage, pulse, k, shunt, dcr, off_i, off_v, clip_top, capture.source)
+            stop = pulse.stop
+            if clip_top is not None:
+                at_top = np.flatnonzero(current[pulse.start:stop] >= clip_top)
+                stop = pulse.start + int(at_top[0]) if at_top.size else stop
+            if stop - pulse.start < MIN_RAMP_SAMPLES:
+                raise AnalysisRefused(f"{capture.source}: pulse {k + 1} leaves fewer than {MIN_RAMP_SAMPLES} samples "
+                                      "between its masked edges; sample faster or lengthen the pulse")
+            ramp = fit_ramp(t, current, voltage, pulse.start, stop, k, RISING, shunt, off[0])
             ramps.append(ramp)
-            blocks += [FittedBlock(ramp.current.fit.names, ramp.current.fit.values, ramp.current.fit.covariance,
-                                   ("V",) * ramp.current.size, ramp.current.fit.dof, group=f"pulse {k + 1} current"),
-                       FittedBlock(ramp.voltage.fit.names, ramp.voltage.fit.values, ramp.voltage.fit.covariance,
-                                   ("V",) * ramp.voltage.size, ramp.voltage.fit.dof, group=f"pulse {k + 1} voltage")]
-            blocks.append(FittedBlock((f"p{k + 1}_flux_before",), np.array([ramp.flux_before]),
-                                      np.array([[ramp.flux_before_u ** 2]]), ("Wb",), ramp.flux_before_dof,
-                                      group=f"pulse {k + 1} flux before the fit"))
-            if ramp.start_current > START_CURRENT_FRACTION * ramp.peak:
+            flux, flux_u = flux_before(t, current, voltage, pulse.on, pulse.start, off, dcr, shunt,
+                                       ramp.voltage.fit.noise_sigma["voltage"])
+            blocks += [_block(ramp.current, f"pulse {k + 1} current"), _block(ramp.voltage, f"pulse {k + 1} voltage"),
+                       FittedBlock((ramp.flux_name,), np.array([flux]), np.array([[flux_u ** 2]]), ("Wb",), np.inf,
+                                   group=f"pulse {k + 1} flux before the fit")]
+            if ramp.start_current > START_CURRENT_FRACTION * ramp.high:
                 warnings.append(f"pulse {k + 1} starts at {ramp.start_current:.3g} A, not from rest (the previous "
                                 "pulse's current had not decayed): its flux linkage is counted from there")
-            for w in (*ramp.current.fit.warnings, *ramp.voltage.fit.warnings):
-                warnings.append(w)
-        low = max(r.low for r in ramps)
-        high = min(r.peak for r in ramps)
+            warnings += [*ramp.current.fit.warnings, *ramp.voltage.fit.warnings]
+            segment = falling_segment(amperes, voltage, pulse, pulses[k + 1].on if k + 1 < len(pulses) else t.size)
+            if segment is not None and clip_top is None:
+                falling.append(fit_ramp(t, current, voltage, *segment, k, FALLING, shunt, off[0]))
+        low, high = max(r.low for r in ramps), min(r.high for r in ramps)
         if not high > low:
             raise AnalysisRefused(f"{capture.source}: the pulses share no current range to compare")
         inset = GRID_INSET * (high - low)
         grid = np.linspace(low + inset, high - inset, GRID_POINTS)
-        per_pulse = [r.rows(grid) for r in ramps]
-        settings = {"pulses": per_pulse, "has_offsets": offsets is not None, "has_shunt": "shunt_resistor" in parts,
-                    "grid": grid}
-        best = _curves(_nominal_inputs(blocks, parts), settings)
-        l_inc = np.asarray(best["L_inc"], dtype=float)
+        settings = {"ramps": [r.rows(grid) for r in ramps], "has_offsets": offsets is not None,
+                    "has_shunt": "shunt_resistor" in parts, "grid": grid}
+        l_inc = np.asarray(ramp_curves(nominal_inputs(blocks, parts), settings, settings["ramps"])["L_inc"],
+                           dtype=float)
         if not np.all(l_inc > 0):
             raise AnalysisRefused(f"{capture.source}: the fitted current does not rise through the pulse "
                                   "(L_inc not positive): check [columns] and the current's sign")
@@ -232,7 +242,7 @@ class PulseRamp(Method):
         # least-squares solution for (L0, b)
         low_weights = np.linalg.pinv(np.column_stack((np.ones(low_points.size), -grid[low_points] ** 2)))[0]
         l0 = float(low_weights @ l_inc[low_points])
-        drops = {int(d): _crossing(l_inc, (1 - float(d) / 100) * l0) for d in self.option(setup, "saturation_drops")}
+        drops = {int(d): first_crossing(l_inc, (1 - float(d) / 100) * l0) for d in self.option(setup, "saturation_drops")}
         missing = [d for d, j in drops.items() if j is None]
         if missing:
             warnings.append(f"L_inc did not fall by {', '.join(f'{d} %' for d in missing)} up to {grid[-1]:.4g} A: "
@@ -243,37 +253,37 @@ class PulseRamp(Method):
         if outside.size:
             raise AnalysisRefused(f"{capture.source}: at_currents {', '.join(f'{a:g} A' for a in outside)} outside "
                                   f"the measured range {grid[0]:.4g}–{grid[-1]:.4g} A")
-        settings.update(low_points=low_points, low_weights=low_weights, drops=drops, at=at, at_index=np.searchsorted(grid, at).clip(1, grid.size - 1))
-        heating = _heating(ramps, grid, low_points, blocks, parts, settings)
-        if heating is not None:
-            warnings.append(heating)
+        settings.update(low_points=low_points, low_weights=low_weights, drops=drops, at=at,
+                        at_index=np.searchsorted(grid, at).clip(1, grid.size - 1))
+        comparison = compare_falling(ramps, falling, settings, blocks, parts)
+        warnings += [w for w in (heating_warning(ramps, settings, blocks, parts), falling_warning(comparison)) if w]
         summary = RampSummary(
             model="cubic regression splines of current and voltage per pulse; L_inc = (v − R·i)/(di/dt)",
             pulses=len(ramps), interior_knots=tuple(r.interior for r in ramps),
             fitted_samples=tuple(r.samples for r in ramps),
             masked_after_on_s=tuple(float(t[p.start] - t[p.on]) for p in pulses),
             masked_before_off_s=tuple(float(t[p.off - 1] - t[p.stop - 1]) for p in pulses),
-            current_range_A=(float(grid[0]), float(grid[-1])), peak_current_A=tuple(r.peak for r in ramps),
+            current_range_A=(float(grid[0]), float(grid[-1])), peak_current_A=tuple(r.high for r in ramps),
             saturation_reached={str(d): j is not None for d, j in drops.items()},
-            baseline_samples=baseline)
-        plot = _trace_plot(t, current, voltage, ramps)
-        return Estimate(tuple(blocks), summary, warnings=tuple(dict.fromkeys(warnings)), plot=plot,
-                        settings=settings, axes={"I": grid, "I_at": at})
+            baseline_samples=baseline,
+            falling_points_compared=comparison.points if comparison else None,
+            falling_max_z=comparison.max_z if comparison else None)
+        return Estimate(tuple(blocks), summary, warnings=tuple(dict.fromkeys(warnings)),
+                        plot=_trace_plot(t, current, voltage, ramps), settings=settings, axes={"I": grid, "I_at": at})
 
     @staticmethod
-    def _offsets(t, current, voltage, first: Pulse) -> tuple[FittedBlock | None, int | None]:
+    def _offsets(current, voltage, first: Pulse) -> tuple[FittedBlock | None, int | None]:
         """The channels' offsets from the samples before the first pulse (both fitted as
         constants with the engine's noise model), or (None, None) when there are too few."""
-        stop = first.on - 2
-        if stop < MIN_BASELINE_SAMPLES:
+        n = first.on - 2
+        if n < MIN_BASELINE_SAMPLES:
             return None, None
-        y = np.concatenate((current[:stop], voltage[:stop]))
-        n = stop
+        y = np.concatenate((current[:n], voltage[:n]))
         design = np.zeros((2 * n, 2))
         design[:n, 0] = 1.0
         design[n:, 1] = 1.0
         fit = fit_least_squares(lambda x: y - design @ x, lambda x: -design,
-                                [float(np.mean(current[:stop])), float(np.mean(voltage[:stop]))],
+                                [float(np.mean(current[:n])), float(np.mean(voltage[:n]))],
                                 ["current_offset", "voltage_offset"], [Block(0, n, "current"), Block(n, 2 * n, "voltage")],
                                 model="channel offsets before the pulse")
         return FittedBlock(fit.names, fit.values, fit.covariance, ("V", "V"), fit.dof, group="offsets"), n
@@ -287,54 +297,23 @@ class PulseRamp(Method):
             return float(np.max(current))
         return None
 
-    @staticmethod
-    def _fit_ramp(t, current, voltage, pulse: Pulse, k: int, shunt: float, dcr: float, off_i: float, off_v: float,
-                  clip_top: float | None, source: str) -> "Ramp":
-        start, stop = pulse.start, pulse.stop
-        if clip_top is not None:
-            at_top = np.flatnonzero(current[start:stop] >= clip_top)
-            if at_top.size:
-                stop = start + int(at_top[0])
-        if stop - start < 64:
-            raise AnalysisRefused(f"{source}: pulse {k + 1} leaves fewer than 64 samples between its masked edges; "
-                                  "sample faster or lengthen the pulse")
-        seg = slice(start, stop)
-        ts, i_s, v_s = t[seg], current[seg], voltage[seg]
-        interior = choose_interior_knots(ts, [i_s, v_s], i_s)
-        knots = knots_at_steps(ts, i_s, interior)
-        i_fit = fit_spline(ts, i_s, knots, "current", f"p{k + 1}_i")
-        v_fit = fit_spline(ts, v_s, knots, "voltage", f"p{k + 1}_v")
-        # flux linkage gathered from the switch-on to the fit's start (samples, trapezoid)
-        head = slice(max(pulse.on - 1, 0), start + 1)
-        drop = (voltage[head] - off_v) - dcr * (current[head] - off_i) / shunt
-        flux_before = float(trapezoid(drop, t[head]))
-        sigma_v = v_fit.fit.noise_sigma["voltage"]
-        steps = head.stop - head.start
-        dt = float(t[1] - t[0])
-        # the samples' noise (σ from the voltage fit's thousands of residuals), and where within
-        # the sample interval before the pulse the switch closed (rectangular, ±dt/2 at the
-        # pulse voltage: the trapezoid takes the voltage as rising linearly across it)
-        flux_u = np.hypot(sigma_v * dt * np.sqrt(max(steps, 1)), 0.5 * dt * abs(float(drop[-1])) / np.sqrt(3.0))
-        return Ramp(k, i_fit, v_fit, shunt, interior, stop - start, float(ts[0]), flux_before, float(flux_u),
-                    np.inf, off_i)
-
     # -- measurement function ---------------------------------------------------------------
 
     def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
         """The measurement function (module docstring), with ``uncertainties`` numbers or floats."""
-        curves = _curves(x, settings)
+        curves = ramp_curves(x, settings, settings["ramps"])
         grid = settings["grid"]
         l_inc = curves["L_inc"]
         l0 = sum(w * l_inc[j] for w, j in zip(settings["low_weights"], settings["low_points"]))
         out = {"L0": l0, "L_inc": l_inc, "L_app": curves["L_app"], "flux_linkage": curves["flux_linkage"],
                "I_peak": curves["I_peak"]}
         for drop, j in settings["drops"].items():
-            out[f"I_sat_{drop}"] = None if j is None else _interpolated_crossing(grid, l_inc, j, (1 - drop / 100) * l0)
+            out[f"I_sat_{drop}"] = None if j is None else interpolated_crossing(grid, l_inc, j, (1 - drop / 100) * l0)
         # E = ∫ i dλ = ∫ i·L_inc di: from zero to the grid's start at L0, then along the grid
         head = 0.5 * l0 * grid[0] ** 2
-        trapezoid = sum(0.5 * (grid[j + 1] - grid[j]) * (grid[j] * l_inc[j] + grid[j + 1] * l_inc[j + 1])
-                        for j in range(grid.size - 1))
-        out["E"] = head + trapezoid
+        along = sum(0.5 * (grid[j + 1] - grid[j]) * (grid[j] * l_inc[j] + grid[j + 1] * l_inc[j + 1])
+                    for j in range(grid.size - 1))
+        out["E"] = head + along
         at, index = settings["at"], settings["at_index"]
         if at.size:
             fraction = (at - grid[index - 1]) / (grid[index] - grid[index - 1])
@@ -342,56 +321,10 @@ class PulseRamp(Method):
         return out
 
 
-@dataclass(frozen=True)
-class Ramp:
-    """One pulse's fitted ramp: the current and voltage splines and what the grid needs."""
-
-    index: int
-    current: SplineCurve
-    voltage: SplineCurve
-    shunt: float
-    interior: int
-    samples: int
-    t_start: float
-    flux_before: float
-    flux_before_u: float
-    flux_before_dof: float
-    offset: float
-
-    @property
-    def _times(self) -> np.ndarray:
-        return np.linspace(self.current.knots[0], self.current.knots[-1], 20 * self.samples // 10 + 1)
-
-    @property
-    def low(self) -> float:
-        """The fitted current at the fit's start, A (at the estimates)."""
-        return float((self.current(np.array([self.current.knots[0]]))[0] - self.offset) / self.shunt)
-
-    @property
-    def start_current(self) -> float:
-        return self.low
-
-    @property
-    def peak(self) -> float:
-        """The highest fitted current, A (at the estimates)."""
-        return float((np.max(self.current(self._times)) - self.offset) / self.shunt)
-
-    def rows(self, grid: np.ndarray) -> dict[str, Any]:
-        """Basis rows at the instants where the fitted current reaches each grid current (the
-        first time, on the rising ramp), for the measurement function."""
-        times = self._times
-        level = np.maximum.accumulate((self.current(times) - self.offset) / self.shunt)
-        at = np.interp(grid, level, times)
-        for _ in range(3):  # Newton steps onto the spline itself
-            at = at - ((self.current(at) - self.offset) / self.shunt - grid) / (self.current(at, 1) / self.shunt)
-        t0 = self.current.knots[0]
-        return {"i_names": self.current.fit.names, "v_names": self.voltage.fit.names,
-                "B0": self.current.basis(at), "B1": self.current.basis(at, 1), "B2": self.current.basis(at, 2),
-                "V0": self.voltage.basis(at), "V1": self.voltage.basis(at, 1),
-                "Bint": self.current.basis(at, -1) - self.current.basis(np.array([t0]), -1),
-                "Vint": self.voltage.basis(at, -1) - self.voltage.basis(np.array([t0]), -1),
-                "elapsed": at - t0, "peak_rows": self.current.basis(times[[int(np.argmax(level))]]),
-                "flux_before": f"p{self.index + 1}_flux_before"}
+def _block(spline, group: str) -> FittedBlock:
+    """A spline's coefficients as a fitted block (recorded volts)."""
+    fit = spline.fit
+    return FittedBlock(fit.names, fit.values, fit.covariance, ("V",) * spline.size, fit.dof, group=group)
 
 
 def _current(text: Any, source: str) -> float:
@@ -404,93 +337,7 @@ def _current(text: Any, source: str) -> float:
         raise SetupError(f"{source}: at_currents entry {text!r} is not a current ({exc})") from None
 
 
-def _curves(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
-    """L_inc, L_app and λ on the grid (mean over pulses) and the peak current."""
-    grid = settings["grid"]
-    g_i = x["vertical_gain_current"]
-    g_v = g_i / x[RATIO_INPUT] if RATIO_INPUT in x else x["vertical_gain_voltage"]
-    skew = x[SKEW_INPUT] if SKEW_INPUT in x else 0.0
-    timebase = x["timebase"]
-    scale = (x["shunt_resistor"] if settings["has_shunt"] else 1.0) * g_i  # recorded V per true A
-    r = x["dut_resistance"]
-    off_i = x["current_offset"] if settings["has_offsets"] else 0.0
-    off_v = x["voltage_offset"] if settings["has_offsets"] else 0.0
-    sums: dict[str, Any] = {}
-    peaks = []
-    for rows in settings["pulses"]:
-        ci = [x[n] for n in rows["i_names"]]
-        cv = [x[n] for n in rows["v_names"]]
-        # a current record late by skew shows at t the current of t − skew: read it at t + skew
-        # (to first order; skew is a few sample intervals at most)
-        slope, curvature = linear_combination(rows["B1"], ci), linear_combination(rows["B2"], ci)
-        i = (linear_combination(rows["B0"], ci) + skew * slope - off_i) / scale
-        di = timebase * (slope + skew * curvature) / scale
-        d2i = timebase ** 2 * curvature / scale
-        v = (linear_combination(rows["V0"], cv) - off_v) / g_v
-        dv = timebase * linear_combination(rows["V1"], cv) / g_v
-        u = v - r * i
-        du = dv - r * di
-        l_t = u / di
-        dl_t = (du * di - u * d2i) / di ** 2
-        shift = (grid - i) / di  # time to the grid current, to first order (zero at the estimates)
-        l_inc = l_t + dl_t * shift
-        flux = (x[rows["flux_before"]]
-                + ((linear_combination(rows["Vint"], cv) - off_v * rows["elapsed"]) / g_v
-                   - r * (linear_combination(rows["Bint"], ci) - off_i * rows["elapsed"]) / scale) / timebase
-                + u * shift)
-        for key, value in (("L_inc", l_inc), ("flux_linkage", flux)):
-            sums[key] = value if key not in sums else sums[key] + value
-        peaks.append((linear_combination(rows["peak_rows"], ci)[0] - off_i) / scale)
-    count = len(settings["pulses"])
-    l_inc = sums["L_inc"] / count
-    flux = sums["flux_linkage"] / count
-    return {"L_inc": l_inc, "flux_linkage": flux, "L_app": flux / grid, "I_peak": sum(peaks) / count}
-
-
-def _nominal_inputs(blocks: list[FittedBlock], parts: Mapping[str, Any]) -> dict[str, Any]:
-    """The inputs at their estimates (gains and timebase 1), for the estimate's own use."""
-    x: dict[str, Any] = {"vertical_gain_current": 1.0, "vertical_gain_voltage": 1.0, "timebase": 1.0}
-    for block in blocks:
-        x.update(zip(block.names, map(float, block.values)))
-    for name, part in parts.items():
-        x[name] = part.value
-    return x
-
-
-def _crossing(curve: np.ndarray, target: float) -> int | None:
-    """Index j of the first grid point where ``curve`` is at or below ``target`` (j ≥ 1), or None."""
-    below = np.flatnonzero(curve[1:] <= target)
-    return int(below[0]) + 1 if below.size else None
-
-
-def _interpolated_crossing(grid: np.ndarray, curve: Any, j: int, target: Any) -> Any:
-    """The current where ``curve`` reaches ``target``, by linear interpolation between grid
-    points j − 1 and j (found at the estimates)."""
-    return grid[j - 1] + (grid[j] - grid[j - 1]) * (curve[j - 1] - target) / (curve[j - 1] - curve[j])
-
-
-def _heating(ramps, grid, low_points, blocks, parts, settings) -> str | None:
-    """A warning when the first and last pulses' small-current inductances differ by more than
-    :data:`HEATING_Z` standard uncertainties of their difference (their fits' type A
-    uncertainty; the scale factors they share cancel), else None."""
-    if len(ramps) < 2:
-        return None
-    x: dict[str, Any] = _nominal_inputs(blocks, parts)
-    for block in blocks:
-        if block.group.startswith((f"pulse {ramps[0].index + 1} ", f"pulse {ramps[-1].index + 1} ")):
-            x.update(zip(block.names, correlated_values(block.values, block.covariance)))
-    first, last = (_curves(x, {**settings, "pulses": [ramp.rows(grid)]})["L_inc"] for ramp in (ramps[0], ramps[-1]))
-    weights = settings["low_weights"]
-    difference = sum(w * (first[j] - last[j]) for w, j in zip(weights, low_points))
-    if difference.std_dev > 0 and abs(difference.nominal_value) > HEATING_Z * difference.std_dev:
-        level = sum(w * first[j] for w, j in zip(weights, low_points)).nominal_value
-        return (f"the first and last pulses' L0 differ by {100 * abs(difference.nominal_value) / level:.2g} % "
-                f"({abs(difference.nominal_value) / difference.std_dev:.1f} standard uncertainties): the winding or "
-                "core changed between pulses (heating?); let it cool between pulses or use fewer")
-    return None
-
-
-def _trace_plot(t, current, voltage, ramps) -> TracePlot:
+def _trace_plot(t, current, voltage, ramps: list[Ramp]) -> TracePlot:
     """The recorded channels with the fitted splines over each pulse's fit window."""
     fitted_i = np.full(t.size, np.nan)
     fitted_v = np.full(t.size, np.nan)

@@ -1,0 +1,92 @@
+"""pulse-ramp's checks between ramps: heating between pulses, and the rising against the
+falling current.
+
+Both compare curves of the same coil fitted to different samples, so the fits' coefficients
+are independent between them and the scale factors they share (shunt, gains, timebase)
+cancel to first order: each difference is judged against the type A uncertainty of the
+two fits alone (JCGM 100:2008, 5.2, with the correlated coefficients of each fit).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Mapping
+
+import numpy as np
+from uncertainties import correlated_values
+
+from ._ramp import Ramp
+from ._ramp_curves import nominal_inputs, ramp_curves
+
+#: Pulses whose L0 differ by more than this many standard uncertainties of the difference were
+#: not measured on the same coil state (the winding or core warmed between them).
+HEATING_Z = 3.0
+#: Rising and falling L_inc that differ by more than this many standard uncertainties at any
+#: grid point disagree: neighbouring points share coefficients, so a curve holds only as many
+#: independent points as its splines have coefficients (up to about a hundred); 4σ keeps the
+#: chance of a false warning over them below 1 % for Gaussian errors.
+FALLING_Z = 4.0
+
+
+@dataclass(frozen=True)
+class FallingComparison:
+    """The falling ramps' L_inc against the rising one's on the grid points both cover:
+    how many points, the largest |difference|/u and the current where it is."""
+
+    points: int
+    max_z: float
+    at_current: float
+
+
+def _with_fits(x: dict[str, Any], ramps: list[Ramp]) -> dict[str, Any]:
+    """``x`` with the coefficients of ``ramps``' fits as correlated ``uncertainties`` values."""
+    x = dict(x)
+    for ramp in ramps:
+        for spline in (ramp.current, ramp.voltage):
+            x.update(zip(spline.fit.names, correlated_values(spline.fit.values, spline.fit.covariance)))
+    return x
+
+
+def heating_warning(ramps: list[Ramp], settings: Mapping[str, Any], blocks, parts) -> str | None:
+    """A warning when the first and last pulses' L0 differ by more than :data:`HEATING_Z`
+    standard uncertainties of the difference, else None."""
+    if len(ramps) < 2:
+        return None
+    x = _with_fits(nominal_inputs(blocks, parts), [ramps[0], ramps[-1]])
+    grid, weights, points = settings["grid"], settings["low_weights"], settings["low_points"]
+    first, last = (ramp_curves(x, settings, [ramp.rows(grid)])["L_inc"] for ramp in (ramps[0], ramps[-1]))
+    difference = sum(w * (first[j] - last[j]) for w, j in zip(weights, points))
+    if not (difference.std_dev > 0 and abs(difference.nominal_value) > HEATING_Z * difference.std_dev):
+        return None
+    level = sum(w * first[j] for w, j in zip(weights, points)).nominal_value
+    return (f"the first and last pulses' L0 differ by {100 * abs(difference.nominal_value) / level:.2g} % "
+            f"({abs(difference.nominal_value) / difference.std_dev:.1f} standard uncertainties): the winding or "
+            "core changed between pulses (heating?); let it cool between pulses or use fewer")
+
+
+def compare_falling(rising: list[Ramp], falling: list[Ramp], settings: Mapping[str, Any], blocks,
+                    parts) -> FallingComparison | None:
+    """The falling ramps' mean L_inc against the rising ramps' on the grid points every falling
+    ramp covers; None when there are none or they cover fewer than two grid points."""
+    if not falling:
+        return None
+    grid = settings["grid"]
+    low, high = max(r.low for r in falling), min(r.high for r in falling)
+    inside = np.flatnonzero((grid >= low) & (grid <= high))
+    if inside.size < 2:
+        return None
+    part = {**settings, "grid": grid[inside]}
+    x = _with_fits(nominal_inputs(blocks, parts), [*rising, *falling])
+    up = ramp_curves(x, part, [r.rows(grid[inside]) for r in rising])["L_inc"]
+    down = ramp_curves(x, part, [r.rows(grid[inside]) for r in falling])["L_inc"]
+    z = np.array([abs(d.nominal_value) / d.std_dev if d.std_dev > 0 else 0.0 for d in (up - down)])
+    worst = int(np.argmax(z))
+    return FallingComparison(int(inside.size), float(z[worst]), float(grid[inside][worst]))
+
+
+def falling_warning(comparison: FallingComparison | None) -> str | None:
+    """The warning for a comparison beyond :data:`FALLING_Z`, else None."""
+    if comparison is None or comparison.max_z <= FALLING_Z:
+        return None
+    return (f"the rising and falling current disagree on L_inc by {comparison.max_z:.1f} standard uncertainties "
+            f"at {comparison.at_current:.4g} A (hysteresis or eddy currents in the core): the rising ramp's curve "
+            "is reported")

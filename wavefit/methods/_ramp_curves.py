@@ -1,0 +1,93 @@
+"""pulse-ramp's curves on the current grid, as one function of the inputs.
+
+For each ramp, at each grid current I_k: the instant t_k where the fitted current reaches
+I_k at the estimates is fixed (its basis rows are in the settings), and the function moves
+it to first order, δt = (I_k − i(t_k))/(di/dt), when the inputs move (a Newton step, zero at
+the estimates), so that each point's sensitivity to every input is exact to first order.
+Written with arithmetic and :func:`wavefit.montecarlo.linear_combination` only, so that
+``uncertainties`` numbers and Monte Carlo draws go through it as floats do.
+
+References
+----------
+.. [1] JCGM 100:2008 (GUM), 5.1.2 (first-order propagation), 5.2 (correlated inputs).
+"""
+from __future__ import annotations
+
+from typing import Any, Mapping
+
+import numpy as np
+
+from ..calibration.in_use import RATIO_INPUT, SKEW_INPUT
+from ..fitted import FittedBlock
+from ..montecarlo import linear_combination
+
+
+def ramp_curves(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[dict[str, Any]]) -> dict[str, Any]:
+    """L_inc and (for rising ramps) the flux linkage λ and L_app = λ/I on ``settings["grid"]``,
+    averaged over ``ramps`` (each a :meth:`wavefit.methods._ramp.Ramp.rows`), and the mean
+    peak current."""
+    grid = settings["grid"]
+    g_i = x["vertical_gain_current"]
+    g_v = g_i / x[RATIO_INPUT] if RATIO_INPUT in x else x["vertical_gain_voltage"]
+    skew = x[SKEW_INPUT] if SKEW_INPUT in x else 0.0
+    timebase = x["timebase"]
+    scale = (x["shunt_resistor"] if settings["has_shunt"] else 1.0) * g_i  # recorded V per true A
+    r = x["dut_resistance"]
+    off_i = x["current_offset"] if settings["has_offsets"] else 0.0
+    off_v = x["voltage_offset"] if settings["has_offsets"] else 0.0
+    sums: dict[str, Any] = {}
+    peaks = []
+    for rows in ramps:
+        ci = [x[n] for n in rows["i_names"]]
+        cv = [x[n] for n in rows["v_names"]]
+        # a current record late by skew shows at t the current of t − skew: read it at t + skew
+        # (to first order; skew is a few sample intervals at most)
+        slope, curvature = linear_combination(rows["B1"], ci), linear_combination(rows["B2"], ci)
+        i = (linear_combination(rows["B0"], ci) + skew * slope - off_i) / scale
+        di = timebase * (slope + skew * curvature) / scale
+        d2i = timebase ** 2 * curvature / scale
+        v = (linear_combination(rows["V0"], cv) - off_v) / g_v
+        dv = timebase * linear_combination(rows["V1"], cv) / g_v
+        u = v - r * i
+        du = dv - r * di
+        shift = (grid - i) / di  # time to the grid current, to first order (zero at the estimates)
+        _add(sums, "L_inc", u / di + (du * di - u * d2i) / di ** 2 * shift)
+        if rows["flux_before"] is not None:
+            flux = (x[rows["flux_before"]]
+                    + ((linear_combination(rows["Vint"], cv) - off_v * rows["elapsed"]) / g_v
+                       - r * (linear_combination(rows["Bint"], ci) - off_i * rows["elapsed"]) / scale) / timebase
+                    + u * shift)
+            _add(sums, "flux_linkage", flux)
+            peaks.append((linear_combination(rows["peak_rows"], ci)[0] - off_i) / scale)
+    out = {"L_inc": sums["L_inc"] / len(ramps)}
+    if peaks:
+        out["flux_linkage"] = sums["flux_linkage"] / len(peaks)
+        out["L_app"] = out["flux_linkage"] / grid
+        out["I_peak"] = sum(peaks) / len(peaks)
+    return out
+
+
+def _add(sums: dict[str, Any], key: str, value: Any) -> None:
+    sums[key] = value if key not in sums else sums[key] + value
+
+
+def nominal_inputs(blocks: list[FittedBlock], parts: Mapping[str, Any]) -> dict[str, Any]:
+    """The inputs at their estimates (gains and timebase 1), for the estimate's own use."""
+    x: dict[str, Any] = {"vertical_gain_current": 1.0, "vertical_gain_voltage": 1.0, "timebase": 1.0}
+    for block in blocks:
+        x.update(zip(block.names, map(float, block.values)))
+    for name, part in parts.items():
+        x[name] = part.value
+    return x
+
+
+def first_crossing(curve: np.ndarray, target: float) -> int | None:
+    """Index j ≥ 1 of the first grid point where ``curve`` is at or below ``target``, or None."""
+    below = np.flatnonzero(curve[1:] <= target)
+    return int(below[0]) + 1 if below.size else None
+
+
+def interpolated_crossing(grid: np.ndarray, curve: Any, j: int, target: Any) -> Any:
+    """The current where ``curve`` reaches ``target``, by linear interpolation between grid
+    points j − 1 and j (found at the estimates)."""
+    return grid[j - 1] + (grid[j] - grid[j - 1]) * (curve[j - 1] - target) / (curve[j - 1] - curve[j])
