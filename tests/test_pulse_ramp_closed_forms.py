@@ -120,3 +120,54 @@ def test_ringing_after_the_switch_is_masked_and_quiet_edges_lose_two_samples():
     assert np.max(np.abs(ringing[mask:] - quiet[mask:])) < 0.01 * 2.0
     pulses = find_pulses(np.concatenate((np.zeros(100), ringing, np.zeros(100))))
     assert len(pulses) == 1 and pulses[0].on == 100 and pulses[0].start == 100 + mask
+
+
+def linear_pulses(inductances, v=12.0, r=0.05, samples=2500, gap=1500, pre=400):
+    """Several pulses of the RL charging law (one per inductance), each from rest."""
+    parts_i, parts_v = [np.zeros(pre)], [np.zeros(pre)]
+    t = np.arange(samples) * DT
+    for inductance in inductances:
+        parts_i += [v / r * (1 - np.exp(-t * r / inductance)), np.zeros(gap)]
+        parts_v += [np.full(samples, v), np.zeros(gap)]
+    return np.concatenate(parts_i), np.concatenate(parts_v)
+
+
+def test_several_pulses_are_averaged_and_a_changed_coil_is_flagged():
+    # RL charging law per pulse (common practice); three equal pulses, then the last one 3 % lower
+    rng = np.random.default_rng(8)
+    for inductances, flagged in (((100e-6,) * 3, False), ((100e-6, 100e-6, 97e-6), True)):
+        i, v = linear_pulses(inductances)
+        frame = pd.DataFrame({"time": np.arange(i.size) * DT, "i_shunt": i * SHUNT + rng.normal(0, 2e-5, i.size),
+                              "v_coil": v + rng.normal(0, 5e-3, v.size)})
+        result = wavefit.analyze(frame, SETUP)
+        assert result.fit.pulses == 3
+        l0 = result.quantities["L0"]
+        assert abs(l0.value - np.mean(inductances)) <= l0.expanded_uncertainty
+        assert any("first and last pulses' L0 differ" in w for w in result.warnings) is flagged
+
+
+def test_clipped_current_ends_the_curve_below_the_converter_limit():
+    L, R, V = 100e-6, 0.05, 12.0
+    t = np.arange(3000) * DT
+    i = V / R * (1 - np.exp(-t * R / L))
+    frame = capture(i, np.full(t.size, V), 400, np.random.default_rng(9), 2e-5, 5e-3)
+    top = 0.7 * float(frame["i_shunt"].max())
+    frame["i_shunt"] = np.minimum(frame["i_shunt"], top)  # the converter's limit
+    result = wavefit.analyze(frame, SETUP)
+    assert any("clipped" in w for w in result.warnings)
+    curve = result.curves["L_inc"]
+    assert curve.axis_values[-1] < top / SHUNT
+    assert np.all(np.abs(curve.values - L) <= curve.expanded_uncertainty)
+
+
+def test_monte_carlo_agrees_with_the_linear_propagation_on_the_curves():
+    # JCGM 101:2008 7.6/7.7 against JCGM 100 5.1.2: for a function close to linear the two agree
+    L, R, V = 100e-6, 0.05, 12.0
+    t = np.arange(2000) * DT
+    i = V / R * (1 - np.exp(-t * R / L))
+    frame = capture(i, np.full(t.size, V), 300, np.random.default_rng(10), 2e-5, 5e-3)
+    result = wavefit.analyze(frame, SETUP, uncertainty="montecarlo", draws=20_000)
+    mc = result.monte_carlo.curves["L_inc"]
+    linear = result.curves["L_inc"].standard_uncertainty
+    ratio = np.array([p.standard_uncertainty for p in mc]) / linear
+    assert np.all(np.abs(ratio - 1) < 0.05), ratio.min()

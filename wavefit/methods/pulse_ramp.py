@@ -77,6 +77,8 @@ L0_SPAN = 0.25
 GRID_INSET = 0.01
 #: Fewest samples a pulse's ramp must keep between its masked edges (and below a clipped top).
 MIN_RAMP_SAMPLES = 64
+#: Samples averaged for the supply voltage at each end of a pulse's fit.
+SUPPLY_SAMPLES = 16
 #: Samples before the first pulse needed to measure the channels' offsets.
 MIN_BASELINE_SAMPLES = 16
 #: A pulse that starts at a current above this fraction of its peak did not start from rest
@@ -108,6 +110,10 @@ class RampSummary(FitSummary):
         Per fall fraction (percent), whether L_inc fell that far within the range.
     baseline_samples
         Samples before the first pulse that gave the channels' offsets.
+    supply_V
+        With a ``supply`` column: the supply's voltage at the start and the end of each pulse's
+        fit (mean of :data:`SUPPLY_SAMPLES` samples), V: the bank's droop, for the record (v is
+        measured, so the droop needs no model).
     falling_points_compared, falling_max_z
         When the record shows the current's decay after the switch opens: the grid points
         where its L_inc was compared with the rising ramp's, and the largest difference in
@@ -124,6 +130,7 @@ class RampSummary(FitSummary):
     peak_current_A: tuple[float, ...]
     saturation_reached: dict[str, bool]
     baseline_samples: int | None = optional_entry()
+    supply_V: tuple[tuple[float, float], ...] | None = optional_entry()
     falling_points_compared: int | None = optional_entry()
     falling_max_z: float | None = optional_entry()
 
@@ -266,6 +273,7 @@ class PulseRamp(Method):
             current_range_A=(float(grid[0]), float(grid[-1])), peak_current_A=tuple(r.high for r in ramps),
             saturation_reached={str(d): j is not None for d, j in drops.items()},
             baseline_samples=baseline,
+            supply_V=self._supply(capture, setup, ramps),
             falling_points_compared=comparison.points if comparison else None,
             falling_max_z=comparison.max_z if comparison else None)
         return Estimate(tuple(blocks), summary, warnings=tuple(dict.fromkeys(warnings)),
@@ -287,6 +295,20 @@ class PulseRamp(Method):
                                 ["current_offset", "voltage_offset"], [Block(0, n, "current"), Block(n, 2 * n, "voltage")],
                                 model="channel offsets before the pulse")
         return FittedBlock(fit.names, fit.values, fit.covariance, ("V", "V"), fit.dof, group="offsets"), n
+
+    def _supply(self, capture, setup: Setup, ramps: list[Ramp]) -> tuple[tuple[float, float], ...] | None:
+        """The supply's mean voltage over the first and last samples of each ramp's fit, or None
+        without a ``supply`` column."""
+        if "supply" not in setup.columns:
+            return None
+        supply = np.asarray(self.channel(capture, setup, "supply").values, dtype=float)
+        t = np.asarray(capture.time, dtype=float)
+        ends = []
+        for ramp in ramps:
+            a = int(np.searchsorted(t, ramp.current.knots[0]))
+            b = a + ramp.samples
+            ends.append((float(np.nanmean(supply[a:a + SUPPLY_SAMPLES])), float(np.nanmean(supply[b - SUPPLY_SAMPLES:b]))))
+        return tuple(ends)
 
     @staticmethod
     def _clip_level(current) -> float | None:
