@@ -84,6 +84,20 @@ def knots_at_steps(t: np.ndarray, guide: np.ndarray, interior: int) -> np.ndarra
     return np.concatenate((np.full(DEGREE + 1, t[0]), np.sort(inner), np.full(DEGREE + 1, t[-1])))
 
 
+def refined(knots: np.ndarray) -> np.ndarray:
+    """The knot vector with a knot added half-way between each pair of neighbouring distinct
+    knots: its spline space holds the original one (nested spaces, de Boor 2001, ch. IX)."""
+    breaks = np.unique(knots)
+    middles = 0.5 * (breaks[:-1] + breaks[1:])
+    return np.sort(np.concatenate((knots, middles)))
+
+
+def fits_samples(knots: np.ndarray, samples: int) -> bool:
+    """Whether ``samples`` samples give every coefficient of a spline on ``knots`` at least
+    :data:`MIN_SAMPLES_PER_COEFFICIENT` samples."""
+    return samples >= MIN_SAMPLES_PER_COEFFICIENT * (knots.size - DEGREE - 1)
+
+
 def choose_interior_knots(t: np.ndarray, ys: list[np.ndarray], guide: np.ndarray) -> int:
     """Interior knot count minimising Schwarz's criterion, summed over the records ``ys``
     (each fitted by unweighted least squares on the same knots, with its own scatter)."""

@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 from scipy.integrate import trapezoid
 
-from ..fit.spline_regression import SplineCurve, choose_interior_knots, fit_spline, knots_at_steps
+from ..fit.spline_regression import DEGREE, SplineCurve, choose_interior_knots, fit_spline, knots_at_steps
 
 #: Current rising through the segment (the pulse) or falling (after the switch opens).
 RISING, FALLING = 1, -1
@@ -40,6 +40,11 @@ class Ramp:
     interior: int
     samples: int
     flux_name: str | None
+
+    @property
+    def start(self) -> float:
+        """The first fitted instant (recorded time)."""
+        return float(self.current.knots[0])
 
     @property
     def _times(self) -> np.ndarray:
@@ -82,14 +87,15 @@ class Ramp:
 
 
 def fit_ramp(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, start: int, stop: int, index: int,
-             direction: int, shunt: float, offset: float) -> Ramp:
+             direction: int, shunt: float, offset: float, knots: np.ndarray | None = None) -> Ramp:
     """Fit samples ``start:stop`` of both channels with cubic regression splines on the same
-    knots (count by Schwarz's criterion, placed at equal steps of the current)."""
+    knots (given, or their count by Schwarz's criterion, placed at equal steps of the current)."""
     seg = slice(start, stop)
     ts, i_s, v_s = t[seg], current[seg], voltage[seg]
-    guide = direction * i_s
-    interior = choose_interior_knots(ts, [i_s, v_s], guide)
-    knots = knots_at_steps(ts, guide, interior)
+    if knots is None:
+        guide = direction * i_s
+        knots = knots_at_steps(ts, guide, choose_interior_knots(ts, [i_s, v_s], guide))
+    interior = knots.size - 2 * (DEGREE + 1)
     tag = f"p{index + 1}" if direction == RISING else f"p{index + 1}_falling"
     i_fit = fit_spline(ts, i_s, knots, "current", f"{tag}_i")
     v_fit = fit_spline(ts, v_s, knots, "voltage", f"{tag}_v")

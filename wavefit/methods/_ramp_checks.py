@@ -37,7 +37,7 @@ class FallingComparison:
     at_current: float
 
 
-def _with_fits(x: dict[str, Any], ramps: list[Ramp]) -> dict[str, Any]:
+def with_fits(x: dict[str, Any], ramps: list[Ramp]) -> dict[str, Any]:
     """``x`` with the coefficients of ``ramps``' fits as correlated ``uncertainties`` values."""
     x = dict(x)
     for ramp in ramps:
@@ -51,7 +51,7 @@ def heating_warning(ramps: list[Ramp], settings: Mapping[str, Any], blocks, part
     standard uncertainties of the difference, else None."""
     if len(ramps) < 2:
         return None
-    x = _with_fits(nominal_inputs(blocks, parts), [ramps[0], ramps[-1]])
+    x = with_fits(nominal_inputs(blocks, parts), [ramps[0], ramps[-1]])
     grid, weights, points = settings["grid"], settings["low_weights"], settings["low_points"]
     first, last = (ramp_curves(x, settings, [ramp.rows(grid)])["L_inc"] for ramp in (ramps[0], ramps[-1]))
     difference = sum(w * (first[j] - last[j]) for w, j in zip(weights, points))
@@ -75,7 +75,7 @@ def compare_falling(rising: list[Ramp], falling: list[Ramp], settings: Mapping[s
     if inside.size < 2:
         return None
     part = {**settings, "grid": grid[inside]}
-    x = _with_fits(nominal_inputs(blocks, parts), [*rising, *falling])
+    x = with_fits(nominal_inputs(blocks, parts), [*rising, *falling])
     up = ramp_curves(x, part, [r.rows(grid[inside]) for r in rising])["L_inc"]
     down = ramp_curves(x, part, [r.rows(grid[inside]) for r in falling])["L_inc"]
     z = np.array([abs(d.nominal_value) / d.std_dev if d.std_dev > 0 else 0.0 for d in (up - down)])

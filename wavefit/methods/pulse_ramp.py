@@ -60,6 +60,8 @@ from . import register
 from ._pulses import Pulse, falling_segment, find_pulses
 from ._ramp import FALLING, RISING, Ramp, fit_ramp, flux_before
 from ._ramp_checks import compare_falling, falling_warning, heating_warning
+from ._model_check import ModelCheck, added
+from ._ramp_model_check import model_input, ramp_model_check
 from ._ramp_curves import first_crossing, interpolated_crossing, nominal_inputs, ramp_curves
 from .base import Method, PartSpec
 from .estimate import Estimate, FittedBlock
@@ -108,6 +110,8 @@ class RampSummary(FitSummary):
         The highest fitted current of each pulse, A.
     saturation_reached
         Per fall fraction (percent), whether L_inc fell that far within the range.
+    model_check
+        The finer-knot check of the splines (:mod:`wavefit.methods._ramp_model_check`).
     baseline_samples
         Samples before the first pulse that gave the channels' offsets.
     supply_V
@@ -129,6 +133,7 @@ class RampSummary(FitSummary):
     current_range_A: tuple[float, float]
     peak_current_A: tuple[float, ...]
     saturation_reached: dict[str, bool]
+    model_check: ModelCheck
     baseline_samples: int | None = optional_entry()
     supply_V: tuple[tuple[float, float], ...] | None = optional_entry()
     falling_points_compared: int | None = optional_entry()
@@ -262,6 +267,9 @@ class PulseRamp(Method):
                                   f"the measured range {grid[0]:.4g}–{grid[-1]:.4g} A")
         settings.update(low_points=low_points, low_weights=low_weights, drops=drops, at=at,
                         at_index=np.searchsorted(grid, at).clip(1, grid.size - 1))
+        check = ramp_model_check(t, current, voltage, ramps, settings, blocks, parts)
+        warnings += [w for w in (check.warning("spline fit of the ramp", "a knee sharper than the chosen knots "
+                                               "follow"),) if w]
         comparison = compare_falling(ramps, falling, settings, blocks, parts)
         warnings += [w for w in (heating_warning(ramps, settings, blocks, parts), falling_warning(comparison)) if w]
         summary = RampSummary(
@@ -272,11 +280,12 @@ class PulseRamp(Method):
             masked_before_off_s=tuple(float(t[p.off - 1] - t[p.stop - 1]) for p in pulses),
             current_range_A=(float(grid[0]), float(grid[-1])), peak_current_A=tuple(r.high for r in ramps),
             saturation_reached={str(d): j is not None for d, j in drops.items()},
-            baseline_samples=baseline,
+            model_check=check, baseline_samples=baseline,
             supply_V=self._supply(capture, setup, ramps),
             falling_points_compared=comparison.points if comparison else None,
             falling_max_z=comparison.max_z if comparison else None)
-        return Estimate(tuple(blocks), summary, warnings=tuple(dict.fromkeys(warnings)),
+        return Estimate(tuple(blocks), summary, inputs=check.budget_inputs(), warnings=tuple(dict.fromkeys(warnings)),
+                        adequate=check.adequate,
                         plot=_trace_plot(t, current, voltage, ramps), settings=settings, axes={"I": grid, "I_at": at})
 
     @staticmethod
@@ -327,10 +336,12 @@ class PulseRamp(Method):
         grid = settings["grid"]
         l_inc = curves["L_inc"]
         l0 = sum(w * l_inc[j] for w, j in zip(settings["low_weights"], settings["low_points"]))
-        out = {"L0": l0, "L_inc": l_inc, "L_app": curves["L_app"], "flux_linkage": curves["flux_linkage"],
+        out = {"L0": l0 + added(x, model_input("L0")), "L_inc": l_inc, "L_app": curves["L_app"], "flux_linkage": curves["flux_linkage"],
                "I_peak": curves["I_peak"]}
         for drop, j in settings["drops"].items():
-            out[f"I_sat_{drop}"] = None if j is None else interpolated_crossing(grid, l_inc, j, (1 - drop / 100) * l0)
+            name = f"I_sat_{drop}"
+            out[name] = None if j is None else (interpolated_crossing(grid, l_inc, j, (1 - drop / 100) * l0)
+                                                + added(x, model_input(name)))
         # E = ∫ i dλ = ∫ i·L_inc di: from zero to the grid's start at L0, then along the grid
         head = 0.5 * l0 * grid[0] ** 2
         along = sum(0.5 * (grid[j + 1] - grid[j]) * (grid[j] * l_inc[j] + grid[j + 1] * l_inc[j + 1])

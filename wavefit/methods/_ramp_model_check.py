@@ -1,0 +1,82 @@
+"""pulse-ramp's model check: do the splines hold the ramp, or does their smoothing bias it?
+
+Each rising ramp is fitted again on knots with one more knot half-way between each pair of
+neighbours. That spline space holds the first (nested spaces), so when the first already
+follows the ramp both fits estimate the same curve and their difference is noise with
+variance var(finer) − var(first) (Hausman's specification test); a difference beyond
+:data:`~wavefit.methods._model_check.MODEL_Z` of that says the chosen knots smooth the ramp
+too much (a knee sharper than they can follow). L0 and each saturation current reached are
+compared; a significant move enters the budget as a rectangular type B input, as for every
+method's model check.
+
+References
+----------
+.. [1] J. A. Hausman, "Specification tests in econometrics", Econometrica 46 (1978) 1251–1271.
+.. [2] C. de Boor, *A Practical Guide to Splines*, Springer 2001, ch. IX (knot insertion).
+"""
+from __future__ import annotations
+
+import math
+from typing import Any, Mapping
+
+import numpy as np
+
+from ..fit.spline_regression import fits_samples, refined
+from ._model_check import ModelCheck, Variation
+from ._ramp import RISING, Ramp, fit_ramp
+from ._ramp_checks import with_fits
+from ._ramp_curves import first_crossing, interpolated_crossing, nominal_inputs, ramp_curves
+
+#: What the check varies, in words (the report and the JSON say it).
+VARIED = "each pulse's splines refitted with a knot added half-way between each pair of neighbours"
+
+
+def model_input(quantity: str) -> str:
+    """The budget input that holds a significant move of ``quantity``."""
+    return f"model_{quantity}"
+
+
+def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: list[Ramp],
+                     settings: Mapping[str, Any], blocks, parts) -> ModelCheck:
+    """The finer-knot variation of L0 and of each saturation current reached."""
+    finer = []
+    for ramp in ramps:
+        knots = refined(ramp.current.knots)
+        if not fits_samples(knots, ramp.samples):
+            return ModelCheck(VARIED, skipped="too few samples per coefficient for finer knots")
+        start = int(np.searchsorted(t, ramp.start))
+        finer.append(fit_ramp(t, current, voltage, start, start + ramp.samples, ramp.index, RISING, ramp.shunt,
+                              ramp.offset, knots))
+    base = nominal_inputs(blocks, parts)
+    chosen = _scalars(with_fits(base, ramps), settings, ramps, settings["drops"])
+    finer_curve = np.array([p.nominal_value for p in _curve(with_fits(base, finer), settings, finer)])
+    finer_drops = {d: first_crossing(finer_curve, (1 - d / 100) * chosen["L0"].n) for d in settings["drops"]}
+    moved = _scalars(with_fits(base, finer), settings, finer, finer_drops)
+    variations = []
+    for name, value in chosen.items():
+        if name not in moved:
+            continue
+        other = moved[name]
+        spread = other.s ** 2 - value.s ** 2
+        scale = math.sqrt(spread) if spread > 0 else math.hypot(other.s, value.s)
+        z = abs(other.n - value.n) / scale if scale > 0 else 0.0
+        variations.append(Variation(name, model_input(name), "H" if name == "L0" else "A", value.n,
+                                    {"finer_knots": other.n}, z))
+    return ModelCheck(VARIED, tuple(variations))
+
+
+def _curve(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp]) -> Any:
+    return ramp_curves(x, settings, [r.rows(settings["grid"]) for r in ramps])["L_inc"]
+
+
+def _scalars(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp],
+             drops: Mapping[int, int | None]) -> dict[str, Any]:
+    """L0 and the saturation currents reached, as ``uncertainties`` values of the fits alone."""
+    grid = settings["grid"]
+    curve = _curve(x, settings, ramps)
+    l0 = sum(w * curve[j] for w, j in zip(settings["low_weights"], settings["low_points"]))
+    out = {"L0": l0}
+    for drop, j in drops.items():
+        if j is not None and settings["drops"].get(drop) is not None:
+            out[f"I_sat_{drop}"] = interpolated_crossing(grid, curve, j, (1 - drop / 100) * l0)
+    return out
