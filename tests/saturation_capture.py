@@ -23,13 +23,24 @@ is switched (an ``S`` element, .model SW) through the wiring's inductance across
 DCR and a low-side shunt; a freewheeling diode (with a series resistor that speeds the decay)
 takes the current at turn-off. The shunt lies inside the freewheel loop, so the record shows
 the falling current too. A snubbed capacitance across the coil (winding and probe) rings with
-the wiring at the switching edges, as a real switch does. The capture has the columns
+the wiring at the switching edges, as a real switch does; a damped capacitance across the
+switch (its output capacitance) takes the wiring's current at turn-off (without it ngspice stops
+there: "timestep too small"). The capture has the columns
 ``time``, ``i_shunt`` (the shunt's voltage, V) and ``v_coil`` (the coil's terminal voltage,
 its DCR drop included, as a differential probe sees it).
+
+References
+----------
+Faraday's law of induction, v = dλ/dt, and the series RL charging law: any circuits textbook.
+IEC 62024-2:2020, High frequency inductive components – Part 2: Rated current of inductors for
+DC-to-DC converters (the saturation current as a stated fall of inductance).
+ngspice User's Manual (version 39): non-linear dependent sources (B), voltage-controlled
+switches (S, .model SW), the ``linearize`` command.
 """
 from __future__ import annotations
 
 import math
+from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from functools import lru_cache
 
@@ -43,7 +54,8 @@ from wavefit.synth.scope import ScopeModel
 #: Forward drop assumed for the freewheel diode when the decay time is estimated (V); the
 #: record's tail is made longer than this estimate, so it need not be exact.
 DIODE_DROP_ESTIMATE = 0.8
-#: Samples on the ramp (the switch's on-time) by default; the brief asks for >= 2000.
+#: Samples on the ramp (the switch's on-time) by default: a derivative along the ramp has at
+#: least 2000 points to work with.
 RAMP_SAMPLES = 2500
 #: ngspice tolerances: tighter ones (reltol 1e-7, abstol 1e-15) stop the run at the switch's turn-off
 #: ("timestep too small"); reltol 1e-6 with gear integration runs and meets the checks of
@@ -52,6 +64,8 @@ SPICE_OPTIONS = ".options reltol=1e-6 method=gear maxord=2"
 #: A pulse follows the last after the bank has recharged for this many time constants (e^-7: a
 #: droop of 1 V is made up to 1 mV).
 RECHARGE_TIME_CONSTANTS = 7.0
+#: Rise and fall of the switch's control voltage (s); the switch turns at half of it (vt = 0.5 of 1 V).
+CONTROL_EDGE = 1e-9
 #: Parts of the pulse length recorded before the first pulse (the record's zero level).
 PRE_TRIGGER_FRACTION = 0.1
 #: The record runs this much longer than the estimated freewheel decay.
@@ -62,28 +76,28 @@ SATURATION_FRACTIONS = (0.1, 0.2, 0.3)
 LINEAR_PEAK_CURRENT = 10.0
 
 
-class FluxLaw:
+class FluxLaw(ABC):
     """A coil's current as a function of its flux linkage, i = g(λ), odd and increasing."""
 
+    @abstractmethod
     def current(self, flux: np.ndarray | float) -> np.ndarray:
         """g(λ) in A for λ in Wb."""
-        raise NotImplementedError
 
+    @abstractmethod
     def current_slope(self, flux: np.ndarray | float) -> np.ndarray:
         """g'(λ) in A/Wb (the reciprocal incremental inductance)."""
-        raise NotImplementedError
 
+    @abstractmethod
     def energy_at_flux(self, flux: np.ndarray | float) -> np.ndarray:
         """E = ∫₀^λ g(λ') dλ' in J."""
-        raise NotImplementedError
 
+    @abstractmethod
     def spice_current(self, node: str) -> str:
         """g of the node voltage ``V(node)`` as an ngspice B-source expression."""
-        raise NotImplementedError
 
+    @abstractmethod
     def saturation_current(self, fraction: float) -> float | None:
         """The current where L_inc has fallen to (1 − fraction)·L0; None if it never does."""
-        raise NotImplementedError
 
     @property
     def L0(self) -> float:
@@ -92,13 +106,13 @@ class FluxLaw:
 
     # ---- the truth as functions of the current -------------------------------------------
     def flux_linkage(self, current: np.ndarray | float) -> np.ndarray:
-        """λ(i), the inverse of g, by root finding (g is increasing; λ lies in [0, L0·|i|] since
+        """λ(i), the inverse of g, by root finding (g is increasing; λ lies in [0, 2·L0·|i|) since
         g(λ) >= λ/L0 for both laws here)."""
         i = np.atleast_1d(np.asarray(current, dtype=float))
         out = np.zeros_like(i)
         for k, value in enumerate(np.abs(i)):
             if value > 0:
-                upper = self.L0 * value
+                upper = 2.0 * self.L0 * value
                 out[k] = optimize.brentq(lambda lam: float(self.current(lam)) - value, 0.0, upper,
                                          xtol=1e-18, rtol=1e-14)
         out = np.sign(i) * out
@@ -237,7 +251,8 @@ class PulseBench:
         return self.switch_on_resistance + self.dcr + self.shunt_resistance
 
     def netlist(self, law: FluxLaw, pulse_start: float, pulse_length: float, period: float) -> str:
-        """Netlist lines (no .tran/.end): bank, switch, coil with DCR, shunt, freewheel path."""
+        """Netlist lines (no .tran/.end): bank, switch, coil with DCR, shunt, freewheel path; the
+        switch closes at ``pulse_start`` for ``pulse_length``, every ``period``."""
         edge = "" if self.edge_capacitance <= 0 else (
             f"Cedge a snub {self.edge_capacitance:.6e}\nRsnub snub b {self.edge_damping:.6e}\n")
         return f"""
@@ -249,7 +264,8 @@ S1 sw a ctl 0 pulse_switch
 Cswitch sw swd {self.switch_capacitance:.6e}
 Rswitch swd a {self.switch_damping:.6e}
 .model pulse_switch sw(vt=0.5 vh=0 ron={self.switch_on_resistance:.6e} roff=1e9)
-Vctl ctl 0 PULSE(0 1 {pulse_start:.9e} 1e-9 1e-9 {pulse_length - 1e-9:.9e} {period:.9e})
+Vctl ctl 0 PULSE(0 1 {pulse_start - CONTROL_EDGE / 2:.9e} {CONTROL_EDGE:.1e} {CONTROL_EDGE:.1e} \
+{pulse_length - CONTROL_EDGE:.9e} {period:.9e})
 Bcoil a m I={law.spice_current('lam')}
 Bflux 0 lam I=V(a,m)
 Cflux lam 0 1
@@ -303,6 +319,7 @@ class PulseTruth:
 
     law: FluxLaw
     bench: PulseBench
+    #: The instant the switch closes for the first pulse (s on the capture's time axis).
     pulse_start: float
     pulse_length: float
     period: float
@@ -328,13 +345,14 @@ class PulseTruth:
         """JSON-ready truth: L0, DCR, the table, saturation currents, E at the peak, the peak."""
         return {"L0": self.law.L0, "DCR": self.bench.dcr, "shunt_resistance": self.bench.shunt_resistance,
                 **self.saturation_currents(), "E_at_peak": float(self.law.energy(self.peak_current)),
-                "peak_current": self.peak_current, "pulse_length": self.pulse_length, "pulses": self.pulses,
-                "period": self.period, "sample_interval": self.sample_interval, "law": repr(self.law),
-                "table": self.table()}
+                "peak_current": self.peak_current, "pulse_start": self.pulse_start,
+                "pulse_length": self.pulse_length, "pulses": self.pulses, "period": self.period,
+                "sample_interval": self.sample_interval, "law": repr(self.law), "table": self.table()}
 
 
 def default_peak_current(law: FluxLaw) -> float:
-    """Twice I_sat_20 (the brief's ~2× for a saturating coil), or LINEAR_PEAK_CURRENT."""
+    """Twice I_sat_20 (well into saturation: L_inc near L0/2 for m = 2, L0/6 for m = 10), or
+    LINEAR_PEAK_CURRENT."""
     i_sat_20 = law.saturation_current(0.2)
     return LINEAR_PEAK_CURRENT if i_sat_20 is None else 2.0 * i_sat_20
 
@@ -359,7 +377,8 @@ def pulse_capture(law: FluxLaw, bench: PulseBench = PulseBench(), *, peak_curren
     """A synthetic capture of ``pulses`` pulses and the truth of its coil.
 
     The on-time is ``pulse_length``, or the time to reach ``peak_current`` (default: twice the
-    law's I_sat_20, or LINEAR_PEAK_CURRENT for a coil that does not saturate).
+    law's I_sat_20, or LINEAR_PEAK_CURRENT for a coil that does not saturate); with
+    ``pulse_length`` given, ``peak_current`` only sets the record's tail.
     The sample interval defaults to the on-time / RAMP_SAMPLES; the record starts
     PRE_TRIGGER_FRACTION of an on-time before the first pulse and ends after the last pulse's
     estimated freewheel decay (× TAIL_MARGIN); pulses repeat after the decay or the bank's
@@ -399,7 +418,7 @@ def scope_for(y: np.ndarray, *, span_fraction: float = 0.8, noise_fraction: floa
 
 def noisy_scopes(law: FluxLaw, bench: PulseBench = PulseBench(), **capture_options) -> dict[str, ScopeModel]:
     """The scope settings of :func:`scope_for` for each column of the clean capture."""
-    clean, _ = pulse_capture(law, bench, **{k: v for k, v in capture_options.items() if k not in {"scopes", "seed"}})
+    clean, _ = pulse_capture(law, bench, **capture_options)
     return {name: scope_for(clean[name].to_numpy()) for name in ("i_shunt", "v_coil")}
 
 

@@ -22,11 +22,6 @@ STIFF = PulseBench(bank_capacitance=1.0, charge_resistance=0.1, edge_capacitance
 CLOSED_FORM_TOLERANCE = 1e-3
 
 
-def switch_on_time(truth) -> float:
-    """The control pulse crosses the switch's threshold (0.5 V) half way up its 1 ns rise."""
-    return truth.pulse_start + 0.5e-9
-
-
 def coil_current_from_shunt(frame, bench: PulseBench) -> np.ndarray:
     return frame["i_shunt"].to_numpy() / bench.shunt_resistance
 
@@ -38,7 +33,7 @@ def test_linear_coil_follows_the_rl_charging_law():
     bench = PulseBench(bank_capacitance=1.0, charge_resistance=0.1, edge_capacitance=0.0, dcr=1.0)
     law = PowerSaturation.linear(L0)
     frame, truth = pulse_capture(law, bench, pulse_length=50e-6)
-    t = frame["time"].to_numpy() - switch_on_time(truth)
+    t = frame["time"].to_numpy() - truth.pulse_start
     i = coil_current_from_shunt(frame, bench)
     inductance = L0 + bench.wiring_inductance
     resistance = bench.loop_resistance
@@ -60,7 +55,7 @@ def test_piecewise_linear_flux_gives_the_known_step_in_slope():
     frame, truth = pulse_capture(law, STIFF, peak_current=6.0)
     t = frame["time"].to_numpy()
     i = coil_current_from_shunt(frame, STIFF)
-    on = (t > switch_on_time(truth)) & (t < switch_on_time(truth) + truth.pulse_length - 2 * truth.sample_interval)
+    on = (t > truth.pulse_start) & (t < truth.pulse_start + truth.pulse_length - 2 * truth.sample_interval)
     t_break = float(np.interp(law.break_current, i[on], t[on]))
     span = 0.15 * truth.pulse_length
     gap = 5 * truth.sample_interval
@@ -88,7 +83,7 @@ def test_flux_linkage_from_the_capture_matches_the_law(exponent):
     t = frame["time"].to_numpy()
     i = coil_current_from_shunt(frame, bench)
     flux = integrate.cumulative_trapezoid(frame["v_coil"].to_numpy() - i * bench.dcr, t, initial=0.0)
-    last_on = np.searchsorted(t, switch_on_time(truth) + truth.pulse_length) - 2
+    last_on = np.searchsorted(t, truth.pulse_start + truth.pulse_length) - 2
     assert i[last_on] > 1.9 * I_SAT_20  # the pulse reaches about twice I_sat_20
     assert abs(flux[last_on] / law.flux_linkage(i[last_on]) - 1) < CLOSED_FORM_TOLERANCE
     assert truth.pulse_length / truth.sample_interval >= 2000  # the ramp's samples
@@ -112,7 +107,8 @@ def test_truth_functions_agree_with_their_definitions():
     assert linear.saturation_current(0.2) is None
     assert np.allclose(linear.apparent_inductance(np.array([0.0, 1.0, 5.0])), L0, rtol=1e-12)
     step = PiecewiseLinear(100e-6, 25e-6, 3.0)
-    assert step.incremental_inductance(2.9) == pytest.approx(100e-6) and step.incremental_inductance(3.1) == pytest.approx(25e-6)
+    assert step.incremental_inductance(2.9) == pytest.approx(100e-6)
+    assert step.incremental_inductance(3.1) == pytest.approx(25e-6)
 
 
 def test_scope_settings_fill_80_percent_and_pulses_repeat():
