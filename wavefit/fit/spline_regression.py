@@ -10,7 +10,13 @@ between neighbouring points is thrown away).
 
 The number of knots is chosen by Schwarz's criterion among :data:`INTERIOR_KNOT_COUNTS`;
 the knots are placed at equal steps of a monotone guide signal (the current of a ramp: more
-knots where it changes fast).
+knots where it changes fast). :func:`undersmoothed_knots` then adds a knot between each pair
+of neighbours: the criterion balances the spline's smoothing bias against its noise, so at
+its choice the bias of a derivative is of the order of its standard error and a ±2σ band
+misses the truth far more often than 5 % (measured: a derivative's z had an rms of 2–3.7 on
+a t^1.5 ramp, 1.05–1.1 after the refinement; ``tests/test_spline_regression.py``).
+Undersmoothing, fitting with more freedom than the criterion's optimum, is the usual cure
+for the bias of a confidence band [2]_ (ch. 6, from memory).
 
 References
 ----------
@@ -116,6 +122,15 @@ def choose_interior_knots(t: np.ndarray, ys: list[np.ndarray], guide: np.ndarray
         if criterion < best:
             best, best_count = criterion, count
     return best_count
+
+
+def undersmoothed_knots(t: np.ndarray, ys: list[np.ndarray], guide: np.ndarray) -> np.ndarray:
+    """The knots of :func:`choose_interior_knots`' count with one knot added between each pair
+    of neighbours (:func:`refined`), or the chosen knots when the samples are too few for
+    the refinement (module docstring: the band's bias)."""
+    knots = knots_at_steps(t, guide, choose_interior_knots(t, ys, guide))
+    finer = refined(knots)
+    return finer if fits_samples(finer, t.size) else knots
 
 
 def fit_spline(t: np.ndarray, y: np.ndarray, knots: np.ndarray, group: str, prefix: str,

@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 from scipy.integrate import trapezoid
 
-from ..fit.spline_regression import DEGREE, SplineCurve, choose_interior_knots, fit_spline, knots_at_steps
+from ..fit.spline_regression import DEGREE, SplineCurve, fit_spline, undersmoothed_knots
 
 #: Current rising through the segment (the pulse) or falling (after the switch opens).
 RISING, FALLING = 1, -1
@@ -89,12 +89,12 @@ class Ramp:
 def fit_ramp(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, start: int, stop: int, index: int,
              direction: int, shunt: float, offset: float, knots: np.ndarray | None = None) -> Ramp:
     """Fit samples ``start:stop`` of both channels with cubic regression splines on the same
-    knots (given, or their count by Schwarz's criterion, placed at equal steps of the current)."""
+    knots (given, or :func:`~wavefit.fit.spline_regression.undersmoothed_knots` placed at equal
+    steps of the current)."""
     seg = slice(start, stop)
     ts, i_s, v_s = t[seg], current[seg], voltage[seg]
     if knots is None:
-        guide = direction * i_s
-        knots = knots_at_steps(ts, guide, choose_interior_knots(ts, [i_s, v_s], guide))
+        knots = undersmoothed_knots(ts, [i_s, v_s], direction * i_s)
     interior = knots.size - 2 * (DEGREE + 1)
     tag = f"p{index + 1}" if direction == RISING else f"p{index + 1}_falling"
     i_fit = fit_spline(ts, i_s, knots, "current", f"{tag}_i")
