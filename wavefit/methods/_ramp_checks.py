@@ -25,6 +25,11 @@ HEATING_Z = 3.0
 #: independent points as its splines have coefficients (up to about a hundred); 4σ keeps the
 #: chance of a false warning over them below 1 % for Gaussian errors.
 FALLING_Z = 4.0
+#: The standard uncertainty of a difference between two fits of the same record is taken as at
+#: least this fraction of the value: a record with almost no noise (a simulation) would otherwise
+#: call a difference of a few parts per million significant, far below what any instrument
+#: resolves (common practice).
+RELATIVE_FLOOR = 1e-4
 
 
 @dataclass(frozen=True)
@@ -78,7 +83,8 @@ def compare_falling(rising: list[Ramp], falling: list[Ramp], settings: Mapping[s
     x = with_fits(nominal_inputs(blocks, parts), [*rising, *falling])
     up = ramp_curves(x, part, [r.rows(grid[inside]) for r in rising])["L_inc"]
     down = ramp_curves(x, part, [r.rows(grid[inside]) for r in falling])["L_inc"]
-    z = np.array([abs(d.nominal_value) / d.std_dev if d.std_dev > 0 else 0.0 for d in (up - down)])
+    scale = [max(d.std_dev, RELATIVE_FLOOR * abs(level.nominal_value)) for d, level in zip(up - down, up)]
+    z = np.array([abs(d.nominal_value) / s if s > 0 else 0.0 for d, s in zip(up - down, scale)])
     worst = int(np.argmax(z))
     return FallingComparison(int(inside.size), float(z[worst]), float(grid[inside][worst]))
 

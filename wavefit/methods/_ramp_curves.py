@@ -81,6 +81,13 @@ def nominal_inputs(blocks: list[FittedBlock], parts: Mapping[str, Any]) -> dict[
     return x
 
 
+def intercept_weights(currents: np.ndarray, powers: tuple[int, ...]) -> np.ndarray:
+    """Weights w such that w·L gives the intercept of the least-squares fit of
+    L = Σ c_p·I^p (p in ``powers``, the first 0) to the points L at ``currents``: a fixed linear
+    combination of the curve's points, so the intercept's uncertainty sees their covariance."""
+    return np.linalg.pinv(np.column_stack([currents ** p for p in powers]))[0]
+
+
 def first_crossing(curve: np.ndarray, target: float) -> int | None:
     """Index j ≥ 1 of the first grid point where ``curve`` is at or below ``target``, or None."""
     below = np.flatnonzero(curve[1:] <= target)

@@ -9,6 +9,14 @@ too much (a knee sharper than they can follow). L0 and each saturation current r
 compared; a significant move enters the budget as a rectangular type B input, as for every
 method's model check.
 
+L0 is the intercept of the even series in the current to I² over the lowest part of the
+curve; it is compared with the intercept of the longer series (to I⁴) on the same curve. Both
+are fixed combinations of the same points, so their difference has an exact variance from
+the curve's covariance (the shorter series is the efficient estimate when it holds, the longer
+one consistent either way: Hausman's pair); a difference beyond MODEL_Z of it says the short
+series misses the curve's bend below the first measured current, and that move (and the
+saturation currents', which are judged from L0) enters the budget the same way.
+
 References
 ----------
 .. [1] J. A. Hausman, "Specification tests in econometrics", Econometrica 46 (1978) 1251–1271.
@@ -24,11 +32,14 @@ import numpy as np
 from ..fit.spline_regression import fits_samples, refined
 from ._model_check import ModelCheck, Variation
 from ._ramp import RISING, Ramp, fit_ramp
-from ._ramp_checks import with_fits
-from ._ramp_curves import first_crossing, interpolated_crossing, nominal_inputs, ramp_curves
+from ._ramp_checks import RELATIVE_FLOOR, with_fits
+from ._ramp_curves import first_crossing, intercept_weights, interpolated_crossing, nominal_inputs, ramp_curves
 
 #: What the check varies, in words (the report and the JSON say it).
-VARIED = "each pulse's splines refitted with a knot added half-way between each pair of neighbours"
+VARIED = ("each pulse's splines refitted with a knot added half-way between each pair of neighbours; "
+          "L0 extrapolated with the series to I⁴ instead of I²")
+#: The longer even series L0 is compared with.
+LONG_POWERS = (0, 2, 4)
 
 
 def model_input(quantity: str) -> str:
@@ -38,7 +49,7 @@ def model_input(quantity: str) -> str:
 
 def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: list[Ramp],
                      settings: Mapping[str, Any], blocks, parts) -> ModelCheck:
-    """The finer-knot variation of L0 and of each saturation current reached."""
+    """The finer-knot and the longer-series variations of L0 and of each saturation current reached."""
     finer = []
     for ramp in ramps:
         knots = refined(ramp.current.knots)
@@ -48,20 +59,29 @@ def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ra
         finer.append(fit_ramp(t, current, voltage, start, start + ramp.samples, ramp.index, RISING, ramp.shunt,
                               ramp.offset, knots))
     base = nominal_inputs(blocks, parts)
-    chosen = _scalars(with_fits(base, ramps), settings, ramps, settings["drops"])
+    x = with_fits(base, ramps)
+    chosen = _scalars(x, settings, ramps, settings["drops"])
+    moves: dict[str, dict[str, tuple[float, float]]] = {name: {} for name in chosen}
     finer_curve = np.array([p.nominal_value for p in _curve(with_fits(base, finer), settings, finer)])
     finer_drops = {d: first_crossing(finer_curve, (1 - d / 100) * chosen["L0"].n) for d in settings["drops"]}
-    moved = _scalars(with_fits(base, finer), settings, finer, finer_drops)
+    for name, other in _scalars(with_fits(base, finer), settings, finer, finer_drops).items():
+        value = chosen[name]
+        spread = other.s ** 2 - value.s ** 2  # independent refit of the same samples: Hausman
+        moves[name]["finer_knots"] = (other.n, math.sqrt(spread) if spread > 0 else math.hypot(other.s, value.s))
+    longer = {**settings, "low_weights": intercept_weights(settings["grid"][settings["low_points"]], LONG_POWERS)}
+    curve = np.array([p.nominal_value for p in _curve(x, settings, ramps)])
+    longer_l0 = float(longer["low_weights"] @ curve[longer["low_points"]])
+    longer_drops = {d: first_crossing(curve, (1 - d / 100) * longer_l0) for d in settings["drops"]}
+    for name, other in _scalars(x, longer, ramps, longer_drops).items():
+        moves[name]["quartic_L0"] = (other.n, (other - chosen[name]).s)  # the same fits: exact
     variations = []
-    for name, value in chosen.items():
-        if name not in moved:
+    for name, varied in moves.items():
+        if not varied:
             continue
-        other = moved[name]
-        spread = other.s ** 2 - value.s ** 2
-        scale = math.sqrt(spread) if spread > 0 else math.hypot(other.s, value.s)
-        z = abs(other.n - value.n) / scale if scale > 0 else 0.0
+        value = chosen[name]
+        z = max(abs(other - value.n) / max(scale, RELATIVE_FLOOR * abs(value.n)) for other, scale in varied.values())
         variations.append(Variation(name, model_input(name), "H" if name == "L0" else "A", value.n,
-                                    {"finer_knots": other.n}, z))
+                                    {label: other for label, (other, _) in varied.items()}, z))
     return ModelCheck(VARIED, tuple(variations))
 
 
