@@ -23,7 +23,8 @@ import wavefit  # first: it sets one BLAS thread, which takes effect only before
 import numpy as np
 import pandas as pd
 
-from wavefit.batch.command import available_cores, run
+from wavefit.batch.arguments import available_cores
+from wavefit.batch.command import run
 from wavefit.cli import build_parser
 from wavefit.synth.rl import rl_square_wave
 from wavefit.synth.scope import ScopeModel

@@ -1,4 +1,4 @@
-"""Test configuration: one BLAS thread per process (see wavefit/__init__.py), set before numpy loads."""
+"""Test configuration: one BLAS thread per process (see wavefit/blas_threads.py), set before numpy loads."""
 import os
 
 for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):

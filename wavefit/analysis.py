@@ -8,6 +8,7 @@ from typing import Any, Mapping, Sequence
 
 import pandas as pd
 
+from .blas_threads import one_blas_thread
 from .capture_checks import refuse_shared_columns, without_glitches
 from .errors import AnalysisRefused, CaptureError, SetupError
 from .io import capture_from_frame, read_capture
@@ -26,6 +27,7 @@ Source = "str | os.PathLike | pd.DataFrame | Capture"
 UNCERTAINTY_MODES = ("linear", "montecarlo")
 
 
+@one_blas_thread()
 def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | Setup | None = None,
             *, sample_interval: float | None = None, uncertainty: str = "linear",
             draws: int = MEASUREMENT_DRAWS, seed: int | None = DEFAULT_SEED) -> AnalysisResult:

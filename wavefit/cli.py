@@ -12,6 +12,8 @@ from pathlib import Path
 from typing import Sequence
 
 from . import __version__
+from .batch.arguments import add_batch_parser
+from .calibration.arguments import add_calibrate_parser
 from .errors import WavefitError
 from .report.safe_text import visible
 from .report.stdout import discard_stdout
@@ -78,11 +80,7 @@ def build_parser() -> argparse.ArgumentParser:
                       help='the sense resistor of this capture as a part value, e.g. "10 ohm ±0.1%%"')
     p_su.add_argument("--bits", type=int, default=8, metavar="N", help="the converter's resolution (default 8)")
 
-    from .batch.command import add_batch_parser
-
     add_batch_parser(sub)
-    from .calibration.command import add_calibrate_parser
-
     add_calibrate_parser(sub)
     return parser
 

@@ -20,37 +20,14 @@ from .. import __version__
 from ..errors import SetupError
 from ..report.safe_text import visible
 from ..values import eng_pm
+from .arguments import DEFAULT_REFERENCE_ROLE
 from .channel_file import ChannelComparison, ChannelRole, write_channel_comparison
-from .reference_command import add_reference_parser
 from .reference_command import run as run_reference
 
-#: The role taken as the reference channel when ``--reference`` is not given: the drive node's
-#: channel, which every two-channel setup of the fixture maps.
-DEFAULT_REFERENCE_ROLE = "drive"
 #: Coverage factor of the expanded uncertainties printed in the summary.
 SUMMARY_COVERAGE_FACTOR = 2.0
 #: Units a compared channel may carry: volts, or none written in the capture.
 VOLTAGE_UNITS = ("V", "")
-
-
-def add_calibrate_parser(sub: Any) -> argparse.ArgumentParser:
-    """Add the ``calibrate`` command group (``channels`` and ``reference`` under it) to the CLI's
-    subparsers."""
-    p = sub.add_parser("calibrate", help="turn a calibration capture into a file a setup names in [calibration]")
-    kinds = p.add_subparsers(dest="calibration", metavar="KIND")
-    ch = kinds.add_parser("channels", help="both probes on one node: gain ratio, offset difference and skew",
-                          description="Compare the two channels of a capture in which both probes were on the "
-                                      "same node with the same settings, and write the channel comparison file.")
-    ch.add_argument("capture", metavar="CAPTURE", help="the comparison capture (CSV, optionally .gz)")
-    ch.add_argument("--setup", required=True, help="setup file (TOML) whose [columns] map the two channels")
-    ch.add_argument("--out", required=True, metavar="FILE.toml", help="the channel comparison file to write")
-    ch.add_argument("--reference", metavar="ROLE",
-                    help=f"the role of the reference channel (default: {DEFAULT_REFERENCE_ROLE!r} when mapped)")
-    ch.add_argument("--json", action="store_true", help="print the comparison as JSON instead of the summary")
-    ch.add_argument("--sample-interval", type=float, metavar="SECONDS",
-                    help="sample interval when the capture has no time column")
-    add_reference_parser(kinds)
-    return p
 
 
 def run(args: argparse.Namespace) -> int:

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..blas_threads import one_blas_thread
 from ..errors import AnalysisRefused
 from ..signal.edges import find_edges
 from .channel_file import Estimated
@@ -41,6 +42,7 @@ class ComparisonEstimate:
     note: str
 
 
+@one_blas_thread()
 def compare_channels(time: np.ndarray, reference: np.ndarray, other: np.ndarray) -> ComparisonEstimate:
     """Estimate ratio, offset and skew of ``other`` against ``reference`` (same time axis).
 

@@ -18,22 +18,6 @@ from ..values import eng, parse_part
 from .reference_file import ReferenceSubstitution, write_reference
 
 
-def add_reference_parser(calibrate: Any) -> argparse.ArgumentParser:
-    """Add ``reference`` to the subparsers of ``wavefit calibrate``."""
-    p = calibrate.add_parser("reference", help="analyse a reference part's capture: the fixture's correction",
-                             description="Analyse a capture of the fixture holding a reference part of known "
-                                         "value instead of the part under test, and write the file that a "
-                                         "setup names in [calibration] reference.")
-    p.add_argument("capture", metavar="CAPTURE", help="the reference part's capture (CSV, optionally .gz)")
-    p.add_argument("--setup", required=True, help="the setup of the measurements it will correct")
-    p.add_argument("--part", required=True, metavar="'Q = VALUE ±TOL'",
-                   help="the quantity the reference corrects and its known value, e.g. 'L = 100 uH ±0.1%%'")
-    p.add_argument("--out", required=True, metavar="FILE.toml", help="the reference substitution file to write")
-    p.add_argument("--sample-interval", type=float, metavar="SECONDS",
-                   help="sample interval when the capture has no time column")
-    return p
-
-
 def run(args: argparse.Namespace) -> int:
     """Analyse the reference capture, write the file, print one line of what it holds."""
     from .. import __version__

@@ -28,6 +28,7 @@ from typing import Any, Sequence
 import lmfit
 import numpy as np
 
+from ..blas_threads import one_blas_thread
 from .constraints import DIFFERENCE_STEP, ParameterMap
 from .engine import Block, fit_free, whiten
 from .quantisation import include_quantisation
@@ -79,6 +80,7 @@ class ModelFit:
         return "\n".join(lines) + "\n" + report
 
 
+@one_blas_thread()
 def fit_model(model: lmfit.Model, capture: Any, params: lmfit.Parameters | None = None, *,
               channel: str | int | None = None, noise: str = "auto", sigma: float | None = None,
               intervals: str = "linear", sigmas: Sequence[float] = (1.0, 2.0)) -> ModelFit:

@@ -15,6 +15,7 @@ from typing import Any
 
 import numpy as np
 
+from ..blas_threads import one_blas_thread
 from ..errors import AnalysisRefused
 from ..io import Capture
 from ..values import PartValue, eng
@@ -54,6 +55,7 @@ def _finite(values: dict[str, Any]) -> dict[str, Any]:
     return {k: None if isinstance(v, float) and not math.isfinite(v) else v for k, v in values.items()}
 
 
+@one_blas_thread()
 def suggest(capture: Capture, sense_resistor: PartValue | None = None, bits: int = 8) -> Suggestion:
     """Propose a method, roles, and the next capture's settings for a first capture.
 
