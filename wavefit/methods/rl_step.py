@@ -433,5 +433,6 @@ def _plot(t, sense, drive, windows, fits) -> TracePlot:
 
 
 def _on_codes(fits) -> bool:
-    """Whether every fit was carried to the maximum of the code likelihood."""
-    return all(f.code_fit is not None for f in fits)
+    """Whether every fit was carried to the maximum of the code likelihood with noise that
+    passed its test of independence."""
+    return all(f.code_fit is not None and f.code_fit.independent_noise for f in fits)
