@@ -6,8 +6,8 @@ between c − q/2 and c + q/2. With ε_i independent N(0, σ²) the log-likeliho
     ℓ(θ, σ) = Σ_i log[Φ(b_i) − Φ(a_i)],  a_i = (c_i − q/2 − s_i)/σ,  b_i = (c_i + q/2 − s_i)/σ,
 
 the interval-censored normal model. Each sample may have its own grid (q and the origin
-per sample: the channels of a fit read different converters). When the noise is well below a code, least squares
-on the codes is biased by the deterministic quantisation error (B. Widrow and I. Kollár,
+per sample: the channels of a fit read different converters). When the noise is well below
+a code, least squares on the codes is biased by the deterministic quantisation error (B. Widrow and I. Kollár,
 *Quantization Noise*, Cambridge University Press 2008, ch. 4–5), while this likelihood
 describes the record exactly and its maximum is consistent; the estimation of signal
 parameters from quantised data by this likelihood is reviewed by P. Carbone, J. Schoukens

@@ -29,7 +29,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .code_likelihood import information, scores
+from .code_likelihood import expected_information, information, scores
 from .jacobian import Jacobian
 from .lagged import Rows, lag_grams
 from .noise_model import autocovariance
@@ -67,6 +67,9 @@ def godambe_covariance(codes: np.ndarray, step: "float | np.ndarray", origin: "f
         bread = np.linalg.inv(hessian)
     except np.linalg.LinAlgError:
         return None
+    block_lags = [lags[int(groups[b[0]])] for b in blocks]
+    meat = _absorbed_corrected(meat, bread, jac, mean, sigma, groups, step, origin, blocks, block_lags,
+                               sigma_known)
     cov = (bread @ meat @ bread)[:p, :p]
     cov = 0.5 * (cov + cov.T)
     return cov if positive_definite(cov) else None
@@ -105,4 +108,57 @@ def _weighted(parts, lags: list[int], size: int, *, bartlett: bool) -> np.ndarra
         k = np.arange(lag + 1)
         weights = 1.0 - k / (lag + 1.0) if bartlett else np.ones(lag + 1)
         meat[np.ix_(columns, columns)] += np.tensordot(weights, grams, axes=1)
+    return meat
+
+
+#: Fixed-point iterations of :func:`_absorbed_corrected`, and the relative change that ends them.
+ABSORBED_ITERATIONS, ABSORBED_TOLERANCE = 50, 1e-8
+
+
+def _absorbed_corrected(meat: np.ndarray, bread: np.ndarray, jac: Jacobian, mean: np.ndarray, sigma: np.ndarray,
+                        groups: np.ndarray, step, origin, blocks, lags: list[int], sigma_known: bool) -> np.ndarray:
+    """J corrected for the part of the scores the fit absorbed.
+
+    At the maximum the scores are û_i ≈ u_i − A_i·H⁻¹·Σ_j u_j (A_i the sample's expected
+    information, H = Σ A_i), so their truncated lag products fall short of J. Taking each
+    sample's share of the long-run covariance as A_i·H⁻¹·J (which sums to J), the shortfall is
+    E[Ĵ] ≈ J − sym(Σ_i A_i·V·B_i), V = H⁻¹·J·H⁻¹ and B_i = Σ_{|k|≤K} A_{i+k} the information
+    within the lags summed; J is found from Ĵ by fixed-point iteration. This is the
+    regression-residual correction of :func:`wavefit.fit.sandwich.fit_corrected_autocovariance`
+    (after H. D. Patterson and R. Thompson, Biometrika 58 (1971) 545–554) carried to scores.
+    The uncorrected Ĵ is returned when the iteration does not settle.
+    """
+    p, size = jac.params, meat.shape[0]
+    i_mm, i_ms, i_ss = expected_information(mean, sigma[groups], step, origin)
+    pieces = []
+    for (start, stop), lag in zip(blocks, lags):
+        cols = jac.support(start, stop)
+        rows = jac.dense(start, stop, cols)
+        columns = cols if sigma_known else np.concatenate((cols, [p + int(groups[start])]))
+        q = columns.size
+        info = np.einsum("i,ia,ib->iab", i_mm[start:stop], rows, rows)
+        if not sigma_known:
+            full = np.zeros((stop - start, q, q))
+            full[:, :-1, :-1] = info
+            full[:, :-1, -1] = full[:, -1, :-1] = i_ms[start:stop, None] * rows
+            full[:, -1, -1] = i_ss[start:stop]
+            info = full
+        running = np.concatenate((np.zeros((1, q, q)), np.cumsum(info, axis=0)))
+        n = stop - start
+        lo, hi = np.clip(np.arange(n) - lag, 0, n), np.clip(np.arange(n) + lag + 1, 0, n)
+        pieces.append((columns, info, running[hi] - running[lo]))
+    current = meat
+    for _ in range(ABSORBED_ITERATIONS):
+        v = bread @ current @ bread
+        shortfall = np.zeros((size, size))
+        for columns, info, near in pieces:
+            local = v[np.ix_(columns, columns)]
+            shortfall[np.ix_(columns, columns)] += np.einsum("iab,bc,icd->ad", info, local, near)
+        updated = meat + 0.5 * (shortfall + shortfall.T)
+        if not np.all(np.isfinite(updated)):
+            return meat
+        change = np.max(np.abs(updated - current)) / max(np.max(np.abs(updated)), 1e-300)
+        current = updated
+        if change < ABSORBED_TOLERANCE:
+            return current
     return meat
