@@ -13,11 +13,13 @@ as an rms over eight positions of the grid between codes (where the true
 waveform sits between codes is not known); that shift is added to the
 covariance as a fully correlated component.
 
-When every block of a fit is resolution-limited on one code grid, and the noise is not far
-below a code (σ ≥ CODE_FIT_FLOOR·q) and independent from sample to sample, the fit is
+When every block of a fit is resolution-limited on a code grid (one for all blocks, or one
+per channel), and the noise is not far below a code (σ ≥ CODE_FIT_FLOOR·q), the fit is
 instead carried to the maximum of the likelihood of the codes themselves
 (:mod:`wavefit.fit.code_likelihood`), which removes that error rather than widening the
-interval for it.
+interval for it. Its covariance is the inverse expected information when the noise is
+independent from sample to sample, and the composite-likelihood sandwich
+(:mod:`wavefit.fit.code_sandwich`) when the samples' scores show it correlated.
 """
 from __future__ import annotations
 
@@ -92,7 +94,8 @@ def limiting_step(y: np.ndarray, residual_rms: float, step: float | None = None)
 #: (measured: see docs/estimator-quality.md, "Records finer than the noise").
 CODE_FIT_FLOOR = 0.01
 
-#: The code fit is refused when the standardised scores' portmanteau p-value is below this. No
+#: The code fit's covariance is the sandwich, not the inverse information, when the standardised
+#: scores' portmanteau p-value is below this. No
 #: floor on the size of the correlation as for least-squares residuals: below a code the
 #: scores' correlation is much weaker than the noise's (AR(1) noise with φ = 0.3 at 0.1 code
 #: passed a 0.1 floor and its intervals were 1.3 times too narrow).
@@ -136,7 +139,7 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     fit's parameters; ``steps`` the code step of each noise group's channel when known
     from the whole record, and ``noise`` its noise before the converter when another fit
     of the channel found it (for all groups, or it is estimated here). When all blocks are
-    resolution-limited on one grid, the fit is moved to the maximum of the code likelihood
+    resolution-limited on code grids, the fit is moved to the maximum of the code likelihood
     (:func:`fit_on_codes`) if that is trustworthy; otherwise the shifts of a channel's
     blocks are added linearly (a deterministic error need not average out between windows)
     and enter as one fully correlated component per channel, outer(δθ, δθ), with a warning.
