@@ -60,16 +60,16 @@ def godambe_covariance(codes: np.ndarray, step: "float | np.ndarray", origin: "f
     hessian = information(jac, mean, sigma, groups, members, step, origin)[:size, :size]
     s_mean, s_sigma = scores(codes, mean, sigma[groups], step)
     lags = {k: _score_lags(s_mean, [b for b in blocks if groups[b[0]] == k]) for k in range(g)}
+    block_lags = [lags[int(groups[b[0]])] for b in blocks]
     parts = [_block_products(jac, s_mean, s_sigma, start, stop, int(groups[start]), p, sigma_known)
              for start, stop in blocks]
-    meat = _weighted(parts, [lags[int(groups[b[0]])] for b in blocks], size, bartlett=False)
+    meat = _weighted(parts, block_lags, size, bartlett=False)
     if not positive_definite(meat):
-        meat = _weighted(parts, [lags[int(groups[b[0]])] for b in blocks], size, bartlett=True)
+        meat = _weighted(parts, block_lags, size, bartlett=True)
     try:
         bread = np.linalg.inv(hessian)
     except np.linalg.LinAlgError:
         return None
-    block_lags = [lags[int(groups[b[0]])] for b in blocks]
     meat = _absorbed_corrected(meat, bread, jac, mean, sigma, groups, step, origin, blocks, block_lags,
                                sigma_known)
     cov = (bread @ meat @ bread)[:p, :p]
