@@ -92,13 +92,14 @@ def test_undithered_8_bit_step_is_unbiased_and_efficient_against_the_quantised_b
 
 
 @pytest.mark.parametrize("correlation", [0.0, 0.9])
-def test_the_code_likelihood_is_used_only_for_independent_noise(correlation):
+def test_correlated_noise_keeps_the_code_fit_with_a_sandwich_covariance(correlation):
     # with noise correlated from sample to sample (a band-limited front end) the likelihood
-    # of independent codes would overstate the information; the generalised residuals show it
+    # of independent codes would overstate the information; the generalised residuals show it,
+    # and the covariance is then the composite-likelihood sandwich (tests/test_code_sandwich.py)
     from scipy.signal import lfilter
 
     from wavefit.fit.engine import Block, fit_least_squares
-    from wavefit.fit.quantisation import CODE_FIT_WARNING, WARNING, include_quantisation
+    from wavefit.fit.quantisation import CODE_FIT_WARNING, CORRELATED_CODE_FIT_WARNING, include_quantisation
 
     rng = np.random.default_rng(5)
     n = 2000
@@ -108,4 +109,5 @@ def test_the_code_likelihood_is_used_only_for_independent_noise(correlation):
     fit = fit_least_squares(lambda x: y - design @ x, lambda x: -design, [0.0, 1.0], ("a", "b"),
                             [Block(0, n)], model="line")
     result = include_quantisation(fit, y, lambda x: design @ x, lambda x: design, [Block(0, n)])
-    assert (CODE_FIT_WARNING if correlation == 0 else WARNING) in result.warnings
+    assert (CODE_FIT_WARNING if correlation == 0 else CORRELATED_CODE_FIT_WARNING) in result.warnings
+    assert result.code_fit.independent_noise == (correlation == 0)

@@ -5,8 +5,9 @@ between c − q/2 and c + q/2. With ε_i independent N(0, σ²) the log-likeliho
 
     ℓ(θ, σ) = Σ_i log[Φ(b_i) − Φ(a_i)],  a_i = (c_i − q/2 − s_i)/σ,  b_i = (c_i + q/2 − s_i)/σ,
 
-the interval-censored normal model. When the noise is well below a code, least squares
-on the codes is biased by the deterministic quantisation error (B. Widrow and I. Kollár,
+the interval-censored normal model. Each sample may have its own grid (q and the origin
+per sample: the channels of a fit read different converters). When the noise is well below
+a code, least squares on the codes is biased by the deterministic quantisation error (B. Widrow and I. Kollár,
 *Quantization Noise*, Cambridge University Press 2008, ch. 4–5), while this likelihood
 describes the record exactly and its maximum is consistent; the estimation of signal
 parameters from quantised data by this likelihood is reviewed by P. Carbone, J. Schoukens
@@ -57,7 +58,7 @@ def log_interval_probability(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return log_hi + np.log(-np.expm1(np.minimum(log_lo - log_hi, -1e-300)))
 
 
-def _bounds(code, mean: np.ndarray, sigma: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
+def _bounds(code, mean: np.ndarray, sigma: np.ndarray, step: "float | np.ndarray") -> tuple[np.ndarray, np.ndarray]:
     """The interval of ``code`` in units of σ about the sample's mean: (a, b)."""
     return (code - 0.5 * step - mean) / sigma, (code + 0.5 * step - mean) / sigma
 
@@ -66,12 +67,13 @@ def _log_phi(z: np.ndarray) -> np.ndarray:
     return -0.5 * z * z - 0.5 * math.log(2.0 * math.pi)
 
 
-def log_likelihood(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float) -> float:
+def log_likelihood(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: "float | np.ndarray") -> float:
     """ℓ of the samples ``codes`` (analogue values on the grid) given their means and σ."""
     return float(np.sum(log_interval_probability(*_bounds(codes, mean, sigma, step))))
 
 
-def scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
+def scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: "float | np.ndarray"
+           ) -> tuple[np.ndarray, np.ndarray]:
     """∂ℓ_i/∂s_i and ∂ℓ_i/∂σ of each sample."""
     a, b = _bounds(codes, mean, sigma, step)
     log_p = log_interval_probability(a, b)
@@ -79,8 +81,8 @@ def scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float) 
     return (pa - pb) / sigma, (a * pa - b * pb) / sigma
 
 
-def standardised_scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: float,
-                        origin: float) -> tuple[np.ndarray, np.ndarray]:
+def standardised_scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, step: "float | np.ndarray",
+                        origin: "float | np.ndarray") -> tuple[np.ndarray, np.ndarray]:
     """Each sample's score ∂ℓ_i/∂s_i divided by its standard deviation √I_i, and whether the
     sample informs the fit at all (I_i·σ² above 1e-6; deep inside a code it does not).
 
@@ -95,11 +97,11 @@ def standardised_scores(codes: np.ndarray, mean: np.ndarray, sigma: np.ndarray, 
     return np.where(informative, score / np.sqrt(np.where(informative, info, 1.0)), 0.0), informative
 
 
-def expected_information(mean: np.ndarray, sigma: np.ndarray, step: float, origin: float
-                         ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def expected_information(mean: np.ndarray, sigma: np.ndarray, step: "float | np.ndarray",
+                         origin: "float | np.ndarray") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per sample, the expected information about its mean, the mean–σ cross term and σ,
     summed over every code the sample could read (those within SPAN_SIGMAS·σ)."""
-    reach = int(math.ceil(SPAN_SIGMAS * float(np.max(sigma)) / step)) + 1
+    reach = int(math.ceil(float(np.max(SPAN_SIGMAS * sigma / step)))) + 1
     centre = np.round((mean - origin) / step)
     i_mm = np.zeros(mean.size)
     i_ms = np.zeros(mean.size)
@@ -118,17 +120,18 @@ def expected_information(mean: np.ndarray, sigma: np.ndarray, step: float, origi
     return i_mm, i_ms, i_ss
 
 
-def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.ndarray],
+def fit_codes(codes: np.ndarray, step: "float | np.ndarray", model: Callable[[np.ndarray], np.ndarray],
               jacobian: Callable[[np.ndarray], "np.ndarray | Jacobian"], x0: np.ndarray, groups: np.ndarray,
-              sigma0: np.ndarray, sigma_known: bool = False) -> CodeFit:
+              sigma0: np.ndarray, sigma_known: bool = False, origin: "float | np.ndarray | None" = None) -> CodeFit:
     """Maximise ℓ over θ (model parameters) and one σ per noise group.
 
-    ``codes`` are the samples' values (on a grid of step ``step``), ``model(θ)`` their
+    ``codes`` are the samples' values (on a grid of step ``step`` through ``origin``, one
+    grid or one per sample; by default through the lowest code), ``model(θ)`` their
     means and ``jacobian(θ)`` its derivative; ``groups`` gives each sample's group index
     into ``sigma0``, the starting noise levels, or the noise levels themselves when
     ``sigma_known`` (a settled level that reads one code or two cannot tell its σ).
     """
-    origin = float(np.min(codes))
+    origin = float(np.min(codes)) if origin is None else origin
     theta = np.asarray(x0, dtype=float).copy()
     sig = np.asarray(sigma0, dtype=float).copy()
     p, g = theta.size, sig.size
@@ -145,7 +148,7 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
     for iterations in range(1, MAX_ITERATIONS + 1):
         mean, jac = model(theta), as_jacobian(jacobian(theta))
         s_mean, s_sigma = scores(codes, mean, sig[groups], step)
-        info = _information(jac, mean, sig, groups, members, step, origin)
+        info = information(jac, mean, sig, groups, members, step, origin)
         grad = np.concatenate([jac.rmatvec(s_mean), [float(np.sum(s_sigma[m])) for m in members]])
         delta = np.zeros(p + g)
         try:
@@ -170,7 +173,7 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
             converged = decrement < 1e-6
             break
     else:  # out of iterations: the last step moved θ after its information was computed
-        info = _information(as_jacobian(jacobian(theta)), model(theta), sig, groups, members, step, origin)
+        info = information(as_jacobian(jacobian(theta)), model(theta), sig, groups, members, step, origin)
     try:
         covariance = np.linalg.inv(info[free, free])[:p, :p]
     except np.linalg.LinAlgError:  # a parameter the codes say nothing about (σ → 0 on a flat level)
@@ -179,7 +182,7 @@ def fit_codes(codes: np.ndarray, step: float, model: Callable[[np.ndarray], np.n
     return CodeFit(theta, 0.5 * (covariance + covariance.T), sig, iterations, converged)
 
 
-def _information(jac: Jacobian, mean, sig, groups, members, step, origin) -> np.ndarray:
+def information(jac: Jacobian, mean, sig, groups, members, step, origin) -> np.ndarray:
     """Expected Fisher information of (θ, σ_1 … σ_g)."""
     i_mm, i_ms, i_ss = expected_information(mean, sig[groups], step, origin)
     p, g = jac.params, len(members)

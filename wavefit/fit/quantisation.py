@@ -13,11 +13,13 @@ as an rms over eight positions of the grid between codes (where the true
 waveform sits between codes is not known); that shift is added to the
 covariance as a fully correlated component.
 
-When every block of a fit is resolution-limited on one code grid, and the noise is not far
-below a code (σ ≥ CODE_FIT_FLOOR·q) and independent from sample to sample, the fit is
+When every block of a fit is resolution-limited on a code grid (one for all blocks, or one
+per channel), and the noise is not far below a code (σ ≥ CODE_FIT_FLOOR·q), the fit is
 instead carried to the maximum of the likelihood of the codes themselves
 (:mod:`wavefit.fit.code_likelihood`), which removes that error rather than widening the
-interval for it.
+interval for it. Its covariance is the inverse expected information when the noise is
+independent from sample to sample, and the composite-likelihood sandwich
+(:mod:`wavefit.fit.code_sandwich`) when the samples' scores show it correlated.
 """
 from __future__ import annotations
 
@@ -28,6 +30,7 @@ import numpy as np
 
 from ..signal.codes import code_grid, code_step
 from .code_likelihood import fit_codes, standardised_scores
+from .code_sandwich import godambe_covariance
 from .compressed import triangle
 from .engine import Block
 from .jacobian import Jacobian, as_jacobian
@@ -91,7 +94,8 @@ def limiting_step(y: np.ndarray, residual_rms: float, step: float | None = None)
 #: (measured: see docs/estimator-quality.md, "Records finer than the noise").
 CODE_FIT_FLOOR = 0.01
 
-#: The code fit is refused when the standardised scores' portmanteau p-value is below this. No
+#: The code fit's covariance is the sandwich, not the inverse information, when the standardised
+#: scores' portmanteau p-value is below this. No
 #: floor on the size of the correlation as for least-squares residuals: below a code the
 #: scores' correlation is much weaker than the noise's (AR(1) noise with φ = 0.3 at 0.1 code
 #: passed a 0.1 floor and its intervals were 1.3 times too narrow).
@@ -114,9 +118,15 @@ CODE_FIT_WARNING = (f"{RECORD_WIDE} (its noise is below half a converter code): 
                     "likelihood of its codes (Gaussian noise before an ideal converter), which removes the "
                     "bias quantisation gives least squares; more vertical sensitivity would help")
 
+CORRELATED_CODE_FIT_WARNING = (
+    f"{RECORD_WIDE} (its noise is below half a converter code): it was fitted by the likelihood of its "
+    "codes (Gaussian noise before an ideal converter), which removes the bias quantisation gives least "
+    "squares; its noise is correlated, so the uncertainty comes from the scores' scatter (a sandwich); "
+    "more vertical sensitivity would help")
+
 #: The warnings that concern the whole record (its converter), not one fit window: a method
 #: that fits several windows of a record says them once.
-RECORD_WARNINGS = (WARNING, CODE_FIT_WARNING)
+RECORD_WARNINGS = (WARNING, CODE_FIT_WARNING, CORRELATED_CODE_FIT_WARNING)
 
 
 def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
@@ -129,7 +139,7 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     fit's parameters; ``steps`` the code step of each noise group's channel when known
     from the whole record, and ``noise`` its noise before the converter when another fit
     of the channel found it (for all groups, or it is estimated here). When all blocks are
-    resolution-limited on one grid, the fit is moved to the maximum of the code likelihood
+    resolution-limited on code grids, the fit is moved to the maximum of the code likelihood
     (:func:`fit_on_codes`) if that is trustworthy; otherwise the shifts of a channel's
     blocks are added linearly (a deterministic error need not average out between windows)
     and enter as one fully correlated component per channel, outer(δθ, δθ), with a warning.
@@ -176,49 +186,89 @@ def fit_on_codes(fit, y: np.ndarray, model: Callable[[np.ndarray], np.ndarray],
                  jac_model: Callable[[np.ndarray], np.ndarray], blocks, steps: dict[str, float | None],
                  noise: dict[str, float] | None = None):
     """``fit`` moved to the maximum of the code likelihood, with its covariance; or ``None``
-    when the blocks do not share one code grid, the maximum is not found, the noise is
-    below CODE_FIT_FLOOR codes, or the samples' standardised scores show the noise is
-    correlated. ``noise`` (σ per group before the converter) is used as known when given
-    for every group."""
+    when a noise group's blocks do not sit on one code grid, the maximum is not found, or the
+    noise is below CODE_FIT_FLOOR codes. ``noise`` (σ per group before the converter) is used
+    as known when given for every group.
+
+    When all blocks share one grid it is fitted to all of them; otherwise each noise group
+    (a channel) has its own. When the samples' standardised scores show the noise to be
+    independent the covariance is the inverse expected information; when they show it to be
+    correlated the maximum is kept (a composite likelihood's maximum is still consistent)
+    and its covariance is the sandwich of :func:`wavefit.fit.code_sandwich.godambe_covariance`.
+    """
     import dataclasses
 
-    grid = _common_grid([y[b.start:b.stop] for b in blocks], [steps.get(b.group) for b in blocks])
-    if grid is None:
-        return None
-    origin, step = grid
     names = sorted({b.group for b in blocks})
+    grids = _grids(y, blocks, steps, names)
+    if grids is None:
+        return None
     groups = np.empty(y.size, dtype=int)
     for b in blocks:
         groups[b.start:b.stop] = names.index(b.group)
+    one_grid = len(set(grids.values())) == 1
+    if one_grid:
+        origin, step = grids[names[0]]
+    else:
+        origin = np.array([grids[g][0] for g in names])[groups]
+        step = np.array([grids[g][1] for g in names])[groups]
+    group_steps = np.array([grids[g][1] for g in names])
     known = noise is not None and all(g in noise for g in names)
     if known:
         start = np.array([noise[g] for g in names])
     else:
         # residual variance ≈ σ² + q²/12, which undershoots below half a code; start no lower
         # than a quarter code, where every sample still informs the fit (scoring moves down)
-        start = np.array([math.sqrt(max(fit.noise_sigma[g] ** 2 - step ** 2 / 12.0, (0.25 * step) ** 2))
-                          for g in names])
+        start = np.array([math.sqrt(max(fit.noise_sigma[g] ** 2 - q ** 2 / 12.0, (0.25 * q) ** 2))
+                          for g, q in zip(names, group_steps)])
     codes = origin + step * np.round((y - origin) / step)  # printed values snapped to the grid
-    found = fit_codes(codes, step, model, jac_model, fit.values, groups, start, sigma_known=known)
-    if not found.converged or np.any(found.sigma < CODE_FIT_FLOOR * step):
+    # where each sample's sum over codes is centred: on one grid from its lowest code
+    centring = float(np.min(codes)) if one_grid else origin
+    found = fit_codes(codes, step, model, jac_model, fit.values, groups, start, sigma_known=known,
+                      origin=centring)
+    if not found.converged or np.any(found.sigma < CODE_FIT_FLOOR * group_steps):
         return None
     # the likelihood takes the noise before the converter as independent; correlated noise
-    # (a band-limited front end) would make its information overstate what the record holds.
+    # (a band-limited front end) makes its information overstate what the record holds.
     # (The least-squares fit's own noise model cannot tell: the quantisation error of a slow
     # waveform is correlated even when the noise is not.) The samples' standardised scores
     # are independent when the noise is.
     fitted = model(found.values)
     z, informative = standardised_scores(codes, fitted, found.sigma[groups], step, origin)
     ends = np.cumsum([b.stop - b.start for b in blocks])[:-1]
-    for part, used in zip(np.split(z, ends), np.split(informative, ends)):
-        if standardised_portmanteau(part, used)[0] < INDEPENDENCE_P:
+    independent = all(standardised_portmanteau(part, used)[0] >= INDEPENDENCE_P
+                      for part, used in zip(np.split(z, ends), np.split(informative, ends)))
+    covariance = found.covariance
+    if not independent:
+        covariance = godambe_covariance(codes, step, centring, fitted, as_jacobian(jac_model(found.values)),
+                                        found.sigma, groups, [(b.start, b.stop) for b in blocks], known)
+        if covariance is None:
             return None
     residuals = y - fitted
-    summary = CodeFit(code_step=step, iterations=found.iterations,
-                      noise_sigma_in_codes=dict(zip(names, (found.sigma / step).tolist())),
-                      least_squares_values=dict(zip(fit.names, fit.values.tolist())))
-    return dataclasses.replace(fit, values=found.values, covariance=found.covariance, residuals=residuals,
-                               code_fit=summary, warnings=(*fit.warnings, CODE_FIT_WARNING))
+    summary = CodeFit(code_step=dict(zip(names, group_steps.tolist())), iterations=found.iterations,
+                      noise_sigma_in_codes=dict(zip(names, (found.sigma / group_steps).tolist())),
+                      least_squares_values=dict(zip(fit.names, fit.values.tolist())), independent_noise=independent)
+    warning = CODE_FIT_WARNING if independent else CORRELATED_CODE_FIT_WARNING
+    return dataclasses.replace(fit, values=found.values, covariance=covariance, residuals=residuals,
+                               code_fit=summary, warnings=(*fit.warnings, warning))
+
+
+def _grids(y: np.ndarray, blocks, steps: dict[str, float | None], names: list[str]
+           ) -> dict[str, tuple[float, float]] | None:
+    """(origin, step) of each noise group's code grid: the one grid all blocks share when
+    there is one (:func:`_common_grid`), else one per group; None when a group has none."""
+    parts = [y[b.start:b.stop] for b in blocks]
+    known = [steps.get(b.group) for b in blocks]
+    common = _common_grid(parts, known)
+    if common is not None:
+        return {g: common for g in names}
+    grids = {}
+    for g in names:
+        mine = [i for i, b in enumerate(blocks) if b.group == g]
+        grid = _common_grid([parts[i] for i in mine], [known[i] for i in mine])
+        if grid is None:
+            return None
+        grids[g] = grid
+    return grids
 
 
 def _common_grid(parts: list[np.ndarray], known: list[float | None]) -> tuple[float, float] | None:

@@ -11,23 +11,27 @@ import numpy as np
 @dataclass(frozen=True)
 class CodeFit:
     """A fit carried to the maximum of the likelihood of the converter's codes
-    (:func:`wavefit.fit.quantisation.fit_on_codes`): the code step, Fisher scoring's
-    iterations, the noise before the converter of each noise group in codes, and the
-    least-squares values it started from."""
+    (:func:`wavefit.fit.quantisation.fit_on_codes`): the code step of each noise group,
+    Fisher scoring's iterations, the noise before the converter of each noise group in
+    codes, the least-squares values it started from, and whether the noise passed the test
+    of independence (the covariance is then the inverse expected information, otherwise
+    the composite-likelihood sandwich of :mod:`wavefit.fit.code_sandwich`)."""
 
-    code_step: float
+    code_step: dict[str, float]
     iterations: int
     noise_sigma_in_codes: dict[str, float]
     least_squares_values: dict[str, float]
+    independent_noise: bool = True
 
     @property
     def noise_before_converter(self) -> dict[str, float]:
         """The noise before the converter of each noise group, in the record's unit."""
-        return {g: codes * self.code_step for g, codes in self.noise_sigma_in_codes.items()}
+        return {g: codes * self.code_step[g] for g, codes in self.noise_sigma_in_codes.items()}
 
     def summary(self) -> dict[str, Any]:
-        return {"estimator": "code likelihood", "code_step": self.code_step, "iterations": self.iterations,
+        return {"estimator": "code likelihood", "code_step": dict(self.code_step), "iterations": self.iterations,
                 "noise_sigma_in_codes": dict(self.noise_sigma_in_codes),
+                "covariance": "expected information" if self.independent_noise else "composite-likelihood sandwich",
                 "least_squares_values": dict(self.least_squares_values)}
 
 

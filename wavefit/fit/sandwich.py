@@ -101,12 +101,12 @@ def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: "np.
     views = [_block_views(jac, b, models[b.group]) for b in blocks]
     cov, extents = _sandwich(r, [v[0] for v in views], [v[2] for v in views], blocks, bread, max_lag,
                              lagged_gram)
-    if _positive_definite(cov):
+    if positive_definite(cov):
         return cov, extents
     white_r = np.concatenate([models[b.group].whiten(r[b.start:b.stop]) for b in blocks])
     cov, extents = _sandwich(white_r, [v[1] for v in views], [v[1] for v in views], blocks, bread, max_lag,
                              positive_gram)
-    return (cov, extents) if _positive_definite(cov) else None
+    return (cov, extents) if positive_definite(cov) else None
 
 
 def _block_views(jac: Jacobian, block, model) -> tuple[Tall, Tall, Tall]:
@@ -132,7 +132,7 @@ def _block_views(jac: Jacobian, block, model) -> tuple[Tall, Tall, Tall]:
     return Tall(raw, n, cols), Tall(white, n, cols), Tall(influence, n, cols)
 
 
-def _positive_definite(cov: np.ndarray) -> bool:
+def positive_definite(cov: np.ndarray) -> bool:
     """Positive definite, judged on the correlation matrix (free of the parameters' units)."""
     scale = np.sqrt(np.abs(np.diag(cov)))
     if not np.all(np.isfinite(cov)) or np.any(scale == 0):

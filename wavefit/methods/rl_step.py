@@ -166,6 +166,10 @@ class RLStep(Method):
         if _on_codes(fits):
             notes.append("each fit carried to the maximum of the likelihood of the converter's codes "
                          "(resolution-limited record with independent noise)")
+        elif all(f.code_fit is not None for f in fits):
+            notes.append("each fit carried to the maximum of the likelihood of the converter's codes "
+                         "(resolution-limited record with correlated noise: covariance from the "
+                         "composite-likelihood sandwich)")
         tau_fit = combined.values[0]
         warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined,
                                       facts)
@@ -433,5 +437,6 @@ def _plot(t, sense, drive, windows, fits) -> TracePlot:
 
 
 def _on_codes(fits) -> bool:
-    """Whether every fit was carried to the maximum of the code likelihood."""
-    return all(f.code_fit is not None for f in fits)
+    """Whether every fit was carried to the maximum of the code likelihood with noise that
+    passed its test of independence."""
+    return all(f.code_fit is not None and f.code_fit.independent_noise for f in fits)
