@@ -127,10 +127,12 @@ def choose_interior_knots(t: np.ndarray, ys: list[np.ndarray], guide: np.ndarray
 def undersmoothed_knots(t: np.ndarray, ys: list[np.ndarray], guide: np.ndarray) -> np.ndarray:
     """The knots of :func:`choose_interior_knots`' count with one knot added between each pair
     of neighbours (:func:`refined`), or the chosen knots when the samples are too few for
-    the refinement (module docstring: the band's bias)."""
+    the refinement or it would pass the largest count considered (module docstring: the
+    band's bias; the largest count bounds the fit's cost)."""
     knots = knots_at_steps(t, guide, choose_interior_knots(t, ys, guide))
     finer = refined(knots)
-    return finer if fits_samples(finer, t.size) else knots
+    interior = finer.size - 2 * (DEGREE + 1)
+    return finer if fits_samples(finer, t.size) and interior <= INTERIOR_KNOT_COUNTS[-1] else knots
 
 
 def fit_spline(t: np.ndarray, y: np.ndarray, knots: np.ndarray, group: str, prefix: str,

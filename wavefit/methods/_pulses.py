@@ -17,10 +17,15 @@ MIN_PULSE_SAMPLES = 64
 #: pulse's middle half is ringing, not noise (Gaussian noise exceeds 5σ once in 1.7 million
 #: samples).
 RING_Z = 5.0
-#: The edge mask is made this many times as long as the ringing that was seen: a decaying
-#: ring that fell to the detection limit in a time T falls by the same factor again in the
-#: next T (an exponential decay), below the noise.
+#: The edge mask is at least this many times as long as the ringing that was seen.
 RING_MARGIN = 2.0
+#: The mask runs until the ring's envelope, extrapolated as an exponential decay from its
+#: largest first difference to the detection limit (RING_Z) where it was last seen, falls to
+#: this many noise deviations: a ring left below a tenth of the noise per sample moves the
+#: spline fit far less than its own uncertainty, whereas one left at the detection limit
+#: (a few σ, coherent over many samples) moved L_inc at the curve's start by several σ on
+#: the 8-bit ngspice captures (tests/test_pulse_ramp_spice.py).
+RING_RESIDUAL_Z = 0.1
 #: Ringing is looked for in this fraction of the pulse next to each edge.
 EDGE_FRACTION = 0.25
 #: Samples always dropped at each edge: the sample that straddles the switching instant
@@ -30,12 +35,15 @@ MIN_EDGE_SKIP = 2
 
 @dataclass(frozen=True)
 class Pulse:
-    """Samples ``on:off`` stand above half the pulse voltage; ``start:stop`` are fitted."""
+    """Samples ``on:off`` stand above half the pulse voltage; ``start:stop`` are fitted;
+    ``rise`` is the first sample of the switching edge (the voltage leaves its level before
+    the pulse)."""
 
     on: int
     off: int
     start: int
     stop: int
+    rise: int
 
 
 def find_pulses(voltage: np.ndarray) -> list[Pulse]:
@@ -48,23 +56,44 @@ def find_pulses(voltage: np.ndarray) -> list[Pulse]:
     above = np.concatenate(([False], v > 0.5 * level, [False]))
     changes = np.flatnonzero(np.diff(above.astype(np.int8)))
     pulses = []
+    previous = 0
     for on, off in zip(changes[::2], changes[1::2]):
         if off - on < MIN_PULSE_SAMPLES:
             continue
         start = on + ring_mask_end(v[on:off])
         stop = off - ring_mask_end(v[on:off][::-1])
         if stop - start >= MIN_PULSE_SAMPLES // 2:
-            pulses.append(Pulse(int(on), int(off), int(start), int(stop)))
+            pulses.append(Pulse(int(on), int(off), int(start), int(stop), edge_start(v[previous:on]) + previous))
+        previous = off
     return pulses
+
+
+def edge_start(before: np.ndarray) -> int:
+    """Index in ``before`` (the samples up to a pulse's half-voltage crossing) where the
+    switching edge begins: the samples walked back from the crossing while they stand more
+    than :data:`RING_Z` noise deviations above the level before it (its median and the
+    scatter of its first differences, over the first half of ``before``)."""
+    if before.size < 4:
+        return 0
+    quiet = before[:before.size // 2]
+    level = float(np.median(quiet))
+    noise = float(np.std(np.diff(quiet))) / np.sqrt(2.0)
+    j = before.size
+    while j > 0 and before[j - 1] > level + RING_Z * noise:
+        j -= 1
+    return j
 
 
 def ring_mask_end(v: np.ndarray) -> int:
     """How many samples from the start of ``v`` (a pulse, from one edge inwards) to mask.
 
     The last first difference within :data:`EDGE_FRACTION` of the pulse that exceeds
-    :data:`RING_Z` standard deviations of the first differences in the pulse's middle half marks the end of
-    the visible ringing; the mask is :data:`RING_MARGIN` times that long, and at least
-    :data:`MIN_EDGE_SKIP` samples.
+    :data:`RING_Z` standard deviations σ of the first differences in the pulse's middle half
+    marks the end of the visible ringing, after ``seen`` samples. The ring's envelope is taken
+    as an exponential decay from its largest first difference A to RING_Z·σ over ``seen``;
+    the mask runs to where that envelope reaches :data:`RING_RESIDUAL_Z`·σ,
+    seen·ln(A/(RING_RESIDUAL_Z·σ))/ln(A/(RING_Z·σ)), at least :data:`RING_MARGIN`·seen and
+    :data:`MIN_EDGE_SKIP` samples, at most the :data:`EDGE_FRACTION` of the pulse searched.
     """
     d = np.diff(v)
     middle = d[d.size // 4:max(3 * d.size // 4, d.size // 4 + 1)]
@@ -72,9 +101,14 @@ def ring_mask_end(v: np.ndarray) -> int:
     # differences (mostly zero) leave no robust median deviation
     sigma = float(np.std(middle))
     near = d[:max(int(EDGE_FRACTION * d.size), 1)]
-    loud = np.flatnonzero(np.abs(near - np.mean(middle)) > RING_Z * sigma) if sigma > 0 else np.array([], int)
-    seen = int(loud[-1]) + 1 if loud.size else 0
-    return max(MIN_EDGE_SKIP, int(np.ceil(RING_MARGIN * seen)))
+    excursion = np.abs(near - np.mean(middle))
+    loud = np.flatnonzero(excursion > RING_Z * sigma) if sigma > 0 else np.array([], int)
+    if not loud.size:
+        return MIN_EDGE_SKIP
+    seen = int(loud[-1]) + 1
+    peak = float(np.max(excursion))
+    decays = np.log(peak / (RING_RESIDUAL_Z * sigma)) / np.log(peak / (RING_Z * sigma))
+    return max(MIN_EDGE_SKIP, int(np.ceil(max(RING_MARGIN, min(decays, near.size / seen)) * seen)))
 
 
 #: The falling ramp after a pulse is fitted down to this fraction of the pulse's peak current

@@ -50,24 +50,18 @@ def model_input(quantity: str) -> str:
 def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: list[Ramp],
                      settings: Mapping[str, Any], blocks, parts) -> ModelCheck:
     """The finer-knot and the longer-series variations of L0 and of each saturation current reached."""
-    finer = []
-    for ramp in ramps:
-        knots = refined(ramp.current.knots)
-        if not fits_samples(knots, ramp.samples):
-            return ModelCheck(VARIED, skipped="too few samples per coefficient for finer knots")
-        start = int(np.searchsorted(t, ramp.start))
-        finer.append(fit_ramp(t, current, voltage, start, start + ramp.samples, ramp.index, RISING, ramp.shunt,
-                              ramp.offset, knots))
     base = nominal_inputs(blocks, parts)
     x = with_fits(base, ramps)
     chosen = _scalars(x, settings, ramps, settings["drops"])
     moves: dict[str, dict[str, tuple[float, float]]] = {name: {} for name in chosen}
-    finer_curve = np.array([p.nominal_value for p in _curve(with_fits(base, finer), settings, finer)])
-    finer_drops = {d: first_crossing(finer_curve, (1 - d / 100) * chosen["L0"].n) for d in settings["drops"]}
-    for name, other in _scalars(with_fits(base, finer), settings, finer, finer_drops).items():
-        value = chosen[name]
-        spread = other.s ** 2 - value.s ** 2  # independent refit of the same samples: Hausman
-        moves[name]["finer_knots"] = (other.n, math.sqrt(spread) if spread > 0 else math.hypot(other.s, value.s))
+    finer = _finer_fits(t, current, voltage, ramps)
+    if finer is not None:
+        finer_curve = np.array([p.nominal_value for p in _curve(with_fits(base, finer), settings, finer)])
+        finer_drops = {d: first_crossing(finer_curve, (1 - d / 100) * chosen["L0"].n) for d in settings["drops"]}
+        for name, other in _scalars(with_fits(base, finer), settings, finer, finer_drops).items():
+            value = chosen[name]
+            spread = other.s ** 2 - value.s ** 2  # independent refit of the same samples: Hausman
+            moves[name]["finer_knots"] = (other.n, math.sqrt(spread) if spread > 0 else math.hypot(other.s, value.s))
     longer = {**settings, "low_weights": intercept_weights(settings["grid"][settings["low_points"]], LONG_POWERS)}
     curve = np.array([p.nominal_value for p in _curve(x, settings, ramps)])
     longer_l0 = float(longer["low_weights"] @ curve[longer["low_points"]])
@@ -83,6 +77,21 @@ def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ra
         variations.append(Variation(name, model_input(name), "H" if name == "L0" else "A", value.n,
                                     {label: other for label, (other, _) in varied.items()}, z))
     return ModelCheck(VARIED, tuple(variations))
+
+
+def _finer_fits(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: list[Ramp]) -> list[Ramp] | None:
+    """Each ramp refitted on its knots with one added between each pair of neighbours, or None
+    when a ramp has too few samples per coefficient for that (the longer series is still
+    compared)."""
+    finer = []
+    for ramp in ramps:
+        knots = refined(ramp.current.knots)
+        if not fits_samples(knots, ramp.samples):
+            return None
+        start = int(np.searchsorted(t, ramp.start))
+        finer.append(fit_ramp(t, current, voltage, start, start + ramp.samples, ramp.index, RISING, ramp.shunt,
+                              ramp.offset, knots))
+    return finer
 
 
 def _curve(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp]) -> Any:

@@ -1,0 +1,111 @@
+"""pulse-ramp against ngspice: a capacitor bank switched across a flux-controlled saturating coil.
+
+External reference: the ngspice transient of the bench in ``tests/saturation_capture.py``; the
+coil's current is an explicit function of its flux linkage, so L_inc(i), λ(i) and the
+saturation currents are exact (the law's closed forms, checked against ngspice's own λ in
+``tests/test_saturation_fixture.py``). The noisy captures go through the synthetic scope:
+noise 1/500 of full scale, correlated over 3 samples, 8 bits, the waveform filling 80 % of
+the range.
+"""
+from __future__ import annotations
+
+import functools
+
+import numpy as np
+import pytest
+
+import wavefit
+from saturation_capture import PowerSaturation, PulseBench, noisy_scopes, pulse_capture
+from spice import needs_ngspice
+
+pytestmark = [needs_ngspice, pytest.mark.ngspice]
+
+BENCH = PulseBench()
+SOFT = PowerSaturation.with_saturation_current(100e-6, 4.0, 2.0)
+HARD = PowerSaturation.with_saturation_current(220e-6, 3.0, 10.0)
+LINEAR = PowerSaturation.linear(47e-6)
+
+
+def setup(dcr_tolerance: str = "±2%") -> dict:
+    return {"method": "pulse-ramp",
+            "columns": {"time": "time", "current": "i_shunt", "voltage": "v_coil"},
+            "parts": {"shunt_resistor": f"{BENCH.shunt_resistance} ohm ±0.1%",
+                      "dut_resistance": f"{BENCH.dcr} ohm {dcr_tolerance}"},
+            "instrument": {"vertical_gain": "exact", "timebase": "exact"}}
+
+
+@functools.lru_cache(maxsize=None)
+def analysed(law, noisy: bool, seed: int = 0):
+    scopes = noisy_scopes(law, BENCH) if noisy else None
+    frame, truth = pulse_capture(law, BENCH, scopes=scopes, seed=seed)
+    return wavefit.analyze(frame, setup()), truth
+
+
+def middle(curve) -> np.ndarray:
+    """The points over 10–90 % of the reported current range."""
+    x = curve.axis_values
+    return (x >= x[0] + 0.1 * (x[-1] - x[0])) & (x <= x[0] + 0.9 * (x[-1] - x[0]))
+
+
+#: Known defect (issue 18 stays open): with noise correlated over a few samples the fit starts
+#: earlier (the switch-on ring is seen for a shorter time) and L_inc at the curve's first
+#: points comes out several percent low, 2–3 standard uncertainties; L0 and a soft core's
+#: I_sat, judged from L0, follow it. Clean and white-noise records do not show it.
+START_BIAS = pytest.mark.xfail(strict=True, reason="L_inc biased at the curve's start under correlated noise")
+
+
+@pytest.mark.parametrize("law, noisy", [
+    pytest.param(SOFT, False, id="clean-soft"), pytest.param(HARD, False, id="clean-hard"),
+    pytest.param(SOFT, True, id="8-bit-soft"), pytest.param(HARD, True, id="8-bit-hard", marks=START_BIAS)])
+def test_incremental_inductance_and_saturation_current_against_the_law(law, noisy):
+    result, truth = analysed(law, noisy)
+    curve = result.curves["L_inc"]
+    true_curve = law.incremental_inductance(curve.axis_values)
+    error = curve.values / true_curve - 1
+    assert np.max(np.abs(error[middle(curve)])) < 0.02, np.max(np.abs(error[middle(curve)]))
+    inside = np.abs(curve.values - true_curve) <= curve.expanded_uncertainty
+    assert inside.mean() >= 0.9, inside.mean()
+    i_sat = result.quantities["I_sat_20"]
+    true_sat = law.saturation_current(0.2)
+    assert abs(i_sat.value / true_sat - 1) < 0.03
+    assert abs(i_sat.value - true_sat) <= i_sat.expanded_uncertainty
+    l0 = result.quantities["L0"]
+    assert abs(l0.value - law.L0) <= l0.expanded_uncertainty
+
+
+def test_flux_linkage_apparent_inductance_and_energy_against_the_law():
+    result, truth = analysed(SOFT, True)
+    flux = result.curves["flux_linkage"]
+    true_flux = SOFT.flux_linkage(flux.axis_values)
+    assert np.mean(np.abs(flux.values - true_flux) <= flux.expanded_uncertainty) >= 0.9
+    apparent = result.curves["L_app"]
+    assert np.max(np.abs(apparent.values / SOFT.apparent_inductance(apparent.axis_values) - 1)[middle(apparent)]) < 0.02
+    e = result.quantities["E"]
+    top = flux.axis_values[-1]
+    assert abs(e.value - SOFT.energy(top)) <= e.expanded_uncertainty
+
+
+def test_air_core_coil_is_flat_with_no_saturation_current():
+    result, truth = analysed(LINEAR, True)
+    curve = result.curves["L_inc"]
+    assert np.mean(np.abs(curve.values - LINEAR.L0) <= curve.expanded_uncertainty) >= 0.9
+    assert not {"I_sat_10", "I_sat_20", "I_sat_30"} & set(result.quantities)
+    l0 = result.quantities["L0"]
+    assert abs(l0.value / LINEAR.L0 - 1) < 0.01 and abs(l0.value - LINEAR.L0) <= l0.expanded_uncertainty
+
+
+def test_falling_current_after_turn_off_is_compared_and_agrees():
+    result, _ = analysed(SOFT, False)
+    assert result.fit.falling_points_compared and result.fit.falling_points_compared > 10
+    assert result.fit.falling_max_z < 4.0
+    assert not any("rising and falling" in w for w in result.warnings)
+
+
+@START_BIAS
+def test_several_pulses_in_one_record_are_combined():
+    frame, truth = pulse_capture(SOFT, BENCH, pulses=3, scopes=noisy_scopes(SOFT, BENCH), seed=4)
+    result = wavefit.analyze(frame, setup())
+    assert result.fit.pulses == 3
+    i_sat = result.quantities["I_sat_20"]
+    assert abs(i_sat.value - SOFT.saturation_current(0.2)) <= i_sat.expanded_uncertainty
+    assert not any("heating" in w for w in result.warnings)
