@@ -12,11 +12,13 @@ from __future__ import annotations
 import functools
 
 import numpy as np
+import pandas as pd
 import pytest
 
 import wavefit
 from saturation_capture import PowerSaturation, PulseBench, noisy_scopes, pulse_capture
-from spice import needs_ngspice
+from spice import needs_ngspice, simulate
+from wavefit.synth.scope import ScopeModel
 
 pytestmark = [needs_ngspice, pytest.mark.ngspice]
 
@@ -47,16 +49,18 @@ def middle(curve) -> np.ndarray:
     return (x >= x[0] + 0.1 * (x[-1] - x[0])) & (x <= x[0] + 0.9 * (x[-1] - x[0]))
 
 
-#: Known defect (issue 18 stays open): with noise correlated over a few samples the fit starts
-#: earlier (the switch-on ring is seen for a shorter time) and L_inc at the curve's first
-#: points comes out several percent low, 2–3 standard uncertainties; L0 and a soft core's
-#: I_sat, judged from L0, follow it. Clean and white-noise records do not show it.
-START_BIAS = pytest.mark.xfail(strict=True, reason="L_inc biased at the curve's start under correlated noise")
+#: Known defect (issue 18 stays open): the pulses of one record showed nearly the same error of
+#: L_inc at the lowest currents (1–2 %), so averaging them does not shrink it while the band
+#: does (docs/method-pulse-ramp.md, "Known limitation"; cause not established).
+START_BIAS = pytest.mark.xfail(strict=True, reason="pulses' errors at the lowest currents not independent")
+#: Known defect (issue 18 stays open): at a hard core's knee the splines' smoothing bias is not
+#: all in the band (z rms 1.3 there over six noise draws; 80–100 % of points inside per draw).
+KNEE_BAND = pytest.mark.xfail(strict=True, reason="the band at a hard core's knee is too narrow")
 
 
 @pytest.mark.parametrize("law, noisy", [
     pytest.param(SOFT, False, id="clean-soft"), pytest.param(HARD, False, id="clean-hard"),
-    pytest.param(SOFT, True, id="8-bit-soft"), pytest.param(HARD, True, id="8-bit-hard", marks=START_BIAS)])
+    pytest.param(SOFT, True, id="8-bit-soft"), pytest.param(HARD, True, id="8-bit-hard", marks=KNEE_BAND)])
 def test_incremental_inductance_and_saturation_current_against_the_law(law, noisy):
     result, truth = analysed(law, noisy)
     curve = result.curves["L_inc"]
@@ -109,3 +113,30 @@ def test_several_pulses_in_one_record_are_combined():
     i_sat = result.quantities["I_sat_20"]
     assert abs(i_sat.value - SOFT.saturation_current(0.2)) <= i_sat.expanded_uncertainty
     assert not any("heating" in w for w in result.warnings)
+
+
+def test_air_core_L0_agrees_with_rl_step_on_the_same_coil():
+    """The same 47 µH coil (and DCR) in an ngspice RL step circuit, measured by rl-step: the two
+    methods agree within their combined expanded uncertainty (|E_n| <= 1, ISO 13528:2015, the
+    normalised error)."""
+    period, tstep, r_sense, r_source = 20e-6, 10e-9, 10.0, 50.0
+    netlist = f"""
+V1 gen 0 PULSE(0 2 {0.15 * period:.6e} 2e-9 2e-9 {period / 2 - 2e-9:.6e} {period:.6e})
+Rsrc gen drive {r_source}
+L1 drive mid {LINEAR.L0:.6e}
+Rdcr mid sense {BENCH.dcr}
+Rsense sense 0 {r_sense}
+"""
+    t, v = simulate(netlist, tstep, 2.4 * period, ["v(drive)", "v(sense)"])
+    rng = np.random.default_rng(3)
+    frame = pd.DataFrame({"time": t - t[0],
+                          "drive": ScopeModel(noise_rms=2.0 / 300, bits=8).apply(v["v(drive)"], rng),
+                          "sense": ScopeModel(noise_rms=0.3 / 300, bits=8).apply(v["v(sense)"], rng)})
+    step = wavefit.analyze(frame, {"method": "rl-step", "columns": {"time": "time", "drive": "drive", "sense": "sense"},
+                                   "parts": {"sense_resistor": f"{r_sense} ohm ±0.1%"},
+                                   "instrument": {"vertical_gain": "exact", "timebase": "exact"}})
+    ramp, _ = analysed(LINEAR, True)
+    l_step, l0 = step.quantities["L"], ramp.quantities["L0"]
+    normalised_error = abs(l0.value - l_step.value) / np.hypot(l0.expanded_uncertainty, l_step.expanded_uncertainty)
+    assert normalised_error <= 1.0, (l0, l_step)
+    assert abs(l_step.value / LINEAR.L0 - 1) < 0.01
