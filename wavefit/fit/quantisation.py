@@ -138,9 +138,14 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     ``model(θ)`` and ``jac_model(θ)`` are the fitted waveform and its derivative in the
     fit's parameters; ``steps`` the code step of each noise group's channel when known
     from the whole record, and ``noise`` its noise before the converter when another fit
-    of the channel found it (for all groups, or it is estimated here). When all blocks are
-    resolution-limited on code grids, the fit is moved to the maximum of the code likelihood
-    (:func:`fit_on_codes`) if that is trustworthy; otherwise the shifts of a channel's
+    of the channel found it (for all groups, or it is estimated here). When any block is
+    resolution-limited and every channel's samples lie on a code grid, the fit is moved to the
+    maximum of the code likelihood of all blocks (:func:`fit_on_codes`; for a channel whose
+    noise dithers its converter that likelihood is the Gaussian one to within its code
+    grid's effect, so a resolution-limited drive channel beside a well-dithered sense channel
+    is fitted by it too: on an ngspice 22 mH record it took u(tau) from 660 ns, a worst-case
+    widening, to 31 ns, the scatter of the 21 edges' estimates) if that is trustworthy;
+    otherwise the shifts of a channel's
     blocks are added linearly (a deterministic error need not average out between windows)
     and enter as one fully correlated component per channel, outer(δθ, δθ), with a warning.
     """
@@ -171,7 +176,7 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     effect = QuantisationWidening(dict(zip(fit.names, sum(totals.values()).tolist())), worst)
     widened = dataclasses.replace(fit, covariance=fit.covariance + widening, quantisation_widening=effect,
                                   warnings=(*fit.warnings, WARNING))
-    if limited == len(blocks):
+    if limited:
         refined = fit_on_codes(fit, y, model, jac_model, blocks, steps, noise)
         # a level that reads one code with few excursions says little to the code likelihood
         # (its maximum is flat across the code and σ is barely determined): keep the widened fit
