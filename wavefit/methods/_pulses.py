@@ -21,10 +21,10 @@ RING_Z = 5.0
 RING_MARGIN = 2.0
 #: The mask runs until the ring's envelope, extrapolated as an exponential decay from its
 #: largest first difference to the detection limit (RING_Z) where it was last seen, falls to
-#: this many noise deviations: a ring left below a tenth of the noise per sample moves the
-#: spline fit far less than its own uncertainty, whereas one left at the detection limit
-#: (a few σ, coherent over many samples) moved L_inc at the curve's start by several σ on
-#: the 8-bit ngspice captures (tests/test_pulse_ramp_spice.py).
+#: this many noise deviations: a ring left at the detection limit is a few σ per sample and
+#: coherent over many samples, one left below a tenth of the noise moves the spline fit far
+#: less than its own uncertainty (common practice). A ring that decays fast and then slowly is
+#: still underestimated (docs/method-pulse-ramp.md, "Known limitation").
 RING_RESIDUAL_Z = 0.1
 #: Ringing is looked for in this fraction of the pulse next to each edge.
 EDGE_FRACTION = 0.25
