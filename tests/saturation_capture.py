@@ -31,7 +31,7 @@ its DCR drop included, as a differential probe sees it).
 
 References
 ----------
-Faraday's law of induction, v = dλ/dt, and the series RL charging law: any circuits textbook.
+Faraday's law of induction, v = dλ/dt, and the series RL charging law: common practice.
 IEC 62024-2:2020, High frequency inductive components – Part 2: Rated current of inductors for
 DC-to-DC converters (the saturation current as a stated fall of inductance).
 ngspice User's Manual (version 39): non-linear dependent sources (B), voltage-controlled

@@ -199,8 +199,8 @@ def test_monte_carlo_of_a_near_linear_curve_agrees_with_the_linear_interval():
     propagation is valid (JCGM 101 5.11) and Monte Carlo must give, point by point, the same
     standard uncertainty and 95.45 % interval within its own error at M = 2·10⁵: u/√(2M), 0.16 %
     of u, for the standard deviation, and about 0.3 % of U for an interval's end (the standard
-    error of a sample quantile, √(p(1 − p)/M)/φ(z); textbook). The tolerances leave room for
-    the slight curvature of |Z|."""
+    error of a sample quantile, √(p(1 − p)/M)/φ(z), its asymptotic normal law; common practice).
+    The tolerances leave room for the slight curvature of |Z|."""
     gaussian = {**setup("example-rc-impedance"), "parts": {"capacitor": "10 nF ±0.5% k=2"}}
     result = wavefit.analyze(rc_step(), gaussian, uncertainty="montecarlo", draws=200_000)
     curve, points = result.curves["Z"], result.monte_carlo.curves["Z"]

@@ -59,7 +59,7 @@ def test_jcgm101_9_4_comparison_loss_mc_differs_from_linear(r, u_expected):
 
 def test_curve_of_squares_against_the_noncentral_chi_square_jcgm101_9_4():
     """A curve Y(a) = (X1 + a)² + X2², X1 and X2 independent N(0, u²): Y/u² is noncentral χ² with
-    2 degrees of freedom and noncentrality (a/u)² (textbook distribution, scipy.stats.ncx2), so
+    2 degrees of freedom and noncentrality (a/u)² (the distribution of scipy.stats.ncx2), so
     each point's mean u²(2 + λ), standard deviation 2u·√(u² + a²) and 95 % quantiles are exact.
     It is JCGM 101 9.4 (comparison loss, u = 0.005) along x1 = a: at a = 0.010 the MCM
     u = 112e-6 against the GUF's 100e-6 (S); at a = 0 the GUF gives u = 0 while the MCM gives

@@ -27,8 +27,8 @@ def coil_current_from_shunt(frame, bench: PulseBench) -> np.ndarray:
 
 
 def test_linear_coil_follows_the_rl_charging_law():
-    """Series RL circuit switched onto a stiff source: i(t) = V/R·(1 − exp(−t·R/L)) (the RL
-    charging law of any circuits textbook), and at the start di/dt = V/L (Faraday's law, common
+    """Series RL circuit switched onto a stiff source: i(t) = V/R·(1 − exp(−t·R/L)) (the series RL
+    charging law, common practice), and at the start di/dt = V/L (Faraday's law, common
     practice). L is the coil's plus the wiring's; R the switch's, the DCR and the shunt."""
     bench = PulseBench(bank_capacitance=1.0, charge_resistance=0.1, edge_capacitance=0.0, dcr=1.0)
     law = PowerSaturation.linear(L0)
@@ -91,7 +91,7 @@ def test_flux_linkage_from_the_capture_matches_the_law(exponent):
 
 def test_truth_functions_agree_with_their_definitions():
     """L_inc(I_sat_X) = (1 − X)·L0 (the definition of I_sat_X, IEC 62024-2); E = ∫ i dλ by
-    quadrature; a linear coil stores L·i²/2 and has no saturation current (textbook)."""
+    quadrature; a linear coil stores L·i²/2 and has no saturation current (common practice)."""
     law = PowerSaturation.with_saturation_current(L0, I_SAT_20, 3.0)
     for fraction in (0.1, 0.2, 0.3):
         current = law.saturation_current(fraction)
