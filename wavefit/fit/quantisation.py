@@ -145,9 +145,9 @@ def include_quantisation(fit, y: np.ndarray, model: Callable[[np.ndarray], np.nd
     grid's effect, so a resolution-limited drive channel beside a well-dithered sense channel
     is fitted by it too: on an ngspice 22 mH record it took u(tau) from 660 ns, a worst-case
     widening, to 31 ns, the scatter of the 21 edges' estimates) if that is trustworthy;
-    otherwise the shifts of a channel's
-    blocks are added linearly (a deterministic error need not average out between windows)
-    and enter as one fully correlated component per channel, outer(δθ, δθ), with a warning.
+    otherwise the shifts of a channel's blocks are added linearly (a deterministic error need
+    not average out between windows) and enter as one fully correlated component per channel,
+    outer(δθ, δθ), with a warning.
     """
     import dataclasses
 

@@ -15,7 +15,7 @@ import numpy as np
 from uncertainties import correlated_values
 
 from ._ramp import Ramp
-from ._ramp_curves import nominal_inputs, ramp_curves
+from ._ramp_curves import nominal_inputs, ramp_curves, small_current
 
 #: Pulses whose L0 differ by more than this many standard uncertainties of the difference were
 #: not measured on the same coil state (the winding or core warmed between them).
@@ -57,12 +57,11 @@ def heating_warning(ramps: list[Ramp], settings: Mapping[str, Any], blocks, part
     if len(ramps) < 2:
         return None
     x = with_fits(nominal_inputs(blocks, parts), [ramps[0], ramps[-1]])
-    grid, weights, points = settings["grid"], settings["low_weights"], settings["low_points"]
-    first, last = (ramp_curves(x, settings, [ramp.rows(grid)])["L_inc"] for ramp in (ramps[0], ramps[-1]))
-    difference = sum(w * (first[j] - last[j]) for w, j in zip(weights, points))
+    first, last = (ramp_curves(x, settings, [ramp.rows(settings["grid"])])["L_inc"] for ramp in (ramps[0], ramps[-1]))
+    difference = small_current(first - last, settings)
     if not (difference.std_dev > 0 and abs(difference.nominal_value) > HEATING_Z * difference.std_dev):
         return None
-    level = sum(w * first[j] for w, j in zip(weights, points)).nominal_value
+    level = small_current(first, settings).nominal_value
     return (f"the first and last pulses' L0 differ by {100 * abs(difference.nominal_value) / level:.2g} % "
             f"({abs(difference.nominal_value) / difference.std_dev:.1f} standard uncertainties): the winding or "
             "core changed between pulses (heating?); let it cool between pulses or use fewer")

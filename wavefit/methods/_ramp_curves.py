@@ -88,6 +88,25 @@ def intercept_weights(currents: np.ndarray, powers: tuple[int, ...]) -> np.ndarr
     return np.linalg.pinv(np.column_stack([currents ** p for p in powers]))[0]
 
 
+def small_current(curve: Any, settings: Mapping[str, Any], weights: np.ndarray | None = None) -> Any:
+    """L0 of ``curve`` (floats, ``uncertainties`` numbers or draws): its lowest points
+    (``settings["low_points"]``) combined with ``weights`` (``settings["low_weights"]`` unless
+    given)."""
+    weights = settings["low_weights"] if weights is None else weights
+    return sum(w * curve[j] for w, j in zip(weights, settings["low_points"]))
+
+
+def drop_points(curve: np.ndarray, l0: float, drops) -> dict[int, int | None]:
+    """For each drop (percent), :func:`first_crossing` of the nominal ``curve`` at (1 − drop)·L0."""
+    return {int(d): first_crossing(curve, (1 - float(d) / 100) * l0) for d in drops}
+
+
+def saturation_currents(grid: np.ndarray, curve: Any, l0: Any, drops: Mapping[int, int | None]) -> dict[int, Any]:
+    """The current where ``curve`` reaches (1 − drop)·L0, for each drop whose grid point
+    (:func:`drop_points`) was found."""
+    return {d: interpolated_crossing(grid, curve, j, (1 - d / 100) * l0) for d, j in drops.items() if j is not None}
+
+
 def first_crossing(curve: np.ndarray, target: float) -> int | None:
     """Index j ≥ 1 of the first grid point where ``curve`` is at or below ``target``, or None."""
     below = np.flatnonzero(curve[1:] <= target)

@@ -33,7 +33,8 @@ from ..fit.spline_regression import fits_samples, refined
 from ._model_check import ModelCheck, Variation
 from ._ramp import RISING, Ramp, fit_ramp
 from ._ramp_checks import RELATIVE_FLOOR, with_fits
-from ._ramp_curves import first_crossing, intercept_weights, interpolated_crossing, nominal_inputs, ramp_curves
+from ._ramp_curves import (drop_points, intercept_weights, nominal_inputs, ramp_curves, saturation_currents,
+                           small_current)
 
 #: What the check varies, in words (the report and the JSON say it).
 VARIED = ("each pulse's splines refitted with a knot added half-way between each pair of neighbours; "
@@ -51,22 +52,21 @@ def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ra
                      settings: Mapping[str, Any], blocks, parts) -> ModelCheck:
     """The finer-knot and the longer-series variations of L0 and of each saturation current reached."""
     base = nominal_inputs(blocks, parts)
-    x = with_fits(base, ramps)
-    chosen = _scalars(x, settings, ramps, settings["drops"])
+    curve = _curve(with_fits(base, ramps), settings, ramps)
+    nominal = np.array([p.nominal_value for p in curve])
+    chosen = _scalars(curve, settings, settings["drops"])
     moves: dict[str, dict[str, tuple[float, float]]] = {name: {} for name in chosen}
     finer = _finer_fits(t, current, voltage, ramps)
     if finer is not None:
-        finer_curve = np.array([p.nominal_value for p in _curve(with_fits(base, finer), settings, finer)])
-        finer_drops = {d: first_crossing(finer_curve, (1 - d / 100) * chosen["L0"].n) for d in settings["drops"]}
-        for name, other in _scalars(with_fits(base, finer), settings, finer, finer_drops).items():
+        finer_curve = _curve(with_fits(base, finer), settings, finer)
+        finer_drops = drop_points(np.array([p.nominal_value for p in finer_curve]), chosen["L0"].n, settings["drops"])
+        for name, other in _scalars(finer_curve, settings, finer_drops).items():
             value = chosen[name]
             spread = other.s ** 2 - value.s ** 2  # independent refit of the same samples: Hausman
             moves[name]["finer_knots"] = (other.n, math.sqrt(spread) if spread > 0 else math.hypot(other.s, value.s))
     longer = {**settings, "low_weights": intercept_weights(settings["grid"][settings["low_points"]], LONG_POWERS)}
-    curve = np.array([p.nominal_value for p in _curve(x, settings, ramps)])
-    longer_l0 = float(longer["low_weights"] @ curve[longer["low_points"]])
-    longer_drops = {d: first_crossing(curve, (1 - d / 100) * longer_l0) for d in settings["drops"]}
-    for name, other in _scalars(x, longer, ramps, longer_drops).items():
+    longer_drops = drop_points(nominal, float(small_current(nominal, longer)), settings["drops"])
+    for name, other in _scalars(curve, longer, longer_drops).items():
         moves[name]["quartic_L0"] = (other.n, (other - chosen[name]).s)  # the same fits: exact
     variations = []
     for name, varied in moves.items():
@@ -98,14 +98,10 @@ def _curve(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp])
     return ramp_curves(x, settings, [r.rows(settings["grid"]) for r in ramps])["L_inc"]
 
 
-def _scalars(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp],
-             drops: Mapping[int, int | None]) -> dict[str, Any]:
-    """L0 and the saturation currents reached, as ``uncertainties`` values of the fits alone."""
-    grid = settings["grid"]
-    curve = _curve(x, settings, ramps)
-    l0 = sum(w * curve[j] for w, j in zip(settings["low_weights"], settings["low_points"]))
-    out = {"L0": l0}
-    for drop, j in drops.items():
-        if j is not None and settings["drops"].get(drop) is not None:
-            out[f"I_sat_{drop}"] = interpolated_crossing(grid, curve, j, (1 - drop / 100) * l0)
-    return out
+def _scalars(curve: Any, settings: Mapping[str, Any], drops: Mapping[int, int | None]) -> dict[str, Any]:
+    """L0 and the saturation currents reached of ``curve`` (``uncertainties`` values of the fits
+    alone)."""
+    l0 = small_current(curve, settings)
+    reached = {d: j for d, j in drops.items() if settings["drops"].get(d) is not None}
+    return {"L0": l0, **{f"I_sat_{d}": value
+                         for d, value in saturation_currents(settings["grid"], curve, l0, reached).items()}}

@@ -62,7 +62,8 @@ from ._ramp import FALLING, RISING, Ramp, fit_ramp, flux_before
 from ._ramp_checks import compare_falling, falling_warning, heating_warning
 from ._model_check import ModelCheck, added
 from ._ramp_model_check import model_input, ramp_model_check
-from ._ramp_curves import first_crossing, intercept_weights, interpolated_crossing, nominal_inputs, ramp_curves
+from ._ramp_curves import (drop_points, intercept_weights, nominal_inputs, ramp_curves, saturation_currents,
+                           small_current)
 from .base import Method, PartSpec
 from .estimate import Estimate, FittedBlock
 
@@ -256,9 +257,8 @@ class PulseRamp(Method):
             raise AnalysisRefused(f"{capture.source}: the fitted current does not rise through the pulse "
                                   "(L_inc not positive): check [columns] and the current's sign")
         low_points = np.flatnonzero(grid <= grid[0] + L0_SPAN * (grid[-1] - grid[0]))
-        low_weights = intercept_weights(grid[low_points], L0_POWERS)
-        l0 = float(low_weights @ l_inc[low_points])
-        drops = {int(d): first_crossing(l_inc, (1 - float(d) / 100) * l0) for d in self.option(setup, "saturation_drops")}
+        settings.update(low_points=low_points, low_weights=intercept_weights(grid[low_points], L0_POWERS))
+        drops = drop_points(l_inc, float(small_current(l_inc, settings)), self.option(setup, "saturation_drops"))
         missing = [d for d, j in drops.items() if j is None]
         if missing:
             warnings.append(f"L_inc did not fall by {', '.join(f'{d} %' for d in missing)} up to {grid[-1]:.4g} A: "
@@ -269,7 +269,7 @@ class PulseRamp(Method):
         if outside.size:
             raise AnalysisRefused(f"{capture.source}: at_currents {', '.join(f'{a:g} A' for a in outside)} outside "
                                   f"the measured range {grid[0]:.4g}–{grid[-1]:.4g} A")
-        settings.update(low_points=low_points, low_weights=low_weights, drops=drops, at=at,
+        settings.update(drops=drops, at=at,
                         at_index=np.searchsorted(grid, at).clip(1, grid.size - 1))
         check = ramp_model_check(t, current, voltage, ramps, settings, blocks, parts)
         warnings += [w for w in (check.warning("spline fit of the ramp", "a knee sharper than the chosen knots "
@@ -339,13 +339,13 @@ class PulseRamp(Method):
         curves = ramp_curves(x, settings, settings["ramps"])
         grid = settings["grid"]
         l_inc = curves["L_inc"]
-        l0 = sum(w * l_inc[j] for w, j in zip(settings["low_weights"], settings["low_points"]))
+        l0 = small_current(l_inc, settings)
         out = {"L0": l0 + added(x, model_input("L0")), "L_inc": l_inc, "L_app": curves["L_app"], "flux_linkage": curves["flux_linkage"],
                "I_peak": curves["I_peak"]}
-        for drop, j in settings["drops"].items():
+        reached = saturation_currents(grid, l_inc, l0, settings["drops"])
+        for drop in settings["drops"]:
             name = f"I_sat_{drop}"
-            out[name] = None if j is None else (interpolated_crossing(grid, l_inc, j, (1 - drop / 100) * l0)
-                                                + added(x, model_input(name)))
+            out[name] = reached[drop] + added(x, model_input(name)) if drop in reached else None
         # E = ∫ i dλ = ∫ i·L_inc di: from zero to the grid's start at L0, then along the grid
         head = 0.5 * l0 * grid[0] ** 2
         along = sum(0.5 * (grid[j + 1] - grid[j]) * (grid[j] * l_inc[j] + grid[j + 1] * l_inc[j + 1])
