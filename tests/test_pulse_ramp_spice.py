@@ -49,10 +49,6 @@ def middle(curve) -> np.ndarray:
     return (x >= x[0] + 0.1 * (x[-1] - x[0])) & (x <= x[0] + 0.9 * (x[-1] - x[0]))
 
 
-#: Known defect (issue 18 stays open): the pulses of one record showed nearly the same error of
-#: L_inc at the lowest currents (1–2 %), so averaging them does not shrink it while the band
-#: does (docs/method-pulse-ramp.md, "Known limitation"; cause not established).
-START_BIAS = pytest.mark.xfail(strict=True, reason="pulses' errors at the lowest currents not independent")
 #: Known defect (issue 18 stays open): at a hard core's knee the splines' smoothing bias is not
 #: all in the band (z rms 1.3 there over six noise draws; 80–100 % of points inside per draw).
 KNEE_BAND = pytest.mark.xfail(strict=True, reason="the band at a hard core's knee is too narrow")
@@ -105,7 +101,6 @@ def test_falling_current_after_turn_off_is_compared_and_agrees():
     assert not any("rising and falling" in w for w in result.warnings)
 
 
-@START_BIAS
 def test_several_pulses_in_one_record_are_combined():
     frame, truth = pulse_capture(SOFT, BENCH, pulses=3, scopes=noisy_scopes(SOFT, BENCH), seed=4)
     result = wavefit.analyze(frame, setup())
@@ -113,6 +108,19 @@ def test_several_pulses_in_one_record_are_combined():
     i_sat = result.quantities["I_sat_20"]
     assert abs(i_sat.value - SOFT.saturation_current(0.2)) <= i_sat.expanded_uncertainty
     assert not any("heating" in w for w in result.warnings)
+
+
+def test_later_pulses_count_their_flux_from_their_own_switch_on():
+    """After the first pulse the record holds its turn-off and freewheeling (negative voltage)
+    before the next pulse: each later pulse's switching edge is found next to it, so every
+    pulse starts from rest and the flux linkage of each is counted from its own switch-on.
+    The clean record's L0 then matches the law's (closed form) to 0.1 %: counted from the
+    previous pulse's turn-off it was 0.3 % low and the pulses were said not to start from rest."""
+    frame, truth = pulse_capture(SOFT, BENCH, pulses=3)
+    result = wavefit.analyze(frame, setup())
+    assert result.fit.pulses == 3
+    assert not any("not from rest" in w for w in result.warnings), result.warnings
+    assert abs(result.quantities["L0"].value / SOFT.L0 - 1) < 1e-3
 
 
 def test_air_core_L0_agrees_with_rl_step_on_the_same_coil():

@@ -24,10 +24,15 @@ RING_MARGIN = 2.0
 #: this many noise deviations: a ring left at the detection limit is a few σ per sample and
 #: coherent over many samples, one left below a tenth of the noise moves the spline fit far
 #: less than its own uncertainty (common practice). A ring that decays fast and then slowly is
-#: still underestimated (docs/method-pulse-ramp.md, "Known limitation").
+#: still underestimated.
 RING_RESIDUAL_Z = 0.1
 #: Ringing is looked for in this fraction of the pulse next to each edge.
 EDGE_FRACTION = 0.25
+#: The rest level before a pulse is taken from the samples before its last
+#: 1/EDGE_SEARCH_DIVISOR, where the switching edge lies (a switch's edge takes a few samples;
+#: a sixteenth of the pre-trigger of a record that shows a tenth of its pulse before it is
+#: still well over ten samples).
+EDGE_SEARCH_DIVISOR = 16
 #: Samples always dropped at each edge: the sample that straddles the switching instant
 #: and its neighbour.
 MIN_EDGE_SKIP = 2
@@ -69,13 +74,19 @@ def find_pulses(voltage: np.ndarray) -> list[Pulse]:
 
 
 def edge_start(before: np.ndarray) -> int:
-    """Index in ``before`` (the samples up to a pulse's half-voltage crossing) where the
-    switching edge begins: the samples walked back from the crossing while they stand more
-    than :data:`RING_Z` noise deviations above the level before it (its median and the
-    scatter of its first differences, over the first half of ``before``)."""
+    """Index in ``before`` (the samples up to a pulse's half-voltage crossing, from the end of
+    the previous pulse or the record's start) where the switching edge begins: the samples
+    walked back from the crossing while they stand more than :data:`RING_Z` noise deviations
+    above the level before it, the median and the scatter of the first differences of the
+    samples from the middle of ``before`` to its last 1/:data:`EDGE_SEARCH_DIVISOR` (the rest
+    just before the pulse, after the previous pulse's turn-off and freewheeling have ended;
+    the edge itself lies in that last part)."""
     if before.size < 4:
         return 0
-    quiet = before[:before.size // 2]
+    edge = max(before.size // EDGE_SEARCH_DIVISOR, MIN_EDGE_SKIP)
+    quiet = before[before.size // 2:before.size - edge]
+    if quiet.size < 2:
+        quiet = before[:before.size // 2]
     level = float(np.median(quiet))
     noise = float(np.std(np.diff(quiet))) / np.sqrt(2.0)
     j = before.size

@@ -42,12 +42,17 @@ class FallingComparison:
     at_current: float
 
 
-def with_fits(x: dict[str, Any], ramps: list[Ramp]) -> dict[str, Any]:
-    """``x`` with the coefficients of ``ramps``' fits as correlated ``uncertainties`` values."""
+def with_fits(x: dict[str, Any], ramps: list[Ramp], blocks=()) -> dict[str, Any]:
+    """``x`` with the coefficients of ``ramps``' fits, and their flux linkage before the fit
+    when one of ``blocks`` holds it, as correlated ``uncertainties`` values."""
     x = dict(x)
     for ramp in ramps:
         for spline in (ramp.current, ramp.voltage):
             x.update(zip(spline.fit.names, correlated_values(spline.fit.values, spline.fit.covariance)))
+    flux_names = {ramp.flux_name for ramp in ramps}
+    for block in blocks:
+        if block.names[0] in flux_names:
+            x.update(zip(block.names, correlated_values(block.values, block.covariance)))
     return x
 
 
@@ -56,8 +61,9 @@ def heating_warning(ramps: list[Ramp], settings: Mapping[str, Any], blocks, part
     standard uncertainties of the difference, else None."""
     if len(ramps) < 2:
         return None
-    x = with_fits(nominal_inputs(blocks, parts), [ramps[0], ramps[-1]])
-    first, last = (ramp_curves(x, settings, [ramp.rows(settings["grid"])])["L_inc"] for ramp in (ramps[0], ramps[-1]))
+    x = with_fits(nominal_inputs(blocks, parts), [ramps[0], ramps[-1]], blocks)
+    first, last = (ramp_curves(x, settings, [ramp.rows(settings["grid"])])["flux_linkage"]
+                   for ramp in (ramps[0], ramps[-1]))
     difference = small_current(first - last, settings)
     if not (difference.std_dev > 0 and abs(difference.nominal_value) > HEATING_Z * difference.std_dev):
         return None

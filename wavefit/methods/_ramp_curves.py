@@ -81,24 +81,37 @@ def nominal_inputs(blocks: list[FittedBlock], parts: Mapping[str, Any]) -> dict[
     return x
 
 
-def intercept_weights(currents: np.ndarray, powers: tuple[int, ...]) -> np.ndarray:
-    """Weights w such that w·L gives the intercept of the least-squares fit of
-    L = Σ c_p·I^p (p in ``powers``, the first 0) to the points L at ``currents``: a fixed linear
-    combination of the curve's points, so the intercept's uncertainty sees their covariance."""
-    return np.linalg.pinv(np.column_stack([currents ** p for p in powers]))[0]
+def series_weights(currents: np.ndarray, powers: tuple[int, ...]) -> np.ndarray:
+    """Weights w such that w·λ gives the coefficient of I¹ in the least-squares fit of
+    λ = Σ c_p·I^p (p in ``powers``, 1 among them) to the points λ at ``currents``: a fixed linear
+    combination of the curve's points, so the coefficient's uncertainty sees their covariance."""
+    return np.linalg.pinv(np.column_stack([currents ** p for p in powers]))[powers.index(1)]
 
 
-def small_current(curve: Any, settings: Mapping[str, Any], weights: np.ndarray | None = None) -> Any:
-    """L0 of ``curve`` (floats, ``uncertainties`` numbers or draws): its lowest points
-    (``settings["low_points"]``) combined with ``weights`` (``settings["low_weights"]`` unless
-    given)."""
+def small_current(flux: Any, settings: Mapping[str, Any], weights: np.ndarray | None = None) -> Any:
+    """L0, the slope at zero current of the flux linkage ``flux`` (floats, ``uncertainties``
+    numbers or draws on the grid): its lowest points (``settings["low_points"]``) combined with
+    ``weights`` (``settings["low_weights"]`` unless given, :func:`series_weights`)."""
     weights = settings["low_weights"] if weights is None else weights
-    return sum(w * curve[j] for w, j in zip(weights, settings["low_points"]))
+    return sum(w * flux[j] for w, j in zip(weights, settings["low_points"]))
 
 
 def drop_points(curve: np.ndarray, l0: float, drops) -> dict[int, int | None]:
-    """For each drop (percent), :func:`first_crossing` of the nominal ``curve`` at (1 − drop)·L0."""
-    return {int(d): first_crossing(curve, (1 - float(d) / 100) * l0) for d in drops}
+    """For each drop (percent), :func:`final_crossing` of the nominal ``curve`` at (1 − drop)·L0."""
+    return {int(d): final_crossing(curve, (1 - float(d) / 100) * l0) for d in drops}
+
+
+def crossings_near(curve: np.ndarray, l0: float, near: Mapping[int, int | None]) -> dict[int, int | None]:
+    """For each drop (percent) found on another curve at grid point ``near[drop]``, the grid
+    point j of ``curve`` where it passes from above (1 − drop)·L0 to at or below it nearest
+    to that point (None when it never does, or the other curve had none): a varied curve
+    is compared at the same crossing, not at a noise dip or bump far from it."""
+    out: dict[int, int | None] = {}
+    for d, j0 in near.items():
+        target = (1 - d / 100) * l0
+        down = np.flatnonzero((curve[:-1] > target) & (curve[1:] <= target)) + 1
+        out[d] = int(down[np.argmin(np.abs(down - j0))]) if j0 is not None and down.size else None
+    return out
 
 
 def saturation_currents(grid: np.ndarray, curve: Any, l0: Any, drops: Mapping[int, int | None]) -> dict[int, Any]:
@@ -107,10 +120,16 @@ def saturation_currents(grid: np.ndarray, curve: Any, l0: Any, drops: Mapping[in
     return {d: interpolated_crossing(grid, curve, j, (1 - d / 100) * l0) for d, j in drops.items() if j is not None}
 
 
-def first_crossing(curve: np.ndarray, target: float) -> int | None:
-    """Index j ≥ 1 of the first grid point where ``curve`` is at or below ``target``, or None."""
-    below = np.flatnonzero(curve[1:] <= target)
-    return int(below[0]) + 1 if below.size else None
+def final_crossing(curve: np.ndarray, target: float) -> int | None:
+    """Index j ≥ 1 of the grid point where ``curve`` goes below ``target`` for the last time
+    (the first of the points at or below it to the curve's end), or None when the curve ends
+    above it or is below it from its first point (the crossing lies outside the grid). The last
+    crossing, not the first: a noisy point that dips below the target short of the knee is
+    followed by points above it, and saturation only deepens with current."""
+    above = np.flatnonzero(curve > target)
+    if not above.size or above[-1] == curve.size - 1:
+        return None
+    return int(above[-1]) + 1
 
 
 def interpolated_crossing(grid: np.ndarray, curve: Any, j: int, target: Any) -> Any:

@@ -9,8 +9,9 @@ too much (a knee sharper than they can follow). L0 and each saturation current r
 compared; a significant move enters the budget as a rectangular type B input, as for every
 method's model check.
 
-L0 is the intercept of the even series in the current to I² over the lowest part of the
-curve; it is compared with the intercept of the longer series (to I⁴) on the same curve. Both
+L0 is the slope at zero current of the odd series of the flux linkage in the current to I³
+over the lowest part of the curve; it is compared with the slope of the longer series (to
+I⁵) on the same curve. Both
 are fixed combinations of the same points, so their difference has an exact variance from
 the curve's covariance (the shorter series is the efficient estimate when it holds, the longer
 one consistent either way: Hausman's pair); a difference beyond MODEL_Z of it says the short
@@ -33,14 +34,14 @@ from ..fit.spline_regression import fits_samples, refined
 from ._model_check import ModelCheck, Variation
 from ._ramp import RISING, Ramp, fit_ramp
 from ._ramp_checks import RELATIVE_FLOOR, with_fits
-from ._ramp_curves import (drop_points, intercept_weights, nominal_inputs, ramp_curves, saturation_currents,
+from ._ramp_curves import (crossings_near, nominal_inputs, ramp_curves, saturation_currents, series_weights,
                            small_current)
 
 #: What the check varies, in words (the report and the JSON say it).
 VARIED = ("each pulse's splines refitted with a knot added half-way between each pair of neighbours; "
-          "L0 extrapolated with the series to I⁴ instead of I²")
-#: The longer even series L0 is compared with.
-LONG_POWERS = (0, 2, 4)
+          "L0 from the flux linkage's series to I⁵ instead of I³")
+#: The power the longer series adds to the one L0 is the slope of.
+LONG_POWER = 5
 
 
 def model_input(quantity: str) -> str:
@@ -52,22 +53,23 @@ def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ra
                      settings: Mapping[str, Any], blocks, parts) -> ModelCheck:
     """The finer-knot and the longer-series variations of L0 and of each saturation current reached."""
     base = nominal_inputs(blocks, parts)
-    curve = _curve(with_fits(base, ramps), settings, ramps)
-    nominal = np.array([p.nominal_value for p in curve])
-    chosen = _scalars(curve, settings, settings["drops"])
+    curves = _curves(with_fits(base, ramps, blocks), settings, ramps)
+    chosen = _scalars(curves, settings, settings["drops"])
     moves: dict[str, dict[str, tuple[float, float]]] = {name: {} for name in chosen}
     finer = _finer_fits(t, current, voltage, ramps)
     if finer is not None:
-        finer_curve = _curve(with_fits(base, finer), settings, finer)
-        finer_drops = drop_points(np.array([p.nominal_value for p in finer_curve]), chosen["L0"].n, settings["drops"])
-        for name, other in _scalars(finer_curve, settings, finer_drops).items():
+        finer_curves = _curves(with_fits(base, finer, blocks), settings, finer)
+        finer_drops = crossings_near(_nominal(finer_curves["L_inc"]), chosen["L0"].n, settings["drops"])
+        for name, other in _scalars(finer_curves, settings, finer_drops).items():
             value = chosen[name]
             spread = other.s ** 2 - value.s ** 2  # independent refit of the same samples: Hausman
             moves[name]["finer_knots"] = (other.n, math.sqrt(spread) if spread > 0 else math.hypot(other.s, value.s))
-    longer = {**settings, "low_weights": intercept_weights(settings["grid"][settings["low_points"]], LONG_POWERS)}
-    longer_drops = drop_points(nominal, float(small_current(nominal, longer)), settings["drops"])
-    for name, other in _scalars(curve, longer, longer_drops).items():
-        moves[name]["quartic_L0"] = (other.n, (other - chosen[name]).s)  # the same fits: exact
+    powers = (*settings["l0_powers"], LONG_POWER)
+    longer = {**settings, "low_weights": series_weights(settings["grid"][settings["low_points"]], powers)}
+    longer_drops = crossings_near(_nominal(curves["L_inc"]), small_current(_nominal(curves["flux_linkage"]), longer),
+                                  settings["drops"])
+    for name, other in _scalars(curves, longer, longer_drops).items():
+        moves[name]["longer_series_L0"] = (other.n, (other - chosen[name]).s)  # the same fits: exact
     variations = []
     for name, varied in moves.items():
         if not varied:
@@ -94,14 +96,19 @@ def _finer_fits(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: 
     return finer
 
 
-def _curve(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp]) -> Any:
-    return ramp_curves(x, settings, [r.rows(settings["grid"]) for r in ramps])["L_inc"]
+def _curves(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp]) -> dict[str, Any]:
+    return ramp_curves(x, settings, [r.rows(settings["grid"]) for r in ramps])
 
 
-def _scalars(curve: Any, settings: Mapping[str, Any], drops: Mapping[int, int | None]) -> dict[str, Any]:
-    """L0 and the saturation currents reached of ``curve`` (``uncertainties`` values of the fits
-    alone)."""
-    l0 = small_current(curve, settings)
+def _nominal(curve: Any) -> np.ndarray:
+    return np.array([p.nominal_value for p in curve])
+
+
+def _scalars(curves: Mapping[str, Any], settings: Mapping[str, Any], drops: Mapping[int, int | None]) -> dict[str, Any]:
+    """L0 and the saturation currents reached of ``curves`` (``uncertainties`` values of the fits
+    and the flux before them alone)."""
+    curve = curves["L_inc"]
+    l0 = small_current(curves["flux_linkage"], settings)
     reached = {d: j for d, j in drops.items() if settings["drops"].get(d) is not None}
     return {"L0": l0, **{f"I_sat_{d}": value
                          for d, value in saturation_currents(settings["grid"], curve, l0, reached).items()}}

@@ -1,0 +1,38 @@
+"""pulse-ramp's rules for where a curve crosses a level and where a pulse's edge begins.
+
+Plain arrays with the answer known by construction: the rules are definitions (the
+saturation current as the current beyond which L_inc stays below a stated fall from L0,
+IEC 62024-2's stated fall; the edge as the samples that leave the level before a pulse).
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from wavefit.methods._pulses import edge_start
+from wavefit.methods._ramp_curves import crossings_near, final_crossing
+
+
+def test_final_crossing_passes_over_an_early_dip():
+    curve = np.array([1.0, 1.0, 0.85, 1.0, 0.95, 0.88, 0.8, 0.7])
+    assert final_crossing(curve, 0.9) == 5
+
+
+def test_final_crossing_is_none_when_the_curve_ends_above_or_starts_below():
+    assert final_crossing(np.array([1.0, 0.85, 0.95]), 0.9) is None
+    assert final_crossing(np.array([0.8, 0.7, 0.6]), 0.9) is None
+
+
+def test_crossing_near_another_curves_crossing_skips_a_far_bump():
+    # falls through 0.8 at index 3, then a bump above it at index 7 and down again at 8
+    curve = np.array([1.0, 0.95, 0.85, 0.75, 0.7, 0.72, 0.78, 0.82, 0.7, 0.6])
+    assert crossings_near(curve, 1.0, {20: 3, 30: None}) == {20: 3, 30: None}
+    assert final_crossing(curve, 0.8) == 8
+
+
+def test_edge_start_after_a_previous_pulses_freewheeling():
+    rng = np.random.default_rng(0)
+    freewheel = np.full(400, -5.0)
+    rest = np.zeros(600)
+    edge = np.array([3.0, 9.0])  # the two samples before the half-voltage crossing
+    before = np.concatenate((freewheel, rest, edge)) + 0.01 * rng.standard_normal(1002)
+    assert edge_start(before) == 1000
