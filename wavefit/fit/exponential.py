@@ -73,12 +73,23 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
     nonlinear least squares problems whose variables separate", SIAM J. Numer.
     Anal. 10 (1973) 413–432.
     """
-    scales = [float(np.var(ch.values)) or 1.0 for ch in channels]
+    # for fixed tau each channel is a straight line in e = exp(−t/tau): its residual sum of
+    # squares is that of simple regression on the centred samples, Syy − Sey²/See, with no
+    # factorisation per evaluation
+    elapsed = [np.asarray(ch.time, dtype=float) - float(ch.time[0]) for ch in channels]
+    centred = [np.asarray(ch.values, dtype=float) - float(np.mean(ch.values)) for ch in channels]
+    sums = [float(y @ y) for y in centred]
+    scales = [s / y.size or 1.0 for s, y in zip(sums, centred)]
 
     def cost(log_tau: float) -> float:
-        tau = math.exp(log_tau)
-        return sum(linear_part(np.exp(-(ch.time - float(ch.time[0])) / tau), ch.values)[1] / s
-                   for ch, s in zip(channels, scales))
+        total = 0.0
+        for t, y, syy, scale in zip(elapsed, centred, sums, scales):
+            e = np.exp(-t / math.exp(log_tau))
+            e -= e.mean()
+            see = float(e @ e)
+            rss = syy - float(e @ y) ** 2 / see if see > 0 else syy
+            total += max(rss, 0.0) / scale
+        return total
 
     grid = np.log(tau0) + np.linspace(math.log(0.2), math.log(5.0), 25)
     costs = [cost(g) for g in grid]
