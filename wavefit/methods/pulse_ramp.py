@@ -275,7 +275,8 @@ class PulseRamp(Method):
         if early:
             warnings.append(f"L_inc is already {', '.join(f'{d} %' for d in early)} below L0 at the lowest measured "
                             f"current {grid[0]:.4g} A: no I_sat_{', I_sat_'.join(map(str, early))} (the ring at the "
-                            "switch-on masks the start of the ramp; a slower edge or a longer pulse measures lower)")
+                            "switch-on masks the start of the ramp; faster sampling or a lower bank voltage puts more "
+                            "samples at low current)")
         missing = [d for d, j in drops.items() if j is None and d not in early]
         if missing:
             warnings.append(f"L_inc did not fall by {', '.join(f'{d} %' for d in missing)} up to {grid[-1]:.4g} A: "
