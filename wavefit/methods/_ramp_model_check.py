@@ -29,6 +29,7 @@ import math
 from typing import Any, Mapping
 
 import numpy as np
+from uncertainties.unumpy import nominal_values
 
 from ..fit.spline_regression import fits_samples, refined
 from ._model_check import ModelCheck, Variation
@@ -59,15 +60,15 @@ def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ra
     finer = _finer_fits(t, current, voltage, ramps)
     if finer is not None:
         finer_curves = _curves(with_fits(base, finer, blocks), settings, finer)
-        finer_drops = crossings_near(_nominal(finer_curves["L_inc"]), chosen["L0"].n, settings["drops"])
+        finer_drops = crossings_near(nominal_values(finer_curves["L_inc"]), chosen["L0"].n, settings["drops"])
         for name, other in _scalars(finer_curves, settings, finer_drops).items():
             value = chosen[name]
             spread = other.s ** 2 - value.s ** 2  # independent refit of the same samples: Hausman
             moves[name]["finer_knots"] = (other.n, math.sqrt(spread) if spread > 0 else math.hypot(other.s, value.s))
     powers = (*settings["l0_powers"], LONG_POWER)
     longer = {**settings, "low_weights": series_weights(settings["grid"][settings["low_points"]], powers)}
-    longer_drops = crossings_near(_nominal(curves["L_inc"]), small_current(_nominal(curves["flux_linkage"]), longer),
-                                  settings["drops"])
+    longer_l0 = small_current(nominal_values(curves["flux_linkage"]), longer)
+    longer_drops = crossings_near(nominal_values(curves["L_inc"]), longer_l0, settings["drops"])
     for name, other in _scalars(curves, longer, longer_drops).items():
         moves[name]["longer_series_L0"] = (other.n, (other - chosen[name]).s)  # the same fits: exact
     variations = []
@@ -98,10 +99,6 @@ def _finer_fits(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: 
 
 def _curves(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp]) -> dict[str, Any]:
     return ramp_curves(x, settings, [r.rows(settings["grid"]) for r in ramps])
-
-
-def _nominal(curve: Any) -> np.ndarray:
-    return np.array([p.nominal_value for p in curve])
 
 
 def _scalars(curves: Mapping[str, Any], settings: Mapping[str, Any], drops: Mapping[int, int | None]) -> dict[str, Any]:
