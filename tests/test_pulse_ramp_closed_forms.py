@@ -122,6 +122,19 @@ def test_ringing_after_the_switch_is_masked_and_quiet_edges_lose_two_samples():
     assert len(pulses) == 1 and pulses[0].on == 100 and pulses[0].start == 100 + mask
 
 
+def test_a_record_that_ends_during_the_pulse_says_so():
+    # RL charging law (common practice); the record stops 1000 samples into the pulse
+    L, R, V = 100e-6, 0.05, 12.0
+    t = np.arange(1000) * DT
+    frame = capture(V / R * (1 - np.exp(-t * R / L)), np.full(t.size, V), 400, np.random.default_rng(4),
+                    2e-5, 5e-3, post=0)
+    result = wavefit.analyze(frame, SETUP)
+    assert any("runs to the end of the record" in w for w in result.warnings)
+    whole = wavefit.analyze(capture(V / R * (1 - np.exp(-t * R / L)), np.full(t.size, V), 400,
+                                    np.random.default_rng(4), 2e-5, 5e-3), SETUP)
+    assert not any("runs to the end of the record" in w for w in whole.warnings)
+
+
 def linear_pulses(inductances, v=12.0, r=0.05, samples=2500, gap=1500, pre=400):
     """Several pulses of the RL charging law (one per inductance), each from rest."""
     parts_i, parts_v = [np.zeros(pre)], [np.zeros(pre)]

@@ -250,6 +250,10 @@ class PulseRamp(Method):
                 not_from_rest = True
                 warnings.append(f"pulse {k + 1} starts at {at_rise:.3g} A, not from rest (the previous "
                                 "pulse's current had not decayed): its flux linkage is counted from there")
+            if pulse.off >= t.size:
+                warnings.append(f"pulse {k + 1} runs to the end of the record: its turn-off is not recorded, so "
+                                "the ramp's top is where the record stops and the end of the curve rests on the "
+                                "last samples alone (record past the switch-off)")
             warnings += [*ramp.current.fit.warnings, *ramp.voltage.fit.warnings]
             segment = falling_segment(amperes, voltage, pulse, pulses[k + 1].on if k + 1 < len(pulses) else t.size)
             if segment is not None and clip_top is None:
