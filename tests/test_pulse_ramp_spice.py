@@ -111,13 +111,32 @@ def test_falling_current_after_turn_off_is_compared_and_agrees():
     assert not any("rising and falling" in w for w in result.warnings)
 
 
+@functools.lru_cache(maxsize=1)
+def three_pulses():
+    """The soft core's record with three pulses, 8 bits and noise (analysed once for the tests)."""
+    frame, _ = pulse_capture(SOFT, BENCH, pulses=3, scopes=noisy_scopes(SOFT, BENCH), seed=4)
+    return wavefit.analyze(frame, setup())
+
+
 def test_several_pulses_in_one_record_are_combined():
-    frame, truth = pulse_capture(SOFT, BENCH, pulses=3, scopes=noisy_scopes(SOFT, BENCH), seed=4)
-    result = wavefit.analyze(frame, setup())
+    result = three_pulses()
     assert result.fit.pulses == 3
     i_sat = result.quantities["I_sat_20"]
     assert abs(i_sat.value - SOFT.saturation_current(0.2)) <= i_sat.expanded_uncertainty
     assert not any("heating" in w for w in result.warnings)
+
+
+#: Known defect (issue 18 stays open): on this record the first pulse's own band is too narrow
+#: (z rms 1.74 over its curve, the other pulses 0.7–0.95), so the average's is too (80.6 % of
+#: the points inside before the knots were raised for the average, 82.6 % after).
+SEVERAL_PULSES_BAND = pytest.mark.xfail(strict=True, reason="the first pulse's band is too narrow")
+
+
+@SEVERAL_PULSES_BAND
+def test_the_band_of_several_pulses_holds_the_law():
+    curve = three_pulses().curves["L_inc"]
+    inside = np.abs(curve.values - SOFT.incremental_inductance(curve.axis_values)) <= curve.expanded_uncertainty
+    assert inside.mean() >= 0.9, inside.mean()
 
 
 def test_later_pulses_count_their_flux_from_their_own_switch_on():

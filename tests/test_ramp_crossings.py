@@ -7,9 +7,10 @@ IEC 62024-2's stated fall; the edge as the samples that leave the level before a
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from wavefit.methods._pulses import edge_start
-from wavefit.methods._ramp_curves import crossings_near, final_crossing
+from wavefit.methods._ramp_curves import crossings_near, final_crossing, significant_falls
 
 
 def test_final_crossing_passes_over_an_early_dip():
@@ -36,3 +37,17 @@ def test_edge_start_after_a_previous_pulses_freewheeling():
     edge = np.array([3.0, 9.0])  # the two samples before the half-voltage crossing
     before = np.concatenate((freewheel, rest, edge)) + 0.01 * rng.standard_normal(1002)
     assert edge_start(before) == 1000
+
+
+def test_a_fall_counts_only_beyond_the_noise():
+    # rule by construction: L0 = 1 (its uncertainty negligible), the 10 % level is 0.9
+    from uncertainties import ufloat
+    l0 = ufloat(1.0, 1e-9)
+    deep = [ufloat(v, 0.01) for v in (1.0, 0.95, 0.85, 0.7)]      # 0.2 below at 0.01: z 20
+    shallow = [ufloat(v, 0.1) for v in (1.0, 0.95, 0.85, 0.7)]    # 0.2 below at 0.1: z 2
+    kept, weak = significant_falls(deep, l0, {10: 2}, 3.0)
+    assert kept == {10: 2} and weak == {}
+    kept, weak = significant_falls(shallow, l0, {10: 2}, 3.0)
+    assert kept == {10: None} and weak[10] == pytest.approx(2.0)
+    # a drop that had no crossing stays without one and is not called weak
+    assert significant_falls(deep, l0, {30: None}, 3.0) == ({30: None}, {})

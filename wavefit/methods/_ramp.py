@@ -87,14 +87,15 @@ class Ramp:
 
 
 def fit_ramp(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, start: int, stop: int, index: int,
-             direction: int, shunt: float, offset: float, knots: np.ndarray | None = None) -> Ramp:
+             direction: int, shunt: float, offset: float, knots: np.ndarray | None = None,
+             records: int = 1) -> Ramp:
     """Fit samples ``start:stop`` of both channels with cubic regression splines on the same
     knots (given, or :func:`~wavefit.fit.spline_regression.undersmoothed_knots` placed at equal
-    steps of the current)."""
+    steps of the current, for a curve averaged over ``records`` pulses)."""
     seg = slice(start, stop)
     ts, i_s, v_s = t[seg], current[seg], voltage[seg]
     if knots is None:
-        knots = undersmoothed_knots(ts, [i_s, v_s], direction * i_s)
+        knots = undersmoothed_knots(ts, [i_s, v_s], direction * i_s, records)
     interior = knots.size - 2 * (DEGREE + 1)
     tag = f"p{index + 1}" if direction == RISING else f"p{index + 1}_falling"
     i_fit = fit_spline(ts, i_s, knots, "current", f"{tag}_i")

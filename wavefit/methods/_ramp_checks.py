@@ -56,6 +56,14 @@ def with_fits(x: dict[str, Any], ramps: list[Ramp], blocks=()) -> dict[str, Any]
     return x
 
 
+def fits_only_curves(ramps: list[Ramp], settings: Mapping[str, Any], blocks, parts) -> dict[str, Any]:
+    """The curves of ``ramps`` on ``settings["grid"]`` as ``uncertainties`` values that carry the
+    fits' uncertainty (and the flux before them) alone, the parts and scale factors at their
+    estimates: what differences between fits of the same record are judged against."""
+    x = with_fits(nominal_inputs(blocks, parts), ramps, blocks)
+    return ramp_curves(x, settings, [ramp.rows(settings["grid"]) for ramp in ramps])
+
+
 def heating_warning(ramps: list[Ramp], settings: Mapping[str, Any], blocks, parts) -> str | None:
     """A warning when the first and last pulses' L0 differ by more than :data:`HEATING_Z`
     standard uncertainties of the difference, else None."""

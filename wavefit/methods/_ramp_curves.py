@@ -16,10 +16,15 @@ from __future__ import annotations
 from typing import Any, Mapping
 
 import numpy as np
+from uncertainties import covariance_matrix
 
 from ..calibration.in_use import RATIO_INPUT, SKEW_INPUT
 from ..fitted import FittedBlock
 from ..montecarlo import linear_combination
+
+#: Points of the curve at which :func:`significant_falls` judges a fall (even steps from the
+#: earliest crossing to the end).
+FALL_POINTS = 12
 
 
 def ramp_curves(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[dict[str, Any]]) -> dict[str, Any]:
@@ -112,6 +117,51 @@ def crossings_near(curve: np.ndarray, l0: float, near: Mapping[int, int | None])
         down = np.flatnonzero((curve[:-1] > target) & (curve[1:] <= target)) + 1
         out[d] = int(down[np.argmin(np.abs(down - j0))]) if j0 is not None and down.size else None
     return out
+
+
+def significant_falls(curve: Any, l0: Any, drops: Mapping[int, int | None],
+                      threshold: float) -> tuple[dict[int, int | None], dict[int, float]]:
+    """The drops of ``drops`` whose fall is significant, and the largest z of the others.
+
+    ``curve`` and ``l0`` are ``uncertainties`` values carrying the fits' uncertainty alone. A
+    drop found at grid point j is kept when some point k ≥ j lies below (1 − drop)·L0 by more
+    than ``threshold`` standard uncertainties of that difference (L0 and the point are
+    correlated, and both uncertainties count): the fall then exists beyond the noise. A
+    crossing made only by the noise of the curve's last points (their uncertainty grows where
+    the fitted samples end) is returned in the second dict with its largest z, not kept.
+    Points k are taken at :data:`FALL_POINTS` even steps from the earliest crossing to the
+    curve's end (the last point always): neighbouring points share spline coefficients, so a
+    few spread points see a fall as all would, and each point's uncertainty costs an
+    expansion of its dependence on every coefficient.
+    """
+    found = [j for j in drops.values() if j is not None]
+    if not found:
+        return dict(drops), {}
+    points = np.unique(np.linspace(min(found), len(curve) - 1, FALL_POINTS).round().astype(int))
+    l0_variance = l0.std_dev ** 2
+    moments = {}
+    for k in points:
+        (_, shared), (_, variance) = covariance_matrix([l0, curve[k]])
+        moments[k] = (curve[k].nominal_value, shared, variance)
+    kept: dict[int, int | None] = {}
+    weak: dict[int, float] = {}
+    for d, j in drops.items():
+        if j is None:
+            kept[d] = None
+            continue
+        level = 1 - d / 100
+        z = -np.inf
+        for k in points[points >= j]:
+            value, shared, variance = moments[k]
+            spread = level ** 2 * l0_variance + variance - 2 * level * shared
+            fall = level * l0.nominal_value - value
+            z = max(z, fall / np.sqrt(spread) if spread > 0 else np.inf * np.sign(fall))
+        if z > threshold:
+            kept[d] = j
+        else:
+            kept[d] = None
+            weak[d] = float(z)
+    return kept, weak
 
 
 def saturation_currents(grid: np.ndarray, curve: Any, l0: Any, drops: Mapping[int, int | None]) -> dict[int, Any]:

@@ -34,9 +34,8 @@ from uncertainties.unumpy import nominal_values
 from ..fit.spline_regression import fits_samples, refined
 from ._model_check import ModelCheck, Variation
 from ._ramp import RISING, Ramp, fit_ramp
-from ._ramp_checks import RELATIVE_FLOOR, with_fits
-from ._ramp_curves import (crossings_near, nominal_inputs, ramp_curves, saturation_currents, series_weights,
-                           small_current)
+from ._ramp_checks import RELATIVE_FLOOR, fits_only_curves
+from ._ramp_curves import crossings_near, saturation_currents, series_weights, small_current
 
 #: What the check varies, in words (the report and the JSON say it).
 VARIED = ("each pulse's splines refitted with a knot added half-way between each pair of neighbours; "
@@ -51,15 +50,15 @@ def model_input(quantity: str) -> str:
 
 
 def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: list[Ramp],
-                     settings: Mapping[str, Any], blocks, parts) -> ModelCheck:
-    """The finer-knot and the longer-series variations of L0 and of each saturation current reached."""
-    base = nominal_inputs(blocks, parts)
-    curves = _curves(with_fits(base, ramps, blocks), settings, ramps)
+                     settings: Mapping[str, Any], blocks, parts, curves: Mapping[str, Any]) -> ModelCheck:
+    """The finer-knot and the longer-series variations of L0 and of each saturation current
+    reached; ``curves`` are the ramps' curves with the fits' uncertainty alone
+    (:func:`wavefit.methods._ramp_checks.fits_only_curves`)."""
     chosen = _scalars(curves, settings, settings["drops"])
     moves: dict[str, dict[str, tuple[float, float]]] = {name: {} for name in chosen}
-    finer = _finer_fits(t, current, voltage, ramps)
+    finer = _finer_fits(t, current, voltage, ramps, settings["grid"])
     if finer is not None:
-        finer_curves = _curves(with_fits(base, finer, blocks), settings, finer)
+        finer_curves = fits_only_curves(finer, settings, blocks, parts)
         finer_drops = crossings_near(nominal_values(finer_curves["L_inc"]), chosen["L0"].n, settings["drops"])
         for name, other in _scalars(finer_curves, settings, finer_drops).items():
             value = chosen[name]
@@ -82,23 +81,24 @@ def ramp_model_check(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ra
     return ModelCheck(VARIED, tuple(variations))
 
 
-def _finer_fits(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: list[Ramp]) -> list[Ramp] | None:
+def _finer_fits(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, ramps: list[Ramp],
+                grid: np.ndarray) -> list[Ramp] | None:
     """Each ramp refitted on its knots with one added between each pair of neighbours, or None
-    when a ramp has too few samples per coefficient for that (the longer series is still
-    compared)."""
+    when a ramp has too few samples per coefficient for that or its refit does not span the
+    grid (a noisy record's finer current can end below the grid's top; the longer series is
+    still compared)."""
     finer = []
     for ramp in ramps:
         knots = refined(ramp.current.knots)
         if not fits_samples(knots, ramp.samples):
             return None
         start = int(np.searchsorted(t, ramp.start))
-        finer.append(fit_ramp(t, current, voltage, start, start + ramp.samples, ramp.index, RISING, ramp.shunt,
-                              ramp.offset, knots))
+        refit = fit_ramp(t, current, voltage, start, start + ramp.samples, ramp.index, RISING, ramp.shunt,
+                         ramp.offset, knots)
+        if refit.low > grid[0] or refit.high < grid[-1]:
+            return None
+        finer.append(refit)
     return finer
-
-
-def _curves(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[Ramp]) -> dict[str, Any]:
-    return ramp_curves(x, settings, [r.rows(settings["grid"]) for r in ramps])
 
 
 def _scalars(curves: Mapping[str, Any], settings: Mapping[str, Any], drops: Mapping[int, int | None]) -> dict[str, Any]:

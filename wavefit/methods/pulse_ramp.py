@@ -19,7 +19,8 @@ fitted current reaches it is found at the estimates and the measurement function
 to first order (a Newton step) when the inputs move, so the sensitivity of every point to
 the current scale, the shunt, the gains and the offsets is exact to first order and the
 curve's full covariance keeps the correlation between neighbouring points. Several pulses
-are averaged point by point (equal weights).
+are averaged point by point (equal weights); their knots are then finer, so that the
+splines' smoothing bias, the same in every pulse, stays below the average's smaller noise.
 
 Scalars: ``L0``, the small-current inductance, the slope at zero current of the flux linkage
 λ(I) = L0·I + b·I³ fitted to the lowest :data:`L0_SPAN` of the fitted current range (checked
@@ -60,11 +61,11 @@ from ..values import parse_number_with_unit
 from . import register
 from ._pulses import MIN_EDGE_SKIP, Pulse, falling_segment, find_pulses
 from ._ramp import FALLING, RISING, Ramp, fit_ramp, flux_before
-from ._ramp_checks import compare_falling, falling_warning, heating_warning
+from ._ramp_checks import compare_falling, falling_warning, fits_only_curves, heating_warning
 from ._model_check import ModelCheck, added
 from ._ramp_model_check import model_input, ramp_model_check
 from ._ramp_curves import (drop_points, nominal_inputs, ramp_curves, saturation_currents, series_weights,
-                           small_current)
+                           significant_falls, small_current)
 from .base import Method, PartSpec
 from .estimate import Estimate, FittedBlock
 
@@ -100,6 +101,21 @@ MIN_BASELINE_SAMPLES = 16
 #: A pulse that starts at a current above this fraction of its peak did not start from rest
 #: (the previous pulse's current had not decayed).
 START_CURRENT_FRACTION = 0.02
+#: The current before a pulse is the mean of this many samples before its rising edge (one
+#: sample of an 8-bit record can be a whole code step off)...
+REST_SAMPLES = 16
+#: ...and counts as not at rest only beyond this many standard errors of that mean as well
+#: (three: a false "not from rest", which changes how L0 is fitted, stays rare).
+START_CURRENT_Z = 3.0
+#: A saturation current is reported only when L_inc beyond its crossing lies below the level
+#: (1 − drop)·L0 by more than this many standard uncertainties of the fits at some point: a
+#: fall made by the noise of the curve's last points, whose uncertainty grows where the fitted
+#: samples end, is not a saturation. Three, not two: the largest of the points beyond a
+#: crossing is a maximum over a few independent ones (they share spline coefficients); at two,
+#: 1 in 19 noisy records of a linear coil still reported a false I_sat_10 (measured), and a
+#: false saturation current fails a good part against a ">= limit" spec, where a missing one
+#: only asks for a longer pulse.
+FALL_Z = 3.0
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -238,15 +254,15 @@ class PulseRamp(Method):
             if stop - pulse.start < MIN_RAMP_SAMPLES:
                 raise AnalysisRefused(f"{capture.source}: pulse {k + 1} leaves fewer than {MIN_RAMP_SAMPLES} samples "
                                       "between its masked edges; sample faster or lengthen the pulse")
-            ramp = fit_ramp(t, current, voltage, pulse.start, stop, k, RISING, shunt, off[0])
+            ramp = fit_ramp(t, current, voltage, pulse.start, stop, k, RISING, shunt, off[0], records=len(pulses))
             ramps.append(ramp)
             flux, flux_u = flux_before(t, current, voltage, pulse.rise, pulse.start, off, dcr, shunt,
                                        ramp.voltage.fit.noise_sigma["voltage"])
             blocks += [_block(ramp.current, f"pulse {k + 1} current"), _block(ramp.voltage, f"pulse {k + 1} voltage"),
                        FittedBlock((ramp.flux_name,), np.array([flux]), np.array([[flux_u ** 2]]), ("Wb",), np.inf,
                                    group=f"pulse {k + 1} flux before the fit")]
-            at_rise = float(amperes[max(pulse.rise - MIN_EDGE_SKIP, 0)])
-            if at_rise > START_CURRENT_FRACTION * ramp.high:
+            at_rise, at_rise_u = _current_before(amperes, pulse.rise)
+            if at_rise > max(START_CURRENT_FRACTION * ramp.high, START_CURRENT_Z * at_rise_u):
                 not_from_rest = True
                 warnings.append(f"pulse {k + 1} starts at {at_rise:.3g} A, not from rest (the previous "
                                 "pulse's current had not decayed): its flux linkage is counted from there")
@@ -257,7 +273,7 @@ class PulseRamp(Method):
             warnings += [*ramp.current.fit.warnings, *ramp.voltage.fit.warnings]
             segment = falling_segment(amperes, voltage, pulse, pulses[k + 1].on if k + 1 < len(pulses) else t.size)
             if segment is not None and clip_top is None:
-                falling.append(fit_ramp(t, current, voltage, *segment, k, FALLING, shunt, off[0]))
+                falling.append(fit_ramp(t, current, voltage, *segment, k, FALLING, shunt, off[0], records=len(pulses)))
         low, high = max(r.low for r in ramps), min(r.high for r in ramps)
         if not high > low:
             raise AnalysisRefused(f"{capture.source}: the pulses share no current range to compare")
@@ -274,14 +290,21 @@ class PulseRamp(Method):
         powers = NOT_FROM_REST_POWERS if not_from_rest else L0_POWERS
         settings.update(low_points=low_points, l0_powers=powers, low_weights=series_weights(grid[low_points], powers))
         l0 = float(small_current(np.asarray(nominal["flux_linkage"], dtype=float), settings))
-        drops = drop_points(l_inc, l0, self.option(setup, "saturation_drops"))
+        fitted = fits_only_curves(ramps, settings, blocks, parts)
+        drops, weak = significant_falls(fitted["L_inc"], small_current(fitted["flux_linkage"], settings),
+                                        drop_points(l_inc, l0, self.option(setup, "saturation_drops")), FALL_Z)
+        if weak:
+            warnings.append(f"L_inc dips {', '.join(f'{d} %' for d in weak)} below L0 only within its noise (at most "
+                            f"{max(weak.values()):.1f} standard uncertainties below those levels, where {FALL_Z:g} are "
+                            f"needed; the range ends at {grid[-1]:.4g} A): no I_sat_{', I_sat_'.join(map(str, weak))} (a longer pulse reaches "
+                            "further into saturation)")
         early = [d for d, j in drops.items() if j is None and l_inc[0] <= (1 - d / 100) * l0]
         if early:
             warnings.append(f"L_inc is already {', '.join(f'{d} %' for d in early)} below L0 at the lowest measured "
                             f"current {grid[0]:.4g} A: no I_sat_{', I_sat_'.join(map(str, early))} (the ring at the "
                             "switch-on masks the start of the ramp; faster sampling or a lower bank voltage puts more "
                             "samples at low current)")
-        missing = [d for d, j in drops.items() if j is None and d not in early]
+        missing = [d for d, j in drops.items() if j is None and d not in early and d not in weak]
         if missing:
             warnings.append(f"L_inc did not fall by {', '.join(f'{d} %' for d in missing)} up to {grid[-1]:.4g} A: "
                             f"no I_sat_{', I_sat_'.join(map(str, missing))} (a longer pulse or a larger bank voltage "
@@ -293,7 +316,7 @@ class PulseRamp(Method):
                                   f"the measured range {grid[0]:.4g}–{grid[-1]:.4g} A")
         settings.update(drops=drops, at=at,
                         at_index=np.searchsorted(grid, at).clip(1, grid.size - 1))
-        check = ramp_model_check(t, current, voltage, ramps, settings, blocks, parts)
+        check = ramp_model_check(t, current, voltage, ramps, settings, blocks, parts, fitted)
         warnings += [w for w in (check.warning("spline fit of the ramp", "a knee sharper than the chosen knots "
                                                "follow"),) if w]
         comparison = compare_falling(ramps, falling, settings, blocks, parts)
@@ -378,6 +401,15 @@ class PulseRamp(Method):
             fraction = (at - grid[index - 1]) / (grid[index] - grid[index - 1])
             out["L_at"] = l_inc[index - 1] + (l_inc[index] - l_inc[index - 1]) * fraction
         return out
+
+
+def _current_before(amperes: np.ndarray, rise: int) -> tuple[float, float]:
+    """The mean current over the :data:`REST_SAMPLES` samples before a pulse's rising edge
+    (clear of it by MIN_EDGE_SKIP) and the standard error of that mean."""
+    end = max(rise - MIN_EDGE_SKIP, 1)
+    window = amperes[max(end - REST_SAMPLES, 0):end]
+    spread = float(np.std(window, ddof=1)) if window.size > 1 else 0.0
+    return float(np.mean(window)), spread / np.sqrt(window.size)
 
 
 def _block(spline, group: str) -> FittedBlock:
