@@ -26,7 +26,7 @@ from functools import cached_property
 from typing import Callable
 
 import numpy as np
-from scipy.linalg import cholesky, solve_toeplitz, solve_triangular, toeplitz
+from scipy.linalg import cholesky, solve_triangular, toeplitz
 from scipy.signal import lfilter
 
 from .lagged import cross_products
@@ -147,14 +147,7 @@ def fit_ar(blocks: list[np.ndarray], max_order: int = 30) -> ARNoise:
         return ARNoise(np.zeros(0), sigma, sigma)
     max_order = int(min(max_order, max(0, n // 20)))
     best = (n * math.log(acov[0]), np.zeros(0), acov[0])
-    for p in range(1, max_order + 1):
-        try:
-            a = solve_toeplitz(acov[:p], acov[1 : p + 1])
-        except np.linalg.LinAlgError:
-            break
-        var_e = acov[0] - float(np.dot(a, acov[1 : p + 1]))
-        if not var_e > 0:
-            break
+    for p, a, var_e in _durbin(acov, max_order):
         bic = n * math.log(var_e) + p * math.log(n)
         if bic < best[0]:
             best = (bic, a, var_e)
@@ -162,6 +155,28 @@ def fit_ar(blocks: list[np.ndarray], max_order: int = 30) -> ARNoise:
     if a.size and not _is_stationary(a):
         return ARNoise(np.zeros(0), sigma, sigma)
     return ARNoise(np.asarray(a, dtype=float), sigma, math.sqrt(var_e), np.array(acov[: a.size]))
+
+
+def _durbin(acov: np.ndarray, max_order: int):
+    """The Yule–Walker AR(p) coefficients and prediction-error variance for p = 1 … max_order,
+    each order from the one before (Durbin's recursion: the same solutions as solving each
+    order's Toeplitz system, in O(p) per order); stops before an order whose prediction-error
+    variance is not positive.
+
+    References
+    ----------
+    .. [1] J. Durbin, "The fitting of time-series models", Rev. Int. Stat. Inst. 28 (1960)
+       233–244.
+    """
+    a = np.zeros(0)
+    var_e = float(acov[0])
+    for p in range(1, max_order + 1):
+        reflection = (float(acov[p]) - float(a @ acov[p - 1:0:-1])) / var_e
+        a = np.append(a - reflection * a[::-1], reflection)
+        var_e *= 1.0 - reflection * reflection
+        if not var_e > 0:
+            return
+        yield p, a, var_e
 
 
 def _is_stationary(a: np.ndarray) -> bool:
