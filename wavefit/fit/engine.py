@@ -71,15 +71,19 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
                       x0: Sequence[float], names: Sequence[str], blocks: Sequence[Block], *,
                       model: str, bounds: tuple = (-np.inf, np.inf), noise: str = "auto",
                       x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
-                      sigma: dict[str, float] | None = None) -> FitResult:
+                      sigma: dict[str, float] | None = None, fitted_start: bool = False) -> FitResult:
     """Fit ``fun`` (residual = data − model, for all blocks concatenated) over the vector ``x``.
 
     The start ``x0``, the ``names`` and the ``bounds`` become free
     :class:`lmfit.Parameters` (:func:`as_parameters`), fitted as by :func:`fit_parameters`.
+    ``fitted_start`` says that ``x0`` already fits every group about as well as the solution
+    will (a variable-projection estimate): the groups' scatter, which weighs them against each
+    other, is then taken from its residuals, saving the solve with unit weights that would
+    otherwise provide them.
     """
     mapping = ParameterMap(as_parameters(x0, names, bounds), copy=False)
     return fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
-                    max_ar_order=max_ar_order, sigma=sigma)
+                    max_ar_order=max_ar_order, sigma=sigma, fitted_start=fitted_start)
 
 
 def fit_parameters(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
@@ -125,9 +129,10 @@ def fit_parameters(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.
 def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
              mapping: ParameterMap, blocks: Sequence[Block], *, model: str, noise: str = "auto",
              x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
-             sigma: dict[str, float] | None = None) -> FitResult:
+             sigma: dict[str, float] | None = None, fitted_start: bool = False) -> FitResult:
     """:func:`fit_parameters` with the result over the free parameters of ``mapping`` only
-    (for a caller that corrects it further before :meth:`ParameterMap.expanded`)."""
+    (for a caller that corrects it further before :meth:`ParameterMap.expanded`);
+    ``fitted_start`` as for :func:`fit_least_squares`."""
     if noise not in ("auto", "white", "known"):
         raise ValueError("noise must be 'auto', 'white' or 'known'")
     blocks = list(blocks)
@@ -137,7 +142,7 @@ def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarra
         raise ValueError("fewer samples than parameters")
     with refused_when_out_of_memory(model, m, p):
         return _fit(mapping.residual_function(fun), mapping.jacobian_function(jac), mapping.start(), mapping,
-                    blocks, model, noise, x_scale, max_ar_order, sigma)
+                    blocks, model, noise, x_scale, max_ar_order, sigma, fitted_start)
 
 
 def as_parameters(x0: Sequence[float], names: Sequence[str], bounds: tuple = (-np.inf, np.inf)) -> lmfit.Parameters:
@@ -167,21 +172,27 @@ def refused_when_out_of_memory(model: str, samples: int, parameters: int) -> Ite
                               "parameters; analyse a shorter or decimated record") from None
 
 
-def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_ar_order, sigma) -> FitResult:
+def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_ar_order, sigma,
+         fitted_start: bool = False) -> FitResult:
     """The fit over the free parameters of ``mapping`` (``fun``, ``jac`` and ``x`` theirs)."""
     groups = sorted({b.group for b in blocks})
     m = sum(b.stop - b.start for b in blocks)
     p = x.size
     models: dict[str, ARNoise]
+    # several groups are weighed by their scatter: from the start's residuals when it is fitted
+    # already, else from a first solve with unit weights
+    weighed_at_start = fitted_start and noise != "known" and len(groups) > 1
     if noise == "known":
         models = {g: white(float(sigma[g])) for g in groups}  # type: ignore[index]
+    elif weighed_at_start:
+        models = _scatter_models(fun(x), blocks, groups, p, m)
     else:
         models = {g: white(1.0) for g in groups}
     small = is_small(m, p)
     x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
     if noise != "known":
         models = _scatter_models(fun(x), blocks, groups, p, m)
-        if len(groups) > 1:
+        if len(groups) > 1 and not weighed_at_start:
             x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
             models = _scatter_models(fun(x), blocks, groups, p, m)
     if noise == "auto":

@@ -167,7 +167,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     lower = np.full(n_par, -np.inf)
     lower[0] = 1e-6
     fit = fit_least_squares(fun, jac, x0, names, blocks, model=model, noise=noise,
-                            bounds=(lower, np.full(n_par, np.inf)))
+                            bounds=(lower, np.full(n_par, np.inf)), fitted_start=True)
     fit = include_quantisation(fit, y, model_values, lambda x: jac(x).negated(), blocks)
     covariance = fit.covariance
     scale = np.ones(n_par)
