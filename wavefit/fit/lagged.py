@@ -21,6 +21,12 @@ from .jacobian import chunk_rows
 
 Rows = Callable[[int, int], np.ndarray]
 
+#: Up to this many lags the lagged Gram matrices are summed directly (a matrix product per
+#: lag); beyond, through the FFT, whose cost does not grow with the lags. Measured by
+#: benchmarks/lag_grams_time.py on 1e5 rows: equal at 64–128 lags for 3 and 7 columns, the
+#: FFT 9–12x faster at 1,000 lags; the two agree to 1e-15 relative.
+DIRECT_LAGS = 96
+
 
 def array_rows(x: np.ndarray) -> Rows:
     """The rows of an array, as :mod:`wavefit.fit.lagged` functions take them."""
@@ -57,11 +63,18 @@ def cross_products(h: Rows, x: Rows, n: int, columns: int, low: int, high: int) 
 
 
 def lag_grams(x: Rows, n: int, columns: int, lags: int) -> np.ndarray:
-    """xᵀ·T_k·x for k = 0 … lags (T_0 = I; T_k the symmetric lag-k shift), shape (lags+1, q, q)."""
+    """xᵀ·T_k·x for k = 0 … lags (T_0 = I; T_k the symmetric lag-k shift), shape (lags+1, q, q).
+
+    Beyond :data:`DIRECT_LAGS` lags, each chunk's lag products come from the FFT (the
+    correlation theorem: one transform of the chunk and one of it with the rows within reach,
+    then one inverse per pair of columns), O(n·log n) instead of O(n·lags)."""
     out = np.zeros((lags + 1, columns, columns))
     for a, b in _chunks(n, columns, lags):
         ext = x(a, min(n, b + lags))
         own = ext[: b - a]
+        if lags > DIRECT_LAGS:
+            out += _chunk_lag_products(own, ext, lags)
+            continue
         out[0] += own.T @ own
         for k in range(1, lags + 1):
             pairs = min(b - a, ext.shape[0] - k)
@@ -69,6 +82,20 @@ def lag_grams(x: Rows, n: int, columns: int, lags: int) -> np.ndarray:
                 break
             out[k] += ext[:pairs].T @ ext[k:k + pairs]
     out[1:] += np.transpose(out[1:], (0, 2, 1))
+    return out
+
+
+def _chunk_lag_products(own: np.ndarray, ext: np.ndarray, lags: int) -> np.ndarray:
+    """Σ_t own_tᵀ·ext_{t+k} for k = 0 … lags (shape (lags+1, q, q)), rows of ``ext`` beyond its
+    end counting as zero. The transform length holds every t + k without wrapping round."""
+    size = 1 << int(math.ceil(math.log2(own.shape[0] + lags + 1)))
+    left = np.conj(np.fft.rfft(own, size, axis=0))
+    right = np.fft.rfft(ext, size, axis=0)
+    q = own.shape[1]
+    out = np.empty((lags + 1, q, q))
+    for i in range(q):
+        for j in range(q):
+            out[:, i, j] = np.fft.irfft(left[:, i] * right[:, j], size)[: lags + 1]
     return out
 
 
