@@ -27,6 +27,7 @@ def by_definition(x: np.ndarray, lags: int) -> np.ndarray:
 def test_lag_grams_match_their_definition(direct, monkeypatch):
     x = np.random.default_rng(2).standard_normal((300, 3))
     monkeypatch.setattr(lagged, "DIRECT_LAGS", 10 ** 6 if direct else -1)
+    monkeypatch.setattr(lagged, "DIRECT_LAGS_WIDE", 10 ** 6 if direct else -1)
     got = lagged.lag_grams(lagged.array_rows(x), 300, 3, 40)
     np.testing.assert_allclose(got, by_definition(x, 40), rtol=1e-12, atol=1e-10)
 

@@ -21,11 +21,17 @@ from .jacobian import chunk_rows
 
 Rows = Callable[[int, int], np.ndarray]
 
-#: Up to this many lags the lagged Gram matrices are summed directly (a matrix product per
-#: lag); beyond, through the FFT, whose cost does not grow with the lags. Measured by
-#: benchmarks/lag_grams_time.py on 1e5 rows: equal at 64–128 lags for 3 and 7 columns, the
-#: FFT 9–12x faster at 1,000 lags; the two agree to 1e-15 relative.
+#: Up to this many lags the lagged Gram matrices of a matrix of up to FEW_COLUMNS columns are
+#: summed directly (a matrix product per lag); beyond, through the FFT, whose cost does not
+#: grow with the lags. Measured by benchmarks/lag_grams_time.py: equal at 64–128 lags for 3
+#: and 7 columns (1e5 rows), the FFT 9–12x faster at 1,000 lags; the two agree to 1e-15.
 DIRECT_LAGS = 96
+FEW_COLUMNS = 8
+#: The same for wider matrices (the splines' design matrices, up to about a hundred columns):
+#: the FFT takes one inverse transform per pair of columns while the matrix products grow
+#: more efficient, so the two were equal near 200–320 lags for 25, 50 and 100 columns
+#: (2e4 rows), the FFT 3.5–4x faster at 1,000 lags.
+DIRECT_LAGS_WIDE = 256
 
 
 def array_rows(x: np.ndarray) -> Rows:
@@ -65,14 +71,16 @@ def cross_products(h: Rows, x: Rows, n: int, columns: int, low: int, high: int) 
 def lag_grams(x: Rows, n: int, columns: int, lags: int) -> np.ndarray:
     """xᵀ·T_k·x for k = 0 … lags (T_0 = I; T_k the symmetric lag-k shift), shape (lags+1, q, q).
 
-    Beyond :data:`DIRECT_LAGS` lags, each chunk's lag products come from the FFT (the
+    Beyond :data:`DIRECT_LAGS` lags (:data:`DIRECT_LAGS_WIDE` for more than
+    :data:`FEW_COLUMNS` columns), each chunk's lag products come from the FFT (the
     correlation theorem: one transform of the chunk and one of it with the rows within reach,
     then one inverse per pair of columns), O(n·log n) instead of O(n·lags)."""
     out = np.zeros((lags + 1, columns, columns))
+    through_fft = lags > (DIRECT_LAGS if columns <= FEW_COLUMNS else DIRECT_LAGS_WIDE)
     for a, b in _chunks(n, columns, lags):
         ext = x(a, min(n, b + lags))
         own = ext[: b - a]
-        if lags > DIRECT_LAGS:
+        if through_fft:
             out += _chunk_lag_products(own, ext, lags)
             continue
         out[0] += own.T @ own
