@@ -201,7 +201,19 @@ def linear_combination(rows: np.ndarray, coefficients: Sequence[object]) -> obje
         return Sampled(nominal, draws @ rows.T)
     if all(isinstance(c, (float, int)) for c in coefficients):
         return rows @ np.asarray(coefficients, dtype=float)
-    return np.dot(rows, np.array(coefficients, dtype=object))
+    # ``uncertainties`` numbers: each row summed over its non-zero weights only (a B-spline row
+    # has at most degree + 1), so that a point depends on the coefficients it uses and no
+    # other; a dense product would give every point a zero derivative with respect to every
+    # coefficient, which each later operation carries along
+    coefficients = np.array(coefficients, dtype=object)
+    if rows.ndim == 1:
+        used = np.flatnonzero(rows)
+        return np.dot(rows[used], coefficients[used]) if used.size else 0.0
+    out = np.empty(rows.shape[0], dtype=object)
+    for r, row in enumerate(rows):
+        used = np.flatnonzero(row)
+        out[r] = np.dot(row[used], coefficients[used]) if used.size else 0.0
+    return out
 
 
 @dataclass(frozen=True)
