@@ -69,9 +69,7 @@ def heating_warning(ramps: list[Ramp], settings: Mapping[str, Any], blocks, part
     standard uncertainties of the difference, else None."""
     if len(ramps) < 2:
         return None
-    x = with_fits(nominal_inputs(blocks, parts), [ramps[0], ramps[-1]], blocks)
-    first, last = (ramp_curves(x, settings, [ramp.rows(settings["grid"])])["flux_linkage"]
-                   for ramp in (ramps[0], ramps[-1]))
+    first, last = (fits_only_curves([ramp], settings, blocks, parts)["flux_linkage"] for ramp in (ramps[0], ramps[-1]))
     difference = small_current(first - last, settings)
     if not (difference.std_dev > 0 and abs(difference.nominal_value) > HEATING_Z * difference.std_dev):
         return None
@@ -93,9 +91,7 @@ def compare_falling(rising: list[Ramp], falling: list[Ramp], settings: Mapping[s
     if inside.size < 2:
         return None
     part = {**settings, "grid": grid[inside]}
-    x = with_fits(nominal_inputs(blocks, parts), [*rising, *falling])
-    up = ramp_curves(x, part, [r.rows(grid[inside]) for r in rising])["L_inc"]
-    down = ramp_curves(x, part, [r.rows(grid[inside]) for r in falling])["L_inc"]
+    up, down = (fits_only_curves(ramps, part, blocks, parts)["L_inc"] for ramps in (rising, falling))
     scale = [max(d.std_dev, RELATIVE_FLOOR * abs(level.nominal_value)) for d, level in zip(up - down, up)]
     z = np.array([abs(d.nominal_value) / s if s > 0 else 0.0 for d, s in zip(up - down, scale)])
     worst = int(np.argmax(z))
