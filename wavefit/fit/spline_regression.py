@@ -144,15 +144,24 @@ def undersmoothed_knots(t: np.ndarray, ys: list[np.ndarray], guide: np.ndarray, 
     """
     knots = knots_at_steps(t, guide, choose_interior_knots(t, ys, guide))
     finer = refined(knots)
-    interior = finer.size - 2 * (DEGREE + 1)
-    if not (fits_samples(finer, t.size) and interior <= INTERIOR_KNOT_COUNTS[-1]):
+    if not _affordable(finer, t.size):
         return knots
     if records > 1:
-        raised = knots_at_steps(t, guide, int(np.ceil(interior * records ** AVERAGE_SPACING_POWER)))
-        raised_interior = raised.size - 2 * (DEGREE + 1)
-        if fits_samples(raised, t.size) and raised_interior <= INTERIOR_KNOT_COUNTS[-1]:
+        raised = knots_at_steps(t, guide, int(np.ceil(interior_knot_count(finer) * records ** AVERAGE_SPACING_POWER)))
+        if _affordable(raised, t.size):
             return raised
     return finer
+
+
+def interior_knot_count(knots: np.ndarray) -> int:
+    """The interior knot count of a full cubic knot vector."""
+    return knots.size - 2 * (DEGREE + 1)
+
+
+def _affordable(knots: np.ndarray, samples: int) -> bool:
+    """Whether a spline on ``knots`` :func:`fits_samples` and has no more interior knots than
+    the largest count considered (which bounds the fit's cost)."""
+    return fits_samples(knots, samples) and interior_knot_count(knots) <= INTERIOR_KNOT_COUNTS[-1]
 
 
 def fit_spline(t: np.ndarray, y: np.ndarray, knots: np.ndarray, group: str, prefix: str,

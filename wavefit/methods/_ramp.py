@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 from scipy.integrate import trapezoid
 
-from ..fit.spline_regression import DEGREE, SplineCurve, fit_spline, undersmoothed_knots
+from ..fit.spline_regression import SplineCurve, fit_spline, interior_knot_count, undersmoothed_knots
 
 #: Current rising through the segment (the pulse) or falling (after the switch opens).
 RISING, FALLING = 1, -1
@@ -96,7 +96,7 @@ def fit_ramp(t: np.ndarray, current: np.ndarray, voltage: np.ndarray, start: int
     ts, i_s, v_s = t[seg], current[seg], voltage[seg]
     if knots is None:
         knots = undersmoothed_knots(ts, [i_s, v_s], direction * i_s, records)
-    interior = knots.size - 2 * (DEGREE + 1)
+    interior = interior_knot_count(knots)
     tag = f"p{index + 1}" if direction == RISING else f"p{index + 1}_falling"
     i_fit = fit_spline(ts, i_s, knots, "current", f"{tag}_i")
     v_fit = fit_spline(ts, v_s, knots, "voltage", f"{tag}_v")
