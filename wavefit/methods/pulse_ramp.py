@@ -293,22 +293,7 @@ class PulseRamp(Method):
         fitted = fits_only_curves(ramps, settings, blocks, parts)
         drops, weak = significant_falls(fitted["L_inc"], small_current(fitted["flux_linkage"], settings),
                                         drop_points(l_inc, l0, self.option(setup, "saturation_drops")), FALL_Z)
-        if weak:
-            warnings.append(f"L_inc dips {', '.join(f'{d} %' for d in weak)} below L0 only within its noise (at most "
-                            f"{max(weak.values()):.1f} standard uncertainties below those levels, where {FALL_Z:g} are "
-                            f"needed; the range ends at {grid[-1]:.4g} A): no I_sat_{', I_sat_'.join(map(str, weak))} (a longer pulse reaches "
-                            "further into saturation)")
-        early = [d for d, j in drops.items() if j is None and l_inc[0] <= (1 - d / 100) * l0]
-        if early:
-            warnings.append(f"L_inc is already {', '.join(f'{d} %' for d in early)} below L0 at the lowest measured "
-                            f"current {grid[0]:.4g} A: no I_sat_{', I_sat_'.join(map(str, early))} (the ring at the "
-                            "switch-on masks the start of the ramp; faster sampling or a lower bank voltage puts more "
-                            "samples at low current)")
-        missing = [d for d, j in drops.items() if j is None and d not in early and d not in weak]
-        if missing:
-            warnings.append(f"L_inc did not fall by {', '.join(f'{d} %' for d in missing)} up to {grid[-1]:.4g} A: "
-                            f"no I_sat_{', I_sat_'.join(map(str, missing))} (a longer pulse or a larger bank voltage "
-                            "reaches further)")
+        warnings += _unreported_drops(drops, weak, l_inc, l0, grid)
         at = np.array([_current(x, setup.source) for x in self.option(setup, "at_currents")], dtype=float)
         outside = at[(at < grid[0]) | (at > grid[-1])]
         if outside.size:
@@ -401,6 +386,34 @@ class PulseRamp(Method):
             fraction = (at - grid[index - 1]) / (grid[index] - grid[index - 1])
             out["L_at"] = l_inc[index - 1] + (l_inc[index] - l_inc[index - 1]) * fraction
         return out
+
+
+def _unreported_drops(drops: Mapping[int, int | None], weak: Mapping[int, float], l_inc: np.ndarray, l0: float,
+                      grid: np.ndarray) -> list[str]:
+    """The warnings for the saturation currents not reported: a fall within the noise
+    (``weak``, with its largest z), a curve already below the level at its first point, or
+    a curve that never falls that far."""
+    def percents(ds) -> str:
+        return ", ".join(f"{d} %" for d in ds)
+
+    def names(ds) -> str:
+        return ", ".join(f"I_sat_{d}" for d in ds)
+
+    out = []
+    if weak:
+        out.append(f"L_inc dips {percents(weak)} below L0 only within its noise (at most {max(weak.values()):.1f} "
+                   f"standard uncertainties below those levels, where {FALL_Z:g} are needed; the range ends at "
+                   f"{grid[-1]:.4g} A): no {names(weak)} (a longer pulse reaches further into saturation)")
+    early = [d for d, j in drops.items() if j is None and l_inc[0] <= (1 - d / 100) * l0]
+    if early:
+        out.append(f"L_inc is already {percents(early)} below L0 at the lowest measured current {grid[0]:.4g} A: "
+                   f"no {names(early)} (the ring at the switch-on masks the start of the ramp; faster sampling or a "
+                   "lower bank voltage puts more samples at low current)")
+    missing = [d for d, j in drops.items() if j is None and d not in early and d not in weak]
+    if missing:
+        out.append(f"L_inc did not fall by {percents(missing)} up to {grid[-1]:.4g} A: no {names(missing)} (a longer "
+                   "pulse or a larger bank voltage reaches further)")
+    return out
 
 
 def _current_before(amperes: np.ndarray, rise: int) -> tuple[float, float]:
