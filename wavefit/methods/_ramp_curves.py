@@ -131,8 +131,8 @@ def significant_falls(curve: Any, l0: Any, drops: Mapping[int, int | None],
     the fitted samples end) is returned in the second dict with its largest z, not kept.
     Points k are taken at :data:`FALL_POINTS` even steps from the earliest crossing to the
     curve's end (the last point always): neighbouring points share spline coefficients, so a
-    few spread points see a fall as all would, and each point's uncertainty costs an
-    expansion of its dependence on every coefficient.
+    few spread points see a fall as all would (and each point's covariance with L0 costs an
+    expansion of L0's dependence on the coefficients of its span).
     """
     found = [j for j in drops.values() if j is not None]
     if not found:
