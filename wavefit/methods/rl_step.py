@@ -143,6 +143,7 @@ class RLStep(Method):
                                                          or fit_ar([f.residuals for f in fits]).order == 0))
         period = placement = None
         if self.option(setup, "skip") == "auto":
+            first, first_fits = windows[0], fits
             windows, fits, late, period = settle_starts(t, sense, drive, windows, fits, baseline, noise,
                                                  capture.source, self._fit_window,
                                                  correlated=not white)
@@ -152,7 +153,9 @@ class RLStep(Method):
             if late:
                 notes.append(f"{late} edge window(s) start later: their first samples did not follow the "
                              "exponential (finite generator edge or winding-capacitance ringing)")
-            baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
+            if windows[0].t0 != first.t0 or any(f is not g for f, g in zip(fits, first_fits)):
+                # the level ends before the first instant and takes its noise from the fits
+                baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
         if baseline is None and len(windows) < 2:
             raise AnalysisRefused(f"{capture.source}: the record starts at the edge, so there is no settled "
                                   "pre-edge level to pin the offset; record some time before the step")
