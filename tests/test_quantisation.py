@@ -63,3 +63,26 @@ def test_two_coarse_channels_with_flat_levels_are_analysed(noise_codes):
     inductance = result.quantities["L"]
     assert abs(inductance.value - 100e-6) <= inductance.expanded_uncertainty
     assert inductance.expanded_uncertainty < 0.2 * inductance.value
+
+
+def test_limiting_step_decided_from_a_few_values_agrees_with_the_whole_record():
+    """The probe of the first values (``has_gap_below``) only spares sorting the record: a grid
+    is resolution-limiting when the noise is below DITHER_LIMIT of its step, and the answer is
+    the one the whole record's levels give (code_step), for fine and coarse grids, printed
+    values, continuous values, and a record whose first values sit on one code."""
+    from wavefit.fit.quantisation import DITHER_LIMIT, limiting_step
+
+    rng = np.random.default_rng(3)
+    wave = np.sin(np.linspace(0, 30, 20000))
+    records = [0.004 * np.round((wave + s * rng.standard_normal(wave.size)) / 0.004) for s in (0.0005, 0.002, 0.02)]
+    records += [np.round(wave + 0.01 * rng.standard_normal(wave.size), 4),  # printed to 4 decimals
+                wave + 0.001 * rng.standard_normal(wave.size),              # continuous
+                np.concatenate((np.full(300, 0.5), 0.004 * np.round(wave / 0.004)))]
+    checked = {True: 0, False: 0}
+    for y in records:
+        whole = code_step(y)
+        for rms in (1e-5, 1e-4, 0.001, 0.0019, 0.0021, 0.01, 0.1):
+            expected = whole if whole is not None and rms < DITHER_LIMIT * whole else None
+            assert limiting_step(y, rms) == expected
+            checked[expected is not None] += 1
+    assert min(checked.values()) >= 5  # both answers were exercised

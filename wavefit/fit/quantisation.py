@@ -28,7 +28,7 @@ from typing import Callable
 
 import numpy as np
 
-from ..signal.codes import code_grid, code_step
+from ..signal.codes import code_grid, code_step, has_gap_below
 from .code_likelihood import fit_codes, standardised_scores
 from .code_sandwich import godambe_covariance
 from .compressed import triangle
@@ -83,6 +83,8 @@ def shift_on_grid(y: np.ndarray, model: np.ndarray, jac_model: "np.ndarray | Jac
 def limiting_step(y: np.ndarray, residual_rms: float, step: float | None = None) -> float | None:
     """The code step of a record whose noise does not dither it (below DITHER_LIMIT codes),
     else None; ``step`` as in :func:`quantisation_shift`."""
+    if step is None and has_gap_below(y, residual_rms / DITHER_LIMIT):
+        return None  # any grid of its values is fine enough for the noise to dither it
     step = code_step(y) or step
     if step is None or residual_rms >= DITHER_LIMIT * step:
         return None
