@@ -77,15 +77,21 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
     # squares is that of simple regression on the centred samples, Syy − Sey²/See, with no
     # factorisation per evaluation
     elapsed = [np.asarray(ch.time, dtype=float) - float(ch.time[0]) for ch in channels]
+    same = first_equal(elapsed)
     centred = [np.asarray(ch.values, dtype=float) - float(np.mean(ch.values)) for ch in channels]
     sums = [float(y @ y) for y in centred]
     scales = [s / y.size or 1.0 for s, y in zip(sums, centred)]
 
     def cost(log_tau: float) -> float:
         total = 0.0
-        for t, y, syy, scale in zip(elapsed, centred, sums, scales):
-            e = np.exp(-t / math.exp(log_tau))
-            e -= e.mean()
+        basis: list[np.ndarray] = []
+        for c, (t, y, syy, scale) in enumerate(zip(elapsed, centred, sums, scales)):
+            if same[c] == c:
+                e = np.exp(-t / math.exp(log_tau))
+                e -= e.mean()
+            else:
+                e = basis[same[c]]  # the channels of one window share their instants
+            basis.append(e)
             see = float(e @ e)
             rss = syy - float(e @ y) ** 2 / see if see > 0 else syy
             total += max(rss, 0.0) / scale
@@ -139,8 +145,17 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     y = np.concatenate([ch.values for ch in channels])
     n_par = 1 + 2 * len(channels)
 
+    same = first_equal(scaled)
+
+    def decays(x: np.ndarray) -> list[np.ndarray]:
+        """exp(−u/tau) of each channel, computed once for channels sampled at the same instants."""
+        out: list[np.ndarray] = []
+        for c, u in enumerate(scaled):
+            out.append(np.exp(-u / x[0]) if same[c] == c else out[same[c]])
+        return out
+
     def model_values(x: np.ndarray) -> np.ndarray:
-        return np.concatenate([x[1 + 2 * c] + x[2 + 2 * c] * np.exp(-u / x[0]) for c, u in enumerate(scaled)])
+        return np.concatenate([x[1 + 2 * c] + x[2 + 2 * c] * e for c, e in enumerate(decays(x))])
 
     def fun(x: np.ndarray) -> np.ndarray:
         return y - model_values(x)
@@ -148,10 +163,14 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     def jac(x: np.ndarray) -> Jacobian:
         # each channel's rows depend on tau and its own final level and coefficient only
         pieces = []
+        found: list[list[np.ndarray]] = []  # the channels' decays, computed at the first rows asked for
+
         for c, u in enumerate(scaled):
             def basis(a: int, b: int, c: int = c, u: np.ndarray = u) -> np.ndarray:
-                uu = u[a - offsets[c]:b - offsets[c]]
-                e = np.exp(-uu / x[0])
+                if not found:
+                    found.append(decays(x))
+                rows = slice(a - offsets[c], b - offsets[c])
+                uu, e = u[rows], found[0][c][rows]
                 return np.column_stack((-x[2 + 2 * c] * e * uu / x[0] ** 2, np.full_like(e, -1.0), -e))
 
             select = np.zeros((3, n_par))
@@ -174,6 +193,14 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     scale[0] = tau_start
     return dataclasses.replace(fit, values=fit.values * scale, covariance=covariance * np.outer(scale, scale),
                                t_ref=t_ref, t_ref_by_group=t_refs)
+
+
+def first_equal(arrays: Sequence[np.ndarray]) -> list[int]:
+    """For each array, the index of the first one equal to it (its own index if none before)."""
+    out: list[int] = []
+    for c, a in enumerate(arrays):
+        out.append(next((k for k in range(c) if out[k] == k and np.array_equal(arrays[k], a)), c))
+    return out
 
 
 def window_model(fit: FitResult, group: str, t: np.ndarray) -> np.ndarray:
