@@ -77,6 +77,7 @@ def test_triangle_has_the_normal_matrix_of_the_whitened_rows():
 def test_relaxation_fit_same_by_triangular_factor(monkeypatch, noise):
     rng = np.random.default_rng(3)
     t, y, edges, levels = square_wave_record(rng)
+    monkeypatch.setattr(jacobian_module, "DENSE_VALUES", 1 << 30)  # every problem on its dense rows
     dense = fit_relaxations(t, y, edges, levels, 40e-6, noise=noise)
     monkeypatch.setattr(jacobian_module, "DENSE_VALUES", 100)  # every problem takes the long-record path
     long = fit_relaxations(t, y, edges, levels, 40e-6, noise=noise)
@@ -89,6 +90,7 @@ def test_ring_fit_same_by_triangular_factor(monkeypatch):
     n = 8000
     t = np.arange(n) * 1e-7
     y = np.exp(-t / 2e-4) * np.cos(2 * np.pi * 5e4 * t + 0.3) + 0.01 * rng.standard_normal(n)
+    monkeypatch.setattr(jacobian_module, "DENSE_VALUES", 1 << 30)  # every problem on its dense rows
     dense = fit_ring(t, y)
     monkeypatch.setattr(jacobian_module, "DENSE_VALUES", 100)
     long = fit_ring(t, y)

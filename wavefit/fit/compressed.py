@@ -27,6 +27,15 @@ from .jacobian import CHUNK_ELEMENTS, Jacobian, as_jacobian, row_chunks
 from .noise_model import ARNoise
 
 
+#: Rows are reduced this many values at a time (512 kB, within a core's cache): Householder
+#: QR of a tall, narrow matrix sweeps every column once per reflection, so a block that stays
+#: in cache is reduced several times faster than one that does not (10⁵ × 4 values: 1.0 ms
+#: in blocks of 2¹⁶ values against 4.2 ms whole, one BLAS thread). Reducing block by block
+#: (the factor so far stacked on the next block: the sequential QR of Lawson and Hanson)
+#: gives the same factor to rounding.
+BLOCK_VALUES = 1 << 16
+
+
 class _Reducer:
     """Rows of a fixed width reduced to their upper triangular factor as they come."""
 
@@ -44,7 +53,10 @@ class _Reducer:
 
     def _reduce(self) -> None:
         if self.pending:
-            self.factor = np.linalg.qr(np.vstack([self.factor, *self.pending]), mode="r")
+            rows = self.pending[0] if len(self.pending) == 1 else np.vstack(self.pending)
+            block = max(self.width, BLOCK_VALUES // self.width)
+            for a in range(0, rows.shape[0], block):
+                self.factor = np.linalg.qr(np.vstack([self.factor, rows[a:a + block]]), mode="r")
             self.pending, self.count = [], 0
 
     def result(self) -> np.ndarray:

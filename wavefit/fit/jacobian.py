@@ -16,11 +16,10 @@ observations fall into groups that share few parameters (Å. Björck, *Numerical
 for Least Squares Problems*, SIAM 1996, §6.3), with each group factored first.
 
 A Jacobian of at most DENSE_VALUES values is also used as one dense array, its products
-taken in the order the fits used before long records were handled. The solvers stop
-where a step no longer lowers the sum of squares by more than its rounding (for an
-exponential window typically within 1e-10 of tau), so any other order of the same
-arithmetic moves a result by that much; records that could be analysed before keep
-their results bit for bit (:func:`is_small`).
+taken in the order the fits used before long records were handled (there the dense rows
+are the faster). The solvers stop where a step no longer lowers the sum of squares by more
+than its rounding (for an exponential window typically within 1e-10 of tau), so any other
+order of the same arithmetic moves a result by that much (:func:`is_small`).
 """
 from __future__ import annotations
 
@@ -31,10 +30,17 @@ import numpy as np
 
 #: A chunk holds about this many values (4 MB of float64), whatever its number of columns.
 CHUNK_ELEMENTS = 1 << 19
-#: A Jacobian of at most this many values (8 MB) is handled as one dense array (module doc);
-#: the fits of the bundled samples and of the estimator-quality study are below it, and the
-#: half-dozen copies a dense fit makes stay well inside the 200 MB a long record may add.
-DENSE_VALUES = 1 << 20
+#: A Jacobian of at most this many values (512 kB) is handled as one dense array (module
+#: doc). Above it the solver's own work on the dense rows (an SVD of the whole Jacobian and
+#: its column norms at every step, lmfit's scaled copy of it) costs more than reducing the
+#: rows to their triangular factor (fit/compressed.py), even though every residual
+#: evaluation then builds the factor: an exponential window of 10⁴ samples on two channels
+#: (10⁵ values) is fitted 1.7x faster, of 10⁵ samples 1.9x, one channel of 3·10⁴ samples
+#: 1.6x; below about 3·10⁴ values the dense rows are the faster (measured with one BLAS
+#: thread: ``benchmarks/dense_threshold_time.py``).
+#: Until 2026-12 the bound was 2²⁰ values; the fits between the two bounds moved by the
+#: rounding of the other order of arithmetic (at most 8e-11 relative on the bundled samples).
+DENSE_VALUES = 1 << 16
 
 
 def is_small(rows: int, columns: int) -> bool:

@@ -26,9 +26,13 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from .jacobian import DENSE_VALUES, Jacobian, as_jacobian, is_small
+from .jacobian import Jacobian, as_jacobian, is_small
 from .lagged import Rows, array_rows, cross_products, lag_grams
 from .noise_model import autocovariance
+
+#: The lagged Gram matrices of every parameter pair are held for all lags at once when they
+#: number at most this many values (8 MB), else taken one lag at a time.
+ALL_LAGS_VALUES = 1 << 20
 
 #: Spectra of a block's columns held at once by :func:`positive_gram` (bytes): the columns
 #: are taken in groups of this size, each group's spectra computed once per pair of groups.
@@ -260,7 +264,7 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list, infl: list, 
         a_k = lag_grams(jb.rows, n, cols.size, m) * np.where(k_all[: m + 1] == 0, 1.0, 0.5)[:, None, None]
         grams.append((cols, a_k, lag_grams(hb.rows, n, cols.size, m)))
     p = bread.shape[0]
-    if (lags + 1) * p * p <= DENSE_VALUES:
+    if (lags + 1) * p * p <= ALL_LAGS_VALUES:
         # all lags at once on every parameter (the order of summation the fits always had)
         a_all, g_all = np.zeros((lags + 1, p, p)), np.zeros((lags + 1, p, p))
         for cols, a_k, g in grams:
