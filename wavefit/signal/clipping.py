@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .codes import CHUNK_VALUES, record_levels
+from .codes import CHUNK_VALUES, RecordLevels, record_levels
 
 
 def longest_run_at_extremes(y: np.ndarray) -> tuple[int, int]:
@@ -70,17 +70,19 @@ class Extremes:
         return False
 
 
-def extremes(y: np.ndarray) -> Extremes:
-    """Gather :class:`Extremes` of a record."""
+def extremes(y: np.ndarray, levels: RecordLevels | None = None) -> Extremes:
+    """Gather :class:`Extremes` of a record; ``levels`` its :func:`record_levels` when known."""
     y = np.asarray(y, dtype=float)
     if not np.all(np.isfinite(y)):
         y = y[np.isfinite(y)]
-    found = record_levels(y)
+    found = record_levels(y) if levels is None else levels
     code = found.step
-    if found.levels is None:  # continuous values: their smallest gap from one sorted copy
-        gap = smallest_gap(y)
-    else:
+    if found.levels is not None:
         gap = float(np.diff(found.levels).min()) if found.levels.size >= 2 else None
+    elif found.gap is not None:
+        gap = found.gap
+    else:  # continuous values of a long record: their smallest gap from one sorted copy
+        gap = smallest_gap(y)
     counts = []
     for extreme, inward in ((np.max(y), -1.0), (np.min(y), 1.0)):
         at = int(np.count_nonzero(y == extreme))

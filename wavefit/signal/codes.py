@@ -56,16 +56,28 @@ class RecordLevels:
 
     levels: np.ndarray | None  # increasing; None for a record of continuous values (not on a grid)
     step: float | None         # None unless the levels sit on a uniform grid
+    #: the least difference of two distinct values, when the levels were found from one sorted
+    #: copy of the record (None: not found, or fewer than two distinct values)
+    gap: float | None = None
 
 
 def record_levels(y: np.ndarray) -> RecordLevels:
     """The distinct levels of a record, gathered once, and the converter (or printing) step
     they show: the code-grid fit and the clipping checks both need the two. The levels are
     not gathered past :data:`GRID_LEVELS_PER_SAMPLE` per finite sample (values that repeat
-    that little sit on no grid)."""
+    that little sit on no grid). A record of at most :data:`CHUNK_VALUES` samples is sorted
+    once, which also gives the least gap between its values."""
     y = np.asarray(y, dtype=float)
     finite = int(np.count_nonzero(np.isfinite(y)))
-    levels = distinct_levels(y, GRID_LEVELS_PER_SAMPLE * finite)
+    limit = GRID_LEVELS_PER_SAMPLE * finite
+    if y.size <= CHUNK_VALUES:
+        ordered = np.sort(y[np.isfinite(y)])
+        levels = ordered[np.concatenate(([True], ordered[1:] != ordered[:-1]))] if ordered.size else ordered
+        gap = float(np.diff(levels).min()) if levels.size >= 2 else None
+        if levels.size > limit:
+            return RecordLevels(None, None, gap)
+        return RecordLevels(levels, _grid_step(levels), gap)
+    levels = distinct_levels(y, limit)
     return RecordLevels(levels, _grid_step(levels))
 
 
