@@ -15,7 +15,6 @@ from dataclasses import replace
 from .errors import AnalysisRefused, SetupError
 from .io.assemble import MAX_MISSING_FRACTION
 from .io.capture import Capture
-from .signal.codes import code_step
 from .signal.glitches import GLITCH_NOISE, GLITCH_SHAPE, repair_glitches
 
 _LISTED = 5
@@ -40,7 +39,7 @@ def without_glitches(capture: Capture) -> Capture:
         When a channel holds more glitches than ``MAX_MISSING_FRACTION`` of its samples
         (at least one is allowed): the record is damaged, not glitched.
     """
-    repaired, found = repair_glitches(capture, [code_step(ch.values) for ch in capture.channels])
+    repaired, found = repair_glitches(capture, [ch.levels.step for ch in capture.channels])
     warnings = []
     for header, rows in found.items():
         allowed = max(1, int(MAX_MISSING_FRACTION * capture.rows))

@@ -2,9 +2,13 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
+
+if TYPE_CHECKING:
+    from ..signal.codes import RecordLevels
 
 
 @dataclass(frozen=True)
@@ -28,6 +32,15 @@ class Channel:
     values: np.ndarray
     position: int | None = None
     alias: str = ""
+
+    @cached_property
+    def levels(self) -> "RecordLevels":
+        """The distinct values and the converter step they show
+        (:func:`wavefit.signal.codes.record_levels`), found once: the glitch check and the
+        methods' clipping checks both need them, and the values are read-only."""
+        from ..signal.codes import record_levels
+
+        return record_levels(self.values)
 
 
 @dataclass(frozen=True)

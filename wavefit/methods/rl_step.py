@@ -133,7 +133,8 @@ class RLStep(Method):
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]
         # each channel's extreme values and code step, for the pre-edge level and the clipping checks
-        facts = {group: extremes(y) for group, y in (("sense", sense), ("drive", drive)) if y is not None}
+        facts = {group: extremes(y, self.channel(capture, setup, group).levels)
+                 for group, y in (("sense", sense), ("drive", drive)) if y is not None}
         baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
         # is the sense noise white? One decision from all windows' residuals together: separate
         # per-window BIC choices would call white noise coloured in one of a dozen windows often.
