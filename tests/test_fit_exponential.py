@@ -52,3 +52,23 @@ def test_certified_values_and_standard_deviations(name, start):
         value, std = certified[b]
         assert sig_digits(fit[b], value) >= 6, (b, fit[b], value)
         assert sig_digits(fit.stderr(b), std) >= 6, (b, fit.stderr(b), std)
+
+
+@pytest.mark.parametrize("tau_samples", [3.0, 40.0, 5000.0])
+def test_start_from_a_strided_grid_is_the_start_from_every_sample(monkeypatch, tau_samples):
+    """The start's grid on every stride-th sample of a long window only brackets the minimum:
+    the variable-projection start is the one the full grid gives (to its tolerance), for a
+    tau of a few samples as for a long one."""
+    import wavefit.fit.exponential as exponential
+
+    rng = np.random.default_rng(int(tau_samples))
+    n = 40000
+    t = np.arange(n) * 1e-8
+    tau = tau_samples * 1e-8
+    chans = [exponential.WindowChannel("sense", t, 1 - np.exp(-t / tau) + 0.01 * rng.standard_normal(n)),
+             exponential.WindowChannel("drive", t, 2 + 0.1 * np.exp(-t / tau) + 0.02 * rng.standard_normal(n))]
+    strided = exponential.projected_tau(chans, 1.4 * tau)
+    monkeypatch.setattr(exponential, "GRID_SAMPLES", n + 1)
+    full = exponential.projected_tau(chans, 1.4 * tau)
+    assert strided == pytest.approx(full, rel=1e-5)
+    assert strided == pytest.approx(tau, rel=0.05)

@@ -76,9 +76,37 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
     # for fixed tau each channel is a straight line in e = exp(−t/tau): its residual sum of
     # squares is that of simple regression on the centred samples, Syy − Sey²/See, with no
     # factorisation per evaluation
-    elapsed = [np.asarray(ch.time, dtype=float) - float(ch.time[0]) for ch in channels]
+    times = [np.asarray(ch.time, dtype=float) for ch in channels]
+    values = [np.asarray(ch.values, dtype=float) for ch in channels]
+    cost = _projected_cost(times, values)
+    # the grid only brackets the minimum: on a long window every stride-th sample does that as
+    # well, as long as the shortest tau of the grid still spans several of its intervals
+    dt = float(times[0][1] - times[0][0]) if times[0].size > 1 else 0.0
+    shortest = min(t.size for t in times)
+    stride = max(1, min(shortest // GRID_SAMPLES, int(GRID_LOW * tau0 / (4.0 * dt)) if dt > 0 else 1))
+    coarse = cost if stride == 1 else _projected_cost([t[::stride] for t in times], [y[::stride] for y in values])
+    grid = np.log(tau0) + np.linspace(math.log(GRID_LOW), math.log(1.0 / GRID_LOW), 25)
+    costs = [coarse(g) for g in grid]
+    k = int(np.argmin(costs))
+    lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
+    res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": 1e-6})
+    return float(math.exp(res.x))
+
+
+#: The starting grid of :func:`projected_tau` spans tau0·GRID_LOW to tau0/GRID_LOW (a rough
+#: tau0 from reference-level instants is within that).
+GRID_LOW = 0.2
+#: The grid is evaluated on about this many samples per channel (every stride-th of a longer
+#: window): it only picks the bracket in which the minimum is then sought on every sample.
+GRID_SAMPLES = 2048
+
+
+def _projected_cost(times: Sequence[np.ndarray], values: Sequence[np.ndarray]):
+    """The summed, scatter-normalised residual sum of squares of each channel on (1, exp(−t/tau)),
+    as a function of log tau (:func:`projected_tau`)."""
+    elapsed = [t - float(t[0]) for t in times]
     same = first_equal(elapsed)
-    centred = [np.asarray(ch.values, dtype=float) - float(np.mean(ch.values)) for ch in channels]
+    centred = [y - float(np.mean(y)) for y in values]
     sums = [float(y @ y) for y in centred]
     scales = [s / y.size or 1.0 for s, y in zip(sums, centred)]
 
@@ -97,12 +125,7 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
             total += max(rss, 0.0) / scale
         return total
 
-    grid = np.log(tau0) + np.linspace(math.log(0.2), math.log(5.0), 25)
-    costs = [cost(g) for g in grid]
-    k = int(np.argmin(costs))
-    lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
-    res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": 1e-6})
-    return float(math.exp(res.x))
+    return cost
 
 
 def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, noise: str = "auto",
