@@ -138,3 +138,31 @@ def test_glitches_found_across_chunk_boundaries(monkeypatch):
     np.testing.assert_array_equal(glitches.find_glitches(y), whole)
     np.testing.assert_array_equal(glitches._after_jumps(y, None), jumps)
     assert set(bad.tolist()) <= set(whole.tolist())
+
+
+def test_joint_windows_covariance_same_whatever_part_is_held_densely(monkeypatch):
+    """Several windows fitted jointly with one AR noise model (the pooled rl-step estimator):
+    the sandwich covariance must not depend on which of the problem and its blocks are small
+    enough to hold densely. A block gathered whole from a long problem had lost its
+    parameters' numbers (its columns were taken as the first ones), which understated
+    tau's standard error by a quarter on a band-limited record of 12 windows."""
+    from scipy.signal import lfilter
+
+    from wavefit.fit.exponential import WindowChannel, fit_exponential_window
+
+    rng = np.random.default_rng(11)
+    n, tau = 900, 40.0
+    chans = []
+    for k in range(6):
+        t = (np.arange(n) + 1000.0 * k)
+        noise = 0.01 * lfilter([1.0], [1.0, -0.8], rng.standard_normal(n))
+        shape = np.exp(-(t - t[0]) / tau)
+        chans.append(WindowChannel(f"w{k}", t, (1 - shape if k % 2 == 0 else shape) + noise, noise_group="sense"))
+    fits = {}
+    # all dense; the problem long but each block (900 x 3 values) dense; everything long
+    for label, bound in (("dense", 1 << 30), ("mixed", 10_000), ("long", 0)):
+        monkeypatch.setattr(jacobian_module, "DENSE_VALUES", bound)
+        fits[label] = fit_exponential_window(chans, 35.0)
+    assert fits["dense"].noise_model["sense"]["order"] > 0  # the sandwich is used
+    for label in ("mixed", "long"):
+        np.testing.assert_allclose(fits[label].covariance, fits["dense"].covariance, rtol=1e-8)

@@ -299,10 +299,15 @@ def _on_own_columns(jb: "np.ndarray | Tall", hb: "np.ndarray | Tall") -> tuple[T
     (arrays, and matrices small enough to hold, are cut to their columns not all zero)."""
     if isinstance(jb, Tall) and isinstance(hb, Tall) and not is_small(jb.n, jb.columns.size):
         return jb, hb
+    # a Tall matrix gathers only its own columns: keep their parameter numbers
+    params = jb.columns if isinstance(jb, Tall) else np.arange(np.shape(jb)[1])
+    if isinstance(hb, Tall) and not np.array_equal(hb.columns, params):
+        raise ValueError("J and H of a block must be on the same parameters")
     jb = jb.gather() if isinstance(jb, Tall) else np.asarray(jb, dtype=float)
     hb = hb.gather() if isinstance(hb, Tall) else np.asarray(hb, dtype=float)
-    cols = np.flatnonzero(np.any(jb != 0, axis=0) | np.any(hb != 0, axis=0))
-    return (Tall(array_rows(jb[:, cols]), jb.shape[0], cols), Tall(array_rows(hb[:, cols]), hb.shape[0], cols))
+    keep = np.flatnonzero(np.any(jb != 0, axis=0) | np.any(hb != 0, axis=0))
+    cols = params[keep]
+    return (Tall(array_rows(jb[:, keep]), jb.shape[0], cols), Tall(array_rows(hb[:, keep]), hb.shape[0], cols))
 
 
 def _shifted_traces(h: "np.ndarray | Tall", x: "np.ndarray | Tall", lags: int) -> np.ndarray:
