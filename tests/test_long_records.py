@@ -140,12 +140,14 @@ def test_glitches_found_across_chunk_boundaries(monkeypatch):
     assert set(bad.tolist()) <= set(whole.tolist())
 
 
-def test_joint_windows_covariance_same_whatever_part_is_held_densely(monkeypatch):
+@pytest.mark.parametrize("windows", ["six windows, one channel", "one window, two channels"])
+def test_joint_windows_covariance_same_whatever_part_is_held_densely(monkeypatch, windows):
     """Several windows fitted jointly with one AR noise model (the pooled rl-step estimator):
     the sandwich covariance must not depend on which of the problem and its blocks are small
     enough to hold densely. A block gathered whole from a long problem had lost its
     parameters' numbers (its columns were taken as the first ones), which understated
-    tau's standard error by a quarter on a band-limited record of 12 windows."""
+    tau's standard error by a quarter on a band-limited record of 12 windows (and put a
+    drive channel's level and amplitude on the sense channel's)."""
     from scipy.signal import lfilter
 
     from wavefit.fit.exponential import WindowChannel, fit_exponential_window
@@ -157,12 +159,18 @@ def test_joint_windows_covariance_same_whatever_part_is_held_densely(monkeypatch
         t = (np.arange(n) + 1000.0 * k)
         noise = 0.01 * lfilter([1.0], [1.0, -0.8], rng.standard_normal(n))
         shape = np.exp(-(t - t[0]) / tau)
+        if windows == "one window, two channels":  # sense and drive of one edge
+            t = np.arange(n) * 1.0
+            shape = np.exp(-t / tau)
+            chans = [WindowChannel(g, t, level + step * shape + 0.01 * lfilter([1.0], [1.0, -0.8], rng.standard_normal(n)))
+                     for g, level, step in (("sense", 1.0, -1.0), ("drive", 2.0, 0.1))]
+            break
         chans.append(WindowChannel(f"w{k}", t, (1 - shape if k % 2 == 0 else shape) + noise, noise_group="sense"))
     fits = {}
     # all dense; the problem long but each block (900 x 3 values) dense; everything long
-    for label, bound in (("dense", 1 << 30), ("mixed", 10_000), ("long", 0)):
+    for label, bound in (("dense", 1 << 30), ("mixed", 4_000), ("long", 0)):
         monkeypatch.setattr(jacobian_module, "DENSE_VALUES", bound)
         fits[label] = fit_exponential_window(chans, 35.0)
-    assert fits["dense"].noise_model["sense"]["order"] > 0  # the sandwich is used
+    assert fits["dense"].noise_correlation_extent_samples  # the sandwich is used
     for label in ("mixed", "long"):
         np.testing.assert_allclose(fits[label].covariance, fits["dense"].covariance, rtol=1e-8)
