@@ -81,18 +81,19 @@ def test_screened_analysis_equals_refitting_every_later_start(monkeypatch, seed,
     moved = any("start later" in note for note in screened.fit.to_dict()["notes"])
     assert skipped >= 3 or moved
     if ring == 0.05 and channels == "two":
-        assert skipped >= 3 and moved
+        assert skipped >= 1 and moved
     if ring == 0.0:
         assert skipped >= 3
 
 
 def test_foreseen_shift_follows_the_refit():
-    """On white-noise windows the foreseen shift is within a tenth of the refit's statistic
-    where the decision is made (measured up to 0.28 over 1,600 later starts), well inside the
-    screen's margin of one deviation."""
-    compared = 0
+    """On windows whose full fit is white the foreseen shift is within 0.3 of the refit's
+    statistic where decisions are made (measured up to 0.28 over 1,600 later starts), and
+    within 0.7 where the refit turns to an AR model of its own (measured up to 0.6): both
+    inside the screen's margin of 1.5 deviations."""
+    compared = {"white": 0, "coloured": 0}
     for seed in (3, 4, 5):
-        for ring in (0.0, 0.03, 0.1):
+        for ring in (0.0, 0.05, 0.1):
             frame = record(seed, ring)
             t = frame["time"].to_numpy()
             sense, drive = frame["sense"].to_numpy(), frame["drive"].to_numpy()
@@ -114,10 +115,11 @@ def test_foreseen_shift_follows_the_refit():
                     continue
                 refit = RLStep._fit_window(t, sense, drive, dataclasses.replace(w, start=start), "auto", "test")
                 var_d = refit.stderr("tau") ** 2 - f.stderr("tau") ** 2
-                if var_d <= 0 or refit.whitening["sense"].order:
-                    continue
+                if var_d <= 0:
+                    continue  # the test keeps the start whatever tau does
                 real = abs(refit["tau"] - f["tau"]) / math.sqrt(var_d)
-                if real < 2 * rl_windows.SCREEN_Z:
-                    assert abs(z - real) < 0.3, (z, real)
-                    compared += 1
-    assert compared >= 20
+                if real < 3.0 + rl_windows.SCREEN_Z:
+                    kind = "coloured" if any(m.order for m in refit.whitening.values()) else "white"
+                    assert abs(z - real) < (0.3 if kind == "white" else 0.7), (z, real, kind)
+                    compared[kind] += 1
+    assert compared["white"] >= 20
