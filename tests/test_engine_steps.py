@@ -49,3 +49,32 @@ def test_fewer_evaluations_and_the_same_line():
     for x in results.values():
         np.testing.assert_allclose(x, exact, rtol=1e-10)
     assert counted[True] <= counted[False]
+
+
+def test_the_solve_ends_where_scipy_alone_ends():
+    """The solve ends at the first negligible trial step (every later one would be shorter and
+    rejected too); it must end where scipy's own trust-region solve, run to its tolerances
+    without the shortcut, ends: to a millionth of a standard error."""
+    from scipy.optimize import least_squares
+
+    rng = np.random.default_rng(4)
+    t = np.linspace(0, 6, 3000)
+    y = 0.3 + 1.7 * np.exp(-t / 1.1) + 0.02 * rng.standard_normal(t.size)
+
+    def residuals(v):
+        return (y - v[0] - v[1] * np.exp(-t / v[2])) / 0.02
+
+    def jacobian(v):
+        e = np.exp(-t / v[2])
+        return -np.column_stack((np.ones_like(t), e, v[1] * e * t / v[2] ** 2)) / 0.02
+
+    params = lmfit.Parameters()
+    for name, start in (("c", 0.0), ("a", 1.0), ("tau", 0.7)):
+        params.add(name, start)
+    ours = engine.minimise(params, ["c", "a", "tau"], residuals, jacobian, "jac")
+    tol = engine.TOLERANCE
+    alone = least_squares(residuals, [0.0, 1.0, 0.7], jac=jacobian, method="trf", x_scale="jac",
+                          ftol=tol, xtol=tol, gtol=tol).x
+    j = jacobian(alone)
+    standard_errors = np.sqrt(np.diag(np.linalg.inv(j.T @ j)))
+    assert np.all(np.abs(ours - alone) <= 1e-6 * standard_errors)

@@ -28,7 +28,7 @@ from __future__ import annotations
 import math
 from contextlib import contextmanager
 from dataclasses import dataclass
-from typing import Callable, Iterator, Sequence
+from typing import Any, Callable, Iterator, Sequence
 
 import lmfit
 import numpy as np
@@ -287,14 +287,16 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
     best: dict[bytes, Vector] = {}
     lowest = [math.inf]
     slope: dict[bytes, np.ndarray] = {}  # the Jacobian at the best point, once asked for there
+    settled = [False]
 
     def remembered(p: lmfit.Parameters) -> Vector:
         """The residuals, the lowest sum of squares so far kept: lmfit evaluates them once more
         at the solution, the point of lowest sum that scipy accepted (a trust-region step is
-        accepted only when it lowers the sum), which saves one whitened evaluation per solve;
-        and a trial step from it that would change the sum by less than
-        :data:`NEGLIGIBLE_CHANGE` of itself is given its residuals, so the step is not taken
-        and costs no evaluation."""
+        accepted only when it lowers the sum), which saves one whitened evaluation per solve.
+        A trial step from it that would change the sum by less than :data:`NEGLIGIBLE_CHANGE`
+        of itself is not evaluated, and the solve ends there: scipy would reject it and every
+        step after it (each is shorter, ‖J·Δx‖ shrinking with the trust region, and none is
+        accepted), and stop at that same point."""
         x = values(p)
         key = x.tobytes()
         if key in best:
@@ -303,6 +305,7 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
             if seen in slope:
                 change = slope[seen] @ (x - np.frombuffer(seen))
                 if float(change @ change) <= NEGLIGIBLE_CHANGE * lowest[0]:
+                    settled[0] = True
                     return r_best.copy()
         r = np.asarray(residuals(x), dtype=float)
         with np.errstate(over="ignore"):  # far-off trial steps
@@ -313,12 +316,9 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
             best[key] = r.copy()
         return r
 
-    # lmfit stops a fit past its own count of residual calls and hands scipy twice that count;
-    # scipy's limit is set directly so that it alone decides, as it did before lmfit
-    minimizer = lmfit.Minimizer(remembered, params, nan_policy="propagate",
-                                max_nfev=MAX_EVALUATIONS * (len(names) + 2), calc_covar=False)
-    minimizer.kws["max_nfev"] = MAX_EVALUATIONS
     def remembered_slope(p: lmfit.Parameters) -> np.ndarray:
+        """The Jacobian, kept when it is the best point's (scipy asks for it at each point it
+        accepts)."""
         x = values(p)
         j = jacobian(x)
         key = x.tobytes()
@@ -327,8 +327,19 @@ def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable
             slope[key] = np.asarray(j, dtype=float).copy()
         return j
 
+    def stop_when_settled(*_args: Any, **_kws: Any) -> bool:
+        """lmfit's per-evaluation callback: True ends the solve (at the best point)."""
+        return settled[0]
+
+    # lmfit stops a fit past its own count of residual calls and hands scipy twice that count;
+    # scipy's limit is set directly so that it alone decides, as it did before lmfit
+    minimizer = lmfit.Minimizer(remembered, params, nan_policy="propagate", iter_cb=stop_when_settled,
+                                max_nfev=MAX_EVALUATIONS * (len(names) + 2), calc_covar=False)
+    minimizer.kws["max_nfev"] = MAX_EVALUATIONS
     out = minimizer.least_squares(jac=remembered_slope, method="trf", x_scale=x_scale,
                                   ftol=TOLERANCE, xtol=TOLERANCE, gtol=TOLERANCE)
+    if settled[0]:
+        return np.frombuffer(next(iter(best))).copy()
     return np.asarray(out.x, dtype=float)
 
 
