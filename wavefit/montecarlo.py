@@ -206,13 +206,15 @@ def linear_combination(rows: np.ndarray, coefficients: Sequence[object]) -> obje
     # other; a dense product would give every point a zero derivative with respect to every
     # coefficient, which each later operation carries along
     coefficients = np.array(coefficients, dtype=object)
-    if rows.ndim == 1:
-        used = np.flatnonzero(rows)
-        return np.dot(rows[used], coefficients[used]) if used.size else 0.0
-    out = np.empty(rows.shape[0], dtype=object)
-    for r, row in enumerate(rows):
+
+    def combined(row: np.ndarray) -> object:
         used = np.flatnonzero(row)
-        out[r] = np.dot(row[used], coefficients[used]) if used.size else 0.0
+        return np.dot(row[used], coefficients[used]) if used.size else 0.0
+
+    if rows.ndim == 1:
+        return combined(rows)
+    out = np.empty(rows.shape[0], dtype=object)
+    out[:] = [combined(row) for row in rows]
     return out
 
 
