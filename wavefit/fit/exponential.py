@@ -78,13 +78,13 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
     # factorisation per evaluation
     times = [np.asarray(ch.time, dtype=float) for ch in channels]
     values = [np.asarray(ch.values, dtype=float) for ch in channels]
-    cost = _projected_cost(times, values)
+    cost = projected_cost(times, values)
     # the grid only brackets the minimum: on a long window every stride-th sample does that as
     # well, as long as the shortest tau of the grid still spans several of its intervals
     dt = float(times[0][1] - times[0][0]) if times[0].size > 1 else 0.0
     shortest = min(t.size for t in times)
     stride = max(1, min(shortest // GRID_SAMPLES, int(GRID_LOW * tau0 / (4.0 * dt)) if dt > 0 else 1))
-    coarse = cost if stride == 1 else _projected_cost([t[::stride] for t in times], [y[::stride] for y in values])
+    coarse = cost if stride == 1 else projected_cost([t[::stride] for t in times], [y[::stride] for y in values])
     grid = np.log(tau0) + np.linspace(math.log(GRID_LOW), math.log(1.0 / GRID_LOW), 25)
     costs = [coarse(g) for g in grid]
     k = int(np.argmin(costs))
@@ -101,14 +101,17 @@ GRID_LOW = 0.2
 GRID_SAMPLES = 2048
 
 
-def _projected_cost(times: Sequence[np.ndarray], values: Sequence[np.ndarray]):
-    """The summed, scatter-normalised residual sum of squares of each channel on (1, exp(−t/tau)),
-    as a function of log tau (:func:`projected_tau`)."""
+def projected_cost(times: Sequence[np.ndarray], values: Sequence[np.ndarray],
+                   scales: Sequence[float] | None = None):
+    """The residual sum of squares of each channel on (1, exp(−t/tau)), each over its ``scales``
+    (default: the channel's own variance), summed, as a function of log tau: the
+    variable-projection cost of :func:`projected_tau`."""
     elapsed = [t - float(t[0]) for t in times]
     same = first_equal(elapsed)
     centred = [y - float(np.mean(y)) for y in values]
     sums = [float(y @ y) for y in centred]
-    scales = [s / y.size or 1.0 for s, y in zip(sums, centred)]
+    if scales is None:
+        scales = [s / y.size or 1.0 for s, y in zip(sums, centred)]
 
     def cost(log_tau: float) -> float:
         total = 0.0

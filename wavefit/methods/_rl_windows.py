@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import AnalysisRefused
-from ..fit.exponential import window_model
+from ..fit.exponential import projected_cost, window_model
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
 
@@ -168,43 +168,30 @@ def projected_shift(t, sense, drive, w, f, start: int) -> float | None:
     deviation = math.sqrt(var_full * (ratio - 1.0)) if ratio > 1.0 else 0.0
     if not (deviation > 0 and math.isfinite(deviation)) or not deviation < 0.25 * tau:
         return None
-    u = t[start:w.stop] - t[start]
-    channels = []
-    for group, y in (("sense", sense), ("drive", drive)):
-        if y is not None:
-            yc = y[start:w.stop] - float(np.mean(y[start:w.stop]))
-            channels.append((yc, float(yc @ yc), f.whitening[group].sigma_e ** 2))
-
-    def cost(x: float) -> float:
-        # each channel's residual sum of squares on (1, e) through the centred sums, weighed
-        e = np.exp(-u / x)
-        e -= e.mean()
-        see = float(e @ e)
-        return sum((syy - (float(e @ yc) ** 2 / see if see > 0 else 0.0)) / var for yc, syy, var in channels)
-
+    later = [y[start:w.stop] for y in (sense, drive) if y is not None]
+    variances = [f.whitening[group].sigma_e ** 2 for group, y in (("sense", sense), ("drive", drive)) if y is not None]
+    cost = projected_cost([t[start:w.stop]] * len(later), later, variances)
     reach = (SCREEN_Z + 2.0) * deviation
-    found = minimize_scalar(cost, bounds=(tau - reach, tau + reach), method="bounded",
+    found = minimize_scalar(lambda x: cost(math.log(x)), bounds=(tau - reach, tau + reach), method="bounded",
                             options={"xatol": 0.05 * deviation})
     shift = abs(float(found.x) - tau)
     if not shift < 0.95 * reach:
         return math.inf  # at the edge of the search: beyond it, by any deviation
     # tau's variance as the refit states it, each channel weighed by its own scatter about
-    # the later curve (a misfit at the start inflates the full window's noise), the levels
-    # and amplitudes profiled out
+    # the later curve (a misfit at the start inflates the full window's noise)
     x = float(found.x)
+    u = t[start:w.stop] - t[start]
     e = np.exp(-u / x)
-    slope = u * e / x ** 2
     e -= e.mean()
-    slope -= slope.mean()
     see = float(e @ e)
-    slope -= (float(slope @ e) / see) * e
     information = 0.0
-    for yc, syy, _ in channels:
+    for y in later:
+        yc = y - float(np.mean(y))
         amplitude = float(e @ yc) / see
-        scatter = (syy - amplitude ** 2 * see) / (u.size - 2)
+        scatter = (float(yc @ yc) - amplitude ** 2 * see) / (u.size - 2)
         if not scatter > 0:
             return None  # no noise to weigh by: the refit decides
-        information += amplitude ** 2 * float(slope @ slope) / scatter
+        information += _curve_information(u, amplitude, x) / scatter
     var_d = 1.0 / information - var_full
     return shift / math.sqrt(var_d) if var_d > 0 else math.inf
 
@@ -347,10 +334,14 @@ def _tau_information(t, w, f, start: int) -> float:
     """1/var(tau), up to the noise variance, of the window's fitted curve sampled from
     ``start`` to the window's end, with its final level and amplitude free."""
     _, coef, tau = f.subset(("final_sense", "coef_sense", "tau"))[0]
-    u = t[start:w.stop] - t[start]
+    return _curve_information(t[start:w.stop] - t[start], coef * math.exp(-(t[start] - f.t_ref) / tau), tau)
+
+
+def _curve_information(u: np.ndarray, amplitude: float, tau: float) -> float:
+    """1/var(tau), up to the noise variance, of final + amplitude·exp(−u/tau) sampled at the
+    elapsed times ``u``, with its final level and amplitude free."""
     e = np.exp(-u / tau)
-    amp = coef * math.exp(-(t[start] - f.t_ref) / tau)
-    jac = np.column_stack((np.ones_like(u), e, amp * e * u / tau ** 2))
+    jac = np.column_stack((np.ones_like(u), e, amplitude * e * u / tau ** 2))
     return 1.0 / float(np.linalg.inv(jac.T @ jac)[2, 2])
 
 
