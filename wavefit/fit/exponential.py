@@ -57,7 +57,8 @@ def linear_part(e: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, float]:
     return coef, float(r @ r)
 
 
-def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
+def projected_tau(channels: Sequence[WindowChannel], tau0: float, scales: Sequence[float] | None = None,
+                  tolerance: float = 1e-6) -> float:
     """Variable-projection estimate of tau: minimise the summed, scatter-normalised RSS over tau.
 
     Parameters
@@ -66,6 +67,11 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
         The window's channels; each exponential is referred to its channel's first instant.
     tau0
         Rough time constant (for example from 10 %/90 % reference-level instants).
+    scales
+        Each channel's noise variance, by which its residual sum of squares is divided
+        (default: the channel's own variance about its mean).
+    tolerance
+        Absolute tolerance on log tau (the relative one on tau).
 
     References
     ----------
@@ -78,24 +84,28 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float) -> float:
     # factorisation per evaluation
     times = [np.asarray(ch.time, dtype=float) for ch in channels]
     values = [np.asarray(ch.values, dtype=float) for ch in channels]
-    cost = projected_cost(times, values)
+    cost = projected_cost(times, values, scales)
     # the grid only brackets the minimum: on a long window every stride-th sample does that as
     # well, as long as the shortest tau of the grid still spans several of its intervals
     dt = float(times[0][1] - times[0][0]) if times[0].size > 1 else 0.0
     shortest = min(t.size for t in times)
     stride = max(1, min(shortest // GRID_SAMPLES, int(GRID_LOW * tau0 / (4.0 * dt)) if dt > 0 else 1))
-    coarse = cost if stride == 1 else projected_cost([t[::stride] for t in times], [y[::stride] for y in values])
-    grid = np.log(tau0) + np.linspace(math.log(GRID_LOW), math.log(1.0 / GRID_LOW), 25)
+    coarse = cost if stride == 1 else projected_cost([t[::stride] for t in times], [y[::stride] for y in values],
+                                                     scales)
+    grid = np.log(tau0) + np.linspace(math.log(GRID_LOW), math.log(1.0 / GRID_LOW), GRID_POINTS)
     costs = [coarse(g) for g in grid]
     k = int(np.argmin(costs))
     lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
-    res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": 1e-6})
+    res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": tolerance})
     return float(math.exp(res.x))
 
 
 #: The starting grid of :func:`projected_tau` spans tau0·GRID_LOW to tau0/GRID_LOW (a rough
 #: tau0 from reference-level instants is within that).
 GRID_LOW = 0.2
+#: Points of that grid (evenly spaced in log tau) and the step between them.
+GRID_POINTS = 25
+GRID_STEP = 2.0 * math.log(1.0 / GRID_LOW) / (GRID_POINTS - 1)
 #: The grid is evaluated on about this many samples per channel (every stride-th of a longer
 #: window): it only picks the bracket in which the minimum is then sought on every sample.
 GRID_SAMPLES = 2048
@@ -129,6 +139,15 @@ def projected_cost(times: Sequence[np.ndarray], values: Sequence[np.ndarray],
         return total
 
     return cost
+
+
+def curve_information(u: np.ndarray, amplitude: float, tau: float) -> float:
+    """1/var(tau), up to the noise variance, of final + amplitude·exp(−u/tau) sampled at the
+    elapsed times ``u``, with its final level and amplitude free (the linearised information:
+    G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley 1989, §2.1)."""
+    e = np.exp(-u / tau)
+    jac = np.column_stack((np.ones_like(u), e, amplitude * e * u / tau ** 2))
+    return 1.0 / float(np.linalg.inv(jac.T @ jac)[2, 2])
 
 
 def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, noise: str = "auto",

@@ -15,7 +15,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import AnalysisRefused
-from ..fit.exponential import projected_cost, window_model
+from ..fit.exponential import WindowChannel, curve_information, projected_cost, window_model
+from ..fit.white_projection import white_window_tau
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
 
@@ -191,7 +192,7 @@ def projected_shift(t, sense, drive, w, f, start: int) -> float | None:
         scatter = (float(yc @ yc) - amplitude ** 2 * see) / (u.size - 2)
         if not scatter > 0:
             return None  # no noise to weigh by: the refit decides
-        information += _curve_information(u, amplitude, x) / scatter
+        information += curve_information(u, amplitude, x) / scatter
     var_d = 1.0 / information - var_full
     return shift / math.sqrt(var_d) if var_d > 0 else math.inf
 
@@ -276,15 +277,17 @@ def late_start(t, sense, drive, windows, fits, noise, source, fit_window) -> Lat
         if f.stderr("tau") ** 2 * _tau_information(t, w, f, w.start) / _tau_information(t, later, f, start) \
                 > (LATE_RELATIVE_ERROR * tau) ** 2:
             continue
-        try:
-            fit = fit_window(t, sense, drive, later, noise, source)
-        except AnalysisRefused:
+        found = _later_fit(t, sense, drive, later, f, noise, source, fit_window)
+        if found is None:
             continue
-        ratio = _tau_information(t, later, fit, start) / _tau_information(t, w, fit, w.start)
+        tau_late, var_late, amplitude = found
+        # the information of the later fit's curve over the later window and over the full one
+        ratio = curve_information(t[start:stop] - t[start], amplitude, tau_late) / curve_information(
+            t[w.start:w.stop] - t[w.start], amplitude * math.exp((t[start] - t[w.start]) / tau_late), tau_late)
         weights.append(1.0 / f.stderr("tau") ** 2)
         full.append(f["tau"])
-        late.append(fit["tau"])
-        var_d.append(fit.stderr("tau") ** 2 * (1.0 - ratio))
+        late.append(tau_late)
+        var_d.append(var_late * (1.0 - ratio))
     if not weights:
         return None
     wts = np.array(weights) / np.sum(weights)
@@ -293,6 +296,29 @@ def late_start(t, sense, drive, windows, fits, noise, source, fit_window) -> Lat
         return None
     tau_full, tau_late = float(wts @ np.array(full)), float(wts @ np.array(late))
     return LateStart(tau_full, tau_late, abs(tau_late - tau_full) / math.sqrt(d_var), len(weights))
+
+
+def _later_fit(t, sense, drive, later: Window, f, noise, source, fit_window) -> tuple[float, float, float] | None:
+    """tau, its variance and the sense channel's amplitude at the start of window ``later``,
+    as its refit states them; None where the refit fails.
+
+    Where the full window's fit ``f`` is white, the later window's white fit is solved by
+    variable projection (:func:`wavefit.fit.white_projection.white_window_tau`: the same
+    minimum and variance, without building the fit); where that fit would not be white, or
+    ``f`` is not, the window is refitted."""
+    if f.code_fit is None and f.quantisation_widening is None and f.whitening \
+            and not any(m.order for m in f.whitening.values()):
+        chans = [WindowChannel(group, t[later.start:later.stop], y[later.start:later.stop])
+                 for group, y in (("sense", sense), ("drive", drive)) if y is not None]
+        found = white_window_tau(chans, f["tau"], noise)
+        if found is not None:
+            return found.tau, found.variance, found.amplitudes[0]
+    try:
+        fit = fit_window(t, sense, drive, later, noise, source)
+    except AnalysisRefused:
+        return None
+    # the refit's exponential is referred to its first instant, the later window's start
+    return fit["tau"], fit.stderr("tau") ** 2, fit["coef_sense"] * math.exp(-(t[later.start] - fit.t_ref) / fit["tau"])
 
 
 def placement_jitter(windows, fits, dt: float) -> np.ndarray:
@@ -334,15 +360,7 @@ def _tau_information(t, w, f, start: int) -> float:
     """1/var(tau), up to the noise variance, of the window's fitted curve sampled from
     ``start`` to the window's end, with its final level and amplitude free."""
     _, coef, tau = f.subset(("final_sense", "coef_sense", "tau"))[0]
-    return _curve_information(t[start:w.stop] - t[start], coef * math.exp(-(t[start] - f.t_ref) / tau), tau)
-
-
-def _curve_information(u: np.ndarray, amplitude: float, tau: float) -> float:
-    """1/var(tau), up to the noise variance, of final + amplitude·exp(−u/tau) sampled at the
-    elapsed times ``u``, with its final level and amplitude free."""
-    e = np.exp(-u / tau)
-    jac = np.column_stack((np.ones_like(u), e, amplitude * e * u / tau ** 2))
-    return 1.0 / float(np.linalg.inv(jac.T @ jac)[2, 2])
+    return curve_information(t[start:w.stop] - t[start], coef * math.exp(-(t[start] - f.t_ref) / tau), tau)
 
 
 def _switch_instant(t, w, f, prev_w, prev_f, baseline) -> float | None:
