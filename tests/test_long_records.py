@@ -174,3 +174,29 @@ def test_joint_windows_covariance_same_whatever_part_is_held_densely(monkeypatch
     assert fits["dense"].noise_correlation_extent_samples  # the sandwich is used
     for label in ("mixed", "long"):
         np.testing.assert_allclose(fits[label].covariance, fits["dense"].covariance, rtol=1e-8)
+
+
+def test_long_white_record_without_a_drive_channel_is_judged_white():
+    # A sense-only square wave of tau = 10,000 samples in white noise of 1/300 of the step (the
+    # closed-form response of wavefit.synth.rl). Its reference-level instants are late by tens
+    # of samples (FIRST_PASS_END_MARGIN), which let the first windows take in the next edge:
+    # the misfit was read as correlated noise, with a warning that the edges were poorly placed.
+    import wavefit
+    from wavefit.synth.rl import rl_square_wave
+
+    inductance, dcr, r_sense, r_source = 1e-3, 1.0, 10.0, 50.0
+    tau = inductance / (dcr + r_sense + r_source)
+    t, _, sense = rl_square_wave(inductance, dcr, r_sense, r_source, 1.0, 16 * tau, tau / 10000, 56 * tau,
+                                 delay=8 * tau)
+    sense = sense + np.ptp(sense) / 300 * np.random.default_rng(3).standard_normal(t.size)
+    setup = {"method": "rl-step", "columns": {"time": "t", "sense": "v"},
+             "parts": {"sense_resistor": r_sense, "source_resistance": r_source, "dut_resistance": dcr},
+             "instrument": {"timebase": "exact", "vertical_gain": "exact"}}
+    import pandas as pd
+
+    out = wavefit.analyze(pd.DataFrame({"t": t, "v": sense}), setup).to_dict()
+    assert not out["warnings"]
+    assert all(edge["noise_model"]["sense"]["order"] == 0 for edge in out["fit"]["edges"])
+    assert out["fit"]["estimator"] == "whole-record relaxation fit"
+    value, u = out["quantities"]["L"]["value"], out["quantities"]["L"]["expanded_uncertainty"]
+    assert abs(value - inductance) <= u

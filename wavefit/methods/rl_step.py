@@ -74,6 +74,21 @@ RISE_FALL_Z = 3.0
 JITTER_WARN_SAMPLES = 2.0
 
 
+#: Without a drive channel the first windows end this many (estimated) tau before the next
+#: edge's reference-level instant where tau spans FIRST_PASS_MARGIN_FROM samples or more. The
+#: 10 % and 90 % instants are the last and first noisy crossings of their levels, late and
+#: early by a share of the samples within the noise of the level: on white records at 300:1
+#: the switching instant came out 0.005–0.013 tau late (0.8 samples at 80 samples per tau, 4
+#: at 800, 88 at 7,900, 310 at 24,000; largest 410), so from about a thousand samples per
+#: tau each window took in tens to hundreds of samples of the next edge, and the misfit read
+#: as correlated noise (measured). Below, the few samples are within the noise, and the
+#: windows are left as they were. A window's last samples are the settled level, which tells
+#: little of tau; the final windows are cut again from the fitted instants
+#: (:func:`~wavefit.methods._rl_windows.settle_starts`).
+FIRST_PASS_END_MARGIN = 0.05
+FIRST_PASS_MARGIN_FROM = 1000
+
+
 @register
 class RLStep(Method):
     """Step response of an inductor in series with a sense resistor."""
@@ -247,7 +262,12 @@ class RLStep(Method):
         windows = []
         for k, e in enumerate(edges):
             start = int(np.searchsorted(t, t0s[k] + skip))
-            stop = int(np.searchsorted(t, t0s[k + 1] - 2.0 * dt - edge_time)) if k + 1 < len(edges) else t.size
+            # without a drive channel the next instant is the reference-level estimate, late on long
+            # records (FIRST_PASS_END_MARGIN): end the window before it can reach the next edge
+            end = 2.0 * dt + edge_time
+            if drive is None and k + 1 < len(edges) and edges[k + 1].tau >= FIRST_PASS_MARGIN_FROM * dt:
+                end += FIRST_PASS_END_MARGIN * edges[k + 1].tau
+            stop = int(np.searchsorted(t, t0s[k + 1] - end)) if k + 1 < len(edges) else t.size
             if stop - start >= 8 and (t[min(stop, t.size) - 1] - t0s[k]) >= 2.0 * e.tau:
                 windows.append(Window(e, t0s[k], start, stop))
         if not windows:
