@@ -9,9 +9,11 @@ compares it with the dense one, or with an independent computation (finite diffe
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 from scipy.signal import lfilter
 
+import wavefit
 from wavefit.errors import AnalysisRefused
 from wavefit.fit import jacobian as jacobian_module
 from wavefit.fit.compressed import triangle
@@ -20,6 +22,7 @@ from wavefit.fit.engine import Block, fit_least_squares
 from wavefit.fit.noise_model import fit_ar
 from wavefit.fit.relaxation import fit_relaxations, relaxation_jacobian, relaxation_model
 from wavefit.signal import clipping, codes, glitches
+from wavefit.synth.rl import rl_square_wave
 
 
 def square_wave_record(rng: np.random.Generator, n: int = 6000) -> tuple[np.ndarray, np.ndarray, list, list]:
@@ -181,9 +184,6 @@ def test_long_white_record_without_a_drive_channel_is_judged_white():
     # closed-form response of wavefit.synth.rl). Its reference-level instants are late by tens
     # of samples (FIRST_PASS_END_MARGIN), which let the first windows take in the next edge:
     # the misfit was read as correlated noise, with a warning that the edges were poorly placed.
-    import wavefit
-    from wavefit.synth.rl import rl_square_wave
-
     inductance, dcr, r_sense, r_source = 1e-3, 1.0, 10.0, 50.0
     tau = inductance / (dcr + r_sense + r_source)
     t, _, sense = rl_square_wave(inductance, dcr, r_sense, r_source, 1.0, 16 * tau, tau / 10000, 56 * tau,
@@ -192,8 +192,6 @@ def test_long_white_record_without_a_drive_channel_is_judged_white():
     setup = {"method": "rl-step", "columns": {"time": "t", "sense": "v"},
              "parts": {"sense_resistor": r_sense, "source_resistance": r_source, "dut_resistance": dcr},
              "instrument": {"timebase": "exact", "vertical_gain": "exact"}}
-    import pandas as pd
-
     out = wavefit.analyze(pd.DataFrame({"t": t, "v": sense}), setup).to_dict()
     assert not out["warnings"]
     assert all(edge["noise_model"]["sense"]["order"] == 0 for edge in out["fit"]["edges"])
