@@ -4,6 +4,9 @@ Prints the row count, the load time, and peak memory relative to the file
 size: the peak of allocations seen by tracemalloc (numpy arrays included;
 the C parser's own buffers are not traced) during the load, and the peak
 resident set size of a fresh process that only imports wavefit and loads.
+Then the same file is read again, interleaved, by ``read_capture``, by pandas' C
+parser given the path, and by pyarrow's CSV reader into a pandas frame when pyarrow is
+installed (it is not a dependency of wavefit); medians of REPEATS runs and their ratios.
 
 Usage::
 
@@ -29,6 +32,8 @@ from process_memory import peak_bytes, reset_peak, status_bytes
 from wavefit.io import read_capture
 
 _CHUNK_ROWS = 500_000
+#: Interleaved repeats of the reader comparison (the medians are printed).
+REPEATS = 5
 
 
 def write_capture(path: Path, rows: int, dt: float = 1e-9) -> None:
@@ -65,6 +70,32 @@ def load(path: Path) -> None:
     print(f"peak RSS during load  {rss_peak / 1e6:,.1f} MB (+{added / 1e6:,.1f} MB = "
           f"{added / size:.2f} x file size{'' if reset else '; peak not reset, upper bound'})")
     print(f"sample interval       {capture.sample_interval:.6g} s, warnings: {len(capture.warnings)}")
+    compare_readers(path)
+
+
+def compare_readers(path: Path) -> None:
+    """Median times of read_capture, pandas' C parser and (when installed) pyarrow on ``path``."""
+    import pandas as pd
+
+    readers = {"read_capture": lambda: read_capture(path),
+               "pandas C parser": lambda: pd.read_csv(path, skiprows=1, engine="c")}
+    try:
+        from pyarrow import csv as arrow_csv
+    except ImportError:
+        print("pyarrow               not installed: no comparison with its reader")
+    else:
+        readers["pyarrow to pandas"] = lambda: arrow_csv.read_csv(
+            path, read_options=arrow_csv.ReadOptions(skip_rows=1)).to_pandas()
+    times: dict[str, list[float]] = {name: [] for name in readers}
+    for _ in range(REPEATS):
+        for name, read in readers.items():
+            started = time.perf_counter()
+            read()
+            times[name].append(time.perf_counter() - started)
+    ours = float(np.median(times["read_capture"]))
+    for name, values in times.items():
+        median = float(np.median(values))
+        print(f"{name:21s} {median:.2f} s median of {REPEATS} (read_capture / this: {ours / median:.2f})")
 
 
 def main(argv: list[str] | None = None) -> None:
