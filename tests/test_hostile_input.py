@@ -72,6 +72,24 @@ def test_constant_drive_is_refused_by_name(tmp_path: Path) -> None:
         wavefit.analyze(path, TWO_CHANNELS)
 
 
+def test_drive_that_jumps_and_settles_within_its_noise_is_analysed(tmp_path: Path) -> None:
+    # R_source 50 Ω against 10.5 Ω: the drive node jumps by the generator's 1 V at each edge
+    # and settles 0.17 V from where it was, 4 noise deviations of a noisy drive probe (below
+    # find_edges' 5), while the sense channel is clean; the drive still steps
+    t, drive, sense = _record(seed=6)
+    noisy = drive + np.random.default_rng(6).normal(0.0, 0.17 / 4, drive.size)
+    result = wavefit.analyze(_write(tmp_path / "noisy_drive.csv", t, noisy, sense), TWO_CHANNELS)
+    q = result.quantities["L"]
+    assert abs(q.value - L) <= q.expanded_uncertainty
+
+
+def test_drive_of_noise_only_is_refused_by_name(tmp_path: Path) -> None:
+    t, drive, sense = _record(seed=7)
+    unplugged = np.random.default_rng(7).normal(0.0, 0.05, drive.size)
+    with pytest.raises(wavefit.AnalysisRefused, match="drive channel does not step"):
+        wavefit.analyze(_write(tmp_path / "unplugged.csv", t, unplugged, sense), TWO_CHANNELS)
+
+
 def test_inverted_sense_is_refused_by_name(tmp_path: Path) -> None:
     t, drive, sense = _record(seed=3)
     with pytest.raises(wavefit.AnalysisRefused, match="sense channel falls when the drive rises"):
