@@ -43,7 +43,10 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     """tau and its variance from the fit :func:`~wavefit.fit.exponential.fit_exponential_window`
     makes of ``channels`` with ``noise``, where that fit is white; None where it is not.
 
-    The steps are the fit's own: the channels weighed by their scatter about the projected
+    ``tau0`` is a tau near the minimum (the full window's for a later part of it): the
+    minimum is sought within one step of :func:`~wavefit.fit.exponential.projected_tau`'s
+    grid of it, and by that grid when it lies beyond. The steps are the fit's own: the
+    channels weighed by their scatter about the projected
     start, the minimum sought with those weights, each channel's scatter then taken about it
     with the fit's share of the parameters deducted (its white noise model), and tau's
     variance the inverse of the information summed over the channels, each weighed by its
@@ -82,16 +85,16 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
             scatters.append(float(r @ r) / max(y.size * (1.0 - n_par / total), 1.0))
         return residuals, amplitudes, scatters
 
-    if len(channels) == 1:
-        tau = projected_tau(channels, tau0, tolerance=TAU_TOLERANCE)  # one channel: no weights
-    else:
-        # the weights move the minimum by a fraction of tau's deviation: it stays within the
-        # bracket of the first search's grid (one grid step either side)
-        tau = projected_tau(channels, tau0)
-        cost = projected_cost(elapsed, centred, fitted(tau)[2])
-        found = optimize.minimize_scalar(cost, bounds=(math.log(tau) - GRID_STEP, math.log(tau) + GRID_STEP),
-                                         method="bounded", options={"xatol": TAU_TOLERANCE})
-        tau = math.exp(float(found.x))
+    # first each channel over its own variance (the fit's start), then, with two or more
+    # channels, weighed by their scatter about that minimum (the fit's weights)
+    tolerance = TAU_TOLERANCE if len(channels) == 1 else 1e-6
+    tau = _minimum(projected_cost(elapsed, centred), tau0, tolerance) or \
+        projected_tau(channels, tau0, tolerance=tolerance)
+    if len(channels) > 1:
+        # the weights move the minimum by a fraction of tau's deviation, well within the bracket
+        tau = _minimum(projected_cost(elapsed, centred, fitted(tau)[2]), tau, TAU_TOLERANCE)
+        if tau is None:
+            return None
     residuals, amplitudes, scatters = fitted(tau)
     if not all(s > 0 for s in scatters):
         return None
@@ -104,3 +107,21 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     if not (information > 0 and np.isfinite(information)):
         return None
     return WhiteTau(tau, 1.0 / information, tuple(amplitudes))
+
+
+#: A minimum found within this share of the bracket's half-width of its edge is taken as lying
+#: beyond it.
+EDGE_SHARE = 0.01
+
+
+def _minimum(cost, guess: float, tolerance: float) -> float | None:
+    """The tau that minimises ``cost`` (a function of log tau) within one step of
+    projected_tau's grid either side of ``guess``, which holds the minimum when ``guess`` is a
+    fit's tau of the same curve (a later window's tau differs by a few standard deviations);
+    None when the minimum lies at the bracket's edge, or beyond."""
+    lo, hi = math.log(guess) - GRID_STEP, math.log(guess) + GRID_STEP
+    found = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": tolerance})
+    x = float(found.x)
+    if min(x - lo, hi - x) < EDGE_SHARE * GRID_STEP:
+        return None
+    return math.exp(x)
