@@ -279,3 +279,19 @@ def test_channels_named_by_number(tmp_path: Path) -> None:
     capture = read_capture(_write(tmp_path, lines))
     assert capture.time_column == "Time"
     assert [c.header for c in capture.channels] == ["1", "2"]
+
+
+@pytest.mark.parametrize("name", ["capture.csv.gz", "capture.csv.zip", "capture.csv.xz", "capture.csv.bz2",
+                                  "capture.tar"])
+def test_plain_text_is_read_whatever_its_name_says(tmp_path: Path, name: str) -> None:
+    # a download unpacked but still named as compressed: the bytes decide, not the name
+    lines = ["Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())]
+    capture = read_capture(_write(tmp_path, lines, name))
+    np.testing.assert_allclose(capture.channels[0].values, _signal(), atol=1e-9)
+
+
+def test_a_folder_named_tilde_is_not_the_home_folder(tmp_path: Path, monkeypatch) -> None:
+    (tmp_path / "~").mkdir()
+    _write(tmp_path / "~", ["Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())])
+    monkeypatch.chdir(tmp_path)
+    assert read_capture("~/capture.csv").rows == N
