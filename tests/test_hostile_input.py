@@ -16,7 +16,9 @@ from wavefit.results import AnalysisResult, QuantityResult
 from wavefit.signal.glitches import find_glitches
 from wavefit.synth.lc import Tank, ringdown
 from wavefit.synth.rl import rl_square_wave
-from wavefit.synth.scope import ScopeModel
+from wavefit.methods._rl_wiring import check_wiring
+from wavefit.signal.edges import find_edges
+from wavefit.synth.scope import ScopeModel, band_limited_noise
 
 # The rl-step circuit of docs/method-rl-step.md: L/(R_source + DCR + R_sense) = 100 µH/60.5 Ω.
 L, DCR, R_SENSE, R_SOURCE = 100e-6, 0.5, 10.0, 50.0
@@ -88,6 +90,21 @@ def test_drive_of_noise_only_is_refused_by_name(tmp_path: Path) -> None:
     unplugged = np.random.default_rng(7).normal(0.0, 0.05, drive.size)
     with pytest.raises(wavefit.AnalysisRefused, match="drive channel does not step"):
         wavefit.analyze(_write(tmp_path / "unplugged.csv", t, unplugged, sense), TWO_CHANNELS)
+
+
+def test_drive_of_band_limited_noise_only_is_refused_by_name() -> None:
+    # a drive probe that picks up only band-limited noise: over the several samples a jump is
+    # read across, its differences are far larger than over one sample, and must not pass for
+    # jumps (judged by the noise of one-sample differences, 7 of these 200 draws passed)
+    t, _, sense = _record(seed=8)
+    edges = find_edges(t, sense)
+    for seed in range(200):
+        rng = np.random.default_rng(seed)
+        unplugged = band_limited_noise(t.size, 0.05, 5.0, rng)
+        if find_edges(t, unplugged):
+            continue  # noise that happens to show two levels: not this case
+        with pytest.raises(wavefit.AnalysisRefused, match="drive channel does not step"):
+            check_wiring(t, sense, unplugged, edges, "capture")
 
 
 def test_inverted_sense_is_refused_by_name(tmp_path: Path) -> None:

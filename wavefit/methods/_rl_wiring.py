@@ -14,7 +14,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import AnalysisRefused
-from ..signal.edges import Edge, find_edges, noise_rms
+from ..signal.edges import Edge, find_edges
 from ..signal.levels import state_levels
 
 #: A channel "jumps" at an edge when it covers more than this fraction of its step within
@@ -25,8 +25,8 @@ JUMP_SAMPLES = 2
 #: The sense channel is judged to move against the drive when most of its edges do.
 AGAINST_SHARE = 0.5
 #: A drive whose two settled levels are not apart beyond its noise still steps when it jumps
-#: by more than this many times its noise rms at most sense edges (the amplitude find_edges
-#: asks of a step). A source resistance well above the rest of the loop leaves the drive node
+#: at most sense edges by more than this many times the noise of a difference over the jump's
+#: span (the amplitude find_edges asks of a step). A source resistance well above the rest of the loop leaves the drive node
 #: a jump of nearly the generator's step that relaxes back to within a few noise deviations
 #: of its level before: 50 Ω against 10.5 Ω at 34 dB was refused as a drive that does not
 #: step, though each edge jumped by 20 deviations (measured).
@@ -60,8 +60,9 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
         raise AnalysisRefused(
             f"{source}: the drive channel does not step (no transition above its noise) while the sense "
             "channel does: is the drive probe connected, and is [columns] drive the generator-side node?")
-    if _jumps(t, sense, edges, state_levels(sense).amplitude, dt) and not _jumps(
-            t, drive, drive_edges, state_levels(drive).amplitude, dt):
+    # a drive with no edges of its own got here by jumping at the sense edges
+    drive_jumps = not drive_edges or _jumps(t, drive, drive_edges, state_levels(drive).amplitude, dt)
+    if _jumps(t, sense, edges, state_levels(sense).amplitude, dt) and not drive_jumps:
         raise AnalysisRefused(
             f"{source}: the sense channel jumps at its edges while the drive channel follows slowly: drive "
             "and sense look swapped in [columns] (the sense resistor's voltage cannot jump in an rl-step "
@@ -74,23 +75,39 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
             "channel's sign")
 
 
-def _jump_at(t: np.ndarray, drive: np.ndarray, edge: Edge, dt: float) -> float:
-    """How far the drive node moves at the start of a sense edge: from half the edge's 10-90 %
-    duration before its 10 % instant to two samples after it (the drive then relaxes back, so
-    only its jump tells the generator's direction); 0 where that reaches past the record."""
+def _jump_span(t: np.ndarray, edge: Edge, dt: float) -> tuple[int, int] | None:
+    """The samples between which the drive node's jump at a sense edge is read: from half the
+    edge's 10-90 % duration before its 10 % instant to two samples after it (the drive then
+    relaxes back, so only its jump tells the generator's direction); None where that reaches
+    past the record."""
     start = int(np.searchsorted(t, edge.t10 - 0.5 * edge.duration - dt)) - 1
     stop = int(np.searchsorted(t, edge.t10 + JUMP_SAMPLES * dt))
-    if start < 0 or stop >= t.size:
-        return 0.0
-    return float(drive[stop] - drive[start])
+    return (start, stop) if start >= 0 and stop < t.size else None
+
+
+def _jump_at(t: np.ndarray, drive: np.ndarray, edge: Edge, dt: float) -> float:
+    """How far the drive node moves at the start of a sense edge (:func:`_jump_span`); 0 where
+    that cannot be read."""
+    span = _jump_span(t, edge, dt)
+    return float(drive[span[1]] - drive[span[0]]) if span is not None else 0.0
 
 
 def _jumps_at_edges(t: np.ndarray, drive: np.ndarray, edges: list[Edge], dt: float) -> bool:
-    """Whether the drive jumps at most of the sense edges by more than DRIVE_JUMP_SNR times its
-    noise rms, in the edge's direction: a drive that steps, whatever its settled levels."""
-    sigma = noise_rms(drive)
-    jumping = sum(_jump_at(t, drive, edge, dt) * edge.direction > DRIVE_JUMP_SNR * sigma
-                  for edge in edges)
+    """Whether the drive jumps at most of the sense edges by more than DRIVE_JUMP_SNR times the
+    noise of a difference over the same number of samples, in the edge's direction: a drive
+    that steps, whatever its settled levels. The noise is 1.4826·MAD of the record's
+    differences at that lag (common practice; the few differences across edges do not move a
+    median), so band-limited noise, whose differences over several samples are far larger
+    than over one, is judged by the scatter a jump read over that span would have."""
+    spans = [span for span in (_jump_span(t, edge, dt) for edge in edges) if span is not None]
+    if not spans:
+        return False
+    lag = int(np.median([stop - start for start, stop in spans]))
+    if not 0 < lag < drive.size:
+        return False
+    differences = drive[lag:] - drive[:-lag]
+    sigma = 1.4826 * float(np.median(np.abs(differences - np.median(differences))))
+    jumping = sum(_jump_at(t, drive, edge, dt) * edge.direction > DRIVE_JUMP_SNR * sigma for edge in edges)
     return jumping > 0.5 * len(edges)
 
 
