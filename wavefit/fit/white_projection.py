@@ -88,8 +88,14 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     # first each channel over its own variance (the fit's start), then, with two or more
     # channels, weighed by their scatter about that minimum (the fit's weights)
     tolerance = TAU_TOLERANCE if len(channels) == 1 else 1e-6
-    tau = _minimum(projected_cost(elapsed, centred), tau0, tolerance) or \
-        projected_tau(channels, tau0, tolerance=tolerance)
+    start_cost = projected_cost(elapsed, centred)
+    tau = _minimum(start_cost, tau0, tolerance)
+    if tau is None:
+        # beyond one grid step: the grid's bracket, then a minimum inside one step of it (the
+        # grid ends at five times tau0 either way, where its answer need not be a minimum)
+        tau = _minimum(start_cost, projected_tau(channels, tau0, tolerance=tolerance), tolerance)
+        if tau is None:
+            return None
     if len(channels) > 1:
         # the weights move the minimum by a fraction of tau's deviation, well within the bracket
         tau = _minimum(projected_cost(elapsed, centred, fitted(tau)[2]), tau, TAU_TOLERANCE)
