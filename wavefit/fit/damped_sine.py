@@ -225,8 +225,8 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     radians per sample, referred to the first sample of ``y``: a point near the minimum
     (:func:`refine`'s, or another fit's carried to this window). The solve's first,
     unweighted pass is the unweighted least squares :func:`refine` would give, so it is not
-    refined first (that took a sixth of a 10⁶-sample analysis; the results are the same to
-    1e-9 relative).
+    refined first (that took a sixth of a 10⁶-sample analysis; docs/performance.md, "Third
+    round", says how far results moved).
     """
     n = y.size
     tau = np.arange(n, dtype=float)
