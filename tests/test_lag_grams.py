@@ -42,3 +42,17 @@ def test_fft_lag_grams_span_chunk_boundaries(monkeypatch):
     direct = lagged.lag_grams(lagged.array_rows(x), 2000, 2, 50)
     np.testing.assert_allclose(got, direct, rtol=1e-12, atol=1e-9)
     np.testing.assert_allclose(got[:3], by_definition(x, 2), rtol=1e-12, atol=1e-9)
+
+
+@pytest.mark.parametrize("direct", [True, False], ids=["direct", "fft"])
+@pytest.mark.parametrize("n", [5, 40, 1000])
+def test_lag_sums_match_their_definition_across_chunks(direct, n, monkeypatch):
+    # the autocovariance's sums Σ_t (x_t − c)·(x_{t+k} − c), term by term, against the direct
+    # dot products over chunks of 64 rows (so that lags reach across chunk ends) and the FFT
+    x = np.random.default_rng(n).standard_normal(n) + 0.7
+    monkeypatch.setattr(lagged, "DIRECT_LAGS", 10 ** 6 if direct else -1)
+    monkeypatch.setattr(lagged, "chunk_rows", lambda columns: 64)
+    lags = 30
+    centred = x - 0.7
+    expected = [sum(centred[t] * centred[t + k] for t in range(n - k)) if k < n else 0.0 for k in range(lags + 1)]
+    np.testing.assert_allclose(lagged.lag_sums(x, 0.7, lags), expected, rtol=1e-12, atol=1e-12)

@@ -29,7 +29,7 @@ import numpy as np
 from scipy.linalg import cholesky, solve_triangular, toeplitz
 from scipy.signal import lfilter
 
-from .lagged import cross_products
+from .lagged import lag_sums
 
 
 @dataclass(frozen=True)
@@ -121,21 +121,15 @@ class ARNoise:
 
 
 def autocovariance(blocks: list[np.ndarray], max_lag: int) -> tuple[np.ndarray, int]:
-    """Pooled biased autocovariance of zero-mean blocks up to ``max_lag`` (lag products by
-    FFT, a chunk of samples at a time: :func:`wavefit.fit.lagged.cross_products`)."""
+    """Pooled biased autocovariance of zero-mean blocks up to ``max_lag`` (lag products a chunk
+    of samples at a time: :func:`wavefit.fit.lagged.lag_sums`)."""
     acov = np.zeros(max_lag + 1)
     total = 0
     for r in blocks:
-        n = r.size
-        if n == 0:
+        if r.size == 0:
             continue
-        mean = r.mean()
-
-        def centred(a: int, b: int, r=r, mean=mean) -> np.ndarray:
-            return r[a:b] - mean
-
-        acov += cross_products(centred, centred, n, 1, 0, max_lag)
-        total += n
+        acov += lag_sums(np.asarray(r, dtype=float), float(r.mean()), max_lag)
+        total += r.size
     return acov / max(total, 1), total
 
 
