@@ -148,14 +148,18 @@ def _absorbed_corrected(meat: np.ndarray, bread: np.ndarray, jac: Jacobian, mean
         running = np.concatenate((np.zeros((1, q, q)), np.cumsum(info, axis=0)))
         n = stop - start
         lo, hi = np.clip(np.arange(n) - lag, 0, n), np.clip(np.arange(n) + lag + 1, 0, n)
-        pieces.append((columns, info, running[hi] - running[lo]))
+        near = running[hi] - running[lo]
+        # Σ_i A_i·V·B_i is linear in V: its four-index kernel Σ_i A_i[a,b]·B_i[c,d] is summed
+        # once here, so that each iteration costs q⁴ products instead of n·q⁴
+        kernel = (info.reshape(n, q * q).T @ near.reshape(n, q * q)).reshape(q, q, q, q)
+        pieces.append((columns, kernel))
     current = meat
     for _ in range(ABSORBED_ITERATIONS):
         v = bread @ current @ bread
         shortfall = np.zeros((size, size))
-        for columns, info, near in pieces:
+        for columns, kernel in pieces:
             local = v[np.ix_(columns, columns)]
-            shortfall[np.ix_(columns, columns)] += np.einsum("iab,bc,icd->ad", info, local, near)
+            shortfall[np.ix_(columns, columns)] += np.einsum("abcd,bc->ad", kernel, local)
         updated = meat + 0.5 * (shortfall + shortfall.T)
         if not np.all(np.isfinite(updated)):
             return meat
