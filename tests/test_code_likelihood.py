@@ -28,6 +28,39 @@ def test_information_tends_to_that_of_noise_plus_uniform_quantisation(sigma):
     assert abs(i_ms.mean()) < 1e-9  # no mean–σ coupling on average over the grid
 
 
+def _information_by_definition(mean, sigma, step, origin, codes=40):
+    # Σ over the codes k of (∂P_k/∂θ)(∂P_k/∂θ)ᵀ/P_k with P_k = Φ(b_k) − Φ(a_k), each code's
+    # bounds and probability on their own, by scipy's normal distribution (its survival
+    # function for codes above the mean, where 1 − Φ would lose the digits)
+    from scipy.stats import norm
+
+    centre = np.round((mean - origin) / step)
+    out = [np.zeros(mean.size) for _ in range(3)]
+    for k in range(-codes, codes + 1):
+        code = origin + (centre + k) * step
+        a, b = (code - 0.5 * step - mean) / sigma, (code + 0.5 * step - mean) / sigma
+        p = np.where(a > 0, norm.sf(a) - norm.sf(b), norm.cdf(b) - norm.cdf(a))
+        dm = (norm.pdf(a) - norm.pdf(b)) / sigma
+        ds = (a * norm.pdf(a) - b * norm.pdf(b)) / sigma
+        ok = p > 0
+        for acc, term in zip(out, (dm * dm, dm * ds, ds * ds)):
+            acc += np.where(ok, term / np.where(ok, p, 1.0), 0.0)
+    return out
+
+
+@pytest.mark.parametrize("sigma_codes", [0.05, 0.3, 1.0, 3.0])
+@pytest.mark.parametrize("step, origin", [(1.0, -10.0), (0.0039, 0.0017)])
+def test_information_matches_its_definition(sigma_codes, step, origin):
+    # the codes' boundaries are shared between neighbours in the sum; each code on its own here
+    mean = origin + np.linspace(-3.0, 3.0, 601) * step
+    sigma = np.full(mean.size, sigma_codes * step)
+    ours = expected_information(mean, sigma, step, origin)
+    reference = _information_by_definition(mean, sigma, step, origin)
+    scale = max(np.max(np.abs(ours[0])), np.max(np.abs(ours[2])))  # the information's own size
+    for x, y in zip(ours, reference):
+        np.testing.assert_allclose(x, y, rtol=0, atol=1e-9 * scale)
+
+
 def test_information_is_lost_below_one_code():
     mean = np.linspace(0.0, 1.0, 4001)[:-1]
     i_mm, _, _ = expected_information(mean, np.full(mean.size, 0.2), 1.0, -10.0)

@@ -106,17 +106,32 @@ def expected_information(mean: np.ndarray, sigma: np.ndarray, step: "float | np.
     i_mm = np.zeros(mean.size)
     i_ms = np.zeros(mean.size)
     i_ss = np.zeros(mean.size)
+    # Neighbouring codes share a boundary: each boundary's standardised position, log φ and
+    # the log Φ its intervals need are found once (log_interval_probability's tail choice: an
+    # interval above zero takes log Φ(−z) of both its bounds, any other log Φ(z), so a boundary
+    # above zero needs log Φ(−z) but for the one interval it closes that holds zero)
+    a = _bounds(origin + (centre - reach) * step, mean, sigma, step)[0]
+    log_phi_a = _log_phi(a)
+    tail_a = log_ndtr(-np.abs(a))
     for k in range(-reach, reach + 1):
-        a, b = _bounds(origin + (centre + k) * step, mean, sigma, step)
-        log_p = log_interval_probability(a, b)
+        b = _bounds(origin + (centre + k + 1) * step, mean, sigma, step)[0]
+        log_phi_b = _log_phi(b)
+        tail_b = log_ndtr(-np.abs(b))
+        upper = a > 0
+        log_hi = np.where(upper, tail_a, tail_b)
+        log_lo = np.where(upper, tail_b, tail_a)
+        straddles = np.flatnonzero(~upper & (b > 0))  # the interval that holds zero takes log Φ(b)
+        log_hi[straddles] = log_ndtr(b[straddles])
+        log_p = log_hi + np.log(-np.expm1(np.minimum(log_lo - log_hi, -1e-300)))
         keep = log_p > -700.0
-        pa = np.where(keep, np.exp(_log_phi(a) - 0.5 * log_p), 0.0)  # φ(a)/√P
-        pb = np.where(keep, np.exp(_log_phi(b) - 0.5 * log_p), 0.0)
+        pa = np.where(keep, np.exp(log_phi_a - 0.5 * log_p), 0.0)  # φ(a)/√P
+        pb = np.where(keep, np.exp(log_phi_b - 0.5 * log_p), 0.0)
         dm = (pa - pb) / sigma  # (∂P/∂s)/√P
         ds = (a * pa - b * pb) / sigma  # (∂P/∂σ)/√P
         i_mm += dm * dm
         i_ms += dm * ds
         i_ss += ds * ds
+        a, log_phi_a, tail_a = b, log_phi_b, tail_b
     return i_mm, i_ms, i_ss
 
 
