@@ -54,7 +54,11 @@ def log_interval_probability(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     upper = a > 0  # both bounds in the upper tail: use Φ(−a) − Φ(−b)
     hi = np.where(upper, -a, b)
     lo = np.where(upper, -b, a)
-    log_hi, log_lo = log_ndtr(hi), log_ndtr(lo)
+    return _log_difference(log_ndtr(hi), log_ndtr(lo))
+
+
+def _log_difference(log_hi: np.ndarray, log_lo: np.ndarray) -> np.ndarray:
+    """log(e^log_hi − e^log_lo) for log_lo ≤ log_hi, without leaving log space."""
     return log_hi + np.log(-np.expm1(np.minimum(log_lo - log_hi, -1e-300)))
 
 
@@ -107,7 +111,7 @@ def expected_information(mean: np.ndarray, sigma: np.ndarray, step: "float | np.
     i_ms = np.zeros(mean.size)
     i_ss = np.zeros(mean.size)
     # Neighbouring codes share a boundary: each boundary's standardised position, log φ and
-    # the log Φ its intervals need are found once (log_interval_probability's tail choice: an
+    # the log Φ its intervals need are found once (:func:`log_interval_probability`'s tail choice: an
     # interval above zero takes log Φ(−z) of both its bounds, any other log Φ(z), so a boundary
     # above zero needs log Φ(−z) but for the one interval it closes that holds zero)
     a = _bounds(origin + (centre - reach) * step, mean, sigma, step)[0]
@@ -122,7 +126,7 @@ def expected_information(mean: np.ndarray, sigma: np.ndarray, step: "float | np.
         log_lo = np.where(upper, tail_b, tail_a)
         straddles = np.flatnonzero(~upper & (b > 0))  # the interval that holds zero takes log Φ(b)
         log_hi[straddles] = log_ndtr(b[straddles])
-        log_p = log_hi + np.log(-np.expm1(np.minimum(log_lo - log_hi, -1e-300)))
+        log_p = _log_difference(log_hi, log_lo)
         keep = log_p > -700.0
         pa = np.where(keep, np.exp(log_phi_a - 0.5 * log_p), 0.0)  # φ(a)/√P
         pb = np.where(keep, np.exp(log_phi_b - 0.5 * log_p), 0.0)
