@@ -161,8 +161,7 @@ def projected_shift(t, sense, drive, w, f, start: int) -> float | None:
     """
     from scipy.optimize import minimize_scalar
 
-    if f.code_fit is not None or f.quantisation_widening is not None or not f.whitening \
-            or any(m.order for m in f.whitening.values()):
+    if not _is_white(f):
         return None
     tau, var_full = f["tau"], f.stderr("tau") ** 2
     ratio = _tau_information(t, w, f, w.start) / _tau_information(t, w, f, start)
@@ -306,8 +305,7 @@ def _later_fit(t, sense, drive, later: Window, f, noise, source, fit_window) -> 
     variable projection (:func:`wavefit.fit.white_projection.white_window_tau`: the same
     minimum and variance, without building the fit); where that fit would not be white, or
     ``f`` is not, the window is refitted."""
-    if f.code_fit is None and f.quantisation_widening is None and f.whitening \
-            and not any(m.order for m in f.whitening.values()):
+    if _is_white(f):
         chans = [WindowChannel(group, t[later.start:later.stop], y[later.start:later.stop])
                  for group, y in (("sense", sense), ("drive", drive)) if y is not None]
         found = white_window_tau(chans, f["tau"], noise)
@@ -319,6 +317,13 @@ def _later_fit(t, sense, drive, later: Window, f, noise, source, fit_window) -> 
         return None
     # the refit's exponential is referred to its first instant, the later window's start
     return fit["tau"], fit.stderr("tau") ** 2, fit["coef_sense"] * math.exp(-(t[later.start] - fit.t_ref) / fit["tau"])
+
+
+def _is_white(f) -> bool:
+    """Whether a window's fit ended with a white noise model on every channel and on no code
+    grid (its least squares is then what variable projection solves)."""
+    return (f.code_fit is None and f.quantisation_widening is None and bool(f.whitening)
+            and not any(m.order for m in f.whitening.values()))
 
 
 def placement_jitter(windows, fits, dt: float) -> np.ndarray:
