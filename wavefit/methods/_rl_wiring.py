@@ -11,10 +11,12 @@ negative or absurd inductances.
 """
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from ..errors import AnalysisRefused
-from ..signal.edges import Edge, find_edges
+from ..signal.edges import Edge, find_edges, noise_rms
 from ..signal.levels import state_levels
 
 #: A channel "jumps" at an edge when it covers more than this fraction of its step within
@@ -98,15 +100,15 @@ def _jumps_at_edges(t: np.ndarray, drive: np.ndarray, edges: list[Edge], dt: flo
     that steps, whatever its settled levels. The noise is 1.4826·MAD of the record's
     differences at that lag (common practice; the few differences across edges do not move a
     median), so band-limited noise, whose differences over several samples are far larger
-    than over one, is judged by the scatter a jump read over that span would have."""
+    than over one, is judged by the scatter a jump read over that span would have
+    (:func:`wavefit.signal.edges.noise_rms` at that lag)."""
     spans = [span for span in (_jump_span(t, edge, dt) for edge in edges) if span is not None]
     if not spans:
         return False
     lag = int(np.median([stop - start for start, stop in spans]))
     if not 0 < lag < drive.size:
         return False
-    differences = drive[lag:] - drive[:-lag]
-    sigma = 1.4826 * float(np.median(np.abs(differences - np.median(differences))))
+    sigma = math.sqrt(2.0) * noise_rms(drive, lag)  # the rms of a difference over the span
     jumping = sum(_jump_at(t, drive, edge, dt) * edge.direction > DRIVE_JUMP_SNR * sigma for edge in edges)
     return jumping > 0.5 * len(edges)
 

@@ -44,9 +44,12 @@ class Edge:
         return self.t10 - self.tau * math.log(10.0 / 9.0)
 
 
-def noise_rms(y: np.ndarray) -> float:
-    """Robust white-noise rms from first differences: 1.4826·MAD(Δy)/√2 (common practice)."""
-    d = np.diff(np.asarray(y, dtype=float))
+def noise_rms(y: np.ndarray, lag: int = 1) -> float:
+    """Robust white-noise rms from differences ``lag`` samples apart: 1.4826·MAD(Δy)/√2
+    (common practice). Over a longer lag, correlated noise shows the scatter it has across
+    that span (a difference's rms is √2 times the value returned)."""
+    y = np.asarray(y, dtype=float)
+    d = y[lag:] - y[:-lag]
     if d.size == 0:
         return 0.0
     return float(1.4826 * np.median(np.abs(d - np.median(d))) / math.sqrt(2.0))
