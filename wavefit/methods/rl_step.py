@@ -262,12 +262,14 @@ class RLStep(Method):
         windows = []
         for k, e in enumerate(edges):
             start = int(np.searchsorted(t, t0s[k] + skip))
-            # without a drive channel the next instant is the reference-level estimate, late on long
-            # records (FIRST_PASS_END_MARGIN): end the window before it can reach the next edge
-            end = 2.0 * dt + edge_time
-            if drive is None and k + 1 < len(edges) and edges[k + 1].tau >= FIRST_PASS_MARGIN_FROM * dt:
-                end += FIRST_PASS_END_MARGIN * edges[k + 1].tau
-            stop = int(np.searchsorted(t, t0s[k + 1] - end)) if k + 1 < len(edges) else t.size
+            stop = t.size
+            if k + 1 < len(edges):
+                end = 2.0 * dt + edge_time
+                if drive is None and edges[k + 1].tau >= FIRST_PASS_MARGIN_FROM * dt:
+                    # the next instant is then the reference-level estimate, late on long records
+                    # (FIRST_PASS_END_MARGIN): end the window before it can reach the next edge
+                    end += FIRST_PASS_END_MARGIN * edges[k + 1].tau
+                stop = int(np.searchsorted(t, t0s[k + 1] - end))
             if stop - start >= 8 and (t[min(stop, t.size) - 1] - t0s[k]) >= 2.0 * e.tau:
                 windows.append(Window(e, t0s[k], start, stop))
         if not windows:
