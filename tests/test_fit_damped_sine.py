@@ -11,7 +11,8 @@ import math
 import numpy as np
 import pytest
 
-from wavefit.fit.damped_sine import fit_ring, jacobian, model, ring_window
+from wavefit.fit.jacobian import CHUNK_ELEMENTS
+from wavefit.fit.damped_sine import fit_ring, grid_jacobian, grid_model, model, ring_window
 from wavefit.fit.pencil import matrix_pencil
 from wavefit.synth.lc import Tank, ringdown
 from wavefit.synth.scope import ScopeModel
@@ -80,7 +81,7 @@ def test_log_decrement_matches_fitted_q():
 def _fisher_bound(x: np.ndarray, n: int, sigma: float) -> float:
     """CRB of w0 = √(w_d² + alpha²) (sample units) in white noise: Kay 1993 §3.9 (memory),
     I = JᵀJ/σ² of the same model."""
-    j = jacobian(x, np.arange(n, dtype=float))
+    j = grid_jacobian(x, 0, n)
     cov = np.linalg.inv(j.T @ j / sigma ** 2)
     w0 = math.hypot(x[3], x[4])
     g = np.array([0, 0, 0, x[3] / w0, x[4] / w0])
@@ -90,7 +91,7 @@ def _fisher_bound(x: np.ndarray, n: int, sigma: float) -> float:
 def test_numerical_bound_matches_closed_form():
     # CHECK-VALUES.md §5b (derived, recomputed): var(w) ≈ (2σ²/A²)(1−z)³/z, z = e^(−2α), long record
     x = np.array([0.0, 1.0, 0.0, 0.01, 0.7])
-    j = jacobian(x, np.arange(5000, dtype=float))
+    j = grid_jacobian(x, 0, 5000)
     var_w = np.linalg.inv(j.T @ j)[4, 4]
     z = math.exp(-2 * 0.01)
     assert var_w == pytest.approx(2 * (1 - z) ** 3 / z, rel=0.02)
@@ -137,3 +138,26 @@ def _true_params(v: np.ndarray, x0: np.ndarray) -> np.ndarray:
     x = np.array([coef[0], coef[1], coef[2], x0[3], x0[4]])
     assert np.max(np.abs(model(x, tau) - v)) < 1e-9 * np.abs(v).max()
     return x
+
+
+@pytest.mark.parametrize("alpha, w", [(1e-4, 0.05), (2e-3, 2.9), (0.0, 1e-3)])
+def test_grid_forms_match_the_direct_model(alpha, w):
+    # the fits evaluate the ring at sample numbers through products of exponentials
+    # (grid_model, grid_jacobian); they must equal the direct exp·cos/sin form (model) and its
+    # derivatives by central differences, across the chunks the long records are cut into
+    x = np.array([0.3, 1.2, -0.7, alpha, w])
+    n = CHUNK_ELEMENTS + 4099
+    direct = model(x, np.arange(n, dtype=float))
+    grid = grid_model(x, n)
+    # the direct form's own rounding of w·τ is about 1e-16·w·τ radians
+    assert np.max(np.abs(grid - direct)) < 1e-13 * max(1.0, w * n)
+    start, stop = n - 3000, n
+    j = grid_jacobian(x, start, stop)
+    tau = np.arange(start, stop, dtype=float)
+    for k in range(5):
+        h = 1e-6 / float(tau[-1]) if k >= 3 else 1e-6  # a phase or decay step of 1e-6 at the end
+        up, down = x.copy(), x.copy()
+        up[k] += h
+        down[k] -= h
+        numeric = (model(up, tau) - model(down, tau)) / (2 * h)
+        assert np.max(np.abs(j[:, k] - numeric)) < 1e-5 * max(1.0, np.max(np.abs(numeric)))
