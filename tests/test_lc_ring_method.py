@@ -110,3 +110,22 @@ def test_cli_json(tmp_path, capsys):
     assert code == 0
     data = json.loads(capsys.readouterr().out)
     assert data["quantities"]["L"]["value"] == pytest.approx(TANK.inductance, rel=0.02)
+
+
+def test_residual_spectrum_length_is_the_longest_regular_one():
+    # the residuals' spectrum is cut to the longest length with prime factors 2, 3 and 5 only
+    # (regular numbers): checked against that definition by trial division
+    from wavefit.methods._ring import fast_length
+
+    def regular(m: int) -> bool:
+        for p in (2, 3, 5):
+            while m % p == 0:
+                m //= p
+        return m == 1
+
+    longest = 1
+    for n in range(1, 4000):
+        if regular(n):
+            longest = n
+        assert fast_length(n) == longest
+    assert fast_length(997_331) == 995_328  # 2¹²·3⁵; 997,331 = 127·7,853

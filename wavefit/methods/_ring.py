@@ -247,11 +247,12 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     if not check.adequate:
         warnings.append(check.warning("damped-sinusoid model", "damping or frequency that changes with "
                                       "amplitude: core loss or saturation?"))
-    oscillation = ring.evaluate(seg_t[:RESIDUAL_SPECTRUM_SAMPLES])
+    span = fast_length(min(seg_t.size, RESIDUAL_SPECTRUM_SAMPLES))
+    oscillation = ring.evaluate(seg_t[:span])
     oscillation -= ring.fit["offset"]
     energy = float(oscillation @ oscillation)
     del oscillation
-    spur = _residual_peak(ring.fit.residuals[:RESIDUAL_SPECTRUM_SAMPLES], energy, dt)
+    spur = _residual_peak(ring.fit.residuals[:span], energy, dt)
     if spur is not None:
         warnings.append(f"a second oscillation at {spur.frequency:.4g} Hz ({spur.relative_energy:.1e} of "
                         "the ring's energy) remains in the residuals: second mode, beat or pickup")
@@ -319,10 +320,28 @@ def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSin
     return ModelCheck(varied, tuple(variations))
 
 
-#: The residuals' spectrum is taken over at most this many samples from the ring's start (2 M):
-#: a transform of a long record whose length has large prime factors needs buffers many times
-#: the record's size (Bluestein's algorithm), and 2 M samples resolve any line that matters.
+#: The residuals' spectrum is taken over at most this many samples from the ring's start (2 M),
+#: which resolve any line that matters, cut to the longest length whose prime factors are 2, 3
+#: and 5 (:func:`fast_length`): a transform of a length with a large prime factor takes ten to
+#: thirty times longer (Bluestein's algorithm: 234 ms against 9 ms at 10⁶ samples), and the
+#: samples left off (at most 4 % of a window of 10⁴ samples or more, 10 % of a short one) are
+#: the end of the window, where the ring has decayed to the noise.
 RESIDUAL_SPECTRUM_SAMPLES = 1 << 21
+
+
+def fast_length(n: int) -> int:
+    """The largest length of at most ``n`` (≥ 1) whose only prime factors are 2, 3 and 5: the
+    lengths the real FFT handles fastest (scipy.fft.next_fast_len's "regular" numbers, from
+    below)."""
+    best = 1
+    five = 1
+    while five <= n:
+        odd = five
+        while odd <= n:
+            best = max(best, odd << ((n // odd).bit_length() - 1))
+            odd *= 3
+        five *= 5
+    return best
 
 
 def _residual_peak(r: np.ndarray, ring_energy: float, dt: float) -> ResidualPeak | None:
