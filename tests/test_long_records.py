@@ -17,6 +17,7 @@ import wavefit
 from wavefit.errors import AnalysisRefused
 from wavefit.fit import jacobian as jacobian_module
 from wavefit.fit.compressed import triangle
+from wavefit.fit.jacobian import CHUNK_ELEMENTS
 from wavefit.fit.damped_sine import fit_ring
 from wavefit.fit.engine import Block, fit_least_squares
 from wavefit.fit.noise_model import fit_ar
@@ -74,6 +75,27 @@ def test_triangle_has_the_normal_matrix_of_the_whitened_rows():
     t = triangle(jac, rhs, blocks, {"a": noise})
     whitened = np.vstack([noise.whiten(np.column_stack([jac, rhs])[b.start:b.stop]) for b in blocks])
     np.testing.assert_allclose(t.T @ t, whitened.T @ whitened, rtol=1e-10, atol=1e-9)
+
+
+def test_reducer_takes_uneven_rows_across_its_blocks():
+    # rows added in uneven pieces and column groups, so that the LAPACK blocks start inside
+    # pieces and end on a piece's last row: the factor's normal matrix is that of all the rows
+    # (Lawson and Hanson 1974, ch. 27: sequential QR gives RᵀR = AᵀA)
+    from wavefit.fit.compressed import BLOCK_VALUES, _Reducer
+    rng = np.random.default_rng(4)
+    width = 5
+    block = BLOCK_VALUES // width
+    sizes = [7, 0, block - 7, 3, 2 * block + 11, CHUNK_ELEMENTS // width + 5, 1, block]
+    rows = rng.standard_normal((sum(sizes), width))
+    reducer = _Reducer(width)
+    at = 0
+    for size in sizes:
+        piece = rows[at:at + size]
+        reducer.add([piece[:, :2], piece[:, 2:3], piece[:, 3:]])
+        at += size
+    t = reducer.result()
+    np.testing.assert_allclose(t.T @ t, rows.T @ rows, rtol=1e-11, atol=1e-8)
+    np.testing.assert_allclose(np.abs(t), np.abs(np.linalg.qr(rows, mode="r")), rtol=1e-9, atol=1e-9)
 
 
 @pytest.mark.parametrize("noise", ["white", "auto"])
