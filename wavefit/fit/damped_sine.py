@@ -173,7 +173,7 @@ def grid_jacobian(x: np.ndarray, start: int, stop: int) -> np.ndarray:
     by :func:`phasor`."""
     z = phasor(x[3], x[4], start, stop - start)
     tau = np.arange(start, stop, dtype=float)
-    j = np.empty((tau.size, 5))
+    j = np.empty((tau.size, 5), order="F")  # column by column: each written in one sweep
     j[:, 0] = 1.0
     j[:, 1] = z.real
     j[:, 2] = z.imag
