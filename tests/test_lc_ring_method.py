@@ -129,3 +129,15 @@ def test_residual_spectrum_length_is_the_longest_regular_one():
             longest = n
         assert fast_length(n) == longest
     assert fast_length(997_331) == 995_328  # 2¹²·3⁵; 997,331 = 127·7,853
+
+
+@pytest.mark.parametrize("top, clipped", [(0.6, True), (1.2, False)])
+def test_ring_clipped_by_the_converter_warns(top, clipped):
+    # an 8-bit ring whose positive peaks pass the converter's top code piles up samples there
+    # (judged with the record's code step); one within full scale does not (common practice)
+    alpha, w_d = TANK.poles()
+    t, v = ringdown(TANK, 2 * math.pi / (w_d * 12), 3000, pre_trigger=50)
+    peak = float(np.abs(v).max())
+    scope = ScopeModel(noise_rms=0.02 * peak, bits=8, full_scale=(-1.2 * peak, top * peak))
+    result = wavefit.analyze(pd.DataFrame({"t": t, "v": scope.apply(v, np.random.default_rng(3))}), setup=SETUP)
+    assert any("clipped at the converter's limit" in w for w in result.warnings) == clipped

@@ -188,7 +188,7 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
         raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
                               "check the [columns] tank entry and that the record holds the ring") from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
-    info = _checks(ring, t, y, capture.source, warnings, noise)
+    info = _checks(ring, t, y, channel.levels.step, capture.source, warnings, noise)
     return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings))
 
 
@@ -204,9 +204,10 @@ def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> 
     return split * d_max
 
 
-def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warnings: list[str],
-            noise: str) -> RingSummary:
-    """The fit's diagnostics with its model check (appending to ``warnings``)."""
+def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | None, source: str,
+            warnings: list[str], noise: str) -> RingSummary:
+    """The fit's diagnostics with its model check (appending to ``warnings``); ``code`` is the
+    record's converter step (None for continuous values)."""
     dt = ring.sample_interval
     sigma = ring.fit.noise_sigma["tank"]
     amp = ring.amplitude
@@ -232,7 +233,8 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, source: str, warn
     seg_t, seg_y = t[ring.start:ring.stop], y[ring.start:ring.stop]
     fitted = ring.evaluate(seg_t)
     runs = longest_run_at_extremes(seg_y)
-    if (max(runs) >= CLIPPED_RUN and model_exceeds_record(seg_y, fitted, sigma)) or piles_up_at_limit(seg_y, sigma):
+    if (max(runs) >= CLIPPED_RUN and model_exceeds_record(seg_y, fitted, sigma)) or \
+            piles_up_at_limit(seg_y, sigma, code):
         warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
                         "whole ring fits on screen")
     del fitted  # a long record's copy: evaluated again after the partial fits below

@@ -83,12 +83,17 @@ def extremes(y: np.ndarray, levels: RecordLevels | None = None) -> Extremes:
         gap = found.gap
     else:  # continuous values of a long record: their smallest gap from one sorted copy
         gap = smallest_gap(y)
+    return Extremes(gap, max(longest_run_at_extremes(y)), code, _extreme_counts(y, code))
+
+
+def _extreme_counts(y: np.ndarray, code: float | None) -> tuple[tuple[int, int], ...]:
+    """(samples at the extreme, samples one ``code`` inside it) for the maximum and the minimum."""
     counts = []
     for extreme, inward in ((np.max(y), -1.0), (np.min(y), 1.0)):
         at = int(np.count_nonzero(y == extreme))
         near = _count_within(y, extreme + inward * code, 0.01 * code) if code else 0
         counts.append((at, near))
-    return Extremes(gap, max(longest_run_at_extremes(y)), code, tuple(counts))
+    return tuple(counts)
 
 
 def smallest_gap(y: np.ndarray) -> float | None:
@@ -111,6 +116,10 @@ def _count_within(y: np.ndarray, value: float, tolerance: float) -> int:
                for a in range(0, y.size, CHUNK_VALUES))
 
 
-def piles_up_at_limit(y: np.ndarray, sigma: float, min_count: int = 5) -> bool:
-    """See :meth:`Extremes.piles_up`."""
-    return extremes(y).piles_up(sigma, min_count)
+def piles_up_at_limit(y: np.ndarray, sigma: float, code: float | None, min_count: int = 5) -> bool:
+    """See :meth:`Extremes.piles_up`; ``code`` is the converter step of the record ``y`` is
+    part of (its :func:`record_levels` step, None for continuous values), so that a part of a
+    record is not sorted again for its levels."""
+    y = np.asarray(y, dtype=float)
+    y = y[np.isfinite(y)]
+    return Extremes(None, 0, code, _extreme_counts(y, code)).piles_up(sigma, min_count)
