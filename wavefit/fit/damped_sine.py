@@ -107,33 +107,20 @@ class DampedSineFit:
         """Cycles in the fit window."""
         return self.w_d / (2 * math.pi) * (self.stop - self.start) * self.sample_interval
 
-    def envelope(self, t: np.ndarray) -> np.ndarray:
-        return self.amplitude * np.exp(-self.alpha * (np.asarray(t) - self.t_ref))
+    def on_window(self, count: int | None = None, out: np.ndarray | None = None) -> np.ndarray:
+        """The fitted curve at the window's first ``count`` samples (all of them by default),
+        into ``out`` when given: at the sample numbers the fit used (:func:`grid_model`), which
+        costs a twentieth of :func:`model` on their time stamps."""
+        x = np.array([self.fit["offset"], self.fit["a"], self.fit["b"], self.alpha * self.sample_interval,
+                      self.w_d * self.sample_interval])
+        return grid_model(x, self.stop - self.start if count is None else count, out=out)
 
-    def evaluate(self, t: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
-        """The fitted curve at times ``t`` (SI), into ``out`` when given; a chunk of samples at
-        a time, so that a long record's curve costs no more than the array it fills."""
-        x = np.array([self.fit["offset"], self.fit["a"], self.fit["b"], self.alpha, self.w_d])
-        return model(x, np.asarray(t, dtype=float), shift=self.t_ref, out=out)
 
-
-def model(x: np.ndarray, tau: np.ndarray, shift: float | None = None,
-          out: np.ndarray | None = None) -> np.ndarray:
-    """offset + exp(−alpha·τ)·(a cos w_d τ + b sin w_d τ) for x = (offset, a, b, alpha, w_d),
-    with τ = ``tau`` − ``shift`` when a shift is given, into ``out`` (one-dimensional, of
-    ``tau``'s size) when given; a chunk of samples at a time (a long record's temporaries stay small)."""
-    tau = np.asarray(tau)
-    flat = tau.reshape(-1)
-    result = np.empty(flat.shape) if out is None else out
-    for lo in range(0, flat.size, CHUNK_ELEMENTS):
-        part = flat[lo:lo + CHUNK_ELEMENTS]
-        if shift is not None:
-            part = part - shift
-        e = np.exp(-x[3] * part)
-        result[lo:lo + CHUNK_ELEMENTS] = x[0] + e * (x[1] * np.cos(x[4] * part) + x[2] * np.sin(x[4] * part))
-    if out is not None:
-        return result
-    return result.reshape(tau.shape) if tau.ndim else result[0]
+def model(x: np.ndarray, tau: np.ndarray) -> np.ndarray:
+    """offset + exp(−alpha·τ)·(a cos w_d τ + b sin w_d τ) for x = (offset, a, b, alpha, w_d) at any
+    times τ (the fits themselves evaluate it at sample numbers: :func:`grid_model`)."""
+    tau = np.asarray(tau, dtype=float)
+    return x[0] + np.exp(-x[3] * tau) * (x[1] * np.cos(x[4] * tau) + x[2] * np.sin(x[4] * tau))
 
 
 def phasor(alpha: float, w: float, start: int, count: int) -> np.ndarray:
@@ -156,10 +143,10 @@ def phasor(alpha: float, w: float, start: int, count: int) -> np.ndarray:
     return np.multiply.outer(at_strides, over_stride).reshape(-1)[:count]
 
 
-def grid_model(x: np.ndarray, count: int) -> np.ndarray:
+def grid_model(x: np.ndarray, count: int, out: np.ndarray | None = None) -> np.ndarray:
     """:func:`model` at the sample numbers τ = 0, 1, …, count − 1, by :func:`phasor` (a chunk of
-    samples at a time)."""
-    result = np.empty(count)
+    samples at a time), into ``out`` (one-dimensional, ``count`` long) when given."""
+    result = np.empty(count) if out is None else out
     weights = complex(x[1], -x[2])  # a·cos + b·sin = Re(e^{iwτ}·(a − i·b))
     for lo in range(0, count, CHUNK_ELEMENTS):
         z = phasor(x[3], x[4], lo, min(CHUNK_ELEMENTS, count - lo))

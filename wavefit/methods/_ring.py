@@ -230,8 +230,8 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | Non
     if spp < ALIAS_SAMPLES_PER_PERIOD:
         warnings.append(f"suspected aliasing: the ring is at {100 * 2 / spp:.0f} % of the Nyquist frequency; "
                         "an undersampled ring looks like a slower one, so f0 may be an alias")
-    seg_t, seg_y = t[ring.start:ring.stop], y[ring.start:ring.stop]
-    fitted = ring.evaluate(seg_t)
+    seg_y = y[ring.start:ring.stop]
+    fitted = ring.on_window()
     runs = longest_run_at_extremes(seg_y)
     if (max(runs) >= CLIPPED_RUN and model_exceeds_record(seg_y, fitted, sigma)) or \
             piles_up_at_limit(seg_y, sigma, code):
@@ -249,8 +249,8 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | Non
     if not check.adequate:
         warnings.append(check.warning("damped-sinusoid model", "damping or frequency that changes with "
                                       "amplitude: core loss or saturation?"))
-    span = fast_length(min(seg_t.size, RESIDUAL_SPECTRUM_SAMPLES))
-    oscillation = ring.evaluate(seg_t[:span])
+    span = fast_length(min(seg_y.size, RESIDUAL_SPECTRUM_SAMPLES))
+    oscillation = ring.on_window(span)
     oscillation -= ring.fit["offset"]
     energy = float(oscillation @ oscillation)
     del oscillation

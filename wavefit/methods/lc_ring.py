@@ -85,7 +85,7 @@ class LcRing(Method):
         present = tuple(name for name in ("tank_capacitor", "stray_capacitance", "parallel_load")
                         if name in bound.parts)
         model = np.full_like(meas.data, np.nan)
-        meas.ring.evaluate(meas.time[meas.ring.start:meas.ring.stop], out=model[meas.ring.start:meas.ring.stop])
+        meas.ring.on_window(out=model[meas.ring.start:meas.ring.stop])
         plot = TracePlot(meas.time, (("tank", meas.unit, meas.data, model),))
         return Estimate((block,), replace(meas.info, coil_loss=coil_loss), extra,
                         {"present": present, "coil_loss": coil_loss}, meas.warnings, plot,

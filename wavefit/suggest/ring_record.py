@@ -51,7 +51,7 @@ def ring_in(capture: Capture, channel: Channel) -> RingRecord | None:
     amplitude = ring.amplitude
     if not (amplitude > 0 and ring.alpha > 0 and ring.cycles >= RING_MIN_CYCLES):
         return None
-    residual = y[ring.start:ring.stop] - ring.evaluate(t)
+    residual = y[ring.start:ring.stop] - ring.on_window()
     fraction = float(np.sqrt(np.mean(residual ** 2)) / amplitude)
     decay = math.exp(ring.alpha * (t[-1] - t[0]))
     if fraction > RING_MAX_RESIDUAL or decay < RING_MIN_DECAY:
