@@ -200,18 +200,20 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
         models = {g: white(1.0) for g in groups}
     small = is_small(m, p)
     x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+    r = fun(x)  # the residuals at the current x, evaluated once for every use there
     if noise != "known":
-        models = _scatter_models(fun(x), blocks, groups, p, m)
+        models = _scatter_models(r, blocks, groups, p, m)
         if len(groups) > 1 and not weighed_at_start:
             x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
-            models = _scatter_models(fun(x), blocks, groups, p, m)
+            r = fun(x)
+            models = _scatter_models(r, blocks, groups, p, m)
     if noise == "auto":
-        models = _ar_models(fun(x), blocks, groups, max_ar_order)
+        models = _ar_models(r, blocks, groups, max_ar_order)
         if any(mod.order for mod in models.values()):
             x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
-            models = _ar_models(fun(x), blocks, groups, max_ar_order)
+            r = fun(x)
+            models = _ar_models(r, blocks, groups, max_ar_order)
 
-    r = fun(x)
     e = whiten(r, blocks, models)
     jacobian = as_jacobian(jac(x))
     ar_params = sum(mod.order for mod in models.values())
