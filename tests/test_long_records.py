@@ -147,8 +147,31 @@ def test_levels_found_by_chunks_equal_unique(monkeypatch, values):
     assert (found is None) == (reference.size > limit)
     gap = clipping.smallest_gap(finite) if finite.size else None
     assert gap == (float(np.min(np.diff(reference))) if reference.size >= 2 else None)
-    # the clipping checks take the gap from the levels once gathered, or sort for continuous values
-    assert clipping.extremes(values).smallest_gap == gap
+    # the clipping checks take the gap from the levels once gathered, or sort for continuous
+    # values, and only when a run at an extreme is long enough for a flat trace
+    facts = clipping.extremes(values)
+    assert facts.smallest_gap == (gap if facts.longest_run >= clipping.FLAT_RUN else None)
+    held = np.r_[values, np.full(clipping.FLAT_RUN, np.max(finite))]
+    assert clipping.extremes(held).smallest_gap == clipping.smallest_gap(held[np.isfinite(held)])
+
+
+@pytest.mark.parametrize("values", [
+    np.random.default_rng(9).normal(size=4001),                              # distinct from the start
+    np.r_[np.zeros(10), np.random.default_rng(10).normal(size=4000)],        # a repeat in the first half
+    np.r_[np.random.default_rng(11).normal(size=2100), np.ones(1900)],       # distinct first half only
+    np.round(np.random.default_rng(12).normal(size=4000) * 20),              # a grid of codes
+    np.r_[np.round(np.random.default_rng(13).normal(size=1990) * 1e3), np.random.default_rng(14).normal(size=2010)],
+])
+def test_record_levels_as_defined(values):
+    # the levels are the distinct finite values when they number at most half the samples, and
+    # None (continuous) otherwise, however they were found (the first half alone, or all sorted)
+    reference = np.unique(values[np.isfinite(values)])
+    found = codes.record_levels(values)
+    if reference.size > 0.5 * values.size:
+        assert found.levels is None and found.step is None
+    else:
+        np.testing.assert_array_equal(found.levels, reference)
+        assert found.gap == float(np.min(np.diff(reference)))
 
 
 def test_glitches_found_across_chunk_boundaries(monkeypatch):

@@ -39,21 +39,28 @@ def model_exceeds_record(y: np.ndarray, model: np.ndarray, sigma: float, min_run
     return _longest_run(above) >= min_run or _longest_run(below) >= min_run
 
 
+#: Identical samples at a record's extreme, at least, that make a flat (clipped) trace
+#: (common practice).
+FLAT_RUN = 20
+
+
 @dataclass(frozen=True)
 class Extremes:
     """The facts about a record's extreme values that the clipping checks need, computed
     once per channel (they sort the whole record) and judged against any noise level."""
 
-    smallest_gap: float | None   # between distinct values; None with fewer than two
+    #: between distinct values; None with fewer than two, or when the longest run at an
+    #: extreme is shorter than :data:`FLAT_RUN` (:meth:`flat` is then false whatever it is)
+    smallest_gap: float | None
     longest_run: int             # identical samples at the minimum or the maximum
     code: float | None           # the converter step, when the values sit on a grid
     counts: tuple[tuple[int, int], ...]  # (samples at the extreme, one code inside) for max, min
 
-    def flat(self, sigma: float, min_run: int = 20) -> bool:
-        """A run of ``min_run`` identical samples at the record's extreme although the noise
-        spans more than one converter step: the trace sat at the converter's limit (common
-        practice)."""
-        return self.smallest_gap is not None and sigma > self.smallest_gap and self.longest_run >= min_run
+    def flat(self, sigma: float) -> bool:
+        """A run of :data:`FLAT_RUN` identical samples at the record's extreme although the
+        noise spans more than one converter step: the trace sat at the converter's limit
+        (common practice)."""
+        return self.smallest_gap is not None and sigma > self.smallest_gap and self.longest_run >= FLAT_RUN
 
     def piles_up(self, sigma: float, min_count: int = 5) -> bool:
         """More samples at the record's extreme value than one code inside it: noise cut off
@@ -77,13 +84,16 @@ def extremes(y: np.ndarray, levels: RecordLevels | None = None) -> Extremes:
         y = y[np.isfinite(y)]
     found = record_levels(y) if levels is None else levels
     code = found.step
-    if found.levels is not None:
+    run = max(longest_run_at_extremes(y))
+    if run < FLAT_RUN:
+        gap = None  # not needed: no run long enough for a flat trace
+    elif found.levels is not None:
         gap = float(np.diff(found.levels).min()) if found.levels.size >= 2 else None
     elif found.gap is not None:
         gap = found.gap
-    else:  # continuous values of a long record: their smallest gap from one sorted copy
+    else:  # continuous values: their smallest gap from one sorted copy
         gap = smallest_gap(y)
-    return Extremes(gap, max(longest_run_at_extremes(y)), code, _extreme_counts(y, code))
+    return Extremes(gap, run, code, _extreme_counts(y, code))
 
 
 def _extreme_counts(y: np.ndarray, code: float | None) -> tuple[tuple[int, int], ...]:

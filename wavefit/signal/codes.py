@@ -65,13 +65,21 @@ def record_levels(y: np.ndarray) -> RecordLevels:
     """The distinct levels of a record, gathered once, and the converter (or printing) step
     they show: the code-grid fit and the clipping checks both need the two. The levels are
     not gathered past :data:`GRID_LEVELS_PER_SAMPLE` per finite sample (values that repeat
-    that little sit on no grid). A record of at most :data:`CHUNK_VALUES` samples is sorted
+    that little sit on no grid). A record of at most :data:`CHUNK_VALUES` samples whose first
+    half holds no value twice is continuous at once (a sort of that half); any other is sorted
     once, which also gives the least gap between its values."""
     y = np.asarray(y, dtype=float)
     finite = int(np.count_nonzero(np.isfinite(y)))
     limit = GRID_LEVELS_PER_SAMPLE * finite
     if y.size <= CHUNK_VALUES:
-        ordered = np.sort(y[np.isfinite(y)])
+        values = y[np.isfinite(y)]
+        # the first floor(limit) + 1 values, all distinct, are more levels than a grid has
+        # (continuous values, the usual case): the rest of the record need not be sorted
+        head = np.sort(values[:int(limit) + 1])
+        if head.size > limit and (head.size < 2 or np.all(head[1:] != head[:-1])):
+            return RecordLevels(None, None)
+        # a merge of the two sorted runs (timsort finds them): the record sorted once in all
+        ordered = np.sort(np.concatenate((head, np.sort(values[head.size:]))), kind="stable")
         levels = ordered[np.concatenate(([True], ordered[1:] != ordered[:-1]))] if ordered.size else ordered
         gap = float(np.diff(levels).min()) if levels.size >= 2 else None
         if levels.size > limit:
