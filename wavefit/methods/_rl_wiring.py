@@ -17,7 +17,7 @@ import numpy as np
 
 from ..errors import AnalysisRefused
 from ..signal.edges import Edge, find_edges, noise_rms
-from ..signal.levels import state_levels
+from ..signal.levels import StateLevels, state_levels
 
 #: A channel "jumps" at an edge when it covers more than this fraction of its step within
 #: JUMP_SAMPLES samples: an exponential with a time constant of 10 samples or more (the
@@ -36,7 +36,7 @@ DRIVE_JUMP_SNR = 5.0
 
 
 def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edges: list[Edge],
-                 source: str) -> None:
+                 source: str, sense_levels: StateLevels | None = None) -> None:
     """Refuse a capture whose drive and sense channels cannot be the rl-step circuit's.
 
     Parameters
@@ -47,6 +47,8 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
         The sense channel's transitions (:func:`wavefit.signal.edges.find_edges`).
     source
         The capture's name, for the message.
+    sense_levels
+        The sense channel's state levels, when the caller found them already.
 
     Raises
     ------
@@ -56,15 +58,16 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
     """
     if drive is None or not edges:
         return
-    drive_edges = find_edges(t, drive)
+    drive_levels = state_levels(drive)
+    drive_edges = find_edges(t, drive, drive_levels)
     dt = float(t[1] - t[0])
     if not drive_edges and not _jumps_at_edges(t, drive, edges, dt):
         raise AnalysisRefused(
             f"{source}: the drive channel does not step (no transition above its noise) while the sense "
             "channel does: is the drive probe connected, and is [columns] drive the generator-side node?")
     # a drive with no edges of its own got here by jumping at the sense edges
-    drive_jumps = not drive_edges or _jumps(t, drive, drive_edges, state_levels(drive).amplitude, dt)
-    if _jumps(t, sense, edges, state_levels(sense).amplitude, dt) and not drive_jumps:
+    drive_jumps = not drive_edges or _jumps(t, drive, drive_edges, drive_levels.amplitude, dt)
+    if _jumps(t, sense, edges, (sense_levels or state_levels(sense)).amplitude, dt) and not drive_jumps:
         raise AnalysisRefused(
             f"{source}: the sense channel jumps at its edges while the drive channel follows slowly: drive "
             "and sense look swapped in [columns] (the sense resistor's voltage cannot jump in an rl-step "

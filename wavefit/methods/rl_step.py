@@ -38,6 +38,7 @@ from ..results import TracePlot
 from ..setup import Setup
 from ..signal.clipping import extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant
+from ..signal.levels import state_levels
 from . import register
 from ._model_check import ModelCheck, Variation, added
 from ._rl_estimators import estimate_tau
@@ -138,12 +139,13 @@ class RLStep(Method):
         warnings: list[str] = []  # the capture's own warnings are added by the front door
         notes: list[str] = []
 
-        edges = find_edges(t, sense)
+        sense_levels = state_levels(sense)
+        edges = find_edges(t, sense, sense_levels)
         if not edges:
             raise AnalysisRefused(f"{capture.source}: no transition found in the sense channel (its two "
                                   "state levels are not separated from the noise); check the trigger and the "
                                   "column mapping")
-        check_wiring(t, sense, drive, edges, capture.source)
+        check_wiring(t, sense, drive, edges, capture.source, sense_levels)
         windows, edge_times = self._windows(t, sense, drive, edges, setup, dt)
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]
