@@ -348,8 +348,10 @@ def refine(y: np.ndarray, alpha: float, w: float) -> np.ndarray:
     previous one.
     """
     n = y.size
-    x = _linear_start(y, alpha, w)
     length = int(min(n, max(24, 3 * 2 * math.pi / max(w, 1e-9))))
+    # the amplitudes are solved on each shorter window below; on the whole record only when
+    # the first window is the whole record
+    x = _linear_start(y, alpha, w) if length >= n else np.array([0.0, 0.0, 0.0, alpha, w])
     while True:
         seg = y[:length]
         if length < n:
