@@ -141,3 +141,19 @@ def test_ring_clipped_by_the_converter_warns(top, clipped):
     scope = ScopeModel(noise_rms=0.02 * peak, bits=8, full_scale=(-1.2 * peak, top * peak))
     result = wavefit.analyze(pd.DataFrame({"t": t, "v": scope.apply(v, np.random.default_rng(3))}), setup=SETUP)
     assert any("clipped at the converter's limit" in w for w in result.warnings) == clipped
+
+
+def test_window_on_a_grid_of_a_continuous_record_is_not_called_clipped():
+    # a strong early ring on a 16-bit grid makes the record look continuous (more distinct
+    # values than half its samples); a window set late in it holds a few codes only, whose
+    # extremes repeat: judged by the window's own code step they are not clipped
+    q, n, lo, hi = 1e-4, 2000, 1300, 2000
+    k = np.arange(n)
+    decay = math.log(1e7 / 2.5) / lo
+    rng = np.random.default_rng(0)
+    clean = 1e7 * q * np.exp(-decay * k) * np.cos(2 * math.pi / 30 * k)
+    y = np.round((clean + 0.3 * q * rng.standard_normal(n)) / q) * q
+    t = k * 1e-7
+    setup = dict(SETUP, options={"fit_start": float(t[lo]), "fit_end": float(t[hi - 1])})
+    result = wavefit.analyze(pd.DataFrame({"t": t, "v": y}), setup=setup)
+    assert not any("clipped" in w for w in result.warnings)

@@ -68,19 +68,22 @@ class _Reducer:
         for a in range(0, self.count, block):
             k = self.factor.shape[0]
             m = k + min(block, self.count - a)
-            stacked[:k] = self.factor
+            # (a first or last block shorter than the buffer gets one of its own size: a slice
+            # of the buffer is not contiguous, and LAPACK's wrapper would copy it)
+            target = stacked if m == stacked.shape[0] else np.empty((m, self.width), order="F")
+            target[:k] = self.factor
             row = k
             while row < m:
                 take = min(m - row, groups[0].shape[0] - used)
                 column = 0
                 for g in groups:
-                    stacked[row:row + take, column:column + g.shape[1]] = g[used:used + take]
+                    target[row:row + take, column:column + g.shape[1]] = g[used:used + take]
                     column += g.shape[1]
                 row += take
                 used += take
                 if used == groups[0].shape[0] and row < m:
                     groups, used = next(entries), 0
-            reduced, *_ = lapack.dgeqrf(stacked[:m], overwrite_a=True)
+            reduced, *_ = lapack.dgeqrf(target, overwrite_a=True)
             self.factor = np.triu(reduced[:min(self.width, m)])
         self.pending, self.count = [], 0
 

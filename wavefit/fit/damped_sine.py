@@ -118,9 +118,16 @@ class DampedSineFit:
 
 def model(x: np.ndarray, tau: np.ndarray) -> np.ndarray:
     """offset + exp(−alpha·τ)·(a cos w_d τ + b sin w_d τ) for x = (offset, a, b, alpha, w_d) at any
-    times τ (the fits themselves evaluate it at sample numbers: :func:`grid_model`)."""
+    times τ (the fits themselves evaluate it at sample numbers: :func:`grid_model`); a chunk of
+    samples at a time, so that a long record's temporaries stay small."""
     tau = np.asarray(tau, dtype=float)
-    return x[0] + np.exp(-x[3] * tau) * (x[1] * np.cos(x[4] * tau) + x[2] * np.sin(x[4] * tau))
+    flat = tau.reshape(-1)
+    result = np.empty(flat.shape)
+    for lo in range(0, flat.size, CHUNK_ELEMENTS):
+        part = flat[lo:lo + CHUNK_ELEMENTS]
+        result[lo:lo + CHUNK_ELEMENTS] = x[0] + np.exp(-x[3] * part) * (x[1] * np.cos(x[4] * part)
+                                                                         + x[2] * np.sin(x[4] * part))
+    return result.reshape(tau.shape) if tau.ndim else result[0]
 
 
 def phasor(alpha: float, w: float, start: int, count: int) -> np.ndarray:
@@ -138,9 +145,12 @@ def phasor(alpha: float, w: float, start: int, count: int) -> np.ndarray:
     stride = math.isqrt(count - 1) + 1
     rows = -(-count // stride)
     s = complex(-alpha, w)
-    over_stride = np.exp(s * np.arange(stride, dtype=float))
-    at_strides = np.exp(s * (start + stride * np.arange(rows, dtype=float)))
-    return np.multiply.outer(at_strides, over_stride).reshape(-1)[:count]
+    # a solver's far-off trial step (a ring growing e-fold many times over the window)
+    # overflows to non-finite values, which the solvers reject, as they did the direct form's
+    with np.errstate(over="ignore", invalid="ignore"):
+        over_stride = np.exp(s * np.arange(stride, dtype=float))
+        at_strides = np.exp(s * (start + stride * np.arange(rows, dtype=float)))
+        return np.multiply.outer(at_strides, over_stride).reshape(-1)[:count]
 
 
 def grid_model(x: np.ndarray, count: int, out: np.ndarray | None = None) -> np.ndarray:
@@ -150,8 +160,9 @@ def grid_model(x: np.ndarray, count: int, out: np.ndarray | None = None) -> np.n
     weights = complex(x[1], -x[2])  # a·cos + b·sin = Re(e^{iwτ}·(a − i·b))
     for lo in range(0, count, CHUNK_ELEMENTS):
         z = phasor(x[3], x[4], lo, min(CHUNK_ELEMENTS, count - lo))
-        z *= weights
-        np.add(z.real, x[0], out=result[lo:lo + z.size])
+        with np.errstate(over="ignore", invalid="ignore"):  # a far-off trial step (phasor)
+            z *= weights
+            np.add(z.real, x[0], out=result[lo:lo + z.size])
     return result
 
 
@@ -164,11 +175,12 @@ def grid_jacobian(x: np.ndarray, start: int, stop: int) -> np.ndarray:
     j[:, 0] = 1.0
     j[:, 1] = z.real
     j[:, 2] = z.imag
-    z *= complex(x[1], -x[2])
-    # ∂/∂alpha = −τ·(a·ec + b·es) = −τ·Re(z·(a − ib)); ∂/∂w_d = τ·(b·ec − a·es) = −τ·Im(z·(a − ib))
-    np.multiply(tau, z.real, out=j[:, 3])
-    np.multiply(tau, z.imag, out=j[:, 4])
-    j[:, 3:] *= -1.0
+    with np.errstate(over="ignore", invalid="ignore"):  # a far-off trial step (phasor)
+        z *= complex(x[1], -x[2])
+        # ∂/∂alpha = −τ·(a·ec + b·es) = −τ·Re(z·(a − ib)); ∂/∂w_d = τ·(b·ec − a·es) = −τ·Im(z·(a − ib))
+        np.multiply(tau, z.real, out=j[:, 3])
+        np.multiply(tau, z.imag, out=j[:, 4])
+        j[:, 3:] *= -1.0
     return j
 
 

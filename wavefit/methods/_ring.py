@@ -21,6 +21,7 @@ from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring
 from ..io.capture import Capture
 from ..setup import Setup
 from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
+from ..signal.codes import record_levels
 from ._model_check import MODEL_Z, ModelCheck, Variation
 from .base import Method
 from ..fit_summary import FitSummary, merged_entries, optional_entry
@@ -233,8 +234,11 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | Non
     seg_y = y[ring.start:ring.stop]
     fitted = ring.on_window()
     runs = longest_run_at_extremes(seg_y)
+    # the record's converter step; the window's own where the record as a whole looked
+    # continuous (a strong early ring on a fine grid) but the window may sit on a grid
+    window_code = code if code is not None else record_levels(seg_y).step
     if (max(runs) >= CLIPPED_RUN and model_exceeds_record(seg_y, fitted, sigma)) or \
-            piles_up_at_limit(seg_y, sigma, code):
+            piles_up_at_limit(seg_y, sigma, window_code):
         warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
                         "whole ring fits on screen")
     del fitted  # a long record's copy: evaluated again after the partial fits below
@@ -325,9 +329,11 @@ def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSin
 #: The residuals' spectrum is taken over at most this many samples from the ring's start (2 M),
 #: which resolve any line that matters, cut to the longest length whose prime factors are 2, 3
 #: and 5 (:func:`fast_length`): a transform of a length with a large prime factor takes ten to
-#: thirty times longer (Bluestein's algorithm: 234 ms against 9 ms at 10⁶ samples), and the
-#: samples left off (at most 4 % of a window of 10⁴ samples or more, 10 % of a short one) are
-#: the end of the window, where the ring has decayed to the noise.
+#: thirty times longer (Bluestein's algorithm: 234 ms against 9 ms at 10⁶ samples). The
+#: samples left off are the end of the window (at most 4 % of a window of 10⁴ samples or more,
+#: 10 % of one of 64 to 10⁴; shorter ones are not searched), where an automatic window's ring
+#: has decayed to the noise. (Newer SciPy gives this length as ``scipy.fft.prev_fast_len(n,
+#: real=True)``; the oldest SciPy the project supports does not.)
 RESIDUAL_SPECTRUM_SAMPLES = 1 << 21
 
 
