@@ -295,3 +295,17 @@ def test_a_folder_named_tilde_is_not_the_home_folder(tmp_path: Path, monkeypatch
     _write(tmp_path / "~", ["Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())])
     monkeypatch.chdir(tmp_path)
     assert read_capture("~/capture.csv").rows == N
+
+
+def test_rows_without_values_before_and_after_the_data_are_left_out(tmp_path: Path) -> None:
+    # rows of empty cells at the ends of the table are dropped with a warning naming them;
+    # an empty row inside the data is not (its cells are filled in and named by that warning)
+    time = np.arange(N) * 1e-6
+    body = _rows(time, _signal())
+    body[N // 2] = ","
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", ",", ",", *body, ","]))
+    assert capture.rows == N
+    assert capture.time[0] == 0.0
+    dropped = [w for w in capture.warnings if "without any value" in w]
+    assert len(dropped) == 1 and dropped[0].startswith("3 rows") and "line 2" in dropped[0]
+    assert any("filled by linear interpolation" in w for w in capture.warnings)
