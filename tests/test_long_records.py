@@ -161,17 +161,23 @@ def test_levels_found_by_chunks_equal_unique(monkeypatch, values):
     np.r_[np.random.default_rng(11).normal(size=2100), np.ones(1900)],       # distinct first half only
     np.round(np.random.default_rng(12).normal(size=4000) * 20),              # a grid of codes
     np.r_[np.round(np.random.default_rng(13).normal(size=1990) * 1e3), np.random.default_rng(14).normal(size=2010)],
+    np.tile(np.random.default_rng(15).normal(size=2000), 2),                # exactly half distinct: the bound
 ])
-def test_record_levels_as_defined(values):
+@pytest.mark.parametrize("chunk", [None, 64])
+def test_record_levels_as_defined(monkeypatch, values, chunk):
     # the levels are the distinct finite values when they number at most half the samples, and
-    # None (continuous) otherwise, however they were found (the first half alone, or all sorted)
+    # None (continuous) otherwise, however they were found (the first half alone, all sorted,
+    # or gathered by chunks: a record longer than CHUNK_VALUES)
+    if chunk is not None:
+        monkeypatch.setattr(codes, "CHUNK_VALUES", chunk)
     reference = np.unique(values[np.isfinite(values)])
     found = codes.record_levels(values)
     if reference.size > 0.5 * values.size:
         assert found.levels is None and found.step is None
     else:
         np.testing.assert_array_equal(found.levels, reference)
-        assert found.gap == float(np.min(np.diff(reference)))
+        # (the least gap comes with one sorted copy; levels gathered by chunks leave it to the caller)
+        assert found.gap == (float(np.min(np.diff(reference))) if chunk is None else None)
 
 
 def test_glitches_found_across_chunk_boundaries(monkeypatch):

@@ -52,7 +52,10 @@ def noise_rms(y: np.ndarray, lag: int = 1) -> float:
     d = y[lag:] - y[:-lag]
     if d.size == 0:
         return 0.0
-    return float(1.4826 * np.median(np.abs(d - np.median(d))) / math.sqrt(2.0))
+    # the differences are this function's own: their medians reorder them in place, and the
+    # deviations overwrite them (a long record's differences are not copied again)
+    d -= np.median(d, overwrite_input=True)
+    return float(1.4826 * np.median(np.abs(d, out=d), overwrite_input=True) / math.sqrt(2.0))
 
 
 def state_noise_rms(y: np.ndarray, levels: StateLevels) -> float:
@@ -64,7 +67,8 @@ def state_noise_rms(y: np.ndarray, levels: StateLevels) -> float:
     near = dev[np.abs(dev) < 0.25 * abs(levels.amplitude)] if levels.amplitude else dev
     if near.size < 8:
         return 0.0
-    return float(1.4826 * np.median(np.abs(near - np.median(near))))
+    near -= np.median(near, overwrite_input=True)  # (``near`` is this function's own: see noise_rms)
+    return float(1.4826 * np.median(np.abs(near, out=near), overwrite_input=True))
 
 
 def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
