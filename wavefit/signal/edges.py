@@ -15,6 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .levels import StateLevels, crossings, state_levels
+from .robust import mad_sigma
 
 LN9 = math.log(9.0)
 
@@ -52,10 +53,7 @@ def noise_rms(y: np.ndarray, lag: int = 1) -> float:
     d = y[lag:] - y[:-lag]
     if d.size == 0:
         return 0.0
-    # the differences are this function's own: their medians reorder them in place, and the
-    # deviations overwrite them (a long record's differences are not copied again)
-    d -= np.median(d, overwrite_input=True)
-    return float(1.4826 * np.median(np.abs(d, out=d), overwrite_input=True) / math.sqrt(2.0))
+    return mad_sigma(d) / math.sqrt(2.0)
 
 
 def state_noise_rms(y: np.ndarray, levels: StateLevels) -> float:
@@ -67,8 +65,7 @@ def state_noise_rms(y: np.ndarray, levels: StateLevels) -> float:
     near = dev[np.abs(dev) < 0.25 * abs(levels.amplitude)] if levels.amplitude else dev
     if near.size < 8:
         return 0.0
-    near -= np.median(near, overwrite_input=True)  # (``near`` is this function's own: see noise_rms)
-    return float(1.4826 * np.median(np.abs(near, out=near), overwrite_input=True))
+    return mad_sigma(near)
 
 
 def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,

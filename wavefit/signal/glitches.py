@@ -40,6 +40,7 @@ import numpy as np
 
 from ..io.capture import Capture
 from .codes import CHUNK_VALUES
+from .robust import mad_sigma
 
 #: A glitch departs from its neighbours' line by more than this many times the curvature
 #: of the waveform around it: 12 times what a sampled sinusoid's peak shows (1/6) and 4 times
@@ -64,7 +65,6 @@ SPIKE_SHARE = 0.5
 SPAN_PERCENTILE = 0.5
 #: A candidate within this many samples of another channel's jump is not a glitch.
 COINCIDENCE = 2
-_MAD_TO_SIGMA = 1.4826
 # The second difference of white noise has the variance 6σ².
 _SECOND_DIFFERENCE_VARIANCE = 6.0
 
@@ -155,17 +155,14 @@ def record_noise(y: np.ndarray, code: float | None) -> float:
     (robust to the waveform's edges and to glitches), and at least one step of its values:
     the converter's, or the smallest change between neighbours when no code grid was found
     (a quiet quantised trace flickers by that much)."""
-    second = y[2:] - 2.0 * y[1:-1] + y[:-2]
-    second -= np.median(second, overwrite_input=True)  # (medians in place: no copy of the record)
-    mad = float(np.median(np.abs(second, out=second), overwrite_input=True))
-    del second
+    scale = mad_sigma(y[2:] - 2.0 * y[1:-1] + y[:-2])
     smallest = 0.0
     for a, b in _spans(0, y.size - 1):
         changes = np.abs(np.diff(y[a:b + 1]))
         changes = changes[changes > 0]
         if changes.size:
             smallest = float(changes.min()) if smallest == 0.0 else min(smallest, float(changes.min()))
-    return max(_MAD_TO_SIGMA * mad / np.sqrt(_SECOND_DIFFERENCE_VARIANCE), code or 0.0, smallest)
+    return max(scale / np.sqrt(_SECOND_DIFFERENCE_VARIANCE), code or 0.0, smallest)
 
 
 def repair_glitches(capture: Capture, codes: Sequence[float | None]) -> tuple[Capture, dict[str, np.ndarray]]:
