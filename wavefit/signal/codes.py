@@ -73,23 +73,20 @@ def record_levels(y: np.ndarray) -> RecordLevels:
     finite = int(np.count_nonzero(np.isfinite(y)))
     limit = GRID_LEVELS_PER_SAMPLE * finite
     head_size = int(HEAD_SHARE * limit) + 1
-    if y.size <= CHUNK_VALUES:
-        values = y[np.isfinite(y)]
-        head = np.sort(values[:head_size])
-        if _more_levels(head, limit):
-            return RecordLevels(None, None)
-        # a merge of the two sorted runs (timsort finds them): the record sorted once in all
-        ordered = np.sort(np.concatenate((head, np.sort(values[head.size:]))), kind="stable")
-        levels = ordered[np.concatenate(([True], ordered[1:] != ordered[:-1]))] if ordered.size else ordered
-        gap = float(np.diff(levels).min()) if levels.size >= 2 else None
-        if levels.size > limit:
-            return RecordLevels(None, None, gap)
-        return RecordLevels(levels, _grid_step(levels), gap)
-    head = y[:head_size]
-    if _more_levels(np.sort(head[np.isfinite(head)]), limit):
+    head, rest = y[:head_size], y[head_size:]
+    head = np.sort(head[np.isfinite(head)])
+    if _more_levels(head, limit):
         return RecordLevels(None, None)
-    levels = distinct_levels(y, limit)
-    return RecordLevels(levels, _grid_step(levels))
+    if y.size > CHUNK_VALUES:
+        levels = distinct_levels(y, limit)
+        return RecordLevels(levels, _grid_step(levels))
+    # a merge of the two sorted runs (timsort finds them): the record sorted once in all
+    ordered = np.sort(np.concatenate((head, np.sort(rest[np.isfinite(rest)]))), kind="stable")
+    levels = ordered[np.concatenate(([True], ordered[1:] != ordered[:-1]))] if ordered.size else ordered
+    gap = float(np.diff(levels).min()) if levels.size >= 2 else None
+    if levels.size > limit:
+        return RecordLevels(None, None, gap)
+    return RecordLevels(levels, _grid_step(levels), gap)
 
 
 #: The head of a record that :func:`record_levels` sorts first holds this many times the
