@@ -63,18 +63,23 @@ class Extremes:
         return self.smallest_gap is not None and sigma > self.smallest_gap and self.longest_run >= FLAT_RUN
 
     def piles_up(self, sigma: float, min_count: int = 5) -> bool:
-        """More samples at the record's extreme value than one code inside it: noise cut off
-        at the converter's range (a smooth noise distribution thins out towards its tails,
-        common practice). Only judged when the noise spans more than one code, since a quiet
-        plateau on one code piles up by itself."""
-        for at, near in self.counts:
-            if at < min_count:
-                continue
-            if self.code is None:
-                return sigma > 0  # continuous values repeat an extreme only when it was clipped
-            if sigma > self.code and at > 1.5 * near + 3:
-                return True
-        return False
+        """See :func:`_piles_up`."""
+        return _piles_up(self.counts, self.code, sigma, min_count)
+
+
+def _piles_up(counts: tuple[tuple[int, int], ...], code: float | None, sigma: float, min_count: int) -> bool:
+    """More samples at the record's extreme value than one code inside it (``counts``, from
+    :func:`_extreme_counts`): noise cut off at the converter's range (a smooth noise
+    distribution thins out towards its tails, common practice). Only judged when the noise
+    spans more than one code, since a quiet plateau on one code piles up by itself."""
+    for at, near in counts:
+        if at < min_count:
+            continue
+        if code is None:
+            return sigma > 0  # continuous values repeat an extreme only when it was clipped
+        if sigma > code and at > 1.5 * near + 3:
+            return True
+    return False
 
 
 def extremes(y: np.ndarray, levels: RecordLevels | None = None) -> Extremes:
@@ -127,9 +132,10 @@ def _count_within(y: np.ndarray, value: float, tolerance: float) -> int:
 
 
 def piles_up_at_limit(y: np.ndarray, sigma: float, code: float | None, min_count: int = 5) -> bool:
-    """See :meth:`Extremes.piles_up`; ``code`` is the converter step of the record ``y`` is
-    part of (its :func:`record_levels` step, None for continuous values), so that a part of a
-    record is not sorted again for its levels."""
+    """See :func:`_piles_up`; ``code`` is the converter step of the record ``y`` is part of
+    (its :func:`record_levels` step, None for continuous values), so that a part of a record
+    is not sorted again for its levels."""
     y = np.asarray(y, dtype=float)
-    y = y[np.isfinite(y)]
-    return Extremes(None, 0, code, _extreme_counts(y, code)).piles_up(sigma, min_count)
+    if not np.all(np.isfinite(y)):
+        y = y[np.isfinite(y)]
+    return _piles_up(_extreme_counts(y, code), code, sigma, min_count)
