@@ -61,11 +61,21 @@ def state_noise_rms(y: np.ndarray, levels: StateLevels) -> float:
     to it (common practice). Unlike first differences it holds for band-limited noise,
     whose neighbouring samples move together."""
     y = np.asarray(y, dtype=float)
-    dev = np.where(np.abs(y - levels.low) < np.abs(y - levels.high), y - levels.low, y - levels.high)
-    near = dev[np.abs(dev) < 0.25 * abs(levels.amplitude)] if levels.amplitude else dev
+    reach = 0.25 * abs(levels.amplitude)
+    if reach:
+        # within a quarter of the amplitude of one level a sample is three quarters from the
+        # other, so its distance to the nearer level is the one to this level
+        near = np.concatenate([_within(y - level, reach) for level in (levels.low, levels.high)])
+    else:
+        near = np.where(np.abs(y - levels.low) < np.abs(y - levels.high), y - levels.low, y - levels.high)
     if near.size < 8:
         return 0.0
     return mad_sigma(near)
+
+
+def _within(deviations: np.ndarray, reach: float) -> np.ndarray:
+    """The ``deviations`` smaller in size than ``reach`` (the array is the caller's to give up)."""
+    return deviations[np.abs(deviations) < reach]
 
 
 def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
