@@ -72,3 +72,31 @@ def test_start_from_a_strided_grid_is_the_start_from_every_sample(monkeypatch, t
     full = exponential.projected_tau(chans, 1.4 * tau)
     assert strided == pytest.approx(full, rel=1e-5)
     assert strided == pytest.approx(tau, rel=0.05)
+
+
+@pytest.mark.parametrize("span", [0.01, 0.1, 1.0, 12.0, 60.0])
+def test_curve_information_is_taus_entry_of_the_linearised_information(span):
+    """1/var(tau) of final + amplitude·exp(−u/tau) is the squared last diagonal entry of the
+    triangular factor of its Jacobian [1, e, amplitude·u·e/tau²] (Householder QR, backward
+    stable: G. H. Golub and C. F. Van Loan, *Matrix Computations*, 4th ed., §5.3), on short
+    windows, where the columns nearly coincide, as on long ones."""
+    from wavefit.fit.exponential import curve_information
+
+    tau, amplitude = 2e-6, -0.7
+    u = np.linspace(0.0, span * tau, 20001)
+    e = np.exp(-u / tau)
+    jac = np.column_stack((np.ones_like(u), e, amplitude * u * e / tau ** 2))
+    expected = np.linalg.qr(jac, mode="r")[2, 2] ** 2
+    assert curve_information(u, amplitude, tau) == pytest.approx(expected, rel=1e-8)
+
+
+def test_linear_part_is_the_least_squares_level_and_amplitude():
+    """(final, coefficient) for a fixed basis against numpy's least-squares solution."""
+    from wavefit.fit.exponential import linear_part
+
+    rng = np.random.default_rng(5)
+    e = np.exp(-np.linspace(0.0, 7.0, 5000))
+    y = 1.5 - 0.8 * e + 0.01 * rng.standard_normal(e.size)
+    expected, *_ = np.linalg.lstsq(np.column_stack((np.ones_like(e), e)), y, rcond=None)
+    assert linear_part(e, y) == pytest.approx(tuple(expected), rel=1e-12)
+    assert linear_part(np.ones(10), np.arange(10.0)) == (4.5, 0.0)  # a basis that does not vary

@@ -49,12 +49,15 @@ def exponential_step(t: np.ndarray, final: float, coef: float, tau: float, t_ref
     return final + coef * np.exp(-(np.asarray(t, dtype=float) - t_ref) / tau)
 
 
-def linear_part(e: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, float]:
-    """Least-squares (final, coefficient) for fixed basis e, and the residual sum of squares."""
-    a = np.column_stack((np.ones_like(e), e))
-    coef, *_ = np.linalg.lstsq(a, y, rcond=None)
-    r = y - a @ coef
-    return coef, float(r @ r)
+def linear_part(e: np.ndarray, y: np.ndarray) -> tuple[float, float]:
+    """Least-squares (final, coefficient) of y = final + coefficient·e for a fixed basis ``e``:
+    the simple regression of y on e, from the centred samples (no factorisation); the
+    coefficient is 0 when ``e`` does not vary."""
+    e_mean, y_mean = float(np.mean(e)), float(np.mean(y))
+    centred = e - e_mean
+    spread = float(centred @ centred)
+    coef = float(centred @ (y - y_mean)) / spread if spread > 0 else 0.0
+    return y_mean - coef * e_mean, coef
 
 
 def projected_tau(channels: Sequence[WindowChannel], tau0: float, scales: Sequence[float] | None = None,
@@ -145,9 +148,16 @@ def curve_information(u: np.ndarray, amplitude: float, tau: float) -> float:
     """1/var(tau), up to the noise variance, of final + amplitude·exp(−u/tau) sampled at the
     elapsed times ``u``, with its final level and amplitude free (the linearised information:
     G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley 1989, §2.1)."""
+    # the part of tau's column (amplitude·u·e/tau²) that the level and the amplitude's columns
+    # (1 and e) do not explain: its residual sum of squares in simple regression on e, each
+    # centred (the Schur complement 1/(JᵀJ)⁻¹ of tau's entry)
     e = np.exp(-u / tau)
-    jac = np.column_stack((np.ones_like(u), e, amplitude * e * u / tau ** 2))
-    return 1.0 / float(np.linalg.inv(jac.T @ jac)[2, 2])
+    slope = e * u
+    e -= e.mean()
+    slope -= slope.mean()
+    spread = float(e @ e)
+    unexplained = float(slope @ slope) - (float(e @ slope) ** 2 / spread if spread > 0 else 0.0)
+    return (amplitude / tau ** 2) ** 2 * unexplained
 
 
 def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, noise: str = "auto",
@@ -183,8 +193,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     scaled = [(np.asarray(ch.time, dtype=float) - t_refs[ch.group]) / tau_start for ch in channels]
     x0 = [1.0]
     for ch, u in zip(channels, scaled):
-        coef, _ = linear_part(np.exp(-u), ch.values)
-        x0 += [float(coef[0]), float(coef[1])]
+        x0 += list(linear_part(np.exp(-u), ch.values))
     sizes = [ch.values.size for ch in channels]
     offsets = np.concatenate(([0], np.cumsum(sizes)))
     y = np.concatenate([ch.values for ch in channels])

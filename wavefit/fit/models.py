@@ -75,7 +75,7 @@ class ExponentialStep(_WaveformModel):
         reached = np.flatnonzero(np.abs(y - y[0]) >= ONE_TAU * abs(change)) if change else np.zeros(0, int)
         tau0 = float(t[reached[0]] - t[0]) if reached.size and reached[0] > 0 else float(t[-1] - t[0]) / 5.0
         tau = projected_tau([WindowChannel("y", t, y)], tau0)
-        (final, coef), _ = linear_part(np.exp(-(t - t[0]) / tau), y)
+        final, coef = linear_part(np.exp(-(t - t[0]) / tau), y)
         params = self.make_params(final=float(final), coef=float(coef), tau=tau, t_ref=float(t[0]))
         return update_param_vals(params, self.prefix, **kws)
 
