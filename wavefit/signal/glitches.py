@@ -100,8 +100,11 @@ def find_glitches(y: np.ndarray, code: float | None = None, sigma: float | None 
     for a, b in _spans(2, y.size - 2):  # centres a..b, each with two neighbours either side
         seg = y[a - 2:b + 2]
         departure = np.abs(seg[2:-2] - 0.5 * (seg[1:-3] + seg[3:-1]))
-        curvature = np.abs(seg[3:-1] - seg[1:-3]) + np.abs(seg[4:] - seg[3:-1]) + np.abs(seg[1:-3] - seg[:-4])
-        found.append(np.flatnonzero(departure > GLITCH_SHAPE * curvature + GLITCH_NOISE * sigma) + a)
+        # the curvature only where the departure exceeds the noise term alone (few samples): the
+        # test adds a curvature of zero or more to that term
+        k = np.flatnonzero(departure > GLITCH_NOISE * sigma) + 2
+        curvature = np.abs(seg[k + 1] - seg[k - 1]) + np.abs(seg[k + 2] - seg[k + 1]) + np.abs(seg[k - 1] - seg[k - 2])
+        found.append(k[departure[k - 2] > GLITCH_SHAPE * curvature + GLITCH_NOISE * sigma] + (a - 2))
     found = np.concatenate(found) if found else np.empty(0, dtype=np.intp)
     if found.size == 0:
         return found  # (the spike test's percentiles would sort a copy of the record for nothing)
