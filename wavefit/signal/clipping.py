@@ -22,11 +22,13 @@ def longest_run_at_extremes(y: np.ndarray) -> tuple[int, int]:
 
 
 def _longest_run(mask: np.ndarray) -> int:
-    if not mask.any():
+    """The most consecutive true values of ``mask``, from the positions of the true ones (a
+    run ends where the next position is not the one after)."""
+    at = np.flatnonzero(mask)
+    if at.size == 0:
         return 0
-    padded = np.concatenate(([0], mask.astype(np.int8), [0]))
-    d = np.diff(padded)
-    return int(np.max(np.flatnonzero(d == -1) - np.flatnonzero(d == 1)))
+    ends = np.flatnonzero(np.diff(at) != 1)  # the last position of every run but the last
+    return int(np.max(np.diff(np.concatenate(([-1], ends, [at.size - 1])))))
 
 
 def model_exceeds_record(y: np.ndarray, model: np.ndarray, sigma: float, min_run: int = 5) -> bool:
