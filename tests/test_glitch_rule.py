@@ -32,3 +32,22 @@ def test_candidates_are_the_rules_across_chunks() -> None:
     expected = _by_definition(y, sigma)
     assert 100 < expected.size < where.size  # both sides of the threshold are represented
     assert np.array_equal(find_glitches(y, None, sigma), expected)
+
+
+def test_jumps_are_the_rules_across_chunks() -> None:
+    # a step from one sample to the next is a jump when it exceeds GLITCH_SHAPE times the steps
+    # either side plus GLITCH_NOISE sigma; the mask marks it and the COINCIDENCE samples after it
+    from wavefit.signal.glitches import COINCIDENCE, _after_jumps
+
+    rng = np.random.default_rng(12)
+    n = CHUNK_VALUES + 200_000
+    sigma = 0.01
+    y = np.cumsum(rng.choice([0.0, 1.0], n, p=[0.9995, 0.0005]) * rng.uniform(0.11, 0.15, n))
+    y += rng.normal(0.0, 0.05 * sigma, n)
+    step = np.abs(np.diff(y))
+    leaps = np.flatnonzero(step[1:-1] > GLITCH_SHAPE * (step[:-2] + step[2:]) + GLITCH_NOISE * sigma) + 2
+    expected = np.zeros(n, dtype=bool)
+    for shift in range(COINCIDENCE + 1):
+        expected[np.minimum(leaps + shift, n - 1)] = True
+    assert 100 < leaps.size < np.count_nonzero(step > 0.1)  # both sides of the threshold
+    assert np.array_equal(_after_jumps(y, None, sigma), expected)

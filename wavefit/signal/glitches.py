@@ -149,8 +149,8 @@ def _after_jumps(y: np.ndarray, code: float | None, sigma: float | None = None) 
     leaps = []
     for a, b in _spans(1, y.size - 2):  # steps y[j] -> y[j + 1], each with the steps either side
         step = np.abs(np.diff(y[a - 1:b + 2]))
-        around = step[:-2] + step[2:]
-        leaps.append(np.flatnonzero(step[1:-1] > GLITCH_SHAPE * around + GLITCH_NOISE * sigma) + a + 1)
+        k = np.flatnonzero(step[1:-1] > GLITCH_NOISE * sigma) + 1  # the steps around only add to that
+        leaps.append(k[step[k] > GLITCH_SHAPE * (step[k - 1] + step[k + 1]) + GLITCH_NOISE * sigma] + a)
     leaps = np.concatenate(leaps)
     for shift in range(COINCIDENCE + 1):
         mask[np.minimum(leaps + shift, y.size - 1)] = True
