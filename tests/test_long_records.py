@@ -249,3 +249,20 @@ def test_long_white_record_without_a_drive_channel_is_judged_white():
     assert out["fit"]["estimator"] == "whole-record relaxation fit"
     value, u = out["quantities"]["L"]["value"], out["quantities"]["L"]["expanded_uncertainty"]
     assert abs(value - inductance) <= u
+
+
+@pytest.mark.parametrize("values", [
+    np.random.default_rng(16).normal(size=300_000),                   # continuous: nearly all distinct
+    np.round(np.random.default_rng(17).normal(size=300_000) * 100) / 100,  # a grid of codes, repeated
+    np.arange(300_000, dtype=float),                                  # integers: keys differing in few bits
+    np.r_[np.zeros(1000), -np.zeros(1000), np.ones(10)],              # 0.0 and -0.0 are one value
+    1.0 + np.arange(200_000) * np.finfo(float).eps,                   # neighbouring floats
+])
+def test_occupied_buckets_bound_the_distinct_values(values):
+    # the buckets a hash table's keys occupy never outnumber the distinct values (Whang et al.
+    # 1990: occupied buckets as a count of distinct values); with eight or more buckets per value
+    # few distinct values share one
+    distinct = np.unique(values).size
+    found = codes.occupied_buckets(values)
+    assert found <= distinct
+    assert found >= 0.95 * distinct
