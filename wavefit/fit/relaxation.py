@@ -114,8 +114,9 @@ def _states(t: np.ndarray, theta: np.ndarray, n_states: int) -> tuple[np.ndarray
 
 
 def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], level_guess: Sequence[float],
-                    tau0: float, *, noise: str = "auto") -> FitResult:
-    """Fit the whole-record relaxation model; ``level_guess`` = [F_0, F_1, …, F_K]."""
+                    tau0: float, *, noise: str = "auto", rms: float | None = None) -> FitResult:
+    """Fit the whole-record relaxation model; ``level_guess`` = [F_0, F_1, …, F_K]; ``rms`` is
+    the record's :func:`~wavefit.signal.edges.noise_rms` when the caller has it already."""
     t = np.asarray(t, dtype=float)
     y = np.asarray(y, dtype=float)
     k = len(t0_guess)
@@ -142,7 +143,7 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     # means within 0.3 tau0, 4 samples, or 6 standard deviations of the instant the noise
     # allows, σ·tau/|step| (at low SNR the guess itself is that uncertain)
     dt = ts[1] - ts[0]
-    sigma = noise_rms(y)
+    sigma = noise_rms(y) if rms is None else rms
     for i in range(k):
         step = abs(level_guess[i + 1] - level_guess[i]) or np.inf
         reach = max(0.3, 4.0 * dt, 6.0 * placement_deviation(sigma, 1.0, step))  # time in units of tau0

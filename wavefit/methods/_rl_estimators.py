@@ -43,7 +43,8 @@ class Choice:
 
 
 def estimate_tau(t, sense, has_drive: bool, white: bool, automatic_skip: bool, winding_capacitance: bool,
-                 edges, windows, fits, baseline, noise: str, fit_window: Callable[..., Any]) -> Choice:
+                 edges, windows, fits, baseline, noise: str, fit_window: Callable[..., Any],
+                 sense_rms: float | None = None) -> Choice:
     """tau and state levels by the estimator the record calls for (module docstring).
 
     Parameters
@@ -63,6 +64,8 @@ def estimate_tau(t, sense, has_drive: bool, white: bool, automatic_skip: bool, w
         The noise option, passed to the fits.
     fit_window
         Fits one window (the method's own), for the whole-record estimator's check.
+    sense_rms
+        The sense channel's :func:`~wavefit.signal.edges.noise_rms`, when the caller has it.
 
     Returns
     -------
@@ -77,7 +80,8 @@ def estimate_tau(t, sense, has_drive: bool, white: bool, automatic_skip: bool, w
         if pooled is not None:
             combined, estimator = pooled, POOLED
     if white and automatic_skip and not winding_capacitance:
-        combined, accepted = whole_record(t, sense, edges, windows, fits, baseline, combined, noise, fit_window)
+        combined, accepted = whole_record(t, sense, edges, windows, fits, baseline, combined, noise, fit_window,
+                                          sense_rms)
         if accepted:
             estimator = WHOLE_RECORD
         else:

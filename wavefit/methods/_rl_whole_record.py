@@ -13,8 +13,8 @@ from ._rl_per_edge import Combined, combine
 from ._rl_windows import Window
 
 
-def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, noise, fit_window
-                  ) -> tuple[Combined, bool]:
+def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, noise, fit_window,
+                 sense_rms: float | None = None) -> tuple[Combined, bool]:
     """tau and state levels from one fit of every sample (``wavefit.fit.relaxation``).
 
     Used without a drive channel, where the switching instants must come from the sense
@@ -24,7 +24,8 @@ def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, n
     kink at the edges. The whole-record result is kept if it agrees with them by the
     Hausman test (difference within 3 standard deviations of var(windows) −
     var(whole record)); otherwise those windows are returned. Returns (result,
-    whole-record accepted).
+    whole-record accepted). ``sense_rms`` is the sense channel's
+    :func:`~wavefit.signal.edges.noise_rms`, when the caller has it already.
     """
     by_t0 = {id(w.edge): w for w in windows}
     t0s = [by_t0[id(e)].t0 if id(e) in by_t0 else e.t0 for e in edges]
@@ -36,7 +37,7 @@ def whole_record(t, sense, edges, windows, fits, baseline, windowed: Combined, n
         f = fit_of.get(id(e))
         levels.append(f["final_sense"] if f is not None else (hi if e.direction > 0 else lo))
     try:
-        whole = fit_relaxations(t, sense, t0s, levels, windowed.values[0], noise=noise)
+        whole = fit_relaxations(t, sense, t0s, levels, windowed.values[0], noise=noise, rms=sense_rms)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError):
         return windowed, False
     var_f = whole.covariance[0, 0]

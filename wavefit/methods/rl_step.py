@@ -37,7 +37,7 @@ from ..outputs import Scalar
 from ..results import TracePlot
 from ..setup import Setup
 from ..signal.clipping import extremes, model_exceeds_record
-from ..signal.edges import find_edges, jump_instant
+from ..signal.edges import find_edges, jump_instant, noise_rms
 from ..signal.levels import state_levels
 from . import register
 from ._model_check import ModelCheck, Variation, added
@@ -140,7 +140,8 @@ class RLStep(Method):
         notes: list[str] = []
 
         sense_levels = state_levels(sense)
-        edges = find_edges(t, sense, sense_levels)
+        sense_rms = noise_rms(sense)  # for the edges and the whole-record fit's reach
+        edges = find_edges(t, sense, sense_levels, rms=sense_rms)
         if not edges:
             raise AnalysisRefused(f"{capture.source}: no transition found in the sense channel (its two "
                                   "state levels are not separated from the noise); check the trigger and the "
@@ -180,7 +181,7 @@ class RLStep(Method):
 
         choice = estimate_tau(t, sense, drive is not None, white, self.option(setup, "skip") == "auto",
                               "winding_capacitance" in setup.parts, edges, windows, fits, baseline, noise,
-                              self._fit_window)
+                              self._fit_window, sense_rms)
         combined, estimator = choice.combined, choice.estimator
         notes += choice.notes
         notes.append(f"tau and levels from the {estimator}")

@@ -79,7 +79,7 @@ def _within(deviations: np.ndarray, reach: float) -> np.ndarray:
 
 
 def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
-               min_snr: float = 5.0) -> list[Edge]:
+               min_snr: float = 5.0, rms: float | None = None) -> list[Edge]:
     """Transitions of a two-state record, in time order.
 
     Parameters
@@ -90,6 +90,8 @@ def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
         State levels; by default from the histogram method of IEEE Std 181.
     min_snr
         An amplitude below ``min_snr`` times the noise rms means there is no transition.
+    rms
+        The record's :func:`noise_rms`, when the caller has it already.
 
     Returns
     -------
@@ -105,7 +107,7 @@ def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
     y = np.asarray(y, dtype=float)
     levels = levels or state_levels(y)
     amp = levels.amplitude
-    sigma = noise_rms(y)
+    sigma = noise_rms(y) if rms is None else rms
     if not amp > 0 or amp < min_snr * sigma:
         return []
     # hysteresis against the noise at the levels, which first differences underrate when the
