@@ -161,3 +161,28 @@ def test_grid_forms_match_the_direct_model(alpha, w):
         down[k] -= h
         numeric = (model(up, tau) - model(down, tau)) / (2 * h)
         assert np.max(np.abs(j[:, k] - numeric)) < 1e-5 * max(1.0, np.max(np.abs(numeric)))
+
+
+@pytest.mark.parametrize("correlation", [1, 6])
+def test_fit_from_a_solved_start_is_the_fit_that_solves_again(correlation):
+    # a window's final fit told that its start is already the unweighted least squares on it
+    # (refine's converged last stage) skips that solve: the same values, covariance and noise
+    # model as the fit that solves it again, in white and in band-limited noise
+    from wavefit.fit.damped_sine import fit_damped_sine, initial_estimate, refined
+
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=4.0, feed_resistance=20e3)
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * 50)
+    t, v = ringdown(tank, dt, 60_000, pre_trigger=0)
+    scope = ScopeModel(noise_rms=0.002, correlation_samples=correlation)
+    y = scope.apply(v, np.random.default_rng(correlation))
+    win = ring_window(y)
+    alpha0, w0 = initial_estimate(y[win.start:win.start + win.strong], win.samples_per_period)
+    x, solved = refined(y[win.start:], alpha0, w0)
+    assert solved
+    seg = slice(win.start, None)
+    again = fit_damped_sine(t[seg], y[seg], x, dt)
+    skipped = fit_damped_sine(t[seg], y[seg], x, dt, solved=True)
+    np.testing.assert_allclose(skipped.fit.values, again.fit.values, rtol=1e-11)
+    np.testing.assert_allclose(skipped.fit.covariance, again.fit.covariance, rtol=1e-8)
+    assert skipped.fit.noise_model == again.fit.noise_model

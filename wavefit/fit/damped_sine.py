@@ -223,11 +223,12 @@ def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: in
         raise ValueError("the fit window holds fewer than 12 samples")
     strong = min(win.strong, hi - lo)
     alpha0, w0 = initial_estimate(y[lo:lo + max(strong, 12)], win.samples_per_period)
-    x = refine(y[lo:hi], alpha0, w0)
+    x, solved = refined(y[lo:hi], alpha0, w0)
     if stop is None:
         sigma = _rms(y[lo:hi] - grid_model(x, hi - lo))
-        hi = _envelope_end(x, sigma, lo, hi, strong)
-    ring = fit_damped_sine(t[lo:hi], y[lo:hi], x, dt, noise=noise, offset_index=lo)
+        end = _envelope_end(x, sigma, lo, hi, strong)
+        solved, hi = solved and end == hi, end
+    ring = fit_damped_sine(t[lo:hi], y[lo:hi], x, dt, noise=noise, offset_index=lo, solved=solved)
     lags = ring.fit.noise_correlation_extent_samples.get("tank", 0)
     decay = float(ring.fit["alpha"]) * dt  # nepers per sample
     # a later start scales the variances by about exp(2·alpha·shift): allow 10 % at most
@@ -253,7 +254,7 @@ def ring_parameters_at(ring: DampedSineFit, shift: int) -> np.ndarray:
 
 
 def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interval: float, *,
-                    noise: str = "auto", offset_index: int = 0) -> DampedSineFit:
+                    noise: str = "auto", offset_index: int = 0, solved: bool = False) -> DampedSineFit:
     """Final weighted least-squares fit on one window, starting from ``x0`` in sample units.
 
     ``x0`` = (offset, a, b, alpha, w_d) with alpha in nepers per sample and w_d in
@@ -261,7 +262,8 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     (:func:`refine`'s, or another fit's carried to this window). The solve's first,
     unweighted pass is the unweighted least squares :func:`refine` would give, so it is not
     refined first (that took a sixth of a 10⁶-sample analysis; docs/performance.md, "Third
-    round", says how far results moved).
+    round", says how far results moved). ``solved`` says that ``x0`` is that least squares'
+    converged solution on this same window (:func:`refined`'s): the pass is then skipped.
     """
     n = y.size
     x0 = np.asarray(x0, dtype=float)
@@ -277,7 +279,7 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     upper = np.array([np.inf, np.inf, np.inf, np.inf, math.pi])
     blocks = [Block(0, n, "tank")]
     fit = fit_least_squares(fun, jac, x0, NAMES, blocks, model="damped sinusoid",
-                            noise=noise, bounds=(lower, upper), x_scale=_x_scale(x0))
+                            noise=noise, bounds=(lower, upper), x_scale=_x_scale(x0), solved_start=solved)
     fit = include_quantisation(fit, y, lambda x: grid_model(x, n), lambda x: pieced_jacobian(x, n), blocks)
     scale = np.array([1.0, 1.0, 1.0, 1.0 / sample_interval, 1.0 / sample_interval])
     physical = dataclasses.replace(fit, values=fit.values * scale,
@@ -359,6 +361,12 @@ def refine(y: np.ndarray, alpha: float, w: float) -> np.ndarray:
     The window doubles from about 3 periods to the whole record, each fit starting from the
     previous one.
     """
+    return refined(y, alpha, w)[0]
+
+
+def refined(y: np.ndarray, alpha: float, w: float) -> tuple[np.ndarray, bool]:
+    """:func:`refine`'s parameters, and whether they are the converged solution on the whole
+    of ``y`` (its last window's solve was kept and ended by its tolerances)."""
     n = y.size
     length = int(min(n, max(24, 3 * 2 * math.pi / max(w, 1e-9))))
     # the amplitudes are solved on each shorter window below; on the whole record only when
@@ -371,10 +379,11 @@ def refine(y: np.ndarray, alpha: float, w: float) -> np.ndarray:
         residuals, jac = _start_problem(seg)
         res = optimize.least_squares(residuals, x, jac=jac, method="lm", x_scale=_x_scale(x),
                                      xtol=1e-12, ftol=1e-12)
-        if np.all(np.isfinite(res.x)) and 0 < res.x[4] < math.pi and res.x[3] * length > -20.0:
+        kept = bool(np.all(np.isfinite(res.x)) and 0 < res.x[4] < math.pi and res.x[3] * length > -20.0)
+        if kept:
             x = res.x  # (a free ring decays: a fit that grows e-fold many times over is rejected)
         if length >= n:
-            return x
+            return x, kept and res.status > 0  # (0: stopped by the count of evaluations)
         length = min(n, 2 * length)
 
 

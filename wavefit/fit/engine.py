@@ -81,7 +81,8 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
                       x0: Sequence[float], names: Sequence[str], blocks: Sequence[Block], *,
                       model: str, bounds: tuple = (-np.inf, np.inf), noise: str = "auto",
                       x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
-                      sigma: dict[str, float] | None = None, fitted_start: bool = False) -> FitResult:
+                      sigma: dict[str, float] | None = None, fitted_start: bool = False,
+                      solved_start: bool = False) -> FitResult:
     """Fit ``fun`` (residual = data − model, for all blocks concatenated) over the vector ``x``.
 
     The start ``x0``, the ``names`` and the ``bounds`` become free
@@ -89,11 +90,14 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
     ``fitted_start`` says that ``x0`` already fits every group about as well as the solution
     will (a variable-projection estimate): the groups' scatter, which weighs them against each
     other, is then taken from its residuals, saving the solve with unit weights that would
-    otherwise provide them.
+    otherwise provide them. ``solved_start`` says that ``x0`` is that solve's solution already
+    (a converged least squares of the same residuals with unit weights, such as
+    :func:`wavefit.fit.damped_sine.refine`'s on the same window): the solve is skipped.
     """
     mapping = ParameterMap(as_parameters(x0, names, bounds), copy=False)
     return fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
-                    max_ar_order=max_ar_order, sigma=sigma, fitted_start=fitted_start)
+                    max_ar_order=max_ar_order, sigma=sigma, fitted_start=fitted_start,
+                    solved_start=solved_start)
 
 
 def fit_parameters(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
@@ -139,10 +143,11 @@ def fit_parameters(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.
 def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
              mapping: ParameterMap, blocks: Sequence[Block], *, model: str, noise: str = "auto",
              x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
-             sigma: dict[str, float] | None = None, fitted_start: bool = False) -> FitResult:
+             sigma: dict[str, float] | None = None, fitted_start: bool = False,
+             solved_start: bool = False) -> FitResult:
     """:func:`fit_parameters` with the result over the free parameters of ``mapping`` only
     (for a caller that corrects it further before :meth:`ParameterMap.expanded`);
-    ``fitted_start`` as for :func:`fit_least_squares`."""
+    ``fitted_start`` and ``solved_start`` as for :func:`fit_least_squares`."""
     if noise not in ("auto", "white", "known"):
         raise ValueError("noise must be 'auto', 'white' or 'known'")
     blocks = list(blocks)
@@ -152,7 +157,7 @@ def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarra
         raise ValueError("fewer samples than parameters")
     with refused_when_out_of_memory(model, m, p):
         return _fit(mapping.residual_function(fun), mapping.jacobian_function(jac), mapping.start(), mapping,
-                    blocks, model, noise, x_scale, max_ar_order, sigma, fitted_start)
+                    blocks, model, noise, x_scale, max_ar_order, sigma, fitted_start, solved_start)
 
 
 def as_parameters(x0: Sequence[float], names: Sequence[str], bounds: tuple = (-np.inf, np.inf)) -> lmfit.Parameters:
@@ -183,7 +188,7 @@ def refused_when_out_of_memory(model: str, samples: int, parameters: int) -> Ite
 
 
 def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_ar_order, sigma,
-         fitted_start: bool = False) -> FitResult:
+         fitted_start: bool = False, solved_start: bool = False) -> FitResult:
     """The fit over the free parameters of ``mapping`` (``fun``, ``jac`` and ``x`` theirs)."""
     groups = sorted({b.group for b in blocks})
     m = sum(b.stop - b.start for b in blocks)
@@ -199,7 +204,8 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
     else:
         models = {g: white(1.0) for g in groups}
     small = is_small(m, p)
-    x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+    if not (solved_start and noise != "known" and not weighed_at_start):
+        x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
     r = fun(x)  # the residuals at the current x, evaluated once for every use there
     if noise != "known":
         models = _scatter_models(r, blocks, groups, p, m)
