@@ -186,3 +186,25 @@ def test_fit_from_a_solved_start_is_the_fit_that_solves_again(correlation):
     np.testing.assert_allclose(skipped.fit.values, again.fit.values, rtol=1e-11)
     np.testing.assert_allclose(skipped.fit.covariance, again.fit.covariance, rtol=1e-8)
     assert skipped.fit.noise_model == again.fit.noise_model
+
+
+@pytest.mark.parametrize("dcr, records", [(40.0, 20_000), (0.1, 20_000)])
+def test_fit_ring_skips_the_solve_only_on_the_refined_window(monkeypatch, dcr, records):
+    # the final fit takes the refinement's solution as solved only when its window is the one
+    # the refinement ended on: a ring that decays into the noise early has its window cut at the
+    # envelope's end (the refinement's solution is not that window's), one that rings through
+    # the record keeps it. Either way the result is the one of a fit that solves again.
+    import wavefit.fit.damped_sine as damped_sine
+
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=dcr, feed_resistance=1e6)
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * 40)
+    t, v = ringdown(tank, dt, records, pre_trigger=0)
+    y = ScopeModel(noise_rms=1e-3 * float(np.max(np.abs(v)))).apply(v, np.random.default_rng(3))
+    skipped = fit_ring(t, y)
+    refined = damped_sine.refined
+    monkeypatch.setattr(damped_sine, "refined", lambda *a: (refined(*a)[0], False))
+    again = fit_ring(t, y)
+    assert (skipped.stop < t.size) == (dcr > 10.0)  # the early decay is cut, the long ring not
+    assert (skipped.start, skipped.stop) == (again.start, again.stop)
+    np.testing.assert_allclose(skipped.fit.values, again.fit.values, rtol=1e-10)

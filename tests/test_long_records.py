@@ -261,8 +261,8 @@ def test_long_white_record_without_a_drive_channel_is_judged_white():
 def test_occupied_buckets_bound_the_distinct_values(values):
     # the buckets a hash table's keys occupy never outnumber the distinct values (Whang et al.
     # 1990: occupied buckets as a count of distinct values); with eight or more buckets per value
-    # few distinct values share one
+    # about 1/16 of random distinct values share one at most (m·(1 − e^(−n/m)) of n occupied)
     distinct = np.unique(values).size
     found = codes.occupied_buckets(values)
     assert found <= distinct
-    assert found >= 0.95 * distinct
+    assert found >= 0.9 * distinct

@@ -29,6 +29,14 @@ def _records() -> list[np.ndarray]:
     spiky = rng.normal(size=n)
     spiky[::50] = np.inf
     out += [ring, spiky, np.full(n, 2.5), np.r_[np.zeros(n // 2), np.ones(n - n // 2)]]
+    # evenly spaced samples that misrepresent the record: its median lies beyond the bracket,
+    # on either side (the median is then found among all the values)
+    for outlier in (-10.0, 10.0):
+        misleading = rng.normal(size=n)
+        misleading[::n // 4096] = outlier
+        out.append(misleading)
+    # ties at the bracket's bounds: a record of a few integer codes
+    out.append(rng.integers(-2, 3, size=n).astype(float))
     return out
 
 
@@ -80,8 +88,8 @@ def test_record_noise_is_its_definition(kind: str) -> None:
     assert record_noise(y, code) == pytest.approx(_record_noise_by_definition(y, code), rel=1e-15)
 
 
-@pytest.mark.parametrize("amplitude", [1.0, -1.0, 0.0])
-def test_state_noise_rms_is_the_spread_about_the_nearer_level(amplitude: float) -> None:
+@pytest.mark.parametrize("amplitude, swapped", [(1.0, False), (-1.0, False), (1.0, True), (0.0, False)])
+def test_state_noise_rms_is_the_spread_about_the_nearer_level(amplitude: float, swapped: bool) -> None:
     rng = np.random.default_rng(4)
     n = 3 * BRACKET_FROM
     # exponential relaxations between the levels, so that samples lie at every distance from them
@@ -90,6 +98,8 @@ def test_state_noise_rms_is_the_spread_about_the_nearer_level(amplitude: float) 
     clean = amplitude * np.where(rising, 1.0 - np.exp(-phase / 300.0), np.exp(-(phase - 15000) / 300.0))
     y = clean + rng.normal(0.0, 0.02, n)
     levels = state_levels(y) if amplitude else StateLevels(0.0, 0.0)
+    if swapped:  # levels given high first: a negative amplitude
+        levels = StateLevels(levels.high, levels.low)
     low, high = levels.low, levels.high
     dev = np.where(np.abs(y - low) < np.abs(y - high), y - low, y - high)
     near = dev[np.abs(dev) < 0.25 * abs(levels.amplitude)] if levels.amplitude else dev

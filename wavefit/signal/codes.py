@@ -101,7 +101,8 @@ HEAD_SHARE = 1.25
 
 
 #: The hash table of :func:`occupied_buckets` has 2**BUCKET_BITS to twice that many buckets per
-#: value (8 to 16, one byte each): some 2–4 % of distinct random values then share a bucket.
+#: value (8 to 16, one byte each: one to two times the 8-byte values it counts, for a moment):
+#: some 3–6 % of distinct random values then share a bucket.
 BUCKET_BITS = 3
 #: Odd multiplier of Fibonacci hashing (2⁶⁴ divided by the golden ratio; D. E. Knuth, *The Art
 #: of Computer Programming*, vol. 3, §6.4): the top bits of key·multiplier spread the keys.

@@ -62,7 +62,7 @@ def state_noise_rms(y: np.ndarray, levels: StateLevels) -> float:
     whose neighbouring samples move together."""
     y = np.asarray(y, dtype=float)
     reach = 0.25 * abs(levels.amplitude)
-    if reach:
+    if levels.amplitude:
         # within a quarter of the amplitude of one level a sample is three quarters from the
         # other, so its distance to the nearer level is the one to this level
         near = np.concatenate([_within(y - level, reach) for level in (levels.low, levels.high)])
