@@ -88,8 +88,12 @@ def test_record_noise_is_its_definition(kind: str) -> None:
     assert record_noise(y, code) == pytest.approx(_record_noise_by_definition(y, code), rel=1e-15)
 
 
+@pytest.mark.parametrize("chunk", [None, 1000])
 @pytest.mark.parametrize("amplitude, swapped", [(1.0, False), (-1.0, False), (1.0, True), (0.0, False)])
-def test_state_noise_rms_is_the_spread_about_the_nearer_level(amplitude: float, swapped: bool) -> None:
+def test_state_noise_rms_is_the_spread_about_the_nearer_level(monkeypatch, amplitude: float, swapped: bool,
+                                                              chunk: int | None) -> None:
+    if chunk is not None:  # a long record, a chunk at a time
+        monkeypatch.setattr("wavefit.signal.edges.CHUNK_VALUES", chunk)
     rng = np.random.default_rng(4)
     n = 3 * BRACKET_FROM
     # exponential relaxations between the levels, so that samples lie at every distance from them
@@ -106,3 +110,4 @@ def test_state_noise_rms_is_the_spread_about_the_nearer_level(amplitude: float, 
     expected = MAD_TO_SIGMA * np.median(np.abs(near - np.median(near)))
     assert state_noise_rms(y, levels) == pytest.approx(expected, rel=1e-15)
     assert state_noise_rms(y, levels) == pytest.approx(0.02, rel=0.1)  # the relaxations widen it a little
+    assert state_noise_rms(y[:0], levels) == 0.0

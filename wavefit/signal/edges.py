@@ -14,6 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .codes import CHUNK_VALUES
 from .levels import StateLevels, crossings, state_levels
 from .robust import mad_sigma
 
@@ -64,8 +65,11 @@ def state_noise_rms(y: np.ndarray, levels: StateLevels) -> float:
     reach = 0.25 * abs(levels.amplitude)
     if levels.amplitude:
         # within a quarter of the amplitude of one level a sample is three quarters from the
-        # other, so its distance to the nearer level is the one to this level
-        near = np.concatenate([_within(y - level, reach) for level in (levels.low, levels.high)])
+        # other, so its distance to the nearer level is the one to this level (a long record a
+        # chunk at a time: the deviations are never held whole)
+        near = np.concatenate([_within(y[a:a + CHUNK_VALUES] - level, reach)
+                               for a in range(0, max(y.size, 1), CHUNK_VALUES)
+                               for level in (levels.low, levels.high)])
     else:
         near = np.where(np.abs(y - levels.low) < np.abs(y - levels.high), y - levels.low, y - levels.high)
     if near.size < 8:

@@ -162,7 +162,11 @@ def record_noise(y: np.ndarray, code: float | None) -> float:
     (robust to the waveform's edges and to glitches), and at least one step of its values:
     the converter's, or the smallest change between neighbours when no code grid was found
     (a quiet quantised trace flickers by that much)."""
-    floor = max(mad_sigma(y[2:] - 2.0 * y[1:-1] + y[:-2]) / np.sqrt(_SECOND_DIFFERENCE_VARIANCE), code or 0.0)
+    # y[2:] − 2·y[1:-1] + y[:-2], the same sums in the same order, in one array
+    second = np.multiply(y[1:-1], -2.0)
+    second += y[2:]
+    second += y[:-2]
+    floor = max(mad_sigma(second) / np.sqrt(_SECOND_DIFFERENCE_VARIANCE), code or 0.0)
     return max(floor, _smallest_change(y, floor))
 
 
