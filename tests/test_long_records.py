@@ -47,6 +47,26 @@ def assert_same_fit(long, dense) -> None:
     assert long.dof == dense.dof
 
 
+def test_relaxation_model_is_its_definition():
+    # the module's definition, sample by sample: a head relaxing from the record's start, then
+    # each state relaxing toward its level from the value the piece before reached at its instant
+    import math
+
+    rng = np.random.default_rng(2)
+    ts = np.sort(rng.uniform(0, 20, 400)) + 3.0
+    theta = np.array([1.3, 0.2, -0.7, 1.0, 8.0, -0.5, 14.0, 0.8, 19.0])
+    tau, levels, instants = theta[0], [theta[1], *theta[3::2]], list(theta[4::2])
+
+    def piece(k: int, t: float) -> float:
+        if k == 0:
+            return theta[1] + theta[2] * math.exp(-(t - ts[0]) / tau)
+        start = piece(k - 1, instants[k - 1])
+        return levels[k] + (start - levels[k]) * math.exp(-(t - instants[k - 1]) / tau)
+
+    expected = [piece(sum(t >= t0 for t0 in instants), t) for t in ts]
+    np.testing.assert_allclose(relaxation_model(ts, theta, 3), expected, rtol=1e-13, atol=1e-15)
+
+
 def test_relaxation_jacobian_matches_finite_differences():
     # independent check of the pieces: central differences of the model itself
     rng = np.random.default_rng(1)

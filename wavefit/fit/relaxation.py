@@ -37,12 +37,23 @@ def relaxation_model(t: np.ndarray, theta: np.ndarray, n_states: int) -> np.ndar
     tau, f0, c0 = theta[0], theta[1], theta[2]
     y = np.empty(t.size)
     bounds, starts = _states(t, theta, n_states)
-    y[:bounds[0]] = f0 + c0 * np.exp(-(t[:bounds[0]] - t[0]) / tau)
+    _relax(t[:bounds[0]], t[0], tau, f0, c0, y[:bounds[0]])
     for k, (v, _) in enumerate(starts):
         fk, tk = theta[3 + 2 * k], theta[4 + 2 * k]
         seg = slice(bounds[k], bounds[k + 1])
-        y[seg] = fk + (v - fk) * np.exp(-(t[seg] - tk) / tau)
+        _relax(t[seg], tk, tau, fk, v - fk, y[seg])
     return y
+
+
+def _relax(t: np.ndarray, t_ref: float, tau: float, final: float, coef: float, out: np.ndarray) -> None:
+    """final + coef·exp(−(t − t_ref)/tau) into ``out``, the same operations in the same order
+    as the expression, without a temporary array."""
+    np.subtract(t, t_ref, out=out)
+    np.negative(out, out=out)
+    out /= tau
+    np.exp(out, out=out)
+    out *= coef
+    out += final
 
 
 def relaxation_jacobian(t: np.ndarray, theta: np.ndarray, n_states: int) -> Jacobian:
@@ -128,7 +139,8 @@ def fit_relaxations(t: np.ndarray, y: np.ndarray, t0_guess: Sequence[float], lev
     x0 = np.asarray(x0, dtype=float)
 
     def fun(x):
-        return y - relaxation_model(ts, x, k)
+        r = relaxation_model(ts, x, k)
+        return np.subtract(y, r, out=r)
 
     def jac(x):
         return relaxation_jacobian(ts, x, k).negated()
