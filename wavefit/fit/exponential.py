@@ -201,12 +201,20 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
 
     same = first_equal(scaled)
 
+    last: dict[float, list[np.ndarray]] = {}  # the decays at the tau last asked for
+
     def decays(x: np.ndarray) -> list[np.ndarray]:
-        """exp(−u/tau) of each channel, computed once for channels sampled at the same instants."""
-        out: list[np.ndarray] = []
-        for c, u in enumerate(scaled):
-            out.append(np.exp(-u / x[0]) if same[c] == c else out[same[c]])
-        return out
+        """exp(−u/tau) of each channel, computed once for channels sampled at the same instants,
+        and once for the residuals and the Jacobian that the solver asks for at one point (the
+        arrays are read, never written)."""
+        tau = float(x[0])
+        if tau not in last:
+            out: list[np.ndarray] = []
+            for c, u in enumerate(scaled):
+                out.append(np.exp(-u / x[0]) if same[c] == c else out[same[c]])
+            last.clear()
+            last[tau] = out
+        return last[tau]
 
     def model_values(x: np.ndarray) -> np.ndarray:
         return np.concatenate([x[1 + 2 * c] + x[2 + 2 * c] * e for c, e in enumerate(decays(x))])
