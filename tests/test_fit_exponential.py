@@ -100,3 +100,20 @@ def test_linear_part_is_the_least_squares_level_and_amplitude():
     expected, *_ = np.linalg.lstsq(np.column_stack((np.ones_like(e), e)), y, rcond=None)
     assert linear_part(e, y) == pytest.approx(tuple(expected), rel=1e-12)
     assert linear_part(np.ones(10), np.arange(10.0)) == (4.5, 0.0)  # a basis that does not vary
+
+
+def test_decay_is_the_expression_bit_for_bit():
+    """exp(−u/tau) in one array: the same numbers as the expression (IEEE 754 division is
+    correctly rounded, so u/(−tau) is −u/tau exactly), with and without an output array."""
+    from wavefit.fit.exponential import decay
+
+    rng = np.random.default_rng(8)
+    for _ in range(20):
+        scale = 10.0 ** rng.integers(-9, 3)  # seconds to ks; u/tau within −30 … 400
+        u = rng.uniform(-3.0, 40.0, 5000) * scale
+        u[:3] = (0.0, -0.0, 1e-300)
+        tau = float(rng.uniform(0.1, 10.0) * scale)
+        expected = np.exp(-u / tau)
+        assert np.array_equal(decay(u, tau), expected)
+        out = np.empty_like(u)
+        assert decay(u, tau, out=out) is out and np.array_equal(out, expected)

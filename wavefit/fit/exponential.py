@@ -49,6 +49,13 @@ def exponential_step(t: np.ndarray, final: float, coef: float, tau: float, t_ref
     return final + coef * np.exp(-(np.asarray(t, dtype=float) - t_ref) / tau)
 
 
+def decay(u: np.ndarray, tau: float, out: np.ndarray | None = None) -> np.ndarray:
+    """exp(−u/tau) in one array (``out`` when given), without the temporaries of the expression:
+    u/(−tau) is −u/tau exactly (a quotient's rounding does not depend on the signs)."""
+    e = np.divide(u, -tau, out=out)
+    return np.exp(e, out=e)
+
+
 def linear_part(e: np.ndarray, y: np.ndarray) -> tuple[float, float]:
     """Least-squares (final, coefficient) of y = final + coefficient·e for a fixed basis ``e``:
     the simple regression of y on e, from the centred samples (no factorisation); the
@@ -125,13 +132,15 @@ def projected_cost(times: Sequence[np.ndarray], values: Sequence[np.ndarray],
     sums = [float(y @ y) for y in centred]
     if scales is None:
         scales = [s / y.size or 1.0 for s, y in zip(sums, centred)]
+    # the basis of each set of instants, rewritten at every evaluation (no array allocated there)
+    buffers = [np.empty_like(t) if same[c] == c else None for c, t in enumerate(elapsed)]
 
     def cost(log_tau: float) -> float:
         total = 0.0
         basis: list[np.ndarray] = []
         for c, (t, y, syy, scale) in enumerate(zip(elapsed, centred, sums, scales)):
             if same[c] == c:
-                e = np.exp(-t / math.exp(log_tau))
+                e = decay(t, math.exp(log_tau), out=buffers[c])
                 e -= e.mean()
             else:
                 e = basis[same[c]]  # the channels of one window share their instants
@@ -151,7 +160,7 @@ def curve_information(u: np.ndarray, amplitude: float, tau: float) -> float:
     # the part of tau's column (amplitude·u·e/tau²) that the level and the amplitude's columns
     # (1 and e) do not explain: its residual sum of squares in simple regression on e, each
     # centred (the Schur complement 1/(JᵀJ)⁻¹ of tau's entry)
-    e = np.exp(-u / tau)
+    e = decay(u, tau)
     slope = e * u
     e -= e.mean()
     slope -= slope.mean()
@@ -211,7 +220,7 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
         if tau not in last:
             out: list[np.ndarray] = []
             for c, u in enumerate(scaled):
-                out.append(np.exp(-u / x[0]) if same[c] == c else out[same[c]])
+                out.append(decay(u, x[0]) if same[c] == c else out[same[c]])
             last.clear()
             last[tau] = out
         return last[tau]

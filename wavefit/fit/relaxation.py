@@ -27,6 +27,7 @@ import numpy as np
 
 from ..signal.edges import noise_rms, placement_deviation
 from .engine import Block, fit_least_squares
+from .exponential import decay
 from .jacobian import Jacobian, Piece
 from .quantisation import include_quantisation
 from .result import FitResult
@@ -71,7 +72,7 @@ def relaxation_jacobian(t: np.ndarray, theta: np.ndarray, n_states: int) -> Jaco
 
     def head(a: int, b: int) -> np.ndarray:
         u = t[a:b] - t[0]
-        e = np.exp(-u / tau)
+        e = decay(u, tau)
         return np.column_stack((np.ones_like(e), e, c0 * e * u / tau ** 2))
 
     coef = np.zeros((3, p))
@@ -82,7 +83,7 @@ def relaxation_jacobian(t: np.ndarray, theta: np.ndarray, n_states: int) -> Jaco
 
         def state(a: int, b: int, fk: float = fk, tk: float = tk, v: float = v) -> np.ndarray:
             u = t[a:b] - tk
-            e = np.exp(-u / tau)
+            e = decay(u, tau)
             return np.column_stack((1.0 - e, e, (v - fk) * e * u / tau ** 2, (v - fk) * e / tau))
 
         coef = np.zeros((4, p))

@@ -17,7 +17,7 @@ from typing import Sequence
 import numpy as np
 from scipy import optimize
 
-from .exponential import GRID_STEP, WindowChannel, curve_information, projected_cost, projected_tau
+from .exponential import GRID_STEP, WindowChannel, curve_information, decay, projected_cost, projected_tau
 from .noise_model import fit_ar
 from .quantisation import limiting_step
 
@@ -75,7 +75,7 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
         white model: its sum of squares over its samples less its share of the parameters)."""
         residuals, amplitudes, scatters = [], [], []
         for u, y in zip(elapsed, centred):
-            e = np.exp(-u / tau)
+            e = decay(u, tau)
             ec = e - float(e.mean())
             see = float(ec @ ec)
             amplitude = float(ec @ y) / see if see > 0 else 0.0

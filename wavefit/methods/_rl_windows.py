@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import AnalysisRefused
-from ..fit.exponential import WindowChannel, curve_information, projected_cost, window_model
+from ..fit.exponential import WindowChannel, curve_information, decay, projected_cost, window_model
 from ..fit.white_projection import white_window_tau
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
@@ -181,7 +181,7 @@ def projected_shift(t, sense, drive, w, f, start: int) -> float | None:
     # the later curve (a misfit at the start inflates the full window's noise)
     x = float(found.x)
     u = t[start:w.stop] - t[start]
-    e = np.exp(-u / x)
+    e = decay(u, x)
     e -= e.mean()
     see = float(e @ e)
     information = 0.0
