@@ -357,13 +357,14 @@ def whiten(a: np.ndarray, blocks: Sequence[Block], models: dict[str, ARNoise]) -
         mod = models[b.group]
         seg = a[b.start:b.stop]
         parts.append(mod.whiten(seg))
-    return np.concatenate(parts, axis=0)
+    return parts[0] if len(parts) == 1 else np.concatenate(parts, axis=0)  # one block: its own array
 
 
 def _scatter_models(r, blocks, groups, p, m) -> dict[str, ARNoise]:
     out = {}
     for g in groups:
-        seg = np.concatenate([r[b.start:b.stop] for b in blocks if b.group == g])
+        segs = [r[b.start:b.stop] for b in blocks if b.group == g]
+        seg = segs[0] if len(segs) == 1 else np.concatenate(segs)  # one block: no copy of it
         share = seg.size / m
         dof = max(seg.size - p * share, 1.0)
         s = math.sqrt(float(seg @ seg) / dof)
