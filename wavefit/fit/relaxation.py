@@ -47,12 +47,10 @@ def relaxation_model(t: np.ndarray, theta: np.ndarray, n_states: int) -> np.ndar
 
 
 def _relax(t: np.ndarray, t_ref: float, tau: float, final: float, coef: float, out: np.ndarray) -> None:
-    """final + coef·exp(−(t − t_ref)/tau) into ``out``, the same operations in the same order
-    as the expression, without a temporary array."""
+    """final + coef·exp(−(t − t_ref)/tau) into ``out``, the same numbers as the expression
+    (:func:`~wavefit.fit.exponential.decay`), without a temporary array."""
     np.subtract(t, t_ref, out=out)
-    np.negative(out, out=out)
-    out /= tau
-    np.exp(out, out=out)
+    decay(out, tau, out=out)
     out *= coef
     out += final
 
