@@ -86,9 +86,7 @@ def _piles_up(counts: tuple[tuple[int, int], ...], code: float | None, sigma: fl
 
 def extremes(y: np.ndarray, levels: RecordLevels | None = None) -> Extremes:
     """Gather :class:`Extremes` of a record; ``levels`` its :func:`record_levels` when known."""
-    y = np.asarray(y, dtype=float)
-    if not np.all(np.isfinite(y)):
-        y = y[np.isfinite(y)]
+    y = _finite(y)
     found = record_levels(y) if levels is None else levels
     code = found.step
     run = max(longest_run_at_extremes(y))
@@ -137,7 +135,11 @@ def piles_up_at_limit(y: np.ndarray, sigma: float, code: float | None, min_count
     """See :func:`_piles_up`; ``code`` is the converter step of the record ``y`` is part of
     (its :func:`record_levels` step, None for continuous values), so that a part of a record
     is not sorted again for its levels."""
-    y = np.asarray(y, dtype=float)
-    if not np.all(np.isfinite(y)):
-        y = y[np.isfinite(y)]
+    y = _finite(y)
     return _piles_up(_extreme_counts(y, code), code, sigma, min_count)
+
+
+def _finite(y: np.ndarray) -> np.ndarray:
+    """The finite values of ``y`` as floats (``y`` itself when all are: no copy)."""
+    y = np.asarray(y, dtype=float)
+    return y if np.all(np.isfinite(y)) else y[np.isfinite(y)]
