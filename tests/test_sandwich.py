@@ -81,3 +81,37 @@ def test_shifted_traces_match_the_dense_matrices():
         dense = np.array([[np.sum(h * (sym(j) @ ((2 * np.eye(n) if k == 0 else sym(k)) @ x)))
                            for j in range(lags + 1)] for k in range(lags + 1)])
         assert np.allclose(_shifted_traces(h, x, lags), dense, rtol=1e-10, atol=1e-9)
+
+
+def test_held_influence_rows_give_the_chunked_covariance_bit_for_bit(monkeypatch):
+    # The influence rows of a block short enough are computed once and held; the covariance
+    # must be the one computed a chunk of rows at a time, to the last bit (same arithmetic).
+    import wavefit.fit.sandwich as sandwich
+    from wavefit.fit.engine import Block
+    from wavefit.fit.jacobian import Jacobian, Piece
+    from wavefit.fit.noise_model import ARNoise
+
+    n = 30_000
+    t = np.arange(2 * n, dtype=float)
+    basis = lambda a, b: np.column_stack([np.ones(b - a), np.exp(-t[a:b] / 3e3), t[a:b] / n])  # noqa: E731
+    jac = Jacobian(2 * n, [Piece(0, n, basis, np.array([[1.0, 0, 0, 0], [0, 1, 0, 0], [0, 0, 1, 0]])),
+                           Piece(n, 2 * n, basis, np.array([[1.0, 0, 0, 0], [0, 0, 1, 0], [0, 0, 0, 1]]))])
+    assert not jac.small
+    rng = np.random.default_rng(11)
+    r = np.empty(2 * n)
+    for start, phi in ((0, 0.95), (n, 0.6)):    # AR(1) noise in each block
+        e = rng.standard_normal(n)
+        for i in range(1, n):
+            e[i] += phi * e[i - 1]
+        r[start:start + n] = e
+    models = {"a": ARNoise(np.array([0.95]), 1 / np.sqrt(1 - 0.95 ** 2), 1.0, np.array([1 / (1 - 0.95 ** 2)])),
+              "b": ARNoise(np.array([0.6]), 1 / np.sqrt(1 - 0.6 ** 2), 1.0, np.array([1 / (1 - 0.6 ** 2)]))}
+    blocks = [Block(0, n, "a"), Block(n, 2 * n, "b")]
+    dense = jac.toarray()
+    white = np.vstack([models[b.group].whiten(dense[b.start:b.stop]) for b in blocks])
+    bread = np.linalg.inv(white.T @ white)
+    held = sandwich.sandwich_covariance(r, blocks, models, jac, bread, max_lag=300)
+    monkeypatch.setattr(sandwich, "HELD_VALUES", 0)
+    chunked = sandwich.sandwich_covariance(r, blocks, models, jac, bread, max_lag=300)
+    assert held is not None and max(held[1].values()) > 96     # past the direct lag sums: the FFT's path
+    assert np.array_equal(held[0], chunked[0]) and held[1] == chunked[1]

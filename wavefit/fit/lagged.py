@@ -120,7 +120,8 @@ def _chunk_lag_products(own: np.ndarray, ext: np.ndarray, lags: int) -> np.ndarr
     end counting as zero. The transform length holds every t + k without wrapping round."""
     size = 1 << int(math.ceil(math.log2(own.shape[0] + lags + 1)))
     left = np.conj(np.fft.rfft(own, size, axis=0))
-    right = np.fft.rfft(ext, size, axis=0)
+    # the chunk that reaches the record's end is its own reach: the same transform, conjugated
+    right = np.conj(left) if ext.shape[0] == own.shape[0] else np.fft.rfft(ext, size, axis=0)
     q = own.shape[1]
     out = np.empty((lags + 1, q, q))
     for i in range(q):

@@ -21,10 +21,11 @@ parameters its rows depend on, so memory does not grow with the record beyond it
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Callable, Sequence
 
 import numpy as np
+from numpy.lib.stride_tricks import as_strided, sliding_window_view
 
 from .jacobian import Jacobian, as_jacobian, is_small
 from .lagged import Rows, array_rows, cross_products, lag_grams
@@ -38,6 +39,13 @@ ALL_LAGS_VALUES = 1 << 20
 #: are taken in groups of this size, each group's spectra computed once per pair of groups.
 SPECTRA_BYTES = 64 * 2 ** 20
 
+#: A block's influence rows H = WᵀW·J are computed once and held when they number at most
+#: this many values (16 MB): the sandwich reads them four to six times (their cross products
+#: with J, their lag products for the fit correction, for the other group's term and for the
+#: meat), each time a whitening and its adjoint when taken a chunk at a time. Longer blocks
+#: keep the chunks, so memory does not grow with the record.
+HELD_VALUES = 1 << 21
+
 
 @dataclass(frozen=True)
 class Tall:
@@ -47,6 +55,8 @@ class Tall:
     rows: Rows
     n: int
     columns: np.ndarray
+    #: lag Gram matrices already computed, by number of lags (:meth:`lag_grams`)
+    _grams: dict = field(default_factory=dict, compare=False, repr=False)
 
     @classmethod
     def of(cls, array: np.ndarray) -> "Tall":
@@ -59,6 +69,19 @@ class Tall:
 
     def gather(self) -> np.ndarray:
         return self.rows(0, self.n)
+
+    def held(self) -> "Tall":
+        """The same matrix, its rows computed once and held as an array."""
+        return Tall(array_rows(self.gather()), self.n, self.columns)
+
+    def lag_grams(self, lags: int) -> np.ndarray:
+        """:func:`wavefit.fit.lagged.lag_grams` of this matrix for lags 0 … ``lags``, computed
+        once (the sandwich asks for a block's several times); read-only."""
+        if lags not in self._grams:
+            grams = lag_grams(self.rows, self.n, self.columns.size, lags)
+            grams.flags.writeable = False
+            self._grams[lags] = grams
+        return self._grams[lags]
 
 
 def correlation_extent(acov: np.ndarray, n: int, run: int = 10) -> int:
@@ -76,7 +99,7 @@ def lagged_gram(h: "np.ndarray | Tall", acov: np.ndarray) -> np.ndarray:
     """Σ_k γ_k Σ_n h_n h_{n+k}ᵀ over k = −K..K: hᵀ Σ h for Toeplitz Σ with autocovariance γ."""
     h = h if isinstance(h, Tall) else Tall.of(h)
     lags = min(acov.size - 1, h.n - 1)
-    return np.tensordot(acov[: lags + 1], lag_grams(h.rows, h.n, h.columns.size, lags), axes=1)
+    return np.tensordot(acov[: lags + 1], h.lag_grams(lags), axes=1)
 
 
 def sandwich_covariance(r: np.ndarray, blocks: Sequence, models: dict, jac: "np.ndarray | Jacobian",
@@ -133,7 +156,10 @@ def _block_views(jac: Jacobian, block, model) -> tuple[Tall, Tall, Tall]:
     def influence(a: int, b: int) -> np.ndarray:
         return model.adjoint_rows(white, n, a, b)
 
-    return Tall(raw, n, cols), Tall(white, n, cols), Tall(influence, n, cols)
+    influence_rows = Tall(influence, n, cols)
+    if n * cols.size <= HELD_VALUES:
+        influence_rows = influence_rows.held()
+    return Tall(raw, n, cols), Tall(white, n, cols), influence_rows
 
 
 def positive_definite(cov: np.ndarray) -> bool:
@@ -261,8 +287,8 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list, infl: list, 
         products[: m + 1] += [float(r[: n - k] @ r[k:]) for k in range(m + 1)]
         system[k_all[: m + 1], k_all[: m + 1]] += n - k_all[: m + 1]
         system[: m + 1, : m + 1] -= _shifted_traces(hb, jb.times(bread[np.ix_(cols, cols)]), m)
-        a_k = lag_grams(jb.rows, n, cols.size, m) * np.where(k_all[: m + 1] == 0, 1.0, 0.5)[:, None, None]
-        grams.append((cols, a_k, lag_grams(hb.rows, n, cols.size, m)))
+        a_k = jb.lag_grams(m) * np.where(k_all[: m + 1] == 0, 1.0, 0.5)[:, None, None]
+        grams.append((cols, a_k, hb.lag_grams(m)))
     p = bread.shape[0]
     if (lags + 1) * p * p <= ALL_LAGS_VALUES:
         # all lags at once on every parameter (the order of summation the fits always had)
@@ -271,7 +297,9 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list, infl: list, 
             block = np.ix_(np.arange(a_k.shape[0]), cols, cols)
             a_all[block] += a_k
             g_all[block] += g
-        system += np.einsum("kab,jba->kj", a_all, bread @ g_all @ bread)
+        # Σ_ab A_k[a, b]·V_j[b, a] as one matrix product (einsum's loop took 30 ms at 1,000 lags)
+        v_all = bread @ g_all @ bread
+        system += a_all.reshape(lags + 1, -1) @ np.transpose(v_all, (0, 2, 1)).reshape(lags + 1, -1).T
         products -= np.einsum("kab,ba->k", a_all, other_cov)
     else:
         # one lag of H at a time, each block's J on its own parameters: memory of a p × p matrix
@@ -326,25 +354,48 @@ def _shifted_traces(h: "np.ndarray | Tall", x: "np.ndarray | Tall", lags: int) -
     def whole(d):  # c(d) for |d| ≤ 2m
         return cross[d + 2 * m]
 
-    offsets = np.arange(-m, m + 1)[:, None]
+    def partial(first, descending):
+        """Σ over rows i of first … first+m−1 of h_i·x_{i+d} for d = −m … m (rows [d + m]),
+        running along the rows: ascending, or from the last row down when ``descending``.
 
-    def partial(rows, base):  # Σ over the given rows i of h_i·x_{i+d}, running along rows, for |d| ≤ m
-        idx = rows[None, :] + offsets
-        ok = (idx >= 0) & (idx < n)
-        hr = h.rows(int(rows.min()), int(rows.max()) + 1)[rows - rows.min()] if rows.size else np.zeros((0, h.columns.size))
-        xl = x.rows(base, min(n, base + 3 * m + 1))
-        local = np.clip(idx - base, 0, xl.shape[0] - 1)
-        prod = np.einsum("ip,dip->di", hr, xl[local]) * ok
-        return np.concatenate((np.zeros((offsets.size, 1)), np.cumsum(prod, axis=1)), axis=1)
+        The products of the m rows of h with the 3m rows of x within reach come from one
+        matrix product; the pairs i, i + d lie on its diagonals (rows of x outside the record
+        are zeros, so their products are zero)."""
+        hr = h.rows(first, first + m)
+        lo = first - m                                    # the row of x of column 0
+        xr = np.zeros((3 * m, hr.shape[1]))
+        a, b = max(lo, 0), min(lo + 3 * m, n)
+        xr[a - lo:b - lo] = x.rows(a, b)
+        c = hr @ xr.T                                     # c[t, s] = h_{first+t}·x_{lo+s}
+        step, size = c.strides[1], c.strides[0]
+        prod = as_strided(c, shape=(m, 2 * m + 1), strides=(size + step, step),
+                                               writeable=False)   # prod[t, d + m] = c[t, t + d + m]
+        if descending:
+            prod = prod[::-1]
+        running = np.zeros((m + 1, 2 * m + 1))
+        for t in range(m):  # a row of offsets at a time (np.cumsum along this axis took 5x longer)
+            np.add(running[t], prod[t], out=running[t + 1])
+        return running.T
 
-    head = partial(np.arange(m), 0)                                   # head[d, j] = Σ_{i<j}
-    tail = partial(np.arange(n - 1, n - 1 - m, -1), max(0, n - 2 * m - 1))  # tail[d, j] = Σ_{i ≥ n−j}
-    k, j = np.meshgrid(np.arange(m + 1), np.arange(m + 1), indexing="ij")
-    out = (whole(j + k) + whole(-(j + k))
-           + whole(j - k) - tail[j - k + m, j]        # x_{i+j−k}: i + j inside
-           + whole(k - j) - head[k - j + m, j])       # x_{i−j+k}: i − j inside
+    head = partial(0, False)         # head[d, j] = Σ_{i<j}
+    tail = partial(n - m, True)      # tail[d, j] = Σ_{i ≥ n−j}
+    # the terms as (m+1)² views [k, j] of c and of head and tail (no index arrays)
+    by_sum = sliding_window_view(cross[2 * m:], m + 1)               # c(j + k)
+    by_sum_negative = sliding_window_view(cross[2 * m::-1], m + 1)   # c(−(j + k))
+    by_difference = sliding_window_view(cross[m:3 * m + 1], m + 1)   # [a, b]: c(a + b − m)
+    out = (by_sum + by_sum_negative
+           + by_difference[::-1] - _diagonal_rows(tail)[::-1]       # x_{i+j−k}: i + j inside
+           + by_difference[:, ::-1] - _diagonal_rows(head[::-1])[::-1])  # x_{i−j+k}: i − j inside
     # T_0 = I and U_0 = 2I: a lag of zero counts its one row once per side
     kk, jj = np.arange(m + 1), np.arange(1, m + 1)
     out[:, 0] = np.where(kk == 0, 2.0 * whole(0 * kk), whole(kk) + whole(-kk))
     out[0, 1:] = 2.0 * (whole(jj) + whole(-jj))
     return out
+
+
+def _diagonal_rows(a: np.ndarray) -> np.ndarray:
+    """The (c+1) × c view v[r, j] = a[r + j, j] of a (2c+1) × c array (rows r … r+c down the
+    diagonals)."""
+    rows, cols = a.shape
+    return as_strided(a, shape=(rows - cols + 1, cols), strides=(a.strides[0], a.strides[0] + a.strides[1]),
+                      writeable=False)
