@@ -16,6 +16,7 @@ import math
 from typing import Callable
 
 import numpy as np
+from scipy.fft import next_fast_len
 
 from .jacobian import chunk_rows
 
@@ -25,12 +26,16 @@ Rows = Callable[[int, int], np.ndarray]
 #: summed directly (a matrix product per lag); beyond, through the FFT, whose cost does not
 #: grow with the lags. Measured by benchmarks/lag_grams_time.py: equal at 64–128 lags for 3
 #: and 7 columns (1e5 rows), the FFT 9–12x faster at 1,000 lags; the two agree to 1e-15.
+#: Since the FFT takes a length of small primes and one inverse per pair of columns (2026-12)
+#: it is equal at 32–64 lags and 19–25x faster at 1,000; the switch stays where it was, so
+#: that the fits with 33–96 lags keep their numbers (the direct sums cost them at most 20 ms).
 DIRECT_LAGS = 96
 FEW_COLUMNS = 8
 #: The same for wider matrices (the splines' design matrices, up to about a hundred columns):
 #: the FFT takes one inverse transform per pair of columns while the matrix products grow
 #: more efficient, so the two were equal near 200–320 lags for 25, 50 and 100 columns
-#: (2e4 rows), the FFT 3.5–4x faster at 1,000 lags.
+#: (2e4 rows), the FFT 3.5–4x faster at 1,000 lags (since 2026-12: equal below 100 lags for 25
+#: columns and near 150 for 100, 5–10x faster at 1,000; the switch kept, as above).
 DIRECT_LAGS_WIDE = 256
 
 
@@ -98,13 +103,14 @@ def lag_grams(x: Rows, n: int, columns: int, lags: int) -> np.ndarray:
     correlation theorem: one transform of the chunk and one of it with the rows within reach,
     then one inverse per pair of columns), O(n·log n) instead of O(n·lags)."""
     out = np.zeros((lags + 1, columns, columns))
-    through_fft = lags > (DIRECT_LAGS if columns <= FEW_COLUMNS else DIRECT_LAGS_WIDE)
+    if lags > (DIRECT_LAGS if columns <= FEW_COLUMNS else DIRECT_LAGS_WIDE):
+        for a, b in _chunks(n, columns, lags):
+            ext = x(a, min(n, b + lags))
+            out += _chunk_lag_grams(ext[: b - a], ext, lags)
+        return out
     for a, b in _chunks(n, columns, lags):
         ext = x(a, min(n, b + lags))
         own = ext[: b - a]
-        if through_fft:
-            out += _chunk_lag_products(own, ext, lags)
-            continue
         out[0] += own.T @ own
         for k in range(1, lags + 1):
             pairs = min(b - a, ext.shape[0] - k)
@@ -115,18 +121,28 @@ def lag_grams(x: Rows, n: int, columns: int, lags: int) -> np.ndarray:
     return out
 
 
-def _chunk_lag_products(own: np.ndarray, ext: np.ndarray, lags: int) -> np.ndarray:
-    """Σ_t own_tᵀ·ext_{t+k} for k = 0 … lags (shape (lags+1, q, q)), rows of ``ext`` beyond its
-    end counting as zero. The transform length holds every t + k without wrapping round."""
-    size = 1 << int(math.ceil(math.log2(own.shape[0] + lags + 1)))
+def _chunk_lag_grams(own: np.ndarray, ext: np.ndarray, lags: int) -> np.ndarray:
+    """The chunk's part of :func:`lag_grams`: Σ_t own_tᵀ·ext_{t+k} for k = 0 … lags, plus its
+    transpose for k ≥ 1 (shape (lags+1, q, q)), rows of ``ext`` beyond its end counting as
+    zero. The transform length, a product of small primes, holds every t + k without wrapping
+    round; columns i and j take one inverse transform for both orders (the transform is linear),
+    lag 0 half of it."""
+    size = next_fast_len(own.shape[0] + lags + 1, real=True)
     left = np.conj(np.fft.rfft(own, size, axis=0))
     # the chunk that reaches the record's end is its own reach: the same transform, conjugated
     right = np.conj(left) if ext.shape[0] == own.shape[0] else np.fft.rfft(ext, size, axis=0)
     q = own.shape[1]
     out = np.empty((lags + 1, q, q))
     for i in range(q):
-        for j in range(q):
-            out[:, i, j] = np.fft.irfft(left[:, i] * right[:, j], size)[: lags + 1]
+        for j in range(i, q):
+            if i == j:
+                lagged = np.fft.irfft(left[:, i] * right[:, i], size)[: lags + 1]
+                out[:, i, i] = lagged
+                out[1:, i, i] += lagged[1:]
+            else:
+                both = np.fft.irfft(left[:, i] * right[:, j] + left[:, j] * right[:, i], size)[: lags + 1]
+                both[0] *= 0.5
+                out[:, i, j] = out[:, j, i] = both
     return out
 
 
