@@ -12,7 +12,6 @@ its row count ``n``; :func:`array_rows` wraps an array.
 """
 from __future__ import annotations
 
-import math
 from typing import Callable
 
 import numpy as np
@@ -58,15 +57,15 @@ def cross_products(h: Rows, x: Rows, n: int, columns: int, low: int, high: int) 
         if xlo >= xhi:
             continue
         # corr[s] = Σ_t h_{a+t}·x_{xlo+(t+s) mod size}, and x_{i+d} is at t + s = i − a + d − (xlo − a):
-        # the padding keeps every index that falls outside x's rows on a zero. (The sizes and the
-        # order of the products are those the noise models and the sandwich took on a record of
-        # one chunk: twice its length for a chunk with itself, one more than needed otherwise.)
+        # the padding keeps every index that falls outside x's rows on a zero. The length is the
+        # least product of small primes that holds them (a power of two, and twice the chunk for
+        # a chunk with itself, until 2026-12: up to three times the work, the same sums to 1e-16).
         if h is x and (xlo, xhi) == (a, b):  # lag products of a chunk with itself: one transform
-            size = 1 << int(math.ceil(math.log2(max(2 * (b - a), (b - a) + max(hi, -lo) + 1))))
+            size = next_fast_len((b - a) + max(hi, -lo) + 1, real=True)
             own = np.fft.rfft(h(a, b), size, axis=0)
             spectrum = own * np.conj(own)
         else:
-            size = 1 << int(math.ceil(math.log2(max(b + hi - xlo, xhi - a - lo) + 1)))
+            size = next_fast_len(max(b + hi - xlo, xhi - a - lo) + 1, real=True)
             spectrum = np.conj(np.fft.rfft(h(a, b), size, axis=0)) * np.fft.rfft(x(xlo, xhi), size, axis=0)
         corr = np.fft.irfft(spectrum if spectrum.ndim == 1 else np.sum(spectrum, axis=1), size)
         out[lo - low:hi - low + 1] += corr[np.mod(np.arange(lo, hi + 1) + (a - xlo), size)]
@@ -78,7 +77,7 @@ def lag_sums(x: np.ndarray, offset: float, lags: int) -> np.ndarray:
 
     Up to :data:`DIRECT_LAGS` lags each sum is a dot product of the record with itself shifted,
     a chunk of samples at a time (31 lags of 3·10⁵ samples: a few milliseconds, where the FFT
-    of :func:`cross_products` takes tens, its transform being twice the record long); beyond,
+    of :func:`cross_products` took tens when its transform was twice the record long); beyond,
     :func:`cross_products`."""
     n = x.size
     if lags > DIRECT_LAGS:
