@@ -28,7 +28,7 @@ import numpy as np
 from numpy.lib.stride_tricks import as_strided, sliding_window_view
 
 from .jacobian import Jacobian, as_jacobian, is_small
-from .lagged import Rows, array_rows, cross_products, lag_grams
+from .lagged import Rows, array_rows, cross_products, lag_grams, lag_sums
 from .noise_model import autocovariance
 
 #: The lagged Gram matrices of every parameter pair are held for all lags at once when they
@@ -284,7 +284,7 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list, infl: list, 
         cols = jb.columns
         n = r.size
         m = min(lags, n - 1)
-        products[: m + 1] += [float(r[: n - k] @ r[k:]) for k in range(m + 1)]
+        products[: m + 1] += lag_sums(r, 0.0, m)
         system[k_all[: m + 1], k_all[: m + 1]] += n - k_all[: m + 1]
         system[: m + 1, : m + 1] -= _shifted_traces(hb, jb.times(bread[np.ix_(cols, cols)]), m)
         a_k = jb.lag_grams(m) * np.where(k_all[: m + 1] == 0, 1.0, 0.5)[:, None, None]
