@@ -368,8 +368,8 @@ def _shifted_traces(h: "np.ndarray | Tall", x: "np.ndarray | Tall", lags: int) -
         xr[a - lo:b - lo] = x.rows(a, b)
         c = hr @ xr.T                                     # c[t, s] = h_{first+t}·x_{lo+s}
         step, size = c.strides[1], c.strides[0]
-        prod = as_strided(c, shape=(m, 2 * m + 1), strides=(size + step, step),
-                                               writeable=False)   # prod[t, d + m] = c[t, t + d + m]
+        # prod[t, d + m] = c[t, t + d + m]
+        prod = as_strided(c, shape=(m, 2 * m + 1), strides=(size + step, step), writeable=False)
         if descending:
             prod = prod[::-1]
         running = np.zeros((m + 1, 2 * m + 1))
@@ -394,8 +394,8 @@ def _shifted_traces(h: "np.ndarray | Tall", x: "np.ndarray | Tall", lags: int) -
 
 
 def _diagonal_rows(a: np.ndarray) -> np.ndarray:
-    """The (c+1) × c view v[r, j] = a[r + j, j] of a (2c+1) × c array (rows r … r+c down the
-    diagonals)."""
+    """The view v[r, j] = a[r + j, j] of a rows × cols array, for r = 0 … rows − cols: each row
+    of v a diagonal of a, read down from a's row r."""
     rows, cols = a.shape
     return as_strided(a, shape=(rows - cols + 1, cols), strides=(a.strides[0], a.strides[0] + a.strides[1]),
                       writeable=False)
