@@ -309,3 +309,48 @@ def test_rows_without_values_before_and_after_the_data_are_left_out(tmp_path: Pa
     dropped = [w for w in capture.warnings if "without any value" in w]
     assert len(dropped) == 1 and dropped[0].startswith("3 rows") and "line 2" in dropped[0]
     assert any("filled by linear interpolation" in w for w in capture.warnings)
+
+
+def _cut_file(tmp_path: Path, tail: str, ending: str, name: str = "cut.csv", encoding: str = "utf-8",
+              compress: bool = False) -> Path:
+    """A capture whose last line is ``tail`` and whose text ends with ``ending`` after it (a
+    write cut short ends inside a line, with no line break)."""
+    import gzip
+
+    time = np.arange(N) * DT
+    text = "\n".join(["Time (s);CH1 (V);CH2 (V)",
+                      *[f"{t:.12g};{v:.9f};{-v:.9f}" for t, v in zip(time, _signal())], tail]) + ending
+    data = text.encode(encoding)
+    path = tmp_path / name
+    path.write_bytes(gzip.compress(data) if compress else data)
+    return path
+
+
+@pytest.mark.parametrize("encoding, compress", [("utf-8", False), ("utf-8", True), ("utf-16", False),
+                                                ("latin-1", True)])
+def test_a_last_line_cut_short_is_left_out_with_a_warning(tmp_path: Path, encoding: str, compress: bool) -> None:
+    # the file ends inside its last line: CH1 cut to "0.3" (of 0.3125…) and CH2 missing; the row
+    # is dropped whole (not filled in), and the warning names its line and the empty cell
+    path = _cut_file(tmp_path, f"{N * DT:.12g};0.3", "", encoding=encoding, compress=compress)
+    capture = read_capture(path)
+    assert capture.rows == N
+    cut = [w for w in capture.warnings if "cut short" in w]
+    assert len(cut) == 1 and f"line {N + 2}" in cut[0] and "'CH2 (V)'" in cut[0] and "'CH1 (V)'" not in cut[0]
+    assert not any("filled" in w for w in capture.warnings)
+    np.testing.assert_allclose(capture.channels[0].values, _signal(), rtol=0, atol=1e-9)   # no 0.3 at the end
+
+
+def test_a_complete_last_line_without_a_line_break_is_kept(tmp_path: Path) -> None:
+    path = _cut_file(tmp_path, f"{N * DT:.12g};0.25;-0.25", "")
+    capture = read_capture(path)
+    assert capture.rows == N + 1 and capture.channels[0].values[-1] == 0.25
+    assert not capture.warnings
+
+
+@pytest.mark.parametrize("ending", ["\n", "\r\n", "\n\x1a"])
+def test_an_empty_last_cell_on_a_line_with_its_break_is_filled_as_anywhere(tmp_path: Path, ending: str) -> None:
+    path = _cut_file(tmp_path, f"{N * DT:.12g};0.25;", ending)
+    capture = read_capture(path)
+    assert capture.rows == N + 1 and capture.channels[0].values[-1] == 0.25
+    assert not any("cut short" in w for w in capture.warnings)
+    assert any("filled by linear interpolation" in w for w in capture.warnings)

@@ -16,7 +16,7 @@ import re
 from collections.abc import Iterator, Sequence
 from contextlib import nullcontext
 from typing import BinaryIO
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -35,6 +35,8 @@ MAX_FOOTER_LINES = 2000
 #: goes on (the text line broke it), not that a footer began.
 RESUMED_ROWS = 5
 _END_OF_FILE = "\x1a"
+#: Bytes read back from a file's end to see whether its last line has its line break.
+_TAIL_BYTES = 64
 _SKIP_CHUNK = 1 << 16
 _WORD = re.compile(r"[^\W\d_]{2,}")
 _LEADING_NUMBER = re.compile(r"\s*[+-]?\.?[0-9]")
@@ -111,6 +113,45 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
     if not layout.side_rows:
         _refuse_values_in_unread_cells(columns, source, layout, encoding)
     return Body([columns[j] for j in layout.fields], footer, resolution)
+
+
+def without_cut_last_line(source: FileSource, layout: Layout, encoding: str, body: Body) -> tuple[Body, str | None]:
+    """The body without its last row when the file ends inside that row's line, and a warning.
+
+    A row with an empty cell on the last line of a file that ends without a line break is
+    a write cut short (a capture stopped, a copy interrupted): its other cells may be cut
+    too (``0,3`` of ``0,3125``) and read as plausible numbers, so the whole row is left
+    out, not filled in. A last row whose cells are all there is kept (many writers end
+    the file without a line break), as is an empty cell on a line that has its break
+    (filled in and named, as anywhere in the table).
+    """
+    if body.footer or not body.columns or body.columns[0].size == 0:
+        return body, None
+    empty = [h for h, c in zip(layout.headers, body.columns) if np.isnan(c[-1])]
+    if not empty or not _ends_inside_a_line(source, encoding):
+        return body, None
+    line = line_numbers(source, layout, encoding, [body.columns[0].size - 1])[0]
+    cells = ", ".join(repr(h) for h in empty)
+    warning = (f"line {line}, the file's last, ends without a line break and with no value in {cells}: "
+               "a write cut short, so that row is left out (its other cells may be cut too)")
+    return replace(body, columns=[c[:-1] for c in body.columns]), warning
+
+
+def _ends_inside_a_line(source: FileSource, encoding: str) -> bool:
+    """Whether the file's text ends without a line break after its last cell (blanks and a
+    DOS end-of-file mark aside); a compressed file is read through to its end."""
+    with source.open_binary() as raw:
+        mark = raw.read(2) if encoding == "utf-16" else b""  # its byte order, for the tail
+        if source.compressed:
+            tail = b""
+            for chunk in iter(lambda: raw.read(_SKIP_CHUNK), b""):
+                tail = (tail + chunk)[-_TAIL_BYTES:]
+        else:
+            size = raw.seek(0, os.SEEK_END)
+            raw.seek(max(len(mark), size - _TAIL_BYTES))  # even, as UTF-16 files' sizes are
+            tail = raw.read()
+    text = (mark + tail).decode(encoding, errors="replace").rstrip(" \t" + _END_OF_FILE)
+    return bool(text) and not text.endswith(("\n", "\r"))
 
 
 class _UnreadableStamp(ValueError):

@@ -8,7 +8,7 @@ from dataclasses import replace
 
 from ..errors import CaptureError
 from .assemble import Table, assemble
-from .body import Body, line_numbers, read_body
+from .body import Body, line_numbers, read_body, without_cut_last_line
 from .capture import Capture
 from .encoding import decode_head
 from .layout import Layout, sniff_layout
@@ -72,9 +72,11 @@ def _read(path: str | os.PathLike[str], sample_interval: float | None, time_colu
     head = decode_head(raw, complete=complete, source=source.name)
     layout = sniff_layout(head.text, complete=complete, source=source.name, max_lines=SNIFF_LINES)
     preamble = read_preamble(layout.preamble, layout.sep)
-    body = read_body(source, layout, head.encoding)
+    body, cut = without_cut_last_line(source, layout, head.encoding, read_body(source, layout, head.encoding))
     if body.footer:
         preamble = _with_footer(preamble, body.footer, layout.sep)
+    if cut:
+        preamble = replace(preamble, warnings=(*preamble.warnings, cut))
 
     def where(rows: Sequence[int]) -> list[str]:
         return [f"line {n}" for n in line_numbers(source, layout, head.encoding, rows)]
