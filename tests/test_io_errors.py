@@ -107,6 +107,25 @@ def test_text_only(tmp_path: Path) -> None:
     assert "no data rows" in _message(_write(tmp_path, "Exported capture\nnothing was recorded\n"))
 
 
+@pytest.mark.parametrize("header", [True, False], ids=["named", "unnamed"])
+def test_a_column_of_text_beside_the_numbers_is_named(tmp_path: Path, header: bool) -> None:
+    # a status column ("ok", "TRIG") in every row: no line is all numbers, and the message says
+    # which column holds the text (by its header, else its place), from the first data line on
+    rows = [f"{i * 1e-8:.10e};{np.sin(i / 7):.6f};{'TRIG' if i == 0 else 'ok'};{np.cos(i / 5):.6f}".replace(".", ",")
+            for i in range(300)]
+    lines = ["# recorder export", *(["Time (s);CH1 (V);Status;CH2 (V)"] if header else []), *rows]
+    message = _message(_write(tmp_path, "\n".join(lines) + "\n"))
+    first = 3 if header else 2
+    assert f"line {first} on" in message and "'TRIG'" in message and "semicolon" in message
+    assert ("'Status'" if header else "cell 3") in message
+
+
+def test_lines_of_prose_are_not_taken_for_a_text_column(tmp_path: Path) -> None:
+    prose = "\n".join(f"note {i}: the probe was moved and the trace redrawn" for i in range(30))
+    message = _message(_write(tmp_path, prose + "\n"))
+    assert "no data rows" in message and "text in" not in message
+
+
 def test_too_few_rows(tmp_path: Path) -> None:
     message = _message(_write(tmp_path, "\n".join([HEADER, *_rows(10)])))
     assert "only 10 data rows" in message and "at least 16" in message

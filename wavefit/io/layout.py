@@ -467,6 +467,9 @@ def bad_cell_message(source: str, line_number: int, found: str) -> str:
 
 def _no_table_message(lines: list[str], complete: bool, source: str) -> str:
     """Message for text in which no numeric row was found."""
+    text_column = _text_column_message(lines, source)
+    if text_column is not None:
+        return text_column
     nonblank = sum(1 for line in lines if line.strip())
     if complete:
         what = "a header line only" if nonblank == 1 else f"{nonblank} lines of text"
@@ -478,3 +481,58 @@ def _no_table_message(lines: list[str], complete: bool, source: str) -> str:
         f"{source}: no line of numbers in its first {len(lines)} lines; "
         "is it a waveform table in CSV text?"
     )
+
+
+#: Rows of one shape with text in the same cells, and numbers in the others, that make a table
+#: with a column of text (a status or flag column) rather than lines of prose.
+_TEXT_COLUMN_ROWS = 10
+
+
+def _text_column_message(lines: list[str], source: str) -> str | None:
+    """Message naming a column of text in a table that is otherwise numbers, when the last rows
+    of ``lines`` make one (under the separator and decimal mark that give them the most
+    numbers: at least :data:`_TEXT_COLUMN_ROWS` rows of one shape, text in the same cells of
+    each and numbers in at least two others); None when they do not."""
+    rows = [(i, line) for i, line in enumerate(lines) if line.strip()][-_TEXT_COLUMN_ROWS:]
+    if len(rows) < _TEXT_COLUMN_ROWS:
+        return None
+    best: tuple[int, str, str, int, tuple[int, ...]] | None = None
+    for sep in SEPARATORS:
+        for decimal in (".", ","):
+            if sep == decimal and sep != ",":
+                continue
+            shapes = set()
+            for _, line in rows:
+                cells = split_line(line, sep)
+                numbers = [is_number(c, decimal) or is_clock(c) for c in cells]
+                text = tuple(j for j, c in enumerate(cells) if not numbers[j] and not is_missing(c))
+                shapes.add((len(cells), text, sum(numbers)))
+            if len(shapes) != 1:
+                continue
+            (width, text, numbers), = shapes
+            if text and numbers >= 2 and (best is None or numbers > best[0]):
+                best = (numbers, sep, decimal, width, text)
+    if best is None:
+        return None
+    _, sep, decimal, width, text = best
+    first = rows[0][0]
+    while first > 0 and _same_text_cells(lines[first - 1], sep, decimal, width, text):
+        first -= 1
+    above = _previous_nonblank(lines, first)
+    names = split_line(lines[above], sep) if above is not None else []
+    named = len(names) == width and not any(is_number(c, decimal) for c in names)
+    which = ", ".join(repr(names[j].strip()) if named else f"cell {j + 1}" for j in text)
+    sample = split_line(lines[first], sep)[text[0]].strip()
+    return (f"{source}, line {first + 1} on: every row has text in {which} (such as {sample[:20]!r}) "
+            f"beside its numbers ({_SEPARATOR_NAMES[sep]}-separated); wavefit reads columns of numbers "
+            f"only: delete {'that column' if len(text) == 1 else 'those columns'} or export without")
+
+
+def _same_text_cells(line: str, sep: str, decimal: str, width: int, text: tuple[int, ...]) -> bool:
+    """Whether ``line`` has ``width`` cells with text in exactly the cells ``text``."""
+    if not line.strip():
+        return False
+    cells = split_line(line, sep)
+    return len(cells) == width and tuple(
+        j for j, c in enumerate(cells) if not (is_number(c, decimal) or is_clock(c) or is_missing(c))) == text
+
