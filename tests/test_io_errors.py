@@ -120,10 +120,22 @@ def test_a_column_of_text_beside_the_numbers_is_named(tmp_path: Path, header: bo
     assert ("'Status'" if header else "cell 3") in message
 
 
-def test_lines_of_prose_are_not_taken_for_a_text_column(tmp_path: Path) -> None:
-    prose = "\n".join(f"note {i}: the probe was moved and the trace redrawn" for i in range(30))
+@pytest.mark.parametrize("line", [
+    "note {i}: the probe was moved and the trace redrawn",
+    "Step {i} of 30: applied 5 V to the coil for 10 ms",           # numbers, but text the most
+    "2024-05-01 12:00:{i:02d} INFO reading 3.{i:02d}",              # a log: text as much as numbers
+])
+def test_lines_of_prose_or_a_log_are_not_taken_for_a_text_column(tmp_path: Path, line: str) -> None:
+    prose = "\n".join(line.format(i=i) for i in range(30))
     message = _message(_write(tmp_path, prose + "\n"))
     assert "no data rows" in message and "text in" not in message
+
+
+def test_a_text_column_is_named_when_a_footer_follows_the_table(tmp_path: Path) -> None:
+    rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f},ok" for i in range(50)]
+    text = "\n".join(["Time (s),CH1 (V),Flag", *rows, "", "Settings", "Probe: 10X"]) + "\n"
+    message = _message(_write(tmp_path, text))
+    assert "line 2 on" in message and "'Flag'" in message and "comma" in message
 
 
 def test_too_few_rows(tmp_path: Path) -> None:

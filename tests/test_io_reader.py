@@ -318,7 +318,7 @@ def _cut_file(tmp_path: Path, tail: str, ending: str, name: str = "cut.csv", enc
     import gzip
 
     time = np.arange(N) * DT
-    text = "\n".join(["Time (s);CH1 (V);CH2 (V)",
+    text = "\n".join(["# operator: Müller", "Time (s);CH1 (V);CH2 (V)",   # a letter beyond ASCII
                       *[f"{t:.12g};{v:.9f};{-v:.9f}" for t, v in zip(time, _signal())], tail]) + ending
     data = text.encode(encoding)
     path = tmp_path / name
@@ -335,7 +335,7 @@ def test_a_last_line_cut_short_is_left_out_with_a_warning(tmp_path: Path, encodi
     capture = read_capture(path)
     assert capture.rows == N
     cut = [w for w in capture.warnings if "cut short" in w]
-    assert len(cut) == 1 and f"line {N + 2}" in cut[0] and "'CH2 (V)'" in cut[0] and "'CH1 (V)'" not in cut[0]
+    assert len(cut) == 1 and f"line {N + 3}" in cut[0] and "'CH2 (V)'" in cut[0] and "'CH1 (V)'" not in cut[0]
     assert not any("filled" in w for w in capture.warnings)
     np.testing.assert_allclose(capture.channels[0].values, _signal(), rtol=0, atol=1e-9)   # no 0.3 at the end
 
@@ -354,3 +354,15 @@ def test_an_empty_last_cell_on_a_line_with_its_break_is_filled_as_anywhere(tmp_p
     assert capture.rows == N + 1 and capture.channels[0].values[-1] == 0.25
     assert not any("cut short" in w for w in capture.warnings)
     assert any("filled by linear interpolation" in w for w in capture.warnings)
+
+
+@pytest.mark.parametrize("tail, kept_rows, warned", [
+    (f"{N * DT:.12g};0.25;NaN", N + 1, "filled"),        # a missing-value word is written, not cut
+    (";;", N, "without any value"),                       # no value at all: the rule for empty end rows
+])
+def test_a_written_missing_value_or_an_empty_row_at_the_end_is_not_taken_for_a_cut(
+        tmp_path: Path, tail: str, kept_rows: int, warned: str) -> None:
+    capture = read_capture(_cut_file(tmp_path, tail, ""))
+    assert capture.rows == kept_rows
+    assert not any("cut short" in w for w in capture.warnings)
+    assert any(warned in w for w in capture.warnings)

@@ -56,7 +56,7 @@ class Tall:
     n: int
     columns: np.ndarray
     #: lag Gram matrices already computed, by number of lags (:meth:`lag_grams`)
-    _grams: dict = field(default_factory=dict, compare=False, repr=False)
+    _grams: dict = field(default_factory=dict, init=False, compare=False, repr=False)
 
     @classmethod
     def of(cls, array: np.ndarray) -> "Tall":

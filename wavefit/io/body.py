@@ -24,7 +24,7 @@ import pandas as pd
 from ..errors import CaptureError
 from .cells import NA_TOKENS, WHITESPACE, is_missing, is_number, row_pattern, split_line
 from .clock import is_clock, read_clock_column
-from .layout import Layout, bad_cell_message
+from .layout import Layout, bad_cell_message, split_lines
 from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
 
@@ -35,8 +35,9 @@ MAX_FOOTER_LINES = 2000
 #: goes on (the text line broke it), not that a footer began.
 RESUMED_ROWS = 5
 _END_OF_FILE = "\x1a"
-#: Bytes read back from a file's end to see whether its last line has its line break.
-_TAIL_BYTES = 64
+#: Bytes read back from a file's end for its last line and whether that has its line break
+#: (a row of a capture is tens of bytes; a longer last line is not judged).
+_TAIL_BYTES = 4096
 _SKIP_CHUNK = 1 << 16
 _WORD = re.compile(r"[^\W\d_]{2,}")
 _LEADING_NUMBER = re.compile(r"\s*[+-]?\.?[0-9]")
@@ -118,28 +119,38 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
 def without_cut_last_line(source: FileSource, layout: Layout, encoding: str, body: Body) -> tuple[Body, str | None]:
     """The body without its last row when the file ends inside that row's line, and a warning.
 
-    A row with an empty cell on the last line of a file that ends without a line break is
-    a write cut short (a capture stopped, a copy interrupted): its other cells may be cut
-    too (``0,3`` of ``0,3125``) and read as plausible numbers, so the whole row is left
-    out, not filled in. A last row whose cells are all there is kept (many writers end
-    the file without a line break), as is an empty cell on a line that has its break
-    (filled in and named, as anywhere in the table).
+    A last line that the file ends inside (no line break after it) and that lacks cells, or
+    has an empty one, where others hold values, is a write cut short (a capture stopped, a
+    copy interrupted): its other cells may be cut too (``0,3`` of ``0,3125``) and read as
+    plausible numbers, so the whole row is left out, not filled in. Kept: a last row whose
+    cells are all there (many writers end the file without a line break), a missing-value
+    word such as ``NaN`` (written, not cut), an empty cell on a line that has its break
+    (filled in and named, as anywhere in the table), and a row with no value at all (left
+    out by the rule for empty rows at the table's ends).
     """
     if body.footer or not body.columns or body.columns[0].size == 0:
         return body, None
-    empty = [h for h, c in zip(layout.headers, body.columns) if np.isnan(c[-1])]
-    if not empty or not _ends_inside_a_line(source, encoding):
+    if not any(np.isnan(c[-1]) for c in body.columns):  # no cell of the last row is missing
         return body, None
-    line = line_numbers(source, layout, encoding, [body.columns[0].size - 1])[0]
-    cells = ", ".join(repr(h) for h in empty)
-    warning = (f"line {line}, the file's last, ends without a line break and with no value in {cells}: "
+    line = _unterminated_last_line(source, encoding)
+    if line is None:
+        return body, None
+    cells = split_line(line, layout.sep)
+    read = [cells[j].strip() if j < len(cells) else "" for j in layout.fields]
+    empty = [h for h, cell in zip(layout.headers, read) if not cell]
+    if not empty or len(empty) == len(read):
+        return body, None
+    number = line_numbers(source, layout, encoding, [body.columns[0].size - 1])[0]
+    named = ", ".join(repr(h) for h in empty)
+    warning = (f"line {number}, the file's last, ends without a line break and with no value in {named}: "
                "a write cut short, so that row is left out (its other cells may be cut too)")
     return replace(body, columns=[c[:-1] for c in body.columns]), warning
 
 
-def _ends_inside_a_line(source: FileSource, encoding: str) -> bool:
-    """Whether the file's text ends without a line break after its last cell (blanks and a
-    DOS end-of-file mark aside); a compressed file is read through to its end."""
+def _unterminated_last_line(source: FileSource, encoding: str) -> str | None:
+    """The file's last line when the file ends inside it (no line break after its last cell,
+    blanks and a DOS end-of-file mark aside), else None; also None when the line is longer than
+    the :data:`_TAIL_BYTES` read back from the end. A compressed file is read through to its end."""
     with source.open_binary() as raw:
         mark = raw.read(2) if encoding == "utf-16" else b""  # its byte order, for the tail
         if source.compressed:
@@ -151,7 +162,10 @@ def _ends_inside_a_line(source: FileSource, encoding: str) -> bool:
             raw.seek(max(len(mark), size - _TAIL_BYTES))  # even, as UTF-16 files' sizes are
             tail = raw.read()
     text = (mark + tail).decode(encoding, errors="replace").rstrip(" \t" + _END_OF_FILE)
-    return bool(text) and not text.endswith(("\n", "\r"))
+    if not text or text.endswith(("\n", "\r")):
+        return None
+    lines = split_lines(text)
+    return lines[-1] if len(lines) > 1 else None
 
 
 class _UnreadableStamp(ValueError):

@@ -145,9 +145,7 @@ def sniff_layout(text: str, *, complete: bool, source: str, max_lines: int = 200
         raise CaptureError(f"{source} contains only blank lines; export the capture again")
     best: tuple[tuple[int, ...], str, str, _Run] | None = None
     for priority, sep in enumerate(SEPARATORS):
-        for decimal in (".", ","):
-            if sep == decimal and sep != ",":
-                continue  # "," with "," only works with quoted cells: "0,5","1,2"
+        for decimal in (".", ","):  # "," with "," too: it reads quoted cells ("0,5","1,2")
             run = _longest_run(lines, sep, decimal)
             if run is None:
                 continue
@@ -483,41 +481,40 @@ def _no_table_message(lines: list[str], complete: bool, source: str) -> str:
     )
 
 
-#: Rows of one shape with text in the same cells, and numbers in the others, that make a table
-#: with a column of text (a status or flag column) rather than lines of prose.
+#: Consecutive rows of one shape with text in the same cells, and numbers in more of the others,
+#: that make a table with a column of text (a status or flag column), not lines of prose.
 _TEXT_COLUMN_ROWS = 10
 
 
 def _text_column_message(lines: list[str], source: str) -> str | None:
-    """Message naming a column of text in a table that is otherwise numbers, when the last rows
-    of ``lines`` make one (under the separator and decimal mark that give them the most
-    numbers: at least :data:`_TEXT_COLUMN_ROWS` rows of one shape, text in the same cells of
-    each and numbers in at least two others); None when they do not."""
-    rows = [(i, line) for i, line in enumerate(lines) if line.strip()][-_TEXT_COLUMN_ROWS:]
-    if len(rows) < _TEXT_COLUMN_ROWS:
-        return None
-    best: tuple[int, str, str, int, tuple[int, ...]] | None = None
+    """Message naming a column of text in a table that is otherwise numbers, or None.
+
+    Under each separator and decimal mark, the longest run of consecutive non-blank lines of
+    one shape (as many cells, text in the same ones, as many numbers) is such a table when it
+    has at least :data:`_TEXT_COLUMN_ROWS` lines, at least two numbers a line and more numbers
+    than text cells; the reading with the most numbers a line names the column.
+    """
+    best: tuple[int, int, str, str, int, tuple[int, ...]] | None = None  # numbers, rows, sep, decimal, start, text
     for sep in SEPARATORS:
         for decimal in (".", ","):
-            if sep == decimal and sep != ",":
-                continue
-            shapes = set()
-            for _, line in rows:
+            run_start, run_length, shape = 0, 0, None
+            for i, line in enumerate(lines):
+                if not line.strip():
+                    continue
                 cells = split_line(line, sep)
-                numbers = [is_number(c, decimal) or is_clock(c) for c in cells]
-                text = tuple(j for j, c in enumerate(cells) if not numbers[j] and not is_missing(c))
-                shapes.add((len(cells), text, sum(numbers)))
-            if len(shapes) != 1:
-                continue
-            (width, text, numbers), = shapes
-            if text and numbers >= 2 and (best is None or numbers > best[0]):
-                best = (numbers, sep, decimal, width, text)
+                number = [is_number(c, decimal) or is_clock(c) for c in cells]
+                text = tuple(j for j, c in enumerate(cells) if not number[j] and not is_missing(c))
+                if (len(cells), text, sum(number)) != shape:
+                    run_start, run_length, shape = i, 0, (len(cells), text, sum(number))
+                run_length += 1
+                numbers = sum(number)
+                if (run_length >= _TEXT_COLUMN_ROWS and text and 2 <= numbers and len(text) < numbers
+                        and (best is None or (numbers, run_length) > best[:2])):
+                    best = (numbers, run_length, sep, decimal, run_start, text)
     if best is None:
         return None
-    _, sep, decimal, width, text = best
-    first = rows[0][0]
-    while first > 0 and _same_text_cells(lines[first - 1], sep, decimal, width, text):
-        first -= 1
+    _, _, sep, decimal, first, text = best
+    width = len(split_line(lines[first], sep))
     above = _previous_nonblank(lines, first)
     names = split_line(lines[above], sep) if above is not None else []
     named = len(names) == width and not any(is_number(c, decimal) for c in names)
@@ -526,13 +523,3 @@ def _text_column_message(lines: list[str], source: str) -> str | None:
     return (f"{source}, line {first + 1} on: every row has text in {which} (such as {sample[:20]!r}) "
             f"beside its numbers ({_SEPARATOR_NAMES[sep]}-separated); wavefit reads columns of numbers "
             f"only: delete {'that column' if len(text) == 1 else 'those columns'} or export without")
-
-
-def _same_text_cells(line: str, sep: str, decimal: str, width: int, text: tuple[int, ...]) -> bool:
-    """Whether ``line`` has ``width`` cells with text in exactly the cells ``text``."""
-    if not line.strip():
-        return False
-    cells = split_line(line, sep)
-    return len(cells) == width and tuple(
-        j for j, c in enumerate(cells) if not (is_number(c, decimal) or is_clock(c) or is_missing(c))) == text
-
