@@ -386,3 +386,17 @@ def test_bad_cell_in_long_padded_rows_is_found_quickly(tmp_path: Path) -> None:
     message = _message(_write(tmp_path, "\n".join([header, *rows])))
     assert "line 4002" in message and "'abc'" in message
     assert time.perf_counter() - started < 10.0
+
+
+def test_one_bad_cell_among_numbers_is_to_be_emptied_and_a_text_line_deleted(tmp_path: Path) -> None:
+    # deleting a row of a uniformly sampled table leaves a gap the time checks refuse; an empty
+    # cell is filled in from its neighbours, so that is the advice for one bad cell in a row
+    rows = _rows(300)
+    rows[150] = rows[150].rsplit(",", 1)[0] + ",overflow"
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows]) + "\n"))
+    assert "line 152" in message and "'overflow'" in message and "empty it" in message
+    emptied = _write(tmp_path, "\n".join([HEADER, *rows]).replace("overflow", "") + "\n", "emptied.csv")
+    assert read_capture(emptied).rows == 300
+    rows[150] = "# segment 2"
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows]) + "\n", "text.csv"))
+    assert "line 152" in message and "delete that line" in message

@@ -341,10 +341,37 @@ def test_a_last_line_cut_short_is_left_out_with_a_warning(tmp_path: Path, encodi
 
 
 def test_a_complete_last_line_without_a_line_break_is_kept(tmp_path: Path) -> None:
-    path = _cut_file(tmp_path, f"{N * DT:.12g};0.25;-0.25", "")
+    path = _cut_file(tmp_path, f"{N * DT:.12g};0.250000000;-0.250000000", "")   # printed as the rows above
     capture = read_capture(path)
     assert capture.rows == N + 1 and capture.channels[0].values[-1] == 0.25
     assert not capture.warnings
+
+
+@pytest.mark.parametrize("cut", ["-0.25", "-0.", "-0", "-2.5e-0"])   # ("-2.5e" is no number: refused)
+def test_a_last_number_cut_short_is_left_out_with_a_warning(tmp_path: Path, cut: str) -> None:
+    # the file ends inside the last cell: printed shorter than the same column above it
+    # (9 decimals; in the exponent case, 1 decimal and a two-digit exponent)
+    time = np.arange(N) * DT
+    exponent = "e" in cut
+    rows = [f"{t:.12g};{v:.9f};" + (f"{-v:.1e}" if exponent else f"{-v:.9f}") for t, v in zip(time, _signal())]
+    path = tmp_path / "cut.csv"
+    path.write_text("\n".join(["Time (s);CH1 (V);CH2 (V)", *rows, f"{N * DT:.12g};0.250000000;{cut}"]))
+    capture = read_capture(path)
+    assert capture.rows == N
+    cut_warnings = [w for w in capture.warnings if "cut short" in w]
+    assert len(cut_warnings) == 1 and f"line {N + 2}" in cut_warnings[0] and repr(cut) in cut_warnings[0]
+
+
+def test_a_last_number_in_a_column_printed_in_varying_form_is_not_judged(tmp_path: Path) -> None:
+    # shortest-form printing (0.25, 0.3125, 1e-05 ...): the lines above do not agree, so a short
+    # last cell is a value, not a cut
+    time = np.arange(N) * DT
+    rows = [f"{t:.12g};{v:.9f};{float(round(-v, 1 + i % 4))!r}" for i, (t, v) in enumerate(zip(time, _signal()))]
+    path = tmp_path / "varying.csv"
+    path.write_text("\n".join(["Time (s);CH1 (V);CH2 (V)", *rows, f"{N * DT:.12g};0.250000000;-0.5"]))
+    capture = read_capture(path)
+    assert capture.rows == N + 1 and capture.channels[1].values[-1] == -0.5
+    assert not any("cut short" in w for w in capture.warnings)
 
 
 @pytest.mark.parametrize("ending", ["\n", "\r\n", "\n\x1a"])

@@ -24,7 +24,7 @@ import pandas as pd
 from ..errors import CaptureError
 from .cells import NA_TOKENS, WHITESPACE, is_missing, is_number, row_pattern, split_line
 from .clock import is_clock, read_clock_column
-from .layout import Layout, bad_cell_message, split_lines
+from .layout import Layout, bad_cell_message, printed_form, split_lines
 from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
 
@@ -119,38 +119,69 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
 def without_cut_last_line(source: FileSource, layout: Layout, encoding: str, body: Body) -> tuple[Body, str | None]:
     """The body without its last row when the file ends inside that row's line, and a warning.
 
-    A last line that the file ends inside (no line break after it) and that lacks cells, or
-    has an empty one, where others hold values, is a write cut short (a capture stopped, a
-    copy interrupted): its other cells may be cut too (``0,3`` of ``0,3125``) and read as
-    plausible numbers, so the whole row is left out, not filled in. Kept: a last row whose
-    cells are all there (many writers end the file without a line break), a missing-value
-    word such as ``NaN`` (written, not cut), an empty cell on a line that has its break
-    (filled in and named, as anywhere in the table), and a row with no value at all (left
-    out by the rule for empty rows at the table's ends).
+    The last line of a file that ends inside it (no line break after it) is a write cut short
+    (a capture stopped, a copy interrupted) when it lacks cells, or has an empty one, where
+    others hold values, or when its last cell is printed shorter than the same column on the
+    two lines above it, in a column printed in one form on every line sniffed
+    (:attr:`Layout.alike`; :func:`_printed_shorter`: ``1.00`` where they print
+    ``1.002604e-01``, ``0,3`` where they print ``0,3125``). Its cells may then be cut numbers
+    that read as plausible values, so the whole row is left out, not filled in. Kept: a last
+    row whose cells are all there (many writers end the file without a line break), a
+    missing-value word such as ``NaN`` (written, not cut), an empty cell on a line that has its
+    break (filled in and named, as anywhere in the table), and a row with no value at all
+    (left out by the rule for empty rows at the table's ends). The shorter printing is looked
+    for in uncompressed files only (a gzip stream would be read through for it, and a cut
+    one does not decompress).
     """
     if body.footer or not body.columns or body.columns[0].size == 0:
         return body, None
-    if not any(np.isnan(c[-1]) for c in body.columns):  # no cell of the last row is missing
+    missing = any(np.isnan(c[-1]) for c in body.columns)
+    if not missing and source.compressed:
         return body, None
-    line = _unterminated_last_line(source, encoding)
-    if line is None:
+    lines = _unterminated_tail(source, encoding)
+    if lines is None:
         return body, None
-    cells = split_line(line, layout.sep)
+    cells = split_line(lines[-1], layout.sep)
     read = [cells[j].strip() if j < len(cells) else "" for j in layout.fields]
     empty = [h for h, cell in zip(layout.headers, read) if not cell]
-    if not empty or len(empty) == len(read):
+    if empty and len(empty) < len(read):
+        why = "with no value in " + ", ".join(repr(h) for h in empty)
+    elif not missing and layout.fields[-1] == len(cells) - 1 and len(read) - 1 in layout.alike and _printed_shorter(
+            read[-1], [_cell(line, layout.sep, layout.fields[-1]) for line in lines[-3:-1]], layout.decimal):
+        why = f"with {read[-1]!r} in {layout.headers[-1]!r} printed shorter than on the lines above"
+    else:
         return body, None
     number = line_numbers(source, layout, encoding, [body.columns[0].size - 1])[0]
-    named = ", ".join(repr(h) for h in empty)
-    warning = (f"line {number}, the file's last, ends without a line break and with no value in {named}: "
+    warning = (f"line {number}, the file's last, ends without a line break and {why}: "
                "a write cut short, so that row is left out (its other cells may be cut too)")
     return replace(body, columns=[c[:-1] for c in body.columns]), warning
 
 
-def _unterminated_last_line(source: FileSource, encoding: str) -> str | None:
-    """The file's last line when the file ends inside it (no line break after its last cell,
-    blanks and a DOS end-of-file mark aside), else None; also None when the line is longer than
-    the :data:`_TAIL_BYTES` read back from the end. A compressed file is read through to its end."""
+def _cell(line: str, sep: str, index: int) -> str:
+    cells = split_line(line, sep)
+    return cells[index].strip() if index < len(cells) else ""
+
+
+def _printed_shorter(cell: str, above: list[str], decimal: str) -> bool:
+    """Whether ``cell`` is a number cut short: it ends on its decimal mark or an exponent's sign,
+    or it lacks the exponent, decimals or exponent digits that the same column shows on both
+    lines ``above`` (printed alike; the caller judges only columns printed in one form)."""
+    if cell.endswith((decimal, "+", "-")):
+        return True
+    if len(above) < 2 or not all(is_number(a, decimal) for a in above):
+        return False
+    form = printed_form(above[0], decimal)
+    if printed_form(above[1], decimal) != form:
+        return False
+    exponent, decimals, exponent_digits = printed_form(cell, decimal)
+    return (form[0] and not exponent) or decimals < form[1] or exponent_digits < form[2]
+
+
+def _unterminated_tail(source: FileSource, encoding: str) -> list[str] | None:
+    """The last lines of the file, within the :data:`_TAIL_BYTES` read back from its end, when the
+    file ends inside the last of them (no line break after its last cell, blanks and a DOS
+    end-of-file mark aside), else None; also None when that line is longer than the bytes read.
+    A compressed file is read through to its end."""
     with source.open_binary() as raw:
         mark = raw.read(2) if encoding == "utf-16" else b""  # its byte order, for the tail
         if source.compressed:
@@ -165,7 +196,7 @@ def _unterminated_last_line(source: FileSource, encoding: str) -> str | None:
     if not text or text.endswith(("\n", "\r")):
         return None
     lines = split_lines(text)
-    return lines[-1] if len(lines) > 1 else None
+    return [line for line in lines[1:] if line.strip()] if len(lines) > 1 else None
 
 
 class _UnreadableStamp(ValueError):
@@ -383,7 +414,9 @@ def _line_problem(name: str, number: int, line: str, layout: Layout) -> str | No
             continue
         if layout.side_rows and j not in layout.fields:
             continue
-        return bad_cell_message(name, number, cell)
+        others = [c for k, c in enumerate(cells) if k != j]
+        among = len(cells) == layout.n_fields and any(is_number(c, layout.decimal) for c in others)
+        return bad_cell_message(name, number, cell, among)
     return None
 
 

@@ -72,6 +72,10 @@ class Layout:
         How each read column's numbers are printed in the sniffed rows, by
         position in ``fields``: ``(True, n)`` for n significant digits in
         exponent form, ``(False, n)`` for n decimals in fixed form.
+    alike
+        Positions in ``fields`` of the columns printed in one form on every
+        sniffed row (:func:`printed_form`: a fixed format, not shortest-form
+        printing), where a number printed shorter shows a cut.
     """
 
     sep: str
@@ -87,6 +91,7 @@ class Layout:
     clock_fields: frozenset[int] = frozenset()
     side_rows: int = 0
     printed: dict[int, tuple[bool, int]] = field(default_factory=dict)
+    alike: frozenset[int] = frozenset()
 
     def describe_separator(self) -> str:
         """Human name of the separator, for messages."""
@@ -184,6 +189,7 @@ def sniff_layout(text: str, *, complete: bool, source: str, max_lines: int = 200
         clock_fields=run.clocks,
         side_rows=len(side),
         printed=_printed_forms(lines[run.start:run.stop], sep, decimal, fields),
+        alike=_printed_alike(lines[run.start:run.stop], sep, decimal, fields),
     )
 
 
@@ -218,6 +224,27 @@ def _printed_forms(
                 form = (False, max(decimals, forms.get(k, (False, 0))[1]))
             forms[k] = form
     return forms
+
+
+def printed_form(cell: str, decimal: str) -> tuple[bool, int, int]:
+    """(has an exponent, digits after the decimal mark, digits of the exponent) of a number's text."""
+    mantissa, letter, exponent = cell.strip().lower().partition("e")
+    _, mark, fraction = mantissa.partition(decimal)
+    return bool(letter), len(fraction) if mark else 0, sum(ch.isdigit() for ch in exponent)
+
+
+def _printed_alike(lines: list[str], sep: str, decimal: str, fields: tuple[int, ...]) -> frozenset[int]:
+    """Positions in ``fields`` of the columns whose numbers have one :func:`printed_form` on every
+    line (at least two lines with a number there)."""
+    forms: dict[int, set[tuple[bool, int, int]]] = {}
+    numbers: dict[int, int] = {}
+    for line in lines:
+        cells = split_line(line, sep)
+        for k, j in enumerate(fields):
+            if j < len(cells) and is_number(cells[j], decimal):
+                forms.setdefault(k, set()).add(printed_form(cells[j], decimal))
+                numbers[k] = numbers.get(k, 0) + 1
+    return frozenset(k for k, found in forms.items() if len(found) == 1 and numbers[k] >= 2)
 
 
 def _row_kind(cells: list[str], decimal: str) -> str:
@@ -454,13 +481,14 @@ def _refuse_rows_of_another_shape_above(lines: list[str], sep: str, decimal: str
         )
 
 
-def bad_cell_message(source: str, line_number: int, found: str) -> str:
-    """One-line message for text found where the table needs a number."""
+def bad_cell_message(source: str, line_number: int, found: str, among_numbers: bool = False) -> str:
+    """One-line message for text found where the table needs a number; ``among_numbers`` when the
+    line's other cells are numbers (one bad cell in a row: deleting the row would leave a gap in
+    the sampling, an empty cell is filled in from its neighbours)."""
     shown = found if len(found) <= 60 else found[:57] + "..."
-    return (
-        f"{source}, line {line_number}: found {shown!r} where a number was expected; "
-        "fix or delete that line"
-    )
+    advice = ("fix that cell, or empty it to have it filled in from its neighbours (deleting the line "
+              "would leave a gap in the sampling)") if among_numbers else "fix or delete that line"
+    return f"{source}, line {line_number}: found {shown!r} where a number was expected; {advice}"
 
 
 def _no_table_message(lines: list[str], complete: bool, source: str) -> str:
