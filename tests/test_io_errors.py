@@ -166,22 +166,44 @@ def test_headerless_columns_without_time(tmp_path: Path) -> None:
     assert "no header row" in message and "--sample-interval" in message
 
 
+def _left_out_message(path: Path, key: str | int) -> str:
+    """The column ``key`` is left out with a warning; a setup that asks for it gets the refusal."""
+    capture = read_capture(path)
+    with pytest.raises(CaptureError) as caught:
+        capture.channel(key)
+    message = str(caught.value)
+    assert "\n" not in message
+    assert [w for w in capture.warnings if "left out (a setup that uses it is refused)" in w]
+    return message
+
+
 def test_all_nan_column(tmp_path: Path) -> None:
+    # a channel switched off on the scope: left out, refused only when a setup maps it
     rows = [f"{i * 1e-8:.10e},{np.sin(i):.5f},NaN" for i in range(100)]
-    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
-    assert "'CH2 (V)'" in message and "has no numbers" in message
+    path = _write(tmp_path, "\n".join([HEADER, *rows]))
+    assert [c.header for c in read_capture(path).channels] == ["CH1 (V)"]
+    for key in ("CH2 (V)", "CH2", "ch2", 2):
+        message = _left_out_message(path, key)
+        assert "'CH2 (V)'" in message and "has no numbers" in message
 
 
 def test_empty_column(tmp_path: Path) -> None:
     rows = [f"{i * 1e-8:.10e},,{np.sin(i):.5f}" for i in range(100)]
+    assert "'CH1 (V)' has no numbers" in _left_out_message(_write(tmp_path, "\n".join([HEADER, *rows])), "CH1")
+
+
+def test_only_unusable_signal_columns_or_time_column_are_refused(tmp_path: Path) -> None:
+    rows = [f"{i * 1e-8:.10e},,NaN" for i in range(100)]
     assert "'CH1 (V)' has no numbers" in _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    rows = [f",{np.sin(i):.5f},{np.cos(i):.5f}" for i in range(100)]
+    assert "'Time (s)' has no numbers" in _message(_write(tmp_path, "\n".join([HEADER, *rows]), "time.csv"))
 
 
 def test_too_many_missing_cells(tmp_path: Path) -> None:
     rows = _rows(2000)
     for k in (100, 700, 1300):
         rows[k] = rows[k].rsplit(",", 1)[0] + ","
-    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    message = _left_out_message(_write(tmp_path, "\n".join([HEADER, *rows])), "CH2 (V)")
     assert "'CH2 (V)' has 3 empty" in message and "line 102" in message and "at most 2" in message
 
 

@@ -13,7 +13,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..errors import CaptureError
-from .capture import Capture, Channel
+from .capture import Capture, Channel, LeftOut
 from .column_units import HeaderUnit, is_time_name, parse_header
 from .preamble import Preamble
 from .timebase import Printing, TimeAxis, axis_from_column, axis_from_interval
@@ -122,21 +122,38 @@ def assemble(
         for h, u in zip(table.headers, units)
         if not u.known
     ]
-    columns = [_filled(table, i, warnings) for i in range(len(table.headers))]
+    # a column that cannot be used is left out, and refused only where it is needed: as the
+    # time axis, or by a setup that maps it (scopes export the channels that were switched off)
+    columns, unusable = [], {}
+    for i, header in enumerate(table.headers):
+        try:
+            columns.append(_filled(table, i, warnings))
+        except _Unusable as exc:
+            unusable[i] = (exc, f"{table.source}: column {header!r} {exc.reason}; {exc.advice}")
+            columns.append(table.columns[i])
     notes: list[str] = []
     time_index = _time_index(table, units, time_column)
+    if time_index in unusable:
+        raise CaptureError(unusable[time_index][1])
     if time_index is None and time_column is None and sample_interval is None:
         time_index = _uniform_first_column(table, columns, notes)
     axis, time_header = _time_axis(table, units, columns, time_index, sample_interval, warnings)
+    signal = [i for i in range(len(table.headers)) if time_header is None or i != time_index]
     channels = tuple(
-        Channel(u.name, h, u.unit, u.scale, _read_only(_scaled(c, u.scale)), table.position(i), table.alias(i))
-        for i, (h, u, c) in enumerate(zip(table.headers, units, columns))
-        if time_header is None or i != time_index
+        Channel(units[i].name, table.headers[i], units[i].unit, units[i].scale,
+                _read_only(_scaled(columns[i], units[i].scale)), table.position(i), table.alias(i))
+        for i in signal if i not in unusable
     )
+    left_out = tuple(LeftOut(table.headers[i], units[i].name, table.position(i), unusable[i][1])
+                     for i in signal if i in unusable)
+    if not channels and left_out:
+        raise CaptureError(left_out[0].message)
     if not channels:
         raise CaptureError(
             f"{table.source} has only the time column {time_header!r} and no signal column"
         )
+    warnings += [f"column {table.headers[i]!r} {unusable[i][0].reason}: left out (a setup that uses it "
+                 "is refused)" for i in signal if i in unusable]
     return Capture(
         time=_read_only(axis.time),
         channels=channels,
@@ -148,6 +165,7 @@ def assemble(
         notes=tuple(notes),
         time_position=None if time_header is None or time_index is None else table.position(time_index),
         interval_uncertainty=axis.relative_uncertainty,
+        left_out=left_out,
     )
 
 
@@ -189,8 +207,17 @@ def _check_interval_argument(sample_interval: float | None, source: str) -> None
         )
 
 
+class _Unusable(Exception):
+    """A column that cannot be used: what it holds (``reason``) and what to do (``advice``)."""
+
+    def __init__(self, reason: str, advice: str) -> None:
+        super().__init__(reason)
+        self.reason, self.advice = reason, advice
+
+
 def _filled(table: Table, index: int, warnings: list[str]) -> np.ndarray:
-    """Column ``index`` with its few NaN/inf cells filled by linear interpolation."""
+    """Column ``index`` with its few NaN/inf cells filled by linear interpolation; raises
+    :class:`_Unusable` for a column with no numbers or too many cells missing."""
     values = table.columns[index]
     header = table.headers[index]
     finite = np.isfinite(values)
@@ -198,21 +225,16 @@ def _filled(table: Table, index: int, warnings: list[str]) -> np.ndarray:
     if good == values.size:
         return values
     if good == 0:
-        raise CaptureError(
-            f"{table.source}: column {header!r} has no numbers (all {values.size} cells are "
-            "empty or NaN); export the capture with that channel's data, or remove the column"
-        )
+        raise _Unusable(f"has no numbers (all {values.size} cells are empty or NaN)",
+                        "export the capture with that channel's data, or remove the column")
     bad = np.flatnonzero(~finite)
     allowed = max(1, int(MAX_MISSING_FRACTION * values.size))
     places = table.where([int(i) for i in bad[:_LISTED_PLACES]])
     listed = ", ".join(places) + (", ..." if bad.size > _LISTED_PLACES else "")
     share = f"{100 * bad.size / values.size:.2g} %"
     if bad.size > allowed:
-        raise CaptureError(
-            f"{table.source}: column {header!r} has {bad.size} empty, NaN or infinite cells "
-            f"({share} of {values.size} rows; {listed}); at most {allowed} can be filled in; "
-            "fix the export or trim the capture"
-        )
+        raise _Unusable(f"has {bad.size} empty, NaN or infinite cells ({share} of {values.size} rows; {listed}); "
+                        f"at most {allowed} can be filled in", "fix the export or trim the capture")
     index_all = np.arange(values.size, dtype=np.float64)
     filled = np.interp(index_all, index_all[finite], values[finite])
     warnings.append(

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from functools import cached_property
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, Callable
 
 import numpy as np
 
@@ -44,6 +44,17 @@ class Channel:
 
 
 @dataclass(frozen=True)
+class LeftOut:
+    """A column the reader left out, having no usable numbers: its header, its name without
+    unit, its 0-based place in the file and the refusal for a setup that maps it."""
+
+    header: str
+    name: str
+    position: int | None
+    message: str
+
+
+@dataclass(frozen=True)
 class Capture:
     """A uniformly sampled record: SI time axis, named channels, metadata.
 
@@ -71,6 +82,7 @@ class Capture:
     time_position: int | None = None
     interval_uncertainty: float = 0.0
     file_state: tuple[int, int] | None = None
+    left_out: tuple[LeftOut, ...] = ()
 
     @property
     def rows(self) -> int:
@@ -97,6 +109,7 @@ class Capture:
         lowered = [ch for ch in self.channels if ch.name.lower() == str(key).lower()]
         if len(lowered) == 1:
             return lowered[0]
+        self._refuse_left_out(lambda c: key in (c.header, c.name) or c.name.lower() == str(key).lower())
         names = ", ".join(repr(c.header) for c in self.channels)
         raise SetupError(f"no column {key!r} in {self.source}; columns are: {names}")
 
@@ -113,10 +126,19 @@ class Capture:
         for ch in self.channels:
             if ch.position == index:
                 return ch
+        self._refuse_left_out(lambda c: c.position == index)
         places = sorted({ch.position for ch in self.channels if ch.position is not None}
                         | ({self.time_position} if self.time_position is not None else set()))
         listed = ", ".join(str(p) for p in places)
         raise SetupError(f"column index {index} is not a column of {self.source}; its columns are at {listed}")
+
+    def _refuse_left_out(self, asked: Callable[[LeftOut], bool]) -> None:
+        """Raise the reader's refusal of a left-out column that ``asked`` picks."""
+        from ..errors import CaptureError
+
+        for column in self.left_out:
+            if asked(column):
+                raise CaptureError(column.message)
 
     def column_headers(self) -> list[str]:
         """All headers in file order, the time column included (first, when the places are not known)."""
@@ -149,6 +171,7 @@ class Capture:
                 }
                 for c in self.channels
             ],
+            "left_out": [{"header": c.header, "position": c.position, "reason": c.message} for c in self.left_out],
             "metadata": dict(self.metadata),
             "warnings": list(self.warnings),
             "notes": list(self.notes),
