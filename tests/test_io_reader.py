@@ -393,3 +393,19 @@ def test_a_written_missing_value_or_an_empty_row_at_the_end_is_not_taken_for_a_c
     assert capture.rows == kept_rows
     assert not any("cut short" in w for w in capture.warnings)
     assert any(warned in w for w in capture.warnings)
+
+
+@pytest.mark.parametrize("header, preamble, warned", [
+    ("Time (s),CH1,CH2", ["CH1 scale,0.02 V/code", "CH10 scale,5 V/code"], ["CH1"]),   # CH10 is not CH1
+    ("Time (s),CH1 (V),CH2 (V)", ["CH1 scale,0.02 V/code"], []),                       # a unit: as written
+    ("Time (s),CH1,CH2", ["CH1 label,coil side"], []),                                 # no number: not a scale
+])
+def test_a_column_without_unit_that_the_preamble_scales_is_flagged(tmp_path: Path, header: str,
+                                                                   preamble: list[str], warned: list[str]) -> None:
+    # converter codes with their scale in the preamble: taken as volts they would make a ratio
+    # of two channels wrong by the ratio of their scales, so the reader says so
+    time = np.arange(N) * DT
+    rows = [f"{t:.12g},{round(100 * v)},{round(-50 * v)}" for t, v in zip(time, _signal())]
+    capture = read_capture(_write(tmp_path, [*preamble, header, *rows]))
+    flagged = [w.split("'")[1] for w in capture.warnings if "has no unit" in w]
+    assert flagged == warned

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 
@@ -154,6 +155,7 @@ def assemble(
         )
     warnings += [f"column {table.headers[i]!r} {unusable[i][0].reason}: left out (a setup that uses it "
                  "is refused)" for i in signal if i in unusable]
+    warnings += _scales_not_applied(channels, table.preamble.metadata)
     return Capture(
         time=_read_only(axis.time),
         channels=channels,
@@ -193,6 +195,23 @@ def _without_empty_edges(table: Table, warnings: list[str]) -> Table:
         return table.where([row + first for row in rows])
 
     return replace(table, columns=[c[first:stop] for c in table.columns], where=where)
+
+
+def _scales_not_applied(channels: tuple[Channel, ...], metadata: dict[str, str]) -> list[str]:
+    """Warnings for columns without a unit that a preamble line names with a number (``CH1
+    scale: 0.02 V/code``): their numbers are taken as they are, and a ratio of two such columns
+    (drive over sense) is wrong by the ratio of their scales if the file holds converter codes."""
+    out = []
+    for ch in channels:
+        if ch.unit or not ch.name:
+            continue
+        named = re.compile(rf"(?<![^\W_]){re.escape(ch.name)}(?![^\W_])", re.IGNORECASE)
+        keys = [k for k, v in metadata.items() if named.search(k) and re.search(r"\d", v)]
+        if keys:
+            out.append(f"column {ch.header!r} has no unit, so its numbers are taken as they are (volts for a "
+                       f"voltage), while the preamble gives {keys[0]!r} = {metadata[keys[0]]!r}: if that scales "
+                       "them, convert the column or write its unit in the header")
+    return out
 
 
 def _check_interval_argument(sample_interval: float | None, source: str) -> None:
