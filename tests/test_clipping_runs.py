@@ -1,4 +1,5 @@
-"""The longest run of samples at a record's extremes, against a count written out sample by sample."""
+"""Clipping checks: the longest run at a record's extremes (against a count written out sample by
+sample) and the pile-up of samples at an extreme."""
 from __future__ import annotations
 
 import numpy as np
@@ -21,3 +22,21 @@ def test_longest_runs_at_minimum_and_maximum(seed: int) -> None:
     rng = np.random.default_rng(seed)
     y = rng.integers(0, 3, size=int(rng.integers(1, 400))).astype(float)
     assert longest_run_at_extremes(y) == (_counted(y, y.min()), _counted(y, y.max()))
+
+
+def test_values_printed_with_few_digits_do_not_pile_up_at_their_extreme():
+    # a settling exponential in noise printed to three significant digits (about 1 mV near a
+    # quarter volt, finer near zero: no single grid) repeats its top value as a code would; its
+    # top holds no more samples than the value one printing step below it, so it is not a pile-up.
+    # The same record cut at a limit inside its range piles up there.
+    from wavefit.signal.clipping import piles_up_at_limit
+
+    t = np.arange(40_000) * 1e-8
+    clean = 0.257 * (1 - np.exp(-t / 6e-6)) - 0.02 * (t < 2e-5)
+    for sigma in (0.0005, 0.002):   # noise within the printing step (thousands at the top), and beyond it
+        noisy = clean + np.random.default_rng(8).normal(0, sigma, t.size)
+        printed = np.array([float(f"{v:.2e}") for v in noisy])
+        assert not piles_up_at_limit(printed, sigma, None)
+    clipped = np.minimum(noisy, 0.255)
+    assert piles_up_at_limit(clipped, 0.002, None)
+    assert piles_up_at_limit(np.array([float(f"{v:.2e}") for v in clipped]), 0.002, None)

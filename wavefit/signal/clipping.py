@@ -56,7 +56,7 @@ class Extremes:
     smallest_gap: float | None
     longest_run: int             # identical samples at the minimum or the maximum
     code: float | None           # the converter step, when the values sit on a grid
-    counts: tuple[tuple[int, int], ...]  # (samples at the extreme, one code inside) for max, min
+    counts: tuple[tuple[int, int, float | None], ...]  # (at the extreme, one step inside, the step) for max, min
 
     def flat(self, sigma: float) -> bool:
         """A run of :data:`FLAT_RUN` identical samples at the record's extreme although the
@@ -66,20 +66,22 @@ class Extremes:
 
     def piles_up(self, sigma: float, min_count: int = 5) -> bool:
         """See :func:`_piles_up`."""
-        return _piles_up(self.counts, self.code, sigma, min_count)
+        return _piles_up(self.counts, sigma, min_count)
 
 
-def _piles_up(counts: tuple[tuple[int, int], ...], code: float | None, sigma: float, min_count: int) -> bool:
-    """More samples at the record's extreme value than one code inside it (``counts``, from
-    :func:`_extreme_counts`): noise cut off at the converter's range (a smooth noise
-    distribution thins out towards its tails, common practice). Only judged when the noise
-    spans more than one code, since a quiet plateau on one code piles up by itself."""
-    for at, near in counts:
-        if at < min_count:
+def _piles_up(counts: tuple[tuple[int, int, float | None], ...], sigma: float, min_count: int) -> bool:
+    """More samples at the record's extreme value than one step inside it (``counts``, from
+    :func:`_extreme_counts`: the converter's code, or for values off any grid the step to the
+    next value inside): noise cut off at the converter's range (a smooth noise distribution
+    thins out towards its tails, common practice). Only judged when the noise spans more than
+    that step, since a quiet plateau on one code piles up by itself. Values printed with few
+    digits repeat like codes (a record printed to three significant digits keeps millivolts
+    near a quarter volt), so their extreme is judged against its neighbour as a code is; truly
+    continuous values repeat an extreme only when it was clipped (their next value is single)."""
+    for at, near, step in counts:
+        if at < min_count or step is None:
             continue
-        if code is None:
-            return sigma > 0  # continuous values repeat an extreme only when it was clipped
-        if sigma > code and at > 1.5 * near + 3:
+        if sigma > step and at > 1.5 * near + 3:
             return True
     return False
 
@@ -101,13 +103,22 @@ def extremes(y: np.ndarray, levels: RecordLevels | None = None) -> Extremes:
     return Extremes(gap, run, code, _extreme_counts(y, code))
 
 
-def _extreme_counts(y: np.ndarray, code: float | None) -> tuple[tuple[int, int], ...]:
-    """(samples at the extreme, samples one ``code`` inside it) for the maximum and the minimum."""
+def _extreme_counts(y: np.ndarray, code: float | None) -> tuple[tuple[int, int, float | None], ...]:
+    """(samples at the extreme, samples one step inside it, the step) for the maximum and the
+    minimum; the step is ``code``, or without one the distance to the next value inside (None
+    when there is none)."""
     counts = []
     for extreme, inward in ((np.max(y), -1.0), (np.min(y), 1.0)):
         at = int(np.count_nonzero(y == extreme))
-        near = _count_within(y, extreme + inward * code, 0.01 * code) if code else 0
-        counts.append((at, near))
+        if code:
+            counts.append((at, _count_within(y, extreme + inward * code, 0.01 * code), code))
+            continue
+        inside = y[y < extreme] if inward < 0 else y[y > extreme]
+        if inside.size == 0:
+            counts.append((at, 0, None))
+            continue
+        nxt = np.max(inside) if inward < 0 else np.min(inside)
+        counts.append((at, int(np.count_nonzero(y == nxt)), float(abs(extreme - nxt))))
     return tuple(counts)
 
 
@@ -136,7 +147,7 @@ def piles_up_at_limit(y: np.ndarray, sigma: float, code: float | None, min_count
     (its :func:`record_levels` step, None for continuous values), so that a part of a record
     is not sorted again for its levels."""
     y = _finite(y)
-    return _piles_up(_extreme_counts(y, code), code, sigma, min_count)
+    return _piles_up(_extreme_counts(y, code), sigma, min_count)
 
 
 def _finite(y: np.ndarray) -> np.ndarray:
