@@ -409,3 +409,25 @@ def test_a_column_without_unit_that_the_preamble_scales_is_flagged(tmp_path: Pat
     capture = read_capture(_write(tmp_path, [*preamble, header, *rows]))
     flagged = [w.split("'")[1] for w in capture.warnings if "has no unit" in w]
     assert flagged == warned
+
+
+@pytest.mark.parametrize("codec", ["utf-16-le", "utf-16-be"])
+def test_utf16_without_a_byte_order_mark_is_read(tmp_path: Path, codec: str) -> None:
+    # a table saved as UTF-16 without its mark: NUL beside every ASCII character, on one side
+    time = np.arange(N) * DT
+    text = "\r\n".join(["Zeit (µs);U (V)", *[f"{t * 1e6:.6f};{v:.6f}".replace(".", ",")
+                                            for t, v in zip(time, _signal())]]) + "\r\n"
+    path = tmp_path / "wide.csv"
+    path.write_bytes(text.encode(codec))
+    capture = read_capture(path)
+    assert capture.rows == N and capture.sample_interval == pytest.approx(DT)
+    np.testing.assert_allclose(capture.channels[0].values, _signal(), atol=1e-6)
+
+
+def test_sixteen_bit_binary_numbers_are_not_taken_for_utf16(tmp_path: Path) -> None:
+    from wavefit.errors import CaptureError
+
+    path = tmp_path / "codes.csv"
+    (np.round(100 * _signal()).astype("<i2") + 128).tofile(path)   # small values: high bytes NUL
+    with pytest.raises(CaptureError, match="looks binary"):
+        read_capture(path)

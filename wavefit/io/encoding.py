@@ -1,4 +1,5 @@
-"""Decide how the bytes of a capture become text: UTF-8 (with or without BOM), UTF-16 with BOM, or Latin-1.
+"""Decide how the bytes of a capture become text: UTF-8 (with or without BOM), UTF-16 (with BOM, or
+without one when its NUL bytes show it), or Latin-1.
 
 Binary files are refused here, before any parsing, so that a wrong file gives
 one clear message instead of a cascade of "not a number" complaints.
@@ -17,6 +18,13 @@ _NOT_SUSPECT = bytes(b for b in range(256) if b >= 0x20 or b in _TEXT_CONTROLS)
 _ASCII = bytes(range(0x80))
 _MAX_CONTROL_FRACTION = 0.005
 _MAX_HIGH_FRACTION_LATIN1 = 0.10
+#: UTF-16 without a byte-order mark: a table of numbers is ASCII, so each character's other byte
+#: is NUL (more than 90 % of one byte position, allowing for letters beyond ASCII in a header),
+#: and a NUL in the character's own byte is the NUL character, which text does not hold (under
+#: 1 %); judged on at least 32 characters.
+_MIN_UTF16_NUL_SHARE = 0.9
+_MAX_TEXT_NUL_SHARE = 0.01
+_MIN_UTF16_CHARACTERS = 32
 
 
 @dataclass(frozen=True)
@@ -28,7 +36,8 @@ class DecodedHead:
     text
         The decoded text, without a byte-order mark.
     encoding
-        Codec name for the body parser: ``"utf-8"``, ``"utf-16"`` or ``"latin-1"``.
+        Codec name for the body parser: ``"utf-8"``, ``"utf-16"`` (with its mark),
+        ``"utf-16-le"`` or ``"utf-16-be"`` (without) or ``"latin-1"``.
     """
 
     text: str
@@ -61,6 +70,10 @@ def decode_head(raw: bytes, *, complete: bool, source: str) -> DecodedHead:
     if raw.startswith(_UTF16_BOMS):
         usable = raw if complete else raw[: len(raw) - len(raw) % 2]
         return DecodedHead(usable.decode("utf-16", errors="replace"), "utf-16")
+    without_mark = _utf16_without_mark(raw)
+    if without_mark is not None:
+        usable = raw if complete else raw[: len(raw) - len(raw) % 2]
+        return DecodedHead(usable.decode(without_mark, errors="replace"), without_mark)
     _refuse_binary(raw, source)
     if raw.startswith(codecs.BOM_UTF8):
         raw = raw[len(codecs.BOM_UTF8) :]
@@ -74,6 +87,27 @@ def decode_head(raw: bytes, *, complete: bool, source: str) -> DecodedHead:
             "neither ASCII nor valid UTF-8); export the capture as CSV text"
         )
     return DecodedHead(raw.decode("latin-1"), "latin-1")
+
+
+def _utf16_without_mark(raw: bytes) -> str | None:
+    """``"utf-16-le"`` or ``"utf-16-be"`` for UTF-16 text written without a byte-order mark:
+    every ASCII character then has a NUL byte beside it, so the NULs fill one of the two byte
+    positions (at least :data:`_MIN_UTF16_NUL_SHARE` of it) and almost none of the other; None
+    otherwise (a binary file has NULs at both)."""
+    if len(raw) < 2 * _MIN_UTF16_CHARACTERS:
+        return None
+    even, odd = raw[0::2], raw[1::2]
+    nul_even, nul_odd = even.count(0) / len(even), odd.count(0) / len(odd)
+    if nul_odd >= _MIN_UTF16_NUL_SHARE and nul_even < _MAX_TEXT_NUL_SHARE:
+        codec, own = "utf-16-le", even
+    elif nul_even >= _MIN_UTF16_NUL_SHARE and nul_odd < _MAX_TEXT_NUL_SHARE:
+        codec, own = "utf-16-be", odd
+    else:
+        return None
+    # the characters' own bytes must read as text (16-bit binary numbers of small values also
+    # have one byte of each pair NUL, but their other bytes are mostly control bytes)
+    controls = len(own.translate(None, _NOT_SUSPECT))
+    return codec if controls <= _MAX_CONTROL_FRACTION * len(own) else None
 
 
 def _decode_utf8_prefix(raw: bytes, complete: bool) -> str | None:
