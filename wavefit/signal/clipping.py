@@ -69,6 +69,12 @@ class Extremes:
         return _piles_up(self.counts, sigma, min_count)
 
 
+#: An extreme holds a pile-up when it has more than PILE_RATIO times the samples one step inside
+#: it plus PILE_EXCESS (common practice): an extreme of PILE_EXCESS samples or fewer never does.
+PILE_RATIO = 1.5
+PILE_EXCESS = 3
+
+
 def _piles_up(counts: tuple[tuple[int, int, float | None], ...], sigma: float, min_count: int) -> bool:
     """More samples at the record's extreme value than one step inside it (``counts``, from
     :func:`_extreme_counts`: the converter's code, or for values off any grid the step to the
@@ -81,7 +87,7 @@ def _piles_up(counts: tuple[tuple[int, int, float | None], ...], sigma: float, m
     for at, near, step in counts:
         if at < min_count or step is None:
             continue
-        if sigma > step and at > 1.5 * near + 3:
+        if sigma > step and at > PILE_RATIO * near + PILE_EXCESS:
             return True
     return False
 
@@ -106,12 +112,16 @@ def extremes(y: np.ndarray, levels: RecordLevels | None = None) -> Extremes:
 def _extreme_counts(y: np.ndarray, code: float | None) -> tuple[tuple[int, int, float | None], ...]:
     """(samples at the extreme, samples one step inside it, the step) for the maximum and the
     minimum; the step is ``code``, or without one the distance to the next value inside (None
-    when there is none)."""
+    when there is none, and when the extreme holds too few samples to pile up: the values of a
+    continuous record are not searched for it)."""
     counts = []
     for extreme, inward in ((np.max(y), -1.0), (np.min(y), 1.0)):
         at = int(np.count_nonzero(y == extreme))
         if code:
             counts.append((at, _count_within(y, extreme + inward * code, 0.01 * code), code))
+            continue
+        if at <= PILE_EXCESS:
+            counts.append((at, 0, None))
             continue
         inside = y[y < extreme] if inward < 0 else y[y > extreme]
         if inside.size == 0:
