@@ -67,13 +67,10 @@ def decode_head(raw: bytes, *, complete: bool, source: str) -> DecodedHead:
     CaptureError
         When the bytes look binary.
     """
-    if raw.startswith(_UTF16_BOMS):
+    wide = "utf-16" if raw.startswith(_UTF16_BOMS) else _utf16_without_mark(raw)
+    if wide is not None:
         usable = raw if complete else raw[: len(raw) - len(raw) % 2]
-        return DecodedHead(usable.decode("utf-16", errors="replace"), "utf-16")
-    without_mark = _utf16_without_mark(raw)
-    if without_mark is not None:
-        usable = raw if complete else raw[: len(raw) - len(raw) % 2]
-        return DecodedHead(usable.decode(without_mark, errors="replace"), without_mark)
+        return DecodedHead(usable.decode(wide, errors="replace"), wide)
     _refuse_binary(raw, source)
     if raw.startswith(codecs.BOM_UTF8):
         raw = raw[len(codecs.BOM_UTF8) :]
