@@ -102,6 +102,24 @@ def test_broken_captures_give_one_line_and_non_zero_exit(tmp_path, content):
     assert out == "" and err.count("\n") == 1 and "Traceback" not in err
 
 
+def test_a_column_with_text_is_left_out_until_a_setup_maps_it(tmp_path):
+    # a word in one cell of a channel the setup does not use ('overflow' in an auxiliary column)
+    # does not stop the file being read; mapping that column is refused, naming the cell
+    t = np.arange(400) * 1e-6
+    rows = [f"{a:.9e},{np.sin(2e4 * a):.6f},{'overflow' if k == 300 else f'{np.cos(2e4 * a):.6f}'}"
+            for k, a in enumerate(t)]
+    path = tmp_path / "aux.csv"
+    path.write_text("\n".join(["Time (s),CH1 (V),AUX (V)", *rows]) + "\n", encoding="utf-8")
+    code, out, err = run("inspect", str(path), "--json")
+    assert code == 0, err
+    info = json.loads(out)
+    assert [c["header"] for c in info["columns"]] == ["CH1 (V)"]
+    assert info["left_out"][0]["header"] == "AUX (V)" and "line 302" in info["left_out"][0]["reason"]
+    code, out, err = run("analyze", str(path), "--setup", str(_rl_setup(tmp_path, "AUX")), "--json")
+    assert code == 3 and out == "" and err.count("\n") == 1
+    assert "line 302: found 'overflow' where a number was expected" in err
+
+
 def test_several_captures_keep_going_and_report_the_worst(capture_file, tmp_path):
     flat = tmp_path / "flat.csv"
     flat.write_text("Time (s),CH1 (V)\n" + "".join(f"{k * 1e-6:g},0.5\n" for k in range(100)), encoding="utf-8")

@@ -207,6 +207,51 @@ def test_too_many_missing_cells(tmp_path: Path) -> None:
     assert "'CH2 (V)' has 3 empty" in message and "line 102" in message and "at most 2" in message
 
 
+def test_text_among_numbers_leaves_its_column_out(tmp_path: Path) -> None:
+    # an auxiliary channel with a word in one row ('overflow') does not stop the others being read
+    rows = _rows(300)
+    rows[150] = rows[150].rsplit(",", 1)[0] + ",overflow"
+    rows[200] = rows[200].rsplit(",", 1)[0] + ",overflow"
+    capture = read_capture(_write(tmp_path, "\n".join([HEADER, *rows]) + "\n"))
+    assert [c.header for c in capture.channels] == ["CH1 (V)"] and capture.rows == 300
+    expected = np.array([float(r.split(",")[1]) for r in rows])
+    assert np.array_equal(capture.channel("CH1").values, expected)
+    assert [w for w in capture.warnings if "'CH2 (V)' holds text where numbers are expected (first at line 152)" in w]
+    assert [c.position for c in capture.left_out] == [2]
+
+
+def test_text_in_two_columns_leaves_both_out_and_refuses_when_nothing_is_left(tmp_path: Path) -> None:
+    header = "Time (s),CH1 (V),CH2 (V),CH3 (V)"
+    rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f},{np.cos(i / 5):.6f},{np.sin(i / 3):.6f}" for i in range(300)]
+    rows[40] = f"{40e-8:.10e},0.1,over,0.2"
+    rows[90] = f"{90e-8:.10e},0.1,0.2,under"
+    capture = read_capture(_write(tmp_path, "\n".join([header, *rows])))
+    assert [c.header for c in capture.channels] == ["CH1 (V)"]
+    assert "line 42: found 'over'" in _left_out_message(_write(tmp_path, "\n".join([header, *rows])), "CH2")
+    assert "line 92: found 'under'" in _left_out_message(_write(tmp_path, "\n".join([header, *rows])), 3)
+    rows[10] = f"{10e-8:.10e},bad,0.2,0.3"
+    assert "line 12: found 'bad'" in _message(_write(tmp_path, "\n".join([header, *rows]), "none.csv"))
+
+
+def test_text_in_the_time_column_is_refused(tmp_path: Path) -> None:
+    rows = _rows(300)
+    rows[150] = "oops," + rows[150].split(",", 1)[1]
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 152: found 'oops'" in message
+    # without a header the first column would be time: its text is the reason given
+    assert "line 151: found 'oops'" in _message(_write(tmp_path, "\n".join(rows), "headerless.csv"))
+
+
+def test_text_column_with_a_footer_and_decimal_commas(tmp_path: Path) -> None:
+    rows = [f"{i * 1e-8:.10e};{np.sin(i / 7):.6f};{np.cos(i / 5):.6f}".replace(".", ",") for i in range(300)]
+    rows[77] = rows[77].rsplit(";", 1)[0] + ";----"
+    content = "\n".join(["Time (s);CH1 (V);CH2 (V)", *rows, "Settings", "Probe;10x"]) + "\n"
+    capture = read_capture(_write(tmp_path, content))
+    assert capture.rows == 300 and [c.header for c in capture.channels] == ["CH1 (V)"]
+    assert capture.metadata.get("Probe") == "10x"
+    assert "line 79: found '----'" in _left_out_message(_write(tmp_path, content), "CH2")
+
+
 def test_time_going_backwards(tmp_path: Path) -> None:
     rows = _rows(300)
     rows[150], rows[151] = rows[151], rows[150]
@@ -232,7 +277,7 @@ def test_time_going_backwards_after_blank_lines(tmp_path: Path) -> None:
 def test_text_in_data_near_the_top(tmp_path: Path) -> None:
     rows = _rows(300)
     rows[8] = rows[8].replace(rows[8].split(",")[1], "overload", 1)
-    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    message = _left_out_message(_write(tmp_path, "\n".join([HEADER, *rows])), "CH1 (V)")
     assert "line 10" in message and "'overload'" in message
 
 
@@ -246,7 +291,7 @@ def test_text_row_in_data_near_the_top(tmp_path: Path) -> None:
 def test_text_in_data_far_below_the_sniffed_lines(tmp_path: Path) -> None:
     rows = _rows(20000)
     rows[15000] = rows[15000].rsplit(",", 1)[0] + ",1.2.3"
-    message = _message(_write(tmp_path, "\n".join(["Sample interval,1e-8", HEADER, *rows])))
+    message = _left_out_message(_write(tmp_path, "\n".join(["Sample interval,1e-8", HEADER, *rows])), "CH2 (V)")
     assert "line 15003" in message and "'1.2.3'" in message
 
 
@@ -254,7 +299,7 @@ def test_text_in_gzip_data(tmp_path: Path) -> None:
     rows = _rows(5000)
     rows[4000] = "4e-05,#N/A?,0.5"
     data = gzip.compress("\n".join([HEADER, *rows]).encode())
-    message = _message(_write(tmp_path, data, "bad.csv.gz"))
+    message = _left_out_message(_write(tmp_path, data, "bad.csv.gz"), "CH1 (V)")
     assert "line 4002" in message and "'#N/A?'" in message
 
 
@@ -392,7 +437,7 @@ def test_cut_last_row_is_not_a_footer(tmp_path: Path) -> None:
 
 def test_damaged_last_row_is_not_a_footer(tmp_path: Path) -> None:
     rows = [*_rows(3000), "3e-05,0.5,abc"]
-    assert "line 3002: found 'abc'" in _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 3002: found 'abc'" in _left_out_message(_write(tmp_path, "\n".join([HEADER, *rows])), "CH2 (V)")
 
 
 def test_nul_padding_after_the_table_is_an_error(tmp_path: Path) -> None:
@@ -405,7 +450,7 @@ def test_bad_cell_in_long_padded_rows_is_found_quickly(tmp_path: Path) -> None:
     rows = ["   ".join([f"{i * 1e-8:.8e}", *["  1.5"] * 30]) for i in range(5000)]
     rows[4000] = rows[4000][:-3] + "abc"
     started = time.perf_counter()
-    message = _message(_write(tmp_path, "\n".join([header, *rows])))
+    message = _left_out_message(_write(tmp_path, "\n".join([header, *rows])), "CH29")
     assert "line 4002" in message and "'abc'" in message
     assert time.perf_counter() - started < 10.0
 
@@ -415,7 +460,7 @@ def test_one_bad_cell_among_numbers_is_to_be_emptied_and_a_text_line_deleted(tmp
     # cell is filled in from its neighbours, so that is the advice for one bad cell in a row
     rows = _rows(300)
     rows[150] = rows[150].rsplit(",", 1)[0] + ",overflow"
-    message = _message(_write(tmp_path, "\n".join([HEADER, *rows]) + "\n"))
+    message = _left_out_message(_write(tmp_path, "\n".join([HEADER, *rows]) + "\n"), "CH2 (V)")
     assert "line 152" in message and "'overflow'" in message and "empty it" in message
     emptied = _write(tmp_path, "\n".join([HEADER, *rows]).replace("overflow", "") + "\n", "emptied.csv")
     assert read_capture(emptied).rows == 300

@@ -58,6 +58,9 @@ class Table:
     printing
         How each column's numbers were printed, by column, in the units of the
         file (clock stamps: in seconds), when the source's text showed it.
+    text_columns
+        Columns that hold text among their numbers (their values all NaN), each with
+        the line of its first text cell and the refusal naming that cell.
     """
 
     source: str
@@ -70,6 +73,7 @@ class Table:
     aliases: tuple[str, ...] = ()
     clock_columns: frozenset[int] = frozenset()
     printing: dict[int, Printing] = field(default_factory=dict)
+    text_columns: dict[int, tuple[int, str]] = field(default_factory=dict)
 
     def position(self, index: int) -> int | None:
         """The source's column number of column ``index`` (None for a frame's index)."""
@@ -127,6 +131,11 @@ def assemble(
     # time axis, or by a setup that maps it (scopes export the channels that were switched off)
     columns, unusable = [], {}
     for i, header in enumerate(table.headers):
+        if i in table.text_columns:
+            line, refusal = table.text_columns[i]
+            unusable[i] = (_Unusable(f"holds text where numbers are expected (first at line {line})", ""), refusal)
+            columns.append(table.columns[i])
+            continue
         try:
             columns.append(_filled(table, i, warnings))
         except _Unusable as exc:
@@ -137,6 +146,8 @@ def assemble(
     if time_index in unusable:
         raise CaptureError(unusable[time_index][1])
     if time_index is None and time_column is None and sample_interval is None:
+        if not table.has_header and 0 in unusable:
+            raise CaptureError(unusable[0][1])  # the first column would be time, were it readable
         time_index = _uniform_first_column(table, columns, notes)
     axis, time_header = _time_axis(table, units, columns, time_index, sample_interval, warnings)
     signal = [i for i in range(len(table.headers)) if time_header is None or i != time_index]

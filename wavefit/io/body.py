@@ -57,20 +57,28 @@ class Body:
     clock_resolution
         For each column read from clock stamps (by its position in ``columns``),
         the stamps' printing resolution in seconds.
+    text_cells
+        For each column (by its position in ``columns``) that holds text in a row of
+        numbers: the line of its first such cell and the refusal naming it; the column
+        is all NaN here.
     """
 
     columns: list[np.ndarray]
     footer: tuple[tuple[int, str], ...] = ()
     clock_resolution: dict[int, float] = field(default_factory=dict)
+    text_cells: dict[int, tuple[int, str]] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
 class _Scan:
-    """What a line-by-line pass found: a bad line's message, or where a text footer starts."""
+    """What a line-by-line pass found: a bad line's message (and the cell, when it is text in a
+    row of numbers), or where a text footer starts."""
 
     message: str | None
     rows: int = 0
     footer: tuple[tuple[int, str], ...] = ()
+    text_cell: int | None = None
+    line: int = 0
 
 
 def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
@@ -99,21 +107,34 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
         Naming the first line with a non-numeric cell or too many cells.
     """
     footer: tuple[tuple[int, str], ...] = ()
-    try:
-        columns, resolution = _columns(_parse(source, layout, encoding, rows=None), layout)
-    except (ValueError, pd.errors.ParserError) as exc:
-        scan = _scan(source, layout, encoding, exc)
-        if scan.message is not None:
-            raise CaptureError(scan.message) from None
-        footer = scan.footer
+    rows: int | None = None
+    text: dict[int, tuple[int, str]] = {}  # cell index: line and refusal of its first text cell
+    while True:  # each pass leaves out one more column with text, or ends the table at its footer
         try:
-            columns, resolution = _columns(_parse(source, layout, encoding, rows=scan.rows), layout)
-        except _UnreadableStamp as bad:
-            line = line_numbers(source, layout, encoding, [bad.row])[0]
-            raise CaptureError(bad_cell_message(source.name, line, bad.cell)) from None
+            frame = _parse(source, layout, encoding, rows=rows, skipped=frozenset(text))
+            columns, resolution = _columns(frame, layout)
+            break
+        except (ValueError, pd.errors.ParserError) as error:
+            if isinstance(error, _UnreadableStamp) and rows is not None:
+                line = line_numbers(source, layout, encoding, [error.row])[0]
+                raise CaptureError(bad_cell_message(source.name, line, error.cell)) from None
+            if rows is not None:  # the rows above the footer passed the line-by-line scan
+                raise CaptureError(_unparsed_message(source, error)) from None
+            exc = error
+        scan = _scan(source, layout, encoding, exc, frozenset(text))
+        if scan.text_cell is not None and set(layout.fields) - set(text) - {scan.text_cell}:
+            text[scan.text_cell] = (scan.line, scan.message)
+        elif scan.message is not None:
+            raise CaptureError(scan.message) from None
+        else:
+            footer, rows = scan.footer, scan.rows
+    length = next(iter(columns.values())).size if columns else len(frame)
+    for j in text:
+        columns[j] = np.full(length, np.nan)
     if not layout.side_rows:
         _refuse_values_in_unread_cells(columns, source, layout, encoding)
-    return Body([columns[j] for j in layout.fields], footer, resolution)
+    return Body([columns[j] for j in layout.fields], footer, resolution,
+                {layout.fields.index(j): found for j, found in text.items()})
 
 
 def without_cut_last_line(source: FileSource, layout: Layout, encoding: str, body: Body) -> tuple[Body, str | None]:
@@ -226,8 +247,10 @@ def _columns(frame: pd.DataFrame, layout: Layout) -> tuple[dict[int, np.ndarray]
     return columns, resolution
 
 
-def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None) -> pd.DataFrame:
-    """Run the pandas C parser over the table (its first ``rows`` rows when given).
+def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None,
+           skipped: frozenset[int] = frozenset()) -> pd.DataFrame:
+    """Run the pandas C parser over the table (its first ``rows`` rows when given), leaving
+    out the cells ``skipped`` (columns found to hold text).
 
     A file whose first part ends its lines with a bare CR may end later lines
     otherwise (joined from pieces): the lines above the table are skipped here,
@@ -253,7 +276,7 @@ def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None) 
                 nrows=rows,
                 header=None,
                 names=list(range(layout.n_fields)),
-                usecols=list(layout.fields) if layout.side_rows else None,
+                usecols=_read_cells(layout, skipped),
                 index_col=False,
                 dtype={j: (str if j in layout.clock_fields else np.float64) for j in range(layout.n_fields)},
                 na_values=sorted(NA_TOKENS),
@@ -267,6 +290,15 @@ def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None) 
             )
     except GZIP_ERRORS as exc:
         raise CaptureError(damaged_gzip_message(source.name, exc)) from None
+
+
+def _read_cells(layout: Layout, skipped: frozenset[int]) -> list[int] | None:
+    """The cells the parser converts: every cell (None), or the table's columns when rows have
+    cells beside them, less those ``skipped``."""
+    if not skipped and not layout.side_rows:
+        return None
+    cells = layout.fields if layout.side_rows else range(layout.n_fields)
+    return [j for j in cells if j not in skipped]
 
 
 def _ascii_compatible(encoding: str) -> bool:
@@ -339,18 +371,20 @@ def _table_lines(source: FileSource, layout: Layout, encoding: str) -> Iterator[
                 yield number, line.rstrip("\r\n")
 
 
-def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> _Scan:
+def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
+          skipped: frozenset[int] = frozenset()) -> _Scan:
     """Find the first line the parser refused, and whether the table ends there (a footer follows).
 
     The table ends at a line of words or a line of another shape than its
     rows (not a damaged row such as ``1.2e-`` or ``0.5,abc``) after which the
     table's rows do not resume: whatever follows, numbers and words mixed, is
     the footer. ``RESUMED_ROWS`` rows of the table's shape in a row after it
-    mean the line broke the table instead.
+    mean the line broke the table instead. The cells ``skipped`` are not judged.
     """
     fast = row_pattern(layout.sep, layout.decimal)
     rows = 0
-    message: str | None = None
+    first: _Problem | None = None
+    first_line = 0
     footer: list[tuple[int, str]] = []
     shaped = in_a_row = 0
     for number, line in _table_lines(source, layout, encoding):
@@ -359,25 +393,31 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception) -> 
         problem = None
         quick = not layout.clock_fields and '"' not in line and fast.fullmatch(line) is not None
         if not (quick and _count_cells(line, layout.sep) <= layout.n_fields):
-            problem = _line_problem(source.name, number, line, layout)
-        if message is None:
+            problem = _line_problem(source.name, number, line, layout, skipped)
+        if first is None:
             if problem is None:
                 rows += 1
                 continue
             if not (_is_footer_text(line) or _is_other_shape(line, layout)):
-                return _Scan(problem)
-            message = problem
+                return _Scan(problem.message, text_cell=problem.text_cell, line=number)
+            first, first_line = problem, number
         table_row = problem is None and _count_cells(line, layout.sep) == layout.n_fields
         shaped, in_a_row = shaped + table_row, in_a_row + 1 if table_row else 0
         if in_a_row >= RESUMED_ROWS or len(footer) >= MAX_FOOTER_LINES:
-            return _Scan(message)
+            return _Scan(first.message, text_cell=first.text_cell, line=first_line)
         footer.append((number, line.strip()))
-    if message is None:
-        reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        return _Scan(f"{source.name}: the table body could not be parsed ({reason}); check the file")
+    if first is None:
+        return _Scan(_unparsed_message(source, exc))
     if 2 * shaped > len(footer):
-        return _Scan(message)  # mostly rows of the table after one line: that line broke the table
+        # mostly rows of the table after one line: that line broke the table
+        return _Scan(first.message, text_cell=first.text_cell, line=first_line)
     return _Scan(None, rows, tuple(footer))
+
+
+def _unparsed_message(source: FileSource, exc: Exception) -> str:
+    """Message for a table the parser refused where no line-by-line check found a fault."""
+    reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    return f"{source.name}: the table body could not be parsed ({reason}); check the file"
 
 
 def _is_footer_text(line: str) -> bool:
@@ -397,26 +437,39 @@ def _is_other_shape(line: str, layout: Layout) -> bool:
     )
 
 
-def _line_problem(name: str, number: int, line: str, layout: Layout) -> str | None:
-    """Message for a line that is not a valid table row, or None when it is one."""
+@dataclass(frozen=True)
+class _Problem:
+    """Why a line is not a row of the table; ``text_cell`` the cell, when it is text in a row of
+    numbers (that column can be left out)."""
+
+    message: str
+    text_cell: int | None = None
+
+
+def _line_problem(name: str, number: int, line: str, layout: Layout,
+                  skipped: frozenset[int] = frozenset()) -> _Problem | None:
+    """What is wrong with a line that is not a valid table row, or None when it is one (the
+    cells ``skipped`` are not judged)."""
     cells = split_line(line, layout.sep)
     if len(cells) > layout.n_fields:
-        return (
+        return _Problem(
             f"{name}, line {number}: {len(cells)} cells where the table has "
             f"{layout.n_fields} ({layout.describe_separator()}-separated); fix or delete that line"
         )
     for j, cell in enumerate(cells):
+        if j in skipped:
+            continue
         if j in layout.clock_fields:
             if is_clock(cell) or is_missing(cell):
                 continue
-            return bad_cell_message(name, number, cell)
+            return _Problem(bad_cell_message(name, number, cell))
         if is_number(cell, layout.decimal) or is_missing(cell):
             continue
         if layout.side_rows and j not in layout.fields:
             continue
         others = [c for k, c in enumerate(cells) if k != j]
         among = len(cells) == layout.n_fields and any(is_number(c, layout.decimal) for c in others)
-        return bad_cell_message(name, number, cell, among)
+        return _Problem(bad_cell_message(name, number, cell, among), j if among else None)
     return None
 
 

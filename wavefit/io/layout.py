@@ -258,11 +258,20 @@ def _row_kind(cells: list[str], decimal: str) -> str:
     return "numeric" if numbers else "missing"
 
 
+def _mostly_numbers(cells: list[str], decimal: str) -> bool:
+    """A data row with words in a few cells: its first cell (time) and most of its cells numbers."""
+    numbers = sum(1 for c in cells if is_number(c, decimal) or is_clock(c))
+    words = sum(1 for c in cells if not (is_number(c, decimal) or is_clock(c) or is_missing(c)))
+    return bool(cells) and (is_number(cells[0], decimal) or is_clock(cells[0])) and numbers > words
+
+
 def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
     """The longest run of numeric rows of one shape (blank and all-missing rows do not break it).
 
     A row with another number of cells ends a run: a count line above the
-    table, or settings written as numbers after it, are not part of it.
+    table, or settings written as numbers after it, are not part of it. A row
+    of its shape inside it with a word in a few cells (:func:`_mostly_numbers`)
+    does not end it: the body's reader leaves such a column out.
     """
     runs: list[_Run] = []
     rows: list[tuple[int, list[str]]] = []
@@ -273,6 +282,8 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
         cells = split_line(line, sep) if line is not None else []
         kind = _row_kind(cells, decimal) if line is not None else "text"
         row_shape = (len(cells), len(_strip_trailing_empty(cells)))
+        if kind == "text" and shape is not None and _same_shape(row_shape, shape) and _mostly_numbers(cells, decimal):
+            kind = "mixed"  # a word in a cell of a data row ('overflow'): the reader leaves that column out
         if kind == "numeric" and shape is not None and not _same_shape(row_shape, shape):
             runs += _run_of(rows, decimal, stop=i)
             rows, shape = [], None

@@ -92,6 +92,7 @@ def _read(path: str | os.PathLike[str], sample_interval: float | None, time_colu
         aliases=layout.aliases,
         clock_columns=frozenset(body.clock_resolution),
         printing=_printing(layout, body),
+        text_columns=body.text_cells,
     )
     capture = assemble(table, sample_interval=sample_interval, time_column=time_column)
     return replace(capture, file_state=state)
