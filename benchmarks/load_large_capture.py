@@ -12,6 +12,12 @@ Usage::
 
     python benchmarks/load_large_capture.py            # 10 million rows
     python benchmarks/load_large_capture.py --rows 1e6 --keep DIR
+    python benchmarks/load_large_capture.py --time-digits 8   # stamps rounded to 8 digits
+
+With ``--time-digits`` the time column is printed to that many significant digits, as many
+exports do, at an interval of 0.937 ns: at 8 digits most stamps are rounded to a ninth of the
+interval, and the reader rebuilds the axis as the uniform grid they are a rounding of (a
+second path through the time checks).
 """
 from __future__ import annotations
 
@@ -36,15 +42,16 @@ _CHUNK_ROWS = 500_000
 REPEATS = 5
 
 
-def write_capture(path: Path, rows: int, dt: float = 1e-9) -> None:
-    """Write ``rows`` lines of ``time,CH1 (V),CH2 (A)`` in chunks, without building the whole text."""
+def write_capture(path: Path, rows: int, dt: float = 1e-9, time_digits: int = 10) -> None:
+    """Write ``rows`` lines of ``time,CH1 (V),CH2 (A)`` in chunks, without building the whole text;
+    time printed to ``time_digits`` significant digits."""
     with open(path, "w", encoding="ascii", newline="\n") as out:
-        out.write("Sample rate,1 GSa/s\nTime (s),CH1 (V),CH2 (A)\n")
+        out.write(f"Sample interval,{dt:g} s\nTime (s),CH1 (V),CH2 (A)\n")
         for first in range(0, rows, _CHUNK_ROWS):
             index = np.arange(first, min(first + _CHUNK_ROWS, rows))
             t = index * dt
             block = np.column_stack([t, np.sin(2e6 * np.pi * t), 1e-3 * np.cos(2e6 * np.pi * t)])
-            np.savetxt(out, block, fmt=["%.9e", "%.6e", "%.6e"], delimiter=",")
+            np.savetxt(out, block, fmt=[f"%.{time_digits - 1}e", "%.6e", "%.6e"], delimiter=",")
 
 
 def load(path: Path) -> None:
@@ -103,6 +110,7 @@ def main(argv: list[str] | None = None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--rows", type=float, default=10_000_000, help="data rows (default 1e7)")
     parser.add_argument("--keep", type=Path, help="write the file into this folder and keep it")
+    parser.add_argument("--time-digits", type=int, help="significant digits of the time stamps (then 0.937 ns apart)")
     parser.add_argument("--load", type=Path, help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.load is not None:
@@ -114,7 +122,7 @@ def main(argv: list[str] | None = None) -> None:
         folder.mkdir(parents=True, exist_ok=True)
         path = folder / f"capture_{rows}.csv"
         started = time.perf_counter()
-        write_capture(path, rows)
+        write_capture(path, rows, *(() if args.time_digits is None else (0.937e-9, args.time_digits)))
         print(f"written in            {time.perf_counter() - started:.1f} s")
         sys.stdout.flush()
         subprocess.run([sys.executable, __file__, "--load", str(path)], check=True)
