@@ -133,7 +133,8 @@ def assemble(
     for i, header in enumerate(table.headers):
         if i in table.text_columns:
             line, refusal = table.text_columns[i]
-            unusable[i] = (_Unusable(f"holds text where numbers are expected (first at line {line})", ""), refusal)
+            unusable[i] = (_Unusable(f"holds text where numbers are expected (first at line {line})",
+                                     "fix or empty those cells"), refusal)
             columns.append(table.columns[i])
             continue
         try:

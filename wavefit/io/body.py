@@ -128,9 +128,8 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
             raise CaptureError(scan.message) from None
         else:
             footer, rows = scan.footer, scan.rows
-    length = next(iter(columns.values())).size if columns else len(frame)
     for j in text:
-        columns[j] = np.full(length, np.nan)
+        columns[j] = np.full(len(frame), np.nan)
     if not layout.side_rows:
         _refuse_values_in_unread_cells(columns, source, layout, encoding)
     return Body([columns[j] for j in layout.fields], footer, resolution,
