@@ -233,6 +233,71 @@ def test_text_in_two_columns_leaves_both_out_and_refuses_when_nothing_is_left(tm
     assert "line 12: found 'bad'" in _message(_write(tmp_path, "\n".join([header, *rows]), "none.csv"))
 
 
+@pytest.mark.parametrize("above", [[], ["Probe,10x,,"]])
+def test_text_on_the_first_data_row_leaves_its_column_out(tmp_path: Path, above: list[str]) -> None:
+    header = "Time (s),CH1 (V),CH2 (V),AUX (V)"
+    rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f},{np.cos(i / 5):.6f},{np.sin(i / 3):.6f}" for i in range(300)]
+    rows[0] = rows[0].rsplit(",", 1)[0] + ",OVLD"
+    path = _write(tmp_path, "\n".join([*above, header, *rows]))
+    capture = read_capture(path)
+    assert capture.rows == 300 and [c.header for c in capture.channels] == ["CH1 (V)", "CH2 (V)"]
+    assert f"line {len(above) + 2}: found 'OVLD'" in _left_out_message(path, "AUX")
+
+
+def test_text_among_numbers_in_rows_that_start_with_an_empty_cell(tmp_path: Path) -> None:
+    # a separator before the first cell of every row; the word within the lines sniffed
+    rows = [f",{i * 1e-8:.10e},{np.sin(i / 7):.6f},{np.cos(i / 5):.6f}" for i in range(300)]
+    rows[40] = rows[40].rsplit(",", 1)[0] + ",overflow"
+    path = _write(tmp_path, "\n".join([",Time (s),CH1 (V),CH2 (V)", *rows]))
+    assert read_capture(path).rows == 300
+    assert "line 42: found 'overflow'" in _left_out_message(path, "CH2")
+
+
+def test_text_among_numbers_on_a_row_with_settings_beside_it(tmp_path: Path) -> None:
+    # settings written in the leftmost cells of the first data rows, a word in one of those rows
+    data = [f"{i * 1e-7:.6e},{np.sin(i / 7):.5f},{np.cos(i / 5):.5f}" for i in range(400)]
+    side = ["Record Length,400,Points", "Sample Interval,1e-07,s", "Trigger Point,0,Samples"]
+    lines = [f"{s},{d}" for s, d in zip(side, data)] + [f",,,{d}" for d in data[3:]]
+    lines[1] = lines[1].rsplit(",", 1)[0] + ",overflow"
+    path = _write(tmp_path, "\n".join(lines))
+    capture = read_capture(path)
+    assert capture.rows == 400 and capture.sample_interval == pytest.approx(1e-7)
+    assert capture.metadata.get("Record Length") == "400 Points"
+    assert "line 2: found 'overflow'" in _left_out_message(path, 5)
+
+
+def test_a_row_with_a_cell_too_many_is_refused_after_a_column_is_left_out(tmp_path: Path) -> None:
+    # the parser given only some columns would take the shifted row's cells in the wrong places
+    rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f},{np.cos(i / 5):.6f}" for i in range(3000)]
+    rows[1000] = rows[1000].rsplit(",", 1)[0] + ",overflow"
+    rows[2000] = f"{2000e-8:.10e},0.5,0.7,0.8"
+    message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
+    assert "line 2002: 4 cells where the table has 3" in message
+
+
+def test_a_row_with_a_cell_too_many_is_refused_beside_settings(tmp_path: Path) -> None:
+    # rows with settings in their leftmost cells: the settings' cells are passed over, and a row
+    # with a cell too many is refused, not read with its cells out of place
+    data = [f"{i * 1e-7:.6e},{np.sin(i / 7):.5f},{np.cos(i / 5):.5f}" for i in range(400)]
+    side = ["Record Length,400,Points", "Sample Interval,1e-07,s", "Trigger Point,0,Samples"]
+    lines = [f"{s},{d}" for s, d in zip(side, data)] + [f",,,{d}" for d in data[3:]]
+    assert read_capture(_write(tmp_path, "\n".join(lines), "good.csv")).rows == 400
+    lines[300] += ",0.9"
+    assert "line 301: 7 cells where the table has 6" in _message(_write(tmp_path, "\n".join(lines)))
+
+
+@pytest.mark.parametrize("with_time", [True, False])
+def test_a_line_of_text_that_starts_with_a_number_is_not_a_text_column(tmp_path: Path, with_time: bool) -> None:
+    header = "Time (s),CH1 (V),CH2 (V),AUX (V)" if with_time else "CH1 (V),CH2 (V),AUX (V)"
+    rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f},{np.cos(i / 5):.6f},{np.sin(i / 3):.6f}" for i in range(3000)]
+    if not with_time:
+        rows = [r.split(",", 1)[1] for r in rows]
+    rows[2000] = "5000,trigger,event,here" if with_time else "2,segments,follow"
+    preamble = [] if with_time else ["Sample interval,1e-8"]
+    message = _message(_write(tmp_path, "\n".join([*preamble, header, *rows])))
+    assert f"line {2002 + len(preamble)}: found '{'trigger' if with_time else 'segments'}'" in message
+
+
 def test_text_in_the_time_column_is_refused(tmp_path: Path) -> None:
     rows = _rows(300)
     rows[150] = "oops," + rows[150].split(",", 1)[1]

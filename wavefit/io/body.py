@@ -24,7 +24,7 @@ import pandas as pd
 from ..errors import CaptureError
 from .cells import NA_TOKENS, WHITESPACE, is_missing, is_number, row_pattern, split_line
 from .clock import is_clock, read_clock_column
-from .layout import Layout, bad_cell_message, printed_form, split_lines
+from .layout import Layout, bad_cell_message, mostly_numbers, printed_form, split_lines
 from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
 
@@ -261,12 +261,13 @@ def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None,
     # absolute path (pandas would expand a leading "~") and read as it is (pandas would infer a
     # compression from the name: a plain file called .gz, .zip, .xz … was read as text before)
     by_path = not source.compressed and encoding == "utf-8" and terminator != "\r"
+    beside = sorted(set(range(layout.n_fields)) - set(layout.fields)) if layout.side_rows else []
     try:
         with nullcontext(os.path.abspath(source.path)) if by_path else source.open_binary() as target:
             if terminator == "\r" and _ascii_compatible(encoding):
                 _skip_lines(target, skip, b"\r")
                 skip, terminator = 0, None
-            return pd.read_csv(
+            frame = pd.read_csv(
                 target,
                 engine="c",
                 sep=r"\s+" if layout.sep == WHITESPACE else layout.sep,
@@ -275,9 +276,14 @@ def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None,
                 nrows=rows,
                 header=None,
                 names=list(range(layout.n_fields)),
-                usecols=_read_cells(layout, skipped),
                 index_col=False,
-                dtype={j: (str if j in layout.clock_fields else np.float64) for j in range(layout.n_fields)},
+                # the cells beside the table (settings, mostly empty) and those skipped are passed
+                # over, not left out of the parse (usecols): the parser then still counts every
+                # row's cells, where given some columns only it takes a row with a cell too many as
+                # if its cells were in their places
+                dtype={j: (object if j in beside else str if j in layout.clock_fields else np.float64)
+                       for j in range(layout.n_fields) if j not in skipped},
+                converters={j: _passed_over for j in skipped} or None,
                 na_values=sorted(NA_TOKENS),
                 keep_default_na=False,
                 skip_blank_lines=True,
@@ -289,15 +295,13 @@ def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None,
             )
     except GZIP_ERRORS as exc:
         raise CaptureError(damaged_gzip_message(source.name, exc)) from None
+    return frame.drop(columns=[*beside, *skipped]) if beside or skipped else frame
 
 
-def _read_cells(layout: Layout, skipped: frozenset[int]) -> list[int] | None:
-    """The cells the parser converts: every cell (None), or the table's columns when rows have
-    cells beside them, less those ``skipped``."""
-    if not skipped and not layout.side_rows:
-        return None
-    cells = layout.fields if layout.side_rows else range(layout.n_fields)
-    return [j for j in cells if j not in skipped]
+def _passed_over(cell: str) -> None:
+    """A cell of a column left out for its text (a converter keeps no value: a text column of
+    ten million cells would otherwise be held as as many strings)."""
+    return None
 
 
 def _ascii_compatible(encoding: str) -> bool:
@@ -468,7 +472,9 @@ def _line_problem(name: str, number: int, line: str, layout: Layout,
             continue
         others = [c for k, c in enumerate(cells) if k != j]
         among = len(cells) == layout.n_fields and any(is_number(c, layout.decimal) for c in others)
-        return _Problem(bad_cell_message(name, number, cell, among), j if among else None)
+        data = [c for k, c in enumerate(cells) if k in layout.fields] if layout.side_rows else cells
+        column = among and mostly_numbers(data, layout.decimal)  # not a line of text that starts with a number
+        return _Problem(bad_cell_message(name, number, cell, among), j if column else None)
     return None
 
 

@@ -258,11 +258,13 @@ def _row_kind(cells: list[str], decimal: str) -> str:
     return "numeric" if numbers else "missing"
 
 
-def _mostly_numbers(cells: list[str], decimal: str) -> bool:
-    """A data row with words in a few cells: its first cell (time) and most of its cells numbers."""
-    numbers = sum(1 for c in cells if is_number(c, decimal) or is_clock(c))
-    words = sum(1 for c in cells if not (is_number(c, decimal) or is_clock(c) or is_missing(c)))
-    return bool(cells) and (is_number(cells[0], decimal) or is_clock(cells[0])) and numbers > words
+def mostly_numbers(cells: list[str], decimal: str) -> bool:
+    """A data row with words in some cells (``overflow``): its first filled cell (time) a number
+    and no more words than numbers; a line of text that starts with a number
+    (``5000,trigger,event,here``) is not one."""
+    filled = [c for c in cells if not is_missing(c)]
+    numbers = sum(1 for c in filled if is_number(c, decimal) or is_clock(c))
+    return bool(filled) and (is_number(filled[0], decimal) or is_clock(filled[0])) and 2 * numbers >= len(filled)
 
 
 def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
@@ -270,30 +272,36 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
 
     A row with another number of cells ends a run: a count line above the
     table, or settings written as numbers after it, are not part of it. A row
-    of its shape inside it with a word in a few cells (:func:`_mostly_numbers`)
-    does not end it: the body's reader leaves such a column out.
+    of its shape with a word in some cells (:func:`mostly_numbers`) inside it, or
+    first in it, does not end it: the body's reader leaves such a column out.
     """
     runs: list[_Run] = []
     rows: list[tuple[int, list[str]]] = []
     shape: tuple[int, int] | None = None  # cells, and cells without the empty ones at the end
+    first: tuple[int, list[str]] | None = None  # such a row before any numeric one: kept if they follow
     for i, line in enumerate([*lines, None]):
         if line is not None and not line.strip():
             continue
         cells = split_line(line, sep) if line is not None else []
         kind = _row_kind(cells, decimal) if line is not None else "text"
         row_shape = (len(cells), len(_strip_trailing_empty(cells)))
-        if kind == "text" and shape is not None and _same_shape(row_shape, shape) and _mostly_numbers(cells, decimal):
+        mixed = kind == "text" and line is not None and mostly_numbers(cells, decimal)
+        if mixed and shape is not None and _same_shape(row_shape, shape):
             kind = "mixed"  # a word in a cell of a data row ('overflow'): the reader leaves that column out
         if kind == "numeric" and shape is not None and not _same_shape(row_shape, shape):
             runs += _run_of(rows, decimal, stop=i)
             rows, shape = [], None
         if kind != "text":
-            rows.append((i, cells))
             if kind == "numeric" and shape is None:
                 shape = row_shape
+                if first is not None and _same_shape((len(first[1]), len(_strip_trailing_empty(first[1]))), shape):
+                    rows.insert(0, first)
+            first = None
+            rows.append((i, cells))
             continue
         runs += _run_of(rows, decimal, stop=i)
         rows, shape = [], None
+        first = (i, cells) if mixed else None
     return max(runs, key=lambda r: r.numeric_rows, default=None)
 
 
@@ -330,9 +338,9 @@ def _with_side_rows(
     at = _previous_nonblank(lines, run.start)
     while at is not None and len(side) < _MAX_SIDE_ROWS:
         cells = split_line(lines[at], sep)
-        if len(cells) > run.n_fields or any(
-            j >= len(cells) or not (is_number(cells[j], decimal) or is_clock(cells[j])) for j in run.filled
-        ):
+        data = [cells[j] if j < len(cells) else "" for j in sorted(run.filled)]
+        # (a word among them, 'overflow', is read as in any data row: its column is left out)
+        if len(cells) > run.n_fields or any(is_missing(c) for c in data) or not mostly_numbers(data, decimal):
             break
         settings = [c for j, c in enumerate(cells) if j not in run.filled and not is_missing(c)]
         if any(is_number(c, decimal) for c in settings[:1]):
