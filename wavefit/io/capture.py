@@ -3,7 +3,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from functools import cached_property
-from typing import TYPE_CHECKING, Any, Callable
+from typing import TYPE_CHECKING, Any, Sequence
 
 import numpy as np
 
@@ -54,6 +54,19 @@ class LeftOut:
     message: str
 
 
+def _named(columns: Sequence[Channel | LeftOut], key: str) -> Channel | LeftOut | None:
+    """The column called ``key``: by exact header, else by header without unit, else the one
+    whose name is ``key`` but for case; None when there is none (or several such)."""
+    for column in columns:
+        if column.header == key:
+            return column
+    for column in columns:
+        if column.name == key:
+            return column
+    lowered = [column for column in columns if column.name.lower() == str(key).lower()]
+    return lowered[0] if len(lowered) == 1 else None
+
+
 @dataclass(frozen=True)
 class Capture:
     """A uniformly sampled record: SI time axis, named channels, metadata.
@@ -100,16 +113,10 @@ class Capture:
             raise SetupError(f"column {key!r} is not a column name or index")
         if isinstance(key, (int, np.integer)):
             return self._channel_at(int(key))
-        for ch in self.channels:
-            if ch.header == key:
-                return ch
-        for ch in self.channels:
-            if ch.name == key:
-                return ch
-        lowered = [ch for ch in self.channels if ch.name.lower() == str(key).lower()]
-        if len(lowered) == 1:
-            return lowered[0]
-        self._refuse_left_out(lambda c: key in (c.header, c.name) or c.name.lower() == str(key).lower())
+        found = _named(self.channels, key)
+        if found is not None:
+            return found
+        self._refuse_left_out(_named(self.left_out, key))
         names = ", ".join(repr(c.header) for c in self.channels)
         raise SetupError(f"no column {key!r} in {self.source}; columns are: {names}")
 
@@ -126,19 +133,19 @@ class Capture:
         for ch in self.channels:
             if ch.position == index:
                 return ch
-        self._refuse_left_out(lambda c: c.position == index)
+        self._refuse_left_out(next((c for c in self.left_out if c.position == index), None))
         places = sorted({ch.position for ch in self.channels if ch.position is not None}
                         | ({self.time_position} if self.time_position is not None else set()))
         listed = ", ".join(str(p) for p in places)
         raise SetupError(f"column index {index} is not a column of {self.source}; its columns are at {listed}")
 
-    def _refuse_left_out(self, asked: Callable[[LeftOut], bool]) -> None:
-        """Raise the reader's refusal of a left-out column that ``asked`` picks."""
+    @staticmethod
+    def _refuse_left_out(column: LeftOut | None) -> None:
+        """Raise the reader's refusal of a left-out column asked for (nothing for None)."""
         from ..errors import CaptureError
 
-        for column in self.left_out:
-            if asked(column):
-                raise CaptureError(column.message)
+        if column is not None:
+            raise CaptureError(column.message)
 
     def column_headers(self) -> list[str]:
         """All headers in file order, the time column included (first, when the places are not known)."""
