@@ -129,18 +129,18 @@ def assemble(
     ]
     # a column that cannot be used is left out, and refused only where it is needed: as the
     # time axis, or by a setup that maps it (scopes export the channels that were switched off)
-    columns, unusable = [], {}
+    columns: list[np.ndarray] = []
+    unusable: dict[int, tuple[str, str]] = {}  # what the column holds, and the refusal where it is needed
     for i, header in enumerate(table.headers):
         if i in table.text_columns:
             line, refusal = table.text_columns[i]
-            unusable[i] = (_Unusable(f"holds text where numbers are expected (first at line {line})",
-                                     "fix or empty those cells"), refusal)
+            unusable[i] = (f"holds text where numbers are expected (first at line {line})", refusal)
             columns.append(table.columns[i])
             continue
         try:
             columns.append(_filled(table, i, warnings))
         except _Unusable as exc:
-            unusable[i] = (exc, f"{table.source}: column {header!r} {exc.reason}; {exc.advice}")
+            unusable[i] = (exc.reason, f"{table.source}: column {header!r} {exc.reason}; {exc.advice}")
             columns.append(table.columns[i])
     notes: list[str] = []
     time_index = _time_index(table, units, time_column)
@@ -165,7 +165,7 @@ def assemble(
         raise CaptureError(
             f"{table.source} has only the time column {time_header!r} and no signal column"
         )
-    warnings += [f"column {table.headers[i]!r} {unusable[i][0].reason}: left out (a setup that uses it "
+    warnings += [f"column {table.headers[i]!r} {unusable[i][0]}: left out (a setup that uses it "
                  "is refused)" for i in signal if i in unusable]
     warnings += _scales_not_applied(channels, table.preamble.metadata)
     return Capture(
