@@ -70,15 +70,22 @@ class Body:
 
 
 @dataclass(frozen=True)
-class _Scan:
-    """What a line-by-line pass found: a bad line's message (and the cell, when it is text in a
-    row of numbers), or where a text footer starts."""
+class _Problem:
+    """Why a line is not a row of the table, its line number (0 when no line is named), and
+    ``text_cell`` the cell when it is text in a row of numbers (that column can be left out)."""
 
-    message: str | None
+    message: str
+    line: int = 0
+    text_cell: int | None = None
+
+
+@dataclass(frozen=True)
+class _Scan:
+    """What a line-by-line pass found: the first bad line's problem, or where a text footer starts."""
+
+    problem: _Problem | None
     rows: int = 0
     footer: tuple[tuple[int, str], ...] = ()
-    text_cell: int | None = None
-    line: int = 0
 
 
 def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
@@ -122,12 +129,13 @@ def read_body(source: FileSource, layout: Layout, encoding: str) -> Body:
                 raise CaptureError(_unparsed_message(source, error)) from None
             exc = error
         scan = _scan(source, layout, encoding, exc, frozenset(text))
-        if scan.text_cell is not None and set(layout.fields) - set(text) - {scan.text_cell}:
-            text[scan.text_cell] = (scan.line, scan.message)
-        elif scan.message is not None:
-            raise CaptureError(scan.message) from None
-        else:
+        problem = scan.problem
+        if problem is None:
             footer, rows = scan.footer, scan.rows
+        elif problem.text_cell is not None and set(layout.fields) - set(text) - {problem.text_cell}:
+            text[problem.text_cell] = (problem.line, problem.message)
+        else:
+            raise CaptureError(problem.message) from None
     for j in text:
         columns[j] = np.full(len(frame), np.nan)
     if not layout.side_rows:
@@ -387,7 +395,6 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
     fast = row_pattern(layout.sep, layout.decimal)
     rows = 0
     first: _Problem | None = None
-    first_line = 0
     footer: list[tuple[int, str]] = []
     shaped = in_a_row = 0
     for number, line in _table_lines(source, layout, encoding):
@@ -402,18 +409,17 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
                 rows += 1
                 continue
             if not (_is_footer_text(line) or _is_other_shape(line, layout)):
-                return _Scan(problem.message, text_cell=problem.text_cell, line=number)
-            first, first_line = problem, number
+                return _Scan(problem)
+            first = problem
         table_row = problem is None and _count_cells(line, layout.sep) == layout.n_fields
         shaped, in_a_row = shaped + table_row, in_a_row + 1 if table_row else 0
         if in_a_row >= RESUMED_ROWS or len(footer) >= MAX_FOOTER_LINES:
-            return _Scan(first.message, text_cell=first.text_cell, line=first_line)
+            return _Scan(first)
         footer.append((number, line.strip()))
     if first is None:
-        return _Scan(_unparsed_message(source, exc))
+        return _Scan(_Problem(_unparsed_message(source, exc)))
     if 2 * shaped > len(footer):
-        # mostly rows of the table after one line: that line broke the table
-        return _Scan(first.message, text_cell=first.text_cell, line=first_line)
+        return _Scan(first)  # mostly rows of the table after one line: that line broke the table
     return _Scan(None, rows, tuple(footer))
 
 
@@ -440,15 +446,6 @@ def _is_other_shape(line: str, layout: Layout) -> bool:
     )
 
 
-@dataclass(frozen=True)
-class _Problem:
-    """Why a line is not a row of the table; ``text_cell`` the cell, when it is text in a row of
-    numbers (that column can be left out)."""
-
-    message: str
-    text_cell: int | None = None
-
-
 def _line_problem(name: str, number: int, line: str, layout: Layout,
                   skipped: frozenset[int] = frozenset()) -> _Problem | None:
     """What is wrong with a line that is not a valid table row, or None when it is one (the
@@ -457,7 +454,7 @@ def _line_problem(name: str, number: int, line: str, layout: Layout,
     if len(cells) > layout.n_fields:
         return _Problem(
             f"{name}, line {number}: {len(cells)} cells where the table has "
-            f"{layout.n_fields} ({layout.describe_separator()}-separated); fix or delete that line"
+            f"{layout.n_fields} ({layout.describe_separator()}-separated); fix or delete that line", number
         )
     for j, cell in enumerate(cells):
         if j in skipped:
@@ -465,7 +462,7 @@ def _line_problem(name: str, number: int, line: str, layout: Layout,
         if j in layout.clock_fields:
             if is_clock(cell) or is_missing(cell):
                 continue
-            return _Problem(bad_cell_message(name, number, cell))
+            return _Problem(bad_cell_message(name, number, cell), number)
         if is_number(cell, layout.decimal) or is_missing(cell):
             continue
         if layout.side_rows and j not in layout.fields:
@@ -474,7 +471,7 @@ def _line_problem(name: str, number: int, line: str, layout: Layout,
         among = len(cells) == layout.n_fields and any(is_number(c, layout.decimal) for c in others)
         data = [c for k, c in enumerate(cells) if k in layout.fields] if layout.side_rows else cells
         column = among and mostly_numbers(data, layout.decimal)  # not a line of text that starts with a number
-        return _Problem(bad_cell_message(name, number, cell, among), j if column else None)
+        return _Problem(bad_cell_message(name, number, cell, among), number, j if column else None)
     return None
 
 

@@ -278,7 +278,7 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
     runs: list[_Run] = []
     rows: list[tuple[int, list[str]]] = []
     shape: tuple[int, int] | None = None  # cells, and cells without the empty ones at the end
-    first: tuple[int, list[str]] | None = None  # such a row before any numeric one: kept if they follow
+    first: tuple[tuple[int, list[str]], tuple[int, int]] | None = None  # such a row (and shape) first
     for i, line in enumerate([*lines, None]):
         if line is not None and not line.strip():
             continue
@@ -294,14 +294,14 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
         if kind != "text":
             if kind == "numeric" and shape is None:
                 shape = row_shape
-                if first is not None and _same_shape((len(first[1]), len(_strip_trailing_empty(first[1]))), shape):
-                    rows.insert(0, first)
+                if first is not None and _same_shape(first[1], shape):
+                    rows.insert(0, first[0])  # kept when numeric rows of its shape follow it
             first = None
             rows.append((i, cells))
             continue
         runs += _run_of(rows, decimal, stop=i)
         rows, shape = [], None
-        first = (i, cells) if mixed else None
+        first = ((i, cells), row_shape) if mixed else None
     return max(runs, key=lambda r: r.numeric_rows, default=None)
 
 
