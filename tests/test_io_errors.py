@@ -108,16 +108,20 @@ def test_text_only(tmp_path: Path) -> None:
 
 
 @pytest.mark.parametrize("header", [True, False], ids=["named", "unnamed"])
-def test_a_column_of_text_beside_the_numbers_is_named(tmp_path: Path, header: bool) -> None:
-    # a status column ("ok", "TRIG") in every row: no line is all numbers, and the message says
-    # which column holds the text (by its header, else its place), from the first data line on
+def test_a_column_of_text_beside_the_numbers_is_left_out(tmp_path: Path, header: bool) -> None:
+    # a status column ("ok", "TRIG") in every row: no line is all numbers; the column is left out
+    # with a warning and the others are read; a setup that maps it gets the refusal naming the
+    # first data line's cell
     rows = [f"{i * 1e-8:.10e};{np.sin(i / 7):.6f};{'TRIG' if i == 0 else 'ok'};{np.cos(i / 5):.6f}".replace(".", ",")
             for i in range(300)]
     lines = ["# recorder export", *(["Time (s);CH1 (V);Status;CH2 (V)"] if header else []), *rows]
-    message = _message(_write(tmp_path, "\n".join(lines) + "\n"))
-    first = 3 if header else 2
-    assert f"line {first} on" in message and "'TRIG'" in message and "semicolon" in message
-    assert ("'Status'" if header else "cell 3") in message
+    path = _write(tmp_path, "\n".join(lines) + "\n")
+    capture = read_capture(path, **({} if header else {"time_column": 0}))
+    assert capture.rows == 300 and len(capture.channels) == 2
+    assert np.array_equal(capture.channels[1].values, [np.cos(i / 5).round(6) for i in range(300)])
+    with pytest.raises(CaptureError, match=f"line {3 if header else 2}: found 'TRIG'"):
+        capture.channel("Status" if header else 2)
+    assert [w for w in capture.warnings if "holds text where numbers are expected" in w]
 
 
 @pytest.mark.parametrize("line", [
@@ -131,11 +135,12 @@ def test_lines_of_prose_or_a_log_are_not_taken_for_a_text_column(tmp_path: Path,
     assert "no data rows" in message and "text in" not in message
 
 
-def test_a_text_column_is_named_when_a_footer_follows_the_table(tmp_path: Path) -> None:
+def test_a_text_column_is_left_out_when_a_footer_follows_the_table(tmp_path: Path) -> None:
     rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f},ok" for i in range(50)]
-    text = "\n".join(["Time (s),CH1 (V),Flag", *rows, "", "Settings", "Probe: 10X"]) + "\n"
-    message = _message(_write(tmp_path, text))
-    assert "line 2 on" in message and "'Flag'" in message and "comma" in message
+    path = _write(tmp_path, "\n".join(["Time (s),CH1 (V),Flag", *rows, "", "Settings", "Probe: 10X"]) + "\n")
+    capture = read_capture(path)
+    assert capture.rows == 50 and [c.header for c in capture.channels] == ["CH1 (V)"]
+    assert "line 2: found 'ok'" in _left_out_message(path, "Flag")
 
 
 def test_too_few_rows(tmp_path: Path) -> None:

@@ -15,7 +15,7 @@ columns a second name. Everything above is the preamble.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from ..errors import CaptureError
 from .cells import WHITESPACE, is_missing, is_number, split_line
@@ -100,7 +100,9 @@ class Layout:
 
 @dataclass(frozen=True)
 class _Run:
-    """A run of numeric rows under one reading: lines ``start..stop-1`` (0-based)."""
+    """A run of numeric rows under one reading: lines ``start..stop-1`` (0-based); ``word_rows``
+    of its rows have words in some cells (:func:`mostly_numbers`), with ``word_row_numbers``
+    numbers among them."""
 
     start: int
     stop: int
@@ -109,6 +111,8 @@ class _Run:
     n_used: int
     filled: frozenset[int]
     clocks: frozenset[int] = frozenset()
+    word_rows: int = 0
+    word_row_numbers: int = 0
 
 
 def split_lines(text: str) -> list[str]:
@@ -156,7 +160,10 @@ def sniff_layout(text: str, *, complete: bool, source: str, max_lines: int = 200
                 continue
             above = _line_above(lines, run.start)
             header_fits = above is not None and _header_cells(lines[above], sep, run) is not None
-            score = (run.numeric_rows, header_fits, run.n_used, -priority)
+            # a table whose every row has a word (a status column) is scored by its numbers: a
+            # wrong reading splits some of them into words ('0,5;1,2' read with commas)
+            score = (run.numeric_rows, 0 if run.numeric_rows else run.word_row_numbers, header_fits, run.n_used,
+                     -priority)
             if best is None or score > best[0]:
                 best = (score, sep, decimal, run)
     if best is None:
@@ -267,42 +274,45 @@ def mostly_numbers(cells: list[str], decimal: str) -> bool:
     return bool(filled) and (is_number(filled[0], decimal) or is_clock(filled[0])) and 2 * numbers >= len(filled)
 
 
+#: Consecutive rows of one shape with words in some cells and numbers in more of the others
+#: (or as many) that make a table with a column of text (a status or flag column), not lines of
+#: prose: a run of such rows only is read as a table, and named in the refusal otherwise.
+_TEXT_COLUMN_ROWS = 10
+
+
 def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
     """The longest run of numeric rows of one shape (blank and all-missing rows do not break it).
 
     A row with another number of cells ends a run: a count line above the
     table, or settings written as numbers after it, are not part of it. A row
-    of its shape with a word in some cells (:func:`mostly_numbers`) inside it, or
-    first in it, does not end it: the body's reader leaves such a column out.
+    with a word in some cells (:func:`mostly_numbers`) belongs to a run of its
+    shape: the body's reader leaves such a column out. A run of such rows only
+    (a status column) counts when it has at least :data:`_TEXT_COLUMN_ROWS` rows.
     """
     runs: list[_Run] = []
     rows: list[tuple[int, list[str]]] = []
     shape: tuple[int, int] | None = None  # cells, and cells without the empty ones at the end
-    first: tuple[tuple[int, list[str]], tuple[int, int]] | None = None  # such a row (and shape) first
     for i, line in enumerate([*lines, None]):
         if line is not None and not line.strip():
             continue
         cells = split_line(line, sep) if line is not None else []
         kind = _row_kind(cells, decimal) if line is not None else "text"
         row_shape = (len(cells), len(_strip_trailing_empty(cells)))
-        mixed = kind == "text" and line is not None and mostly_numbers(cells, decimal)
-        if mixed and shape is not None and _same_shape(row_shape, shape):
-            kind = "mixed"  # a word in a cell of a data row ('overflow'): the reader leaves that column out
-        if kind == "numeric" and shape is not None and not _same_shape(row_shape, shape):
+        if kind == "text" and line is not None and mostly_numbers(cells, decimal) and (
+                shape is None or _same_shape(row_shape, shape)):
+            kind = "words"  # a word in a cell of a data row ('overflow'): the reader leaves that column out
+        if kind in ("numeric", "words") and shape is not None and not _same_shape(row_shape, shape):
             runs += _run_of(rows, decimal, stop=i)
             rows, shape = [], None
         if kind != "text":
-            if kind == "numeric" and shape is None:
+            if kind != "missing" and shape is None:
                 shape = row_shape
-                if first is not None and _same_shape(first[1], shape):
-                    rows.insert(0, first[0])  # kept when numeric rows of its shape follow it
-            first = None
             rows.append((i, cells))
             continue
         runs += _run_of(rows, decimal, stop=i)
         rows, shape = [], None
-        first = ((i, cells), row_shape) if mixed else None
-    return max(runs, key=lambda r: r.numeric_rows, default=None)
+    runs = [r for r in runs if r.numeric_rows or r.word_rows >= _TEXT_COLUMN_ROWS]
+    return max(runs, key=lambda r: (r.numeric_rows, r.word_row_numbers), default=None)
 
 
 def _same_shape(row: tuple[int, int], run: tuple[int, int]) -> bool:
@@ -312,15 +322,21 @@ def _same_shape(row: tuple[int, int], run: tuple[int, int]) -> bool:
 
 
 def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> list[_Run]:
-    """The run made of consecutive non-text rows ``(index, cells)`` of one shape, or none."""
-    numeric = [cells for _, cells in rows if _row_kind(cells, decimal) == "numeric"]
-    if not numeric:
+    """The run made of consecutive non-text rows ``(index, cells)`` of one shape, or none; its
+    columns are those filled in its numeric rows (in its rows with words, when it has no other)."""
+    kinds = [_row_kind(cells, decimal) for _, cells in rows]
+    numeric = [cells for (_, cells), kind in zip(rows, kinds) if kind == "numeric"]
+    words = [cells for (_, cells), kind in zip(rows, kinds) if kind == "text"]
+    data = numeric or words  # (every row with a word: a status column)
+    if not data:
         return []
-    filled = {j for cells in numeric for j, cell in enumerate(cells) if not is_missing(cell)}
-    clocks = {j for cells in numeric for j, cell in enumerate(cells) if is_clock(cell)}
-    used = max(len(_strip_trailing_empty(cells)) for cells in numeric)
+    filled = {j for cells in data for j, cell in enumerate(cells) if not is_missing(cell)}
+    clocks = {j for cells in data for j, cell in enumerate(cells) if is_clock(cell)}
+    used = max(len(_strip_trailing_empty(cells)) for cells in data)
     width = max(len(cells) for _, cells in rows)
-    return [_Run(rows[0][0], stop, len(numeric), width, used, frozenset(filled), frozenset(clocks))]
+    numbers = sum(1 for cells in words for c in cells if is_number(c, decimal) or is_clock(c))
+    return [_Run(rows[0][0], stop, len(numeric), width, used, frozenset(filled), frozenset(clocks), len(words),
+                 numbers)]
 
 
 def _with_side_rows(
@@ -351,8 +367,7 @@ def _with_side_rows(
         at = _previous_nonblank(lines, at)
     if not side:
         return run, ()
-    extended = _Run(start, run.stop, run.numeric_rows + len(side), run.n_fields,
-                    run.n_used, run.filled, run.clocks)
+    extended = replace(run, start=start, numeric_rows=run.numeric_rows + len(side))
     return extended, tuple(reversed(side))
 
 
@@ -526,11 +541,6 @@ def _no_table_message(lines: list[str], complete: bool, source: str) -> str:
         f"{source}: no line of numbers in its first {len(lines)} lines; "
         "is it a waveform table in CSV text?"
     )
-
-
-#: Consecutive rows of one shape with text in the same cells, and numbers in more of the others,
-#: that make a table with a column of text (a status or flag column), not lines of prose.
-_TEXT_COLUMN_ROWS = 10
 
 
 def _text_column_message(lines: list[str], source: str) -> str | None:
