@@ -135,6 +135,16 @@ def test_lines_of_prose_or_a_log_are_not_taken_for_a_text_column(tmp_path: Path,
     assert "no data rows" in message and "text in" not in message
 
 
+def test_a_count_line_above_a_table_of_two_columns_is_not_a_row_with_a_word(tmp_path: Path) -> None:
+    # '200,points' has the shape of the rows below and a number first; as the first row of the
+    # table its word would be a text column and 200 a time: it stays a line above the table
+    rows = [f"{i * 1e-6:.6e},{np.sin(i / 9):.5f}" for i in range(200)]
+    message = _message(_write(tmp_path, "\n".join(["200,points", *rows]) + "\n"))
+    assert "line 1: found 'points'" in message and "delete that line" in message
+    capture = read_capture(_write(tmp_path, "\n".join(["200,points", "Time (s),CH1 (V)", *rows]) + "\n", "named.csv"))
+    assert capture.rows == 200 and [c.header for c in capture.channels] == ["CH1 (V)"] and not capture.left_out
+
+
 def test_a_text_column_is_left_out_when_a_footer_follows_the_table(tmp_path: Path) -> None:
     rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f},ok" for i in range(50)]
     path = _write(tmp_path, "\n".join(["Time (s),CH1 (V),Flag", *rows, "", "Settings", "Probe: 10X"]) + "\n")

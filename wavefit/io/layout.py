@@ -265,12 +265,17 @@ def _row_kind(cells: list[str], decimal: str) -> str:
     return "numeric" if numbers else "missing"
 
 
+def _numbers(cells: list[str], decimal: str) -> int:
+    """How many of the cells are numbers (a clock stamp counts as one)."""
+    return sum(1 for c in cells if is_number(c, decimal) or is_clock(c))
+
+
 def mostly_numbers(cells: list[str], decimal: str) -> bool:
     """A data row with words in some cells (``overflow``): its first filled cell (time) a number
     and no more words than numbers; a line of text that starts with a number
     (``5000,trigger,event,here``) is not one."""
     filled = [c for c in cells if not is_missing(c)]
-    numbers = sum(1 for c in filled if is_number(c, decimal) or is_clock(c))
+    numbers = _numbers(filled, decimal)
     return bool(filled) and (is_number(filled[0], decimal) or is_clock(filled[0])) and 2 * numbers >= len(filled)
 
 
@@ -299,8 +304,10 @@ def _longest_run(lines: list[str], sep: str, decimal: str) -> _Run | None:
         kind = _row_kind(cells, decimal) if line is not None else "text"
         row_shape = (len(cells), len(_strip_trailing_empty(cells)))
         if kind == "text" and line is not None and mostly_numbers(cells, decimal) and (
-                shape is None or _same_shape(row_shape, shape)):
-            kind = "words"  # a word in a cell of a data row ('overflow'): the reader leaves that column out
+                _same_shape(row_shape, shape) if shape is not None else _numbers(cells, decimal) >= 2):
+            # a word in a cell of a data row ('overflow'): the reader leaves that column out (one
+            # that starts a run has two numbers at least: '1000,points' above a table is no row)
+            kind = "words"
         if kind in ("numeric", "words") and shape is not None and not _same_shape(row_shape, shape):
             runs += _run_of(rows, decimal, stop=i)
             rows, shape = [], None
@@ -334,7 +341,7 @@ def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> list[
     clocks = {j for cells in data for j, cell in enumerate(cells) if is_clock(cell)}
     used = max(len(_strip_trailing_empty(cells)) for cells in data)
     width = max(len(cells) for _, cells in rows)
-    numbers = sum(1 for cells in words for c in cells if is_number(c, decimal) or is_clock(c))
+    numbers = sum(_numbers(cells, decimal) for cells in words)
     return [_Run(rows[0][0], stop, len(numeric), width, used, frozenset(filled), frozenset(clocks), len(words),
                  numbers)]
 
