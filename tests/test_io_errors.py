@@ -145,6 +145,32 @@ def test_a_count_line_above_a_table_of_two_columns_is_not_a_row_with_a_word(tmp_
     assert capture.rows == 200 and [c.header for c in capture.channels] == ["CH1 (V)"] and not capture.left_out
 
 
+def test_settings_lines_shaped_like_rows_are_not_rows_with_words(tmp_path: Path) -> None:
+    # '10,V/div,0' above a headerless table, '2,channels' or '10,V/div,0' after one: a number
+    # first and no more words than numbers, but their first values do not continue the time
+    rows = [f"{i * 1e-6:.6e},{np.sin(i / 9):.5f},{np.cos(i / 7):.5f}" for i in range(3000)]
+    above = _message(_write(tmp_path, "\n".join(["10,V/div,0", "5,V/div,0", *rows]) + "\n", "above.csv"))
+    assert "line 2: found 'V/div'" in above and "delete that line" in above
+    header = "Time (s),CH1 (V),CH2 (V)"
+    after = _message(_write(tmp_path, "\n".join([header, *rows, "10,V/div,0", "5,V/div,0"]) + "\n", "after.csv"))
+    assert "line 3002: found 'V/div'" in after
+    two = [r.rsplit(",", 1)[0] for r in rows]
+    footer = _message(_write(tmp_path, "\n".join(["Time (s),CH1 (V)", *two, "2,channels", "3000,points"]) + "\n"))
+    assert "line 3002: found 'channels'" in footer
+
+
+@pytest.mark.parametrize("clock", [False, True])
+def test_two_status_columns_are_both_left_out(tmp_path: Path, clock: bool) -> None:
+    def stamp(i: int) -> str:
+        return f"11:44:{55 + i // 100000:02d}.{i % 100000 * 10:06d}" if clock else f"{i * 1e-8:.9e}"
+
+    rows = [f"{stamp(i)},{np.sin(i / 7):.5f},{np.cos(i / 5):.5f},ok,CH1" for i in range(300)]
+    path = _write(tmp_path, "\n".join(["Time,CH1 (V),CH2 (V),Status,Source", *rows]) + "\n")
+    capture = read_capture(path)
+    assert capture.rows == 300 and [c.header for c in capture.channels] == ["CH1 (V)", "CH2 (V)"]
+    assert [c.header for c in capture.left_out] == ["Status", "Source"]
+
+
 def test_a_text_column_is_left_out_when_a_footer_follows_the_table(tmp_path: Path) -> None:
     rows = [f"{i * 1e-8:.10e},{np.sin(i / 7):.6f},ok" for i in range(50)]
     path = _write(tmp_path, "\n".join(["Time (s),CH1 (V),Flag", *rows, "", "Settings", "Probe: 10X"]) + "\n")

@@ -24,7 +24,7 @@ import pandas as pd
 from ..errors import CaptureError
 from .cells import NA_TOKENS, WHITESPACE, is_missing, is_number, row_pattern, split_line
 from .clock import is_clock, read_clock_column
-from .layout import Layout, bad_cell_message, mostly_numbers, printed_form, split_lines
+from .layout import Layout, bad_cell_message, first_value, in_step, mostly_numbers, printed_form, split_lines
 from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
 
@@ -392,22 +392,23 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
     the footer. ``RESUMED_ROWS`` rows of the table's shape in a row after it
     mean the line broke the table instead. The cells ``skipped`` are not judged.
     """
-    fast = row_pattern(layout.sep, layout.decimal)
     rows = 0
     first: _Problem | None = None
     footer: list[tuple[int, str]] = []
     shaped = in_a_row = 0
+    recent: list[str] = []  # the last two rows that read
     for number, line in _table_lines(source, layout, encoding):
         if not line.strip():
             continue
-        problem = None
-        quick = not layout.clock_fields and '"' not in line and fast.fullmatch(line) is not None
-        if not (quick and _count_cells(line, layout.sep) <= layout.n_fields):
-            problem = _line_problem(source.name, number, line, layout, skipped)
+        problem = _line_problem_fast(source.name, number, line, layout, skipped)
         if first is None:
             if problem is None:
                 rows += 1
+                recent = [*recent[-1:], line]
                 continue
+            if problem.text_cell is not None and not _in_step(source, layout, encoding, line, recent, problem,
+                                                                skipped):
+                problem = replace(problem, text_cell=None)  # a line shaped like a row: '2,channels'
             if not (_is_footer_text(line) or _is_other_shape(line, layout)):
                 return _Scan(problem)
             first = problem
@@ -421,6 +422,50 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
     if 2 * shaped > len(footer):
         return _Scan(first)  # mostly rows of the table after one line: that line broke the table
     return _Scan(None, rows, tuple(footer))
+
+
+def _line_problem_fast(name: str, number: int, line: str, layout: Layout,
+                       skipped: frozenset[int]) -> _Problem | None:
+    """:func:`_line_problem`, a line of numbers passed by one regular expression first."""
+    quick = not layout.clock_fields and '"' not in line and \
+        row_pattern(layout.sep, layout.decimal).fullmatch(line) is not None
+    if quick and _count_cells(line, layout.sep) <= layout.n_fields:
+        return None
+    return _line_problem(name, number, line, layout, skipped)
+
+
+def _in_step(source: FileSource, layout: Layout, encoding: str, line: str, recent: list[str],
+             problem: _Problem, skipped: frozenset[int]) -> bool:
+    """Whether a row with a word continues the first column (the time) of the rows before it (the
+    two ``recent`` ones), or at the table's start of the two rows after it (:func:`in_step`); a
+    first column of clock stamps is not judged."""
+    if layout.fields[0] in layout.clock_fields:
+        return True
+    value = _time_value(line, layout)
+    around = [_time_value(row, layout) for row in recent]
+    if len(around) == 2:
+        return around[1] is not None and around[0] is not None and in_step(value, around[1], 1, around[1] - around[0])
+    after: list[float | None] = []
+    for number, row in _table_lines(source, layout, encoding):
+        if number <= problem.line or not row.strip():
+            continue
+        cells = split_line(row, layout.sep)
+        data = _table_cells(cells, layout)
+        if len(after) == 2 or len(cells) > layout.n_fields or not mostly_numbers(data, layout.decimal):
+            break  # (the rows after it may have words too: a status column)
+        after.append(first_value(data, layout.decimal))
+    return len(after) == 2 and after[0] is not None and after[1] is not None and in_step(
+        value, after[0], -1, after[1] - after[0])
+
+
+def _table_cells(cells: list[str], layout: Layout) -> list[str]:
+    """The row's cells in the table's columns (not the settings beside them)."""
+    return [cells[j] for j in layout.fields if j < len(cells)]
+
+
+def _time_value(line: str, layout: Layout) -> float | None:
+    """The number in the row's first filled column of the table (its time), or None."""
+    return first_value(_table_cells(split_line(line, layout.sep), layout), layout.decimal)
 
 
 def _unparsed_message(source: FileSource, exc: Exception) -> str:
@@ -469,7 +514,7 @@ def _line_problem(name: str, number: int, line: str, layout: Layout,
             continue
         others = [c for k, c in enumerate(cells) if k != j]
         among = len(cells) == layout.n_fields and any(is_number(c, layout.decimal) for c in others)
-        data = [c for k, c in enumerate(cells) if k in layout.fields] if layout.side_rows else cells
+        data = _table_cells(cells, layout) if layout.side_rows else cells
         column = among and mostly_numbers(data, layout.decimal)  # not a line of text that starts with a number
         return _Problem(bad_cell_message(name, number, cell, among), number, j if column else None)
     return None

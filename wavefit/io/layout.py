@@ -15,6 +15,7 @@ columns a second name. Everything above is the preamble.
 from __future__ import annotations
 
 import re
+import statistics
 from dataclasses import dataclass, field, replace
 
 from ..errors import CaptureError
@@ -270,6 +271,28 @@ def _numbers(cells: list[str], decimal: str) -> int:
     return sum(1 for c in cells if is_number(c, decimal) or is_clock(c))
 
 
+#: A row with words belongs to a table only where its first value continues the first column of
+#: the rows around it (their time) to within this share of a step: a settings line shaped like a
+#: row ('10,V/div,0', '2,channels') does not (common practice: half a step).
+STEP_TOLERANCE = 0.5
+
+
+def first_value(cells: list[str], decimal: str) -> float | None:
+    """The number in the first filled cell, or None (a clock stamp, a word, no cell)."""
+    filled = [c for c in cells if not is_missing(c)]
+    if not filled or not is_number(filled[0], decimal):
+        return None
+    return float(filled[0].strip().replace(decimal, "."))
+
+
+def in_step(value: float | None, reference: float | None, steps: int, step: float) -> bool:
+    """Whether ``value`` lies ``steps`` steps of ``step`` from ``reference``, to within
+    :data:`STEP_TOLERANCE` of a step."""
+    if value is None or reference is None or not step:
+        return False
+    return abs(value - reference - steps * step) <= STEP_TOLERANCE * abs(step)
+
+
 def mostly_numbers(cells: list[str], decimal: str) -> bool:
     """A data row with words in some cells (``overflow``): its first filled cell (time) a number
     and no more words than numbers; a line of text that starts with a number
@@ -332,6 +355,10 @@ def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> list[
     """The run made of consecutive non-text rows ``(index, cells)`` of one shape, or none; its
     columns are those filled in its numeric rows (in its rows with words, when it has no other)."""
     kinds = [_row_kind(cells, decimal) for _, cells in rows]
+    rows, kinds = _word_rows_in_step(rows, kinds, decimal)
+    if not rows:
+        return []
+    stop = min(stop, rows[-1][0] + 1)
     numeric = [cells for (_, cells), kind in zip(rows, kinds) if kind == "numeric"]
     words = [cells for (_, cells), kind in zip(rows, kinds) if kind == "text"]
     data = numeric or words  # (every row with a word: a status column)
@@ -344,6 +371,39 @@ def _run_of(rows: list[tuple[int, list[str]]], decimal: str, stop: int) -> list[
     numbers = sum(_numbers(cells, decimal) for cells in words)
     return [_Run(rows[0][0], stop, len(numeric), width, used, frozenset(filled), frozenset(clocks), len(words),
                  numbers)]
+
+
+def _word_rows_in_step(rows: list[tuple[int, list[str]]], kinds: list[str],
+                       decimal: str) -> tuple[list[tuple[int, list[str]]], list[str]]:
+    """The run's rows without the rows with words at its ends whose first value does not continue
+    the first column of its numeric rows (:func:`in_step`); a run with fewer than two numeric rows
+    is kept only when all its rows are in step. First columns of clock stamps are not judged."""
+    if "text" not in kinds:
+        return rows, kinds
+    data = [k for k, kind in enumerate(kinds) if kind != "missing"]
+    values = {k: first_value(rows[k][1], decimal) for k in data}
+    if any(value is None for value in values.values()):
+        return rows, kinds  # a first column of clock stamps
+    position = {k: p for p, k in enumerate(data)}  # place among the rows with values
+    numeric = [k for k in data if kinds[k] == "numeric"]
+    reference = numeric if len(numeric) >= 2 else data
+    if len(reference) < 2:
+        return [], []  # a row with words and nothing to judge it by
+    step = statistics.median((values[b] - values[a]) / (position[b] - position[a])  # type: ignore[operator]
+                             for a, b in zip(reference, reference[1:]))
+
+    def fits(k: int) -> bool:
+        nearest = min(reference, key=lambda r: abs(position[r] - position[k]))
+        return nearest == k or in_step(values[k], values[nearest], position[k] - position[nearest], step)
+
+    if len(numeric) < 2:
+        return (rows, kinds) if all(fits(k) for k in data) else ([], [])
+    # the run starts after the last word row before its numbers that is out of step, and ends
+    # before the first such row after them
+    leading = [k for k in range(numeric[0]) if kinds[k] == "text" and not fits(k)]
+    trailing = [k for k in range(numeric[-1] + 1, len(rows)) if kinds[k] == "text" and not fits(k)]
+    first, last = (leading[-1] + 1 if leading else 0), (trailing[0] if trailing else len(rows))
+    return rows[first:last], kinds[first:last]
 
 
 def _with_side_rows(
