@@ -159,6 +159,13 @@ def test_settings_lines_shaped_like_rows_are_not_rows_with_words(tmp_path: Path)
     assert "line 3002: found 'channels'" in footer
 
 
+def test_rows_with_words_only_make_a_table_when_their_first_column_steps_evenly(tmp_path: Path) -> None:
+    # a block of settings ('10,V/div,0') has the shape of a status-column table but no time
+    lines = [f"{v},V/div,{k}" for k, v in enumerate([10, 5, 2, 1, 0.5, 0.2, 0.1, 20, 50, 100, 2, 5])]
+    message = _message(_write(tmp_path, "\n".join(lines) + "\n"))
+    assert "line 1 on: every row has text in cell 2 (such as 'V/div')" in message
+
+
 @pytest.mark.parametrize("clock", [False, True])
 def test_two_status_columns_are_both_left_out(tmp_path: Path, clock: bool) -> None:
     def stamp(i: int) -> str:

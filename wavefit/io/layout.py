@@ -392,12 +392,14 @@ def _word_rows_in_step(rows: list[tuple[int, list[str]]], kinds: list[str],
     step = statistics.median((values[b] - values[a]) / (position[b] - position[a])  # type: ignore[operator]
                              for a, b in zip(reference, reference[1:]))
 
-    def fits(k: int) -> bool:
-        nearest = min(reference, key=lambda r: abs(position[r] - position[k]))
-        return nearest == k or in_step(values[k], values[nearest], position[k] - position[nearest], step)
+    if len(numeric) < 2:  # every row (but one) with words: each must follow the one before
+        steady = all(in_step(values[b], values[a], position[b] - position[a], step) for a, b in zip(data, data[1:]))
+        return (rows, kinds) if steady else ([], [])
 
-    if len(numeric) < 2:
-        return (rows, kinds) if all(fits(k) for k in data) else ([], [])
+    def fits(k: int) -> bool:
+        nearest = min(numeric, key=lambda r: abs(position[r] - position[k]))
+        return in_step(values[k], values[nearest], position[k] - position[nearest], step)
+
     # the run starts after the last word row before its numbers that is out of step, and ends
     # before the first such row after them
     leading = [k for k in range(numeric[0]) if kinds[k] == "text" and not fits(k)]
