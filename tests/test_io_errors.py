@@ -344,13 +344,14 @@ def test_a_line_of_text_that_starts_with_a_number_is_not_a_text_column(tmp_path:
     preamble = [] if with_time else ["Sample interval,1e-8"]
     message = _message(_write(tmp_path, "\n".join([*preamble, header, *rows])))
     assert f"line {2002 + len(preamble)}: found '{'trigger' if with_time else 'segments'}'" in message
+    assert message.endswith("fix or delete that line")  # a line of text: not one cell to empty
 
 
 def test_text_in_the_time_column_is_refused(tmp_path: Path) -> None:
     rows = _rows(300)
     rows[150] = "oops," + rows[150].split(",", 1)[1]
     message = _message(_write(tmp_path, "\n".join([HEADER, *rows])))
-    assert "line 152: found 'oops'" in message
+    assert "line 152: found 'oops'" in message and "empty it" in message  # one cell: filled in if emptied
     # without a header the first column would be time: its text is the reason given
     assert "line 151: found 'oops'" in _message(_write(tmp_path, "\n".join(rows), "headerless.csv"))
 

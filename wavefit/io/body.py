@@ -24,7 +24,8 @@ import pandas as pd
 from ..errors import CaptureError
 from .cells import NA_TOKENS, WHITESPACE, is_missing, is_number, row_pattern, split_line
 from .clock import is_clock, read_clock_column
-from .layout import Layout, bad_cell_message, first_value, in_step, mostly_numbers, printed_form, split_lines
+from .layout import (Layout, bad_cell_message, few_words, first_value, in_step, mostly_numbers, printed_form,
+                     split_lines)
 from .source import GZIP_ERRORS, FileSource, damaged_gzip_message
 
 
@@ -513,9 +514,11 @@ def _line_problem(name: str, number: int, line: str, layout: Layout,
         if layout.side_rows and j not in layout.fields:
             continue
         others = [c for k, c in enumerate(cells) if k != j]
-        among = len(cells) == layout.n_fields and any(is_number(c, layout.decimal) for c in others)
         data = _table_cells(cells, layout) if layout.side_rows else cells
-        column = among and mostly_numbers(data, layout.decimal)  # not a line of text that starts with a number
+        # one bad cell among numbers (to be emptied and filled in), not a line of text
+        among = (len(cells) == layout.n_fields and any(is_number(c, layout.decimal) for c in others)
+                 and few_words(data, layout.decimal))
+        column = among and mostly_numbers(data, layout.decimal)  # (its first cell, the time, a number)
         return _Problem(bad_cell_message(name, number, cell, among), number, j if column else None)
     return None
 

@@ -295,11 +295,17 @@ def in_step(value: float | None, reference: float | None, steps: int, step: floa
 
 def mostly_numbers(cells: list[str], decimal: str) -> bool:
     """A data row with words in some cells (``overflow``): its first filled cell (time) a number
-    and no more words than numbers; a line of text that starts with a number
-    (``5000,trigger,event,here``) is not one."""
+    and :func:`few_words`; a line of text that starts with a number (``5000,trigger,event,here``)
+    is not one."""
     filled = [c for c in cells if not is_missing(c)]
-    numbers = _numbers(filled, decimal)
-    return bool(filled) and (is_number(filled[0], decimal) or is_clock(filled[0])) and 2 * numbers >= len(filled)
+    return bool(filled) and (is_number(filled[0], decimal) or is_clock(filled[0])) and few_words(filled, decimal)
+
+
+def few_words(cells: list[str], decimal: str) -> bool:
+    """No more of the filled cells are words than numbers (a row of numbers with a bad cell or
+    two, not a line of text)."""
+    filled = [c for c in cells if not is_missing(c)]
+    return 2 * _numbers(filled, decimal) >= len(filled)
 
 
 #: Consecutive rows of one shape with words in some cells and numbers in more of the others
