@@ -393,22 +393,26 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
     the footer. ``RESUMED_ROWS`` rows of the table's shape in a row after it
     mean the line broke the table instead. The cells ``skipped`` are not judged.
     """
+    fast = row_pattern(layout.sep, layout.decimal)
     rows = 0
     first: _Problem | None = None
     footer: list[tuple[int, str]] = []
     shaped = in_a_row = 0
-    recent: list[str] = []  # the last two rows that read
+    before = last = ""  # the last two rows that read
     for number, line in _table_lines(source, layout, encoding):
         if not line.strip():
             continue
-        problem = _line_problem_fast(source.name, number, line, layout, skipped)
+        problem = None
+        quick = not layout.clock_fields and '"' not in line and fast.fullmatch(line) is not None
+        if not (quick and _count_cells(line, layout.sep) <= layout.n_fields):
+            problem = _line_problem(source.name, number, line, layout, skipped)
         if first is None:
             if problem is None:
                 rows += 1
-                recent = [*recent[-1:], line]
+                before, last = last, line
                 continue
-            if problem.text_cell is not None and not _in_step(source, layout, encoding, line, recent, problem,
-                                                                skipped):
+            if problem.text_cell is not None and not _in_step(source, layout, encoding, line, problem,
+                                                                [row for row in (before, last) if row]):
                 problem = replace(problem, text_cell=None)  # a line shaped like a row: '2,channels'
             if not (_is_footer_text(line) or _is_other_shape(line, layout)):
                 return _Scan(problem)
@@ -425,18 +429,8 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
     return _Scan(None, rows, tuple(footer))
 
 
-def _line_problem_fast(name: str, number: int, line: str, layout: Layout,
-                       skipped: frozenset[int]) -> _Problem | None:
-    """:func:`_line_problem`, a line of numbers passed by one regular expression first."""
-    quick = not layout.clock_fields and '"' not in line and \
-        row_pattern(layout.sep, layout.decimal).fullmatch(line) is not None
-    if quick and _count_cells(line, layout.sep) <= layout.n_fields:
-        return None
-    return _line_problem(name, number, line, layout, skipped)
-
-
-def _in_step(source: FileSource, layout: Layout, encoding: str, line: str, recent: list[str],
-             problem: _Problem, skipped: frozenset[int]) -> bool:
+def _in_step(source: FileSource, layout: Layout, encoding: str, line: str, problem: _Problem,
+             recent: list[str]) -> bool:
     """Whether a row with a word continues the first column (the time) of the rows before it (the
     two ``recent`` ones), or at the table's start of the two rows after it (:func:`in_step`); a
     first column of clock stamps is not judged."""
