@@ -275,6 +275,36 @@ def test_rebuilt_interval_uncertainty_is_honest(tmp_path: Path, digits: int) -> 
     assert np.sqrt(np.mean(z ** 2)) < 1.5 and np.max(np.abs(z)) < 4
 
 
+@pytest.mark.parametrize("digits", [7, 8])
+def test_stamps_a_few_digits_short_give_their_rate_not_their_median(tmp_path: Path, digits: int) -> None:
+    """Seven significant digits on 33.33 ns intervals (30 MS/s) vary the printed intervals by
+    0.2 %, inside the limits for a uniform column, yet leave their median 1e-4 off the interval
+    (3.333e-8 s, reported before with no uncertainty): the interval is now the grid fitted to the
+    stamps, within its stated uncertainty, with a note and no warning."""
+    n, interval = 4000, 1 / 30e6
+    time = np.arange(n) * interval
+    values = np.round(np.sin(np.arange(n) / 40.0), 4)
+    rows = [f"{t:.{digits - 1}e},{v:.4f}" for t, v in zip(time, values)]
+    printed = np.array([float(row.split(",")[0]) for row in rows])
+    assert abs(np.median(np.diff(printed)) / interval - 1) > 1e-6  # the median is biased here
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *rows]))
+    assert capture.warnings == ()
+    (note,) = capture.notes
+    assert "rebuilt as a uniform grid" in note
+    u = capture.interval_uncertainty
+    assert 0 < u < 1e-7
+    assert abs(capture.sample_interval / interval - 1) < 3 * u
+    _assert_signal(capture, values=values)
+
+
+def test_stamps_at_full_precision_keep_their_median_interval(tmp_path: Path) -> None:
+    n, interval = 4000, 1 / 30e6
+    rows = [f"{k * interval!r},{k % 5}" for k in range(n)]
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *rows]))
+    assert capture.warnings == () and capture.notes == () and capture.interval_uncertainty == 0
+    assert capture.sample_interval == np.median(np.diff(np.arange(n) * interval))
+
+
 def test_time_that_really_stands_still_is_refused(tmp_path: Path) -> None:
     rows = [f"{t:.9e},{v:.4f}" for t, v in zip(TIME, SIGNAL)]
     rows[200] = rows[199].split(",")[0] + "," + rows[200].split(",")[1]

@@ -176,7 +176,7 @@ def assemble(
         time_column=time_header,
         metadata=dict(table.preamble.metadata),
         warnings=tuple(warnings) + axis.warnings,
-        notes=tuple(notes),
+        notes=tuple(notes) + axis.notes,
         time_position=None if time_header is None or time_index is None else table.position(time_index),
         interval_uncertainty=axis.relative_uncertainty,
         left_out=left_out,

@@ -11,6 +11,11 @@ Limits, relative to the median interval ``dt``:
   stamps' departures from the grid span at most one printing step). Stamps
   printed coarser than the interval repeat (``3.98E-05`` on two rows); that is
   rounding too, not time standing still.
+* stamps printed with a few digits too few vary by less than these limits and
+  still leave the median a printing step off the stamps' rate (7 digits on
+  33.33 ns intervals: 1e-4): where the median and the rate from the first
+  stamp to the last differ by more than ``MEDIAN_BIAS_LIMIT``, the rebuilt
+  grid gives the interval too, with a note rather than a warning.
 
 The rebuilt interval and its uncertainty. The stamps are cut into segments
 of one printing step r (significant digits change the step at every decade)
@@ -32,7 +37,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from decimal import Decimal
 
 import numpy as np
@@ -51,6 +56,12 @@ _ROUNDING_SPAN = 1.2
 _COARSEST_RESOLUTION = 0.5
 # Coarse stamps disturb many intervals; a few bad ones are a real sampling problem.
 _MANY_DEVIATIONS = 0.01
+#: Largest relative gap between the median interval and the stamps' mean rate that is taken
+#: as the interval without asking why. Stamps printed with too few digits for their interval
+#: vary by less than the 1 % limit yet leave the median a rounding step off (7 digits on
+#: 33.33 ns: 1e-4); 1e-6 is below the timebase accuracy of scopes and loggers (tens of ppm,
+#: common practice) and above the float noise of stamps printed at full precision.
+MEDIAN_BIAS_LIMIT = 1e-6
 
 
 @dataclass(frozen=True)
@@ -96,13 +107,15 @@ class TimeAxis:
 
     ``relative_uncertainty`` is the relative standard uncertainty of
     ``sample_interval`` left by the printing of the stamps (0 when they are
-    exact to their printing).
+    exact to their printing). ``notes`` say how the axis was made where
+    nothing is wrong with the file.
     """
 
     time: np.ndarray
     sample_interval: float
     warnings: tuple[str, ...] = ()
     relative_uncertainty: float = 0.0
+    notes: tuple[str, ...] = ()
 
 
 def axis_from_interval(rows: int, interval: float, start: float = 0.0) -> np.ndarray:
@@ -163,6 +176,15 @@ def axis_from_column(
     largest = float(np.max(np.abs(steps, out=steps))) / dt
     del steps
     if largest <= MAX_INTERVAL_DEVIATION and jitter <= JITTER_WARNING:
+        rate = float(time[-1] - time[0]) / (time.size - 1)
+        if abs(rate - dt) <= MEDIAN_BIAS_LIMIT * dt:
+            return TimeAxis(time, dt)
+        # intervals within the limits, but the median is a printing step off the stamps' rate:
+        # a grid fitted to the stamps gives the interval; nothing is wrong with the file, so the
+        # reader notes it rather than warns
+        rounded = _rounded_grid(time, header, resolution, largest=largest)
+        if rounded is not None:
+            return replace(rounded, warnings=(), notes=rounded.warnings)
         return TimeAxis(time, dt)
     rounded = _rounded_grid(time, header, resolution, largest=largest)
     if rounded is not None:
