@@ -115,6 +115,8 @@ def test_a_column_with_text_is_left_out_until_a_setup_maps_it(tmp_path):
     info = json.loads(out)
     assert [c["header"] for c in info["columns"]] == ["CH1 (V)"]
     assert info["left_out"][0]["header"] == "AUX (V)" and "line 302" in info["left_out"][0]["reason"]
+    code, out, err = run("inspect", str(path))
+    assert code == 0 and "'AUX (V)'                left out" in out.splitlines()[2]
     code, out, err = run("analyze", str(path), "--setup", str(_rl_setup(tmp_path, "AUX")), "--json")
     assert code == 3 and out == "" and err.count("\n") == 1
     assert "line 302: found 'overflow' where a number was expected" in err

@@ -205,6 +205,7 @@ def _inspect(args: argparse.Namespace) -> int:
              f", time from {info['time_column'] or 'sample interval'}"]
     lines += [f"  {col['header']!r:<24} unit {col['unit'] or '-':<4} min {col['min']!s:<14} max {col['max']!s}"
               for col in info["columns"]]
+    lines += [f"  {col['header']!r:<24} left out (see below)" for col in info["left_out"]]
     lines += [f"  meta {key}: {value}" for key, value in info["metadata"].items()]
     lines += [f"  ! {w}" for w in info["warnings"]]
     lines += [f"  note: {note}" for note in info["notes"]]
