@@ -219,3 +219,20 @@ def test_monte_carlo_agrees_with_the_linear_propagation_on_the_curves():
     linear = result.curves["L_inc"].standard_uncertainty
     ratio = np.array([p.standard_uncertainty for p in mc]) / linear
     assert np.all(np.abs(ratio - 1) < 0.05), ratio.min()
+
+
+def test_inductance_at_named_currents_in_the_documented_form():
+    # docs/method-pulse-ramp.md's example form `at_currents = ["2 A", "4 A"]` (strings with a
+    # unit; once a traceback), and a plain number in A; a linear coil (RL charging law, common
+    # practice) has L_inc = L at every current
+    L, R, V = 100e-6, 0.05, 12.0
+    t = np.arange(3000) * DT
+    i = V / R * (1 - np.exp(-t * R / L))
+    setup = {**SETUP, "options": {"at_currents": ["2 A", "3500 mA", 4]}}
+    result = wavefit.analyze(capture(i, np.full(t.size, V), 400, np.random.default_rng(3), 2e-5, 5e-3), setup)
+    at = result.curves["L_at"]
+    np.testing.assert_allclose(at.axis_values, [2.0, 3.5, 4.0])
+    assert np.all(np.abs(at.values - L) <= at.expanded_uncertainty)
+    bad = {**SETUP, "options": {"at_currents": ["2 V"]}}
+    with pytest.raises(Exception, match="at_currents entry '2 V' is not a current"):
+        wavefit.analyze(capture(i, np.full(t.size, V), 400, np.random.default_rng(3), 2e-5, 5e-3), bad)

@@ -178,3 +178,6 @@ def test_cli_json_and_toml(first_capture, tmp_path):
     (tmp_path / "s.toml").write_text(out, encoding="utf-8")
     with pytest.raises(SetupError, match="sense_resistor"):  # the resistor was not given: to fill in
         load_setup(tmp_path / "s.toml")
+    for bad in ("0 ohm", "-10 ohm", "0R"):  # once a traceback (the logarithm of a series value)
+        code, out, err = _cli(["suggest", str(tmp_path / "first.csv"), "--sense-resistor", bad])
+        assert code == 3 and out == "" and err.count("\n") == 1 and "must be positive" in err

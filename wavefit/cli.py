@@ -14,7 +14,7 @@ from typing import Sequence
 from . import __version__
 from .batch.arguments import add_batch_parser
 from .calibration.arguments import add_calibrate_parser
-from .errors import WavefitError
+from .errors import SetupError, WavefitError
 from .report.safe_text import visible
 from .report.stdout import discard_stdout
 
@@ -223,6 +223,8 @@ def _suggest(args: argparse.Namespace) -> int:
         print("wavefit: error: --bits takes a whole number from 1 to 32", file=sys.stderr)
         return EXIT_USAGE
     resistor = None if args.sense_resistor is None else parse_part(args.sense_resistor, "ohm")
+    if resistor is not None and not resistor.value > 0:
+        raise SetupError(f"--sense-resistor must be positive, got {args.sense_resistor!r}")
     found = suggest(read_capture(args.file), sense_resistor=resistor, bits=args.bits)
     if args.json:
         print(json.dumps(found.to_dict(), indent=2, allow_nan=False))

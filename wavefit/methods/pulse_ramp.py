@@ -436,9 +436,10 @@ def _current(text: Any, source: str) -> float:
     if isinstance(text, (int, float)) and not isinstance(text, bool):
         return float(text)
     try:
-        return float(parse_number_with_unit(str(text), "A"))
+        current, _ = parse_number_with_unit(str(text), "A")
     except (ValueError, SetupError) as exc:
         raise SetupError(f"{source}: at_currents entry {text!r} is not a current ({exc})") from None
+    return float(current)
 
 
 def _trace_plot(t, current, voltage, ramps: list[Ramp]) -> TracePlot:
