@@ -143,6 +143,30 @@ def test_sample_interval_that_contradicts_the_time_column_is_refused(tmp_path: P
         wavefit.analyze(path, {**TWO_CHANNELS, "sample_interval": "400 ns"})
 
 
+def test_a_drive_probe_set_to_the_wrong_attenuation_is_refused(tmp_path: Path) -> None:
+    # the drive recorded at a tenth of its volts (a 10x probe read as 1x): the loop resistance
+    # from the levels, R_sense + DCR = 10.5 ohm, comes out as 1.05 ohm, so the DCR is about
+    # -9 ohm with an uncertainty of a few hundredths; it was printed with exit 0
+    t, drive, sense = _record(seed=8)
+    with pytest.raises(wavefit.AnalysisRefused, match=r"R came out as -8\.\d+ ± .* below zero by more than 2 times"):
+        wavefit.analyze(_write(tmp_path / "att.csv", t, drive / 10, sense), TWO_CHANNELS)
+
+
+@pytest.mark.parametrize(("value", "expanded", "refused"), [(-16.1, 6.0, True), (-0.9, 0.4, True), (-0.7, 0.4, False),
+                                                            (-0.1, 0.4, False), (0.0, 0.0, False)])
+def test_a_dcr_below_zero_is_refused_only_beyond_its_uncertainty(value: float, expanded: float, refused: bool) -> None:
+    # a coil of a few milliohms measured with an uncertainty of tenths of an ohm may honestly come
+    # out a little below zero; twice its expanded uncertainty below contradicts the model
+    method = wavefit.methods.get_method("rl-step")
+    result = _result(1e-4, 1e-6)
+    result.quantities["R"] = QuantityResult("R", value, "ohm", expanded / 2, expanded, 2.0)
+    if refused:
+        with pytest.raises(wavefit.AnalysisRefused, match="R came out as .* below zero"):
+            method.check_physical(result)
+    else:
+        method.check_physical(result)
+
+
 def _result(value: float, u: float) -> AnalysisResult:
     q = QuantityResult("L", value, "H", u, 2 * u, 2.0)
     return AnalysisResult("rl-step", "x.csv", {"L": q, "tau": QuantityResult("tau", 1e-6, "s", 1e-8, 2e-8, 2.0),

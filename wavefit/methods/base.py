@@ -27,6 +27,12 @@ from ..uncertainty import InputSet, Propagation, propagate_outputs, unit_variabl
 from ..values import PartValue
 from .estimate import Estimate
 
+#: How far below zero, in expanded uncertainties, a quantity of ``not_negative`` may come out
+#: before the result is refused: 2 U is about 4 standard uncertainties, so a part whose true
+#: value is zero (a DCR of a few milliohms beside an uncertainty of ohms) is refused about 3 in
+#: 10⁵ times (one-sided normal tail), while a result that contradicts its own model is caught.
+NEGATIVE_BEYOND = 2.0
+
 
 @dataclass(frozen=True)
 class PartSpec:
@@ -58,6 +64,10 @@ class Method:
     #: Quantities that only a physical part has positive (L > 0, tau > 0, ...): a result with
     #: one of them at or below zero is refused, never reported.
     positive: ClassVar[tuple[str, ...]] = ()
+    #: Quantities a real part has at or above zero but that may be measured near it (a small
+    #: DCR): an estimate a little below zero is an honest one; one below zero by more than
+    #: ``NEGATIVE_BEYOND`` expanded uncertainties contradicts the model, and the result is refused.
+    not_negative: ClassVar[tuple[str, ...]] = ()
     #: Outputs a measurement may not give (a saturation current the pulse did not reach): the
     #: model returns ``None`` for them, the result omits them and the estimate's warnings say why.
     optional: ClassVar[tuple[str, ...]] = ()
@@ -139,9 +149,9 @@ class Method:
                                  negative=negative)
 
     def check_physical(self, result: AnalysisResult) -> None:
-        """Refuse a result with a non-finite value or uncertainty, or a non-positive quantity
-        of :attr:`positive`, at any point of a curve too: it could not be a measurement of a
-        real part.
+        """Refuse a result with a non-finite value or uncertainty, a non-positive quantity of
+        :attr:`positive` or one of :attr:`not_negative` below zero by more than its expanded
+        uncertainty, at any point of a curve too: it could not be a measurement of a real part.
 
         Parameters
         ----------
@@ -159,8 +169,11 @@ class Method:
                    for v, u in zip(c.values, c.expanded_uncertainty)]
         for name, value, expanded, unit in points:
             finite = math.isfinite(value) and math.isfinite(expanded)
-            if not finite or (name in self.positive and value <= 0):
-                what = "is not a finite number" if not finite else "is not positive"
+            below = name in self.not_negative and value + NEGATIVE_BEYOND * expanded < 0
+            if not finite or (name in self.positive and value <= 0) or below:
+                what = ("is not a finite number" if not finite
+                        else f"is below zero by more than {NEGATIVE_BEYOND:g} times its uncertainty" if below
+                        else "is not positive")
                 raise AnalysisRefused(
                     f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}, which "
                     f"{what}: no measurement of a real part; {self.unphysical_hint}")

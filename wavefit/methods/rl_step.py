@@ -110,8 +110,10 @@ class RLStep(Method):
     outputs = {"L": Scalar("H"), "R": Scalar("ohm"), "tau": Scalar("s"), "R_loop": Scalar("ohm"),
                "I_final": Scalar("A"), "E": Scalar("J")}
     positive = ("L", "tau", "R_loop")
-    unphysical_hint = ("check [columns] (drive and sense swapped? an inverted probe?), the parts, and that "
-                       "the capture holds steps of an RL loop, not a ring")
+    not_negative = ("R",)
+    unphysical_hint = ("check [columns] (drive and sense swapped? an inverted probe? a probe's 1x/10x setting "
+                       "wrong?), the parts, and that "
+                       "the capture holds steps of an RL loop, not a ring, each step over many converter codes")
 
     def check_setup(self, setup: Setup) -> None:
         super().check_setup(setup)
