@@ -129,6 +129,28 @@ def test_reference_far_from_the_part_is_warned(bench, tmp_path):
     assert any("times the reference part's" in w for w in result.warnings)
 
 
+@needs_ngspice
+@pytest.mark.ngspice
+@pytest.mark.parametrize("known", ["1 H ±0.05%", "1 ±0.05%", "1 MH ±0.05%", "1.3 mH ±0.05%"])
+def test_a_known_value_far_from_the_measured_one_is_refused(bench, tmp_path, known):
+    # a prefix left out or mistyped (1 H, a plain 1 read in henries, 1 MH for 1 mH) gave
+    # factors of 10³ to 10⁹ that every later analysis applied with exit 0; 30 % off is no
+    # fixture's error either (MAX_CORRECTION_DEVIATION, 20 %)
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = main(["calibrate", "reference", str(bench / "ref.csv"), "--setup", str(bench / "plain.toml"),
+                     "--part", f"L = {known}", "--out", str(tmp_path / "ref.toml")])
+    assert code == 4 and out.getvalue() == "" and not (tmp_path / "ref.toml").exists()
+    assert "times what the capture measures, more than 20% from 1" in err.getvalue()
+    # a file whose known value was edited afterwards is refused where it is used
+    text = (bench / "ref.toml").read_text(encoding="utf-8")
+    (tmp_path / "edited.toml").write_text(text.replace(f'known = "{KNOWN}"', f'known = "{known}"'), encoding="utf-8")
+    assert f'known = "{known}"' in (tmp_path / "edited.toml").read_text(encoding="utf-8")
+    (tmp_path / "setup.toml").write_text(SETUP + f'[calibration]\nreference = "{tmp_path / "edited.toml"}"\n')
+    with pytest.raises(wavefit.SetupError, match="more than 20% from 1"):
+        wavefit.analyze(bench / "dut.csv", tmp_path / "setup.toml")
+
+
 # -- lc-ring: the tank capacitor as the shared input ----------------------------------------
 
 C_TANK_MARKED, C_TANK_REAL = 1e-9, 1.02e-9  # the real capacitor 2 % above its marking

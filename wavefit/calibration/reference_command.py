@@ -16,6 +16,7 @@ from typing import Any
 from ..errors import AnalysisRefused, SetupError
 from ..values import eng, parse_part
 from .reference_file import ReferenceSubstitution, write_reference
+from .substitution import implausible_correction
 
 
 def run(args: argparse.Namespace) -> int:
@@ -53,6 +54,9 @@ def run(args: argparse.Namespace) -> int:
     if not (measured.value > 0 and factor.value > 0):
         raise AnalysisRefused(f"{args.capture}: {quantity} of the reference came out as {measured.value:.4g} {unit}; "
                               "no measurement of a real part")
+    implausible = implausible_correction(quantity, known.text, factor.value)
+    if implausible:
+        raise AnalysisRefused(f"{args.capture}: {quantity} measured {eng(measured.value, unit)}; {implausible}")
     reference = ReferenceSubstitution(
         method=method.name, quantity=quantity, known=known,
         made=dt.datetime.now(dt.timezone.utc).replace(microsecond=0),

@@ -46,6 +46,13 @@ REFERENCE_PREFIX = "reference "
 #: few per mille at most where the method does not warn already, stay a small part of the
 #: uncertainty; a judgement, not a published limit.
 SIMILAR_VALUE_FACTOR = 2.0
+#: Largest |known/measured − 1| of the reference accepted. The errors substitution corrects (a
+#: sense resistor's or tank capacitor's tolerance, 1–5 %; two channels' gains, ±2–3 % each;
+#: probe loading and timebase, less) add to a few per cent, some 10 % in a crude fixture
+#: (common practice; 4.3 % in the ngspice fixture of the tests). A factor beyond 20 % means a
+#: known value typed with the wrong prefix or unit (330 H for 330 µH gives 10⁶), a capture of
+#: another part, or a fixture that is not the one described: nothing a factor should absorb.
+MAX_CORRECTION_DEVIATION = 0.20
 
 Model = Callable[[Mapping[str, Any], Mapping[str, Any]], dict[str, Any]]
 
@@ -101,9 +108,23 @@ def with_reference(method: "Method", estimate: "Estimate", inputs: InputSet, set
         outputs[quantity] = outputs[quantity] * x[known] / measured
         return outputs
 
-    corrected = substituted({i.name: i.value for i in inputs.inputs}, estimate.settings)[quantity]
+    nominal = {i.name: i.value for i in inputs.inputs}
+    corrected = substituted(nominal, estimate.settings)[quantity]
+    implausible = implausible_correction(quantity, reference.known.text, corrected / method.model(nominal, estimate.settings)[quantity])
+    if implausible:
+        raise SetupError(f"{where}: {implausible}; make the reference file again")
     warnings = (similarity_warning(quantity, corrected, reference), _age_warning(reference, path, setup))
     return substituted, tuple(w for w in warnings if w)
+
+
+def implausible_correction(quantity: str, known: str, factor: float) -> str | None:
+    """Why a correction factor known/measured cannot be a fixture's correction (more than
+    :data:`MAX_CORRECTION_DEVIATION` from 1), or None when it can."""
+    if abs(factor - 1.0) <= MAX_CORRECTION_DEVIATION:
+        return None
+    return (f"the reference's known {quantity} {known!r} is {factor:.4g} times what the capture measures, more "
+            f"than {MAX_CORRECTION_DEVIATION:.0%} from 1: a fixture's errors are a few per cent; check the known "
+            "value's prefix and unit, and that the capture is of that reference in this fixture")
 
 
 def similarity_warning(quantity: str, value: float, reference: ReferenceSubstitution) -> str | None:
