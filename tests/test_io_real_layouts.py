@@ -297,6 +297,26 @@ def test_stamps_a_few_digits_short_give_their_rate_not_their_median(tmp_path: Pa
     _assert_signal(capture, values=values)
 
 
+@pytest.mark.parametrize(("interval", "rows", "form", "resolution"),
+                         [(1.5e-7, 20000, ".5g", "1e-07"), (1.5e-3, 1000, ".4g", "0.001")])
+def test_stamps_printed_shortest_are_rebuilt_by_their_whole_column(
+        tmp_path: Path, interval: float, rows: int, form: str, resolution: str) -> None:
+    """A general format drops trailing zeros, so the first lines (the text the printing is read
+    from) can show fewer digits than the column holds: 1.5e-07, 3e-07, ... then 1.0002e-03 with
+    a step of 1e-7 s, two thirds of the interval (was refused as not uniform: stamps printed
+    coarser than half an interval were not rebuilt unless they repeated); or fixed decimals 0.0015, 0.003 then 1.499 with four significant digits (was
+    taken for steps of 1e-4 s, too fine for the departures, refused). Both are rounding: the
+    axis is rebuilt, its interval within its stated uncertainty."""
+    time = np.arange(rows) * interval
+    values = np.round(np.sin(np.arange(rows) / 40.0), 4)
+    lines = [f"{t:{form}},{v:.4f}" for t, v in zip(time, values)]
+    capture = read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *lines]))
+    (warning,) = capture.warnings
+    assert f"resolution of about {resolution} s" in warning and "rebuilt" in warning
+    assert abs(capture.sample_interval / interval - 1) < 3 * capture.interval_uncertainty
+    _assert_signal(capture, values=values)
+
+
 def test_stamps_at_full_precision_keep_their_median_interval(tmp_path: Path) -> None:
     n, interval = 4000, 1 / 30e6
     rows = [f"{k * interval!r},{k % 5}" for k in range(n)]

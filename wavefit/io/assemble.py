@@ -413,7 +413,7 @@ def _column_axis(
         return TimeAxis(axis_from_interval(column.size, hint.sample_interval), hint.sample_interval), header
     time = column if clock is not None else _scaled(column, unit.scale)
     if printing is not None and clock is None:
-        printing = replace(printing, scale=unit.scale)
+        printing = replace(printing.seen_in(column), scale=unit.scale)
 
     def where(row: int) -> str:
         return table.where([row])[0]

@@ -52,7 +52,8 @@ _DIGIT_SAMPLES = 2000
 # Rounding by any rule (to nearest, down, up; some stamps exact) leaves every stamp within one
 # printing step r of a uniform grid: the departures span at most r. Slack for the fitted slope.
 _ROUNDING_SPAN = 1.2
-# Printed coarser than half an interval, time stamps cannot show whether samples are missing.
+# Printed coarser than half an interval, time stamps cannot be trusted to show whether samples
+# are missing: the rebuilt axis says so.
 _COARSEST_RESOLUTION = 0.5
 # Coarse stamps disturb many intervals; a few bad ones are a real sampling problem.
 _MANY_DEVIATIONS = 0.01
@@ -77,14 +78,21 @@ class Printing:
         Significant digits of an exponent form (``4.00E-08``: 3), or None.
     scale
         Seconds per unit of the printed numbers (1e-6 for a column in µs).
+    alternative
+        Another reading of the same stamps (from the numbers across the column, see
+        :meth:`seen_in`): each stamp's step is then the coarser of the two.
     """
 
     step: float | None = None
     digits: int | None = None
     scale: float = 1.0
+    alternative: Printing | None = None
 
     def steps(self, time: np.ndarray) -> np.ndarray:
         """The printing step of every stamp in seconds (0 for a stamp printed as exactly 0)."""
+        if self.alternative is not None:
+            other = replace(self.alternative, scale=self.scale).steps(time)
+            return np.maximum(replace(self, alternative=None).steps(time), other)
         if self.digits is None:
             return np.full(time.size, float(self.step or 0.0) * self.scale)
         printed = np.abs(time) / self.scale
@@ -99,6 +107,22 @@ class Printing:
         decades = np.arange(lowest, float(decade.max()) + 1.0)
         steps[nonzero] = (10.0 ** (decades - self.digits + 1) * self.scale)[(decade - lowest).astype(np.intp)]
         return steps
+
+
+    def seen_in(self, values: np.ndarray) -> Printing:
+        """This printing, checked against the numbers across the whole column (the text it was
+        read from is the first lines only). Both are lower bounds where trailing zeros are
+        dropped: when both count significant digits (or both decimals), the larger count is
+        taken (``1.5e-07``, ``3e-07``, ... at the start, ``1.499982e-01`` a million rows on);
+        when they disagree (``0.0015``, ``0.003`` at the start, fixed decimals to the eye, and
+        ``1.499`` later, four significant digits), each stamp takes the coarser of the two
+        steps. ``values`` are the column's numbers as printed (before any unit scale)."""
+        seen = printing_of(values)
+        if self.digits is not None and seen.digits is not None:
+            return replace(self, digits=max(self.digits, seen.digits))
+        if self.digits is None and seen.digits is None:
+            return replace(self, step=min(float(self.step or 0.0), float(seen.step or 0.0)) or self.step)
+        return replace(self, alternative=seen)
 
 
 @dataclass(frozen=True)
@@ -216,18 +240,15 @@ def _rounded_grid(
     span = high - low
     if span > _ROUNDING_SPAN * resolution:
         return None
-    if not repeats and resolution >= _COARSEST_RESOLUTION * slope:
-        return None
     if repeats and resolution <= slope:
         return None  # stamps printed finer than the interval repeat only when time stands still
     if repeats:
         what = (f"repeats its value on {repeats} rows: it is printed with a resolution of about "
                 f"{resolution:.2g} s, coarser than the {slope:.6g} s between samples")
-        caution = "; a missing sample would not show in such stamps"
     else:
         what = (f"is printed with a resolution of about {resolution:.2g} s, so its intervals vary by "
                 f"up to {100 * largest:.3g} % of {slope:.6g} s")
-        caution = ""
+    caution = "; a missing sample would not show in such stamps" if resolution >= _COARSEST_RESOLUTION * slope else ""
     grid = slope * index + 0.5 * (low + high)
     return TimeAxis(grid, slope, (
         f"time column {header!r} {what}; the axis was rebuilt as a uniform grid fitted to it "
@@ -315,11 +336,6 @@ def _non_uniform_message(
 def printing_resolution(values: np.ndarray) -> float:
     """Estimate the step of the last printed digit at the largest magnitude in ``values``.
 
-    The shortest decimal form of a sample of the values shows how they were
-    printed: with a fixed number of decimals (the count after the point is
-    the same for most values) or with a fixed number of significant digits.
-    The step of the last digit follows, at the largest magnitude.
-
     Parameters
     ----------
     values
@@ -328,18 +344,38 @@ def printing_resolution(values: np.ndarray) -> float:
     Returns
     -------
     float
-        The estimated resolution (0 when all values are zero).
+        The estimated resolution (0 when all values are zero), from :func:`printing_of`.
     """
     largest = float(np.max(np.abs(values)))
     if largest == 0.0:
         return 0.0
+    return float(printing_of(values).steps(np.array([largest]))[0])
+
+
+def printing_of(values: np.ndarray) -> Printing:
+    """How numbers read from text were printed, from the shortest decimal forms of a sample
+    spread over them: with a fixed number of decimals (the count after the point is the same
+    for most values) or with a fixed number of significant digits (the most seen).
+
+    Parameters
+    ----------
+    values
+        Numbers read from text.
+
+    Returns
+    -------
+    Printing
+        Fixed decimals as a step, or significant digits (a step of 0 when all values are zero).
+    """
     picks = np.unique(np.linspace(0, values.size - 1, min(values.size, _DIGIT_SAMPLES)).astype(int))
-    forms = [_digits_and_exponent(float(v)) for v in values[picks] if v != 0.0]
+    forms = [_digits_and_exponent(float(v)) for v in values[picks] if v != 0.0 and math.isfinite(v)]
+    if not forms:
+        return Printing(step=0.0)
     significant = np.array([digits for digits, _ in forms])
     decimals = np.array([digits - 1 - exponent for digits, exponent in forms])
     if np.mean(decimals == decimals.max()) > np.mean(significant == significant.max()):
-        return 10.0 ** -int(decimals.max())
-    return 10.0 ** (math.floor(math.log10(largest)) - int(significant.max()) + 1)
+        return Printing(step=10.0 ** -int(decimals.max()))
+    return Printing(digits=int(significant.max()))
 
 
 def _digits_and_exponent(value: float) -> tuple[int, int]:
