@@ -92,6 +92,23 @@ def test_drive_of_noise_only_is_refused_by_name(tmp_path: Path) -> None:
         wavefit.analyze(_write(tmp_path / "unplugged.csv", t, unplugged, sense), TWO_CHANNELS)
 
 
+def test_a_single_step_with_little_record_after_it_is_refused_naming_that_too(tmp_path: Path) -> None:
+    # one step, 0.75 tau of record before it and 3 tau after: the drive node relaxes until the
+    # record ends, and the jump test cannot tell its jump from its noise; the refusal names the
+    # short record as well as the wiring (it named only the wiring); a long record does not
+    t, drive, sense = _record(seed=9)
+    tau = L / (R_SOURCE + DCR + R_SENSE)
+    edge = int(np.flatnonzero(np.abs(np.diff(drive)) > 0.3)[0]) + 1
+    cut = slice(edge - int(0.75 * tau / 4e-8), edge + int(3 * tau / 4e-8))
+    path = _write(tmp_path / "short.csv", t[cut] - t[cut][0], drive[cut], sense[cut])
+    with pytest.raises(wavefit.AnalysisRefused, match="drive channel does not step.*too short after each edge"):
+        wavefit.analyze(path, TWO_CHANNELS)
+    unplugged = np.random.default_rng(7).normal(0.0, 0.05, drive.size)
+    with pytest.raises(wavefit.AnalysisRefused) as refused:
+        wavefit.analyze(_write(tmp_path / "unplugged.csv", t, unplugged, sense), TWO_CHANNELS)
+    assert "too short" not in str(refused.value)
+
+
 def test_drive_of_band_limited_noise_only_is_refused_by_name() -> None:
     # a drive probe that picks up only band-limited noise: over the several samples a jump is
     # read across, its differences are far larger than over one sample, and must not pass for

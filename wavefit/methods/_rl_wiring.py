@@ -33,6 +33,12 @@ AGAINST_SHARE = 0.5
 #: of its level before: 50 Ω against 10.5 Ω at 34 dB was refused as a drive that does not
 #: step, though each edge jumped by 20 deviations (measured).
 DRIVE_JUMP_SNR = 5.0
+#: Record after each sense edge's 10 % instant (to the next edge or the end), in its 10–90 %
+#: durations (ln 9 tau each), below which a drive that seems not to step may be one whose
+#: relaxation fills the record: two durations are 4.4 tau; the jump test's noise, read from
+#: differences over the jump's span, then holds the relaxation itself (a single step with
+#: 3 tau after it, measured).
+SHORT_AFTER = 2.0
 
 
 def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edges: list[Edge],
@@ -62,9 +68,13 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
     drive_edges = find_edges(t, drive, drive_levels)
     dt = float(t[1] - t[0])
     if not drive_edges and not _jumps_at_edges(t, drive, edges, dt):
+        ends = [edge.t10 for edge in edges[1:]] + [float(t[-1])]
+        short = all(end - edge.t10 < SHORT_AFTER * edge.duration for edge, end in zip(edges, ends))
         raise AnalysisRefused(
             f"{source}: the drive channel does not step (no transition above its noise) while the sense "
-            "channel does: is the drive probe connected, and is [columns] drive the generator-side node?")
+            "channel does: is the drive probe connected, and is [columns] drive the generator-side node?"
+            + (" Or the record is too short after each edge to tell (a drive node relaxing until the next "
+               "edge or the record's end hides its jump): record 5 tau or more after an edge" if short else ""))
     # a drive with no edges of its own got here by jumping at the sense edges
     drive_jumps = not drive_edges or _jumps(t, drive, drive_edges, drive_levels.amplitude, dt)
     if _jumps(t, sense, edges, (sense_levels or state_levels(sense)).amplitude, dt) and not drive_jumps:
