@@ -50,11 +50,21 @@ def test_a_complete_setup_passes():
     ({"captures": [{"file": "a.csv"}]}, "takes its capture from the command line, not from [[captures]]"),
     ({"parts": {"sense_resistor": "4n7"}}, "part 'sense_resistor' = '4n7' is in 'F', expected 'ohm'"),
     ({"parts": {"sense_resistor": "-10 ohm"}}, "must be positive"),
+    # unit slips that gave a coil of femtohenries with exit 0: a plain 472 (the three-digit
+    # code of 4.7 nF) read as 472 F, an old "MF" for microfarads read as megafarads
+    ({"parts": {"sense_resistor": "10 ohm", "tank_capacitor": "472"}}, "'472' is 472 F, far above any tank"),
+    ({"parts": {"sense_resistor": "10 ohm", "tank_capacitor": "4.7 MF"}}, "is 4.7e+06 F, far above"),
+    ({"parts": {"sense_resistor": "10 ohm", "tank_capacitor": "0.47"}}, "a plain number is in farads"),
 ])
 def test_unknown_or_wrong_keys_list_the_valid_ones(changes, phrase):
     with pytest.raises(SetupError) as err:
         TwoChannel().check_setup(_setup(**changes))
     assert phrase in str(err.value) and "\n" not in str(err.value)
+
+
+def test_large_but_possible_capacitors_pass():
+    for value in ("100 uF ±5%", "4n7", "2.2e-3"):
+        TwoChannel().check_setup(_setup(parts={"sense_resistor": "10 ohm", "tank_capacitor": value}))
 
 
 def test_capture_entries_accept_only_file_and_parts():

@@ -32,6 +32,12 @@ from .estimate import Estimate
 #: value is zero (a DCR of a few milliohms beside an uncertainty of ohms) is refused about 3 in
 #: 10⁵ times (one-sided normal tail), while a result that contradicts its own model is caught.
 NEGATIVE_BEYOND = 2.0
+#: A capacitance part (a tank capacitor, a probe's, stray or winding capacitance) at or above
+#: this is refused as a unit slip: the capacitors these methods take are picofarads to some
+#: hundred microfarads (a film tank capacitor for a choke of henries; common practice), while a
+#: plain ``472`` (the three-digit code of 4.7 nF, which is not read) is 472 F in SI and
+#: ``4.7 MF`` (an old shorthand for microfarads) is megafarads.
+MAX_CAPACITANCE = 0.01
 
 
 @dataclass(frozen=True)
@@ -133,6 +139,11 @@ class Method:
                              f"expected {expected!r}")
         if part.value <= 0:
             raise SetupError(f"{setup.source}: part {part_name!r} must be positive, got {part.text!r}")
+        if expected == "F" and part.value >= MAX_CAPACITANCE:
+            raise SetupError(
+                f"{setup.source}: part {part_name!r} = {part.text!r} is {part.value:.3g} F, far above any tank, probe "
+                "or winding capacitance: a plain number is in farads (a three-digit code such as 472 for 4.7 nF is not "
+                "read); write the value with its unit, e.g. \"4.7 nF ±5%\"")
 
     @staticmethod
     def _part_in_captures(setup: Setup, part_name: str) -> bool:
