@@ -18,7 +18,7 @@ import pytest
 from wavefit.batch import history_db
 from wavefit.batch.command import run
 from wavefit.batch.run_lock import lock_path
-from wavefit.batch.write_errors import OutputError
+from wavefit.errors import OutputError
 
 from test_batch_fakes import delayed_analyse, write_lot
 from test_batch_runner import batch_args as runner_args

@@ -218,3 +218,33 @@ def test_setup_nested_too_deep_is_one_line(tmp_path: Path) -> None:
     path.write_text('method = "rl-step"\n[options]\nskip = ' + "[" * 1000 + "]" * 1000 + "\n", encoding="utf-8")
     with pytest.raises(wavefit.SetupError, match="nests arrays or tables too deeply"):
         wavefit.analyze(None, path)
+
+
+def test_a_plot_that_cannot_be_written_keeps_the_result_and_exits_5(tmp_path: Path, capsys) -> None:
+    # docs/cli.md: exit 5 when an output could not be written, what was written before kept; the
+    # plot's failure was exit 3 and the result was never printed
+    from wavefit.cli import main
+
+    t, drive, sense = _record(seed=10)
+    capture = _write(tmp_path / "c.csv", t, drive, sense)
+    setup = tmp_path / "s.toml"
+    setup.write_text('method = "rl-step"\n[columns]\ndrive = "drive"\nsense = "sense"\n[parts]\n'
+                     'sense_resistor = "10 ohm"\n', encoding="utf-8")
+    (tmp_path / "fit.png").mkdir()  # a folder where the file should go: the write fails
+    code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / "fit.png")])
+    out, err = capsys.readouterr()
+    assert code == 5 and "L " in out and "Safety" in out
+    assert err.count("\n") == 1 and "cannot write plot" in err and "fit.png" in err
+    # a plot into a folder that does not exist is refused before anything is analysed
+    (tmp_path / "a_file").write_text("not a folder", encoding="utf-8")
+    code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / "a_file" / "fit.png")])
+    out, err = capsys.readouterr()
+    assert code == 3 and out == "" and "does not exist" in err
+
+
+def test_a_calibration_file_that_cannot_be_written_is_named(tmp_path: Path) -> None:
+    from wavefit.calibration.toml_file import write_toml_whole
+
+    (tmp_path / "a_file").write_text("not a folder", encoding="utf-8")
+    with pytest.raises(wavefit.errors.OutputError, match=r"cannot write the file .*a_file/ref\.toml: .*kept"):
+        write_toml_whole({"kind": "x"}, tmp_path / "a_file" / "ref.toml")

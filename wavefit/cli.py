@@ -14,7 +14,7 @@ from typing import Sequence
 from . import __version__
 from .batch.arguments import add_batch_parser
 from .calibration.arguments import add_calibrate_parser
-from .errors import SetupError, WavefitError
+from .errors import OutputError, SetupError, WavefitError
 from .report.safe_text import visible
 from .report.stdout import discard_stdout
 
@@ -121,6 +121,10 @@ def _analyze(args: argparse.Namespace) -> int:
     monte_carlo = _monte_carlo_options(args)
     if monte_carlo is None:
         return EXIT_USAGE
+    if args.plot:
+        from .report.figure_file import check_figure_path
+
+        check_figure_path(args.plot)  # a format or folder that cannot be, before any analysis
     setup = load_setup(args.setup)
     method = get_method(setup.method)
     if takes_entries(setup, method.capture_count):  # one measurement: the entries' captures
@@ -146,16 +150,20 @@ def _analyze(args: argparse.Namespace) -> int:
             worst = max(worst, exc.exit_code)
             continue
         results.append(result)
-        if args.plot:
-            from .report.plot import save_plot
-
-            save_plot(result, _plot_path(args.plot, k, len(jobs)))
         if not (args.json or args.csv):
             from .report.text import render
 
             print(_shown(render(result, budget=not args.no_budget)))
             print()
             sys.stdout.flush()
+        if args.plot:
+            from .report.plot import save_plot
+
+            try:
+                save_plot(result, _plot_path(args.plot, k, len(jobs)))
+            except OutputError as exc:  # the result is still reported
+                print(f"wavefit: error: {_one_line(str(exc))}", file=sys.stderr)
+                worst = max(worst, exc.exit_code)
     if args.csv and results:
         from .report.csv_table import render_csv
 

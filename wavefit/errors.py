@@ -2,7 +2,8 @@
 
 The command line turns each into one line on stderr and the exit code named by
 the class (see ``docs/cli.md``): 3 for an unreadable capture or a bad setup,
-4 when the analysis is refused because its result could not be trusted.
+4 when the analysis is refused because its result could not be trusted, 5 when an
+output file could not be written.
 """
 from __future__ import annotations
 
@@ -34,3 +35,10 @@ class AnalysisRefused(WavefitError):
     """The data cannot give a trustworthy result (no edge, fit failed, too noisy)."""
 
     exit_code = 4
+
+
+class OutputError(WavefitError):
+    """An output file (a plot, a calibration file) could not be written; what was written
+    before, and the file it would have replaced, are kept."""
+
+    exit_code = 5

@@ -26,7 +26,7 @@ from .rows import Analyse, RowMaker, analyse_file, sha256_file
 from .spec import Spec, load_spec
 from .statistics import LotSummary, summarize, usable
 from .stop import Interrupted, StopSignals
-from .write_errors import write_failed
+from ..write_errors import write_failed
 
 if TYPE_CHECKING:
     from ..methods.base import Method

@@ -31,7 +31,7 @@ from typing import Any, Iterable, Mapping, Sequence
 
 from ..errors import WavefitError
 from ..report.safe_text import escape_controls, unescape_controls, visible
-from .write_errors import write_failed
+from ..write_errors import write_failed
 
 _COLUMNS = ("lot", "file", "verdict", "message", "method", "quantities", "tool_version",
             "capture_sha256", "setup_sha256", "spec_sha256", "analysed_at", "capture_key")

@@ -34,7 +34,7 @@ from typing import Any, Mapping, Sequence
 from ..errors import WavefitError
 from ..report.safe_text import from_spreadsheet_cell, spreadsheet_cell, visible
 from .decision import VERDICTS
-from .write_errors import write_failed
+from ..write_errors import write_failed
 
 LEAD_COLUMNS = ("file", "verdict", "message")
 TRACE_COLUMNS = ("tool_version", "capture_sha256", "setup_sha256", "spec_sha256", "analysed_at")

@@ -18,7 +18,7 @@ from pathlib import Path
 
 from ..errors import WavefitError
 from ..report.safe_text import visible
-from .write_errors import write_failed
+from ..write_errors import write_failed
 
 try:
     import fcntl

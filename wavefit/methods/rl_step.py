@@ -112,8 +112,8 @@ class RLStep(Method):
     positive = ("L", "tau", "R_loop")
     not_negative = ("R",)
     unphysical_hint = ("check [columns] (drive and sense swapped? an inverted probe? a probe's 1x/10x setting "
-                       "wrong?), the parts, and that "
-                       "the capture holds steps of an RL loop, not a ring, each step over many converter codes")
+                       "wrong?), the parts and the [instrument] gains, and that the capture holds steps of an RL "
+                       "loop (not a ring), each step over many converter codes")
 
     def check_setup(self, setup: Setup) -> None:
         super().check_setup(setup)

@@ -10,6 +10,7 @@ import os
 import numpy as np
 
 from ..errors import WavefitError
+from ..write_errors import write_failed
 from ..results import AnalysisResult, CurveResult, LinePlot, TracePlot
 from .figure_file import literal_text, save_figure
 from .safe_text import visible
@@ -22,7 +23,7 @@ def save_plot(result: AnalysisResult, path: str | os.PathLike) -> None:
         try:
             save_figure(fig, path, dpi=110)
         except OSError as exc:
-            raise WavefitError(f"cannot write plot {visible(path)}: {visible(exc.strerror or exc)}") from None
+            raise write_failed("plot", path, exc) from None
 
 
 def draw(result: AnalysisResult, plt):

@@ -4,8 +4,8 @@ from __future__ import annotations
 import errno
 import os
 
-from ..errors import WavefitError
-from ..report.safe_text import visible
+from .errors import OutputError
+from .report.safe_text import visible
 
 #: What to do about a failed write, by its errno.
 _ADVICE = {errno.ENOSPC: "free some space", errno.EDQUOT: "free some space",
@@ -14,12 +14,6 @@ _ADVICE = {errno.ENOSPC: "free some space", errno.EDQUOT: "free some space",
 #: SQLite's primary result code SQLITE_FULL, "database or disk is full"
 #: (https://www.sqlite.org/rescode.html#full); Python 3.11+ sets it on the exception.
 _SQLITE_FULL = 13
-
-
-class OutputError(WavefitError):
-    """An output could not be written; what was written before is kept (exit code 5)."""
-
-    exit_code = 5
 
 
 def write_failed(what: str, path: str | os.PathLike[str], exc: Exception, kept: str = "") -> OutputError:
