@@ -111,17 +111,23 @@ class Printing:
 
     def seen_in(self, values: np.ndarray) -> Printing:
         """This printing, checked against the numbers across the whole column (the text it was
-        read from is the first lines only). Both are lower bounds where trailing zeros are
-        dropped: when both count significant digits (or both decimals), the larger count is
-        taken (``1.5e-07``, ``3e-07``, ... at the start, ``1.499982e-01`` a million rows on);
-        when they disagree (``0.0015``, ``0.003`` at the start, fixed decimals to the eye, and
-        ``1.499`` later, four significant digits), each stamp takes the coarser of the two
-        steps. ``values`` are the column's numbers as printed (before any unit scale)."""
-        seen = printing_of(values)
-        if self.digits is not None and seen.digits is not None:
-            return replace(self, digits=max(self.digits, seen.digits))
-        if self.digits is None and seen.digits is None:
-            return replace(self, step=min(float(self.step or 0.0), float(seen.step or 0.0)) or self.step)
+        read from is the first lines only; a general format drops trailing zeros there).
+
+        Significant digits read from an exponent form are a lower bound: the most the numbers
+        show is taken (``1.5e-07``, ``3e-07`` at the start, ``1.499982e-01`` a million rows
+        on). Never fewer: numbers on an exact grid (``2.9900000000e-06``) show few. Decimals
+        read from fixed forms are taken, or more where the numbers show more; where the
+        numbers are printed to significant digits instead (``0.0015``, ``0.003`` at the start,
+        ``1.499`` later), each stamp takes the coarser of the two steps. ``values`` are the
+        column's numbers as printed (before any unit scale)."""
+        significant, decimals = _shortest_forms(values)
+        if not significant.size:
+            return self
+        if self.digits is not None:
+            return replace(self, digits=max(self.digits, int(significant.max())))
+        seen = _printing_from_forms(significant, decimals)
+        if seen.digits is None:
+            return replace(self, step=min(float(self.step or math.inf), float(seen.step)))
         return replace(self, alternative=seen)
 
 
@@ -367,12 +373,21 @@ def printing_of(values: np.ndarray) -> Printing:
     Printing
         Fixed decimals as a step, or significant digits (a step of 0 when all values are zero).
     """
+    significant, decimals = _shortest_forms(values)
+    return _printing_from_forms(significant, decimals) if significant.size else Printing(step=0.0)
+
+
+def _shortest_forms(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Significant digits and decimals of the shortest forms of up to ``_DIGIT_SAMPLES`` non-zero
+    values spread over ``values``."""
     picks = np.unique(np.linspace(0, values.size - 1, min(values.size, _DIGIT_SAMPLES)).astype(int))
     forms = [_digits_and_exponent(float(v)) for v in values[picks] if v != 0.0 and math.isfinite(v)]
-    if not forms:
-        return Printing(step=0.0)
-    significant = np.array([digits for digits, _ in forms])
-    decimals = np.array([digits - 1 - exponent for digits, exponent in forms])
+    significant = np.array([digits for digits, _ in forms], dtype=int)
+    decimals = np.array([digits - 1 - exponent for digits, exponent in forms], dtype=int)
+    return significant, decimals
+
+
+def _printing_from_forms(significant: np.ndarray, decimals: np.ndarray) -> Printing:
     if np.mean(decimals == decimals.max()) > np.mean(significant == significant.max()):
         return Printing(step=10.0 ** -int(decimals.max()))
     return Printing(digits=int(significant.max()))
