@@ -76,6 +76,27 @@ def test_capture_entries_accept_only_file_and_parts():
     FromSetupCaptures().check_setup(_setup(captures=[{"file": "a.csv", "tank_capacitor": "1 nF"}]))
 
 
+@pytest.mark.parametrize("start, end", [("600 us", "30 us"), ("30 us", "30 us")])
+def test_a_ring_fit_window_that_ends_before_it_starts_is_a_setup_error(start, end):
+    # was refused at analysis (exit 4) as a window of too few samples, blaming the tank column
+    setup = load_setup({"method": "lc-ring", "columns": {"tank": "CH1"}, "parts": {"tank_capacitor": "10 nF"},
+                        "options": {"fit_start": start, "fit_end": end}})
+    with pytest.raises(SetupError, match="option fit_end .* must come after fit_start"):
+        get_method("lc-ring").check_setup(setup)
+
+
+def test_a_part_every_entry_gives_is_not_also_taken_in_parts():
+    # docs/setup-file.md: "Every key is checked; nothing is ignored" (the [parts] value was
+    # silently overridden by every entry's own)
+    entries = [{"file": "a.csv", "tank_capacitor": "1 nF"}, {"file": "b.csv", "tank_capacitor": "2n2"}]
+    setup = _setup(parts={"sense_resistor": "10 ohm", "tank_capacitor": "4.7 nF"}, captures=entries)
+    with pytest.raises(SetupError, match="part 'tank_capacitor' in \\[parts\\] is given by every"):
+        FromSetupCaptures().check_setup(setup)
+    some = [entries[0], {"file": "b.csv"}]  # a default for the entries that do not give their own
+    FromSetupCaptures().check_setup(_setup(parts={"sense_resistor": "10 ohm", "tank_capacitor": "4.7 nF"},
+                                           captures=some))
+
+
 def test_rl_step_lists_its_per_channel_gain_keys():
     setup = load_setup({"method": "rl-step", "columns": {"sense": "CH2", "drive": "CH1"},
                         "parts": {"sense_resistor": "10 ohm"}, "instrument": {"vertical_gain_CH2": "±0.1%"}})

@@ -45,6 +45,7 @@ def test_defaults_describe_a_bench_scope():
 @pytest.mark.parametrize("data, phrase", [
     ({"method": "rl-step", "colums": {}}, "unknown setup key 'colums'"),
     ({"parts": {}}, "'method' is missing"),
+    ({"method": 1}, "'method' must be a method's name in quotes, got 1"),  # was "'method' is missing"
     ({"method": "rl-step", "instrument": {"time_base": "1%"}}, "unknown [instrument] key 'time_base'"),
     ({"method": "rl-step", "parts": {"sense_resistor": "ten"}}, "part 'sense_resistor'"),
     ({"method": "rl-step", "sample_interval": -1}, "must be positive"),

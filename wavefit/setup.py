@@ -151,8 +151,11 @@ def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setu
     """Check and convert the raw mapping of a setup."""
     check_names(data, TOP_LEVEL_KEYS, "setup key", source)
     method = data.get("method")
-    if not isinstance(method, str) or not method:
+    if method is None or method == "":
         raise SetupError(f"{source}: 'method' is missing; write e.g. method = \"rl-step\"")
+    if not isinstance(method, str):
+        raise SetupError(f"{source}: 'method' must be a method's name in quotes, got {_shown(method)}; "
+                         "write e.g. method = \"rl-step\"")
     columns: dict[str, str | int] = {}
     column_files: dict[str, Path] = {}
     for role, entry in _table(data, "columns", source).items():

@@ -155,9 +155,11 @@ class RingMeasurement:
 
 
 def check_time_options(method: Method, setup: Setup) -> None:
-    """Refuse a fit_start or fit_end that is not a time, before any capture is read."""
-    for key in ("fit_start", "fit_end"):
-        method.time_option(setup, key, negative=True)
+    """Refuse a fit_start or fit_end that is not a time, or a fit_end not after fit_start,
+    before any capture is read."""
+    start, end = (method.time_option(setup, key, negative=True) for key in ("fit_start", "fit_end"))
+    if start is not None and end is not None and not end > start:
+        raise SetupError(f"{setup.source}: option fit_end ({end:.6g} s) must come after fit_start ({start:.6g} s)")
 
 
 def coil_loss_option(method: Method, setup: Setup) -> str:

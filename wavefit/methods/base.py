@@ -131,6 +131,11 @@ class Method:
                         setup.source)
             for part_name, part in entry.parts.items():
                 self._check_unit(setup, part_name, part)
+        for part_name in setup.parts:
+            if self._part_in_captures(setup, part_name):
+                raise SetupError(f"{setup.source}: part {part_name!r} in [parts] is given by every [[captures]] "
+                                 "entry too, so it would not be used; give it in one place (in [parts] for a value "
+                                 "that holds for every capture)")
 
     def _check_unit(self, setup: Setup, part_name: str, part: PartValue) -> None:
         expected = self.parts[part_name].unit

@@ -224,6 +224,8 @@ class RLStep(Method):
 
         if drive is not None and "source_resistance" in setup.parts:
             notes.append("source_resistance is not used: the drive channel measures the generator")
+        if drive is not None and "dut_resistance" in setup.parts:
+            notes.append("dut_resistance is not used: the drive channel measures R (compare the two)")
         if drive is None:
             notes.append("R is the dut_resistance part as given (no drive channel to measure it)")
         fit_info = _fit_summary(windows, fits, combined, baseline, dt, notes, estimator, check,

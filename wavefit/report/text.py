@@ -43,6 +43,8 @@ def render(result: AnalysisResult, budget: bool = True) -> str:
                              + (f"  ({e.origin})" if e.origin is not None else ""))
     fit_lines = [f"  {key}: {value:.6g}" if isinstance(value, float) else f"  {key}: {value}"
                  for key, value in shown_details(result.fit)]
+    details = result.fit.to_dict()
+    fit_lines += [f"  note: {note}" for key in ("notes", "capture_notes") for note in details.get(key) or ()]
     if fit_lines:
         lines += ["", "Fit:"] + fit_lines
     if result.warnings:
