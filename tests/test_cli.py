@@ -128,6 +128,8 @@ def test_several_captures_keep_going_and_report_the_worst(capture_file, tmp_path
     code, _, err = run("analyze", str(tmp_path / "missing.csv"), str(flat), "--setup", str(_rl_setup(tmp_path)))
     assert code == 4  # the flat capture has no transition (4) and is worse than the missing file (3)
     assert err.count("\n") == 2
+    flat_line = next(line for line in err.splitlines() if "flat.csv" in line)
+    assert flat_line.count("flat.csv") == 1, flat_line  # was named twice
 
 
 def test_a_capture_error_names_the_file_once_among_several(capture_file, tmp_path):

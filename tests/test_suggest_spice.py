@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import contextlib
 import io
+import re
 import json
 import math
 
@@ -175,6 +176,11 @@ def test_cli_json_and_toml(first_capture, tmp_path):
     assert {"period", "sample_interval", "record_length", "samples"} <= set(data["next_capture"])
     code, out, _ = _cli(["suggest", str(tmp_path / "first.csv")])
     assert code == 0 and 'method = "rl-step"' in out
+    # the reason quotes the two steps k is the ratio of (it quoted other steps beside it)
+    found = re.search(r"k = settled drive step / settled sense step = ([\d.]+) (m?)V / ([\d.]+) (m?)V = ([\d.]+)", out)
+    assert found is not None, out
+    drive, sense = (float(found[i]) * (1e-3 if found[i + 1] else 1.0) for i in (1, 3))
+    assert float(found[5]) == pytest.approx(drive / sense, rel=5e-3)
     (tmp_path / "s.toml").write_text(out, encoding="utf-8")
     with pytest.raises(SetupError, match="sense_resistor"):  # the resistor was not given: to fill in
         load_setup(tmp_path / "s.toml")

@@ -144,8 +144,10 @@ def _analyze(args: argparse.Namespace) -> int:
                 raise
             label = source if isinstance(source, str) else "setup captures"
             message = _one_line(str(exc))
-            # with several captures each error must say which one; the reader's already do
-            named = message if exc.source is not None or len(jobs) == 1 else f"{_one_line(label)}: {message}"
+            # with several captures each error must say which one; the reader's already do, and so
+            # do the methods' refusals that begin with the capture's name
+            said = exc.source is not None or message.startswith(f"{_one_line(label)}: ")
+            named = message if said or len(jobs) == 1 else f"{_one_line(label)}: {message}"
             print(f"wavefit: error: {named}", file=sys.stderr)
             worst = max(worst, exc.exit_code)
             continue

@@ -109,9 +109,11 @@ def _step_suggestion(capture: Capture, step: StepRecord, rs: PartValue | None, b
     if step.drive is not None:
         assert step.drive_fit is not None
         columns["drive"] = step.drive.channel.header
-        why.append(f"drive {step.drive.channel.header!r} steps by {eng(abs(step.drive.step), 'V')}, sense "
-                   f"{step.sense.channel.header!r} by {eng(abs(step.sense.step), 'V')}: the larger step is the drive")
+        why.append(f"drive {step.drive.channel.header!r} spans {eng(abs(step.drive.step), 'V')} between its state "
+                   f"levels, sense {step.sense.channel.header!r} {eng(abs(step.sense.step), 'V')}: the larger is the drive")
         k = step.drive_fit.settled_step / step.sense_fit.settled_step
+        settled = (f"settled drive step / settled sense step = {eng(step.drive_fit.settled_step, 'V')} / "
+                   f"{eng(step.sense_fit.settled_step, 'V')} = {k:.3g}")
         source = step_source(step)
         estimates |= {"k": k, "source_over_sense": source, "dut_over_sense": k - 1,
                       "drive_step": step.drive_fit.settled_step}
@@ -119,10 +121,10 @@ def _step_suggestion(capture: Capture, step: StepRecord, rs: PartValue | None, b
             loop = source + k
             if not K_LOW <= k <= K_HIGH:
                 factor = (k - 1) / (K_TARGET - 1)
-                why.append(f"k = drive step / sense step = {k:.3g} lies outside {K_LOW:g}..{K_HIGH:g}: "
+                why.append(f"k = {settled} lies outside {K_LOW:g}..{K_HIGH:g}: "
                            f"a sense resistor about {factor:.3g} times this one gives k near {K_TARGET:g}")
             else:
-                why.append(f"k = drive step / sense step = {k:.3g} lies inside {K_LOW:g}..{K_HIGH:g}: "
+                why.append(f"k = {settled} lies inside {K_LOW:g}..{K_HIGH:g}: "
                            "keep the sense resistor")
         else:
             why.append(f"k = {k:.3g} and R_source/R_sense = {source:.3g} are not those of an RL loop: "
