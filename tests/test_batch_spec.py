@@ -44,6 +44,8 @@ def test_bounds_and_ranges(text, lower, upper, unit):
     ("47 uH ±2 ohm", "differs"),
     ("about 47 uH", "cannot read"),
     ("47 uH ±0%", "positive"),
+    ("330 uH ±200%", "wider than its nominal"),  # a lower limit of -330 µH was accepted
+    ("330 uH ±400 uH", "wider than its nominal"),
 ])
 def test_bad_limits_say_what_is_wrong(text, fragment):
     with pytest.raises(SetupError, match=fragment):

@@ -109,6 +109,16 @@ def test_tolerance_is_rectangular_half_width():
     assert parse_part("10 ohm 1%").standard_uncertainty == pytest.approx(0.1 / math.sqrt(3))
 
 
+def test_a_bound_wider_than_the_value_is_refused():
+    # "10 ohm ±20 ohm" and "±200%" were accepted: a part that could be negative; ±100 % (zero to
+    # twice the value) is the widest bound, and a standard uncertainty is not a bound
+    for text in ("10 ohm ±20 ohm", "10 ohm ±200%", "47 uH ±60 uH k=2"):
+        with pytest.raises(SetupError, match="a tolerance wider than the value"):
+            parse_part(text)
+    assert parse_part("5 pF ±5 pF").standard_uncertainty == pytest.approx(5e-12 / math.sqrt(3))
+    assert parse_part("5 pF u=6 pF").standard_uncertainty == pytest.approx(6e-12)
+
+
 def test_tolerance_with_coverage_factor_is_normal():
     # JCGM 100:2008 4.3.3: an expanded uncertainty with stated k -> u = U/k
     part = parse_part("47 uH ±1% k=2")
@@ -296,8 +306,12 @@ def test_every_tolerance_spelling_gives_the_gum_standard_uncertainty(data):
     assume(SMALLEST_MAGNITUDE <= truth <= LARGEST_MAGNITUDE)
     tolerance, relative, magnitude, standard, k = data.draw(written_tolerances(unit))
     assume(SMALLEST_MAGNITUDE <= magnitude <= LARGEST_MAGNITUDE)
-    part = parse_part(text + tolerance, expected)
     half_width = float(magnitude * truth) if relative else float(magnitude)
+    if not standard and half_width > float(truth):  # a bound that lets the part be negative
+        with pytest.raises(SetupError, match="a tolerance wider than the value"):
+            parse_part(text + tolerance, expected)
+        return
+    part = parse_part(text + tolerance, expected)
     if standard:
         expected_u, distribution = half_width, "normal"
     elif k is None:

@@ -323,6 +323,9 @@ def _part_from_text(text: str, expected_unit: str | None) -> PartValue:
     statement = _read_statement(cursor, after_value=True)
     unit = _statement_unit(statement, value)
     half_width = statement.magnitude * abs(value.si) if statement.relative else statement.magnitude
+    if not statement.standard and half_width > abs(value.si):
+        raise _Unreadable("a tolerance wider than the value bounds a part that could be negative; the widest "
+                          "is ±100 % (a part known only to lie between zero and twice its value)")
     if statement.standard:
         return PartValue(value.si, unit, half_width, "normal", text)
     if statement.k is None:

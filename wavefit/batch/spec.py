@@ -131,6 +131,9 @@ def parse_limit(name: str, text: Any, source: str = "<dict>") -> Limit:
     elif match := _TOLERANCE.match(body):
         nominal, unit = _number(match.group(1), where)
         half = _half_width(match.group(3), nominal, unit, where)
+        if half > abs(nominal):
+            raise SetupError(f"{where}: the tolerance of {text!r} is wider than its nominal, so its lower limit "
+                             "would be below zero; write an upper bound alone (\"<= 363 uH\") or a range")
         lower, upper = nominal - half, nominal + half
     elif body.startswith(("±", "+/-", "+-")):
         raise SetupError(f"{where}: {text!r} has a tolerance but no nominal value; write e.g. \"47 uH ±2 uH\"")
