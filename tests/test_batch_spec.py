@@ -134,3 +134,14 @@ def test_limits_that_would_be_misread_are_refused(text):
     with pytest.raises(SetupError) as err:
         parse_limit("x", text)
     assert "\n" not in str(err.value)
+
+
+def test_a_limit_in_another_unit_is_refused_before_any_analysis():
+    # "330 nF" for L: every capture was analysed and each row said "error", and the results
+    # file was then bound to the wrong spec (docs/batch.md: spec errors are refused, code 3,
+    # before anything is analysed)
+    spec = parse_spec({"limits": {"L": "330 nF ±10%", "Q": ">= 40"}})
+    with pytest.raises(SetupError, match="limit for 'L' is in 'F', but L is in 'H'"):
+        spec.check_quantities(("L", "Q"), "lc-ring", units={"L": "H", "Q": ""})
+    parse_spec({"limits": {"L": "330 uH ±10%", "Q": ">= 40"}}).check_quantities(
+        ("L", "Q"), "lc-ring", units={"L": "H", "Q": ""})

@@ -110,7 +110,8 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     method.check_setup(setup)
     curves = curve_names(method.outputs)
     spec = load_spec(args.spec, need_limits=bool(method.quantities))
-    spec.check_quantities(method.quantities, method.name, curves, readings=(DCR,))
+    units = {name: method.outputs[name].unit for name in method.quantities} | {DCR: "ohm"}
+    spec.check_quantities(method.quantities, method.name, curves, readings=(DCR,), units=units)
     own = RunFiles(Path(args.out), Path(args.db) if args.db else None, Path(args.plot) if args.plot else None,
                    Path(args.setup), Path(args.spec), curves_path(args.out) if curves else None)
     own.check()

@@ -65,11 +65,17 @@ class Spec:
     source: str = "<dict>"
 
     def check_quantities(self, available: tuple[str, ...], method: str, curves: tuple[str, ...] = (),
-                         readings: tuple[str, ...] = ()) -> None:
+                         readings: tuple[str, ...] = (), units: Mapping[str, str] | None = None) -> None:
         """Raise a SetupError when a limit names a quantity the method does not report, or one of
-        its ``curves`` (limits apply to scalar quantities only). ``readings`` are quantities
-        the captures carry themselves (the ohmmeter's ``DCR``), which any method may limit."""
-        for name in self.limits:
+        its ``curves`` (limits apply to scalar quantities only), or is written in another unit
+        than ``units`` gives for it (before any capture is analysed). ``readings`` are
+        quantities the captures carry themselves (the ohmmeter's ``DCR``), which any method may
+        limit."""
+        for name, limit in self.limits.items():
+            expected = (units or {}).get(name)
+            if limit.unit and expected is not None and limit.unit != expected:
+                raise SetupError(f"{self.source}: limit for {name!r} is in {limit.unit!r}, but {name} is in "
+                                 f"{expected!r} ({limit.text!r})")
             if name in readings:
                 continue
             if name in curves:
