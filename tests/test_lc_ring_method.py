@@ -78,6 +78,15 @@ def test_undersampled_and_few_cycles_warn():
     assert any("too few cycles" in w for w in result.warnings)
 
 
+@pytest.mark.parametrize("spp", [3.3, 2.6])
+def test_a_ring_above_half_the_nyquist_frequency_is_refused(spp):
+    # below 4 samples per period a ring may be the alias of a faster one (a sampled sinusoid's
+    # frequency is known only modulo the sampling rate, common practice): it was printed with a
+    # warning; these rings are real, but the capture alone cannot tell them from aliases
+    with pytest.raises(wavefit.AnalysisRefused, match="samples per period put the ring at .* alias"):
+        wavefit.analyze(_frame(spp=spp, n=600), setup=SETUP)
+
+
 def test_load_that_explains_all_damping_is_refused():
     lossless = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=1e-6, feed_resistance=20e3)
     with pytest.raises(wavefit.AnalysisRefused, match="parallel_load"):

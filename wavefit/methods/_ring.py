@@ -45,7 +45,9 @@ MIN_AMPLITUDE_TO_NOISE = 5.0
 #: strongly and the linear interval is poor).
 MIN_CYCLES, FEW_CYCLES = 1.0, 3.0
 #: Samples per period: fewer than FEW_SAMPLES_PER_PERIOD is warned (the fit's Jacobian is coarse),
-#: fewer than ALIAS_SAMPLES_PER_PERIOD (half the Nyquist frequency) may be an alias.
+#: fewer than ALIAS_SAMPLES_PER_PERIOD (above half the Nyquist frequency) is refused: a ring there
+#: may be an alias of a faster one, which the capture cannot tell (an lc-ring at 2.7 samples per
+#: period gave L = 918 ± 11 µH for 330 µH behind a warning).
 FEW_SAMPLES_PER_PERIOD, ALIAS_SAMPLES_PER_PERIOD = 10.0, 4.0
 #: Consecutive samples at the record's extremes that, with a model beyond them, mean clipping.
 CLIPPED_RUN = 5
@@ -231,8 +233,10 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | Non
         warnings.append(f"{spp:.1f} samples per period, fewer than {FEW_SAMPLES_PER_PERIOD:g}: "
                         "sample faster")
     if spp < ALIAS_SAMPLES_PER_PERIOD:
-        warnings.append(f"suspected aliasing: the ring is at {100 * 2 / spp:.0f} % of the Nyquist frequency; "
-                        "an undersampled ring looks like a slower one, so f0 may be an alias")
+        raise AnalysisRefused(f"{source}: {spp:.1f} samples per period put the ring at {100 * 2 / spp:.0f} % of "
+                              "the Nyquist frequency, where a faster ring sampled too slowly looks the same (an "
+                              "alias): f0 and L cannot be told from it; sample at least "
+                              f"{FEW_SAMPLES_PER_PERIOD:g} times per period")
     seg_y = y[ring.start:ring.stop]
     fitted = ring.on_window()
     runs = longest_run_at_extremes(seg_y)
