@@ -90,6 +90,12 @@ FIRST_PASS_END_MARGIN = 0.05
 FIRST_PASS_MARGIN_FROM = 1000
 
 
+#: The lowest input resistance a scope channel has: 50 ohm when terminated, 1 Mohm otherwise
+#: (common practice). A probe_resistance below it is a prefix slip ("1 mohm", milliohm, typed
+#: for 1 Mohm), which made the probe short the sense resistor: L read 10⁴ times too small.
+LEAST_PROBE_RESISTANCE = 50.0
+
+
 @register
 class RLStep(Method):
     """Step response of an inductor in series with a sense resistor."""
@@ -126,6 +132,11 @@ class RLStep(Method):
         if noise not in ("auto", "white"):
             raise SetupError(f"{setup.source}: option noise must be \"auto\" or \"white\", got {noise!r}")
         self.time_option(setup, "skip", keywords=("auto",))  # "auto", or a time >= 0 ("30 ns")
+        probe = setup.parts.get("probe_resistance")
+        if probe is not None and probe.value < LEAST_PROBE_RESISTANCE:
+            raise SetupError(f"{setup.source}: part 'probe_resistance' = {probe.text!r} is {probe.value:.3g} ohm, below "
+                             f"any scope input ({LEAST_PROBE_RESISTANCE:g} ohm terminated, 1 Mohm otherwise): 'mohm' is "
+                             "milliohm; write 'Mohm' for megaohm")
 
     def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
         capture = measurement.first.capture
