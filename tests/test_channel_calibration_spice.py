@@ -90,6 +90,18 @@ def test_without_calibration_the_ideal_scope_result_is_refused(capture):
 
 @needs_ngspice
 @pytest.mark.ngspice
+def test_without_calibration_a_short_tau_warns_of_the_channels_delay(capture, tmp_path):
+    # tau = 78 ns: 1 ns between the channels moves L by R_source·1 ns = 50 nH, 1.1 % of 4.7 µH
+    # (docs/method-rl-step.md), which no budget line holds without a channel comparison; the
+    # fixture's 3 ns read L 3 % low with no warning
+    plain = wavefit.analyze(capture, setup(gain="±2%"))
+    assert any("delay between the drive and sense channels" in w for w in plain.warnings)
+    compared = wavefit.analyze(capture, setup({"channels": str(comparison_file(tmp_path / "c.toml"))}, gain="±1%"))
+    assert not any("delay between the drive and sense channels" in w for w in compared.warnings)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
 def test_with_a_channel_comparison_L_within_0p3_percent_and_dcr_within_its_u(capture, tmp_path):
     cal = comparison_file(tmp_path / "channels.toml")
     result = wavefit.analyze(capture, setup({"channels": str(cal)}, gain="±1%"))

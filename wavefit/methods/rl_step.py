@@ -90,6 +90,15 @@ FIRST_PASS_END_MARGIN = 0.05
 FIRST_PASS_MARGIN_FROM = 1000
 
 
+#: Delay between two channels of one scope with their probes when they are not deskewed: up
+#: to about a nanosecond (probe and cable delays differ by that much, 20 cm of cable is 1 ns;
+#: common practice, from memory). L changes by R_source·delay (docs/method-rl-step.md), at most
+#: delay/tau of L; where that exceeds SKEW_WARNING for this delay and no channel comparison
+#: puts the delay in the budget, a warning says so (a 4.7 µH coil with tau = 78 ns: 1.1 % per
+#: ns; the sample choke, tau = 3.7 µs: 0.03 %).
+UNDESKEWED_DELAY = 1e-9
+SKEW_WARNING = 0.005
+
 #: The lowest input resistance a scope channel has: 50 ohm when terminated, 1 Mohm otherwise
 #: (common practice). A probe_resistance below it is a prefix slip ("1 mohm", milliohm, typed
 #: for 1 Mohm), which made the probe short the sense resistor: L read 10⁴ times too small.
@@ -353,6 +362,11 @@ class RLStep(Method):
         if edge_time > EDGE_TIME_FRACTION * tau:
             out.append(f"tau ({tau:.3g} s) is comparable to the generator's edge time ({edge_time:.3g} s); "
                        "use a faster generator or a larger inductance")
+        if drive is not None and setup.calibration.channels is None and UNDESKEWED_DELAY / tau > SKEW_WARNING:
+            out.append(f"a delay between the drive and sense channels moves L by up to {100 * 1e-9 / tau:.2g} % per "
+                       f"ns here (L changes by R_source·delay; tau = {tau:.3g} s), and the budget holds no such "
+                       "delay: deskew the probes on the scope, or compare the channels ([calibration] channels) to "
+                       "put the delay and its uncertainty in the budget")
         cp = setup.parts.get("probe_capacitance")
         if cp is not None and setup.parts["sense_resistor"].value * cp.value > PROBE_POLE_FRACTION * tau:
             out.append("the probe capacitance with the sense resistor makes a pole comparable to tau; "
