@@ -69,6 +69,17 @@ def test_second_mode_is_flagged():
     assert any("second oscillation" in w for w in result.warnings)
 
 
+def test_a_residual_line_at_the_rings_own_frequency_is_not_called_a_second_oscillation():
+    # a ring on few converter codes left a line at its own frequency in the residuals, and the
+    # warning named it a second mode at that very frequency
+    from wavefit.methods._ring import ResidualPeak, residual_line_warning
+
+    own = residual_line_warning(ResidualPeak(127_610.0, 1.2e-3), 127_594.0, 10.0)
+    assert own.startswith("the residuals hold the ring's own frequency") and "second oscillation" not in own
+    other = residual_line_warning(ResidualPeak(2.7 * 127_594.0, 1.2e-3), 127_594.0, 10.0)
+    assert other.startswith("a second oscillation at 3.445e+05 Hz")
+
+
 def test_undersampled_and_few_cycles_warn():
     result = wavefit.analyze(_frame(spp=6, n=600), setup=SETUP)
     assert any("samples per period" in w for w in result.warnings)

@@ -266,8 +266,7 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | Non
     del oscillation
     spur = _residual_peak(ring.fit.residuals[:span], energy, dt)
     if spur is not None:
-        warnings.append(f"a second oscillation at {spur.frequency:.4g} Hz ({spur.relative_energy:.1e} of "
-                        "the ring's energy) remains in the residuals: second mode, beat or pickup")
+        warnings.append(residual_line_warning(spur, ring.fit["w_d"] / (2 * math.pi), 1.0 / (span * dt)))
     return RingSummary(model=ring.fit.model, window_start_s=float(t[ring.start]),
                        window_end_s=float(t[ring.stop - 1]), cycles=float(ring.cycles),
                        cycles_above_noise=float(visible), samples_per_period=float(spp),
@@ -341,6 +340,10 @@ def ring_model_check(ring: DampedSineFit, halves: tuple[DampedSineFit, DampedSin
 #: has decayed to the noise. (Newer SciPy gives this length as ``scipy.fft.prev_fast_len(n,
 #: real=True)``; the oldest SciPy the project supports does not.)
 RESIDUAL_SPECTRUM_SAMPLES = 1 << 21
+#: A residual line within this many spectral bins of the ring's own frequency is the ring's
+#: misfit, not a second oscillation (a line's peak sits within a bin or two of its frequency
+#: once the window leaks it; a ring on few converter codes left one at its own frequency).
+OWN_LINE_BINS = 3
 
 
 def fast_length(n: int) -> int:
@@ -356,6 +359,17 @@ def fast_length(n: int) -> int:
             odd *= 3
         five *= 5
     return best
+
+
+def residual_line_warning(spur: ResidualPeak, ring_frequency: float, bin_width: float) -> str:
+    """The warning for a line left in the residuals: the ring's own misfit when it lies within
+    ``OWN_LINE_BINS`` spectral bins of the ring's frequency, else a second oscillation."""
+    if abs(spur.frequency - ring_frequency) <= OWN_LINE_BINS * bin_width:
+        return (f"the residuals hold the ring's own frequency ({spur.relative_energy:.1e} of its energy): the "
+                "damped sinusoid does not follow the ring exactly (a ring on few converter codes, or damping "
+                "or frequency that changes with amplitude)")
+    return (f"a second oscillation at {spur.frequency:.4g} Hz ({spur.relative_energy:.1e} of the ring's energy) "
+            "remains in the residuals: second mode, beat or pickup")
 
 
 def _residual_peak(r: np.ndarray, ring_energy: float, dt: float) -> ResidualPeak | None:
