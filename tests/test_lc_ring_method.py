@@ -102,6 +102,11 @@ def test_load_that_explains_all_damping_is_refused():
     lossless = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=1e-6, feed_resistance=20e3)
     with pytest.raises(wavefit.AnalysisRefused, match="parallel_load"):
         wavefit.analyze(_frame(lossless), setup=SETUP)
+    # a load stated at half its value explains more than all the damping: the message says that
+    # the load or the ring itself must be wrong (it named only the load's share)
+    half = {**SETUP, "parts": {**SETUP["parts"], "parallel_load": "10 kohm ±1%"}}
+    with pytest.raises(wavefit.AnalysisRefused, match="more than all of it"):
+        wavefit.analyze(_frame(lossless), setup=half)
 
 
 def test_noise_only_is_refused():

@@ -147,8 +147,12 @@ def check_load_share(ring: DampedSineFit, parts: Mapping[str, PartValue]) -> Non
     load_alpha = 1.0 / (2.0 * parts["parallel_load"].value * cap)
     share = load_alpha / ring.alpha
     if share >= LOAD_SHARE_REFUSED:
+        beyond = (" (more than all of it: the ring decays slower than the load alone allows, so the load value "
+                  "or the tank's capacitance is wrong, or the ring is distorted, clipped or on few codes)"
+                  if share > 1.0 else "")
         raise AnalysisRefused(
             f"the parallel_load ({parts['parallel_load'].text}) explains {100 * share:.0f} % of the measured "
-            "damping, so the coil's own Q cannot be separated; check the load value or use a larger feed resistor")
+            f"damping{beyond}, so the coil's own Q cannot be separated; check the load value or use a larger "
+            "feed resistor")
 
 
