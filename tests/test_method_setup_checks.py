@@ -97,14 +97,14 @@ def test_a_part_every_entry_gives_is_not_also_taken_in_parts():
                                            captures=some))
 
 
-@pytest.mark.parametrize("probe, refused", [("1 mohm ±2%", True), ("10 ohm", True), ("50 ohm", False),
-                                             ("1 Mohm ±1%", False)])
+@pytest.mark.parametrize("probe, refused", [("1 mohm ±2%", True), ("5 ohm", True), ("49.9 ohm", False),
+                                             ("50 ohm", False), ("1 Mohm ±1%", False)])
 def test_a_probe_resistance_below_any_scope_input_is_refused(probe, refused):
     # "1 mohm" (milliohm) typed for 1 Mohm shorted the sense resistor in the model: L 10⁴ too small
     setup = load_setup({"method": "rl-step", "columns": {"sense": "CH2", "drive": "CH1"},
                         "parts": {"sense_resistor": "10 ohm", "probe_resistance": probe}})
     if refused:
-        with pytest.raises(SetupError, match="below any scope input .* write 'Mohm' for megaohm"):
+        with pytest.raises(SetupError, match="far below any scope input .* write 'Mohm' for megaohm"):
             get_method("rl-step").check_setup(setup)
     else:
         get_method("rl-step").check_setup(setup)

@@ -99,10 +99,11 @@ FIRST_PASS_MARGIN_FROM = 1000
 UNDESKEWED_DELAY = 1e-9
 SKEW_WARNING = 0.005
 
-#: The lowest input resistance a scope channel has: 50 ohm when terminated, 1 Mohm otherwise
-#: (common practice). A probe_resistance below it is a prefix slip ("1 mohm", milliohm, typed
-#: for 1 Mohm), which made the probe short the sense resistor: L read 10⁴ times too small.
-LEAST_PROBE_RESISTANCE = 50.0
+#: A scope channel's input is 50 ohm when terminated (a measured 49.9 ohm is one), 1 Mohm
+#: otherwise (common practice); a probe_resistance below this is none, but a prefix slip
+#: ("1 mohm", milliohm, typed for 1 Mohm), which made the probe short the sense resistor: L read
+#: 10⁴ times too small.
+LEAST_PROBE_RESISTANCE = 10.0
 
 
 @register
@@ -143,9 +144,9 @@ class RLStep(Method):
         self.time_option(setup, "skip", keywords=("auto",))  # "auto", or a time >= 0 ("30 ns")
         probe = setup.parts.get("probe_resistance")
         if probe is not None and probe.value < LEAST_PROBE_RESISTANCE:
-            raise SetupError(f"{setup.source}: part 'probe_resistance' = {probe.text!r} is {probe.value:.3g} ohm, below "
-                             f"any scope input ({LEAST_PROBE_RESISTANCE:g} ohm terminated, 1 Mohm otherwise): 'mohm' is "
-                             "milliohm; write 'Mohm' for megaohm")
+            raise SetupError(f"{setup.source}: part 'probe_resistance' = {probe.text!r} is {probe.value:.3g} ohm, far "
+                             "below any scope input (50 ohm terminated, 1 Mohm otherwise); 'mohm' is milliohm: write "
+                             "'Mohm' for megaohm")
 
     def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
         capture = measurement.first.capture
