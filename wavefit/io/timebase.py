@@ -342,6 +342,11 @@ def _non_uniform_message(
 def printing_resolution(values: np.ndarray) -> float:
     """Estimate the step of the last printed digit at the largest magnitude in ``values``.
 
+    The shortest decimal forms of a sample of the values show how they were printed: with a
+    fixed number of decimals (the count after the point is the same for most values) or with
+    a fixed number of significant digits (the most seen). The step of the last digit follows,
+    at the largest magnitude.
+
     Parameters
     ----------
     values
@@ -350,31 +355,13 @@ def printing_resolution(values: np.ndarray) -> float:
     Returns
     -------
     float
-        The estimated resolution (0 when all values are zero), from :func:`printing_of`.
+        The estimated resolution (0 when all values are zero).
     """
     largest = float(np.max(np.abs(values)))
     if largest == 0.0:
         return 0.0
-    return float(printing_of(values).steps(np.array([largest]))[0])
-
-
-def printing_of(values: np.ndarray) -> Printing:
-    """How numbers read from text were printed, from the shortest decimal forms of a sample
-    spread over them: with a fixed number of decimals (the count after the point is the same
-    for most values) or with a fixed number of significant digits (the most seen).
-
-    Parameters
-    ----------
-    values
-        Numbers read from text.
-
-    Returns
-    -------
-    Printing
-        Fixed decimals as a step, or significant digits (a step of 0 when all values are zero).
-    """
     significant, decimals = _shortest_forms(values)
-    return _printing_from_forms(significant, decimals) if significant.size else Printing(step=0.0)
+    return float(_printing_from_forms(significant, decimals).steps(np.array([largest]))[0])
 
 
 def _shortest_forms(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -388,6 +375,7 @@ def _shortest_forms(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _printing_from_forms(significant: np.ndarray, decimals: np.ndarray) -> Printing:
+    """Fixed decimals when most values show the most decimals seen, else significant digits."""
     if np.mean(decimals == decimals.max()) > np.mean(significant == significant.max()):
         return Printing(step=10.0 ** -int(decimals.max()))
     return Printing(digits=int(significant.max()))
