@@ -110,7 +110,8 @@ def with_reference(method: "Method", estimate: "Estimate", inputs: InputSet, set
 
     nominal = {i.name: i.value for i in inputs.inputs}
     corrected = substituted(nominal, estimate.settings)[quantity]
-    implausible = implausible_correction(quantity, reference.known.text, corrected / method.model(nominal, estimate.settings)[quantity])
+    uncorrected = method.model(nominal, estimate.settings)[quantity]
+    implausible = implausible_correction(quantity, reference.known.text, corrected / uncorrected)
     if implausible:
         raise SetupError(f"{where}: {implausible}; make the reference file again")
     warnings = (similarity_warning(quantity, corrected, reference), _age_warning(reference, path, setup))

@@ -108,7 +108,6 @@ class Printing:
         steps[nonzero] = (10.0 ** (decades - self.digits + 1) * self.scale)[(decade - lowest).astype(np.intp)]
         return steps
 
-
     def seen_in(self, values: np.ndarray) -> Printing:
         """This printing, checked against the numbers across the whole column (the text it was
         read from is the first lines only; a general format drops trailing zeros there).

@@ -166,8 +166,9 @@ class Method:
 
     def check_physical(self, result: AnalysisResult) -> None:
         """Refuse a result with a non-finite value or uncertainty, a non-positive quantity of
-        :attr:`positive` or one of :attr:`not_negative` below zero by more than its expanded
-        uncertainty, at any point of a curve too: it could not be a measurement of a real part.
+        :attr:`positive` or one of :attr:`not_negative` below zero by more than
+        :data:`NEGATIVE_BEYOND` expanded uncertainties, at any point of a curve too: it could
+        not be a measurement of a real part.
 
         Parameters
         ----------
