@@ -184,6 +184,18 @@ def test_a_dcr_below_zero_is_refused_only_beyond_its_uncertainty(value: float, e
         method.check_physical(result)
 
 
+def test_a_dut_resistance_beside_a_drive_channel_is_noted_and_checked(tmp_path: Path) -> None:
+    # docs/setup-file.md: "nothing is ignored": the ohmmeter's DCR typed beside a drive channel was
+    # neither used nor compared; it is now named in a note, and warned when it disagrees
+    t, drive, sense = _record(seed=11)
+    path = _write(tmp_path / "c.csv", t, drive, sense)
+    for given, disagrees in (("0.5 ohm ±5%", False), ("99 ohm ±0.1%", True)):
+        setup = {**TWO_CHANNELS, "parts": {**TWO_CHANNELS["parts"], "dut_resistance": given}}
+        result = wavefit.analyze(path, setup)
+        assert any("dut_resistance is not used" in n for n in result.fit.to_dict()["notes"])
+        assert any("disagrees with the dut_resistance given" in w for w in result.warnings) == disagrees, given
+
+
 def _result(value: float, u: float) -> AnalysisResult:
     q = QuantityResult("L", value, "H", u, 2 * u, 2.0)
     return AnalysisResult("rl-step", "x.csv", {"L": q, "tau": QuantityResult("tau", 1e-6, "s", 1e-8, 2e-8, 2.0),

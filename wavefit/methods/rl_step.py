@@ -36,6 +36,8 @@ from ..measurement import Measurement
 from ..outputs import Scalar
 from ..results import TracePlot
 from ..setup import Setup
+from ..uncertainty import InputSet, Propagation
+from ..values import eng
 from ..signal.clipping import extremes, model_exceeds_record
 from ..signal.edges import find_edges, jump_instant, noise_rms
 from ..signal.levels import state_levels
@@ -98,6 +100,11 @@ FIRST_PASS_MARGIN_FROM = 1000
 #: ns; the sample choke, tau = 3.7 µs: 0.03 %).
 UNDESKEWED_DELAY = 1e-9
 SKEW_WARNING = 0.005
+
+#: A dut_resistance given beside a drive channel that differs from the measured R by more than
+#: this many combined standard uncertainties is warned (4: a chance disagreement about 1 in 10⁴
+#: for normal errors; a mistyped or misread ohmmeter value, or a drive probe on the wrong node).
+DCR_DISAGREEMENT_Z = 4.0
 
 #: A scope channel's input is 50 ohm when terminated (a measured 49.9 ohm is one), 1 Mohm
 #: otherwise (common practice); a probe_resistance below this is none, but a prefix slip
@@ -260,6 +267,21 @@ class RLStep(Method):
     def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
         """The measurement function (module docstring), with ``uncertainties`` numbers or floats."""
         return measurement_function(x, settings["has_drive"], settings["parts"])
+
+    def review(self, estimate: Estimate, inputs: InputSet, propagation: Propagation) -> tuple[str, ...]:
+        """A dut_resistance given beside a drive channel is not used; a warning when it disagrees
+        with the R the channels measure beyond DCR_DISAGREEMENT_Z combined standard uncertainties."""
+        given = next((i for i in inputs.inputs if i.name == "dut_resistance"), None)
+        if not estimate.settings["has_drive"] or given is None:
+            return ()
+        measured = propagation.quantities["R"]
+        u = math.hypot(measured.standard_uncertainty, given.standard_uncertainty)
+        if not abs(measured.value - given.value) > DCR_DISAGREEMENT_Z * u:
+            return ()
+        return (f"the R the channels measure, {eng(measured.value, 'ohm')} (U {eng(measured.expanded_uncertainty, 'ohm')}), "
+                f"disagrees with the dut_resistance given ({given.value:.4g} ohm, not used) by more than "
+                f"{DCR_DISAGREEMENT_Z:g} combined standard uncertainties: check the ohmmeter reading, the wiring and "
+                "the drive probe's node",)
 
     # -- windows and fits -------------------------------------------------------------------
 
