@@ -194,6 +194,26 @@ def test_several_pulses_are_averaged_and_a_changed_coil_is_flagged():
         assert any("first and last pulses' L0 differ" in w for w in result.warnings) is flagged
 
 
+def test_pulses_that_share_only_high_currents_are_refused():
+    # RL charging law (common practice): a long pulse from rest to 11.7 A, the coil then shorted
+    # (the current decays with L/R), and a short second pulse from 11.5 A: the two share currents
+    # only above 11.5 A, and L0 and E were extrapolated from there to zero (18.9 µH for 150 µH in
+    # a trial): refused
+    L, R, V = 100e-6, 0.05, 12.0
+    t1, t2, gap = np.arange(5000) * DT, np.arange(600) * DT, np.arange(1500) * DT
+    first = V / R * (1 - np.exp(-t1 * R / L))
+    held = first[-1] * np.exp(-gap * R / L)
+    second = V / R + (held[-1] - V / R) * np.exp(-t2 * R / L)
+    i = np.concatenate((np.zeros(400), first, held, second, second[-1] * np.exp(-gap * R / L)))
+    v = np.concatenate((np.zeros(400), np.full(t1.size, V), np.zeros(gap.size), np.full(t2.size, V),
+                        np.zeros(gap.size)))
+    rng = np.random.default_rng(9)
+    frame = pd.DataFrame({"time": np.arange(i.size) * DT, "i_shunt": i * SHUNT + rng.normal(0, 2e-5, i.size),
+                          "v_coil": v + rng.normal(0, 5e-3, v.size)})
+    with pytest.raises(AnalysisRefused, match="the pulses share currents only from 11.* must start below 25% of its top"):
+        wavefit.analyze(frame, SETUP)
+
+
 def test_clipped_current_ends_the_curve_below_the_converter_limit():
     L, R, V = 100e-6, 0.05, 12.0
     t = np.arange(3000) * DT
