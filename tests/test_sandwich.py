@@ -115,3 +115,23 @@ def test_held_influence_rows_give_the_chunked_covariance_bit_for_bit(monkeypatch
     chunked = sandwich.sandwich_covariance(r, blocks, models, jac, bread, max_lag=300)
     assert held is not None and max(held[1].values()) > 96     # past the direct lag sums: the FFT's path
     assert np.array_equal(held[0], chunked[0]) and held[1] == chunked[1]
+
+
+def test_the_lag_by_lag_path_of_the_correction_gives_the_all_lags_one(monkeypatch):
+    # two ways of one sum: all lags at once when the lag Grams are small enough to hold, else
+    # chunks of lags (the chunked matrix products replaced an einsum per lag, minutes at 1,000
+    # lags on a spline of a few hundred coefficients); two blocks on overlapping parameters
+    import wavefit.fit.sandwich as sandwich
+
+    rng = np.random.default_rng(5)
+    n, p, lags = 120, 6, 30
+    jacs = [rng.standard_normal((n, p)) * (np.arange(p) < 4), rng.standard_normal((n, p)) * (np.arange(p) >= 2)]
+    bread = np.linalg.inv(sum(j.T @ j for j in jacs))
+    res = [rng.standard_normal(n) for _ in jacs]
+    other = 0.01 * np.eye(p)
+    fallback = np.full(lags + 1, np.nan)
+    together = fit_corrected_autocovariance(res, jacs, jacs, bread, lags, fallback, other)
+    for limit in (p * p, 3 * p * p):  # one lag, then three, per chunk
+        monkeypatch.setattr(sandwich, "ALL_LAGS_VALUES", limit)
+        chunked = fit_corrected_autocovariance(res, jacs, jacs, bread, lags, fallback, other)
+        np.testing.assert_allclose(chunked, together, rtol=1e-10, atol=1e-12)

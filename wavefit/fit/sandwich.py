@@ -302,15 +302,21 @@ def fit_corrected_autocovariance(res: list[np.ndarray], jacs: list, infl: list, 
         system += a_all.reshape(lags + 1, -1) @ np.transpose(v_all, (0, 2, 1)).reshape(lags + 1, -1).T
         products -= np.einsum("kab,ba->k", a_all, other_cov)
     else:
-        # one lag of H at a time, each block's J on its own parameters: memory of a p × p matrix
-        for j in k_all:
-            g_j = np.zeros((p, p))
+        # the lags of H a chunk at a time (at most ALL_LAGS_VALUES values), each block's J on its
+        # own parameters, the sums over parameter pairs as matrix products (one lag at a time,
+        # an einsum per lag, took minutes at 1,000 lags on a spline of a few hundred coefficients)
+        chunk = max(1, ALL_LAGS_VALUES // (p * p))
+        for first in range(0, lags + 1, chunk):
+            js = k_all[first:first + chunk]
+            g_js = np.zeros((js.size, p, p))
             for cols, _, g in grams:
-                if j < g.shape[0]:
-                    g_j[np.ix_(cols, cols)] += g[j]
-            v_j = bread @ g_j @ bread
+                held = js[js < g.shape[0]]
+                g_js[np.ix_(held - first, cols, cols)] += g[held]
+            v_js = bread @ g_js @ bread
             for cols, a_k, _ in grams:
-                system[: a_k.shape[0], j] += np.einsum("kab,ba->k", a_k, v_j[np.ix_(cols, cols)])
+                v_own = v_js[np.ix_(np.arange(js.size), cols, cols)]
+                system[: a_k.shape[0], first:first + js.size] += (
+                    a_k.reshape(a_k.shape[0], -1) @ np.transpose(v_own, (0, 2, 1)).reshape(js.size, -1).T)
         for cols, a_k, _ in grams:
             products[: a_k.shape[0]] -= np.einsum("kab,ba->k", a_k, other_cov[np.ix_(cols, cols)])
     try:
