@@ -111,6 +111,16 @@ def test_falling_current_after_turn_off_is_compared_and_agrees():
     assert not any("rising and falling" in w for w in result.warnings)
 
 
+def test_a_wrong_dcr_is_named_among_the_causes_of_a_rising_falling_disagreement():
+    # the DCR's drop R·i is taken from the coil voltage: 15 % off, it moves L_inc one way on the
+    # rising ramp and the other on the falling one; the warning named only the core
+    frame, _ = pulse_capture(SOFT, BENCH, scopes=None, seed=0)
+    wrong = setup()
+    wrong["parts"] = {**wrong["parts"], "dut_resistance": f"{1.15 * BENCH.dcr} ohm ±2%"}
+    result = wavefit.analyze(frame, wrong)
+    assert any("rising and falling" in w and "dut_resistance off its true value" in w for w in result.warnings)
+
+
 @functools.lru_cache(maxsize=1)
 def three_pulses():
     """The soft core's record with three pulses, 8 bits and noise (analysed once for the tests)."""

@@ -103,5 +103,6 @@ def falling_warning(comparison: FallingComparison | None) -> str | None:
     if comparison is None or comparison.max_z <= FALLING_Z:
         return None
     return (f"the rising and falling current disagree on L_inc by {comparison.max_z:.1f} standard uncertainties "
-            f"at {comparison.at_current:.4g} A (hysteresis or eddy currents in the core): the rising ramp's curve "
-            "is reported")
+            f"at {comparison.at_current:.4g} A (hysteresis or eddy currents in the core, or a dut_resistance off "
+            "its true value: its drop R·i, taken from the coil voltage, moves L_inc in opposite directions on "
+            "the rising and falling ramps): the rising ramp's curve is reported")
