@@ -137,6 +137,12 @@ def test_a_voltage_on_few_undithered_codes_is_warned_with_its_bound():
     error = abs(result.quantities["L0"].value / SOFT.L0 - 1)
     assert result.quantities["L0"].expanded_uncertainty / SOFT.L0 < error <= share  # outside U: the warning is due
     assert not any("voltage channel's code step" in w for w in analysed(SOFT, True)[0].warnings)  # dithered
+    # the same quiet voltage over 80 % of the screen: its falling ramp's fit had flat stretches
+    # where L_inc divided by zero, and the capture was refused as a numerical failure
+    scopes["v_coil"] = scope_for(clean["v_coil"].to_numpy(), span_fraction=0.8, noise_fraction=1e-5)
+    frame, _ = pulse_capture(SOFT, BENCH, scopes=scopes, seed=1)
+    result = wavefit.analyze(frame, setup())
+    assert result.fit.falling_points_compared and any("voltage channel's code step" in w for w in result.warnings)
 
 
 @functools.lru_cache(maxsize=1)

@@ -88,6 +88,7 @@ def compare_falling(rising: list[Ramp], falling: list[Ramp], settings: Mapping[s
     grid = settings["grid"]
     low, high = max(r.low for r in falling), min(r.high for r in falling)
     inside = np.flatnonzero((grid >= low) & (grid <= high))
+    inside = inside[np.all([_reached(ramp, grid[inside]) for ramp in falling], axis=0)]
     if inside.size < 2:
         return None
     part = {**settings, "grid": grid[inside]}
@@ -96,6 +97,16 @@ def compare_falling(rising: list[Ramp], falling: list[Ramp], settings: Mapping[s
     z = np.array([abs(d.nominal_value) / s if s > 0 else 0.0 for d, s in zip(up - down, scale)])
     worst = int(np.argmax(z))
     return FallingComparison(int(inside.size), float(z[worst]), float(grid[inside][worst]))
+
+
+def _reached(ramp: Ramp, grid: np.ndarray) -> np.ndarray:
+    """Where the ramp's fitted current reaches each grid current at a finite instant while still
+    moving in its direction: a quiet record on few codes can leave a falling fit a flat stretch,
+    where the instant is not found and L_inc = (v − R·i)/(di/dt) divides by zero (a trial's
+    quiet 8-bit capture was refused as a numerical failure)."""
+    rows = ramp.rows(grid)
+    slope = rows["B1"] @ np.asarray(ramp.current.fit.values, dtype=float)
+    return np.isfinite(rows["elapsed"]) & np.isfinite(slope) & (ramp.direction * slope > 0)
 
 
 def falling_warning(comparison: FallingComparison | None) -> str | None:
