@@ -287,7 +287,9 @@ class PulseRamp(Method):
                 falling.append(fit_ramp(t, current, voltage, *segment, k, FALLING, shunt, off[0], records=len(pulses)))
         low, high = max(r.low for r in ramps), min(r.high for r in ramps)
         if not high > low:
-            raise AnalysisRefused(f"{capture.source}: the pulses share no current range to compare")
+            raise AnalysisRefused(f"{capture.source}: the {len(ramps)} pulses found share no current range to compare "
+                                  "(a ring at the switch-on that dips below half the pulse voltage cuts one pulse "
+                                  "into several: damp it, with shorter leads or a snubber across the switch)")
         inset = GRID_INSET * (high - low)
         grid = np.linspace(low + inset, high - inset, GRID_POINTS)
         if grid[0] > L0_SPAN * grid[-1]:
