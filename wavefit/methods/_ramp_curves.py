@@ -22,6 +22,8 @@ from ..calibration.in_use import RATIO_INPUT, SKEW_INPUT
 from ..fitted import FittedBlock
 from ..montecarlo import linear_combination
 
+#: The input for the level of a pulse voltage its noise does not dither (the budget's name).
+VOLTAGE_LEVEL = "voltage_level_in_code"
 #: Points of the curve at which :func:`significant_falls` judges a fall (even steps from the
 #: earliest crossing to the end).
 FALL_POINTS = 12
@@ -39,7 +41,9 @@ def ramp_curves(x: Mapping[str, Any], settings: Mapping[str, Any], ramps: list[d
     scale = (x["shunt_resistor"] if settings["has_shunt"] else 1.0) * g_i  # recorded V per true A
     r = x["dut_resistance"]
     off_i = x["current_offset"] if settings["has_offsets"] else 0.0
-    off_v = x["voltage_offset"] if settings["has_offsets"] else 0.0
+    # a pulse voltage its noise does not dither is known only to within a code: its level's
+    # input (pulse_ramp._voltage_code) shifts it through the pulse as an offset would
+    off_v = (x["voltage_offset"] if settings["has_offsets"] else 0.0) + (x[VOLTAGE_LEVEL] if VOLTAGE_LEVEL in x else 0.0)
     sums: dict[str, Any] = {}
     peaks = []
     for rows in ramps:

@@ -60,6 +60,7 @@ from ..setup import Setup
 from ..fit.quantisation import DITHER_LIMIT
 from ..signal.clipping import extremes
 from ..signal.codes import record_levels
+from ..uncertainty import InputQuantity
 from ..values import parse_number_with_unit
 from . import register
 from ._pulses import MIN_EDGE_SKIP, Pulse, falling_segment, find_pulses
@@ -67,8 +68,8 @@ from ._ramp import FALLING, RISING, Ramp, fit_ramp, flux_before
 from ._ramp_checks import compare_falling, falling_warning, fits_only_curves, heating_warning
 from ._model_check import ModelCheck, added
 from ._ramp_model_check import model_input, ramp_model_check
-from ._ramp_curves import (drop_points, nominal_inputs, ramp_curves, saturation_currents, series_weights,
-                           significant_falls, small_current)
+from ._ramp_curves import (VOLTAGE_LEVEL, drop_points, nominal_inputs, ramp_curves, saturation_currents,
+                           series_weights, significant_falls, small_current)
 from .base import Method, PartSpec
 from .estimate import Estimate, FittedBlock
 
@@ -313,7 +314,8 @@ class PulseRamp(Method):
         l0_fitted = small_current(fitted["flux_linkage"], settings)
         drops, weak = significant_falls(fitted["L_inc"], l0_fitted,
                                         drop_points(l_inc, l0, self.option(setup, "saturation_drops")), FALL_Z)
-        warnings += _coarse_voltage(t, voltage, ramps, l0, l0_fitted.std_dev)
+        coarse = _voltage_code(t, voltage, ramps)
+        warnings += _coarse_voltage(coarse, l0, l0_fitted.std_dev)
         warnings += _unreported_drops(drops, weak, l_inc, l0, grid)
         at = np.array([_current(x, setup.source) for x in self.option(setup, "at_currents")], dtype=float)
         outside = at[(at < grid[0]) | (at > grid[-1])]
@@ -339,7 +341,10 @@ class PulseRamp(Method):
             supply_V=self._supply(capture, setup, ramps),
             falling_points_compared=comparison.points if comparison else None,
             falling_max_z=comparison.max_z if comparison else None)
-        return Estimate(tuple(blocks), summary, inputs=check.budget_inputs(), warnings=tuple(dict.fromkeys(warnings)),
+        level_input = () if coarse is None else (
+            InputQuantity(VOLTAGE_LEVEL, 0.0, coarse[0] * math.sqrt(2.0 / 3.0), "V", "B"),)
+        return Estimate(tuple(blocks), summary, inputs=(*check.budget_inputs(), *level_input),
+                        warnings=tuple(dict.fromkeys(warnings)),
                         adequate=check.adequate,
                         plot=_trace_plot(t, current, voltage, ramps), settings=settings, axes={"I": grid, "I_at": at})
 
@@ -409,26 +414,39 @@ class PulseRamp(Method):
         return out
 
 
-def _coarse_voltage(t: np.ndarray, voltage: np.ndarray, ramps: list[Ramp], l0: float, u_l0: float) -> list[str]:
-    """A warning when the voltage channel's code step, on a pulse whose noise does not dither it,
-    is larger than L0's fitted uncertainty allows.
+def _voltage_code(t: np.ndarray, voltage: np.ndarray, ramps: list[Ramp]) -> tuple[float, float] | None:
+    """The voltage channel's code step and the pulses' (lowest mean) voltage when the noise
+    does not dither the codes (below ``DITHER_LIMIT`` of a code), else None.
 
-    Nearly constant during a pulse, the coil voltage is known only to within its code when the
-    noise is below half a code (``DITHER_LIMIT``): the fit of its codes cannot place the level,
-    or the bank's droop, inside one, so the flux ∫(v − R·i)dt and with it L0, E and the curves
-    may be off by about a code over the pulse's voltage (8 bits over five times the voltage: a
-    code 4.4 % of it, L0 2 % low with a U of 0.5 % in a trial; 5.4 % and 4.9 % low in a test).
-    The budget does not hold that; the warning says how large it is."""
+    Nearly constant during a pulse, the coil voltage is then known only to within its code: the
+    fit of its codes cannot place the level, or the bank's droop, inside one, so the flux
+    ∫(v − R·i)dt and with it L0, E and the curves may be off by about a code over the pulse's
+    voltage (8 bits over five times the voltage: a code 4.4 % of it, L0 2 % low with a U of
+    0.5 % in a trial; 5.4 % and 4.9 % low in a test). The fit of a quiet level may land anywhere
+    in its code, so it is off by up to one code, and so is the baseline's that sets the offset:
+    two rectangular bounds of ± one code (JCGM 100:2008, 4.3.7) on one shift of the voltage, a
+    standard uncertainty of code·√(2/3), which enters the budget as ``VOLTAGE_LEVEL``."""
     code = record_levels(voltage).step
     if not code or any(r.voltage.fit.noise_sigma["voltage"] >= DITHER_LIMIT * code for r in ramps):
-        return []
+        return None
     level = min(abs(float(np.mean(voltage[int(np.searchsorted(t, r.start)):][:r.samples]))) for r in ramps)
+    return code, level
+
+
+def _coarse_voltage(found: tuple[float, float] | None, l0: float, u_l0: float) -> list[str]:
+    """The warning when the code of a voltage its noise does not dither (:func:`_voltage_code`)
+    is a larger share of the pulse voltage than ``COARSE_VOLTAGE_U`` of L0's fitted standard
+    uncertainties."""
+    if found is None:
+        return []
+    code, level = found
     share = code / level if level > 0 else math.inf
     if not share * l0 > COARSE_VOLTAGE_U * u_l0:
         return []
     return [f"the voltage channel's code step, {code:.3g} V, is {100 * share:.2g} % of the pulse's {level:.3g} V and "
             "its noise does not dither it: the flux and with it L0, E and the curves may be off by about that "
-            "much, which the budget does not hold; use more of the screen for the voltage channel"]
+            f"much; it is in the budget as {VOLTAGE_LEVEL!r} (the pulse's and the baseline's levels, each within "
+            "one code), and more of the screen for the voltage channel would shrink it"]
 
 
 def _unreported_drops(drops: Mapping[int, int | None], weak: Mapping[int, float], l_inc: np.ndarray, l0: float,
