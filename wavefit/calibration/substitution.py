@@ -100,20 +100,23 @@ def with_reference(method: "Method", estimate: "Estimate", inputs: InputSet, set
     renamed = {name: REFERENCE_PREFIX + name for block in reference.blocks for name in block.names}
     renamed |= {i.name: REFERENCE_PREFIX + i.name for i in reference.inputs}
 
-    def substituted(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
-        outputs = dict(method.model(x, settings))
+    def reference_measured(x: Mapping[str, Any]) -> Any:
+        """y(x_ref, s): the reference's own inputs with those it shares with the part."""
         shared = {name: value for name, value in x.items() if name not in own}
         x_ref = shared | {name: x[prefixed] for name, prefixed in renamed.items()}
-        measured = method.model(x_ref, reference.settings)[quantity]
-        outputs[quantity] = outputs[quantity] * x[known] / measured
+        return method.model(x_ref, reference.settings)[quantity]
+
+    def substituted(x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
+        outputs = dict(method.model(x, settings))
+        outputs[quantity] = outputs[quantity] * x[known] / reference_measured(x)
         return outputs
 
     nominal = {i.name: i.value for i in inputs.inputs}
-    corrected = substituted(nominal, estimate.settings)[quantity]
-    uncorrected = method.model(nominal, estimate.settings)[quantity]
-    implausible = implausible_correction(quantity, reference.known.text, corrected / uncorrected)
+    implausible = implausible_correction(quantity, reference.known.text,
+                                         nominal[known] / reference_measured(nominal))
     if implausible:
         raise SetupError(f"{where}: {implausible}; make the reference file again")
+    corrected = substituted(nominal, estimate.settings)[quantity]
     warnings = (similarity_warning(quantity, corrected, reference), _age_warning(reference, path, setup))
     return substituted, tuple(w for w in warnings if w)
 
