@@ -413,13 +413,14 @@ def _column_axis(
         return TimeAxis(axis_from_interval(column.size, hint.sample_interval), hint.sample_interval), header
     time = column if clock is not None else _scaled(column, unit.scale)
     if printing is not None and clock is None:
-        printing = replace(printing.seen_in(column), scale=unit.scale)
+        printing = replace(printing, scale=unit.scale)
 
     def where(row: int) -> str:
         return table.where([row])[0]
 
     try:
-        axis = axis_from_column(time, header=header, where=where, source=table.source, resolution=printing)
+        axis = axis_from_column(time, header=header, where=where, source=table.source, resolution=printing,
+                                printed=None if clock is not None else column)
     except CaptureError as exc:
         if clock is None or hint.sample_interval is None:
             raise

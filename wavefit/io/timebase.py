@@ -159,6 +159,7 @@ def axis_from_column(
     where: Callable[[int], str],
     source: str,
     resolution: Printing | None = None,
+    printed: np.ndarray | None = None,
 ) -> TimeAxis:
     """Check a time column and return it as the time axis.
 
@@ -175,6 +176,9 @@ def axis_from_column(
     resolution
         The stamps' printing step when it is known from their text; estimated
         from the values otherwise.
+    printed
+        The column's numbers as printed (before any unit scale): ``resolution`` is checked
+        against them (:meth:`Printing.seen_in`), only where the axis is not plainly uniform.
 
     Returns
     -------
@@ -188,11 +192,14 @@ def axis_from_column(
         When time goes backwards, repeats where rounding does not explain it,
         or is not uniformly sampled.
     """
+    def checked() -> Printing | None:
+        return resolution.seen_in(printed) if resolution is not None and printed is not None else resolution
+
     steps = np.diff(time)
     bad = np.flatnonzero(~(steps > 0))
     if bad.size:
         if np.all(steps >= 0):
-            rounded = _rounded_grid(time, header, resolution, repeats=bad.size)
+            rounded = _rounded_grid(time, header, checked(), repeats=bad.size)
             if rounded is not None:
                 return rounded
         raise CaptureError(_not_increasing_message(time, int(bad[0]) + 1, header, where, source))
@@ -211,10 +218,11 @@ def axis_from_column(
         # intervals within the limits, but the median is a printing step off the stamps' rate:
         # a grid fitted to the stamps gives the interval; nothing is wrong with the file, so the
         # reader notes it rather than warns
-        rounded = _rounded_grid(time, header, resolution, largest=largest)
+        rounded = _rounded_grid(time, header, checked(), largest=largest)
         if rounded is not None:
             return replace(rounded, warnings=(), notes=rounded.warnings)
         return TimeAxis(time, dt)
+    resolution = checked()
     rounded = _rounded_grid(time, header, resolution, largest=largest)
     if rounded is not None:
         return rounded
