@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from wavefit.io import capture_from_frame, read_capture
-from wavefit.io.timebase import printing_resolution
+from wavefit.io.timebase import Printing, printing_resolution
 
 N = 500
 DT = 1e-8
@@ -166,6 +166,27 @@ def test_printing_resolution_of_fixed_and_significant_formats() -> None:
     significant = np.array([float(f"{t:.6e}") for t in time])
     assert printing_resolution(fixed) == pytest.approx(1e-12)
     assert printing_resolution(significant) == pytest.approx(1e-10)
+
+
+@pytest.mark.parametrize("scale", [1.0, 1e-6])
+def test_printing_steps_of_a_column_in_order_are_those_of_each_stamp(scale: float) -> None:
+    # a column in order takes its decades as runs found by bisection; each stamp's step must be
+    # what its own decade gives, floor(log10(|t|)), including the floats either side of each
+    # power of ten, both signs and exact zeros; a column out of order takes the per-stamp path
+    rng = np.random.default_rng(5)
+    powers = 10.0 ** np.arange(-15, 3)
+    near = np.concatenate([powers, np.nextafter(powers, 0), np.nextafter(powers, np.inf)])
+    spread = 10 ** rng.uniform(-16, 2, 20_000)
+    stamps = np.sort(np.concatenate([near, -near, spread, -spread, [0.0, 0.0]])) * scale
+    stamps = np.repeat(stamps, 2)  # repeated stamps (coarse printing) are in order too
+    for digits in (3, 8):
+        printing = Printing(digits=digits, scale=scale)
+        printed = np.abs(stamps) / scale
+        expected = np.where(printed > 0, 10.0 ** (np.floor(np.log10(np.where(printed > 0, printed, 1.0)))
+                                                  - digits + 1) * scale, 0.0)
+        np.testing.assert_array_equal(printing.steps(stamps), expected)
+        order = rng.permutation(stamps.size)
+        np.testing.assert_array_equal(printing.steps(stamps[order]), expected[order])
 
 
 def test_body_beyond_the_sniffed_lines_is_read_whole(tmp_path: Path) -> None:
