@@ -89,12 +89,49 @@ def test_no_transition_is_refused_with_exit_4(tmp_path):
     assert main(["analyze", str(csv), "--setup", str(toml)]) == 4
 
 
-def test_clipped_trace_warns():
+@pytest.mark.parametrize("top", [0.8, 0.95])
+def test_trace_clipped_where_it_is_fitted_is_refused(top):
+    # the rising edges' last part cut off at the converter's top code: tau and the levels come
+    # from censored samples (L was 23 % low at 0.8 and 6 % low at 0.95 of the swing, each then
+    # only warned)
     t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 100 * TAU)
-    top = 0.8 * s.max()
-    clipped = ScopeModel(noise_rms=1e-3, bits=8, full_scale=(-0.01, top)).apply(s, np.random.default_rng(1))
-    result = wavefit.analyze(frame(t, clipped), SENSE_ONLY)
-    assert any("clipped" in w for w in result.warnings)
+    clipped = ScopeModel(noise_rms=1e-3, bits=8, full_scale=(-0.01, top * s.max())).apply(
+        s, np.random.default_rng(1))
+    with pytest.raises(AnalysisRefused, match="sense trace is clipped where it is fitted"):
+        wavefit.analyze(frame(t, clipped), SENSE_ONLY)
+
+
+def test_noise_cut_at_a_settled_level_is_warned_not_refused():
+    # the high level sits one noise sigma below the top code: its noise piles up there, but the
+    # fitted curve is still wherever samples are held, so the result stands with a warning
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 100 * TAU)
+    sigma = 2e-3
+    cut = ScopeModel(noise_rms=sigma, bits=8, full_scale=(-0.05, s.max() + sigma)).apply(
+        s, np.random.default_rng(2))
+    result = wavefit.analyze(frame(t, cut), SENSE_ONLY)
+    assert any("sense trace is clipped (flat at the converter's limit)" in w for w in result.warnings)
+    q = result.quantities["L"]
+    assert abs(q.value - L) < q.expanded_uncertainty
+
+
+@pytest.mark.parametrize("screen, refused", [((-0.25, 0.55), True), ((-0.9, 1.1), False)])
+def test_drive_held_at_the_converter_limit_after_each_edge_is_refused(screen, refused):
+    # a drive channel whose screen holds a quarter of its swing: it sits at the top code for the
+    # first tau after each rising edge and at the bottom code after each falling one. The fit,
+    # dragged by the held samples, stays inside them (no fitted curve beyond the code) and read
+    # L 70 % low with U 15 %; on a screen holding the whole swing the same record is measured
+    t, d, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 20 * TAU, TAU / 20, 60 * TAU)
+    rng = np.random.default_rng(3)
+    sense = ScopeModel(noise_rms=2e-3, bits=8, full_scale=(-0.02, 0.2)).apply(s, rng)
+    drive = ScopeModel(noise_rms=3e-3, bits=8, full_scale=screen).apply(d, rng)
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense", "drive": "drive"},
+             "parts": {"sense_resistor": "10 ohm"}, "instrument": {"timebase": "±0 ppm", "vertical_gain": "±0%"}}
+    if refused:
+        with pytest.raises(AnalysisRefused, match="drive trace is clipped where it is fitted"):
+            wavefit.analyze(frame(t, sense, drive), setup)
+        return
+    q = wavefit.analyze(frame(t, sense, drive), setup).quantities["L"]
+    assert abs(q.value - L) < q.expanded_uncertainty
 
 
 def test_unclipped_trace_does_not_warn():

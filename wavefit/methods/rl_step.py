@@ -224,7 +224,7 @@ class RLStep(Method):
                          "composite-likelihood sandwich)")
         tau_fit = combined.values[0]
         warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined,
-                                      facts)
+                                      facts, capture.source)
         if drive is None and not white:
             # each window's start is placed from the same correlated noise as its first samples:
             # its uncertainty enters tau's
@@ -373,7 +373,8 @@ class RLStep(Method):
     # -- diagnostics ------------------------------------------------------------------------
 
     @staticmethod
-    def _diagnostics(t, sense, drive, windows, fits, tau, dt, edge_time, setup, combined, facts) -> list[str]:
+    def _diagnostics(t, sense, drive, windows, fits, tau, dt, edge_time, setup, combined, facts,
+                     source: str) -> list[str]:
         out = []
         if tau < MIN_SAMPLES_PER_TAU * dt:
             out.append(f"only {tau / dt:.1f} samples per tau (fewer than {MIN_SAMPLES_PER_TAU:g}): sample faster or "
@@ -403,10 +404,19 @@ class RLStep(Method):
                     continue
                 seg = slice(w.start, w.stop)
                 sigma = fit.noise_sigma[group]
-                if (facts[group].flat(sigma) or facts[group].piles_up(sigma)
-                        or model_exceeds_record(y[seg], window_model(fit, group, t[seg]), sigma)):
-                    out.append(f"the {group} trace is clipped (flat at the converter's limit while the fitted "
-                               "curve goes beyond it): reduce the vertical sensitivity")
+                curve = window_model(fit, group, t[seg])
+                if model_exceeds_record(y[seg], curve, sigma) or facts[group].held_while_curve_moves(y[seg], curve):
+                    # the samples the fit rests on are cut off: its levels and tau are biased, by
+                    # far more than their uncertainty (a drive on a quarter of its swing's screen
+                    # read L 70 % low with U 15 %)
+                    raise AnalysisRefused(
+                        f"{source}: the {group} trace is clipped where it is fitted (edge at {w.t0:.6g} s: held "
+                        "at the converter's limit while the signal moves), so tau and the levels cannot be "
+                        f"trusted; set the {group} channel's volts per division and offset so that the whole "
+                        "step stays on screen")
+                if facts[group].flat(sigma) or facts[group].piles_up(sigma):
+                    out.append(f"the {group} trace is clipped (flat at the converter's limit): reduce the "
+                               "vertical sensitivity")
         if combined.rise_fall is not None:
             z = combined.rise_fall
             if abs(z) > RISE_FALL_Z:

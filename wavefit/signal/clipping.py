@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .codes import CHUNK_VALUES, RecordLevels, record_levels
+from .robust import mad_sigma
 
 
 def longest_run_at_extremes(y: np.ndarray) -> tuple[int, int]:
@@ -57,6 +58,7 @@ class Extremes:
     longest_run: int             # identical samples at the minimum or the maximum
     code: float | None           # the converter step, when the values sit on a grid
     counts: tuple[tuple[int, int, float | None], ...]  # (at the extreme, one step inside, the step) for max, min
+    limits: tuple[float, float] = (math.nan, math.nan)  # the record's lowest and highest value
 
     def flat(self, sigma: float) -> bool:
         """A run of :data:`FLAT_RUN` identical samples at the record's extreme although the
@@ -67,6 +69,38 @@ class Extremes:
     def piles_up(self, sigma: float, min_count: int = 5) -> bool:
         """See :func:`_piles_up`."""
         return _piles_up(self.counts, sigma, min_count)
+
+    def held_while_curve_moves(self, y: np.ndarray, model: np.ndarray) -> bool:
+        """True when part ``y`` of the record holds :data:`FLAT_RUN` or more consecutive samples
+        at the record's lowest or highest value over which the curve fitted to it (``model``,
+        same length) moves by more than ``MOVING_CODES`` converter codes and ``MOVING_SIGMAS``
+        times the noise of ``y`` (from its first differences: a fit's own scatter is swollen
+        by the held samples it misses): the trace stood at the converter's limit while the
+        signal moved. A fit dragged by the held samples need not go beyond them
+        (:func:`model_exceeds_record`), but it cannot stay as still as they are where the rest
+        of its samples make it move; a settled level that happens to be the record's extreme
+        leaves the curve still."""
+        y, model = np.asarray(y, dtype=float), np.asarray(model)
+        runs = [(a, b) for limit in self.limits for a, b in _runs(y == limit) if b - a >= FLAT_RUN]
+        if not runs:
+            return False
+        noise = mad_sigma(np.diff(y)) / math.sqrt(2.0) if y.size > 1 else 0.0
+        moving = max(MOVING_SIGMAS * noise, MOVING_CODES * (self.code or 0.0))
+        return any(float(np.ptp(model[a:b])) > moving for a, b in runs)
+
+
+#: A curve moves, over a run of held samples, when it changes by more than this many converter
+#: codes (samples without dither stay on one code while the signal moves within it) and this
+#: many noise standard deviations (the held samples would have moved with it).
+MOVING_CODES = 2.0
+MOVING_SIGMAS = 3.0
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    """(start, stop) of each run of true values of ``mask``."""
+    held = np.concatenate(([False], mask, [False]))
+    changes = np.flatnonzero(held[1:] != held[:-1])  # starts and stops of the runs, in turn
+    return list(zip(changes[::2].tolist(), changes[1::2].tolist()))
 
 
 #: An extreme holds a pile-up when it has more than PILE_RATIO times the samples one step inside
@@ -106,7 +140,7 @@ def extremes(y: np.ndarray, levels: RecordLevels | None = None) -> Extremes:
         gap = found.gap
     else:  # continuous values: their smallest gap from one sorted copy
         gap = smallest_gap(y)
-    return Extremes(gap, run, code, _extreme_counts(y, code))
+    return Extremes(gap, run, code, _extreme_counts(y, code), (float(np.min(y)), float(np.max(y))))
 
 
 def _extreme_counts(y: np.ndarray, code: float | None) -> tuple[tuple[int, int, float | None], ...]:
