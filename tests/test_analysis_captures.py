@@ -6,9 +6,13 @@ import math
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 import wavefit
+from wavefit.io import capture_from_frame
+from wavefit.methods import get_method
+from wavefit.setup import load_setup
 from wavefit.synth.lc import Tank, ringdown
 from wavefit.synth.rl import rl_square_wave
 
@@ -128,3 +132,37 @@ def test_ring_window_with_units(tmp_path: Path) -> None:
     assert result.fit.window_end_s == pytest.approx(70e-6, abs=2e-8)
     with pytest.raises(wavefit.SetupError, match="fit_end"):
         wavefit.analyze(path, {**setup, "options": {"fit_end": "seventy"}})
+
+
+@pytest.mark.parametrize("unit, scale, refused", [("V", 1.0, False), ("mV", 1e3, False), ("A", 0.1, True),
+                                                  ("W", 1.0, True)])
+def test_a_column_in_another_unit_than_its_role_is_refused(tmp_path: Path, unit, scale, refused) -> None:
+    # a current probe's channel in A mapped to rl-step's sense role was read as volts over the
+    # sense resistor: L ten times off with a 3 % U, no warning. Millivolts are volts scaled.
+    t, sense = _step_record()
+    path = _write(tmp_path / "step.csv", [f"Time (s),CH2 ({unit})"] + [f"{a:.9e},{b * scale:.9e}"
+                                                                     for a, b in zip(t, sense)])
+    setup = {**SETUP, "columns": {"time": "Time (s)", "sense": f"CH2 ({unit})"}}
+    if refused:
+        with pytest.raises(wavefit.errors.SetupError, match=f"role 'sense'.* is in {unit}, but rl-step reads"):
+            wavefit.analyze(path, setup)
+    else:
+        assert wavefit.analyze(path, setup).value("L") == pytest.approx(L, rel=0.01)
+
+
+@pytest.mark.parametrize("unit, shunt, refused", [("A", False, False), ("V", True, False), ("V", False, True),
+                                                  ("A", True, True)])
+def test_pulse_ramp_current_column_unit_follows_the_shunt(unit, shunt, refused) -> None:
+    # the current column is the shunt's voltage with a shunt_resistor, a probe's amperes without:
+    # the other way round the current was read a shunt's ohms off
+    frame = pd.DataFrame({"t": np.arange(20) * 1e-6, f"i ({unit})": np.zeros(20), "v (V)": np.zeros(20)})
+    capture = capture_from_frame(frame, time_column="t")
+    parts = {"dut_resistance": "0.1 ohm", **({"shunt_resistor": "10 mohm"} if shunt else {})}
+    setup = load_setup({"method": "pulse-ramp", "columns": {"time": "t", "current": f"i ({unit})",
+                                                             "voltage": "v (V)"}, "parts": parts})
+    method = get_method("pulse-ramp")
+    if refused:
+        with pytest.raises(wavefit.errors.SetupError, match="role 'current'"):
+            method.check_channel_units([capture], setup)
+    else:
+        method.check_channel_units([capture], setup)

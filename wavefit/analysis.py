@@ -90,6 +90,7 @@ def prepare(source: Any, parsed: Setup, sample_interval: float | None) -> Prepar
     if parsed.column_files:
         captures, parsed = with_columns_from_files(captures, parsed, interval)
     refuse_shared_columns(captures, parsed.columns, parsed.source)
+    method.check_channel_units(captures, parsed)
     captures = [without_glitches(capture) for capture in captures]
     parsed = with_time_axis_uncertainty(parsed, captures)
     return Prepared(method, bind(captures, parsed, entries), parsed, as_parsed, sources, captures)

@@ -116,6 +116,30 @@ class Method:
         self._check_captures(setup)
         check_channel_mapping(setup, self.name, self.channel_ratio_roles)
 
+    def role_unit(self, role: str, setup: Setup) -> str:
+        """The SI unit the method reads the column of ``role`` in (volts unless a method says
+        otherwise)."""
+        return "V"
+
+    def check_channel_units(self, captures: list[Capture], setup: Setup) -> None:
+        """Refuse a column whose unit, as the capture writes it, is not the one its role is
+        read in (a column without a unit is taken as the setup says). A current probe's
+        channel in A mapped to a voltage role was read as volts: L ten times off, silently."""
+        for capture in captures:
+            for role in self.roles:
+                if role not in setup.columns:
+                    continue
+                channel = capture.channel(setup.columns[role])
+                expected = self.role_unit(role, setup)
+                if channel.unit and channel.unit != expected:
+                    raise SetupError(f"{capture.source}: column {channel.header!r} (role {role!r}) is in "
+                                     f"{channel.unit}, but {self.name} reads {role!r} in {expected}; "
+                                     f"{self.unit_hint(role, setup)}")
+
+    def unit_hint(self, role: str, setup: Setup) -> str:
+        """What to do about a column in another unit than its role's (the message's end)."""
+        return "map the role to a column in volts"
+
     def _check_instrument_keys(self, setup: Setup) -> None:
         """``vertical_gain_<role>`` is valid only for a role of this method."""
         valid = (*INSTRUMENT_KEYS, *(GAIN_KEY_PREFIX + role for role in self.roles))

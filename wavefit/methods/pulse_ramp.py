@@ -224,6 +224,17 @@ class PulseRamp(Method):
 
     # -- estimate ------------------------------------------------------------------------------
 
+    def role_unit(self, role: str, setup: Setup) -> str:
+        """The current column is the shunt's voltage when a shunt_resistor is given, else a
+        current probe's output in A."""
+        return "A" if role == "current" and "shunt_resistor" not in setup.parts else "V"
+
+    def unit_hint(self, role: str, setup: Setup) -> str:
+        if role != "current":
+            return super().unit_hint(role, setup)
+        return ("give shunt_resistor in [parts] when the current column is the shunt's voltage, and leave it "
+                "out when the column is a current probe's output in A")
+
     def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
         bound = measurement.first
         capture, parts = bound.capture, bound.parts

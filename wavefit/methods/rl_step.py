@@ -155,6 +155,12 @@ class RLStep(Method):
                              "below any scope input (50 ohm terminated, 1 Mohm otherwise); 'mohm' is milliohm: write "
                              "'Mohm' for megaohm")
 
+    def unit_hint(self, role: str, setup: Setup) -> str:
+        if role == "sense":
+            return ("rl-step takes the current as the voltage over sense_resistor; a current probe's channel "
+                    "in A is not read as a current: record the sense resistor's voltage")
+        return super().unit_hint(role, setup)
+
     def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
         capture = measurement.first.capture
         t = np.asarray(capture.time, dtype=float)
