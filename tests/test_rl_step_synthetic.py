@@ -134,6 +134,27 @@ def test_drive_held_at_the_converter_limit_after_each_edge_is_refused(screen, re
     assert abs(q.value - L) < q.expanded_uncertainty
 
 
+@pytest.mark.parametrize("half_period_tau, seed, outcome", [
+    (1.0, 1, "no edge is followed by 1.25 tau of record"),
+    (1.0, 4, "the capture does not determine it"),
+    (1.5, 1, None)])
+def test_square_wave_too_fast_for_the_coil_is_refused(half_period_tau, seed, outcome):
+    # a square wave of one tau per half period never settles: its first-pass tau, from levels
+    # the trace does not reach, let every edge through, and results such as 145 ± 23 µH for
+    # 220 µH were printed (a coil ten times the lot's, on the lot's period: 1.3 ± 5.1 mH).
+    # The fitted tau against the longest window, and an L whose interval takes in zero, refuse
+    # them; from 1.5 tau per half period the result stands
+    period = 2 * half_period_tau * TAU
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, period, TAU / 50, 10 * period)
+    sense = ScopeModel(noise_rms=2e-3, bits=8).apply(s, np.random.default_rng(seed))
+    if outcome:
+        with pytest.raises(AnalysisRefused, match=outcome):
+            wavefit.analyze(frame(t, sense), SENSE_ONLY)
+        return
+    q = wavefit.analyze(frame(t, sense), SENSE_ONLY).quantities["L"]
+    assert abs(q.value - L) < q.expanded_uncertainty
+
+
 def test_unclipped_trace_does_not_warn():
     t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 100 * TAU)
     ok = ScopeModel(noise_rms=1e-3, bits=8).apply(s, np.random.default_rng(1))

@@ -74,6 +74,13 @@ class Method:
     #: DCR): an estimate a little below zero is an honest one; one below zero by more than
     #: ``NEGATIVE_BEYOND`` expanded uncertainties contradicts the model, and the result is refused.
     not_negative: ClassVar[tuple[str, ...]] = ()
+    #: The quantities the method exists to measure: a result whose expanded uncertainty of one
+    #: of them reaches its value (the interval takes in zero) says nothing of the part and is
+    #: refused, naming :attr:`undetermined_hint` (a coil ten times the lot's, captured with the
+    #: lot's period, read 1.3 ± 5.1 mH and entered the lot's statistics).
+    determined: ClassVar[tuple[str, ...]] = ()
+    #: What to check when a result is refused as not determined by the capture.
+    undetermined_hint: ClassVar[str] = ""
     #: Outputs a measurement may not give (a saturation current the pulse did not reach): the
     #: model returns ``None`` for them, the result omits them and the estimate's warnings say why.
     optional: ClassVar[tuple[str, ...]] = ()
@@ -218,6 +225,10 @@ class Method:
                 raise AnalysisRefused(
                     f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}, which "
                     f"{what}: no measurement of a real part; {self.unphysical_hint}")
+            if name in self.determined and expanded >= abs(value):
+                raise AnalysisRefused(
+                    f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}: the capture does not "
+                    f"determine it (the interval takes in zero); {self.undetermined_hint}")
 
     @staticmethod
     def channel(capture: Capture, setup: Setup, role: str) -> Channel:

@@ -67,6 +67,8 @@ class LcRing(Method):
     outputs = {"f0": Scalar("Hz"), "fd": Scalar("Hz"), "alpha": Scalar("1/s"), "tau_decay": Scalar("s"),
                "Q_loaded": Scalar(""), "Q": Scalar(""), "L": Scalar("H"), "R": Scalar("ohm")}
     positive = ("f0", "fd", "alpha", "Q_loaded", "Q", "L")
+    determined = ("L", "f0")
+    undetermined_hint = "check that the capture holds several periods of the ring, well above the noise"
     unphysical_hint = ("check that the capture holds a free ring of the tank (not a step or a square wave), "
                        "the [columns] tank entry and the parts (a parallel_load that explains all the damping?)")
 

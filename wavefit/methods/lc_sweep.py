@@ -129,6 +129,9 @@ class LcSweep(Method):
     options = LcRing.options
     outputs = {"L": Scalar("H"), "C": Scalar("F"), "srf": Scalar("Hz")}
     positive = ("L",)
+    determined = ("L",)
+    undetermined_hint = ("check each capture's tank_capacitor (a wrong value puts its point off the line of "
+                         "1/w0² against C and swells U) and that the capacitors are far enough apart")
     unphysical_hint = "check each capture's tank_capacitor and that every capture holds a free ring"
     capture_count = CaptureCount(minimum=2, maximum=None, reason="with different tank capacitors (three or more "
                                  "to check that they lie on a line)")

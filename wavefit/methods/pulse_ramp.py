@@ -211,6 +211,8 @@ class PulseRamp(Method):
     channel_ratio_roles = ("current", "voltage")
     optional = ("I_sat_10", "I_sat_20", "I_sat_30", "L_at")
     positive = ("L0", "E", "I_peak", "L_inc", "L_app", "flux_linkage", "L_at")
+    determined = ("L0",)
+    undetermined_hint = "check that the pulse rises from near zero current, well above the noise"
     unphysical_hint = "check [columns] (current and voltage) and the shunt_resistor"
 
     def check_setup(self, setup: Setup) -> None:

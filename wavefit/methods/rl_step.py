@@ -64,6 +64,15 @@ MIN_SAMPLES_PER_TAU = 10.0
 #: A window shorter than this many tau after its edge leaves the final level extrapolated
 #: (e^−5 < 1 %: the record then holds the settled state; common practice).
 SETTLED_TAU = 5.0
+#: Least record after an edge, in the edge's first-pass tau, for the edge to be fitted.
+LEAST_TAU_AFTER_EDGE = 2.0
+#: Least record after the longest-followed edge, in the fitted tau. The first-pass tau, from
+#: levels a trace that never settles does not reach, is short on such records; short of this
+#: the final level is not seen and tau trades off against it. Measured on square waves of
+#: 8-bit sense-only records (σ = 2 mV on a 164 mV step, 8 draws each): with one tau per half
+#: period, 5 results of 8 (145 ± 23 µH for 220 µH, z = −3.2), with 1.25 tau two of seven
+#: beyond U; from 1.5 tau none of 32.
+LEAST_FITTED_TAU_AFTER_EDGE = 1.25
 #: The generator's edge time above this fraction of tau makes the step visibly not ideal.
 EDGE_TIME_FRACTION = 0.1
 #: The probe capacitance's pole (R_sense·C_probe) above this fraction of tau makes the
@@ -134,6 +143,9 @@ class RLStep(Method):
                "I_final": Scalar("A"), "E": Scalar("J")}
     positive = ("L", "tau", "R_loop")
     not_negative = ("R",)
+    determined = ("L", "tau")
+    undetermined_hint = ("is the record long enough for this coil? Each edge needs several tau after it "
+                         "(lengthen the period and the record), and a step well above the noise")
     unphysical_hint = ("check [columns] (drive and sense swapped? an inverted probe? a probe's 1x/10x setting "
                        "wrong?), the parts and the [instrument] gains, and that the capture holds steps of an RL "
                        "loop (not a ring), each step over many converter codes")
@@ -229,6 +241,13 @@ class RLStep(Method):
                          "(resolution-limited record with correlated noise: covariance from the "
                          "composite-likelihood sandwich)")
         tau_fit = combined.values[0]
+        reach = max(t[w.stop - 1] - w.t0 for w in windows)
+        if reach < LEAST_FITTED_TAU_AFTER_EDGE * tau_fit:
+            raise AnalysisRefused(f"{capture.source}: no edge is followed by {LEAST_FITTED_TAU_AFTER_EDGE:g} tau of "
+                                  "record "
+                                  f"(tau fitted {tau_fit:.3g} s, the longest window {reach:.3g} s): the final level "
+                                  "is not seen, so tau cannot be told from it; lengthen the period and the record "
+                                  f"({SETTLED_TAU:g} tau or more after each edge)")
         warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined,
                                       facts, capture.source)
         if drive is None and not white:
@@ -326,10 +345,11 @@ class RLStep(Method):
                     # (FIRST_PASS_END_MARGIN): end the window before it can reach the next edge
                     end += FIRST_PASS_END_MARGIN * edges[k + 1].tau
                 stop = int(np.searchsorted(t, t0s[k + 1] - end))
-            if stop - start >= 8 and (t[min(stop, t.size) - 1] - t0s[k]) >= 2.0 * e.tau:
+            if stop - start >= 8 and (t[min(stop, t.size) - 1] - t0s[k]) >= LEAST_TAU_AFTER_EDGE * e.tau:
                 windows.append(Window(e, t0s[k], start, stop))
         if not windows:
-            raise AnalysisRefused("no complete edge: each transition is followed by less than 2 tau of record; "
+            raise AnalysisRefused(f"no complete edge: each transition is followed by less than {LEAST_TAU_AFTER_EDGE:g} "
+                                  "tau of record; "
                                   "lengthen the record or the period")
         return windows, edge_time
 
