@@ -65,6 +65,16 @@ def test_invalid_toml_is_a_setup_error(tmp_path):
         load_setup(path)
 
 
+@pytest.mark.parametrize("text", ["", "\n  \n"])
+def test_empty_setup_file_says_so(tmp_path, text):
+    # `wavefit suggest first.csv > coil.toml` that is refused leaves an empty file; it was
+    # reported as "'method' is missing"
+    path = tmp_path / "coil.toml"
+    path.write_text(text)
+    with pytest.raises(SetupError, match="is empty"):
+        load_setup(path)
+
+
 def test_missing_setup_file(tmp_path):
     with pytest.raises(SetupError, match="setup file .*nope.toml does not exist"):
         load_setup(tmp_path / "nope.toml")

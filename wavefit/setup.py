@@ -137,6 +137,8 @@ def read_toml(path: Path, what: str) -> dict[str, Any]:
         raw = path.read_bytes()
     except OSError as exc:
         raise SetupError(f"cannot read {what} file {path}: {exc.strerror or exc}") from None
+    if not raw.strip():
+        raise SetupError(f"{what} file {path} is empty (a command whose output was redirected into it failed?)")
     try:
         return tomllib.loads(raw.decode("utf-8-sig"))
     except UnicodeDecodeError:
