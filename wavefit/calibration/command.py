@@ -144,11 +144,21 @@ def summary(comparison: ChannelComparison, edges: int, out: str) -> str:
             ("skew", eng_pm(skew.value, k * skew.standard_uncertainty, "s"), skew)]
     lines = [f"channel comparison: {comparison.other.role} ({comparison.other.column}) against "
              f"{comparison.reference.role} ({comparison.reference.column}), {edges} edges"]
-    lines += [f"  {name:<18} {text:<24} ({q.degrees_of_freedom:.0f} degrees of freedom)" for name, text, q in rows]
+    lines += [f"  {name:<18} {text:<24} ({_freedom(q.degrees_of_freedom)} degrees of freedom)" for name, text, q in rows]
     if comparison.note:
         lines.append(f"  note: {comparison.note}")
     lines.append(f"  expanded uncertainties U = {k:g}·u; written to {out}")
     return "\n".join(lines)
+
+
+#: Degrees of freedom past which the count is not printed: a type B bound's infinite ones make
+#: Welch–Satterthwaite's sum huge (11 digits), and the coverage factor no longer changes.
+MANY_FREEDOMS = 10_000
+
+
+def _freedom(dof: float) -> str:
+    """Degrees of freedom as printed: the count, or "over 10000" where it no longer matters."""
+    return f"{dof:.0f}" if dof <= MANY_FREEDOMS else f"over {MANY_FREEDOMS}"
 
 
 def visible_lines(text: str) -> str:
