@@ -123,11 +123,12 @@ def load_setup(setup: str | os.PathLike | Mapping[str, Any] | Setup) -> Setup:
     if isinstance(setup, Mapping):
         return parse_setup(setup, source="<dict>", base_dir=Path.cwd())
     path = Path(setup)
-    return parse_setup(read_toml(path, "setup"), source=str(path), base_dir=path.parent)
+    return parse_setup(read_toml(path, "setup", empty=False), source=str(path), base_dir=path.parent)
 
 
-def read_toml(path: Path, what: str) -> dict[str, Any]:
-    """The mapping in a UTF-8 TOML file; a SetupError naming the ``what`` file otherwise."""
+def read_toml(path: Path, what: str, *, empty: bool = True) -> dict[str, Any]:
+    """The mapping in a UTF-8 TOML file; a SetupError naming the ``what`` file otherwise, and
+    for a file of no text at all where ``empty`` is false (a setup: no method, nothing to do)."""
     from .io.source import not_a_regular_file
 
     problem = not_a_regular_file(path)
@@ -137,7 +138,7 @@ def read_toml(path: Path, what: str) -> dict[str, Any]:
         raw = path.read_bytes()
     except OSError as exc:
         raise SetupError(f"cannot read {what} file {path}: {exc.strerror or exc}") from None
-    if not raw.strip():
+    if not empty and not raw.strip():
         raise SetupError(f"{what} file {path} is empty (a command whose output was redirected into it failed?)")
     try:
         return tomllib.loads(raw.decode("utf-8-sig"))
