@@ -44,3 +44,11 @@ def test_empty_folder_is_an_error(lot):
     (lot / "empty").mkdir()
     with pytest.raises(CaptureError, match="has no capture files"):
         expand_inputs(["empty"])
+
+
+def test_a_capture_link_to_nowhere_stays_in_the_lot(lot):
+    # a capture that cannot be read must become an error row, not a part missing from the lot
+    # without a word (a link whose target is gone was dropped from folders and patterns)
+    os.symlink(lot / "gone.csv", lot / "lot" / "p5.csv")
+    assert os.path.join("lot", "p5.csv") in expand_inputs(["lot"])
+    assert os.path.join("lot", "p5.csv") in expand_inputs(["lot/p*.csv"])

@@ -32,8 +32,12 @@ def is_capture_name(name: str) -> bool:
 
 
 def capture_files(folder: str | os.PathLike[str]) -> list[Path]:
-    """The capture files directly in ``folder`` (:func:`is_capture_name`), in name order."""
-    return [p for p in sorted(Path(folder).iterdir()) if p.is_file() and is_capture_name(p.name)]
+    """The capture files directly in ``folder`` (:func:`is_capture_name`), in name order.
+
+    Everything so named but a folder is taken, so that a capture that cannot be read (a
+    link whose target is gone, a special file) becomes an error row of the lot rather than
+    a part missing from it without a word."""
+    return [p for p in sorted(Path(folder).iterdir()) if not p.is_dir() and is_capture_name(p.name)]
 
 
 def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda path: False) -> list[str]:
@@ -57,7 +61,7 @@ def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda pa
             for hit in glob.glob(item, recursive=True):
                 if os.path.isdir(hit):
                     matches += [str(p) for p in capture_files(hit) if not skip(str(p))]
-                elif os.path.isfile(hit) and not skip(hit):
+                elif not skip(hit):  # a file, or a name that cannot be read: an error row
                     matches.append(hit)
             if not matches:
                 raise CaptureError(f"no capture file matches '{visible(item)}'")
