@@ -171,7 +171,7 @@ def test_database_full_during_catch_up(tmp_path, monkeypatch):
     assert db_files(db) == everything()
 
 
-def test_plot_with_no_space_left_keeps_the_old_plot(tmp_path, monkeypatch):
+def test_plot_with_no_space_left_keeps_the_old_plot(tmp_path, monkeypatch, capsys):
     from matplotlib.figure import Figure
 
     write_lot(tmp_path, [100.0] * COUNT)
@@ -184,7 +184,8 @@ def test_plot_with_no_space_left_keeps_the_old_plot(tmp_path, monkeypatch):
     monkeypatch.setattr(Figure, "savefig", no_space)
     with pytest.raises(OutputError) as caught:
         run(batch_args(tmp_path, "--plot", str(png)), analyse=delayed_analyse)
-    assert_one_line_output_error(caught, "cannot write plot", "has every row")
+    assert_one_line_output_error(caught, "cannot write plot", "has every row and the summary is printed")
+    assert "rows written" in capsys.readouterr().out  # the summary comes first: a failed plot keeps it
     assert png.read_bytes() == b"an earlier plot"
     assert sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(".")) == []   # no temporary left
     assert names(tmp_path) == everything()
@@ -202,3 +203,25 @@ def test_summary_to_a_full_disk(tmp_path, monkeypatch):
         run(batch_args(tmp_path), analyse=delayed_analyse)
     assert_one_line_output_error(caught, "cannot write the summary to standard output", "has every row")
     assert names(tmp_path) == everything()
+
+
+@pytest.mark.parametrize("option", ["--out", "--plot"])
+def test_an_output_in_a_folder_that_cannot_take_files_is_refused_before_any_analysis(tmp_path, monkeypatch,
+                                                                                      option):
+    # a plot into a folder that could not be written was found only after the whole lot, and
+    # --out into a missing folder gave exit 5 where --plot gave 3: both are exit 3, at once
+    write_lot(tmp_path, [100.0] * COUNT)
+    target = tmp_path / "missing" / ("out.csv" if option == "--out" else "lot.png")
+    args = batch_args(tmp_path, *(["--plot", str(target)] if option == "--plot" else []))
+    if option == "--out":
+        args.out = str(target)
+    calls = []
+    with pytest.raises(Exception) as caught:
+        run(args, analyse=lambda *a, **k: calls.append(a))
+    assert caught.value.exit_code == 3 and "does not exist" in str(caught.value) and not calls
+    (tmp_path / "missing").mkdir()
+    real_access = os.access
+    monkeypatch.setattr(os, "access", lambda path, mode, **kw: Path(path) != target.parent and real_access(path, mode))
+    with pytest.raises(Exception) as caught:
+        run(args, analyse=lambda *a, **k: calls.append(a))
+    assert caught.value.exit_code == 3 and "cannot be written" in str(caught.value) and not calls

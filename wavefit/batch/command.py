@@ -215,6 +215,9 @@ def _sha_changed(path: str, row: dict[str, Any]) -> bool:
 
 def _report(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespace,
             positive: tuple[str, ...]) -> None:
+    """The summary (text or JSON), then the plot: a plot that cannot be written leaves the
+    summary printed."""
+    _summarise(outcome, spec, lot, args)
     if args.plot:
         from ..report.lot_plot import LotSeries, save_lot_plot
 
@@ -224,7 +227,11 @@ def _report(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespac
         try:
             save_lot_plot(series, args.plot, title=f"lot {lot}")
         except OSError as exc:
-            raise write_failed("plot", args.plot, exc, f"{visible(args.out)} has every row") from None
+            raise write_failed("plot", args.plot, exc, f"{visible(args.out)} has every row and the summary is "
+                               "printed") from None
+
+
+def _summarise(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Namespace) -> None:
     if args.json:
         payload = {"lot": lot, "results_file": str(args.out), "rule": spec.rule,
                    "guard_factor": spec.guard_factor, "rows_written": outcome.written,

@@ -24,8 +24,9 @@ _SQLITE_SIDE_FILES = ("-journal", "-wal", "-shm")
 
 
 class UnusableOutput(WavefitError):
-    """An output is not a regular file, or is the same file as another output or the setup or spec
-    (exit code 3, before anything is written)."""
+    """An output is not a regular file, is in a folder that does not exist or cannot be written, or
+    is the same file as another output or the setup or spec (exit code 3, before anything is
+    written)."""
 
     exit_code = 3
 
@@ -65,6 +66,15 @@ class RunFiles:
             if os.path.lexists(path) and not os.path.isfile(path):
                 raise UnusableOutput(f"{option} {visible(path)} exists and is not a regular file; "
                                      "name a file to write")
+            folder = path.parent
+            if not folder.is_dir():
+                raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} does not exist; create it "
+                                     "or name a file in another folder")
+            # every output is written beside itself (the lock file, a plot's temporary file,
+            # SQLite's journal), so its folder must take new files: known before a lot is analysed
+            if not os.access(folder, os.W_OK | os.X_OK):
+                raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} cannot be written; name "
+                                     "a file in another folder")
         configs = [(option, path) for option, path in (("--setup", self.setup), ("--spec", self.spec))
                    if path is not None]
         seen: dict[str, str] = {}
