@@ -17,6 +17,7 @@ import numpy as np
 from ..errors import AnalysisRefused
 from ..fit.exponential import WindowChannel, curve_information, decay, projected_cost, window_model
 from ..fit.white_projection import white_window_tau
+from ..signal.clipping import clipped_where_fitted, leading_held
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
 
@@ -50,6 +51,48 @@ def start_margin(deviation: float, dt: float) -> float:
     the three deviations used before).
     """
     return max(deviation, min(MARGIN_SAMPLES * dt, 15.0 * deviation))
+
+
+#: Times a window's start is moved past samples held at a converter limit (the stretch seen
+#: after each refit can end later where the signal lingers at the limit).
+HELD_STARTS = 3
+
+
+def after_held_starts(t, sense, drive, windows, fits, facts, noise, source, fit_window):
+    """Each window whose channel is clipped where it is fitted
+    (:func:`wavefit.signal.clipping.clipped_where_fitted`) at its start, where a step's
+    overshoot leaves a screen set for the settled levels, starts after the held stretch
+    (:func:`~wavefit.signal.clipping.leading_held`) and is fitted again: the samples on
+    screen follow the exponential, the held ones do not. A window clipped elsewhere, or
+    left too short, is returned as it is (the final check refuses it).
+
+    Returns the windows, their fits, and the channels found clipped (their roles): a window
+    that such a channel spends whole at its limit cannot be told from a still trace, and is
+    refused by the final check."""
+    channels = {"sense": sense, "drive": drive}
+    out_w, out_f, clipped = [], [], set()
+    for w, f in zip(windows, fits):
+        for _ in range(HELD_STARTS):
+            seg = slice(w.start, w.stop)
+            skip = 0
+            for group, y in channels.items():
+                if y is None:
+                    continue
+                curve = window_model(f, group, t[seg])
+                if clipped_where_fitted(facts[group], y[seg], curve, f.noise_sigma[group]):
+                    clipped.add(group)
+                    skip = max(skip, leading_held(y[seg], facts[group].limits))
+            if skip == 0 or w.stop - (w.start + skip) < MIN_WINDOW_SAMPLES:
+                break
+            w = dataclasses.replace(w, start=w.start + skip)
+            f = fit_window(t, sense, drive, w, noise, source)
+        out_w.append(w)
+        out_f.append(f)
+    return out_w, out_f, clipped
+
+
+#: Fewest samples a window is fitted on (as the windows are cut, rl_step's _windows).
+MIN_WINDOW_SAMPLES = 8
 
 
 def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_window, correlated: bool = False):
@@ -102,7 +145,7 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
                 # the next window follows the next edge (no edge was left out in between): end three
                 # deviations of the next instant before it
                 stop = int(np.searchsorted(t, t0s[k + 1] - max(2.0 * dt, 3.0 * deviations[k + 1])))
-            if (start, stop) != (w.start, w.stop) and stop - start >= 8:
+            if (start, stop) != (w.start, w.stop) and stop - start >= MIN_WINDOW_SAMPLES:
                 windows[k] = Window(w.edge, t0s[k], start, stop, deviations[k])
                 fits[k] = fit_window(t, sense, drive, windows[k], noise, source)
             else:

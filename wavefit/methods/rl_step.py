@@ -38,14 +38,15 @@ from ..results import TracePlot
 from ..setup import Setup
 from ..uncertainty import InputSet, Propagation
 from ..values import eng
-from ..signal.clipping import extremes, model_exceeds_record
+from ..signal.clipping import clipped_where_fitted, extremes
 from ..signal.edges import find_edges, jump_instant, noise_rms
 from ..signal.levels import state_levels
 from . import register
 from ._model_check import ModelCheck, Variation, added
 from ._rl_estimators import estimate_tau
-from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, LateStart, Window, late_start,
-                          placement_factor, placement_jitter, settle_starts, start_margin)
+from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, MIN_WINDOW_SAMPLES, LateStart, Window,
+                          after_held_starts, late_start, placement_factor, placement_jitter, settle_starts,
+                          start_margin)
 from ..scale_factor import scale_factor
 from ._scale_factor import EDGE_SCATTER_P
 from ._rl_wiring import check_wiring
@@ -201,6 +202,13 @@ class RLStep(Method):
         # each channel's extreme values and code step, for the pre-edge level and the clipping checks
         facts = {group: extremes(y, self.channel(capture, setup, group).levels)
                  for group, y in (("sense", sense), ("drive", drive)) if y is not None}
+        first_starts = [w.start for w in windows]
+        windows, fits, clipped = after_held_starts(t, sense, drive, windows, fits, facts, noise, capture.source,
+                                                   self._fit_window)
+        off_screen = sum(w.start != a for w, a in zip(windows, first_starts))
+        if off_screen:
+            notes.append(f"{off_screen} edge window(s) start after samples held at a converter limit (the trace "
+                         "was off screen there, as a step's overshoot often is)")
         baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
         # is the sense noise white? One decision from all windows' residuals together: separate
         # per-window BIC choices would call white noise coloured in one of a dozen windows often.
@@ -241,6 +249,8 @@ class RLStep(Method):
                          "(resolution-limited record with correlated noise: covariance from the "
                          "composite-likelihood sandwich)")
         tau_fit = combined.values[0]
+        warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined,
+                                      facts, capture.source, clipped)
         reach = max(t[w.stop - 1] - w.t0 for w in windows)
         if reach < LEAST_FITTED_TAU_AFTER_EDGE * tau_fit:
             raise AnalysisRefused(f"{capture.source}: no edge is followed by {LEAST_FITTED_TAU_AFTER_EDGE:g} tau of "
@@ -248,8 +258,6 @@ class RLStep(Method):
                                   f"(tau fitted {tau_fit:.3g} s, the longest window {reach:.3g} s): the final level "
                                   "is not seen, so tau cannot be told from it; lengthen the period and the record "
                                   f"({SETTLED_TAU:g} tau or more after each edge)")
-        warnings += self._diagnostics(t, sense, drive, windows, fits, tau_fit, dt, edge_times, setup, combined,
-                                      facts, capture.source)
         if drive is None and not white:
             # each window's start is placed from the same correlated noise as its first samples:
             # its uncertainty enters tau's
@@ -345,7 +353,7 @@ class RLStep(Method):
                     # (FIRST_PASS_END_MARGIN): end the window before it can reach the next edge
                     end += FIRST_PASS_END_MARGIN * edges[k + 1].tau
                 stop = int(np.searchsorted(t, t0s[k + 1] - end))
-            if stop - start >= 8 and (t[min(stop, t.size) - 1] - t0s[k]) >= LEAST_TAU_AFTER_EDGE * e.tau:
+            if stop - start >= MIN_WINDOW_SAMPLES and (t[min(stop, t.size) - 1] - t0s[k]) >= LEAST_TAU_AFTER_EDGE * e.tau:
                 windows.append(Window(e, t0s[k], start, stop))
         if not windows:
             raise AnalysisRefused(f"no complete edge: each transition is followed by less than {LEAST_TAU_AFTER_EDGE:g} "
@@ -400,7 +408,7 @@ class RLStep(Method):
 
     @staticmethod
     def _diagnostics(t, sense, drive, windows, fits, tau, dt, edge_time, setup, combined, facts,
-                     source: str) -> list[str]:
+                     source: str, clipped: set[str]) -> list[str]:
         out = []
         if tau < MIN_SAMPLES_PER_TAU * dt:
             out.append(f"only {tau / dt:.1f} samples per tau (fewer than {MIN_SAMPLES_PER_TAU:g}): sample faster or "
@@ -430,8 +438,8 @@ class RLStep(Method):
                     continue
                 seg = slice(w.start, w.stop)
                 sigma = fit.noise_sigma[group]
-                curve = window_model(fit, group, t[seg])
-                if model_exceeds_record(y[seg], curve, sigma) or facts[group].held_while_curve_moves(y[seg], curve):
+                if (clipped_where_fitted(facts[group], y[seg], window_model(fit, group, t[seg]), sigma)
+                        or (group in clipped and facts[group].held_throughout(y[seg]))):
                     # the samples the fit rests on are cut off: its levels and tau are biased, by
                     # far more than their uncertainty (a drive on a quarter of its swing's screen
                     # read L 70 % low with U 15 %)

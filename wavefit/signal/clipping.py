@@ -72,21 +72,57 @@ class Extremes:
 
     def held_while_curve_moves(self, y: np.ndarray, model: np.ndarray) -> bool:
         """True when part ``y`` of the record holds :data:`FLAT_RUN` or more consecutive samples
-        at the record's lowest or highest value over which the curve fitted to it (``model``,
-        same length) moves by more than ``MOVING_CODES`` converter codes and ``MOVING_SIGMAS``
-        times the noise of ``y`` (from its first differences: a fit's own scatter is swollen
-        by the held samples it misses): the trace stood at the converter's limit while the
-        signal moved. A fit dragged by the held samples need not go beyond them
-        (:func:`model_exceeds_record`), but it cannot stay as still as they are where the rest
-        of its samples make it move; a settled level that happens to be the record's extreme
-        leaves the curve still."""
+        at the record's lowest or highest value while the signal moves: the curve fitted to it
+        (``model``, same length) moves over them by more than ``MOVING_CODES`` converter codes
+        and ``MOVING_SIGMAS`` times the noise of ``y``, or that noise (from the first
+        differences of the samples not held: a fit's own scatter is swollen by the held
+        samples it misses, and may be anything where the fit failed) spans more than a code,
+        which would not let a settled level sit on one value. A fit dragged by the held
+        samples need not go beyond them (:func:`model_exceeds_record`); a settled level that
+        happens to be the record's extreme, without dither, leaves both still."""
         y, model = np.asarray(y, dtype=float), np.asarray(model)
-        runs = [(a, b) for limit in self.limits for a, b in _runs(y == limit) if b - a >= FLAT_RUN]
+        held = np.isin(y, self.limits)
+        runs = [(a, b) for a, b in _runs(held) if b - a >= FLAT_RUN]
         if not runs:
             return False
-        noise = mad_sigma(np.diff(y)) / math.sqrt(2.0) if y.size > 1 else 0.0
-        moving = max(MOVING_SIGMAS * noise, MOVING_CODES * (self.code or 0.0))
+        free = ~(held[1:] & held[:-1])  # differences not within a held stretch
+        steps = np.diff(y)[free]
+        noise = mad_sigma(steps) / math.sqrt(2.0) if steps.size >= MIN_NOISE_STEPS else 0.0
+        code = self.code or 0.0
+        if code and noise > code:
+            return True
+        moving = max(MOVING_SIGMAS * noise, MOVING_CODES * code)
         return any(float(np.ptp(model[a:b])) > moving for a, b in runs)
+
+    def held_throughout(self, y: np.ndarray) -> bool:
+        """Whether part ``y`` of the record lies at one of its limits from end to end
+        (:data:`FLAT_RUN` samples or more): for a channel clipped elsewhere, a stretch spent
+        off screen, which alone cannot be told from a still trace."""
+        y = np.asarray(y)
+        return y.size >= FLAT_RUN and bool(np.all(y == self.limits[0]) or np.all(y == self.limits[1]))
+
+
+def clipped_where_fitted(facts: "Extremes", y: np.ndarray, curve: np.ndarray, sigma: float) -> bool:
+    """Whether part ``y`` of a record, fitted by ``curve`` with noise ``sigma``, is clipped where
+    it is fitted: the curve beyond the record's extreme (:func:`model_exceeds_record`), or
+    samples held at it while the signal moves (:meth:`Extremes.held_while_curve_moves`)."""
+    return model_exceeds_record(y, curve, sigma) or facts.held_while_curve_moves(y, curve)
+
+
+#: Samples at the record's limits no more than this many apart belong to one held stretch:
+#: where the signal comes back on screen its noise carries it to the limit and off again.
+HELD_GAP = 3
+
+
+def leading_held(y: np.ndarray, limits: tuple[float, float]) -> int:
+    """How many samples at the start of ``y`` lie in the stretch held at the record's
+    ``limits`` (samples at a limit no more than :data:`HELD_GAP` apart, the first within
+    that of the start); 0 when ``y`` does not start at a limit."""
+    at = np.flatnonzero(np.isin(y, limits))
+    if at.size == 0 or at[0] > HELD_GAP:
+        return 0
+    breaks = np.flatnonzero(np.diff(at) > HELD_GAP)
+    return int(at[breaks[0]] if breaks.size else at[-1]) + 1
 
 
 #: A curve moves, over a run of held samples, when it changes by more than this many converter
@@ -94,6 +130,8 @@ class Extremes:
 #: many noise standard deviations (the held samples would have moved with it).
 MOVING_CODES = 2.0
 MOVING_SIGMAS = 3.0
+#: Fewest first differences outside the held stretches that the noise is taken from.
+MIN_NOISE_STEPS = 10
 
 
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
