@@ -21,10 +21,10 @@ from ..io import Capture
 from ..values import PartValue, eng
 from .ring_record import RingRecord, find_ring_record
 from .rules import (HALF_PERIOD_TAUS, K_HIGH, K_LOW, K_TARGET, RECORD_PERIODS, RING_RECORD_DECAYS,
-                    RING_SAMPLES_PER_PERIOD, SAMPLES_PER_TAU, TAU_MARGIN)
+                    RING_SAMPLES_PER_PERIOD, SAMPLES_PER_TAU, TAU_MARGIN, UNCOMPARED_RATIO)
 from .scales import ScaleAdvice, scale_advice
 from .series import nearest_e12, round_down_125, round_up_125
-from .step_record import StepRecord, find_step_record
+from .step_record import StepRecord, search_step
 
 #: Text of a part the technician must fill in: the setup refuses it until edited (exit 3).
 EDIT = "EDIT: "
@@ -82,12 +82,14 @@ def suggest(capture: Capture, sense_resistor: PartValue | None = None, bits: int
     """
     # the step test first: it is cheap, and a ring fails it (a damped sine is not one
     # exponential per half cycle), while the ring's fit costs seconds on a long record
-    step = find_step_record(capture)
+    step, why = search_step(capture)
     if step is not None:
         return _step_suggestion(capture, step, sense_resistor, bits)
     ring = find_ring_record(capture)
     if ring is not None:
         return _ring_suggestion(capture, ring, bits)
+    if why is not None:
+        raise AnalysisRefused(f"{capture.source}: {why}, then capture again")
     raise AnalysisRefused(f"{capture.source}: the record shows neither a step nor a ring (or too much noise "
                           "to tell); check the probes, the trigger and the generator, then capture again")
 
@@ -109,15 +111,22 @@ def _step_suggestion(capture: Capture, step: StepRecord, rs: PartValue | None, b
     if step.drive is not None:
         assert step.drive_fit is not None
         columns["drive"] = step.drive.channel.header
-        why.append(f"drive {step.drive.channel.header!r} spans {eng(abs(step.drive.step), 'V')} between its state "
-                   f"levels, sense {step.sense.channel.header!r} {eng(abs(step.sense.step), 'V')}: the larger is the drive")
+        why.append(f"drive {step.drive.channel.header!r} swings over {eng(step.drive.swing, 'V')}, sense "
+                   f"{step.sense.channel.header!r} over {eng(step.sense.swing, 'V')}: the wider is the drive (it "
+                   "jumps by the generator's whole step at each switching instant)")
         k = step.drive_fit.settled_step / step.sense_fit.settled_step
         settled = (f"settled drive step / settled sense step = {eng(step.drive_fit.settled_step, 'V')} / "
                    f"{eng(step.sense_fit.settled_step, 'V')} = {k:.3g}")
         source = step_source(step)
         estimates |= {"k": k, "source_over_sense": source, "dut_over_sense": k - 1,
                       "drive_step": step.drive_fit.settled_step}
-        if k > 1 and source > 0:
+        if abs(k - 1) <= UNCOMPARED_RATIO:
+            loop = source + k if source > 0 else None
+            why.append(f"k = {settled} lies within {100 * UNCOMPARED_RATIO:g} % of 1, the most two channels not "
+                       "compared with each other may differ by: the coil's DCR is below what they can show here, "
+                       "so the sense resistor is kept; compare the channels (wavefit calibrate channels) or "
+                       "take the DCR from an ohmmeter")
+        elif k > 1 and source > 0:
             loop = source + k
             if not K_LOW <= k <= K_HIGH:
                 factor = (k - 1) / (K_TARGET - 1)
@@ -172,11 +181,14 @@ def _sense_part(rs: PartValue | None, factor: float, loop: float | None, estimat
         return {"sense_resistor": EDIT + text}, factor
     if loop is not None:
         estimates |= {"R_loop": loop * rs.value, "L": estimates["tau"] * loop * rs.value,
-                      "DCR": estimates["dut_over_sense"] * rs.value,
                       "R_source": estimates["source_over_sense"] * rs.value}
-        why.append(f"with R_sense = {eng(rs.value, 'Ω')}: L about {eng(estimates['L'], 'H')}, DCR about "
-                   f"{eng(estimates['DCR'], 'Ω')}, generator about {eng(estimates['R_source'], 'Ω')} "
-                   "(first estimates, probe loading neglected)")
+        shown = abs(estimates["k"] - 1) > UNCOMPARED_RATIO
+        if shown:
+            estimates["DCR"] = estimates["dut_over_sense"] * rs.value
+        dcr = (f"DCR about {eng(estimates['DCR'], 'Ω')}" if shown else
+               f"DCR below about {eng(UNCOMPARED_RATIO * rs.value, 'Ω')} (not told from the channels' gains)")
+        why.append(f"with R_sense = {eng(rs.value, 'Ω')}: L about {eng(estimates['L'], 'H')}, {dcr}, generator about "
+                   f"{eng(estimates['R_source'], 'Ω')} (first estimates, probe loading neglected)")
     if factor == 1:
         return {"sense_resistor": rs.text}, factor
     value = nearest_e12(factor * rs.value)
@@ -191,7 +203,8 @@ def _step_scales(step: StepRecord, factor: float, loop: float | None, bits: int)
     """Expected spans of the next record. The sense settles between its two levels, scaled by
     the new resistor and the new loop current. The drive jumps by the generator's step ΔE
     (= drive step · R_loop/(R + R_sense)) at each switch and settles to its new level, so it
-    spans from its high level less ΔE to its low level plus ΔE."""
+    spans from its high level less ΔE to its low level plus ΔE, and at least what the
+    present record shows."""
     current = 1.0 if loop is None else loop / (loop - 1 + factor)
     sense = step.sense_fit
     scales = [scale_advice("sense", step.sense.channel, sense.low * factor * current,
@@ -205,8 +218,12 @@ def _step_scales(step: StepRecord, factor: float, loop: float | None, bits: int)
         else:
             generator, settled = abs(drive.settled_step), drive.settled_step
         low, high = drive.low, drive.low + settled
-        scales.append(scale_advice("drive", step.drive.channel, min(high - generator, low),
-                                   max(low + generator, high), bits))
+        # the jumps the present record shows bound the next one's too: the estimate of the
+        # generator's step from the channels' ratio fails where the coil's drop is within the
+        # channels' gain difference (a coil of milliohms: 800 mV proposed for a ±1.8 V swing)
+        seen = np.asarray(step.drive.channel.values, dtype=float)
+        scales.append(scale_advice("drive", step.drive.channel, min(high - generator, low, float(np.nanmin(seen))),
+                                   max(low + generator, high, float(np.nanmax(seen))), bits))
     return tuple(scales)
 
 

@@ -31,6 +31,10 @@ K_LOW, K_HIGH = 2.0, 10.0
 #: The k aimed at when the present one lies outside [K_LOW, K_HIGH]: R_sense = DCR/2, the
 #: geometric middle of the range to within the E12 step.
 K_TARGET = 3.0
+#: How far from 1 the ratio of two channels not compared with each other may read for equal
+#: voltages: each within ±2 %, the setup's default vertical_gain (a bench scope's DC gain
+#: accuracy, common practice). A k within this of 1 tells nothing of the DCR, nor of the roles.
+UNCOMPARED_RATIO = 0.04
 
 #: Full scale proposed for a channel: the span the next record will show, widened by this
 #: factor (12.5 % headroom on each side for noise, overshoot and the generator's drift;
@@ -77,3 +81,7 @@ STEP_MAX_RESIDUAL = 0.02
 MAX_FIT_SAMPLES = 200_000
 #: Fewest samples of a relaxation window that enters the tau estimate.
 MIN_WINDOW_SAMPLES = 3
+#: A sense channel whose median 10 %–90 % transition takes at most this many sample intervals
+#: settles faster than the record can show (tau = duration/ln 9 is then under one sample):
+#: the suggestion is to sample faster, not to check the probes.
+FAST_TRANSITION_SAMPLES = 2.0

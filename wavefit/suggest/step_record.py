@@ -26,7 +26,7 @@ from scipy import optimize
 from ..io import Capture, Channel
 from ..signal.edges import find_edges, jump_instant
 from ..signal.levels import state_levels
-from .rules import MAX_FIT_SAMPLES, MIN_WINDOW_SAMPLES, SKIP_SAMPLES, STEP_MAX_RESIDUAL
+from .rules import FAST_TRANSITION_SAMPLES, MAX_FIT_SAMPLES, MIN_WINDOW_SAMPLES, SKIP_SAMPLES, STEP_MAX_RESIDUAL
 
 
 @dataclass(frozen=True)
@@ -38,6 +38,8 @@ class SteppingChannel:
     step: float
     instants: tuple[float, ...]
     directions: tuple[int, ...]
+    swing: float = 0.0  # the record's range, highest less lowest value
+    transition: float = math.inf  # median samples within the 10 %–90 % band at its transitions
 
 
 @dataclass(frozen=True)
@@ -70,12 +72,15 @@ class StepRecord:
 def stepping_channels(capture: Capture) -> list[SteppingChannel]:
     """The channels that show transitions (IEEE Std 181 edges, see
     :func:`wavefit.signal.edges.find_edges`) at most one per :data:`MIN_WINDOW_SAMPLES`
-    samples, largest step first.
+    samples, widest swing first: the drive node jumps by the generator's whole step at each
+    switching instant (no current has changed yet) and the sense by its share of it, so the
+    drive's range is the wider even where the two settled steps are alike (a coil of a few
+    milliohms: its drive node settles to the sense's step plus the small DCR drop).
 
     The edge finder's own gate (a step of 5 noise rms from first differences) is not used: on a
     record with a few samples per tau the signal's own slope dominates the first differences.
     Whether the record is a step response is judged by the relaxation fit instead
-    (:func:`find_step_record`)."""
+    (:func:`search_step`)."""
     found = []
     for channel in capture.channels:
         y = np.asarray(channel.values, dtype=float)
@@ -84,22 +89,28 @@ def stepping_channels(capture: Capture) -> list[SteppingChannel]:
         edges = find_edges(capture.time, y, min_snr=0.0)
         if not edges or len(edges) * MIN_WINDOW_SAMPLES > y.size:
             continue
-        found.append(SteppingChannel(channel, state_levels(y).amplitude, tuple(e.t50 for e in edges),
-                                     tuple(e.direction for e in edges)))
-    return sorted(found, key=lambda s: -abs(s.step))
+        levels = state_levels(y)
+        instants = tuple(e.t50 for e in edges)
+        found.append(SteppingChannel(channel, levels.amplitude, instants, tuple(e.direction for e in edges),
+                                     float(np.ptp(y)), _samples_in_transition(capture.time, y, instants, levels)))
+    return sorted(found, key=lambda s: -s.swing)
 
 
-def find_step_record(capture: Capture) -> StepRecord | None:
-    """The step response of the capture, or None when no channel steps.
+def search_step(capture: Capture) -> tuple[StepRecord | None, str | None]:
+    """The step response of the capture, or (None, why) where the channels step but their
+    settling cannot be measured (``why`` names the setting to change; None when nothing steps
+    or the record is not a step response at all).
 
-    The channel with the largest step is the drive, the next one the sense: the drive node
-    steps by the generator's amplitude less the drop on its output resistance, the sense
-    by the smaller share of the sense resistor. A single stepping channel is the sense.
+    The channel with the widest swing is the drive, the next one the sense
+    (:func:`stepping_channels`). A single stepping channel is the sense.
     """
     steps = stepping_channels(capture)
     if not steps:
-        return None
+        return None, None
     drive, sense = (steps[0], steps[1]) if len(steps) >= 2 else (None, steps[0])
+    dt = capture.sample_interval
+    if sense.transition <= FAST_TRANSITION_SAMPLES:
+        return None, _too_fast(sense, dt)
     # the sense is monotonic between switching instants, so each of its 50 % crossings lies
     # after one switching instant and before the next; the drive's jump, fast beside the
     # current's settling, is found between consecutive sense crossings. Without a drive a
@@ -110,7 +121,7 @@ def find_step_record(capture: Capture) -> StepRecord | None:
     if drive is not None:
         switching = _drive_jumps(t, np.asarray(drive.channel.values, dtype=float), sense.instants)
         if switching is None:
-            return None
+            return None, None
         margin = SKIP_SAMPLES * capture.sample_interval
         starts, ends = tuple(s + margin for s in switching), tuple(s - margin for s in switching)
     else:
@@ -118,17 +129,49 @@ def find_step_record(capture: Capture) -> StepRecord | None:
         ends = _turning_points(t, np.asarray(sense.channel.values, dtype=float), sense.instants, directions)
     windows = _windows(t, starts, ends, directions)
     if {state for _, _, state in windows} != {1, -1}:
-        return None  # both drive states are needed for the two settled levels
+        return None, None  # both drive states are needed for the two settled levels
     y_sense = np.asarray(sense.channel.values, dtype=float)
-    tau = _best_tau(t, y_sense, windows, capture.sample_interval)
+    tau, edge = _best_tau(t, y_sense, windows, dt)
     if tau is None:
-        return None
+        return None, (_too_fast(sense, dt) if edge < 0 else
+                      f"the {sense.channel.name} channel steps, but does not settle between the steps: lengthen "
+                      "the period, or the record")
     sense_fit = _relaxation(t, y_sense, windows, tau)
     if not sense_fit.residual_rms <= STEP_MAX_RESIDUAL * float(np.ptp(y_sense)):
-        return None
+        return None, None
     drive_fit = None if drive is None else _relaxation(t, np.asarray(drive.channel.values, dtype=float),
                                                         windows, tau)
-    return StepRecord(sense, drive, tau, sense_fit, drive_fit, _period(switching, directions))
+    return StepRecord(sense, drive, tau, sense_fit, drive_fit, _period(switching, directions)), None
+
+
+def _samples_in_transition(t: np.ndarray, y: np.ndarray, instants: tuple[float, ...], levels) -> float:
+    """The median count, over the transitions at ``instants``, of the samples between the 10 %
+    and 90 % reference levels (IEEE Std 181-2011) within a few samples of the crossing: a
+    first-order step has 2.2 tau there; one that settles within a sample has none or one.
+    (An edge's own 10 % instant is not used: with no sample inside the band it is taken
+    from the edge before.)"""
+    if not levels.amplitude:
+        return math.inf
+    share = (y - levels.low) / levels.amplitude
+    reach = TRANSITION_REACH
+    counts = []
+    for instant in instants:
+        k = int(np.searchsorted(t, instant))
+        near = share[max(0, k - reach):k + reach]
+        counts.append(int(np.count_nonzero((near > 0.1) & (near < 0.9))))
+    return float(np.median(counts))
+
+
+#: Samples either side of a 50 % crossing among which the transition's samples are counted: a
+#: transition within FAST_TRANSITION_SAMPLES has them all near the crossing, and noise alone
+#: seldom puts a settled sample inside the 10 %–90 % band.
+TRANSITION_REACH = 8
+
+
+def _too_fast(sense: SteppingChannel, dt: float) -> str:
+    """Why a step record cannot be measured when its sense settles within a sample or two."""
+    return (f"the {sense.channel.name} channel steps, but settles within the first samples after each step: "
+            f"its tau is too short for the {dt:.3g} s sample interval; sample at least ten times faster")
 
 
 def _drive_jumps(t: np.ndarray, drive: np.ndarray, crossings: tuple[float, ...]) -> tuple[float, ...] | None:
@@ -219,19 +262,22 @@ def _residual_ss(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int
     return _levels_and_ss(_window_sums(t, y, windows, tau))[1]
 
 
-def _best_tau(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int]], dt: float) -> float | None:
+def _best_tau(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int]],
+              dt: float) -> tuple[float | None, int]:
     """tau minimising the residuals: a scan over a logarithmic grid from a tenth of a sample
-    interval to the longest window, then a bounded search around the best grid point."""
+    interval to the longest window, then a bounded search around the best grid point; and 0,
+    or where the grid has no interior minimum (no settling to measure), None and the end it
+    reached (−1 the short end, settling faster than the sampling shows; 1 the long end)."""
     longest = max(stop - first for first, stop, _ in windows) * dt
     grid = np.geomspace(0.1 * dt, 2.0 * longest, 80)
     ss = np.array([_residual_ss(t, y, windows, tau) for tau in grid])
     k = int(np.argmin(ss))
     if k == 0 or k == grid.size - 1:
-        return None  # no interior minimum: the record holds no exponential settling to measure
+        return None, -1 if k == 0 else 1
     found = optimize.minimize_scalar(lambda u: _residual_ss(t, y, windows, math.exp(u)), method="bounded",
                                      bounds=(math.log(grid[k - 1]), math.log(grid[k + 1])),
                                      options={"xatol": 1e-6})
-    return float(math.exp(found.x))
+    return float(math.exp(found.x)), 0
 
 
 def _relaxation(t: np.ndarray, y: np.ndarray, windows: list[tuple[int, int, int]], tau: float) -> Relaxation:
