@@ -18,6 +18,7 @@ import numpy as np
 from ..errors import AnalysisRefused
 from ..signal.edges import Edge, find_edges, noise_rms
 from ..signal.levels import StateLevels, state_levels
+from ..signal.robust import mad_sigma
 
 #: A channel "jumps" at an edge when it covers more than this fraction of its step within
 #: JUMP_SAMPLES samples: an exponential with a time constant of 10 samples or more (the
@@ -67,7 +68,7 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
     drive_levels = state_levels(drive)
     drive_edges = find_edges(t, drive, drive_levels)
     dt = float(t[1] - t[0])
-    if not drive_edges and not _jumps_at_edges(t, drive, edges, dt):
+    if not drive_edges and not _jumps_at_edges(t, drive, edges, dt, sense, sense_levels or state_levels(sense)):
         ends = [edge.t10 for edge in edges[1:]] + [float(t[-1])]
         short = all(end - edge.t10 < SHORT_AFTER * edge.duration for edge, end in zip(edges, ends))
         raise AnalysisRefused(
@@ -107,23 +108,50 @@ def _jump_at(t: np.ndarray, drive: np.ndarray, edge: Edge, dt: float) -> float:
     return float(drive[span[1]] - drive[span[0]]) if span is not None else 0.0
 
 
-def _jumps_at_edges(t: np.ndarray, drive: np.ndarray, edges: list[Edge], dt: float) -> bool:
+def _jumps_at_edges(t: np.ndarray, drive: np.ndarray, edges: list[Edge], dt: float, sense: np.ndarray,
+                    sense_levels: StateLevels) -> bool:
     """Whether the drive jumps at most of the sense edges by more than DRIVE_JUMP_SNR times the
     noise of a difference over the same number of samples, in the edge's direction: a drive
-    that steps, whatever its settled levels. The noise is 1.4826·MAD of the record's
-    differences at that lag (common practice; the few differences across edges do not move a
-    median), so band-limited noise, whose differences over several samples are far larger
-    than over one, is judged by the scatter a jump read over that span would have
-    (:func:`wavefit.signal.edges.noise_rms` at that lag)."""
+    that steps, whatever its settled levels. The noise is 1.4826·MAD of differences at that
+    lag (common practice), so band-limited noise, whose differences over several samples are
+    far larger than over one, is judged by the scatter a jump read over that span would have.
+    The differences are those between samples where the sense has settled in one state
+    (:func:`_settled_pairs`), where the drive has too: over a record of a few tau per half
+    period the relaxations fill most lags of the record, and their differences, not the
+    noise's, made the median (a drive jumping by 1.6 V read against 0.35 V of "noise" at
+    6 tau per half period and 2.4 periods, measured); the whole record's differences
+    (:func:`wavefit.signal.edges.noise_rms` at that lag) where too few pairs have settled."""
     spans = [span for span in (_jump_span(t, edge, dt) for edge in edges) if span is not None]
     if not spans:
         return False
     lag = int(np.median([stop - start for start, stop in spans]))
     if not 0 < lag < drive.size:
         return False
-    sigma = math.sqrt(2.0) * noise_rms(drive, lag)  # the rms of a difference over the span
+    pairs = _settled_pairs(sense, sense_levels, lag)
+    if pairs.size >= MIN_SETTLED_PAIRS:
+        sigma = mad_sigma(drive[pairs + lag] - drive[pairs])
+    else:
+        sigma = math.sqrt(2.0) * noise_rms(drive, lag)  # the rms of a difference over the span
     jumping = sum(_jump_at(t, drive, edge, dt) * edge.direction > DRIVE_JUMP_SNR * sigma for edge in edges)
     return jumping > 0.5 * len(edges)
+
+
+#: Fewest pairs of settled samples the noise of a lagged difference is taken from.
+MIN_SETTLED_PAIRS = 20
+#: A sense sample has settled when it lies within this share of its step from a state level
+#: (e^−4: four tau after an edge; the drive relaxes with the same tau).
+SETTLED_SHARE = 0.02
+
+
+def _settled_pairs(sense: np.ndarray, levels: StateLevels, lag: int) -> np.ndarray:
+    """The samples i where the sense has settled at a state level and is still settled at the
+    same level ``lag`` samples later."""
+    if not levels.amplitude:
+        return np.zeros(0, dtype=np.intp)
+    reach = SETTLED_SHARE * abs(levels.amplitude)
+    state = np.where(np.abs(sense - levels.low) <= reach, 0, np.where(np.abs(sense - levels.high) <= reach, 1, -1))
+    same = (state[:-lag] >= 0) & (state[:-lag] == state[lag:])
+    return np.flatnonzero(same)
 
 
 def _jumps(t: np.ndarray, y: np.ndarray, edges: list[Edge], step: float, dt: float) -> bool:
