@@ -6,7 +6,7 @@ import math
 import pytest
 
 from wavefit.batch.spec import Limit, parse_limit
-from wavefit.batch.statistics import capability, quantity_statistics, summarize, usable
+from wavefit.batch.statistics import capability, far_from_limits, quantity_statistics, summarize, usable
 
 
 def test_capability_indices_follow_the_handbook_definitions():
@@ -113,3 +113,15 @@ def test_the_plot_takes_the_values_the_statistics_take():
     limit = Limit("L", None, 2e-4, "H", "<= 200 uH")
     plotted = [v for v in (usable(row, "L", True) for row in rows) if v is not None]
     assert summarize(rows, {"L": limit}, ("L",)).quantities["L"].n == len(plotted)
+
+
+def test_values_far_beyond_a_limit_without_a_unit_are_flagged():
+    # a spec ">= 297" meant in µH is read as 297 H: every part fails by a factor of about 10⁶,
+    # and nothing said why; a factor of 10³ (one unit prefix) or more in one direction is named
+    henries = Limit("L", 297.0, None, "", ">= 297")
+    assert far_from_limits([330e-6, None, 315e-6], henries) == pytest.approx(297.0 / 330e-6)
+    assert far_from_limits([330e-6, 0.5], henries) is None            # not every value
+    assert far_from_limits([330e-6], Limit("L", 297e-6, 363e-6, "uH", "297 uH .. 363 uH")) is None
+    assert far_from_limits([3.3], Limit("L", None, 363e-6, "", "<= 363e-6")) == pytest.approx(3.3 / 363e-6)
+    assert far_from_limits([0.33], Limit("L", None, 363e-6, "", "<= 363e-6")) is None  # 909 times: below 10³
+    assert far_from_limits([None], henries) is None

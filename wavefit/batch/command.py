@@ -24,7 +24,7 @@ from .outputs import RunFiles
 from .dcr_reading import DCR
 from .rows import Analyse, RowMaker, analyse_file, sha256_file
 from .spec import Spec, load_spec
-from .statistics import LotSummary, summarize, usable
+from .statistics import LotSummary, far_from_limits, summarize, usable
 from .stop import Interrupted, StopSignals
 from ..write_errors import write_failed
 
@@ -159,6 +159,12 @@ def _run(args: argparse.Namespace, analyse: Analyse, stop: StopSignals, progress
             if curves is not None:
                 curves.close()
         summary = summarize(rows, plan.spec.limits, plan.method.positive)
+        for name, limit in plan.spec.limits.items():
+            factor = far_from_limits([usable(row, name, name in plan.method.positive) for row in rows], limit)
+            if factor is not None:
+                print(f"wavefit: warning: every {name} measured lies at least {factor:.3g} times beyond its limit "
+                      f"{visible(limit.text)!r}{' (no unit written: SI)' if not limit.unit else ''}: a unit "
+                      "prefix missing from the spec?", file=sys.stderr)
         outcome = BatchOutcome(progress.written, len(plan.paths) - len(todo), changed, rows, summary, history,
                                by_part)
         _report(outcome, plan.spec, plan.lot, args, plan.method.positive)

@@ -117,6 +117,27 @@ def usable(row: Mapping[str, Any], name: str, positive: bool) -> float | None:
     return value if row["verdict"] != ERROR and possible(value, positive) else None
 
 
+#: Every measured value this many times beyond a quantity's limits (or that many times short
+#: of them) suggests a unit prefix missing from the spec: prefixes step by 10³ (a limit of
+#: ">= 297" for µH is read as 297 H, and the whole lot fails).
+FAR_FROM_LIMITS = 1e3
+
+
+def far_from_limits(values: Sequence[float | None], limit: Limit) -> float | None:
+    """The smallest factor by which the values (``None`` skipped) lie beyond the limit's nearest
+    bound, when every one of them does so by at least :data:`FAR_FROM_LIMITS` in the same
+    direction (below a lower bound, or above an upper one); else ``None``."""
+    present = [abs(v) for v in values if v is not None and v != 0]
+    if not present:
+        return None
+    low, high = min(present), max(present)
+    if limit.lower is not None and limit.lower > 0 and high * FAR_FROM_LIMITS <= limit.lower:
+        return limit.lower / high
+    if limit.upper is not None and limit.upper > 0 and low >= FAR_FROM_LIMITS * limit.upper:
+        return low / limit.upper
+    return None
+
+
 def quantity_statistics(name: str, values: Sequence[float | None], limit: Limit,
                         positive: bool = False) -> QuantityStatistics:
     """Mean, sample standard deviation (n − 1), min, max, Cp and Cpk of ``values``.
