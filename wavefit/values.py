@@ -8,7 +8,7 @@ notation.
 VALUE
     A number with a decimal point or a decimal comma (``50,0``, ``4,7``; a comma
     followed by exactly three digits, as in ``1,000``, may be a thousands separator and
-    is refused), an optional exponent (``1e-8``), then
+    is refused, except after a lone zero: ``0,297``), an optional exponent (``1e-8``), then
 
     * an SI prefix and a unit (``4.7 nF``, ``9.99 kohm``, ``100 mΩ``, see
       :data:`UNIT_ALIASES` and :data:`PREFIX_EXPONENTS`),
@@ -485,7 +485,8 @@ def _decimal(digits: str) -> str:
         return digits
     mantissa = re.split("[eE]", digits)[0]
     whole, fraction = mantissa.split(",")
-    if len(fraction) == 3:
+    # a whole part of zero alone groups no thousands: "0,297" is a decimal comma
+    if len(fraction) == 3 and whole.lstrip("+-") not in ("0", ""):
         raise _Unreadable(f"in {digits!r} the comma may be a decimal comma or a thousands separator "
                           f"(write {whole}{fraction} or {whole}.{fraction})")
     return digits.replace(",", ".")
