@@ -136,6 +136,13 @@ def test_limits_that_would_be_misread_are_refused(text):
     assert "\n" not in str(err.value)
 
 
+@pytest.mark.parametrize("text", ["330 uH ±10% k=2", "330 uH ±10 % u=1%", "<= 0.15 ohm k = 2"])
+def test_a_coverage_factor_in_a_limit_is_named(text):
+    # it was refused as "'% k=2' follows the value", which does not say what is wrong
+    with pytest.raises(SetupError, match="a limit does not have"):
+        parse_limit("L", text)
+
+
 def test_a_limit_in_another_unit_is_refused_before_any_analysis():
     # "330 nF" for L: every capture was analysed and each row said "error", and the results
     # file was then bound to the wrong spec (docs/batch.md: spec errors are refused, code 3,

@@ -116,12 +116,19 @@ def parse_spec(data: Mapping[str, Any], *, source: str = "<dict>", need_limits: 
                 source=source)
 
 
+#: ``k=`` or ``u=`` after a limit's value: a part value's coverage factor or uncertainty.
+_UNCERTAINTY_KEY = re.compile(r"(?<![A-Za-z])[ku]\s*=", re.IGNORECASE)
+
+
 def parse_limit(name: str, text: Any, source: str = "<dict>") -> Limit:
     """Parse one limit: ``"47 uH ±5%"``, ``"<= 0.15 ohm"``, ``">= 40"``, ``"44 uH .. 50 uH"``."""
     where = f"{source}: limit {name!r}"
     if not isinstance(text, str):
         raise SetupError(f"{where}: write the limit as text, e.g. \"47 uH ±5%\", \"<= 0.15 ohm\" or \">= 40\"")
     body = text.strip()
+    if _UNCERTAINTY_KEY.search(body):
+        raise SetupError(f"{where}: {text!r} gives a coverage factor or an uncertainty, which a limit does not have "
+                         "(it is a bound, not a measured value); write the tolerance alone, e.g. \"330 uH ±10%\"")
     if match := _UPPER.match(body):
         value, unit = _number(match.group(2), where)
         lower, upper = None, value
