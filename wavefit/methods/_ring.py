@@ -189,12 +189,49 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
     stop = _time_option(method, setup, "fit_end", t)
     try:
         ring = fit_ring(t, y, start=start, stop=stop, noise=noise)
+        after = _after_clipping(ring, y, channel.levels.step) if start is None else None
+        if after is not None:
+            ring = fit_ring(t, y, start=after, stop=ring.stop, noise=noise)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
         raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
                               "check the [columns] tank entry and that the record holds the ring") from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
+    if after is not None:
+        warnings.append(f"the ring is clipped at the converter's limit until {t[after - 1]:.6g} s: the fit starts "
+                        "after it, leaving out the larger early cycles (set the vertical scale so the whole ring "
+                        "fits on screen)")
     info = _checks(ring, t, y, channel.levels.step, capture.source, warnings, noise)
     return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings))
+
+
+def _clipped(ring: DampedSineFit, y: np.ndarray, code: float | None) -> bool:
+    """Whether the ring's fitted window is clipped: a run at its extreme where the fitted ring
+    goes beyond it, or noise piled up at the extreme (:mod:`wavefit.signal.clipping`); ``code``
+    is the record's converter step (the window's own where the record as a whole looked
+    continuous, a strong early ring on a fine grid, but the window may sit on a grid)."""
+    seg_y = y[ring.start:ring.stop]
+    sigma = ring.fit.noise_sigma["tank"]
+    window_code = code if code is not None else record_levels(seg_y).step
+    return ((max(longest_run_at_extremes(seg_y)) >= CLIPPED_RUN and model_exceeds_record(seg_y, ring.on_window(), sigma))
+            or piles_up_at_limit(seg_y, sigma, window_code))
+
+
+def _after_clipping(ring: DampedSineFit, y: np.ndarray, code: float | None) -> int | None:
+    """Where a clipped ring's window should start (the sample after the last one at a clipped
+    extreme: a ring decays, so its clipped peaks come first), or None when it is not clipped,
+    or when too little of the window would be left (:data:`MIN_SAMPLES`)."""
+    if not _clipped(ring, y, code):
+        return None
+    seg_y = y[ring.start:ring.stop]
+    held = np.zeros(seg_y.size, dtype=bool)
+    for extreme in (seg_y.max(), seg_y.min()):
+        at = seg_y == extreme
+        if np.count_nonzero(at) >= CLIPPED_RUN:  # a pile of samples at one value: the limit
+            held |= at
+    if not held.any():
+        return None
+    after = ring.start + int(np.flatnonzero(held)[-1]) + 1
+    return after if ring.stop - after >= MIN_SAMPLES else None
 
 
 def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> Any:
@@ -238,16 +275,9 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | Non
                               "alias): f0 and L cannot be told from it; sample at least "
                               f"{FEW_SAMPLES_PER_PERIOD:g} times per period")
     seg_y = y[ring.start:ring.stop]
-    fitted = ring.on_window()
-    runs = longest_run_at_extremes(seg_y)
-    # the record's converter step; the window's own where the record as a whole looked
-    # continuous (a strong early ring on a fine grid) but the window may sit on a grid
-    window_code = code if code is not None else record_levels(seg_y).step
-    if (max(runs) >= CLIPPED_RUN and model_exceeds_record(seg_y, fitted, sigma)) or \
-            piles_up_at_limit(seg_y, sigma, window_code):
+    if _clipped(ring, y, code):
         warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
                         "whole ring fits on screen")
-    del fitted  # a long record's copy: evaluated again after the partial fits below
     halves = _halves(ring, y, noise)
     drift = _drift_check(halves)
     if drift.z is not None and drift.z > DRIFT_Z:
