@@ -74,19 +74,21 @@ class Extremes:
         """True when part ``y`` of the record holds :data:`FLAT_RUN` or more consecutive samples
         at the record's lowest or highest value while the signal moves: the curve fitted to it
         (``model``, same length) moves over them by more than ``MOVING_CODES`` converter codes
-        and ``MOVING_SIGMAS`` times the noise of ``y``, or that noise (from the first
-        differences of the samples not held: a fit's own scatter is swollen by the held
-        samples it misses, and may be anything where the fit failed) spans more than a code,
-        which would not let a settled level sit on one value. A fit dragged by the held
-        samples need not go beyond them (:func:`model_exceeds_record`); a settled level that
-        happens to be the record's extreme, without dither, leaves both still."""
+        and ``MOVING_SIGMAS`` times the noise of ``y``, or that noise spans more than a code,
+        which would not let a settled level sit on one value. The noise is taken from the
+        first differences of the residuals from the curve, away from the held stretches: the
+        differences take out the curve's slope and a smooth misfit (a fit's own scatter is
+        swollen by the held samples it misses, and may be anything where the fit failed). A
+        fit dragged by the held samples need not go beyond them
+        (:func:`model_exceeds_record`); a settled level that happens to be the record's
+        extreme, without dither, leaves both still."""
         y, model = np.asarray(y, dtype=float), np.asarray(model)
         held = np.isin(y, self.limits)
         runs = [(a, b) for a, b in _runs(held) if b - a >= FLAT_RUN]
         if not runs:
             return False
         free = ~(held[1:] & held[:-1])  # differences not within a held stretch
-        steps = np.diff(y)[free]
+        steps = np.diff(y - model)[free]
         noise = mad_sigma(steps) / math.sqrt(2.0) if steps.size >= MIN_NOISE_STEPS else 0.0
         code = self.code or 0.0
         if code and noise > code:
