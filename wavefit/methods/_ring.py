@@ -196,11 +196,17 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
         raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
                               "check the [columns] tank entry and that the record holds the ring") from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
-    if after is not None:
-        warnings.append(f"the ring is clipped at the converter's limit until {t[after - 1]:.6g} s: the fit starts "
-                        "after it, leaving out the larger early cycles (set the vertical scale so the whole ring "
-                        "fits on screen)")
-    info = _checks(ring, t, y, channel.levels.step, capture.source, warnings, noise)
+    clipping = ("" if after is None else
+                f"the ring is clipped at the converter's limit until {t[after - 1]:.6g} s: the fit starts after it, "
+                "leaving out the larger early cycles (set the vertical scale so the whole ring fits on screen)")
+    if clipping:
+        warnings.append(clipping)
+    try:
+        info = _checks(ring, t, y, channel.levels.step, capture.source, warnings, noise)
+    except AnalysisRefused as exc:
+        if not clipping:
+            raise
+        raise AnalysisRefused(f"{exc}; {clipping}") from None
     return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings))
 
 
