@@ -62,33 +62,54 @@ def after_held_starts(t, sense, drive, windows, fits, facts, noise, source, fit_
     """Each window whose channel is clipped where it is fitted
     (:func:`wavefit.signal.clipping.clipped_where_fitted`) at its start, where a step's
     overshoot leaves a screen set for the settled levels, starts after the held stretch
-    (:func:`~wavefit.signal.clipping.leading_held`) and is fitted again: the samples on
-    screen follow the exponential, the held ones do not. A window clipped elsewhere, or
-    left too short, is returned as it is (the final check refuses it).
+    (:func:`~wavefit.signal.clipping.leading_held`) and after the samples where the fitted
+    curve is still near the limit (:meth:`~wavefit.signal.clipping.Extremes.near_limit`:
+    noise carries them onto it now and then), and is fitted again, up to
+    :data:`HELD_STARTS` times: the samples on screen follow the exponential, the held ones
+    do not. A window still clipped after that, or left too short, is left out: the others'
+    samples are on screen (a record that ends just after a clipped edge was refused whole).
 
-    Returns the windows, their fits, and the channels found clipped (their roles): a window
-    that such a channel spends whole at its limit cannot be told from a still trace, and is
-    refused by the final check."""
-    channels = {"sense": sense, "drive": drive}
-    out_w, out_f, clipped = [], [], set()
+    Returns the windows, their fits, the channels found clipped (their roles: a window that
+    such a channel spends whole at its limit cannot be told from a still trace, and is
+    refused by the final check), how many windows start later and how many are left out.
+
+    Raises
+    ------
+    AnalysisRefused
+        When every window is clipped."""
+    channels = {group: y for group, y in (("sense", sense), ("drive", drive)) if y is not None}
+    out_w, out_f, clipped, moved, dropped = [], [], set(), 0, 0
     for w, f in zip(windows, fits):
-        for _ in range(HELD_STARTS):
+        here: set[str] = set()
+        start = w.start
+        for attempt in range(HELD_STARTS + 1):
             seg = slice(w.start, w.stop)
-            skip = 0
-            for group, y in channels.items():
-                if y is None:
-                    continue
-                curve = window_model(f, group, t[seg])
-                if clipped_where_fitted(facts[group], y[seg], curve, f.noise_sigma[group]):
-                    clipped.add(group)
-                    skip = max(skip, leading_held(y[seg], facts[group].limits))
-            if skip == 0 or w.stop - (w.start + skip) < MIN_WINDOW_SAMPLES:
+            curves = {group: window_model(f, group, t[seg]) for group in channels}
+            here |= {group for group, y in channels.items()
+                     if clipped_where_fitted(facts[group], y[seg], curves[group], f.noise_sigma[group])}
+            skip = max((max(leading_held(channels[g][seg], facts[g].limits), facts[g].near_limit(channels[g][seg],
+                                                                                                  curves[g]))
+                        for g in here), default=0)
+            if skip == 0 or attempt == HELD_STARTS or w.stop - (w.start + skip) < MIN_WINDOW_SAMPLES:
                 break
             w = dataclasses.replace(w, start=w.start + skip)
             f = fit_window(t, sense, drive, w, noise, source)
+        clipped |= here
+        seg = slice(w.start, w.stop)
+        if any(clipped_where_fitted(facts[g], channels[g][seg], window_model(f, g, t[seg]), f.noise_sigma[g])
+               for g in here):
+            dropped += 1
+            continue
+        moved += w.start != start
         out_w.append(w)
         out_f.append(f)
-    return out_w, out_f, clipped
+    if not out_w:
+        group = sorted(clipped)[0]
+        raise AnalysisRefused(f"{source}: the {group} trace is clipped where it is fitted in every edge window (held "
+                              "at the converter's limit while the signal moves), so tau and the levels cannot be "
+                              f"trusted; set the {group} channel's volts per division and offset so that the whole "
+                              "step stays on screen")
+    return out_w, out_f, clipped, moved, dropped
 
 
 #: Fewest samples a window is fitted on (as the windows are cut, rl_step's _windows).

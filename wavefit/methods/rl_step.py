@@ -202,13 +202,14 @@ class RLStep(Method):
         # each channel's extreme values and code step, for the pre-edge level and the clipping checks
         facts = {group: extremes(y, self.channel(capture, setup, group).levels)
                  for group, y in (("sense", sense), ("drive", drive)) if y is not None}
-        first_starts = [w.start for w in windows]
-        windows, fits, clipped = after_held_starts(t, sense, drive, windows, fits, facts, noise, capture.source,
-                                                   self._fit_window)
-        off_screen = sum(w.start != a for w, a in zip(windows, first_starts))
+        windows, fits, clipped, off_screen, left_out = after_held_starts(t, sense, drive, windows, fits, facts, noise,
+                                                                          capture.source, self._fit_window)
         if off_screen:
             notes.append(f"{off_screen} edge window(s) start after samples held at a converter limit (the trace "
                          "was off screen there, as a step's overshoot often is)")
+        if left_out:
+            warnings.append(f"{left_out} edge window(s) left out: clipped at a converter limit where they would be "
+                            "fitted (set the volts per division and offset so that the whole step stays on screen)")
         baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
         # is the sense noise white? One decision from all windows' residuals together: separate
         # per-window BIC choices would call white noise coloured in one of a dozen windows often.

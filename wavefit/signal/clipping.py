@@ -74,12 +74,9 @@ class Extremes:
         """True when part ``y`` of the record holds :data:`FLAT_RUN` or more consecutive samples
         at the record's lowest or highest value while the signal moves: the curve fitted to it
         (``model``, same length) moves over them by more than ``MOVING_CODES`` converter codes
-        and ``MOVING_SIGMAS`` times the noise of ``y``, or that noise spans more than a code,
-        which would not let a settled level sit on one value. The noise is taken from the
-        first differences of the residuals from the curve, away from the held stretches: the
-        differences take out the curve's slope and a smooth misfit (a fit's own scatter is
-        swollen by the held samples it misses, and may be anything where the fit failed). A
-        fit dragged by the held samples need not go beyond them
+        and ``MOVING_SIGMAS`` times the noise of ``y`` about it (:func:`residual_noise`), or
+        that noise spans more than a code, which would not let a settled level sit on one
+        value. A fit dragged by the held samples need not go beyond them
         (:func:`model_exceeds_record`); a settled level that happens to be the record's
         extreme, without dither, leaves both still."""
         y, model = np.asarray(y, dtype=float), np.asarray(model)
@@ -87,14 +84,27 @@ class Extremes:
         runs = [(a, b) for a, b in _runs(held) if b - a >= FLAT_RUN]
         if not runs:
             return False
-        free = ~(held[1:] & held[:-1])  # differences not within a held stretch
-        steps = np.diff(y - model)[free]
-        noise = mad_sigma(steps) / math.sqrt(2.0) if steps.size >= MIN_NOISE_STEPS else 0.0
-        code = self.code or 0.0
+        noise = residual_noise(y, model, held)
+        # the converter's step, or where noise hides the grid from the record's levels the
+        # smallest gap between its values (a run of equal values needs noise under it)
+        code = self.code or self.smallest_gap or 0.0
         if code and noise > code:
             return True
         moving = max(MOVING_SIGMAS * noise, MOVING_CODES * code)
         return any(float(np.ptp(model[a:b])) > moving for a, b in runs)
+
+    def near_limit(self, y: np.ndarray, model: np.ndarray) -> int:
+        """How many samples at the start of part ``y`` of the record the curve fitted to it
+        (``model``) stays within ``NEAR_SIGMAS`` noise deviations (:func:`residual_noise`) of
+        the record's limits: there the noise still carries samples onto a limit now and then,
+        and those are cut off too (0 where the curve starts away from the limits)."""
+        y, model = np.asarray(y, dtype=float), np.asarray(model)
+        reach = NEAR_SIGMAS * residual_noise(y, model, np.isin(y, self.limits))
+        near = (model - self.limits[0] <= reach) | (self.limits[1] - model <= reach)
+        if not near.size or not near[0]:
+            return 0
+        away = np.flatnonzero(~near)
+        return int(away[0]) if away.size else int(near.size)
 
     def held_throughout(self, y: np.ndarray) -> bool:
         """Whether part ``y`` of the record lies at one of its limits from end to end
@@ -102,6 +112,16 @@ class Extremes:
         off screen, which alone cannot be told from a still trace."""
         y = np.asarray(y)
         return y.size >= FLAT_RUN and bool(np.all(y == self.limits[0]) or np.all(y == self.limits[1]))
+
+
+def residual_noise(y: np.ndarray, model: np.ndarray, held: np.ndarray) -> float:
+    """The noise of ``y`` about the curve ``model`` fitted to it: 1.4826·MAD of the first
+    differences of the residuals, left out where both samples are ``held`` at a limit,
+    divided by √2 (the differences take out the curve's slope and a smooth misfit; a fit's own
+    scatter is swollen by the held samples it misses). 0 with too few differences."""
+    free = ~(held[1:] & held[:-1])
+    steps = np.diff(y - model)[free]
+    return mad_sigma(steps) / math.sqrt(2.0) if steps.size >= MIN_NOISE_STEPS else 0.0
 
 
 def clipped_where_fitted(facts: "Extremes", y: np.ndarray, curve: np.ndarray, sigma: float) -> bool:
@@ -134,6 +154,9 @@ MOVING_CODES = 2.0
 MOVING_SIGMAS = 3.0
 #: Fewest first differences outside the held stretches that the noise is taken from.
 MIN_NOISE_STEPS = 10
+#: A curve within this many noise deviations of a limit still has samples cut off by it (the
+#: chance of a normal sample beyond 3σ is 0.13 %, common practice).
+NEAR_SIGMAS = 3.0
 
 
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
