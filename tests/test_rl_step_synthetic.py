@@ -90,14 +90,27 @@ def test_no_transition_is_refused_with_exit_4(tmp_path):
 
 
 @pytest.mark.parametrize("top", [0.8, 0.95])
-def test_trace_clipped_where_it_is_fitted_is_refused(top):
-    # the rising edges' last part cut off at the converter's top code: tau and the levels come
-    # from censored samples (L was 23 % low at 0.8 and 6 % low at 0.95 of the swing, each then
-    # only warned)
+def test_edges_whose_settled_level_is_off_screen_are_left_out(top):
+    # the high level off the top of the screen: each rising edge's window ends at the
+    # converter's top code, and was fitted so (L 23 % low at 0.8 and 6 % low at 0.95 of the
+    # swing, only warned). Those windows are left out with a warning; the falling edges, which
+    # start at the top code and come on screen, are fitted after it
     t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 100 * TAU)
     clipped = ScopeModel(noise_rms=1e-3, bits=8, full_scale=(-0.01, top * s.max())).apply(
         s, np.random.default_rng(1))
-    with pytest.raises(AnalysisRefused, match="sense trace is clipped where it is fitted"):
+    result = wavefit.analyze(frame(t, clipped), SENSE_ONLY)
+    assert any("edge window(s) left out: clipped at a converter limit" in w for w in result.warnings)
+    q = result.quantities["L"]
+    assert abs(q.value - L) < q.expanded_uncertainty
+
+
+@pytest.mark.parametrize("screen", [(0.1, 0.8), (0.05, 0.95)])
+def test_a_trace_clipped_in_every_window_is_refused(screen):
+    # both settled levels off screen: no window holds its exponential on screen
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 40, 100 * TAU)
+    low, high = (f * s.max() for f in screen)
+    clipped = ScopeModel(noise_rms=1e-3, bits=8, full_scale=(low, high)).apply(s, np.random.default_rng(1))
+    with pytest.raises(AnalysisRefused, match="sense trace is clipped where it is fitted in every edge window"):
         wavefit.analyze(frame(t, clipped), SENSE_ONLY)
 
 
