@@ -104,3 +104,13 @@ def test_model_check_reports_what_the_refits_reported(monkeypatch, sense_only):
             refitted = _late_check(frame, setup)
         assert projected.z == pytest.approx(refitted.z, abs=1e-3)
         assert projected.varied["late_windows"] == pytest.approx(refitted.varied["late_windows"], rel=1e-9)
+
+
+def test_a_channel_held_at_one_value_gives_no_answer_rather_than_a_division_by_zero():
+    # a drive held at a converter limit through a later window has no scatter: it was weighed
+    # by 1/0 (ZeroDivisionError, reported as "the analysis failed numerically"); the
+    # projection now leaves such a window to the fit
+    rng = np.random.default_rng(4)
+    sense, drive = window(rng, 400, 2, 1e-3)
+    held = WindowChannel(drive.group, drive.time, np.full(drive.time.size, 0.05))
+    assert white_window_tau([sense, held], 0.7) is None

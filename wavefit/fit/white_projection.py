@@ -97,8 +97,12 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
         if tau is None:
             return None
     if len(channels) > 1:
-        # the weights move the minimum by a fraction of tau's deviation, well within the bracket
-        tau = _minimum(projected_cost(elapsed, centred, fitted(tau)[2]), tau, TAU_TOLERANCE)
+        # the weights move the minimum by a fraction of tau's deviation, well within the bracket;
+        # a channel with no scatter at all (held at a converter limit throughout) has no weight
+        weights = fitted(tau)[2]
+        if not all(s > 0 for s in weights):
+            return None
+        tau = _minimum(projected_cost(elapsed, centred, weights), tau, TAU_TOLERANCE)
         if tau is None:
             return None
     residuals, amplitudes, scatters = fitted(tau)
