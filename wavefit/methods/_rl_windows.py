@@ -103,6 +103,18 @@ def after_held_starts(t, sense, drive, windows, fits, facts, noise, source, fit_
         moved += w.start != start
         out_w.append(w)
         out_f.append(f)
+    # a channel held at a limit through a whole window, where its noise in the other windows
+    # spans more than a code, cannot have sat still there: it was off screen (a settled level
+    # beyond the screen)
+    for group, y in channels.items():
+        whole = [facts[group].held_throughout(y[w.start:w.stop]) for w in out_w]
+        others = [f.noise_sigma[group] for f, held in zip(out_f, whole) if not held]
+        code = facts[group].code or facts[group].smallest_gap or 0.0
+        if any(whole) and others and code and float(np.median(others)) > code:
+            clipped.add(group)
+            dropped += sum(whole)
+            out_w = [w for w, held in zip(out_w, whole) if not held]
+            out_f = [f for f, held in zip(out_f, whole) if not held]
     if not out_w:
         group = sorted(clipped)[0]
         raise AnalysisRefused(f"{source}: the {group} trace is clipped where it is fitted in every edge window (held "
