@@ -189,9 +189,11 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
     stop = _time_option(method, setup, "fit_end", t)
     try:
         ring = fit_ring(t, y, start=start, stop=stop, noise=noise)
-        after = _after_clipping(ring, y, channel.levels.step) if start is None else None
+        clipped = _clipped(ring, y, channel.levels.step)
+        after = _after_clipping(ring, y) if clipped and start is None else None
         if after is not None:
             ring = fit_ring(t, y, start=after, stop=ring.stop, noise=noise)
+            clipped = _clipped(ring, y, channel.levels.step)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
         raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
                               "check the [columns] tank entry and that the record holds the ring") from None
@@ -202,7 +204,7 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
     if clipping:
         warnings.append(clipping)
     try:
-        info = _checks(ring, t, y, channel.levels.step, capture.source, warnings, noise)
+        info = _checks(ring, t, y, clipped, capture.source, warnings, noise)
     except AnalysisRefused as exc:
         if not clipping:
             raise
@@ -222,12 +224,10 @@ def _clipped(ring: DampedSineFit, y: np.ndarray, code: float | None) -> bool:
             or piles_up_at_limit(seg_y, sigma, window_code))
 
 
-def _after_clipping(ring: DampedSineFit, y: np.ndarray, code: float | None) -> int | None:
+def _after_clipping(ring: DampedSineFit, y: np.ndarray) -> int | None:
     """Where a clipped ring's window should start (the sample after the last one at a clipped
-    extreme: a ring decays, so its clipped peaks come first), or None when it is not clipped,
-    or when too little of the window would be left (:data:`MIN_SAMPLES`)."""
-    if not _clipped(ring, y, code):
-        return None
+    extreme: a ring decays, so its clipped peaks come first), or None when no extreme holds a
+    pile of samples, or when too little of the window would be left (:data:`MIN_SAMPLES`)."""
     seg_y = y[ring.start:ring.stop]
     held = np.zeros(seg_y.size, dtype=bool)
     for extreme in (seg_y.max(), seg_y.min()):
@@ -252,10 +252,10 @@ def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> 
     return split * d_max
 
 
-def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | None, source: str,
+def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, clipped: bool, source: str,
             warnings: list[str], noise: str) -> RingSummary:
-    """The fit's diagnostics with its model check (appending to ``warnings``); ``code`` is the
-    record's converter step (None for continuous values)."""
+    """The fit's diagnostics with its model check (appending to ``warnings``); ``clipped`` is
+    :func:`_clipped` of the ring, found once by the caller."""
     dt = ring.sample_interval
     sigma = ring.fit.noise_sigma["tank"]
     amp = ring.amplitude
@@ -281,7 +281,7 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, code: float | Non
                               "alias): f0 and L cannot be told from it; sample at least "
                               f"{FEW_SAMPLES_PER_PERIOD:g} times per period")
     seg_y = y[ring.start:ring.stop]
-    if _clipped(ring, y, code):
+    if clipped:
         warnings.append("the trace is clipped at the converter's limit: change the vertical scale so the "
                         "whole ring fits on screen")
     halves = _halves(ring, y, noise)
