@@ -85,8 +85,9 @@ def after_held_starts(t, sense, drive, windows, fits, facts, noise, source, fit_
         for attempt in range(HELD_STARTS + 1):
             seg = slice(w.start, w.stop)
             curves = {group: window_model(f, group, t[seg]) for group in channels}
-            here |= {group for group, y in channels.items()
-                     if clipped_where_fitted(facts[group], y[seg], curves[group], f.noise_sigma[group])}
+            now = {group for group, y in channels.items()
+                   if clipped_where_fitted(facts[group], y[seg], curves[group], f.noise_sigma[group])}
+            here |= now
             skip = max((max(leading_held(channels[g][seg], facts[g].limits), facts[g].near_limit(channels[g][seg],
                                                                                                   curves[g]))
                         for g in here), default=0)
@@ -95,9 +96,7 @@ def after_held_starts(t, sense, drive, windows, fits, facts, noise, source, fit_
             w = dataclasses.replace(w, start=w.start + skip)
             f = fit_window(t, sense, drive, w, noise, source)
         clipped |= here
-        seg = slice(w.start, w.stop)
-        if any(clipped_where_fitted(facts[g], channels[g][seg], window_model(f, g, t[seg]), f.noise_sigma[g])
-               for g in here):
+        if now:  # the loop ends on the window it last judged: still clipped there
             dropped += 1
             continue
         moved += w.start != start
