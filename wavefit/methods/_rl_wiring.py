@@ -65,10 +65,11 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
     """
     if drive is None or not edges:
         return
+    sense_levels = sense_levels or state_levels(sense)
     drive_levels = state_levels(drive)
     drive_edges = find_edges(t, drive, drive_levels)
     dt = float(t[1] - t[0])
-    if not drive_edges and not _jumps_at_edges(t, drive, edges, dt, sense, sense_levels or state_levels(sense)):
+    if not drive_edges and not _jumps_at_edges(t, drive, edges, dt, sense, sense_levels):
         ends = [edge.t10 for edge in edges[1:]] + [float(t[-1])]
         short = all(end - edge.t10 < SHORT_AFTER * edge.duration for edge, end in zip(edges, ends))
         raise AnalysisRefused(
@@ -78,7 +79,7 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
                "edge or the record's end hides its jump): record 5 tau or more after an edge" if short else ""))
     # a drive with no edges of its own got here by jumping at the sense edges
     drive_jumps = not drive_edges or _jumps(t, drive, drive_edges, drive_levels.amplitude, dt)
-    if _jumps(t, sense, edges, (sense_levels or state_levels(sense)).amplitude, dt) and not drive_jumps:
+    if _jumps(t, sense, edges, sense_levels.amplitude, dt) and not drive_jumps:
         raise AnalysisRefused(
             f"{source}: the sense channel jumps at its edges while the drive channel follows slowly: drive "
             "and sense look swapped in [columns] (the sense resistor's voltage cannot jump in an rl-step "
