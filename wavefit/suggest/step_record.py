@@ -31,15 +31,16 @@ from .rules import FAST_TRANSITION_SAMPLES, MAX_FIT_SAMPLES, MIN_WINDOW_SAMPLES,
 
 @dataclass(frozen=True)
 class SteppingChannel:
-    """A channel that switches between two states: its step between the state levels (IEEE Std
-    181 histogram method) and its switching instants (50 % crossings) with their direction."""
+    """A channel that switches between two states: its switching instants (50 % crossings
+    between the state levels, IEEE Std 181 histogram method) with their direction, its swing
+    (the record's range, highest less lowest value) and the median count of its samples
+    within the 10 %–90 % band at its transitions (:func:`_samples_in_transition`)."""
 
     channel: Channel
-    step: float
     instants: tuple[float, ...]
     directions: tuple[int, ...]
-    swing: float = 0.0  # the record's range, highest less lowest value
-    transition: float = math.inf  # median samples within the 10 %–90 % band at its transitions
+    swing: float
+    transition: float
 
 
 @dataclass(frozen=True)
@@ -91,8 +92,8 @@ def stepping_channels(capture: Capture) -> list[SteppingChannel]:
             continue
         levels = state_levels(y)
         instants = tuple(e.t50 for e in edges)
-        found.append(SteppingChannel(channel, levels.amplitude, instants, tuple(e.direction for e in edges),
-                                     float(np.ptp(y)), _samples_in_transition(capture.time, y, instants, levels)))
+        found.append(SteppingChannel(channel, instants, tuple(e.direction for e in edges), float(np.ptp(y)),
+                                     _samples_in_transition(capture.time, y, instants, levels)))
     return sorted(found, key=lambda s: -s.swing)
 
 
