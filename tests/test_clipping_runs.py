@@ -40,3 +40,16 @@ def test_values_printed_with_few_digits_do_not_pile_up_at_their_extreme():
     clipped = np.minimum(noisy, 0.255)
     assert piles_up_at_limit(clipped, 0.002, None)
     assert piles_up_at_limit(np.array([float(f"{v:.2e}") for v in clipped]), 0.002, None)
+
+
+def test_a_few_samples_on_the_extreme_code_are_no_pile_up():
+    # noise over several codes: 5 samples on the record's top code and 1 one code inside happen
+    # by chance (1 in 9 for samples equally likely on either), as the first samples after a
+    # drive's rising edges did in a clean record; 15 against 2 do not (a chance of 0.0012)
+    from wavefit.signal.clipping import piles_up_at_limit
+
+    code = 0.01
+    body = np.repeat(np.arange(-20, 19) * code, 40)
+    for top, inside, piled in ((5, 1, False), (15, 2, True)):
+        y = np.concatenate([body, np.full(inside, 19 * code), np.full(top, 20 * code)])
+        assert piles_up_at_limit(y, 3 * code, code) == piled
