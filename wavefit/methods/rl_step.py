@@ -346,14 +346,20 @@ class RLStep(Method):
         windows = []
         for k, e in enumerate(edges):
             start = int(np.searchsorted(t, t0s[k] + skip))
+            # the window ends before the next switching instant: the next edge's, or where the trace
+            # leaves the state in a transition that is no edge (the record ends in it, or it turns
+            # back), placed from its near reference-level instant as an edge's t0 is from its t10
+            ends = [(t0s[k + 1], edges[k + 1].tau)] if k + 1 < len(edges) else []
+            if math.isfinite(e.left_at):
+                ends.append((e.left_at - e.tau * math.log(10.0 / 9.0), e.tau))
             stop = t.size
-            if k + 1 < len(edges):
+            for t_next, tau_next in ends:
                 end = 2.0 * dt + edge_time
-                if drive is None and edges[k + 1].tau >= FIRST_PASS_MARGIN_FROM * dt:
+                if drive is None and tau_next >= FIRST_PASS_MARGIN_FROM * dt:
                     # the next instant is then the reference-level estimate, late on long records
                     # (FIRST_PASS_END_MARGIN): end the window before it can reach the next edge
-                    end += FIRST_PASS_END_MARGIN * edges[k + 1].tau
-                stop = int(np.searchsorted(t, t0s[k + 1] - end))
+                    end += FIRST_PASS_END_MARGIN * tau_next
+                stop = min(stop, int(np.searchsorted(t, t_next - end)))
             if stop - start >= MIN_WINDOW_SAMPLES and (t[min(stop, t.size) - 1] - t0s[k]) >= LEAST_TAU_AFTER_EDGE * e.tau:
                 windows.append(Window(e, t0s[k], start, stop))
         if not windows:

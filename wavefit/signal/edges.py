@@ -10,7 +10,7 @@ t10 = t0 + tau·ln(10/9): both give a starting tau and the switching instant t0.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -23,12 +23,20 @@ LN9 = math.log(9.0)
 
 @dataclass(frozen=True)
 class Edge:
-    """One transition: direction (+1 rising), 10/50/90 % instants, and the estimated start t0."""
+    """One transition: direction (+1 rising), 10/50/90 % instants, and the estimated start t0.
+
+    ``left_at`` is where the trace next leaves the state this transition reached in a
+    transition that is not an edge (the record ends before it reaches its far reference
+    level, or it turns back before): the last near reference-level instant before that
+    transition's 50 % crossing (its own 50 % crossing when there is none); infinite when
+    the next crossing is the next edge or there is none. A part of the record fitted as
+    this edge's relaxation must end before it."""
 
     direction: int
     t10: float
     t50: float
     t90: float
+    left_at: float = math.inf
 
     @property
     def duration(self) -> float:
@@ -126,6 +134,9 @@ def find_edges(t: np.ndarray, y: np.ndarray, levels: StateLevels | None = None,
         t10 = _instant(t, y, levels.reference(10.0 if c.direction > 0 else 90.0), lo, i50, last=True)
         t90 = _instant(t, y, levels.reference(90.0 if c.direction > 0 else 10.0), i50, hi, last=False)
         if t10 is None or t90 is None:
+            if edges and math.isinf(edges[-1].left_at):
+                # a transition that is not an edge still ends the state the last edge reached
+                edges[-1] = replace(edges[-1], left_at=c.time if t10 is None else t10)
             continue
         edges.append(Edge(c.direction, t10, c.time, t90))
     return edges
