@@ -134,3 +134,17 @@ def test_a_column_from_another_file_is_refused_for_several_captures(tmp_path):
                         "parts": {"tank_capacitor": "10 nF"}})
     with pytest.raises(SetupError, match="several captures"):
         get_method("lc-sweep").check_setup(setup)
+
+
+def test_a_stray_capacitance_per_capture_is_refused():
+    # lc-sweep takes the stray capacitance as common to every capture (it moves the line's
+    # intercept only); written in the [[captures]] entries it was accepted and ignored, and C
+    # read 34.0 ± 1.9 pF for a coil of 22 pF with exit 0
+    from wavefit.errors import SetupError
+
+    frame = pd.DataFrame({"t": np.arange(100) * 1e-6, "tank": np.zeros(100)})
+    setup = {"method": "lc-sweep", "columns": {"time": "t", "tank": "tank"},
+             "captures": [{"file": "a.csv", "tank_capacitor": "100 pF", "stray_capacitance": "12 pF"},
+                          {"file": "b.csv", "tank_capacitor": "220 pF", "stray_capacitance": "12 pF"}]}
+    with pytest.raises(SetupError, match="'stray_capacitance' in \\[\\[captures\\]\\] entry 1.*once, in \\[parts\\]"):
+        wavefit.analyze([frame, frame], setup=setup)

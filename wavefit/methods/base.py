@@ -24,7 +24,7 @@ from ..outputs import Curve, Output, scalar_names
 from ..results import AnalysisResult
 from ..setup import GAIN_KEY_PREFIX, INSTRUMENT_KEYS, Setup, check_names, parse_time_option
 from ..uncertainty import InputSet, Propagation, propagate_outputs, unit_variables
-from ..values import PartValue
+from ..values import PartValue, eng_pm
 from .estimate import Estimate
 
 #: How far below zero, in expanded uncertainties, a quantity of ``not_negative`` may come out
@@ -81,6 +81,11 @@ class Method:
     determined: ClassVar[tuple[str, ...]] = ()
     #: What to check when a result is refused as not determined by the capture.
     undetermined_hint: ClassVar[str] = ""
+    #: Parts that hold for every capture of a measurement and enter its result once (lc-sweep's
+    #: stray capacitance moves the line's intercept only): a ``[[captures]]`` entry that gives one
+    #: is a setup error, since the method would not use it there (it was ignored: C read 34 ± 2 pF
+    #: for 22 pF).
+    common_parts: ClassVar[tuple[str, ...]] = ()
     #: Outputs a measurement may not give (a saturation current the pulse did not reach): the
     #: model returns ``None`` for them, the result omits them and the estimate's warnings say why.
     optional: ClassVar[tuple[str, ...]] = ()
@@ -160,6 +165,11 @@ class Method:
         for index, entry in enumerate(setup.captures):
             check_names(entry.parts, ("file", *self.parts), f"key in [[captures]] entry {index + 1}",
                         setup.source)
+            for part_name in self.common_parts:
+                if part_name in entry.parts:
+                    raise SetupError(f"{setup.source}: part {part_name!r} in [[captures]] entry {index + 1}: "
+                                     f"method {self.name!r} takes it as common to every capture; give it once, "
+                                     "in [parts]")
             for part_name, part in entry.parts.items():
                 self._check_unit(setup, part_name, part)
         for part_name in setup.parts:
@@ -230,6 +240,19 @@ class Method:
                     f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}: the capture does not "
                     f"determine it (the interval takes in zero); {self.undetermined_hint}")
 
+    def unresolved(self, quantities: Mapping[str, Any]) -> tuple[str, ...]:
+        """One warning naming the reported quantities, other than those of :attr:`determined`
+        (which are refused instead), whose expanded uncertainty reaches their value: the interval
+        takes in zero, so the capture says nothing of them (a ring that fills a record with 3 % of
+        its decay printed Q = 31 ± 346 k and R = 7 ± 78 mΩ without a word)."""
+        loose = [f"{name} = {eng_pm(q.value, q.expanded_uncertainty, q.unit)}" for name, q in quantities.items()
+                 if name not in self.determined and math.isfinite(q.value) and q.expanded_uncertainty >= abs(q.value)]
+        if not loose:
+            return ()
+        what = "is" if len(loose) == 1 else "are"
+        return (f"{', '.join(loose)} {what} not determined by this measurement (the expanded uncertainty reaches "
+                "the value): read as unknown",)
+
     @staticmethod
     def channel(capture: Capture, setup: Setup, role: str) -> Channel:
         """The channel the setup maps ``role`` to."""
@@ -294,6 +317,7 @@ class Method:
         declared = {name: out for name, out in self.outputs.items() if isinstance(out, Curve) and name in names}
         curves = propagate_curves(inputs, outputs, declared, estimate.axes, variables)
         warnings = (*estimate.warnings, *substitution_warnings, *self.review(estimate, inputs, prop),
+                    *self.unresolved(prop.quantities),
                     *(() if channels is None or channels.too_old is None else (channels.too_old,)))
         result = AnalysisResult(self.name, measurement.source, prop.quantities, prop.budget, estimate.fit,
                                 tuple(dict.fromkeys(warnings)), prop.correlation, estimate.plot,

@@ -130,6 +130,7 @@ class LcSweep(Method):
     outputs = {"L": Scalar("H"), "C": Scalar("F"), "srf": Scalar("Hz")}
     positive = ("L",)
     determined = ("L",)
+    common_parts = ("stray_capacitance",)
     undetermined_hint = ("check each capture's tank_capacitor (a wrong value puts its point off the line of "
                          "1/w0² against C and swells U) and that the capacitors are far enough apart")
     unphysical_hint = "check each capture's tank_capacitor and that every capture holds a free ring"
