@@ -215,3 +215,20 @@ def test_a_coil_loss_the_ring_cannot_resolve_is_warned(seed):
         q = result.quantities[name]
         assert q.expanded_uncertainty >= q.value
     assert result.quantities["L"].expanded_uncertainty < 0.02 * result.quantities["L"].value
+
+
+def test_a_tank_without_its_load_or_stray_capacitance_is_warned():
+    # without parallel_load the load's damping is counted as the coil's (Q = Q_loaded: 30 read
+    # for a coil of Q 342); without stray_capacitance on a small tank capacitor the probe's input
+    # alone moves L by many standard uncertainties (1.340 ± 0.015 mH read for 1.000 mH on 100 pF)
+    setup = {"method": "lc-ring", "columns": {"time": "t", "tank": "v"}, "parts": {"tank_capacitor": "10 nF ±1%"}}
+    result = wavefit.analyze(_frame(), setup=setup)
+    assert any(w.startswith("no parallel_load given") for w in result.warnings)
+    assert result.value("Q") == pytest.approx(result.value("Q_loaded"))
+    assert not any("stray_capacitance" in w for w in result.warnings)  # 12 pF is 0.12 % of 10 nF, U 1.2 %
+    small = Tank(inductance=100e-6, tank_capacitor=100e-12, dcr=2.0, feed_resistance=2e6)
+    setup = {"method": "lc-ring", "columns": {"time": "t", "tank": "v"},
+             "parts": {"tank_capacitor": "100 pF ±0.1%", "parallel_load": "2 Mohm ±1%"}}
+    result = wavefit.analyze(_frame(small, noise=0.002), setup=setup)
+    stray = [w for w in result.warnings if w.startswith("no stray_capacitance given")]
+    assert len(stray) == 1 and "12 % high" in stray[0]

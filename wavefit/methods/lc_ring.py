@@ -51,6 +51,11 @@ LOAD_SHARE_REFUSED = 0.95
 LOSS_SPLIT = InputQuantity("coil loss split", 0.5, 0.5 / math.sqrt(3.0), "", "B", distribution="rectangular")
 
 
+#: The input capacitance of a 10:1 passive scope probe, about 10–15 pF (common practice; from
+#: memory): the least capacitance across a probed tank besides its capacitor.
+TYPICAL_PROBE_CAPACITANCE = 12e-12
+
+
 @register
 class LcRing(Method):
     """Ring-down of a tank with a known capacitor: f0, Q, L and loss resistance."""
@@ -89,16 +94,35 @@ class LcRing(Method):
         model = np.full_like(meas.data, np.nan)
         meas.ring.on_window(out=model[meas.ring.start:meas.ring.stop])
         plot = TracePlot(meas.time, (("tank", meas.unit, meas.data, model),))
+        warnings = meas.warnings
+        if "parallel_load" not in present:
+            # a tank is always loaded (its feed resistor, the probe's input): without the load, its
+            # damping is counted as the coil's (Q 30 read for a coil of Q 342 behind 45 kΩ)
+            warnings = (*warnings, "no parallel_load given: Q and R include the damping by everything across the "
+                        "tank (feed resistor, probe input), so Q is the loaded Q; give parallel_load for the "
+                        "coil's own Q and R")
         return Estimate((block,), replace(meas.info, coil_loss=coil_loss), extra,
-                        {"present": present, "coil_loss": coil_loss}, meas.warnings, plot,
+                        {"present": present, "coil_loss": coil_loss}, warnings, plot,
                         meas.model_check.adequate)
 
     def model(self, x: Mapping[str, Any], settings: Mapping[str, Any]) -> dict[str, Any]:
         return ring_model(x, settings["present"], settings["coil_loss"])
 
     def review(self, estimate: Estimate, inputs: InputSet, propagation: Propagation) -> tuple[str, ...]:
-        return loss_split_warning(inputs, estimate.settings["present"], estimate.settings["coil_loss"],
-                                  propagation.quantities["L"].standard_uncertainty)
+        inductance = propagation.quantities["L"]
+        out = loss_split_warning(inputs, estimate.settings["present"], estimate.settings["coil_loss"],
+                                 inductance.standard_uncertainty)
+        if "stray_capacitance" not in estimate.settings["present"]:
+            # L = 1/(w²·C): a capacitance left out of C makes L read high by its share of C
+            tank = next(i.value for i in inputs.inputs if i.name == "tank_capacitor")
+            shift = TYPICAL_PROBE_CAPACITANCE / tank
+            if shift * inductance.value > inductance.standard_uncertainty:
+                out = (*out, f"no stray_capacitance given: the probe's input alone (about "
+                       f"{TYPICAL_PROBE_CAPACITANCE * 1e12:.0f} pF) would make L read {100 * shift:.2g} % high, "
+                       f"{shift * inductance.value / inductance.standard_uncertainty:.2g} standard uncertainties, "
+                       "and the coil's own capacitance adds to it; give stray_capacitance (an lc-sweep measures "
+                       "the coil's)")
+        return out
 
 
 def ring_model(v: Mapping[str, Any], present: tuple[str, ...], coil_loss: str) -> dict[str, Any]:
