@@ -38,6 +38,16 @@ def test_unknown_option_is_usage_error():
     assert code == 2
 
 
+@pytest.mark.parametrize("args", [("analyze", "--frobnicate"), ("analyze", "x.csv"), ("frobnicate",),
+                                  ("analyze", "x.csv", "--setup", "x.toml", "--json", "--csv"),
+                                  ("analyze", "x.csv", "--setup", "x.toml", "--sample-interval", "-1e-9")])
+def test_a_usage_error_is_one_line(args):
+    # argparse printed its whole usage block before the error (six lines for analyze); every
+    # error is one line that says what was found, here with where to read the usage
+    code, out, err = run(*args)
+    assert code == 2 and out == "" and err.count("\n") == 1 and "error:" in err and "--help" in err
+
+
 def test_json_and_csv_together_is_usage_error(capture_file):
     # one output format per run: a run asked for both would silently print only one
     code, out, err = run("analyze", str(capture_file), "--setup", "x.toml", "--json", "--csv")

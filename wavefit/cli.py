@@ -9,7 +9,7 @@ import argparse
 import json
 import sys
 from pathlib import Path
-from typing import Sequence
+from typing import NoReturn, Sequence
 
 from . import __version__
 from .batch.arguments import add_batch_parser
@@ -38,8 +38,16 @@ def _draws(text: str) -> int:
     return value
 
 
+class OneLineParser(argparse.ArgumentParser):
+    """An argument parser whose usage errors are one line on stderr, as every other error is
+    (argparse prints the whole usage block first: six lines for ``analyze``), and exit 2."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = OneLineParser(
         prog="wavefit",
         description="Measure inductors (L, DCR, Q, self-capacitance) from recorded scope waveforms.",
     )
