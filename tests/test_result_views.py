@@ -15,6 +15,7 @@ from pathlib import Path
 
 import lmfit
 import numpy as np
+import pandas as pd
 import pytest
 from uncertainties import correlation_matrix, covariance_matrix
 
@@ -200,3 +201,19 @@ def test_a_result_pickles_without_its_propagation(ring_result):
     back = pickle.loads(pickle.dumps(ring_result))
     assert back == ring_result and back.propagation is None
     assert back.to_dict() == ring_result.to_dict()
+
+
+def test_an_exact_input_has_a_share_of_zero_not_minus_zero():
+    # an input given as exact (u = 0) with a negative sensitivity (f0 falls as the timebase
+    # factor grows) printed "share =  -0.00 %" in the budget
+    from wavefit.synth.lc import Tank, ringdown
+
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=2.0, feed_resistance=20e3)
+    alpha, w_d = tank.poles()
+    t, v = ringdown(tank, 2 * math.pi / (w_d * 30), 3000, pre_trigger=50)
+    v = v + 0.01 * np.abs(v).max() * np.random.default_rng(1).standard_normal(v.size)
+    setup = {"method": "lc-ring", "columns": {"time": "t", "tank": "v"},
+             "parts": {"tank_capacitor": "10 nF ±1%", "parallel_load": "20 kohm ±1%"},
+             "instrument": {"timebase": "exact", "vertical_gain": "exact"}}
+    text = render(wavefit.analyze(pd.DataFrame({"t": t, "v": v}), setup=setup))
+    assert "timebase" in text and "share =   0.00 %" in text and "-0.00" not in text

@@ -39,7 +39,7 @@ def render(result: AnalysisResult, budget: bool = True) -> str:
             lines.append(f"  {name}:")
             for e in sorted(entries, key=lambda e: -abs(e.variance_share)):
                 lines.append(f"    {e.source:<28} {e.kind}  u = {eng(e.standard_uncertainty, e.unit, 3):<12} "
-                             f"contrib = {eng(e.contribution, unit, 3):<12} share = {100 * e.variance_share:6.2f} %"
+                             f"contrib = {eng(e.contribution, unit, 3):<12} share = {_percent(e.variance_share)} %"
                              + (f"  ({e.origin})" if e.origin is not None else ""))
     fit_lines = [f"  {key}: {value:.6g}" if isinstance(value, float) else f"  {key}: {value}"
                  for key, value in shown_details(result.fit)]
@@ -74,3 +74,10 @@ def _model_check_lines(result: AnalysisResult) -> list[str]:
     for source in check.inadequate_captures:
         lines.append(f"  ring {source}: its model check failed (see its warnings)")
     return lines
+
+
+def _percent(share: float) -> str:
+    """A variance share in per cent to two decimals, a share that rounds to zero as 0.00 (an exact
+    input's share, 0 times a negative sensitivity, printed as -0.00)."""
+    percent = 100.0 * share
+    return f"{0.0 if round(percent, 2) == 0 else percent:6.2f}"
