@@ -91,8 +91,12 @@ def test_sources_of_a_measurement():
     count = get_method("lc-sweep").capture_count
     sources, entries = capture_sources(None, setup, count)
     assert sources == [entry.file for entry in setup.captures] and entries == setup.captures
-    sources, entries = capture_sources(("x.csv", "y.csv"), setup, count)  # not one per entry: unbound
-    assert sources == ["x.csv", "y.csv"] and entries is None
+    sources, entries = capture_sources(("x.csv", "y.csv", "z.csv"), setup, count)  # one per entry, in order
+    assert sources == ["x.csv", "y.csv", "z.csv"] and entries == setup.captures
+    # not one per entry: the captures cannot be bound to the entries' parts (they had been taken
+    # with the setup's parts only, and refused as "no tank_capacitor for this capture")
+    with pytest.raises(SetupError, match="two capture\\(s\\) given for 3 \\[\\[captures\\]\\] entries"):
+        capture_sources(("x.csv", "y.csv"), setup, count)
     with pytest.raises(wavefit.AnalysisRefused) as err:
         capture_sources(["a.csv"], setup, count)
     assert "lc-sweep needs at least two captures with different tank capacitors" in str(err.value)

@@ -182,7 +182,13 @@ def capture_sources(source: Any, setup: Setup, count: CaptureCount
         reason = f" {count.reason}" if count.reason else ""
         raise AnalysisRefused(f"{setup.source}: {setup.method} needs {count.describe()}{reason}, "
                               f"got {_count_word(len(sources))}")
-    return sources, (setup.captures if len(sources) == len(setup.captures) else None)
+    if len(sources) != len(setup.captures):
+        # the sources replace the entries' files in order: another number cannot be bound to their
+        # parts (each capture then had none of its own: "no tank_capacitor for this capture")
+        raise SetupError(f"{setup.source}: {_count_word(len(sources))} capture(s) given for {len(setup.captures)} [[captures]] "
+                         "entries; the captures given replace the entries' files in order, so give one per entry, "
+                         "or none to read the entries' own files")
+    return sources, setup.captures
 
 
 def _count_word(count: int) -> str:
