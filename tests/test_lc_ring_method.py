@@ -232,3 +232,40 @@ def test_a_tank_without_its_load_or_stray_capacitance_is_warned():
     result = wavefit.analyze(_frame(small, noise=0.002), setup=setup)
     stray = [w for w in result.warnings if w.startswith("no stray_capacitance given")]
     assert len(stray) == 1 and "12 % high" in stray[0]
+
+
+def test_a_refusal_names_the_file_and_the_readers_warning(tmp_path):
+    # a time column in µs under a header without a unit is read as seconds (the reader warns);
+    # the ring then decays a million times too slowly for its load and is refused, and the
+    # refusal said neither which file nor that warning, its cause
+    frame = _frame()
+    path = tmp_path / "ring_us.csv"
+    pd.DataFrame({"Time": frame["t"] * 1e6, "v": frame["v"]}).to_csv(path, index=False)
+    setup = {**SETUP, "columns": {"time": "Time", "tank": "v"}}
+    with pytest.raises(wavefit.AnalysisRefused) as err:
+        wavefit.analyze(path, setup=setup)
+    message = str(err.value)
+    assert str(path) in message and "the reader had warned: time column 'Time' has no unit" in message
+    assert "\n" not in message
+
+
+def test_an_undetermined_l_names_the_part_that_holds_its_variance():
+    # a tank capacitor written "±100%" leaves L undetermined; the refusal blamed the capture
+    # ("check that the capture holds several periods of the ring")
+    setup = {**SETUP, "parts": {"tank_capacitor": "10 nF ±100%", "parallel_load": "20 kohm ±1%"}}
+    with pytest.raises(wavefit.AnalysisRefused, match="not determined.*% of its variance from tank_capacitor"):
+        wavefit.analyze(_frame(), setup=setup)
+
+
+@pytest.mark.parametrize("fit_start", [None, "2 us"])
+def test_a_weak_fitted_ring_points_at_the_window(fit_start):
+    # a window that holds little of the ring was refused as "the ring's amplitude is 2.2 times
+    # the noise rms" for a ring 55 times its noise (a fit_start in the pre-trigger baseline), and
+    # an automatic window that missed a ring 7.5 times its noise likewise; the refusal now says
+    # which window to check. Here the record holds noise only.
+    frame = pd.DataFrame({"t": np.arange(3000) * 1e-8, "v": np.random.default_rng(5).normal(0, 0.01, 3000)})
+    setup = {**SETUP, "options": {} if fit_start is None else {"fit_start": fit_start}}
+    with pytest.raises(wavefit.AnalysisRefused) as err:
+        wavefit.analyze(frame, setup=setup)
+    hint = "automatic window missed the ring" if fit_start is None else "check fit_start and fit_end"
+    assert hint in str(err.value)

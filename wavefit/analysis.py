@@ -3,6 +3,8 @@ from __future__ import annotations
 
 import math
 import os
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from typing import Any, Mapping, Sequence
 
@@ -51,7 +53,8 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     if uncertainty not in UNCERTAINTY_MODES:
         raise SetupError(f"uncertainty must be one of {', '.join(UNCERTAINTY_MODES)}, got {uncertainty!r}")
     prepared = prepare(source, load_setup(setup), sample_interval)
-    with collected() as numerical, numerical_failures_refused(prepared.captures):
+    with refusals_with_the_capture(prepared.captures), collected() as numerical, \
+            numerical_failures_refused(prepared.captures):
         result = prepared.method.analyze(prepared.measurement, prepared.setup)
     remark = numerical.remark()
     if remark is not None:
@@ -219,6 +222,28 @@ def with_time_axis_uncertainty(setup: Setup, captures: Sequence[Capture]) -> Set
     combined = math.hypot(figure.standard_uncertainty, u_axis)
     text = f"{figure.text} with the rebuilt time axis (u = {u_axis:.2g})"
     return replace(setup, timebase=RelativeFigure(combined, text, 1.0))
+
+
+@contextmanager
+def refusals_with_the_capture(captures: Sequence[Capture]) -> Iterator[None]:
+    """A refusal of the analysis names the capture when its message does not, and carries the
+    reader's first warning, which is often its cause (a time column in µs without a unit, read
+    as seconds, was refused as "the parallel_load ... explains 40831921 % of the measured
+    damping", with neither the file nor the warning said)."""
+    try:
+        yield
+    except AnalysisRefused as exc:
+        message = str(exc)
+        sources = [str(c.source) for c in captures]
+        if not any(source in message for source in sources):
+            message = f"{', '.join(sources)}: {message}"
+        warned = [w for c in captures for w in c.warnings]
+        if warned:
+            more = f" (and {len(warned) - 1} more)" if len(warned) > 1 else ""
+            message = f"{message}; the reader had warned{more}: {warned[0]}"
+        if message == str(exc):
+            raise
+        raise AnalysisRefused(message) from exc
 
 
 def with_capture_remarks(result: AnalysisResult, captures: Sequence[Capture]) -> AnalysisResult:

@@ -204,7 +204,8 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
     if clipping:
         warnings.append(clipping)
     try:
-        info = _checks(ring, t, y, clipped, capture.source, warnings, noise)
+        info = _checks(ring, t, y, clipped, capture.source, warnings, noise,
+                       window_given=start is not None or stop is not None)
     except AnalysisRefused as exc:
         if not clipping:
             raise
@@ -253,22 +254,27 @@ def loss_correction(alpha_c: Any, g: Any, coil_loss: str, split: Any = None) -> 
 
 
 def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, clipped: bool, source: str,
-            warnings: list[str], noise: str) -> RingSummary:
+            warnings: list[str], noise: str, window_given: bool = False) -> RingSummary:
     """The fit's diagnostics with its model check (appending to ``warnings``); ``clipped`` is
-    :func:`_clipped` of the ring, found once by the caller."""
+    :func:`_clipped` of the ring, found once by the caller; ``window_given`` whether fit_start
+    or fit_end set the window (a ring too weak for its noise may be a window that missed it:
+    one set in the pre-trigger baseline, or an automatic one on a ring a few times the noise,
+    which fit_start then measured)."""
     dt = ring.sample_interval
     sigma = ring.fit.noise_sigma["tank"]
     amp = ring.amplitude
     spp = 2 * math.pi / (ring.w_d * dt)
+    window = ("check fit_start and fit_end: the window they set may hold little of the ring" if window_given
+              else "or the automatic window missed the ring: set fit_start (and fit_end) around it")
     if not amp > MIN_AMPLITUDE_TO_NOISE * sigma:
-        raise AnalysisRefused(f"{source}: the ring's amplitude is {amp / sigma:.1f} times the noise rms; "
-                              f"no trustworthy fit below {MIN_AMPLITUDE_TO_NOISE:g} (raise the excitation or "
-                              "average captures)")
+        raise AnalysisRefused(f"{source}: the ring's amplitude in the fitted window is {amp / sigma:.1f} times the "
+                              f"noise rms; no trustworthy fit below {MIN_AMPLITUDE_TO_NOISE:g} (raise the excitation "
+                              f"or average captures; {window})")
     n_visible = math.log(amp / (2.0 * sigma)) / (ring.alpha * dt) if ring.alpha > 0 else math.inf
     visible = min(n_visible, ring.stop - ring.start) / spp
     if visible < MIN_CYCLES:
         raise AnalysisRefused(f"{source}: only {visible:.1f} cycles stand above the noise; a ring fit needs "
-                              f"at least {FEW_CYCLES:g} (use a smaller feed-resistor load or less damping)")
+                              f"at least {FEW_CYCLES:g} (use a smaller feed-resistor load or less damping; {window})")
     if visible < FEW_CYCLES:
         warnings.append(f"too few cycles: {visible:.1f} stand above the noise ({FEW_CYCLES:g} or more are needed "
                         "for a reliable frequency and damping)")

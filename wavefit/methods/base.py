@@ -236,9 +236,19 @@ class Method:
                     f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}, which "
                     f"{what}: no measurement of a real part; {self.unphysical_hint}")
             if name in self.determined and expanded >= abs(value):
-                raise AnalysisRefused(
-                    f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}: the capture does not "
-                    f"determine it (the interval takes in zero); {self.undetermined_hint}")
+                raise AnalysisRefused(f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}: "
+                                      f"{self._undetermined_cause(result, name)}")
+
+    def _undetermined_cause(self, result: AnalysisResult, name: str) -> str:
+        """Why a quantity is not determined and what to check: the input given by the setup
+        (type B) that holds most of its variance when one holds most of it (a tank capacitor
+        written "±100%" was blamed on the capture), else :attr:`undetermined_hint`."""
+        entries = result.budget.get(name, ())
+        top = max(entries, key=lambda e: e.variance_share, default=None)
+        if top is not None and top.kind == "B" and top.variance_share > 0.5:
+            return (f"it is not determined (the interval takes in zero), {100 * top.variance_share:.0f} % of its "
+                    f"variance from {top.source}; check its value and uncertainty in the setup")
+        return f"the capture does not determine it (the interval takes in zero); {self.undetermined_hint}"
 
     def unresolved(self, quantities: Mapping[str, Any]) -> tuple[str, ...]:
         """One warning naming the reported quantities, other than those of :attr:`determined`
