@@ -281,7 +281,8 @@ def written_tolerances(draw, unit):
     if draw(st.booleans()):  # u=a: the standard uncertainty itself
         mark = draw(st.sampled_from(["u=", "u = ", "u ="]))
         return f" {mark}{number}{space}{scale_text}", relative, magnitude, True, None
-    sign = draw(st.sampled_from(["", "±", "± ", "+/-", "+-"]))
+    # an absolute tolerance carries its sign ("4.7 nF 2.2 nF" could be two values)
+    sign = draw(st.sampled_from(["", "±", "± ", "+/-", "+-"] if relative else ["±", "± ", "+/-", "+-"]))
     lead = " " if not sign else draw(st.sampled_from(["", " "]))
     k = draw(st.sampled_from([None, "1", "2", "2.0", "3", "1.5"]))
     glued = ["k={}"] if scale_text == "%" else []  # "±1%k=2"; after a letter a separator is needed
@@ -332,3 +333,11 @@ def test_engineering_notation():
     assert eng_pm(47.03e-6, 0.21e-6, "H") == "47.03 ± 0.21 µH"
     assert eng_pm(0.1234, 0.0031, "ohm") == "123.4 ± 3.1 mΩ"
     assert eng_pm(1234.5, 12, "Hz") == "1.234 ± 0.012 kHz"
+
+
+@pytest.mark.parametrize("text", ["4.7 nF 2.2 nF", "4 700 pF", "12 pF 3 pF", "10 ohm 50 mohm"])
+def test_a_second_value_without_its_sign_is_no_tolerance(text):
+    # "4.7 nF 2.2 nF" was read as 4.7 nF ± 2.2 nF and "4 700 pF" as 4 F ± 700 pF (then refused as
+    # "4 F, far above any tank"): a second value may be another value or split digits
+    with pytest.raises(SetupError, match="without ±, is not a tolerance"):
+        parse_part(text, "F" if "F" in text else "ohm")

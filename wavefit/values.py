@@ -345,6 +345,12 @@ def _statement_unit(statement: _Statement, value: _Value) -> str:
             raise _Unreadable("the tolerance has no unit and the value has a prefix, so it could be in "
                               "either; write its unit (\"±0.1 nF\") or a percentage")
         return value.unit
+    if not (statement.signed or statement.standard):
+        # "4.7 nF 2.2 nF" could be two values as well as a tolerance, and "4 700 pF" is digits
+        # split by a space: read as 4.7 nF ± 2.2 nF and as 4 F ± 700 pF, both wrong
+        raise _Unreadable("a second value after the value, without ±, is not a tolerance (it could be another "
+                          "value, or digits split by a space: there are no thousands separators); write an "
+                          "absolute tolerance with its sign, e.g. \"±3 pF\"")
     if value.unit and statement.unit != value.unit:
         raise _Unreadable(f"the tolerance is in {statement.unit!r} but the value in {value.unit!r}")
     return statement.unit  # the value had no unit, so none was expected either
