@@ -269,3 +269,24 @@ def test_a_weak_fitted_ring_points_at_the_window(fit_start):
         wavefit.analyze(frame, setup=setup)
     hint = "automatic window missed the ring" if fit_start is None else "check fit_start and fit_end"
     assert hint in str(err.value)
+
+
+def test_a_failed_fit_of_a_clipped_ring_names_the_clipping(monkeypatch):
+    # a ring on a screen a tenth of its swing: when even the first fit fails (a singular normal
+    # matrix), the refusal said only "check the [columns] tank entry"
+    import wavefit.methods._ring as ring_module
+
+    def failing(*args, **kwargs):
+        raise ValueError("the data do not determine every fit parameter (singular normal matrix)")
+
+    monkeypatch.setattr(ring_module, "fit_ring", failing)
+    alpha, w_d = TANK.poles()
+    t, v = ringdown(TANK, 2 * math.pi / (w_d * 30), 3000, pre_trigger=50)
+    peak = float(np.abs(v).max())
+    scope = ScopeModel(noise_rms=0.02 * peak, bits=8, full_scale=(-0.1 * peak, 0.1 * peak))
+    frame = pd.DataFrame({"t": t, "v": scope.apply(v, np.random.default_rng(3))})
+    with pytest.raises(wavefit.AnalysisRefused, match="no damped oscillation.*probably clipped"):
+        wavefit.analyze(frame, setup=SETUP)
+    with pytest.raises(wavefit.AnalysisRefused) as err:  # a record held nowhere is not called clipped
+        wavefit.analyze(_frame(), setup=SETUP)
+    assert "clipped" not in str(err.value)

@@ -195,8 +195,13 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
             ring = fit_ring(t, y, start=after, stop=ring.stop, noise=noise)
             clipped = _clipped(ring, y, channel.levels.step)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
+        held = max(longest_run_at_extremes(y))
+        clipped_hint = (f"; the record is held at its extreme value for {held} samples in a row: the ring is "
+                        "probably clipped (set the vertical scale so the whole ring fits on screen)"
+                        if held >= CLIPPED_RUN else "")
         raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
-                              "check the [columns] tank entry and that the record holds the ring") from None
+                              f"check the [columns] tank entry and that the record holds the ring{clipped_hint}"
+                              ) from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
     clipping = ("" if after is None else
                 f"the ring is clipped at the converter's limit until {t[after - 1]:.6g} s: the fit starts after it, "
