@@ -290,3 +290,20 @@ def test_a_failed_fit_of_a_clipped_ring_names_the_clipping(monkeypatch):
     with pytest.raises(wavefit.AnalysisRefused) as err:  # a record held nowhere is not called clipped
         wavefit.analyze(_frame(), setup=SETUP)
     assert "clipped" not in str(err.value)
+
+
+def test_a_second_ring_as_strong_as_the_first_ends_the_window():
+    # a square-wave drive rings the tank at each edge: the second ring's first block was the
+    # record's largest, so the search for a second excitation started after it, and the tail
+    # that set the noise floor was the second ring itself; the whole record was fitted as one
+    # ring and refused as "2.6 times the noise rms"
+    alpha, w_d = TANK.poles()
+    t, v = ringdown(TANK, 2 * math.pi / (w_d * 30), 6000, pre_trigger=300)
+    edge = 3300
+    second = np.concatenate([np.zeros(edge - 300), v[:v.size - (edge - 300)]])
+    y = v - 1.05 * second  # the falling edge's ring, of opposite sign and a little stronger
+    y = y + 0.005 * float(np.abs(v).max()) * np.random.default_rng(2).standard_normal(y.size)
+    result = wavefit.analyze(pd.DataFrame({"t": t, "v": y}), setup=SETUP)
+    assert result.fit.window_end_s < t[edge]
+    q = result.quantities["L"]
+    assert abs(q.value - TANK.inductance) < q.expanded_uncertainty

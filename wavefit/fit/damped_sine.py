@@ -287,6 +287,12 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     return DampedSineFit(physical, float(t[0]), offset_index, offset_index + n, sample_interval)
 
 
+#: A block of the ring's envelope at this share of its largest or more is at the ring's peak: a
+#: ring's envelope falls by less between blocks of a period (a Q of 10 loses 27 % a period), and
+#: a second excitation's rise from the decayed first ring is a jump of 1.5 times or more.
+NEAR_PEAK = 0.8
+
+
 def ring_window(y: np.ndarray) -> RingWindow:
     """Locate the free response of a ring in a record.
 
@@ -321,12 +327,20 @@ def ring_window(y: np.ndarray) -> RingWindow:
         return RingWindow(onset, min(onset + skip, n - 1), n, n - onset - skip, spp, False)
     env = dev[onset:onset + m * block].reshape(m, block).max(axis=1)
     floor = float(np.median(env[-max(1, m // 4):]))
+    # the noise floor from the pre-trigger baseline where it holds a block: the record's tail is
+    # no floor when a second excitation rings there (a square wave's next edge), which then hid
+    # that excitation and the whole record was fitted as one ring
+    before = onset // block
+    quiet = min(floor, float(np.median(dev[:before * block].reshape(before, block).max(axis=1)))) if before else floor
     stop, second = n, False
-    first = int(np.argmax(env)) + 1
+    # the search starts after the first block near the ring's peak, not after the largest: a
+    # second ring as strong as the first (a square wave's next edge) holds the largest block
+    first = int(np.argmax(env >= NEAR_PEAK * float(env.max()))) + 1
     for k in range(max(first, 1), m):
-        if env[k] > 1.5 * env[k - 1] + 2.0 * floor and env[k] > 0.2 * peak:
+        if env[k] > 1.5 * env[k - 1] + 2.0 * quiet and env[k] > 0.2 * peak:
             stop, second = onset + (k - 1) * block, True  # the block before may hold the edge
             env = env[:k - 1] if k > 1 else env[:1]
+            floor = quiet  # (the record's tail holds the second ring)
             break
     above = np.flatnonzero(env > max(3.0 * floor, 0.02 * peak)) if floor < env[0] else np.arange(1)
     strong = (int(above[-1]) + 1) * block if above.size else block
