@@ -307,3 +307,18 @@ def test_a_second_ring_as_strong_as_the_first_ends_the_window():
     assert result.fit.window_end_s < t[edge]
     q = result.quantities["L"]
     assert abs(q.value - TANK.inductance) < q.expanded_uncertainty
+
+
+def test_a_noise_sample_in_a_long_pre_trigger_is_not_the_rings_start():
+    # a ring 7.5 times its noise: one noise sample of the long pre-trigger stretch past half the
+    # ring's largest excursion was taken as the excitation, the window began 263 µs before the
+    # step and the ring was refused as "0.2 times the noise rms" (3 of 60 draws of a trial)
+    alpha, w_d = TANK.poles()
+    t, v = ringdown(TANK, 2 * math.pi / (w_d * 30), 6000, pre_trigger=2000)
+    peak = float(np.abs(v).max())
+    y = v + (peak / 7.5) * np.random.default_rng(4).standard_normal(v.size)
+    y[300] = 0.6 * peak   # the noise's excursion, far before the step
+    result = wavefit.analyze(pd.DataFrame({"t": t, "v": y}), setup=SETUP)
+    assert result.fit.window_start_s >= 0.0
+    q = result.quantities["L"]
+    assert abs(q.value - TANK.inductance) < q.expanded_uncertainty
