@@ -456,9 +456,9 @@ def _envelope_end(x: np.ndarray, sigma: float, lo: int, hi: int, strong: int) ->
 
 def _leaves_baseline(y: np.ndarray, dev0: np.ndarray, final: float) -> int:
     """The first sample past half the largest excursion ``dev0`` from the baseline in the
-    stretch that leads to that excursion: samples past it no more than
-    :data:`ONSET_GAP_PERIODS` periods apart (the period from the spectrum after the largest
-    excursion). A noise sample past half of a weak ring's excursion in a long pre-trigger
+    first stretch of such samples, no two more than :data:`ONSET_GAP_PERIODS` periods apart
+    (the period from the spectrum after the largest excursion), that lasts half a period or
+    is the stretch of the largest excursion. A noise sample past half of a weak ring's excursion in a long pre-trigger
     stretch is no onset (a ring 7.5 times its noise was fitted from 263 µs before its step,
     and refused as "0.2 times the noise rms", in 3 of 60 draws)."""
     peak_at = int(np.argmax(dev0))
@@ -467,8 +467,13 @@ def _leaves_baseline(y: np.ndarray, dev0: np.ndarray, final: float) -> int:
     if not gaps.size or int(gaps.max()) <= MIN_ONSET_GAP:
         return int(past[0])
     period = _samples_per_period(y[peak_at:peak_at + SPECTRUM_SAMPLES] - final)
-    apart = np.flatnonzero(gaps > ONSET_GAP_PERIODS * period)
-    return int(past[apart[-1] + 1]) if apart.size else int(past[0])
+    bounds = [0, *(np.flatnonzero(gaps > ONSET_GAP_PERIODS * period) + 1).tolist(), past.size]
+    for a, b in zip(bounds[:-2], bounds[1:-1]):
+        # an earlier stretch that lasts half a period or more is a ring (a square wave's first
+        # edge, as strong as the next), not a noise sample
+        if past[b - 1] - past[a] >= 0.5 * period:
+            return int(past[a])
+    return int(past[bounds[-2]])
 
 
 #: Samples past half the largest excursion that lie at most this many periods apart belong to
