@@ -232,9 +232,13 @@ def test_setup_nested_too_deep_is_one_line(tmp_path: Path) -> None:
         wavefit.analyze(None, path)
 
 
-def test_a_plot_that_cannot_be_written_keeps_the_result_and_exits_5(tmp_path: Path, capsys) -> None:
+def test_a_plot_that_cannot_be_written_keeps_the_result_and_exits_5(tmp_path: Path, capsys, monkeypatch) -> None:
     # docs/cli.md: exit 5 when an output could not be written, what was written before kept; the
     # plot's failure was exit 3 and the result was never printed
+    import errno
+
+    import matplotlib.figure
+
     from wavefit.cli import main
 
     t, drive, sense = _record(seed=10)
@@ -242,11 +246,22 @@ def test_a_plot_that_cannot_be_written_keeps_the_result_and_exits_5(tmp_path: Pa
     setup = tmp_path / "s.toml"
     setup.write_text('method = "rl-step"\n[columns]\ndrive = "drive"\nsense = "sense"\n[parts]\n'
                      'sense_resistor = "10 ohm"\n', encoding="utf-8")
-    (tmp_path / "fit.png").mkdir()  # a folder where the file should go: the write fails
+    # a folder where the file should go is refused before anything is analysed (it was found
+    # only after the analysis, as "check free space")
+    (tmp_path / "fit.png").mkdir()
     code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / "fit.png")])
     out, err = capsys.readouterr()
+    assert code == 3 and out == "" and "is not a regular file" in err
+
+    def full(*args, **kwargs):
+        raise OSError(errno.ENOSPC, "No space left on device")
+
+    monkeypatch.setattr(matplotlib.figure.Figure, "savefig", full)  # the disk fills while the plot is written
+    code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / "fit2.png")])
+    out, err = capsys.readouterr()
     assert code == 5 and "L " in out and "Safety" in out
-    assert err.count("\n") == 1 and "cannot write plot" in err and "fit.png" in err
+    assert err.count("\n") == 1 and "cannot write plot" in err and "fit2.png" in err
+    assert not list(tmp_path.glob(".fit2*"))  # no temporary file left
     # a plot into a folder that does not exist is refused before anything is analysed
     (tmp_path / "a_file").write_text("not a folder", encoding="utf-8")
     code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / "a_file" / "fit.png")])

@@ -142,6 +142,12 @@ def _analyze(args: argparse.Namespace) -> int:
         return EXIT_USAGE
     else:
         jobs = list(args.captures)
+    if args.plot:
+        from .output_files import check_output
+
+        inputs = (*args.captures, args.setup, *setup.named_files())
+        for k in range(len(jobs)):  # each plot, before any analysis: none may be an input
+            check_output("--plot", _plot_path(args.plot, k, len(jobs)), inputs)
     results, worst = [], EXIT_OK
     for k, source in enumerate(jobs):
         try:

@@ -115,6 +115,13 @@ class Setup:
         """The vertical-gain accuracy of the channel that carries ``role``."""
         return self.vertical_gain.get(role, self.default_vertical_gain)
 
+    def named_files(self) -> tuple[Path, ...]:
+        """Every file the setup names: its captures' files, columns from other files and the
+        calibration files (inputs that no output may overwrite)."""
+        named = [entry.file for entry in self.captures] + list(self.column_files.values())
+        named += [path for path in (self.calibration.channels, self.calibration.reference) if path is not None]
+        return tuple(named)
+
 
 def load_setup(setup: str | os.PathLike | Mapping[str, Any] | Setup) -> Setup:
     """Read a setup from a TOML path, a dict of the same structure, or pass one through."""

@@ -113,7 +113,8 @@ def _plan(args: argparse.Namespace, analyse: Analyse) -> _Plan:
     units = {name: method.outputs[name].unit for name in method.quantities} | {DCR: "ohm"}
     spec.check_quantities(method.quantities, method.name, curves, readings=(DCR,), units=units)
     own = RunFiles(Path(args.out), Path(args.db) if args.db else None, Path(args.plot) if args.plot else None,
-                   Path(args.setup), Path(args.spec), curves_path(args.out) if curves else None)
+                   Path(args.setup), Path(args.spec), curves_path(args.out) if curves else None,
+                   setup.named_files())
     own.check()
     if args.plot and not spec.limits:
         raise SetupError(f"{spec.source}: --plot draws the limited quantities, and the spec has no limits")

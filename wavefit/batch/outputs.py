@@ -15,20 +15,12 @@ import os
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..errors import WavefitError
+from ..output_files import UnusableOutput, check_output, identity
 from ..report.safe_text import visible
 from .run_lock import lock_path
 
 #: Files SQLite keeps next to a database while it writes (rollback journal, write-ahead log).
 _SQLITE_SIDE_FILES = ("-journal", "-wal", "-shm")
-
-
-class UnusableOutput(WavefitError):
-    """An output is not a regular file, is in a folder that does not exist or cannot be written, or
-    is the same file as another output or the setup or spec (exit code 3, before anything is
-    written)."""
-
-    exit_code = 3
 
 
 @dataclass(frozen=True)
@@ -42,6 +34,8 @@ class RunFiles:
     setup: Path | None = None
     spec: Path | None = None
     curves: Path | None = None
+    #: files the setup names (calibrations, columns from other files), which no output may be
+    named: tuple[Path, ...] = ()
 
     def outputs(self) -> list[tuple[str, Path]]:
         """(option, path) of each output the user named, and the lock file."""
@@ -63,23 +57,14 @@ class RunFiles:
         would be read forever, a folder cannot be written), and two of the run's files that
         are the same file."""
         for option, path in self.outputs():
-            if os.path.lexists(path) and not os.path.isfile(path):
-                raise UnusableOutput(f"{option} {visible(path)} exists and is not a regular file; "
-                                     "name a file to write")
-            folder = path.parent
-            if not folder.is_dir():
-                raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} does not exist; create it "
-                                     "or name a file in another folder")
             # every output is written beside itself (the lock file, a plot's temporary file,
             # SQLite's journal), so its folder must take new files: known before a lot is analysed
-            if not os.access(folder, os.W_OK | os.X_OK):
-                raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} cannot be written; name "
-                                     "a file in another folder")
+            check_output(option, path, self.named)
         configs = [(option, path) for option, path in (("--setup", self.setup), ("--spec", self.spec))
                    if path is not None]
         seen: dict[str, str] = {}
         for option, path in [*self.outputs(), *configs]:
-            key = _identity(path)
+            key = identity(path)
             if key in seen:
                 raise UnusableOutput(f"{seen[key]} and {option} name the same file {visible(path)}; "
                                   "give each output its own file")
@@ -87,18 +72,8 @@ class RunFiles:
 
     def is_own(self, path: str | os.PathLike[str]) -> bool:
         """Whether ``path`` is one of the run's own files (under any of its names)."""
-        return _identity(path) in self._own
+        return identity(path) in self._own
 
     @functools.cached_property
     def _own(self) -> frozenset[str]:
-        return frozenset(_identity(path) for path in self.files())
-
-
-def _identity(path: str | os.PathLike[str]) -> str:
-    """A key that is the same for every name of one file: its inode when it exists (hard and
-    symbolic links, ``..``), else its resolved path."""
-    try:
-        status = os.stat(path)
-    except OSError:
-        return "path " + os.path.realpath(path)
-    return f"inode {status.st_dev} {status.st_ino}"
+        return frozenset(identity(path) for path in self.files())

@@ -65,12 +65,13 @@ def channel_roles(columns: dict[str, str | int], reference: str | None, source: 
 def _channels(args: argparse.Namespace) -> int:
     from ..analysis import load_capture, with_columns_from_files
     from ..capture_checks import refuse_shared_columns
+    from ..output_files import check_output
     from ..provenance import file_sha256
     from ..setup import load_setup
     from .compare import compare_channels
 
-    _refuse_overwriting_inputs(args.out, args.capture, args.setup)
     setup = load_setup(args.setup)
+    check_output("--out", args.out, (args.capture, args.setup, *setup.named_files()))
     reference_role, other_role = channel_roles(dict(setup.columns), args.reference, setup.source)
     written = dict(setup.columns)  # as the setup writes them (a column of another file is renamed below)
     interval = args.sample_interval if args.sample_interval is not None else setup.sample_interval
@@ -102,15 +103,6 @@ def _channels(args: argparse.Namespace) -> int:
     else:
         print(visible_lines(summary(comparison, estimate.edges, args.out)))
     return 0
-
-
-def _refuse_overwriting_inputs(out: str, *inputs: str) -> None:
-    """Refuse an ``--out`` that names the capture or the setup: the file would replace its own input."""
-    target = Path(out).resolve()
-    for given in inputs:
-        if Path(given).resolve() == target:
-            raise SetupError(f"--out {out} names an input of the comparison ({given}); write the comparison to "
-                             "a file of its own")
 
 
 def as_dict(comparison: ChannelComparison, edges: int) -> dict[str, Any]:

@@ -26,10 +26,12 @@ def run(args: argparse.Namespace) -> int:
     from ..methods import get_method
     from ..numerics import collected, numerical_failures_refused
     from ..provenance import file_sha256
+    from ..output_files import check_output
     from ..setup import load_setup
     from ..uncertainty import propagate
 
     setup = load_setup(args.setup)
+    check_output("--out", args.out, (args.capture, args.setup, *setup.named_files()))
     setup = replace(setup, calibration=replace(setup.calibration, reference=None))
     quantity, known_text = _quantity_and_value(args.part)
     method = get_method(setup.method)

@@ -16,12 +16,12 @@ from __future__ import annotations
 
 import contextlib
 import os
-import secrets
 import warnings
 from pathlib import Path
 from typing import Any, Iterator
 
 from ..errors import WavefitError
+from ..output_files import new_temporary
 from .safe_text import visible
 
 
@@ -83,7 +83,7 @@ def save_figure(fig: Any, path: str | os.PathLike[str], dpi: int) -> None:
     target = Path(path)
     try:
         check_figure_path(target)
-        temporary = _new_temporary(target)
+        temporary = new_temporary(target)
         try:
             fig.savefig(temporary, dpi=dpi, format=target.suffix.lower().lstrip("."))
             os.replace(temporary, target)
@@ -92,15 +92,3 @@ def save_figure(fig: Any, path: str | os.PathLike[str], dpi: int) -> None:
                 os.unlink(temporary)
     finally:
         plt.close(fig)
-
-
-def _new_temporary(target: Path) -> Path:
-    """A new, empty hidden file beside ``target`` with its suffix, made with the usual permissions
-    (0666 less the umask, as the target itself would get)."""
-    while True:
-        candidate = target.with_name(f".{target.stem}.{secrets.token_hex(4)}.partial{target.suffix}")
-        try:
-            os.close(os.open(candidate, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
-        except FileExistsError:
-            continue
-        return candidate

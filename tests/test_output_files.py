@@ -1,0 +1,76 @@
+"""Outputs never replace an input, a device, a FIFO or a link, and are written through a new
+temporary file (wavefit/output_files.py). Each case was found by a fault campaign: the file
+named was replaced, exit 0."""
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import pytest
+
+from wavefit.cli import main
+
+SETUP = 'method = "rl-step"\n[columns]\ndrive = "drive"\nsense = "sense"\n[parts]\nsense_resistor = "10 ohm"\n'
+
+
+def _files(tmp_path: Path) -> tuple[Path, Path]:
+    capture = tmp_path / "capture.png"  # the reader takes a capture under any name
+    capture.write_text("time,drive,sense\n0,0,0\n1e-6,1,0.1\n", encoding="utf-8")
+    setup = tmp_path / "setup.toml"
+    setup.write_text(SETUP, encoding="utf-8")
+    return capture, setup
+
+
+def _refused(args: list[str], capsys) -> str:
+    code = main(args)
+    out, err = capsys.readouterr()
+    assert code == 3 and out == "" and err.count("\n") == 1
+    return err
+
+
+def test_a_plot_may_not_be_an_input_or_other_than_a_regular_file(tmp_path, capsys):
+    capture, setup = _files(tmp_path)
+    before = capture.read_bytes()
+    err = _refused(["analyze", str(capture), "--setup", str(setup), "--plot", str(capture)], capsys)
+    assert "is the input" in err and capture.read_bytes() == before
+    # the second capture's plot is FILE-2: checked against the inputs as well
+    second = tmp_path / "fit-2.png"
+    second.write_bytes(before)
+    err = _refused(["analyze", str(capture), str(second), "--setup", str(setup), "--plot", str(tmp_path / "fit.png")],
+                   capsys)
+    assert "fit-2.png is the input" in err and second.read_bytes() == before
+    fifo = tmp_path / "pipe.png"
+    os.mkfifo(fifo)
+    link = tmp_path / "link.png"
+    link.symlink_to(tmp_path / "elsewhere.png")
+    for target in (fifo, link):
+        err = _refused(["analyze", str(capture), "--setup", str(setup), "--plot", str(target)], capsys)
+        assert "is not a regular file" in err
+    assert fifo.is_fifo() and link.is_symlink()
+
+
+@pytest.mark.parametrize("which", ["capture", "setup", "channels file"])
+def test_a_calibration_may_not_overwrite_its_inputs(tmp_path, capsys, which):
+    capture, setup = _files(tmp_path)
+    channels = tmp_path / "channels.toml"
+    channels.write_text("# a channel comparison\n", encoding="utf-8")
+    setup.write_text(SETUP + f'[calibration]\nchannels = "{channels.name}"\n', encoding="utf-8")
+    target = {"capture": capture, "setup": setup, "channels file": channels}[which]
+    before = target.read_bytes()
+    for command in (["calibrate", "reference", str(capture), "--setup", str(setup), "--part", "L = 470 uH ±0.05%"],
+                    ["calibrate", "channels", str(capture), "--setup", str(setup)]):
+        err = _refused([*command, "--out", str(target)], capsys)
+        assert "is the input" in err and target.read_bytes() == before
+
+
+def test_a_file_is_written_through_a_new_temporary_never_an_existing_name(tmp_path):
+    # a link planted at the fixed name OUT.partial made a calibration write into its target
+    from wavefit.calibration.toml_file import write_toml_whole
+
+    victim = tmp_path / "victim.txt"
+    victim.write_text("precious", encoding="utf-8")
+    (tmp_path / "out.toml.partial").symlink_to(victim)
+    write_toml_whole({"kind": "test"}, tmp_path / "out.toml")
+    assert victim.read_text(encoding="utf-8") == "precious"
+    assert (tmp_path / "out.toml").read_text(encoding="utf-8").startswith('kind = "test"')
+    assert {p.name for p in tmp_path.iterdir()} == {"victim.txt", "out.toml.partial", "out.toml"}

@@ -1,0 +1,79 @@
+"""Files a command writes: whether a path may be one, and a temporary file to write it through.
+
+An output is refused before anything is analysed (exit 3) when it exists but is not a regular
+file (``--out /dev/full`` run as root replaced the device with a text file; a FIFO or a
+symbolic link was replaced the same way), when its folder is missing or cannot be written, or
+when it is the same file as one of the command's inputs: the capture, the setup, or a file the
+setup names (``--out`` of ``calibrate reference`` had overwritten the capture and the setup,
+``--plot`` a capture whose name had an image suffix). Files are compared by identity (device
+and inode), so a hard or symbolic link to an input is the input.
+
+An output is written to a new hidden file beside it and renamed over it (POSIX ``rename``):
+the target then holds the old file or the new one, never part of one. The temporary file is
+made with ``O_EXCL`` under a random name, so an existing file or link of that name is never
+written through (a fixed ``OUT.partial`` followed a link planted there).
+"""
+from __future__ import annotations
+
+import os
+import secrets
+from collections.abc import Iterable
+from pathlib import Path
+
+from .errors import WavefitError
+from .report.safe_text import visible
+
+
+class UnusableOutput(WavefitError):
+    """An output is not a regular file, is in a folder that does not exist or cannot be written, or
+    is the same file as another output or an input (exit code 3, before anything is written)."""
+
+    exit_code = 3
+
+
+def identity(path: str | os.PathLike[str]) -> str:
+    """A key that is the same for every name of one file: its inode when it exists (hard and
+    symbolic links, ``..``), else its resolved path."""
+    try:
+        status = os.stat(path)
+    except OSError:
+        return "path " + os.path.realpath(path)
+    return f"inode {status.st_dev} {status.st_ino}"
+
+
+def check_output(option: str, path: str | os.PathLike[str],
+                 inputs: Iterable[str | os.PathLike[str]] = ()) -> None:
+    """Refuse ``path`` as the output of ``option`` (module notes).
+
+    Raises
+    ------
+    UnusableOutput
+        Naming the option, the path and what is wrong.
+    """
+    if os.path.lexists(path) and (os.path.islink(path) or not os.path.isfile(path)):
+        raise UnusableOutput(f"{option} {visible(path)} exists and is not a regular file; name a file to write")
+    folder = Path(path).parent
+    if not folder.is_dir():
+        raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} does not exist; create it "
+                             "or name a file in another folder")
+    # an output is written beside itself (its temporary file), so its folder must take new files
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} cannot be written; name "
+                             "a file in another folder")
+    target = identity(path)
+    for given in inputs:
+        if identity(given) == target:
+            raise UnusableOutput(f"{option} {visible(path)} is the input {visible(given)}: it would be overwritten; "
+                                 "name a file of its own")
+
+
+def new_temporary(target: Path) -> Path:
+    """A new, empty hidden file beside ``target`` with its suffix, made with the usual permissions
+    (0666 less the umask, as the target itself would get) and never through an existing name."""
+    while True:
+        candidate = target.with_name(f".{target.stem}.{secrets.token_hex(4)}.partial{target.suffix}")
+        try:
+            os.close(os.open(candidate, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666))
+        except FileExistsError:
+            continue
+        return candidate
