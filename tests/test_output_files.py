@@ -74,3 +74,42 @@ def test_a_file_is_written_through_a_new_temporary_never_an_existing_name(tmp_pa
     assert victim.read_text(encoding="utf-8") == "precious"
     assert (tmp_path / "out.toml").read_text(encoding="utf-8").startswith('kind = "test"')
     assert {p.name for p in tmp_path.iterdir()} == {"victim.txt", "out.toml.partial", "out.toml"}
+
+
+def _sample_run(env: dict | None = None, **kwargs):
+    import subprocess
+    import sys
+
+    samples = Path(__file__).resolve().parent.parent / "sample_data"
+    return subprocess.run([sys.executable, "-m", "wavefit.cli", "analyze", str(samples / "choke_step.csv"),
+                           "--setup", str(samples / "choke_step.toml"), "--no-budget"],
+                          env={**os.environ, **(env or {})}, capture_output="stdout" not in kwargs,
+                          **kwargs)
+
+
+def test_a_terminal_that_cannot_show_the_units_gets_escapes_not_a_traceback():
+    # under an ASCII or Latin-1 locale the text report's Ω, µ and ± ended the run in a
+    # UnicodeEncodeError traceback (exit 1) before the plot was written
+    run = _sample_run({"PYTHONIOENCODING": "ascii"})
+    out, err = run.stdout.decode("ascii"), run.stderr.decode("ascii")
+    assert run.returncode == 0 and "Traceback" not in err and "\\xb5H" in out
+
+
+def test_a_closed_standard_output_is_refused_in_one_line():
+    # with stdout closed the results were lost with exit 0, or a traceback
+    import subprocess
+
+    run = _sample_run(stdout=None, stderr=subprocess.PIPE, preexec_fn=lambda: os.close(1))
+    err = run.stderr.decode("utf-8")
+    assert run.returncode == 5 and err.count("\n") == 1 and "standard output is closed" in err
+
+
+def test_a_file_name_that_is_not_utf8_is_written_escaped(tmp_path):
+    # a capture named with bytes that are not UTF-8 reaches the calibration file as text with
+    # lone surrogates: tomli_w failed with a traceback and the temporary file was left behind
+    from wavefit.calibration.toml_file import write_toml_whole
+
+    name = os.fsdecode(b"comp\xff.csv")
+    write_toml_whole({"capture": name}, tmp_path / "ch.toml")
+    assert (tmp_path / "ch.toml").read_text(encoding="utf-8") == 'capture = "comp\\\\xff.csv"\n'
+    assert [p.name for p in tmp_path.iterdir()] == ["ch.toml"]

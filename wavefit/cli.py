@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from pathlib import Path
 from typing import NoReturn, Sequence
@@ -94,6 +95,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    closed = _standard_streams()
+    if closed is not None:
+        return closed
     parser = build_parser()
     args = parser.parse_args(argv)
     if args.command is None:
@@ -118,6 +122,24 @@ def main(argv: Sequence[str] | None = None) -> int:
     except OSError as exc:  # the output could not be written (a full disk, a closed terminal)
         print(f"wavefit: error: cannot write the output ({exc.strerror or exc})", file=sys.stderr)
         return EXIT_OUTPUT
+
+
+def _standard_streams() -> int | None:
+    """Make the standard streams safe to print to: a character the stream's encoding cannot
+    show (Ω, µ, ± under a Latin-1 or ASCII locale) is written as a backslash escape instead of
+    ending the run in a traceback; a closed stderr is replaced by the null device (messages are
+    lost, the exit code still tells). A closed stdout would lose every result printed to it
+    (exit 0, or a traceback), so the run is refused: EXIT_OUTPUT, with the reason on stderr."""
+    if sys.stderr is None:
+        sys.stderr = open(os.devnull, "w", encoding="utf-8")  # noqa: SIM115 (for the process's life)
+    for stream in (sys.stdout, sys.stderr):
+        if stream is not None and hasattr(stream, "reconfigure"):
+            stream.reconfigure(errors="backslashreplace")
+    if sys.stdout is None:
+        print("wavefit: error: standard output is closed, so no result could be shown; redirect it "
+              "(to /dev/null to discard it)", file=sys.stderr)
+        return EXIT_OUTPUT
+    return None
 
 
 def _analyze(args: argparse.Namespace) -> int:

@@ -24,15 +24,32 @@ def write_toml_whole(data: Mapping[str, Any], path: str | os.PathLike[str]) -> N
     """
     target = Path(path)
     partial: Path | None = None
+    written = False
     try:
         partial = new_temporary(target)
         with open(partial, "wb") as handle:
-            tomli_w.dump(data, handle)
+            tomli_w.dump(_encodable(data), handle)
             handle.flush()
             os.fsync(handle.fileno())
         os.replace(partial, target)
+        written = True
     except OSError as exc:
-        if partial is not None:  # (none was made where the folder is missing)
+        raise write_failed("the file", target, exc, "the file it would replace is kept") from None
+    finally:
+        if partial is not None and not written:  # (none was made where the folder is missing)
             with contextlib.suppress(OSError):
                 partial.unlink()
-        raise write_failed("the file", target, exc, "the file it would replace is kept") from None
+
+
+def _encodable(data: Any) -> Any:
+    """``data`` with every text made encodable as UTF-8: a file name that is not UTF-8 comes
+    from the system as text with lone surrogates (PEP 383), which TOML cannot hold (it ended
+    ``calibrate`` in a traceback and left its temporary file); its bytes are written as
+    backslash escapes."""
+    if isinstance(data, str):
+        return data.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
+    if isinstance(data, Mapping):
+        return {key: _encodable(value) for key, value in data.items()}
+    if isinstance(data, (list, tuple)):
+        return [_encodable(value) for value in data]
+    return data
