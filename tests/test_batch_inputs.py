@@ -52,3 +52,18 @@ def test_a_capture_link_to_nowhere_stays_in_the_lot(lot):
     os.symlink(lot / "gone.csv", lot / "lot" / "p5.csv")
     assert os.path.join("lot", "p5.csv") in expand_inputs(["lot"])
     assert os.path.join("lot", "p5.csv") in expand_inputs(["lot/p*.csv"])
+
+
+def test_a_special_file_is_an_error_row_not_a_hang(lot):
+    # a FIFO, or a link to /dev/zero, in a lot's folder hung the run: its sha256 was taken by
+    # opening it (blocked on the FIFO, /dev/zero read forever); named on the command line the
+    # same files were said not to exist
+    from wavefit.batch.rows import sha256_file
+
+    os.mkfifo(lot / "lot" / "p6.csv")
+    os.symlink("/dev/zero", lot / "lot" / "p7.csv")
+    for name, reason in (("p6.csv", "is a pipe"), ("p7.csv", "is a device")):
+        path = os.path.join("lot", name)
+        assert path in expand_inputs(["lot"]) and expand_inputs([path]) == [path]
+        with pytest.raises(CaptureError, match=reason):
+            sha256_file(path)

@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ..errors import SetupError
+from ..errors import CaptureError, SetupError
 from ..report.safe_text import visible
 from ..report.stdout import discard_stdout
 from .inputs import capture_order, expand_inputs, expand_part_folders
@@ -216,7 +216,7 @@ def _check_same_setup_and_spec(rows: list[dict[str, Any]], maker: RowMaker, out:
 def _sha_changed(path: str, row: dict[str, Any]) -> bool:
     try:
         return bool(row["capture_sha256"]) and sha256_file(path) != row["capture_sha256"]
-    except OSError:
+    except (OSError, CaptureError):
         return True
 
 

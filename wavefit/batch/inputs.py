@@ -54,7 +54,7 @@ def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda pa
             matches = [str(p) for p in capture_files(item) if not skip(str(p))]
             if not matches:
                 raise CaptureError(f"folder {visible(item)} has no capture files ({', '.join(CAPTURE_SUFFIXES)})")
-        elif os.path.isfile(item):
+        elif os.path.lexists(item):  # a file; a special file or a dead link is an error row, as in a folder
             matches = [] if skip(item) else [item]
         elif _GLOB_CHARS.search(item):
             matches = []

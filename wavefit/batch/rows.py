@@ -14,7 +14,9 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
 
-from ..errors import WavefitError
+from ..errors import CaptureError, WavefitError
+from ..io.source import not_a_regular_file
+from ..report.safe_text import visible
 from ..results import AnalysisResult
 from ..setup import Setup
 from .curves_file import curve_rows
@@ -28,13 +30,17 @@ Analyse = Callable[[str, Setup], AnalysisResult]
 
 def sha256_file(path: str | os.PathLike[str]) -> str:
     """Hex sha256 of a file's bytes; of a folder (one part's captures), of the names and bytes of
-    its capture files in name order."""
+    its capture files in name order. A file that is not a regular one raises CaptureError
+    before it is opened (a FIFO or a link to /dev/zero in a lot's folder hung the run)."""
     digest = hashlib.sha256()
     folder = os.path.isdir(path)
     files = capture_files(path) if folder else [Path(path)]
     for file in files:
         if folder:
             digest.update(file.name.encode() + b"\0")
+        reason = not_a_regular_file(Path(file))
+        if reason is not None:  # a FIFO would block the open, a device such as /dev/zero never end
+            raise CaptureError(f"{visible(str(file))} {reason}")
         with open(file, "rb") as stream:
             while chunk := stream.read(1 << 20):
                 digest.update(chunk)
