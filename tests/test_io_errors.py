@@ -581,3 +581,17 @@ def test_one_bad_cell_among_numbers_is_to_be_emptied_and_a_text_line_deleted(tmp
     rows[150] = "# segment 2"
     message = _message(_write(tmp_path, "\n".join([HEADER, *rows]) + "\n", "text.csv"))
     assert "line 152" in message and "delete that line" in message
+
+
+@pytest.mark.parametrize("tail", [8192, 5_000_000])
+def test_a_text_followed_by_nul_bytes_is_read_up_to_them(tmp_path: Path, tail: int) -> None:
+    # a file extended but not written when the power failed ends in NULs: they were read as one
+    # cell of one line and held about eleven times over (20 GB exhausted the machine); the text
+    # before them is read now, with a warning
+    rows = "\n".join(f"{k * 1e-6:.6e},{np.sin(k / 9):.5f},{np.cos(k / 9):.5f}" for k in range(2000))
+    clean = _write(tmp_path, f"{HEADER}\n{rows}\n", "clean.csv")
+    padded = _write(tmp_path, f"{HEADER}\n{rows}\n".encode() + b"\0" * tail, "padded.csv")
+    a, b = read_capture(clean), read_capture(padded)
+    assert b.rows == a.rows == 2000 and np.array_equal(a.channel(1).values, b.channel(1).values)
+    assert any(f"ends in {tail:,} NUL bytes" in w for w in b.warnings)
+    assert not any("NUL" in w for w in a.warnings)

@@ -113,3 +113,18 @@ def test_a_file_name_that_is_not_utf8_is_written_escaped(tmp_path):
     write_toml_whole({"capture": name}, tmp_path / "ch.toml")
     assert (tmp_path / "ch.toml").read_text(encoding="utf-8") == 'capture = "comp\\\\xff.csv"\n'
     assert [p.name for p in tmp_path.iterdir()] == ["ch.toml"]
+
+
+def test_running_out_of_memory_is_one_line(tmp_path, capsys, monkeypatch):
+    # a MemoryError while a capture was read (400 million rows in a 4.6 MB gzip file) ended in a
+    # 42-line traceback, not the one-line refusal the README promises
+    import wavefit.io
+
+    def exhausted(*args, **kwargs):
+        raise MemoryError
+
+    monkeypatch.setattr(wavefit.io, "read_capture", exhausted)
+    capture, _ = _files(tmp_path)
+    code = main(["inspect", str(capture)])
+    out, err = capsys.readouterr()
+    assert code == 4 and out == "" and err.count("\n") == 1 and "not enough memory" in err

@@ -269,7 +269,7 @@ def _parse(source: FileSource, layout: Layout, encoding: str, rows: int | None,
     # 10⁷-row capture: 0.65 s against 1.8 s), with the same options the same table; given as an
     # absolute path (pandas would expand a leading "~") and read as it is (pandas would infer a
     # compression from the name: a plain file called .gz, .zip, .xz … was read as text before)
-    by_path = not source.compressed and encoding == "utf-8" and terminator != "\r"
+    by_path = not source.compressed and source.end is None and encoding == "utf-8" and terminator != "\r"
     beside = sorted(set(range(layout.n_fields)) - set(layout.fields)) if layout.side_rows else []
     try:
         with nullcontext(os.path.abspath(source.path)) if by_path else source.open_binary() as target:

@@ -77,6 +77,10 @@ def _read(path: str | os.PathLike[str], sample_interval: float | None, time_colu
         preamble = _with_footer(preamble, body.footer, layout.sep)
     if cut:
         preamble = replace(preamble, warnings=(*preamble.warnings, cut))
+    if source.nul_tail:
+        preamble = replace(preamble, warnings=(*preamble.warnings, (
+            f"the file ends in {source.nul_tail:,} NUL bytes after its text (a file cut short while it was "
+            "written?); the text before them was read")))
 
     def where(rows: Sequence[int]) -> list[str]:
         return [f"line {n}" for n in line_numbers(source, layout, head.encoding, rows)]
