@@ -160,7 +160,8 @@ def jump_instant(t: np.ndarray, y: np.ndarray, t_from: float, t_to: float) -> tu
     Used on the drive channel, whose switching is much faster than the current's
     rise: the instant is where the jump crosses half its height, the duration
     spans the samples whose step exceeds 10 % of the largest one (at least one
-    sample interval).
+    sample interval). None when there are too few samples, or when those steps run to either
+    end of the stretch (the jump is not inside it).
     """
     a = max(int(np.searchsorted(t, t_from)), 0)
     b = min(int(np.searchsorted(t, t_to)), t.size - 1)
@@ -174,6 +175,11 @@ def jump_instant(t: np.ndarray, y: np.ndarray, t_from: float, t_to: float) -> tu
         i -= 1
     while j + 1 < d.size and big[j + 1] and np.sign(d[j + 1]) == np.sign(d[k]):
         j += 1
+    if i == 0 or j == d.size - 1:
+        # the run of large steps reaches an end of the stretch searched: no jump lies within it
+        # (a record that starts just after an edge holds only the drive's relaxation, whose
+        # steps are all alike: read as a 34-sample "edge", it warned of a slow generator)
+        return None
     dt = float(t[1] - t[0])
     start, stop = a + i, a + j + 1
     half = 0.5 * (y[start] + y[stop])
