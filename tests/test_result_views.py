@@ -217,3 +217,19 @@ def test_an_exact_input_has_a_share_of_zero_not_minus_zero():
              "instrument": {"timebase": "exact", "vertical_gain": "exact"}}
     text = render(wavefit.analyze(pd.DataFrame({"t": t, "v": v}), setup=setup))
     assert "timebase" in text and "share =   0.00 %" in text and "-0.00" not in text
+
+
+def test_a_long_trace_is_drawn_as_its_envelope():
+    # a 10⁷-sample record's plot took over 100 s: more than MOST_DRAWN samples are drawn as the
+    # lowest and highest of each run, which keeps every extreme and the order in time
+    from wavefit.report.plot import MOST_DRAWN, _envelope
+
+    rng = np.random.default_rng(3)
+    t = np.arange(1_000_003) * 1e-6
+    y = np.sin(t * 50) + 0.1 * rng.standard_normal(t.size)
+    y[:1000] = np.nan   # a model outside its window
+    tt, yy = _envelope(t, y)
+    assert yy.size <= MOST_DRAWN + 2 * t.size // (MOST_DRAWN // 2) and np.all(np.diff(tt) > 0)
+    assert np.nanmax(yy) == np.nanmax(y) and np.nanmin(yy) == np.nanmin(y)
+    short = np.arange(10.0)
+    assert _envelope(short, short)[1] is short

@@ -5,6 +5,7 @@ name: they are drawn as literal text (:mod:`.figure_file`).
 """
 from __future__ import annotations
 
+import math
 import os
 
 import numpy as np
@@ -70,17 +71,43 @@ def _trace_panels(fig, grid, data: TracePlot) -> int:
         ax = fig.add_subplot(grid[2 * k], sharex=axes[0] if axes else None)
         axr = fig.add_subplot(grid[2 * k + 1], sharex=ax)
         axes += [ax, axr]
-        ax.plot(t * scale, y, ".", ms=1.5, color="0.45", label=f"{label} recorded")
-        ax.plot(t * scale, model, "-", lw=1.2, color="tab:red", label="fitted model")
+        y, model = np.asarray(y, dtype=float), np.asarray(model, dtype=float)
+        # samples as dots, or beyond MOST_DRAWN as the strokes between each run's lowest and highest
+        dots = {"marker": ".", "linestyle": "none"} if y.size <= MOST_DRAWN else {"linestyle": "-", "lw": 0.4}
+        ax.plot(*_envelope(t * scale, y), ms=1.5, color="0.45", label=f"{label} recorded", **dots)
+        ax.plot(*_envelope(t * scale, model), "-", lw=1.2, color="tab:red", label="fitted model")
         ax.set_ylabel(f"{label} ({yunit})")
         ax.legend(loc="best", fontsize=8)
-        axr.plot(t * scale, np.asarray(y) - np.asarray(model), ".", ms=1.0, color="tab:blue")
+        axr.plot(*_envelope(t * scale, y - model), ms=1.0, color="tab:blue", **dots)
         axr.axhline(0.0, color="k", lw=0.6)
         axr.set_ylabel("residual")
     for ax in axes[:-1]:
         ax.tick_params(labelbottom=False)
     axes[-1].set_xlabel(f"time ({unit})")
     return len(axes)
+
+
+#: Samples drawn at most per trace: more are drawn as the lowest and highest of each run of
+#: samples (a scope's peak-detect display, common practice), which a figure 1,000 pixels wide
+#: shows alike; matplotlib took over 100 s for the 10⁷ samples of a long record.
+MOST_DRAWN = 20_000
+
+
+def _envelope(t: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``(t, y)``, or for more than :data:`MOST_DRAWN` samples the lowest and highest sample of
+    each run of samples, with their instants, in time order (NaN runs stay NaN: the model is
+    NaN outside its window)."""
+    if y.size <= MOST_DRAWN:
+        return t, y
+    run = int(math.ceil(y.size / (MOST_DRAWN // 2)))
+    n = (y.size // run) * run
+    rows = y[:n].reshape(-1, run)
+    filled = np.isfinite(rows).any(axis=1)
+    low = np.where(filled, np.argmin(np.where(np.isfinite(rows), rows, np.inf), axis=1), 0)
+    high = np.where(filled, np.argmax(np.where(np.isfinite(rows), rows, -np.inf), axis=1), 0)
+    picks = np.sort(np.stack([low, high], axis=1), axis=1) + (np.arange(rows.shape[0]) * run)[:, None]
+    picks = np.unique(np.concatenate([picks.ravel(), np.arange(n, y.size)]))  # the last short run whole
+    return t[picks], y[picks]
 
 
 def _line_panel(ax, data: LinePlot) -> None:
