@@ -128,3 +128,26 @@ def test_running_out_of_memory_is_one_line(tmp_path, capsys, monkeypatch):
     code = main(["inspect", str(capture)])
     out, err = capsys.readouterr()
     assert code == 4 and out == "" and err.count("\n") == 1 and "not enough memory" in err
+
+
+def test_sigterm_while_a_plot_is_written_leaves_no_temporary_file(tmp_path, capsys, monkeypatch):
+    # SIGTERM ended analyze --plot with no message and left its hidden .partial.png files
+    import signal
+
+    import matplotlib.figure
+
+    samples = Path(__file__).resolve().parent.parent / "sample_data"
+
+    def terminated_while_saving(*args, **kwargs):
+        os.kill(os.getpid(), signal.SIGTERM)
+
+    previous = signal.getsignal(signal.SIGTERM)
+    monkeypatch.setattr(matplotlib.figure.Figure, "savefig", terminated_while_saving)
+    try:
+        code = main(["analyze", str(samples / "choke_step.csv"), "--setup", str(samples / "choke_step.toml"),
+                     "--plot", str(tmp_path / "fit.png")])
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+    _, err = capsys.readouterr()
+    assert code == 143 and err.strip().endswith("wavefit: terminated")
+    assert list(tmp_path.iterdir()) == []

@@ -8,6 +8,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import signal
 import sys
 from pathlib import Path
 from typing import NoReturn, Sequence
@@ -105,8 +106,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_USAGE
     handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch, "calibrate": _calibrate,
                "suggest": _suggest}[args.command]
+    if args.command != "batch":  # (batch stops its workers and rows on SIGTERM itself)
+        signal.signal(signal.SIGTERM, _terminated)
     try:
         return handler(args)
+    except Terminated:
+        print("wavefit: terminated", file=sys.stderr)
+        return 128 + signal.SIGTERM
     except WavefitError as exc:
         if args.debug:
             raise
@@ -130,6 +136,15 @@ def main(argv: Sequence[str] | None = None) -> int:
     except OSError as exc:  # the output could not be written (a full disk, a closed terminal)
         print(f"wavefit: error: cannot write the output ({exc.strerror or exc})", file=sys.stderr)
         return EXIT_OUTPUT
+
+
+class Terminated(Exception):
+    """SIGTERM arrived: raised where the run is, so that files half written are removed on the
+    way out as after Ctrl-C (a terminated ``--plot`` left its hidden temporary files behind)."""
+
+
+def _terminated(signum: int, frame: object) -> None:
+    raise Terminated
 
 
 def _standard_streams() -> int | None:
