@@ -362,3 +362,29 @@ def test_a_record_that_starts_just_after_an_edge_has_no_slow_generator():
     assert not any("generator's edge time" in w for w in result.warnings)
     q = result.quantities["L"]
     assert abs(q.value - L) < q.expanded_uncertainty
+
+
+def test_a_final_current_measured_as_zero_is_not_called_undetermined():
+    # a record whose settled high current is about zero (a trial's trigger case) printed
+    # "I_final = 0.7 ± 1.7 mA, E = 101 ± 518 pJ are not determined": a value that may well be
+    # zero is measured as zero within its interval; R of a coil of milliohms is unresolved
+    from types import SimpleNamespace
+
+    from wavefit.methods import get_method
+
+    def q(value, expanded, unit):
+        return SimpleNamespace(value=value, expanded_uncertainty=expanded, unit=unit)
+
+    quantities = {"L": q(220e-6, 1e-6, "H"), "R": q(-0.02, 0.025, "ohm"), "I_final": q(0.7e-3, 1.7e-3, "A"),
+                  "E": q(101e-12, 518e-12, "J")}
+    (warning,) = get_method("rl-step").unresolved(quantities)
+    assert warning.startswith("R = ") and "I_final" not in warning and "E = " not in warning
+    t, d, s = rl_square_wave(L, 0.002, RS, RSRC, 1.0, 20 * TAU, TAU / 20, 60 * TAU)
+    rng = np.random.default_rng(2)
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense", "drive": "drive"},
+             "parts": {"sense_resistor": "10 ohm"}, "instrument": {"timebase": "±0 ppm", "vertical_gain": "±0%"}}
+    result = wavefit.analyze(frame(t, s + 2e-3 * rng.standard_normal(t.size), d + 2e-3 * rng.standard_normal(t.size)),
+                             setup)
+    loose = [w for w in result.warnings if "not determined by this measurement" in w]
+    r = result.quantities["R"]
+    assert r.expanded_uncertainty >= abs(r.value) and len(loose) == 1 and loose[0].startswith("R = ")

@@ -81,6 +81,11 @@ class Method:
     determined: ClassVar[tuple[str, ...]] = ()
     #: What to check when a result is refused as not determined by the capture.
     undetermined_hint: ClassVar[str] = ""
+    #: Quantities a part has above zero, so that an interval taking in zero says the measurement
+    #: did not resolve them (warned by :meth:`unresolved`); None: those of :attr:`positive` and
+    #: :attr:`not_negative`. A value that may well be zero (a final current that settles at zero,
+    #: the energy it stores) is measured as zero within its interval, not unresolved.
+    resolvable: ClassVar[tuple[str, ...] | None] = None
     #: Parts that hold for every capture of a measurement and enter its result once (lc-sweep's
     #: stray capacitance moves the line's intercept only): a ``[[captures]]`` entry that gives one
     #: is a setup error, since the method would not use it there (it was ignored: C read 34 ± 2 pF
@@ -251,12 +256,14 @@ class Method:
         return f"the capture does not determine it (the interval takes in zero); {self.undetermined_hint}"
 
     def unresolved(self, quantities: Mapping[str, Any]) -> tuple[str, ...]:
-        """One warning naming the reported quantities, other than those of :attr:`determined`
-        (which are refused instead), whose expanded uncertainty reaches their value: the interval
-        takes in zero, so the capture says nothing of them (a ring that fills a record with 3 % of
-        its decay printed Q = 31 ± 346 k and R = 7 ± 78 mΩ without a word)."""
+        """One warning naming the quantities of :attr:`resolvable`, other than those of
+        :attr:`determined` (which are refused instead), whose expanded uncertainty reaches their
+        value: the interval takes in zero, so the capture says nothing of them (a ring that fills
+        a record with 3 % of its decay printed Q = 31 ± 346 k and R = 7 ± 78 mΩ without a word)."""
+        resolvable = (*self.positive, *self.not_negative) if self.resolvable is None else self.resolvable
         loose = [f"{name} = {eng_pm(q.value, q.expanded_uncertainty, q.unit)}" for name, q in quantities.items()
-                 if name not in self.determined and math.isfinite(q.value) and q.expanded_uncertainty >= abs(q.value)]
+                 if name in resolvable and name not in self.determined and math.isfinite(q.value)
+                 and q.expanded_uncertainty >= abs(q.value)]
         if not loose:
             return ()
         what = "is" if len(loose) == 1 else "are"

@@ -72,6 +72,7 @@ class LcRing(Method):
     outputs = {"f0": Scalar("Hz"), "fd": Scalar("Hz"), "alpha": Scalar("1/s"), "tau_decay": Scalar("s"),
                "Q_loaded": Scalar(""), "Q": Scalar(""), "L": Scalar("H"), "R": Scalar("ohm")}
     positive = ("f0", "fd", "alpha", "Q_loaded", "Q", "L")
+    resolvable = (*positive, "tau_decay", "R")
     determined = ("L", "f0")
     undetermined_hint = "check that the capture holds several periods of the ring, well above the noise"
     unphysical_hint = ("check that the capture holds a free ring of the tank (not a step or a square wave), "

@@ -129,6 +129,7 @@ class LcSweep(Method):
     options = LcRing.options
     outputs = {"L": Scalar("H"), "C": Scalar("F"), "srf": Scalar("Hz")}
     positive = ("L",)
+    resolvable = ("L", "C", "srf")
     determined = ("L",)
     common_parts = ("stray_capacitance",)
     undetermined_hint = ("check each capture's tank_capacitor (a wrong value puts its point off the line of "
