@@ -38,7 +38,7 @@ def sha256_file(path: str | os.PathLike[str]) -> str:
     for file in files:
         if folder:
             digest.update(file.name.encode() + b"\0")
-        reason = not_a_regular_file(Path(file))
+        reason = not_a_regular_file(Path(file)) if os.path.exists(file) else None  # (missing: the open says so)
         if reason is not None:  # a FIFO would block the open, a device such as /dev/zero never end
             raise CaptureError(f"{visible(str(file))} {reason}")
         with open(file, "rb") as stream:

@@ -154,14 +154,20 @@ def _instant(t: np.ndarray, y: np.ndarray, level: float, a: int, b: int, last: b
     return float(t[k] + frac * (t[k + 1] - t[k]))
 
 
+#: A drive's jump is a step at least this many times the median step of the stretch searched
+#: (mostly settled level and relaxation, whose steps are a few per cent of a jump's); the
+#: steps of a relaxation alone differ by less than 2 times (common practice).
+JUMP_OVER_MEDIAN = 5.0
+
+
 def jump_instant(t: np.ndarray, y: np.ndarray, t_from: float, t_to: float) -> tuple[float, float] | None:
     """Instant and duration of the fastest jump of ``y`` between ``t_from`` and ``t_to``.
 
     Used on the drive channel, whose switching is much faster than the current's
     rise: the instant is where the jump crosses half its height, the duration
     spans the samples whose step exceeds 10 % of the largest one (at least one
-    sample interval). None when there are too few samples, or when those steps run to either
-    end of the stretch (the jump is not inside it).
+    sample interval). None when there are too few samples, or when the largest step is less
+    than :data:`JUMP_OVER_MEDIAN` times the median step (no jump is inside the stretch).
     """
     a = max(int(np.searchsorted(t, t_from)), 0)
     b = min(int(np.searchsorted(t, t_to)), t.size - 1)
@@ -175,10 +181,10 @@ def jump_instant(t: np.ndarray, y: np.ndarray, t_from: float, t_to: float) -> tu
         i -= 1
     while j + 1 < d.size and big[j + 1] and np.sign(d[j + 1]) == np.sign(d[k]):
         j += 1
-    if i == 0 or j == d.size - 1:
-        # the run of large steps reaches an end of the stretch searched: no jump lies within it
-        # (a record that starts just after an edge holds only the drive's relaxation, whose
-        # steps are all alike: read as a 34-sample "edge", it warned of a slow generator)
+    if abs(d[k]) < JUMP_OVER_MEDIAN * float(np.median(np.abs(d))):
+        # no step stands out: the stretch holds no jump (a record that starts just after an
+        # edge holds only the drive's relaxation, whose steps are all alike: read as a
+        # 34-sample "edge", it warned of a slow generator)
         return None
     dt = float(t[1] - t[0])
     start, stop = a + i, a + j + 1
