@@ -341,3 +341,13 @@ def test_a_second_value_without_its_sign_is_no_tolerance(text):
     # "4 F, far above any tank"): a second value may be another value or split digits
     with pytest.raises(SetupError, match="without ±, is not a tolerance"):
         parse_part(text, "F" if "F" in text else "ohm")
+
+
+def test_a_toml_date_as_a_part_is_named_plainly():
+    # an unquoted TOML date was shown as Python's "datetime.datetime(1979, 5, 27, 7, 32, tzinfo=...)"
+    import datetime
+
+    with pytest.raises(SetupError) as err:
+        parse_part(datetime.datetime(1979, 5, 27, 7, 32), "ohm")
+    assert str(err.value).startswith("1979-05-27 07:32:00 (a datetime) is not a part value") and "datetime(" not in str(
+        err.value)

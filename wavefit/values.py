@@ -306,7 +306,9 @@ def parse_part(spec: str | float | int, expected_unit: str | None = None) -> Par
     docstring.
     """
     if isinstance(spec, bool) or not isinstance(spec, (str, int, float)):
-        raise SetupError(f"{spec!r} is not a part value; write e.g. {PART_EXAMPLES}")
+        # (a TOML date or time, a list or a table: named by its kind, not Python's spelling of it)
+        shown = spec if isinstance(spec, bool) else f"{spec} (a {type(spec).__name__})"
+        raise SetupError(f"{shown} is not a part value; write it as text in quotes, e.g. {PART_EXAMPLES}")
     try:
         if isinstance(spec, str):
             return _part_from_text(spec.strip(), expected_unit)
