@@ -151,3 +151,13 @@ def test_sigterm_while_a_plot_is_written_leaves_no_temporary_file(tmp_path, caps
     _, err = capsys.readouterr()
     assert code == 143 and err.strip().endswith("wavefit: terminated")
     assert list(tmp_path.iterdir()) == []
+
+
+def test_a_name_too_long_for_its_folder_is_refused_before_any_analysis(tmp_path, capsys):
+    # a plot or results name near the file system's limit failed only after the analysis (after a
+    # whole lot, for batch) as "cannot write plot …": the temporary or lock file beside it is longer
+    capture, setup = _files(tmp_path)
+    long_name = "N" * 245 + ".png"
+    err = _refused(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / long_name)], capsys)
+    assert "the file name is too long" in err
+    assert not (tmp_path / long_name).exists()

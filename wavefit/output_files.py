@@ -56,6 +56,11 @@ def check_output(option: str, path: str | os.PathLike[str],
     if not folder.is_dir():
         raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} does not exist; create it "
                              "or name a file in another folder")
+    longest = _longest_name(folder) - TEMPORARY_EXTRA
+    if len(os.fsencode(Path(path).name)) > longest:
+        # (found after a whole lot had been analysed, as "cannot write plot")
+        raise UnusableOutput(f"{option} {visible(path)}: the file name is too long for its folder (at most "
+                             f"{longest} bytes, leaving room for the temporary file written beside it)")
     # an output is written beside itself (its temporary file), so its folder must take new files
     if not os.access(folder, os.W_OK | os.X_OK):
         raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} cannot be written; name "
@@ -65,6 +70,19 @@ def check_output(option: str, path: str | os.PathLike[str],
         if identity(given) == target:
             raise UnusableOutput(f"{option} {visible(path)} is the input {visible(given)}: it would be overwritten; "
                                  "name a file of its own")
+
+
+#: Bytes the temporary file's name adds to its target's (:func:`new_temporary`: a dot, eight hex
+#: digits, ".partial" and two dots) and to a lock file's, with a few to spare.
+TEMPORARY_EXTRA = 24
+
+
+def _longest_name(folder: Path) -> int:
+    """The longest file name the folder's file system takes (255 bytes where it does not say)."""
+    try:
+        return int(os.pathconf(folder, "PC_NAME_MAX"))
+    except (OSError, ValueError):
+        return 255
 
 
 def new_temporary(target: Path) -> Path:
