@@ -595,3 +595,10 @@ def test_a_text_followed_by_nul_bytes_is_read_up_to_them(tmp_path: Path, tail: i
     assert b.rows == a.rows == 2000 and np.array_equal(a.channel(1).values, b.channel(1).values)
     assert any(f"ends in {tail:,} NUL bytes" in w for w in b.warnings)
     assert not any("NUL" in w for w in a.warnings)
+
+
+def test_utf32_text_is_named(tmp_path: Path) -> None:
+    # its little-endian byte-order mark begins with UTF-16's: it was decoded as UTF-16 and
+    # refused as "no line of numbers in its first 200 lines"
+    path = _write(tmp_path, f"{HEADER}\n0,1,2\n1e-6,1,2\n".encode("utf-32"), "u32.csv")
+    assert "is UTF-32 text" in _message(path)

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from ..errors import CaptureError
 
 _UTF16_BOMS = (codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)
+_UTF32_BOMS = (codecs.BOM_UTF32_LE, codecs.BOM_UTF32_BE)
 # Control bytes that do occur in text exports: tab, LF, VT, FF, CR and the DOS end-of-file mark.
 _TEXT_CONTROLS = b"\t\n\x0b\x0c\r\x1a"
 _NOT_SUSPECT = bytes(b for b in range(256) if b >= 0x20 or b in _TEXT_CONTROLS)
@@ -67,6 +68,8 @@ def decode_head(raw: bytes, *, complete: bool, source: str) -> DecodedHead:
     CaptureError
         When the bytes look binary.
     """
+    if raw.startswith(_UTF32_BOMS):  # (its little-endian mark begins with UTF-16's)
+        raise CaptureError(f"{source} is UTF-32 text, which is not read; save it as UTF-8 (or UTF-16) text")
     wide = "utf-16" if raw.startswith(_UTF16_BOMS) else _utf16_without_mark(raw)
     if wide is not None:
         usable = raw if complete else raw[: len(raw) - len(raw) % 2]
