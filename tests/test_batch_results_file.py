@@ -102,3 +102,14 @@ def test_a_line_break_inside_a_cell_is_refused(tmp_path):
     path.write_text(",".join(COLUMNS) + "\n" + 'a.csv,pass,"two\nlines"' + "," * (len(COLUMNS) - 3) + "\n")
     with pytest.raises(ResultsFileError, match="line break inside a cell"):
         ResultsFile(path, COLUMNS).open()
+
+
+def test_a_results_file_saved_with_a_byte_order_mark_is_named(tmp_path):
+    # a results file saved again by a program that writes a byte-order mark was refused as having
+    # the columns "\ufefffile, verdict, …", which looked like this run's own
+    path = tmp_path / "out.csv"
+    with ResultsFile(path, COLUMNS) as results:
+        results.append({"file": "a.csv", "verdict": "pass"})
+    path.write_bytes(b"\xef\xbb\xbf" + path.read_bytes())
+    with pytest.raises(ResultsFileError, match="starts with a byte-order mark"):
+        ResultsFile(path, COLUMNS).open()

@@ -208,6 +208,11 @@ class AppendedTable:
     def _parse(self, text: str) -> list[dict[str, Any]]:
         records = list(csv.reader(io.StringIO(text, newline="")))
         header = tuple(records[0]) if records else ()
+        if header and header[0].startswith("\ufeff") and (header[0][1:], *header[1:]) == self.columns:
+            # the offsets of its rows are its bytes', which a byte-order mark in front would move
+            raise ResultsFileError(f"{self.what} {visible(self.path)} starts with a byte-order mark, which this tool "
+                                   "never writes (saved again by another program?); use another --out, or remove "
+                                   "the mark")
         if header != self.columns:
             raise ResultsFileError(
                 f"{self.what} {visible(self.path)} has columns {visible(', '.join(header))}, but this run writes "
