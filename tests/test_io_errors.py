@@ -602,3 +602,14 @@ def test_utf32_text_is_named(tmp_path: Path) -> None:
     # refused as "no line of numbers in its first 200 lines"
     path = _write(tmp_path, f"{HEADER}\n0,1,2\n1e-6,1,2\n".encode("utf-32"), "u32.csv")
     assert "is UTF-32 text" in _message(path)
+
+
+def test_a_bad_cell_is_shown_short_whatever_its_characters() -> None:
+    # 60 NUL characters were shown as 240 characters of escapes
+    from wavefit.io.layout import bad_cell_message
+
+    for cell in ("\x00" * 5000, "x" * 100, "\x1b[2J" * 30):
+        message = bad_cell_message("f.csv", 3, cell)
+        shown = message.split("found ", 1)[1].split(" where", 1)[0]
+        assert len(shown) <= 66 and shown.endswith("...'")
+    assert "found 'abc' where" in bad_cell_message("f.csv", 3, "abc")

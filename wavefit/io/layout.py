@@ -590,11 +590,23 @@ def _refuse_rows_of_another_shape_above(lines: list[str], sep: str, decimal: str
         )
 
 
+#: Characters of a bad cell's printed form shown in a message, at most.
+_SHOWN_CELL = 64
+
+
 def bad_cell_message(source: str, line_number: int, found: str, among_numbers: bool = False) -> str:
     """One-line message for text found where the table needs a number; ``among_numbers`` when the
     line's other cells are numbers (one bad cell in a row: deleting the row would leave a gap in
     the sampling, an empty cell is filled in from its neighbours)."""
-    shown = found if len(found) <= 60 else found[:57] + "..."
+    # the cell as far as its printed form fits _SHOWN_CELL (a control character prints as four:
+    # 60 NULs took 240 characters of the message)
+    width, keep = 2, 0
+    for character in found:
+        width += len(repr(character)) - 2
+        if width > _SHOWN_CELL - 3:
+            break
+        keep += 1
+    shown = found if keep == len(found) else found[:keep] + "..."
     advice = ("fix that cell, or empty it to have it filled in from its neighbours (deleting the line "
               "would leave a gap in the sampling)") if among_numbers else "fix or delete that line"
     return f"{source}, line {line_number}: found {shown!r} where a number was expected; {advice}"
