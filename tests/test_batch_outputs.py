@@ -138,3 +138,19 @@ def test_lock_of_a_killed_run_blocks_nothing(tmp_path):
     with RunLock(out):                                 # ...and free at once
         pass
     assert not lock_path(out).exists()
+
+
+def test_a_results_file_named_through_a_link_is_still_taken(tmp_path):
+    # the check shared with --plot refuses links, which a renamed temporary would replace; the
+    # results file and the database are written in place, so a link to a regular file is theirs
+    from wavefit.batch.outputs import RunFiles
+
+    real = tmp_path / "real.csv"
+    real.write_text("", encoding="utf-8")
+    link = tmp_path / "results.csv"
+    link.symlink_to(real)
+    RunFiles(link).check()
+    plot = tmp_path / "lot.png"
+    plot.symlink_to(tmp_path / "elsewhere.png")
+    with pytest.raises(Exception, match="is not a regular file"):
+        RunFiles(tmp_path / "r2.csv", plot=plot).check()

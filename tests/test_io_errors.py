@@ -613,3 +613,17 @@ def test_a_bad_cell_is_shown_short_whatever_its_characters() -> None:
         shown = message.split("found ", 1)[1].split(" where", 1)[0]
         assert len(shown) <= 66 and shown.endswith("...'")
     assert "found 'abc' where" in bad_cell_message("f.csv", 3, "abc")
+
+
+def test_text_after_a_run_of_nul_bytes_is_not_dropped(tmp_path: Path) -> None:
+    # only whole 4 KB blocks were looked at: 8192 NULs followed by 51 bytes of rows were taken
+    # as a NUL tail, and those rows were dropped without a word
+    from wavefit.io.source import nul_tail_start
+
+    head = f"{HEADER}\n0,1,2\n".encode()
+    path = _write(tmp_path, head + b"\0" * 8192 + b"1e-6,1,2\n" * 5, "mid.csv")
+    assert nul_tail_start(path) is None
+    small = _write(tmp_path, head + b"\0" * 100, "small.csv")   # a few NULs: the table's own message
+    assert nul_tail_start(small) is None
+    tail = _write(tmp_path, head + b"\0" * 10_000, "tail.csv")
+    assert nul_tail_start(tail) == len(head)

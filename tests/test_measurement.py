@@ -97,8 +97,10 @@ def test_sources_of_a_measurement():
     # with the setup's parts only, and refused as "no tank_capacitor for this capture")
     with pytest.raises(SetupError, match="two capture\\(s\\) given for 3 \\[\\[captures\\]\\] entries"):
         capture_sources(("x.csv", "y.csv"), setup, count)
-    with pytest.raises(wavefit.AnalysisRefused) as err:
+    with pytest.raises(SetupError, match="one capture\\(s\\) given for 3"):  # not one per entry, whatever the count
         capture_sources(["a.csv"], setup, count)
+    with pytest.raises(wavefit.AnalysisRefused) as err:  # entries too few for the method
+        capture_sources(["a.csv"], _sweep_setup(1), count)
     assert "lc-sweep needs at least two captures with different tank capacitors" in str(err.value)
     assert capture_sources("one.csv", load_setup({"method": "lc-ring"}), CaptureCount()) == (["one.csv"], None)
     with pytest.raises(SetupError, match="needs a capture to analyse"):

@@ -49,18 +49,25 @@ def test_a_plot_may_not_be_an_input_or_other_than_a_regular_file(tmp_path, capsy
     assert fifo.is_fifo() and link.is_symlink()
 
 
-@pytest.mark.parametrize("which", ["capture", "setup", "channels file"])
+@pytest.mark.parametrize("which", ["capture", "setup", "channels file", "reference file"])
 def test_a_calibration_may_not_overwrite_its_inputs(tmp_path, capsys, which):
     capture, setup = _files(tmp_path)
-    channels = tmp_path / "channels.toml"
+    channels, reference = tmp_path / "channels.toml", tmp_path / "reference.toml"
     channels.write_text("# a channel comparison\n", encoding="utf-8")
-    setup.write_text(SETUP + f'[calibration]\nchannels = "{channels.name}"\n', encoding="utf-8")
-    target = {"capture": capture, "setup": setup, "channels file": channels}[which]
+    reference.write_text("# a reference substitution\n", encoding="utf-8")
+    setup.write_text(SETUP + f'[calibration]\nchannels = "{channels.name}"\nreference = "{reference.name}"\n',
+                     encoding="utf-8")
+    target = {"capture": capture, "setup": setup, "channels file": channels, "reference file": reference}[which]
     before = target.read_bytes()
-    for command in (["calibrate", "reference", str(capture), "--setup", str(setup), "--part", "L = 470 uH ±0.05%"],
-                    ["calibrate", "channels", str(capture), "--setup", str(setup)]):
-        err = _refused([*command, "--out", str(target)], capsys)
-        assert "is the input" in err and target.read_bytes() == before
+    commands = {"reference": ["calibrate", "reference", str(capture), "--setup", str(setup), "--part", "L = 470 uH ±0.05%"],
+                "channels": ["calibrate", "channels", str(capture), "--setup", str(setup)]}
+    for name, command in commands.items():
+        code = main([*command, "--out", str(target)])
+        _, err = capsys.readouterr()
+        # each command may renew the calibration file of its own kind (the procedure asks for it),
+        # which it does not read; every other input is refused before anything is read
+        renews = (name, which) in (("reference", "reference file"), ("channels", "channels file"))
+        assert ("is the input" in err) != renews and code == 3 and target.read_bytes() == before
 
 
 def test_a_file_is_written_through_a_new_temporary_never_an_existing_name(tmp_path):

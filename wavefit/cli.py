@@ -11,7 +11,7 @@ import os
 import signal
 import sys
 from pathlib import Path
-from typing import NoReturn, Sequence
+from typing import Any, NoReturn, Sequence
 
 from . import __version__
 from .batch.arguments import add_batch_parser
@@ -106,8 +106,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_USAGE
     handler = {"analyze": _analyze, "inspect": _inspect, "batch": _batch, "calibrate": _calibrate,
                "suggest": _suggest}[args.command]
-    if args.command != "batch":  # (batch stops its workers and rows on SIGTERM itself)
-        signal.signal(signal.SIGTERM, _terminated)
+    previous = _on_sigterm(args.command)
     try:
         return handler(args)
     except Terminated:
@@ -136,15 +135,32 @@ def main(argv: Sequence[str] | None = None) -> int:
     except OSError as exc:  # the output could not be written (a full disk, a closed terminal)
         print(f"wavefit: error: cannot write the output ({exc.strerror or exc})", file=sys.stderr)
         return EXIT_OUTPUT
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
 
 
-class Terminated(Exception):
+class Terminated(BaseException):
     """SIGTERM arrived: raised where the run is, so that files half written are removed on the
-    way out as after Ctrl-C (a terminated ``--plot`` left its hidden temporary files behind)."""
+    way out as after Ctrl-C (a terminated ``--plot`` left its hidden temporary files behind); a
+    BaseException, as KeyboardInterrupt is, so that no ``except Exception`` stops it."""
 
 
 def _terminated(signum: int, frame: object) -> None:
+    """The SIGTERM handler of a command other than batch: raise :class:`Terminated`."""
     raise Terminated
+
+
+def _on_sigterm(command: str) -> Any:
+    """Install :func:`_terminated` for SIGTERM and return the handler it replaces (None for batch,
+    which stops its workers and rows on SIGTERM itself, and outside the main thread, where no
+    handler can be installed)."""
+    if command == "batch":
+        return None
+    try:
+        return signal.signal(signal.SIGTERM, _terminated)
+    except ValueError:  # not the main thread
+        return None
 
 
 def _standard_streams() -> int | None:

@@ -158,15 +158,16 @@ def capture_sources(source: Any, setup: Setup, count: CaptureCount
     Returns
     -------
     tuple of (list, tuple of CaptureEntry or None)
-        The sources, and the entries in the same order, or ``None`` when the sources
-        are not the entries' (they then take the setup's parts only).
+        The sources, and the entries in the same order, or ``None`` for a method that takes
+        one capture (it then takes the setup's parts only).
 
     Raises
     ------
     SetupError
-        From :func:`takes_entries`, or when a single-capture method gets no capture.
+        From :func:`takes_entries`, when a single-capture method gets no capture, or when the
+        sources given are not one per entry.
     AnalysisRefused
-        When the number of sources is not one the method takes.
+        When the number of entries is not one the method takes.
     """
     if not takes_entries(setup, count):
         if source is None:
@@ -178,16 +179,16 @@ def capture_sources(source: Any, setup: Setup, count: CaptureCount
         sources = [os.path.join(source, entry.file.name) for entry in setup.captures]
     else:
         sources = list(source) if isinstance(source, (list, tuple)) else [source]
+    if len(sources) != len(setup.captures):
+        # the sources replace the entries' files in order: another number cannot be bound to their
+        # parts (each capture then had none of its own: "no tank_capacitor for this capture")
+        raise SetupError(f"{setup.source}: {_count_word(len(sources))} capture(s) given for {len(setup.captures)} "
+                         "[[captures]] entries; the captures given replace the entries' files in order, so give "
+                         "one per entry, or none to read the entries' own files")
     if not count.allows(len(sources)):
         reason = f" {count.reason}" if count.reason else ""
         raise AnalysisRefused(f"{setup.source}: {setup.method} needs {count.describe()}{reason}, "
                               f"got {_count_word(len(sources))}")
-    if len(sources) != len(setup.captures):
-        # the sources replace the entries' files in order: another number cannot be bound to their
-        # parts (each capture then had none of its own: "no tank_capacitor for this capture")
-        raise SetupError(f"{setup.source}: {_count_word(len(sources))} capture(s) given for {len(setup.captures)} [[captures]] "
-                         "entries; the captures given replace the entries' files in order, so give one per entry, "
-                         "or none to read the entries' own files")
     return sources, setup.captures
 
 

@@ -42,15 +42,17 @@ def identity(path: str | os.PathLike[str]) -> str:
 
 
 def check_output(option: str, path: str | os.PathLike[str],
-                 inputs: Iterable[str | os.PathLike[str]] = ()) -> None:
-    """Refuse ``path`` as the output of ``option`` (module notes).
+                 inputs: Iterable[str | os.PathLike[str]] = (), *, replaced: bool = True) -> None:
+    """Refuse ``path`` as the output of ``option`` (module notes); a symbolic link only where the
+    output is ``replaced`` by a renamed temporary file (the link itself would be replaced), not
+    where it is written in place (batch's appended results file and database).
 
     Raises
     ------
     UnusableOutput
         Naming the option, the path and what is wrong.
     """
-    if os.path.lexists(path) and (os.path.islink(path) or not os.path.isfile(path)):
+    if os.path.lexists(path) and ((replaced and os.path.islink(path)) or not os.path.isfile(path)):
         raise UnusableOutput(f"{option} {visible(path)} exists and is not a regular file; name a file to write")
     folder = Path(path).parent
     if not folder.is_dir():
@@ -72,8 +74,8 @@ def check_output(option: str, path: str | os.PathLike[str],
                                  "name a file of its own")
 
 
-#: Bytes the temporary file's name adds to its target's (:func:`new_temporary`: a dot, eight hex
-#: digits, ".partial" and two dots) and to a lock file's, with a few to spare.
+#: Bytes the temporary file's name adds to its target's (:func:`new_temporary`: 18, a leading dot,
+#: a dot and eight hex digits, and ".partial") and to a lock file's, with a few to spare.
 TEMPORARY_EXTRA = 24
 
 

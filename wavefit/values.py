@@ -56,8 +56,10 @@ References
 """
 from __future__ import annotations
 
+import datetime
 import math
 import re
+from collections.abc import Mapping
 from dataclasses import dataclass
 
 from quantiphy import Quantity
@@ -306,8 +308,8 @@ def parse_part(spec: str | float | int, expected_unit: str | None = None) -> Par
     docstring.
     """
     if isinstance(spec, bool) or not isinstance(spec, (str, int, float)):
-        # (a TOML date or time, a list or a table: named by its kind, not Python's spelling of it)
-        shown = spec if isinstance(spec, bool) else f"{spec} (a {type(spec).__name__})"
+        # (a TOML date or time, an array, a table or a boolean: named in TOML's words, not Python's)
+        shown = _toml_kind(spec)
         raise SetupError(f"{shown} is not a part value; write it as text in quotes, e.g. {PART_EXAMPLES}")
     try:
         if isinstance(spec, str):
@@ -315,6 +317,18 @@ def parse_part(spec: str | float | int, expected_unit: str | None = None) -> Par
         return PartValue(_checked(_float(spec), str(spec)), expected_unit or "", 0.0, "exact", str(spec))
     except _Unreadable as exc:
         raise SetupError(f"cannot read {spec!r}: {exc}; write e.g. {PART_EXAMPLES}") from None
+
+
+def _toml_kind(value: object) -> str:
+    """A TOML value that is no text or number, named as TOML names it: ``true (a boolean)``,
+    ``1979-05-27 07:32:00 (a date and time)``, ``an array``, ``a table``."""
+    if isinstance(value, bool):
+        return f"{str(value).lower()} (a boolean)"
+    if isinstance(value, datetime.datetime):
+        return f"{value} (a date and time)"
+    if isinstance(value, (datetime.date, datetime.time)):
+        return f"{value} (a {'date' if isinstance(value, datetime.date) else 'time'})"
+    return "an array" if isinstance(value, (list, tuple)) else "a table" if isinstance(value, Mapping) else repr(value)
 
 
 def _part_from_text(text: str, expected_unit: str | None) -> PartValue:

@@ -54,12 +54,14 @@ class RunFiles:
 
     def check(self) -> None:
         """Refuse an output that exists but is not a regular file (a device such as ``/dev/full``
-        would be read forever, a folder cannot be written), and two of the run's files that
+        would be read forever, a folder cannot be written; a link for the plot, which is replaced),
+        whose folder is missing or cannot be written, whose name is too long, or that is a file the
+        setup names (:func:`wavefit.output_files.check_output`), and two of the run's files that
         are the same file."""
         for option, path in self.outputs():
             # every output is written beside itself (the lock file, a plot's temporary file,
             # SQLite's journal), so its folder must take new files: known before a lot is analysed
-            check_output(option, path, self.named)
+            check_output(option, path, self.named, replaced=path == self.plot)
         configs = [(option, path) for option, path in (("--setup", self.setup), ("--spec", self.spec))
                    if path is not None]
         seen: dict[str, str] = {}

@@ -111,7 +111,7 @@ class RowMaker:
         row = self._traceability(path)
         try:
             row["capture_sha256"] = sha256_file(path)
-        except OSError:
+        except (OSError, CaptureError):
             pass
         row.update(verdict=ERROR, analysed_at=_now(),
                    message="the analysis process died on this capture (out of memory, or a crash in a "

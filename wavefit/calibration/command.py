@@ -71,7 +71,9 @@ def _channels(args: argparse.Namespace) -> int:
     from .compare import compare_channels
 
     setup = load_setup(args.setup)
-    check_output("--out", args.out, (args.capture, args.setup, *setup.named_files()))
+    # (the setup's own channel comparison is not read here, so --out may renew it)
+    inputs = [path for path in setup.named_files() if path != setup.calibration.channels]
+    check_output("--out", args.out, (args.capture, args.setup, *inputs))
     reference_role, other_role = channel_roles(dict(setup.columns), args.reference, setup.source)
     written = dict(setup.columns)  # as the setup writes them (a column of another file is renamed below)
     interval = args.sample_interval if args.sample_interval is not None else setup.sample_interval

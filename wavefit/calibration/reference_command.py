@@ -31,8 +31,10 @@ def run(args: argparse.Namespace) -> int:
     from ..uncertainty import propagate
 
     setup = load_setup(args.setup)
-    check_output("--out", args.out, (args.capture, args.setup, *setup.named_files()))
+    # (the setup's own reference file is not read here: a reference does not correct itself, so
+    # --out may renew it, as the calibration procedure asks)
     setup = replace(setup, calibration=replace(setup.calibration, reference=None))
+    check_output("--out", args.out, (args.capture, args.setup, *setup.named_files()))
     quantity, known_text = _quantity_and_value(args.part)
     method = get_method(setup.method)
     if quantity not in method.quantities:

@@ -287,9 +287,10 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     return DampedSineFit(physical, float(t[0]), offset_index, offset_index + n, sample_interval)
 
 
-#: A block of the ring's envelope at this share of its largest or more is at the ring's peak: a
-#: ring's envelope falls by less between blocks of a period (a Q of 10 loses 27 % a period), and
-#: a second excitation's rise from the decayed first ring is a jump of 1.5 times or more.
+#: A block of the ring's envelope at this share of its largest or more is at the ring's peak: the
+#: largest block is the first or second of the ring (its envelope falls from block to block, by
+#: 27 % a period at a Q of 10), or the first of a second ring as strong (a square wave's next
+#: edge), whose rise from the decayed first ring is a jump of 1.5 times or more.
 NEAR_PEAK = 0.8
 
 

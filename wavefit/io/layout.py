@@ -600,13 +600,15 @@ def bad_cell_message(source: str, line_number: int, found: str, among_numbers: b
     the sampling, an empty cell is filled in from its neighbours)."""
     # the cell as far as its printed form fits _SHOWN_CELL (a control character prints as four:
     # 60 NULs took 240 characters of the message)
-    width, keep = 2, 0
-    for character in found:
-        width += len(repr(character)) - 2
-        if width > _SHOWN_CELL - 3:
-            break
-        keep += 1
-    shown = found if keep == len(found) else found[:keep] + "..."
+    shown = found
+    if len(repr(found[:_SHOWN_CELL + 1])) > _SHOWN_CELL:
+        width, keep = 2, 0
+        for character in found:
+            width += len(repr(character)) - 2
+            if width > _SHOWN_CELL - 3:
+                break
+            keep += 1
+        shown = found[:keep] + "..."
     advice = ("fix that cell, or empty it to have it filled in from its neighbours (deleting the line "
               "would leave a gap in the sampling)") if among_numbers else "fix or delete that line"
     return f"{source}, line {line_number}: found {shown!r} where a number was expected; {advice}"

@@ -139,7 +139,7 @@ def nul_tail_start(path: Path) -> int | None:
     over (20 GB of them exhausted the machine). The all-NUL blocks are found by bisection
     (every block after the text is all NUL, none before it is), a few reads whatever the size."""
     size = path.stat().st_size
-    blocks = size // _NUL_BLOCK
+    blocks = -(-size // _NUL_BLOCK)  # the last one may be short
     if blocks < 2:
         return None
     with open(path, "rb") as stream:
@@ -157,13 +157,14 @@ def nul_tail_start(path: Path) -> int | None:
             lo, hi = (lo, mid) if all_nul(mid) else (mid, hi)
         stream.seek(lo * _NUL_BLOCK)
         data = stream.read(_NUL_BLOCK)
-    return lo * _NUL_BLOCK + len(data.rstrip(b"\0"))
+    end = lo * _NUL_BLOCK + len(data.rstrip(b"\0"))
+    return end if size - end >= _NUL_BLOCK else None  # (a few NULs are left to the table's own message)
 
 
 class _Bounded(io.RawIOBase):
     """A file's bytes up to ``end``, as if the file ended there (seekable, for the tail reads)."""
 
-    def __init__(self, raw: BinaryIO, end: int):
+    def __init__(self, raw: BinaryIO, end: int) -> None:
         super().__init__()
         self._raw, self._end = raw, end
 
@@ -180,7 +181,7 @@ class _Bounded(io.RawIOBase):
         base = {io.SEEK_SET: 0, io.SEEK_CUR: self._raw.tell(), io.SEEK_END: self._end}[whence]
         return self._raw.seek(min(max(base + offset, 0), self._end))
 
-    def readinto(self, buffer) -> int:  # type: ignore[override]
+    def readinto(self, buffer: bytearray | memoryview) -> int:  # type: ignore[override]
         n = min(len(buffer), self._end - self._raw.tell())
         return self._raw.readinto(memoryview(buffer)[:n]) if n > 0 else 0
 

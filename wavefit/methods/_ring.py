@@ -196,9 +196,13 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
             clipped = _clipped(ring, y, channel.levels.step)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
         held = max(longest_run_at_extremes(y))
+        # a run held at an extreme that is not the record's resting level (its median: a quiet
+        # baseline on one code, or a dead channel, is the extreme of a ring that stays above it)
+        resting = float(np.median(y))
+        at_rest = resting in (float(np.min(y)), float(np.max(y)))
         clipped_hint = (f"; the record is held at its extreme value for {held} samples in a row: the ring is "
                         "probably clipped (set the vertical scale so the whole ring fits on screen)"
-                        if held >= CLIPPED_RUN else "")
+                        if held >= CLIPPED_RUN and not at_rest else "")
         raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
                               f"check the [columns] tank entry and that the record holds the ring{clipped_hint}"
                               ) from None

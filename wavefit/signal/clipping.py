@@ -174,8 +174,8 @@ PILE_EXCESS = 3
 #: chance would put them there less often than this, each sample being there with probability
 #: one half (a noise tail that is not cut off thins outward, so no more than that). Without it,
 #: a few samples at the top code, such as the first samples after each rising edge of a drive
-#: (5 there and 1 one code inside), made 7 of 240 clean 8-bit records warn of clipping (the
-#: clipping campaign of the tenth round; 0 of 240 with it). Clipped records measured in the
+#: (5 there and 1 one code inside), made 7 of 240 clean 8-bit records of a clipping campaign warn
+#: of clipping (0 of 240 with it). Clipped records measured in the
 #: tests hold 14 samples to none, 15 to 2 (a chance of 0.0012) and more.
 PILE_CHANCE = 0.01
 
