@@ -1,12 +1,15 @@
 """Files a command writes: whether a path may be one, and a temporary file to write it through.
 
 An output is refused before anything is analysed (exit 3) when it exists but is not a regular
-file (``--out /dev/full`` run as root replaced the device with a text file; a FIFO or a
-symbolic link was replaced the same way), when its folder is missing or cannot be written, or
-when it is the same file as one of the command's inputs: the capture, the setup, or a file the
-setup names (``--out`` of ``calibrate reference`` had overwritten the capture and the setup,
-``--plot`` a capture whose name had an image suffix). Files are compared by identity (device
-and inode), so a hard or symbolic link to an input is the input.
+file (``--out /dev/full`` run as root replaced the device with a text file; a FIFO was
+replaced the same way; a symbolic link too, where the output is renamed into place), when its
+folder is missing or cannot be written, when its name with the temporary file's additions is
+too long for the folder, or when it is the same file as one of the command's inputs: the
+capture, the setup, or a file the setup names (``--out`` of ``calibrate reference`` had
+overwritten the capture and the setup, ``--plot`` a capture whose name had an image suffix).
+Files are compared by identity (device and inode), so a hard or symbolic link to an input is
+the input. A calibration command may renew the setup's calibration file of its own kind, which
+it does not read.
 
 An output is written to a new hidden file beside it and renamed over it (POSIX ``rename``):
 the target then holds the old file or the new one, never part of one. The temporary file is
