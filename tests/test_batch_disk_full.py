@@ -176,7 +176,7 @@ def test_plot_with_no_space_left_keeps_the_old_plot(tmp_path, monkeypatch, capsy
 
     write_lot(tmp_path, [100.0] * COUNT)
     png = tmp_path / "lot.png"
-    png.write_bytes(b"an earlier plot")
+    png.write_bytes(b"\x89PNG\r\n\x1a\n an earlier plot")
 
     def no_space(self, *args, **kwargs):
         raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
@@ -186,7 +186,7 @@ def test_plot_with_no_space_left_keeps_the_old_plot(tmp_path, monkeypatch, capsy
         run(batch_args(tmp_path, "--plot", str(png)), analyse=delayed_analyse)
     assert_one_line_output_error(caught, "cannot write plot", "has every row and the summary is printed")
     assert "rows written" in capsys.readouterr().out  # the summary comes first: a failed plot keeps it
-    assert png.read_bytes() == b"an earlier plot"
+    assert png.read_bytes() == b"\x89PNG\r\n\x1a\n an earlier plot"
     assert sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(".")) == []   # no temporary left
     assert names(tmp_path) == everything()
 

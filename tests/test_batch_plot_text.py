@@ -73,7 +73,7 @@ def test_histogram_bins_stay_few_when_one_value_lies_far_off():
 
 def test_lot_plot_keeps_an_earlier_file_until_the_new_one_is_whole(tmp_path, monkeypatch):
     png = tmp_path / "lot.png"
-    png.write_bytes(b"earlier")
+    png.write_bytes(b"\x89PNG\r\n\x1a\n earlier")
     series = [LotSeries("L", "H", [1e-4, 1.1e-4], 0.9e-4, 1.1e-4)]
 
     def interrupted(self, *args, **kwargs):
@@ -83,7 +83,7 @@ def test_lot_plot_keeps_an_earlier_file_until_the_new_one_is_whole(tmp_path, mon
     monkeypatch.setattr(Figure, "savefig", interrupted)
     with pytest.raises(KeyboardInterrupt):
         save_lot_plot(series, png, "lot")
-    assert png.read_bytes() == b"earlier" and [p.name for p in tmp_path.iterdir()] == ["lot.png"]
+    assert png.read_bytes() == b"\x89PNG\r\n\x1a\n earlier" and [p.name for p in tmp_path.iterdir()] == ["lot.png"]
     monkeypatch.undo()
     save_lot_plot(series, png, "lot")
     assert png.read_bytes()[:8] == PNG

@@ -32,7 +32,7 @@ def test_a_plot_may_not_be_an_input_or_other_than_a_regular_file(tmp_path, capsy
     capture, setup = _files(tmp_path)
     before = capture.read_bytes()
     err = _refused(["analyze", str(capture), "--setup", str(setup), "--plot", str(capture)], capsys)
-    assert "is the input" in err and capture.read_bytes() == before
+    assert "holds no PNG picture" in err and capture.read_bytes() == before
     # the second capture's plot is FILE-2: checked against the inputs as well
     second = tmp_path / "fit-2.png"
     second.write_bytes(before)
@@ -168,3 +168,19 @@ def test_a_name_too_long_for_its_folder_is_refused_before_any_analysis(tmp_path,
     err = _refused(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / long_name)], capsys)
     assert "the file name is too long" in err
     assert not (tmp_path / long_name).exists()
+
+
+def test_a_plot_name_holding_no_picture_is_not_overwritten(tmp_path):
+    # batch drops the run's own files from the lot, so a capture saved as part2.png and named as
+    # --plot too was left out of the lot and then overwritten by the lot's plot
+    from wavefit.report.figure_file import FigureFileError, check_figure_path
+
+    capture = tmp_path / "part2.png"
+    capture.write_text("time,drive,sense\n0,0,0\n", encoding="utf-8")
+    with pytest.raises(FigureFileError, match="holds no PNG picture"):
+        check_figure_path(capture)
+    earlier = tmp_path / "lot.png"
+    earlier.write_bytes(b"\x89PNG\r\n\x1a\n" + bytes(32))   # an earlier plot is replaced
+    check_figure_path(earlier)
+    (tmp_path / "empty.svg").write_bytes(b"")
+    check_figure_path(tmp_path / "empty.svg")

@@ -37,9 +37,20 @@ def _formats() -> frozenset[str]:
     return frozenset(FigureCanvasBase.get_supported_filetypes())
 
 
+#: The first bytes of a file of each of the common formats matplotlib writes (each format's own
+#: published signature; SVG is XML): an existing file at a plot's name that does not start so is
+#: no picture, and is not overwritten.
+_SIGNATURES = {
+    "png": (b"\x89PNG\r\n\x1a\n",), "pdf": (b"%PDF",), "jpg": (b"\xff\xd8\xff",), "jpeg": (b"\xff\xd8\xff",),
+    "gif": (b"GIF87a", b"GIF89a"), "tif": (b"II*\x00", b"MM\x00*"), "tiff": (b"II*\x00", b"MM\x00*"),
+    "webp": (b"RIFF",), "eps": (b"%!PS",), "ps": (b"%!PS",), "svg": (b"<?xml", b"<svg"),
+}
+
+
 def check_figure_path(path: str | os.PathLike[str]) -> None:
-    """Refuse, before anything is drawn, a file name whose format matplotlib cannot write
-    or whose folder does not exist."""
+    """Refuse, before anything is drawn, a file name whose format matplotlib cannot write,
+    whose folder does not exist, or where a file of a common format's suffix holds no picture
+    of it (a capture saved as ``part2.png`` and named as the plot too was overwritten)."""
     target = Path(path)
     kind = target.suffix.lower().lstrip(".")
     if kind not in _formats():
@@ -48,6 +59,12 @@ def check_figure_path(path: str | os.PathLike[str]) -> None:
     if not target.parent.is_dir():
         raise FigureFileError(f"cannot draw a plot into {visible(target)}: folder {visible(target.parent)} "
                               "does not exist")
+    if kind in _SIGNATURES and target.is_file():
+        with open(target, "rb") as stream:
+            head = stream.read(16).lstrip()
+        if head and not head.startswith(_SIGNATURES[kind]):
+            raise FigureFileError(f"cannot draw a plot into {visible(target)}: the file there holds no {kind.upper()} "
+                                  "picture (a capture?) and would be overwritten; name a new file for the plot")
 
 
 @contextlib.contextmanager
