@@ -60,6 +60,10 @@ class InputSet:
     def names(self) -> list[str]:
         return [i.name for i in self._inputs]
 
+    def get(self, name: str) -> InputQuantity | None:
+        """The input called ``name``, or None when there is none."""
+        return next((i for i in self._inputs if i.name == name), None)
+
     def add(self, name: str, value: float, standard_uncertainty: float, unit: str = "",
             kind: str = "B", dof: float = math.inf, distribution: str = "normal",
             origin: InputOrigin | None = None) -> None:

@@ -115,8 +115,7 @@ class LcRing(Method):
                                  inductance.standard_uncertainty)
         if "stray_capacitance" not in estimate.settings["present"]:
             # L = 1/(w²·C): a capacitance left out of C makes L read high by its share of C
-            tank = next(i.value for i in inputs.inputs if i.name == "tank_capacitor")
-            shift = TYPICAL_PROBE_CAPACITANCE / tank
+            shift = TYPICAL_PROBE_CAPACITANCE / inputs.get("tank_capacitor").value
             if shift * inductance.value > inductance.standard_uncertainty:
                 out = (*out, f"no stray_capacitance given: the probe's input alone (about "
                        f"{TYPICAL_PROBE_CAPACITANCE * 1e12:.0f} pF) would make L read {100 * shift:.2g} % high, "

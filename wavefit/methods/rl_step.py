@@ -305,7 +305,7 @@ class RLStep(Method):
     def review(self, estimate: Estimate, inputs: InputSet, propagation: Propagation) -> tuple[str, ...]:
         """A dut_resistance given beside a drive channel is not used; a warning when it disagrees
         with the R the channels measure beyond DCR_DISAGREEMENT_Z combined standard uncertainties."""
-        given = next((i for i in inputs.inputs if i.name == "dut_resistance"), None)
+        given = inputs.get("dut_resistance")
         if not estimate.settings["has_drive"] or given is None:
             return ()
         measured = propagation.quantities["R"]
