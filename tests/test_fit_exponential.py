@@ -117,3 +117,67 @@ def test_decay_is_the_expression_bit_for_bit():
         assert np.array_equal(decay(u, tau), expected)
         out = np.empty_like(u)
         assert decay(u, tau, out=out) is out and np.array_equal(out, expected)
+
+
+def _weighted_least_squares_tau(chans, tau_start):
+    """tau of the weighted least squares of the whole window (levels, coefficients and tau by
+    scipy's solver, to its tightest tolerances), each channel weighed by its scatter about the
+    variable-projection start, as the fit's first solve weighs it: computed here with numpy's
+    lstsq for the start's levels and scipy for the solve, not with the code under test."""
+    from scipy.optimize import least_squares
+
+    n_par = 1 + 2 * len(chans)
+    total = sum(ch.values.size for ch in chans)
+    scatter = []
+    for ch in chans:
+        u = ch.time - ch.time[0]
+        design = np.column_stack((np.ones_like(u), np.exp(-u / tau_start)))
+        coef, *_ = np.linalg.lstsq(design, ch.values, rcond=None)
+        r = ch.values - design @ coef
+        scatter.append(math.sqrt(float(r @ r) / (r.size - n_par * r.size / total)))
+
+    def residuals(x):
+        return np.concatenate([(ch.values - x[1 + 2 * c] - x[2 + 2 * c] * np.exp(-(ch.time - ch.time[0]) / (x[0] * tau_start)))
+                               / scatter[c] for c, ch in enumerate(chans)])
+
+    x0 = [1.0]
+    for ch in chans:
+        u = ch.time - ch.time[0]
+        design = np.column_stack((np.ones_like(u), np.exp(-u / tau_start)))
+        x0 += list(np.linalg.lstsq(design, ch.values, rcond=None)[0])
+    found = least_squares(residuals, x0, method="lm", xtol=1e-15, ftol=1e-15, gtol=1e-15)
+    return found.x[0] * tau_start, found
+
+
+@pytest.mark.parametrize("channels", [1, 2])
+def test_weighted_solution_is_the_weighted_least_squares(channels):
+    """The first solve's solution by Gauss–Newton steps on the projected problem is the
+    weighted least squares of the whole window (Kaufman's step is the full problem's
+    Gauss–Newton step in tau: L. Kaufman, BIT 15 (1975) 49–57), to a small fraction of tau's
+    standard error, for one channel and for two whose noise differs tenfold."""
+    from wavefit.fit.exponential import WindowChannel, projected_tau, weighted_solution
+
+    rng = np.random.default_rng(11)
+    n, tau = 20000, 3e-6
+    t = np.arange(n) * 1e-9
+    chans = [WindowChannel("sense", t, 0.2 * (1 - np.exp(-t / tau)) + 1e-3 * rng.standard_normal(n)),
+             WindowChannel("drive", t, 1.0 + 2.0 * np.exp(-t / tau) + 1e-2 * rng.standard_normal(n))][:channels]
+    start = projected_tau(chans, 1.3 * tau)
+    found = weighted_solution(chans, start)
+    expected, solve = _weighted_least_squares_tau(chans, start)
+    # tau's standard error from the solve's Jacobian (unit weights after the scatter)
+    jac = solve.jac
+    deviation = math.sqrt(np.linalg.inv(jac.T @ jac)[0, 0] * 2 * solve.cost / (jac.shape[0] - jac.shape[1])) * start
+    assert found is not None
+    assert abs(found - expected) < 1e-5 * deviation  # the start itself is 3e-3 deviations off
+    assert abs(found - tau) < 5 * deviation
+
+
+def test_weighted_solution_leaves_an_undetermined_tau_to_the_solver():
+    """A window with no decay in it (noise about a level) has no minimum near its start: the
+    steps go beyond the start's bracket and the projected solution says None."""
+    from wavefit.fit.exponential import WindowChannel, weighted_solution
+
+    rng = np.random.default_rng(2)
+    t = np.arange(5000) * 1e-9
+    assert weighted_solution([WindowChannel("sense", t, 1.0 + 1e-3 * rng.standard_normal(t.size))], 2e-7) is None

@@ -90,9 +90,12 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
     ``fitted_start`` says that ``x0`` already fits every group about as well as the solution
     will (a variable-projection estimate): the groups' scatter, which weighs them against each
     other, is then taken from its residuals, saving the solve with unit weights that would
-    otherwise provide them. ``solved_start`` says that ``x0`` is that solve's solution already
-    (a converged least squares of the same residuals with unit weights, such as
-    :func:`wavefit.fit.damped_sine.refine`'s on the same window): the solve is skipped.
+    otherwise provide them. ``solved_start`` says that ``x0`` is the first solve's solution
+    already, and the solve is skipped: a converged least squares of the same residuals with
+    unit weights (such as :func:`wavefit.fit.damped_sine.refine`'s on the same window), or,
+    with ``fitted_start`` and several groups, with each group weighed by its scatter about
+    the fitted start from which the caller solved it
+    (:func:`wavefit.fit.exponential.weighted_solution`).
     """
     mapping = ParameterMap(as_parameters(x0, names, bounds), copy=False)
     return fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
@@ -199,12 +202,12 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
     weighed_at_start = fitted_start and noise != "known" and len(groups) > 1
     if noise == "known":
         models = {g: white(float(sigma[g])) for g in groups}  # type: ignore[index]
-    elif weighed_at_start:
+    elif weighed_at_start and not solved_start:
         models = _scatter_models(fun(x), blocks, groups, p, m)
     else:
         models = {g: white(1.0) for g in groups}
     small = is_small(m, p)
-    if not (solved_start and noise != "known" and not weighed_at_start):
+    if not (solved_start and noise != "known"):
         x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
     r = fun(x)  # the residuals at the current x, evaluated once for every use there
     if noise != "known":
