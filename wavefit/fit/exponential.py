@@ -153,23 +153,15 @@ def projected_cost(times: Sequence[np.ndarray], values: Sequence[np.ndarray],
     return cost
 
 
-def weighted_solution(channels: Sequence[WindowChannel], tau_start: float) -> float | None:
-    """tau of the least squares that :func:`fit_exponential_window`'s first solve reaches from
-    the projected start ``tau_start``, by Gauss–Newton steps on the projected problem; None
-    where they do not converge (the solver then takes that solve).
+class ProjectedProblem:
+    """The least squares of a window's channels over tau alone, each channel's level and
+    coefficient profiled out (for fixed tau, the simple regression on exp(−u/tau), u the time
+    from the channel's first instant), each channel's residual sum of squares over its weight.
 
-    That solve weighs each noise group by its scatter about the start (with two or more
-    groups: its sum of squares over its samples less its share of the parameters,
-    :func:`wavefit.fit.engine.fit_least_squares`), or all alike. For fixed tau each channel's
-    level and coefficient are the simple regression on exp(−u/tau), so only log tau is
-    iterated; each step is the Gauss–Newton step of the residuals projected onto the
-    complement of (1, exp(−u/tau)), with Kaufman's Jacobian of the projection (the
-    derivative of the basis times the channel's coefficient, projected likewise), which is
-    the full problem's Gauss–Newton step in tau. It stops when a step would lower the weighted
-    sum of squares by less than :data:`~wavefit.fit.engine.NEGLIGIBLE_CHANGE` of it (the
-    solver's own stop); a step longer than the start's grid step (:data:`GRID_STEP`, the
-    bracket the start was found in), a step that raises the sum, or more than
-    :data:`SOLUTION_ITERATIONS` steps end it with None.
+    :meth:`minimum` takes Gauss–Newton steps in log tau: each is the Gauss–Newton step of the
+    residuals projected onto the complement of (1, exp(−u/tau)), with Kaufman's Jacobian of
+    the projection (the derivative of the basis times the channel's coefficient, projected
+    likewise), which is the full problem's Gauss–Newton step in tau.
 
     References
     ----------
@@ -177,21 +169,25 @@ def weighted_solution(channels: Sequence[WindowChannel], tau_start: float) -> fl
     problems", BIT 15 (1975) 49–57.
     G. H. Golub and V. Pereyra, SIAM J. Numer. Anal. 10 (1973) 413–432.
     """
-    elapsed = [np.asarray(ch.time, dtype=float) - float(ch.time[0]) for ch in channels]
-    centred = [np.asarray(ch.values, dtype=float) - float(np.mean(ch.values)) for ch in channels]
-    same = first_equal(elapsed)
-    groups = [ch.noise_group or ch.group for ch in channels]
-    n_par = 1 + 2 * len(channels)
-    total = sum(y.size for y in centred)
 
-    def state(log_tau: float) -> tuple[list[float], float, float]:
-        """Each channel's residual sum of squares, and the projected problem's Jᵀr and JᵀJ, each
-        channel's terms over its weight (set below)."""
+    def __init__(self, channels: Sequence[WindowChannel]):
+        self.elapsed = [np.asarray(ch.time, dtype=float) - float(ch.time[0]) for ch in channels]
+        self.centred = [np.asarray(ch.values, dtype=float) - float(np.mean(ch.values)) for ch in channels]
+        self.same = first_equal(self.elapsed)
+
+    def own_variances(self) -> list[float]:
+        """Each channel's variance about its mean (:func:`projected_cost`'s default weights)."""
+        return [float(y @ y) / y.size or 1.0 for y in self.centred]
+
+    def state(self, log_tau: float, weights: Sequence[float]) -> tuple[list[float], float, float]:
+        """Each channel's residual sum of squares at tau, and the projected problem's Jᵀr and
+        JᵀJ (in log tau), each channel's terms over its weight; ([], nan, nan) where a basis does
+        not vary."""
         tau = math.exp(log_tau)
         bases: list[tuple[np.ndarray, np.ndarray, float]] = []
         sums, gradient, curvature = [], 0.0, 0.0
-        for c, (u, y) in enumerate(zip(elapsed, centred)):
-            if same[c] == c:
+        for c, (u, y) in enumerate(zip(self.elapsed, self.centred)):
+            if self.same[c] == c:
                 e = decay(u, tau)
                 slope = e * u  # the basis's derivative by log tau, times tau
                 e -= e.mean()
@@ -202,7 +198,7 @@ def weighted_solution(channels: Sequence[WindowChannel], tau_start: float) -> fl
                 slope -= (float(slope @ e) / see) * e  # its part outside the basis
                 bases.append((e, slope, see))
             else:
-                bases.append(bases[same[c]])
+                bases.append(bases[self.same[c]])  # the channels of one window share their instants
             e, slope, see = bases[c]
             coefficient = float(e @ y) / see
             sums.append(max(float(y @ y) - coefficient * float(e @ y), 0.0))
@@ -212,39 +208,67 @@ def weighted_solution(channels: Sequence[WindowChannel], tau_start: float) -> fl
             curvature += coefficient ** 2 * float(slope @ slope) / tau ** 2 / weights[c]
         return sums, gradient, curvature
 
-    weights = [1.0] * len(channels)
-    log_tau = math.log(tau_start)
-    if len(set(groups)) > 1:
-        sums = state(log_tau)[0]
+    def minimum(self, tau_start: float, weights: Sequence[float]) -> float | None:
+        """The tau that minimises the weighted sum of squares, by Gauss–Newton steps from
+        ``tau_start``; None where they do not converge.
+
+        The steps stop when one would lower the sum by less than
+        :data:`~wavefit.fit.engine.NEGLIGIBLE_CHANGE` of it (the solver's own stop); a step
+        longer than :data:`GRID_STEP` (the spacing of the grid a start is found on: the
+        minimum is then flat or far), a step that raises the sum, or more than
+        :data:`SOLUTION_ITERATIONS` steps end them with None."""
+        log_tau = math.log(tau_start)
+        sums, gradient, curvature = self.state(log_tau, weights)
+        for _ in range(SOLUTION_ITERATIONS):
+            if not (sums and curvature > 0 and math.isfinite(gradient)):
+                return None
+            cost = sum(s / w for s, w in zip(sums, weights))
+            step = gradient / curvature
+            if step * gradient <= NEGLIGIBLE_CHANGE * cost:
+                return math.exp(log_tau)  # the step would lower the sum by less than its rounding
+            if abs(step) > GRID_STEP:
+                return None
+            log_tau += step
+            sums, gradient, curvature = self.state(log_tau, weights)
+            if sums and sum(s / w for s, w in zip(sums, weights)) > cost * (1.0 + SOLUTION_RISE):
+                return None
+        return None
+
+    def scatter_weights(self, tau: float, groups: Sequence[str]) -> list[float] | None:
+        """Each channel's weight as :func:`wavefit.fit.engine.fit_least_squares` weighs its noise
+        group by the residuals at ``tau``: the group's sum of squares over its samples less its
+        share of the parameters (1 + 2 per channel); None where a group has no scatter."""
+        sums = self.state(math.log(tau), [1.0] * len(self.centred))[0]
         if not sums:
             return None
+        n_par = 1 + 2 * len(self.centred)
+        total = sum(y.size for y in self.centred)
         scatter = {}
         for g in set(groups):
-            members = [c for c in range(len(channels)) if groups[c] == g]
-            size = sum(centred[c].size for c in members)
+            members = [c for c in range(len(groups)) if groups[c] == g]
+            size = sum(self.centred[c].size for c in members)
             scatter[g] = sum(sums[c] for c in members) / max(size - n_par * size / total, 1.0)
         if not all(s > 0 for s in scatter.values()):
             return None
-        weights = [scatter[g] for g in groups]
-    sums, gradient, curvature = state(log_tau)
-    for _ in range(SOLUTION_ITERATIONS):
-        if not (sums and curvature > 0 and math.isfinite(gradient)):
-            return None
-        cost = sum(s / w for s, w in zip(sums, weights))
-        step = gradient / curvature
-        if step * gradient <= NEGLIGIBLE_CHANGE * cost:
-            return math.exp(log_tau)  # the step would lower the sum by less than its rounding
-        if abs(step) > GRID_STEP:
-            return None  # beyond the start's bracket: a flat or far minimum, for the solver
-        log_tau += step
-        sums, gradient, curvature = state(log_tau)
-        if sums and sum(s / w for s, w in zip(sums, weights)) > cost * (1.0 + SOLUTION_RISE):
-            return None
-    return None
+        return [scatter[g] for g in groups]
 
 
-#: Gauss–Newton steps :func:`weighted_solution` may take: from a start within 1e-6 of the
-#: minimum (projected_tau's tolerance) the steps shrink by orders of magnitude each.
+def weighted_solution(channels: Sequence[WindowChannel], tau_start: float) -> float | None:
+    """tau of the least squares that :func:`fit_exponential_window`'s first solve reaches from
+    the projected start ``tau_start``, by :meth:`ProjectedProblem.minimum`; None where its
+    steps do not converge (the solver then takes that solve).
+
+    That solve weighs each noise group by its scatter about the start
+    (:meth:`ProjectedProblem.scatter_weights`) when there are two or more, else all alike.
+    """
+    problem = ProjectedProblem(channels)
+    groups = [ch.noise_group or ch.group for ch in channels]
+    weights = problem.scatter_weights(tau_start, groups) if len(set(groups)) > 1 else [1.0] * len(channels)
+    return None if weights is None else problem.minimum(tau_start, weights)
+
+
+#: Gauss–Newton steps :meth:`ProjectedProblem.minimum` may take: from a start within 1e-6 of
+#: the minimum (projected_tau's tolerance) the steps shrink by orders of magnitude each.
 SOLUTION_ITERATIONS = 8
 #: A step may raise the sum of squares by this share before it counts as a rise (a step that
 #: overshoots the minimum): each channel's sum is the difference of its samples' sum of squares

@@ -15,16 +15,11 @@ from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
-from scipy import optimize
 
-from .exponential import GRID_STEP, WindowChannel, curve_information, decay, projected_cost, projected_tau
+from .exponential import ProjectedProblem, WindowChannel, curve_information, decay, projected_tau
 from .noise_model import fit_ar
 from .quantisation import limiting_step
 
-#: Tolerance on log tau of the projected minimum: 1e-3 of the smallest relative standard error
-#: of tau met in one window (about 1e-5, a two-channel window of 10⁶ samples at 50 dB), so the
-#: statistics formed from it move by less than 1e-3 standard deviations.
-TAU_TOLERANCE = 1e-8
 #: fit_exponential_window's AR order limit (:func:`wavefit.fit.engine.fit_least_squares`).
 MAX_AR_ORDER = 30
 
@@ -43,15 +38,19 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     """tau and its variance from the fit :func:`~wavefit.fit.exponential.fit_exponential_window`
     makes of ``channels`` with ``noise``, where that fit is white; None where it is not.
 
-    ``tau0`` is a tau near the minimum (the full window's for a later part of it): the
-    minimum is sought within one step of :func:`~wavefit.fit.exponential.projected_tau`'s
-    grid of it, and by that grid when it lies beyond. The steps are the fit's own: the
-    channels weighed by their scatter about the projected
-    start, the minimum sought with those weights, each channel's scatter then taken about it
+    ``tau0`` is a tau near the minimum (the full window's for a later part of it), from which
+    the minimum is sought by Gauss–Newton steps
+    (:meth:`~wavefit.fit.exponential.ProjectedProblem.minimum`), or from the fit's own start
+    (:func:`~wavefit.fit.exponential.projected_tau`) when they do not reach it. The steps
+    are the fit's own:
+    each channel over its own variance (the fit's start), then the channels weighed by their
+    scatter about that start, the minimum sought with those weights, each channel's scatter
+    then taken about it
     with the fit's share of the parameters deducted (its white noise model), and tau's
     variance the inverse of the information summed over the channels, each weighed by its
     scatter (the linearised covariance, whose residual factor is then one). None when the
     noise option is neither ``"auto"`` nor ``"white"``, when channels share a noise group,
+    when the steps do not converge (the fit's solver would then take over),
     when the residuals ask for an autoregressive model (``"auto"``: the same choice,
     :func:`wavefit.fit.noise_model.fit_ar`), when a channel's noise does not dither its code
     grid (:func:`wavefit.fit.quantisation.limiting_step`), or when the information is not
@@ -65,8 +64,8 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     """
     if noise not in ("auto", "white") or len({ch.noise_group or ch.group for ch in channels}) < len(channels):
         return None
-    elapsed = [np.asarray(ch.time, dtype=float) - float(ch.time[0]) for ch in channels]
-    centred = [np.asarray(ch.values, dtype=float) - float(np.mean(ch.values)) for ch in channels]
+    problem = ProjectedProblem(channels)
+    elapsed, centred = problem.elapsed, problem.centred
     total = sum(y.size for y in centred)
     n_par = 1 + 2 * len(channels)
 
@@ -87,24 +86,16 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
 
     # first each channel over its own variance (the fit's start), then, with two or more
     # channels, weighed by their scatter about that minimum (the fit's weights)
-    tolerance = TAU_TOLERANCE if len(channels) == 1 else 1e-6
-    start_cost = projected_cost(elapsed, centred)
-    tau = _minimum(start_cost, tau0, tolerance)
+    own = problem.own_variances()
+    tau = problem.minimum(tau0, own)
     if tau is None:
-        # beyond one grid step: the grid's bracket, then a minimum inside one step of it (the
-        # grid ends at five times tau0 either way, where its answer need not be a minimum)
-        tau = _minimum(start_cost, projected_tau(channels, tau0, tolerance=tolerance), tolerance)
-        if tau is None:
-            return None
-    if len(channels) > 1:
-        # the weights move the minimum by a fraction of tau's deviation, well within the bracket;
-        # a channel with no scatter at all (held at a converter limit throughout) has no weight
-        weights = fitted(tau)[2]
-        if not all(s > 0 for s in weights):
-            return None
-        tau = _minimum(projected_cost(elapsed, centred, weights), tau, TAU_TOLERANCE)
-        if tau is None:
-            return None
+        # beyond the steps' reach from tau0: from the start the fit itself takes
+        tau = problem.minimum(projected_tau(channels, tau0), own)
+    if tau is not None and len(channels) > 1:
+        weights = problem.scatter_weights(tau, [ch.group for ch in channels])
+        tau = None if weights is None else problem.minimum(tau, weights)
+    if tau is None:
+        return None
     residuals, amplitudes, scatters = fitted(tau)
     if not all(s > 0 for s in scatters):
         return None
@@ -117,21 +108,3 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     if not (information > 0 and np.isfinite(information)):
         return None
     return WhiteTau(tau, 1.0 / information, tuple(amplitudes))
-
-
-#: A minimum found within this share of the bracket's half-width of its edge is taken as lying
-#: beyond it.
-EDGE_SHARE = 0.01
-
-
-def _minimum(cost, guess: float, tolerance: float) -> float | None:
-    """The tau that minimises ``cost`` (a function of log tau) within one step of
-    projected_tau's grid either side of ``guess``, which holds the minimum when ``guess`` is a
-    fit's tau of the same curve (a later window's tau differs by a few standard deviations);
-    None when the minimum lies at the bracket's edge, or beyond."""
-    lo, hi = math.log(guess) - GRID_STEP, math.log(guess) + GRID_STEP
-    found = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": tolerance})
-    x = float(found.x)
-    if min(x - lo, hi - x) < EDGE_SHARE * GRID_STEP:
-        return None
-    return math.exp(x)
