@@ -81,13 +81,16 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float, scales: Sequen
         Each channel's noise variance, by which its residual sum of squares is divided
         (default: the channel's own variance about its mean).
     tolerance
-        Absolute tolerance on log tau (the relative one on tau).
+        Absolute tolerance on log tau (the relative one on tau) of the bounded search, which
+        is taken where Gauss–Newton steps (:meth:`ProjectedProblem.minimum`) from the grid's
+        best point do not converge within its neighbours (they converge to rounding).
 
     References
     ----------
     G. H. Golub and V. Pereyra, "The differentiation of pseudo-inverses and
     nonlinear least squares problems whose variables separate", SIAM J. Numer.
     Anal. 10 (1973) 413–432.
+    L. Kaufman, BIT 15 (1975) 49–57 (the Gauss–Newton steps).
     """
     # for fixed tau each channel is a straight line in e = exp(−t/tau): its residual sum of
     # squares is that of simple regression on the centred samples, Syy − Sey²/See, with no
@@ -105,6 +108,13 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float, scales: Sequen
     grid = np.log(tau0) + np.linspace(math.log(GRID_LOW), math.log(1.0 / GRID_LOW), GRID_POINTS)
     costs = [coarse(g) for g in grid]
     k = int(np.argmin(costs))
+    if 0 < k < grid.size - 1:
+        # Gauss–Newton steps from the best point of the grid (a few evaluations where the
+        # bounded search takes ten or more); the search where they do not converge
+        problem = ProjectedProblem(channels)
+        found = problem.minimum(math.exp(grid[k]), problem.own_variances() if scales is None else scales)
+        if found is not None and grid[k - 1] < math.log(found) < grid[k + 1]:
+            return found
     lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
     res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": tolerance})
     return float(math.exp(res.x))
