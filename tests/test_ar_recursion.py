@@ -16,7 +16,7 @@ def test_every_order_matches_the_toeplitz_solution():
     rng = np.random.default_rng(0)
     noise = np.convolve(rng.standard_normal(5000), [1.0, 0.8, 0.5, 0.2], "same")
     acov, _ = autocovariance([noise], 30)
-    orders = list(_durbin(acov, 30))
+    orders = [(p, a.copy(), var_e) for p, a, var_e in _durbin(acov, 30)]  # each order's own copy
     assert [p for p, _, _ in orders] == list(range(1, 31))
     for p, a, var_e in orders:
         direct = solve_toeplitz(acov[:p], acov[1:p + 1])

@@ -144,7 +144,7 @@ def fit_ar(blocks: list[np.ndarray], max_order: int = 30) -> ARNoise:
     for p, a, var_e in _durbin(acov, max_order):
         bic = n * math.log(var_e) + p * math.log(n)
         if bic < best[0]:
-            best = (bic, a, var_e)
+            best = (bic, a.copy(), var_e)
     _, a, var_e = best
     if a.size and not _is_stationary(a):
         return ARNoise(np.zeros(0), sigma, sigma)
@@ -155,22 +155,27 @@ def _durbin(acov: np.ndarray, max_order: int):
     """The Yule–Walker AR(p) coefficients and prediction-error variance for p = 1 … max_order,
     each order from the one before (Durbin's recursion: the same solutions as solving each
     order's Toeplitz system, in O(p) per order); stops before an order whose prediction-error
-    variance is not positive.
+    variance is not positive. The coefficients are a view of one array that the next order
+    overwrites (no array is made per order): copy those to be kept.
 
     References
     ----------
     .. [1] J. Durbin, "The fitting of time-series models", Rev. Int. Stat. Inst. 28 (1960)
        233–244.
     """
-    a = np.zeros(0)
+    coefficients = np.zeros(max_order)
+    turned = np.zeros(max_order)  # the previous order's coefficients in reverse
     var_e = float(acov[0])
     for p in range(1, max_order + 1):
+        a = coefficients[:p - 1]
         reflection = (float(acov[p]) - float(a @ acov[p - 1:0:-1])) / var_e
-        a = np.append(a - reflection * a[::-1], reflection)
+        np.multiply(a[::-1], reflection, out=turned[:p - 1])
+        a -= turned[:p - 1]
+        coefficients[p - 1] = reflection
         var_e *= 1.0 - reflection * reflection
         if not var_e > 0:
             return
-        yield p, a, var_e
+        yield p, coefficients[:p], var_e
 
 
 def _is_stationary(a: np.ndarray) -> bool:
