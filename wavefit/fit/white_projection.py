@@ -42,15 +42,14 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     the minimum is sought by Gauss–Newton steps
     (:meth:`~wavefit.fit.exponential.ProjectedProblem.minimum`), or from the fit's own start
     (:func:`~wavefit.fit.exponential.projected_tau`) when they do not reach it. The steps
-    are the fit's own:
-    each channel over its own variance (the fit's start), then the channels weighed by their
-    scatter about that start, the minimum sought with those weights, each channel's scatter
-    then taken about it
-    with the fit's share of the parameters deducted (its white noise model), and tau's
-    variance the inverse of the information summed over the channels, each weighed by its
-    scatter (the linearised covariance, whose residual factor is then one). None when the
-    noise option is neither ``"auto"`` nor ``"white"``, when channels share a noise group,
-    when the steps do not converge (the fit's solver would then take over),
+    are the fit's own: each channel over its own variance (the fit's start), then the
+    channels weighed by their scatter about that start, the minimum sought with those
+    weights, each channel's scatter then taken about it with the fit's share of the
+    parameters deducted (its white noise model), and tau's variance the inverse of the
+    information summed over the channels, each weighed by its scatter (the linearised
+    covariance, whose residual factor is then one). None when the noise option is neither
+    ``"auto"`` nor ``"white"``, when channels share a noise group, when the steps do not
+    converge (the fit's solver would then take over), when a channel has no scatter,
     when the residuals ask for an autoregressive model (``"auto"``: the same choice,
     :func:`wavefit.fit.noise_model.fit_ar`), when a channel's noise does not dither its code
     grid (:func:`wavefit.fit.quantisation.limiting_step`), or when the information is not
@@ -61,6 +60,7 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     G. H. Golub and V. Pereyra, "The differentiation of pseudo-inverses and nonlinear least
     squares problems whose variables separate", SIAM J. Numer. Anal. 10 (1973) 413–432.
     G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley 1989, §2.1.
+    L. Kaufman, BIT 15 (1975) 49–57 (the Gauss–Newton steps of the projected problem).
     """
     if noise not in ("auto", "white") or len({ch.noise_group or ch.group for ch in channels}) < len(channels):
         return None
