@@ -155,7 +155,7 @@ def test_weighted_solution_is_the_weighted_least_squares(channels):
     weighted least squares of the whole window (Kaufman's step is the full problem's
     Gauss–Newton step in tau: L. Kaufman, BIT 15 (1975) 49–57), to a small fraction of tau's
     standard error, for one channel and for two whose noise differs tenfold."""
-    from wavefit.fit.exponential import WindowChannel, projected_tau, weighted_solution
+    from wavefit.fit.exponential import ProjectedProblem, WindowChannel, projected_tau
 
     rng = np.random.default_rng(11)
     n, tau = 20000, 3e-6
@@ -163,7 +163,7 @@ def test_weighted_solution_is_the_weighted_least_squares(channels):
     chans = [WindowChannel("sense", t, 0.2 * (1 - np.exp(-t / tau)) + 1e-3 * rng.standard_normal(n)),
              WindowChannel("drive", t, 1.0 + 2.0 * np.exp(-t / tau) + 1e-2 * rng.standard_normal(n))][:channels]
     start = projected_tau(chans, 1.3 * tau)
-    found = weighted_solution(chans, start)
+    found = ProjectedProblem(chans).weighted_solution(start, [ch.group for ch in chans])
     expected, solve = _weighted_least_squares_tau(chans, start)
     # tau's standard error from the solve's Jacobian (unit weights after the scatter)
     jac = solve.jac
@@ -176,8 +176,9 @@ def test_weighted_solution_is_the_weighted_least_squares(channels):
 def test_weighted_solution_leaves_an_undetermined_tau_to_the_solver():
     """A window with no decay in it (noise about a level) has no minimum near its start: the
     steps go beyond the start's bracket and the projected solution says None."""
-    from wavefit.fit.exponential import WindowChannel, weighted_solution
+    from wavefit.fit.exponential import ProjectedProblem, WindowChannel
 
     rng = np.random.default_rng(2)
     t = np.arange(5000) * 1e-9
-    assert weighted_solution([WindowChannel("sense", t, 1.0 + 1e-3 * rng.standard_normal(t.size))], 2e-7) is None
+    flat = ProjectedProblem([WindowChannel("sense", t, 1.0 + 1e-3 * rng.standard_normal(t.size))])
+    assert flat.weighted_solution(2e-7, ["sense"]) is None

@@ -95,7 +95,7 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
     unit weights (such as :func:`wavefit.fit.damped_sine.refine`'s on the same window), or,
     with ``fitted_start`` and several groups, with each group weighed by its scatter about
     the fitted start from which the caller solved it
-    (:func:`wavefit.fit.exponential.weighted_solution`).
+    (:meth:`wavefit.fit.exponential.ProjectedProblem.weighted_solution`).
     """
     mapping = ParameterMap(as_parameters(x0, names, bounds), copy=False)
     return fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,

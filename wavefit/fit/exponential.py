@@ -92,32 +92,8 @@ def projected_tau(channels: Sequence[WindowChannel], tau0: float, scales: Sequen
     Anal. 10 (1973) 413–432.
     L. Kaufman, BIT 15 (1975) 49–57 (the Gauss–Newton steps).
     """
-    # for fixed tau each channel is a straight line in e = exp(−t/tau): its residual sum of
-    # squares is that of simple regression on the centred samples, Syy − Sey²/See, with no
-    # factorisation per evaluation
-    times = [np.asarray(ch.time, dtype=float) for ch in channels]
-    values = [np.asarray(ch.values, dtype=float) for ch in channels]
-    cost = projected_cost(times, values, scales)
-    # the grid only brackets the minimum: on a long window every stride-th sample does that as
-    # well, as long as the shortest tau of the grid still spans several of its intervals
-    dt = float(times[0][1] - times[0][0]) if times[0].size > 1 else 0.0
-    shortest = min(t.size for t in times)
-    stride = max(1, min(shortest // GRID_SAMPLES, int(GRID_LOW * tau0 / (4.0 * dt)) if dt > 0 else 1))
-    coarse = cost if stride == 1 else projected_cost([t[::stride] for t in times], [y[::stride] for y in values],
-                                                     scales)
-    grid = np.log(tau0) + np.linspace(math.log(GRID_LOW), math.log(1.0 / GRID_LOW), GRID_POINTS)
-    costs = [coarse(g) for g in grid]
-    k = int(np.argmin(costs))
-    if 0 < k < grid.size - 1:
-        # Gauss–Newton steps from the best point of the grid (a few evaluations where the
-        # bounded search takes ten or more); the search where they do not converge
-        problem = ProjectedProblem(channels)
-        found = problem.minimum(math.exp(grid[k]), problem.own_variances() if scales is None else scales)
-        if found is not None and grid[k - 1] < math.log(found) < grid[k + 1]:
-            return found
-    lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
-    res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": tolerance})
-    return float(math.exp(res.x))
+    problem = ProjectedProblem(channels)
+    return problem.start(tau0, problem.own_variances() if scales is None else list(scales), tolerance)
 
 
 #: The starting grid of :func:`projected_tau` spans tau0·GRID_LOW to tau0/GRID_LOW (a rough
@@ -171,7 +147,9 @@ class ProjectedProblem:
     :meth:`minimum` takes Gauss–Newton steps in log tau: each is the Gauss–Newton step of the
     residuals projected onto the complement of (1, exp(−u/tau)), with Kaufman's Jacobian of
     the projection (the derivative of the basis times the channel's coefficient, projected
-    likewise), which is the full problem's Gauss–Newton step in tau.
+    likewise), which is the full problem's Gauss–Newton step in tau. The terms of the last
+    tau evaluated are kept, so a minimum found with one set of weights is the next search's
+    start at no cost.
 
     References
     ----------
@@ -181,21 +159,53 @@ class ProjectedProblem:
     """
 
     def __init__(self, channels: Sequence[WindowChannel]):
-        self.elapsed = [np.asarray(ch.time, dtype=float) - float(ch.time[0]) for ch in channels]
-        self.centred = [np.asarray(ch.values, dtype=float) - float(np.mean(ch.values)) for ch in channels]
+        self.times = [np.asarray(ch.time, dtype=float) for ch in channels]
+        self.values = [np.asarray(ch.values, dtype=float) for ch in channels]
+        self.elapsed = [t - float(t[0]) for t in self.times]
+        self.centred = [y - float(np.mean(y)) for y in self.values]
         self.same = first_equal(self.elapsed)
+        self._kept: tuple[float, list[tuple[float, float, float]] | None] | None = None
 
     def own_variances(self) -> list[float]:
         """Each channel's variance about its mean (:func:`projected_cost`'s default weights)."""
         return [float(y @ y) / y.size or 1.0 for y in self.centred]
 
-    def state(self, log_tau: float, weights: Sequence[float]) -> tuple[list[float], float, float]:
-        """Each channel's residual sum of squares at tau, and the projected problem's Jᵀr and
-        JᵀJ (in log tau), each channel's terms over its weight; ([], nan, nan) where a basis does
-        not vary."""
-        tau = math.exp(log_tau)
+    def start(self, tau0: float, weights: Sequence[float], tolerance: float = 1e-6) -> float:
+        """The minimum over tau0·GRID_LOW … tau0/GRID_LOW (:func:`projected_tau`): a grid in log
+        tau brackets it, Gauss–Newton steps from the grid's best point reach it, and a bounded
+        search within the bracket (to ``tolerance`` in log tau) where they do not converge
+        there."""
+        # for fixed tau each channel is a straight line in e = exp(−t/tau): its residual sum of
+        # squares is that of simple regression on the centred samples, Syy − Sey²/See, with no
+        # factorisation per evaluation
+        cost = projected_cost(self.times, self.values, weights)
+        # the grid only brackets the minimum: on a long window every stride-th sample does that as
+        # well, as long as the shortest tau of the grid still spans several of its intervals
+        times = self.times
+        dt = float(times[0][1] - times[0][0]) if times[0].size > 1 else 0.0
+        shortest = min(t.size for t in times)
+        stride = max(1, min(shortest // GRID_SAMPLES, int(GRID_LOW * tau0 / (4.0 * dt)) if dt > 0 else 1))
+        coarse = cost if stride == 1 else projected_cost([t[::stride] for t in times],
+                                                         [y[::stride] for y in self.values], weights)
+        grid = np.log(tau0) + np.linspace(math.log(GRID_LOW), math.log(1.0 / GRID_LOW), GRID_POINTS)
+        costs = [coarse(g) for g in grid]
+        k = int(np.argmin(costs))
+        if 0 < k < grid.size - 1:
+            # Gauss–Newton steps (a few evaluations where the bounded search takes ten or more)
+            found = self.minimum(math.exp(grid[k]), weights)
+            if found is not None and grid[k - 1] < math.log(found) < grid[k + 1]:
+                return found
+        lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
+        res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": tolerance})
+        return float(math.exp(res.x))
+
+    def terms(self, tau: float) -> list[tuple[float, float, float]] | None:
+        """Each channel's residual sum of squares at ``tau`` and its unweighted terms of the
+        projected problem's Jᵀr and JᵀJ in log tau; None where a basis does not vary."""
+        if self._kept is not None and self._kept[0] == tau:
+            return self._kept[1]
         bases: list[tuple[np.ndarray, np.ndarray, float]] = []
-        sums, gradient, curvature = [], 0.0, 0.0
+        out: list[tuple[float, float, float]] | None = []
         for c, (u, y) in enumerate(zip(self.elapsed, self.centred)):
             if self.same[c] == c:
                 e = decay(u, tau)
@@ -204,19 +214,21 @@ class ProjectedProblem:
                 slope -= slope.mean()
                 see = float(e @ e)
                 if not see > 0:
-                    return [], math.nan, math.nan
+                    out = None
+                    break
                 slope -= (float(slope @ e) / see) * e  # its part outside the basis
                 bases.append((e, slope, see))
             else:
                 bases.append(bases[self.same[c]])  # the channels of one window share their instants
             e, slope, see = bases[c]
             coefficient = float(e @ y) / see
-            sums.append(max(float(y @ y) - coefficient * float(e @ y), 0.0))
             # the residual is orthogonal to the basis, so its product with the projected
             # derivative is its product with the derivative itself
-            gradient += coefficient * float(slope @ y) / tau / weights[c]
-            curvature += coefficient ** 2 * float(slope @ slope) / tau ** 2 / weights[c]
-        return sums, gradient, curvature
+            out.append((max(float(y @ y) - coefficient * float(e @ y), 0.0),
+                        coefficient * float(slope @ y) / tau,
+                        coefficient ** 2 * float(slope @ slope) / tau ** 2))
+        self._kept = (tau, out)
+        return out
 
     def minimum(self, tau_start: float, weights: Sequence[float]) -> float | None:
         """The tau that minimises the weighted sum of squares, by Gauss–Newton steps from
@@ -227,20 +239,24 @@ class ProjectedProblem:
         longer than :data:`GRID_STEP` (the spacing of the grid a start is found on: the
         minimum is then flat or far), a step that raises the sum, or more than
         :data:`SOLUTION_ITERATIONS` steps end them with None."""
-        log_tau = math.log(tau_start)
-        sums, gradient, curvature = self.state(log_tau, weights)
+        tau = tau_start
+        terms = self.terms(tau)
         for _ in range(SOLUTION_ITERATIONS):
-            if not (sums and curvature > 0 and math.isfinite(gradient)):
+            if terms is None:
                 return None
-            cost = sum(s / w for s, w in zip(sums, weights))
+            cost = sum(t[0] / w for t, w in zip(terms, weights))
+            gradient = sum(t[1] / w for t, w in zip(terms, weights))
+            curvature = sum(t[2] / w for t, w in zip(terms, weights))
+            if not (curvature > 0 and math.isfinite(gradient)):
+                return None
             step = gradient / curvature
             if step * gradient <= NEGLIGIBLE_CHANGE * cost:
-                return math.exp(log_tau)  # the step would lower the sum by less than its rounding
+                return tau  # the step would lower the sum by less than its rounding
             if abs(step) > GRID_STEP:
                 return None
-            log_tau += step
-            sums, gradient, curvature = self.state(log_tau, weights)
-            if sums and sum(s / w for s, w in zip(sums, weights)) > cost * (1.0 + SOLUTION_RISE):
+            tau *= math.exp(step)
+            terms = self.terms(tau)
+            if terms is not None and sum(t[0] / w for t, w in zip(terms, weights)) > cost * (1.0 + SOLUTION_RISE):
                 return None
         return None
 
@@ -248,8 +264,8 @@ class ProjectedProblem:
         """Each channel's weight as :func:`wavefit.fit.engine.fit_least_squares` weighs its noise
         group by the residuals at ``tau``: the group's sum of squares over its samples less its
         share of the parameters (1 + 2 per channel); None where a group has no scatter."""
-        sums = self.state(math.log(tau), [1.0] * len(self.centred))[0]
-        if not sums:
+        terms = self.terms(tau)
+        if terms is None:
             return None
         n_par = 1 + 2 * len(self.centred)
         total = sum(y.size for y in self.centred)
@@ -257,24 +273,19 @@ class ProjectedProblem:
         for g in set(groups):
             members = [c for c in range(len(groups)) if groups[c] == g]
             size = sum(self.centred[c].size for c in members)
-            scatter[g] = sum(sums[c] for c in members) / max(size - n_par * size / total, 1.0)
+            scatter[g] = sum(terms[c][0] for c in members) / max(size - n_par * size / total, 1.0)
         if not all(s > 0 for s in scatter.values()):
             return None
         return [scatter[g] for g in groups]
 
-
-def weighted_solution(channels: Sequence[WindowChannel], tau_start: float) -> float | None:
-    """tau of the least squares that :func:`fit_exponential_window`'s first solve reaches from
-    the projected start ``tau_start``, by :meth:`ProjectedProblem.minimum`; None where its
-    steps do not converge (the solver then takes that solve).
-
-    That solve weighs each noise group by its scatter about the start
-    (:meth:`ProjectedProblem.scatter_weights`) when there are two or more, else all alike.
-    """
-    problem = ProjectedProblem(channels)
-    groups = [ch.noise_group or ch.group for ch in channels]
-    weights = problem.scatter_weights(tau_start, groups) if len(set(groups)) > 1 else [1.0] * len(channels)
-    return None if weights is None else problem.minimum(tau_start, weights)
+    def weighted_solution(self, tau_start: float, groups: Sequence[str]) -> float | None:
+        """tau of the least squares that :func:`fit_exponential_window`'s first solve reaches
+        from the projected start ``tau_start``, by :meth:`minimum`; None where its steps do
+        not converge (the solver then takes that solve). That solve weighs each noise group
+        (``groups``, one per channel) by its scatter about the start (:meth:`scatter_weights`)
+        when there are two or more, else all alike."""
+        weights = self.scatter_weights(tau_start, groups) if len(set(groups)) > 1 else [1.0] * len(groups)
+        return None if weights is None else self.minimum(tau_start, weights)
 
 
 #: Gauss–Newton steps :meth:`ProjectedProblem.minimum` may take: from a start within 1e-6 of
@@ -331,9 +342,11 @@ def fit_exponential_window(channels: Sequence[WindowChannel], tau0: float, *, no
     # channels of one window; different ones when several windows are fitted jointly)
     t_refs = {ch.group: float(ch.time[0]) for ch in channels}
     t_ref = min(t_refs.values())
-    tau_start = projected_tau(channels, tau0)
+    problem = ProjectedProblem(channels)
+    tau_start = problem.start(tau0, problem.own_variances())  # projected_tau's
     # the first solve's solution by variable projection, where it converges (else the solver's)
-    solved = weighted_solution(channels, tau_start) if noise in ("auto", "white") else None
+    solved = (problem.weighted_solution(tau_start, [ch.noise_group or ch.group for ch in channels])
+              if noise in ("auto", "white") else None)
     # Work in units of tau_start so the parameters are of order one.
     scaled = [(np.asarray(ch.time, dtype=float) - t_refs[ch.group]) / tau_start for ch in channels]
     x0 = [1.0 if solved is None else solved / tau_start]

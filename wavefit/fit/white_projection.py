@@ -16,7 +16,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .exponential import ProjectedProblem, WindowChannel, curve_information, decay, projected_tau
+from .exponential import ProjectedProblem, WindowChannel, curve_information, decay
 from .noise_model import fit_ar
 from .quantisation import limiting_step
 
@@ -41,7 +41,7 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     ``tau0`` is a tau near the minimum (the full window's for a later part of it), from which
     the minimum is sought by Gauss–Newton steps
     (:meth:`~wavefit.fit.exponential.ProjectedProblem.minimum`), or from the fit's own start
-    (:func:`~wavefit.fit.exponential.projected_tau`) when they do not reach it. The steps
+    (:meth:`~wavefit.fit.exponential.ProjectedProblem.start`) when they do not reach it. The steps
     are the fit's own: each channel over its own variance (the fit's start), then the
     channels weighed by their scatter about that start, the minimum sought with those
     weights, each channel's scatter then taken about it with the fit's share of the
@@ -90,7 +90,7 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     tau = problem.minimum(tau0, own)
     if tau is None:
         # beyond the steps' reach from tau0: from the start the fit itself takes
-        tau = problem.minimum(projected_tau(channels, tau0), own)
+        tau = problem.minimum(problem.start(tau0, own), own)
     if tau is not None and len(channels) > 1:
         weights = problem.scatter_weights(tau, [ch.group for ch in channels])
         tau = None if weights is None else problem.minimum(tau, weights)
