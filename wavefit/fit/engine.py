@@ -35,7 +35,7 @@ import numpy as np
 
 from ..errors import AnalysisRefused
 from .compressed import TriangularProblem, triangle
-from .constraints import ParameterMap, SolveParameters
+from .constraints import ParameterMap
 from .jacobian import Jacobian, as_jacobian, is_small
 from .noise_model import ARNoise, fit_ar, white
 from .portmanteau import ljung_box, structured
@@ -86,7 +86,8 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
     """Fit ``fun`` (residual = data − model, for all blocks concatenated) over the vector ``x``.
 
     The start ``x0``, the ``names`` and the ``bounds`` become free
-    :class:`lmfit.Parameters` (:func:`as_parameters`), fitted as by :func:`fit_parameters`.
+    :class:`lmfit.Parameters` (:meth:`~wavefit.fit.constraints.ParameterMap.all_free`, made
+    when a solve asks for them), fitted as by :func:`fit_parameters`.
     ``fitted_start`` says that ``x0`` already fits every group about as well as the solution
     will (a variable-projection estimate): the groups' scatter, which weighs them against each
     other, is then taken from its residuals, saving the solve with unit weights that would
@@ -97,7 +98,8 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
     the fitted start from which the caller solved it
     (:meth:`wavefit.fit.exponential.ProjectedProblem.weighted_solution`).
     """
-    mapping = ParameterMap(as_parameters(x0, names, bounds), copy=False)
+    x0, lower, upper = checked_start(x0, names, bounds)
+    mapping = ParameterMap.all_free(x0, tuple(names), lower, upper)
     return fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
                     max_ar_order=max_ar_order, sigma=sigma, fitted_start=fitted_start,
                     solved_start=solved_start)
@@ -163,21 +165,20 @@ def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarra
                     blocks, model, noise, x_scale, max_ar_order, sigma, fitted_start, solved_start)
 
 
-def as_parameters(x0: Sequence[float], names: Sequence[str], bounds: tuple = (-np.inf, np.inf)) -> lmfit.Parameters:
-    """Free :class:`lmfit.Parameters` named ``names``, starting at ``x0``, within ``bounds``
-    (a pair of scalars or of arrays, as scipy's ``least_squares`` takes them), made for one
-    fit's solver alone (:class:`~wavefit.fit.constraints.SolveParameters`)."""
+def checked_start(x0: Sequence[float], names: Sequence[str],
+                  bounds: tuple = (-np.inf, np.inf)) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The start ``x0`` and the lower and upper bounds (``bounds`` a pair of scalars or of arrays,
+    as scipy's ``least_squares`` takes them) as vectors, once the ``names`` are checked to
+    differ and the start to lie within the bounds (lmfit would move it onto a bound; scipy
+    refuses it)."""
     x0 = np.asarray(x0, dtype=float)
     if len(set(names)) != len(names):
         raise ValueError("fit parameter names must differ from each other")
     lo, hi = (np.broadcast_to(np.asarray(b, dtype=float), x0.shape) for b in bounds)
     outside = (x0 < lo) | (x0 > hi)
-    if np.any(outside):  # lmfit would move the start onto the bound; scipy refuses it
+    if np.any(outside):
         raise ValueError(f"the start of {names[int(np.argmax(outside))]} lies outside its bounds")
-    params = SolveParameters()
-    for name, v, a, b in zip(names, x0, lo, hi):
-        params.add(name, value=float(v), min=float(a), max=float(b))
-    return params
+    return x0, lo, hi
 
 
 @contextmanager

@@ -10,7 +10,6 @@ else. It says None wherever the fit would take another path, which the caller th
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Sequence
 
