@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import AnalysisRefused
-from ..fit.exponential import WindowChannel, curve_information, decay, projected_cost, window_model
+from ..fit.exponential import ProjectedProblem, WindowChannel, curve_information, decay, window_model
 from ..fit.white_projection import white_window_tau
 from ..signal.clipping import clipped_where_fitted, leading_held
 from ..signal.edge_lattice import periodic_instants
@@ -222,20 +222,20 @@ def projected_shift(t, sense, drive, w, f, start: int) -> float | None:
 
     tau of the later window is found by variable projection (for each tau the levels and
     amplitudes are linear: G. H. Golub and V. Pereyra, SIAM J. Numer. Anal. 10 (1973)
-    413–432), each channel weighed by the full fit's noise model, within a reach set by the
-    difference's deviation as the sense channel's information foresees it
-    (:func:`_tau_information`). The difference's variance is var(τ_late) − var(τ_full), the
+    413–432; Gauss–Newton steps from the full window's tau,
+    :meth:`~wavefit.fit.exponential.ProjectedProblem.minimum`), each channel weighed by the
+    full fit's noise model; its shift counts within a reach set by the difference's
+    deviation as the sense channel's information foresees it (:func:`_tau_information`). The difference's variance is var(τ_late) − var(τ_full), the
     first from the linearised information of the later window with each channel weighed by
     its own scatter about the later curve, as the refit weighs it: the Hausman test's
     statistic (J. A. Hausman, Econometrica 46 (1978) 1251–1271). Only windows whose full fit
     is white and on no code grid are foreseen: an AR model or a code likelihood estimated on
     the full window changes the later one's variance by more than :data:`SCREEN_Z` allows
-    for. The search reaches two deviations (as the sense channel foresees them) beyond the
-    screen; a tau found at its edge returns infinity, as does a later window whose variance
-    is foreseen no larger (the test then refits and decides).
+    for. The reach is two deviations (as the sense channel foresees them) beyond the screen;
+    a tau found at its edge or beyond returns infinity, as does a later window whose variance
+    is foreseen no larger (the test then refits and decides), and steps that do not converge
+    return None.
     """
-    from scipy.optimize import minimize_scalar
-
     if not _is_white(f):
         return None
     tau, var_full = f["tau"], f.stderr("tau") ** 2
@@ -245,16 +245,17 @@ def projected_shift(t, sense, drive, w, f, start: int) -> float | None:
         return None
     later = [y[start:w.stop] for y in (sense, drive) if y is not None]
     variances = [f.whitening[group].sigma_e ** 2 for group, y in (("sense", sense), ("drive", drive)) if y is not None]
-    cost = projected_cost([t[start:w.stop]] * len(later), later, variances)
+    problem = ProjectedProblem([WindowChannel(f"c{k}", t[start:w.stop], y) for k, y in enumerate(later)])
+    found = problem.minimum(tau, variances)
+    if found is None:
+        return None  # the steps do not converge: the refit decides
     reach = (SCREEN_Z + 2.0) * deviation
-    found = minimize_scalar(lambda x: cost(math.log(x)), bounds=(tau - reach, tau + reach), method="bounded",
-                            options={"xatol": 0.05 * deviation})
-    shift = abs(float(found.x) - tau)
+    shift = abs(found - tau)
     if not shift < 0.95 * reach:
-        return math.inf  # at the edge of the search: beyond it, by any deviation
+        return math.inf  # beyond the screen's reach, by any deviation
     # tau's variance as the refit states it, each channel weighed by its own scatter about
     # the later curve (a misfit at the start inflates the full window's noise)
-    x = float(found.x)
+    x = found
     u = t[start:w.stop] - t[start]
     e = decay(u, x)
     e -= e.mean()
