@@ -102,3 +102,52 @@ def test_cli_json_contract(tmp_path):
         assert {"source", "value", "standard_uncertainty", "sensitivity", "contribution"} <= set(line)
     # the loop's time constant is set by all three resistances (netlist values)
     assert abs(data["quantities"]["tau"]["value"] / (1e-3 / 62.0) - 1) < 0.01
+
+
+def spike_capture(sense_resistance: float, seed: int = 0) -> pd.DataFrame:
+    """A 1 mH coil whose 200 pF winding capacitance (self-resonance 356 kHz) charges through the
+    sense resistor at each edge: the sense node jumps with the drive and falls back in about
+    (R_sense + R_source)·C before the coil's current rises (ngspice)."""
+    ind, dcr, rsrc, cw = 1e-3, 2.0, 50.0, 200e-12
+    tau = ind / (sense_resistance + rsrc + dcr)
+    period, tstep = 20 * tau, tau / 200
+    netlist = f"""
+V1 gen 0 PULSE(0 2 {0.15 * period:.6e} {tstep:.3e} {tstep:.3e} {period / 2 - tstep:.6e} {period:.6e})
+Rsrc gen drive {rsrc}
+L1 drive mid {ind:.6e}
+Rdcr mid sense {dcr}
+Cw drive sense {cw:.3e}
+Rsense sense 0 {sense_resistance}
+"""
+    t, v = simulate(netlist, tstep, 2.4 * period, ["v(drive)", "v(sense)"])
+    rng = np.random.default_rng(seed)
+    step = 2.0 * sense_resistance / (rsrc + dcr + sense_resistance)
+    return pd.DataFrame({"time": t - t[0],
+                         "drive": ScopeModel(noise_rms=2.0 / 300, bits=8).apply(v["v(drive)"], rng),
+                         "sense": ScopeModel(noise_rms=step / 300, bits=8).apply(v["v(sense)"], rng)})
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+@pytest.mark.parametrize("sense_resistance", [330.0, 470.0])
+def test_winding_capacitance_spike_is_refused_by_its_cause(sense_resistance):
+    # with a large sense resistance the spike through the winding capacitance spans several
+    # samples and the sense edges are read from it, where the sense falls as the drive rises:
+    # the refusal named an inverted probe or swapped leads, which a technician would look for
+    # in vain (the circuit is wired right)
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense", "drive": "drive"},
+             "parts": {"sense_resistor": f"{sense_resistance} ohm ±0.1%", "winding_capacitance": "200 pF ±20%"}}
+    with pytest.raises(wavefit.AnalysisRefused, match="jumps with the drive at its edges") as refused:
+        wavefit.analyze(spike_capture(sense_resistance), setup)
+    assert "inverted" not in str(refused.value)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_winding_capacitance_spike_within_a_few_samples_is_measured():
+    # the same coil behind 220 ohm: the spike is over in a few samples, the edges are the
+    # coil's, and L is measured (the netlist's 1 mH inside its expanded uncertainty)
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense", "drive": "drive"},
+             "parts": {"sense_resistor": "220 ohm ±0.1%", "winding_capacitance": "200 pF ±20%"}}
+    L = wavefit.analyze(spike_capture(220.0), setup).quantities["L"]
+    assert abs(L.value - 1e-3) <= L.expanded_uncertainty

@@ -86,10 +86,44 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
             "circuit)")
     against = sum(np.sign(_jump_at(t, drive, edge, dt)) == -edge.direction for edge in edges)
     if against > AGAINST_SHARE * len(edges):
+        spike = _feedthrough(sense, drive, sense_levels, drive_levels)
+        if spike is not None:
+            raise AnalysisRefused(
+                f"{source}: the sense channel jumps with the drive at its edges (by up to {spike:.0%} of its step) "
+                "and falls back before the coil's current rises: current through a capacitance across the coil "
+                "(its winding capacitance), which charges through the sense resistance, so the sense edges are "
+                "read from that spike; use a smaller sense resistance (the spike lasts about R_sense times that "
+                "capacitance, and tau grows), so that it is over within a few samples")
         raise AnalysisRefused(
             f"{source}: the sense channel falls when the drive rises at {against} of {len(edges)} edges: an "
             "inverted probe or channel, or leads swapped across the sense resistor; fix the wiring or the "
             "channel's sign")
+
+
+def _feedthrough(sense: np.ndarray, drive: np.ndarray, sense_levels: StateLevels,
+                 drive_levels: StateLevels) -> float | None:
+    """The largest jump of the sense channel with the drive, as a share of the sense step, where
+    the sense jumps in the drive's direction at most of the drive's jumps (each by more than
+    JUMP_FRACTION of the channel's step within JUMP_SAMPLES samples); None where it does not.
+    The current of an inductance cannot jump, that of a capacitance across it can: a sense
+    that follows the drive's jump and falls back has its transitions read from that spike,
+    and moves against the drive there, which an inverted probe would do throughout."""
+    sense_step, drive_step = abs(sense_levels.amplitude), abs(drive_levels.amplitude)
+    if not sense_step or not drive_step or drive.size <= JUMP_SAMPLES:
+        return None
+    change = drive[JUMP_SAMPLES:] - drive[:-JUMP_SAMPLES]
+    jumps = np.flatnonzero(np.abs(change) > JUMP_FRACTION * drive_step)
+    if not jumps.size:
+        return None
+    # one jump per run of samples that span it: its first
+    firsts = jumps[np.concatenate(([True], np.diff(jumps) > JUMP_SAMPLES))]
+    shares = []
+    for i in firsts:
+        direction = np.sign(change[i])
+        moved = direction * (sense[i + 1:i + 2 * JUMP_SAMPLES + 1] - sense[i])
+        shares.append(float(np.max(moved, initial=0.0)) / sense_step)
+    jumping = [share for share in shares if share > JUMP_FRACTION]
+    return max(jumping) if len(jumping) > 0.5 * len(shares) else None
 
 
 def _jump_span(t: np.ndarray, edge: Edge, dt: float) -> tuple[int, int] | None:
