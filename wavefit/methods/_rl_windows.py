@@ -16,8 +16,9 @@ import numpy as np
 
 from ..errors import AnalysisRefused
 from ..fit.exponential import ProjectedProblem, WindowChannel, curve_information, decay, window_model
+from ..fit.quantisation import noise_before_converter
 from ..fit.white_projection import white_window_tau
-from ..signal.clipping import clipped_where_fitted, leading_held
+from ..signal.clipping import PILE_CHANCE, clipped_where_fitted, leading_held
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
 
@@ -121,6 +122,33 @@ def after_held_starts(t, sense, drive, windows, fits, facts, noise, source, fit_
                               f"trusted; set the {group} channel's volts per division and offset so that the whole "
                               "step stays on screen")
     return out_w, out_f, clipped, moved, dropped
+
+
+def off_screen_baseline(sense, drive, stop: int, fits, facts) -> set[str]:
+    """The channels held at a converter limit through the whole pre-edge baseline (its first
+    ``stop`` samples) where their noise, as the edge windows found it, would have carried a
+    settled level onto a neighbouring code: such a level was off screen, and the constant
+    fitted to it is the screen's edge (a baseline above the screen's top read as the high
+    level set the sense step 5–50 % short, and L, R and I_final wrong beyond their
+    uncertainty, in a trial's clipped captures).
+
+    A level with noise σ before a converter of step q lands on one code with a chance of at
+    most erf(q/(2√2·σ)) per sample (the code centred on it), so on one code throughout with
+    at most that to the power of the baseline's independent samples (its length over the
+    noise's long-run variance ratio, for band-limited noise); below
+    :data:`~wavefit.signal.clipping.PILE_CHANCE` it is off screen. σ is the windows' noise
+    before the converter where they were fitted on their codes, else their scatter."""
+    converter_noise = noise_before_converter(fits)
+    out = set()
+    for group, y in (("sense", sense), ("drive", drive)):
+        if y is None or stop <= 0 or not facts[group].held_throughout(y[:stop]):
+            continue
+        code = facts[group].code or facts[group].smallest_gap or 0.0
+        sigma = converter_noise.get(group) or float(np.median([f.noise_sigma[group] for f in fits]))
+        ratio = float(np.median([max(f.noise_model[group].get("long_run_variance_ratio", 1.0), 1.0) for f in fits]))
+        if code > 0 and sigma > 0 and math.erf(code / (2.0 * math.sqrt(2.0) * sigma)) ** (stop / ratio) < PILE_CHANCE:
+            out.add(group)
+    return out
 
 
 #: Fewest samples a window is fitted on (as the windows are cut, rl_step's _windows).

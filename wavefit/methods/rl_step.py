@@ -45,8 +45,8 @@ from . import register
 from ._model_check import ModelCheck, Variation, added
 from ._rl_estimators import estimate_tau
 from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, MIN_WINDOW_SAMPLES, LateStart, Window,
-                          after_held_starts, late_start, placement_factor, placement_jitter, settle_starts,
-                          start_margin)
+                          after_held_starts, late_start, off_screen_baseline, placement_factor, placement_jitter,
+                          settle_starts, start_margin)
 from ..scale_factor import scale_factor
 from ._scale_factor import EDGE_SCATTER_P
 from ._rl_wiring import check_wiring
@@ -211,6 +211,12 @@ class RLStep(Method):
             warnings.append(f"{left_out} edge window(s) left out: clipped at a converter limit where they would be "
                             "fitted (set the volts per division and offset so that the whole step stays on screen)")
         baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
+        held = off_screen_baseline(sense, drive, _baseline_stop(t, windows[0]), fits, facts)
+        if held:
+            clipped |= held
+            baseline = _without_off_screen(baseline, windows, held, drive is not None, capture.source)
+            if baseline is not None:
+                warnings.append(OFF_SCREEN_LEVEL)
         # is the sense noise white? One decision from all windows' residuals together: separate
         # per-window BIC choices would call white noise coloured in one of a dozen windows often.
         # Windows fitted on their codes passed a test of independent noise already, and their
@@ -232,6 +238,8 @@ class RLStep(Method):
             if windows[0].t0 != first.t0 or any(f is not g for f, g in zip(fits, first_fits)):
                 # the level ends before the first instant and takes its noise from the fits
                 baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
+                if held:
+                    baseline = _without_off_screen(baseline, windows, held, drive is not None, capture.source)
         if baseline is None and len(windows) < 2:
             raise AnalysisRefused(f"{capture.source}: the record starts at the edge, so there is no settled "
                                   "pre-edge level to pin the offset; record some time before the step")
@@ -383,9 +391,9 @@ class RLStep(Method):
     def _fit_baseline(t, sense, drive, first: Window, noise, fits, facts) -> FitResult | None:
         """Settled level before the first edge: a constant per channel (pins the offset). ``fits``
         are the windows' fits, whose noise before the converter a resolution-limited level uses,
-        and ``facts`` the channels' :func:`extremes`, whose code step it uses."""
-        dt = float(t[1] - t[0])
-        stop = int(np.searchsorted(t, first.t0 - 2.0 * dt))
+        and ``facts`` the channels' :func:`extremes`, whose code step it uses. None where fewer
+        than 16 samples precede the edge."""
+        stop = _baseline_stop(t, first)
         if stop < 16:
             return None
         ys = [sense[:stop]] + ([drive[:stop]] if drive is not None else [])
@@ -520,6 +528,39 @@ def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
                                           "refitted from one tau later")
     return ModelCheck(varied, (Variation("tau", MODEL_INPUT, "s", tau_reported, {"late_windows": late.late},
                                          late.z, {"full_windows": late.full}),))
+
+
+def _baseline_stop(t: np.ndarray, first: Window) -> int:
+    """The pre-edge baseline's end: the samples up to two intervals before the first window's
+    switching instant."""
+    return int(np.searchsorted(t, first.t0 - 2.0 * float(t[1] - t[0])))
+
+
+#: The warning of a sense-only capture whose level before the first edge was off screen and is
+#: seen nowhere else (:func:`_without_off_screen`).
+OFF_SCREEN_LEVEL = ("the sense trace is held at the converter's limit before the first edge and in every window "
+                    "that would give that level (off screen): the level is the screen's edge, so I_final and E are "
+                    "too small and not to be used; tau and L do not rest on it. Set the sense channel's volts per "
+                    "division and offset so that the whole step stays on screen")
+
+
+def _without_off_screen(baseline, windows, held: set[str], has_drive: bool, source: str):
+    """The pre-edge baseline where its channels ``held`` were off screen
+    (:func:`~wavefit.methods._rl_windows.off_screen_baseline`): None where a window gives the
+    level of that state (it is measured there); refused with a drive channel where none does
+    (the windows entering it were left out as clipped), since the step between the levels,
+    which k, R and L rest on, is then unmeasured; kept without a drive channel, where only
+    I_final and E rest on it (the caller warns: :data:`OFF_SCREEN_LEVEL`)."""
+    before = 1 if windows[0].edge.direction < 0 else -1  # the direction of an edge into that state
+    if any(w.edge.direction == before for w in windows):
+        return None
+    if has_drive:
+        group = sorted(held)[0]
+        raise AnalysisRefused(f"{source}: the {group} trace is held at the converter's limit before the first edge and "
+                              "in every window that would give that level (off screen), so the step between the two "
+                              f"levels cannot be measured; set the {group} channel's volts per division and offset so "
+                              "that the whole step stays on screen")
+    return baseline
 
 
 def _fit_summary(windows, fits, combined, baseline, dt, notes, estimator: str, check: ModelCheck, *,
