@@ -94,3 +94,20 @@ def test_interrupted_lot_resumes_with_one_row_per_file(tmp_path):
             assert row["verdict"] == "fail", row
             checked += 1
     assert checked >= 5
+
+
+def test_spec_every_part_lies_far_beyond_ends_the_run_refused(tmp_path):
+    # a limit written without its unit prefix ("100 ±10%" is read as 100 H): every part fails
+    # by a factor of 10⁶, and the run ended with exit 0 and a warning, its fail rows and a
+    # capability of 271462.97 printed as a lot's outcome; now the verdicts are refused (exit 4),
+    # the rows kept in the results file
+    write_lot(tmp_path)
+    (tmp_path / "spec.toml").write_text('[limits]\nL = "100 ±10%"\n', encoding="utf-8")
+    proc = subprocess.run([sys.executable, "-m", "wavefit.cli", "batch", str(tmp_path / "part[12].csv"), "--setup",
+                           str(tmp_path / "setup.toml"), "--spec", str(tmp_path / "spec.toml"), "--out",
+                           str(tmp_path / "out.csv"), "--workers", "1"], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 4, proc.stderr
+    assert "unit prefix missing from the spec" in proc.stderr and "not to be used" in proc.stderr
+    assert "Traceback" not in proc.stderr
+    with open(tmp_path / "out.csv", newline="", encoding="utf-8") as handle:
+        assert len(list(csv.DictReader(line for line in handle if not line.startswith("#")))) == 2

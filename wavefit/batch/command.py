@@ -84,6 +84,12 @@ def run(args: argparse.Namespace, analyse: Analyse = analyse_file) -> int:
         return stopped.exit_code
 
 
+#: The exit code of a run whose every row is written but whose spec every part lies a thousand
+#: times or more beyond (:func:`~wavefit.batch.statistics.far_from_limits`): the verdicts are
+#: refused as the analyze command refuses a result it cannot trust (its exit code 4).
+SPEC_MISMATCH = 4
+
+
 @dataclass(frozen=True)
 class _Plan:
     """What a run will do, all checked before any file is written."""
@@ -160,16 +166,20 @@ def _run(args: argparse.Namespace, analyse: Analyse, stop: StopSignals, progress
             if curves is not None:
                 curves.close()
         summary = summarize(rows, plan.spec.limits, plan.method.positive)
-        for name, limit in plan.spec.limits.items():
-            factor = far_from_limits([usable(row, name, name in plan.method.positive) for row in rows], limit)
-            if factor is not None:
-                print(f"wavefit: warning: every {name} measured lies at least {factor:.3g} times beyond its limit "
-                      f"{visible(limit.text)!r}{' (no unit written: SI)' if not limit.unit else ''}: a unit "
-                      "prefix missing from the spec?", file=sys.stderr)
         outcome = BatchOutcome(progress.written, len(plan.paths) - len(todo), changed, rows, summary, history,
                                by_part)
         _report(outcome, plan.spec, plan.lot, args, plan.method.positive)
-    return 0
+        far = False
+        for name, limit in plan.spec.limits.items():
+            factor = far_from_limits([usable(row, name, name in plan.method.positive) for row in rows], limit)
+            if factor is not None:
+                far = True
+                print(f"wavefit: error: every {name} measured lies at least {factor:.3g} times beyond its limit "
+                      f"{visible(limit.text)!r}{' (no unit written: SI)' if not limit.unit else ''}: a unit "
+                      "prefix missing from the spec? The verdicts against it are not to be used; correct the spec "
+                      f"and run again into another results file ({visible(args.out)} keeps these rows)",
+                      file=sys.stderr)
+    return SPEC_MISMATCH if far else 0
 
 
 def _analyse(plan: _Plan, todo: list[str], results: ResultsFile, curves: CurvesFile | None, workers: int,
