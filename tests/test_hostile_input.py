@@ -275,3 +275,31 @@ def test_a_calibration_file_that_cannot_be_written_is_named(tmp_path: Path) -> N
     (tmp_path / "a_file").write_text("not a folder", encoding="utf-8")
     with pytest.raises(wavefit.errors.OutputError, match=r"cannot write the file .*a_file/ref\.toml: .*kept"):
         write_toml_whole({"kind": "x"}, tmp_path / "a_file" / "ref.toml")
+
+
+@pytest.mark.parametrize("setup", [TWO_CHANNELS, SENSE_ONLY], ids=["two channels", "sense only"])
+@pytest.mark.parametrize("spread", [0.3, 0.6])
+def test_sense_of_noise_on_a_few_codes_is_refused_as_no_step(tmp_path: Path, setup: dict, spread: float) -> None:
+    # an open coil (or an unconnected sense probe) on an 8-bit screen: noise of a fraction of a
+    # code sits on two to five codes, the two most frequent were read as the levels and every
+    # crossing as an edge; the refusals said "no complete edge ... lengthen the record or the
+    # period" or "the exponential fit of the edge at ... failed (singular normal matrix)"
+    t, drive, _ = _record(seed=11)
+    code = 0.4 / 256  # 8 bits over a 0.4 V screen
+    noise = np.random.default_rng(5).normal(0.0, spread * code, t.size)
+    sense = np.round(noise / code) * code
+    with pytest.raises(wavefit.AnalysisRefused, match="the sense channel does not step") as refused:
+        wavefit.analyze(_write(tmp_path / "open.csv", t, drive, sense), setup)
+    assert "open" in str(refused.value)
+
+
+def test_a_step_of_three_codes_is_not_taken_for_noise(tmp_path: Path) -> None:
+    # the refusal above is for levels one or two codes apart; a coarse but real step is analysed
+    # (or refused for what it is), never called an open coil
+    t, drive, sense = _record(seed=12)
+    code = float(np.ptp(sense)) / 3.2
+    coarse = np.round((sense + np.random.default_rng(6).normal(0.0, 0.4 * code, t.size)) / code) * code
+    try:
+        wavefit.analyze(_write(tmp_path / "coarse.csv", t, drive, coarse), TWO_CHANNELS)
+    except wavefit.AnalysisRefused as exc:
+        assert "does not step" not in str(exc)

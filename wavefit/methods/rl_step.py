@@ -188,7 +188,12 @@ class RLStep(Method):
         warnings: list[str] = []  # the capture's own warnings are added by the front door
         notes: list[str] = []
 
+        # each channel's extreme values and code step, for a step seen at all, the pre-edge
+        # level and the clipping checks
+        facts = {group: extremes(y, self.channel(capture, setup, group).levels)
+                 for group, y in (("sense", sense), ("drive", drive)) if y is not None}
         sense_levels = state_levels(sense)
+        _refuse_noise_on_a_few_codes(sense_levels, facts["sense"].code, capture.source)
         sense_rms = noise_rms(sense)  # for the edges and the whole-record fit's reach
         edges = find_edges(t, sense, sense_levels, rms=sense_rms)
         if not edges:
@@ -199,9 +204,6 @@ class RLStep(Method):
         windows, edge_times = self._windows(t, sense, drive, edges, setup, dt)
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]
-        # each channel's extreme values and code step, for the pre-edge level and the clipping checks
-        facts = {group: extremes(y, self.channel(capture, setup, group).levels)
-                 for group, y in (("sense", sense), ("drive", drive)) if y is not None}
         windows, fits, clipped, off_screen, left_out = after_held_starts(t, sense, drive, windows, fits, facts, noise,
                                                                           capture.source, self._fit_window)
         if off_screen:
@@ -528,6 +530,24 @@ def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
                                           "refitted from one tau later")
     return ModelCheck(varied, (Variation("tau", MODEL_INPUT, "s", tau_reported, {"late_windows": late.late},
                                          late.z, {"full_windows": late.full}),))
+
+
+#: A sense channel whose two state levels (IEEE Std 181's histogram method) are no more than
+#: this many converter codes apart shows no step: noise below a code sits on two or three
+#: neighbouring codes, the two most frequent of which are then taken as the levels, and the
+#: noise's every crossing as an edge (an open coil was refused as "no complete edge ...
+#: lengthen the record", an unconnected probe as a failed fit of an edge found in noise).
+NO_STEP_CODES = 2
+
+
+def _refuse_noise_on_a_few_codes(levels, code: float | None, source: str) -> None:
+    """Refuse a sense channel whose levels lie within :data:`NO_STEP_CODES` codes ``code``."""
+    if code and abs(levels.amplitude) <= NO_STEP_CODES * code * (1.0 + 1e-9):
+        codes = abs(levels.amplitude) / code
+        raise AnalysisRefused(f"{source}: the sense channel does not step: its two most common values are "
+                              f"{codes:.0f} converter code{'s' if round(codes) != 1 else ''} apart, noise on a few "
+                              "codes; is the coil open, the sense probe unconnected, or its volts per division far "
+                              "too coarse for the step?")
 
 
 def _baseline_stop(t: np.ndarray, first: Window) -> int:
