@@ -153,7 +153,7 @@ def test_curves_of_the_last_part_without_a_results_row_are_cut_off_and_redone(tm
     assert main(argv) == 0
     _without_results_line(tmp_path / "out.csv", -1)
     assert main(argv) == 0
-    assert "1 rows written, 2 found from earlier runs" in capsys.readouterr().out
+    assert "1 row written, 2 found from earlier runs" in capsys.readouterr().out
     rows, curves = table(tmp_path / "out.csv"), table(curves_path(tmp_path / "out.csv"))
     assert len(rows) == PARTS and len(curves) == PARTS * len(FREQUENCIES)
     assert [row["file"] for row in curves[::3]] == [row["file"] for row in rows]

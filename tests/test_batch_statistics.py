@@ -100,7 +100,7 @@ def test_text_summary_says_undefined_and_how_errors_count():
     spec = parse_spec({"limits": {"L": "100 uH ±10%"}})
     rows = [{"verdict": "pass", "L": 100e-6}] * 3 + [{"verdict": "error", "L": None}]
     text = render_summary(summarize(rows, spec.limits), spec, "0412")
-    assert "yield: 75.0 % pass" in text and "the 1 error rows counted as not passed" in text
+    assert "yield: 75.0 % pass" in text and "the 1 error row counted as not passed" in text
     assert text.splitlines()[-1].split()[-2:] == ["undefined", "undefined"]
 
 
@@ -125,3 +125,27 @@ def test_values_far_beyond_a_limit_without_a_unit_are_flagged():
     assert far_from_limits([3.3], Limit("L", None, 363e-6, "", "<= 363e-6")) == pytest.approx(3.3 / 363e-6)
     assert far_from_limits([0.33], Limit("L", None, 363e-6, "", "<= 363e-6")) is None  # 909 times: below 10³
     assert far_from_limits([None], henries) is None
+
+
+def test_verdicts_within_U_of_a_limit_are_counted_and_named_under_simple_acceptance():
+    # ILAC-G8:09/2019 §4.2.1: under simple acceptance a measured value within U of a limit is
+    # judged on a value the measurement does not pin down; a QA lot of 12 parts had 5 such
+    # verdicts (3 good parts failed, 1 bad part passed) and the summary said only "pass: 8 fail: 4"
+    from wavefit.batch.spec import parse_spec
+    from wavefit.batch.statistics import within_uncertainty_of_a_limit
+    from wavefit.batch.summary_text import render_summary
+
+    spec = parse_spec({"limits": {"L": "100 uH ±10%"}, "decision": {"rule": "simple"}})
+    limits = spec.limits
+    assert within_uncertainty_of_a_limit({"L": 91e-6, "L_U": 2e-6}, limits)        # 1 µH from 90 µH
+    assert within_uncertainty_of_a_limit({"L": 109.5e-6, "L_U": 2e-6}, limits)     # 0.5 µH from 110 µH
+    assert not within_uncertainty_of_a_limit({"L": 100e-6, "L_U": 2e-6}, limits)
+    assert not within_uncertainty_of_a_limit({"L": 93e-6, "L_U": 2e-6}, limits)    # 3 µH: outside U
+    assert not within_uncertainty_of_a_limit({"L": 91e-6, "L_U": None}, limits)
+    rows = [{"verdict": "pass", "L": 100e-6, "L_U": 2e-6}, {"verdict": "pass", "L": 91e-6, "L_U": 2e-6},
+            {"verdict": "fail", "L": 110.5e-6, "L_U": 2e-6}, {"verdict": "error", "L": None, "L_U": None}]
+    summary = summarize(rows, limits)
+    assert summary.near_limits == 2 and summary.to_dict()["decisions_within_U_of_a_limit"] == 2
+    assert "2 of 3 verdicts lie within U of a limit" in render_summary(summary, spec, "lot")
+    guarded = parse_spec({"limits": {"L": "100 uH ±10%"}, "decision": {"rule": "guard-band"}})
+    assert "within U of a limit" not in render_summary(summary, guarded, "lot")  # its conditional counts say it

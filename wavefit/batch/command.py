@@ -262,7 +262,8 @@ def _summarise(outcome: BatchOutcome, spec: Spec, lot: str, args: argparse.Names
     from .summary_text import render_history, render_summary
 
     lines = [render_summary(outcome.summary, spec, lot),
-             f"  {outcome.written} rows written, {outcome.resumed} found from earlier runs -> {visible(args.out)}"]
+             f"  {outcome.written} {'row' if outcome.written == 1 else 'rows'} written, {outcome.resumed} found from "
+             f"earlier runs -> {visible(args.out)}"]
     if outcome.curves is not None:
         from .curves_file import curves_path
 

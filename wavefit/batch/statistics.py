@@ -76,11 +76,16 @@ class LotSummary:
     yield_: float | None
     yield_with_conditional: float | None
     quantities: Mapping[str, QuantityStatistics]
+    #: Analysed rows with a limited quantity whose interval value ± U takes in a limit
+    #: (:func:`within_uncertainty_of_a_limit`): under simple acceptance each of these verdicts
+    #: may be wrong (ILAC-G8:09/2019 §4.2.1), under the guard-band rule they are conditional.
+    near_limits: int = 0
 
     def to_dict(self) -> dict[str, Any]:
         return {"total": self.total, "counts": dict(self.counts), "yield": _num(self.yield_),
                 "yield_with_conditional": _num(self.yield_with_conditional),
                 "errors_counted_as_not_passed": self.counts.get(ERROR, 0),
+                "decisions_within_U_of_a_limit": self.near_limits,
                 "quantities": {k: q.to_dict() for k, q in self.quantities.items()}}
 
 
@@ -181,7 +186,21 @@ def summarize(rows: Iterable[Mapping[str, Any]], limits: Mapping[str, Limit],
     must_be_positive = frozenset(positive)
     stats = {name: quantity_statistics(name, [row.get(name) for row in analysed], limit, name in must_be_positive)
              for name, limit in limits.items()}
-    return LotSummary(total, counts, yield_, with_cond, stats)
+    near = sum(within_uncertainty_of_a_limit(row, limits) for row in analysed)
+    return LotSummary(total, counts, yield_, with_cond, stats, near)
+
+
+def within_uncertainty_of_a_limit(row: Mapping[str, Any], limits: Mapping[str, Limit]) -> bool:
+    """Whether a limited quantity's interval value ± U (the row's ``<name>_U``) takes in one of its
+    limits: the verdict on it then rests on where in the interval the part lies (ILAC-G8:09/2019
+    §4.2.1: up to a 50 % chance of a false verdict on the limit itself)."""
+    for name, limit in limits.items():
+        value, expanded = row.get(name), row.get(f"{name}_U")
+        if not (possible(value, False) and possible(expanded, False)):
+            continue
+        if any(bound is not None and abs(value - bound) < expanded for bound in (limit.lower, limit.upper)):
+            return True
+    return False
 
 
 def _num(x: float | None) -> float | None:

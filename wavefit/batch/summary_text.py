@@ -28,13 +28,18 @@ def render_summary(summary: LotSummary, spec: Spec, lot: str) -> str:
         lines.append("  yield: - (no captures)")
     else:
         errors = summary.counts.get(ERROR, 0)
-        basis = f"of all {summary.total}, the {errors} error rows counted as not passed" if errors else \
-            f"of all {summary.total}"
+        basis = (f"of all {summary.total}, the {errors} error {'row' if errors == 1 else 'rows'} counted as not "
+                 "passed") if errors else f"of all {summary.total}"
         lines.append(f"  yield: {100 * summary.yield_:.1f} % pass"
                      f" ({100 * (summary.yield_with_conditional or 0):.1f} % with conditional passes), {basis}")
     if not spec.limits:
         lines.append("  no limits (the method reports only curves): a pass says only that the part was measured")
         return "\n".join(lines)
+    if spec.rule != "guard-band" and summary.near_limits:
+        analysed = summary.total - summary.counts.get(ERROR, 0)
+        lines.append(f"  {summary.near_limits} of {analysed} verdicts lie within U of a limit: simple acceptance "
+                     "judges each of these on a value the measurement does not pin down (a wrong verdict up to "
+                     "half the time at the limit itself); the guard-band rule would report them as conditional")
     header = ("quantity", "limits", "n", "mean", "std dev", "min", "max", "Cp", "Cpk")
     table = [header]
     for name, stats in summary.quantities.items():
