@@ -18,6 +18,18 @@ from .io.capture import Capture
 from .signal.glitches import GLITCH_NOISE, GLITCH_SHAPE, repair_glitches
 
 _LISTED = 5
+#: Isolated samples at least this many, evenly spaced to within RECURRING_SPREAD samples, recur
+#: with the record's drive: a spike at each edge, not a random fault (three make two equal gaps).
+RECURRING_COUNT = 3
+RECURRING_SPREAD = 2
+
+
+def recurring(rows) -> bool:
+    """Whether isolated samples at indices ``rows`` (sorted) recur at one interval."""
+    if len(rows) < RECURRING_COUNT:
+        return False
+    gaps = [int(b) - int(a) for a, b in zip(rows[:-1], rows[1:])]
+    return max(gaps) - min(gaps) <= RECURRING_SPREAD
 
 
 def without_glitches(capture: Capture) -> Capture:
@@ -48,10 +60,15 @@ def without_glitches(capture: Capture) -> Capture:
                 f"{capture.source}: column {header!r} has {rows.size} isolated samples far from both "
                 f"neighbours (more than {allowed}); the record is damaged: export it again")
         listed = ", ".join(f"{capture.time[i]:.6g} s" for i in rows[:_LISTED]) + (", ..." if rows.size > _LISTED else "")
+        what = "(a glitch)"
+        if recurring(rows):
+            period = float(capture.time[rows[-1]] - capture.time[rows[0]]) / (rows.size - 1)
+            what = (f"(recurring every {period:.4g} s: a spike at each switching instant, such as a capacitance "
+                    "charging at each edge or pickup from the generator, rather than a fault of the record)")
         warnings.append(
             f"column {header!r}: {rows.size} isolated sample{'s' if rows.size > 1 else ''} ({listed}) "
             f"departed from both neighbours by more than {GLITCH_SHAPE:g} times the waveform's local "
-            f"curvature and {GLITCH_NOISE:g} noise standard deviations (a glitch) and "
+            f"curvature and {GLITCH_NOISE:g} noise standard deviations {what} and "
             f"{'were' if rows.size > 1 else 'was'} replaced by the mean of the neighbours")
     if not warnings:
         return capture

@@ -65,6 +65,10 @@ SPIKE_SHARE = 0.5
 SPAN_PERCENTILE = 0.5
 #: A candidate within this many samples of another channel's jump is not a glitch.
 COINCIDENCE = 2
+#: A jump may take this many samples (a generator edge or a scope's bandwidth spreads a
+#: switching edge over two: a QA trial's drive rose 0.02 → 1.86 → 4.86 V, and the sense's
+#: winding-capacitance spike on its middle sample was replaced as a glitch at every edge).
+JUMP_WIDTH = 2
 #: Neighbour changes looked at first for one no larger than the noise floor (then the record's
 #: least change cannot raise :func:`record_noise`): in noise about half of them are, so the
 #: whole record is searched only when its trace is quiet and quantised (common practice).
@@ -137,23 +141,36 @@ def _at_onset(y: np.ndarray, found: np.ndarray, sigma: float) -> np.ndarray:
 
 
 def _after_jumps(y: np.ndarray, code: float | None, sigma: float | None = None) -> np.ndarray:
-    """Mask of the first COINCIDENCE + 1 samples after each jump of the record: where it moves
-    from one sample to the next by more than the noise and far more than just before and after
-    (a switching edge; a smooth relaxation, however steep, is not a jump). A spike of another
-    channel there is coupled from that edge; before it, it is not."""
+    """Mask of the samples of each jump of the record and the COINCIDENCE after it: where it
+    moves within one or :data:`JUMP_WIDTH` samples by more than the noise and far more than in
+    the one-sample steps just before and after (a switching edge; a smooth relaxation, however
+    steep, is not a jump). A spike of another channel there is coupled from that edge; before
+    it, it is not."""
     y = np.asarray(y, dtype=float)
     mask = np.zeros(y.size, dtype=bool)
     if y.size < 4:
         return mask
     sigma = record_noise(y, code) if sigma is None else sigma
-    leaps = []
-    for a, b in _spans(1, y.size - 2):  # steps y[j] -> y[j + 1], each with the steps either side
-        step = np.abs(np.diff(y[a - 1:b + 2]))
-        k = np.flatnonzero(step[1:-1] > GLITCH_NOISE * sigma) + 1  # the steps around only add to that
-        leaps.append(k[step[k] > GLITCH_SHAPE * (step[k - 1] + step[k + 1]) + GLITCH_NOISE * sigma] + a)
-    leaps = np.concatenate(leaps)
-    for shift in range(COINCIDENCE + 1):
-        mask[np.minimum(leaps + shift, y.size - 1)] = True
+    for width in range(1, JUMP_WIDTH + 1):
+        leaps = []
+        # changes y[j] -> y[j + width], each with the one-sample steps either side; over two or
+        # more samples every step within moves the same way by more than the noise (else it is a
+        # one-sample jump with a quiet step beside it, which marks no earlier sample)
+        for a, b in _spans(1, y.size - 1 - width):
+            signed = np.diff(y[a - 1:b + width + 1])
+            step = np.abs(signed)
+            change = np.abs(y[a + width:b + width] - y[a:b])
+            before, after = step[:b - a], step[width + 1:width + 1 + b - a]
+            k = np.flatnonzero(change > GLITCH_NOISE * sigma)  # the steps around only add to that
+            k = k[change[k] > GLITCH_SHAPE * (before[k] + after[k]) + GLITCH_NOISE * sigma]
+            for inner in range(1, width):
+                first, other = signed[k + 1], signed[k + 1 + inner]
+                k = k[(np.abs(first) > GLITCH_NOISE * sigma) & (np.abs(other) > GLITCH_NOISE * sigma)
+                      & (np.sign(first) == np.sign(other))]
+            leaps.append(k + a)
+        leaps = np.concatenate(leaps) + 1  # the first sample after the change begins
+        for shift in range(width + COINCIDENCE):
+            mask[np.minimum(leaps + shift, y.size - 1)] = True
     return mask
 
 
