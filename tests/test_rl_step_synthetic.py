@@ -388,3 +388,17 @@ def test_a_final_current_measured_as_zero_is_not_called_undetermined():
     loose = [w for w in result.warnings if "not determined by this measurement" in w]
     r = result.quantities["R"]
     assert r.expanded_uncertainty >= abs(r.value) and len(loose) == 1 and loose[0].startswith("R = ")
+
+
+@pytest.mark.parametrize("tail_tau, expected", [(3.0, "the last edge is followed by less than 5 tau of record before"),
+                                                (30.0, None)])
+def test_a_record_ending_soon_after_its_last_edge_is_named_as_such(tail_tau, expected):
+    # every edge but the last settles for 20 tau; the warning asked to lengthen the period as well
+    # as the record (a QA trial's lot read it on parts whose half period was 12 tau)
+    period = 40 * TAU
+    # edges at 2, 22, 42, 62 and 82 tau; the record ends tail_tau after the last
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, period, TAU / 40, (82 + tail_tau) * TAU, delay=2 * TAU)
+    s = ScopeModel(noise_rms=1e-4).apply(s, np.random.default_rng(7))
+    warnings = wavefit.analyze(frame(t, s), SENSE_ONLY).warnings
+    assert not any("lengthen the period" in w for w in warnings)
+    assert any(expected in w for w in warnings) if expected else not any("tau of record" in w for w in warnings)

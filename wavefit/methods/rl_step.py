@@ -431,7 +431,11 @@ class RLStep(Method):
             out.append(f"only {tau / dt:.1f} samples per tau (fewer than {MIN_SAMPLES_PER_TAU:g}): sample faster or "
                        "use a larger inductance / smaller loop resistance")
         short = [w for w in windows if t[w.stop - 1] - w.t0 < SETTLED_TAU * tau]
-        if short:
+        if short == [windows[-1]] and windows[-1].stop == t.size and len(windows) > 1:
+            out.append(f"the last edge is followed by less than {SETTLED_TAU:g} tau of record before the record ends: "
+                       f"its final level is extrapolated (the other edges settle; end the record {SETTLED_TAU:g} tau "
+                       "or more after an edge)")
+        elif short:
             out.append(f"{len(short)} of {len(windows)} edges are followed by less than {SETTLED_TAU:g} tau of "
                        "record; the final level is extrapolated (lengthen the period or the record)")
         if edge_time > EDGE_TIME_FRACTION * tau:
