@@ -621,7 +621,7 @@ def _no_table_message(lines: list[str], complete: bool, source: str) -> str:
         return text_column
     nonblank = sum(1 for line in lines if line.strip())
     if complete:
-        what = "one line of text only" if nonblank == 1 else f"{nonblank} lines of text"
+        what = "one line only, a header or text" if nonblank == 1 else f"{nonblank} lines of text"
         return (
             f"{source} has no data rows ({what}, no line of numbers); "
             "a capture needs numeric rows below its header"
