@@ -52,3 +52,19 @@ def simulate(circuit: str, tstep: float, tstop: float, vectors: list[str],
         data = np.loadtxt(out, skiprows=1)
     t = data[:, 0]
     return t, {name: data[:, k + 1] for k, name in enumerate(vectors)}
+
+
+def rl_loop(ind: float, dcr: float, r_source: float, r_sense: float, period: float, edge: float, *,
+            winding_capacitance: float | None = None, high_first: bool = False, extra: str = "") -> str:
+    """The rl-step circuit's netlist: a 2 V square wave (``edge`` its rise and fall times, its first
+    edge at 0.15 period; falling first with ``high_first``) through ``r_source`` into the coil
+    (``ind``, ``dcr`` and optionally its winding capacitance) and ``r_sense`` to ground; nodes
+    ``drive`` and ``sense``; ``extra`` lines (a probe's R and C) are added."""
+    low, high = (2, 0) if high_first else (0, 2)
+    lines = [f"V1 gen 0 PULSE({low} {high} {0.15 * period:.6e} {edge:.3e} {edge:.3e} {period / 2 - edge:.6e} "
+             f"{period:.6e})",
+             f"Rsrc gen drive {r_source}", f"L1 drive mid {ind:.6e}", f"Rdcr mid sense {dcr}",
+             f"Rsense sense 0 {r_sense}"]
+    if winding_capacitance is not None:
+        lines.append(f"Cw drive sense {winding_capacitance:.3e}")
+    return "\n".join(lines) + ("\n" + extra.strip() if extra.strip() else "") + "\n"

@@ -24,7 +24,7 @@ from wavefit.calibration.channel_file import ChannelComparison, ChannelRole, Est
 from wavefit.cli import main
 from wavefit.synth.scope import ScopeModel
 
-from spice import needs_ngspice, simulate
+from spice import needs_ngspice, rl_loop, simulate
 
 IND, DCR, R_SENSE, R_SOURCE, C_WINDING, PERIOD, STEP = 4.7e-6, 0.2, 10.0, 50.0, 5e-12, 2e-6, 1e-9
 DRIVE_GAIN, SENSE_GAIN = 0.98, 1.015
@@ -36,17 +36,8 @@ L_TOLERANCE = 0.003
 
 @pytest.fixture(scope="module")
 def capture() -> pd.DataFrame:
-    edge = 2e-9
-    netlist = f"""
-V1 gen 0 PULSE(0 2 {0.15 * PERIOD:.6e} {edge:.3e} {edge:.3e} {PERIOD / 2 - edge:.6e} {PERIOD:.6e})
-Rsrc gen drive {R_SOURCE}
-L1 drive mid {IND:.6e}
-Rdcr mid sense {DCR}
-Cw drive sense {C_WINDING:.3e}
-Rsense sense 0 {R_SENSE}
-Rprobe sense 0 1e6
-Cprobe sense 0 12e-12
-"""
+    netlist = rl_loop(IND, DCR, R_SOURCE, R_SENSE, PERIOD, 2e-9, winding_capacitance=C_WINDING,
+                      extra="Rprobe sense 0 1e6\nCprobe sense 0 12e-12")
     t, v = simulate(netlist, STEP, 2.4 * PERIOD, ["v(drive)", "v(sense)"])
     late = np.r_[np.full(SKEW_SAMPLES, v["v(sense)"][0]), v["v(sense)"][:-SKEW_SAMPLES]]
     rng = np.random.default_rng(0)

@@ -18,7 +18,7 @@ import wavefit
 from wavefit.cli import main
 from wavefit.synth.scope import ScopeModel
 
-from spice import needs_ngspice, simulate
+from spice import needs_ngspice, rl_loop, simulate
 
 # (L, DCR, R_sense, R_source, winding C, period, tstep): µH to tens of mH
 CASES = {
@@ -32,17 +32,8 @@ PROBE_R, PROBE_C = 1e6, 12e-12
 def spice_capture(case: str, seed: int = 0) -> pd.DataFrame:
     ind, dcr, rs, rsrc, cw, period, tstep = CASES[case]
     edge = 2e-9 if tstep < 1e-8 else 20e-9
-    delay = 0.15 * period
-    netlist = f"""
-V1 gen 0 PULSE(0 2 {delay:.6e} {edge:.3e} {edge:.3e} {period / 2 - edge:.6e} {period:.6e})
-Rsrc gen drive {rsrc}
-L1 drive mid {ind:.6e}
-Rdcr mid sense {dcr}
-Cw drive sense {cw:.3e}
-Rsense sense 0 {rs}
-Rprobe sense 0 {PROBE_R:.3e}
-Cprobe sense 0 {PROBE_C:.3e}
-"""
+    netlist = rl_loop(ind, dcr, rsrc, rs, period, edge, winding_capacitance=cw,
+                      extra=f"Rprobe sense 0 {PROBE_R:.3e}\nCprobe sense 0 {PROBE_C:.3e}")
     t, v = simulate(netlist, tstep, 2.4 * period, ["v(drive)", "v(sense)"])
     rng = np.random.default_rng(seed)
     sense_amp = 2.0 * rs / (rsrc + dcr + rs)
@@ -111,14 +102,7 @@ def spike_capture(sense_resistance: float, seed: int = 0) -> pd.DataFrame:
     ind, dcr, rsrc, cw = 1e-3, 2.0, 50.0, 200e-12
     tau = ind / (sense_resistance + rsrc + dcr)
     period, tstep = 20 * tau, tau / 200
-    netlist = f"""
-V1 gen 0 PULSE(0 2 {0.15 * period:.6e} {tstep:.3e} {tstep:.3e} {period / 2 - tstep:.6e} {period:.6e})
-Rsrc gen drive {rsrc}
-L1 drive mid {ind:.6e}
-Rdcr mid sense {dcr}
-Cw drive sense {cw:.3e}
-Rsense sense 0 {sense_resistance}
-"""
+    netlist = rl_loop(ind, dcr, rsrc, sense_resistance, period, tstep, winding_capacitance=cw)
     t, v = simulate(netlist, tstep, 2.4 * period, ["v(drive)", "v(sense)"])
     rng = np.random.default_rng(seed)
     step = 2.0 * sense_resistance / (rsrc + dcr + sense_resistance)
@@ -161,14 +145,8 @@ def clipped_capture(screen_top: float, seed: int = 1) -> tuple[pd.DataFrame, flo
     ind, dcr, rsrc, rs = 100e-6, 0.4, 50.0, 10.0
     tau = ind / (rs + rsrc + dcr)
     period, tstep = 20 * tau, tau / 100
-    netlist = f"""
-V1 gen 0 PULSE(2 0 {0.15 * period:.6e} {tstep:.3e} {tstep:.3e} {period / 2 - tstep:.6e} {period:.6e})
-Rsrc gen drive {rsrc}
-L1 drive mid {ind:.6e}
-Rdcr mid sense {dcr}
-Rsense sense 0 {rs}
-"""
-    t, v = simulate(netlist, tstep, 2.4 * period, ["v(drive)", "v(sense)"])
+    t, v = simulate(rl_loop(ind, dcr, rsrc, rs, period, tstep, high_first=True), tstep, 2.4 * period,
+                    ["v(drive)", "v(sense)"])
     rng = np.random.default_rng(seed)
     step = 2.0 * rs / (rsrc + dcr + rs)
     sense = ScopeModel(noise_rms=step / 300, bits=8, full_scale=(-0.02 * step, screen_top * step)).apply(
