@@ -36,10 +36,10 @@ def test_candidates_are_the_rules_across_chunks() -> None:
 
 def test_jumps_are_the_rules_across_chunks() -> None:
     # a change over one sample, or over two whose steps both move the same way by more than
-    # GLITCH_NOISE sigma, is a jump when it exceeds GLITCH_SHAPE times the one-sample steps
+    # JUMP_INNER_NOISE sigma, is a jump when it exceeds GLITCH_SHAPE times the one-sample steps
     # either side plus GLITCH_NOISE sigma; the mask marks the samples after its start, to
     # COINCIDENCE samples after its end
-    from wavefit.signal.glitches import COINCIDENCE, _after_jumps
+    from wavefit.signal.glitches import COINCIDENCE, JUMP_INNER_NOISE, _after_jumps
 
     rng = np.random.default_rng(12)
     n = CHUNK_VALUES + 200_000
@@ -58,7 +58,7 @@ def test_jumps_are_the_rules_across_chunks() -> None:
         change = np.abs(y[j + width] - y[j])
         ok = change > GLITCH_SHAPE * (step[j - 1] + step[j + width]) + GLITCH_NOISE * sigma
         if width == 2:
-            ok &= (step[j] > GLITCH_NOISE * sigma) & (step[j + 1] > GLITCH_NOISE * sigma)
+            ok &= (step[j] > JUMP_INNER_NOISE * sigma) & (step[j + 1] > JUMP_INNER_NOISE * sigma)
             ok &= np.sign(signed[j]) == np.sign(signed[j + 1])
         for shift in range(width + COINCIDENCE):
             expected[np.minimum(j[ok] + 1 + shift, n - 1)] = True

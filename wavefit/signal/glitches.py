@@ -69,6 +69,10 @@ COINCIDENCE = 2
 #: switching edge over two: a QA trial's drive rose 0.02 → 1.86 → 4.86 V, and the sense's
 #: winding-capacitance spike on its middle sample was replaced as a glitch at every edge).
 JUMP_WIDTH = 2
+#: Each step within a jump over two samples moves the same way by more than this many noise
+#: standard deviations (a step of noise alone, whose rms is √2 σ, does so about once in 200
+#: steps); the split may be uneven (0.86 → 0.5 → −4.06 V in that trial's lot).
+JUMP_INNER_NOISE = 4.0
 #: Neighbour changes looked at first for one no larger than the noise floor (then the record's
 #: least change cannot raise :func:`record_noise`): in noise about half of them are, so the
 #: whole record is searched only when its trace is quiet and quantised (common practice).
@@ -154,8 +158,8 @@ def _after_jumps(y: np.ndarray, code: float | None, sigma: float | None = None) 
     for width in range(1, JUMP_WIDTH + 1):
         leaps = []
         # changes y[j] -> y[j + width], each with the one-sample steps either side; over two or
-        # more samples every step within moves the same way by more than the noise (else it is a
-        # one-sample jump with a quiet step beside it, which marks no earlier sample)
+        # more samples every step within moves the same way by more than JUMP_INNER_NOISE (else it
+        # is a one-sample jump with a quiet step beside it, which marks no earlier sample)
         for a, b in _spans(1, y.size - 1 - width):
             signed = np.diff(y[a - 1:b + width + 1])
             step = np.abs(signed)
@@ -165,7 +169,7 @@ def _after_jumps(y: np.ndarray, code: float | None, sigma: float | None = None) 
             k = k[change[k] > GLITCH_SHAPE * (before[k] + after[k]) + GLITCH_NOISE * sigma]
             for inner in range(1, width):
                 first, other = signed[k + 1], signed[k + 1 + inner]
-                k = k[(np.abs(first) > GLITCH_NOISE * sigma) & (np.abs(other) > GLITCH_NOISE * sigma)
+                k = k[(np.abs(first) > JUMP_INNER_NOISE * sigma) & (np.abs(other) > JUMP_INNER_NOISE * sigma)
                       & (np.sign(first) == np.sign(other))]
             leaps.append(k + a)
         leaps = np.concatenate(leaps) + 1  # the first sample after the change begins
