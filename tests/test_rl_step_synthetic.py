@@ -402,3 +402,27 @@ def test_a_record_ending_soon_after_its_last_edge_is_named_as_such(tail_tau, exp
     warnings = wavefit.analyze(frame(t, s), SENSE_ONLY).warnings
     assert not any("lengthen the period" in w for w in warnings)
     assert any(expected in w for w in warnings) if expected else not any("tau of record" in w for w in warnings)
+
+
+@pytest.mark.parametrize("noise", ["auto", "white"])
+@pytest.mark.parametrize("quiet, driven", [(0.12, 0.35), (0.15, 0.15), (0.0, 0.0)])
+def test_a_quiet_level_on_the_extreme_code_is_not_taken_for_off_screen(noise, quiet, driven):
+    # one step from a settled level that reads one code, the record's lowest, on an 8-bit screen
+    # with 5 % margins (nothing clipped); noise `quiet` codes before the edge and `driven` in the
+    # driven state. The first rule for an off-screen level took the windows' noise for the
+    # baseline's and refused such records (a review's probes): the level is on screen, and the
+    # trace and the fitted curve leave it at the edge
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense", "drive": "drive"},
+             "parts": {"sense_resistor": "10 ohm"}, "instrument": {"timebase": "±0 ppm", "vertical_gain": "±0%"},
+             "options": {"noise": noise}}
+    t, d, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 1.0, TAU / 50, 35 * TAU, delay=10 * TAU)
+    rng = np.random.default_rng(3)
+    traces = []
+    for y in (s, d):
+        lsb = 1.1 * np.ptp(y) / 255
+        low = -round(0.05 * np.ptp(y) / lsb) * lsb  # 0 V on a code
+        sigma = lsb * (quiet + (driven - quiet) * y / np.ptp(y))
+        traces.append(low + np.clip(np.round((y + sigma * rng.standard_normal(y.size) - low) / lsb), 0, 255) * lsb)
+    assert np.unique(traces[0][:400]).size == 1 and traces[0][0] == traces[0].min()  # the case meant
+    q = wavefit.analyze(frame(t, traces[0], traces[1]), setup).quantities["L"]
+    assert abs(q.value - L) <= q.expanded_uncertainty

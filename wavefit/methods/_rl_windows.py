@@ -16,9 +16,8 @@ import numpy as np
 
 from ..errors import AnalysisRefused
 from ..fit.exponential import ProjectedProblem, WindowChannel, curve_information, decay, window_model
-from ..fit.quantisation import noise_before_converter
 from ..fit.white_projection import white_window_tau
-from ..signal.clipping import PILE_CHANCE, clipped_where_fitted, leading_held
+from ..signal.clipping import clipped_where_fitted, leading_held
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
 
@@ -124,31 +123,44 @@ def after_held_starts(t, sense, drive, windows, fits, facts, noise, source, fit_
     return out_w, out_f, clipped, moved, dropped
 
 
-def off_screen_baseline(sense, drive, stop: int, fits, facts) -> set[str]:
-    """The channels held at a converter limit through the whole pre-edge baseline (its first
-    ``stop`` samples) where their noise, as the edge windows found it, would have carried a
-    settled level onto a neighbouring code: such a level was off screen, and the constant
-    fitted to it is the screen's edge (a baseline above the screen's top read as the high
-    level set the sense step 5–50 % short, and L, R and I_final wrong beyond their
-    uncertainty, in a trial's clipped captures).
-
-    A level with noise σ before a converter of step q lands on one code with a chance of at
-    most erf(q/(2√2·σ)) per sample (the code centred on it), so on one code throughout with
-    at most that to the power of the baseline's independent samples (its length over the
-    noise's long-run variance ratio, for band-limited noise); below
-    :data:`~wavefit.signal.clipping.PILE_CHANCE` it is off screen. σ is the windows' noise
-    before the converter where they were fitted on their codes, else their scatter."""
-    converter_noise = noise_before_converter(fits)
+def off_screen_baseline(sense, drive, stop: int, first: "Window", first_fit, facts, cut_start: int,
+                        dt: float) -> set[str]:
+    """The channels whose pre-edge baseline (the first ``stop`` samples) was off screen: held at
+    a converter limit throughout, and the first window, which leaves that level, either
+    started on samples held at that same limit (:func:`after_held_starts` moved its start on
+    from ``cut_start``, where it was cut) or has its fitted curve (``first_fit``) start at the
+    switching instant beyond that limit by more than :data:`OFF_SCREEN_CODES` codes and more
+    than the curve moves in :data:`OFF_SCREEN_SAMPLES` samples there (``dt`` the sample
+    interval): the instant is known to about a sample, and an exponential extrapolated back
+    before its start runs on past the level it left. The constant fitted to such a baseline is
+    the screen's edge (a baseline above the screen's top read as the high level set the sense
+    step 5–50 % short, and L, R and I_final wrong beyond their uncertainty, in a trial's
+    clipped captures). A quiet level that merely is the record's extreme value (a settled state
+    read on one code) is left at once by the trace and by the curve, and is kept."""
     out = set()
     for group, y in (("sense", sense), ("drive", drive)):
         if y is None or stop <= 0 or not facts[group].held_throughout(y[:stop]):
             continue
+        low, high = facts[group].limits
+        held = float(y[0])
         code = facts[group].code or facts[group].smallest_gap or 0.0
-        sigma = converter_noise.get(group) or float(np.median([f.noise_sigma[group] for f in fits]))
-        ratio = float(np.median([max(f.noise_model[group].get("long_run_variance_ratio", 1.0), 1.0) for f in fits]))
-        if code > 0 and sigma > 0 and math.erf(code / (2.0 * math.sqrt(2.0) * sigma)) ** (stop / ratio) < PILE_CHANCE:
+        curve = window_model(first_fit, group, np.array([first.t0, first.t0 + OFF_SCREEN_SAMPLES * dt]))
+        beyond = float(curve[0]) - high if held == high else low - float(curve[0])
+        reach = max(OFF_SCREEN_CODES * code, abs(float(curve[1] - curve[0])))
+        left_held = first.start > cut_start and float(y[cut_start]) == held
+        if left_held or (code > 0 and beyond > reach):
             out.add(group)
     return out
+
+
+#: A pre-edge level counts as off screen when the first window's curve starts beyond the limit
+#: the baseline is held at by more than this many codes (a level on screen reads within half a
+#: code of its own) ...
+OFF_SCREEN_CODES = 2
+#: ... and by more than the curve moves in this many samples at the switching instant (the
+#: instant's error: clean one-step records overshot by up to 2.4 codes, a curve moving 4.6 codes
+#: a sample; the trial's clipped levels lay 10–200 codes beyond).
+OFF_SCREEN_SAMPLES = 2
 
 
 #: Fewest samples a window is fitted on (as the windows are cut, rl_step's _windows).

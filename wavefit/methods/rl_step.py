@@ -204,6 +204,7 @@ class RLStep(Method):
         windows, edge_times = self._windows(t, sense, drive, edges, setup, dt)
         noise = str(self.option(setup, "noise"))
         fits = [self._fit_window(t, sense, drive, w, noise, capture.source) for w in windows]
+        cut = {id(w.edge): w.start for w in windows}  # each window's start as cut, before held samples
         windows, fits, clipped, off_screen, left_out = after_held_starts(t, sense, drive, windows, fits, facts, noise,
                                                                           capture.source, self._fit_window)
         if off_screen:
@@ -213,7 +214,13 @@ class RLStep(Method):
             warnings.append(f"{left_out} edge window(s) left out: clipped at a converter limit where they would be "
                             "fitted (set the volts per division and offset so that the whole step stays on screen)")
         baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
-        held = off_screen_baseline(sense, drive, _baseline_stop(t, windows[0]), fits, facts)
+        stop = _baseline_stop(t, windows[0])
+        held = off_screen_baseline(sense, drive, stop, windows[0], fits[0], facts, cut[id(windows[0].edge)], dt)
+        if drive is None and "sense" in clipped and stop > 0 and facts["sense"].held_throughout(sense[:stop]):
+            # without a drive the first window's instant comes from the clipped trace itself, so
+            # neither test above can tell: a level held at a limit of a trace clipped elsewhere
+            # is taken as off screen (only I_final and E rest on it)
+            held.add("sense")
         if held:
             clipped |= held
             baseline = _without_off_screen(baseline, windows, held, drive is not None, capture.source)
@@ -562,9 +569,9 @@ def _baseline_stop(t: np.ndarray, first: Window) -> int:
 
 #: The warning of a sense-only capture whose level before the first edge was off screen and is
 #: seen nowhere else (:func:`_without_off_screen`).
-OFF_SCREEN_LEVEL = ("the sense trace is held at the converter's limit before the first edge and in every window "
-                    "that would give that level (off screen): the level is the screen's edge, so I_final and E are "
-                    "too small and not to be used; tau and L do not rest on it. Set the sense channel's volts per "
+OFF_SCREEN_LEVEL = ("the sense trace is held at the converter's limit before the first edge, is clipped elsewhere, "
+                    "and no window gives that level: it was probably off screen, and then I_final and E are too "
+                    "small and not to be used; tau and L do not rest on it. Set the sense channel's volts per "
                     "division and offset so that the whole step stays on screen")
 
 
