@@ -111,3 +111,14 @@ def test_spec_every_part_lies_far_beyond_ends_the_run_refused(tmp_path):
     assert "Traceback" not in proc.stderr
     with open(tmp_path / "out.csv", newline="", encoding="utf-8") as handle:
         assert len(list(csv.DictReader(line for line in handle if not line.startswith("#")))) == 2
+
+
+def test_spec_with_its_unit_far_from_every_part_is_only_warned(tmp_path):
+    # "100 H ±10%" written with its unit: a missing prefix is less likely, the run ends as usual
+    write_lot(tmp_path)
+    (tmp_path / "spec.toml").write_text('[limits]\nL = "100 H ±10%"\n', encoding="utf-8")
+    proc = subprocess.run([sys.executable, "-m", "wavefit.cli", "batch", str(tmp_path / "part1.csv"), "--setup",
+                           str(tmp_path / "setup.toml"), "--spec", str(tmp_path / "spec.toml"), "--out",
+                           str(tmp_path / "out.csv"), "--workers", "1"], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    assert "wavefit: warning: every L measured lies at least" in proc.stderr

@@ -149,3 +149,13 @@ def test_verdicts_within_U_of_a_limit_are_counted_and_named_under_simple_accepta
     assert "2 of 3 verdicts lie within U of a limit" in render_summary(summary, spec, "lot")
     guarded = parse_spec({"limits": {"L": "100 uH ±10%"}, "decision": {"rule": "guard-band"}})
     assert "within U of a limit" not in render_summary(summary, guarded, "lot")  # its conditional counts say it
+
+
+def test_only_positive_lots_are_judged_for_a_missing_prefix():
+    # values at or below zero say nothing of a prefix: parts far inside "<= 0.15" on the negative
+    # side, or a quantity nil within its noise, were called 10³ times beyond (a review's probe)
+    upper = Limit("R", None, 0.15, "", "<= 0.15")
+    lower = Limit("R", 0.05, None, "", ">= 0.05")
+    assert far_from_limits([-200.0, -180.0, -250.0], upper) is None
+    assert far_from_limits([2e-5, -3e-5, 1e-5], lower) is None
+    assert far_from_limits([2e-5, 3e-5, 1e-5], lower) == pytest.approx(0.05 / 3e-5)

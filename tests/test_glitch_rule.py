@@ -117,3 +117,11 @@ def test_a_spike_on_a_two_sample_drive_edge_is_kept() -> None:
                           "sense": sense + 2e-4 * rng.standard_normal(n)})
     capture = without_glitches(capture_from_frame(frame))
     assert not any("isolated sample" in w for w in capture.warnings), capture.warnings
+
+
+def test_jumps_of_very_short_records() -> None:
+    # a record too short for a two-sample change (4 samples) raised from an empty concatenation
+    from wavefit.signal.glitches import _after_jumps
+
+    for n in (4, 5, 6):
+        assert _after_jumps(np.r_[np.zeros(n - 2), 5.0, 5.0], None, 0.01).shape == (n,)

@@ -63,8 +63,8 @@ def without_glitches(capture: Capture) -> Capture:
         what = "(a glitch)"
         if recurring(rows):
             period = float(capture.time[rows[-1]] - capture.time[rows[0]]) / (rows.size - 1)
-            what = (f"(recurring every {period:.4g} s: a spike at each switching instant, such as a capacitance "
-                    "charging at each edge or pickup from the generator, rather than a fault of the record)")
+            what = (f"(recurring every {period:.4g} s: spikes at a fixed interval, such as one at each switching "
+                    "instant from a capacitance charging or pickup from the generator, rather than random faults)")
         warnings.append(
             f"column {header!r}: {rows.size} isolated sample{'s' if rows.size > 1 else ''} ({listed}) "
             f"departed from both neighbours by more than {GLITCH_SHAPE:g} times the waveform's local "

@@ -84,9 +84,10 @@ def run(args: argparse.Namespace, analyse: Analyse = analyse_file) -> int:
         return stopped.exit_code
 
 
-#: The exit code of a run whose every row is written but whose spec every part lies a thousand
-#: times or more beyond (:func:`~wavefit.batch.statistics.far_from_limits`): the verdicts are
-#: refused as the analyze command refuses a result it cannot trust (its exit code 4).
+#: The exit code of a run whose every row is written but whose spec, a limit written without a
+#: unit, every part lies a thousand times or more beyond
+#: (:func:`~wavefit.batch.statistics.far_from_limits`): the verdicts are refused as the analyze
+#: command refuses a result it cannot trust (its exit code 4).
 SPEC_MISMATCH = 4
 
 
@@ -168,17 +169,26 @@ def _run(args: argparse.Namespace, analyse: Analyse, stop: StopSignals, progress
         summary = summarize(rows, plan.spec.limits, plan.method.positive)
         outcome = BatchOutcome(progress.written, len(plan.paths) - len(todo), changed, rows, summary, history,
                                by_part)
-        _report(outcome, plan.spec, plan.lot, args, plan.method.positive)
         far = False
+        lines = []
         for name, limit in plan.spec.limits.items():
             factor = far_from_limits([usable(row, name, name in plan.method.positive) for row in rows], limit)
-            if factor is not None:
-                far = True
-                print(f"wavefit: error: every {name} measured lies at least {factor:.3g} times beyond its limit "
-                      f"{visible(limit.text)!r}{' (no unit written: SI)' if not limit.unit else ''}: a unit "
-                      "prefix missing from the spec? The verdicts against it are not to be used; correct the spec "
-                      f"and run again into another results file ({visible(args.out)} keeps these rows)",
-                      file=sys.stderr)
+            if factor is None:
+                continue
+            if limit.unit:  # a unit written makes a missing prefix less likely: said, not refused
+                lines.append(f"wavefit: warning: every {name} measured lies at least {factor:.3g} times beyond its "
+                             f"limit {visible(limit.text)!r}: a wrong unit prefix in the spec?")
+                continue
+            far = True
+            lines.append(f"wavefit: error: every {name} measured lies at least {factor:.3g} times beyond its limit "
+                         f"{visible(limit.text)!r} (no unit written: SI): a unit prefix missing from the spec? The "
+                         "verdicts against it are not to be used; correct the spec and run again into another "
+                         f"results file ({visible(args.out)} keeps these rows)")
+        try:
+            _report(outcome, plan.spec, plan.lot, args, plan.method.positive)
+        finally:  # said after the summary, and also when the plot cannot be written
+            for line in lines:
+                print(line, file=sys.stderr)
     return SPEC_MISMATCH if far else 0
 
 

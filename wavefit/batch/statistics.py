@@ -131,9 +131,12 @@ FAR_FROM_LIMITS = 1e3
 def far_from_limits(values: Sequence[float | None], limit: Limit) -> float | None:
     """The smallest factor by which the values (``None`` skipped) lie beyond the limit's nearest
     bound, when every one of them does so by at least :data:`FAR_FROM_LIMITS` in the same
-    direction (below a lower bound, or above an upper one); else ``None``."""
-    present = [abs(v) for v in values if v is not None and v != 0]
-    if not present:
+    direction (below a lower bound, or above an upper one); else ``None``. Only a lot of
+    values above zero is judged: a missing prefix scales a positive bound, and values at or
+    below zero beside it (parts far inside an upper bound, a quantity nil within its noise)
+    say nothing of one."""
+    present = [v for v in values if v is not None]
+    if not present or min(present) <= 0:
         return None
     low, high = min(present), max(present)
     if limit.lower is not None and limit.lower > 0 and high * FAR_FROM_LIMITS <= limit.lower:

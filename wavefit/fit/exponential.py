@@ -243,6 +243,13 @@ class ProjectedProblem:
         longer than :data:`GRID_STEP` (the spacing of the grid a start is found on: the
         minimum is then flat or far), a step that raises the sum, or more than
         :data:`SOLUTION_ITERATIONS` steps end them with None."""
+        try:
+            return self._descend(tau_start, weights)
+        except (OverflowError, ZeroDivisionError):
+            return None  # values near the float range's end: the solver's (vectorised) work
+
+    def _descend(self, tau_start: float, weights: Sequence[float]) -> float | None:
+        """:meth:`minimum`'s steps."""
         tau = tau_start
         terms = self.terms(tau)
         for _ in range(SOLUTION_ITERATIONS):

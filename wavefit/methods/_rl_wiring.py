@@ -92,8 +92,8 @@ def check_wiring(t: np.ndarray, sense: np.ndarray, drive: np.ndarray | None, edg
                 f"{source}: the sense channel jumps with the drive at its edges (by up to {spike:.0%} of its step) "
                 "and falls back before the coil's current rises: current through a capacitance across the coil "
                 "(its winding capacitance), which charges through the sense resistance, so the sense edges are "
-                "read from that spike; use a smaller sense resistance (the spike lasts about R_sense times that "
-                "capacitance, and tau grows), so that it is over within a few samples")
+                "read from that spike; use a smaller sense resistance (the spike lasts about (R_sense + R_source) "
+                "times that capacitance, and tau grows), so that it is over within a few samples")
         raise AnalysisRefused(
             f"{source}: the sense channel falls when the drive rises at {against} of {len(edges)} edges: an "
             "inverted probe or channel, or leads swapped across the sense resistor; fix the wiring or the "

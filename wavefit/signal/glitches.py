@@ -172,6 +172,8 @@ def _after_jumps(y: np.ndarray, code: float | None, sigma: float | None = None) 
                 k = k[(np.abs(first) > JUMP_INNER_NOISE * sigma) & (np.abs(other) > JUMP_INNER_NOISE * sigma)
                       & (np.sign(first) == np.sign(other))]
             leaps.append(k + a)
+        if not leaps:
+            continue  # a record too short for a change this wide
         leaps = np.concatenate(leaps) + 1  # the first sample after the change begins
         for shift in range(width + COINCIDENCE):
             mask[np.minimum(leaps + shift, y.size - 1)] = True
