@@ -137,8 +137,9 @@ def _weighted_least_squares_tau(chans, tau_start):
         scatter.append(math.sqrt(float(r @ r) / (r.size - n_par * r.size / total)))
 
     def residuals(x):
-        return np.concatenate([(ch.values - x[1 + 2 * c] - x[2 + 2 * c] * np.exp(-(ch.time - ch.time[0]) / (x[0] * tau_start)))
-                               / scatter[c] for c, ch in enumerate(chans)])
+        return np.concatenate([(ch.values - x[1 + 2 * c]
+                                - x[2 + 2 * c] * np.exp(-(ch.time - ch.time[0]) / (x[0] * tau_start))) / scatter[c]
+                               for c, ch in enumerate(chans)])
 
     x0 = [1.0]
     for ch in chans:

@@ -39,7 +39,8 @@ def render_summary(summary: LotSummary, spec: Spec, lot: str) -> str:
         analysed = summary.total - summary.counts.get(ERROR, 0)
         lines.append(f"  {summary.near_limits} of {analysed} verdicts lie within U of a limit: simple acceptance "
                      "judges each of these on a value the measurement does not pin down (a wrong verdict up to "
-                     "half the time at the limit itself); the guard-band rule with w = U would report them as conditional")
+                     "half the time at the limit itself); the guard-band rule with w = U would report them as "
+                     "conditional")
     header = ("quantity", "limits", "n", "mean", "std dev", "min", "max", "Cp", "Cpk")
     table = [header]
     for name, stats in summary.quantities.items():

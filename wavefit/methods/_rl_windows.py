@@ -265,9 +265,10 @@ def projected_shift(t, sense, drive, w, f, start: int) -> float | None:
     413–432; Gauss–Newton steps from the full window's tau,
     :meth:`~wavefit.fit.exponential.ProjectedProblem.minimum`), each channel weighed by the
     full fit's noise model; its shift counts within a reach set by the difference's
-    deviation as the sense channel's information foresees it (:func:`_tau_information`). The difference's variance is var(τ_late) − var(τ_full), the
-    first from the linearised information of the later window with each channel weighed by
-    its own scatter about the later curve, as the refit weighs it: the Hausman test's
+    deviation as the sense channel's information foresees it (:func:`_tau_information`).
+    The difference's variance is var(τ_late) − var(τ_full), the first from the linearised
+    information of the later window with each channel weighed by its own scatter about the
+    later curve, as the refit weighs it: the Hausman test's
     statistic (J. A. Hausman, Econometrica 46 (1978) 1251–1271). Only windows whose full fit
     is white and on no code grid are foreseen: an AR model or a code likelihood estimated on
     the full window changes the later one's variance by more than :data:`SCREEN_Z` allows
