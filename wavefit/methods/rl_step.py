@@ -149,7 +149,8 @@ class RLStep(Method):
                          "(lengthen the period and the record), and a step well above the noise")
     unphysical_hint = ("check [columns] (drive and sense swapped? an inverted probe? a probe's 1x/10x setting "
                        "wrong?), the parts and the [instrument] gains, and that the capture holds steps of an RL "
-                       "loop (not a ring), each step over many converter codes")
+                       "loop (not a ring), each step over many converter codes and without a spike at each edge "
+                       "(a winding capacitance charging through a large sense resistance)")
 
     def check_setup(self, setup: Setup) -> None:
         super().check_setup(setup)
