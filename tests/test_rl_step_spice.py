@@ -197,3 +197,15 @@ def test_level_on_screen_is_measured():
         L = result.quantities["L"]
         assert abs(L.value - ind) <= L.expanded_uncertainty
         assert not any("held at the converter's limit before" in w for w in result.warnings)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_winding_capacitance_spike_without_a_drive_is_refused_naming_it():
+    # sense only, 330 ohm: the spike's edges make L come out negative; the refusal named swapped
+    # or inverted channels and a ring only, now also a spike at each edge
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense"},
+             "parts": {"sense_resistor": "330 ohm ±0.1%", "winding_capacitance": "200 pF ±20%",
+                       "source_resistance": "50 ohm ±1%", "dut_resistance": "2 ohm ±1%"}}
+    with pytest.raises(wavefit.AnalysisRefused, match="spike at each edge"):
+        wavefit.analyze(spike_capture(330.0).drop(columns=["drive"]), setup)
