@@ -96,16 +96,21 @@ def test_interrupted_lot_resumes_with_one_row_per_file(tmp_path):
     assert checked >= 5
 
 
+def _lot_against(folder: Path, limit: str, inputs: str) -> subprocess.CompletedProcess:
+    """The lot's captures ``inputs`` judged by one worker against ``L = limit``."""
+    write_lot(folder)
+    (folder / "spec.toml").write_text(f'[limits]\nL = "{limit}"\n', encoding="utf-8")
+    return subprocess.run([sys.executable, "-m", "wavefit.cli", "batch", str(folder / inputs), "--setup",
+                           str(folder / "setup.toml"), "--spec", str(folder / "spec.toml"), "--out",
+                           str(folder / "out.csv"), "--workers", "1"], capture_output=True, text=True, timeout=300)
+
+
 def test_spec_every_part_lies_far_beyond_ends_the_run_refused(tmp_path):
     # a limit written without its unit prefix ("100 ±10%" is read as 100 H): every part fails
     # by a factor of 10⁶, and the run ended with exit 0 and a warning, its fail rows and a
     # capability of 271462.97 printed as a lot's outcome; now the verdicts are refused (exit 4),
     # the rows kept in the results file
-    write_lot(tmp_path)
-    (tmp_path / "spec.toml").write_text('[limits]\nL = "100 ±10%"\n', encoding="utf-8")
-    proc = subprocess.run([sys.executable, "-m", "wavefit.cli", "batch", str(tmp_path / "part[12].csv"), "--setup",
-                           str(tmp_path / "setup.toml"), "--spec", str(tmp_path / "spec.toml"), "--out",
-                           str(tmp_path / "out.csv"), "--workers", "1"], capture_output=True, text=True, timeout=300)
+    proc = _lot_against(tmp_path, "100 ±10%", "part[12].csv")
     assert proc.returncode == 4, proc.stderr
     assert "unit prefix missing from the spec" in proc.stderr and "not to be used" in proc.stderr
     assert "Traceback" not in proc.stderr
@@ -115,10 +120,6 @@ def test_spec_every_part_lies_far_beyond_ends_the_run_refused(tmp_path):
 
 def test_spec_with_its_unit_far_from_every_part_is_only_warned(tmp_path):
     # "100 H ±10%" written with its unit: a missing prefix is less likely, the run ends as usual
-    write_lot(tmp_path)
-    (tmp_path / "spec.toml").write_text('[limits]\nL = "100 H ±10%"\n', encoding="utf-8")
-    proc = subprocess.run([sys.executable, "-m", "wavefit.cli", "batch", str(tmp_path / "part1.csv"), "--setup",
-                           str(tmp_path / "setup.toml"), "--spec", str(tmp_path / "spec.toml"), "--out",
-                           str(tmp_path / "out.csv"), "--workers", "1"], capture_output=True, text=True, timeout=300)
+    proc = _lot_against(tmp_path, "100 H ±10%", "part1.csv")
     assert proc.returncode == 0, proc.stderr
     assert "wavefit: warning: every L measured lies at least" in proc.stderr
