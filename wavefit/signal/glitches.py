@@ -155,26 +155,23 @@ def _after_jumps(y: np.ndarray, code: float | None, sigma: float | None = None) 
     if y.size < 4:
         return mask
     sigma = record_noise(y, code) if sigma is None else sigma
+    # the steps y[j] -> y[j + 1] (1 <= j) that move by more than JUMP_INNER_NOISE: every jump is
+    # made of such steps (GLITCH_NOISE exceeds it), and they are rare, so the rest is judged at
+    # them alone
+    moving = np.concatenate([np.flatnonzero(np.abs(np.diff(y[a:b + 1])) > JUMP_INNER_NOISE * sigma) + a
+                             for a, b in _spans(1, y.size - 1)])
     for width in range(1, JUMP_WIDTH + 1):
-        leaps = []
         # changes y[j] -> y[j + width], each with the one-sample steps either side; over two or
         # more samples every step within moves the same way by more than JUMP_INNER_NOISE (else it
         # is a one-sample jump with a quiet step beside it, which marks no earlier sample)
-        for a, b in _spans(1, y.size - 1 - width):
-            signed = np.diff(y[a - 1:b + width + 1])
-            step = np.abs(signed)
-            change = np.abs(y[a + width:b + width] - y[a:b])
-            before, after = step[:b - a], step[width + 1:width + 1 + b - a]
-            k = np.flatnonzero(change > GLITCH_NOISE * sigma)  # the steps around only add to that
-            k = k[change[k] > GLITCH_SHAPE * (before[k] + after[k]) + GLITCH_NOISE * sigma]
-            for inner in range(1, width):
-                first, other = signed[k + 1], signed[k + 1 + inner]
-                k = k[(np.abs(first) > JUMP_INNER_NOISE * sigma) & (np.abs(other) > JUMP_INNER_NOISE * sigma)
-                      & (np.sign(first) == np.sign(other))]
-            leaps.append(k + a)
-        if not leaps:
-            continue  # a record too short for a change this wide
-        leaps = np.concatenate(leaps) + 1  # the first sample after the change begins
+        j = moving[moving <= y.size - 2 - width]
+        for inner in range(1, width):
+            first, other = y[j + 1] - y[j], y[j + 1 + inner] - y[j + inner]
+            j = j[(np.abs(other) > JUMP_INNER_NOISE * sigma) & (np.sign(first) == np.sign(other))]
+        change = np.abs(y[j + width] - y[j])
+        before, after = np.abs(y[j] - y[j - 1]), np.abs(y[j + width + 1] - y[j + width])
+        leaps = j[(change > GLITCH_NOISE * sigma)
+                  & (change > GLITCH_SHAPE * (before + after) + GLITCH_NOISE * sigma)] + 1  # the first sample after
         for shift in range(width + COINCIDENCE):
             mask[np.minimum(leaps + shift, y.size - 1)] = True
     return mask
