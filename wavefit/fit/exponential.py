@@ -19,7 +19,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass
-from typing import Sequence
+from typing import NamedTuple, Sequence
 
 import numpy as np
 from scipy import optimize
@@ -139,6 +139,18 @@ def projected_cost(times: Sequence[np.ndarray], values: Sequence[np.ndarray],
     return cost
 
 
+class ChannelTerms(NamedTuple):
+    """One channel's part of :class:`ProjectedProblem` at one tau: its residual sum of squares,
+    its unweighted terms of the projected problem's Jᵀr and JᵀJ in log tau, the fitted
+    coefficient of exp(−u/tau) and the residuals (about the channel's mean and that curve)."""
+
+    rss: float
+    gradient: float
+    curvature: float
+    coefficient: float
+    residual: np.ndarray
+
+
 class ProjectedProblem:
     """The least squares of a window's channels over tau alone, each channel's level and
     coefficient profiled out (for fixed tau, the simple regression on exp(−u/tau), u the time
@@ -164,7 +176,7 @@ class ProjectedProblem:
         self.elapsed = [t - float(t[0]) for t in self.times]
         self.centred = [y - float(np.mean(y)) for y in self.values]
         self.same = first_equal(self.elapsed)
-        self._kept: tuple[float, list[tuple[float, float, float]] | None] | None = None
+        self._kept: tuple[float, list[ChannelTerms] | None] | None = None
 
     def own_variances(self) -> list[float]:
         """Each channel's variance about its mean (:func:`projected_cost`'s default weights)."""
@@ -178,15 +190,13 @@ class ProjectedProblem:
         # for fixed tau each channel is a straight line in e = exp(−t/tau): its residual sum of
         # squares is that of simple regression on the centred samples, Syy − Sey²/See, with no
         # factorisation per evaluation
-        cost = projected_cost(self.times, self.values, weights)
         # the grid only brackets the minimum: on a long window every stride-th sample does that as
         # well, as long as the shortest tau of the grid still spans several of its intervals
         times = self.times
         dt = float(times[0][1] - times[0][0]) if times[0].size > 1 else 0.0
         shortest = min(t.size for t in times)
         stride = max(1, min(shortest // GRID_SAMPLES, int(GRID_LOW * tau0 / (4.0 * dt)) if dt > 0 else 1))
-        coarse = cost if stride == 1 else projected_cost([t[::stride] for t in times],
-                                                         [y[::stride] for y in self.values], weights)
+        coarse = projected_cost([t[::stride] for t in times], [y[::stride] for y in self.values], weights)
         grid = np.log(tau0) + np.linspace(math.log(GRID_LOW), math.log(1.0 / GRID_LOW), GRID_POINTS)
         costs = [coarse(g) for g in grid]
         k = int(np.argmin(costs))
@@ -196,16 +206,17 @@ class ProjectedProblem:
             if found is not None and grid[k - 1] < math.log(found) < grid[k + 1]:
                 return found
         lo, hi = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
+        # the cost on every sample, made only here, where the steps did not converge
+        cost = coarse if stride == 1 else projected_cost(times, self.values, weights)
         res = optimize.minimize_scalar(cost, bounds=(lo, hi), method="bounded", options={"xatol": tolerance})
         return float(math.exp(res.x))
 
-    def terms(self, tau: float) -> list[tuple[float, float, float]] | None:
-        """Each channel's residual sum of squares at ``tau`` and its unweighted terms of the
-        projected problem's Jᵀr and JᵀJ in log tau; None where a basis does not vary."""
+    def terms(self, tau: float) -> list[ChannelTerms] | None:
+        """Each channel's :class:`ChannelTerms` at ``tau``; None where a basis does not vary."""
         if self._kept is not None and self._kept[0] == tau:
             return self._kept[1]
         bases: list[tuple[np.ndarray, np.ndarray, float]] = []
-        out: list[tuple[float, float, float]] | None = []
+        out: list[ChannelTerms] | None = []
         for c, (u, y) in enumerate(zip(self.elapsed, self.centred)):
             if self.same[c] == c:
                 e = decay(u, tau)
@@ -228,9 +239,8 @@ class ProjectedProblem:
             residual = y - coefficient * e
             # the residual is orthogonal to the basis, so its product with the projected
             # derivative is its product with the derivative itself
-            out.append((float(residual @ residual),
-                        coefficient * float(slope @ y) / tau,
-                        coefficient ** 2 * float(slope @ slope) / tau ** 2))
+            out.append(ChannelTerms(float(residual @ residual), coefficient * float(slope @ y) / tau,
+                                    coefficient ** 2 * float(slope @ slope) / tau ** 2, coefficient, residual))
         self._kept = (tau, out)
         return out
 
@@ -255,9 +265,9 @@ class ProjectedProblem:
         for _ in range(SOLUTION_ITERATIONS):
             if terms is None:
                 return None
-            cost = sum(t[0] / w for t, w in zip(terms, weights))
-            gradient = sum(t[1] / w for t, w in zip(terms, weights))
-            curvature = sum(t[2] / w for t, w in zip(terms, weights))
+            cost = sum(t.rss / w for t, w in zip(terms, weights))
+            gradient = sum(t.gradient / w for t, w in zip(terms, weights))
+            curvature = sum(t.curvature / w for t, w in zip(terms, weights))
             if not (curvature > 0 and math.isfinite(gradient)):
                 return None
             step = gradient / curvature
@@ -267,7 +277,7 @@ class ProjectedProblem:
                 return None
             tau *= math.exp(step)
             terms = self.terms(tau)
-            if terms is not None and sum(t[0] / w for t, w in zip(terms, weights)) > cost * (1.0 + SOLUTION_RISE):
+            if terms is not None and sum(t.rss / w for t, w in zip(terms, weights)) > cost * (1.0 + SOLUTION_RISE):
                 return None
         return None
 
@@ -284,7 +294,7 @@ class ProjectedProblem:
         for g in set(groups):
             members = [c for c in range(len(groups)) if groups[c] == g]
             size = sum(self.centred[c].size for c in members)
-            scatter[g] = sum(terms[c][0] for c in members) / max(size - n_par * size / total, 1.0)
+            scatter[g] = sum(terms[c].rss for c in members) / max(size - n_par * size / total, 1.0)
         if not all(s > 0 for s in scatter.values()):
             return None
         return [scatter[g] for g in groups]

@@ -15,7 +15,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .exponential import ProjectedProblem, WindowChannel, curve_information, decay
+from .exponential import ProjectedProblem, WindowChannel, curve_information
 from .noise_model import fit_ar
 from .quantisation import limiting_step
 
@@ -67,22 +67,6 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
     elapsed, centred = problem.elapsed, problem.centred
     total = sum(y.size for y in centred)
     n_par = 1 + 2 * len(channels)
-
-    def fitted(tau: float) -> tuple[list[np.ndarray], list[float], list[float]]:
-        """Each channel's residuals, amplitude at its first instant, and scatter (the fit's
-        white model: its sum of squares over its samples less its share of the parameters)."""
-        residuals, amplitudes, scatters = [], [], []
-        for u, y in zip(elapsed, centred):
-            e = decay(u, tau)
-            ec = e - float(e.mean())
-            see = float(ec @ ec)
-            amplitude = float(ec @ y) / see if see > 0 else 0.0
-            r = y - amplitude * ec
-            residuals.append(r)
-            amplitudes.append(amplitude)
-            scatters.append(float(r @ r) / max(y.size * (1.0 - n_par / total), 1.0))
-        return residuals, amplitudes, scatters
-
     # first each channel over its own variance (the fit's start), then, with two or more
     # channels, weighed by their scatter about that minimum (the fit's weights)
     own = problem.own_variances()
@@ -95,7 +79,14 @@ def white_window_tau(channels: Sequence[WindowChannel], tau0: float, noise: str 
         tau = None if weights is None else problem.minimum(tau, weights)
     if tau is None:
         return None
-    residuals, amplitudes, scatters = fitted(tau)
+    # each channel's residuals and amplitude at its first instant at that tau (the steps' last
+    # evaluation), and its scatter: the fit's white model, its sum of squares over its samples
+    # less its share of the parameters
+    fitted = problem.terms(tau)
+    if fitted is None:
+        return None
+    residuals, amplitudes = [t.residual for t in fitted], [t.coefficient for t in fitted]
+    scatters = [t.rss / max(y.size * (1.0 - n_par / total), 1.0) for t, y in zip(fitted, centred)]
     if not all(s > 0 for s in scatters):
         return None
     if noise == "auto" and any(fit_ar([r], MAX_AR_ORDER).order for r in residuals):
