@@ -124,7 +124,7 @@ def after_held_starts(t, sense, drive, windows, fits, facts, noise, source, fit_
 
 
 def off_screen_baseline(sense, drive, stop: int, first: "Window", first_fit, facts, cut_start: int,
-                        dt: float) -> set[str]:
+                        dt: float, clipped: set[str]) -> set[str]:
     """The channels whose pre-edge baseline (the first ``stop`` samples) was off screen: held at
     a converter limit throughout, and the first window, which leaves that level, either
     started on samples held at that same limit (:func:`after_held_starts` moved its start on
@@ -136,7 +136,10 @@ def off_screen_baseline(sense, drive, stop: int, first: "Window", first_fit, fac
     the screen's edge (a baseline above the screen's top read as the high level set the sense
     step 5–50 % short, and L, R and I_final wrong beyond their uncertainty, in a trial's
     clipped captures). A quiet level that merely is the record's extreme value (a settled state
-    read on one code) is left at once by the trace and by the curve, and is kept."""
+    read on one code) is left at once by the trace and by the curve, and is kept. Without a
+    drive channel the first window's instant comes from the clipped trace itself, so neither
+    test can tell there: a sense level held at a limit of a trace found ``clipped`` in its
+    windows is taken as off screen (only I_final and E rest on it)."""
     out = set()
     for group, y in (("sense", sense), ("drive", drive)):
         if y is None or stop <= 0 or not facts[group].held_throughout(y[:stop]):
@@ -148,7 +151,8 @@ def off_screen_baseline(sense, drive, stop: int, first: "Window", first_fit, fac
         beyond = float(curve[0]) - high if held == high else low - float(curve[0])
         reach = max(OFF_SCREEN_CODES * code, abs(float(curve[1] - curve[0])))
         left_held = first.start > cut_start and float(y[cut_start]) == held
-        if left_held or (code > 0 and beyond > reach):
+        placed_by_clipped_trace = drive is None and group in clipped
+        if left_held or (code > 0 and beyond > reach) or placed_by_clipped_trace:
             out.add(group)
     return out
 

@@ -216,12 +216,8 @@ class RLStep(Method):
                             "fitted (set the volts per division and offset so that the whole step stays on screen)")
         baseline = self._fit_baseline(t, sense, drive, windows[0], noise, fits, facts)
         stop = _baseline_stop(t, windows[0])
-        held = off_screen_baseline(sense, drive, stop, windows[0], fits[0], facts, cut[id(windows[0].edge)], dt)
-        if drive is None and "sense" in clipped and stop > 0 and facts["sense"].held_throughout(sense[:stop]):
-            # without a drive the first window's instant comes from the clipped trace itself, so
-            # neither test above can tell: a level held at a limit of a trace clipped elsewhere
-            # is taken as off screen (only I_final and E rest on it)
-            held.add("sense")
+        held = off_screen_baseline(sense, drive, stop, windows[0], fits[0], facts, cut[id(windows[0].edge)], dt,
+                                   clipped)
         if held:
             clipped |= held
             baseline = _without_off_screen(baseline, windows, held, drive is not None, capture.source)
