@@ -26,7 +26,7 @@ from typing import Any, Iterable, Mapping, Sequence
 
 import numpy as np
 
-from .decision import CONDITIONAL_PASS, ERROR, PASS, VERDICTS
+from .decision import CONDITIONAL_PASS, ERROR, PASS, VERDICTS, margin_to_limits
 from .spec import Limit
 
 #: A standard deviation at most this many units in the last place of the values is no spread:
@@ -201,7 +201,7 @@ def within_uncertainty_of_a_limit(row: Mapping[str, Any], limits: Mapping[str, L
         value, expanded = row.get(name), row.get(f"{name}_U")
         if not (possible(value, False) and possible(expanded, False)):
             continue
-        if any(bound is not None and abs(value - bound) < expanded for bound in (limit.lower, limit.upper)):
+        if abs(margin_to_limits(value, limit)) < expanded:  # the nearest limit is within U
             return True
     return False
 
