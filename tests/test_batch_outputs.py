@@ -78,6 +78,10 @@ def test_an_output_named_by_another_spelling_is_still_excluded(tmp_path, monkeyp
     (["--out", "lot"], "is not a regular file"),
     (["--out", "lot/r.csv", "--plot", "lot/plot.csv"], "give it a suffix of an image format"),
     (["--out", "lot/r.csv", "--plot", "nowhere/plot.png"], "does not exist"),
+    # a folder whose name is longer than any file system takes (the check itself raised
+    # "File name too long", exit 5 after the whole lot was analysed)
+    (["--out", "lot/r.csv", "--plot", "d" * 300 + "/plot.png"], "does not exist"),
+    (["--out", "d" * 300 + "/r.csv"], "does not exist"),
 ])
 def test_unusable_outputs_are_refused_before_anything_is_written(tmp_path, monkeypatch, outputs, fragment):
     common = lot_with_outputs_inside(tmp_path, monkeypatch)

@@ -267,6 +267,11 @@ def test_a_plot_that_cannot_be_written_keeps_the_result_and_exits_5(tmp_path: Pa
     code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / "a_file" / "fit.png")])
     out, err = capsys.readouterr()
     assert code == 3 and out == "" and "does not exist" in err
+    # so is one whose folder's name is longer than a file system takes (asking whether it is
+    # a folder raised "File name too long", exit 5)
+    code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / ("d" * 300) / "fit.png")])
+    out, err = capsys.readouterr()
+    assert code == 3 and out == "" and "does not exist" in err and "plot into" in err
 
 
 def test_a_calibration_file_that_cannot_be_written_is_named(tmp_path: Path) -> None:

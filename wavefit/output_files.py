@@ -58,7 +58,7 @@ def check_output(option: str, path: str | os.PathLike[str],
     if os.path.lexists(path) and ((replaced and os.path.islink(path)) or not os.path.isfile(path)):
         raise UnusableOutput(f"{option} {visible(path)} exists and is not a regular file; name a file to write")
     folder = Path(path).parent
-    if not folder.is_dir():
+    if not os.path.isdir(folder):  # (False, not an error, for a name too long to look up)
         raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} does not exist; create it "
                              "or name a file in another folder")
     longest = _longest_name(folder) - TEMPORARY_EXTRA

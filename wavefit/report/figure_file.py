@@ -56,7 +56,7 @@ def check_figure_path(path: str | os.PathLike[str]) -> None:
     if kind not in _formats():
         raise FigureFileError(f"cannot draw a plot into {visible(target)}: give it a suffix of an image format "
                               f"({', '.join(sorted(_formats()))})")
-    if not target.parent.is_dir():
+    if not os.path.isdir(target.parent):  # (False, not an error, for a name too long to look up)
         raise FigureFileError(f"cannot draw a plot into {visible(target)}: folder {visible(target.parent)} "
                               "does not exist")
     if kind in _SIGNATURES and target.is_file():
