@@ -20,6 +20,7 @@ from ..fit.white_projection import white_window_tau
 from ..signal.clipping import clipped_where_fitted, leading_held
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
+from ._rl_transient import edge_transient
 
 @dataclass(frozen=True)
 class Window:
@@ -192,10 +193,14 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
     Δ = max(4 samples, tau/10); if tau changes by more than 3 standard deviations of the
     difference, var(τ_late) − var(τ_early) (the Hausman test of nested estimators:
     J. A. Hausman, Econometrica 46 (1978) 1251–1271), the early samples are biased and the
-    later start is kept, up to three times.
+    later start is kept, up to three times. Before that, with a drive channel, every window
+    starts after a transient that follows each edge on either channel
+    (:func:`~wavefit.methods._rl_transient.edge_transient`: a probe's ringing moves the drive's
+    amplitude, and so L, while tau hardly moves).
 
-    Returns the windows, their fits, how many windows start later, and the fitted period
-    (None when the lattice was not used).
+    Returns the windows, their fits, how many windows start later by the test, the fitted
+    period (None when the lattice was not used), and the samples left out after a transient
+    with its channel ((0, None) when none was found).
     """
     dt = float(t[1] - t[0])
     windows, fits = list(windows), list(fits)
@@ -226,6 +231,12 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
                 fits[k] = fit_window(t, sense, drive, windows[k], noise, source)
             else:
                 windows[k] = dataclasses.replace(w, t0_deviation=deviations[k])
+    transient = (0, None) if drive is None else edge_transient(windows, fits, ("sense", "drive"), dt)
+    if transient[0]:
+        for k, w in enumerate(windows):
+            if w.stop - (w.start + transient[0]) >= MIN_WINDOW_SAMPLES:
+                windows[k] = dataclasses.replace(w, start=w.start + transient[0])
+                fits[k] = fit_window(t, sense, drive, windows[k], noise, source)
     out_w, out_f, late = [], [], 0
     for w, f in zip(windows, fits):
         step = max(4, int(math.ceil(0.1 * f["tau"] / dt)))
@@ -247,7 +258,7 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
         late += moved
         out_w.append(w)
         out_f.append(f)
-    return out_w, out_f, late, period
+    return out_w, out_f, late, period, transient
 
 
 #: The later start of :func:`settle_starts` is refitted only when tau projected onto it moves

@@ -232,9 +232,13 @@ class RLStep(Method):
         period = placement = None
         if self.option(setup, "skip") == "auto":
             first, first_fits = windows[0], fits
-            windows, fits, late, period = settle_starts(t, sense, drive, windows, fits, baseline, noise,
-                                                 capture.source, self._fit_window,
-                                                 correlated=not white)
+            windows, fits, late, period, transient = settle_starts(t, sense, drive, windows, fits, baseline, noise,
+                                                            capture.source, self._fit_window,
+                                                            correlated=not white)
+            if transient[0]:
+                notes.append(f"every edge window starts {transient[0]} samples ({transient[0] * dt:.3g} s) later: "
+                             f"the {transient[1]} channel's first samples after each edge stand above its noise "
+                             "(a probe's ringing, a long ground lead, generator overshoot?)")
             if period is not None:
                 notes.append(f"switching instants fitted to the drive's period ({period:.6g} s) over "
                              f"{len(windows)} edges: each is placed from all of them")
