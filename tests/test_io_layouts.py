@@ -174,7 +174,20 @@ def time_offset_column() -> tuple[bytes, dict]:
     return "\n".join(["#Capture exported as text", "X [ms],Y1 [V],Y2 [A]", *rows]).encode(), {}
 
 
+def commented_header_and_units() -> tuple[bytes, dict]:
+    # names and units both behind a comment mark, split on blanks (the mark was a cell of its
+    # own: no header was found, µs were read as seconds and mV as V)
+    rows = [f"{t:.9f} {v:.12g} {i:.12g}" for t, v, i in zip(TIME * 1e6, VOLTS * 1e3, AMPS * 1e3)]
+    return "\n".join(["# record 17", "# t CH1 CH2", "# us mV mA", *rows]).encode(), {}
+
+
+def commented_header_units_row() -> tuple[bytes, dict]:
+    rows = [f"  {t:14.9f}  {v:18.12g}  {i:18.12g}" for t, v, i in zip(TIME * 1e6, VOLTS * 1e3, AMPS * 1e3)]
+    return "\n".join(["%  t   CH1   CH2", "   us   mV   mA", *rows]).encode(), {}
+
+
 LAYOUTS: list[Layout] = [
+    commented_header_and_units, commented_header_units_row,
     comma, semicolon_decimal_comma, tab, spaces, utf8_bom, latin1_micro, utf16_bom, crlf,
     bare_cr, trailing_separators, blank_lines, key_value_preamble, free_text_preamble,
     headerless_interval, preamble_interval_text, preamble_rate, preamble_dt, interval_argument,

@@ -497,7 +497,10 @@ def _find_header(
 
 
 def _header_cells(line: str, sep: str, run: _Run) -> list[str] | None:
-    """The line's cells when it can be a header for the run: text (or a time name first), fitting count."""
+    """The line's cells when it can be a header for the run: text (or a time name first), fitting count.
+    A comment mark before the first name is dropped first: split on blanks, ``# t CH1 CH2``
+    would have the mark as a cell of its own."""
+    line = _COMMENT_MARK.sub("", line.lstrip(), count=1)
     splits = [split_line(line, sep)]
     if sep == WHITESPACE:
         splits += [re.split(r"\s{2,}|\t", line.strip()), _merge_bracketed(splits[0])]
