@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from wavefit.errors import CaptureError
 from wavefit.io import capture_from_frame, read_capture
 from wavefit.io.timebase import Printing, printing_resolution
 
@@ -93,6 +94,17 @@ def test_time_column_wins_over_a_disagreeing_preamble(tmp_path: Path) -> None:
     capture = read_capture(_write(tmp_path, lines))
     assert capture.sample_interval == pytest.approx(DT)
     assert any("the time column is used" in w for w in capture.warnings)
+
+
+@pytest.mark.parametrize("scale, named", [(1e6, "is it in us"), (1e9, "is it in ns"), (7.0, "")])
+def test_a_unitless_time_column_that_contradicts_the_preamble_is_refused(tmp_path: Path, scale, named) -> None:
+    # a column without a unit is read as seconds only for want of one: under a preamble that
+    # says otherwise it was used with a warning, and L came out 10⁶ times too large, exit 0
+    lines = ["Sample interval,1e-8", "Time,CH1 (V)", *_rows(np.arange(N) * DT * scale, _signal())]
+    with pytest.raises(CaptureError) as caught:
+        read_capture(_write(tmp_path, lines))
+    message = str(caught.value)
+    assert "has no unit" in message and "give the column its unit" in message and named in message
 
 
 def test_agreeing_preamble_gives_no_warning(tmp_path: Path) -> None:
