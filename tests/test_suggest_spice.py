@@ -93,7 +93,16 @@ def test_roles_with_the_columns_swapped(first_capture):
 
 def test_next_capture_meets_the_rules_and_analyses(first_capture, tmp_path):
     found = suggest(capture_from_frame(first_capture), parse_part("10 ohm ±0.1%", "ohm"))
-    (tmp_path / "setup.toml").write_text(render_toml(found), encoding="utf-8")
+    text = render_toml(found)
+    (tmp_path / "setup.toml").write_text(text, encoding="utf-8")
+    # the proposed resistor is left for the user to confirm: the setup is refused until then
+    with pytest.raises(SetupError, match="sense_resistor"):
+        load_setup(tmp_path / "setup.toml")
+    proposed = found.estimates["proposed_sense_resistor"]
+    line = next(ln for ln in text.splitlines() if ln.startswith("sense_resistor = "))
+    assert "EDIT" in line and f"{proposed:g} ohm proposed" in line and "10 ohm ±0.1% if kept" in line
+    (tmp_path / "setup.toml").write_text(text.replace(line, f'sense_resistor = "{proposed:g} ohm ±0.1%"'),
+                                         encoding="utf-8")
     setup = load_setup(tmp_path / "setup.toml")
     r_sense = setup.parts["sense_resistor"].value
     tau = loop_tau(r_sense)                       # the netlist's tau with the proposed resistor

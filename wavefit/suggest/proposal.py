@@ -192,11 +192,15 @@ def _sense_part(rs: PartValue | None, factor: float, loop: float | None, estimat
     if factor == 1:
         return {"sense_resistor": rs.text}, factor
     value = nearest_e12(factor * rs.value)
-    relative = rs.relative_uncertainty
-    text = f"{value:g} ohm" + (f" u={100 * relative:.3g}%" if relative > 0 else "")
-    why.append(f"proposed sense resistor {eng(value, 'Ω')} (E12), written with the present resistor's "
-               "relative uncertainty: write your resistor's own tolerance")
-    return {"sense_resistor": text}, value / rs.value
+    estimates["proposed_sense_resistor"] = value
+    why.append(f"proposed sense resistor {eng(value, 'Ω')} (E12): fit it for the next capture and write it, with "
+               "its own tolerance, in [parts]; a setup that named it beside a capture made with the present "
+               "resistor read L that many times off, with nothing to show it")
+    # the entry stays to be edited: which resistor the next capture is made with is the user's
+    # to say (written as the proposal, the setup was used on the first capture, 10 Ω, and read
+    # L 6.5 times too small, exit 0)
+    return {"sense_resistor": f"{EDIT}the sense resistor of the next capture, value and tolerance "
+                              f"(about {value:g} ohm proposed; {rs.text} if kept)"}, value / rs.value
 
 
 def _step_scales(step: StepRecord, factor: float, loop: float | None, bits: int) -> tuple[ScaleAdvice, ...]:
