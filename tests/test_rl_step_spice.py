@@ -66,6 +66,9 @@ def test_inductance_and_resistance_against_ngspice(case, two_channel):
     assert abs(L.value / ind - 1) < 0.01, (L.value, ind)
     assert abs(L.value - ind) <= L.expanded_uncertainty, (L.value, L.expanded_uncertainty, ind)
     assert abs(R.value - dcr) <= R.expanded_uncertainty, (R.value, R.expanded_uncertainty, dcr)
+    if two_channel:  # the generator's output resistance, measured (the netlist's Rsrc)
+        source = result.quantities["R_source"]
+        assert abs(source.value - CASES[case][3]) <= source.expanded_uncertainty, (source.value, source.expanded_uncertainty)
     assert result.fit.edges_fitted >= 4  # every complete rising and falling edge of 2.4 periods
 
 
@@ -86,7 +89,7 @@ def test_cli_json_contract(tmp_path):
         code = main(["analyze", str(csv), "--setup", str(setup), "--json"])
     assert code == 0
     data = json.loads(out.getvalue())
-    assert set(data["quantities"]) == {"L", "R", "tau", "R_loop", "I_final", "E"}
+    assert set(data["quantities"]) == {"L", "R", "tau", "R_loop", "I_final", "E", "R_source"}
     assert data["quantities"]["L"]["unit"] == "H"
     assert abs(data["quantities"]["L"]["value"] / 1e-3 - 1) < 0.01
     for line in data["budget"]["L"]:

@@ -141,7 +141,7 @@ class RLStep(Method):
     options = {"skip": "auto", "noise": "auto"}
     channel_ratio_roles = ("sense", "drive")
     outputs = {"L": Scalar("H"), "R": Scalar("ohm"), "tau": Scalar("s"), "R_loop": Scalar("ohm"),
-               "I_final": Scalar("A"), "E": Scalar("J")}
+               "I_final": Scalar("A"), "E": Scalar("J"), "R_source": Scalar("ohm")}
     positive = ("L", "tau", "R_loop")
     not_negative = ("R",)
     determined = ("L", "tau")
@@ -529,7 +529,7 @@ def measurement_function(x: Mapping[str, Any], has_drive: bool, parts: frozenset
     else:
         inductance = tau * (r_dut + w)
     return {"L": inductance, "R": r_dut, "tau": tau, "R_loop": r_src + r_dut + r_s,
-            "I_final": current, "E": inductance * current ** 2 / 2}
+            "I_final": current, "E": inductance * current ** 2 / 2, "R_source": r_src}
 
 
 def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
