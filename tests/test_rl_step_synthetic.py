@@ -195,6 +195,20 @@ def test_drive_held_at_the_converter_limit(screen, refused):
     assert any("edge window(s) left out" in w for w in result.warnings) == (screen[1] < 0.2)
 
 
+def test_a_refusal_names_the_clipping_the_analysis_warned_of():
+    # a sense screen topping out at a quarter of the step, with a drive channel: the rising
+    # windows are left out as clipped and L is not determined; the refusal asked "is the record
+    # long enough?" with the clipping unsaid. It now carries the analysis's first warning
+    t, d, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 18 * TAU, TAU / 100, 80 * TAU, delay=9 * TAU)
+    rng = np.random.default_rng(4)
+    sense = ScopeModel(noise_rms=1e-3 * s.max(), bits=8, full_scale=(-0.1 * s.max(), 0.25 * s.max())).apply(s, rng)
+    drive = ScopeModel(noise_rms=3e-3, bits=8, full_scale=(-0.9, 1.1)).apply(d, rng)
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense", "drive": "drive"},
+             "parts": {"sense_resistor": "10 ohm"}}
+    with pytest.raises(AnalysisRefused, match="does not determine it.*the analysis had warned.*left out: clipped"):
+        wavefit.analyze(frame(t, sense, drive), setup)
+
+
 @pytest.mark.parametrize("half_period_tau, seed, outcome", [
     (1.0, 1, "no edge is followed by 1.25 tau of record"),
     (1.0, 4, "the capture does not determine it"),

@@ -227,6 +227,10 @@ class Method:
             Naming the quantity, its value and :attr:`unphysical_hint`.
         """
         source = result.source if isinstance(result.source, str) else ", ".join(result.source)
+        # the analysis's own first warning, often the cause (a clipped trace was refused as "is
+        # the record long enough?" with the clipping unsaid)
+        more = f" (and {len(result.warnings) - 1} more)" if len(result.warnings) > 1 else ""
+        warned = f"; the analysis had warned{more}: {result.warnings[0]}" if result.warnings else ""
         points = [(name, q.value, q.expanded_uncertainty, q.unit) for name, q in result.quantities.items()]
         points += [(name, float(v), float(u), c.unit) for name, c in result.curves.items()
                    for v, u in zip(c.values, c.expanded_uncertainty)]
@@ -239,10 +243,10 @@ class Method:
                         else "is not positive")
                 raise AnalysisRefused(
                     f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}, which "
-                    f"{what}: no measurement of a real part; {self.unphysical_hint}")
+                    f"{what}: no measurement of a real part; {self.unphysical_hint}{warned}")
             if name in self.determined and expanded >= abs(value):
                 raise AnalysisRefused(f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}: "
-                                      f"{self._undetermined_cause(result, name)}")
+                                      f"{self._undetermined_cause(result, name)}{warned}")
 
     def _undetermined_cause(self, result: AnalysisResult, name: str) -> str:
         """Why a quantity is not determined and what to check: the input given by the setup

@@ -254,9 +254,19 @@ class RLStep(Method):
             raise AnalysisRefused(f"{capture.source}: the record starts at the edge, so there is no settled "
                                   "pre-edge level to pin the offset; record some time before the step")
 
-        choice = estimate_tau(t, sense, drive is not None, white, self.option(setup, "skip") == "auto",
-                              "winding_capacitance" in setup.parts, edges, windows, fits, baseline, noise,
-                              self._fit_window, sense_rms)
+        try:
+            choice = estimate_tau(t, sense, drive is not None, white, self.option(setup, "skip") == "auto",
+                                  "winding_capacitance" in setup.parts, edges, windows, fits, baseline, noise,
+                                  self._fit_window, sense_rms)
+        except AnalysisRefused as exc:
+            if not left_out:
+                raise
+            # the windows left out as clipped are the cause (a sense screen topping out below the
+            # high level was refused as "record a pre-edge baseline or a full period")
+            raise AnalysisRefused(
+                f"{capture.source}: {left_out} edge window(s) were left out, clipped at a converter limit where they "
+                "would be fitted, and the windows left do not measure the step between the two states; set the volts "
+                "per division and offset so that the whole step stays on screen") from None
         combined, estimator = choice.combined, choice.estimator
         notes += choice.notes
         notes.append(f"tau and levels from the {estimator}")
