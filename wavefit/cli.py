@@ -288,7 +288,12 @@ def _inspect(args: argparse.Namespace) -> int:
 
     lines = [f"{info['source']}: {info['rows']} rows, sample interval {eng(info['sample_interval_s'], 's')}"
              f", time from {info['time_column'] or 'sample interval'}"]
-    lines += [f"  {col['header']!r:<24} unit {col['unit'] or '-':<4} min {col['min']!s:<14} max {col['max']!s}"
+    def shown(value: object) -> str:
+        """A column's extreme as printed: seven significant digits (-1.587109, not the float's
+        -1.5871089999999999), the full value stays in the JSON."""
+        return f"{value:.7g}" if isinstance(value, float) else str(value)
+
+    lines += [f"  {col['header']!r:<24} unit {col['unit'] or '-':<4} min {shown(col['min']):<14} max {shown(col['max'])}"
               for col in info["columns"]]
     lines += [f"  {col['header']!r:<24} left out (see below)" for col in info["left_out"]]
     lines += [f"  meta {key}: {value}" for key, value in info["metadata"].items()]
