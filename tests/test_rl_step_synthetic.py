@@ -440,3 +440,17 @@ def test_a_quiet_level_on_the_extreme_code_is_not_taken_for_off_screen(noise, qu
     assert np.unique(traces[0][:400]).size == 1 and traces[0][0] == traces[0].min()  # the case meant
     q = wavefit.analyze(frame(t, traces[0], traces[1]), setup).quantities["L"]
     assert abs(q.value - L) <= q.expanded_uncertainty
+
+
+def test_a_slow_sample_rate_is_not_blamed_on_the_generator():
+    # at 1.2–6 samples per tau the drive's jump spans the one interval it falls in, and "tau is
+    # comparable to the generator's edge time (3e-07 s)" blamed a 5 ns generator edge for the
+    # 300 ns sample interval; the samples-per-tau warning names the cause
+    t, d, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 40 * TAU, TAU / 2.5, 200 * TAU, delay=5 * TAU)
+    rng = np.random.default_rng(2)
+    setup = {"method": "rl-step", "columns": {"time": "time", "sense": "sense", "drive": "drive"},
+             "parts": {"sense_resistor": "10 ohm"}}
+    result = wavefit.analyze(frame(t, s + 2e-4 * rng.standard_normal(s.size),
+                                   d + 1e-3 * rng.standard_normal(d.size)), setup)
+    assert any("samples per tau" in w for w in result.warnings)
+    assert not any("generator's edge time" in w for w in result.warnings)

@@ -76,6 +76,10 @@ LEAST_TAU_AFTER_EDGE = 2.0
 LEAST_FITTED_TAU_AFTER_EDGE = 1.25
 #: The generator's edge time above this fraction of tau makes the step visibly not ideal.
 EDGE_TIME_FRACTION = 0.1
+#: An edge time of at most this many sample intervals is the sampling's, not the generator's:
+#: a step between two samples reads as one interval (at 1.2 samples per tau the warning blamed
+#: a 5 ns generator edge for a 300 ns sample interval).
+UNRESOLVED_EDGE_SAMPLES = 2.0
 #: The probe capacitance's pole (R_sense·C_probe) above this fraction of tau makes the
 #: first-order correction of the measurement function doubtful (its neglected term is the square).
 PROBE_POLE_FRACTION = 0.05
@@ -456,7 +460,7 @@ class RLStep(Method):
         elif short:
             out.append(f"{len(short)} of {len(windows)} edges are followed by less than {SETTLED_TAU:g} tau of "
                        "record; the final level is extrapolated (lengthen the period or the record)")
-        if edge_time > EDGE_TIME_FRACTION * tau:
+        if edge_time > EDGE_TIME_FRACTION * tau and edge_time > UNRESOLVED_EDGE_SAMPLES * dt:
             out.append(f"tau ({tau:.3g} s) is comparable to the generator's edge time ({edge_time:.3g} s); "
                        "use a faster generator or a larger inductance")
         if drive is not None and setup.calibration.channels is None and UNDESKEWED_DELAY / tau > SKEW_WARNING:
