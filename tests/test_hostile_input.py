@@ -153,6 +153,21 @@ def test_a_ring_given_to_rl_step_is_not_reported(tmp_path: Path) -> None:
         wavefit.analyze(path, {**SENSE_ONLY, "columns": {"sense": "sense"}})
 
 
+def test_a_refusal_for_the_wrong_method_names_the_method_the_record_looks_like(tmp_path: Path) -> None:
+    # a ring given to rl-step was refused as "no transition found ... check the trigger", a step
+    # response given to lc-ring as "no damped oscillation ... the ring is probably clipped"
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=0.5)
+    t, v = ringdown(tank, 2e-8, 20000, pre_trigger=400)  # rung down to its final level
+    v = v + np.random.default_rng(6).normal(0, 1e-3, v.size)
+    with pytest.raises(wavefit.AnalysisRefused, match='looks like a ring: method = "lc-ring"'):
+        wavefit.analyze(_write(tmp_path / "ring.csv", t, v, v), {**SENSE_ONLY, "columns": {"sense": "sense"}})
+    t, drive, sense = _record(seed=8)
+    step = _write(tmp_path / "step.csv", t, drive, sense)
+    lc_ring = {"method": "lc-ring", "columns": {"tank": "sense"}, "parts": {"tank_capacitor": "10 nF"}}
+    with pytest.raises(wavefit.AnalysisRefused, match='looks like a step response: method = "rl-step"'):
+        wavefit.analyze(step, lc_ring)
+
+
 def test_sample_interval_that_contradicts_the_time_column_is_refused(tmp_path: Path) -> None:
     t, drive, sense = _record(seed=7)
     path = _write(tmp_path / "c.csv", t, drive, sense)

@@ -8,11 +8,12 @@ from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from typing import Any, Mapping, Sequence
 
+import numpy as np
 import pandas as pd
 
 from .blas_threads import one_blas_thread
 from .capture_checks import refuse_shared_columns, without_glitches
-from .errors import AnalysisRefused, CaptureError, SetupError
+from .errors import AnalysisRefused, CaptureError, NothingToMeasure, SetupError, WavefitError
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
 from .measurement import Measurement, bind, capture_sources
@@ -54,7 +55,7 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         raise SetupError(f"uncertainty must be one of {', '.join(UNCERTAINTY_MODES)}, got {uncertainty!r}")
     prepared = prepare(source, load_setup(setup), sample_interval)
     with refusals_with_the_capture(prepared.captures), collected() as numerical, \
-            numerical_failures_refused(prepared.captures):
+            numerical_failures_refused(prepared.captures), other_method_named(prepared.captures, prepared.method.name):
         result = prepared.method.analyze(prepared.measurement, prepared.setup)
     remark = numerical.remark()
     if remark is not None:
@@ -222,6 +223,30 @@ def with_time_axis_uncertainty(setup: Setup, captures: Sequence[Capture]) -> Set
     combined = math.hypot(figure.standard_uncertainty, u_axis)
     text = f"{figure.text} with the rebuilt time axis (u = {u_axis:.2g})"
     return replace(setup, timebase=RelativeFigure(combined, text, 1.0))
+
+
+@contextmanager
+def other_method_named(captures: Sequence[Capture], method: str) -> Iterator[None]:
+    """A refusal for a record without what the method measures names the method the record
+    looks like, when another (lc-ring given a step response was refused as "no damped
+    oscillation ... the ring is probably clipped", rl-step given a ring as "no transition
+    found"): by the tests of ``wavefit suggest``, a step first, then a ring."""
+    try:
+        yield
+    except NothingToMeasure as exc:
+        from .suggest.ring_record import find_ring_record
+        from .suggest.step_record import search_step
+
+        for capture in captures:
+            try:
+                shown = ("a step response", "rl-step") if search_step(capture)[0] is not None else \
+                    ("a ring", "lc-ring") if find_ring_record(capture) is not None else None
+            except (WavefitError, ValueError, ArithmeticError, np.linalg.LinAlgError):
+                shown = None
+            if shown is not None and shown[1] != method:
+                raise AnalysisRefused(f"{exc}; {capture.source} looks like {shown[0]}: method = \"{shown[1]}\"? "
+                                      "(wavefit suggest proposes a setup)") from None
+        raise
 
 
 @contextmanager

@@ -37,6 +37,12 @@ class AnalysisRefused(WavefitError):
     exit_code = 4
 
 
+class NothingToMeasure(AnalysisRefused):
+    """The record does not hold what the method measures (no step for rl-step, no ring for
+    lc-ring, or a result no real part gives): the front door names the method the record
+    looks like, when another."""
+
+
 class OutputError(WavefitError):
     """An output file (a plot, a calibration file) could not be written; what was written
     before, and the file it would have replaced, are kept."""

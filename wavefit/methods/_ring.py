@@ -16,7 +16,7 @@ from typing import Any, Mapping
 import numpy as np
 from scipy import ndimage
 
-from ..errors import AnalysisRefused, SetupError
+from ..errors import AnalysisRefused, NothingToMeasure, SetupError
 from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring
 from ..io.capture import Capture
 from ..setup import Setup
@@ -203,7 +203,7 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
         clipped_hint = (f"; the record is held at its extreme value for {held} samples in a row: the ring is "
                         "probably clipped (set the vertical scale so the whole ring fits on screen)"
                         if held >= CLIPPED_RUN and not at_rest else "")
-        raise AnalysisRefused(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
+        raise NothingToMeasure(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
                               f"check the [columns] tank entry and that the record holds the ring{clipped_hint}"
                               ) from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
@@ -276,13 +276,13 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, clipped: bool, so
     window = ("check fit_start and fit_end: the window they set may hold little of the ring" if window_given
               else "or the automatic window missed the ring: set fit_start (and fit_end) around it")
     if not amp > MIN_AMPLITUDE_TO_NOISE * sigma:
-        raise AnalysisRefused(f"{source}: the ring's amplitude in the fitted window is {amp / sigma:.1f} times the "
+        raise NothingToMeasure(f"{source}: the ring's amplitude in the fitted window is {amp / sigma:.1f} times the "
                               f"noise rms; no trustworthy fit below {MIN_AMPLITUDE_TO_NOISE:g} (raise the excitation "
                               f"or average captures; {window})")
     n_visible = math.log(amp / (2.0 * sigma)) / (ring.alpha * dt) if ring.alpha > 0 else math.inf
     visible = min(n_visible, ring.stop - ring.start) / spp
     if visible < MIN_CYCLES:
-        raise AnalysisRefused(f"{source}: only {visible:.1f} cycles stand above the noise; a ring fit needs "
+        raise NothingToMeasure(f"{source}: only {visible:.1f} cycles stand above the noise; a ring fit needs "
                               f"at least {FEW_CYCLES:g} (use a smaller feed-resistor load or less damping; {window})")
     if visible < FEW_CYCLES:
         warnings.append(f"too few cycles: {visible:.1f} stand above the noise ({FEW_CYCLES:g} or more are needed "

@@ -17,7 +17,7 @@ from typing import Any, ClassVar, Mapping
 from ..calibration.in_use import ChannelCalibration, channel_calibration, check_channel_mapping
 from ..calibration.substitution import with_reference
 from ..curve_propagation import propagate_curves
-from ..errors import AnalysisRefused, SetupError
+from ..errors import AnalysisRefused, NothingToMeasure, SetupError
 from ..io.capture import Capture, Channel
 from ..measurement import CaptureCount, Measurement, takes_entries
 from ..outputs import Curve, Output, scalar_names
@@ -241,7 +241,7 @@ class Method:
                 what = ("is not a finite number" if not finite
                         else f"is below zero by more than {NEGATIVE_BEYOND:g} times its uncertainty" if below
                         else "is not positive")
-                raise AnalysisRefused(
+                raise NothingToMeasure(
                     f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}, which "
                     f"{what}: no measurement of a real part; {self.unphysical_hint}{warned}")
             if name in self.determined and expanded >= abs(value):

@@ -26,7 +26,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from ..calibration.in_use import RATIO_INPUT, SKEW_INPUT
-from ..errors import AnalysisRefused, SetupError
+from ..errors import AnalysisRefused, NothingToMeasure, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
 from ..fit.noise_model import fit_ar
@@ -202,7 +202,7 @@ class RLStep(Method):
         sense_rms = noise_rms(sense)  # for the edges and the whole-record fit's reach
         edges = find_edges(t, sense, sense_levels, rms=sense_rms)
         if not edges:
-            raise AnalysisRefused(f"{capture.source}: no transition found in the sense channel (its two "
+            raise NothingToMeasure(f"{capture.source}: no transition found in the sense channel (its two "
                                   "state levels are not separated from the noise); check the trigger and the "
                                   "column mapping")
         check_wiring(t, sense, drive, edges, capture.source, sense_levels)
