@@ -159,8 +159,10 @@ def _step_suggestion(capture: Capture, step: StepRecord, rs: PartValue | None, b
                f"{SAMPLES_PER_TAU:g}")
     why.append(f"next capture: tau about {eng(tau_next, 's')} (planned for ±{100 * (TAU_MARGIN - 1):.0f} %); "
                f"period {eng(period, 's')} (half period {0.5 * period / tau_next:.3g} tau), "
-               f"sample interval {eng(interval, 's')} ({tau_next / interval:.3g} samples per tau), record {eng(record, 's')} "
-               f"({RECORD_PERIODS:g} periods, {next_capture['samples']:.0f} samples)")
+               f"sample interval {eng(interval, 's')} or finer ({tau_next / interval:.3g} samples per tau at most "
+               f"that), record {eng(record, 's')} or longer ({RECORD_PERIODS:g} periods, {next_capture['samples']:.0f} "
+               "samples at that interval; a finer interval over the same time only lowers the uncertainty: keep the "
+               "scope's longest record length)")
     scales = _step_scales(step, applied, loop, bits)
     why += [_scale_line(s) for s in scales]
     setup = {"method": "rl-step", "columns": columns, "parts": parts}
@@ -255,8 +257,8 @@ def _ring_suggestion(capture: Capture, ring: RingRecord, bits: int) -> Suggestio
            f"f0 = {eng(ring.f0, 'Hz')}, decay time 1/alpha = {eng(decay_time, 's')}, Q as recorded "
            f"{ring.quality_factor:.3g}",
            f"the present record holds {period / capture.sample_interval:.3g} samples per period; "
-           f"next capture: sample interval {eng(interval, 's')} ({period / interval:.3g} samples per period, "
-           f"at least {RING_SAMPLES_PER_PERIOD:g}), record {eng(record, 's')} after the excitation "
+           f"next capture: sample interval {eng(interval, 's')} or finer ({period / interval:.3g} samples per period, "
+           f"at least {RING_SAMPLES_PER_PERIOD:g}), record {eng(record, 's')} or longer after the excitation "
            f"(at least {RING_RECORD_DECAYS:.2g} decay times: the envelope falls to 1 %)"]
     y = np.asarray(ring.channel.values, dtype=float)
     offset = float(ring.ring.fit["offset"])
