@@ -454,3 +454,14 @@ def test_a_slow_sample_rate_is_not_blamed_on_the_generator():
                                    d + 1e-3 * rng.standard_normal(d.size)), setup)
     assert any("samples per tau" in w for w in result.warnings)
     assert not any("generator's edge time" in w for w in result.warnings)
+
+
+def test_windows_fitted_in_two_ways_on_codes_get_one_warning():
+    # some windows by the likelihood of their codes, one by least squares with the estimate:
+    # two "resolution-limited" warnings, one saying each, read as contradicting each other
+    from wavefit.fit.quantisation import CODE_FIT_WARNING, WARNING
+    from wavefit.methods.rl_step import _record_wide
+
+    assert _record_wide([CODE_FIT_WARNING] * 3, 3) == [CODE_FIT_WARNING]
+    merged = _record_wide([CODE_FIT_WARNING, CODE_FIT_WARNING, WARNING, CODE_FIT_WARNING], 4)
+    assert len(merged) == 1 and "3 of 4 edge windows were fitted by the likelihood of their codes" in merged[0]
