@@ -465,3 +465,14 @@ def test_windows_fitted_in_two_ways_on_codes_get_one_warning():
     assert _record_wide([CODE_FIT_WARNING] * 3, 3) == [CODE_FIT_WARNING]
     merged = _record_wide([CODE_FIT_WARNING, CODE_FIT_WARNING, WARNING, CODE_FIT_WARNING], 4)
     assert len(merged) == 1 and "3 of 4 edge windows were fitted by the likelihood of their codes" in merged[0]
+
+
+@pytest.mark.parametrize("samples_per_tau, snr, warned", [(2000, 500, False), (40, 6, True)])
+def test_low_snr_placement_is_warned_only_where_it_costs_tau(samples_per_tau, snr, warned):
+    # edges placed from a correlated sense trace to 2.7 samples on a 122,000-sample record with a
+    # step 500 times its noise lose 0.5 % of tau's information to the later starts, and were
+    # warned of "a low signal-to-noise ratio"; at 6:1 and 40 samples per tau they lose 22 %
+    t, _, s = rl_square_wave(L, DCR, RS, RSRC, 1.0, 20 * TAU, TAU / samples_per_tau, 61 * TAU, delay=5 * TAU)
+    sense = ScopeModel(noise_rms=float(np.ptp(s)) / snr, correlation_samples=8).apply(s, np.random.default_rng(3))
+    result = wavefit.analyze(frame(t, sense), SENSE_ONLY)
+    assert any("low signal-to-noise ratio" in w for w in result.warnings) == warned
