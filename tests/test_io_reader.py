@@ -107,6 +107,16 @@ def test_a_unitless_time_column_that_contradicts_the_preamble_is_refused(tmp_pat
     assert "has no unit" in message and "give the column its unit" in message and named in message
 
 
+def test_coarse_stamps_that_the_preamble_confirms_are_a_note(tmp_path: Path) -> None:
+    # stamps printed to four digits of 3.3e-4 s at 10 ns: the preamble's interval agrees and is
+    # used; nothing is wrong with the file, but it was said as a warning
+    time = 3.3e-4 + np.arange(N) * DT
+    lines = ["Sample interval,1e-8", "Time (s),CH1 (V)", *[f"{a:.3e},{v:.6f}" for a, v in zip(time, _signal())]]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.sample_interval == 1e-8 and capture.warnings == ()
+    assert any("printed too coarsely" in n and "agrees with it and is used" in n for n in capture.notes)
+
+
 def test_agreeing_preamble_gives_no_warning(tmp_path: Path) -> None:
     lines = ["Sample rate,100 MSa/s", "Time (s),CH1 (V)", *_rows(np.arange(N) * DT, _signal())]
     assert read_capture(_write(tmp_path, lines)).warnings == ()

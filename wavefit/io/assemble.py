@@ -466,13 +466,13 @@ def _column_axis(
         return axis, header
     if axis.relative_uncertainty > 0.0:
         # the stated interval is exact where the rebuilt one carries the rounding's uncertainty
+        # (a note: nothing is wrong with the file, and the interval used is the stated one)
         first = float(axis.time[0])
-        warnings.append(
-            f"time column {header!r} is printed too coarsely to give the interval to better than "
-            f"{axis.relative_uncertainty:.1e} relative; the preamble's sample interval "
-            f"{hint.sample_interval:.6g} s ({hint.interval_line}) agrees with it and is used"
-        )
-        return TimeAxis(axis_from_interval(column.size, hint.sample_interval, first), hint.sample_interval), header
+        note = (f"time column {header!r} is printed too coarsely to give the interval to better than "
+                f"{axis.relative_uncertainty:.1e} relative; the preamble's sample interval "
+                f"{hint.sample_interval:.6g} s ({hint.interval_line}) agrees with it and is used")
+        return TimeAxis(axis_from_interval(column.size, hint.sample_interval, first), hint.sample_interval,
+                        notes=(note,)), header
     return axis, header
 
 
