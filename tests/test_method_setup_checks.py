@@ -55,6 +55,9 @@ def test_a_complete_setup_passes():
     ({"parts": {"sense_resistor": "10 ohm", "tank_capacitor": "472"}}, "'472' is 472 F, far above any tank"),
     ({"parts": {"sense_resistor": "10 ohm", "tank_capacitor": "4.7 MF"}}, "is 4.7e+06 F, far above"),
     ({"parts": {"sense_resistor": "10 ohm", "tank_capacitor": "0.47"}}, "a plain number is in farads"),
+    # with its unit written the prefix is the slip ("10 mF" was told a plain number is in farads)
+    ({"parts": {"sense_resistor": "10 ohm", "tank_capacitor": "10 mF"}}, "far above any tank, probe or winding "
+                                                                         "capacitance: check its prefix"),
 ])
 def test_unknown_or_wrong_keys_list_the_valid_ones(changes, phrase):
     with pytest.raises(SetupError) as err:

@@ -191,10 +191,13 @@ class Method:
         if part.value <= 0:
             raise SetupError(f"{setup.source}: part {part_name!r} must be positive, got {part.text!r}")
         if expected == "F" and part.value >= MAX_CAPACITANCE:
-            raise SetupError(
-                f"{setup.source}: part {part_name!r} = {part.text!r} is {part.value:.3g} F, far above any tank, probe "
-                "or winding capacitance: a plain number is in farads (a three-digit code such as 472 for 4.7 nF is not "
-                "read); write the value with its unit, e.g. \"4.7 nF ±5%\"")
+            # with a unit written the prefix is the likely slip ("10 mF" was told that a plain
+            # number is in farads)
+            why = ("check its prefix (p, n, u or µ for the usual tank and stray capacitances)" if part.unit else
+                   "a plain number is in farads (a three-digit code such as 472 for 4.7 nF is not read); write the "
+                   "value with its unit, e.g. \"4.7 nF ±5%\"")
+            raise SetupError(f"{setup.source}: part {part_name!r} = {part.text!r} is {part.value:.3g} F, far above any "
+                             f"tank, probe or winding capacitance: {why}")
 
     @staticmethod
     def _part_in_captures(setup: Setup, part_name: str) -> bool:
