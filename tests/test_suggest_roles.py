@@ -51,3 +51,19 @@ def test_steps_faster_than_the_sampling_ask_for_faster_sampling():
     # as "neither a step nor a ring: check the probes, the trigger and the generator"
     with pytest.raises(AnalysisRefused, match="sample at least ten times faster"):
         suggest(capture_from_frame(first_capture(1.5 * TAU)))
+
+
+@pytest.mark.parametrize("top", [0.6, 0.25])
+def test_a_clipped_sense_is_named_in_the_refusal(top):
+    # a sense screen topping out below the step's high level: refused as "neither a step nor a
+    # ring ... check the probes, the trigger and the generator", the clipping unsaid
+    ind, dcr, r_sense, r_source = 1e-3, 2.0, 10.0, 50.0
+    tau = ind / (dcr + r_sense + r_source)
+    t, d, s = rl_square_wave(ind, dcr, r_sense, r_source, 1.0, 18 * tau, tau / 100, 80 * tau, delay=9 * tau)
+    rng = np.random.default_rng(4)
+    sense = ScopeModel(noise_rms=1e-3 * s.max(), bits=8, full_scale=(-0.1 * s.max(), top * s.max())).apply(s, rng)
+    drive = ScopeModel(noise_rms=3e-3, bits=8, full_scale=(-0.9, 1.1)).apply(d, rng)
+    frame = pd.DataFrame({"Time (s)": t, "CH1 (V)": drive, "CH2 (V)": sense})
+    with pytest.raises(AnalysisRefused, match=r"'CH2 \(V\)' sits at its highest value for \d+ samples in a row: if "
+                                              "that is the edge of the screen the trace is clipped"):
+        suggest(capture_from_frame(frame))

@@ -18,6 +18,7 @@ import numpy as np
 from ..blas_threads import one_blas_thread
 from ..errors import AnalysisRefused
 from ..io import Capture
+from ..signal.clipping import longest_run_at_extremes
 from ..values import PartValue, eng
 from .ring_record import RingRecord, find_ring_record
 from .rules import (HALF_PERIOD_TAUS, K_HIGH, K_LOW, K_TARGET, RECORD_PERIODS, RING_RECORD_DECAYS,
@@ -88,10 +89,37 @@ def suggest(capture: Capture, sense_resistor: PartValue | None = None, bits: int
     ring = find_ring_record(capture)
     if ring is not None:
         return _ring_suggestion(capture, ring, bits)
+    held = _held_at_an_extreme(capture)
     if why is not None:
-        raise AnalysisRefused(f"{capture.source}: {why}, then capture again")
+        raise AnalysisRefused(f"{capture.source}: {why}, then capture again{held}")
     raise AnalysisRefused(f"{capture.source}: the record shows neither a step nor a ring (or too much noise "
-                          "to tell); check the probes, the trigger and the generator, then capture again")
+                          f"to tell); check the probes, the trigger and the generator, then capture again{held}")
+
+
+#: Samples in a row at a channel's highest or lowest value that a refusal names as possible
+#: clipping (the ring method's test of clipped runs, wavefit.methods._ring.CLIPPED_RUN): a
+#: clipped sense was refused as "neither a step nor a ring", a clipped ring as "steps, but does
+#: not settle", with the clipping unsaid.
+HELD_RUN = 5
+
+
+def _held_at_an_extreme(capture: Capture) -> str:
+    """A clause naming each channel held at its highest or lowest value for :data:`HELD_RUN`
+    samples or more in a row ('' when none is): clipping, when that value is the screen's edge
+    (a quiet settled level on one converter code looks the same, hence the "if")."""
+    held = []
+    for channel in capture.channels:
+        y = np.asarray(channel.values, dtype=float)
+        if y.size == 0 or not np.all(np.isfinite(y)) or np.ptp(y) == 0:
+            continue
+        lowest, highest = longest_run_at_extremes(y)
+        run, side = max((lowest, "lowest"), (highest, "highest"))
+        if run >= HELD_RUN:
+            held.append(f"{channel.header!r} sits at its {side} value for {run} samples in a row")
+    if not held:
+        return ""
+    return (f"; {', '.join(held)}: if that is the edge of the screen the trace is clipped (set the volts per "
+            "division and offset so that the whole waveform fits on screen)")
 
 
 def _time_column(capture: Capture) -> dict[str, str]:
