@@ -20,7 +20,7 @@ from ..fit.white_projection import white_window_tau
 from ..signal.clipping import clipped_where_fitted, leading_held
 from ..signal.edge_lattice import periodic_instants
 from ..signal.edges import Edge, placement_deviation
-from ._rl_transient import edge_transient
+from ._rl_transient import Transient, edge_transient
 
 @dataclass(frozen=True)
 class Window:
@@ -199,8 +199,9 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
     amplitude, and so L, while tau hardly moves).
 
     Returns the windows, their fits, how many windows start later by the test, the fitted
-    period (None when the lattice was not used), and the samples left out after a transient
-    with its channel ((0, None) when none was found).
+    period (None when the lattice was not used), and the transient found
+    (:class:`~wavefit.methods._rl_transient.Transient`) with the count of windows started after
+    it.
     """
     dt = float(t[1] - t[0])
     windows, fits = list(windows), list(fits)
@@ -231,12 +232,14 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
                 fits[k] = fit_window(t, sense, drive, windows[k], noise, source)
             else:
                 windows[k] = dataclasses.replace(w, t0_deviation=deviations[k])
-    transient = (0, None) if drive is None else edge_transient(windows, fits, ("sense", "drive"), dt)
-    if transient[0]:
+    transient = Transient() if drive is None else edge_transient(windows, fits, ("sense", "drive"), dt)
+    moved_after_transient = 0
+    if transient.samples:
         for k, w in enumerate(windows):
-            if w.stop - (w.start + transient[0]) >= MIN_WINDOW_SAMPLES:
-                windows[k] = dataclasses.replace(w, start=w.start + transient[0])
+            if w.stop - (w.start + transient.samples) >= MIN_WINDOW_SAMPLES:
+                windows[k] = dataclasses.replace(w, start=w.start + transient.samples)
                 fits[k] = fit_window(t, sense, drive, windows[k], noise, source)
+                moved_after_transient += 1
     out_w, out_f, late = [], [], 0
     for w, f in zip(windows, fits):
         step = max(4, int(math.ceil(0.1 * f["tau"] / dt)))
@@ -258,7 +261,7 @@ def settle_starts(t, sense, drive, windows, fits, baseline, noise, source, fit_w
         late += moved
         out_w.append(w)
         out_f.append(f)
-    return out_w, out_f, late, period, transient
+    return out_w, out_f, late, period, (transient, moved_after_transient)
 
 
 #: The later start of :func:`settle_starts` is refitted only when tau projected onto it moves

@@ -45,6 +45,7 @@ from ..signal.levels import state_levels
 from . import register
 from ._model_check import ModelCheck, Variation, added
 from ._rl_estimators import estimate_tau
+from ._rl_transient import LONGEST_SHARE_OF_TAU
 from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, MIN_WINDOW_SAMPLES, LateStart, Window,
                           after_held_starts, late_start, off_screen_baseline, placement_factor, placement_jitter,
                           settle_starts, start_margin)
@@ -245,10 +246,16 @@ class RLStep(Method):
             windows, fits, late, period, transient = settle_starts(t, sense, drive, windows, fits, baseline, noise,
                                                             capture.source, self._fit_window,
                                                             correlated=not white)
-            if transient[0]:
-                notes.append(f"every edge window starts {transient[0]} samples ({transient[0] * dt:.3g} s) later: "
-                             f"the {transient[1]} channel's first samples after each edge stand above its noise "
-                             "(a probe's ringing, a long ground lead, generator overshoot?)")
+            transient, moved = transient
+            if moved:
+                notes.append(f"{moved} of {len(windows)} edge windows start {transient.samples} samples "
+                             f"({transient.samples * dt:.3g} s) later: the {transient.channel} channel's first samples "
+                             "after each edge stand above its noise (a probe's ringing, a long ground lead, generator "
+                             "overshoot?)")
+            if transient.too_long:
+                notes.append(f"the residuals stand above the noise for {transient.too_long} samples after each edge, "
+                             f"longer than {LONGEST_SHARE_OF_TAU:g} tau: a misfit of the model rather than a transient of "
+                             "the edge; the windows are kept and the model check weighs it")
             if period is not None:
                 notes.append(f"switching instants fitted to the drive's period ({period:.6g} s) over "
                              f"{len(windows)} edges: each is placed from all of them")
