@@ -168,6 +168,20 @@ def test_a_refusal_for_the_wrong_method_names_the_method_the_record_looks_like(t
         wavefit.analyze(step, lc_ring)
 
 
+def test_noise_refused_by_rl_step_is_not_named_a_ring() -> None:
+    # a review found 1 of 10 records of pure noise told "looks like a ring" (a fitted "ring" of
+    # Q 0.94): a ring is named only at Q 2 or more (wavefit.suggest.rules.HINTED_Q)
+    import pandas as pd
+
+    setup = {**SENSE_ONLY, "columns": {"time": "t", "sense": "sense"}}
+    for seed in range(10):
+        rng = np.random.default_rng(seed)
+        frame = pd.DataFrame({"t": np.arange(2000) * 1e-8, "sense": rng.standard_normal(2000)})
+        with pytest.raises(wavefit.AnalysisRefused) as caught:
+            wavefit.analyze(frame, setup)
+        assert "looks like" not in str(caught.value), seed
+
+
 def test_sample_interval_that_contradicts_the_time_column_is_refused(tmp_path: Path) -> None:
     t, drive, sense = _record(seed=7)
     path = _write(tmp_path / "c.csv", t, drive, sense)

@@ -225,28 +225,59 @@ def with_time_axis_uncertainty(setup: Setup, captures: Sequence[Capture]) -> Set
     return replace(setup, timebase=RelativeFigure(combined, text, 1.0))
 
 
+#: The kind of record each method measures, for :func:`other_method_named` (a method not named
+#: here gets no hint: a ramp's record is neither).
+RECORD_KINDS = {"rl-step": "a step response", "lc-ring": "a ring", "lc-sweep": "a ring"}
+#: The method a record of each kind is named for.
+METHOD_FOR = {"a step response": "rl-step", "a ring": "lc-ring"}
+#: A refused capture is classified on at most this many samples (every k-th): suggest's step
+#: search walks every transition it finds, and on a 10⁷-sample record of noise it took 69 s.
+CLASSIFIED_SAMPLES = 100_000
+
+
 @contextmanager
 def other_method_named(captures: Sequence[Capture], method: str) -> Iterator[None]:
-    """A refusal for a record without what the method measures names the method the record
-    looks like, when another (lc-ring given a step response was refused as "no damped
-    oscillation ... the ring is probably clipped", rl-step given a ring as "no transition
-    found"): by the tests of ``wavefit suggest``, a step first, then a ring."""
+    """A refusal for a capture without what the method measures names the method the capture
+    looks like, when it is of another kind (lc-ring given a step response was refused as "no
+    damped oscillation ... the ring is probably clipped", rl-step given a ring as "no
+    transition found"): by the tests of ``wavefit suggest``, a step first, then a ring of
+    Q of :data:`~wavefit.suggest.rules.HINTED_Q` or more, on the refused capture alone
+    (``NothingToMeasure.source``), thinned to :data:`CLASSIFIED_SAMPLES`."""
     try:
         yield
     except NothingToMeasure as exc:
-        from .suggest.ring_record import find_ring_record
-        from .suggest.step_record import search_step
+        capture = next((c for c in captures if exc.source is not None and str(c.source) == exc.source), None)
+        if capture is None or method not in RECORD_KINDS:
+            raise
+        kind = _record_kind(_thinned(capture))
+        if kind is None or kind == RECORD_KINDS[method]:
+            raise
+        raise AnalysisRefused(f"{exc}; {capture.source} looks like {kind}: method = \"{METHOD_FOR[kind]}\"? "
+                              "(wavefit suggest proposes a setup)") from None
 
-        for capture in captures:
-            try:
-                shown = ("a step response", "rl-step") if search_step(capture)[0] is not None else \
-                    ("a ring", "lc-ring") if find_ring_record(capture) is not None else None
-            except (WavefitError, ValueError, ArithmeticError, np.linalg.LinAlgError):
-                shown = None
-            if shown is not None and shown[1] != method:
-                raise AnalysisRefused(f"{exc}; {capture.source} looks like {shown[0]}: method = \"{shown[1]}\"? "
-                                      "(wavefit suggest proposes a setup)") from None
-        raise
+
+def _record_kind(capture: Capture) -> str | None:
+    """"a step response", "a ring" or None, by suggest's tests (:func:`other_method_named`)."""
+    from .suggest.ring_record import find_ring_record
+    from .suggest.rules import HINTED_Q
+    from .suggest.step_record import search_step
+
+    try:
+        if search_step(capture)[0] is not None:
+            return "a step response"
+        ring = find_ring_record(capture)
+    except (WavefitError, ValueError, ArithmeticError, np.linalg.LinAlgError):
+        return None
+    return "a ring" if ring is not None and ring.quality_factor >= HINTED_Q else None
+
+
+def _thinned(capture: Capture) -> Capture:
+    """Every k-th sample of the capture, at most :data:`CLASSIFIED_SAMPLES` of them."""
+    k = -(-capture.rows // CLASSIFIED_SAMPLES)
+    if k <= 1:
+        return capture
+    return replace(capture, time=capture.time[::k], sample_interval=capture.sample_interval * k,
+                   channels=tuple(replace(ch, values=ch.values[::k]) for ch in capture.channels))
 
 
 @contextmanager

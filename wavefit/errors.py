@@ -40,7 +40,12 @@ class AnalysisRefused(WavefitError):
 class NothingToMeasure(AnalysisRefused):
     """The record does not hold what the method measures (no step for rl-step, no ring for
     lc-ring, or a result no real part gives): the front door names the method the record
-    looks like, when another."""
+    looks like, when another. ``source`` names the capture refused (None when the refusal
+    concerns several)."""
+
+    def __init__(self, message: str, source: str | None = None):
+        super().__init__(message)
+        self.source = source
 
 
 class OutputError(WavefitError):

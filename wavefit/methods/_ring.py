@@ -204,8 +204,8 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
                         "probably clipped (set the vertical scale so the whole ring fits on screen)"
                         if held >= CLIPPED_RUN and not at_rest else "")
         raise NothingToMeasure(f"{capture.source}: no damped oscillation could be fitted ({exc}); "
-                              f"check the [columns] tank entry and that the record holds the ring{clipped_hint}"
-                              ) from None
+                              f"check the [columns] tank entry and that the record holds the ring{clipped_hint}",
+                              str(capture.source)) from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
     clipping = ("" if after is None else
                 f"the ring is clipped at the converter's limit until {t[after - 1]:.6g} s: the fit starts after it, "
@@ -278,12 +278,13 @@ def _checks(ring: DampedSineFit, t: np.ndarray, y: np.ndarray, clipped: bool, so
     if not amp > MIN_AMPLITUDE_TO_NOISE * sigma:
         raise NothingToMeasure(f"{source}: the ring's amplitude in the fitted window is {amp / sigma:.1f} times the "
                               f"noise rms; no trustworthy fit below {MIN_AMPLITUDE_TO_NOISE:g} (raise the excitation "
-                              f"or average captures; {window})")
+                              f"or average captures; {window})", source)
     n_visible = math.log(amp / (2.0 * sigma)) / (ring.alpha * dt) if ring.alpha > 0 else math.inf
     visible = min(n_visible, ring.stop - ring.start) / spp
     if visible < MIN_CYCLES:
         raise NothingToMeasure(f"{source}: only {visible:.1f} cycles stand above the noise; a ring fit needs "
-                              f"at least {FEW_CYCLES:g} (use a smaller feed-resistor load or less damping; {window})")
+                              f"at least {FEW_CYCLES:g} (use a smaller feed-resistor load or less damping; {window})",
+                              source)
     if visible < FEW_CYCLES:
         warnings.append(f"too few cycles: {visible:.1f} stand above the noise ({FEW_CYCLES:g} or more are needed "
                         "for a reliable frequency and damping)")

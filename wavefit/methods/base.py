@@ -246,7 +246,8 @@ class Method:
                         else "is not positive")
                 raise NothingToMeasure(
                     f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}, which "
-                    f"{what}: no measurement of a real part; {self.unphysical_hint}{warned}")
+                    f"{what}: no measurement of a real part; {self.unphysical_hint}{warned}",
+                    result.source if isinstance(result.source, str) else None)
             if name in self.determined and expanded >= abs(value):
                 raise AnalysisRefused(f"{source}: {name} came out as {value:.4g} ± {expanded:.2g} {unit}: "
                                       f"{self._undetermined_cause(result, name)}{warned}")

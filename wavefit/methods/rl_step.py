@@ -211,7 +211,7 @@ class RLStep(Method):
         if not edges:
             raise NothingToMeasure(f"{capture.source}: no transition found in the sense channel (its two "
                                   "state levels are not separated from the noise); check the trigger and the "
-                                  "column mapping")
+                                  "column mapping", str(capture.source))
         check_wiring(t, sense, drive, edges, capture.source, sense_levels)
         windows, edge_times = self._windows(t, sense, drive, edges, setup, dt)
         noise = str(self.option(setup, "noise"))

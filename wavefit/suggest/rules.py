@@ -57,6 +57,10 @@ RING_MIN_CYCLES = 2.0
 #: A free response decays: over its fit window the envelope falls at least by this factor
 #: (a periodic wave fitted by its fundamental does not decay at all).
 RING_MIN_DECAY = 2.0
+#: A ring named in another method's refusal (wavefit.analysis.other_method_named) has at least
+#: this Q: a record of noise fitted as a ring of Q 0.94 was named "a ring" (a review's probe);
+#: a tank this tool measures rings for cycles.
+HINTED_Q = 2.0
 #: Samples per period of the ring that the next record should hold (the lc-ring ngspice
 #: tests record 25 to 50; common practice for a damped-sine fit).
 RING_SAMPLES_PER_PERIOD = 20.0
