@@ -474,3 +474,13 @@ def test_sixteen_bit_binary_numbers_are_not_taken_for_utf16(tmp_path: Path) -> N
     (np.round(100 * _signal()).astype("<i2") + 128).tofile(path)   # small values: high bytes NUL
     with pytest.raises(CaptureError, match="looks binary"):
         read_capture(path)
+
+
+def test_a_commented_header_that_fits_only_with_its_mark_names_the_index_column(tmp_path: Path) -> None:
+    # '# Time CH1' over blank-separated rows of an index, a time and a value: dropping the mark
+    # before the split left two names for three columns and refused the file (a review found
+    # it); the mark counts as the first name again where only that fits
+    lines = ["# Time CH1", *[f"{k} {k * DT:.9g} {v:.6f}" for k, v in enumerate(_signal())]]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.sample_interval == pytest.approx(DT) and capture.time_column == "Time"
+    assert [c.name for c in capture.channels] == ["0", "CH1"]

@@ -499,19 +499,20 @@ def _find_header(
 def _header_cells(line: str, sep: str, run: _Run) -> list[str] | None:
     """The line's cells when it can be a header for the run: text (or a time name first), fitting count.
     A comment mark before the first name is dropped first: split on blanks, ``# t CH1 CH2``
-    would have the mark as a cell of its own."""
-    line = _COMMENT_MARK.sub("", line.lstrip(), count=1)
-    splits = [split_line(line, sep)]
-    if sep == WHITESPACE:
-        splits += [re.split(r"\s{2,}|\t", line.strip()), _merge_bracketed(splits[0])]
-    for cells in splits:
-        cells = _strip_trailing_empty(cells)
-        if not cells or not run.n_used <= len(cells) <= run.n_fields:
-            continue
-        numeric = [is_number(c, ".") or is_number(c, ",") for c in cells]
-        # Channels may be named by number ("Time,1,2") when a time column names the row a header.
-        if not any(numeric) or (not numeric[0] and is_time_name(parse_header(cells[0]).name)):
-            return cells
+    would have the mark as a cell of its own; where the line fits only with the mark as a cell
+    (``# Time CH1`` over rows of an index, a time and a value), it names the first column."""
+    for text in (_COMMENT_MARK.sub("", line.lstrip(), count=1), line):
+        splits = [split_line(text, sep)]
+        if sep == WHITESPACE:
+            splits += [re.split(r"\s{2,}|\t", text.strip()), _merge_bracketed(splits[0])]
+        for cells in splits:
+            cells = _strip_trailing_empty(cells)
+            if not cells or not run.n_used <= len(cells) <= run.n_fields:
+                continue
+            numeric = [is_number(c, ".") or is_number(c, ",") for c in cells]
+            # Channels may be named by number ("Time,1,2") when a time column names the row a header.
+            if not any(numeric) or (not numeric[0] and is_time_name(parse_header(cells[0]).name)):
+                return cells
     return None
 
 
