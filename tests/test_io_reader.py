@@ -96,15 +96,27 @@ def test_time_column_wins_over_a_disagreeing_preamble(tmp_path: Path) -> None:
     assert any("the time column is used" in w for w in capture.warnings)
 
 
-@pytest.mark.parametrize("scale, named", [(1e6, "is it in us"), (1e9, "is it in ns"), (7.0, "")])
+@pytest.mark.parametrize("scale, named", [(1e6, "is it in us"), (1e9, "is it in ns"), (1e3, "is it in ms")])
 def test_a_unitless_time_column_that_contradicts_the_preamble_is_refused(tmp_path: Path, scale, named) -> None:
-    # a column without a unit is read as seconds only for want of one: under a preamble that
-    # says otherwise it was used with a warning, and L came out 10⁶ times too large, exit 0
+    # a column without a unit is read as seconds only for want of one: under a preamble whose
+    # interval it steps 10³ⁿ times it was used with a warning, and L came out 10⁶ times too
+    # large, exit 0
     lines = ["Sample interval,1e-8", "Time,CH1 (V)", *_rows(np.arange(N) * DT * scale, _signal())]
     with pytest.raises(CaptureError) as caught:
         read_capture(_write(tmp_path, lines))
     message = str(caught.value)
-    assert "has no unit" in message and "give the column its unit" in message and named in message
+    assert "has no unit" in message and "Give the column its unit" in message and named in message
+
+
+@pytest.mark.parametrize("scale", [1e-6, 7.0])
+def test_a_unitless_time_column_that_a_preamble_contradicts_otherwise_is_used(tmp_path: Path, scale) -> None:
+    # a preamble's interval 10⁶ times the column's step is the suspect (its number in µs, the
+    # unit on another line; a review found such a file refused), and a ratio of no unit prefix
+    # names neither: the column is used, with the warning
+    lines = ["Sample interval,1e-8", "Time,CH1 (V)", *_rows(np.arange(N) * 1e-8 * scale, _signal())]
+    capture = read_capture(_write(tmp_path, lines))
+    assert capture.sample_interval == pytest.approx(1e-8 * scale)
+    assert any("the time column is used" in w for w in capture.warnings)
 
 
 def test_coarse_stamps_that_the_preamble_confirms_are_a_note(tmp_path: Path) -> None:

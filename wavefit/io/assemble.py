@@ -391,8 +391,9 @@ def _refuse_contradicting_column(
         )
 
 
-#: Ratios of a unit-less time column's step to the preamble's interval that name the column's
-#: likely unit: a time column exported in ms, µs or ns without its unit.
+#: Ratios of a unit-less time column's step to the preamble's interval (to 1 %) that name the
+#: column's likely unit, and are refused: a time column exported in ms, µs, ns or ps without
+#: its unit.
 _PREFIX_RATIOS = (("10³", "m", 1e3), ("10⁶", "u", 1e6), ("10⁹", "n", 1e9), ("10¹²", "p", 1e12))
 
 
@@ -446,17 +447,18 @@ def _column_axis(
     if hint.sample_interval is None:
         return axis, header
     if not _same(hint.sample_interval, axis.sample_interval):
-        if clock is None and not unit.unit:
-            # a column read as seconds only for want of a unit: one of the two is wrong, and L
-            # would be off by their ratio (a column in µs under a preamble's 200 ns read 695 H)
-            ratio = axis.sample_interval / hint.sample_interval
-            likely = next((f" (it steps {name} times the interval: is it in {prefix}s?)"
-                           for name, prefix, factor in _PREFIX_RATIOS if abs(ratio / factor - 1.0) <= 0.01), "")
+        ratio = axis.sample_interval / hint.sample_interval
+        likely = next((prefix for name, prefix, factor in _PREFIX_RATIOS if abs(ratio / factor - 1.0) <= 0.01), None)
+        if clock is None and not unit.unit and likely is not None:
+            # a column read as seconds only for want of a unit, 10³ⁿ times the stated interval:
+            # it is in ms, µs, ns or ps, and L would be off by the ratio (a column in µs under a
+            # preamble's 200 ns read 695 H); the other way round the preamble's number is the
+            # suspect, and the column is used with the warning below
             raise CaptureError(
                 f"{table.source}: the preamble gives a sample interval of {hint.sample_interval:.6g} s "
                 f"({hint.interval_line}), but the time column {header!r}, which has no unit and would be read "
-                f"as seconds, steps by {axis.sample_interval:.6g}{likely}; give the column its unit in the header "
-                "(e.g. 'Time (us)') or pass a sample interval"
+                f"as seconds, steps by {axis.sample_interval:.6g}, {ratio:.3g} times that: is it in {likely}s? Give "
+                f"the column its unit in the header (e.g. 'Time ({likely}s)') or pass a sample interval"
             )
         warnings.append(
             f"the preamble gives a sample interval of {hint.sample_interval:.6g} s "
