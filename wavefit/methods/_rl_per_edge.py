@@ -17,6 +17,11 @@ from ..scale_factor import birge_ratio, scale_factor
 from ._scale_factor import EDGE_SCATTER_P, RISE_FALL_SCATTER_P
 
 
+class StatesNotMeasured(AnalysisRefused):
+    """The windows do not hold both states' settled levels (their combination is singular):
+    rl-step names the clipping when windows were left out as clipped."""
+
+
 @dataclass(frozen=True)
 class Combined:
     names: tuple[str, ...]
@@ -84,7 +89,7 @@ def combine(windows, fits, baseline, has_drive) -> Combined:
         score[cols] += ci @ y
     d = np.sqrt(np.abs(np.diag(info)))
     if np.any(d == 0) or np.linalg.matrix_rank(info / np.outer(d, d)) < p:
-        raise AnalysisRefused("the record does not hold both states settled long enough to measure the "
+        raise StatesNotMeasured("the record does not hold both states settled long enough to measure the "
                               "current step; record a pre-edge baseline or a full period")
     cov = np.linalg.inv(info)
     theta = cov @ score

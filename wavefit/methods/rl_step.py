@@ -45,6 +45,7 @@ from ..signal.levels import state_levels
 from . import register
 from ._model_check import ModelCheck, Variation, added
 from ._rl_estimators import estimate_tau
+from ._rl_per_edge import StatesNotMeasured
 from ._rl_transient import LONGEST_SHARE_OF_TAU
 from ._rl_windows import (LATE_SHIFT_TAU, LATE_SPAN_SAMPLES, LATE_SPAN_TAU, MIN_WINDOW_SAMPLES, LateStart, Window,
                           after_held_starts, late_start, off_screen_baseline, placement_factor, placement_jitter,
@@ -275,7 +276,7 @@ class RLStep(Method):
             choice = estimate_tau(t, sense, drive is not None, white, self.option(setup, "skip") == "auto",
                                   "winding_capacitance" in setup.parts, edges, windows, fits, baseline, noise,
                                   self._fit_window, sense_rms)
-        except AnalysisRefused as exc:
+        except StatesNotMeasured:
             if not left_out:
                 raise
             # the windows left out as clipped are the cause (a sense screen topping out below the
