@@ -456,15 +456,27 @@ def test_a_slow_sample_rate_is_not_blamed_on_the_generator():
     assert not any("generator's edge time" in w for w in result.warnings)
 
 
-def test_windows_fitted_in_two_ways_on_codes_get_one_warning():
-    # some windows by the likelihood of their codes, one by least squares with the estimate:
-    # two "resolution-limited" warnings, one saying each, read as contradicting each other
-    from wavefit.fit.quantisation import CODE_FIT_WARNING, WARNING
+def test_windows_fitted_in_different_ways_on_codes_get_one_warning():
+    # some windows by the likelihood of their codes, others by least squares with the estimate:
+    # two "resolution-limited" warnings read as contradicting each other; the count is taken
+    # from how each fit was made (a review found a count from the warnings' text wrong where
+    # independent and correlated code fits mixed)
+    from types import SimpleNamespace
+
+    from wavefit.fit.quantisation import CODE_FIT_WARNING, CORRELATED_CODE_FIT_WARNING, WARNING
     from wavefit.methods.rl_step import _record_wide
 
-    assert _record_wide([CODE_FIT_WARNING] * 3, 3) == [CODE_FIT_WARNING]
-    merged = _record_wide([CODE_FIT_WARNING, CODE_FIT_WARNING, WARNING, CODE_FIT_WARNING], 4)
-    assert len(merged) == 1 and "3 of 4 edge windows were fitted by the likelihood of their codes" in merged[0]
+    def fit(warning, code=None, widened=None):
+        return SimpleNamespace(warnings=(warning,) if warning else (), code_fit=code, quantisation_widening=widened)
+
+    independent, correlated = SimpleNamespace(independent_noise=True), SimpleNamespace(independent_noise=False)
+    assert _record_wide([fit(CODE_FIT_WARNING, independent)] * 3) == [CODE_FIT_WARNING]
+    merged = _record_wide([fit(CODE_FIT_WARNING, independent), fit(CORRELATED_CODE_FIT_WARNING, correlated),
+                           fit(CODE_FIT_WARNING, independent), fit(WARNING, widened=object()), fit(None)])
+    assert len(merged) == 1 and merged[0].startswith("the record is resolution-limited")
+    assert ("its 5 edge windows were fitted: 2 by the likelihood of their codes (independent noise), 1 by the "
+            "likelihood of their codes (correlated noise" in merged[0])
+    assert "1 by least squares with an estimate" in merged[0] and "1 by plain least squares" in merged[0]
 
 
 @pytest.mark.parametrize("samples_per_tau, snr, warned", [(2000, 500, False), (40, 6, True)])

@@ -21,7 +21,7 @@ time constant tau toward its final level):
 from __future__ import annotations
 
 import math
-from typing import Any, Mapping
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 
@@ -30,8 +30,7 @@ from ..errors import AnalysisRefused, NothingToMeasure, SetupError
 from ..fit.engine import Block, fit_least_squares
 from ..fit.exponential import WindowChannel, fit_exponential_window, window_model
 from ..fit.noise_model import fit_ar
-from ..fit.quantisation import (RECORD_WARNINGS, RECORD_WIDE, WARNING as QUANTISATION_ESTIMATED, include_quantisation,
-                                noise_before_converter)
+from ..fit.quantisation import RECORD_WARNINGS, RECORD_WIDE, include_quantisation, noise_before_converter
 from ..fit.result import FitResult
 from ..measurement import Measurement
 from ..outputs import Scalar
@@ -486,8 +485,7 @@ class RLStep(Method):
         if cp is not None and setup.parts["sense_resistor"].value * cp.value > PROBE_POLE_FRACTION * tau:
             out.append("the probe capacitance with the sense resistor makes a pole comparable to tau; "
                        "the first-order correction used may not suffice")
-        record_wide = [msg for fit in fits for msg in fit.warnings if msg in RECORD_WARNINGS]
-        out += _record_wide(record_wide, len(fits))
+        out += _record_wide(fits)
         for w, fit in zip(windows, fits):
             out += [f"edge at {w.t0:.6g} s: {msg}" for msg in fit.warnings if msg not in RECORD_WARNINGS]
             for group, y in (("sense", sense), ("drive", drive)):
@@ -560,19 +558,25 @@ def measurement_function(x: Mapping[str, Any], has_drive: bool, parts: frozenset
             "I_final": current, "E": inductance * current ** 2 / 2, "R_source": r_src}
 
 
-def _record_wide(said: list[str], windows: int) -> list[str]:
+def _record_wide(fits: Sequence[FitResult]) -> list[str]:
     """The windows' warnings about the record's converter said once: the one they share, or,
-    where windows were fitted in different ways (some by the likelihood of their codes, others
-    by least squares with an estimate of quantisation's effect, where the codes told little),
-    one that says how many each (two such warnings read as contradicting each other)."""
-    kinds = list(dict.fromkeys(said))
-    if len(kinds) < 2:
-        return kinds
-    by_codes = sum(1 for msg in said if msg != QUANTISATION_ESTIMATED)
-    return [f"{RECORD_WIDE} (its noise is below half a converter code): {by_codes} of {windows} edge windows were "
-            "fitted by the likelihood of their codes (Gaussian noise before an ideal converter), the others by "
-            "least squares with an estimate of quantisation's effect in their type A uncertainty (their codes "
-            "told little); more vertical sensitivity would help"]
+    where windows were treated in different ways, one that counts each (from how each fit was
+    made: by the likelihood of its codes, with independent or correlated noise, by least squares
+    with an estimate of quantisation's effect where the codes told little, or plainly; two such
+    warnings read as contradicting each other)."""
+    said = list(dict.fromkeys(msg for fit in fits for msg in fit.warnings if msg in RECORD_WARNINGS))
+    if len(said) < 2:
+        return said
+    ways = {"by the likelihood of their codes (independent noise)":
+            sum(1 for f in fits if f.code_fit is not None and f.code_fit.independent_noise),
+            "by the likelihood of their codes (correlated noise: uncertainty from the scores' scatter)":
+            sum(1 for f in fits if f.code_fit is not None and not f.code_fit.independent_noise),
+            "by least squares with an estimate of quantisation's effect in their type A uncertainty":
+            sum(1 for f in fits if f.code_fit is None and f.quantisation_widening is not None),
+            "by plain least squares": sum(1 for f in fits if f.code_fit is None and f.quantisation_widening is None)}
+    counted = ", ".join(f"{count} {way}" for way, count in ways.items() if count)
+    return [f"{RECORD_WIDE} (its noise is below half a converter code): its {len(fits)} edge windows were fitted: "
+            f"{counted}; more vertical sensitivity would help"]
 
 
 def _model_check(late: LateStart | None, tau_reported: float) -> ModelCheck:
