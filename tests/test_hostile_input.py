@@ -295,7 +295,7 @@ def test_a_plot_that_cannot_be_written_keeps_the_result_and_exits_5(tmp_path: Pa
     (tmp_path / "a_file").write_text("not a folder", encoding="utf-8")
     code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / "a_file" / "fit.png")])
     out, err = capsys.readouterr()
-    assert code == 3 and out == "" and "does not exist" in err
+    assert code == 3 and out == "" and "a_file is not a folder" in err
     # so is one whose folder's name is longer than a file system takes (asking whether it is
     # a folder raised "File name too long", exit 5)
     code = main(["analyze", str(capture), "--setup", str(setup), "--plot", str(tmp_path / ("d" * 300) / "fit.png")])

@@ -18,8 +18,10 @@ written through (a fixed ``OUT.partial`` followed a link planted there).
 """
 from __future__ import annotations
 
+import errno
 import os
 import secrets
+import stat
 from collections.abc import Iterable
 from pathlib import Path
 
@@ -58,8 +60,9 @@ def check_output(option: str, path: str | os.PathLike[str],
     if os.path.lexists(path) and ((replaced and os.path.islink(path)) or not os.path.isfile(path)):
         raise UnusableOutput(f"{option} {visible(path)} exists and is not a regular file; name a file to write")
     folder = Path(path).parent
-    if not os.path.isdir(folder):  # (False, not an error, for a name too long to look up)
-        raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} does not exist; create it "
+    missing = folder_problem(folder)
+    if missing:
+        raise UnusableOutput(f"{option} {visible(path)}: folder {visible(folder)} {missing}; create it "
                              "or name a file in another folder")
     longest = _longest_name(folder) - TEMPORARY_EXTRA
     if len(os.fsencode(Path(path).name)) > longest:
@@ -75,6 +78,20 @@ def check_output(option: str, path: str | os.PathLike[str],
         if identity(given) == target:
             raise UnusableOutput(f"{option} {visible(path)} is the input {visible(given)}: it would be overwritten; "
                                  "name a file of its own")
+
+
+def folder_problem(folder: Path) -> str:
+    """Why ``folder`` cannot hold an output ('does not exist', 'is not a folder', 'cannot be
+    reached: ...'), or '' when it is a folder. A name too long to look up does not exist (asking
+    whether it is a folder raised "File name too long", exit 5 after the analysis); a folder
+    behind one that may not be searched is not said to be missing."""
+    try:
+        status = os.stat(folder)
+    except (FileNotFoundError, NotADirectoryError):
+        return "does not exist"
+    except OSError as exc:
+        return "does not exist" if exc.errno == errno.ENAMETOOLONG else f"cannot be reached ({exc.strerror or exc})"
+    return "" if stat.S_ISDIR(status.st_mode) else "is not a folder"
 
 
 #: Bytes the temporary file's name adds to its target's (:func:`new_temporary`: 18, a leading dot,

@@ -154,7 +154,7 @@ class RLStep(Method):
     outputs = {"L": Scalar("H"), "R": Scalar("ohm"), "tau": Scalar("s"), "R_loop": Scalar("ohm"),
                "I_final": Scalar("A"), "E": Scalar("J"), "R_source": Scalar("ohm")}
     positive = ("L", "tau", "R_loop")
-    not_negative = ("R",)
+    not_negative = ("R", "R_source")
     determined = ("L", "tau")
     undetermined_hint = ("is the record long enough for this coil? Each edge needs several tau after it "
                          "(lengthen the period and the record), and a step well above the noise")

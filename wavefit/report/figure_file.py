@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Any, Iterator
 
 from ..errors import WavefitError
-from ..output_files import new_temporary
+from ..output_files import folder_problem, new_temporary
 from .safe_text import visible
 
 
@@ -56,9 +56,9 @@ def check_figure_path(path: str | os.PathLike[str]) -> None:
     if kind not in _formats():
         raise FigureFileError(f"cannot draw a plot into {visible(target)}: give it a suffix of an image format "
                               f"({', '.join(sorted(_formats()))})")
-    if not os.path.isdir(target.parent):  # (False, not an error, for a name too long to look up)
-        raise FigureFileError(f"cannot draw a plot into {visible(target)}: folder {visible(target.parent)} "
-                              "does not exist")
+    missing = folder_problem(target.parent)
+    if missing:
+        raise FigureFileError(f"cannot draw a plot into {visible(target)}: folder {visible(target.parent)} {missing}")
     if kind in _SIGNATURES and target.is_file():
         with open(target, "rb") as stream:
             head = stream.read(16).lstrip()

@@ -187,8 +187,8 @@ def _step_suggestion(capture: Capture, step: StepRecord, rs: PartValue | None, b
                f"{SAMPLES_PER_TAU:g}")
     why.append(f"next capture: tau about {eng(tau_next, 's')} (planned for ±{100 * (TAU_MARGIN - 1):.0f} %); "
                f"period {eng(period, 's')} (half period {0.5 * period / tau_next:.3g} tau), "
-               f"sample interval {eng(interval, 's')} or finer ({tau_next / interval:.3g} samples per tau at most "
-               f"that), record {eng(record, 's')} or longer ({RECORD_PERIODS:g} periods, {next_capture['samples']:.0f} "
+               f"sample interval {eng(interval, 's')} or finer ({tau_next / interval:.3g} samples per tau, or more), "
+               f"record {eng(record, 's')} or longer ({RECORD_PERIODS:g} periods, {next_capture['samples']:.0f} "
                "samples at that interval; a finer interval over the same time only lowers the uncertainty: keep the "
                "scope's longest record length)")
     scales = _step_scales(step, applied, loop, bits)
