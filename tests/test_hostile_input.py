@@ -337,3 +337,16 @@ def test_a_step_of_three_codes_is_not_taken_for_noise(tmp_path: Path) -> None:
         wavefit.analyze(_write(tmp_path / "coarse.csv", t, drive, coarse), TWO_CHANNELS)
     except wavefit.AnalysisRefused as exc:
         assert "does not step" not in str(exc)
+
+
+def test_a_sine_given_to_rl_step_is_flagged_as_unchecked() -> None:
+    # a 2 kHz sine with no step read as L = 6.2 mH, exit 0, with "39 of 39 edges are followed
+    # by less than 5 tau" alone (a review found it): where no edge settles, the warning says
+    # that nothing checks the waveform is an exponential
+    import pandas as pd
+
+    t = np.arange(10000) * 1e-6
+    rng = np.random.default_rng(0)
+    frame = pd.DataFrame({"t": t, "sense": 1e-3 * np.sin(2 * np.pi * 2e3 * t + 1.0) + 1e-4 * rng.standard_normal(t.size)})
+    result = wavefit.analyze(frame, {**SENSE_ONLY, "columns": {"time": "t", "sense": "sense"}})
+    assert any("nothing checks that the waveform is an RL step's exponential" in w for w in result.warnings)
