@@ -114,6 +114,10 @@ NUMBER_EXAMPLES = {None: '"4.7 nF", "30 ns", "4k7"', "s": '"30 ns", "1.5 us", "2
                    "ohm": '"10 ohm", "4k7"', "F": '"4.7 nF", "4n7"', "H": '"47 uH"', "Hz": '"1 MHz"'}
 RELATIVE_EXAMPLES = '"±1.5%", "±25 ppm"'
 
+#: How a value left for the user to fill in begins (``wavefit suggest`` writes it where it
+#: cannot know the value): a setup holding one is refused, naming it as such.
+PLACEHOLDER = "EDIT: "
+
 _SQRT3 = math.sqrt(3.0)
 
 _DIGITS = r"(?:\d+(?:\.\d*|,\d+)?|\.\d+)(?:[eE][+-]?\d+)?"
@@ -311,6 +315,9 @@ def parse_part(spec: str | float | int, expected_unit: str | None = None) -> Par
         # (a TOML date or time, an array, a table or a boolean: named in TOML's words, not Python's)
         shown = _toml_kind(spec)
         raise SetupError(f"{shown} is not a part value; write it as text in quotes, e.g. {PART_EXAMPLES}")
+    if isinstance(spec, str) and spec.strip().startswith(PLACEHOLDER.strip()):
+        # (it was refused as "does not start with a number or a letter code")
+        raise SetupError(f"{spec!r} is a placeholder left to edit: write the value it asks for, e.g. {PART_EXAMPLES}")
     try:
         if isinstance(spec, str):
             return _part_from_text(spec.strip(), expected_unit)

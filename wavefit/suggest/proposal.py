@@ -19,7 +19,7 @@ from ..blas_threads import one_blas_thread
 from ..errors import AnalysisRefused
 from ..io import Capture
 from ..signal.clipping import longest_run_at_extremes
-from ..values import PartValue, eng
+from ..values import PLACEHOLDER, PartValue, eng
 from .ring_record import RingRecord, find_ring_record
 from .rules import (HALF_PERIOD_TAUS, K_HIGH, K_LOW, K_TARGET, RECORD_PERIODS, RING_RECORD_DECAYS,
                     RING_SAMPLES_PER_PERIOD, SAMPLES_PER_TAU, TAU_MARGIN, UNCOMPARED_RATIO)
@@ -28,7 +28,7 @@ from .series import nearest_e12, round_down_125, round_up_125
 from .step_record import StepRecord, search_step
 
 #: Text of a part the technician must fill in: the setup refuses it until edited (exit 3).
-EDIT = "EDIT: "
+EDIT = PLACEHOLDER
 
 
 @dataclass(frozen=True)
