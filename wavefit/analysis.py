@@ -13,7 +13,7 @@ import pandas as pd
 
 from .blas_threads import one_blas_thread
 from .capture_checks import refuse_shared_columns, without_glitches
-from .errors import AnalysisRefused, CaptureError, NothingToMeasure, SetupError, WavefitError
+from .errors import AnalysisRefused, CaptureError, NothingToMeasure, SetupError, WavefitError, had_warned
 from .io import capture_from_frame, read_capture
 from .io.capture import Capture
 from .measurement import Measurement, bind, capture_sources
@@ -293,10 +293,7 @@ def refusals_with_the_capture(captures: Sequence[Capture]) -> Iterator[None]:
         sources = [str(c.source) for c in captures]
         if not any(source in message for source in sources):
             message = f"{', '.join(sources)}: {message}"
-        warned = [w for c in captures for w in c.warnings]
-        if warned:
-            more = f" (and {len(warned) - 1} more)" if len(warned) > 1 else ""
-            message = f"{message}; the reader had warned{more}: {warned[0]}"
+        message += had_warned("reader", [w for c in captures for w in c.warnings])
         if message == str(exc):
             raise
         raise AnalysisRefused(message) from exc

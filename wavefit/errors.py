@@ -7,6 +7,8 @@ output file could not be written.
 """
 from __future__ import annotations
 
+from typing import Sequence
+
 
 class WavefitError(Exception):
     """Base of every error a user can cause; carries the CLI exit code.
@@ -35,6 +37,15 @@ class AnalysisRefused(WavefitError):
     """The data cannot give a trustworthy result (no edge, fit failed, too noisy)."""
 
     exit_code = 4
+
+
+def had_warned(who: str, warnings: Sequence[str]) -> str:
+    """A refusal's closing clause naming the first of ``warnings``, which is often its cause
+    ("; the reader had warned (and 2 more): ..."), or '' where there are none."""
+    if not warnings:
+        return ""
+    more = f" (and {len(warnings) - 1} more)" if len(warnings) > 1 else ""
+    return f"; the {who} had warned{more}: {warnings[0]}"
 
 
 class NothingToMeasure(AnalysisRefused):

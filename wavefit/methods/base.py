@@ -17,7 +17,7 @@ from typing import Any, ClassVar, Mapping
 from ..calibration.in_use import ChannelCalibration, channel_calibration, check_channel_mapping
 from ..calibration.substitution import with_reference
 from ..curve_propagation import propagate_curves
-from ..errors import AnalysisRefused, NothingToMeasure, SetupError
+from ..errors import AnalysisRefused, NothingToMeasure, SetupError, had_warned
 from ..io.capture import Capture, Channel
 from ..measurement import CaptureCount, Measurement, takes_entries
 from ..outputs import Curve, Output, scalar_names
@@ -232,8 +232,7 @@ class Method:
         source = result.source if isinstance(result.source, str) else ", ".join(result.source)
         # the analysis's own first warning, often the cause (a clipped trace was refused as "is
         # the record long enough?" with the clipping unsaid)
-        more = f" (and {len(result.warnings) - 1} more)" if len(result.warnings) > 1 else ""
-        warned = f"; the analysis had warned{more}: {result.warnings[0]}" if result.warnings else ""
+        warned = had_warned("analysis", result.warnings)
         points = [(name, q.value, q.expanded_uncertainty, q.unit) for name, q in result.quantities.items()]
         points += [(name, float(v), float(u), c.unit) for name, c in result.curves.items()
                    for v, u in zip(c.values, c.expanded_uncertainty)]
