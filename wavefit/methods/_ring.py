@@ -20,7 +20,7 @@ from ..errors import AnalysisRefused, NothingToMeasure, SetupError
 from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring
 from ..io.capture import Capture
 from ..setup import Setup
-from ..signal.clipping import longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
+from ..signal.clipping import CLIPPED_RUN, longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
 from ..signal.codes import record_levels
 from ._model_check import MODEL_Z, ModelCheck, Variation
 from .base import Method
@@ -49,8 +49,6 @@ MIN_CYCLES, FEW_CYCLES = 1.0, 3.0
 #: may be an alias of a faster one, which the capture cannot tell (an lc-ring at 2.7 samples per
 #: period gave L = 918 ± 11 µH for 330 µH behind a warning).
 FEW_SAMPLES_PER_PERIOD, ALIAS_SAMPLES_PER_PERIOD = 10.0, 4.0
-#: Consecutive samples at the record's extremes that, with a model beyond them, mean clipping.
-CLIPPED_RUN = 5
 
 
 @dataclass(frozen=True, kw_only=True)

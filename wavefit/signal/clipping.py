@@ -15,6 +15,10 @@ import numpy as np
 from .codes import CHUNK_VALUES, RecordLevels, record_levels
 from .robust import mad_sigma
 
+#: Consecutive samples at a record's extremes that, with a model beyond them, mean clipping
+#: (lc-ring's test), and that a refusal of suggest names as possible clipping.
+CLIPPED_RUN = 5
+
 
 def longest_run_at_extremes(y: np.ndarray) -> tuple[int, int]:
     """Length of the longest run of samples equal to min(y), and to max(y)."""

@@ -18,7 +18,7 @@ import numpy as np
 from ..blas_threads import one_blas_thread
 from ..errors import AnalysisRefused
 from ..io import Capture
-from ..signal.clipping import longest_run_at_extremes
+from ..signal.clipping import CLIPPED_RUN, longest_run_at_extremes
 from ..values import PLACEHOLDER, PartValue, eng
 from .ring_record import RingRecord, find_ring_record
 from .rules import (HALF_PERIOD_TAUS, K_HIGH, K_LOW, K_TARGET, RECORD_PERIODS, RING_RECORD_DECAYS,
@@ -96,17 +96,12 @@ def suggest(capture: Capture, sense_resistor: PartValue | None = None, bits: int
                           f"to tell); check the probes, the trigger and the generator, then capture again{held}")
 
 
-#: Samples in a row at a channel's highest or lowest value that a refusal names as possible
-#: clipping (the ring method's test of clipped runs, wavefit.methods._ring.CLIPPED_RUN): a
-#: clipped sense was refused as "neither a step nor a ring", a clipped ring as "steps, but does
-#: not settle", with the clipping unsaid.
-HELD_RUN = 5
-
-
 def _held_at_an_extreme(capture: Capture) -> str:
-    """A clause naming each channel held at its highest or lowest value for :data:`HELD_RUN`
-    samples or more in a row ('' when none is): clipping, when that value is the screen's edge
-    (a quiet settled level on one converter code looks the same, hence the "if")."""
+    """A clause naming each channel held at its highest or lowest value for
+    :data:`~wavefit.signal.clipping.CLIPPED_RUN` samples or more in a row ('' when none is):
+    clipping, when that value is the screen's edge (a quiet settled level on one converter code
+    looks the same, hence the "if"; a clipped sense was refused as "neither a step nor a ring", a
+    clipped ring as "steps, but does not settle", with the clipping unsaid)."""
     held = []
     for channel in capture.channels:
         y = np.asarray(channel.values, dtype=float)
@@ -114,7 +109,7 @@ def _held_at_an_extreme(capture: Capture) -> str:
             continue
         lowest, highest = longest_run_at_extremes(y)
         run, side = max((lowest, "lowest"), (highest, "highest"))
-        if run >= HELD_RUN:
+        if run >= CLIPPED_RUN:
             held.append(f"{channel.header!r} sits at its {side} value for {run} samples in a row")
     if not held:
         return ""
