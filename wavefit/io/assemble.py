@@ -394,7 +394,7 @@ def _refuse_contradicting_column(
 #: Ratios of a unit-less time column's step to the preamble's interval (to 1 %) that name the
 #: column's likely unit, and are refused: a time column exported in ms, µs, ns or ps without
 #: its unit.
-_PREFIX_RATIOS = (("10³", "m", 1e3), ("10⁶", "u", 1e6), ("10⁹", "n", 1e9), ("10¹²", "p", 1e12))
+_PREFIX_RATIOS = (("m", 1e3), ("u", 1e6), ("n", 1e9), ("p", 1e12))
 
 
 def _column_axis(
@@ -448,7 +448,7 @@ def _column_axis(
         return axis, header
     if not _same(hint.sample_interval, axis.sample_interval):
         ratio = axis.sample_interval / hint.sample_interval
-        likely = next((prefix for name, prefix, factor in _PREFIX_RATIOS if abs(ratio / factor - 1.0) <= 0.01), None)
+        likely = next((prefix for prefix, factor in _PREFIX_RATIOS if abs(ratio / factor - 1.0) <= 0.01), None)
         if clock is None and not unit.unit and likely is not None:
             # a column read as seconds only for want of a unit, 10³ⁿ times the stated interval:
             # it is in ms, µs, ns or ps, and L would be off by the ratio (a column in µs under a

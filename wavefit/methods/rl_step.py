@@ -243,10 +243,8 @@ class RLStep(Method):
         period = placement = None
         if self.option(setup, "skip") == "auto":
             first, first_fits = windows[0], fits
-            windows, fits, late, period, transient = settle_starts(t, sense, drive, windows, fits, baseline, noise,
-                                                            capture.source, self._fit_window,
-                                                            correlated=not white)
-            transient, moved = transient
+            windows, fits, late, period, (transient, moved) = settle_starts(
+                t, sense, drive, windows, fits, baseline, noise, capture.source, self._fit_window, correlated=not white)
             if moved:
                 notes.append(f"{moved} of {len(windows)} edge windows start {transient.samples} samples "
                              f"({transient.samples * dt:.3g} s) later: the {transient.channel} channel's first samples "

@@ -27,10 +27,6 @@ from .scales import ScaleAdvice, scale_advice
 from .series import nearest_e12, round_down_125, round_up_125
 from .step_record import StepRecord, search_step
 
-#: Text of a part the technician must fill in: the setup refuses it until edited (exit 3).
-EDIT = PLACEHOLDER
-
-
 @dataclass(frozen=True)
 class Suggestion:
     """What ``wavefit suggest`` proposes. ``estimates`` and ``next_capture`` map names to SI
@@ -166,8 +162,8 @@ def _step_suggestion(capture: Capture, step: StepRecord, rs: PartValue | None, b
                    "channel the setup needs the generator's resistance and the DCR from an ohmmeter")
     parts, applied = _sense_part(rs, factor, loop, estimates, why)
     if step.drive is None:
-        parts |= {"source_resistance": EDIT + "the generator's output resistance and tolerance",
-                  "dut_resistance": EDIT + "the coil's DCR from an ohmmeter, with its uncertainty"}
+        parts |= {"source_resistance": PLACEHOLDER + "the generator's output resistance and tolerance",
+                  "dut_resistance": PLACEHOLDER + "the coil's DCR from an ohmmeter, with its uncertainty"}
     tau_next = tau if loop is None else tau * loop / (loop - 1 + applied)
     period = round_up_125(2 * HALF_PERIOD_TAUS * TAU_MARGIN * tau_next)
     interval = round_down_125(tau_next / (TAU_MARGIN * SAMPLES_PER_TAU))
@@ -203,7 +199,7 @@ def _sense_part(rs: PartValue | None, factor: float, loop: float | None, estimat
                    "not known; fill in the sense resistor")
         text = "the sense resistor of this capture, value and tolerance" if factor == 1 else \
             f"a sense resistor about {factor:.3g} times the present one, value and tolerance"
-        return {"sense_resistor": EDIT + text}, factor
+        return {"sense_resistor": PLACEHOLDER + text}, factor
     if loop is not None:
         estimates |= {"R_loop": loop * rs.value, "L": estimates["tau"] * loop * rs.value,
                       "R_source": estimates["source_over_sense"] * rs.value}
@@ -224,7 +220,7 @@ def _sense_part(rs: PartValue | None, factor: float, loop: float | None, estimat
     # the entry stays to be edited: which resistor the next capture is made with is the user's
     # to say (written as the proposal, the setup was used on the first capture, 10 Ω, and read
     # L 6.5 times too small, exit 0)
-    return {"sense_resistor": f"{EDIT}the sense resistor of the next capture, value and tolerance "
+    return {"sense_resistor": f"{PLACEHOLDER}the sense resistor of the next capture, value and tolerance "
                               f"(about {value:g} ohm proposed; {rs.text} if kept)"}, value / rs.value
 
 
@@ -293,9 +289,9 @@ def _ring_suggestion(capture: Capture, ring: RingRecord, bits: int) -> Suggestio
     next_capture = {"sample_interval": interval, "record_length": record,
                     "samples": float(math.ceil(record / interval))}
     setup = {"method": "lc-ring", "columns": columns,
-             "parts": {"tank_capacitor": EDIT + "the known capacitor across the coil, value and tolerance",
-                       "stray_capacitance": EDIT + "probe and fixture capacitance, value and tolerance",
-                       "parallel_load": EDIT + "feed resistor parallel probe input resistance, value and tolerance"}}
+             "parts": {"tank_capacitor": PLACEHOLDER + "the known capacitor across the coil, value and tolerance",
+                       "stray_capacitance": PLACEHOLDER + "probe and fixture capacitance, value and tolerance",
+                       "parallel_load": PLACEHOLDER + "feed resistor parallel probe input resistance, value and tolerance"}}
     return Suggestion("lc-ring", columns, estimates, next_capture, scales, setup, tuple(why))
 
 
