@@ -34,6 +34,14 @@ def default_to_one_thread() -> None:
         os.environ.setdefault(name, "1")
 
 
+#: threadpoolctl's view of the thread pools loaded, taken at the first analysis: finding them
+#: scans every shared library of the process (about 0.35 ms, a twentieth of a small
+#: analysis, each time), and a library loaded later read the environment that
+#: :func:`default_to_one_thread` had set when ``wavefit`` was imported, so its pool has one
+#: thread already.
+_pools: list = []
+
+
 @contextmanager
 def one_blas_thread() -> Iterator[None]:
     """Run the body with one thread in every BLAS and OpenMP pool loaded (the user's
@@ -41,7 +49,9 @@ def one_blas_thread() -> Iterator[None]:
     if USER_CHOSE:
         yield
         return
-    from threadpoolctl import threadpool_limits
+    if not _pools:
+        from threadpoolctl import ThreadpoolController
 
-    with threadpool_limits(limits=1):
+        _pools.append(ThreadpoolController())
+    with _pools[0].limit(limits=1):
         yield
