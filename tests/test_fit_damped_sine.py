@@ -178,14 +178,16 @@ def test_fit_from_a_solved_start_is_the_fit_that_solves_again(correlation):
     y = scope.apply(v, np.random.default_rng(correlation))
     win = ring_window(y)
     alpha0, w0 = initial_estimate(y[win.start:win.start + win.strong], win.samples_per_period)
-    x, solved = refined(y[win.start:], alpha0, w0)
-    assert solved
+    x, solved, factor = refined(y[win.start:], alpha0, w0)
+    assert solved and factor is not None  # (60,000 samples: a long window, solved through its factor)
     seg = slice(win.start, None)
     again = fit_damped_sine(t[seg], y[seg], x, dt)
     skipped = fit_damped_sine(t[seg], y[seg], x, dt, solved=True)
-    np.testing.assert_allclose(skipped.fit.values, again.fit.values, rtol=1e-11)
-    np.testing.assert_allclose(skipped.fit.covariance, again.fit.covariance, rtol=1e-8)
-    assert skipped.fit.noise_model == again.fit.noise_model
+    reused = fit_damped_sine(t[seg], y[seg], x, dt, solved=True, factor=factor)  # its covariance from that factor
+    for fit in (skipped, reused):
+        np.testing.assert_allclose(fit.fit.values, again.fit.values, rtol=1e-11)
+        np.testing.assert_allclose(fit.fit.covariance, again.fit.covariance, rtol=1e-8)
+        assert fit.fit.noise_model == again.fit.noise_model
 
 
 @pytest.mark.parametrize("dcr, records", [(40.0, 20_000), (0.1, 20_000)])
@@ -203,8 +205,37 @@ def test_fit_ring_skips_the_solve_only_on_the_refined_window(monkeypatch, dcr, r
     y = ScopeModel(noise_rms=1e-3 * float(np.max(np.abs(v)))).apply(v, np.random.default_rng(3))
     skipped = fit_ring(t, y)
     refined = damped_sine.refined
-    monkeypatch.setattr(damped_sine, "refined", lambda *a: (refined(*a)[0], False))
+    monkeypatch.setattr(damped_sine, "refined", lambda *a: (refined(*a)[0], False, None))
     again = fit_ring(t, y)
     assert (skipped.stop < t.size) == (dcr > 10.0)  # the early decay is cut, the long ring not
     assert (skipped.start, skipped.stop) == (again.start, again.stop)
     np.testing.assert_allclose(skipped.fit.values, again.fit.values, rtol=1e-10)
+
+
+@pytest.mark.parametrize("correlation", [0, 6])
+def test_a_close_start_gives_the_fit_of_the_trust_region_solve(correlation):
+    # the model check's halves start from the whole ring's fit carried to their first sample and
+    # take Gauss–Newton steps (close=True); the solve of the trust-region solver from that start
+    # is the truth: the same values to a millionth of a standard error, the same covariance
+    from wavefit.methods._ring import _halves
+
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=4.0, feed_resistance=20e3)
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * 50)
+    t, v = ringdown(tank, dt, 60_000, pre_trigger=0)
+    y = ScopeModel(noise_rms=0.002, correlation_samples=correlation).apply(v, np.random.default_rng(7))
+    ring = fit_ring(t, y)
+    stepped = _halves(ring, y, "auto")
+    import wavefit.fit.damped_sine as damped_sine
+    solver = []
+    for part, lo in zip(stepped, (0, stepped[0].stop - stepped[0].start)):
+        x0 = damped_sine.ring_parameters_at(ring, lo)
+        seg = y[ring.start + lo:ring.start + lo + part.stop - part.start]
+        solver.append(damped_sine.fit_damped_sine(np.arange(seg.size) * dt, seg, x0, dt))
+    for a, b in zip(stepped, solver):
+        (ma,), (mb,) = a.fit.noise_model.values(), b.fit.noise_model.values()
+        assert (ma["kind"], ma["order"]) == (mb["kind"], mb["order"])
+        assert ma["sigma"] == pytest.approx(mb["sigma"], rel=1e-8)
+        se = np.sqrt(np.diag(b.fit.covariance))
+        assert np.all(np.abs(a.fit.values - b.fit.values) <= 1e-6 * se)
+        np.testing.assert_allclose(a.fit.covariance, b.fit.covariance, rtol=1e-8, atol=1e-12 * np.max(se) ** 2)

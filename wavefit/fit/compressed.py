@@ -48,12 +48,14 @@ class _Reducer:
     def __init__(self, width: int):
         self.width = width
         self.factor = np.zeros((0, width))
-        self.pending: list[list[np.ndarray]] = []
+        self.pending: list[tuple[list[np.ndarray], float]] = []
         self.count = 0
 
-    def add(self, groups: list[np.ndarray]) -> None:
-        """Rows given as column groups of equal length whose widths add up to the width."""
-        self.pending.append(groups)
+    def add(self, groups: list[np.ndarray], divisor: float = 1.0) -> None:
+        """Rows given as column groups of equal length whose widths add up to the width, each
+        value divided by ``divisor`` as it is copied (a white noise model's whitening, which
+        then costs no pass of its own over the rows)."""
+        self.pending.append((groups, divisor))
         self.count += groups[0].shape[0]
         if self.count * self.width > CHUNK_ELEMENTS:
             self._reduce()
@@ -64,7 +66,7 @@ class _Reducer:
         block = max(self.width, BLOCK_VALUES // self.width)
         stacked = np.empty((self.width + block, self.width), order="F")
         entries = iter(self.pending)
-        groups, used = next(entries), 0  # the entry rows are taken from, and rows taken from it
+        (groups, divisor), used = next(entries), 0  # the entry rows are taken from, and rows taken from it
         for a in range(0, self.count, block):
             k = self.factor.shape[0]
             m = k + min(block, self.count - a)
@@ -77,12 +79,15 @@ class _Reducer:
                 take = min(m - row, groups[0].shape[0] - used)
                 column = 0
                 for g in groups:
-                    target[row:row + take, column:column + g.shape[1]] = g[used:used + take]
+                    if divisor == 1.0:
+                        target[row:row + take, column:column + g.shape[1]] = g[used:used + take]
+                    else:
+                        np.divide(g[used:used + take], divisor, out=target[row:row + take, column:column + g.shape[1]])
                     column += g.shape[1]
                 row += take
                 used += take
                 if used == groups[0].shape[0] and row < m:
-                    groups, used = next(entries), 0
+                    (groups, divisor), used = next(entries), 0
             reduced, *_ = lapack.dgeqrf(target, overwrite_a=True)
             self.factor = np.triu(reduced[:min(self.width, m)])
         self.pending, self.count = [], 0
@@ -113,11 +118,17 @@ def triangle(jac: "np.ndarray | Jacobian", rhs: "np.ndarray | Callable[[int, int
         q, n = model.order, block.stop - block.start
 
         def both(rows, u, v):
-            """Whitened rows u..v of the block's J (through ``rows``) and of rhs, as column groups."""
+            """Rows u..v of the block's J (through ``rows``) and of rhs, as column groups, and the
+            divisor that whitens them: a white model's scale, else whitened already and 1."""
+            if model.order == 0:
+                parts = [rows(block.start + u, block.start + v)]
+                if rhs is not None:
+                    parts.append(rhs(block.start + u, block.start + v))
+                return parts, model.sigma_e
             parts = [model.whiten_rows(lambda a, b: rows(block.start + a, block.start + b), n, u, v)]
             if rhs is not None:
                 parts.append(model.whiten_rows(lambda a, b: rhs(block.start + a, block.start + b), n, u, v))
-            return parts
+            return parts, 1.0
 
         pieces = list(jac.overlapping(block.start, block.stop))
         for pc, a, b in pieces:
@@ -125,13 +136,13 @@ def triangle(jac: "np.ndarray | Jacobian", rhs: "np.ndarray | Callable[[int, int
             r = pc.coefficients.shape[0]
             own = _Reducer(r + k)
             for lo, hi in row_chunks(a + q, b, r + k):
-                own.add(both(pc.basis, lo - block.start, hi - block.start))
+                own.add(*both(pc.basis, lo - block.start, hi - block.start))
             t = own.result()
             total.add([t[:, :r] @ pc.coefficients, t[:, r:]])
         # the first q rows after each piece starts: dense, through the whole whitening
         for lo, hi in _merged([(a, min(a + q, block.stop)) for _, a, _ in pieces]):
             for u, v in row_chunks(lo, hi, p + k):
-                total.add(both(jac.dense, u - block.start, v - block.start))
+                total.add(*both(jac.dense, u - block.start, v - block.start))
     return total.result()
 
 
@@ -167,6 +178,10 @@ class TriangularProblem:
             self._factor = triangle(self.jac(x), self.fun(x), self.blocks, self.models)
             self._key = key
         return self._factor
+
+    def kept(self, x: np.ndarray) -> np.ndarray | None:
+        """The factor at ``x`` when it is the one kept (the last point asked for), else None."""
+        return self._factor if np.asarray(x, dtype=float).tobytes() == self._key else None
 
     def residuals(self, x: np.ndarray) -> np.ndarray:
         t = self.factor(x)

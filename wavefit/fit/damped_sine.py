@@ -44,7 +44,8 @@ import numpy as np
 from scipy import optimize
 
 from .compressed import TriangularProblem, triangle
-from .engine import Block, fit_least_squares
+from .engine import NEGLIGIBLE_CHANGE, Block, fit_least_squares
+from .gauss_newton import descend
 from .jacobian import CHUNK_ELEMENTS, Jacobian, Piece, is_small
 from .noise_model import white
 from .quantisation import include_quantisation
@@ -223,12 +224,15 @@ def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: in
         raise ValueError("the fit window holds fewer than 12 samples")
     strong = min(win.strong, hi - lo)
     alpha0, w0 = initial_estimate(y[lo:lo + max(strong, 12)], win.samples_per_period)
-    x, solved = refined(y[lo:hi], alpha0, w0)
+    x, converged, factor = refined(y[lo:hi], alpha0, w0)
+    solved = converged
     if stop is None:
         sigma = _rms(y[lo:hi] - grid_model(x, hi - lo))
         end = _envelope_end(x, sigma, lo, hi, strong)
         solved, hi = solved and end == hi, end
-    ring = fit_damped_sine(t[lo:hi], y[lo:hi], x, dt, noise=noise, offset_index=lo, solved=solved)
+    # (a solution on a longer window is close to this one's)
+    ring = fit_damped_sine(t[lo:hi], y[lo:hi], x, dt, noise=noise, offset_index=lo, solved=solved,
+                           factor=factor if solved else None, close=converged)
     lags = ring.fit.noise_correlation_extent_samples.get("tank", 0)
     decay = float(ring.fit["alpha"]) * dt  # nepers per sample
     # a later start scales the variances by about exp(2·alpha·shift): allow 10 % at most
@@ -239,7 +243,7 @@ def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: in
         # heavily; start up to one correlation extent later
         lo += shift
         ring = fit_damped_sine(t[lo:hi], y[lo:hi], ring_parameters_at(ring, shift), dt, noise=noise,
-                               offset_index=lo)
+                               offset_index=lo, close=True)
     return ring
 
 
@@ -254,7 +258,8 @@ def ring_parameters_at(ring: DampedSineFit, shift: int) -> np.ndarray:
 
 
 def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interval: float, *,
-                    noise: str = "auto", offset_index: int = 0, solved: bool = False) -> DampedSineFit:
+                    noise: str = "auto", offset_index: int = 0, solved: bool = False,
+                    factor: np.ndarray | None = None, close: bool = False) -> DampedSineFit:
     """Final weighted least-squares fit on one window, starting from ``x0`` in sample units.
 
     ``x0`` = (offset, a, b, alpha, w_d) with alpha in nepers per sample and w_d in
@@ -263,7 +268,11 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     unweighted pass is the unweighted least squares :func:`refine` would give, so it is not
     refined first (that took a sixth of a 10⁶-sample analysis; docs/performance.md, "Third
     round", says how far results moved). ``solved`` says that ``x0`` is that least squares'
-    converged solution on this same window (:func:`refined`'s): the pass is then skipped.
+    converged solution on this same window (:func:`refined`'s): the pass is then skipped, and
+    ``factor``, when given, is that solve's triangular factor of [J | f] at ``x0``, which the
+    covariance reuses when the noise is white. ``close`` says that ``x0`` is within a few standard errors of the solution (a fit of a
+    longer window carried to this one): the pass starts with Gauss–Newton steps
+    (:func:`wavefit.fit.engine.fit_least_squares`'s ``close_start``).
     """
     n = y.size
     x0 = np.asarray(x0, dtype=float)
@@ -279,7 +288,8 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     upper = np.array([np.inf, np.inf, np.inf, np.inf, math.pi])
     blocks = [Block(0, n, "tank")]
     fit = fit_least_squares(fun, jac, x0, NAMES, blocks, model="damped sinusoid",
-                            noise=noise, bounds=(lower, upper), x_scale=_x_scale(x0), solved_start=solved)
+                            noise=noise, bounds=(lower, upper), x_scale=_x_scale(x0), solved_start=solved,
+                            close_start=close, start_factor=factor)
     fit = include_quantisation(fit, y, lambda x: grid_model(x, n), lambda x: pieced_jacobian(x, n), blocks)
     scale = np.array([1.0, 1.0, 1.0, 1.0 / sample_interval, 1.0 / sample_interval])
     physical = dataclasses.replace(fit, values=fit.values * scale,
@@ -379,31 +389,50 @@ def refine(y: np.ndarray, alpha: float, w: float) -> np.ndarray:
     return refined(y, alpha, w)[0]
 
 
-def refined(y: np.ndarray, alpha: float, w: float) -> tuple[np.ndarray, bool]:
-    """:func:`refine`'s parameters, and whether they are the converged solution on the whole
-    of ``y`` (its last window's solve was kept and ended by its tolerances)."""
+_LOWER = np.array([-np.inf, -np.inf, -np.inf, -np.inf, 0.0])
+_UPPER = np.array([np.inf, np.inf, np.inf, np.inf, math.pi])
+
+
+def refined(y: np.ndarray, alpha: float, w: float) -> tuple[np.ndarray, bool, np.ndarray | None]:
+    """:func:`refine`'s parameters, whether they are the converged solution on the whole of
+    ``y`` (its last window's solve was kept and ended by its tolerances), and the triangular
+    factor of [J | f] there when the solve ended on one (else None).
+
+    Each window after the first starts from the one before's solution, its amplitudes solved
+    again: Gauss–Newton steps (:func:`~wavefit.fit.gauss_newton.descend`) are tried first on
+    a long window, the Levenberg–Marquardt solver where they do not settle."""
     n = y.size
     length = int(min(n, max(24, 3 * 2 * math.pi / max(w, 1e-9))))
     # the amplitudes are solved on each shorter window below; on the whole record only when
     # the first window is the whole record
     x = _linear_start(y, alpha, w) if length >= n else np.array([0.0, 0.0, 0.0, alpha, w])
+    first = length
     while True:
         seg = y[:length]
         if length < n:
             x = _linear_start(seg, x[3], x[4])
-        residuals, jac = _start_problem(seg)
-        res = optimize.least_squares(residuals, x, jac=jac, method="lm", x_scale=_x_scale(x),
-                                     xtol=1e-12, ftol=1e-12)
-        kept = bool(np.all(np.isfinite(res.x)) and 0 < res.x[4] < math.pi and res.x[3] * length > -20.0)
+        residuals, jac, factor, kept_factor = _start_problem(seg)
+        found = (descend(factor, x, _LOWER, _UPPER, NEGLIGIBLE_CHANGE)
+                 if factor is not None and length > first else None)
+        if found is not None:
+            (solution, at_solution), converged = found, True
+        else:
+            res = optimize.least_squares(residuals, x, jac=jac, method="lm", x_scale=_x_scale(x),
+                                         xtol=1e-12, ftol=1e-12)
+            solution, converged = res.x, res.status > 0  # (0: stopped by the count of evaluations)
+            at_solution = kept_factor(solution)
+        kept = bool(np.all(np.isfinite(solution)) and 0 < solution[4] < math.pi and solution[3] * length > -20.0)
         if kept:
-            x = res.x  # (a free ring decays: a fit that grows e-fold many times over is rejected)
+            x = solution  # (a free ring decays: a fit that grows e-fold many times over is rejected)
         if length >= n:
-            return x, kept and res.status > 0  # (0: stopped by the count of evaluations)
+            return x, kept and converged, at_solution if kept else None
         length = min(n, 2 * length)
 
 
-def _start_problem(seg: np.ndarray) -> tuple[Callable, Callable]:
-    """Residual and Jacobian functions of the unweighted refinement of ``seg``.
+def _start_problem(seg: np.ndarray) -> tuple[Callable, Callable, Callable | None, Callable]:
+    """Residual and Jacobian functions of the unweighted refinement of ``seg``, the function
+    giving the triangular factor of [J | f] at a point (None for a short segment, held whole),
+    and the one giving the factor kept from the solve at a point (None where there is none).
 
     A long segment is handed to the solver as the triangular factor of [J | f]
     (:class:`~wavefit.fit.compressed.TriangularProblem`: the same Levenberg–Marquardt steps
@@ -414,10 +443,10 @@ def _start_problem(seg: np.ndarray) -> tuple[Callable, Callable]:
         return r
 
     if is_small(seg.size, len(NAMES)):
-        return residuals, lambda v: grid_jacobian(v, 0, seg.size)
+        return residuals, lambda v: grid_jacobian(v, 0, seg.size), None, lambda v: None
     problem = TriangularProblem(residuals, lambda v: pieced_jacobian(v, seg.size), [Block(0, seg.size, "tank")],
                                 {"tank": white(1.0)})
-    return problem.residuals, problem.jacobian
+    return problem.residuals, problem.jacobian, problem.factor, problem.kept
 
 
 def _linear_start(y: np.ndarray, alpha: float, w: float) -> np.ndarray:

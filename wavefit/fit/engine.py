@@ -36,6 +36,7 @@ import numpy as np
 from ..errors import AnalysisRefused
 from .compressed import TriangularProblem, triangle
 from .constraints import ParameterMap
+from .gauss_newton import descend
 from .jacobian import Jacobian, as_jacobian, is_small
 from .noise_model import ARNoise, fit_ar, white
 from .portmanteau import ljung_box, structured
@@ -82,7 +83,8 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
                       model: str, bounds: tuple = (-np.inf, np.inf), noise: str = "auto",
                       x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
                       sigma: dict[str, float] | None = None, fitted_start: bool = False,
-                      solved_start: bool = False) -> FitResult:
+                      solved_start: bool = False, close_start: bool = False,
+                      start_factor: np.ndarray | None = None) -> FitResult:
     """Fit ``fun`` (residual = data − model, for all blocks concatenated) over the vector ``x``.
 
     The start ``x0``, the ``names`` and the ``bounds`` become free
@@ -96,13 +98,18 @@ def fit_least_squares(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "
     unit weights (such as :func:`wavefit.fit.damped_sine.refine`'s on the same window), or,
     with ``fitted_start`` and several groups, with each group weighed by its scatter about
     the fitted start from which the caller solved it
-    (:meth:`wavefit.fit.exponential.ProjectedProblem.weighted_solution`).
+    (:meth:`wavefit.fit.exponential.ProjectedProblem.weighted_solution`). ``close_start``
+    says that ``x0`` is within a few standard errors of the solution (another fit's parameters
+    carried to part of its window): the first solve then tries Gauss–Newton steps
+    (:mod:`wavefit.fit.gauss_newton`) before the trust-region solver. ``start_factor``, with
+    ``solved_start`` and one noise group, is the triangular factor of [J | f] at ``x0`` with
+    unit weights (the solve's that reached it), which the covariance then reuses.
     """
     x0, lower, upper = checked_start(x0, names, bounds)
     mapping = ParameterMap.all_free(x0, tuple(names), lower, upper)
     return fit_free(fun, jac, mapping, blocks, model=model, noise=noise, x_scale=x_scale,
                     max_ar_order=max_ar_order, sigma=sigma, fitted_start=fitted_start,
-                    solved_start=solved_start)
+                    solved_start=solved_start, close_start=close_start, start_factor=start_factor)
 
 
 def fit_parameters(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarray | Jacobian"],
@@ -149,10 +156,12 @@ def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarra
              mapping: ParameterMap, blocks: Sequence[Block], *, model: str, noise: str = "auto",
              x_scale: Sequence[float] | str = "jac", max_ar_order: int = 30,
              sigma: dict[str, float] | None = None, fitted_start: bool = False,
-             solved_start: bool = False) -> FitResult:
+             solved_start: bool = False, close_start: bool = False,
+             start_factor: np.ndarray | None = None) -> FitResult:
     """:func:`fit_parameters` with the result over the free parameters of ``mapping`` only
     (for a caller that corrects it further before :meth:`ParameterMap.expanded`);
-    ``fitted_start`` and ``solved_start`` as for :func:`fit_least_squares`."""
+    ``fitted_start``, ``solved_start``, ``close_start`` and ``start_factor`` as for
+    :func:`fit_least_squares`."""
     if noise not in ("auto", "white", "known"):
         raise ValueError("noise must be 'auto', 'white' or 'known'")
     blocks = list(blocks)
@@ -162,7 +171,8 @@ def fit_free(fun: Callable[[Vector], Vector], jac: Callable[[Vector], "np.ndarra
         raise ValueError("fewer samples than parameters")
     with refused_when_out_of_memory(model, m, p):
         return _fit(mapping.residual_function(fun), mapping.jacobian_function(jac), mapping.start(), mapping,
-                    blocks, model, noise, x_scale, max_ar_order, sigma, fitted_start, solved_start)
+                    blocks, model, noise, x_scale, max_ar_order, sigma, fitted_start, solved_start,
+                    close_start, start_factor)
 
 
 def checked_start(x0: Sequence[float], names: Sequence[str],
@@ -192,7 +202,8 @@ def refused_when_out_of_memory(model: str, samples: int, parameters: int) -> Ite
 
 
 def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_ar_order, sigma,
-         fitted_start: bool = False, solved_start: bool = False) -> FitResult:
+         fitted_start: bool = False, solved_start: bool = False, close_start: bool = False,
+         start_factor: np.ndarray | None = None) -> FitResult:
     """The fit over the free parameters of ``mapping`` (``fun``, ``jac`` and ``x`` theirs)."""
     groups = sorted({b.group for b in blocks})
     m = sum(b.stop - b.start for b in blocks)
@@ -208,19 +219,23 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
     else:
         models = {g: white(1.0) for g in groups}
     small = is_small(m, p)
+    solved = (start_factor if solved_start else None, models)  # the last solve's factor at x, and its models
     if not (solved_start and noise != "known"):
-        x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+        x, factor = _solve(fun, jac, x, mapping, blocks, models, x_scale, small, close_start)
+        solved = (factor, models)
     r = fun(x)  # the residuals at the current x, evaluated once for every use there
     if noise != "known":
         models = _scatter_models(r, blocks, groups, p, m)
         if len(groups) > 1 and not weighed_at_start:
-            x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+            x, factor = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+            solved = (factor, models)
             r = fun(x)
             models = _scatter_models(r, blocks, groups, p, m)
     if noise == "auto":
         models = _ar_models(r, blocks, groups, max_ar_order)
         if any(mod.order for mod in models.values()):
-            x = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+            x, factor = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+            solved = (factor, models)
             r = fun(x)
             models = _ar_models(r, blocks, groups, max_ar_order)
 
@@ -229,8 +244,10 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
     ar_params = sum(mod.order for mod in models.values())
     dof = float(e.size - p - ar_params)
     s2 = float(e @ e) / dof if noise != "known" else 1.0
-    whitened = (whiten(jacobian.toarray(), blocks, models) if small
-                else triangle(jacobian, None, blocks, models)[:p, :p])
+    whitened = _kept_factor(*solved, models)
+    if whitened is None:
+        whitened = (whiten(jacobian.toarray(), blocks, models) if small
+                    else triangle(jacobian, None, blocks, models)[:p, :p])
     bread = _inverse_normal_matrix(whitened, m)
     if not np.all(np.isfinite(bread)):
         raise ValueError("the data do not determine every fit parameter (singular normal matrix)")
@@ -266,20 +283,53 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
     )
 
 
-def _solve(fun, jac, x, mapping: ParameterMap, blocks, models, x_scale, small: bool) -> Vector:
-    if small:
+def _kept_factor(factor: np.ndarray | None, solve_models: dict[str, ARNoise],
+                 models: dict[str, ARNoise]) -> np.ndarray | None:
+    """The triangular factor of the whitened Jacobian at the solution, from the last solve's
+    factor of [J | f] there (``factor``, whitened by ``solve_models``), when the final noise
+    model differs from the solve's by a scale alone (one noise group, white in both): the
+    covariance then needs no factor of its own. None otherwise."""
+    if factor is None or len(models) != 1:
+        return None
+    (group, final), = models.items()
+    used = solve_models[group]
+    if final.order or used.order:
+        return None
+    p = factor.shape[0] - 1
+    return factor[:p, :p] * (used.sigma_e / final.sigma_e)
+
+
+def _solve(fun, jac, x, mapping: ParameterMap, blocks, models, x_scale, small: bool,
+           close: bool = False) -> tuple[Vector, np.ndarray | None]:
+    """The solution from ``x``, and the triangular factor of the whitened [J | f] there when
+    the solve ended on one (else None). ``close``: ``x`` is within a few standard errors of the
+    solution, and Gauss–Newton steps (:func:`~wavefit.fit.gauss_newton.descend`) are tried
+    before the trust-region solver, which takes the same start where they do not settle."""
+    problem = None if small else TriangularProblem(fun, jac, blocks, models)
+    if close:
+        if problem is not None:
+            factor = problem.factor
+        else:
+            def factor(v):
+                rows = np.column_stack([whiten(as_jacobian(jac(v)).toarray(), blocks, models),
+                                        whiten(fun(v), blocks, models)])
+                return np.linalg.qr(rows, mode="r")
+        lower, upper = (np.broadcast_to(np.asarray(b, dtype=float), x.shape) for b in mapping.bounds())
+        found = descend(factor, x, lower, upper, NEGLIGIBLE_CHANGE)
+        if found is not None:
+            return found
+    if problem is None:
         def residuals(v):
             return whiten(fun(v), blocks, models)
 
         def jacobian(v):
             return whiten(as_jacobian(jac(v)).toarray(), blocks, models)
     else:
-        problem = TriangularProblem(fun, jac, blocks, models)
         residuals, jacobian = problem.residuals, problem.jacobian
     x = minimise(mapping.free_parameters(x), mapping.free_names, residuals, jacobian, x_scale)
     if not np.all(np.isfinite(x)):
         raise FloatingPointError("least squares diverged")
-    return x
+    return x, (None if problem is None else problem.kept(x))
 
 
 def minimise(params: lmfit.Parameters, names: Sequence[str], residuals: Callable[[Vector], Vector],

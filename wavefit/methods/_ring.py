@@ -342,7 +342,7 @@ def _halves(ring: DampedSineFit, y: np.ndarray, noise: str) -> tuple[DampedSineF
     for lo, hi, x0 in ((0, split, x), (split, n, late0)):
         seg = y[ring.start + lo:ring.start + hi]
         try:
-            parts.append(fit_damped_sine(np.arange(lo, hi) * dt, seg, x0, dt, noise=noise))
+            parts.append(fit_damped_sine(np.arange(lo, hi) * dt, seg, x0, dt, noise=noise, close=True))
         except (ValueError, FloatingPointError, np.linalg.LinAlgError):
             return "a partial fit failed"
     return parts[0], parts[1]
