@@ -239,3 +239,26 @@ def test_a_close_start_gives_the_fit_of_the_trust_region_solve(correlation):
         se = np.sqrt(np.diag(b.fit.covariance))
         assert np.all(np.abs(a.fit.values - b.fit.values) <= 1e-6 * se)
         np.testing.assert_allclose(a.fit.covariance, b.fit.covariance, rtol=1e-8, atol=1e-12 * np.max(se) ** 2)
+
+
+@pytest.mark.parametrize("correlation, noise", [(0, 0.01), (6, 0.01), (0, 0.1)])
+def test_a_refinement_on_every_kth_sample_leads_to_the_same_fit(monkeypatch, correlation, noise):
+    # at 200 samples per period the refinement's shorter windows see every 8th to 12th sample; the fit on every sample
+    # from its solution is the fit from the refinement on every sample, to a millionth of a
+    # standard error, with the same covariance (noise 1 % and 10 % of the ring's peak)
+    import wavefit.fit.damped_sine as damped_sine
+
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=0.5, feed_resistance=20e3)
+    alpha, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * 200)
+    t, v = ringdown(tank, dt, 60_000, pre_trigger=500)
+    y = ScopeModel(noise_rms=noise * float(np.max(np.abs(v))),
+                   correlation_samples=correlation).apply(v, np.random.default_rng(11))
+    strided = fit_ring(t, y)
+    assert damped_sine.refine_stride(w_d * dt, strided.stop - strided.start) >= 8  # so the case tests a stride
+    monkeypatch.setattr(damped_sine, "refine_stride", lambda w, n: 1)
+    every = fit_ring(t, y)
+    assert (strided.start, strided.stop) == (every.start, every.stop)
+    se = np.sqrt(np.diag(every.fit.covariance))
+    assert np.all(np.abs(strided.fit.values - every.fit.values) <= 1e-6 * se)
+    np.testing.assert_allclose(strided.fit.covariance, every.fit.covariance, rtol=1e-7, atol=1e-12 * np.max(se) ** 2)
