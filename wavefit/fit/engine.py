@@ -3,7 +3,9 @@
 Stage 1 is ordinary least squares, with one weight per noise group (channel) taken
 from its residual scatter. Stage 2, when
 ``noise="auto"``, fits an AR model per noise group to the residuals and refits
-the whitened problem (feasible GLS, see :mod:`wavefit.fit.noise_model`). The
+the whitened problem (feasible GLS, see :mod:`wavefit.fit.noise_model`); a refit, and a
+first solve whose caller says its start is close, starts with Gauss–Newton steps
+(:mod:`wavefit.fit.gauss_newton`), the solver taking over where they do not settle. The
 covariance is s²·(JᵀJ)⁻¹ of the whitened, weighted problem, the usual
 linearised estimate (e.g. Seber & Wild 1989, §2.1), which is also how the
 NIST StRD certified standard deviations are defined.
@@ -224,17 +226,19 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
         x, factor = _solve(fun, jac, x, mapping, blocks, models, x_scale, small, close_start)
         solved = (factor, models)
     r = fun(x)  # the residuals at the current x, evaluated once for every use there
+    # each solve below starts from the solution of the one before, whose weights or whitening
+    # differ: within a few standard errors of its own, so Gauss–Newton steps are tried first
     if noise != "known":
         models = _scatter_models(r, blocks, groups, p, m)
         if len(groups) > 1 and not weighed_at_start:
-            x, factor = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+            x, factor = _solve(fun, jac, x, mapping, blocks, models, x_scale, small, close=True)
             solved = (factor, models)
             r = fun(x)
             models = _scatter_models(r, blocks, groups, p, m)
     if noise == "auto":
         models = _ar_models(r, blocks, groups, max_ar_order)
         if any(mod.order for mod in models.values()):
-            x, factor = _solve(fun, jac, x, mapping, blocks, models, x_scale, small)
+            x, factor = _solve(fun, jac, x, mapping, blocks, models, x_scale, small, close=True)
             solved = (factor, models)
             r = fun(x)
             models = _ar_models(r, blocks, groups, max_ar_order)
