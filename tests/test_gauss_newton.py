@@ -87,3 +87,44 @@ def test_a_close_start_gives_the_certified_values_and_standard_deviations(name):
         for k, b in enumerate(("b1", "b2")):
             assert sig_digits(fit[b], best[k]) >= 6, (close, b, fit[b], best[k])
             assert sig_digits(fit.stderr(b), std[k]) >= 6, (close, b, fit.stderr(b), std[k])
+
+
+def test_refits_reach_the_solver_s_solution(monkeypatch):
+    # the engine's refits (two channels weighed by their scatter, then whitened by their AR
+    # models) start with the steps from the solve before; the truth is the same fit with the
+    # steps disabled (every solve the trust-region solver's): the same values to a millionth
+    # of a standard error, the same covariance and noise models
+    from scipy.signal import lfilter
+
+    import wavefit.fit.engine as engine
+
+    rng = np.random.default_rng(8)
+    t = np.linspace(0.0, 5.0, 4000)
+    truth = np.array([0.2, 1.5, 1.2, -0.4])  # levels of two channels on one exponential, then tau
+    clean = np.concatenate([truth[0] + truth[1] * np.exp(-t / truth[2]), truth[3] * np.exp(-t / truth[2])])
+    noise = lfilter([1.0], [1.0, -0.7], rng.standard_normal(clean.size))  # AR(1): a refit by its model
+    y = clean + np.concatenate([0.01 * noise[:t.size], 0.03 * noise[t.size:]])
+    n = t.size
+
+    def fun(b):
+        e = np.exp(-t / b[2])
+        return y - np.concatenate([b[0] + b[1] * e, b[3] * e])
+
+    def jac(b):
+        e = np.exp(-t / b[2])
+        de = e * t / b[2] ** 2
+        top = np.column_stack([np.ones(n), e, b[1] * de, np.zeros(n)])
+        bottom = np.column_stack([np.zeros(n), np.zeros(n), b[3] * de, e])
+        return -np.vstack([top, bottom])
+
+    blocks = [Block(0, n, "a"), Block(n, 2 * n, "b")]
+    names = ["c", "a", "tau", "d"]
+    start = truth * 1.01
+    stepped = fit_least_squares(fun, jac, start, names, blocks, model="two channels")
+    monkeypatch.setattr(engine, "descend", lambda *args: None)
+    solver = fit_least_squares(fun, jac, start, names, blocks, model="two channels")
+    assert {g: m["order"] for g, m in stepped.noise_model.items()} == {"a": 1, "b": 1}  # so refits happen
+    assert {g: m["order"] for g, m in solver.noise_model.items()} == {"a": 1, "b": 1}
+    se = np.sqrt(np.diag(solver.covariance))
+    assert np.all(np.abs(stepped.values - solver.values) <= 1e-6 * se)
+    np.testing.assert_allclose(stepped.covariance, solver.covariance, rtol=1e-7)
