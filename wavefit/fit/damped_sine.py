@@ -418,7 +418,7 @@ def refined(y: np.ndarray, alpha: float, w: float) -> tuple[np.ndarray, bool, np
     before's solution with its amplitudes solved again; a finely sampled ring's windows hold
     every k-th sample (:func:`refine_stride`) but the last, which holds every sample. After
     the first window, Gauss–Newton steps (:func:`~wavefit.fit.gauss_newton.descend`) are tried
-    first on a long window, the Levenberg–Marquardt solver where they do not settle."""
+    first, the Levenberg–Marquardt solver where they do not settle."""
     stride = refine_stride(w, y.size)
     if stride == 1:
         return _doubled(y, alpha, w)
@@ -446,10 +446,10 @@ def _doubled(y: np.ndarray, alpha: float, w: float) -> tuple[np.ndarray, bool, n
 
 def _solved(seg: np.ndarray, x: np.ndarray, close: bool) -> tuple[np.ndarray, bool, np.ndarray | None]:
     """The unweighted least squares on ``seg`` from ``x`` (Gauss–Newton steps first when
-    ``close`` and the segment is long), whether it converged, and the factor of [J | f] there
+    ``close``), whether it converged, and the factor of [J | f] there
     when the solve ended on one; ``x`` itself, not converged, where the solution is rejected."""
     residuals, jac, factor, kept_factor = _start_problem(seg)
-    found = descend(factor, x, _LOWER, _UPPER, NEGLIGIBLE_CHANGE) if factor is not None and close else None
+    found = descend(factor, x, _LOWER, _UPPER, NEGLIGIBLE_CHANGE) if close else None
     if found is not None:
         (solution, at_solution), converged = found, True
     else:
@@ -463,10 +463,11 @@ def _solved(seg: np.ndarray, x: np.ndarray, close: bool) -> tuple[np.ndarray, bo
     return solution, converged, at_solution
 
 
-def _start_problem(seg: np.ndarray) -> tuple[Callable, Callable, Callable | None, Callable]:
+def _start_problem(seg: np.ndarray) -> tuple[Callable, Callable, Callable, Callable]:
     """Residual and Jacobian functions of the unweighted refinement of ``seg``, the function
-    giving the triangular factor of [J | f] at a point (None for a short segment, held whole),
-    and the one giving the factor kept from the solve at a point (None where there is none).
+    giving the triangular factor of [J | f] at a point (of the dense rows for a short segment,
+    held whole), and the one giving the factor kept from the solve at a point (None where there
+    is none).
 
     A long segment is handed to the solver as the triangular factor of [J | f]
     (:class:`~wavefit.fit.compressed.TriangularProblem`: the same Levenberg–Marquardt steps
@@ -477,7 +478,10 @@ def _start_problem(seg: np.ndarray) -> tuple[Callable, Callable, Callable | None
         return r
 
     if is_small(seg.size, len(NAMES)):
-        return residuals, lambda v: grid_jacobian(v, 0, seg.size), None, lambda v: None
+        def dense_factor(v: np.ndarray) -> np.ndarray:
+            return np.linalg.qr(np.column_stack([grid_jacobian(v, 0, seg.size), residuals(v)]), mode="r")
+
+        return residuals, lambda v: grid_jacobian(v, 0, seg.size), dense_factor, lambda v: None
     problem = TriangularProblem(residuals, lambda v: pieced_jacobian(v, seg.size), [Block(0, seg.size, "tank")],
                                 {"tank": white(1.0)})
     return problem.residuals, problem.jacobian, problem.factor, problem.kept
