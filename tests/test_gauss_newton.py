@@ -128,3 +128,32 @@ def test_refits_reach_the_solver_s_solution(monkeypatch):
     se = np.sqrt(np.diag(solver.covariance))
     assert np.all(np.abs(stepped.values - solver.values) <= 1e-6 * se)
     np.testing.assert_allclose(stepped.covariance, solver.covariance, rtol=1e-7)
+
+
+def test_a_bound_at_the_minimum_is_left_to_the_solver():
+    # a bound on tau placed at the unbounded minimum itself: from this start (a draw where it
+    # happens) the steps end within the reporting band of the bound and the fit would be
+    # reported as pressed against it; the trust-region solver stops strictly inside, as every
+    # fit did before the steps, and so does a close start now
+    rng = np.random.default_rng(12)
+    t = np.linspace(0, 10, 2000)
+    rng.standard_normal(3 * t.size)
+    y = 1.0 - 0.8 * np.exp(-t / 0.5) + 0.01 * rng.standard_normal(t.size)
+
+    def fun(b):
+        return y - (b[0] + b[1] * np.exp(-t / b[2]))
+
+    def jac(b):
+        e = np.exp(-t / b[2])
+        return -np.column_stack([np.ones_like(t), e, b[1] * e * t / b[2] ** 2])
+
+    blocks = [Block(0, t.size)]
+    free = fit_least_squares(fun, jac, [1.0, -0.8, 0.5], list("fct"), blocks, model="x", noise="white")
+    se = np.sqrt(np.diag(free.covariance))
+    lower = np.array([-np.inf, -np.inf, free.values[2]])
+    start = free.values + np.array([0.0, 0.0, 3.0 * se[2]])
+    fits = [fit_least_squares(fun, jac, start, list("fct"), blocks, model="x", noise="white",
+                              bounds=(lower, np.full(3, np.inf)), close_start=close) for close in (False, True)]
+    assert [f.parameters_at_bounds for f in fits] == [(), ()]
+    assert [f.warnings for f in fits] == [(), ()]
+    assert abs(fits[1].values[2] - fits[0].values[2]) <= 1e-4 * se[2]

@@ -320,7 +320,9 @@ def _solve(fun, jac, x, mapping: ParameterMap, blocks, models, x_scale, small: b
                 return np.linalg.qr(rows, mode="r")
         lower, upper = (np.broadcast_to(np.asarray(b, dtype=float), x.shape) for b in mapping.bounds())
         found = descend(factor, x, lower, upper, NEGLIGIBLE_CHANGE)
-        if found is not None:
+        # a solution on a bound is the solver's to find: it stops strictly inside, where the
+        # steps would end on the bound itself and be reported as pressed against it
+        if found is not None and not np.any(_on_bounds(found[0], lower, upper)):
             return found
     if problem is None:
         def residuals(v):
@@ -454,6 +456,19 @@ def _inverse_normal_matrix(r: np.ndarray, rows: int) -> np.ndarray:
     return ((vt.T * inv_s2) @ vt) / np.outer(norms, norms)
 
 
+#: A parameter closer to a bound than this share of the span between its bounds (of its value,
+#: at least 1, when one side is open) ended at that bound: the trust-region solver stays
+#: strictly inside its bounds, and a parameter it holds this close is pressed against one.
+AT_BOUND = 1e-9
+
+
+def _on_bounds(x: Vector, lower: np.ndarray, upper: np.ndarray) -> np.ndarray:
+    """Whether each parameter of ``x`` ended at one of its bounds (:data:`AT_BOUND`)."""
+    span = np.where(np.isfinite(upper - lower), upper - lower, np.maximum(np.abs(x), 1.0))
+    with np.errstate(invalid="ignore"):
+        return (np.isfinite(lower) & (x - lower <= AT_BOUND * span)) | (np.isfinite(upper) & (upper - x <= AT_BOUND * span))
+
+
 def _diagnose(e: np.ndarray, x: Vector, bounds, names,
               coloured: bool = False) -> tuple[dict, list[str], tuple[str, ...]]:
     """Reported figures, warnings, and the parameters that ended at a bound."""
@@ -472,9 +487,8 @@ def _diagnose(e: np.ndarray, x: Vector, bounds, names,
             warns.append("residuals are not noise-like (Ljung-Box p = %.1e, largest autocorrelation %.2f): "
                          "the model misses part of the waveform" % (p_value, float(np.max(np.abs(rho)))))
     lo, hi = (np.broadcast_to(np.asarray(b, dtype=float), x.shape) for b in bounds)
-    for name, v, a, b in zip(names, x, lo, hi):
-        span = (b - a) if np.isfinite(b - a) else max(abs(v), 1.0)
-        if (np.isfinite(a) and v - a <= 1e-9 * span) or (np.isfinite(b) and b - v <= 1e-9 * span):
+    for name, v, on in zip(names, x, _on_bounds(x, lo, hi)):
+        if on:
             warns.append(f"fit parameter {name} ended at its bound ({v:.6g}); the fit cannot be trusted")
             at_bounds.append(name)
     return ({"ljung_box_p": p_value, "residual_autocorrelation_lag1": float(rho[0]) if rho.size else 0.0}, warns,
