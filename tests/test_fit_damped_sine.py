@@ -163,6 +163,16 @@ def test_grid_forms_match_the_direct_model(alpha, w):
         assert np.max(np.abs(j[:, k] - numeric)) < 1e-5 * max(1.0, np.max(np.abs(numeric)))
 
 
+def tank_ring(samples_per_period: float, dcr: float, pre_trigger: int = 0) -> tuple[np.ndarray, np.ndarray, float]:
+    """A 60,000-sample ring of 100 µH and 10 nF (Q set by ``dcr``), without noise: times,
+    samples, and the ring's radians per sample."""
+    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=dcr, feed_resistance=20e3)
+    _, w_d = tank.poles()
+    dt = 2 * math.pi / (w_d * samples_per_period)
+    t, v = ringdown(tank, dt, 60_000, pre_trigger=pre_trigger)
+    return t, v, w_d * dt
+
+
 @pytest.mark.parametrize("correlation", [1, 6])
 def test_fit_from_a_solved_start_is_the_fit_that_solves_again(correlation):
     # a window's final fit told that its start is already the unweighted least squares on it
@@ -170,12 +180,9 @@ def test_fit_from_a_solved_start_is_the_fit_that_solves_again(correlation):
     # model as the fit that solves it again, in white and in band-limited noise
     from wavefit.fit.damped_sine import fit_damped_sine, initial_estimate, refined
 
-    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=4.0, feed_resistance=20e3)
-    alpha, w_d = tank.poles()
-    dt = 2 * math.pi / (w_d * 50)
-    t, v = ringdown(tank, dt, 60_000, pre_trigger=0)
-    scope = ScopeModel(noise_rms=0.002, correlation_samples=correlation)
-    y = scope.apply(v, np.random.default_rng(correlation))
+    t, v, _ = tank_ring(50, 4.0)
+    dt = t[1] - t[0]
+    y = ScopeModel(noise_rms=0.002, correlation_samples=correlation).apply(v, np.random.default_rng(correlation))
     win = ring_window(y)
     alpha0, w0 = initial_estimate(y[win.start:win.start + win.strong], win.samples_per_period)
     x, solved, factor = refined(y[win.start:], alpha0, w0)
@@ -219,10 +226,8 @@ def test_a_close_start_gives_the_fit_of_the_trust_region_solve(correlation):
     # is the truth: the same values to a millionth of a standard error, the same covariance
     from wavefit.methods._ring import _halves
 
-    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=4.0, feed_resistance=20e3)
-    alpha, w_d = tank.poles()
-    dt = 2 * math.pi / (w_d * 50)
-    t, v = ringdown(tank, dt, 60_000, pre_trigger=0)
+    t, v, _ = tank_ring(50, 4.0)
+    dt = t[1] - t[0]
     y = ScopeModel(noise_rms=0.002, correlation_samples=correlation).apply(v, np.random.default_rng(7))
     ring = fit_ring(t, y)
     stepped = _halves(ring, y, "auto")
@@ -243,19 +248,17 @@ def test_a_close_start_gives_the_fit_of_the_trust_region_solve(correlation):
 
 @pytest.mark.parametrize("correlation, noise", [(0, 0.01), (6, 0.01), (0, 0.1)])
 def test_a_refinement_on_every_kth_sample_leads_to_the_same_fit(monkeypatch, correlation, noise):
-    # at 200 samples per period the refinement's shorter windows see every 8th to 12th sample; the fit on every sample
-    # from its solution is the fit from the refinement on every sample, to a millionth of a
-    # standard error, with the same covariance (noise 1 % and 10 % of the ring's peak)
+    # at 200 samples per period the refinement's shorter windows see every 8th to 12th
+    # sample; the fit on every sample from its solution is the fit from the refinement on
+    # every sample, to a millionth of a standard error, with the same covariance (noise 1 %
+    # and 10 % of the ring's peak)
     import wavefit.fit.damped_sine as damped_sine
 
-    tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=0.5, feed_resistance=20e3)
-    alpha, w_d = tank.poles()
-    dt = 2 * math.pi / (w_d * 200)
-    t, v = ringdown(tank, dt, 60_000, pre_trigger=500)
+    t, v, w = tank_ring(200, 0.5, pre_trigger=500)
     y = ScopeModel(noise_rms=noise * float(np.max(np.abs(v))),
                    correlation_samples=correlation).apply(v, np.random.default_rng(11))
     strided = fit_ring(t, y)
-    assert damped_sine.refine_stride(w_d * dt, strided.stop - strided.start) >= 8  # so the case tests a stride
+    assert damped_sine.refine_stride(w, strided.stop - strided.start) >= 8  # so the case tests a stride
     monkeypatch.setattr(damped_sine, "refine_stride", lambda w, n: 1)
     every = fit_ring(t, y)
     assert (strided.start, strided.stop) == (every.start, every.stop)
