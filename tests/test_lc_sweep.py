@@ -72,20 +72,25 @@ Ct tank 0 {c_tank}
     return pd.DataFrame({"t": t[::4], "tank": y})
 
 
-@needs_ngspice
-@pytest.mark.ngspice
-def test_sweep_matches_ngspice(tmp_path):
+def _written_sweep(folder) -> None:
+    """Four ngspice rings and their setup, sweep.toml, written into ``folder``."""
     caps = [100e-12, 220e-12, 470e-12, 1e-9]
     entries = []
     for k, c in enumerate(caps):
         name = f"ring{k}.csv"
-        _capture(c, seed=k).to_csv(tmp_path / name, index=False)
+        _capture(c, seed=k).to_csv(folder / name, index=False)
         entries.append({"file": name, "tank_capacitor": f"{c} F ±1%"})
     lines = ['method = "lc-sweep"', "[columns]", 'time = "t"', 'tank = "tank"', "[parts]",
              'parallel_load = "100 kohm ±1%"']
     for e in entries:
         lines += ["[[captures]]", f'file = "{e["file"]}"', f'tank_capacitor = "{e["tank_capacitor"]}"']
-    (tmp_path / "sweep.toml").write_text("\n".join(lines) + "\n")
+    (folder / "sweep.toml").write_text("\n".join(lines) + "\n")
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_sweep_matches_ngspice(tmp_path):
+    _written_sweep(tmp_path)
     result = wavefit.analyze(None, setup=tmp_path / "sweep.toml")
     q = result.quantities
     # issue 4 acceptance: L within 1 %, C within its expanded uncertainty or 15 %
@@ -115,6 +120,27 @@ def test_wrong_capacitor_value_is_flagged(written):
         return
     result = wavefit.analyze(frames, setup=setup)
     assert any("do not lie on a line" in w for w in result.warnings)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_a_folder_of_the_entries_files_from_the_command_line(tmp_path):
+    # cli.md: a CAPTURE that is a folder holding a file of each entry's name is read in their
+    # place; the command line hands its CAPTUREs over as a list (a list of one folder was
+    # taken as one capture for several entries and refused)
+    import json
+    import subprocess
+    import sys
+
+    folder = tmp_path / "part7"
+    folder.mkdir()
+    _written_sweep(folder)
+    setup = folder / "sweep.toml"
+    proc = subprocess.run([sys.executable, "-m", "wavefit.cli", "analyze", str(folder),
+                           "--setup", str(setup), "--json"], capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    by_folder = json.loads(proc.stdout)["quantities"]["L"]["value"]
+    assert by_folder == wavefit.analyze(None, setup=setup).quantities["L"].value
 
 
 def test_one_capture_is_refused():

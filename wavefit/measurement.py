@@ -148,8 +148,9 @@ def capture_sources(source: Any, setup: Setup, count: CaptureCount
     source
         Without ``[[captures]]`` entries: the one capture (path, DataFrame, Capture).
         With entries: ``None`` (the entries' files), a folder holding a file of each
-        entry's name (one part's captures, as batch gives them), or a sequence of sources
-        that replaces the entries' files in order.
+        entry's name (one part's captures, as batch gives them; also as a sequence of that one
+        folder, as the command line gives it), or a sequence of sources that replaces the
+        entries' files in order.
     setup
         The parsed setup.
     count
@@ -173,9 +174,11 @@ def capture_sources(source: Any, setup: Setup, count: CaptureCount
         if source is None:
             raise SetupError(f"method {setup.method!r} needs a capture to analyse")
         return [source], None
+    if isinstance(source, (list, tuple)) and len(source) == 1 and _is_folder(source[0]):
+        source = source[0]  # (the command line gives its one CAPTURE in a list)
     if source is None:
         sources: list[Any] = [entry.file for entry in setup.captures]
-    elif isinstance(source, (str, os.PathLike)) and os.path.isdir(source):
+    elif _is_folder(source):
         sources = [os.path.join(source, entry.file.name) for entry in setup.captures]
     else:
         sources = list(source) if isinstance(source, (list, tuple)) else [source]
@@ -190,6 +193,10 @@ def capture_sources(source: Any, setup: Setup, count: CaptureCount
         raise AnalysisRefused(f"{setup.source}: {setup.method} needs {count.describe()}{reason}, "
                               f"got {_count_word(len(sources))}")
     return sources, setup.captures
+
+
+def _is_folder(source: Any) -> bool:
+    return isinstance(source, (str, os.PathLike)) and os.path.isdir(source)
 
 
 def _count_word(count: int) -> str:
