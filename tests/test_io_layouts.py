@@ -215,6 +215,32 @@ def test_every_layout_reads_the_same_waveform(layout: Layout, tmp_path: Path) ->
         assert described["max"] == pytest.approx(reference.max(), rel=1e-9)
 
 
+@pytest.mark.parametrize("preamble", [
+    ["Record Length,240", "Sample Interval,2.5e-08", ""],   # a logger's export: a blank line, then the numbers
+    ["Sample Interval: 25 ns"],
+    ["Record Length;240", "Sampling rate;40 MSa/s"],
+])
+def test_one_column_under_its_interval_line(preamble: list[str], tmp_path: Path) -> None:
+    # a table of one column has no header here: the line right above it is the preamble's
+    # interval, whose one cell would fit a header of one column (it was taken as the column's
+    # name, and the file refused as having "no time information")
+    path = tmp_path / "logger.csv"
+    path.write_text("\n".join([*preamble, *_table([VOLTS])]) + "\n")
+    capture = read_capture(path)
+    assert capture.rows == N
+    assert capture.sample_interval == pytest.approx(DT, rel=1e-9)
+    (channel,) = capture.channels
+    np.testing.assert_allclose(channel.values, VOLTS, rtol=1e-9)
+
+
+def test_a_one_column_header_is_still_a_header(tmp_path: Path) -> None:
+    path = tmp_path / "logger.csv"
+    path.write_text("\n".join(["Sample Interval,2.5e-08", "CH1 (V)", *_table([VOLTS])]) + "\n")
+    capture = read_capture(path)
+    assert [c.header for c in capture.channels] == ["CH1 (V)"]
+    assert capture.sample_interval == pytest.approx(DT, rel=1e-9)
+
+
 def test_units_found_in_each_layout(tmp_path: Path) -> None:
     path = tmp_path / "units.csv"
     path.write_bytes(prefixed_units()[0])

@@ -22,6 +22,7 @@ from ..errors import CaptureError
 from .cells import WHITESPACE, is_missing, is_number, split_line
 from .clock import is_clock
 from .column_units import is_time_name, parse_header, parse_unit
+from .preamble import gives_time_base
 
 SEPARATORS: tuple[str, ...] = (",", ";", "\t", WHITESPACE, "|")
 _SEPARATOR_NAMES = {",": "comma", ";": "semicolon", "\t": "tab", WHITESPACE: "blanks", "|": "bar"}
@@ -510,6 +511,8 @@ def _header_cells(line: str, sep: str, run: _Run) -> list[str] | None:
             if not cells or not run.n_used <= len(cells) <= run.n_fields:
                 continue
             numeric = [is_number(c, ".") or is_number(c, ",") for c in cells]
+            if len(cells) == 1 and gives_time_base(cells[0], sep):
+                continue  # the preamble's interval line right above a table of one column
             # Channels may be named by number ("Time,1,2") when a time column names the row a header.
             if not any(numeric) or (not numeric[0] and is_time_name(parse_header(cells[0]).name)):
                 return cells

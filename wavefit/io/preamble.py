@@ -166,6 +166,14 @@ def split_key_value(text: str, sep: str) -> tuple[str, str] | None:
     return None
 
 
+def gives_time_base(text: str, sep: str) -> bool:
+    """Whether a line is a preamble entry of the time base: a start time, sample interval or
+    sample rate key with a number (``Sample Interval: 1.05e-08``). Above a table of one column
+    such a line is no header, though its one cell would fit one."""
+    pair = split_key_value(text, sep)
+    return pair is not None and _key_kind(pair[0]) is not None and _QUANTITY.match(pair[1]) is not None
+
+
 def _names_a_quantity(key: str, value: str) -> bool:
     """For ``words number`` lines: the words are a time key or the number has a known unit."""
     unit = _QUANTITY.match(value)
