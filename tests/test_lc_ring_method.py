@@ -234,6 +234,21 @@ def test_a_tank_without_its_load_or_stray_capacitance_is_warned():
     assert len(stray) == 1 and "12 % high" in stray[0]
 
 
+@pytest.mark.parametrize("stray, warned", [("11 pF ±2 pF", True), ("30 pF ±3 pF", False)])
+def test_a_stray_capacitance_of_a_probe_alone_is_questioned(stray, warned):
+    # a stray_capacitance of about a probe's input (11 pF) likely leaves out the coil's own,
+    # which on a 100 pF tank moves L by many standard uncertainties (10 pF: 9 %); one that
+    # holds more (30 pF) is taken as given
+    small = Tank(inductance=100e-6, tank_capacitor=100e-12, dcr=2.0, feed_resistance=2e6)
+    setup = {"method": "lc-ring", "columns": {"time": "t", "tank": "v"},
+             "parts": {"tank_capacitor": "100 pF ±0.1%", "parallel_load": "2 Mohm ±1%", "stray_capacitance": stray}}
+    result = wavefit.analyze(_frame(small, noise=0.002), setup=setup)
+    asked = [w for w in result.warnings if "about a probe's input alone" in w]
+    assert len(asked) == warned
+    if warned:
+        assert "L reads high" in asked[0] and "9 % for 10 pF" in asked[0]
+
+
 def test_a_refusal_names_the_file_and_the_readers_warning(tmp_path):
     # a time column in µs under a header without a unit is read as seconds (the reader warns);
     # the ring then decays a million times too slowly for its load and is refused, and the

@@ -54,6 +54,14 @@ LOSS_SPLIT = InputQuantity("coil loss split", 0.5, 0.5 / math.sqrt(3.0), "", "B"
 #: The input capacitance of a 10:1 passive scope probe, about 10–15 pF (common practice; from
 #: memory): the least capacitance across a probed tank besides its capacitor.
 TYPICAL_PROBE_CAPACITANCE = 12e-12
+#: A coil's own (winding) capacitance, a few pF for a small single-layer coil to tens of pF for
+#: a multilayer winding (common practice; from memory): 10 pF stands for it where a setup's
+#: stray_capacitance may hold the probe's input alone.
+TYPICAL_COIL_CAPACITANCE = 10e-12
+#: A stray_capacitance at most this is about a probe's input and fixture alone (1.5 times the
+#: typical probe's): one that holds a coil's own capacitance too is mostly larger (a probe's
+#: 11 pF and a coil's 12 pF: 23 pF), so lc-ring asks whether it does only at or below this.
+PROBE_ONLY_STRAY = 1.5 * TYPICAL_PROBE_CAPACITANCE
 
 
 @register
@@ -113,15 +121,24 @@ class LcRing(Method):
         inductance = propagation.quantities["L"]
         out = loss_split_warning(inputs, estimate.settings["present"], estimate.settings["coil_loss"],
                                  inductance.standard_uncertainty)
+        # L = 1/(w²·C): a capacitance left out of C makes L read high by its share of C
+        tank = inputs.get("tank_capacitor").value
         if "stray_capacitance" not in estimate.settings["present"]:
-            # L = 1/(w²·C): a capacitance left out of C makes L read high by its share of C
-            shift = TYPICAL_PROBE_CAPACITANCE / inputs.get("tank_capacitor").value
+            shift = TYPICAL_PROBE_CAPACITANCE / tank
             if shift * inductance.value > inductance.standard_uncertainty:
                 out = (*out, f"no stray_capacitance given: the probe's input alone (about "
                        f"{TYPICAL_PROBE_CAPACITANCE * 1e12:.0f} pF) would make L read {100 * shift:.2g} % high, "
                        f"{shift * inductance.value / inductance.standard_uncertainty:.2g} standard uncertainties, "
                        "and the coil's own capacitance adds to it; give stray_capacitance (an lc-sweep measures "
                        "the coil's)")
+        elif (stray := inputs.get("stray_capacitance").value) <= PROBE_ONLY_STRAY:
+            shift = TYPICAL_COIL_CAPACITANCE / (tank + stray)
+            if shift * inductance.value > inductance.standard_uncertainty:
+                out = (*out, f"stray_capacitance is {stray * 1e12:.3g} pF, about a probe's input alone: if it leaves "
+                       f"out the coil's own capacitance (a few to tens of pF), L reads high by its share of the "
+                       f"tank's capacitance, {100 * shift:.2g} % for {TYPICAL_COIL_CAPACITANCE * 1e12:.0f} pF "
+                       f"({shift * inductance.value / inductance.standard_uncertainty:.2g} standard uncertainties); "
+                       "add the coil's, which an lc-sweep measures, to stray_capacitance")
         return out
 
 
