@@ -143,6 +143,22 @@ def test_a_folder_of_the_entries_files_from_the_command_line(tmp_path):
     assert by_folder == wavefit.analyze(None, setup=setup).quantities["L"].value
 
 
+@needs_ngspice
+@pytest.mark.ngspice
+def test_srf_of_an_undetermined_capacitance_is_called_unknown():
+    # capacitors 150 to 700 times the coil's own 30 pF, known to 1 %: the line's intercept, C,
+    # is lost in its uncertainty (warned as not determined); srf = 1/(2π√(L·C)) rests on it and
+    # is named too
+    frames = [_capture(c, seed=20 + k) for k, c in enumerate([4.7e-9, 10e-9, 22e-9])]
+    setup = {"method": "lc-sweep", "columns": {"time": "t", "tank": "tank"},
+             "parts": {"parallel_load": "100 kohm"},
+             "captures": [{"file": f"{c}.csv", "tank_capacitor": f"{c} ±1%"} for c in ("4.7 nF", "10 nF", "22 nF")]}
+    result = wavefit.analyze(frames, setup=setup)
+    c = result.quantities["C"]
+    assert c.expanded_uncertainty >= abs(c.value)
+    assert any(w.startswith("srf rests on C, which this sweep does not determine") for w in result.warnings)
+
+
 def test_one_capture_is_refused():
     frame = pd.DataFrame({"t": np.arange(100) * 1e-6, "tank": np.zeros(100)})
     setup = {"method": "lc-sweep", "columns": {"time": "t", "tank": "tank"},

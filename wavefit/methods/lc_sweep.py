@@ -213,9 +213,16 @@ class LcSweep(Method):
         return {"L": inductance, "C": cap, "srf": 1.0 / (2 * math.pi * (inductance * cap) ** 0.5)}
 
     def review(self, estimate: Estimate, inputs: InputSet, propagation: Propagation) -> tuple[str, ...]:
-        if estimate.settings["has_stray"] and propagation.quantities["C"].value <= 0:
+        capacitance = propagation.quantities["C"]
+        if estimate.settings["has_stray"] and capacitance.value <= 0:
             return ("the fitted capacitance is smaller than the stray_capacitance given: "
                     "C and srf are not meaningful",)
+        if capacitance.expanded_uncertainty >= abs(capacitance.value):
+            # srf = 1/(2π√(L·C)) of a C that may be nothing: its own U, from the linearised
+            # spread, looks moderate, but its interval is not one
+            return ("srf rests on C, which this sweep does not determine (its expanded uncertainty reaches its "
+                    "value): read srf as unknown too; rings on tank capacitors nearer the coil's own capacitance "
+                    "determine it",)
         return ()
 
 
