@@ -67,3 +67,22 @@ def test_a_clipped_sense_is_named_in_the_refusal(top):
     with pytest.raises(AnalysisRefused, match=r"'CH2 \(V\)' sits at its highest value for \d+ samples in a row: if "
                                               "that is the edge of the screen the trace is clipped"):
         suggest(capture_from_frame(frame))
+
+
+@pytest.mark.parametrize("per_division, keep", [(0.0065, True), (0.04, False)])
+def test_a_vertical_setting_finer_than_the_proposal_is_kept(per_division, keep):
+    # a ring on 6.5 mV/div (8 divisions, 8 bits) fills about 180 codes; the 1-2-5 setting that
+    # holds its span with headroom, 10 mV/div, would give fewer (about 146): suggest said "set
+    # 10 mV/div", a coarser resolution, where keeping the present setting is better; a ring on
+    # a coarse 40 mV/div is told the finer setting
+    from wavefit.synth.lc import Tank, ringdown
+
+    tank = Tank(inductance=4.7e-6, tank_capacitor=1e-6, dcr=0.05, feed_resistance=50.0)
+    _, w_d = tank.poles()
+    t, v = ringdown(tank, 2 * np.pi / (w_d * 50), 20_000, pre_trigger=500)
+    v = v * 0.02 / float(np.max(np.abs(v)))  # a ring of 20 mV
+    scope = ScopeModel(noise_rms=1e-4, bits=8, full_scale=(-4 * per_division, 4 * per_division))
+    frame = pd.DataFrame({"Time (s)": t, "CH1 (V)": scope.apply(v, np.random.default_rng(3))})
+    (scale,) = suggest(capture_from_frame(frame)).scales
+    assert scale.keep_present == keep
+    assert scale.per_division == pytest.approx(0.01)

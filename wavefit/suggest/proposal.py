@@ -290,7 +290,8 @@ def _ring_suggestion(capture: Capture, ring: RingRecord, bits: int) -> Suggestio
                     "samples": float(math.ceil(record / interval))}
     setup = {"method": "lc-ring", "columns": columns,
              "parts": {"tank_capacitor": PLACEHOLDER + "the known capacitor across the coil, value and tolerance",
-                       "stray_capacitance": PLACEHOLDER + "probe and fixture capacitance, value and tolerance",
+                       "stray_capacitance": PLACEHOLDER + "probe, fixture and the coil's own capacitance (an lc-sweep "
+                                                            "measures the coil's), value and tolerance",
                        "parallel_load": PLACEHOLDER + "feed resistor parallel probe input resistance, value and tolerance"}}
     return Suggestion("lc-ring", columns, estimates, next_capture, scales, setup, tuple(why))
 
@@ -299,6 +300,10 @@ def _scale_line(s: ScaleAdvice) -> str:
     now = "not on a code grid" if s.code_step is None else \
         f"code step {eng(s.code_step, 'V')}, span {s.codes_used:.0f} codes"
     clip = "; CLIPPED now: the range must grow" if s.clipped else ""
+    if s.keep_present:
+        return (f"{s.role} {s.column!r}: now {now}; keep the present vertical setting: it shows the expected span "
+                f"in about {s.codes_present:.0f} codes, more than the {eng(s.per_division, 'V')}/div that holds it "
+                f"with headroom would ({s.codes_next:.0f})")
     return (f"{s.role} {s.column!r}: now {now}{clip}; set {eng(s.per_division, 'V')}/div "
             f"(full scale {eng(s.full_scale, 'V')}) centred at {eng(s.centre, 'V')}: "
             f"the expected span fills about {s.codes_next:.0f} codes")

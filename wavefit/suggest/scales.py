@@ -29,6 +29,14 @@ class ScaleAdvice:
     per_division: float
     centre: float
     codes_next: float           # expected span in codes of the proposed setting
+    codes_present: float | None = None  # expected span in codes of the present setting, when it
+    #                                   holds that span (None otherwise)
+
+    @property
+    def keep_present(self) -> bool:
+        """Whether the present setting already holds the expected span in more codes than the
+        proposed 1-2-5 setting would (a setting between two 1-2-5 steps, say)."""
+        return not self.clipped and self.codes_present is not None and self.codes_present >= self.codes_next
 
 
 def scale_advice(role: str, channel: Channel, expected_low: float, expected_high: float, bits: int) -> ScaleAdvice:
@@ -55,5 +63,11 @@ def scale_advice(role: str, channel: Channel, expected_low: float, expected_high
     per_division = round_up_125(SCALE_HEADROOM * span / DIVISIONS)
     full_scale = DIVISIONS * per_division
     codes_next = span / (full_scale / 2 ** bits)
+    # the present setting holds the expected span when it is no wider than the present record's
+    # (within the proposal's headroom: a ring's span is its offset ± its largest excursion) and
+    # leaves the proposal's headroom on the converter's codes
+    held = (bool(step) and not clipped and span <= SCALE_HEADROOM * span_now
+            and SCALE_HEADROOM * span / step <= 2 ** bits)
     return ScaleAdvice(role, channel.header, step, span_now / step if step else None, bool(clipped),
-                       low, high, full_scale, per_division, 0.5 * (low + high), codes_next)
+                       low, high, full_scale, per_division, 0.5 * (low + high), codes_next,
+                       span / step if held else None)
