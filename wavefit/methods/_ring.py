@@ -23,7 +23,7 @@ from ..setup import Setup
 from ..signal.clipping import CLIPPED_RUN, longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
 from ..signal.codes import record_levels
 from ._model_check import MODEL_Z, ModelCheck, Variation
-from ._ring_baseline import BaselineTrend, baseline_trend
+from ._ring_baseline import baseline_trend
 from .base import Method
 from ..fit_summary import FitSummary, merged_entries, optional_entry
 
@@ -148,7 +148,6 @@ class RingMeasurement:
     unit: str
     info: RingSummary
     warnings: tuple[str, ...]
-    baseline_trend: BaselineTrend | None = None
 
     @property
     def model_check(self) -> ModelCheck:
@@ -222,7 +221,7 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
     trend = baseline_trend(ring, y, noise)
     if trend is not None:
         warnings.append(trend.warning(channel.unit or "(unit of the record)"))
-    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings), trend)
+    return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings))
 
 
 def _clipped(ring: DampedSineFit, y: np.ndarray, code: float | None) -> bool:
