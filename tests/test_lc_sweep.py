@@ -106,8 +106,8 @@ def test_sweep_matches_ngspice(tmp_path):
 @pytest.mark.parametrize("written", ["230 pF ±0.1%", "300 pF ±0.1%"])
 def test_wrong_capacitor_value_is_flagged(written):
     # the middle capacitor is really 220 pF: written a little off, its point leaves the line
-    # (warned, U swollen by the Birge ratio); far off, U reaches L itself and the result is
-    # refused as not determined, naming the capacitors
+    # (warned, U swollen by the Birge ratio, the capacitor farthest from the line named); far
+    # off, U reaches L itself and the result is refused as not determined, naming the capacitors
     frames = [_capture(c, seed=10 + k) for k, c in enumerate([100e-12, 220e-12, 470e-12])]
     setup = {"method": "lc-sweep", "columns": {"time": "t", "tank": "tank"},
              "parts": {"parallel_load": "100 kohm"},
@@ -119,7 +119,8 @@ def test_wrong_capacitor_value_is_flagged(written):
             wavefit.analyze(frames, setup=setup)
         return
     result = wavefit.analyze(frames, setup=setup)
-    assert any("do not lie on a line" in w for w in result.warnings)
+    (scattered,) = [w for w in result.warnings if "do not lie on a line" in w]
+    assert "first <DataFrame> (tank_capacitor 230 pF," in scattered  # the capacitor written off
 
 
 @needs_ngspice

@@ -29,6 +29,7 @@ from ..outputs import Scalar
 from ..results import LinePlot
 from ..setup import Setup
 from ..uncertainty import InputSet, Propagation
+from ..values import eng
 from . import register
 from ._model_check import CaptureChecks, ModelCheck
 from ._ring import check_time_options, coil_loss_option, loss_correction, measure_ring
@@ -183,9 +184,16 @@ class LcSweep(Method):
             birge = factor  # (the rule's factor is the Birge ratio itself when it applies)
             cov = cov * birge ** 2
             dof = float(line.dof)
+            # each point's distance from the line in its own combined standard uncertainty (York's
+            # weights: u_y² + slope²·u_x²), to say which capacitor or ring to check first
+            off = (y - line.intercept - line.slope * x) / np.sqrt(u_y ** 2 + (line.slope * u_x) ** 2)
+            far = int(np.argmax(np.abs(off)))
             warnings.append(f"the points do not lie on a line (chi-square {line.chi2:.3g} for {line.dof} "
                             f"degrees of freedom, p = {line.p_value:.1e}); uncertainties are scaled by "
-                            f"{birge:.2f}: check the capacitor values and the rings")
+                            f"{birge:.2f}: check the capacitor values and the rings, first "
+                            f"{measurement.captures[far].source} (tank_capacitor "
+                            f"{eng(rings[far][1]['tank_capacitor'].value, 'F')}, {off[far]:+.2g} standard "
+                            "uncertainties off the line)")
         if line.slope <= 0 or line.intercept <= 0:
             raise AnalysisRefused(
                 f"{setup.source}: the line 1/w0² against capacitance has slope {line.slope:.3g} and intercept "
