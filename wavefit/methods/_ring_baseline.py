@@ -87,7 +87,10 @@ def baseline_trend(ring: DampedSineFit, y: np.ndarray, noise: str) -> BaselineTr
         again = fit_damped_sine(np.arange(n) * dt, seg, start, dt, noise=noise, close=True)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError):
         return None
-    shifts = [(again.fit[name] - ring.fit[name]) / ring.fit.stderr(name) for name in ("alpha", "w_d")]
+    errors = [ring.fit.stderr(name) for name in ("alpha", "w_d")]
+    if not all(e > 0 for e in errors):
+        return None
+    shifts = [(again.fit[name] - ring.fit[name]) / e for name, e in zip(("alpha", "w_d"), errors)]
     if not max(abs(s) for s in shifts) > TREND_EFFECT:
         return None
     return BaselineTrend(float(trend.max() - trend.min()), *(float(s) for s in shifts))
