@@ -64,8 +64,8 @@ def baseline_trend(ring: DampedSineFit, y: np.ndarray, noise: str) -> BaselineTr
     if m <= 2 * (TREND_DEGREE + 1):
         return None
     means = r[:m * block].reshape(m, block).mean(axis=1)
-    x = np.linspace(-1.0, 1.0, n)
-    centres = x[:m * block].reshape(m, block).mean(axis=1)
+    # the window's samples on [−1, 1], and each block's centre there
+    centres = -1.0 + 2.0 * (np.arange(m) * block + 0.5 * (block - 1)) / (n - 1)
     basis = legendre.legvander(centres, TREND_DEGREE)
     coef, *_ = np.linalg.lstsq(basis, means, rcond=None)
     coef[0] = 0.0  # (the fit's offset holds the constant)
@@ -78,7 +78,7 @@ def baseline_trend(ring: DampedSineFit, y: np.ndarray, noise: str) -> BaselineTr
     chi2 = float(explained @ explained) / variance
     if not stats.chi2.sf(chi2, TREND_DEGREE) < SIGNIFICANCE:
         return None
-    trend = legendre.legval(x, coef)
+    trend = legendre.legval(np.linspace(-1.0, 1.0, n), coef)
     seg = y[ring.start:ring.stop] - trend
     dt = ring.sample_interval
     start = ring.fit.values.copy()
