@@ -464,10 +464,9 @@ def _solved(seg: np.ndarray, x: np.ndarray, close: bool) -> tuple[np.ndarray, bo
 
 
 def _start_problem(seg: np.ndarray) -> tuple[Callable, Callable, Callable, Callable]:
-    """Residual and Jacobian functions of the unweighted refinement of ``seg``, the function
-    giving the triangular factor of [J | f] at a point (of the dense rows for a short segment,
-    held whole), and the one giving the factor kept from the solve at a point (None where there
-    is none).
+    """Residual and Jacobian functions of the unweighted refinement of ``seg`` (a short segment's
+    held whole), the function giving the triangular factor of [J | f] at a point, and the one
+    giving the factor kept from the solve at a point (None where there is none).
 
     A long segment is handed to the solver as the triangular factor of [J | f]
     (:class:`~wavefit.fit.compressed.TriangularProblem`: the same Levenberg–Marquardt steps
@@ -477,13 +476,10 @@ def _start_problem(seg: np.ndarray) -> tuple[Callable, Callable, Callable, Calla
         r -= seg
         return r
 
-    if is_small(seg.size, len(NAMES)):
-        def dense_factor(v: np.ndarray) -> np.ndarray:
-            return np.linalg.qr(np.column_stack([grid_jacobian(v, 0, seg.size), residuals(v)]), mode="r")
-
-        return residuals, lambda v: grid_jacobian(v, 0, seg.size), dense_factor, lambda v: None
     problem = TriangularProblem(residuals, lambda v: pieced_jacobian(v, seg.size), [Block(0, seg.size, "tank")],
                                 {"tank": white(1.0)})
+    if is_small(seg.size, len(NAMES)):  # (the solver on the dense rows; the steps on the factor)
+        return residuals, lambda v: grid_jacobian(v, 0, seg.size), problem.factor, lambda v: None
     return problem.residuals, problem.jacobian, problem.factor, problem.kept
 
 
