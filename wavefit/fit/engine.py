@@ -244,12 +244,14 @@ def _fit(fun, jac, x, mapping: ParameterMap, blocks, model, noise, x_scale, max_
             models = _ar_models(r, blocks, groups, max_ar_order)
 
     e = whiten(r, blocks, models)
-    jacobian = as_jacobian(jac(x))
     ar_params = sum(mod.order for mod in models.values())
     dof = float(e.size - p - ar_params)
     s2 = float(e @ e) / dof if noise != "known" else 1.0
+    # the Jacobian at the solution, where the solve's factor does not serve (always so with an
+    # AR model, whose sandwich below needs it)
     whitened = _kept_factor(*solved, models)
-    if whitened is None:
+    jacobian = None if whitened is not None else as_jacobian(jac(x))
+    if jacobian is not None:
         whitened = (whiten(jacobian.toarray(), blocks, models) if small
                     else triangle(jacobian, None, blocks, models)[:p, :p])
     bread = _inverse_normal_matrix(whitened, m)
