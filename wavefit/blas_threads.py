@@ -16,6 +16,7 @@ A thread count the user chose in the environment is kept by both.
 """
 from __future__ import annotations
 
+import functools
 import os
 from contextlib import contextmanager
 from typing import Iterator
@@ -34,12 +35,16 @@ def default_to_one_thread() -> None:
         os.environ.setdefault(name, "1")
 
 
-#: threadpoolctl's view of the thread pools loaded, taken at the first analysis: finding them
-#: scans every shared library of the process (about 0.35 ms, a twentieth of a small
-#: analysis, each time), and a library loaded later read the environment that
-#: :func:`default_to_one_thread` had set when ``wavefit`` was imported, so its pool has one
-#: thread already.
-_pools: list = []
+@functools.cache
+def _pools():
+    """threadpoolctl's view of the thread pools loaded, taken at the first analysis: finding them
+    scans every shared library of the process (about 0.35 ms, a twentieth of a small analysis,
+    each time), and a library loaded later read the environment that
+    :func:`default_to_one_thread` had set when ``wavefit`` was imported, so its pool has one
+    thread already."""
+    from threadpoolctl import ThreadpoolController
+
+    return ThreadpoolController()
 
 
 @contextmanager
@@ -49,9 +54,5 @@ def one_blas_thread() -> Iterator[None]:
     if USER_CHOSE:
         yield
         return
-    if not _pools:
-        from threadpoolctl import ThreadpoolController
-
-        _pools.append(ThreadpoolController())
-    with _pools[0].limit(limits=1):
+    with _pools().limit(limits=1):
         yield
