@@ -273,9 +273,10 @@ def fit_damped_sine(t: np.ndarray, y: np.ndarray, x0: np.ndarray, sample_interva
     round", says how far results moved). ``solved`` says that ``x0`` is that least squares'
     converged solution on this same window (:func:`refined`'s): the pass is then skipped, and
     ``factor``, when given, is that solve's triangular factor of [J | f] at ``x0``, which the
-    covariance reuses when the noise is white. ``close`` says that ``x0`` is within a few standard errors of the solution (a fit of a
-    longer window carried to this one): the pass starts with Gauss–Newton steps
-    (:func:`wavefit.fit.engine.fit_least_squares`'s ``close_start``).
+    covariance reuses when the noise is white. ``close`` says that ``x0`` is within a few
+    standard errors of the solution (a fit of a longer window carried to this one): the pass
+    starts with Gauss–Newton steps (:func:`wavefit.fit.engine.fit_least_squares`'s
+    ``close_start``).
     """
     n = y.size
     x0 = np.asarray(x0, dtype=float)
@@ -446,8 +447,8 @@ def _doubled(y: np.ndarray, alpha: float, w: float) -> tuple[np.ndarray, bool, n
 
 def _solved(seg: np.ndarray, x: np.ndarray, close: bool) -> tuple[np.ndarray, bool, np.ndarray | None]:
     """The unweighted least squares on ``seg`` from ``x`` (Gauss–Newton steps first when
-    ``close``), whether it converged, and the factor of [J | f] there
-    when the solve ended on one; ``x`` itself, not converged, where the solution is rejected."""
+    ``close``), whether it converged, and the factor of [J | f] there when the solve ended on
+    one; ``x`` itself, not converged, where the solution is rejected."""
     residuals, jac, factor, kept_factor = _start_problem(seg)
     found = descend(factor, x, _LOWER, _UPPER, NEGLIGIBLE_CHANGE) if close else None
     if found is not None:
