@@ -132,3 +132,21 @@ def test_a_capture_changed_after_reading_is_told(tmp_path, monkeypatch):
     assert result.provenance["captures"][0]["changed_since_read"] is True
     assert any("changed after it was read" in w for w in result.warnings)
     assert result.provenance["captures"][0]["sha256"] == _sha256(capture_file)
+
+
+def test_hashes_taken_beside_the_analysis_are_those_of_the_files(tmp_path):
+    """The hashes started before an analysis (in a thread of their own) are hashlib's of each
+    file; a file that cannot be read raises as the hash taken at once would; a file not given
+    at the start is hashed when asked for."""
+    from wavefit.provenance import PendingHashes
+
+    gone = tmp_path / "gone.csv"
+    later = tmp_path / "later.csv"
+    later.write_text("t,v\n0,2\n")
+    gz = sorted((SAMPLES / "lot_0412").glob("part*.csv.gz"))[0]
+    pending = PendingHashes([SAMPLES / "choke_step.csv", str(gz), gone, SAMPLES / "choke_step.csv"])
+    assert pending.sha256(SAMPLES / "choke_step.csv") == _sha256(SAMPLES / "choke_step.csv")
+    assert pending.sha256(gz) == _sha256(gz)
+    assert pending.sha256(later) == _sha256(later)
+    with pytest.raises(FileNotFoundError):
+        pending.sha256(gone)

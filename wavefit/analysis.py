@@ -21,7 +21,7 @@ from .methods import get_method
 from .methods.base import Method
 from .montecarlo import DEFAULT_SEED, MEASUREMENT_DRAWS, propagate_measurement
 from .numerics import collected, numerical_failures_refused
-from .provenance import changed_files, provenance
+from .provenance import PendingHashes, capture_paths, changed_files, provenance
 from .results import AnalysisResult
 from .setup import RelativeFigure, Setup, load_setup
 
@@ -54,6 +54,7 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
     if uncertainty not in UNCERTAINTY_MODES:
         raise SetupError(f"uncertainty must be one of {', '.join(UNCERTAINTY_MODES)}, got {uncertainty!r}")
     prepared = prepare(source, load_setup(setup), sample_interval)
+    hashes = PendingHashes(capture_paths(prepared.sources))  # beside the analysis
     with refusals_with_the_capture(prepared.captures), collected() as numerical, \
             numerical_failures_refused(prepared.captures), other_method_named(prepared.captures, prepared.method.name):
         result = prepared.method.analyze(prepared.measurement, prepared.setup)
@@ -62,7 +63,7 @@ def analyze(source: Any = None, setup: str | os.PathLike | Mapping[str, Any] | S
         result = replace(result, warnings=(*result.warnings, remark))
     if uncertainty == "montecarlo":
         result = with_monte_carlo(result, draws, seed)
-    record = provenance(prepared.as_parsed, prepared.sources, prepared.captures)
+    record = provenance(prepared.as_parsed, prepared.sources, prepared.captures, hashes)
     result = replace(result, provenance=record, warnings=(*result.warnings, *changed_files(record)))
     return with_capture_remarks(result, prepared.captures)
 
