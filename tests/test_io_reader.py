@@ -194,6 +194,36 @@ def test_coarsely_printed_time_is_rebuilt_as_a_grid(tmp_path: Path) -> None:
     assert "rebuilt as a uniform grid" in warning
 
 
+@pytest.mark.skipif(np.finfo(np.longdouble).eps > 1e-18, reason="needs an extended-precision long double")
+def test_grid_slope_of_a_long_column_is_the_least_squares_slope_to_rounding() -> None:
+    # the rebuilt grid's slope, a chunk of rows at a time, against the same least-squares slope
+    # summed in extended precision (64-bit significand): stamps printed to 8 digits over
+    # several chunks and decades, from a negative trigger offset
+    from wavefit.io.timebase import GRID_CHUNK, _line_slope, _Rows
+
+    n = 5 * GRID_CHUNK + 123
+    stamps = np.array([float(f"{t:.7e}") for t in -3e-6 + np.arange(n) * 9.37e-10])
+    rows = np.arange(n, dtype=np.longdouble)
+    for start, stop in ((0, n), (17, n - 5), (GRID_CHUNK - 1, 3 * GRID_CHUNK + 2)):
+        part = rows[start:stop] - rows[start:stop].mean()
+        exact = float((part * stamps[start:stop].astype(np.longdouble)).sum() / (part * part).sum())
+        assert _line_slope(stamps, start, stop, _Rows()) == pytest.approx(exact, rel=1e-15)
+
+
+def test_grid_segments_across_chunks_are_the_runs_of_one_step_and_sign() -> None:
+    from wavefit.io.timebase import GRID_CHUNK, _segment_edges
+
+    n = 3 * GRID_CHUNK + 7
+    steps = np.ones(n)
+    steps[GRID_CHUNK - 1:] = 10.0  # a change just before a chunk's end
+    steps[2 * GRID_CHUNK:] = 100.0  # and on a chunk's first row
+    time = np.linspace(-1.0, 5.0, n)
+    key = steps * np.sign(time)
+    expected = [0, *(np.flatnonzero(key[1:] != key[:-1]) + 1).tolist(), n]
+    assert _segment_edges(time, steps) == expected
+    assert len(expected) == 6  # the two steps' changes, the sign's change through the zero stamp
+
+
 def test_printing_resolution_of_fixed_and_significant_formats() -> None:
     time = 1e-4 + np.arange(1000) * 1.2345678e-9
     fixed = np.array([float(f"{t:.12f}") for t in time])
