@@ -51,9 +51,9 @@ def sample_reference(**changes) -> ReferenceSubstitution:
 
 
 def test_round_trip(tmp_path):
-    reference = sample_reference()
-    write_reference(reference, tmp_path / "ref.toml")
-    assert read_reference(tmp_path / "ref.toml", "rl-step") == reference
+    for reference in (sample_reference(), sample_reference(columns={"drive": "CH1", "sense": "2"})):
+        write_reference(reference, tmp_path / "ref.toml")
+        assert read_reference(tmp_path / "ref.toml", "rl-step") == reference
 
 
 def broken(tmp_path, edit) -> str:
@@ -144,6 +144,30 @@ def test_a_reference_of_another_method_or_wiring_is_refused(tmp_path):
                     tmp_path / "ref.toml")
     with pytest.raises(SetupError, match="other settings"):
         wavefit.analyze(tmp_path / "capture.csv", tmp_path / "setup.toml")
+
+
+def test_a_reference_recorded_on_other_channels_is_refused(tmp_path):
+    # made with drive and sense on two columns, used by a setup that maps them to two others
+    # (another pair of scope channels, whose gain ratio the reference did not see)
+    write_bench(tmp_path)
+    assert calibrate(tmp_path, "L = 230 uH ±0.1%")[0] == 0
+    assert read_reference(tmp_path / "ref.toml").columns == {"drive": "drive", "sense": "sense"}
+    data = (tmp_path / "capture.csv").read_text().replace("time,sense,drive", "time,sense,drive2", 1)
+    (tmp_path / "rewired.csv").write_text(data)
+    (tmp_path / "rewired.toml").write_text(SETUP.replace('drive = "drive"', 'drive = "drive2"')
+                                           + '[calibration]\nreference = "ref.toml"\n')
+    err = io.StringIO()
+    with contextlib.redirect_stderr(err):
+        code = main(["analyze", str(tmp_path / "rewired.csv"), "--setup", str(tmp_path / "rewired.toml")])
+    assert code == 3 and err.getvalue().count("\n") == 1
+    assert "with 'drive' on column 'drive', the setup" in err.getvalue() and "maps it to 'drive2'" in err.getvalue()
+    # the same channels under the same names: used; a file made before columns were kept: used
+    assert wavefit.analyze(tmp_path / "capture.csv", tmp_path / "setup.toml").quantities["L"].value == pytest.approx(
+        230e-6, rel=1e-12)
+    data = tomllib.loads((tmp_path / "ref.toml").read_text())
+    data.pop("columns")
+    (tmp_path / "ref.toml").write_bytes(tomli_w.dumps(data).encode())
+    assert wavefit.analyze(tmp_path / "rewired.csv", tmp_path / "rewired.toml").quantities["L"].value > 0
 
 
 def test_an_old_reference_is_warned(tmp_path):

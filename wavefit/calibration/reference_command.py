@@ -15,7 +15,7 @@ from typing import Any
 
 from ..errors import AnalysisRefused, SetupError
 from ..values import eng, parse_part
-from .reference_file import ReferenceSubstitution, write_reference
+from .reference_file import ReferenceSubstitution, wiring, write_reference
 from .substitution import implausible_correction
 
 
@@ -66,7 +66,7 @@ def run(args: argparse.Namespace) -> int:
         made=dt.datetime.now(dt.timezone.utc).replace(microsecond=0),
         capture=str(Path(args.capture).resolve()), capture_sha256=file_sha256(args.capture),
         tool_version=__version__, blocks=estimate.blocks, inputs=estimate.inputs, settings=dict(estimate.settings),
-        correction=(factor.value, factor.standard_uncertainty))
+        correction=(factor.value, factor.standard_uncertainty), columns=wiring(prepared.setup.columns))
     write_reference(reference, args.out)
     for warning in dict.fromkeys(estimate.warnings):
         print(f"wavefit: warning: {warning}", file=sys.stderr)

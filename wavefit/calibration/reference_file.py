@@ -41,7 +41,10 @@ from .toml_file import write_toml_whole
 #: The ``kind`` written in every reference substitution file, checked when one is read.
 KIND = "reference substitution"
 TOP_LEVEL_KEYS = ("kind", "method", "quantity", "known", "made", "tool_version", "capture", "capture_sha256",
-                  "blocks", "inputs", "settings", "correction")
+                  "blocks", "inputs", "settings", "correction", "columns")
+#: Keys a file may lack: ``columns`` was first written by wavefit 0.1.0 of 2026-12-05 (a file
+#: made before has its wiring unchecked).
+OPTIONAL_KEYS = ("columns",)
 BLOCK_KEYS = ("group", "type", "names", "units", "values", "covariance", "degrees_of_freedom")
 INPUT_KEYS = ("name", "value", "standard_uncertainty", "unit", "type", "degrees_of_freedom", "distribution")
 SETTING_KEYS = ("type", "value")
@@ -75,6 +78,9 @@ class ReferenceSubstitution:
         The reference estimate's fitted blocks, its other inputs, and its settings.
     correction
         Known / measured value of ``quantity`` and its standard uncertainty (for the reader).
+    columns
+        The column of each channel role in the setup the reference was analysed with
+        (:func:`wiring`; None for a file that does not record it).
     """
 
     method: str
@@ -88,6 +94,7 @@ class ReferenceSubstitution:
     inputs: tuple[InputQuantity, ...] = ()
     settings: Mapping[str, Any] = field(default_factory=dict)
     correction: tuple[float, float] = (1.0, 0.0)
+    columns: Mapping[str, str] | None = None
 
     def age(self, now: dt.datetime | None = None) -> dt.timedelta:
         """Time since the reference capture was analysed."""
@@ -113,7 +120,18 @@ def write_reference(reference: ReferenceSubstitution, path: str | os.PathLike[st
         "settings": {key: _setting(key, value) for key, value in reference.settings.items()},
         "correction": {"value": reference.correction[0], "standard_uncertainty": reference.correction[1]},
     }
+    if reference.columns is not None:
+        data["columns"] = dict(reference.columns)
     write_toml_whole(data, path)
+
+
+def wiring(columns: Mapping[str, str | int]) -> dict[str, str]:
+    """The column of each channel role (the time column aside) as text, as a reference file
+    keeps it; a role taken from another file (its column named ``<role> from <file>`` by
+    :func:`wavefit.analysis.with_columns_from_files`) is left out, since that file may be
+    another one for each capture."""
+    return {role: str(column) for role, column in columns.items()
+            if role != "time" and not str(column).startswith(f"{role} from ")}
 
 
 def read_reference(path: str | os.PathLike[str], method: str | None = None) -> ReferenceSubstitution:
@@ -135,7 +153,7 @@ def read_reference(path: str | os.PathLike[str], method: str | None = None) -> R
         raise SetupError(f"{where} is not a reference substitution (its kind is {data.get('kind')!r}, "
                          f"expected {KIND!r}); make one with 'wavefit calibrate reference'")
     check_names(data, TOP_LEVEL_KEYS, "key", where)
-    missing = [key for key in TOP_LEVEL_KEYS if key not in data]
+    missing = [key for key in TOP_LEVEL_KEYS if key not in data and key not in OPTIONAL_KEYS]
     if missing:
         raise SetupError(f"{where} lacks {', '.join(missing)}; make it again with 'wavefit calibrate reference'")
     made_in = _text(data["method"], "method", where)
@@ -164,6 +182,9 @@ def read_reference(path: str | os.PathLike[str], method: str | None = None) -> R
                   _table(data["settings"], "settings", None, where).items()},
         correction=(_number(correction["value"], "correction", where),
                     _number(correction["standard_uncertainty"], "correction", where)),
+        columns=({role: _text(column, f"columns.{role}", where)
+                  for role, column in _table(data["columns"], "columns", None, where).items()}
+                 if "columns" in data else None),
     )
 
 
