@@ -170,6 +170,22 @@ def test_a_reference_recorded_on_other_channels_is_refused(tmp_path):
     assert wavefit.analyze(tmp_path / "rewired.csv", tmp_path / "rewired.toml").quantities["L"].value > 0
 
 
+def test_a_method_whose_function_is_built_per_capture_refuses_a_reference(tmp_path):
+    # pulse-ramp's measurement function holds each capture's ramps: no reference file is made for
+    # it, and a setup naming one is refused, each in one line
+    write_bench(tmp_path)
+    pulse = ('method = "pulse-ramp"\n[columns]\ntime = "time"\ncurrent = "sense"\nvoltage = "drive"\n'
+             '[parts]\nshunt_resistor = "10 mohm ±1%"\ndut_resistance = "50 mohm ±1%"\n')
+    (tmp_path / "plain.toml").write_text(pulse)
+    code, _, err = calibrate(tmp_path, "L0 = 47 uH ±0.1%")
+    assert code == 3 and "cannot be corrected by a reference part" in err and err.count("\n") == 1
+    assert not (tmp_path / "ref.toml").exists()
+    write_reference(sample_reference(method="pulse-ramp", quantity="L0"), tmp_path / "ref.toml")
+    (tmp_path / "setup.toml").write_text(pulse + '[calibration]\nreference = "ref.toml"\n')
+    with pytest.raises(SetupError, match="cannot be corrected by a reference part"):
+        wavefit.analyze(tmp_path / "capture.csv", tmp_path / "setup.toml")
+
+
 def test_an_old_reference_is_warned(tmp_path):
     write_bench(tmp_path)
     assert calibrate(tmp_path, "L = 230 uH ±0.1%")[0] == 0

@@ -37,6 +37,9 @@ def run(args: argparse.Namespace) -> int:
     check_output("--out", args.out, (args.capture, args.setup, *setup.named_files()))
     quantity, known_text = _quantity_and_value(args.part)
     method = get_method(setup.method)
+    if method.no_substitution:
+        raise SetupError(f"method {method.name!r} cannot be corrected by a reference part: {method.no_substitution}; "
+                         "check the fixture by analysing a reference coil as a part and comparing with its known value")
     if quantity not in method.quantities:
         raise SetupError(f"--part names {quantity!r}; method {method.name!r} reports "
                          f"{', '.join(method.quantities)}")

@@ -104,6 +104,11 @@ class Method:
     #: setup's channel comparison then replaces that ratio (:mod:`wavefit.calibration.in_use`).
     #: None: the method records one voltage channel and refuses a channel comparison.
     channel_ratio_roles: ClassVar[tuple[str, str] | None] = None
+    #: Why a reference part's capture cannot correct this method's results
+    #: (:mod:`wavefit.calibration.substitution`), or "" when it can: substitution evaluates the
+    #: measurement function on the reference's fitted inputs with the estimate's settings, which
+    #: must then be the same for every capture of the fixture.
+    no_substitution: ClassVar[str] = ""
 
     @property
     def quantities(self) -> tuple[str, ...]:
@@ -132,6 +137,9 @@ class Method:
             self._check_unit(setup, part_name, part)
         self._check_captures(setup)
         check_channel_mapping(setup, self.name, self.channel_ratio_roles)
+        if self.no_substitution and setup.calibration.reference is not None:
+            raise SetupError(f"{setup.source}: [calibration] reference: method {self.name!r} cannot be corrected by "
+                             f"a reference part: {self.no_substitution}")
 
     def role_unit(self, role: str, setup: Setup) -> str:
         """The SI unit the method reads the column of ``role`` in (volts unless a method says

@@ -194,6 +194,8 @@ class PulseRamp(Method):
         "dut_resistance": PartSpec("ohm", False, "DCR of the coil (its resistive drop is removed from v)"),
     }
     options = {"saturation_drops": [10, 20, 30], "at_currents": []}
+    no_substitution = ("its measurement function is built on each capture's own ramps (their knots and current "
+                       "grid), so the reference's cannot be evaluated beside another part's")
     outputs = {
         "L0": Scalar("H"),
         "I_sat_10": Scalar("A"),
