@@ -224,6 +224,15 @@ def test_grid_segments_across_chunks_are_the_runs_of_one_step_and_sign() -> None
     assert len(expected) == 6  # the two steps' changes, the sign's change through the zero stamp
 
 
+@pytest.mark.parametrize("stamp", ["0.001", "1e+300", "-1e+300"])
+def test_a_time_column_that_stands_still_is_refused_not_rebuilt(tmp_path: Path, stamp: str) -> None:
+    # one value on every row is no grid of rounded stamps: its fitted "interval" was 7e-24 s
+    # (known to 1e16 relative) at 0.001, a division by zero at 1e300 (a fault campaign's files)
+    rows = [f"{stamp},{v:.6f}" for v in _signal(4000)]
+    with pytest.raises(CaptureError, match="repeats the value"):
+        read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *rows]))
+
+
 def test_printing_resolution_of_fixed_and_significant_formats() -> None:
     time = 1e-4 + np.arange(1000) * 1.2345678e-9
     fixed = np.array([float(f"{t:.12f}") for t in time])

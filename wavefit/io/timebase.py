@@ -52,6 +52,11 @@ _DIGIT_SAMPLES = 2000
 # Rounding by any rule (to nearest, down, up; some stamps exact) leaves every stamp within one
 # printing step r of a uniform grid: the departures span at most r. Slack for the fitted slope.
 _ROUNDING_SPAN = 1.2
+#: A grid whose interval the stamps give to worse than this relative standard uncertainty is
+#: none: stamps that stand still (one value on every row) left a "slope" of 1e-24 s known to
+#: 1e16 relative (a fault campaign's constant column). Coarse but real stamps give it to 1e-3 or
+#: better (a step of ten intervals over 10⁴ rows: 4e-4).
+GRID_MAX_RELATIVE = 0.1
 # Printed coarser than half an interval, time stamps cannot be trusted to show whether samples
 # are missing: the rebuilt axis says so.
 _COARSEST_RESOLUTION = 0.5
@@ -285,7 +290,7 @@ def _rounded_grid(
     resolution = float(steps.max())
     rows = _Rows()
     slope, relative = _segment_slope(time, steps, rows)
-    if not slope > 0:
+    if not (slope > 0 and relative <= GRID_MAX_RELATIVE):
         return None
     low, high = _departure_range(time, slope, rows)
     span = high - low
@@ -329,6 +334,8 @@ def _segment_slope(time: np.ndarray, steps: np.ndarray, rows: "_Rows") -> tuple[
     if not slopes:
         return overall, math.inf
     weights = 1.0 / np.array(variances)
+    if not (np.all(np.isfinite(weights)) and weights.sum() > 0):
+        return overall, math.inf  # steps near the float range's end (stamps of 1e300 s): no interval
     slope = float(np.dot(weights, slopes) / weights.sum())
     u = math.sqrt(1.0 / float(weights.sum()))
     if len(slopes) > 1:
