@@ -144,6 +144,23 @@ def test_one_column_for_two_roles_is_refused(tmp_path: Path) -> None:
         wavefit.analyze(path, setup)
 
 
+def test_a_name_the_file_repeats_is_refused_and_its_columns_serve_by_index(tmp_path: Path) -> None:
+    # a header with two columns called 'sense' (one holding half the sense voltage): mapped by
+    # name it took the first one silently (L twice the truth, exit 0, a fault campaign's file);
+    # mapped by index each is its own column
+    t, drive, sense = _record(seed=7)
+    rows = [f"{a:.9e},{b:.7g},{0.5 * c:.7g},{c:.7g}" for a, b, c in zip(t, drive, sense)]
+    for header in ("Time (s),drive (V),sense (V),sense (V)", "Time (s),drive (V),sense (mV),sense (V)"):
+        path = tmp_path / "twice.csv"
+        path.write_text("\n".join([header, *rows]) + "\n", encoding="utf-8")
+        with pytest.raises(wavefit.SetupError, match=r"2 columns of .* are called 'sense' \(at 2, 3\): map the role by"):
+            wavefit.analyze(path, TWO_CHANNELS)
+    path.write_text("\n".join(["Time (s),drive (V),sense (V),sense (V)", *rows]) + "\n", encoding="utf-8")
+    by_index = wavefit.analyze(path, {**TWO_CHANNELS, "columns": {"drive": 1, "sense": 3}})
+    found = by_index.quantities["L"]
+    assert abs(found.value - L) < 3 * found.standard_uncertainty
+
+
 def test_a_ring_given_to_rl_step_is_not_reported(tmp_path: Path) -> None:
     tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=0.5)
     t, v = ringdown(tank, 2e-8, 4000, pre_trigger=400)

@@ -93,13 +93,13 @@ def refuse_shared_columns(captures: Sequence[Capture], columns: Mapping[str, str
         Naming the two roles and the column.
     """
     for capture in captures:
-        taken: dict[str, str] = {}
+        taken: dict[int, str] = {}
         for role, key in columns.items():
             if role == "time":
                 continue
-            header = capture.channel(key).header
-            if header in taken:
+            channel = capture.channel(key)
+            if id(channel) in taken:
                 raise SetupError(
-                    f"{source}: roles {taken[header]!r} and {role!r} both name column {header!r} of "
+                    f"{source}: roles {taken[id(channel)]!r} and {role!r} both name column {channel.header!r} of "
                     f"{capture.source}; map each role to its own column")
-            taken[header] = role
+            taken[id(channel)] = role

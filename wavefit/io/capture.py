@@ -54,17 +54,15 @@ class LeftOut:
     message: str
 
 
-def _named(columns: Sequence[Channel | LeftOut], key: str) -> Channel | LeftOut | None:
-    """The column called ``key``: by exact header, else by header without unit, else the one
-    whose name is ``key`` but for case; None when there is none (or several such)."""
-    for column in columns:
-        if column.header == key:
-            return column
-    for column in columns:
-        if column.name == key:
-            return column
-    lowered = [column for column in columns if column.name.lower() == str(key).lower()]
-    return lowered[0] if len(lowered) == 1 else None
+def _named(columns: Sequence[Channel | LeftOut], key: str) -> list[Channel | LeftOut]:
+    """The columns called ``key``: by exact header, else by header without unit, else by name
+    but for case (the first of these rules that finds any; several when the file repeats it)."""
+    rules = (lambda c: c.header == key, lambda c: c.name == key, lambda c: c.name.lower() == str(key).lower())
+    for rule in rules:
+        found = [column for column in columns if rule(column)]
+        if found:
+            return found
+    return []
 
 
 @dataclass(frozen=True)
@@ -114,9 +112,15 @@ class Capture:
         if isinstance(key, (int, np.integer)):
             return self._channel_at(int(key))
         found = _named(self.channels, key)
-        if found is not None:
-            return found
-        self._refuse_left_out(_named(self.left_out, key))
+        if len(found) > 1:
+            places = ", ".join(str(c.position) for c in found if c.position is not None)
+            raise SetupError(f"{len(found)} columns of {self.source} are called {key!r}"
+                             + (f" (at {places})" if places else "")
+                             + ": map the role by the column's index (counted from 0, the time column included)")
+        if found:
+            return found[0]
+        left = _named(self.left_out, key)
+        self._refuse_left_out(left[0] if len(left) == 1 else None)
         names = ", ".join(repr(c.header) for c in self.channels)
         raise SetupError(f"no column {key!r} in {self.source}; columns are: {names}")
 
