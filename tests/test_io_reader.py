@@ -233,6 +233,26 @@ def test_a_time_column_that_stands_still_is_refused_not_rebuilt(tmp_path: Path, 
         read_capture(_write(tmp_path, ["Time (s),CH1 (V)", *rows]))
 
 
+@pytest.mark.parametrize("first, second", [
+    ("Sample interval,4e-07", "Sample interval,2e-07"),  # one key twice (was read as "not readable")
+    ("dt,4e-07", "Sample interval,2e-07"),
+    ("Sample interval,2e-07", "Sample rate,2.5 MSa/s"),
+])
+def test_two_sample_intervals_without_a_time_column_are_refused(tmp_path: Path, first: str, second: str) -> None:
+    # the first of two contradicting intervals was used: L twice the truth with exit 0 (a fault
+    # campaign's files); a given interval decides, and two that agree are one
+    rows = [f"{v:.6f},{-v:.6f}" for v in _signal(400)]
+    path = _write(tmp_path, [first, second, "CH1 (V),CH2 (V)", *rows])
+    with pytest.raises(CaptureError, match=r"gives two sample intervals, .* and another \(line 2 "):
+        read_capture(path)
+    assert read_capture(path, sample_interval=2e-7).sample_interval == 2e-7
+    agreeing = _write(tmp_path, ["Sample interval,4e-07", "Sample rate,2.5 MSa/s", "CH1 (V),CH2 (V)", *rows], "ok.csv")
+    assert read_capture(agreeing).sample_interval == pytest.approx(4e-7)
+    footer = _write(tmp_path, ["Sample interval,4e-07", "CH1 (V),CH2 (V)", *rows, "Sample interval,2e-07"], "f.csv")
+    with pytest.raises(CaptureError, match="gives two sample intervals"):
+        read_capture(footer)
+
+
 def test_printing_resolution_of_fixed_and_significant_formats() -> None:
     time = 1e-4 + np.arange(1000) * 1.2345678e-9
     fixed = np.array([float(f"{t:.12f}") for t in time])

@@ -366,6 +366,11 @@ def _time_axis(
     if time_index is not None:
         return _column_axis(table, units[time_index], columns[time_index], time_index, warnings)
     if hint.sample_interval is not None:
+        if hint.other_interval is not None:
+            raise CaptureError(
+                f"{table.source}: the file gives two sample intervals, {hint.sample_interval:.6g} s "
+                f"({hint.interval_line}) and another ({hint.other_interval}), and no time column decides: "
+                "pass the sample interval (--sample-interval, or sample_interval in the setup)")
         return TimeAxis(axis_from_interval(rows, hint.sample_interval, start), hint.sample_interval), None
     raise CaptureError(_no_time_message(table))
 

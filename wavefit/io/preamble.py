@@ -65,6 +65,9 @@ class Preamble:
         Time of the first sample in seconds, when a line gives it.
     warnings
         Lines that named a time quantity but could not be read.
+    other_interval
+        A later line that gives another sample interval than ``interval_line``, with its value
+        (``"line 2 'dt,2e-07' gives 2e-07 s"``); None when none contradicts it.
     """
 
     metadata: dict[str, str] = field(default_factory=dict)
@@ -72,6 +75,7 @@ class Preamble:
     interval_line: str | None = None
     start_time: float | None = None
     warnings: tuple[str, ...] = ()
+    other_interval: str | None = None
 
 
 def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str = "note",
@@ -99,6 +103,7 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str =
     used = set(taken)
     warnings: list[str] = []
     interval: tuple[float, str] | None = None
+    other: str | None = None
     start: float | None = None
     notes = 0
     for number, text in lines:
@@ -108,10 +113,10 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str =
             metadata[f"{text_key}{notes}"] = text.strip()
             continue
         key, value = pair
+        kind, seconds = _time_quantity(key, value, sep)  # by its own key, before a repeat is numbered
         key = _unique_key(used, key)
         used.add(key)
         metadata[key] = value
-        kind, seconds = _time_quantity(key, value, sep)
         where = f"line {number} {text.strip()!r}"
         if kind is None:
             continue
@@ -121,18 +126,25 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str =
             start = seconds if start is None else start
         elif interval is None:
             interval = (seconds, where)
-        elif abs(seconds - interval[0]) > _SAME * interval[0]:
+        elif not same_interval(seconds, interval[0]):
             warnings.append(
                 f"preamble {where} gives a sample interval of {seconds:.6g} s, but "
                 f"{interval[1]} gave {interval[0]:.6g} s; the first is used"
             )
+            other = other or f"{where} gives {seconds:.6g} s"
     return Preamble(
         metadata=metadata,
         sample_interval=None if interval is None else interval[0],
         interval_line=None if interval is None else interval[1],
         start_time=start,
         warnings=tuple(warnings),
+        other_interval=other,
     )
+
+
+def same_interval(a: float, b: float) -> bool:
+    """Whether two sample intervals a preamble states agree (to printing precision)."""
+    return abs(a - b) <= _SAME * b
 
 
 def split_key_value(text: str, sep: str) -> tuple[str, str] | None:

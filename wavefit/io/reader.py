@@ -12,7 +12,7 @@ from .body import Body, line_numbers, read_body, without_cut_last_line
 from .capture import Capture
 from .encoding import decode_head
 from .layout import Layout, sniff_layout
-from .preamble import Preamble, read_preamble
+from .preamble import Preamble, read_preamble, same_interval
 from .source import open_source
 from .timebase import Printing
 
@@ -132,6 +132,10 @@ def _with_footer(preamble: Preamble, footer: tuple[tuple[int, str], ...], sep: s
         f"{'is' if len(texts) == 1 else 'are'} not data: ignored, kept as footer metadata"
     )
     interval = preamble.sample_interval is None and after.sample_interval is not None
+    other = preamble.other_interval or after.other_interval
+    if (preamble.sample_interval is not None and after.sample_interval is not None
+            and not same_interval(after.sample_interval, preamble.sample_interval)):
+        other = other or f"{after.interval_line} gives {after.sample_interval:.6g} s"
     return replace(
         preamble,
         metadata={**preamble.metadata, **after.metadata},
@@ -139,4 +143,5 @@ def _with_footer(preamble: Preamble, footer: tuple[tuple[int, str], ...], sep: s
         interval_line=after.interval_line if interval else preamble.interval_line,
         start_time=preamble.start_time if preamble.start_time is not None else after.start_time,
         warnings=(*preamble.warnings, *after.warnings, warning),
+        other_interval=other,
     )
