@@ -67,3 +67,14 @@ def test_a_special_file_is_an_error_row_not_a_hang(lot):
         assert path in expand_inputs(["lot"]) and expand_inputs([path]) == [path]
         with pytest.raises(CaptureError, match=reason):
             sha256_file(path)
+
+
+def test_one_file_under_many_names_is_one_capture(lot):
+    # a link from a sub-folder back to its parent, which a '**' pattern follows round and round,
+    # a link to itself, and a hard link: each file once, under its shortest name (a fault
+    # campaign's loop made one capture 41 parts of the lot, with no spread)
+    os.symlink(lot / "lot", lot / "lot" / "sub" / "loop")
+    os.symlink("self.csv", lot / "lot" / "self.csv")
+    os.link(lot / "lot" / "p1.csv", lot / "lot" / "sub" / "p1_again.csv")
+    got = expand_inputs(["lot/**/*.csv"])
+    assert got == [os.path.join("lot", n) for n in ("p1.csv", "p10.csv", "self.csv", os.path.join("sub", "p4.csv"))]

@@ -44,8 +44,8 @@ def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda pa
     """Files named, files in named folders (not recursive), files matching patterns.
 
     Each path appears once, normalised (``os.path.normpath``), in capture
-    order. Files for which ``skip`` is true (the run's own outputs) are left
-    out wherever they come from. A name that is no file, folder or matching
+    order, and each file under one name only (:func:`_one_name_each`). Files for
+    which ``skip`` is true (the run's own outputs) are left out wherever they come from. A name that is no file, folder or matching
     pattern is an error raised before anything is analysed.
     """
     found: set[str] = set()
@@ -70,7 +70,30 @@ def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda pa
         found.update(os.path.normpath(path) for path in matches)
     if not found:
         raise CaptureError("no capture files given; name files, folders or glob patterns")
-    return sorted(found, key=capture_order)
+    return _one_name_each(sorted(found, key=capture_order))
+
+
+def _one_name_each(paths: list[str]) -> list[str]:
+    """``paths`` (in capture order) with each file kept under one name, its shortest: one file
+    reached by several names (a symbolic link to its folder, which a ``**`` pattern follows
+    round a loop, or a hard link) is one capture, not a part counted many times in the lot's
+    statistics (a fault campaign's link loop made one capture 41 "parts" with no spread). A
+    link that leads nowhere (dead, or to itself) is one by the link itself, and becomes one
+    error row; a name that cannot be examined at all is kept as it is."""
+    names: dict[object, str] = {}
+    for path in paths:
+        try:
+            info = os.stat(path)
+        except OSError:
+            try:
+                info = os.lstat(path)
+            except OSError:
+                names[path] = path
+                continue
+        key = (info.st_dev, info.st_ino)
+        if key not in names or len(path) < len(names[key]):
+            names[key] = path
+    return sorted(names.values(), key=capture_order)
 
 
 def expand_part_folders(inputs: Sequence[str], skip: Callable[[str], bool] = lambda path: False) -> list[str]:
