@@ -161,6 +161,20 @@ def test_a_name_the_file_repeats_is_refused_and_its_columns_serve_by_index(tmp_p
     assert abs(found.value - L) < 3 * found.standard_uncertainty
 
 
+def test_values_near_the_float_range_end_give_no_numpy_warnings(tmp_path: Path) -> None:
+    # one cell of 1e308 (found and repaired as a glitch) and a time column standing at 1.7e308
+    # (refused): each printed numpy's overflow warnings on stderr (a fault campaign's files)
+    t, drive, sense = _record(seed=8)
+    sense = sense.copy()
+    sense[sense.size // 3] = 1e308
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        result = wavefit.analyze(_write(tmp_path / "huge.csv", t, drive, sense), TWO_CHANNELS)
+        assert any("isolated sample" in w for w in result.warnings)
+        with pytest.raises(wavefit.CaptureError, match="repeats the value"):
+            wavefit.analyze(_write(tmp_path / "far.csv", np.full(t.size, 1.7e308), drive, sense), TWO_CHANNELS)
+
+
 def test_a_ring_given_to_rl_step_is_not_reported(tmp_path: Path) -> None:
     tank = Tank(inductance=100e-6, tank_capacitor=10e-9, dcr=0.5)
     t, v = ringdown(tank, 2e-8, 4000, pre_trigger=400)

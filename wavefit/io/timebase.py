@@ -289,10 +289,11 @@ def _rounded_grid(
     steps = printing.steps(time)
     resolution = float(steps.max())
     rows = _Rows()
-    slope, relative = _segment_slope(time, steps, rows)
-    if not (slope > 0 and relative <= GRID_MAX_RELATIVE):
-        return None
-    low, high = _departure_range(time, slope, rows)
+    with np.errstate(over="ignore", invalid="ignore"):  # stamps near the float range's end: no grid
+        slope, relative = _segment_slope(time, steps, rows)
+        if not (slope > 0 and relative <= GRID_MAX_RELATIVE):
+            return None
+        low, high = _departure_range(time, slope, rows)
     span = high - low
     if span > _ROUNDING_SPAN * resolution:
         return None
