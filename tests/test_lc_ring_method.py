@@ -337,3 +337,15 @@ def test_a_noise_sample_in_a_long_pre_trigger_is_not_the_rings_start():
     assert result.fit.window_start_s >= 0.0
     q = result.quantities["L"]
     assert abs(q.value - TANK.inductance) < q.expanded_uncertainty
+
+
+def test_a_fit_start_before_the_ring_is_warned_and_one_after_it_is_not():
+    # a window from before the excitation fits the ring to baseline samples (Q 2 standard
+    # uncertainties off two samples early, the model check passing: a fault campaign's rings)
+    frame = _frame()
+    t = frame["t"].to_numpy()
+    onset = float(t[50])  # the ring starts after the 50 pre-trigger samples
+    for start, warned in ((t[0], True), (t[47], True), (onset, False), (t[60], False)):
+        setup = {**SETUP, "options": {"fit_start": f"{start} s"}}
+        result = wavefit.analyze(frame, setup)
+        assert any("before the ring's onset" in w for w in result.warnings) == warned, start

@@ -17,7 +17,7 @@ import numpy as np
 from scipy import ndimage
 
 from ..errors import AnalysisRefused, NothingToMeasure, SetupError
-from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring
+from ..fit.damped_sine import DampedSineFit, fit_damped_sine, fit_ring, ring_window
 from ..io.capture import Capture
 from ..setup import Setup
 from ..signal.clipping import CLIPPED_RUN, longest_run_at_extremes, model_exceeds_record, piles_up_at_limit
@@ -206,6 +206,8 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
                               f"check the [columns] tank entry and that the record holds the ring{clipped_hint}",
                               str(capture.source)) from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
+    if start is not None:
+        warnings += [w for w in (_before_onset(t, y, start),) if w]
     clipping = ("" if after is None else
                 f"the ring is clipped at the converter's limit until {t[after - 1]:.6g} s: the fit starts after it, "
                 "leaving out the larger early cycles (set the vertical scale so the whole ring fits on screen)")
@@ -222,6 +224,24 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
     if trend is not None:
         warnings.append(trend.warning(channel.unit or "(unit of the record)"))
     return RingMeasurement(ring, t, y, channel.unit, info, tuple(warnings))
+
+
+#: A fit_start this many samples or more before the ring's onset is warned. The onset is the
+#: first sample off the pre-trigger baseline by more than 4 noise deviations or 2 % of the
+#: peak (:func:`wavefit.fit.damped_sine.ring_window`), at most a sample late; a window from
+#: before it fits a ring to samples of the baseline (two samples early moved Q by 2 standard
+#: uncertainties, 10 µs early by 1.8, with the model check passing: a fault campaign's rings).
+EARLY_START_SAMPLES = 2
+
+
+def _before_onset(t: np.ndarray, y: np.ndarray, start: int) -> str | None:
+    """A warning when a given fit_start (sample ``start``) lies before the ring's onset."""
+    onset = ring_window(y).onset
+    if onset - start < EARLY_START_SAMPLES:
+        return None
+    return (f"fit_start ({t[start]:.6g} s) is {onset - start} samples before the ring's onset ({t[onset]:.6g} s, "
+            "where the record leaves its baseline): the samples before it are no part of the ring and bias the "
+            "decay, Q and R; set fit_start at or after the onset, or leave it out")
 
 
 def _clipped(ring: DampedSineFit, y: np.ndarray, code: float | None) -> bool:
