@@ -192,6 +192,7 @@ def test_cli_draws_and_seed(capsys):
 @pytest.mark.parametrize("extra, message", [
     (["--uncertainty", "montecarlo", "--draws", "100"], "too few"),
     (["--draws", "20000"], "applies only with --uncertainty montecarlo"),
+    (["--uncertainty", "montecarlo", "--draws", "20000", "--seed", "-1"], "-1 is negative"),  # was exit 4, after the analysis
 ])
 def test_cli_refuses_unusable_draws(capsys, extra, message):
     args = ["analyze", str(SAMPLES / "tank_ring.csv"), "--setup", str(SAMPLES / "tank_ring.toml"), *extra]

@@ -40,6 +40,17 @@ def _draws(text: str) -> int:
     return value
 
 
+def _seed(text: str) -> int:
+    """``--seed``: a whole number of zero or more (numpy's generators take no negative seed)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"{value} is negative; give a whole number of zero or more")
+    return value
+
+
 class OneLineParser(argparse.ArgumentParser):
     """An argument parser whose usage errors are one line on stderr, as every other error is
     (argparse prints the whole usage block first: six lines for ``analyze``), and exit 2."""
@@ -73,7 +84,7 @@ def build_parser() -> argparse.ArgumentParser:
                            "10^6 draws) and report its coverage intervals beside the linear ones")
     p_an.add_argument("--draws", type=_draws, default=None, metavar="N",
                       help=f"Monte Carlo draws (default 10^6, at least {MIN_DRAWS})")
-    p_an.add_argument("--seed", type=int, default=None, metavar="N",
+    p_an.add_argument("--seed", type=_seed, default=None, metavar="N",
                       help="seed of the Monte Carlo draws (default: a fixed one, so runs repeat)")
 
     p_in = sub.add_parser("inspect", help="show what the reader sees in a capture file")

@@ -59,7 +59,11 @@ def check_figure_path(path: str | os.PathLike[str]) -> None:
     missing = folder_problem(target.parent)
     if missing:
         raise FigureFileError(f"cannot draw a plot into {visible(target)}: folder {visible(target.parent)} {missing}")
-    if kind in _SIGNATURES and target.is_file():
+    try:
+        present = target.is_file()
+    except OSError:  # a name too long to look up: check_output refuses it, with the reason
+        present = False
+    if kind in _SIGNATURES and present:
         with open(target, "rb") as stream:
             head = stream.read(16).lstrip()
         if head and not head.startswith(_SIGNATURES[kind]):
