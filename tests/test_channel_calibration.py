@@ -128,3 +128,27 @@ def test_the_note_is_kept_and_a_file_without_one_still_reads(tmp_path):
         "0" * 64, "test", note="coherent sampling: a bound"), noted)
     assert read_channel_comparison(noted).note == "coherent sampling: a bound"
     assert read_channel_comparison(noted).skew.degrees_of_freedom == float("inf")
+
+
+def test_a_skew_beyond_the_record_or_in_another_unit_is_refused(tmp_path, capsys):
+    # a hand edited skew of 1 s on a record of 100 µs overflowed the measurement function and
+    # was reported as a capture the method did not expect (exit 4); a skew in "V" was taken
+    from wavefit.synth.rl import rl_square_wave
+
+    t, drive, sense = rl_square_wave(100e-6, 1.0, 10.0, 50.0, 2.0, 40e-6, 20e-9, 100e-6)
+    capture = tmp_path / "c.csv"
+    capture.write_text("Time (s),CH1,CH2\n" + "".join(f"{a:.9e},{b:.6f},{c:.6f}\n" for a, b, c in zip(t, drive, sense)))
+    setup = tmp_path / "s.toml"
+    setup.write_text('method = "rl-step"\n[columns]\ntime = "Time (s)"\ndrive = "CH1"\nsense = "CH2"\n'
+                     '[parts]\nsense_resistor = "10 ohm"\n[calibration]\nchannels = "channels.toml"\n')
+    write(tmp_path / "channels.toml", skew=1.0)
+    assert main(["analyze", str(capture), "--setup", str(setup)]) == 3
+    err = capsys.readouterr().err.strip()
+    assert "\n" not in err and "its skew (1 s) is more than 10% of the record analysed" in err
+    write(tmp_path / "channels.toml", skew=5e-6)  # 5 % of the record: taken
+    assert main(["analyze", str(capture), "--setup", str(setup)]) == 0
+    capsys.readouterr()
+    path = write(tmp_path / "channels.toml")
+    path.write_text(path.read_text(encoding="utf-8").replace('unit = "s"', 'unit = "V"'), encoding="utf-8")
+    with pytest.raises(SetupError, match=r"\[skew\] unit is 'V'; a skew is in 's'"):
+        calibration_of(rl_setup(tmp_path))

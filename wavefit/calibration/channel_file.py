@@ -125,6 +125,11 @@ def write_channel_comparison(comparison: ChannelComparison, path: str | os.PathL
     write_toml_whole(data, path)
 
 
+#: The units of a comparison's dimensioned figures (the gain ratio has none); an empty unit is
+#: taken as these (a hand edited skew in "V" was accepted: a fault campaign's file).
+UNITS = {"skew": "s"}
+
+
 def read_channel_comparison(path: str | os.PathLike[str]) -> ChannelComparison:
     """Read a channel comparison file written by :func:`write_channel_comparison`.
 
@@ -151,6 +156,10 @@ def read_channel_comparison(path: str | os.PathLike[str]) -> ChannelComparison:
     if not isinstance(made, dt.datetime) or made.tzinfo is None:
         raise SetupError(f"{where}: 'made' must be a date and time with its UTC offset, "
                          f"e.g. 2026-12-03T22:00:00Z")
+    for key, unit in UNITS.items():
+        given = data[key].get("unit") if isinstance(data[key], Mapping) else None
+        if isinstance(given, str) and given not in (unit, ""):
+            raise SetupError(f"{where}: [{key}] unit is {given!r}; a {key.replace('_', ' ')} is in {unit!r}")
     return ChannelComparison(
         reference=_role(data["reference"], "reference", where),
         other=_role(data["other"], "other", where),

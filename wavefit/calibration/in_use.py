@@ -157,6 +157,27 @@ def check_channel_mapping(setup: Setup, method_name: str, ratio_roles: tuple[str
                          "or remove [calibration] channels")
 
 
+#: A channel comparison whose skew exceeds this share of the record analysed is refused: a
+#: probe's or a logger's skew is a small part of any record that resolves the response (a hand
+#: edited skew of 1 s on a record of 0.8 ms overflowed the measurement function, reported as
+#: a capture the method did not expect: a fault campaign's file).
+MAX_SKEW_SHARE = 0.1
+
+
+def refuse_skew_beyond_record(channels: ChannelCalibration | None, duration: float, setup: Setup) -> None:
+    """Refuse a comparison whose skew exceeds :data:`MAX_SKEW_SHARE` of the record's ``duration`` (s).
+
+    Raises
+    ------
+    SetupError
+        Naming the file, its skew and the record's length."""
+    if channels is None or abs(channels.skew.value) <= MAX_SKEW_SHARE * duration:
+        return
+    raise SetupError(f"channel comparison file {setup.calibration.channels}: its skew ({channels.skew.value:.6g} s) is "
+                     f"more than {MAX_SKEW_SHARE:.0%} of the record analysed ({duration:.6g} s): it cannot be the "
+                     "comparison of these channels at these settings; compare them again")
+
+
 def _ratio(comparison: ChannelComparison, numerator: str) -> ChannelInput:
     """numerator gain / denominator gain: the file's ratio when the other channel is the
     numerator, its inverse otherwise (u(1/g) = u(g)/g², first order)."""

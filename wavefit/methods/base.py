@@ -14,7 +14,8 @@ import math
 from dataclasses import dataclass
 from typing import Any, ClassVar, Mapping
 
-from ..calibration.in_use import ChannelCalibration, channel_calibration, check_channel_mapping
+from ..calibration.in_use import (ChannelCalibration, channel_calibration, check_channel_mapping,
+                                  refuse_skew_beyond_record)
 from ..calibration.substitution import with_reference
 from ..curve_propagation import propagate_curves
 from ..errors import AnalysisRefused, NothingToMeasure, SetupError, had_warned
@@ -332,6 +333,8 @@ class Method:
             From the estimate, or when a result is not physical (:meth:`check_physical`).
         """
         channels = channel_calibration(setup, self.name, self.channel_ratio_roles)  # read once, checked
+        time = measurement.first.capture.time
+        refuse_skew_beyond_record(channels, float(time[-1] - time[0]), setup)
         estimate = self.estimate(measurement, setup)
         inputs = self.inputs(estimate, measurement, setup, channels)
         model, substitution_warnings = with_reference(self, estimate, inputs, setup)
