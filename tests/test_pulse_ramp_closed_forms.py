@@ -253,6 +253,12 @@ def test_inductance_at_named_currents_in_the_documented_form():
     at = result.curves["L_at"]
     np.testing.assert_allclose(at.axis_values, [2.0, 3.5, 4.0])
     assert np.all(np.abs(at.values - L) <= at.expanded_uncertainty)
+    # a current beyond the ramp's reach is left out with a warning, the others still given (the
+    # whole analysis was refused, L0 and the curves with it)
+    beyond = {**SETUP, "options": {"at_currents": ["2 A", "1 kA"]}}
+    partly = wavefit.analyze(capture(i, np.full(t.size, V), 400, np.random.default_rng(3), 2e-5, 5e-3), beyond)
+    np.testing.assert_allclose(partly.curves["L_at"].axis_values, [2.0])
+    assert any("at_currents 1000 A outside the measured range" in w for w in partly.warnings)
     bad = {**SETUP, "options": {"at_currents": ["2 V"]}}
     with pytest.raises(Exception, match="at_currents entry '2 V' is not a current"):
         wavefit.analyze(capture(i, np.full(t.size, V), 400, np.random.default_rng(3), 2e-5, 5e-3), bad)

@@ -51,3 +51,19 @@ def test_a_fall_counts_only_beyond_the_noise():
     assert kept == {10: None} and weak[10] == pytest.approx(2.0)
     # a drop that had no crossing stays without one and is not called weak
     assert significant_falls(deep, l0, {30: None}, 3.0) == ({30: None}, {})
+
+
+def test_a_first_point_below_the_level_only_within_its_noise_is_not_a_fall_already_made():
+    # a short pulse's first point, 18.6 ± 9.9 µH under 0.7·33 µH, was said to have fallen by
+    # 10-30 % already (with advice for the wrong cause); a fall is FALL_Z (3) standard uncertainties
+    from uncertainties import ufloat
+
+    from wavefit.methods.pulse_ramp import _unreported_drops
+
+    grid = np.linspace(0.065, 2.93, 50)
+    drops = {10: None, 20: None, 30: None}
+    l0 = ufloat(33e-6, 1e-6)
+    noisy = _unreported_drops(drops, {}, ufloat(18.6e-6, 9.9e-6), l0, grid)
+    assert not any("already" in w for w in noisy) and any("did not fall by 10 %, 20 %, 30 %" in w for w in noisy)
+    fallen = _unreported_drops(drops, {}, ufloat(15e-6, 1e-6), l0, grid)
+    assert any("already 10 %, 20 %, 30 % below L0" in w for w in fallen)
