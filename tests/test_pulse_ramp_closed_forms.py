@@ -16,7 +16,7 @@ import pandas as pd
 import pytest
 
 import wavefit
-from wavefit.errors import AnalysisRefused
+from wavefit.errors import AnalysisRefused, SetupError
 from wavefit.fit.spline_regression import fit_spline, knots_at_steps
 from wavefit.methods._pulses import find_pulses, ring_mask_end
 
@@ -90,7 +90,9 @@ def test_missing_dcr_is_refused_naming_the_part():
     t = np.arange(2000) * DT
     frame = capture(12.0 * t / 100e-6, np.full(t.size, 12.0), 300, np.random.default_rng(5), 2e-5, 5e-3)
     setup = {**SETUP, "parts": {"shunt_resistor": "10 mohm ±0.1%"}}
-    with pytest.raises(AnalysisRefused, match="dut_resistance"):
+    # a setup error (exit 3) naming the setup, as for every required part (it was a refused
+    # analysis, exit 4, naming the capture)
+    with pytest.raises(SetupError, match="<dict>: method 'pulse-ramp' needs part 'dut_resistance'"):
         wavefit.analyze(frame, setup)
 
 

@@ -191,7 +191,8 @@ class PulseRamp(Method):
     roles = {"current": True, "voltage": True, "supply": False}
     parts = {
         "shunt_resistor": PartSpec("ohm", False, "current shunt (the current column is its voltage)"),
-        "dut_resistance": PartSpec("ohm", False, "DCR of the coil (its resistive drop is removed from v)"),
+        "dut_resistance": PartSpec("ohm", True, "DCR of the coil from an ohmmeter: its drop R·i is removed from "
+                                   "the coil voltage"),
     }
     options = {"saturation_drops": [10, 20, 30], "at_currents": []}
     no_substitution = ("its measurement function is built on each capture's own ramps (their knots and current "
@@ -242,9 +243,6 @@ class PulseRamp(Method):
     def estimate(self, measurement: Measurement, setup: Setup) -> Estimate:
         bound = measurement.first
         capture, parts = bound.capture, bound.parts
-        if "dut_resistance" not in parts:
-            raise AnalysisRefused(f"{capture.source}: pulse-ramp needs the coil's DCR as part dut_resistance "
-                                  "(an ohmmeter reading): its drop R·i is removed from the coil voltage")
         t = np.asarray(capture.time, dtype=float)
         current = np.asarray(self.channel(capture, setup, "current").values, dtype=float)
         voltage = np.asarray(self.channel(capture, setup, "voltage").values, dtype=float)
