@@ -115,5 +115,6 @@ def falling_warning(comparison: FallingComparison | None) -> str | None:
         return None
     return (f"the rising and falling current disagree on L_inc by {comparison.max_z:.1f} standard uncertainties "
             f"at {comparison.at_current:.4g} A (hysteresis or eddy currents in the core, or a dut_resistance off "
-            "its true value: its drop R·i, taken from the coil voltage, moves L_inc in opposite directions on "
-            "the rising and falling ramps): the rising ramp's curve is reported")
+            "its true value, or a shunt_resistor off its value, which sets the current of that drop: the drop "
+            "R·i, taken from the coil voltage, moves L_inc in opposite directions on the rising and falling "
+            "ramps; a unit slip in either is off a thousand times): the rising ramp's curve is reported")

@@ -318,7 +318,8 @@ class PulseRamp(Method):
         l_inc = np.asarray(nominal["L_inc"], dtype=float)
         if not np.all(l_inc > 0):
             raise AnalysisRefused(f"{capture.source}: the fitted current does not rise through the pulse "
-                                  "(L_inc not positive): check [columns] and the current's sign")
+                                  "(L_inc not positive): check [columns], the current's sign, and dut_resistance "
+                                  "(a DCR too large, a unit slip, takes more than the coil's voltage as R·i)")
         low_points = np.flatnonzero(grid <= grid[0] + L0_SPAN * (grid[-1] - grid[0]))
         powers = NOT_FROM_REST_POWERS if not_from_rest else L0_POWERS
         settings.update(low_points=low_points, l0_powers=powers, low_weights=series_weights(grid[low_points], powers))
