@@ -86,3 +86,43 @@ def test_a_vertical_setting_finer_than_the_proposal_is_kept(per_division, keep):
     (scale,) = suggest(capture_from_frame(frame)).scales
     assert scale.keep_present == keep
     assert scale.per_division == pytest.approx(0.01)
+
+
+def test_a_sense_of_a_few_codes_is_named_with_the_finer_setting_to_take():
+    # both channels at one coarse setting (the sense step over 17 codes, noise 0.4 code): too
+    # coarse for the step's shape to tell, refused as "neither a step nor a ring ... check the
+    # probes" with a clipping hint only (a helper's first capture); the refusal names the coarse
+    # channel and the setting to change
+    ind, dcr, r_sense, r_source = 33e-6, 0.045, 10.0, 50.0
+    tau = ind / (dcr + r_sense + r_source)
+    t, d, s = rl_square_wave(ind, dcr, r_sense, r_source, 2.0, 20 * tau, tau / 28, 180 * tau, delay=10 * tau)
+    rng = np.random.default_rng(3)
+    screen = (-2.5, 2.5)  # 0.5 V/div over ten divisions on both channels
+    drive = ScopeModel(noise_rms=0.008, bits=8, full_scale=screen).apply(d, rng)
+    sense = ScopeModel(noise_rms=0.008, bits=8, full_scale=screen).apply(s, rng)
+    frame = pd.DataFrame({"Time (s)": t, "CH1 (V)": drive, "CH2 (V)": sense})
+    with pytest.raises(AnalysisRefused, match=r"'CH2 \(V\)' spans only \d+ codes of [\d.]+ mV: too coarse to tell "
+                                              "the waveform's shape: set a finer volts per division"):
+        suggest(capture_from_frame(frame))
+
+
+def test_numpy_warnings_of_a_shape_tried_and_given_up_stay_off_stderr(tmp_path, monkeypatch, capsys):
+    # a pulse capture tried as a ring printed numpy's "invalid value encountered in sqrt" above
+    # the one-line refusal (a helper's trial)
+    import wavefit.suggest
+    from wavefit.cli import main
+
+    def tried(capture, **_):
+        np.sqrt(np.array([-1.0]))
+        raise AnalysisRefused(f"{capture.source}: the record shows neither a step nor a ring")
+
+    monkeypatch.setattr(wavefit.suggest, "suggest", tried)
+    path = tmp_path / "pulse.csv"
+    first_capture(TAU / 50).to_csv(path, index=False)
+    import warnings
+
+    with warnings.catch_warnings(record=True) as shown:
+        warnings.simplefilter("always")
+        assert main(["suggest", str(path)]) == 4
+    assert not [w for w in shown if issubclass(w.category, RuntimeWarning)]
+    assert capsys.readouterr().err.count("\n") == 1

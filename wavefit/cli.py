@@ -316,6 +316,7 @@ def _inspect(args: argparse.Namespace) -> int:
 
 def _suggest(args: argparse.Namespace) -> int:
     from .io import read_capture
+    from .numerics import collected
     from .suggest import suggest
     from .suggest.render import render_toml
     from .values import parse_part
@@ -326,7 +327,9 @@ def _suggest(args: argparse.Namespace) -> int:
     resistor = None if args.sense_resistor is None else parse_part(args.sense_resistor, "ohm")
     if resistor is not None and not resistor.value > 0:
         raise SetupError(f"--sense-resistor must be positive, got {args.sense_resistor!r}")
-    found = suggest(read_capture(args.file), sense_resistor=resistor, bits=args.bits)
+    capture = read_capture(args.file)
+    with collected():  # a shape tried and given up (a ring's fit of a pulse) warns in numpy: not shown
+        found = suggest(capture, sense_resistor=resistor, bits=args.bits)
     if args.json:
         print(json.dumps(found.to_dict(), indent=2, allow_nan=False))
     else:

@@ -88,8 +88,37 @@ def suggest(capture: Capture, sense_resistor: PartValue | None = None, bits: int
     held = _held_at_an_extreme(capture)
     if why is not None:
         raise AnalysisRefused(f"{capture.source}: {why}, then capture again{held}")
+    coarse = _coarse_channels(capture)
     raise AnalysisRefused(f"{capture.source}: the record shows neither a step nor a ring (or too much noise "
-                          f"to tell); check the probes, the trigger and the generator, then capture again{held}")
+                          f"to tell){coarse}; check the probes, the trigger and the generator, then capture "
+                          f"again{held}")
+
+
+#: A channel whose record spans fewer converter codes than this is too coarse to tell a step
+#: from another shape: a first-order step's misfit allowance (STEP_MAX_RESIDUAL, 2 % of the
+#: span) is then below its own quantisation and noise (a helper's first capture at 0.5 V/div:
+#: a sense step of 17 codes, refused as neither step nor ring).
+COARSE_SPAN_CODES = 32
+#: Codes a channel's swing is advised to span instead (about a third of an 8-bit screen).
+ADVISED_SPAN_CODES = 80
+
+
+def _coarse_channels(capture: Capture) -> str:
+    """A clause naming each moving channel whose record spans fewer than COARSE_SPAN_CODES codes
+    of its converter ('' when none does), with the finer volts per division factor to set."""
+    coarse = []
+    for channel in capture.channels:
+        y = np.asarray(channel.values, dtype=float)
+        code = channel.levels.step
+        if not code or y.size == 0 or not np.all(np.isfinite(y)):
+            continue
+        span = float(np.ptp(y)) / code
+        if 1 < span < COARSE_SPAN_CODES:
+            coarse.append(f"{channel.header!r} spans only {span:.0f} codes of {eng(code, 'V')}")
+    if not coarse:
+        return ""
+    return (f"; {', '.join(coarse)}: too coarse to tell the waveform's shape: set a finer volts per division "
+            f"(the swing over {ADVISED_SPAN_CODES} codes or more, the whole waveform still on screen)")
 
 
 def _held_at_an_extreme(capture: Capture) -> str:
