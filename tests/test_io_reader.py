@@ -253,6 +253,19 @@ def test_two_sample_intervals_without_a_time_column_are_refused(tmp_path: Path, 
         read_capture(footer)
 
 
+def test_rows_that_go_on_with_another_separator_are_refused_not_a_footer(tmp_path: Path) -> None:
+    # commas to tabs partway (two exports joined): the last 1,250 rows were dropped as a footer
+    # with a warning only (a fault campaign's file); one line of numbers after the table, a
+    # setting, is still a footer
+    time, v = np.arange(300) * DT, _signal(300)
+    rows = [f"{t:.9e},{a:.6f},{-a:.6f}" for t, a in zip(time[:200], v[:200])]
+    tabbed = [f"{t:.9e}\t{a:.6f}\t{-a:.6f}" for t, a in zip(time[200:], v[200:])]
+    with pytest.raises(CaptureError, match="line 202: the rows go on with another separator than the table's ','"):
+        read_capture(_write(tmp_path, ["Time (s),CH1 (V),CH2 (V)", *rows, *tabbed]))
+    kept = read_capture(_write(tmp_path, ["Time (s),CH1 (V),CH2 (V)", *rows, "Settings", "1 0 5"], "s.csv"))
+    assert kept.rows == 200 and any("not data" in w for w in kept.warnings)
+
+
 def test_printing_resolution_of_fixed_and_significant_formats() -> None:
     time = 1e-4 + np.arange(1000) * 1.2345678e-9
     fixed = np.array([float(f"{t:.12f}") for t in time])

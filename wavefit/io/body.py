@@ -397,7 +397,8 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
     rows = 0
     first: _Problem | None = None
     footer: list[tuple[int, str]] = []
-    shaped = in_a_row = 0
+    shaped = in_a_row = other_rows = 0
+    other_from = (0, "")  # the first of the rows in another separator in a row
     before = last = ""  # the last two rows that read
     for number, line in _table_lines(source, layout, encoding):
         if not line.strip():
@@ -419,6 +420,14 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
             first = problem
         table_row = problem is None and _count_cells(line, layout.sep) == layout.n_fields
         shaped, in_a_row = shaped + table_row, in_a_row + 1 if table_row else 0
+        other_rows = other_rows + 1 if _is_row_of_other_separator(line, layout) else 0
+        if other_rows == 1:
+            other_from = (number, line)
+        if other_rows >= RESUMED_ROWS:
+            return _Scan(_Problem(
+                f"{source.name}, line {other_from[0]}: the rows go on with another separator than the table's "
+                f"{layout.sep!r} ({other_from[1].strip()[:40]!r}): are two exports joined into one file? Export "
+                "the capture again as one table"))
         if in_a_row >= RESUMED_ROWS or len(footer) >= MAX_FOOTER_LINES:
             return _Scan(first)
         footer.append((number, line.strip()))
@@ -475,6 +484,16 @@ def _is_footer_text(line: str) -> bool:
     if text == _END_OF_FILE:
         return True
     return _WORD.search(text) is not None and not _LEADING_NUMBER.match(text)
+
+
+def _is_row_of_other_separator(line: str, layout: Layout) -> bool:
+    """A line of as many numbers as the table has columns, or more, split by another separator
+    than the table's: RESUMED_ROWS of them in a row are the table's rows going on in another
+    format, not a footer (a file whose separator changed from commas to tabs partway had its
+    last 1,250 rows dropped as a footer, with a warning only: a fault campaign's file)."""
+    tokens = re.split(r"[\s,;|]+", line.strip())
+    return (_count_cells(line, layout.sep) < layout.n_fields <= len(tokens)
+            and all(is_number(token, ".") or is_number(token, ",") for token in tokens))
 
 
 def _is_other_shape(line: str, layout: Layout) -> bool:
