@@ -170,3 +170,15 @@ def test_bad_part_is_one_line_and_exit_3(tmp_path, capsys, line):
     assert main(["analyze", str(capture), "--setup", str(setup)]) == 3
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "part 'sense_resistor': cannot read" in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize("value, shown", [("2 A", '"2 A"'), (4, "4")])
+def test_a_list_option_given_as_one_value_is_refused_in_one_line(value, shown):
+    # pulse-ramp's at_currents = "2 A" was read a character at a time ("entry ' ' is not a
+    # current"), at_currents = 4 raised a traceback (a fault campaign's setups)
+    setup = load_setup({"method": "pulse-ramp", "columns": {"current": "i", "voltage": "v"},
+                        "parts": {"shunt_resistor": "10 mohm", "dut_resistance": "20 mohm"},
+                        "options": {"at_currents": value}})
+    with pytest.raises(SetupError, match=rf"option at_currents = {shown} must be a list in brackets, "
+                                         rf"e.g. at_currents = \[{shown}\]"):
+        get_method("pulse-ramp").check_setup(setup)

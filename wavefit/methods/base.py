@@ -126,6 +126,12 @@ class Method:
         check_names(setup.columns, ("time", *self.roles), "role in [columns]", setup.source)
         check_names(setup.parts, tuple(self.parts), "part in [parts]", setup.source)
         check_names(setup.options, tuple(self.options), "option in [options]", setup.source)
+        for key, value in setup.options.items():
+            if isinstance(self.options[key], list) and not isinstance(value, list):
+                # (a text was taken a character at a time, a number raised a traceback)
+                shown = f'"{value}"' if isinstance(value, str) else repr(value)
+                raise SetupError(f"{setup.source}: option {key} = {shown} must be a list in brackets, "
+                                 f"e.g. {key} = [{shown}]")
         self._check_instrument_keys(setup)
         for role, required in self.roles.items():
             if required and role not in setup.columns:
