@@ -50,6 +50,10 @@ def test_defaults_describe_a_bench_scope():
     ({"method": "rl-step", "parts": {"sense_resistor": "ten"}}, "part 'sense_resistor'"),
     ({"method": "rl-step", "sample_interval": -1}, "must be positive"),
     ({"method": "rl-step", "columns": {"sense": 1.5}}, "0-based index"),
+    # a top-level key written after [parts] (TOML puts it in that table): it was read as a part
+    ({"method": "lc-sweep", "parts": {"parallel_load": "1 Gohm", "captures": "x"}},
+     "'captures' is in [parts], not at the top level: TOML puts every key after a [parts] line into that table"),
+    ({"parts": {}, "options": {"method": "rl-step"}}, "'method' is in [options], not at the top level"),
 ])
 def test_bad_setups_name_the_problem(data, phrase):
     with pytest.raises(SetupError) as err:

@@ -160,6 +160,7 @@ def read_toml(path: Path, what: str, *, empty: bool = True) -> dict[str, Any]:
 def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setup:
     """Check and convert the raw mapping of a setup."""
     check_names(data, TOP_LEVEL_KEYS, "setup key", source)
+    _refuse_top_level_keys_in_tables(data, source)
     method = data.get("method")
     if method is None or method == "":
         raise SetupError(f"{source}: 'method' is missing; write e.g. method = \"rl-step\"")
@@ -193,6 +194,22 @@ def parse_setup(data: Mapping[str, Any], *, source: str, base_dir: Path) -> Setu
         column_files=column_files,
         calibration=_calibration(_table(data, "calibration", source), source, base_dir),
     )
+
+
+def _refuse_top_level_keys_in_tables(data: Mapping[str, Any], source: str) -> None:
+    """Refuse a table that holds a key of the top level (``captures = "x"`` or ``method`` under
+    ``[parts]``): TOML puts every key after a ``[table]`` line into that table, and the key was
+    then read as a part, a role or an option, with a message about its value (a fault
+    campaign's setup)."""
+    tables = ("columns", "parts", "instrument", "options", "calibration")
+    for table in tables:
+        found = data.get(table)
+        if not isinstance(found, Mapping):
+            continue
+        for key in found:
+            if key in TOP_LEVEL_KEYS and key not in tables:
+                raise SetupError(f"{source}: {key!r} is in [{table}], not at the top level: TOML puts every key after "
+                                 f"a [{table}] line into that table; move {key} above the first [table] line")
 
 
 def _calibration(table: Mapping[str, Any], source: str, base_dir: Path) -> CalibrationFiles:
