@@ -54,6 +54,7 @@ def test_writes_the_file_and_prints_the_summary(tmp_path, capsys):
         assert abs(q.value - truth) <= stats.t.ppf(0.975, q.degrees_of_freedom) * q.standard_uncertainty
     assert "gain ratio" in printed.out and "skew" in printed.out and str(out) in printed.out
     assert f"{ratio.value:.6f} ± {2 * ratio.standard_uncertainty:.6f}" in printed.out
+    assert "Safety:" in printed.out  # the step where probes are moved (a trial found no caution)
 
 
 @needs_ngspice

@@ -110,7 +110,8 @@ def calibrate(tmp_path, part: str) -> tuple[int, str, str]:
 def test_the_part_as_its_own_reference_gives_the_known_value(tmp_path):
     # algebra of substitution: y·Y_known/y = Y_known when the reference capture is the part's own
     write_bench(tmp_path)
-    assert calibrate(tmp_path, "L = 230 uH ±0.1%")[0] == 0
+    code, out, _ = calibrate(tmp_path, "L = 230 uH ±0.1%")
+    assert code == 0 and "Safety:" in out  # the part is put in the fixture at this step
     result = wavefit.analyze(tmp_path / "capture.csv", tmp_path / "setup.toml")
     plain = wavefit.analyze(tmp_path / "capture.csv", tmp_path / "plain.toml")
     assert result.quantities["L"].value == pytest.approx(230e-6, rel=1e-12)

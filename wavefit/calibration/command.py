@@ -103,7 +103,10 @@ def _channels(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(as_dict(comparison, estimate.edges), indent=2, allow_nan=False))
     else:
+        from ..report.text import SAFETY_NOTE
+
         print(visible_lines(summary(comparison, estimate.edges, args.out)))
+        print(SAFETY_NOTE)  # the step where probes and parts are moved
     return 0
 
 

@@ -26,6 +26,7 @@ def run(args: argparse.Namespace) -> int:
     from ..methods import get_method
     from ..numerics import collected, numerical_failures_refused
     from ..provenance import file_sha256
+    from ..report.text import SAFETY_NOTE
     from ..output_files import check_output
     from ..setup import load_setup
     from ..uncertainty import propagate
@@ -76,6 +77,7 @@ def run(args: argparse.Namespace) -> int:
     print(f"{args.out}: {quantity} of the reference measured {eng(measured.value, unit)} "
           f"(u {eng(measured.standard_uncertainty, unit, 2)}), known {known.text}: correction factor "
           f"{factor.value:.6f} (u {factor.standard_uncertainty:.2g}, shared inputs included)")
+    print(SAFETY_NOTE)  # the step where the reference part is put in the fixture
     return 0
 
 
