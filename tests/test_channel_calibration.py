@@ -152,3 +152,11 @@ def test_a_skew_beyond_the_record_or_in_another_unit_is_refused(tmp_path, capsys
     path.write_text(path.read_text(encoding="utf-8").replace('unit = "s"', 'unit = "V"'), encoding="utf-8")
     with pytest.raises(SetupError, match=r"\[skew\] unit is 'V'; a skew is in 's'"):
         calibration_of(rl_setup(tmp_path))
+
+
+def test_a_file_made_after_now_is_warned(tmp_path):
+    # a comparison dated 2999 was used without a word: its age, and max_age_days, cannot be judged
+    write(tmp_path / "channels.toml")
+    assert calibration_of(rl_setup(tmp_path), now=MADE - dt.timedelta(days=3)).too_old.startswith(
+        "the channel comparison channels.toml says it was made on 2026-11-23 12:00 UTC, after now")
+    assert calibration_of(rl_setup(tmp_path), now=MADE - dt.timedelta(hours=12)).too_old is None  # time zones

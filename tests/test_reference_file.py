@@ -198,3 +198,8 @@ def test_an_old_reference_is_warned(tmp_path):
     fresh = wavefit.analyze(tmp_path / "capture.csv", tmp_path / "fresh.toml")
     assert any("40 days old" in w for w in aged.warnings)
     assert not any("days old" in w for w in fresh.warnings)
+    # made after now (a file dated 2999 was used without a word): warned, with or without a limit
+    write_reference(sample_reference(**{**old.__dict__, "made": old.made + dt.timedelta(days=400)}),
+                    tmp_path / "ref.toml")
+    ahead = wavefit.analyze(tmp_path / "capture.csv", tmp_path / "setup.toml")
+    assert any("says it was made on" in w and "after now" in w for w in ahead.warnings)

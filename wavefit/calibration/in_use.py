@@ -131,8 +131,22 @@ def channel_calibration(setup: Setup, method_name: str, ratio_roles: tuple[str, 
     if limit is not None and age_days > limit:
         too_old = (f"the channel comparison {path.name} is {age_days:.1f} days old, older than the setup's "
                    f"max_age_days = {limit:g}: compare the channels again")
+    elif age_days < -FUTURE_DAYS:
+        too_old = made_in_the_future("channel comparison", path, comparison.made)
     return ChannelCalibration(comparison, _ratio(comparison, numerator), _skew(comparison, numerator), origin,
                               denominator, too_old)
+
+
+#: A calibration file made more than this many days after now was made by a clock that is off
+#: (or edited): its age, and any max_age_days, cannot be judged (a fault campaign's file dated
+#: 2999 was used without a word). A day covers time zones written wrong.
+FUTURE_DAYS = 1.0
+
+
+def made_in_the_future(kind: str, path: Path, made: dt.datetime) -> str:
+    """The warning for a calibration file whose ``made`` lies after now."""
+    return (f"the {kind} {path.name} says it was made on {made:%Y-%m-%d %H:%M} UTC, after now: its age cannot be "
+            "judged (is this computer's clock, or the one that made it, off?)")
 
 
 def check_channel_mapping(setup: Setup, method_name: str, ratio_roles: tuple[str, str] | None) -> None:

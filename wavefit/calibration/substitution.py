@@ -30,6 +30,7 @@ from typing import TYPE_CHECKING, Any, Callable, Mapping
 
 from ..errors import SetupError
 from ..uncertainty import InputSet
+from .in_use import FUTURE_DAYS, made_in_the_future
 from .reference_file import ReferenceSubstitution, read_reference, wiring
 
 if TYPE_CHECKING:  # imported for the annotations only: base imports this module
@@ -153,6 +154,8 @@ def _age_warning(reference: ReferenceSubstitution, path: Path, setup: "Setup") -
     """A warning when the reference is older than the setup's ``max_age_days``, else None."""
     limit = setup.calibration.max_age_days
     age_days = reference.age().total_seconds() / 86400.0
+    if age_days < -FUTURE_DAYS:
+        return made_in_the_future("reference substitution", path, reference.made)
     if limit is None or age_days <= limit:
         return None
     return (f"the reference substitution {path.name} is {age_days:.0f} days old, more than the setup's "
