@@ -51,6 +51,7 @@ def test_linear_coil_gives_a_flat_curve_and_no_saturation_current():
     assert abs(l0.value - L) <= l0.expanded_uncertainty and abs(l0.value / L - 1) < 0.005
     assert not {"I_sat_10", "I_sat_20", "I_sat_30"} & set(result.quantities)
     assert any("did not fall by 10 %" in w for w in result.warnings)
+    assert not any("the shortest ramp spans" in w for w in result.warnings)
     # the energy stored at the top of the grid: L·I²/2 for a linear coil (common practice)
     top = curve.axis_values[-1]
     e = result.quantities["E"]
@@ -58,6 +59,16 @@ def test_linear_coil_gives_a_flat_curve_and_no_saturation_current():
     # flux linkage of a linear coil is L·i
     flux = result.curves["flux_linkage"]
     assert np.all(np.abs(flux.values - L * flux.axis_values) <= flux.expanded_uncertainty)
+
+
+def test_a_ramp_of_few_samples_is_warned():
+    # the method asks for a few thousand samples a ramp; a square wave's steps read as pulses of
+    # a hundred samples each gave an L0 off beyond U with no word (a trial's capture)
+    L, R, V = 100e-6, 0.05, 12.0
+    t = np.arange(600) * DT
+    i = V / R * (1 - np.exp(-t * R / L))
+    result = wavefit.analyze(capture(i, np.full(t.size, V), 400, np.random.default_rng(3), 2e-5, 5e-3), SETUP)
+    assert any("the shortest ramp spans" in w and "fewer than 1000" in w for w in result.warnings)
 
 
 def test_piecewise_linear_flux_linkage_steps_at_the_break_current():

@@ -106,6 +106,10 @@ GRID_INSET = 0.01
 COARSE_VOLTAGE_U = 2.0
 #: Fewest samples a pulse's ramp must keep between its masked edges (and below a clipped top).
 MIN_RAMP_SAMPLES = 64
+#: A ramp of fewer samples than this is warned (the method page asks for a few thousand): the
+#: splines' knots then hold a few dozen samples each (a square wave's steps of an rl-step bench,
+#: analysed as 12 pulses of 98 samples, gave an L0 off by 2.3 U with no word: a trial's file).
+ADVISED_RAMP_SAMPLES = 1000
 #: Samples averaged for the supply voltage at each end of a pulse's fit.
 SUPPLY_SAMPLES = 16
 #: Samples before the first pulse needed to measure the channels' offsets.
@@ -271,6 +275,7 @@ class PulseRamp(Method):
         amperes = (current - off[0]) / shunt
         ramps, falling = [], []
         not_from_rest = False
+        shortest = t.size
         for k, pulse in enumerate(pulses):
             stop = pulse.stop
             if clip_top is not None:
@@ -281,6 +286,7 @@ class PulseRamp(Method):
                                       "between its masked edges; sample faster or lengthen the pulse")
             ramp = fit_ramp(t, current, voltage, pulse.start, stop, k, RISING, shunt, off[0], records=len(pulses))
             ramps.append(ramp)
+            shortest = min(shortest, stop - pulse.start)
             flux, flux_u = flux_before(t, current, voltage, pulse.rise, pulse.start, off, dcr, shunt,
                                        ramp.voltage.fit.noise_sigma["voltage"])
             blocks += [_block(ramp.current, f"pulse {k + 1} current"), _block(ramp.voltage, f"pulse {k + 1} voltage"),
@@ -299,6 +305,11 @@ class PulseRamp(Method):
             segment = falling_segment(amperes, voltage, pulse, pulses[k + 1].on if k + 1 < len(pulses) else t.size)
             if segment is not None and clip_top is None:
                 falling.append(fit_ramp(t, current, voltage, *segment, k, FALLING, shunt, off[0], records=len(pulses)))
+        if shortest < ADVISED_RAMP_SAMPLES:
+            warnings.append(f"the shortest ramp spans {shortest} samples, fewer than {ADVISED_RAMP_SAMPLES} (a few "
+                            "thousand are asked for): the curves rest on few samples per knot; sample faster or "
+                            "lengthen the pulse (a square wave's steps of an rl-step bench look like many short "
+                            "pulses: is this a pulse-ramp capture?)")
         low, high = max(r.low for r in ramps), min(r.high for r in ramps)
         if not high > low:
             raise AnalysisRefused(f"{capture.source}: the {len(ramps)} pulses found share no current range to compare "
