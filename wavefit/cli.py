@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any, NoReturn, Sequence
 
 from . import __version__
+from .argument_types import whole_number
 from .batch.arguments import add_batch_parser
 from .calibration.arguments import add_calibrate_parser
 from .errors import OutputError, SetupError, WavefitError
@@ -29,26 +30,10 @@ EXIT_OK, EXIT_USAGE, EXIT_INPUT, EXIT_REFUSED, EXIT_OUTPUT = 0, 2, 3, 4, 5
 MIN_DRAWS = 10_000
 
 
-def _draws(text: str) -> int:
-    """``--draws``: a whole number of at least MIN_DRAWS."""
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < MIN_DRAWS:
-        raise argparse.ArgumentTypeError(f"{value} draws is too few for a coverage interval; give at least {MIN_DRAWS}")
-    return value
-
-
-def _seed(text: str) -> int:
-    """``--seed``: a whole number of zero or more (numpy's generators take no negative seed)."""
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"{value} is negative; give a whole number of zero or more")
-    return value
+#: ``--draws``: a whole number of at least MIN_DRAWS; ``--seed``: one of zero or more (numpy's
+#: generators take no negative seed).
+_draws = whole_number(MIN_DRAWS, "{value} draws is too few for a coverage interval; give at least {least}")
+_seed = whole_number(0, "{value} is negative; give a whole number of zero or more")
 
 
 class OneLineParser(argparse.ArgumentParser):

@@ -6,6 +6,8 @@ import argparse
 import os
 from typing import Any
 
+from ..argument_types import whole_number
+
 
 def add_batch_parser(sub: Any) -> argparse.ArgumentParser:
     """Add the ``batch`` subcommand to the CLI's subparsers."""
@@ -17,7 +19,7 @@ def add_batch_parser(sub: Any) -> argparse.ArgumentParser:
     p.add_argument("--setup", required=True, help="setup file (TOML): method, columns, parts")
     p.add_argument("--spec", required=True, help="spec file (TOML): [limits] and [decision]")
     p.add_argument("--out", required=True, metavar="RESULTS.csv", help="results CSV, appended to and resumed")
-    p.add_argument("--workers", type=_positive_int, default=available_cores(), metavar="N",
+    p.add_argument("--workers", type=whole_number(1, "must be at least 1"), default=available_cores(), metavar="N",
                    help="worker processes (default: the cores this process may use)")
     p.add_argument("--json", action="store_true", help="print the lot summary as JSON")
     p.add_argument("--plot", metavar="FILE.png", help="draw histograms with the limits and run charts")
@@ -31,13 +33,3 @@ def available_cores() -> int:
     if hasattr(os, "sched_getaffinity"):
         return max(1, len(os.sched_getaffinity(0)))
     return os.cpu_count() or 1  # pragma: no cover - not on Linux
-
-
-def _positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError("must be at least 1")
-    return value
