@@ -44,9 +44,9 @@ def expand_inputs(inputs: Sequence[str], skip: Callable[[str], bool] = lambda pa
     """Files named, files in named folders (not recursive), files matching patterns.
 
     Each path appears once, normalised (``os.path.normpath``), in capture
-    order, and each file under one name only (:func:`_one_name_each`). Files for
-    which ``skip`` is true (the run's own outputs) are left out wherever they come from. A name that is no file, folder or matching
-    pattern is an error raised before anything is analysed.
+    order, and each file under one name only (:func:`_one_name_each`). Files for which ``skip``
+    is true (the run's own outputs) are left out wherever they come from. A name that is no
+    file, folder or matching pattern is an error raised before anything is analysed.
     """
     found: set[str] = set()
     for item in inputs:
