@@ -114,3 +114,23 @@ def test_a_file_that_is_not_a_history_database_is_refused(tmp_path):
     with pytest.raises(HistoryDBError, match="use another --db") as caught:
         run(batch_args(tmp_path, "--workers", "1", "--db", str(tmp_path / "text.sqlite")), analyse=delayed_analyse)
     assert caught.value.exit_code == 3 and "\n" not in str(caught.value)
+
+
+def test_a_database_that_cannot_be_made_leaves_no_empty_file(tmp_path, monkeypatch):
+    # a full disk refused --db (exit 5, nothing analysed) but left an empty database file behind
+    # (a fault campaign's tmpfs); an existing database is never removed
+    from wavefit.batch.history_db import HistoryDB
+    from wavefit.errors import OutputError
+
+    def full(self):
+        raise sqlite3.OperationalError("database or disk is full")
+
+    monkeypatch.setattr(HistoryDB, "_prepare", full)
+    path = tmp_path / "h.sqlite"
+    with pytest.raises(OutputError, match="database or disk is full"):
+        HistoryDB(path, "lot", "rl-step", ("L",))
+    assert not path.exists()
+    path.write_bytes(b"")
+    with pytest.raises(OutputError):
+        HistoryDB(path, "lot", "rl-step", ("L",))
+    assert path.exists()

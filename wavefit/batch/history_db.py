@@ -108,6 +108,7 @@ class HistoryDB:
         self.method = method
         self.quantities = tuple(quantities)
         self.report = HistoryReport()
+        new = not os.path.lexists(self.path)
         try:
             self._db = sqlite3.connect(self.path, timeout=30.0, isolation_level=None)
         except sqlite3.Error as exc:
@@ -116,6 +117,8 @@ class HistoryDB:
             self._prepare()
         except sqlite3.OperationalError as exc:
             self._db.close()
+            if new:  # the empty file this run made (a full disk left one behind: a fault campaign)
+                self.path.unlink(missing_ok=True)
             raise write_failed("history database", self.path, exc, "nothing was analysed") from None
         except sqlite3.DatabaseError as exc:
             self._db.close()
