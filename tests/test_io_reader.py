@@ -266,6 +266,17 @@ def test_rows_that_go_on_with_another_separator_are_refused_not_a_footer(tmp_pat
     assert kept.rows == 200 and any("not data" in w for w in kept.warnings)
 
 
+@pytest.mark.parametrize("line, warned", [("Sample rate,5", True), ("Sample interval,0.002", True),
+                                           ("Sample rate,5 MSa/s", False), ("Sample interval,2e-7", False),
+                                           ("Sample interval (ms),2", False)])
+def test_a_slow_time_base_without_a_unit_is_warned(tmp_path: Path, line: str, warned: bool) -> None:
+    # a bare "Sample rate,5" was read as 5 Hz and gave L = 470 H with no word (a fault campaign's
+    # file); a unit in the value or the key, or an interval under 1 ms, needs none
+    rows = [f"{v:.6f},{-v:.6f}" for v in _signal(200)]
+    capture = read_capture(_write(tmp_path, [line, "CH1 (V),CH2 (V)", *rows]))
+    assert any("without a unit, read in SI" in w for w in capture.warnings) == warned
+
+
 def test_printing_resolution_of_fixed_and_significant_formats() -> None:
     time = 1e-4 + np.arange(1000) * 1.2345678e-9
     fixed = np.array([float(f"{t:.12f}") for t in time])

@@ -126,6 +126,10 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str =
             start = seconds if start is None else start
         elif interval is None:
             interval = (seconds, where)
+            if seconds >= UNITLESS_SLOW_INTERVAL and _without_unit(pair[0], value):
+                warnings.append(f"preamble {where} gives the sample {'rate' if _key_kind(pair[0]) == 'rate' else 'interval'} "
+                                f"without a unit, read in SI: an interval of {seconds:.6g} s; if it is in MSa/s, ns or "
+                                "another unit, write the unit")
         elif not same_interval(seconds, interval[0]):
             warnings.append(
                 f"preamble {where} gives a sample interval of {seconds:.6g} s, but "
@@ -258,6 +262,19 @@ def _time_quantity(key: str, value: str, sep: str = ",") -> tuple[str | None, fl
     if whole is None and len(copies) == 2:
         whole = _seconds(key, key_kind, kind, " ".join(copies))
     return kind, whole
+
+
+#: A sample interval from a preamble line without a unit is warned from this length on (as a
+#: time column without a unit is, ``wavefit.io.assemble``): a bare ``Sample rate,5`` read as
+#: 5 Hz gave L = 470 H with no word (a fault campaign's file); fast records rarely need a unit
+#: said, slow ones that are meant in Sa/s or ns do.
+UNITLESS_SLOW_INTERVAL = 1e-3
+
+
+def _without_unit(key: str, value: str) -> bool:
+    """Whether a time-base line names no unit, neither in its value nor in its key."""
+    match = _QUANTITY.match(value)
+    return match is not None and not match["unit"] and not parse_header(key).unit
 
 
 def _seconds(key: str, key_kind: str, kind: str, value: str) -> float | None:
