@@ -8,8 +8,7 @@ wavefit fit. Values, derivatives and integrals of the fitted curve at any instan
 coefficients times fixed basis rows, so their joint covariance is exact (no correlation
 between neighbouring points is thrown away).
 
-The number of knots is chosen by Schwarz's criterion among :data:`INTERIOR_KNOT_COUNTS`,
-on residuals whitened by their noise's autoregressive model (:func:`choose_interior_knots`);
+The number of knots is chosen by Schwarz's criterion among :data:`INTERIOR_KNOT_COUNTS`;
 the knots are placed at equal steps of a monotone guide signal (the current of a ramp: more
 knots where it changes fast). :func:`undersmoothed_knots` then adds a knot between each pair
 of neighbours: the criterion balances the spline's smoothing bias against its noise, so at
@@ -35,7 +34,6 @@ import numpy as np
 from scipy.interpolate import BSpline, make_lsq_spline
 
 from .engine import Block, fit_least_squares
-from .noise_model import fit_ar
 from .quantisation import include_quantisation
 from .result import FitResult
 
@@ -110,52 +108,23 @@ def fits_samples(knots: np.ndarray, samples: int) -> bool:
 
 
 def choose_interior_knots(t: np.ndarray, ys: list[np.ndarray], guide: np.ndarray) -> int:
-    """Interior knot count minimising Schwarz's criterion, summed over the records ``ys`` (each
-    fitted by unweighted least squares on the same knots), with each record's residuals
-    whitened by its noise's autoregressive model.
-
-    Schwarz's criterion n·log(RSS/n) + coefficients·log n takes the n samples as independent.
-    Band-limited scope noise is not: the residual sum of squares falls with every knot that
-    follows the noise's slow part faster than the penalty grows, and the count runs up (on a
-    12-bit t^1.5 ramp in noise correlated over 8 samples, 128 interior knots in 39 of 40 draws,
-    the slope's band covering 77 %; on a helper's 12-bit ngspice pulse captures 24–48 knots in
-    3 of 16 draws, the saturation currents 2–11 standard uncertainties high). So the count the
-    plain criterion chooses gives each record's residuals, an AR model is fitted to them
-    (:func:`wavefit.fit.noise_model.fit_ar`), and the criterion is taken again on every
-    count's residuals whitened by that one model: n·log(s²) + coefficients·log n, s² their
-    mean square. White residuals (order 0) leave the plain criterion's choice; on the ramp
-    the count fell to 5–13 in 30 of 40 draws and the band covered 91 %, on the pulse captures
-    to 3–6 with every I_sat within 1.3 standard uncertainties (measured). A model fitted to
-    each count's own residuals takes a smooth misfit for correlated noise, and one fitted to the
-    most knots' residuals (the noise's slow part taken out) whitens too little and too much;
-    iterated to a fixed point the count fell too far (5 knots in 29 of 40 ramp draws, the
-    band's bias then larger).
-
-    References
-    ----------
-    G. Schwarz, Ann. Statist. 6 (1978) 461–464; regression with autoregressive errors:
-    G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley 1989, ch. 6.
-    """
+    """Interior knot count minimising Schwarz's criterion, summed over the records ``ys``
+    (each fitted by unweighted least squares on the same knots, with its own scatter)."""
     n = t.size
-    counts = [count for count in INTERIOR_KNOT_COUNTS if n >= MIN_SAMPLES_PER_COEFFICIENT * (count + DEGREE + 1)]
-    if not counts:
-        return INTERIOR_KNOT_COUNTS[0]
-
-    def residuals(count: int) -> list[np.ndarray]:  # made again when asked (a long record's are large)
+    best, best_count = np.inf, INTERIOR_KNOT_COUNTS[0]
+    for count in INTERIOR_KNOT_COUNTS:
+        coefficients = count + DEGREE + 1
+        if n < MIN_SAMPLES_PER_COEFFICIENT * coefficients:
+            break
         knots = knots_at_steps(t, guide, count)
-        return [y - make_lsq_spline(t, y, knots, k=DEGREE)(t) for y in ys]
-
-    def criterion(count: int, noises: list | None = None) -> float:
-        total = 0.0
-        for k, r in enumerate(residuals(count)):
-            whitened = r if noises is None else noises[k].whiten(r)
-            total += n * np.log(max(float(whitened @ whitened) / n, np.finfo(float).tiny))
-            total += (count + DEGREE + 1) * np.log(n)
-        return total
-
-    plain = min(counts, key=criterion)
-    noises = [fit_ar([r]) for r in residuals(plain)]
-    return min(counts, key=lambda count: criterion(count, noises))
+        criterion = 0.0
+        for y in ys:
+            residual = y - make_lsq_spline(t, y, knots, k=DEGREE)(t)
+            criterion += n * np.log(max(float(residual @ residual) / n, np.finfo(float).tiny))
+            criterion += coefficients * np.log(n)
+        if criterion < best:
+            best, best_count = criterion, count
+    return best_count
 
 
 def undersmoothed_knots(t: np.ndarray, ys: list[np.ndarray], guide: np.ndarray, records: int = 1) -> np.ndarray:
