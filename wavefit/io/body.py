@@ -399,6 +399,8 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
     footer: list[tuple[int, str]] = []
     shaped = in_a_row = other_rows = 0
     other_from = (0, "")  # the first of the rows in another separator in a row
+    expected: float | None = None
+    step = 0.0
     before = last = ""  # the last two rows that read
     for number, line in _table_lines(source, layout, encoding):
         if not line.strip():
@@ -418,9 +420,17 @@ def _scan(source: FileSource, layout: Layout, encoding: str, exc: Exception,
             if not (_is_footer_text(line) or _is_other_shape(line, layout)):
                 return _Scan(problem)
             first = problem
+            # the time of the table's last row and its step, which rows in another separator would go on from
+            expected = _time_value(last, layout) if last else None
+            earlier = _time_value(before, layout) if before else None
+            step = expected - earlier if expected is not None and earlier is not None else 0.0
         table_row = problem is None and _count_cells(line, layout.sep) == layout.n_fields
         shaped, in_a_row = shaped + table_row, in_a_row + 1 if table_row else 0
-        other_rows = other_rows + 1 if _is_row_of_other_separator(line, layout) else 0
+        time = _other_separator_time(line, layout)
+        if in_step(time, expected, 1, step):  # the table's time column going on, in another separator
+            other_rows, expected = other_rows + 1, time
+        else:
+            other_rows = 0
         if other_rows == 1:
             other_from = (number, line)
         if other_rows >= RESUMED_ROWS:
@@ -486,14 +496,20 @@ def _is_footer_text(line: str) -> bool:
     return _WORD.search(text) is not None and not _LEADING_NUMBER.match(text)
 
 
-def _is_row_of_other_separator(line: str, layout: Layout) -> bool:
-    """A line of as many numbers as the table has columns, or more, split by another separator
-    than the table's: RESUMED_ROWS of them in a row are the table's rows going on in another
-    format, not a footer (a file whose separator changed from commas to tabs partway had its
-    last 1,250 rows dropped as a footer, with a warning only: a fault campaign's file)."""
+def _other_separator_time(line: str, layout: Layout) -> float | None:
+    """The first number of a line of as many numbers as the table has columns split by another
+    separator than the table's (its time, were it a row of the table), else None. RESUMED_ROWS
+    such lines in a row whose times go on from the table's last row by its step are the table
+    going on in another format, not a footer: a file whose separator changed from commas to
+    tabs partway had its last 1,250 rows dropped as a footer, with a warning only (a fault
+    campaign's file), while a block of numeric settings after a table (a matrix, pairs) does
+    not step on from its time and stays a footer (a review)."""
+    if _count_cells(line, layout.sep) >= layout.n_fields:
+        return None
     tokens = re.split(r"[\s,;|]+", line.strip())
-    return (_count_cells(line, layout.sep) < layout.n_fields <= len(tokens)
-            and all(is_number(token, ".") or is_number(token, ",") for token in tokens))
+    if len(tokens) != layout.n_fields or not all(is_number(token, ".") for token in tokens):
+        return None
+    return float(tokens[0])
 
 
 def _is_other_shape(line: str, layout: Layout) -> bool:
