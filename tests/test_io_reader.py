@@ -248,6 +248,10 @@ def test_two_sample_intervals_without_a_time_column_are_refused(tmp_path: Path, 
     assert read_capture(path, sample_interval=2e-7).sample_interval == 2e-7
     agreeing = _write(tmp_path, ["Sample interval,4e-07", "Sample rate,2.5 MSa/s", "CH1 (V),CH2 (V)", *rows], "ok.csv")
     assert read_capture(agreeing).sample_interval == pytest.approx(4e-7)
+    # a rate and an interval that agree to their printing (1e-4 apart) are one time base (a review
+    # found them refused)
+    printed = _write(tmp_path, ["Sample rate,3 GSa/s", "Sample interval,333.3 ps", "CH1 (V),CH2 (V)", *rows], "p.csv")
+    assert read_capture(printed).sample_interval == pytest.approx(1 / 3e9)
     footer = _write(tmp_path, ["Sample interval,4e-07", "CH1 (V),CH2 (V)", *rows, "Sample interval,2e-07"], "f.csv")
     with pytest.raises(CaptureError, match="gives two sample intervals"):
         read_capture(footer)
@@ -277,7 +281,11 @@ def test_a_slow_time_base_without_a_unit_is_warned(tmp_path: Path, line: str, wa
     # file); a unit in the value or the key, or an interval under 1 ms, needs none
     rows = [f"{v:.6f},{-v:.6f}" for v in _signal(200)]
     capture = read_capture(_write(tmp_path, [line, "CH1 (V),CH2 (V)", *rows]))
-    assert any("without a unit, read in SI" in w for w in capture.warnings) == warned
+    assert any("has no unit and is read in SI" in w for w in capture.warnings) == warned
+    # a time column sets the axis: the preamble's interval is not used, and not warned (a review)
+    timed = [f"{k * 2e-3:.6f},{v:.6f}" for k, v in enumerate(_signal(200))]
+    with_time = read_capture(_write(tmp_path, [line, "Time (s),CH1 (V)", *timed], "t.csv"))
+    assert not any("has no unit" in w for w in with_time.warnings)
 
 
 def test_printing_resolution_of_fixed_and_significant_formats() -> None:

@@ -366,6 +366,11 @@ def _time_axis(
     if time_index is not None:
         return _column_axis(table, units[time_index], columns[time_index], time_index, warnings)
     if hint.sample_interval is not None:
+        if hint.interval_without_unit and hint.sample_interval >= _SLOW_INTERVAL:
+            # (a bare "Sample rate,5" read as 5 Hz gave L = 470 H with no word: a fault campaign's file)
+            warnings.append(f"the preamble's sample interval ({hint.interval_line}) has no unit and is read in SI: "
+                            f"{hint.sample_interval:.6g} s between samples; if it is in MSa/s, ns or another unit, "
+                            "write the unit")
         if hint.other_interval is not None:
             raise CaptureError(
                 f"{table.source}: the file gives two sample intervals, {hint.sample_interval:.6g} s "

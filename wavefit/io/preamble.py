@@ -66,8 +66,11 @@ class Preamble:
     warnings
         Lines that named a time quantity but could not be read.
     other_interval
-        A later line that gives another sample interval than ``interval_line``, with its value
-        (``"line 2 'dt,2e-07' gives 2e-07 s"``); None when none contradicts it.
+        A later line that gives another sample interval than ``interval_line``, beyond printing
+        precision (:func:`contradicts`), with its value (``"line 2 'dt,2e-07' gives 2e-07 s"``);
+        None when none contradicts it.
+    interval_without_unit
+        Whether ``interval_line`` names no unit (read in SI, seconds or Hz).
     """
 
     metadata: dict[str, str] = field(default_factory=dict)
@@ -76,6 +79,7 @@ class Preamble:
     start_time: float | None = None
     warnings: tuple[str, ...] = ()
     other_interval: str | None = None
+    interval_without_unit: bool = False
 
 
 def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str = "note",
@@ -103,6 +107,7 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str =
     used = set(taken)
     warnings: list[str] = []
     interval: tuple[float, str] | None = None
+    without_unit = False
     other: str | None = None
     start: float | None = None
     notes = 0
@@ -126,16 +131,14 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str =
             start = seconds if start is None else start
         elif interval is None:
             interval = (seconds, where)
-            if seconds >= UNITLESS_SLOW_INTERVAL and _without_unit(pair[0], value):
-                warnings.append(f"preamble {where} gives the sample {'rate' if _key_kind(pair[0]) == 'rate' else 'interval'} "
-                                f"without a unit, read in SI: an interval of {seconds:.6g} s; if it is in MSa/s, ns or "
-                                "another unit, write the unit")
+            without_unit = _without_unit(pair[0], value)
         elif not same_interval(seconds, interval[0]):
             warnings.append(
                 f"preamble {where} gives a sample interval of {seconds:.6g} s, but "
                 f"{interval[1]} gave {interval[0]:.6g} s; the first is used"
             )
-            other = other or f"{where} gives {seconds:.6g} s"
+            if contradicts(seconds, interval[0]):
+                other = other or f"{where} gives {seconds:.6g} s"
     return Preamble(
         metadata=metadata,
         sample_interval=None if interval is None else interval[0],
@@ -143,12 +146,24 @@ def read_preamble(lines: Iterable[tuple[int, str]], sep: str, *, text_key: str =
         start_time=start,
         warnings=tuple(warnings),
         other_interval=other,
+        interval_without_unit=without_unit,
     )
 
 
 def same_interval(a: float, b: float) -> bool:
-    """Whether two sample intervals a preamble states agree (to printing precision)."""
+    """Whether two sample intervals a preamble states are the same number (1e-6 relative)."""
     return abs(a - b) <= _SAME * b
+
+
+#: Two stated sample intervals that differ by more than this share are two time bases: a rate
+#: and an interval printed to three or four digits (3 GSa/s and 333.3 ps) differ by 1e-4 and
+#: are one (a review found such pairs refused at 1e-6).
+CONTRADICTING_SHARE = 0.01
+
+
+def contradicts(a: float, b: float) -> bool:
+    """Whether two stated sample intervals are two time bases (:data:`CONTRADICTING_SHARE`)."""
+    return abs(a - b) > CONTRADICTING_SHARE * b
 
 
 def split_key_value(text: str, sep: str) -> tuple[str, str] | None:
@@ -262,13 +277,6 @@ def _time_quantity(key: str, value: str, sep: str = ",") -> tuple[str | None, fl
     if whole is None and len(copies) == 2:
         whole = _seconds(key, key_kind, kind, " ".join(copies))
     return kind, whole
-
-
-#: A sample interval from a preamble line without a unit is warned from this length on (as a
-#: time column without a unit is, ``wavefit.io.assemble``): a bare ``Sample rate,5`` read as
-#: 5 Hz gave L = 470 H with no word (a fault campaign's file); fast records rarely need a unit
-#: said, slow ones that are meant in Sa/s or ns do.
-UNITLESS_SLOW_INTERVAL = 1e-3
 
 
 def _without_unit(key: str, value: str) -> bool:

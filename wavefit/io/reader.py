@@ -12,7 +12,7 @@ from .body import Body, line_numbers, read_body, without_cut_last_line
 from .capture import Capture
 from .encoding import decode_head
 from .layout import Layout, sniff_layout
-from .preamble import Preamble, read_preamble, same_interval
+from .preamble import Preamble, contradicts, read_preamble
 from .source import open_source
 from .timebase import Printing
 
@@ -134,13 +134,14 @@ def _with_footer(preamble: Preamble, footer: tuple[tuple[int, str], ...], sep: s
     interval = preamble.sample_interval is None and after.sample_interval is not None
     other = preamble.other_interval or after.other_interval
     if (preamble.sample_interval is not None and after.sample_interval is not None
-            and not same_interval(after.sample_interval, preamble.sample_interval)):
+            and contradicts(after.sample_interval, preamble.sample_interval)):
         other = other or f"{after.interval_line} gives {after.sample_interval:.6g} s"
     return replace(
         preamble,
         metadata={**preamble.metadata, **after.metadata},
         sample_interval=after.sample_interval if interval else preamble.sample_interval,
         interval_line=after.interval_line if interval else preamble.interval_line,
+        interval_without_unit=after.interval_without_unit if interval else preamble.interval_without_unit,
         start_time=preamble.start_time if preamble.start_time is not None else after.start_time,
         warnings=(*preamble.warnings, *after.warnings, warning),
         other_interval=other,
