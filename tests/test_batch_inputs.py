@@ -78,3 +78,21 @@ def test_one_file_under_many_names_is_one_capture(lot):
     os.link(lot / "lot" / "p1.csv", lot / "lot" / "sub" / "p1_again.csv")
     got = expand_inputs(["lot/**/*.csv"])
     assert got == [os.path.join("lot", n) for n in ("p1.csv", "p10.csv", "self.csv", os.path.join("sub", "p4.csv"))]
+
+
+def test_files_whose_file_system_gives_no_inode_number_stay_apart(lot, monkeypatch):
+    # an inode number of 0 identifies no file (some network and Windows file systems report it):
+    # distinct captures were merged into one (a review)
+    real = os.stat
+
+    class NoInode:
+        def __init__(self, info):
+            self._info = info
+
+        st_ino = 0
+
+        def __getattr__(self, name):
+            return getattr(self._info, name)
+
+    monkeypatch.setattr(os, "stat", lambda path, *a, **k: NoInode(real(path, *a, **k)))
+    assert expand_inputs(["lot"]) == [os.path.join("lot", n) for n in ("p1.csv", "p2.csv.gz", "p3.TXT", "p10.csv")]

@@ -153,7 +153,7 @@ def test_a_name_the_file_repeats_is_refused_and_its_columns_serve_by_index(tmp_p
     for header in ("Time (s),drive (V),sense (V),sense (V)", "Time (s),drive (V),sense (mV),sense (V)"):
         path = tmp_path / "twice.csv"
         path.write_text("\n".join([header, *rows]) + "\n", encoding="utf-8")
-        with pytest.raises(wavefit.SetupError, match=r"2 columns of .* are called 'sense' \(at 2, 3\): map the role by"):
+        with pytest.raises(wavefit.SetupError, match=r"2 columns of .* match 'sense' \(at 2, 3\): map the role by"):
             wavefit.analyze(path, TWO_CHANNELS)
     path.write_text("\n".join(["Time (s),drive (V),sense (V),sense (V)", *rows]) + "\n", encoding="utf-8")
     by_index = wavefit.analyze(path, {**TWO_CHANNELS, "columns": {"drive": 1, "sense": 3}})

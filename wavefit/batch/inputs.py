@@ -90,7 +90,8 @@ def _one_name_each(paths: list[str]) -> list[str]:
             except OSError:
                 names[path] = path
                 continue
-        key = (info.st_dev, info.st_ino)
+        # (an inode number of 0 identifies no file, on some network and Windows file systems)
+        key = (info.st_dev, info.st_ino) if info.st_ino else path
         if key not in names or len(path) < len(names[key]):
             names[key] = path
     return sorted(names.values(), key=capture_order)

@@ -114,7 +114,7 @@ class Capture:
         found = _named(self.channels, key)
         if len(found) > 1:
             places = ", ".join(str(c.position) for c in found if c.position is not None)
-            raise SetupError(f"{len(found)} columns of {self.source} are called {key!r}"
+            raise SetupError(f"{len(found)} columns of {self.source} match {key!r}"
                              + (f" (at {places})" if places else "")
                              + ": map the role by the column's index (counted from 0, the time column included)")
         if found:
