@@ -24,7 +24,7 @@ import numpy as np
 from numpy.polynomial import legendre
 from scipy import stats
 
-from ..fit.damped_sine import DampedSineFit, fit_damped_sine
+from ..fit.damped_sine import DampedSineFit, fit_damped_sine, ring_parameters_at
 from ..fit.portmanteau import SIGNIFICANCE
 
 #: Highest degree of the Legendre polynomials that stand for the baseline's motion over the
@@ -81,10 +81,8 @@ def baseline_trend(ring: DampedSineFit, y: np.ndarray, noise: str) -> BaselineTr
     trend = legendre.legval(np.linspace(-1.0, 1.0, n), coef)
     seg = y[ring.start:ring.stop] - trend
     dt = ring.sample_interval
-    start = ring.fit.values.copy()
-    start[3:] *= dt
     try:
-        again = fit_damped_sine(np.arange(n) * dt, seg, start, dt, noise=noise, close=True)
+        again = fit_damped_sine(np.arange(n) * dt, seg, ring_parameters_at(ring, 0), dt, noise=noise, close=True)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError):
         return None
     errors = [ring.fit.stderr(name) for name in ("alpha", "w_d")]
