@@ -195,7 +195,7 @@ def pieced_jacobian(x: np.ndarray, count: int) -> Jacobian:
 
 
 def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: int | None = None,
-             noise: str = "auto") -> DampedSineFit:
+             noise: str = "auto", window: RingWindow | None = None) -> DampedSineFit:
     """Find the ring in a record and fit a damped sinusoid to it.
 
     Parameters
@@ -206,6 +206,8 @@ def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: in
         Fit window in samples; found automatically when omitted (see :func:`ring_window`).
     noise : {"auto", "white"}
         Noise model of :func:`wavefit.fit.engine.fit_least_squares`.
+    window : RingWindow, optional
+        :func:`ring_window` of ``y``, when the caller has it already.
 
     Raises
     ------
@@ -220,7 +222,7 @@ def fit_ring(t: np.ndarray, y: np.ndarray, *, start: int | None = None, stop: in
     t = np.asarray(t, dtype=float)
     y = np.asarray(y, dtype=float)
     dt = float((t[-1] - t[0]) / (t.size - 1))
-    win = ring_window(y)
+    win = ring_window(y) if window is None else window
     lo = win.start if start is None else int(start)
     hi = win.stop if stop is None else int(stop)
     if hi - lo < 12:

@@ -187,11 +187,12 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
     start = _time_option(method, setup, "fit_start", t)
     stop = _time_option(method, setup, "fit_end", t)
     try:
-        ring = fit_ring(t, y, start=start, stop=stop, noise=noise)
+        window = ring_window(y)  # (where the ring is: for each fit below and the fit_start check)
+        ring = fit_ring(t, y, start=start, stop=stop, noise=noise, window=window)
         clipped = _clipped(ring, y, channel.levels.step)
         after = _after_clipping(ring, y) if clipped and start is None else None
         if after is not None:
-            ring = fit_ring(t, y, start=after, stop=ring.stop, noise=noise)
+            ring = fit_ring(t, y, start=after, stop=ring.stop, noise=noise, window=window)
             clipped = _clipped(ring, y, channel.levels.step)
     except (ValueError, FloatingPointError, np.linalg.LinAlgError) as exc:
         held = max(longest_run_at_extremes(y))
@@ -207,7 +208,7 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
                               str(capture.source)) from None
     warnings = [f"fit: {w}" for w in ring.fit.warnings]
     if start is not None:
-        warnings += [w for w in (_before_onset(t, y, start),) if w]
+        warnings += [w for w in (_before_onset(t, window.onset, start),) if w]
     clipping = ("" if after is None else
                 f"the ring is clipped at the converter's limit until {t[after - 1]:.6g} s: the fit starts after it, "
                 "leaving out the larger early cycles (set the vertical scale so the whole ring fits on screen)")
@@ -234,9 +235,9 @@ def measure_ring(method: Method, capture: Capture, setup: Setup) -> RingMeasurem
 EARLY_START_SAMPLES = 2
 
 
-def _before_onset(t: np.ndarray, y: np.ndarray, start: int) -> str | None:
-    """A warning when a given fit_start (sample ``start``) lies before the ring's onset."""
-    onset = ring_window(y).onset
+def _before_onset(t: np.ndarray, onset: int, start: int) -> str | None:
+    """A warning when a given fit_start (sample ``start``) lies before the ring's ``onset``
+    (:attr:`~wavefit.fit.damped_sine.RingWindow.onset`)."""
     if onset - start < EARLY_START_SAMPLES:
         return None
     return (f"fit_start ({t[start]:.6g} s) is {onset - start} samples before the ring's onset ({t[onset]:.6g} s, "
