@@ -497,11 +497,9 @@ def _unreported_drops(drops: Mapping[int, int | None], weak: Mapping[int, float]
         out.append(f"L_inc dips {percents(weak)} below L0 only within its noise (at most {max(weak.values()):.1f} "
                    f"standard uncertainties below those levels, where {FALL_Z:g} are needed; the range ends at "
                    f"{grid[-1]:.4g} A): no {names(weak)} (a longer pulse reaches further into saturation)")
-    def below(d: int) -> bool:
-        gap = (1 - d / 100) * l0 - first
-        return gap.std_dev > 0 and gap.nominal_value > FALL_Z * gap.std_dev
-
-    early = [d for d, j in drops.items() if j is None and d not in weak and below(d)]
+    # the first point's fall below each level, judged as every other fall is (from grid point 0)
+    below, _ = significant_falls([first], l0, {d: 0 for d, j in drops.items() if j is None and d not in weak}, FALL_Z)
+    early = [d for d, j in below.items() if j is not None]
     if early:
         out.append(f"L_inc is already {percents(early)} below L0 at the lowest measured current {grid[0]:.4g} A: "
                    f"no {names(early)} (the ring at the switch-on masks the start of the ramp; faster sampling or a "
