@@ -125,9 +125,9 @@ def write_channel_comparison(comparison: ChannelComparison, path: str | os.PathL
     write_toml_whole(data, path)
 
 
-#: The units of a comparison's dimensioned figures (the gain ratio has none); an empty unit is
-#: taken as these (a hand edited skew in "V" was accepted: a fault campaign's file).
-UNITS = {"skew": "s"}
+#: The unit of a comparison's skew; an empty unit is taken as it (a hand edited skew in "V" was
+#: accepted: a fault campaign's file).
+SKEW_UNIT = "s"
 
 
 def read_channel_comparison(path: str | os.PathLike[str]) -> ChannelComparison:
@@ -156,16 +156,15 @@ def read_channel_comparison(path: str | os.PathLike[str]) -> ChannelComparison:
     if not isinstance(made, dt.datetime) or made.tzinfo is None:
         raise SetupError(f"{where}: 'made' must be a date and time with its UTC offset, "
                          f"e.g. 2026-12-03T22:00:00Z")
-    for key, unit in UNITS.items():
-        given = data[key].get("unit") if isinstance(data[key], Mapping) else None
-        if isinstance(given, str) and given not in (unit, ""):
-            raise SetupError(f"{where}: [{key}] unit is {given!r}; a {key.replace('_', ' ')} is in {unit!r}")
+    skew = _estimated(data["skew"], "skew", where)
+    if skew.unit not in (SKEW_UNIT, ""):
+        raise SetupError(f"{where}: [skew] unit is {skew.unit!r}; a skew is in {SKEW_UNIT!r}")
     return ChannelComparison(
         reference=_role(data["reference"], "reference", where),
         other=_role(data["other"], "other", where),
         gain_ratio=_estimated(data["gain_ratio"], "gain_ratio", where),
         offset_difference=_estimated(data["offset_difference"], "offset_difference", where),
-        skew=_estimated(data["skew"], "skew", where),
+        skew=skew,
         made=made.astimezone(dt.timezone.utc),
         capture=_text(data["capture"], "capture", where),
         capture_sha256=_text(data["capture_sha256"], "capture_sha256", where),
